@@ -1,0 +1,132 @@
+"""Hardware checks: output ranges, pulse widths, slew, table size, row spacing."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..calibration import to_output
+from ..findings import make
+from ..registry import check
+
+
+def _extremes(seg):
+    """Physical values a segment reaches (endpoints, plus the envelope peak)."""
+    if seg.kind == "set":
+        return (seg.v1,)
+    return (seg.v0, seg.v1)
+
+
+@check("hardware.out-of-range", "error", "the rig file's output ranges (the hardware's data sheet values)")
+def output_range(shot):
+    """A value that, after calibration, lies outside the output's range (for
+    example 11 V on a +-10 V analog output, or a synth frequency above its
+    maximum). The hardware would clip or wrap it. Lower the value or check the
+    calibration."""
+    for s in shot.segments:
+        out = shot.rig.outputs[s.output]
+        for v in _extremes(s):
+            y = float(to_output(out, v))
+            if not (out.lo - 1e-12 * max(1, abs(out.lo)) <= y <= out.hi + 1e-12 * max(1, abs(out.hi))):
+                phys = f" ({v:.6g} {out.phys_unit})" if out.calibration else ""
+                yield make("hardware.out-of-range", f"'{out.name}' would output {y:.6g} {out.unit}{phys}, outside "
+                           f"[{out.lo:g}, {out.hi:g}] {out.unit}", s.pos, block=s.block, time_s=s.t0,
+                           hint="lower the value, or check the channel's calibration and range in the rig")
+                break
+
+
+@check("safety.hard-limit", "error", "the rig file's hard limits (the lab's safety limits for coils and lasers)")
+def hard_limits(shot):
+    """A physical value beyond a hard limit of the rig (coil current, laser
+    power). No build may ever exceed these. Hard limits are a second line of
+    defence: they never replace the hardware interlocks."""
+    for s in shot.segments:
+        out = shot.rig.outputs[s.output]
+        for v in _extremes(s):
+            if out.hard_max is not None and v > out.hard_max or out.hard_min is not None and v < out.hard_min:
+                yield make("safety.hard-limit", f"'{out.name}' would reach {v:.6g} {out.phys_unit}, beyond its hard limit "
+                           f"[{out.hard_min if out.hard_min is not None else '-inf'}, "
+                           f"{out.hard_max if out.hard_max is not None else 'inf'}] {out.phys_unit}", s.pos, block=s.block,
+                           time_s=s.t0, hint="reduce the value; hard limits are not to be raised without the lab's safety review")
+                break
+
+
+@check("hardware.pulse-too-short", "error", "the rig file's minimum pulse width per digital channel")
+def pulse_width(shot):
+    """A digital pulse shorter than the channel's declared minimum width (a
+    shutter driver or a camera trigger input that needs a minimum high time)."""
+    for s in shot.segments:
+        out = shot.rig.outputs[s.output]
+        if out.kind != "digital" or not out.min_pulse_s or not s.action.endswith(":end"):
+            continue
+        # the matching start is the last set on this output before this end
+        starts = [x for x in shot.segments if x.output == s.output and x.kind == "set" and x.t0 < s.t0 and x.block == s.block]
+        if starts:
+            width = s.t0 - max(starts, key=lambda x: x.t0).t0
+            if width < out.min_pulse_s:
+                yield make("hardware.pulse-too-short", f"pulse on '{out.name}' lasts {width * 1e6:.4g} us, shorter than its "
+                           f"minimum {out.min_pulse_s * 1e6:.4g} us", s.pos, block=s.block, time_s=s.t0,
+                           hint=f"make it at least {out.min_pulse_s * 1e6:.4g} us")
+
+
+@check("hardware.slew", "error", "the rig file's max_slew per channel (e.g. a coil driver's voltage compliance)")
+def slew_rate(shot):
+    """A ramp or step faster than the channel's maximum slew rate (physical
+    units per second). A coil's current cannot follow a step faster than its
+    driver's compliance allows; steps are judged over the device's minimum
+    interval."""
+    for s in shot.segments:
+        out = shot.rig.outputs[s.output]
+        if not out.max_slew:
+            continue
+        if s.kind == "ramp":
+            from ..compile.shapes import shape_derivative_bounds
+
+            try:
+                dmax, _ = shape_derivative_bounds(s.shape, duration_s=s.t1 - s.t0, tau_s=s.tau_s, table=s.table)
+            except Exception:
+                dmax = 1.0
+            rate = abs(s.v1 - s.v0) * dmax / (s.t1 - s.t0)
+            if rate > out.max_slew * (1 + 1e-9):
+                yield make("hardware.slew", f"ramp on '{out.name}' changes at up to {rate:.4g} {out.phys_unit}/s, "
+                           f"{rate / out.max_slew:.3g} times its max slew {out.max_slew:.4g} {out.phys_unit}/s", s.pos,
+                           block=s.block, time_s=s.t0, hint=f"make the ramp at least {(s.t1 - s.t0) * rate / out.max_slew * 1e3:.4g} ms long")
+
+
+@check("hardware.memory-depth", "error", "the rig file's memory_depth per device", stage="tables")
+def memory_depth(shot, compiled):
+    """A device table longer than the device's memory depth cannot be loaded.
+    The message says how many rows over and which blocks contribute most;
+    loosen ramp tolerances or shorten ramps there."""
+    for t in compiled.tables:
+        dev = shot.rig.devices[t.device]
+        if dev.memory_depth and len(t.ticks) > dev.memory_depth:
+            contrib = {}
+            for (block, _out, _t0), n in t.rows_per_segment.items():
+                contrib[block] = contrib.get(block, 0) + n
+            top = sorted(contrib.items(), key=lambda kv: -kv[1])[:3]
+            where = ", ".join(f"{b} ({n} rows)" for b, n in top) or "many sets"
+            yield make("hardware.memory-depth", f"device '{t.device}' needs {len(t.ticks)} rows, "
+                       f"{len(t.ticks) - dev.memory_depth} over its memory depth {dev.memory_depth}; most from {where}",
+                       dev.pos, hint="raise ramp tolerances, shorten ramps, or move channels to another device")
+
+
+@check("hardware.min-interval", "error", "the rig file's min_interval per device", stage="tables")
+def row_spacing(shot, compiled):
+    """Two rows of a device table closer than the device's minimum interval
+    between updates (for example two edges 1 us apart on a device that updates
+    every 2 us). Move the events apart."""
+    for t in compiled.tables:
+        dev = shot.rig.devices[t.device]
+        if dev.min_interval_ticks <= 1 or len(t.ticks) < 2:
+            continue
+        gaps = np.diff(t.ticks)
+        bad = np.nonzero(gaps < dev.min_interval_ticks)[0]
+        if len(bad):
+            k = int(bad[0])
+            time = float(t.ticks[k + 1] * t.tick_s)
+            block = next((b.name for b in shot.blocks if b.start_s <= time <= b.end_s), None)
+            pos = shot.block(block).pos if block else dev.pos
+            yield make("hardware.min-interval", f"device '{t.device}': {len(bad)} row(s) closer than its minimum interval "
+                       f"{dev.min_interval_ticks * t.tick_s * 1e6:.4g} us; first at {time * 1e3:.6g} ms "
+                       f"({int(gaps[k])} ticks apart)", pos, block=block, time_s=time,
+                       hint="separate the events by at least the minimum interval")

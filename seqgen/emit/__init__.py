@@ -1,0 +1,1 @@
+"""Stage 6: writers for build folders (manifest, CSV and .npz channel tables)."""

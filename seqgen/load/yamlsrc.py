@@ -1,0 +1,196 @@
+"""Safe YAML loading that keeps the line and column of every key and value.
+
+The document is composed into nodes with the libyaml-backed safe loader when
+available (fast), then converted to plain dicts and lists while recording the
+position of each path. Aliases are expanded with a budget so that an
+alias-expansion bomb is refused instead of exhausting memory; duplicate keys
+are an error rather than silently last-wins.
+"""
+
+from __future__ import annotations
+
+import difflib  # noqa: F401  (kept for callers that build hints)
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import yaml
+
+from ..findings import Finding, SourcePos, make
+from ..registry import declare
+
+try:
+    _Loader = yaml.CSafeLoader
+except AttributeError:  # pragma: no cover - libyaml missing
+    _Loader = yaml.SafeLoader
+
+MAX_FILE_BYTES = 8 * 1024 * 1024
+MAX_NODES = 2_000_000  # after alias expansion
+MAX_DEPTH = 64
+
+YAML_SYNTAX = declare("schema.yaml-syntax", "error", """
+    The file is not valid YAML. The position is where the parser gave up; the
+    mistake is often on the line before (a missing colon, a tab used for
+    indentation, an unclosed bracket or quote).""", "YAML 1.1 specification (yaml.org, 2005)", "load")
+DUPLICATE_KEY = declare("schema.duplicate-key", "error", """
+    The same key appears twice in one mapping. YAML loaders usually keep the
+    last one silently; seqgen refuses so that an edit is never lost.""", "YAML 1.2 specification, section 3.2.1.1 (keys are unique)", "load")
+FILE_MISSING = declare("schema.file-missing", "error", """
+    A file named by the command line, by `rig:` or by `use:` cannot be read.
+    Paths in a sequence file are relative to that file's folder.""", stage="load")
+FILE_TOO_LARGE = declare("schema.file-too-large", "error", f"""
+    The file is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB. Sequence and rig files are
+    small; a file this large is almost certainly not one.""", stage="load")
+YAML_BOMB = declare("schema.yaml-too-complex", "error", f"""
+    The document expands to more than {MAX_NODES} nodes (through aliases) or
+    nests deeper than {MAX_DEPTH} levels. This is refused to bound time and memory:
+    an alias-expansion bomb looks exactly like this.""", stage="load")
+YAML_TAG = declare("schema.yaml-unsupported", "error", """
+    The document uses a YAML feature seqgen does not accept (custom tags,
+    non-string mapping keys, several documents in one file).""", stage="load")
+
+
+_YAML12_FLOAT = __import__("re").compile(r"^[-+]?(\d+\.?\d*|\.\d+)[eE][-+]?\d+$")
+
+
+class LoadError(Exception):
+    def __init__(self, finding: Finding):
+        super().__init__(finding.message)
+        self.finding = finding
+
+
+@dataclass(frozen=True)
+class Document:
+    """Plain data of one YAML file plus positions keyed by path tuples."""
+
+    file: str
+    data: Any
+    positions: dict  # path tuple -> (line, column), 1-based
+    text_sha256: str
+
+    def pos(self, path: tuple = ()) -> SourcePos:
+        """Position of the deepest known prefix of `path`."""
+        path = tuple(path)
+        while path and path not in self.positions:
+            path = path[:-1]
+        line, col = self.positions.get(path, (0, 0))
+        return SourcePos(self.file, line, col)
+
+
+def load_file(path: str | Path, display: str | None = None) -> Document:
+    p = Path(path)
+    name = display or str(path)
+    try:
+        size = p.stat().st_size
+        if size > MAX_FILE_BYTES:
+            raise LoadError(make(FILE_TOO_LARGE, f"file is {size} bytes, over the {MAX_FILE_BYTES} byte limit",
+                                 SourcePos(name), hint="check that this is the sequence file you meant"))
+        raw = p.read_bytes()
+    except LoadError:
+        raise
+    except IsADirectoryError:
+        raise LoadError(make(FILE_MISSING, f"{name} is a folder, not a file", SourcePos(name),
+                             hint="name a .yaml file")) from None
+    except OSError as exc:
+        raise LoadError(make(FILE_MISSING, f"cannot read {name}: {exc.strerror or exc}", SourcePos(name),
+                             hint="check the path; paths in a sequence file are relative to that file")) from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise LoadError(make(YAML_SYNTAX, f"file is not UTF-8 text (byte {exc.start})", SourcePos(name),
+                             hint="save the file as UTF-8")) from None
+    return load_text(text, name)
+
+
+def load_text(text: str, name: str = "<text>") -> Document:
+    import hashlib
+
+    sha = hashlib.sha256(text.encode("utf-8")).hexdigest()
+    if len(text) > MAX_FILE_BYTES:
+        raise LoadError(make(FILE_TOO_LARGE, "text too large", SourcePos(name)))
+    try:
+        nodes = list(yaml.compose_all(text, Loader=_Loader))
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        line, col = (mark.line + 1, mark.column + 1) if mark else (0, 0)
+        problem = exc.problem or exc.context or "syntax error"
+        hint = "YAML forbids tabs for indentation; use spaces" if "\t" in problem or "tab" in problem else \
+            "check indentation, colons and brackets on this line and the one before"
+        raise LoadError(make(YAML_SYNTAX, f"YAML syntax: {problem}", SourcePos(name, line, col), hint=hint)) from None
+    except yaml.YAMLError as exc:
+        raise LoadError(make(YAML_SYNTAX, f"YAML error: {exc}", SourcePos(name))) from None
+    except RecursionError:
+        raise LoadError(make(YAML_BOMB, "document nests too deeply", SourcePos(name))) from None
+    if len(nodes) > 1:
+        raise LoadError(make(YAML_TAG, "several YAML documents in one file", SourcePos(name),
+                             hint="keep one document per file (remove the extra '---')"))
+    positions: dict = {}
+    if not nodes or nodes[0] is None:
+        return Document(name, None, positions, sha)
+    conv = _Converter(name, positions)
+    data = conv.convert(nodes[0], (), 0)
+    return Document(name, data, positions, sha)
+
+
+class _Converter:
+    def __init__(self, name: str, positions: dict):
+        self.name = name
+        self.positions = positions
+        self.count = 0
+        self.constructor = yaml.constructor.SafeConstructor()
+
+    def _fail(self, code, msg, node, hint=""):
+        m = node.start_mark
+        raise LoadError(make(code, msg, SourcePos(self.name, m.line + 1, m.column + 1), hint=hint))
+
+    def convert(self, node, path: tuple, depth: int):
+        self.count += 1
+        if self.count > MAX_NODES:
+            self._fail(YAML_BOMB, f"document expands to more than {MAX_NODES} nodes", node,
+                       "remove the chain of aliases (&name / *name) that multiplies the content")
+        if depth > MAX_DEPTH:
+            self._fail(YAML_BOMB, f"document nests deeper than {MAX_DEPTH} levels", node)
+        m = node.start_mark
+        self.positions.setdefault(path, (m.line + 1, m.column + 1))
+        if isinstance(node, yaml.MappingNode):
+            out: dict = {}
+            # merge keys (<<) are resolved by flattening first
+            self.constructor.flatten_mapping(node)
+            for key_node, value_node in node.value:
+                if not isinstance(key_node, yaml.ScalarNode):
+                    self._fail(YAML_TAG, "mapping keys must be plain words", key_node)
+                key = self._scalar(key_node)
+                if not isinstance(key, (str, int, float, bool)) or key is None:
+                    self._fail(YAML_TAG, "mapping keys must be plain words", key_node)
+                key = str(key)
+                if key in out:
+                    first = self.positions.get(path + (key,), (0, 0))[0]
+                    self._fail(DUPLICATE_KEY, f"key '{key}' appears twice in this mapping (first on line {first})",
+                               key_node, "remove or rename one of them")
+                km = key_node.start_mark
+                self.positions[path + (key,)] = (km.line + 1, km.column + 1)
+                out[key] = self.convert(value_node, path + (key,), depth + 1)
+            return out
+        if isinstance(node, yaml.SequenceNode):
+            return [self.convert(v, path + (i,), depth + 1) for i, v in enumerate(node.value)]
+        return self._scalar(node)
+
+    def _scalar(self, node):
+        tag = node.tag
+        # YAML 1.1 reads 1.2e5 (no exponent sign) as text; people mean a number
+        if tag == "tag:yaml.org,2002:str" and not node.style and _YAML12_FLOAT.match(node.value):
+            return float(node.value)
+        if tag.startswith("tag:yaml.org,2002:") and tag[18:] in (
+                "str", "int", "float", "bool", "null", "timestamp", "binary"):
+            try:
+                value = self.constructor.construct_object(node, deep=True)
+            except yaml.constructor.ConstructorError as exc:
+                self._fail(YAML_TAG, f"cannot read value: {exc.problem}", node)
+            except (ValueError, OverflowError) as exc:
+                self._fail(YAML_TAG, f"cannot read value: {exc}", node)
+            if tag.endswith(":timestamp"):
+                return node.value  # keep dates as written
+            if tag.endswith(":binary"):
+                self._fail(YAML_TAG, "binary values are not accepted", node)
+            return value
+        self._fail(YAML_TAG, f"unsupported YAML tag {tag}", node, "remove the '!tag'")

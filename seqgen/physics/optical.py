@@ -1,0 +1,386 @@
+"""Far-detuned optical dipole traps for alkali ground states.
+
+All formulas from "Optical dipole traps for neutral atoms",
+Adv. At. Mol. Opt. Phys. 42, 95 (2000) (below: ODT review). SI units
+throughout: W, m, J, s, rad/s. Positions are (..., 3) arrays in metres;
+``vertical`` is the unit vector pointing up (against gravity).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Iterable, Sequence
+
+import numpy as np
+from scipy import constants as sc
+from scipy import optimize
+
+from .atoms import Species
+
+G_N = 9.80665  # standard gravity, m/s^2, exact (3rd CGPM 1901; SI Brochure)
+_C = sc.c
+_HBAR = sc.hbar
+_AU_POLARIZABILITY = 4 * np.pi * sc.epsilon_0 * sc.physical_constants["Bohr radius"][0] ** 3
+
+# D1 and D2 carry 1/3 and 2/3 of the ground-state oscillator strength when each
+# line is written as a two-level term with its own Gamma (ODT review, multi-level alkali form).
+_LINE_WEIGHTS = np.array([1.0 / 3.0, 2.0 / 3.0])
+
+
+def _lines(species: Species) -> tuple[np.ndarray, np.ndarray]:
+    omega0 = 2 * np.pi * _C / np.array([species.d1_wavelength_m, species.d2_wavelength_m])
+    gamma = 2 * np.pi * np.array([species.d1_linewidth_hz, species.d2_linewidth_hz])
+    return omega0, gamma
+
+
+def dipole_potential_per_intensity(species: Species, wavelength_m) -> np.ndarray | float:
+    """Ground-state light shift per intensity, J per (W/m^2), linear polarisation.
+
+    U/I = -sum_{D1,D2} w_i (3 pi c^2 / (2 omega_i^3)) Gamma_i [1/(omega_i - omega) + 1/(omega_i + omega)]
+    with w_D1 = 1/3, w_D2 = 2/3 (ODT review, Adv. At. Mol. Opt. Phys. 42, 95 (2000):
+    two-level potential with counter-rotating term, summed over the D lines with
+    their line strengths). Negative (attractive) for light red of both lines.
+    Vectorised over ``wavelength_m``. Higher P lines and the core are left out
+    (a few per cent at 1064 nm).
+    """
+    omega = 2 * np.pi * _C / np.asarray(wavelength_m, dtype=float)[..., None]
+    omega0, gamma = _lines(species)
+    terms = _LINE_WEIGHTS * 3 * np.pi * _C**2 / (2 * omega0**3) * gamma * (1 / (omega0 - omega) + 1 / (omega0 + omega))
+    out = -terms.sum(axis=-1)
+    return float(out) if out.ndim == 0 else out
+
+
+def scalar_polarizability_au(species: Species, wavelength_m) -> np.ndarray | float:
+    """Dynamic scalar polarizability in atomic units (4 pi eps0 a0^3).
+
+    From U = -Re(alpha) I / (2 eps0 c) (ODT review), alpha = -2 eps0 c U/I.
+    """
+    alpha_si = -2 * sc.epsilon_0 * _C * np.asarray(dipole_potential_per_intensity(species, wavelength_m))
+    out = alpha_si / _AU_POLARIZABILITY
+    return float(out) if np.ndim(out) == 0 else out
+
+
+def scattering_rate_per_intensity(species: Species, wavelength_m) -> np.ndarray | float:
+    """Photon scattering rate per intensity, 1/s per (W/m^2).
+
+    Gamma_sc/I = sum_i w_i (3 pi c^2 / (2 hbar omega_i^3)) (omega/omega_i)^3
+                 Gamma_i^2 [1/(omega_i - omega) + 1/(omega_i + omega)]^2
+    (ODT review, Adv. At. Mol. Opt. Phys. 42, 95 (2000), two-level rate with
+    counter-rotating term, summed over the D lines as for the potential).
+    """
+    omega = 2 * np.pi * _C / np.asarray(wavelength_m, dtype=float)[..., None]
+    omega0, gamma = _lines(species)
+    terms = (_LINE_WEIGHTS * 3 * np.pi * _C**2 / (2 * _HBAR * omega0**3) * (omega / omega0) ** 3
+             * gamma**2 * (1 / (omega0 - omega) + 1 / (omega0 + omega)) ** 2)
+    out = terms.sum(axis=-1)
+    return float(out) if out.ndim == 0 else out
+
+
+def recoil_energy(species: Species, wavelength_m) -> float:
+    """E_rec = hbar^2 k^2 / (2 m), k = 2 pi / lambda, in J."""
+    k = 2 * np.pi / np.asarray(wavelength_m, dtype=float)
+    return _HBAR**2 * k**2 / (2 * species.mass_kg)
+
+
+# --- Gaussian beams --------------------------------------------------------
+
+def peak_intensity(power_w, waist_m, waist2_m=None):
+    """Peak intensity 2P/(pi w1 w2) of a Gaussian beam, W/m^2 (w = 1/e^2 intensity radius)."""
+    w2 = waist_m if waist2_m is None else waist2_m
+    return 2 * np.asarray(power_w, dtype=float) / (np.pi * np.asarray(waist_m) * np.asarray(w2))
+
+
+def rayleigh_length(waist_m, wavelength_m):
+    """z_R = pi w0^2 / lambda, in m."""
+    return np.pi * np.asarray(waist_m, dtype=float) ** 2 / np.asarray(wavelength_m, dtype=float)
+
+
+def _unit(v) -> np.ndarray:
+    v = np.asarray(v, dtype=float)
+    n = np.linalg.norm(v)
+    if v.shape != (3,) or not np.isfinite(n) or n == 0:
+        raise ValueError(f"need a non-zero 3-vector, got {v!r}")
+    return v / n
+
+
+@dataclass(frozen=True)
+class GaussianBeam:
+    """A focused TEM00 beam.
+
+    ``waist_m`` is the 1/e^2 intensity radius at the focus along
+    ``waist_axis`` (default: the direction perpendicular to the beam closest
+    to vertical z, or x for a vertical beam); ``waist2_m`` (default equal)
+    along the third axis. ``direction`` is normalised on construction.
+    """
+
+    power_w: float
+    waist_m: float
+    wavelength_m: float
+    direction: tuple = (1.0, 0.0, 0.0)
+    focus_m: tuple = (0.0, 0.0, 0.0)
+    waist2_m: float | None = None
+    waist_axis: tuple | None = None
+
+    def __post_init__(self):
+        if not (self.power_w >= 0 and self.waist_m > 0 and self.wavelength_m > 0):
+            raise ValueError("GaussianBeam needs power >= 0, waist > 0, wavelength > 0")
+        if self.waist2_m is not None and not self.waist2_m > 0:
+            raise ValueError("waist2_m must be > 0")
+        k = _unit(self.direction)
+        if self.waist_axis is None:
+            ref = np.array([0.0, 0.0, 1.0]) if abs(k[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
+        else:
+            ref = _unit(self.waist_axis)
+        e1 = ref - np.dot(ref, k) * k
+        if np.linalg.norm(e1) < 1e-9:
+            raise ValueError("waist_axis must not be parallel to the beam")
+        object.__setattr__(self, "direction", tuple(k))
+        object.__setattr__(self, "waist_axis", tuple(e1 / np.linalg.norm(e1)))
+        object.__setattr__(self, "focus_m", tuple(np.asarray(self.focus_m, dtype=float).reshape(3)))
+
+    @property
+    def waists(self) -> tuple[float, float]:
+        return self.waist_m, self.waist_m if self.waist2_m is None else self.waist2_m
+
+    @property
+    def peak_intensity(self) -> float:
+        return float(peak_intensity(self.power_w, *self.waists))
+
+    def intensity(self, points_xyz) -> np.ndarray:
+        """Intensity (W/m^2) at points of shape (..., 3): paraxial Gaussian,
+        I = 2P / (pi w1(s) w2(s)) exp(-2 u^2/w1(s)^2 - 2 v^2/w2(s)^2),
+        w_j(s) = w_j sqrt(1 + (s/z_Rj)^2) (any optics text; ODT review)."""
+        d = np.asarray(points_xyz, dtype=float) - np.asarray(self.focus_m)
+        k = np.asarray(self.direction)
+        e1 = np.asarray(self.waist_axis)
+        e2 = np.cross(k, e1)
+        s, u, v = d @ k, d @ e1, d @ e2
+        w1, w2 = self.waists
+        ws1 = w1 * np.sqrt(1 + (s / rayleigh_length(w1, self.wavelength_m)) ** 2)
+        ws2 = w2 * np.sqrt(1 + (s / rayleigh_length(w2, self.wavelength_m)) ** 2)
+        return 2 * self.power_w / (np.pi * ws1 * ws2) * np.exp(-2 * u**2 / ws1**2 - 2 * v**2 / ws2**2)
+
+
+def _as_beams(beams) -> tuple[GaussianBeam, ...]:
+    if isinstance(beams, GaussianBeam):
+        return (beams,)
+    beams = tuple(beams)
+    if not beams or not all(isinstance(b, GaussianBeam) for b in beams):
+        raise ValueError("need one GaussianBeam or a non-empty sequence of them")
+    return beams
+
+
+def beam_potential(species: Species, beam: GaussianBeam | Iterable[GaussianBeam], points_xyz) -> np.ndarray:
+    """Light-shift potential (J) of one beam or the sum of several (incoherent) at points (..., 3)."""
+    return sum(dipole_potential_per_intensity(species, b.wavelength_m) * b.intensity(points_xyz)
+               for b in _as_beams(beam))
+
+
+def total_potential(species: Species, beams, points_xyz, gravity: bool = True, vertical=(0, 0, 1)) -> np.ndarray:
+    """Light shift of all beams plus m g_n (r . vertical) if ``gravity``, J."""
+    pts = np.asarray(points_xyz, dtype=float)
+    u = beam_potential(species, beams, pts)
+    if gravity:
+        u = u + species.mass_kg * G_N * (pts @ _unit(vertical))
+    return u
+
+
+@dataclass(frozen=True)
+class TrapMinimum:
+    """Harmonic expansion of a trap at its minimum.
+
+    ``omegas_rad_s`` ascending, ``axes`` columns are the matching principal
+    axes, ``position_m`` the minimum, ``potential_j`` the total potential
+    there (light + gravity relative to the crossing point's height).
+    """
+
+    position_m: np.ndarray
+    omegas_rad_s: np.ndarray
+    axes: np.ndarray
+    potential_j: float
+
+    @property
+    def frequencies_hz(self) -> np.ndarray:
+        return self.omegas_rad_s / (2 * np.pi)
+
+    @property
+    def mean_omega(self) -> float:
+        return float(np.prod(self.omegas_rad_s) ** (1 / 3))
+
+
+def _crossing_point(beams: Sequence[GaussianBeam]) -> np.ndarray:
+    """Least-squares point closest to all beam axes (the focus for a single beam)."""
+    foci = np.array([b.focus_m for b in beams])
+    centre = foci.mean(axis=0)
+    a = np.zeros((3, 3))
+    rhs = np.zeros(3)
+    for b, f in zip(beams, foci):
+        p = np.eye(3) - np.outer(b.direction, b.direction)
+        a += p
+        rhs += p @ (f - centre)
+    return centre + np.linalg.pinv(a, rcond=1e-9) @ rhs
+
+
+def _length_scale(beams) -> float:
+    return min(min(b.waists) for b in beams)
+
+
+def _hessian(f, x0: np.ndarray, steps: np.ndarray, basis: np.ndarray) -> np.ndarray:
+    """Central-difference Hessian of f along the columns of ``basis`` with per-direction steps."""
+    n = len(steps)
+    h = np.empty((n, n))
+    f0 = f(x0)
+    for i in range(n):
+        di = basis[:, i] * steps[i]
+        h[i, i] = (f(x0 + di) - 2 * f0 + f(x0 - di)) / steps[i] ** 2
+        for j in range(i):
+            dj = basis[:, j] * steps[j]
+            h[i, j] = h[j, i] = (f(x0 + di + dj) - f(x0 + di - dj) - f(x0 - di + dj) + f(x0 - di - dj)) / (4 * steps[i] * steps[j])
+    return h
+
+
+def _vertical_scan_minimum(f, start: np.ndarray, up: np.ndarray, reach: float) -> float | None:
+    """Offset along ``up`` of the local minimum of f nearest ``start`` on the vertical line, or None."""
+    z = np.linspace(-reach, 0.5 * reach, 3001)
+    vals = f(start + z[:, None] * up)
+    inner = np.flatnonzero((vals[1:-1] < vals[:-2]) & (vals[1:-1] <= vals[2:])) + 1
+    if inner.size == 0:
+        return None
+    k = inner[np.argmin(np.abs(z[inner]))]
+    res = optimize.minimize_scalar(lambda t: float(f(start + t * up)), bracket=(z[k - 1], z[k], z[k + 1]))
+    return float(res.x)
+
+
+def find_trap_minimum(species: Species, beams, gravity: bool = True, vertical=(0, 0, 1)) -> TrapMinimum:
+    """Locate the potential minimum (with gravity sag if asked) and expand it harmonically.
+
+    The minimum is found by a 1-D scan along the vertical through the beams'
+    crossing point, then refined in 3-D (BFGS). The Hessian is taken by central
+    differences, first in lab axes, then again along its eigenvectors with steps
+    matched to each curvature (so the weak axial curvature, (w/z_R)^2 smaller,
+    is not swamped). omega_k = sqrt(lambda_k / m). Raises ValueError if there is
+    no minimum (too weak to hold against gravity, or blue detuned).
+    """
+    beams = _as_beams(beams)
+    up = _unit(vertical)
+    length = _length_scale(beams)
+    start = _crossing_point(beams)
+    u_scale = abs(float(total_potential(species, beams, start, gravity=False)))
+    if u_scale == 0:
+        raise ValueError("no light at the beams' crossing point")
+
+    def f(p):
+        return total_potential(species, beams, p, gravity=gravity, vertical=up)
+
+    if gravity:
+        reach = 4 * max(max(b.waists) for b in beams)
+        dz = _vertical_scan_minimum(f, start, up, reach)
+        if dz is None:
+            raise ValueError("no trapping minimum: the beams do not hold the atoms against gravity")
+        start = start + dz * up
+
+    res = optimize.minimize(lambda y: float(f(start + y * length)) / u_scale, np.zeros(3), method="BFGS",
+                            options={"gtol": 1e-11, "xrtol": 1e-12})
+    x = start + res.x * length
+    if np.linalg.norm(res.x) > 10:
+        raise ValueError("no trapping minimum near the beams' crossing point")
+
+    h1 = _hessian(f, x, np.full(3, 1e-3 * length), np.eye(3))
+    lam, vec = np.linalg.eigh(h1)
+    if np.any(lam <= 0):
+        raise ValueError("not a trap: the potential has no minimum here (check detuning, power, gravity)")
+    # second pass along principal axes, step ~1e-3 of each curvature length
+    steps = 1e-3 * np.sqrt(u_scale / lam)
+    h2 = _hessian(f, x, steps, vec)
+    lam2, vec2 = np.linalg.eigh(h2)
+    if np.any(lam2 <= 0):
+        raise ValueError("not a trap: the potential has no minimum here")
+    axes = vec @ vec2
+    order = np.argsort(lam2)
+    return TrapMinimum(position_m=x, omegas_rad_s=np.sqrt(lam2[order] / species.mass_kg),
+                       axes=axes[:, order], potential_j=float(f(x)))
+
+
+def trap_frequencies(species: Species, beams, gravity: bool = True, vertical=(0, 0, 1)) -> np.ndarray:
+    """Trap angular frequencies (rad/s, ascending) at the minimum, numerical Hessian.
+
+    For one beam this reproduces omega_r = sqrt(4 U0/(m w0^2)),
+    omega_z = sqrt(2 U0/(m z_R^2)) (ODT review); for crossed beams the
+    curvatures add. Use find_trap_minimum for axes and position.
+    """
+    return find_trap_minimum(species, beams, gravity=gravity, vertical=vertical).omegas_rad_s
+
+
+def trap_depth(species: Species, beams) -> float:
+    """Depth (J, positive) of the light potential at its minimum, relative to zero far away, without gravity.
+
+    For crossed beams this counts all beams at the crossing; atoms can already
+    spill into a single beam's wings at the shallower single-beam depth.
+    """
+    beams = _as_beams(beams)
+    m = find_trap_minimum(species, beams, gravity=False)
+    return -m.potential_j
+
+
+def effective_depth_with_gravity(species: Species, beams, vertical=(0, 0, 1)) -> float:
+    """Depth (J) along gravity including sag: barrier on the vertical line through the minimum.
+
+    Scans U_light + m g z downward from the (sagged) minimum to the first local
+    maximum; returns U(max) - U(min), or 0.0 if gravity leaves no minimum.
+    Escape sideways (along a beam) is not considered here.
+    """
+    beams = _as_beams(beams)
+    up = _unit(vertical)
+    try:
+        m = find_trap_minimum(species, beams, gravity=True, vertical=up)
+    except ValueError:
+        return 0.0
+    reach = 6 * max(max(b.waists) for b in beams)
+    z = np.linspace(0.0, -reach, 6001)
+    vals = total_potential(species, beams, m.position_m + z[:, None] * up, gravity=True, vertical=up)
+    peaks = np.flatnonzero((vals[1:-1] >= vals[:-2]) & (vals[1:-1] > vals[2:])) + 1
+    if peaks.size == 0:
+        return 0.0
+    k = peaks[0]
+    res = optimize.minimize_scalar(
+        lambda t: -float(total_potential(species, beams, m.position_m + t * up, gravity=True, vertical=up)),
+        bracket=(z[k - 1], z[k], z[k + 1]))
+    return max(0.0, -float(res.fun) - m.potential_j)
+
+
+def minimum_power_to_hold(species: Species, beam_waist_m: float, wavelength_m: float) -> float:
+    """Power (W) below which one horizontal beam no longer holds atoms against gravity.
+
+    On the vertical through the focus U = -U0 exp(-2 z^2/w^2); its largest
+    gradient, 2 U0 e^{-1/2} / w at z = w/2, must exceed m g_n, so
+    U0_min = m g_n w sqrt(e) / 2 and P_min = U0_min pi w^2 / (2 |U/I|).
+    ``beam_waist_m`` is the vertical waist.
+    """
+    u_per_i = dipole_potential_per_intensity(species, wavelength_m)
+    if not u_per_i < 0:
+        raise ValueError("blue-detuned light repels ground-state atoms: no holding power")
+    u0_min = species.mass_kg * G_N * beam_waist_m * np.sqrt(np.e) / 2
+    return float(u0_min * np.pi * beam_waist_m**2 / (2 * -u_per_i))
+
+
+def scattering_rate_at_minimum(species: Species, beams, gravity: bool = True, vertical=(0, 0, 1)) -> float:
+    """Photon scattering rate (1/s) of an atom at the trap minimum, summed over beams."""
+    beams = _as_beams(beams)
+    x = find_trap_minimum(species, beams, gravity=gravity, vertical=vertical).position_m
+    return float(sum(scattering_rate_per_intensity(species, b.wavelength_m) * b.intensity(x) for b in beams))
+
+
+def recoil_heating_rate(species: Species, beams, gravity: bool = True, vertical=(0, 0, 1)) -> float:
+    """Recoil heating dT/dt (K/s) at the trap bottom.
+
+    Each scattered trap photon adds 2 E_rec of energy on average (absorption
+    plus emission recoil), dE/dt = 2 E_rec Gamma_sc; in a 3-D harmonic trap
+    E = 3 k_B T, so dT/dt = (2/3) E_rec Gamma_sc / k_B = T_rec Gamma_sc / 3 with
+    k_B T_rec = hbar^2 k^2 / m (ODT review, Adv. At. Mol. Opt. Phys. 42, 95 (2000)).
+    E_rec uses each beam's own wavelength.
+    """
+    beams = _as_beams(beams)
+    x = find_trap_minimum(species, beams, gravity=gravity, vertical=vertical).position_m
+    power = sum(2 * recoil_energy(species, b.wavelength_m)
+                * scattering_rate_per_intensity(species, b.wavelength_m) * b.intensity(x) for b in beams)
+    return float(power / (3 * sc.k))

@@ -1,0 +1,56 @@
+"""The pipeline in one place: load -> validate -> resolve -> check -> compile.
+
+Each stage is its own module; this file only strings them together for the
+command line and for notebooks.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .check import apply_accepts, run_table_checks, run_timeline_checks
+from .compile.tables import compile_shot
+from .findings import Finding, has_errors, sort_findings
+from .load.yamlsrc import LoadError
+from .model import Compiled, Shot
+from .resolve.sequence import Sources, load_sources, resolve
+
+
+@dataclass
+class Result:
+    shot: Shot | None = None
+    compiled: Compiled | None = None
+    findings: list = field(default_factory=list)
+    sources: Sources | None = None
+
+    @property
+    def ok(self) -> bool:
+        return self.shot is not None and not has_errors(self.findings)
+
+
+def preflight(path: str | Path, *, compile_tables: bool = True, overrides: dict | None = None,
+              sources: Sources | None = None) -> Result:
+    """Run every stage that can run; findings collect along the way."""
+    res = Result()
+    try:
+        src = sources or load_sources(path)
+    except LoadError as exc:
+        res.findings = [exc.finding]
+        return res
+    res.sources = src
+    findings: list[Finding] = list(src.findings)
+    shot, rf = resolve(src, overrides)
+    findings += rf
+    if shot is None:
+        res.findings = sort_findings(findings)
+        return res
+    res.shot = shot
+    findings += run_timeline_checks(shot)
+    if compile_tables:
+        compiled, cf = compile_shot(shot)
+        findings += cf
+        findings += run_table_checks(shot, compiled)
+        res.compiled = compiled
+    res.findings = sort_findings(apply_accepts(findings, shot.accepts))
+    return res

@@ -1,0 +1,77 @@
+"""Turn document values into SI floats, raising findings with positions."""
+
+from __future__ import annotations
+
+import math
+
+from ..findings import Finding, make
+from ..load.yamlsrc import Document
+from . import errors as E
+from .expr import ExprError, evaluate
+from .units import DIMENSIONLESS, Qty, UnitError, describe_dims, dims_of, display_unit, parse_simple, same_dims
+
+ABSURD = 1e12  # in SI base units: larger magnitudes are typos (a 1e30 s hold)
+_KIND_CODE = {"undefined": E.UNDEFINED, "zero-division": E.ZERO_DIV, "overflow": E.OVERFLOW,
+              "dimension": E.WRONG_DIMENSION}
+
+
+class Bad(Exception):
+    def __init__(self, finding: Finding):
+        super().__init__(finding.message)
+        self.finding = finding
+
+
+def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
+    pos = doc.pos(path)
+    if isinstance(raw, bool):
+        return Qty(1.0 if raw else 0.0)
+    if isinstance(raw, (int, float)):
+        if not math.isfinite(raw):
+            raise Bad(make(E.NON_FINITE, f"value {raw} is not finite", pos, hint="give a finite number"))
+        return Qty(float(raw))
+    if not isinstance(raw, str):
+        raise Bad(make(E.EXPRESSION, f"expected a quantity, got {type(raw).__name__}", pos))
+    text = raw.strip()
+    if text.lower() in ("nan", ".nan", "inf", ".inf", "-inf", "-.inf", "infinity"):
+        raise Bad(make(E.NON_FINITE, f"value '{text}' is not finite", pos, hint="give a finite number"))
+    try:
+        q = parse_simple(text)
+    except UnitError as exc:
+        raise Bad(make(E.BAD_UNIT, str(exc), pos, hint="use SI units with prefixes, e.g. ms, us, mW, G/cm, MHz"))
+    if q is None:
+        try:
+            q = evaluate(text, env)
+        except ExprError as exc:
+            code = _KIND_CODE.get(exc.kind, E.EXPRESSION)
+            raise Bad(make(code, f"{exc}", pos, hint=exc.hint))
+    if not math.isfinite(q.value):
+        raise Bad(make(E.NON_FINITE, f"'{text}' is not finite", pos))
+    return q
+
+
+def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positive: bool = False,
+             nonnegative: bool = False, what: str = "") -> float:
+    """Value in SI base units, checked against the dimension of unit text `expect`."""
+    q = to_qty(raw, doc, path, env)
+    want = dims_of(expect) if expect else DIMENSIONLESS
+    pos = doc.pos(path)
+    label = what or (path[-1] if path else "value")
+    if not same_dims(q.dims, want):
+        if same_dims(q.dims, DIMENSIONLESS) and q.value != 0:
+            raise Bad(make(E.MISSING_UNIT, f"{label}: {raw!r} has no unit; expected {display_unit(want)}", pos,
+                           hint=f"write it with a unit, e.g. '{raw} {expect}'"))
+        if not (same_dims(q.dims, DIMENSIONLESS) and q.value == 0):
+            raise Bad(make(E.WRONG_DIMENSION, f"{label}: {raw!r} is {describe_dims(q.dims)}, expected {display_unit(want)}",
+                           pos, hint=f"give a value in {expect} (or a unit of the same kind)"))
+    if abs(q.value) > ABSURD * max(1.0, _scale(expect)):
+        raise Bad(make(E.OVERFLOW, f"{label}: {raw!r} is an absurd magnitude", pos, hint="check for a typo in the exponent"))
+    if positive and q.value <= 0:
+        raise Bad(make(E.NEGATIVE_DURATION, f"{label} must be positive, got {raw!r}", pos, hint="give a positive value"))
+    if nonnegative and q.value < 0:
+        raise Bad(make(E.NEGATIVE_DURATION, f"{label} must not be negative, got {raw!r}", pos))
+    return q.value
+
+
+def _scale(expect: str) -> float:
+    # frequencies of synths reach 1e10 Hz; allow a larger ceiling for them
+    return 1e3 if expect in ("Hz",) else 1.0

@@ -1,0 +1,246 @@
+"""Rig file -> `Rig`: devices, outputs with calibrations and limits, geometry."""
+
+from __future__ import annotations
+
+import difflib
+
+from ..calibration import is_monotonic
+from ..findings import Finding, make
+from ..load.yamlsrc import Document
+from ..model import Beam, Calibration, Coil, Device, Drive, ImagingSetup, Output, Rig
+from . import errors as E
+from .quantities import Bad, quantity
+from .units import dims_of, display_unit
+
+SYNTH_PARTS = (("freq", "frequency", "Hz"), ("amp", "amplitude", ""), ("phase", "phase", "rad"))
+
+
+def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
+    findings: list[Finding] = []
+    data = doc.data
+    if data.get("seqgen_rig") != 1:
+        findings.append(make(E.VERSION, f"unsupported rig format version {data.get('seqgen_rig')!r}",
+                             doc.pos(("seqgen_rig",)), hint="this seqgen reads 'seqgen_rig: 1'"))
+        return None, findings
+
+    def q(path, expect, **kw):
+        node = data
+        for p in path:
+            node = node[p]
+        try:
+            return quantity(node, expect, doc, path, {}, **kw)
+        except Bad as bad:
+            findings.append(bad.finding)
+            return None
+
+    def opt(path, expect, **kw):
+        node = data
+        for p in path[:-1]:
+            node = node.get(p, {})
+        return q(path, expect, **kw) if path[-1] in node else None
+
+    devices = {}
+    for name, d in data["devices"].items():
+        tb = q(("devices", name, "timebase"), "Hz", positive=True)
+        mi = opt(("devices", name, "min_interval"), "s", positive=True)
+        if tb is None:
+            continue
+        min_ticks = max(1, round(mi * tb)) if mi else 1
+        devices[name] = Device(name, tb, min_ticks, d.get("memory_depth"), d.get("output_model", "hold"),
+                               doc.pos(("devices", name)))
+
+    outputs: dict[str, Output] = {}
+    channels: dict[str, tuple] = {}
+    for name, c in data["channels"].items():
+        base = ("channels", name)
+        pos = doc.pos(base)
+        if c["device"] not in devices:
+            if c["device"] not in data["devices"]:
+                close = difflib.get_close_matches(c["device"], list(data["devices"]), n=1)
+                findings.append(make(E.BAD_RIG, f"channel '{name}' is on unknown device '{c['device']}'",
+                                     doc.pos(base + ("device",)), hint=f"did you mean '{close[0]}'?" if close else "add the device"))
+            continue
+        common = _common(c, base, q, opt, doc, findings)
+        if common is None:
+            continue
+        if c["kind"] == "synth":
+            names = []
+            for short, key, unit in SYNTH_PARTS:
+                spec = c.get(key)
+                if spec is None:
+                    continue
+                rng = _range(spec, base + (key,), unit, q, doc, findings)
+                if rng is None:
+                    continue
+                oname = f"{name}.{short}"
+                outputs[oname] = Output(oname, name, c["device"], "synth", unit, rng[0], rng[1], spec.get("bits"),
+                                        safe=0.0 if short != "freq" else rng[0], phys_unit=unit, phys_dims=dims_of(unit),
+                                        pos=pos, **{k: v for k, v in common.items() if k not in ("calibration",)})
+                names.append(oname)
+            if not names:
+                findings.append(make(E.BAD_RIG, f"synth channel '{name}' declares none of frequency/amplitude/phase",
+                                     pos, hint="add e.g. 'frequency: {range: [0 Hz, 400 MHz], bits: 32}'"))
+            channels[name] = tuple(names)
+            continue
+        if c["kind"] == "digital":
+            lo, hi, bits, unit = 0.0, 1.0, 1, ""
+        else:
+            spec = c.get("output")
+            if spec is None:
+                findings.append(make(E.BAD_RIG, f"analog channel '{name}' needs 'output: {{unit, range, bits}}'", pos,
+                                     hint="add 'output: {unit: V, range: [-10 V, 10 V], bits: 16}'"))
+                continue
+            unit = spec.get("unit", "V")
+            rng = _range(spec, base + ("output",), unit, q, doc, findings)
+            if rng is None:
+                continue
+            lo, hi = rng
+            bits = spec.get("bits")
+        cal = common.pop("calibration")
+        # physical values are SI inside; keep the SI display unit (W, not the mW of the calibration text)
+        phys_unit = display_unit(cal.dims) if cal else unit
+        safe_raw = c.get("safe", 0)
+        safe = 0.0
+        if "safe" in c:
+            s = q(base + ("safe",), phys_unit)
+            safe = s if s is not None else 0.0
+        elif c["kind"] == "analog" and cal is None:
+            safe = min(max(0.0, lo), hi)
+        del safe_raw
+        outputs[name] = Output(name, name, c["device"], c["kind"], unit, lo, hi, bits, safe, phys_unit,
+                               dims_of(phys_unit) if phys_unit else dims_of(""), calibration=cal, pos=pos, **common)
+        hl = c.get("hard_limit")
+        if hl:
+            hmin = opt(base + ("hard_limit", "min"), phys_unit)
+            hmax = opt(base + ("hard_limit", "max"), phys_unit)
+            outputs[name] = _replace(outputs[name], hard_min=hmin, hard_max=hmax)
+        channels[name] = (name,)
+
+    def ref(kind, owner, key, value, path):
+        if value not in channels:
+            close = difflib.get_close_matches(value, list(channels), n=1)
+            findings.append(make(E.UNKNOWN_NAME, f"{kind} '{owner}' names unknown channel '{value}'", doc.pos(path),
+                                 hint=f"did you mean '{close[0]}'?" if close else "define the channel under channels:"))
+
+    beams = {}
+    for name, b in (data.get("beams") or {}).items():
+        base = ("beams", name)
+        ref("beam", name, "power_channel", b["power_channel"], base + ("power_channel",))
+        wl = q(base + ("wavelength",), "m", positive=True)
+        if wl is None:
+            continue
+        beams[name] = Beam(name, wl, b["power_channel"], opt(base + ("waist",), "m", positive=True),
+                           opt(base + ("waist_y",), "m", positive=True), tuple(b.get("direction", (1, 0, 0))),
+                           tuple(b.get("position", (0, 0, 0))), b.get("role", "other"), doc.pos(base))
+    coils = {}
+    for name, c in (data.get("coils") or {}).items():
+        base = ("coils", name)
+        ref("coil", name, "current_channel", c["current_channel"], base + ("current_channel",))
+        coils[name] = Coil(name, c["current_channel"], opt(base + ("gradient_per_amp",), "T/m/A"),
+                           opt(base + ("bias_per_amp",), "T/A"), opt(base + ("curvature_per_amp",), "T/m^2/A"),
+                           tuple(c.get("axis", (0, 0, 1))), opt(base + ("max_current",), "A", positive=True),
+                           opt(base + ("continuous_current",), "A", positive=True), opt(base + ("i2t_limit",), "A^2*s", positive=True),
+                           opt(base + ("i2t_window",), "s", positive=True), doc.pos(base))
+    drives = {}
+    for name, d in (data.get("drives") or {}).items():
+        base = ("drives", name)
+        ref("drive", name, "channel", d["channel"], base + ("channel",))
+        r = q(base + ("rabi_per_amplitude",), "Hz", positive=True)
+        if r is not None:
+            drives[name] = Drive(name, d["channel"], r, d.get("kind", "microwave"),
+                                 opt(base + ("light_shift",), "Hz") or 0.0, doc.pos(base))
+    imaging = {}
+    for name, im in (data.get("imaging") or {}).items():
+        base = ("imaging", name)
+        if im.get("camera_channel"):
+            ref("imaging setup", name, "camera_channel", im["camera_channel"], base + ("camera_channel",))
+        if im.get("probe_beam") and im["probe_beam"] not in (data.get("beams") or {}):
+            findings.append(make(E.UNKNOWN_NAME, f"imaging setup '{name}' names unknown beam '{im['probe_beam']}'",
+                                 doc.pos(base + ("probe_beam",))))
+        imaging[name] = ImagingSetup(name, im.get("probe_beam"), im.get("camera_channel"), opt(base + ("pixel_size",), "m", positive=True),
+                                     float(im.get("magnification", 1.0)), opt(base + ("field_of_view",), "m", positive=True),
+                                     opt(base + ("depth_of_field",), "m", positive=True), tuple(im.get("center", (0, 0, 0))),
+                                     opt(base + ("aperture_radius",), "m", positive=True), doc.pos(base))
+    fields = data.get("fields") or {}
+    bias = opt(("fields", "bias"), "T") if "bias" in fields else None
+    rep = opt(("repetition_period",), "s", positive=True)
+    rig = Rig(data.get("name", doc.file), doc.file, doc.text_sha256, devices, outputs, channels, beams, coils, drives,
+              imaging, bias, rep)
+    return rig, findings
+
+
+def _replace(o, **kw):
+    from dataclasses import replace
+
+    return replace(o, **kw)
+
+
+def _range(spec, path, unit, q, doc, findings):
+    lo = q(path + ("range", 0), unit)
+    hi = q(path + ("range", 1), unit)
+    if lo is None or hi is None:
+        return None
+    if not lo < hi:
+        findings.append(make(E.BAD_RIG, f"range [{lo:g}, {hi:g}] is empty or reversed", doc.pos(path + ("range",)),
+                             hint="write the range low end first"))
+        return None
+    return lo, hi
+
+
+def _common(c, base, q, opt, doc, findings):
+    out = {}
+    lat = c.get("latency")
+    if isinstance(lat, dict):
+        out["latency_rise_s"] = opt(base + ("latency", "rise"), "s", nonnegative=True) or 0.0
+        out["latency_fall_s"] = opt(base + ("latency", "fall"), "s", nonnegative=True) or 0.0
+    elif lat is not None:
+        v = q(base + ("latency",), "s", nonnegative=True) or 0.0
+        out["latency_rise_s"] = out["latency_fall_s"] = v
+    out["jitter_s"] = opt(base + ("jitter",), "s", nonnegative=True) or 0.0
+    out["min_pulse_s"] = opt(base + ("min_pulse",), "s", nonnegative=True) or 0.0
+    cal = None
+    calspec = c.get("calibration")
+    phys = None
+    if calspec:
+        phys = calspec["quantity"]
+        try:
+            pdims = dims_of(phys)
+        except Exception:
+            findings.append(make(E.BAD_UNIT, f"unknown calibration quantity unit '{phys}'", doc.pos(base + ("calibration", "quantity"))))
+            return None
+        out_unit = (c.get("output") or {}).get("unit", "V")
+        if "table" in calspec:
+            pts = calspec["table"]
+            xs, ys = [], []
+            for i in range(len(pts)):
+                x = q(base + ("calibration", "table", i, 0), phys)
+                y = q(base + ("calibration", "table", i, 1), out_unit)
+                if x is None or y is None:
+                    return None
+                xs.append(x)
+                ys.append(y)
+            if not (is_monotonic(xs) and is_monotonic(ys)):
+                findings.append(make(E.CAL_NOT_MONOTONIC, "calibration table is not strictly monotonic",
+                                     doc.pos(base + ("calibration", "table")),
+                                     hint="each row must increase (or each decrease) in both columns"))
+                return None
+            cal = Calibration(phys, pdims, "table", table_phys=tuple(xs), table_out=tuple(ys))
+        elif "linear" in calspec:
+            slope = q(base + ("calibration", "linear", "slope"), f"{out_unit}/({phys})")
+            off = opt(base + ("calibration", "linear", "offset"), out_unit) or 0.0
+            if slope is None:
+                return None
+            if slope == 0:
+                findings.append(make(E.BAD_RIG, "calibration slope is zero", doc.pos(base + ("calibration", "linear", "slope"))))
+                return None
+            cal = Calibration(phys, pdims, "linear", slope, off)
+        else:
+            findings.append(make(E.BAD_RIG, "calibration needs 'linear:' or 'table:'", doc.pos(base + ("calibration",))))
+            return None
+    out["calibration"] = cal
+    unit_for_phys = phys or (c.get("output") or {}).get("unit", "")
+    if "max_slew" in c:
+        out["max_slew"] = q(base + ("max_slew",), f"({unit_for_phys})/s" if unit_for_phys else "1/s", positive=True)
+    if "tolerance" in c:
+        out["tolerance"] = q(base + ("tolerance",), (c.get("output") or {}).get("unit", ""), positive=True)
+    return out

@@ -1,0 +1,729 @@
+"""Sequence file(s) + rig -> one resolved `Shot`.
+
+Order of work: load the sequence and every file it `use`s (cycles reported),
+validate each against its schema, build the rig, resolve params in dependency
+order (networkx), lower each block's actions to channel segments relative to
+the block start, place blocks through the anchor graph, then fill in ramp
+start values and pulse ends in time order per output.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import networkx as nx
+
+from ..findings import Finding, SourcePos, make
+from ..load.yamlsrc import Document, LoadError, load_file
+from ..model import Accept, Block, Limits, Param, PhysAction, Sample, Segment, Shot
+from ..validate.schema import validate_document
+from . import errors as E
+from .expr import ExprError, names_in
+from .quantities import Bad, quantity, to_qty
+from .rig import build_rig
+from .units import Qty
+
+SEQUENCE_SCHEMA = "sequence.schema.json"
+RIG_SCHEMA = "rig.schema.json"
+SUPPORTED_VERSIONS = (1,)
+
+
+@dataclass
+class Sources:
+    """Every document a sequence needs, loaded and validated."""
+
+    main: Document
+    rig: Document | None
+    used: list = field(default_factory=list)  # (Document, use-entry overrides dict, use Document, path) in order
+    findings: list = field(default_factory=list)
+
+    @property
+    def hashes(self) -> dict:
+        out = {self.main.file: self.main.text_sha256}
+        for d, *_ in self.used:
+            out[d.file] = d.text_sha256
+        if self.rig is not None:
+            out[self.rig.file] = self.rig.text_sha256
+        return out
+
+
+def _display(path: Path) -> str:
+    try:
+        return str(path.resolve().relative_to(Path.cwd().resolve()))
+    except ValueError:
+        return str(path)
+
+
+def load_sources(path: str | Path, text: str | None = None, display: str | None = None) -> Sources:
+    """Load and validate a sequence, the files it uses, and its rig."""
+    from ..load.yamlsrc import load_text
+
+    p = Path(path)
+    try:
+        main = load_text(text, display or str(path)) if text is not None else load_file(p, display or _display(p))
+    except LoadError as exc:
+        raise exc
+    src = Sources(main, None)
+    if not _check_top(main, src.findings, "seqgen", E.VERSION):
+        return src
+    src.findings += validate_document(main, SEQUENCE_SCHEMA)
+    _load_uses(main, p.parent, [p.resolve()], src)
+    rig_text = main.data.get("rig")
+    if isinstance(rig_text, str):
+        rig_path = (p.parent / rig_text)
+        try:
+            rig = load_file(rig_path, _display(rig_path))
+        except LoadError as exc:
+            f = exc.finding
+            if f.code == "schema.file-missing":
+                f = make("schema.file-missing", f"rig file '{rig_text}' not found (looked in {rig_path.parent})",
+                         main.pos(("rig",)), hint="rig paths are relative to the sequence file's folder")
+            src.findings.append(f)
+            return src
+        if _check_top(rig, src.findings, "seqgen_rig", E.VERSION):
+            src.findings += validate_document(rig, RIG_SCHEMA)
+            src.rig = rig
+    elif "rig" not in main.data:
+        src.findings.append(make(E.MISSING_KEY_RIG, "the sequence names no rig", main.pos(()),
+                                 hint="add 'rig: rigs/<your rig>.yaml'"))
+    return src
+
+
+E.MISSING_KEY_RIG = "schema.missing-key"
+
+
+def _check_top(doc: Document, findings: list, key: str, code: str) -> bool:
+    if doc.data is None:
+        findings.append(make(E.EMPTY, "the file is empty", doc.pos(()), hint=f"start with '{key}: 1'"))
+        return False
+    if not isinstance(doc.data, dict):
+        findings.append(make("schema.wrong-type", "the file must be a YAML mapping", doc.pos(()), hint=f"start with '{key}: 1'"))
+        return False
+    if key not in doc.data:
+        findings.append(make(code, f"missing '{key}:' version key", doc.pos(()), hint=f"add '{key}: 1' as the first line"))
+        return False
+    if doc.data[key] not in SUPPORTED_VERSIONS:
+        findings.append(make(code, f"unsupported format version {key}: {doc.data[key]!r}", doc.pos((key,)),
+                             hint=f"this seqgen reads version(s) {', '.join(map(str, SUPPORTED_VERSIONS))}"))
+        return False
+    return True
+
+
+def _load_uses(doc: Document, folder: Path, chain: list, src: Sources) -> None:
+    uses = doc.data.get("use") if isinstance(doc.data, dict) else None
+    if not isinstance(uses, list):
+        return
+    for i, entry in enumerate(uses):
+        if not isinstance(entry, dict) or not isinstance(entry.get("file"), str):
+            continue
+        target = (folder / entry["file"])
+        resolved = target.resolve()
+        if resolved in chain:
+            names = " -> ".join(_display(c) for c in chain + [resolved])
+            src.findings.append(make(E.USE_CYCLE, f"use cycle: {names}", doc.pos(("use", i, "file")),
+                                     hint="remove one of the use: entries in the chain"))
+            continue
+        try:
+            used = load_file(target, _display(target))
+        except LoadError as exc:
+            f = exc.finding
+            if f.code == "schema.file-missing":
+                f = make("schema.file-missing", f"used file '{entry['file']}' not found", doc.pos(("use", i, "file")),
+                         hint="paths are relative to the file that uses them")
+            src.findings.append(f)
+            continue
+        if not _check_top(used, src.findings, "seqgen", E.VERSION):
+            continue
+        src.findings += validate_document(used, SEQUENCE_SCHEMA)
+        _load_uses(used, target.parent, chain + [resolved], src)
+        src.used.append((used, entry, doc, ("use", i)))
+
+
+# ----------------------------------------------------------------------------- resolve
+
+
+def resolve(src: Sources, overrides: dict | None = None) -> tuple[Shot | None, list[Finding]]:
+    """Resolve validated sources into a shot. `overrides`: param name -> Qty (scans)."""
+    findings: list[Finding] = []
+    if src.rig is None or any(f.severity == "error" for f in src.findings):
+        return None, findings
+    rig, rf = build_rig(src.rig)
+    findings += rf
+    if rig is None or any(f.severity == "error" for f in rf):
+        return None, findings
+    docs = [d for d, *_ in src.used] + [src.main]
+    # params: used files first, their use-entry overrides, then the main file; later wins
+    entries: dict[str, tuple] = {}
+    for d, entry, parent, upath in src.used:
+        for name, raw in (d.data.get("params") or {}).items():
+            entries[name] = (raw, d, ("params", name))
+        for name, raw in (entry.get("params") or {}).items():
+            entries[name] = (raw, parent, upath + ("params", name))
+    for name, raw in (src.main.data.get("params") or {}).items():
+        entries[name] = (raw, src.main, ("params", name))
+    params, env = _resolve_params(entries, overrides or {}, findings)
+    if params is None:
+        return None, findings
+    sample = _sample(src.main, env, findings)
+    limits = Limits(**(src.main.data.get("limits") or {}))
+    blocks_raw = []
+    seen: dict[str, SourcePos] = {}
+    for d in docs:
+        wanted = None
+        for ud, entry, *_ in src.used:
+            if ud is d and entry.get("blocks"):
+                wanted = set(entry["blocks"])
+        for i, b in enumerate(d.data.get("blocks") or []):
+            if wanted is not None and b["name"] not in wanted:
+                continue
+            if b["name"] in seen:
+                findings.append(make(E.DUPLICATE_BLOCK, f"block '{b['name']}' is defined twice (first at {seen[b['name']]})",
+                                     d.pos(("blocks", i, "name")), hint="rename one of them"))
+                continue
+            seen[b["name"]] = d.pos(("blocks", i, "name"))
+            blocks_raw.append((b, d, ("blocks", i)))
+    if not any(b.get("actions") for b, *_ in blocks_raw):
+        findings.append(make(E.EMPTY, "the sequence has no actions", src.main.pos(("blocks",)),
+                             hint="add a block with at least one action"))
+        return None, findings
+    lowered = []
+    for b, d, path in blocks_raw:
+        lowered.append(_lower_block(b, d, path, rig, env, findings))
+    placed = _place_blocks(blocks_raw, lowered, env, findings)
+    if placed is None or any(f.severity == "error" for f in findings):
+        return None, findings
+    segments, phys, blocks = [], [], []
+    for (b, d, path), low, start in zip(blocks_raw, lowered, placed):
+        dur, segs, acts = low
+        blocks.append(Block(b["name"], start, start + dur, d.pos(path), _anchor_text(b), _anchor_block(b)))
+        for s in segs:
+            segments.append(dict(s, t0=s["t0"] + start, t1=s["t1"] + start))
+        for a in acts:
+            phys.append(PhysAction(a["kind"], b["name"], a["t0"] + start, a["t1"] + start, a["args"], a["pos"], len(phys)))
+    final_segments = _fill_values(segments, rig)
+    accepts = []
+    for i, a in enumerate(src.main.data.get("accept") or []):
+        pos = src.main.pos(("accept", i))
+        if a.get("block") and a["block"] not in seen:
+            close = difflib.get_close_matches(a["block"], list(seen), n=1)
+            findings.append(make(E.UNKNOWN_BLOCK, f"acceptance names unknown block '{a['block']}'", pos,
+                                 hint=f"did you mean '{close[0]}'?" if close else "name an existing block"))
+        accepts.append(Accept(a["code"], a.get("block"), a["reason"], pos))
+    blocks.sort(key=lambda b: (b.start_s, b.name))
+    duration = max([b.end_s for b in blocks] + [s.t1 for s in final_segments] + [0.0])
+    end = src.main.data.get("end") or {}
+    shot = Shot(src.main.file, rig, sample, tuple(params), tuple(blocks), tuple(final_segments), tuple(phys),
+                tuple(accepts), src.hashes, limits, tuple(end.get("leave_on") or ()), duration)
+    return shot, findings
+
+
+def _resolve_params(entries: dict, overrides: dict, findings: list):
+    graph = nx.DiGraph()
+    texts = {}
+    for name, (raw, d, path) in entries.items():
+        value = raw["value"] if isinstance(raw, dict) else raw
+        texts[name] = (value, d, path + (("value",) if isinstance(raw, dict) else ()))
+        graph.add_node(name)
+        if isinstance(value, str) and name not in overrides:
+            try:
+                deps = names_in(value)
+            except ExprError as exc:
+                findings.append(make(E.EXPRESSION, str(exc), d.pos(path), hint=exc.hint))
+                continue
+            for dep in deps:
+                if dep in entries:
+                    graph.add_edge(dep, name)
+    try:
+        order = list(nx.topological_sort(graph))
+    except nx.NetworkXUnfeasible:
+        cycle = nx.find_cycle(graph)
+        members = [u for u, _ in cycle]
+        _, d, path = texts[members[0]]
+        findings.append(make(E.PARAM_CYCLE, "params depend on each other in a cycle: " + " -> ".join(members + [members[0]]),
+                             d.pos(path), hint="give one of them a plain value"))
+        return None, None
+    env: dict[str, Qty] = {}
+    params = []
+    ok = True
+    for name in order:
+        value, d, path = texts[name]
+        if name in overrides:
+            q = overrides[name]
+        else:
+            try:
+                q = to_qty(value, d, path, env)
+            except Bad as bad:
+                findings.append(bad.finding)
+                ok = False
+                continue
+        env[name] = q
+        params.append(Param(name, q.value, q.dims, str(value), d.pos(path)))
+    return (params, env) if ok else (None, None)
+
+
+def _sample(doc: Document, env, findings) -> Sample | None:
+    s = doc.data.get("sample")
+    if not s:
+        return None
+    pos = doc.pos(("sample",))
+    st = s.get("state") or {}
+    F, mF = st.get("F"), st.get("mF")
+    if F is not None and mF is not None and abs(mF) > F:
+        findings.append(make(E.BAD_SAMPLE, f"state F={F}, mF={mF} is impossible (|mF| > F)", doc.pos(("sample", "state")),
+                             hint="mF runs from -F to F"))
+    try:
+        from ..physics.atoms import get_species
+
+        sp = get_species(s["species"])
+        name = sp.name
+    except KeyError as exc:
+        findings.append(make(E.BAD_SAMPLE, f"unknown species '{s['species']}'", doc.pos(("sample", "species")),
+                             hint=str(exc).strip("'\"")))
+        name = s["species"]
+    except ImportError:  # pragma: no cover - physics data missing
+        name = s["species"]
+
+    def q(key, unit):
+        if key not in s:
+            return None
+        try:
+            return quantity(s[key], unit, doc, ("sample", key), env, positive=True)
+        except Bad as bad:
+            findings.append(bad.finding)
+            return None
+
+    tf = None
+    if s.get("trap_frequencies"):
+        try:
+            tf = tuple(quantity(v, "Hz", doc, ("sample", "trap_frequencies", i), env, positive=True)
+                       for i, v in enumerate(s["trap_frequencies"]))
+        except Bad as bad:
+            findings.append(bad.finding)
+    return Sample(name, F, mF, s.get("atoms"), q("temperature", "K"), bool(s.get("condensed", False)), tf,
+                  s.get("detection_floor"), pos)
+
+
+_ANCHOR = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(?:([+-])\s*(.+?))?\s*$")
+
+
+def _anchor_text(b) -> str:
+    for k in ("at", "after", "with"):
+        if k in b:
+            return f"{k} {b[k]}"
+    return "after previous"
+
+
+def _anchor_block(b) -> str | None:
+    for k in ("after", "with"):
+        if k in b and isinstance(b[k], str):
+            m = _ANCHOR.match(b[k])
+            if m:
+                return m.group(1)
+    return None
+
+
+def _place_blocks(blocks_raw, lowered, env, findings):
+    """Start time of every block, through the anchor graph; None on failure."""
+    names = [b["name"] for b, *_ in blocks_raw]
+    index = {n: i for i, n in enumerate(names)}
+    graph = nx.DiGraph()
+    graph.add_nodes_from(names)
+    anchors = []
+    for i, (b, d, path) in enumerate(blocks_raw):
+        if "at" in b:
+            try:
+                t = quantity(b["at"], "s", d, path + ("at",), env, what=f"block '{b['name']}' at")
+            except Bad as bad:
+                findings.append(bad.finding)
+                return None
+            anchors.append(("at", None, t))
+            continue
+        kind = "after" if "after" in b else ("with" if "with" in b else None)
+        if kind is None:
+            # no anchor: right after the previous block in the file
+            if i == 0:
+                anchors.append(("at", None, 0.0))
+            else:
+                anchors.append(("after", names[i - 1], 0.0))
+                graph.add_edge(names[i - 1], b["name"])
+            continue
+        m = _ANCHOR.match(b[kind])
+        if not m:
+            findings.append(make(E.BAD_ANCHOR, f"cannot read anchor '{kind}: {b[kind]}'", d.pos(path + (kind,)),
+                                 hint=f"write '{kind}: BLOCK' or '{kind}: BLOCK + 5 ms'"))
+            return None
+        target, sign, off_text = m.groups()
+        if target not in index:
+            close = difflib.get_close_matches(target, names, n=1)
+            findings.append(make(E.UNKNOWN_BLOCK, f"block '{b['name']}' is anchored {kind} unknown block '{target}'",
+                                 d.pos(path + (kind,)), hint=f"did you mean '{close[0]}'?" if close else "name an existing block"))
+            return None
+        off = 0.0
+        if off_text:
+            try:
+                off = quantity(off_text, "s", d, path + (kind,), env, what="anchor offset")
+            except Bad as bad:
+                findings.append(bad.finding)
+                return None
+            off = -off if sign == "-" else off
+        anchors.append((kind, target, off))
+        graph.add_edge(target, b["name"])
+    try:
+        order = list(nx.topological_sort(graph))
+    except nx.NetworkXUnfeasible:
+        cycle = [u for u, _ in nx.find_cycle(graph)]
+        b, d, path = blocks_raw[index[cycle[0]]]
+        findings.append(make(E.ANCHOR_CYCLE, "blocks are anchored on each other in a cycle: " + " -> ".join(cycle + [cycle[0]]),
+                             d.pos(path), hint="anchor one of them with 'at:' or on a block outside the cycle"))
+        return None
+    start: dict[str, float] = {}
+    for n in order:
+        i = index[n]
+        kind, target, off = anchors[i]
+        if kind == "at":
+            start[n] = off
+        elif kind == "after":
+            start[n] = start[target] + lowered[index[target]][0] + off
+        else:
+            start[n] = start[target] + off
+    return [start[n] for n in names]
+
+
+# ----------------------------------------------------------------------------- actions
+
+def _close(name, options):
+    close = difflib.get_close_matches(name, list(options), n=1)
+    return f"did you mean '{close[0]}'?" if close else ("known: " + ", ".join(sorted(options)) if options else "")
+
+
+class _Ctx:
+    def __init__(self, rig, env, doc, block, findings):
+        self.rig, self.env, self.doc, self.block, self.findings = rig, env, doc, block, findings
+        self.segments: list[dict] = []
+        self.phys: list[dict] = []
+
+    def q(self, spec, key, path, unit, **kw):
+        return quantity(spec[key], unit, self.doc, path + (key,), self.env, **kw)
+
+    def output_for(self, channel, path, dims_hint=None):
+        rig = self.rig
+        if channel in rig.outputs:
+            return rig.outputs[channel]
+        if channel in rig.channels:
+            parts = rig.channels[channel]
+            if dims_hint is not None:
+                for p in parts:
+                    if rig.outputs[p].phys_dims == dims_hint:
+                        return rig.outputs[p]
+            return rig.outputs[parts[0]]
+        raise Bad(make(E.UNKNOWN_CHANNEL, f"unknown channel '{channel}'", self.doc.pos(path),
+                       block=self.block, hint=_close(channel, list(rig.channels) + list(rig.outputs))))
+
+    def value(self, out, raw, path, what):
+        """A channel value in the output's physical unit (digital: 0/1)."""
+        if out.kind == "digital":
+            if isinstance(raw, bool):
+                return 1.0 if raw else 0.0
+            q = to_qty(raw, self.doc, path, self.env)
+            return q.value
+        return quantity(raw, out.phys_unit, self.doc, path, self.env, what=what)
+
+    def seg(self, out, kind, t0, t1, v0, v1, action, path, **kw):
+        self.segments.append(dict(output=out.name, kind=kind, t0=t0, t1=t1, v0=v0, v1=v1, block=self.block,
+                                  action=action, pos=self.doc.pos(path), **kw))
+
+    def pulse(self, out, t0, dur, value, back_to, action, path):
+        self.seg(out, "set", t0, t0, None, value, action, path)
+        self.seg(out, "set", t0 + dur, t0 + dur, None, back_to, action + ":end", path)
+
+    def ramp(self, out, spec, t0, path, action, v_from, v_to, dur):
+        tau = self.q(spec, "tau", path, "s") if "tau" in spec else None
+        if spec.get("shape") == "exponential" and not tau:
+            raise Bad(make("schema.missing-key", "an exponential ramp needs 'tau:'", self.doc.pos(path), block=self.block,
+                           hint="add 'tau: <time constant>'"))
+        tol = None
+        if "tolerance" in spec:
+            tol = quantity(spec["tolerance"], out.unit, self.doc, path + ("tolerance",), self.env)
+        self.seg(out, "ramp", t0, t0 + dur, v_from, v_to, action, path, shape=spec.get("shape", "linear"), tau_s=tau,
+                 table=tuple(map(tuple, spec["table"])) if spec.get("table") else None, tolerance=tol)
+
+
+def _lower_block(b, doc, path, rig, env, findings):
+    """(duration, segments relative to block start, physics actions) for one block."""
+    ctx = _Ctx(rig, env, doc, b["name"], findings)
+    cursor = 0.0
+    end = 0.0
+    for i, item in enumerate(b.get("actions") or []):
+        (kind, spec), = item.items()
+        apath = path + ("actions", i, kind)
+        try:
+            start = ctx.q(spec, "at", apath, "s", nonnegative=True) if "at" in spec else cursor
+            stop = _LOWER[kind](ctx, spec, start, apath)
+        except Bad as bad:
+            f = bad.finding
+            if f.block is None:
+                from dataclasses import replace
+                f = replace(f, block=b["name"])
+            findings.append(f)
+            continue
+        cursor = stop
+        end = max(end, stop)
+    return end, ctx.segments, ctx.phys
+
+
+def _do_set(ctx, spec, t0, path):
+    out = ctx.output_for(spec["channel"], path + ("channel",), _dims_of_raw(ctx, spec.get("value"), path))
+    ctx.seg(out, "set", t0, t0, None, ctx.value(out, spec["value"], path + ("value",), "value"), "set", path)
+    return t0
+
+
+def _dims_of_raw(ctx, raw, path):
+    try:
+        return to_qty(raw, ctx.doc, path, ctx.env).dims if raw is not None else None
+    except Bad:
+        return None
+
+
+def _do_ramp(ctx, spec, t0, path, action="ramp"):
+    out = ctx.output_for(spec["channel"], path + ("channel",), _dims_of_raw(ctx, spec.get("to"), path))
+    dur = ctx.q(spec, "over", path, "s", positive=True)
+    v_to = ctx.value(out, spec["to"], path + ("to",), "to")
+    v_from = ctx.value(out, spec["from"], path + ("from",), "from") if "from" in spec else None
+    ctx.ramp(out, spec, t0, path, action, v_from, v_to, dur)
+    return t0 + dur
+
+
+def _do_sweep(ctx, spec, t0, path):
+    ch = spec["channel"]
+    if ch in ctx.rig.channels and f"{ch}.freq" in ctx.rig.outputs:
+        spec = dict(spec, channel=f"{ch}.freq")
+    return _do_ramp(ctx, spec, t0, path, "sweep")
+
+
+def _do_pulse(ctx, spec, t0, path):
+    out = ctx.output_for(spec["channel"], path + ("channel",), _dims_of_raw(ctx, spec.get("value"), path))
+    dur = ctx.q(spec, "duration", path, "s", positive=True)
+    if "value" in spec:
+        value = ctx.value(out, spec["value"], path + ("value",), "value")
+    elif out.kind == "digital":
+        value = 1.0
+    else:
+        raise Bad(make("schema.missing-key", "an analog pulse needs 'value:'", ctx.doc.pos(path), block=ctx.block,
+                       hint="add 'value: <level during the pulse>'"))
+    back = ctx.value(out, spec["back_to"], path + ("back_to",), "back_to") if "back_to" in spec else None
+    ctx.pulse(out, t0, dur, value, back, "pulse", path)
+    return t0 + dur
+
+
+def _do_hold(ctx, spec, t0, path):
+    return t0 + ctx.q(spec, "duration", path, "s", positive=True)
+
+
+def _do_trigger(ctx, spec, t0, path):
+    out = ctx.output_for(spec["channel"], path + ("channel",))
+    width = ctx.q(spec, "width", path, "s", positive=True) if "width" in spec else max(out.min_pulse_s, 10e-6)
+    ctx.pulse(out, t0, width, 1.0, None, "trigger", path)
+    return t0
+
+
+def _named(ctx, table, kind, name, path):
+    if name not in table:
+        raise Bad(make(E.UNKNOWN_NAME, f"unknown {kind} '{name}'", ctx.doc.pos(path), block=ctx.block,
+                       hint=_close(name, table)))
+    return table[name]
+
+
+def _phys(ctx, kind, t0, t1, path, **args):
+    ctx.phys.append(dict(kind=kind, t0=t0, t1=t1, args=args, pos=ctx.doc.pos(path)))
+
+
+def _do_trap_ramp(ctx, spec, t0, path):
+    beam = _named(ctx, ctx.rig.beams, "beam", spec["beam"], path + ("beam",))
+    out = ctx.output_for(beam.power_channel, path + ("beam",))
+    dur = ctx.q(spec, "over", path, "s", positive=True)
+    v_to = ctx.q(spec, "to", path, out.phys_unit or "W", nonnegative=True)
+    v_from = ctx.q(spec, "from", path, out.phys_unit or "W", nonnegative=True) if "from" in spec else None
+    ctx.ramp(out, spec, t0, path, "trap_ramp", v_from, v_to, dur)
+    _phys(ctx, "trap_ramp", t0, t0 + dur, path, beam=beam.name, output=out.name, to=v_to, start=v_from,
+          shape=spec.get("shape", "linear"))
+    return t0 + dur
+
+
+def _do_release(ctx, spec, t0, path):
+    beams = spec.get("beams") or []
+    coils = spec.get("coils") or []
+    if not beams and not coils:
+        beams = [n for n, b in ctx.rig.beams.items() if b.role == "trap"]
+    for i, name in enumerate(beams):
+        beam = _named(ctx, ctx.rig.beams, "beam", name, path + ("beams", i))
+        ctx.seg(ctx.output_for(beam.power_channel, path), "set", t0, t0, None, 0.0, "release", path)
+    for i, name in enumerate(coils):
+        coil = _named(ctx, ctx.rig.coils, "coil", name, path + ("coils", i))
+        ctx.seg(ctx.output_for(coil.current_channel, path), "set", t0, t0, None, 0.0, "release", path)
+    _phys(ctx, "release", t0, t0, path, beams=tuple(beams), coils=tuple(coils))
+    return t0
+
+
+def _coil_current(ctx, coil, gradient, path):
+    if not coil.gradient_per_amp:
+        raise Bad(make(E.UNKNOWN_NAME, f"coil '{coil.name}' has no gradient_per_amp in the rig", ctx.doc.pos(path),
+                       block=ctx.block, hint="add 'gradient_per_amp: <G/cm per A>' to the coil"))
+    return gradient / coil.gradient_per_amp
+
+
+def _do_push(ctx, spec, t0, path):
+    dur = ctx.q(spec, "duration", path, "s", positive=True)
+    args = dict(duration=dur)
+    if "coil" in spec:
+        coil = _named(ctx, ctx.rig.coils, "coil", spec["coil"], path + ("coil",))
+        if "gradient" not in spec:
+            raise Bad(make("schema.missing-key", "a magnetic push needs 'gradient:'", ctx.doc.pos(path), block=ctx.block))
+        grad = ctx.q(spec, "gradient", path, "T/m")
+        out = ctx.output_for(coil.current_channel, path + ("coil",))
+        ctx.pulse(out, t0, dur, _coil_current(ctx, coil, grad, path + ("gradient",)), 0.0, "push", path)
+        args.update(coil=coil.name, gradient=grad)
+    elif "beam" in spec:
+        beam = _named(ctx, ctx.rig.beams, "beam", spec["beam"], path + ("beam",))
+        power = ctx.q(spec, "power", path, "W", positive=True)
+        out = ctx.output_for(beam.power_channel, path + ("beam",))
+        ctx.pulse(out, t0, dur, power, 0.0, "push", path)
+        args.update(beam=beam.name, power=power)
+    else:
+        raise Bad(make("schema.missing-key", "a push needs 'coil:' (magnetic) or 'beam:' (optical)", ctx.doc.pos(path),
+                       block=ctx.block))
+    if "expect_velocity" in spec:
+        args["expect_velocity"] = ctx.q(spec, "expect_velocity", path, "m/s")
+    if "tolerance" in spec:
+        args["tolerance"] = ctx.q(spec, "tolerance", path, "")
+    if "target_distance" in spec:
+        args["target_distance"] = ctx.q(spec, "target_distance", path, "m", positive=True)
+    _phys(ctx, "push", t0, t0 + dur, path, **args)
+    return t0 + dur
+
+
+def _do_barrier(ctx, spec, t0, path):
+    beam = _named(ctx, ctx.rig.beams, "beam", spec["beam"], path + ("beam",))
+    dur = ctx.q(spec, "duration", path, "s", positive=True)
+    power = ctx.q(spec, "power", path, "W", positive=True)
+    out = ctx.output_for(beam.power_channel, path + ("beam",))
+    ctx.pulse(out, t0, dur, power, 0.0, "barrier", path)
+    args = dict(beam=beam.name, power=power, duration=dur, expect=spec.get("expect", "any"))
+    if "position" in spec:
+        args["position"] = ctx.q(spec, "position", path, "m")
+    mod = spec.get("modulation")
+    if mod:
+        mpath = path + ("modulation",)
+        if "frequency" in mod:
+            args["mod_frequency"] = ctx.q(mod, "frequency", mpath, "Hz", positive=True)
+        if "depth" in mod:
+            args["mod_depth"] = ctx.q(mod, "depth", mpath, "")
+        if mod.get("channel"):
+            mch = mod["channel"]
+            fout = ctx.output_for(f"{mch}.freq" if f"{mch}.freq" in ctx.rig.outputs else mch, mpath + ("channel",))
+            args["mod_channel"] = fout.name
+            if "mod_frequency" in args and fout.phys_unit == "Hz":
+                ctx.seg(fout, "set", t0, t0, None, args["mod_frequency"], "barrier", mpath)
+            amp = f"{mch}.amp"
+            if amp in ctx.rig.outputs:
+                ctx.pulse(ctx.rig.outputs[amp], t0, dur, args.get("mod_depth", 1.0), 0.0, "barrier", mpath)
+        if mod.get("transition"):
+            args["transition"] = tuple((t["F"], t["mF"]) for t in mod["transition"])
+    _phys(ctx, "barrier", t0, t0 + dur, path, **args)
+    return t0 + dur
+
+
+def _do_clock_pulse(ctx, spec, t0, path):
+    drive = _named(ctx, ctx.rig.drives, "drive", spec["drive"], path + ("drive",))
+    dur = ctx.q(spec, "duration", path, "s", positive=True)
+    amp = ctx.q(spec, "amplitude", path, "") if "amplitude" in spec else 1.0
+    ch = drive.channel
+    amp_out = ctx.rig.outputs.get(f"{ch}.amp") or ctx.output_for(ch, path + ("drive",))
+    envelope = spec.get("envelope", "square")
+    args = dict(drive=drive.name, duration=dur, amplitude=amp, envelope=envelope)
+    if "angle" in spec:
+        args["angle"] = ctx.q(spec, "angle", path, "")
+    if "frequency" in spec:
+        args["frequency"] = ctx.q(spec, "frequency", path, "Hz", positive=True)
+        fout = ctx.rig.outputs.get(f"{ch}.freq")
+        if fout is not None:
+            ctx.seg(fout, "set", t0, t0, None, args["frequency"], "clock_pulse", path + ("frequency",))
+    if "detuning" in spec:
+        args["detuning"] = ctx.q(spec, "detuning", path, "Hz")
+    if spec.get("transition"):
+        args["transition"] = tuple((t["F"], t["mF"]) for t in spec["transition"])
+    if envelope == "square":
+        ctx.pulse(amp_out, t0, dur, amp, 0.0, "clock_pulse", path)
+    else:
+        ctx.seg(amp_out, "ramp", t0, t0 + dur, 0.0, amp, "clock_pulse", path, shape=envelope)
+        ctx.seg(amp_out, "set", t0 + dur, t0 + dur, None, 0.0, "clock_pulse:end", path)
+    _phys(ctx, "clock_pulse", t0, t0 + dur, path, **args)
+    return t0 + dur
+
+
+def _do_separate(ctx, spec, t0, path):
+    coil = _named(ctx, ctx.rig.coils, "coil", spec["coil"], path + ("coil",))
+    dur = ctx.q(spec, "duration", path, "s", positive=True)
+    grad = ctx.q(spec, "gradient", path, "T/m")
+    out = ctx.output_for(coil.current_channel, path + ("coil",))
+    ctx.pulse(out, t0, dur, _coil_current(ctx, coil, grad, path + ("gradient",)), 0.0, "separate", path)
+    _phys(ctx, "separate", t0, t0 + dur, path, coil=coil.name, gradient=grad, duration=dur)
+    return t0 + dur
+
+
+def _do_image(ctx, spec, t0, path):
+    setup = _named(ctx, ctx.rig.imaging, "imaging setup", spec["setup"], path + ("setup",))
+    dur = ctx.q(spec, "duration", path, "s", positive=True)
+    args = dict(setup=setup.name, duration=dur)
+    if setup.probe_beam:
+        beam = ctx.rig.beams[setup.probe_beam]
+        out = ctx.output_for(beam.power_channel, path)
+        power = ctx.q(spec, "probe_power", path, out.phys_unit or "W", positive=True) if "probe_power" in spec else (
+            1.0 if out.kind == "digital" else None)
+        if power is None:
+            raise Bad(make("schema.missing-key", "imaging needs 'probe_power:' for an analog probe channel", ctx.doc.pos(path),
+                           block=ctx.block))
+        ctx.pulse(out, t0, dur, power, 0.0, "image", path)
+        args["probe_power"] = power
+    exposure = ctx.q(spec, "exposure", path, "s", positive=True) if "exposure" in spec else dur
+    args["exposure"] = exposure
+    if setup.camera_channel:
+        cam = ctx.output_for(setup.camera_channel, path)
+        ctx.pulse(cam, t0, exposure, 1.0, 0.0, "image", path)
+    if "detuning" in spec:
+        args["detuning"] = ctx.q(spec, "detuning", path, "Hz")
+    _phys(ctx, "image", t0, t0 + max(dur, exposure), path, **args)
+    return t0 + max(dur, exposure)
+
+
+_LOWER = {"set": _do_set, "ramp": _do_ramp, "sweep": _do_sweep, "pulse": _do_pulse, "hold": _do_hold,
+          "trigger": _do_trigger, "trap_ramp": _do_trap_ramp, "release": _do_release, "push": _do_push,
+          "barrier": _do_barrier, "clock_pulse": _do_clock_pulse, "separate": _do_separate, "image": _do_image}
+ACTION_KINDS = tuple(_LOWER)
+
+
+def _fill_values(segments: list[dict], rig) -> list[Segment]:
+    """Fill ramp start values and pulse ends from what the output held before."""
+    by_out: dict[str, list] = {}
+    for i, s in enumerate(segments):
+        by_out.setdefault(s["output"], []).append((s["t0"], 0 if s["kind"] == "set" and s["action"].endswith(":end") else 1, i, s))
+    out_segments = []
+    for name in sorted(by_out):
+        current = rig.outputs[name].safe
+        before_pulse = current
+        for _, _, _, s in sorted(by_out[name], key=lambda x: (x[0], x[1], x[2])):
+            s = dict(s)
+            if s["kind"] == "ramp":
+                if s["v0"] is None:
+                    s["v0"] = current
+            elif s["action"].endswith(":end"):
+                if s["v1"] is None:
+                    s["v1"] = before_pulse
+            else:
+                before_pulse = current
+            current = s["v1"]
+            out_segments.append(Segment(**s))
+    return out_segments

@@ -1,0 +1,124 @@
+"""Validate a loaded document against a JSON Schema (draft 2020-12).
+
+Validator errors are turned into findings at the YAML line and column of the
+offending key or value, with a "did you mean" for misspelt keys. Validators are
+built once per schema and cached.
+"""
+
+from __future__ import annotations
+
+import difflib
+import json
+from functools import lru_cache
+from pathlib import Path
+
+import jsonschema
+
+from ..findings import Finding, make
+from ..load.yamlsrc import Document
+from ..registry import declare
+
+UNKNOWN_KEY = declare("schema.unknown-key", "error", """
+    A key the format does not know. Usually a typo: the message suggests the
+    closest known key. `seqgen explain` and schemas/*.schema.json list them all.""",
+    "JSON Schema draft 2020-12 (json-schema.org), additionalProperties", "schema")
+WRONG_TYPE = declare("schema.wrong-type", "error", """
+    A value of the wrong kind: a list where a mapping is expected, text where
+    a whole number is expected, and so on.""", "JSON Schema draft 2020-12, type", "schema")
+MISSING_KEY = declare("schema.missing-key", "error", """
+    A required key is missing, for example `to:` or `over:` of a ramp.""",
+    "JSON Schema draft 2020-12, required", "schema")
+BAD_VALUE = declare("schema.bad-value", "error", """
+    A value outside the allowed set or range (an unknown ramp shape, a
+    negative bit depth, two anchors on one block).""", "JSON Schema draft 2020-12", "schema")
+
+MAX_REPORTED = 25
+
+
+def schema_dir() -> Path:
+    """The schemas folder: inside the package when installed, else the repo's."""
+    here = Path(__file__).resolve().parent.parent
+    for cand in (here / "_schemas", here.parent / "schemas"):
+        if cand.is_dir():
+            return cand
+    raise FileNotFoundError("seqgen schemas folder not found")
+
+
+@lru_cache(maxsize=None)
+def _validator(schema_name: str) -> jsonschema.Draft202012Validator:
+    schema = json.loads((schema_dir() / schema_name).read_text(encoding="utf-8"))
+    return jsonschema.Draft202012Validator(schema)
+
+
+def load_schema(schema_name: str) -> dict:
+    return _validator(schema_name).schema
+
+
+def validate_document(doc: Document, schema_name: str) -> list[Finding]:
+    validator = _validator(schema_name)
+    errors = sorted(validator.iter_errors(doc.data), key=lambda e: (list(map(str, e.absolute_path)), e.validator))
+    findings: list[Finding] = []
+    seen_paths = set()
+    for err in errors:
+        for f in _to_findings(err, doc):
+            key = (f.line, f.column, f.code)
+            if key in seen_paths:
+                continue
+            seen_paths.add(key)
+            findings.append(f)
+        if len(findings) >= MAX_REPORTED:
+            break
+    return findings
+
+
+def _where(path) -> str:
+    out = ""
+    for p in path:
+        out += f"[{p}]" if isinstance(p, int) else (f".{p}" if out else str(p))
+    return out or "top level"
+
+
+def _to_findings(err: jsonschema.ValidationError, doc: Document) -> list[Finding]:
+    path = tuple(err.absolute_path)
+    where = _where(path)
+    v = err.validator
+    if v == "additionalProperties":
+        allowed = list((err.schema.get("properties") or {}).keys())
+        extra = [k for k in (err.instance or {}) if k not in allowed] if isinstance(err.instance, dict) else []
+        out = []
+        for key in extra:
+            close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+            hint = f"did you mean '{close[0]}'?" if close else ("known keys: " + ", ".join(allowed) if allowed else "remove it")
+            out.append(make(UNKNOWN_KEY, f"unknown key '{key}' in {where}", doc.pos(path + (key,)), hint=hint))
+        return out
+    if v == "required":
+        missing = [k for k in err.validator_value if isinstance(err.instance, dict) and k not in err.instance]
+        return [make(MISSING_KEY, f"{where} needs '{k}'", doc.pos(path), hint=f"add '{k}:'") for k in missing]
+    if v == "type":
+        want = err.validator_value if isinstance(err.validator_value, str) else " or ".join(err.validator_value)
+        got = type(err.instance).__name__.replace("dict", "mapping").replace("list", "list").replace("str", "text")
+        hint = "write it as a mapping 'key: value'" if want == "object" else f"give a {want}"
+        if want in ("string or number", "string") and isinstance(err.instance, (dict, list)):
+            hint = "give a single quantity such as '2 ms'"
+        return [make(WRONG_TYPE, f"{where} must be {want}, not {got}", doc.pos(path), hint=hint)]
+    if v in ("minProperties", "maxProperties") and isinstance(err.instance, dict) and path and isinstance(path[-1], int):
+        return [make(BAD_VALUE, f"{where}: an action must have exactly one key naming its kind, found {len(err.instance)}",
+                     doc.pos(path), hint="split it into one list item per action")]
+    if v == "not" and isinstance(err.instance, dict):
+        return [make(BAD_VALUE, f"{where} has more than one anchor (at / after / with)", doc.pos(path),
+                     hint="keep exactly one of at:, after:, with:")]
+    if v in ("oneOf", "anyOf"):
+        best = jsonschema.exceptions.best_match(err.context) if err.context else None
+        if best is not None and best.validator not in ("oneOf", "anyOf"):
+            return _to_findings(best, doc)
+    if v == "enum":
+        close = difflib.get_close_matches(str(err.instance), [str(x) for x in err.validator_value], n=1)
+        hint = f"did you mean '{close[0]}'?" if close else "choose one of: " + ", ".join(map(str, err.validator_value))
+        return [make(BAD_VALUE, f"{where}: '{err.instance}' is not allowed", doc.pos(path), hint=hint)]
+    if v == "const":
+        return [make(BAD_VALUE, f"{where} must be {err.validator_value!r}, not {err.instance!r}", doc.pos(path),
+                     hint=f"write {err.validator_value!r}")]
+    if v == "pattern":
+        return [make(BAD_VALUE, f"{where}: '{err.instance}' is not a valid name", doc.pos(path),
+                     hint="names are letters, digits and underscores, starting with a letter")]
+    return [make(BAD_VALUE, f"{where}: {err.message}", doc.pos(path))]
