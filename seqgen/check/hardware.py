@@ -105,9 +105,10 @@ def memory_depth(shot, compiled):
                 contrib[block] = contrib.get(block, 0) + n
             top = sorted(contrib.items(), key=lambda kv: -kv[1])[:3]
             where = ", ".join(f"{b} ({n} rows)" for b, n in top) or "many sets"
+            pos = shot.block(top[0][0]).pos if top else dev.pos
             yield make("hardware.memory-depth", f"device '{t.device}' needs {len(t.ticks)} rows, "
                        f"{len(t.ticks) - dev.memory_depth} over its memory depth {dev.memory_depth}; most from {where}",
-                       dev.pos, hint="raise ramp tolerances, shorten ramps, or move channels to another device")
+                       pos, block=top[0][0] if top else None, hint="raise ramp tolerances, shorten ramps, or move channels to another device")
 
 
 @check("hardware.min-interval", "error", "the rig file's min_interval per device", stage="tables")

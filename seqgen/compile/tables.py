@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..calibration import to_output
-from ..findings import Finding, make
+from ..findings import Finding, _fmt_time, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from ..registry import declare
 from .sampling import quantize_times, quantize_values, sample_ramp
@@ -62,6 +62,7 @@ def output_rows(out: Output, segments, device, findings: list, rows_per_segment:
     tick = device.tick_s
     ticks = [np.array([0], dtype=np.int64)]
     vals = [np.atleast_1d(to_output(out, out.safe)).astype(float)]
+    flexible = [np.zeros(1, dtype=bool)]  # ramp-interior rows may be dropped to keep the device's spacing
     current = out.safe
     linear = device.output_model == "linear"
     for seg in segments:
@@ -71,15 +72,17 @@ def output_rows(out: Output, segments, device, findings: list, rows_per_segment:
             t = seg.t0 - lat
             k = int(quantize_times(np.array([max(t, 0.0)]), tick)[0])
             if t < -0.5 * tick:
-                findings.append(make(BEFORE_START, f"'{out.name}' must be commanded {(-t) * 1e3:.4g} ms before t = 0 "
-                                     f"to compensate its {lat * 1e3:.4g} ms latency", seg.pos, block=seg.block, time_s=seg.t0,
+                findings.append(make(BEFORE_START, f"'{out.name}' must be commanded {_fmt_time(-t)} before t = 0 "
+                                     f"to compensate its {_fmt_time(lat)} latency", seg.pos, block=seg.block, time_s=seg.t0,
                                      hint="start this block later or move the whole sequence later"))
             new = float(np.asarray(to_output(out, seg.v1)))
             if linear and k > 0:
                 ticks.append(np.array([k - 1], dtype=np.int64))
                 vals.append(np.array([vals[-1][-1]]))
+                flexible.append(np.zeros(1, dtype=bool))
             ticks.append(np.array([k], dtype=np.int64))
             vals.append(np.array([new]))
+            flexible.append(np.zeros(1, dtype=bool))
         else:
             t0, t1 = seg.t0 - lat, seg.t1 - lat
             if t0 < -0.5 * tick:
@@ -91,20 +94,60 @@ def output_rows(out: Output, segments, device, findings: list, rows_per_segment:
             if k1 <= k0:
                 k1 = k0 + 1
             tol = seg.tolerance if seg.tolerance is not None else out.sample_tolerance
-            rt, rv = sample_ramp(_value_function(out, seg, lat), k0, k1, tick, tolerance=tol,
-                                 model="linear" if linear else "hold", min_interval_ticks=device.min_interval_ticks)
+            rt, rv = _sample_on_grid(_value_function(out, seg, lat), k0, k1, device, tol, linear)
             rows_per_segment[(seg.block, out.name, seg.t0)] = int(len(rt))
             ticks.append(np.asarray(rt, dtype=np.int64))
             vals.append(np.asarray(rv, dtype=float))
+            flexible.append(np.r_[False, np.ones(len(rt) - 2, dtype=bool), False] if len(rt) >= 2 else np.zeros(len(rt), bool))
         current = seg.v1
     t = np.concatenate(ticks)
     v = np.concatenate(vals)
+    fl = np.concatenate(flexible)
     order = np.argsort(t, kind="stable")
-    t, v = t[order], v[order]
+    t, v, fl = t[order], v[order], fl[order]
     # several writes on one tick: the last one wins (a pulse end then the next pulse's start)
     keep = np.ones(len(t), dtype=bool)
     keep[:-1] = t[1:] != t[:-1]
-    return t[keep], v[keep]
+    return t[keep], v[keep], fl[keep]
+
+
+def _sample_on_grid(value_at, k0: int, k1: int, device, tol: float, linear: bool):
+    """Sample a ramp with interior rows on the device-wide grid of its minimum interval.
+
+    Putting every ramp's interior rows on multiples of the minimum interval keeps
+    rows of different outputs of one device from landing closer together than
+    the device can update; the endpoints stay exactly where the sequence puts them.
+    """
+    m = device.min_interval_ticks
+    model = "linear" if linear else "hold"
+    if m <= 1:
+        return sample_ramp(value_at, k0, k1, device.tick_s, tolerance=tol, model=model)
+    g0 = -(-(k0 + m) // m)
+    g1 = (k1 - m) // m
+    ends = np.array([k0, k1], dtype=np.int64)
+    if g1 <= g0:
+        return ends, np.asarray(value_at(ends * device.tick_s), dtype=float)
+    gt, gv = sample_ramp(value_at, g0, g1, device.tick_s * m, tolerance=tol, model=model)
+    y_ends = np.asarray(value_at(ends * device.tick_s), dtype=float)
+    return np.r_[k0, np.asarray(gt, dtype=np.int64) * m, k1], np.r_[y_ends[0], gv, y_ends[1]]
+
+
+def _drop_crowded_rows(ticks: np.ndarray, flexible: np.ndarray, m: int) -> np.ndarray:
+    """Drop ramp-interior rows that sit closer than m ticks to another row."""
+    keep = np.ones(len(ticks), dtype=bool)
+    for _ in range(16):
+        t = ticks[keep]
+        f = flexible[keep]
+        close = np.nonzero(np.diff(t) < m)[0]
+        if not len(close):
+            break
+        drop = np.where(f[close + 1], close + 1, np.where(f[close], close, -1))
+        drop = drop[drop >= 0]
+        if not len(drop):
+            break
+        idx = np.nonzero(keep)[0]
+        keep[idx[np.unique(drop)]] = False
+    return keep
 
 
 def _quantize(out: Output, values: np.ndarray) -> np.ndarray:
@@ -133,9 +176,16 @@ def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
         for o in outs:
             segs = sorted(by_output.get(o.name, []), key=lambda s: (s.t0, 0 if s.action.endswith(":end") else 1))
             per_out.append(output_rows(o, segs, device, findings, rows_per_segment))
-        all_ticks = np.unique(np.concatenate([t for t, _ in per_out] + [np.array([end_tick], dtype=np.int64)]))
+        cat_t = np.concatenate([t for t, _, _ in per_out] + [np.array([end_tick], dtype=np.int64)])
+        cat_f = np.concatenate([f for _, _, f in per_out] + [np.zeros(1, dtype=bool)])
+        all_ticks, inverse = np.unique(cat_t, return_inverse=True)
+        # a tick is flexible only if every row on it is a ramp-interior row
+        fixed = np.zeros(len(all_ticks), dtype=bool)
+        np.logical_or.at(fixed, inverse, ~cat_f)
+        if device.min_interval_ticks > 1:
+            all_ticks = all_ticks[_drop_crowded_rows(all_ticks, ~fixed, device.min_interval_ticks)]
         values = np.empty((len(all_ticks), len(outs)), dtype=float)
-        for j, (o, (t, v)) in enumerate(zip(outs, per_out)):
+        for j, (o, (t, v, _)) in enumerate(zip(outs, per_out)):
             if device.output_model == "linear" and len(t) > 1:
                 col = np.interp(all_ticks, t, v)
             else:

@@ -127,9 +127,53 @@ def load_text(text: str, name: str = "<text>") -> Document:
     positions: dict = {}
     if not nodes or nodes[0] is None:
         return Document(name, None, positions, sha)
+    _check_size(nodes[0], name)
     conv = _Converter(name, positions)
     data = conv.convert(nodes[0], (), 0)
     return Document(name, data, positions, sha)
+
+
+_PLAIN_COLLECTION_TAGS = ("tag:yaml.org,2002:map", "tag:yaml.org,2002:seq", "tag:yaml.org,2002:omap")
+
+
+def _check_size(root, name: str) -> None:
+    """Refuse documents whose alias expansion is too large, before expanding anything.
+
+    The expanded size of a node is 1 + the sizes of its children; memoised on
+    node identity, this costs one visit per distinct node however many times
+    aliases repeat it.
+    """
+    sizes: dict[int, int] = {}
+    stack = [(root, 0, False)]
+    while stack:
+        node, depth, done = stack.pop()
+        if depth > MAX_DEPTH:
+            m = node.start_mark
+            raise LoadError(make(YAML_BOMB, f"document nests deeper than {MAX_DEPTH} levels",
+                                 SourcePos(name, m.line + 1, m.column + 1)))
+        if id(node) in sizes:
+            continue
+        if isinstance(node, yaml.ScalarNode):
+            sizes[id(node)] = 1
+            continue
+        if not isinstance(node, (yaml.MappingNode, yaml.SequenceNode)):
+            continue
+        if node.tag not in _PLAIN_COLLECTION_TAGS and not node.tag.startswith("tag:yaml.org,2002:set"):
+            m = node.start_mark
+            raise LoadError(make(YAML_TAG, f"unsupported YAML tag {node.tag}", SourcePos(name, m.line + 1, m.column + 1),
+                                 hint="remove the '!tag'"))
+        children = ([c for kv in node.value for c in kv] if isinstance(node, yaml.MappingNode) else list(node.value))
+        if done:
+            total = 1 + sum(sizes.get(id(c), 1) for c in children)
+            sizes[id(node)] = total
+            if total > MAX_NODES:
+                m = node.start_mark
+                raise LoadError(make(YAML_BOMB, f"document expands to more than {MAX_NODES} nodes",
+                                     SourcePos(name, m.line + 1, m.column + 1),
+                                     hint="remove the chain of aliases (&name / *name) that multiplies the content"))
+            continue
+        stack.append((node, depth, True))
+        stack.extend((c, depth + 1, False) for c in children if id(c) not in sizes)
 
 
 class _Converter:

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import json
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
 from types import MappingProxyType
@@ -58,8 +58,9 @@ class Species:
     d1_linewidth_hz: float
     d2_linewidth_hz: float
     saturation_intensity_w_m2: float
-    scattering_lengths_m: Mapping[str, float]
-    sources: Mapping[str, str]
+    # read-only mappings: left out of the hash so Species stays hashable (cache keys)
+    scattering_lengths_m: Mapping[str, float] = field(hash=False)
+    sources: Mapping[str, str] = field(hash=False, repr=False)
 
 
 # YAML key -> (Species field, factor to SI)

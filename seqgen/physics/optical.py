@@ -176,12 +176,13 @@ def beam_potential(species: Species, beam: GaussianBeam | Iterable[GaussianBeam]
                for b in _as_beams(beam))
 
 
-def total_potential(species: Species, beams, points_xyz, gravity: bool = True, vertical=(0, 0, 1)) -> np.ndarray:
-    """Light shift of all beams plus m g_n (r . vertical) if ``gravity``, J."""
+def total_potential(species: Species, beams, points_xyz, gravity: bool = True, vertical=(0, 0, 1),
+                    reference_m=(0.0, 0.0, 0.0)) -> np.ndarray:
+    """Light shift of all beams plus m g_n ((r - reference) . vertical) if ``gravity``, J."""
     pts = np.asarray(points_xyz, dtype=float)
     u = beam_potential(species, beams, pts)
     if gravity:
-        u = u + species.mass_kg * G_N * (pts @ _unit(vertical))
+        u = u + species.mass_kg * G_N * ((pts - np.asarray(reference_m, dtype=float)) @ _unit(vertical))
     return u
 
 
@@ -191,7 +192,8 @@ class TrapMinimum:
 
     ``omegas_rad_s`` ascending, ``axes`` columns are the matching principal
     axes, ``position_m`` the minimum, ``potential_j`` the total potential
-    there (light + gravity relative to the crossing point's height).
+    there (light + gravity, gravity counted from the height of the beams'
+    crossing point).
     """
 
     position_m: np.ndarray
@@ -269,8 +271,10 @@ def find_trap_minimum(species: Species, beams, gravity: bool = True, vertical=(0
     if u_scale == 0:
         raise ValueError("no light at the beams' crossing point")
 
+    ref = start.copy()  # gravity measured from the crossing height keeps f small (roundoff in the Hessian)
+
     def f(p):
-        return total_potential(species, beams, p, gravity=gravity, vertical=up)
+        return total_potential(species, beams, p, gravity=gravity, vertical=up, reference_m=ref)
 
     if gravity:
         reach = 4 * max(max(b.waists) for b in beams)
@@ -336,16 +340,20 @@ def effective_depth_with_gravity(species: Species, beams, vertical=(0, 0, 1)) ->
     except ValueError:
         return 0.0
     reach = 6 * max(max(b.waists) for b in beams)
+    ref = m.position_m
+
+    def g(t):
+        return total_potential(species, beams, ref + np.multiply.outer(t, up), gravity=True, vertical=up,
+                               reference_m=ref)
+
     z = np.linspace(0.0, -reach, 6001)
-    vals = total_potential(species, beams, m.position_m + z[:, None] * up, gravity=True, vertical=up)
+    vals = g(z)
     peaks = np.flatnonzero((vals[1:-1] >= vals[:-2]) & (vals[1:-1] > vals[2:])) + 1
     if peaks.size == 0:
         return 0.0
     k = peaks[0]
-    res = optimize.minimize_scalar(
-        lambda t: -float(total_potential(species, beams, m.position_m + t * up, gravity=True, vertical=up)),
-        bracket=(z[k - 1], z[k], z[k + 1]))
-    return max(0.0, -float(res.fun) - m.potential_j)
+    res = optimize.minimize_scalar(lambda t: -float(g(t)), bracket=(z[k - 1], z[k], z[k + 1]))
+    return max(0.0, -float(res.fun) - float(g(0.0)))
 
 
 def minimum_power_to_hold(species: Species, beam_waist_m: float, wavelength_m: float) -> float:

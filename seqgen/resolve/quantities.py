@@ -7,7 +7,7 @@ import math
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from . import errors as E
-from .expr import ExprError, evaluate
+from .expr import ExprError, evaluate, names_in
 from .units import DIMENSIONLESS, Qty, UnitError, describe_dims, dims_of, display_unit, parse_simple, same_dims
 
 ABSURD = 1e12  # in SI base units: larger magnitudes are typos (a 1e30 s hold)
@@ -37,7 +37,14 @@ def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
     try:
         q = parse_simple(text)
     except UnitError as exc:
-        raise Bad(make(E.BAD_UNIT, str(exc), pos, hint="use SI units with prefixes, e.g. ms, us, mW, G/cm, MHz"))
+        # '10 ms / n' looks like a number with a unit, but n is a param: read it as an expression
+        try:
+            uses_params = bool(names_in(text) & set(env))
+        except ExprError:
+            uses_params = False
+        if not uses_params:
+            raise Bad(make(E.BAD_UNIT, str(exc), pos, hint="use SI units with prefixes, e.g. ms, us, mW, G/cm, MHz"))
+        q = None
     if q is None:
         try:
             q = evaluate(text, env)
