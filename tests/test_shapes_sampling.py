@@ -8,9 +8,9 @@ References beside each check:
 - row-count bounds: piecewise-constant approximation of a monotone curve needs
   at least total variation / (2 tol) segments (textbook); piecewise-linear
   interpolation error h^2 max|y''| / 8, hence about integral sqrt(|y''| / (8 tol))
-  intervals (de Boor, A Practical Guide to Splines, Springer (1978));
+  intervals (A Practical Guide to Splines, Springer (1978));
 - the Beta-function integral int_0^{pi/2} cos^(1/2) x dx = B(1/2, 3/4) / 2
-  (Handbook of Mathematical Functions, NBS Appl. Math. Ser. 55, eq. 6.2.1 (1964));
+  (Handbook of Mathematical Functions, NBS Appl. Math. Ser. 55, eq. 6.2.1 (1964), equation number from memory);
 - rounding: exact decimal / rational arithmetic from Python's decimal and
   fractions modules.
 The reconstructed output is computed here from the rows with the two hardware
@@ -115,7 +115,7 @@ def test_exponential_large_rates_do_not_overflow():
 
 
 def test_exponential_long_time_constant_is_linear():
-    # tau -> infinity: (1 - exp(-s x)) / (1 - exp(-x)) -> s (Taylor expansion, first order in x)
+    # tau -> infinity: (1 - exp(-s x)) / (1 - exp(-x)) -> s (series expansion to first order in x)
     s = np.linspace(0, 1, 11)
     for tau in (1e9, -1e9, np.inf):
         np.testing.assert_allclose(shape_fraction("exponential", s, duration_s=1.0, tau_s=tau), s, atol=1e-8)
@@ -239,7 +239,7 @@ def test_every_tick_within_tolerance_and_rows_near_bound(shape, tau_frac, model)
         # monotone curve: total variation = |v1 - v0| -> at least ceil(TV / (2 tol)) segments (textbook), + end row
         bound = math.ceil(amp / (2 * tol)) + 1
     else:
-        # de Boor (1978): about integral sqrt(|y''| / (8 tol)) intervals (at least one), + start row
+        # A Practical Guide to Splines, Springer (1978): about integral sqrt(|y''| / (8 tol)) intervals (at least one), + start row
         bound = max(1, math.ceil(_linear_bound_intervals(shape, amp, tol, r))) + 1
     assert rep.rows <= 1.5 * bound
     assert abs(rep.min_rows_bound - bound) <= max(2, 0.02 * bound)

@@ -15,16 +15,22 @@ every tick:
 - ``linear`` (the hardware interpolates linearly between rows). Row values are
   the curve's values (interpolation); rows equidistribute the measure
   integral sqrt(|y''| / (8 tol)) dt, from the interpolation error bound
-  |y - p| <= h^2 max|y''| / 8 (de Boor, A Practical Guide to Splines,
+  |y - p| <= h^2 max|y''| / 8 (A Practical Guide to Splines,
   Springer (1978)), which also gives the asymptotic row count.
 
-Both are vectorised: a dense evaluation, a cumulative measure, np.searchsorted
-to invert it, then a few vectorised verification passes that split segments
-still over tolerance. The check runs on every tick for ramps up to
-``_GRID_MAX`` ticks, otherwise on an evenly spaced grid of that many points
-(rows then fall on grid points; hold errors are bounded conservatively by
-including the neighbouring grid value, and linear ones leave room for the
-chord error between grid points).
+Both are vectorised: a dense evaluation, a cumulative measure capped at one
+row per min interval, np.searchsorted to invert it, then vectorised
+verification passes that split segments still over tolerance (evenly, with
+one new row moved onto the largest jump (hold) or largest error (linear), so
+kinks from calibration tables are caught at once). No Python loop runs per row.
+
+The check runs on every tick for ramps up to ``_GRID_MAX`` ticks, otherwise on
+an evenly spaced grid of about that many points. Rows then fall on grid points;
+hold errors are bounded conservatively by including the next grid value, and
+linear ones leave room for the chord error between grid points. This assumes
+the curve is smooth on the scale of the grid (a jump between two grid points
+is not seen), and when rows are needed every few grid steps it costs rows
+(segment lengths are whole grid steps).
 """
 
 from __future__ import annotations
@@ -34,7 +40,7 @@ from typing import Callable
 
 import numpy as np
 
-_GRID_MAX = 1 << 21      # most grid intervals evaluated per ramp (memory ~ 50 MB at most)
+_GRID_MAX = 1 << 21      # most grid intervals evaluated per ramp (peak memory about 250 MB)
 _MAX_PASSES = 40         # verification / refinement passes (smooth ramps need one or two)
 _LINEAR_SAFETY = 1.05    # denser than the asymptotic bound: y'' varies within an interval
 _TIE_EPS = 1e-9          # |x - half integer| below this (in ticks / codes) counts as a tie
@@ -49,8 +55,9 @@ class SampleReport:
     values: output values (float64); the last is the curve's value at tick_end.
     max_error: largest |reconstructed - curve| found on the check grid (output units).
     min_rows_bound: rows a best sampler needs by the derivative bound
-        (hold: ceil(total variation / (2 tol)) + 1 for a monotone curve;
-        linear: ceil(integral sqrt(|y''| / (8 tol)) dt) + 1, asymptotic),
+        (hold: ceil(total variation / (2 tol)) + 1, strict for a monotone
+        curve moving well under 2 tol per tick; linear: ceil(integral
+        sqrt(|y''| / (8 tol)) dt) + 1, asymptotic for interpolating rows),
         counting the end row and capped at the number of grid points.
     grid_step_ticks: spacing of the check grid (1 = every tick).
     min_interval_limited: the tolerance was not met because rows may not be
@@ -81,23 +88,31 @@ class SampleReport:
 
 def _round_half_up(x: np.ndarray) -> np.ndarray:
     """Nearest integer, exact ties (and float near-ties within _TIE_EPS plus a
-    few ulps) going up. Deterministic: a time written as 2.5 ticks rounds to 3
-    whether the division gave 2.4999999999999996 or 2.5000000000000004."""
-    fl = np.floor(x)
-    eps = _TIE_EPS + 8 * np.spacing(np.abs(x))
-    tie = np.abs(x - fl - 0.5) <= eps
-    return np.where(tie, fl + 1.0, np.floor(x + 0.5))
+    few ulps of the largest |x|) going up. Deterministic: a time written as 2.5
+    ticks rounds to 3 whether the division gave 2.4999999999999996 or 2.5."""
+    if x.size == 0:
+        return np.floor(x)
+    eps = _TIE_EPS + 8 * np.spacing(max(abs(float(x.max())), abs(float(x.min()))))
+    y = x + 0.5
+    n = np.floor(y)
+    np.subtract(y, n, out=y)  # fractional part of x + 1/2; just below 1 means a near-tie from below
+    n += y >= 1.0 - eps
+    return n
 
 
 def quantize_times(times_s: np.ndarray, tick_s: float) -> np.ndarray:
     """Times (s) -> nearest tick (int64), ties toward the later tick.
 
+    t / tick within 1e-9 of a tick (plus a few ulps) of a half tick counts as a
+    tie, so float error in the division cannot flip a tie either way.
     Times that round below tick 0 (earlier than -tick/2) raise ValueError:
     nothing can be output before the sequence starts."""
     tick_s = float(tick_s)
     if not (np.isfinite(tick_s) and tick_s > 0):
         raise ValueError(f"tick_s must be a positive finite time in s, got {tick_s!r}")
     t = np.asarray(times_s, dtype=float)
+    shape = t.shape
+    t = t.reshape(-1)
     if t.size and not np.all(np.isfinite(t)):
         raise ValueError("times must be finite")
     k = _round_half_up(t / tick_s)
@@ -105,7 +120,7 @@ def quantize_times(times_s: np.ndarray, tick_s: float) -> np.ndarray:
         raise ValueError(f"time {t.min():.9g} s lies before the sequence start (t = 0); ticks cannot be negative")
     if k.size and k.max() >= 2.0 ** 53:
         raise ValueError("time too long for exact integer ticks")
-    return k.astype(np.int64)
+    return k.astype(np.int64).reshape(shape)
 
 
 def quantize_values(values: np.ndarray, lo: float, hi: float, bits: int) -> tuple[np.ndarray, np.ndarray]:
@@ -121,16 +136,21 @@ def quantize_values(values: np.ndarray, lo: float, hi: float, bits: int) -> tupl
         raise ValueError(f"DAC bits must be an integer from 1 to 52, got {bits!r}")
     nmax = 2 ** int(bits) - 1
     v = np.asarray(values, dtype=float)
-    if v.size and not np.all(np.isfinite(v)):
-        raise ValueError("values must be finite")
+    shape = v.shape
+    v = v.reshape(-1)
     slack = 1e-12 * max(hi - lo, abs(lo), abs(hi))
-    if v.size and (v.min() < lo - slack or v.max() > hi + slack):
-        raise ValueError(f"values span [{v.min():.9g}, {v.max():.9g}], outside the output range [{lo:.9g}, {hi:.9g}]")
+    if v.size:
+        vmin, vmax = float(v.min()), float(v.max())
+        # written so NaN fails too (every comparison with NaN is false)
+        if not (vmin >= lo - slack and vmax <= hi + slack):
+            if not (np.isfinite(vmin) and np.isfinite(vmax)):
+                raise ValueError("values must be finite")
+            raise ValueError(f"values span [{vmin:.9g}, {vmax:.9g}], outside the output range [{lo:.9g}, {hi:.9g}]")
     x = (v - lo) * (nmax / (hi - lo))
-    codes = np.clip(_round_half_up(x), 0, nmax).astype(np.int64)
-    back = lo + codes * ((hi - lo) / nmax)
-    back = np.where(codes == 0, lo, np.where(codes == nmax, hi, back))
-    return codes, back
+    codes = np.clip(_round_half_up(x), 0, nmax, out=x).astype(np.int64)
+    back = lo + codes * ((hi - lo) / nmax)  # code 0 gives lo exactly
+    back[codes == nmax] = hi  # and the top code hi exactly, whatever the rounding of the product
+    return codes.reshape(shape), back.reshape(shape)
 
 
 # ---------------------------------------------------------------- sampling helpers
@@ -223,16 +243,16 @@ def _split_points(starts, lengths, k, order, peaks, mg):
 
 
 def _refine(starts, err, limit, g, m, mg, max_rows, pieces_for, peaks):
-    """One refinement pass: split segments whose error exceeds limit.
-    Returns (new starts or None if nothing split, spacing-limited, rows-limited)."""
+    """One refinement pass: split segments whose error exceeds limit (segments
+    shorter than 2 min intervals cannot be split). Returns (new starts, or None
+    when nothing could be split; whether max_rows stopped a split)."""
     M = len(g) - 1
     bad = err > limit
     lengths = np.diff(np.append(starts, M))
     k = np.minimum(pieces_for(err / limit), lengths // mg)
     split = bad & (k >= 2)
-    spacing_limited = bool(np.any(bad & (k < 2)))
     if not split.any():
-        return None, spacing_limited, False
+        return None, False
     order = np.nonzero(split)[0]
     rows_limited = False
     if max_rows is not None:
@@ -242,10 +262,10 @@ def _refine(starts, err, limit, g, m, mg, max_rows, pieces_for, peaks):
         rows_limited = not bool(keep.all())
         order = np.sort(order[keep])
         if len(order) == 0:
-            return None, spacing_limited, True
+            return None, True
     new = _split_points(starts, lengths, k, order, peaks, mg)
     starts = _sorted_unique(np.concatenate([starts, new]))
-    return _enforce_spacing(starts, g, m, mg), spacing_limited, rows_limited
+    return _enforce_spacing(starts, g, m, mg), rows_limited
 
 
 def _scale_to_budget(rho: np.ndarray, top_index: int, max_rows: int | None, fixed_rows: int) -> np.ndarray:
@@ -289,7 +309,7 @@ def _sample_hold(y, g, step, tol, m, mg, max_rows):
     phi = np.concatenate(([0.0], np.cumsum(rho)))
     starts = _sorted_unique(np.concatenate(([0], _first_crossings(phi, phi[M - 1]))), presorted=True)
     starts = _enforce_spacing(starts[starts < M], g, m, mg)
-    spacing_limited = rows_limited = False
+    rows_limited = False
     jump = np.concatenate(([0.0], dy))  # jump[i]: change from grid point i - 1 to i
     for _ in range(_MAX_PASSES):
         vals, err = _hold_values(y, starts, step)
@@ -299,13 +319,13 @@ def _sample_hold(y, g, step, tol, m, mg, max_rows):
         peaks = _segment_argmax(inner, starts)
         peaks = np.where(inner[peaks] > tol, peaks, -1)
         # a hold segment's range grows about linearly with its length
-        new, spacing_limited, rows_limited = _refine(starts, err, tol, g, m, mg, max_rows,
-                                                     lambda r: np.ceil(r * 1.02), peaks)
+        new, capped = _refine(starts, err, tol, g, m, mg, max_rows, lambda r: np.ceil(r * 1.02), peaks)
+        rows_limited |= capped
         if new is None:
             break
         starts = new
     vals, err = _hold_values(y, starts, step)
-    return starts, vals, float(err.max()), bound, spacing_limited, rows_limited
+    return starts, vals, float(err.max()), bound, rows_limited
 
 
 def _sample_linear(y, g, step, tol, m, mg, max_rows):
@@ -338,14 +358,14 @@ def _sample_linear(y, g, step, tol, m, mg, max_rows):
         e = np.abs(recon - y)[:-1]
         return np.maximum.reduceat(e, starts), e
 
-    spacing_limited = rows_limited = False
+    rows_limited = False
     for _ in range(_MAX_PASSES):
         err, e_pts = errors(starts)
         # interpolation error grows as the square of the interval; one new row goes
         # where the error peaks (a kink from a calibration table is then caught at once)
-        new, spacing_limited, rows_limited = _refine(starts, err, limit, g, m, mg, max_rows,
-                                                     lambda r: np.ceil(np.sqrt(r) * 1.02),
-                                                     _segment_argmax(e_pts, starts))
+        new, capped = _refine(starts, err, limit, g, m, mg, max_rows, lambda r: np.ceil(np.sqrt(r) * 1.02),
+                              _segment_argmax(e_pts, starts))
+        rows_limited |= capped
         if new is None:
             break
         starts = new
@@ -353,7 +373,7 @@ def _sample_linear(y, g, step, tol, m, mg, max_rows):
     max_err = float(err.max())
     if step > 1 and len(curv):
         max_err += float(curv.max()) * step ** 2 / 8.0  # chord error between grid points, a bound
-    return starts, y[starts], max_err, bound, spacing_limited, rows_limited
+    return starts, y[starts], max_err, bound, rows_limited
 
 
 def _as_int(x, name: str) -> int:
@@ -400,13 +420,14 @@ def sample_ramp_report(value_at: Callable[[np.ndarray], np.ndarray], tick_start:
     y = _evaluate(value_at, (k0 + g) * tick_s)
     mg = max(1, -(-m // step))  # min interval in grid steps
     sampler = _sample_hold if model == "hold" else _sample_linear
-    starts, vals, max_err, bound, spacing_limited, rows_limited = sampler(y, g, step, tol, m, mg, max_rows)
+    starts, vals, max_err, bound, rows_limited = sampler(y, g, step, tol, m, mg, max_rows)
     ticks = np.append(k0 + g[starts], np.int64(k1)).astype(np.int64)
     values = np.append(vals, y[-1])
     within = max_err <= tol * (1 + 1e-9)
-    spacing_limited = (spacing_limited or n < m) and not within
-    return SampleReport(ticks, values, max_err, bound, tol, model, step, bool(spacing_limited),
-                        bool(rows_limited and not within))
+    rows_limited = rows_limited and not within
+    # any other shortfall comes from the row spacing (min interval, or the grid of a very long ramp)
+    spacing_limited = not within and not rows_limited
+    return SampleReport(ticks, values, max_err, bound, tol, model, step, bool(spacing_limited), bool(rows_limited))
 
 
 def sample_ramp(value_at: Callable[[np.ndarray], np.ndarray], tick_start: int, tick_end: int, tick_s: float,

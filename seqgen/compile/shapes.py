@@ -11,8 +11,10 @@ Shapes (all dimensionless; T = ramp duration in s, tau = time constant in s):
 - ``minimum_jerk``  f = 10 s^3 - 15 s^4 + 6 s^5 (zero slope and curvature at
                     both ends; the polynomial of Phys. Rev. Lett. 104, 063002 (2010))
 - ``table``         user points (s_i, f_i), s from 0 to 1, joined by monotone
-                    piecewise-cubic Hermite interpolation (SIAM J. Numer. Anal.
-                    17, 238 (1980)), which never overshoots the data.
+                    piecewise-cubic interpolation, PCHIP (monotonicity
+                    conditions: SIAM J. Numer. Anal. 17, 238 (1980); scipy's
+                    slope rule: SIAM J. Sci. Stat. Comput. 5, 300 (1984)),
+                    which never overshoots the data.
 """
 
 from __future__ import annotations
