@@ -104,9 +104,14 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document) -> list[Finding
     if v in ("minProperties", "maxProperties") and isinstance(err.instance, dict) and path and isinstance(path[-1], int):
         return [make(BAD_VALUE, f"{where}: an action must have exactly one key naming its kind, found {len(err.instance)}",
                      doc.pos(path), hint="split it into one list item per action")]
-    if err.schema is False and path and path[-1] in ("after", "with"):
-        return [make(BAD_VALUE, f"{_where(path[:-1])} has more than one anchor (at / after / with)", doc.pos(path),
-                     hint="keep exactly one of at:, after:, with:")]
+    if err.schema is False:
+        node = doc.data
+        for p in path:
+            node = node[p]
+        key = next((k for k in ("with", "after") if isinstance(node, dict) and k in node), None)
+        if key is not None:
+            return [make(BAD_VALUE, f"{where} has more than one anchor (at / after / with)", doc.pos(path + (key,)),
+                         hint="keep exactly one of at:, after:, with:")]
     if v in ("oneOf", "anyOf"):
         best = jsonschema.exceptions.best_match(err.context) if err.context else None
         if best is not None and best.validator not in ("oneOf", "anyOf"):

@@ -1,0 +1,113 @@
+"""Magnetic and optical kicks, arrival times and Stern-Gerlach separation, checked
+against handbook values, scipy.constants, hand formulas and independent ODE / Monte Carlo."""
+
+import numpy as np
+import pytest
+from scipy import constants as sc
+from scipy import integrate
+
+from seqgen.physics import kinematics as k
+
+MU_B = sc.physical_constants["Bohr magneton"][0]
+U = sc.physical_constants["atomic mass constant"][0]
+G_N = 9.80665  # exact (3rd CGPM, 1901; SI Brochure)
+M_RB87 = 86.909180531 * U  # AME2020 (from memory, /work/shared/REFERENCES.md)
+LAMBDA_D2 = 780.241209686e-9  # Steck, Rb-87 D line data
+GAMMA_D2 = 2 * np.pi * 6.0666e6  # Steck, Rb-87 D line data
+
+
+def test_rb87_d2_recoil_velocity():
+    # 5.8845 mm/s (Steck, Rb-87 D line data), quoted to 5 digits
+    assert k.recoil_velocity(LAMBDA_D2, M_RB87) == pytest.approx(5.8845e-3, rel=2e-5)
+
+
+def test_gradient_kick_hand_formula_and_sign():
+    # dv = mu b' t / m; force = mu dB/dz with mu = -dE/dB
+    mu = -MU_B  # |2,2> of Rb-87 at low field: E = +mu_B B (g_F m_F = 1), low-field seeker
+    dv = k.gradient_kick_velocity(mu, 0.2, 3e-3, M_RB87)
+    assert dv == pytest.approx(-MU_B * 0.2 * 3e-3 / M_RB87, rel=1e-14)
+    assert dv < 0  # pushed towards weaker field
+    assert k.gradient_kick_velocity(0.0, 0.2, 3e-3, M_RB87) == 0.0  # m_F = 0 is not pushed (common practice)
+
+
+def test_levitation_gradient_rb87_stretched_state():
+    # magnetic levitation of Rb-87 |2,2> (g_F m_F = 1) needs about 15.3 G/cm (from memory):
+    # the magnetic kick over 1 s then equals g_n * 1 s
+    gradient = 15.26e-2  # T/m (15.26 G/cm)
+    assert k.gradient_kick_velocity(MU_B, gradient, 1.0, M_RB87) == pytest.approx(G_N, rel=5e-3)
+
+
+def test_optical_kick_mean_and_heating():
+    s, t = 1.0, 20e-6
+    kick = k.optical_kick(GAMMA_D2, s, 0.0, t, LAMBDA_D2, M_RB87)
+    # on resonance at s = 1 the rate is Gamma/4 (steady state of the optical Bloch equations)
+    assert kick.scattering_rate == pytest.approx(GAMMA_D2 / 4, rel=1e-14)
+    assert kick.photons == pytest.approx(GAMMA_D2 / 4 * t, rel=1e-14)
+    assert kick.velocity == pytest.approx(kick.photons * sc.h / (M_RB87 * LAMBDA_D2), rel=1e-14)
+    # heating 2 E_rec per scattered photon (Adv. At. Mol. Opt. Phys. 42, 95 (2000)), E_rec = hbar^2 k^2 / 2m
+    e_rec = (sc.hbar * 2 * np.pi / LAMBDA_D2) ** 2 / (2 * M_RB87)
+    assert kick.heating_j == pytest.approx(2 * kick.photons * e_rec, rel=1e-12)
+
+
+def test_optical_kick_random_walk_against_monte_carlo():
+    # Poisson absorptions along +z, isotropic emission: simulate and compare spreads
+    rng = np.random.default_rng(12345)
+    kick = k.optical_kick(GAMMA_D2, 0.1, GAMMA_D2 / 2, 2e-6, LAMBDA_D2, M_RB87)
+    atoms = 20000
+    n = rng.poisson(kick.photons, atoms)
+    total = n.sum()
+    cos_t = rng.uniform(-1, 1, total)
+    phi = rng.uniform(0, 2 * np.pi, total)
+    sin_t = np.sqrt(1 - cos_t**2)
+    owner = np.repeat(np.arange(atoms), n)
+    vz = kick.recoil_velocity * (n + np.bincount(owner, cos_t, atoms))
+    vx = kick.recoil_velocity * np.bincount(owner, sin_t * np.cos(phi), atoms)
+    assert vz.mean() == pytest.approx(kick.velocity, rel=0.02)
+    # standard error of an RMS from 20000 samples ~ 0.5 %
+    assert vz.std() == pytest.approx(kick.rms_velocity_along, rel=0.03)
+    assert vx.std() == pytest.approx(kick.rms_velocity_transverse, rel=0.03)
+
+
+def test_time_to_reach():
+    # free fall from rest: d = g t^2 / 2
+    assert k.time_to_reach(-0.1, 0.0, -G_N) == pytest.approx(np.sqrt(2 * 0.1 / G_N), rel=1e-14)
+    assert k.time_to_reach(2e-3, 1e-2) == pytest.approx(0.2, rel=1e-14)
+    # thrown up at v against gravity: first passage at height h is (v - sqrt(v^2 - 2 g h)) / g
+    v, h = 0.5, 0.01
+    assert k.time_to_reach(h, v, -G_N) == pytest.approx((v - np.sqrt(v**2 - 2 * G_N * h)) / G_N, rel=1e-12)
+    assert k.time_to_reach(1.0, v, -G_N) == np.inf  # above the apex
+    assert k.time_to_reach(-1e-3, 1e-2) == np.inf  # moving away, no acceleration
+    assert k.time_to_reach(0.0, 3.0, 1.0) == 0.0
+    # a tiny acceleration must not lose precision (no cancellation)
+    assert k.time_to_reach(1e-3, 1e-2, 1e-15) == pytest.approx(0.1, rel=1e-12)
+    out = k.time_to_reach(np.array([-0.1, 0.2]), 0.0, -G_N)
+    assert out[0] == pytest.approx(np.sqrt(0.2 / G_N)) and out[1] == np.inf
+
+
+def test_stern_gerlach_separation_against_trajectory_integration():
+    mu1, mu2 = -MU_B / 2, MU_B / 2  # Rb-87 |2,1> and |1,1> at low field (g_F m_F = +1/2 and -1/2)
+    b, tau, tof = 0.3, 4e-3, 12e-3
+
+    def trajectory(mu):
+        def rhs(t, y):
+            force = mu * b if t < tau else 0.0
+            return [y[1], force / M_RB87 - G_N]
+        first = integrate.solve_ivp(rhs, (0, tau), [0, 0], rtol=1e-12, atol=1e-15)
+        second = integrate.solve_ivp(rhs, (tau, tau + tof), first.y[:, -1], rtol=1e-12, atol=1e-15)
+        return second.y[0, -1]
+
+    sep = k.stern_gerlach_separation(mu1, mu2, b, tau, tof, M_RB87)
+    assert sep == pytest.approx(trajectory(mu1) - trajectory(mu2), rel=1e-8)
+    # hand formula: da tau (tau/2 + tof)
+    da = (mu1 - mu2) * b / M_RB87
+    assert sep == pytest.approx(da * tau * (tau / 2 + tof), rel=1e-14)
+
+
+def test_components_resolved_rule():
+    # >= 3 combined RMS widths (common practice, no source)
+    s1, s2 = 30e-6, 40e-6  # combined 50 um
+    assert k.components_resolved(150e-6, s1, s2)
+    assert not k.components_resolved(149e-6, s1, s2)
+    assert k.components_resolved(-150e-6, s1, s2)
+    assert not k.components_resolved(150e-6, s1, s2, n_sigma=4)
+    assert list(k.components_resolved(np.array([100e-6, 200e-6]), s1, s2)) == [False, True]
