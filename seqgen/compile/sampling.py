@@ -313,6 +313,8 @@ def _sample_hold(y, g, step, tol, m, mg, max_rows):
     jump = np.concatenate(([0.0], dy))  # jump[i]: change from grid point i - 1 to i
     for _ in range(_MAX_PASSES):
         vals, err = _hold_values(y, starts, step)
+        if not np.any(err > tol):
+            break
         # a jump bigger than the tolerance inside a segment gets a row of its own
         inner = jump[:M].copy()
         inner[starts] = 0.0
@@ -361,6 +363,8 @@ def _sample_linear(y, g, step, tol, m, mg, max_rows):
     rows_limited = False
     for _ in range(_MAX_PASSES):
         err, e_pts = errors(starts)
+        if not np.any(err > limit):
+            break
         # interpolation error grows as the square of the interval; one new row goes
         # where the error peaks (a kink from a calibration table is then caught at once)
         new, capped = _refine(starts, err, limit, g, m, mg, max_rows, lambda r: np.ceil(np.sqrt(r) * 1.02),

@@ -11,7 +11,6 @@ names or absolute paths enter the files: the same input gives the same bytes.
 from __future__ import annotations
 
 import hashlib
-import io
 import json
 import os
 import shutil
@@ -35,26 +34,24 @@ class BuildExists(Exception):
     pass
 
 
-def _npy_bytes(array: np.ndarray) -> bytes:
-    buf = io.BytesIO()
-    np.lib.format.write_array(buf, np.ascontiguousarray(array), allow_pickle=False)
-    return buf.getvalue()
-
-
 def write_npz(path: Path, arrays: dict) -> None:
-    """An .npz readable by numpy.load, with fixed zip time stamps (deterministic)."""
+    """An .npz readable by numpy.load, with fixed zip time stamps (deterministic).
+
+    Arrays are streamed into the archive, so writing needs no extra copy of a table.
+    """
     with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_STORED) as zf:
         for name, arr in arrays.items():
             info = zipfile.ZipInfo(f"{name}.npy", date_time=_ZIP_DATE)
             info.external_attr = 0o644 << 16
-            zf.writestr(info, _npy_bytes(arr))
+            with zf.open(info, "w", force_zip64=True) as fh:
+                np.lib.format.write_array(fh, np.ascontiguousarray(arr), allow_pickle=False)
 
 
 def table_arrays(table: DeviceTable) -> dict:
     return {
-        "tick": table.ticks.astype(np.int64),
-        "time_s": table.ticks.astype(np.float64) * table.tick_s,
-        "values": table.values.astype(np.float64),
+        "tick": table.ticks.astype(np.int64, copy=False),
+        "time_s": table.ticks * table.tick_s,
+        "values": table.values.astype(np.float64, copy=False),
         "columns": np.array(table.columns, dtype="U"),
         "units": np.array(table.units, dtype="U"),
     }

@@ -12,7 +12,6 @@ Conventions (SI; angular frequencies in rad/s, times in s):
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
 from scipy import constants as sc
@@ -337,7 +336,8 @@ def ramsey_fringe(detuning_hz, free_time_s, pi2_duration_s=0.0):
     P = (1 + cos phi)/2, phi = 2 pi delta T_eff.
     Ideal pulses: T_eff = T. Square pulses of duration tau: T_eff = T + 4 tau / pi,
     valid for |delta| tau << 1 (finite-pulse correction of the separated-
-    oscillatory-field method, Phys. Rev. 78, 695 (1950)).
+    oscillatory-field method, Phys. Rev. 78, 695 (1950); from memory, checked
+    here against exact propagation to ~1e-9).
     """
     t_eff = np.asarray(free_time_s, dtype=float) + 4.0 * np.asarray(pi2_duration_s, dtype=float) / np.pi
     out = 0.5 * (1 + np.cos(ramsey_phase(detuning_hz, t_eff)))

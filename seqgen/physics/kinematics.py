@@ -124,5 +124,6 @@ def components_resolved(separation, sigma1, sigma2, n_sigma=3.0):
     the combined width is the RMS of the difference of the two positions).
     """
     combined = np.sqrt(np.asarray(sigma1, dtype=float) ** 2 + np.asarray(sigma2, dtype=float) ** 2)
-    out = np.abs(np.asarray(separation, dtype=float)) >= float(n_sigma) * combined
+    # 1e-12 slack: a separation of exactly n_sigma widths counts despite rounding
+    out = np.abs(np.asarray(separation, dtype=float)) >= float(n_sigma) * combined * (1 - 1e-12)
     return bool(out) if out.ndim == 0 else out

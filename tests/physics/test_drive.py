@@ -189,7 +189,7 @@ def test_ramsey_phase_and_fringe_from_bloch_propagation():
 
 
 def test_field_noise_phase_sensitivity_clock_line():
-    # Rb-87 clock line: nu = nu0 + K B^2, K = 575.15 Hz/G^2 (Steck): at 1 G, d nu/dB = 1150.3 Hz/G
+    # Rb-87 clock line: nu = nu0 + K B^2, K = 575.15 Hz/G^2 ("Rubidium 87 D Line Data" compilation): at 1 G, d nu/dB = 1150.3 Hz/G
     dnu_db = 2 * 575.15 * 1e-4 / 1e-8  # Hz/T at B = 1e-4 T
     sens = d.field_noise_phase_sensitivity(dnu_db, 10e-3)
     assert sens * 1e-4 == pytest.approx(TWO_PI * 1150.3 * 10e-3, rel=1e-5)  # rad per gauss
@@ -230,7 +230,7 @@ def test_fourier_width_blackman_against_fft():
 
 # ---------------------------------------------------------------- modulated-beam Raman drive
 
-# Rb-87 line data from /work/shared/REFERENCES.md (Steck, Rb-87 D line data)
+# Rb-87 line data from /work/shared/REFERENCES.md ("Rubidium 87 D Line Data" compilation)
 RB = dict(nuclear_spin=1.5, hyperfine_splitting_hz=6_834_682_610.904, d1_wavelength_m=794.978851156e-9,
           d2_wavelength_m=780.241209686e-9, d1_linewidth_hz=5.7500e6, d2_linewidth_hz=6.0666e6)
 

@@ -11,10 +11,10 @@ from seqgen.physics import imaging as im
 
 U = sc.physical_constants["atomic mass constant"][0]
 M_RB87 = 86.909180531 * U  # AME2020 (from memory)
-LAMBDA_D2 = 780.241209686e-9  # Steck, Rb-87 D line data
-GAMMA_D2 = 2 * np.pi * 6.0666e6  # Steck
-ISAT = 16.69  # W/m^2 = 1.669 mW/cm^2, D2 cycling transition (Steck) (from memory)
-V_REC = 5.8845e-3  # m/s (Steck)
+LAMBDA_D2 = 780.241209686e-9  # "Rubidium 87 D Line Data" compilation
+GAMMA_D2 = 2 * np.pi * 6.0666e6  # "Rubidium 87 D Line Data" compilation
+ISAT = 16.69  # W/m^2 = 1.669 mW/cm^2, D2 cycling transition ("Rubidium 87 D Line Data" compilation) (from memory)
+V_REC = 5.8845e-3  # m/s ("Rubidium 87 D Line Data" compilation)
 
 
 def test_saturation_parameter_and_gaussian_peak_intensity():
@@ -45,7 +45,7 @@ def test_scattering_rate_against_optical_bloch_steady_state():
 
 
 def test_doppler_shift_after_recoils():
-    # one recoil: Doppler shift 7.5419 kHz on Rb-87 D2 (Steck, Rb-87 D line data) (from memory)
+    # one recoil: Doppler shift 7.5419 kHz on Rb-87 D2 ("Rubidium 87 D Line Data" compilation) (from memory)
     assert im.doppler_shift_after(1, V_REC, LAMBDA_D2) == pytest.approx(7.5419e3, rel=1e-4)
     # half a linewidth (Gamma/2pi = 6.0666 MHz) after about 402 photons
     n_half = im.photons_for_doppler_shift(0.5, V_REC, LAMBDA_D2, 6.0666e6)

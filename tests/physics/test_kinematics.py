@@ -12,12 +12,12 @@ MU_B = sc.physical_constants["Bohr magneton"][0]
 U = sc.physical_constants["atomic mass constant"][0]
 G_N = 9.80665  # exact (3rd CGPM, 1901; SI Brochure)
 M_RB87 = 86.909180531 * U  # AME2020 (from memory, /work/shared/REFERENCES.md)
-LAMBDA_D2 = 780.241209686e-9  # Steck, Rb-87 D line data
-GAMMA_D2 = 2 * np.pi * 6.0666e6  # Steck, Rb-87 D line data
+LAMBDA_D2 = 780.241209686e-9  # "Rubidium 87 D Line Data" compilation
+GAMMA_D2 = 2 * np.pi * 6.0666e6  # "Rubidium 87 D Line Data" compilation
 
 
 def test_rb87_d2_recoil_velocity():
-    # 5.8845 mm/s (Steck, Rb-87 D line data), quoted to 5 digits
+    # 5.8845 mm/s ("Rubidium 87 D Line Data" compilation), quoted to 5 digits
     assert k.recoil_velocity(LAMBDA_D2, M_RB87) == pytest.approx(5.8845e-3, rel=2e-5)
 
 

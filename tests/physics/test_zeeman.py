@@ -12,11 +12,11 @@ from seqgen.physics import zeeman as z
 MU_B = sc.physical_constants["Bohr magneton"][0]
 
 # Ground hyperfine splittings from /work/shared/REFERENCES.md; g factors from the
-# alkali D-line data compilations (Rb-87: g_J = 2.00233113, g_I = -0.0009951414, Steck).
+# alkali D-line data compilations (Rb-87: g_J = 2.00233113, g_I = -0.0009951414).
 RB87 = dict(nuclear_spin=1.5, hyperfine_splitting_hz=6_834_682_610.904, g_j=2.00233113, g_i=-0.0009951414)
-# Na-23: Steck, "Sodium D Line Data" (g factors from memory)
+# Na-23: "Sodium D Line Data" compilation (g factors from memory)
 NA23 = dict(nuclear_spin=1.5, hyperfine_splitting_hz=1_771_626_128.8, g_j=2.0022960, g_i=-0.00080461)
-# Cs-133: splitting exact (SI Brochure, 9th ed., 2019); g factors Steck, "Cesium D Line Data" (from memory)
+# Cs-133: splitting exact (SI Brochure, 9th ed., 2019); g factors "Cesium D Line Data" compilation (from memory)
 CS133 = dict(nuclear_spin=3.5, hyperfine_splitting_hz=9_192_631_770.0, g_j=2.00254032, g_i=-0.00039885395)
 # K-40: inverted ground state, A = -285.7308 MHz, I = 4 -> splitting A (I + 1/2) = -1285.7886 MHz;
 # g_J = 2.00229421, g_I = +0.000176490 ("Properties of Potassium", 2011) (from memory)
@@ -74,7 +74,7 @@ def test_moment_matches_numerical_derivative_of_exact_levels(name):
 
 
 def test_rb87_clock_quadratic_coefficient():
-    # 575.15 Hz/G^2 (Steck, Rb-87 D line data); 1 G = 1e-4 T
+    # 575.15 Hz/G^2 ("Rubidium 87 D Line Data" compilation); 1 G = 1e-4 T
     k = z.quadratic_zeeman_coefficient(**RB87)
     assert k * 1e-8 == pytest.approx(575.15, abs=0.01)
     # and the full Breit-Rabi line at 1 G shifts by that much (quartic term ~ x^2/4 ~ 4e-8 relative)
@@ -85,7 +85,7 @@ def test_rb87_clock_quadratic_coefficient():
 def test_cs133_zero_field_clock_is_the_si_second():
     # 9 192 631 770 Hz exactly (SI Brochure, 9th ed., 2019)
     assert z.transition_frequency(3, 0, 4, 0, 0.0, **CS133) == 9_192_631_770.0
-    # Cs clock line quadratic Zeeman coefficient 427.45 Hz/G^2 (Steck, Cesium D line data) (from memory)
+    # Cs clock line quadratic Zeeman coefficient 427.45 Hz/G^2 ("Cesium D Line Data" compilation) (from memory)
     assert z.quadratic_zeeman_coefficient(**CS133) * 1e-8 == pytest.approx(427.45, abs=0.05)
 
 
@@ -110,7 +110,7 @@ def test_low_field_moment_is_minus_gF_mF_muB(name):
         expected = -lande(p, F) * mF * MU_B
         assert z.magnetic_moment(F, mF, 1e-9, **p) == pytest.approx(expected, abs=1e-6 * MU_B)
         assert z.lande_g_f(F, **{k: p[k] for k in ("nuclear_spin", "g_j", "g_i")}) == pytest.approx(lande(p, F), rel=1e-12)
-    # Rb-87 F = 2: g_F close to +1/2, F = 1: close to -1/2 (Steck, Rb-87 D line data)
+    # Rb-87 F = 2: g_F close to +1/2, F = 1: close to -1/2 ("Rubidium 87 D Line Data" compilation)
     assert z.lande_g_f(2, **{k: RB87[k] for k in ("nuclear_spin", "g_j", "g_i")}) == pytest.approx(0.5, abs=2e-3)
 
 
