@@ -131,3 +131,23 @@ def row_spacing(shot, compiled):
                        f"{dev.min_interval_ticks * t.tick_s * 1e6:.4g} us; first at {time * 1e3:.6g} ms "
                        f"({int(gaps[k])} ticks apart)", pos, block=block, time_s=time,
                        hint="separate the events by at least the minimum interval")
+
+
+@check("hardware.resolution", "warning", "DAC quantization error of half a least significant bit (textbook)")
+def finer_than_resolution(shot):
+    """A ramp asks for a tolerance finer than the output can resolve: with
+    `bits` over its range, a DAC output is always within half a least
+    significant bit of the wanted value, never closer. The compiled ramp then
+    deviates from the intended curve by up to half an LSB, more than the
+    tolerance asked for."""
+    seen = set()
+    for s in shot.segments:
+        out = shot.rig.outputs[s.output]
+        tol = s.tolerance if s.tolerance is not None else out.tolerance
+        if s.kind != "ramp" or tol is None or out.lsb == 0 or (s.output, s.block) in seen:
+            continue
+        if tol < out.lsb / 2:
+            seen.add((s.output, s.block))
+            yield make("hardware.resolution", f"ramp on '{out.name}' asks for {tol:.3g} {out.unit}, finer than half an LSB "
+                       f"({out.lsb / 2:.3g} {out.unit} at {out.bits} bits)", s.pos, block=s.block, time_s=s.t0,
+                       hint=f"use a tolerance of at least {out.lsb / 2:.3g} {out.unit}")

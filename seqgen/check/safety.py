@@ -28,3 +28,58 @@ def left_on(shot):
             yield make("safety.left-on", f"'{name}' ends at {s.v1:.6g} {out.phys_unit}, not its safe value {out.safe:g}",
                        s.pos, severity="error" if serious else "warning", block=s.block, time_s=s.t1,
                        hint=f"end with a set back to {out.safe:g}, or list it under end: leave_on")
+
+
+def _current_squared_integral(shot, output: str, t_end: float, window: float | None = None):
+    """Integral of I^2 dt over the sequence, and its largest value over any window of `window` seconds."""
+    from ._values import value_at
+
+    segs = [s for s in shot.segments if s.output == output]
+    edges = sorted({0.0, t_end, *(s.t0 for s in segs), *(s.t1 for s in segs)})
+    pts = []
+    for a, b in zip(edges, edges[1:]):
+        if b > a:
+            pts.append(np.linspace(a, b, 33)[:-1])  # piecewise smooth: 32 points per piece are plenty
+    t = np.concatenate(pts + [np.array([t_end])])
+    i2 = value_at(shot, output, t) ** 2
+    # values change at set times: evaluate each piece from its left end (right-continuous steps)
+    cum = np.concatenate([[0.0], np.cumsum(0.5 * (i2[1:] + i2[:-1]) * np.diff(t))])
+    total = float(cum[-1])
+    peak = None
+    if window:
+        j = np.searchsorted(t, t + window)
+        j = np.minimum(j, len(t) - 1)
+        peak = float(np.max(cum[j] - cum))
+    return total, peak
+
+
+import numpy as np  # noqa: E402
+
+
+@check("safety.coil-heating", "error", "Joule heating P = I^2 R; continuous-current rating over the "
+       "repetition period (common practice, no source)")
+def coil_heating(shot):
+    """A coil carries more RMS current over the apparatus's repetition period
+    than its continuous rating (`continuous_current`), or more I^2 t in any
+    window of `i2t_window` than its `i2t_limit`. Joule heating goes as I^2 R:
+    the RMS over a full shot cycle (sequence plus dead time until the next
+    shot, `repetition_period` of the rig) is what warms the coil. Shorten the
+    high-current pulses or lengthen the repetition period."""
+    period = max(shot.rig.repetition_period_s or shot.duration_s, shot.duration_s)
+    for coil in shot.rig.coils.values():
+        out = shot.rig.outputs.get(coil.current_channel)
+        if out is None or not any(s.output == out.name for s in shot.segments):
+            continue
+        if not coil.continuous_current and not coil.i2t_limit:
+            continue
+        total, peak = _current_squared_integral(shot, out.name, shot.duration_s, coil.i2t_window)
+        pos = next(s.pos for s in shot.segments if s.output == out.name)
+        if coil.continuous_current:
+            rms = (total / period) ** 0.5
+            if rms > coil.continuous_current:
+                yield make("safety.coil-heating", f"coil '{coil.name}' carries {rms:.3g} A RMS over the {period:.3g} s "
+                           f"repetition period, above its continuous rating {coil.continuous_current:.3g} A", pos,
+                           hint="shorten the high-current pulses or lengthen the repetition period")
+        if coil.i2t_limit and peak is not None and peak > coil.i2t_limit:
+            yield make("safety.coil-heating", f"coil '{coil.name}' reaches {peak:.3g} A^2 s within {coil.i2t_window:.3g} s, "
+                       f"above its limit {coil.i2t_limit:.3g} A^2 s", pos, hint="spread the current pulses out")

@@ -69,3 +69,42 @@ def ramp_faster_than_device(shot):
             yield make("timing.ramp-too-fast", f"ramp on '{s.output}' lasts {(s.t1 - s.t0) * 1e6:.4g} us, shorter than "
                        f"{dev.name}'s minimum interval {min_dt * 1e6:.4g} us", s.pos, block=s.block, time_s=s.t0,
                        hint=f"make it at least {min_dt * 1e6:.4g} us long, or use 'set'")
+
+
+@check("timing.latency-reorder", "error", "seqgen's own rule: compensation must keep the order of a channel's edges")
+def latency_reorders_edges(shot):
+    """With different rise and fall latencies (a mechanical shutter that opens in
+    3 ms but closes in 2 ms), moving each edge earlier by its own latency can
+    swap two edges: a pulse shorter than the difference of the latencies would
+    be commanded to close before it opens. Lengthen the pulse or use a faster
+    switch (an AOM) for short pulses."""
+    for name, out in shot.rig.outputs.items():
+        if out.latency_rise_s == out.latency_fall_s:
+            continue
+        sets = sorted((s for s in shot.segments if s.output == name and s.kind == "set"), key=lambda s: s.t0)
+        prev_value, prev_cmd, prev = out.safe, None, None
+        for s in sets:
+            lat = out.latency_rise_s if s.v1 > prev_value else (out.latency_fall_s if s.v1 < prev_value else 0.0)
+            cmd = s.t0 - lat
+            if prev_cmd is not None and cmd < prev_cmd:
+                yield make("timing.latency-reorder", f"'{name}': after latency compensation the edge at "
+                           f"{s.t0 * 1e3:.6g} ms would be commanded before the edge at {prev.t0 * 1e3:.6g} ms "
+                           f"(rise {out.latency_rise_s * 1e3:.4g} ms, fall {out.latency_fall_s * 1e3:.4g} ms)", s.pos,
+                           block=s.block, time_s=s.t0, hint="make the pulse longer than the latency difference")
+            prev_value, prev_cmd, prev = s.v1, cmd, s
+
+
+@check("hardware.jitter", "warning", "the rig file's jitter per channel (e.g. a mechanical shutter's timing spread)")
+def edges_within_jitter(shot):
+    """Two edges of one channel closer together than the channel's declared
+    timing jitter: the second may come before the first has settled, so the
+    pulse may be much shorter than written or missing."""
+    for name, out in shot.rig.outputs.items():
+        if not out.jitter_s:
+            continue
+        sets = sorted((s for s in shot.segments if s.output == name and s.kind == "set"), key=lambda s: s.t0)
+        for a, b in zip(sets, sets[1:]):
+            if 0 < b.t0 - a.t0 < out.jitter_s:
+                yield make("hardware.jitter", f"'{name}' edges {(b.t0 - a.t0) * 1e6:.4g} us apart, within its "
+                           f"{out.jitter_s * 1e6:.4g} us jitter", b.pos, block=b.block, time_s=b.t0,
+                           hint="keep edges of this channel further apart than its jitter")

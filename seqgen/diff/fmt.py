@@ -1,0 +1,62 @@
+"""Number formatting for diff reports: times in ms / us, quantities with SI prefixes."""
+
+from __future__ import annotations
+
+import math
+
+from ..resolve.units import format_value
+from .model import REL_TOL, TIME_TOL_S
+
+
+def _trim(text: str) -> str:
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return text or "0"
+
+
+def t(value: float | None) -> str:
+    """A time: 'us' below 1 ms, else 'ms' (us resolution kept: 2723.06 ms)."""
+    if value is None:
+        return "-"
+    a = abs(value)
+    if a < 0.5e-12:
+        return "0 ms"
+    if a < 1e-3:
+        return _trim(f"{value * 1e6:.4f}") + " us"
+    return _trim(f"{value * 1e3:.4f}") + " ms"
+
+
+def dt(value: float) -> str:
+    """A signed time difference."""
+    return ("+" if value >= 0 else "-") + t(abs(value))
+
+
+def q(value, unit: str = "") -> str:
+    if value is None:
+        return "-"
+    if isinstance(value, bool):
+        return str(value).lower()
+    if isinstance(value, (int, float)):
+        return format_value(float(value), unit) if unit else f"{float(value):.6g}"
+    if isinstance(value, (tuple, list)):
+        return "(" + ", ".join(q(v, unit) for v in value) + ")"
+    return str(value)
+
+
+def close(a, b, *, abs_tol: float = 0.0) -> bool:
+    """Equal within the diff's relative tolerance (recursing into tuples)."""
+    if isinstance(a, (tuple, list)) and isinstance(b, (tuple, list)):
+        return len(a) == len(b) and all(close(x, y, abs_tol=abs_tol) for x, y in zip(a, b))
+    if isinstance(a, bool) or isinstance(b, bool) or a is None or b is None:
+        return a == b
+    if isinstance(a, (int, float)) and isinstance(b, (int, float)):
+        if math.isnan(a) or math.isnan(b):
+            return math.isnan(a) and math.isnan(b)
+        return math.isclose(a, b, rel_tol=REL_TOL, abs_tol=abs_tol)
+    return a == b
+
+
+def close_t(a: float | None, b: float | None) -> bool:
+    if a is None or b is None:
+        return a is b
+    return abs(a - b) <= TIME_TOL_S

@@ -1,0 +1,156 @@
+"""Read one side of a diff: a sequence file, `REV:PATH` from git, or a build folder.
+
+A git revision is read with `git show REV:./PATH` and resolved as if it stood at
+PATH in the working tree, so the relative `rig:` and `use:` paths of the old
+text resolve against the working tree's rig and used files. A build folder is
+read through its manifest and its `.npz` tables only.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import subprocess
+from pathlib import Path
+
+import numpy as np
+
+from ..findings import Finding
+from ..model import DeviceTable
+from ..resolve.units import display_unit
+from .model import Column, Version
+
+_REV = re.compile(r"^(?P<rev>[^:]*):(?P<path>.+)$")
+_CANNOT_RUN = {"schema.file-missing", "schema.file-too-large"}
+
+
+class DiffInputError(Exception):
+    """An input cannot be read at all (the diff exits 2)."""
+
+
+def load_version(spec: str, *, text: str | None = None, path: str | None = None, label: str | None = None) -> Version:
+    """Read `spec` (file, folder or REV:PATH). With `text`, `spec` is ignored and the text is
+    resolved as if it were the file at `path` (used by the git diff driver)."""
+    if text is not None:
+        return _sequence(path or spec, text, label or spec, "git")
+    p = Path(spec)
+    if p.is_dir():
+        return load_build(p, spec)
+    if not p.exists():
+        m = _REV.match(spec)
+        if m and m.group("path") and not re.match(r"^[A-Za-z]:[\\/]", spec):
+            rev, rpath = m.group("rev"), m.group("path")
+            return _sequence(rpath, git_show(rev, rpath), spec, "git")
+        raise DiffInputError(f"cannot read {spec}: no such file, build folder or git revision (REV:PATH)")
+    return _sequence(spec, None, spec, "file")
+
+
+def git_show(rev: str, path: str) -> str:
+    """Text of PATH at revision REV (an empty REV means the index, as in `git show :PATH`)."""
+    p = Path(path)
+    folder = p.parent if str(p.parent) else Path(".")
+    attempts = []
+    if folder.is_dir() and not p.is_absolute():
+        attempts.append((folder, f"{rev}:./{p.name}"))
+    elif p.is_absolute() and folder.is_dir():
+        attempts.append((folder, f"{rev}:./{p.name}"))
+    attempts.append((Path("."), f"{rev}:{path}"))
+    last = ""
+    for cwd, obj in attempts:
+        try:
+            proc = subprocess.run(["git", "show", obj], cwd=cwd, capture_output=True, timeout=60)
+        except FileNotFoundError:
+            raise DiffInputError("git is not installed (needed to read REV:PATH)") from None
+        except subprocess.TimeoutExpired:
+            raise DiffInputError(f"git show {obj} did not finish") from None
+        if proc.returncode == 0:
+            try:
+                return proc.stdout.decode("utf-8")
+            except UnicodeDecodeError:
+                raise DiffInputError(f"{rev}:{path} is not UTF-8 text") from None
+        last = proc.stderr.decode("utf-8", "replace").strip().splitlines()[0:1]
+        last = last[0] if last else f"git show {obj} failed"
+    raise DiffInputError(f"cannot read {rev}:{path} from git: {last}")
+
+
+def _sequence(path: str, text: str | None, label: str, kind: str) -> Version:
+    from ..load.yamlsrc import LoadError
+    from ..pipeline import Result, preflight
+    from ..resolve.sequence import load_sources
+
+    if text is None:
+        try:
+            text = Path(path).read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError):
+            text = None
+    try:
+        src = load_sources(path, text=text, display=label) if text is not None else load_sources(path, display=label)
+    except LoadError as exc:
+        if exc.finding.code in _CANNOT_RUN and exc.finding.file == label:
+            raise DiffInputError(exc.finding.message) from None
+        res = Result(findings=[exc.finding])
+    else:
+        res = preflight(path, sources=src)
+    v = Version(label, kind, res.shot, res.compiled, list(res.findings), res.sources, text=text)
+    if res.shot is not None:
+        rig = res.shot.rig
+        v.params = {p.name: (p.value, display_unit(p.dims), p.text) for p in res.shot.params}
+        v.devices = {d.name: {"tick_s": d.tick_s, "output_model": d.output_model} for d in rig.devices.values()}
+        v.columns = {o.name: Column(o.name, o.device, o.kind, o.unit, o) for o in rig.outputs.values()}
+        v.duration_s = res.shot.duration_s
+    if res.compiled is not None:
+        v.tables = tuple(res.compiled.tables)
+        v.duration_s = res.compiled.duration_s
+    return v
+
+
+def load_build(folder: Path, label: str) -> Version:
+    man_path = folder / "manifest.json"
+    try:
+        man = json.loads(man_path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise DiffInputError(f"{label} is a folder without manifest.json (not a seqgen build)") from None
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise DiffInputError(f"cannot read {man_path}: {exc}") from None
+    if not isinstance(man, dict) or man.get("format") != "seqgen-build":
+        raise DiffInputError(f"{man_path} is not a seqgen build manifest")
+    v = Version(label, "build", manifest=man)
+    tables = []
+    try:
+        for dev, info in sorted((man.get("devices") or {}).items()):
+            npz = (info.get("files") or {}).get("npz", {}).get("path")
+            if not npz:
+                raise DiffInputError(f"{man_path}: device '{dev}' lists no .npz table")
+            with np.load(folder / npz, allow_pickle=False) as z:
+                ticks = np.asarray(z["tick"], dtype=np.int64)
+                values = np.asarray(z["values"], dtype=float).reshape(len(ticks), -1)
+                names = tuple(str(c) for c in z["columns"])
+                units = tuple(str(u) for u in z["units"])
+            kinds = {c["name"]: c.get("kind", "analog") for c in info.get("columns") or []}
+            tick_s = 1.0 / float(info["timebase_hz"])
+            tables.append(DeviceTable(dev, tick_s, ticks, names, values, units,
+                                      tuple(kinds.get(n, "analog") for n in names)))
+            v.devices[dev] = {"tick_s": tick_s, "output_model": info.get("output_model", "hold")}
+            for n, u in zip(names, units):
+                v.columns[n] = Column(n, dev, kinds.get(n, "analog"), u)
+    except DiffInputError:
+        raise
+    except (OSError, KeyError, ValueError, TypeError) as exc:
+        raise DiffInputError(f"cannot read the tables of build {label}: {exc}") from None
+    v.tables = tuple(tables)
+    v.duration_s = man.get("duration_s")
+    v.params = {name: (float(p["value"]), p.get("unit", ""), str(p.get("text", p["value"])))
+                for name, p in (man.get("params") or {}).items() if isinstance(p, dict) and "value" in p}
+    v.findings = [_finding(d) for d in man.get("findings_list") or [] if isinstance(d, dict)]
+    return v
+
+
+def _finding(d: dict) -> Finding:
+    keys = ("code", "severity", "message", "file", "line", "column", "block", "time_s", "hint", "accepted")
+    kw = {k: d[k] for k in keys if k in d and d[k] is not None}
+    kw.setdefault("code", "?")
+    kw.setdefault("severity", "error")
+    kw.setdefault("message", "")
+    if d.get("accepted"):
+        kw["accept_reason"] = d.get("accept_reason", "")
+    return Finding(**kw)
