@@ -49,7 +49,8 @@ def trap_stage(shot, t0, t1, n=N_SAMPLES):
     from ..physics.optical import effective_depth_with_gravity, trap_depth, trap_frequencies
 
     sp = _species(shot)
-    times = np.linspace(t0, t1, n)
+    # just before t1: a release at the ramp's end time must not count as part of the ramp
+    times = np.linspace(t0, t1 - 1e-9 * max(1.0, t1 - t0), n)
     omegas = np.full((n, 3), np.nan)
     depth_g = np.zeros(n)
     for i, beams in enumerate(_gaussian_beams(shot, times)):
@@ -266,11 +267,15 @@ def report(shot) -> list[dict]:
         if np.all(np.isfinite(w[[0, -1]])):
             f0, f1 = w[0] / (2 * math.pi), w[-1] / (2 * math.pi)
             items.append("trap frequencies " + "/".join(f"{x:.4g}" for x in f0) + " Hz -> " + "/".join(f"{x:.4g}" for x in f1) + " Hz")
-        items.append(f"depth with gravity {rep['depth_g'][0] / sc.k * 1e6:.4g} uK -> {rep['depth_g'][-1] / sc.k * 1e6:.4g} uK x k_B")
+        items.insert(0, f"beam {act.args['beam']}")
+        items.append(f"depth with gravity k_B x {rep['depth_g'][0] / sc.k * 1e6:.4g} uK -> {rep['depth_g'][-1] / sc.k * 1e6:.4g} uK")
         if rep.get("eta") is not None:
             items.append(f"eta at end {rep['eta']:.3g}")
         if rep["excitation"] is not None:
-            items.append("excitation E/E_ad-1 per axis " + ", ".join(f"{x:.2e}" for x in rep["excitation"]))
+            if rep.get("excitation_is_bound"):
+                items.append(f"excitation E/E_ad-1 <= {rep['excitation'][0]:.2g} (slow ramp: bound from max |d omega/dt|/omega^2)")
+            else:
+                items.append("excitation E/E_ad-1 per axis " + ", ".join(f"{x:.2e}" for x in rep["excitation"]))
         rows.append({"block": act.block, "kind": "trap_ramp", "time_s": act.t0, "items": items})
     for img in (a for a in shot.phys if a.kind == "image"):
         c = cloud_at_image(shot, img)

@@ -1,0 +1,52 @@
+"""Put the levels together: `diff_versions(old, new) -> DiffReport`."""
+
+from __future__ import annotations
+
+from . import outputs, preflight, rig, timeline
+from .inputs import load_version
+from .model import LEVELS, Change, DiffReport, Version
+from . import fmt
+
+
+def diff_paths(old: str, new: str) -> DiffReport:
+    """Diff two inputs given as on the command line (file, REV:PATH or build folder)."""
+    return diff_versions(load_version(old), load_version(new))
+
+
+def diff_versions(old: Version, new: Version) -> DiffReport:
+    rep = DiffReport(old, new)
+    changes: list[Change] = []
+    renames: dict = {}
+    both_shots = old.shot is not None and new.shot is not None
+    # resolved level
+    pchanges, changed_params = timeline.param_changes(old, new)
+    changes += pchanges
+    if both_shots:
+        changes += timeline.setting_changes(old.shot, new.shot)
+        bchanges, renames = timeline.block_changes(old, new, changed_params)
+        changes += bchanges
+        changes += rig.rig_changes(old.shot, new.shot)
+    else:
+        if old.manifest is not None or new.manifest is not None:
+            changes += rig.manifest_rig_changes(old.manifest, new.manifest)
+        for v in (old, new):
+            if v.kind != "build" and v.shot is None:
+                rep.notes.append(f"{v.label} did not resolve (see its findings): only findings and params are compared")
+        if old.kind == "build" or new.kind == "build":
+            rep.notes.append("a build folder carries tables, params and findings only: blocks, writes and rig details "
+                             "are compared between sequence files")
+    # output level
+    if old.tables and new.tables:
+        changes += outputs.output_changes(old, new)
+    elif (old.tables or new.tables) or (old.shot is not None or new.shot is not None):
+        rep.notes.append("output level skipped: one version has no compiled tables")
+    # preflight level
+    fchanges, unchanged = preflight.finding_changes(old.findings, new.findings, renames)
+    changes += fchanges
+    rep.unchanged_findings = unchanged
+    order = {lv: i for i, lv in enumerate(LEVELS)}
+    rep.changes = sorted(changes, key=lambda c: (order[c.level], -c.weight, c.subject, c.kind))
+    return rep
+
+
+__all__ = ["diff_paths", "diff_versions", "fmt"]

@@ -1,0 +1,83 @@
+"""Reports of a diff: text for people (grouped by level, most consequential first)
+and the JSON shape documented by schemas/diff.schema.json."""
+
+from __future__ import annotations
+
+import json
+
+from . import fmt
+from .model import LEVEL_TITLES, LEVELS, DiffReport
+
+FORMAT_VERSION = 1
+MAX_WINDOWS_TEXT = 3
+
+
+def summary(rep: DiffReport) -> dict:
+    out = {lv: len(rep.by_level(lv)) for lv in LEVELS}
+    out["total"] = len(rep.changes)
+    out["unchanged_findings"] = len(rep.unchanged_findings)
+    return out
+
+
+def to_dict(rep: DiffReport) -> dict:
+    return {
+        "format": "seqgen-diff",
+        "format_version": FORMAT_VERSION,
+        "old": rep.old.describe(),
+        "new": rep.new.describe(),
+        "identical": rep.identical,
+        "summary": summary(rep),
+        "changes": [c.to_dict() for c in rep.changes],
+        "unchanged_findings": [{"code": f.code, "severity": f.severity, "block": f.block, "message": f.message,
+                                "accepted": f.accepted} for f in rep.unchanged_findings],
+        "notes": list(rep.notes),
+    }
+
+
+def to_json(rep: DiffReport) -> str:
+    return json.dumps(to_dict(rep), indent=2, sort_keys=True, allow_nan=False, default=_default)
+
+
+def _default(o):
+    try:
+        return float(o)
+    except (TypeError, ValueError):
+        return str(o)
+
+
+_MARK = {"finding-introduced": "+", "finding-resolved": "-", "finding-changed": "~"}
+
+
+def to_text(rep: DiffReport) -> str:
+    s = summary(rep)
+    head = f"seqgen diff {rep.old.label} -> {rep.new.label}: "
+    if rep.identical:
+        lines = [head + "no differences"
+                 + (f" ({s['unchanged_findings']} finding(s) unchanged)" if s["unchanged_findings"] else "")]
+    else:
+        parts = ", ".join(f"{lv} {s[lv]}" for lv in LEVELS if s[lv])
+        lines = [head + f"{s['total']} difference(s) ({parts})"]
+    for lv in LEVELS:
+        items = rep.by_level(lv)
+        if not items and not (lv == "preflight" and rep.unchanged_findings and not rep.identical):
+            continue
+        lines.append("")
+        lines.append(LEVEL_TITLES[lv])
+        for c in items:
+            mark = _MARK.get(c.kind, "*")
+            lines.append(f"  {mark} {c.message}")
+            if c.kind == "output-differs":
+                for w in c.data["windows"][:MAX_WINDOWS_TEXT]:
+                    extra = ""
+                    if "max_deviation_physical" in w:
+                        extra = f", {fmt.q(w['max_deviation_physical'], c.data.get('physical_unit', ''))}"
+                    lines.append(f"      {fmt.t(w['start_s'])} .. {fmt.t(w['end_s'])}: max "
+                                 f"{fmt.q(w['max_deviation'], c.data['unit'])}{extra}")
+                more = c.data["window_count"] - min(MAX_WINDOWS_TEXT, len(c.data["windows"]))
+                if more > 0:
+                    lines.append(f"      ... and {more} more window(s) (--json lists them)")
+        if lv == "preflight" and rep.unchanged_findings:
+            lines.append(f"  = {len(rep.unchanged_findings)} finding(s) unchanged")
+    for n in rep.notes:
+        lines.append(f"note: {n}")
+    return "\n".join(lines) + "\n"
