@@ -1,4 +1,4 @@
-"""Command line: seqgen check | build | show | explain.
+"""Command line: seqgen check | build | show | diff | explain.
 
 Exit codes: 0 no error findings, 1 error findings, 2 the command could not
 run (usage, unreadable file, output folder exists without --force).
@@ -131,6 +131,24 @@ def cmd_explain(args) -> int:
     return EXIT_OK
 
 
+def cmd_diff(args) -> int:
+    from .diff import DiffInputError, diff_paths, to_json, to_text
+    from .diff.gitdriver import git_external_diff
+
+    if args.git:
+        return git_external_diff(args.inputs, as_json=args.json)
+    if len(args.inputs) != 2:
+        print("seqgen: diff needs two inputs: OLD NEW (files, REV:PATH or build folders)", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    try:
+        rep = diff_paths(*args.inputs)
+    except DiffInputError as exc:
+        print(f"seqgen: {exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    sys.stdout.write(to_json(rep) + "\n" if args.json else to_text(rep))
+    return EXIT_OK if rep.identical else EXIT_FINDINGS
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="seqgen", description="Author, preflight, compile and diff cold-atom run sequences.")
     p.add_argument("--version", action="version", version=f"seqgen {__version__}")
@@ -153,6 +171,14 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--physics", action="store_true", help="also list the physics predictions per stage")
     s.add_argument("--json", action="store_true", help="timeline as JSON")
     s.set_defaults(func=cmd_show)
+
+    d = sub.add_parser("diff", help="semantic diff of two versions: findings, outputs, timeline, rig")
+    d.add_argument("inputs", nargs="+", metavar="OLD NEW",
+                   help="two sequence files, git revisions REV:PATH, or build folders")
+    d.add_argument("--json", action="store_true", help="the diff as JSON (schemas/diff.schema.json)")
+    d.add_argument("--git", action="store_true",
+                   help="run as git's external diff driver (git passes PATH OLD-FILE OLD-HEX OLD-MODE NEW-FILE ...)")
+    d.set_defaults(func=cmd_diff)
 
     e = sub.add_parser("explain", help="explain a finding code (or 'all' to list them)")
     e.add_argument("code", nargs="?", help="finding code, e.g. timing.overlap")

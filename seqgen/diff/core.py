@@ -45,8 +45,16 @@ def diff_versions(old: Version, new: Version) -> DiffReport:
     changes += fchanges
     rep.unchanged_findings = unchanged
     order = {lv: i for i, lv in enumerate(LEVELS)}
-    rep.changes = sorted(changes, key=lambda c: (order[c.level], -c.weight, c.subject, c.kind))
+    rep.changes = sorted(changes, key=lambda c: (order[c.level], -round(c.weight, 6), _when(c), c.subject, c.kind))
     return rep
+
+
+def _when(c: Change) -> float:
+    for key in ("start_new_s", "start_old_s", "at_s", "start_s", "time_s"):
+        v = c.data.get(key)
+        if isinstance(v, (int, float)):
+            return float(v)
+    return 0.0
 
 
 __all__ = ["diff_paths", "diff_versions", "fmt"]

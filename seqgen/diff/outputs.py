@@ -118,7 +118,8 @@ def _column_change(name, dev, a, b, ja, jb, ca, cb, lin_a, lin_b):
     times, starts, ends, peak, arg, ua, ub = res
     end_time = float(times[-1])
     unit = b.units[jb]
-    phys = ca.output is not None and cb.output is not None
+    phys = ca.output is not None and cb.output is not None and (ca.output.calibration is not None
+                                                                or cb.output.calibration is not None)
     if phys:
         pa = to_physical(ca.output, ua)
         pb = to_physical(cb.output, ub)

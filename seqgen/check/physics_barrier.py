@@ -1,0 +1,557 @@
+"""Physics checks of `barrier` actions: transmission of the kicked cloud through
+a thin repulsive light sheet, and the spin rotation that an intensity-modulated
+sheet drives in the atoms that cross it.
+
+The model, in one place (every check below reads it from one cached analysis
+per barrier action):
+
+* Incident velocity: from the last `push` before the barrier. A magnetic push
+  gives |v| = |mu| b' tau / m with the first-order moment mu = g_F m_F mu_B of
+  the sample state (force = -dE/dz = -mu b' along the coil axis, E = +mu B);
+  only the speed is used, the sign is reported. An optical push, or a state
+  without a first-order moment, falls back to the push's `expect_velocity`.
+* Velocity spread along the path: a condensate uses the Thomas-Fermi radius R
+  along the path (trap frequencies from `sample.trap_frequencies`, else from
+  the rig's trap beams at the time of the push) and sigma_v = 1.602 hbar/(m R)
+  (`seqgen.physics.scattering.condensate_velocity_rms`); a thermal cloud
+  sqrt(k_B T / m).
+* Barrier: V(x) = V0 exp(-2 x^2 / w_y^2) along the path, V0 = (U/I) 2P/(pi w w_y)
+  with U/I the D1 + D2 light shift per intensity of the species at the beam's
+  wavelength (Adv. At. Mol. Opt. Phys. 42, 95 (2000)); `power` is the
+  time-averaged power. Single-particle, stationary 1D scattering (mean-field
+  energy of the cloud and the finite length of the pulse are not included),
+  averaged over a Gaussian velocity distribution with Gauss-Hermite quadrature.
+* Drive inside the barrier: an intensity modulation at `modulation.frequency`
+  with depth eps makes a co-propagating Raman pair that couples |F, m> to the
+  other hyperfine level at equal m; the Rabi frequency follows the local
+  intensity, Omega(x) = Omega_peak exp(-2 x^2 / w_y^2), with Omega_peak from
+  `seqgen.physics.drive.two_photon_rabi_from_modulated_beam` (vector light
+  shift, Adv. At. Mol. Opt. Phys. 42, 95 (2000)). The rig file does not state
+  the sheet's polarisation, so seqgen takes circular light (the largest
+  coupling): a warning that the drive is too strong is then conservative. The
+  partner level sees V(x) plus the differential light shift and, in the frame
+  rotating with the modulation, the internal offset h (f_0 - f_mod) (f_0 from
+  the Breit-Rabi formula at the rig's bias field). The two-component
+  stationary solver gives the transmitted spinor; the rotation angle is the
+  angle between the incident and the transmitted Bloch vectors (Larmor clock,
+  Phys. Rev. B 27, 6178 (1983)), averaged over the momentum distribution with
+  the transmitted probability as weight.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import constants as sc
+
+from ..findings import make
+from ..registry import check
+from .physics_traps import _cache, _gaussian_beams, _species
+
+DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
+N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
+GRID_HALF_WIDTH = 3.5  # grid [-3.5 w_y, 3.5 w_y]: exp(-2 * 3.5^2) = 2e-11 of V0 at its ends
+CELLS_PER_WAVELENGTH = 40  # midpoint cells per shortest local wavelength (T to about 1e-4)
+MIN_CELLS, MAX_CELLS = 128, 8192
+# beyond |delta| w_y / v = 20 the transit-time Fourier factor of a Gaussian
+# coupling, exp(-(delta w_y / v)^2 / 8), is below 1e-21: no transfer at all
+FAR_OFF_RESONANCE = 20.0
+
+
+# --------------------------------------------------------------------------
+# Small documented helpers (tested against closed forms)
+# --------------------------------------------------------------------------
+
+def barrier_height(species, wavelength_m: float, power_w: float, waist_m: float, waist_y_m: float) -> float:
+    """Peak potential (J, > 0 repulsive) of an elliptical Gaussian sheet:
+    V0 = (U/I) 2P/(pi w w_y), U/I from `seqgen.physics.optical.dipole_potential_per_intensity`
+    (Adv. At. Mol. Opt. Phys. 42, 95 (2000))."""
+    from ..physics.optical import dipole_potential_per_intensity
+
+    return float(dipole_potential_per_intensity(species, wavelength_m)) * 2.0 * power_w / (math.pi * waist_m * waist_y_m)
+
+
+def gaussian_profile(waist_y_m: float):
+    """exp(-2 x^2 / w_y^2): the intensity profile across the sheet (1/e^2 radius w_y)."""
+
+    def g(x):
+        x = np.asarray(x, dtype=float)
+        return np.exp(-2.0 * x**2 / waist_y_m**2)
+
+    return g
+
+
+def sheet_grid(waist_y_m: float, k_max: float, half_width: float = GRID_HALF_WIDTH) -> np.ndarray:
+    """Uniform cell edges over [-half_width w_y, half_width w_y] with CELLS_PER_WAVELENGTH
+    cells per wavelength 2 pi / k_max (between MIN_CELLS and MAX_CELLS)."""
+    span = 2.0 * half_width * waist_y_m
+    n = int(math.ceil(CELLS_PER_WAVELENGTH * span * k_max / (2.0 * math.pi)))
+    n = min(max(n, MIN_CELLS), MAX_CELLS)
+    return np.linspace(-0.5 * span, 0.5 * span, n + 1)
+
+
+def free_flight_rotation(rabi_peak_rad_s: float, waist_y_m: float, velocity_m_s: float) -> float:
+    """Resonant rotation of an atom crossing a Gaussian coupling profile at constant speed:
+    theta = int Omega_peak exp(-2 v^2 t^2 / w_y^2) dt = sqrt(pi/2) Omega_peak w_y / v
+    (free-flight limit of the Larmor clock, angle = Omega L / v (common practice, no source))."""
+    return math.sqrt(math.pi / 2.0) * rabi_peak_rad_s * waist_y_m / velocity_m_s
+
+
+@dataclass(frozen=True)
+class SpinRotation:
+    """Per energy: transmitted probability of the incident state, rotation angle (rad)
+    between incident and transmitted Bloch vectors, and the Larmor-clock reading."""
+
+    probability: np.ndarray
+    angle: np.ndarray
+    clock: object  # seqgen.physics.scattering.LarmorClock
+
+
+def spin_rotation(x_edges, profile, V0_j: float, rabi_peak_rad_s: float, energies_j, mass_kg: float, *,
+                  partner_shift_j: float = 0.0, partner_offset_j: float = 0.0) -> SpinRotation:
+    """Rotation of the spin of atoms transmitted through a barrier that also drives them.
+
+    Incident state = `down` of the two-component solver; the partner level is
+    `up`. Potentials: down V0 g(x), up (V0 + partner_shift) g(x) + partner_offset
+    (offset = internal energy in the rotating frame, only inside the grid: for a
+    weak coupling confined to the grid that is the same as everywhere, as long as
+    |offset| << E); coupling hbar Omega_peak g(x) / 2. Returns angles from the
+    incident pole, arctan2(sqrt(s_x^2 + s_y^2), -s_z) (no loss of precision at
+    small angles).
+    """
+    from ..physics.scattering import larmor_clock, spinor_transmission
+
+    g = profile
+
+    def v_up(x):
+        return (V0_j + partner_shift_j) * g(x) + partner_offset_j
+
+    def v_down(x):
+        return V0_j * g(x)
+
+    def omega(x):
+        return rabi_peak_rad_s * g(x)
+
+    res = spinor_transmission(x_edges, v_up, v_down, omega, 0.0, energies_j, mass_kg)
+    clock = larmor_clock(res.t, np.array([0.0, 1.0]), (1.0, 0.0, 0.0), rabi_peak_rad_s if rabi_peak_rad_s else 1.0)
+    s = clock.bloch
+    angle = np.arctan2(np.hypot(s[..., 0], s[..., 1]), -s[..., 2])
+    return SpinRotation(np.asarray(clock.probability), angle, clock)
+
+
+def path_frequency(omegas_rad_s, axes, direction) -> float:
+    """Harmonic frequency along a unit direction d: omega_d^2 = sum_j (a_j . d)^2 omega_j^2
+    (a_j the principal axes, columns of `axes`; identity for lab-frame frequencies)."""
+    d = np.asarray(direction, dtype=float)
+    d = d / np.linalg.norm(d)
+    a = np.eye(3) if axes is None else np.asarray(axes, dtype=float)
+    proj = a.T @ d
+    return float(np.sqrt(np.sum(proj**2 * np.asarray(omegas_rad_s, dtype=float) ** 2)))
+
+
+# --------------------------------------------------------------------------
+# Reading the shot
+# --------------------------------------------------------------------------
+
+def _barriers(shot):
+    return [a for a in shot.phys if a.kind == "barrier"]
+
+
+def _last_push(shot, act):
+    pushes = [a for a in shot.phys if a.kind == "push" and a.t0 <= act.t0]
+    return pushes[-1] if pushes else None
+
+
+def incident_velocity(shot, act):
+    """dict(speed, signed, direction, source, push) for the barrier action, or None."""
+    from ..physics.atoms import magnetic_moment_first_order
+
+    sp = _species(shot)
+    push = _last_push(shot, act)
+    if sp is None or push is None:
+        return None
+    args = push.args
+    direction = (1.0, 0.0, 0.0)
+    if "coil" in args:
+        direction = shot.rig.coils[args["coil"]].axis
+        s = shot.sample
+        if s.F is not None and s.mF is not None:
+            try:
+                mu = magnetic_moment_first_order(sp, s.F, s.mF)
+            except ValueError:
+                mu = 0.0
+            signed = -mu * args["gradient"] * args["duration"] / sp.mass_kg
+            if signed != 0.0:
+                return dict(speed=abs(signed), signed=signed, direction=direction, push=push,
+                            source=f"push by '{args['coil']}' on |F={s.F}, mF={s.mF}>")
+    elif "beam" in args:
+        direction = shot.rig.beams[args["beam"]].direction
+    if args.get("expect_velocity"):
+        v = float(args["expect_velocity"])
+        return dict(speed=abs(v), signed=v, direction=direction, push=push, source="expect_velocity of the push")
+    return None
+
+
+def velocity_spread(shot, time_s, direction):
+    """(sigma_v m/s, description) of the sample along `direction` at `time_s`."""
+    from ..physics.expansion import thomas_fermi
+    from ..physics.optical import find_trap_minimum
+    from ..physics.scattering import condensate_velocity_rms, thermal_velocity_rms
+
+    sp = _species(shot)
+    s = shot.sample
+    if s.condensed and s.atoms:
+        omegas = axes = None
+        if s.trap_frequencies_hz:
+            omegas = 2 * np.pi * np.asarray(s.trap_frequencies_hz, dtype=float)
+        else:
+            beams = _gaussian_beams(shot, [time_s])[0]
+            if beams:
+                try:
+                    m = find_trap_minimum(sp, beams)
+                    omegas, axes = m.omegas_rad_s, m.axes
+                except (ValueError, RuntimeError, np.linalg.LinAlgError):
+                    omegas = None
+        a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", next(iter(sp.scattering_lengths_m.values()), None))
+        if omegas is not None and np.all(np.isfinite(omegas)) and a and a > 0:
+            w_path = path_frequency(omegas, axes, direction)
+            mu, _ = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
+            radius = math.sqrt(2 * mu / (sp.mass_kg * w_path**2))
+            return float(condensate_velocity_rms(radius, sp.mass_kg)), (
+                f"condensate, Thomas-Fermi radius {radius * 1e6:.4g} um along the path")
+    if s.temperature_k:
+        return float(thermal_velocity_rms(s.temperature_k, sp.mass_kg)), f"thermal, T = {s.temperature_k * 1e9:.4g} nK"
+    return 0.0, "no spread known (sample without temperature or trap)"
+
+
+def _partner(shot, act):
+    """(initial (F, mF), partner (F, mF)) of the in-barrier drive, or (initial, None)."""
+    s = shot.sample
+    initial = (s.F, s.mF)
+    tr = act.args.get("transition")
+    if tr and len(tr) == 2:
+        a, b = (tuple(t) for t in tr)
+        if initial == b:
+            a, b = b, a
+        elif initial != a:
+            initial = a
+        return initial, b
+    sp = _species(shot)
+    i = sp.nuclear_spin
+    other = i + 0.5 if abs(s.F - (i - 0.5)) < 1e-9 else i - 0.5
+    return initial, (int(round(other)), s.mF)
+
+
+def _drive_model(shot, act, sp, beam, waist_y, speed):
+    """In-barrier coupling: dict with rabi_peak, partner offset / shift, detuning, or a reason it is absent."""
+    from ..physics.drive import two_photon_rabi_from_modulated_beam
+    from ..physics.zeeman import transition_frequency
+
+    eps = act.args.get("mod_depth")
+    if not eps or shot.sample.F is None or shot.sample.mF is None:
+        return None
+    initial, partner = _partner(shot, act)
+    out = dict(initial=initial, partner=partner, depth=float(eps))
+    if partner is None or partner[1] != initial[1]:
+        out["reason"] = (f"transition {initial} -> {partner} changes mF: a modulated beam along the quantisation "
+                         "axis couples equal mF only; rotation not computed")
+        return out
+    i_mean = 2.0 * act.args["power"] / (math.pi * beam.waist_m * waist_y)
+    try:
+        d = two_photon_rabi_from_modulated_beam(i_mean * (1.0 + eps), eps, beam.wavelength_m, m_f=initial[1],
+                                                polarization=1.0, atom=sp)
+        f = float(transition_frequency(initial[0], initial[1], partner[0], partner[1], shot.rig.bias_field_t or 0.0,
+                                       atom=sp))
+    except (ValueError, TypeError) as exc:
+        out["reason"] = f"no coupling in the drive model: {exc}"
+        return out
+    sign = 1.0 if f > 0 else -1.0
+    f_mod = act.args.get("mod_frequency")
+    detuning_hz = (f_mod - abs(f)) if f_mod else 0.0  # modulation above the bare line > 0
+    # rotating frame: the partner's internal energy is h (f - sign(f) f_mod) = -sign(f) h detuning
+    out.update(rabi_peak=d.rabi_rad_s, transition_hz=abs(f), detuning_hz=detuning_hz,
+               shift_j=sign * d.differential_light_shift_j, offset_j=-sign * sc.h * detuning_hz,
+               light_shift_hz=d.differential_light_shift_hz, assumed_resonant=not f_mod)
+    # the local line moves from the bare one (outside) to bare + differential light shift (at the peak)
+    lo, hi = detuning_hz, detuning_hz - d.differential_light_shift_hz
+    nearest = 0.0 if lo * hi <= 0 else min(abs(lo), abs(hi))
+    out["far_off"] = 2 * math.pi * nearest * waist_y / speed > FAR_OFF_RESONANCE
+    return out
+
+
+def analyse(shot, act):
+    """Cached analysis of one barrier action (see the module docstring), or None."""
+    from ..physics.scattering import average_over_momentum, transmission
+
+    key = ("barrier", act.index, act.t0)
+    cache = _cache(shot)
+    if key in cache:
+        return cache[key]
+    cache[key] = None
+    sp = _species(shot)
+    beam = shot.rig.beams.get(act.args["beam"])
+    if sp is None or shot.sample is None or beam is None or not beam.waist_m:
+        return None
+    waist_y = beam.waist_y_m or beam.waist_m
+    inc = incident_velocity(shot, act)
+    if inc is None or inc["speed"] <= 0:
+        return None
+    v = inc["speed"]
+    sigma, spread_kind = velocity_spread(shot, inc["push"].t0, inc["direction"])
+    m = sp.mass_kg
+    v0 = barrier_height(sp, beam.wavelength_m, act.args["power"], beam.waist_m, waist_y)
+    e_mean = 0.5 * m * (v**2 + sigma**2)
+    rep = dict(speed=v, signed=inc["signed"], velocity_source=inc["source"], sigma_v=sigma, spread_kind=spread_kind,
+               V0=v0, E_mean=e_mean, waist_y=waist_y, expect=act.args.get("expect", "any"))
+    if v0 <= 0:
+        rep["attractive"] = True  # red-detuned sheet: a well, not a barrier
+    drive = _drive_model(shot, act, sp, beam, waist_y, v)
+    rep["drive"] = drive
+    v_max = v + 6.0 * sigma
+    e_top = max(0.5 * m * v_max**2, abs(v0))
+    if drive and "rabi_peak" in drive and not drive["far_off"]:
+        e_top += abs(drive["offset_j"]) + abs(drive["shift_j"])
+    x = sheet_grid(waist_y, math.sqrt(2 * m * e_top) / sc.hbar)
+    profile = gaussian_profile(waist_y)
+    tiny = 1e-6 * 0.5 * m * v**2  # a node at v ~ 0: keep the energy positive
+
+    def scalar(energies):
+        return transmission(x, lambda xx: v0 * profile(xx), np.maximum(energies, tiny), m).T
+
+    try:
+        avg = average_over_momentum(scalar, v, sigma, m, n_points=N_VELOCITIES)
+    except ValueError as exc:  # barrier too opaque for double precision: nothing gets through
+        avg = None
+        rep["opaque"] = str(exc)
+    rep["T"] = avg.mean_transmission if avg else 0.0
+    rep["T_spread"] = avg.transmission_spread if avg else 0.0
+    if drive and "rabi_peak" in drive:
+        rep["free_flight_rotation"] = free_flight_rotation(drive["rabi_peak"], waist_y, v)
+        if drive["far_off"] or rep["T"] == 0.0:
+            rep["rotation"], rep["rotation_spread"] = 0.0, 0.0
+        else:
+            def spinor(energies):
+                r = spin_rotation(x, profile, v0, drive["rabi_peak"], np.maximum(energies, tiny), m,
+                                  partner_shift_j=drive["shift_j"], partner_offset_j=drive["offset_j"])
+                return r.probability, r.angle
+
+            try:
+                sav = average_over_momentum(spinor, v, sigma, m, n_points=N_VELOCITIES)
+                rep["rotation"], rep["rotation_spread"] = sav.mean_rotation, sav.rotation_spread
+            except ValueError:  # the partner channel is closed and opaque: no transfer
+                rep["rotation"], rep["rotation_spread"] = 0.0, 0.0
+    atoms = shot.sample.atoms
+    if atoms:
+        rep["N_T"] = atoms * rep["T"]
+        rep["N_R"] = atoms * (1.0 - rep["T"])
+    rep["floor"] = shot.sample.detection_floor if shot.sample.detection_floor is not None else DEFAULT_DETECTION_FLOOR
+    cache[key] = rep
+    return rep
+
+
+def _energy_text(e_j: float) -> str:
+    return f"h x {e_j / sc.h / 1e3:.4g} kHz ({e_j / sc.k * 1e9:.4g} nK x k_B)"
+
+
+def _each(shot):
+    if _species(shot) is None or shot.sample is None:
+        return
+    for act in _barriers(shot):
+        rep = analyse(shot, act)
+        if rep is not None:
+            yield act, rep
+
+
+# --------------------------------------------------------------------------
+# Checks
+# --------------------------------------------------------------------------
+
+_SRC_SCATTER = ("optical dipole potential, Adv. At. Mol. Opt. Phys. 42, 95 (2000); 1D transmission by transfer "
+                "matrices checked against the rectangular and Poeschl-Teller closed forms (Landau and Lifshitz, "
+                "Quantum Mechanics, section 25); Thomas-Fermi radius (Pethick and Smith, Bose-Einstein "
+                "Condensation in Dilute Gases)")
+
+
+@check("physics.barrier-transmission", "note", _SRC_SCATTER, stage="physics")
+def barrier_transmission(shot):
+    """The predicted transmitted fraction of a `barrier` action. seqgen takes
+    the incident speed from the preceding `push` (|mu| b' tau / m with the
+    sample state's first-order moment, or the push's `expect_velocity`), the
+    velocity spread from the sample (Thomas-Fermi condensate or thermal cloud),
+    the barrier V0 exp(-2 x^2 / w_y^2) from the beam's power, waists and
+    wavelength, solves the stationary 1D scattering problem and averages the
+    transmission over the velocity distribution. The note gives the fraction,
+    its spread over the distribution, V0 and the mean kinetic energy. It
+    describes a single atom crossing a static sheet: the cloud's mean-field
+    energy and a sheet pulse shorter than the cloud's passage are not included."""
+    for act, rep in _each(shot):
+        if rep.get("attractive"):
+            msg = f"'{act.args['beam']}' is red-detuned for {shot.sample.species}: a well, not a barrier; T = {rep['T']:.3g}"
+        else:
+            msg = (f"transmitted fraction {rep['T']:.3g} (spread {rep['T_spread']:.2g} over the momentum distribution); "
+                   f"V0 = {_energy_text(rep['V0'])}, mean kinetic energy {_energy_text(rep['E_mean'])}, "
+                   f"v = {rep['speed'] * 1e3:.4g} mm/s +/- {rep['sigma_v'] * 1e3:.2g} mm/s ({rep['spread_kind']})")
+        yield make("physics.barrier-transmission", msg, act.pos, block=act.block, time_s=act.t0,
+                   data={"transmission": rep["T"], "transmission_spread": rep["T_spread"], "V0_J": rep["V0"],
+                         "mean_kinetic_energy_J": rep["E_mean"], "velocity_m_s": rep["speed"],
+                         "velocity_spread_m_s": rep["sigma_v"]})
+
+
+@check("physics.barrier-no-signal", "warning", "atom number per image above a detection floor, default 100 atoms "
+       "(common practice, no source); transmission as in physics.barrier-transmission", stage="physics")
+def barrier_no_signal(shot):
+    """Too few atoms on one side of the barrier to be seen: the predicted
+    transmitted number (sample atoms x transmitted fraction) is below the
+    detection floor (`sample: {detection_floor: ...}`, default 100 atoms), or,
+    unless the barrier `expect`s `over_barrier`, the reflected number is. A
+    fraction read from an image where one part is invisible carries no
+    information. Lower or raise the sheet power, or change the kick."""
+    for act, rep in _each(shot):
+        if "N_T" not in rep:
+            continue
+        floor = rep["floor"]
+        side = None
+        if rep["N_T"] < floor:
+            side, n, fix = "transmitted", rep["N_T"], "lower the sheet power or kick harder"
+        elif rep["N_R"] < floor and rep["expect"] != "over_barrier":
+            side, n, fix = "reflected", rep["N_R"], "raise the sheet power or kick less"
+        if side:
+            yield make("physics.barrier-no-signal", f"only {n:.3g} {side} atoms predicted (transmitted fraction "
+                       f"{rep['T']:.3g} of {shot.sample.atoms:.3g}); detection floor {floor:g} atoms", act.pos,
+                       block=act.block, time_s=act.t0, hint=fix, data={"atoms": n, "floor": floor})
+
+
+@check("physics.not-tunnelling", "warning", "classical turning point: transmission below the barrier top is "
+       "tunnelling (any quantum mechanics text)", stage="physics")
+def not_tunnelling(shot):
+    """The barrier's `expect:` does not match the energies: `expect: tunnelling`
+    but the mean kinetic energy m <v^2> / 2 of the incident atoms is above the
+    barrier top V0 (the atoms pass over it classically), or
+    `expect: over_barrier` but it is below V0. Change the sheet power or the
+    kick, or correct `expect`."""
+    for act, rep in _each(shot):
+        e, v0, want = rep["E_mean"], rep["V0"], rep["expect"]
+        if want == "tunnelling" and e >= v0:
+            yield make("physics.not-tunnelling", f"expect: tunnelling, but the mean kinetic energy {_energy_text(e)} "
+                       f"is above the barrier top {_energy_text(v0)}", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"raise the sheet power above {act.args['power'] * e / v0 * 1e3:.3g} mW or kick less"
+                       if v0 > 0 else "use a blue-detuned sheet", data={"E_J": e, "V0_J": v0})
+        elif want == "over_barrier" and e < v0:
+            yield make("physics.not-tunnelling", f"expect: over_barrier, but the mean kinetic energy {_energy_text(e)} "
+                       f"is below the barrier top {_energy_text(v0)}", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"lower the sheet power below {act.args['power'] * e / v0 * 1e3:.3g} mW or kick harder",
+                       data={"E_J": e, "V0_J": v0})
+
+
+_SRC_DRIVE = ("modulated-beam Raman coupling via the vector light shift, Adv. At. Mol. Opt. Phys. 42, 95 (2000); "
+              "two-component scattering and Larmor clock, Sov. J. Nucl. Phys. 4, 182 (1967), Phys. Rev. B 27, 6178 (1983); "
+              "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)")
+
+
+def _rotation_text(rep):
+    d = rep["drive"]
+    txt = (f"rotation of the transmitted spin {rep['rotation']:.3g} rad (spread {rep['rotation_spread']:.2g}) on "
+           f"|F={d['initial'][0]}, mF={d['initial'][1]}> -> |F={d['partner'][0]}, mF={d['partner'][1]}>; peak Rabi frequency "
+           f"2 pi x {d['rabi_peak'] / (2 * math.pi):.4g} Hz (circular polarisation assumed), "
+           f"detuning {d['detuning_hz'] / 1e3:.4g} kHz from the bare line")
+    return txt + (" (no modulation frequency: taken on resonance)" if d["assumed_resonant"] else "")
+
+
+def _with_rotation(shot):
+    for act, rep in _each(shot):
+        if rep.get("drive") and "rotation" in rep:
+            yield act, rep
+
+
+@check("physics.barrier-rotation", "note", _SRC_DRIVE, stage="physics")
+def barrier_rotation(shot):
+    """The spin rotation that an intensity-modulated barrier drives in the
+    atoms it transmits. The modulation couples the sample state to the other
+    hyperfine level at equal mF with a Rabi frequency that follows the local
+    intensity, Omega(x) = Omega_peak exp(-2 x^2 / w_y^2); seqgen solves the
+    two-component scattering problem (differential light shift and detuning
+    from the Breit-Rabi line at the rig's bias field included) and reports the
+    angle between the incident and the transmitted Bloch vectors, averaged over
+    the momentum distribution with the transmitted probability as weight. The
+    rig file does not give the sheet's polarisation; circular light (the
+    largest coupling) is assumed."""
+    for act, rep in _each(shot):
+        d = rep.get("drive")
+        if not d:
+            continue
+        if "reason" in d:
+            yield make("physics.barrier-rotation", d["reason"], act.pos, block=act.block, time_s=act.t0)
+            continue
+        yield make("physics.barrier-rotation", _rotation_text(rep), act.pos, block=act.block, time_s=act.t0,
+                   data={"rotation_rad": rep["rotation"], "rotation_spread_rad": rep["rotation_spread"],
+                         "rabi_peak_rad_s": d["rabi_peak"], "detuning_hz": d["detuning_hz"]})
+
+
+@check("physics.drive-too-strong", "warning", _SRC_DRIVE + "; weak-probe regime (common practice, no source)",
+       stage="physics")
+def drive_too_strong(shot):
+    """The drive inside the barrier rotates the transmitted spin by more than
+    `limits: {weak_probe_angle: ...}` (default 0.3 rad). A weak probe reads the
+    time the atoms spend in the barrier in linear response; a strong drive
+    changes the scattering itself (the two dressed states see different
+    barriers) and the rotation no longer measures that time. Lower the
+    modulation depth or the sheet power."""
+    lim = shot.limits.weak_probe_angle
+    for act, rep in _with_rotation(shot):
+        if rep["rotation"] > lim:
+            yield make("physics.drive-too-strong", f"the modulated barrier rotates the transmitted spin by "
+                       f"{rep['rotation']:.3g} rad, above the weak-probe limit {lim:g} rad", act.pos, block=act.block,
+                       time_s=act.t0, hint=f"lower the modulation depth to about {rep['drive']['depth'] * lim / rep['rotation'] * 0.8:.2g}",
+                       data={"rotation_rad": rep["rotation"], "limit_rad": lim})
+
+
+@check("physics.rotation-unresolvable", "warning", _SRC_DRIVE + "; atom shot noise 1/sqrt(N) of a spin-rotation "
+       "measurement (quantum projection noise, Phys. Rev. A 47, 3554 (1993), from memory)", stage="physics")
+def rotation_unresolvable(shot):
+    """The spin rotation driven inside the barrier is smaller than the atom
+    shot noise of the transmitted atoms, about 1/sqrt(N_transmitted) rad, so
+    one shot cannot resolve it. Usual causes: a modulation frequency off the
+    transition (the message gives the detuning), a modulation depth too small,
+    or too few transmitted atoms."""
+    for act, rep in _with_rotation(shot):
+        n = rep.get("N_T")
+        if not n:
+            continue
+        noise = 1.0 / math.sqrt(max(n, 1.0))
+        if rep["rotation"] < noise:
+            d = rep["drive"]
+            off = abs(d["detuning_hz"]) * 2 * math.pi * rep["waist_y"] / rep["speed"] > 3.0
+            hint = (f"tune the modulation to the line at {d['transition_hz'] / 1e9:.7g} GHz"
+                    if off else "raise the modulation depth, or transmit more atoms")
+            yield make("physics.rotation-unresolvable", f"rotation {rep['rotation']:.3g} rad of the transmitted spin is below "
+                       f"the shot noise {noise:.3g} rad of {n:.3g} transmitted atoms (detuning "
+                       f"{d['detuning_hz'] / 1e3:.4g} kHz)", act.pos, block=act.block, time_s=act.t0, hint=hint,
+                       data={"rotation_rad": rep["rotation"], "noise_rad": noise})
+
+
+# --------------------------------------------------------------------------
+# `seqgen show --physics`
+# --------------------------------------------------------------------------
+
+def report(shot) -> list[dict]:
+    rows = []
+    for act, rep in _each(shot):
+        direction = "+" if rep["signed"] > 0 else "-"
+        items = [f"incident {rep['speed'] * 1e3:.4g} mm/s ({rep['velocity_source']}; along {direction} its axis), "
+                 f"spread {rep['sigma_v'] * 1e3:.2g} mm/s ({rep['spread_kind']})",
+                 f"barrier V0 {_energy_text(rep['V0'])}, mean kinetic energy {_energy_text(rep['E_mean'])}",
+                 f"transmitted fraction {rep['T']:.3g} (spread {rep['T_spread']:.2g})"]
+        if "N_T" in rep:
+            items.append(f"transmitted atoms {rep['N_T']:.3g}, reflected {rep['N_R']:.3g} (floor {rep['floor']:g})")
+        d = rep.get("drive")
+        if d and "reason" in d:
+            items.append(d["reason"])
+        elif d and "rotation" in rep:
+            items.append(_rotation_text(rep))
+            items.append(f"free-flight rotation (no barrier) {rep['free_flight_rotation']:.3g} rad")
+            if rep.get("N_T"):
+                items.append(f"shot-noise angle 1/sqrt(N_T) {1 / math.sqrt(max(rep['N_T'], 1.0)):.3g} rad")
+        rows.append({"block": act.block, "kind": "barrier", "time_s": act.t0, "items": items})
+    return rows
