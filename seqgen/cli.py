@@ -25,7 +25,8 @@ def _caution() -> str:
     return "caution: " + CAUTION
 
 
-def _report(res, args, out=sys.stdout) -> int:
+def _report(res, args, out=None) -> int:
+    out = out or sys.stdout  # looked up per call, so redirection (and tests) see the output
     if getattr(args, "json", False):
         out.write(json.dumps({"file": args.file, "summary": summary(res.findings),
                               "findings": [f.to_dict() for f in res.findings]}, indent=2, sort_keys=True) + "\n")
@@ -48,17 +49,67 @@ def _exit_code(res, file) -> int:
 def cmd_check(args) -> int:
     from .pipeline import preflight
 
-    res = preflight(args.file)
+    scan = _plan_scan(args)
+    if scan.is_scan:
+        return _scan_run(scan, args, build=False)
+    res = preflight(args.file, sources=scan.sources)
     return _report(res, args)
+
+
+def _plan_scan(args):
+    """The scan plan of a file that scans params (parsed and validated once); see seqgen/batch.py."""
+    from .batch import plan_scan
+
+    return plan_scan(args.file)
+
+
+def _scan_run(scan, args, *, build: bool) -> int:
+    """check / build of a scanned sequence: every shot, then a per-code summary of param ranges."""
+    from .batch import BuildExists, ClusterUnavailable, report_text, run_scan, scan_json
+    from .findings import has_errors
+
+    if scan.plan is None or has_errors(scan.findings):  # the scan itself cannot be expanded
+        if args.json:
+            print(json.dumps(scan_json(scan), indent=2, sort_keys=True))
+        else:
+            for f in scan.findings:
+                print(format_text(f))
+            s = summary(scan.findings)
+            print(f"{args.file}: {s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s)")
+            if build:
+                print("build not written: fix the errors above")
+            print(_caution())
+        return EXIT_FINDINGS
+    try:
+        run_scan(scan, out=args.output if build else None, force=getattr(args, "force", False), jobs=args.jobs,
+                 cluster=args.cluster, progress=sys.stderr.isatty() and not args.json)
+    except (BuildExists, ClusterUnavailable) as exc:
+        print(f"seqgen: {exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    except OSError as exc:
+        print(f"seqgen: cannot write the scan to {args.output}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    if args.json:
+        print(json.dumps(scan_json(scan), indent=2, sort_keys=True))
+    else:
+        print(report_text(scan, built=build))
+        print(_caution())
+    return EXIT_OK if scan.ok else EXIT_FINDINGS
 
 
 def cmd_build(args) -> int:
     from .emit.build import BuildExists, write_build
     from .pipeline import preflight
 
-    res = preflight(args.file)
-    if not res.ok:
+    scan = _plan_scan(args)
+    if scan.is_scan:
+        return _scan_run(scan, args, build=True)
+    res = preflight(args.file, sources=scan.sources)
+    if not res.ok or res.compiled is None:
         code = _report(res, args)
+        if res.ok:  # a fragment: nothing to build on its own
+            print("nothing to build: a fragment is built as part of the sequences that use it")
+            return EXIT_CANNOT_RUN
         if not args.json:
             print("build not written: fix the errors above (or accept them in the sequence file with a reason)")
         return code
@@ -113,6 +164,7 @@ def cmd_show(args) -> int:
 
 
 def cmd_explain(args) -> int:
+    from . import batch  # noqa: F401  (declares the scan codes)
     from .registry import CODES, _load_all, close_codes, explain
 
     if args.code in (None, "all"):
@@ -149,6 +201,13 @@ def cmd_diff(args) -> int:
     return EXIT_OK if rep.identical else EXIT_FINDINGS
 
 
+def _scan_options(p) -> None:
+    p.add_argument("--jobs", type=int, default=None, metavar="N",
+                   help="scanned sequences: worker processes (default: every core)")
+    p.add_argument("--cluster", default=None, metavar="ADDRESS",
+                   help="scanned sequences: run the shots on a dask.distributed scheduler, e.g. tcp://host:8786")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="seqgen", description="Author, preflight, compile and diff cold-atom run sequences.")
     p.add_argument("--version", action="version", version=f"seqgen {__version__}")
@@ -157,6 +216,7 @@ def build_parser() -> argparse.ArgumentParser:
     c = sub.add_parser("check", help="preflight a sequence: schema, timing, hardware, safety, physics")
     c.add_argument("file", help="sequence file (.yaml)")
     c.add_argument("--json", action="store_true", help="findings as JSON")
+    _scan_options(c)
     c.set_defaults(func=cmd_check)
 
     b = sub.add_parser("build", help="preflight and compile a sequence into a build folder")
@@ -164,6 +224,7 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("-o", "--output", required=True, help="build folder to write")
     b.add_argument("--force", action="store_true", help="replace an existing build folder")
     b.add_argument("--json", action="store_true", help="summary as JSON")
+    _scan_options(b)
     b.set_defaults(func=cmd_build)
 
     s = sub.add_parser("show", help="print the resolved timeline")

@@ -227,19 +227,22 @@ def velocity_spread(shot, time_s, direction):
 
 
 def _partner(shot, act):
-    """(initial (F, mF), partner (F, mF)) of the in-barrier drive, or (initial, None)."""
+    """(initial (F, mF), partner (F, mF) or None) of the in-barrier drive.
+
+    The initial level is the sample state; the partner is the other state of
+    the modulation's `transition`, or by default the other hyperfine level at
+    equal mF."""
     s = shot.sample
     initial = (s.F, s.mF)
     tr = act.args.get("transition")
     if tr and len(tr) == 2:
         a, b = (tuple(t) for t in tr)
+        if initial == a:
+            return initial, b
         if initial == b:
-            a, b = b, a
-        elif initial != a:
-            initial = a
-        return initial, b
-    sp = _species(shot)
-    i = sp.nuclear_spin
+            return initial, a
+        return initial, None
+    i = _species(shot).nuclear_spin
     other = i + 0.5 if abs(s.F - (i - 0.5)) < 1e-9 else i - 0.5
     return initial, (int(round(other)), s.mF)
 
@@ -254,7 +257,11 @@ def _drive_model(shot, act, sp, beam, waist_y, speed):
         return None
     initial, partner = _partner(shot, act)
     out = dict(initial=initial, partner=partner, depth=float(eps))
-    if partner is None or partner[1] != initial[1]:
+    if partner is None:
+        out["reason"] = (f"the sample state |F={initial[0]}, mF={initial[1]}> is not in the modulation's transition: "
+                         "the drive does not act on it; rotation not computed")
+        return out
+    if partner[1] != initial[1]:
         out["reason"] = (f"transition {initial} -> {partner} changes mF: a modulated beam along the quantisation "
                          "axis couples equal mF only; rotation not computed")
         return out
@@ -352,7 +359,9 @@ def analyse(shot, act):
 
 
 def _energy_text(e_j: float) -> str:
-    return f"h x {e_j / sc.h / 1e3:.4g} kHz ({e_j / sc.k * 1e9:.4g} nK x k_B)"
+    t = e_j / sc.k
+    temp = f"{t * 1e9:.4g} nK" if abs(t) < 1e-6 else f"{t * 1e6:.4g} uK"
+    return f"h x {e_j / sc.h / 1e3:.4g} kHz ({temp} x k_B)"
 
 
 def _each(shot):
@@ -456,6 +465,8 @@ def _rotation_text(rep):
            f"|F={d['initial'][0]}, mF={d['initial'][1]}> -> |F={d['partner'][0]}, mF={d['partner'][1]}>; peak Rabi frequency "
            f"2 pi x {d['rabi_peak'] / (2 * math.pi):.4g} Hz (circular polarisation assumed), "
            f"detuning {d['detuning_hz'] / 1e3:.4g} kHz from the bare line")
+    if d["far_off"]:
+        txt += " (far off resonance for the transit time: no transfer)"
     return txt + (" (no modulation frequency: taken on resonance)" if d["assumed_resonant"] else "")
 
 

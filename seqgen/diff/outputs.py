@@ -2,9 +2,10 @@
 
 Both tables of a device are evaluated on the union of their ticks (hold model:
 forward fill with `searchsorted`; a linear-output device interpolates), all in
-numpy. A column differs where the two values are at least one output code
-apart (more than half the channel's resolution `Output.lsb`; 0.5 for a digital
-line; a relative 1e-9 of the range for an unquantized output). Windows of
+numpy. A column differs where the two values are more than the channel's
+resolution apart (`Output.lsb`, one output code: a one-code difference is
+sampling, not a change; 0.5 on a digital line; a relative 1e-9 of the range
+for an unquantized output or a build folder, whose manifest has no resolution). Windows of
 consecutive differing rows are reported with their maximum deviation, in
 output units and, through each version's calibration, in physical units.
 """
@@ -21,12 +22,14 @@ MAX_WINDOWS = 200  # listed per output in the JSON report (all are counted)
 
 
 def tolerance(ca: Column, cb: Column, va: np.ndarray, vb: np.ndarray) -> float:
+    """Differences above this count: more than one output code (Output.lsb) of the coarser version, more than
+    half a level on a digital line, and a relative 1e-9 of the range on an unquantized output."""
     if "digital" in (ca.kind, cb.kind):
         return 0.5
     lsbs = [c.output.lsb for c in (ca, cb) if c.output is not None]
     lsb = max(lsbs) if lsbs else 0.0
     if lsb > 0:
-        return 0.5 * lsb
+        return lsb * (1 + 1e-6)
     spans = [c.output.hi - c.output.lo for c in (ca, cb) if c.output is not None]
     span = max(spans) if spans else float(max(np.ptp(va) if len(va) else 0.0, np.ptp(vb) if len(vb) else 0.0, 1.0))
     return 1e-9 * span

@@ -79,10 +79,13 @@ def rig_changes(old_shot, new_shot) -> list:
             add("device", d, f"device {d} " + ("added" if a is None else "removed"), None if a is None else d,
                 None if b is None else d, outs)
             continue
-        for f, unit in (("timebase_hz", "Hz"), ("min_interval_ticks", None), ("memory_depth", None), ("output_model", None)):
-            x, y = getattr(a, f), getattr(b, f)
+        for f, unit in (("timebase_hz", "Hz"), ("min_interval_s", "s"), ("memory_depth", None), ("output_model", None)):
+            if f == "min_interval_s":  # compared in seconds: a new timebase alone changes the tick count
+                x, y = a.min_interval_ticks * a.tick_s, b.min_interval_ticks * b.tick_s
+            else:
+                x, y = getattr(a, f), getattr(b, f)
             if not fmt.close(x, y):
-                xs, ys = (fmt.q(x, unit), fmt.q(y, unit)) if unit else (str(x), str(y))
+                xs, ys = (fmt.t(x), fmt.t(y)) if unit == "s" else ((fmt.q(x, unit), fmt.q(y, unit)) if unit else (str(x), str(y)))
                 add("device", f"{d}.{f}", f"device {d}: {f} {xs} -> {ys}", xs, ys, outs)
     # channels and their outputs
     for ch in sorted(set(ra.channels) - set(rb.channels)):

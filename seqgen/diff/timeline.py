@@ -191,7 +191,8 @@ def param_changes(old: Version, new: Version) -> tuple[list, set]:
         via = sorted((deps_new.get(name, set()) | deps_old.get(name, set())) & changed)
         written = f"{a[2]} -> {b[2]}" if a[2] != b[2] else f"{a[2]} (unchanged text)"
         values = f"{fmt.q(a[0], a[1])} -> {fmt.q(b[0], b[1])}"
-        msg = f"param {name}: {written}" + ("" if values == written else f" = {values}")
+        simple = all(_is_plain_quantity(x[2]) for x in (a, b))
+        msg = f"param {name}: {written}" + ("" if simple or values == written else f" = {values}")
         if via:
             msg += f" (via {', '.join(via)})"
         data = {"old": {"value": a[0], "unit": a[1], "text": a[2]}, "new": {"value": b[0], "unit": b[1], "text": b[2]},
@@ -199,6 +200,15 @@ def param_changes(old: Version, new: Version) -> tuple[list, set]:
         changes.append(Change("resolved", "param-changed", name, msg, fmt.q(a[0], a[1]), fmt.q(b[0], b[1]),
                               60 if a[2] != b[2] else 52, data))
     return changes, changed
+
+
+def _is_plain_quantity(text) -> bool:
+    from ..resolve.units import UnitError, parse_simple
+
+    try:
+        return parse_simple(str(text)) is not None
+    except UnitError:
+        return False
 
 
 def _plain(obj) -> dict:
@@ -436,24 +446,32 @@ def _describe(r, unit) -> str:
 def _actions(xa: BlockView, xb: BlockView) -> list:
     out = []
     block = xb.name
-    ka, kb = [k for k, _ in xa.actions], [k for k, _ in xb.actions]
+    ka, kb = [_action_id(k, a) for k, a in xa.actions], [_action_id(k, a) for k, a in xb.actions]
     sm = difflib.SequenceMatcher(None, ka, kb, autojunk=False)
     for tag, i1, i2, j1, j2 in sm.get_opcodes():
         pa, pb = xa.actions[i1:i2], xb.actions[j1:j2]
-        for (k1, a1), (k2, a2) in zip(pa, pb):
+        for (k1, a1), (k2, a2), n2 in zip(pa, pb, kb[j1:j2]):
             diffs = {n: (a1.get(n), a2.get(n)) for n in sorted(set(a1) | set(a2)) if not fmt.close(a1.get(n), a2.get(n), abs_tol=1e-15)}
             if k1 != k2:
                 diffs = {"kind": (k1, k2), **diffs}
             if diffs:
                 text = "; ".join(f"{n} {fmt.q(v1, _ARG_UNITS.get(n, ''))} -> {fmt.q(v2, _ARG_UNITS.get(n, ''))}"
                                  for n, (v1, v2) in diffs.items())
-                out.append(Change("resolved", "action-changed", f"{block}/{k2}", f"{block}: {k2}: {text}", None, None, 44,
+                out.append(Change("resolved", "action-changed", f"{block}/{n2}", f"{block}: {n2}: {text}", None, None, 44,
                                   {"block": block, "action": k2,
                                    "fields": {n: [_json(v1), _json(v2)] for n, (v1, v2) in diffs.items()}}))
-        for k, _ in pa[len(pb):]:
-            out.append(Change("resolved", "action-removed", f"{block}/{k}", f"{block}: {k} removed", k, None, 46,
+        for (k, _), n in zip(pa[len(pb):], ka[i1 + len(pb):i2]):
+            out.append(Change("resolved", "action-removed", f"{block}/{n}", f"{block}: {n} removed", n, None, 46,
                               {"block": block, "action": k}))
-        for k, _ in pb[len(pa):]:
-            out.append(Change("resolved", "action-added", f"{block}/{k}", f"{block}: {k} added", None, k, 46,
+        for (k, _), n in zip(pb[len(pa):], kb[j1 + len(pa):j2]):
+            out.append(Change("resolved", "action-added", f"{block}/{n}", f"{block}: {n} added", None, n, 46,
                               {"block": block, "action": k}))
     return out
+
+
+def _action_id(kind: str, args: dict) -> str:
+    """'trap_ramp cross_a': the action kind and the rig thing it drives (to tell two actions of a block apart)."""
+    for key in ("beam", "coil", "drive", "setup"):
+        if isinstance(args.get(key), str):
+            return f"{kind} {args[key]}"
+    return kind

@@ -48,6 +48,13 @@ DUPLICATE_BLOCK = declare("schema.duplicate-block", "error", """
     are how anchors and acceptances refer to blocks, so they must be unique.""", S, "resolve")
 USE_CYCLE = declare("schema.use-cycle", "error", """
     Files that `use` each other in a circle. The message lists the chain.""", S, "resolve")
+USE_OUTSIDE_ROOT = declare("schema.use-outside-root", "error", """
+    A `use:` entry names a file outside the project root: the nearest folder
+    above the top-level sequence that holds a pyproject.toml, .git or
+    seqgen.toml (else the sequence's own folder). Refused so that a sequence
+    cannot pull in files from elsewhere on the machine by `../` or an absolute
+    path. Move the file into the project, or allow it explicitly with
+    `--allow-outside-root` or the environment variable SEQGEN_ALLOW_OUTSIDE=1.""", S, "load")
 CAL_NOT_MONOTONIC = declare("schema.calibration-not-monotonic", "error", """
     A calibration table whose physical or output column is not strictly
     monotonic cannot be inverted: one output value would map to two physical
@@ -66,3 +73,7 @@ BAD_ANCHOR = declare("timing.bad-anchor", "error", """
     `after: NAME + 5 ms`, `with: NAME`, `with: NAME + 2 ms`.""", S, "resolve")
 BAD_SAMPLE = declare("schema.bad-sample", "error", """
     The sample names an unknown species or an impossible state (|mF| > F).""", S, "resolve")
+FRAGMENT = declare("schema.fragment", "note", """
+    The file says `fragment: true`: it holds blocks and params for other
+    sequences to `use` and names no rig, so it is only checked for syntax
+    and schema on its own. Check the sequences that use it for the rest.""", S, "resolve")

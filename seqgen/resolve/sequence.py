@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import os
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -58,8 +59,12 @@ def _display(path: Path) -> str:
         return str(path)
 
 
-def load_sources(path: str | Path, text: str | None = None, display: str | None = None) -> Sources:
-    """Load and validate a sequence, the files it uses, and its rig."""
+def load_sources(path: str | Path, text: str | None = None, display: str | None = None, *,
+                 allow_outside_root: bool | None = None) -> Sources:
+    """Load and validate a sequence, the files it uses, and its rig.
+
+    `allow_outside_root`: let `use:` name files outside the project root (None: the
+    SEQGEN_ALLOW_OUTSIDE environment variable decides)."""
     from ..load.yamlsrc import load_text
 
     p = Path(path)
@@ -71,7 +76,7 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
     if not _check_top(main, src.findings, "seqgen", E.VERSION):
         return src
     src.findings += validate_document(main, SEQUENCE_SCHEMA)
-    _load_uses(main, p.parent, [p.resolve()], src)
+    _load_uses(main, p.parent, [p.resolve()], src, allow_outside_root)
     rig_text = main.data.get("rig")
     if isinstance(rig_text, str):
         rig_path = (p.parent / rig_text)
@@ -87,9 +92,12 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
         if _check_top(rig, src.findings, "seqgen_rig", E.VERSION):
             src.findings += validate_document(rig, RIG_SCHEMA)
             src.rig = rig
+    elif main.data.get("fragment") is True:
+        src.findings.append(make(E.FRAGMENT, "fragment file: checked for syntax and schema; its params, blocks "
+                                 "and physics are checked in the sequences that use it", main.pos(("fragment",))))
     elif "rig" not in main.data:
         src.findings.append(make(E.MISSING_KEY_RIG, "the sequence names no rig", main.pos(()),
-                                 hint="add 'rig: rigs/<your rig>.yaml'"))
+                                 hint="add 'rig: rigs/<your rig>.yaml', or 'fragment: true' for a file of shared blocks"))
     return src
 
 
@@ -113,15 +121,47 @@ def _check_top(doc: Document, findings: list, key: str, code: str) -> bool:
     return True
 
 
-def _load_uses(doc: Document, folder: Path, chain: list, src: Sources) -> None:
+_ROOT_MARKERS = ("pyproject.toml", ".git", "seqgen.toml")
+
+
+def project_root(top: Path) -> Path:
+    """The nearest ancestor folder of the top-level sequence holding pyproject.toml, .git or seqgen.toml
+    (else the sequence's own folder): `use:` may not leave it unless allowed."""
+    for folder in top.parents:
+        if any((folder / m).exists() for m in _ROOT_MARKERS):
+            return folder
+    return top.parent
+
+
+def _outside_allowed(flag: bool | None) -> bool:
+    if flag is not None:
+        return bool(flag)
+    return os.environ.get("SEQGEN_ALLOW_OUTSIDE", "").strip().lower() in ("1", "true", "yes")
+
+
+def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_outside_root: bool | None = None) -> None:
     uses = doc.data.get("use") if isinstance(doc.data, dict) else None
     if not isinstance(uses, list):
         return
+    root = project_root(chain[0])
     for i, entry in enumerate(uses):
         if not isinstance(entry, dict) or not isinstance(entry.get("file"), str):
             continue
         target = (folder / entry["file"])
-        resolved = target.resolve()
+        try:
+            resolved = target.resolve()
+        except (RuntimeError, OSError) as exc:  # a symlink loop (RuntimeError before Python 3.13)
+            src.findings.append(make("schema.file-missing", f"used file '{entry['file']}' cannot be read: {exc}",
+                                     doc.pos(("use", i, "file")), hint="the path is a symbolic link loop; fix the link"))
+            continue
+        if not resolved.is_relative_to(root) and not _outside_allowed(allow_outside_root):
+            shown = _display(root)
+            shown = "(the current folder)" if shown == "." else f"'{shown}'"
+            src.findings.append(make(E.USE_OUTSIDE_ROOT, f"used file '{entry['file']}' is outside the project root {shown}",
+                                     doc.pos(("use", i, "file")),
+                                     hint="move the file into the project, or allow it with --allow-outside-root "
+                                          "(or SEQGEN_ALLOW_OUTSIDE=1)"))
+            continue
         if resolved in chain:
             names = " -> ".join(_display(c) for c in chain + [resolved])
             src.findings.append(make(E.USE_CYCLE, f"use cycle: {names}", doc.pos(("use", i, "file")),
@@ -139,7 +179,7 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources) -> None:
         if not _check_top(used, src.findings, "seqgen", E.VERSION):
             continue
         src.findings += validate_document(used, SEQUENCE_SCHEMA)
-        _load_uses(used, target.parent, chain + [resolved], src)
+        _load_uses(used, target.parent, chain + [resolved], src, allow_outside_root)
         src.used.append((used, entry, doc, ("use", i)))
 
 

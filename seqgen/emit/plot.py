@@ -1,0 +1,1076 @@
+"""Pictures of a shot: timeline plots, diff plots and the SVG of the preflight report.
+
+`timeline_figure(shot, compiled, findings)` draws one lane per output, grouped
+by device, in physical units (the output unit on a secondary axis where a
+calibration maps one to the other). The solid step curve is what the channel
+table makes the hardware output (after latency compensation and quantization);
+the dashed curve is the intended value from the sequence's segments. Block
+spans are shaded and labelled in a strip at the top, findings are marked at
+their sequence time by severity, and physics panels (trap depth and trap
+frequencies along trap ramps, the falling cloud at each image) follow the
+lanes where the shot has them.
+
+`diff_figure(old, new)` overlays two versions and highlights the windows where
+an output differs; `diff_windows` computes those windows from the two compiled
+tables on the union of their change times.
+
+Matplotlib is used without pyplot (no global state, no display needed): the
+figures are plain `matplotlib.figure.Figure` objects rendered with Agg.
+Saving is atomic (temporary file, then rename) and deterministic (no dates in
+the metadata, fixed SVG ids); an existing file is replaced only with force.
+"""
+
+from __future__ import annotations
+
+import fnmatch
+import io
+import math
+import os
+import tempfile
+import textwrap
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..calibration import to_output, to_physical
+
+# --- look -----------------------------------------------------------------------------------------------------------
+
+# Our own palette: hues far apart in both hue and lightness, so neighbouring devices stay distinct for
+# the common colour-vision deficiencies (checked by eye with a deuteranopia and a protanopia simulation).
+DEVICE_COLOURS = ("#2160a8", "#c9731a", "#1d8a78", "#9c3c86", "#6b6b1e", "#5a5a5a", "#3f8fd2", "#a6521c")
+SEVERITY_STYLE = {  # colour, marker: the marker shape carries the severity even without colour
+    "error": ("#b3202c", "X"),
+    "warning": ("#dd8a0f", "^"),
+    "note": ("#53687e", "o"),
+}
+INTENDED_COLOUR = "#1a1a1a"
+DIFF_COLOUR = "#f0b429"
+OLD_COLOUR = "#8a8a8a"
+BLOCK_TINTS = ("#e9edf3", "#f4efe4")
+AXIS_STYLES = ("-", "--", ":")
+AXIS_COLOURS = ("#2160a8", "#c9731a", "#1d8a78")
+
+FIG_WIDTH_IN = 11.0
+LANE_IN = {"analog": 0.5, "synth": 0.5, "digital": 0.3}
+HEADER_IN = 0.24
+GAP_IN = 0.05
+LABEL_PT = 8.0
+TICK_PT = 6.5
+MAX_POINTS_PER_LANE = 1500  # display bins per lane: min/max within a bin is kept, so no spike is lost
+FORMATS = ("png", "svg", "pdf")
+G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
+
+
+class PlotError(ValueError):
+    """Bad plot request (unknown channel pattern, empty window, unknown format): report, never a traceback."""
+
+
+class OutputExists(Exception):
+    pass
+
+
+# --- small helpers --------------------------------------------------------------------------------------------------
+
+
+def parse_time(text: str) -> float:
+    """'2.6 s', '150 ms', '20 us' -> seconds. A bare number is refused (give a unit)."""
+    from ..resolve.units import UnitError, dims_of, parse_simple
+
+    try:
+        q = parse_simple(str(text).strip())
+    except UnitError as exc:
+        raise PlotError(f"'{text}': {exc}; write a time such as '2.6 s' or '150 ms'") from None
+    if q is None:
+        raise PlotError(f"'{text}' is not a time; write e.g. '2.6 s' or '150 ms'")
+    if q.dims != dims_of("s"):
+        if not any(q.dims):
+            raise PlotError(f"'{text}' has no unit; write e.g. '{text} s' or '{text} ms'")
+        raise PlotError(f"'{text}' is not a time; write e.g. '2.6 s' or '150 ms'")
+    if not math.isfinite(q.value):
+        raise PlotError(f"'{text}' is not a finite time")
+    return float(q.value)
+
+
+def select_outputs(rig, patterns) -> list[str]:
+    """Outputs in rig order whose output, channel or device name matches any glob pattern."""
+    names = list(rig.outputs)
+    if not patterns:
+        return names
+    chosen = set()
+    for pat in patterns:
+        hit = [n for n in names if any(fnmatch.fnmatchcase(x, pat) for x in
+                                       (n, rig.outputs[n].channel, rig.outputs[n].device))]
+        if not hit:
+            import difflib
+
+            close = difflib.get_close_matches(pat, sorted(set(names) | set(rig.channels)), n=3, cutoff=0.5)
+            raise PlotError(f"--channels: '{pat}' matches no channel of rig '{rig.name}'"
+                            + (f"; did you mean {', '.join(close)}?" if close else
+                               f"; channels are {', '.join(sorted(rig.channels))}"))
+        chosen.update(hit)
+    return [n for n in names if n in chosen]
+
+
+def parse_channels(text: str | None) -> list[str]:
+    if not text:
+        return []
+    return [p.strip() for p in text.split(",") if p.strip()]
+
+
+def time_axis(t0: float, t1: float) -> tuple[float, str, float]:
+    """(unit factor, unit name, offset) so tick labels stay short: s / ms / us, with an offset late in a shot."""
+    span = t1 - t0
+    if span >= 2.0:
+        factor, unit = 1.0, "s"
+    elif span >= 2e-3:
+        factor, unit = 1e-3, "ms"
+    else:
+        factor, unit = 1e-6, "us"
+    offset = 0.0
+    if max(abs(t0), abs(t1)) / factor >= 1e5:  # labels would need 6+ digits: count from a round offset
+        step = factor * 10 ** math.ceil(math.log10(max(span / factor, 1e-12)) + 1)
+        offset = math.floor(t0 / step) * step
+    return factor, unit, offset
+
+
+def _fmt_seconds(t: float) -> str:
+    from ..findings import _fmt_time
+
+    return _fmt_time(t)
+
+
+def _display_scale(max_abs: float, unit: str) -> tuple[float, str]:
+    """SI prefix for a lane: 0.024 W -> (1e-3, 'mW'); units with '/', '^' or spaces keep factor 1."""
+    if not unit or unit == "dimensionless":
+        return 1.0, ""
+    if any(c in unit for c in "/^ ") or unit in ("kg",) or not (max_abs > 0 and math.isfinite(max_abs)):
+        return 1.0, unit
+    for factor, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "u"), (1e-9, "n")):
+        if max_abs >= factor * 0.9999999:
+            return factor, prefix + unit
+    return 1e-9, "n" + unit
+
+
+def _decimate(t: np.ndarray, v: np.ndarray, t0: float, t1: float, nbins: int = MAX_POINTS_PER_LANE):
+    """Keep the first, last, lowest and highest point of each display bin (vectorised)."""
+    if len(t) <= 4 * nbins or t1 <= t0:
+        return t, v
+    b = np.clip(np.floor((t - t0) / (t1 - t0) * nbins), -1, nbins).astype(np.int64)
+    firsts = np.r_[0, np.flatnonzero(np.diff(b)) + 1]
+    lasts = np.r_[firsts[1:] - 1, len(b) - 1]
+    order = np.lexsort((v, b))
+    bs = b[order]
+    gstart = np.r_[0, np.flatnonzero(np.diff(bs)) + 1]
+    gend = np.r_[gstart[1:] - 1, len(bs) - 1]
+    keep = np.unique(np.r_[firsts, lasts, order[gstart], order[gend]])
+    return t[keep], v[keep]
+
+
+def _columns(compiled) -> dict:
+    out = {}
+    if compiled is None:
+        return out
+    for table in compiled.tables:
+        for j, c in enumerate(table.columns):
+            out[c] = (table, j)
+    return out
+
+
+def hardware_series(table, j: int, out, t0: float, t1: float):
+    """(times, physical values) the channel table makes output `out` take in [t0, t1] (rows as written)."""
+    times = np.asarray(table.ticks, dtype=np.float64) * table.tick_s
+    raw = np.asarray(table.values[:, j], dtype=float)
+    phys = np.asarray(to_physical(out, raw), dtype=float) if out.calibration is not None else raw
+    if not len(times):
+        return times, phys
+    i0 = max(int(np.searchsorted(times, t0, side="right")) - 1, 0)
+    i1 = min(int(np.searchsorted(times, t1, side="left")) + 1, len(times))
+    return times[i0:i1], phys[i0:i1]
+
+
+def intended_series(shot, output: str, t0: float, t1: float, n: int = 1200):
+    """(times, physical values) of the intended curve from the shot's segments, edges kept sharp."""
+    from ..check._values import value_at  # the one evaluator of segments shared by the physics checks
+
+    segs = [s for s in shot.segments if s.output == output and s.t1 >= t0 and s.t0 <= t1]
+    grid = [np.linspace(t0, t1, n)]
+    span = max(t1 - t0, 1e-12)
+    for s in segs:
+        if s.kind == "set":
+            grid.append(np.array([s.t0 - span * 1e-9, s.t0]))
+        else:
+            inner = np.linspace(max(s.t0, t0), min(s.t1, t1), 200)
+            grid.append(np.r_[s.t0 - span * 1e-9, inner, s.t1])
+    t = np.unique(np.clip(np.concatenate(grid), t0, t1))
+    return t, value_at(shot, output, t)
+
+
+# --- label placement ------------------------------------------------------------------------------------------------
+
+
+def _text_pt(text: str, fontsize: float) -> float:
+    return len(text) * fontsize * 0.56 + 6
+
+
+def _place(items, t0: float, t1: float, width_in: float, fontsize: float, max_rows: int = 4):
+    """Rows for labels so that none overlap.
+
+    `items` are (start, end, text) in time order. A label sits inside its bar when the bar is wide enough,
+    else to the right of it, or to its left near the right edge of the window. Returns ([(row, mode)],
+    rows used); mode is "inside", "right" or "left".
+    """
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    rows: list[list[tuple]] = []
+    out = []
+    for start, end, text in items:
+        start = max(start, t0)
+        end = min(max(end, start), t1)
+        w = _text_pt(text, fontsize) * s_per_pt
+        bar_end = max(end, start + 1.5 * s_per_pt)
+        if end - start >= w:
+            mode, iv = "inside", (start, end + 2 * s_per_pt)
+        elif bar_end + w <= t1:
+            mode, iv = "right", (start, bar_end + w)
+        else:
+            mode, iv = "left", (start - w, bar_end + 2 * s_per_pt)
+        for r, ivs in enumerate(rows):
+            if all(iv[1] <= a or iv[0] >= b for a, b in ivs):
+                ivs.append(iv)
+                out.append((r, mode))
+                break
+        else:
+            if len(rows) < max_rows:
+                rows.append([iv])
+                out.append((len(rows) - 1, mode))
+            else:  # too crowded: the row whose labels overlap this one least
+                cost = [sum(max(0.0, min(iv[1], b) - max(iv[0], a)) for a, b in ivs) for ivs in rows]
+                r = int(np.argmin(cost))
+                rows[r].append(iv)
+                out.append((r, mode))
+    return out, max(len(rows), 1)
+
+
+def _label_x(start, end, mode, s_per_pt, t0, t1):
+    start, end = max(start, t0), min(max(end, start), t1)
+    if mode == "inside":
+        return (start + end) / 2, "center"
+    if mode == "right":
+        return max(end, start + 1.5 * s_per_pt) + 3 * s_per_pt, "left"
+    return start - 3 * s_per_pt, "right"
+
+
+def _cluster_blocks(blocks, t0, t1, width_in, small_pt=12.0, near_pt=40.0):
+    """Group runs of three or more short, close blocks under one label, so a 2 s view stays readable."""
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    visible = [b for b in blocks if b.end_s >= t0 and b.start_s <= t1]
+    groups: list[list] = []
+    for b in visible:
+        small = (min(b.end_s, t1) - max(b.start_s, t0)) < small_pt * s_per_pt
+        g = groups[-1] if groups else None
+        if (small and g and g[-1][1] and b.start_s - max(x.end_s for x, _ in g) < near_pt * s_per_pt):
+            g.append((b, small))
+        else:
+            groups.append([(b, small)])
+    items = []
+    for g in groups:
+        members = [b for b, _ in g]
+        if len(members) >= 3:
+            text = f"{members[0].name} … {members[-1].name} ({len(members)} blocks)"
+            items.append((members[0].start_s, max(b.end_s for b in members), text, members))
+        else:
+            items.extend((b.start_s, b.end_s, b.name, [b]) for b in members)
+    return items
+
+
+# --- figure layout --------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class _Row:
+    kind: str  # "blocks", "findings", "header", "lane", "depth", "freq", "cloud", "notes", "diff"
+    height: float
+    payload: object = None
+
+
+def _make_figure(rows: list[_Row], left_in: float, title: str, footer_lines: list[str]):
+    from matplotlib.figure import Figure
+
+    top_in, right_in = 1.05, 0.75
+    bottom_in = 0.55 + 0.135 * len(footer_lines)
+    body = sum(r.height for r in rows) + GAP_IN * (len(rows) - 1)
+    height = body + top_in + bottom_in
+    fig = Figure(figsize=(FIG_WIDTH_IN, height), dpi=110)
+    mean_h = body / len(rows) if rows else 1.0
+    gs = fig.add_gridspec(len(rows), 1, height_ratios=[r.height for r in rows], left=left_in / FIG_WIDTH_IN,
+                          right=1 - right_in / FIG_WIDTH_IN, top=1 - top_in / height, bottom=bottom_in / height,
+                          hspace=GAP_IN / max(mean_h, 1e-6))
+    axes = []
+    first = None
+    for i, r in enumerate(rows):
+        ax = fig.add_subplot(gs[i, 0], sharex=first)
+        if first is None:
+            first = ax
+        axes.append(ax)
+    fig.text(0.5 / FIG_WIDTH_IN, 1 - 0.18 / height, title, ha="left", va="top", fontsize=10, fontweight="bold")
+    for k, line in enumerate(footer_lines):
+        fig.text(0.5 / FIG_WIDTH_IN, (bottom_in - 0.5 - 0.135 * k) / height, line, ha="left", va="top",
+                 fontsize=7, family="monospace")
+    return fig, axes, (FIG_WIDTH_IN - left_in - right_in)
+
+
+def _style_time_axis(axes, t0: float, t1: float, top_ax, bottom_ax):
+    from matplotlib.ticker import FuncFormatter, MaxNLocator
+
+    factor, unit, offset = time_axis(t0, t1)
+    fmt = FuncFormatter(lambda x, _pos: f"{(x - offset) / factor:.10g}")
+    for ax in axes:
+        ax.set_xlim(t0, t1)
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=12, steps=[1, 2, 2.5, 5, 10]))
+        ax.xaxis.set_major_formatter(fmt)
+        ax.tick_params(axis="x", labelbottom=False, labeltop=False, bottom=False, top=False, labelsize=TICK_PT + 0.5)
+        ax.grid(axis="x", color="#d9d9d9", linewidth=0.5)
+        ax.set_axisbelow(True)
+    label = f"time [{unit}]" if not offset else f"time - {_fmt_seconds(offset)} [{unit}]"
+    bottom_ax.tick_params(axis="x", labelbottom=True, bottom=True)
+    bottom_ax.set_xlabel(label, fontsize=LABEL_PT)
+    top_ax.tick_params(axis="x", labeltop=True, top=True)
+    return label
+
+
+def _lane_label(ax, text: str, colour: str, bold: bool = False):
+    ax.annotate(text, xy=(0, 0.5), xycoords="axes fraction", xytext=(-34, 0), textcoords="offset points",
+                ha="right", va="center", fontsize=LABEL_PT, color=colour, fontweight="bold" if bold else "normal")
+
+
+def _blank(ax):
+    ax.set_yticks([])
+    for side in ("left", "right", "top", "bottom"):
+        ax.spines[side].set_visible(False)
+    ax.set_facecolor("none")
+
+
+def _shade_blocks(ax, blocks, t0, t1):
+    for i, b in enumerate(blocks):
+        if b.end_s < t0 or b.start_s > t1:
+            continue
+        if b.end_s > b.start_s:
+            ax.axvspan(b.start_s, b.end_s, color=BLOCK_TINTS[i % 2], zorder=0, linewidth=0)
+        else:
+            ax.axvline(b.start_s, color="#b8c2cf", linewidth=0.6, zorder=0)
+
+
+def _blocks_layout(blocks, t0, t1, width_in):
+    items = _cluster_blocks(blocks, t0, t1, width_in)
+    placed, nrows = _place([(a, b, text) for a, b, text, _ in items], t0, t1, width_in, 7)
+    return items, placed, nrows
+
+
+def _draw_blocks(ax, blocks, t0, t1, width_in, layout):
+    items, placed, nrows = layout
+    index = {id(b): i for i, b in enumerate(blocks)}
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    for (start, end, text, members), (r, mode) in zip(items, placed):
+        y = nrows - 1 - r
+        for b in members:
+            width = max(b.end_s - b.start_s, 1.5 * s_per_pt)
+            ax.broken_barh([(b.start_s, width)], (y + 0.18, 0.64), facecolors=BLOCK_TINTS[index[id(b)] % 2],
+                           edgecolors="#7d8a99", linewidth=0.6)
+        x, ha = _label_x(start, end, mode, s_per_pt, t0, t1)
+        ax.text(x, y + 0.5, text, ha=ha, va="center", fontsize=7, color="#243447", clip_on=False)
+    ax.set_ylim(0, nrows)
+    _blank(ax)
+    ax.set_label("blocks")
+    _lane_label(ax, "blocks", "#243447", bold=True)
+
+
+def _finding_items(findings, t0, t1):
+    shown = [f for f in findings if f.time_s is not None and t0 <= f.time_s <= t1]
+    shown.sort(key=lambda f: (f.time_s, f.severity, f.code))
+    return shown
+
+
+def _findings_layout(shown, t0, t1, width_in, near_pt=10.0, max_rows=4):
+    """Label items for findings: runs of more than `max_rows` findings within `near_pt` share one label."""
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    groups: list[list] = []
+    for f in shown:
+        if groups and f.time_s - groups[-1][-1].time_s < near_pt * s_per_pt:
+            groups[-1].append(f)
+        else:
+            groups.append([f])
+    items = []
+    for g in groups:
+        if len(g) > max_rows:
+            codes = sorted({f.code for f in g})
+            text = f"{len(g)} findings: " + ", ".join(codes[:3]) + (" …" if len(codes) > 3 else "")
+            items.append((g[0].time_s, g[-1].time_s, text, g))
+        else:
+            items.extend((f.time_s, f.time_s, f.code + (" (accepted)" if f.accepted else ""), [f]) for f in g)
+    placed, nrows = _place([(a, b, text) for a, b, text, _ in items], t0, t1, width_in, 6.5, max_rows=max_rows)
+    return items, placed, nrows
+
+
+def _draw_findings(ax, t0, t1, width_in, layout, hidden: int):
+    items, placed, nrows = layout
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    for (start, end, text, members), (r, mode) in zip(items, placed):
+        y = nrows - 1 - r + 0.5
+        for f in members:
+            colour, marker = SEVERITY_STYLE.get(f.severity, SEVERITY_STYLE["note"])
+            (mk,) = ax.plot([f.time_s], [y], linestyle="none", marker=marker, markersize=6.5,
+                            markerfacecolor="none" if f.accepted else colour, markeredgecolor=colour, clip_on=False)
+            mk.set_gid(f"finding:{f.severity}:{f.code}")
+        colour = SEVERITY_STYLE.get(members[0].severity, SEVERITY_STYLE["note"])[0]
+        x, ha = _label_x(start, end, "left" if mode == "left" else "right", 2.5 * s_per_pt, t0, t1)
+        ax.text(x, y, text, ha=ha, va="center", fontsize=6.5, color=colour, clip_on=False)
+    ax.set_ylim(0, nrows)
+    _blank(ax)
+    ax.set_label("findings")
+    _lane_label(ax, "findings", "#243447", bold=True)
+    if hidden:
+        ax.annotate(f"{hidden} more outside this window or without a time", xy=(1, 1), xycoords="axes fraction",
+                    xytext=(0, 1), textcoords="offset points", ha="right", va="bottom", fontsize=6, color="#555555")
+
+
+def _finding_lines(ax, shown):
+    for f in shown:
+        colour = SEVERITY_STYLE.get(f.severity, SEVERITY_STYLE["note"])[0]
+        ax.axvline(f.time_s, color=colour, linewidth=0.8, linestyle=(0, (3, 2)), alpha=0.85, zorder=4)
+
+
+def _draw_header(ax, device, colour):
+    _blank(ax)
+    ax.tick_params(axis="x", length=0)
+    ax.set_label(f"device:{device.name}" if device is not None else "device:?")
+    text = device.name if device is None else (f"{device.name}   timebase {_fmt_hz(device.timebase_hz)}, "
+                                               f"{device.output_model} between rows")
+    ax.annotate(text, xy=(0, 0), xycoords="axes fraction", xytext=(-34 - 90, 2), textcoords="offset points",
+                ha="left", va="bottom", fontsize=LABEL_PT, fontweight="bold", color=colour)
+    ax.axhline(0.0, color=colour, linewidth=1.0)
+    ax.set_ylim(0, 1)
+
+
+def _fmt_hz(hz: float) -> str:
+    from ..resolve.units import format_value
+
+    return format_value(hz, "Hz")
+
+
+def _style_lane(ax, out, colour, scale_unit, ylim):
+    from matplotlib.ticker import FixedLocator, MaxNLocator
+
+    factor, unit = scale_unit
+    ax.set_ylim(*ylim)
+    ax.tick_params(axis="y", labelsize=TICK_PT, length=2, pad=1.5)
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    ax.spines["left"].set_color(colour)
+    ax.spines["bottom"].set_color("#b0b0b0")
+    if out.kind == "digital":
+        ax.yaxis.set_major_locator(FixedLocator([0, 1]))
+        ax.set_yticklabels(["off", "on"])
+    else:
+        ax.yaxis.set_major_locator(MaxNLocator(nbins=2, min_n_ticks=2))
+    # the output unit on a secondary axis where a calibration maps the physical quantity to it
+    if out.calibration is not None and out.kind != "digital":
+        def fwd(y, out=out, factor=factor):
+            return np.asarray(to_output(out, np.asarray(y, float) * factor), dtype=float)
+
+        def inv(v, out=out, factor=factor):
+            return np.asarray(to_physical(out, np.asarray(v, float)), dtype=float) / factor
+
+        sec = ax.secondary_yaxis("right", functions=(fwd, inv))
+        sec.yaxis.set_major_locator(MaxNLocator(nbins=2, min_n_ticks=2))
+        sec.tick_params(labelsize=TICK_PT - 0.5, length=2, pad=1.5, colors="#6b6b6b")
+        sec.spines["right"].set_color("#b0b0b0")
+        sec.set_ylabel(out.unit, rotation=0, fontsize=TICK_PT, color="#6b6b6b", labelpad=8, va="center")
+        sec.set_label(f"output-unit:{out.name}")
+
+
+def _ylim(arrays, kind, full=None):
+    """Y-limits of a lane from the values in the window; never narrower than 5 % of the range over the whole
+    shot (`full`), so a DAC-code offset near zero does not fill a zoomed lane."""
+    if kind == "digital":
+        return (-0.2, 1.3)
+    vals = np.concatenate([np.asarray(a, float)[np.isfinite(a)] for a in arrays if len(a)] or [np.zeros(1)])
+    lo, hi = float(np.min(vals)), float(np.max(vals))
+    if full is not None:
+        fvals = np.concatenate([np.asarray(a, float)[np.isfinite(a)] for a in full if len(a)] or [vals])
+        need = 0.05 * float(np.max(fvals) - np.min(fvals))
+        if hi - lo < need:
+            mid = (hi + lo) / 2
+            lo, hi = max(mid - need / 2, float(np.min(fvals))), min(mid + need / 2, float(np.max(fvals)))
+            if hi - lo < need:
+                lo, hi = (lo, lo + need) if lo == float(np.min(fvals)) else (hi - need, hi)
+    if hi - lo <= 1e-12 * max(abs(hi), abs(lo), 1e-300):
+        pad = abs(hi) * 0.1 if hi else 1.0
+        return lo - pad, hi + pad
+    pad = 0.12 * (hi - lo)
+    return lo - pad, hi + pad
+
+
+def _full_range(table_col, out):
+    """Physical values of one channel-table column over the whole shot (for lane limits)."""
+    if table_col is None:
+        return []
+    table, j = table_col
+    raw = np.asarray(table.values[:, j], dtype=float)
+    if not len(raw):
+        return []
+    ends = np.array([raw.min(), raw.max()])
+    return [np.asarray(to_physical(out, ends), dtype=float) if out.calibration is not None else ends]
+
+
+def _step(ax, t, v, model, t1, **kw):
+    if not len(t):
+        return None
+    if model == "linear":
+        (line,) = ax.plot(t, v, **kw)
+    else:
+        tt, vv = np.r_[t, max(t1, t[-1])], np.r_[v, v[-1]]
+        (line,) = ax.plot(tt, vv, drawstyle="steps-post", **kw)
+    return line
+
+
+# --- physics panels -------------------------------------------------------------------------------------------------
+
+
+def _physics(shot, t0, t1):
+    """Data for the physics panels in [t0, t1]: trap curves, clouds at images, physics notes."""
+    from scipy import constants as sc
+
+    out = {"trap": [], "clouds": [], "notes": []}
+    try:
+        from ..check.physics import report_physics
+        from ..check.physics_traps import cloud_at_image, trap_stage
+    except ImportError:  # pragma: no cover - physics checks absent in a partial checkout
+        return out
+    if shot.sample is None:
+        return out
+    seen = set()
+    for act in shot.phys:
+        if act.kind != "trap_ramp":
+            continue
+        a, b = max(act.t0, t0), min(act.t1, t1)
+        if b <= a or (a, b) in seen:
+            continue
+        seen.add((a, b))
+        try:
+            times, omegas, depth_g = trap_stage(shot, a, b)
+        except Exception:  # physics trouble is reported by the checks; the picture just omits the panel
+            continue
+        out["trap"].append({"block": act.block, "times": times, "freq_hz": omegas / (2 * math.pi),
+                            "depth_uk": depth_g / sc.k * 1e6})
+    for img in shot.phys:
+        if img.kind != "image" or not (t0 <= img.t0 <= t1):
+            continue
+        try:
+            c = cloud_at_image(shot, img)
+        except Exception:
+            c = None
+        if c:
+            setup = shot.rig.imaging.get(img.args.get("setup"))
+            out["clouds"].append({"t": img.t0, "release": img.t0 - c["tof"], "cloud": c, "setup": setup,
+                                  "name": img.args.get("setup", "")})
+    try:
+        rows = report_physics(shot)
+    except Exception:
+        rows = []
+    seen_rows = set()
+    for r in rows:
+        key = (r.get("block"), r.get("kind"), r.get("time_s"), tuple(r.get("items", ())))
+        if key in seen_rows or r.get("time_s") is None or not (t0 <= r["time_s"] <= t1):
+            continue
+        seen_rows.add(key)
+        out["notes"].append(r)
+    return out
+
+
+def _draw_depth(ax, trap, colour):
+    for k, tr in enumerate(trap):
+        ax.plot(tr["times"], tr["depth_uk"], color=colour, marker=".", markersize=3, linewidth=1.2,
+                label="depth with gravity" if k == 0 else None)
+    ax.set_label("physics:trap-depth")
+    vals = np.concatenate([tr["depth_uk"] for tr in trap])
+    ax.set_ylim(0, max(float(np.max(vals)) * 1.12, 1e-6))
+    _style_panel(ax, colour)
+    _lane_label(ax, "trap depth / k_B [uK]", colour)
+
+
+def _draw_freq(ax, trap):
+    from matplotlib.ticker import MaxNLocator
+
+    top = 0.0
+    for k, tr in enumerate(trap):
+        f = tr["freq_hz"]
+        for axis in range(3):
+            ax.plot(tr["times"], f[:, axis], color=AXIS_COLOURS[axis], linestyle=AXIS_STYLES[axis], linewidth=1.1,
+                    label=f"axis {axis + 1}" if k == 0 else None)
+        if np.any(np.isfinite(f)):
+            top = max(top, float(np.nanmax(f)))
+    ax.set_ylim(0, top * 1.12 if top > 0 else 1.0)
+    ax.yaxis.set_major_locator(MaxNLocator(nbins=3, min_n_ticks=2))
+    ax.set_label("physics:trap-frequencies")
+    _style_panel(ax, "#2160a8")
+    ax.legend(loc="upper right", fontsize=6, ncol=3, frameon=False, handlelength=2.2)
+    _lane_label(ax, "trap frequencies [Hz]", "#243447")
+
+
+def _draw_clouds(ax, clouds, t0, t1, width_in):
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    lo = 0.0
+    for c in clouds:
+        cl = c["cloud"]
+        tr = np.linspace(c["release"], c["t"], 60)
+        ax.plot(tr, -0.5 * G_N * (tr - c["release"]) ** 2 * 1e3, color="#5a5a5a", linestyle=":", linewidth=1.0)
+        edge = cl["size"] if cl["size_kind"].startswith("Thomas") else 2 * cl["size"]
+        centre = -cl["drop"] * 1e3
+        bar = ax.errorbar([c["t"]], [centre], yerr=[[edge * 1e3], [edge * 1e3]], fmt="o", color="#9c3c86",
+                          markersize=4, capsize=3, linewidth=1.4)
+        for artist in bar.lines[0:1] + tuple(bar.lines[1]) + tuple(bar.lines[2]):
+            artist.set_clip_on(False)
+        if c["setup"] is not None and c["setup"].field_of_view_m:
+            half = c["setup"].field_of_view_m / 2 * 1e3
+            ax.axhspan(-half, half, color="#dbe8d4", alpha=0.6, zorder=0, linewidth=0)
+            ax.axhline(-half, color="#6f8f62", linewidth=0.6)
+            lo = min(lo, -half)
+        lo = min(lo, centre - edge * 1e3)
+        txt = (f"{c['name']}: time of flight {_fmt_seconds(cl['tof'])}, centre {cl['drop'] * 1e3:.3g} mm below "
+               f"release, {cl['size_kind']} {cl['size'] * 1e6:.3g} um")
+        right = c["t"] > t0 + 0.6 * (t1 - t0)
+        ax.text(c["t"] + (-8 if right else 8) * s_per_pt, centre, txt, ha="right" if right else "left", va="center",
+                fontsize=6.5, color="#5e2452", clip_on=True)
+    ax.set_ylim(lo * 1.25 if lo < 0 else -1.0, abs(lo) * 0.6 + 0.1)
+    ax.set_label("physics:cloud")
+    _style_panel(ax, "#9c3c86")
+    _lane_label(ax, "cloud height [mm]", "#9c3c86")
+
+
+def _notes_layout(notes, t0, t1, width_in):
+    items = [(r["time_s"], r["time_s"], f"{k + 1} {r['kind']}") for k, r in enumerate(notes)]
+    placed, nrows = _place(items, t0, t1, width_in, 6.5, max_rows=4)
+    return items, placed, nrows
+
+
+def _draw_notes(ax, t0, t1, width_in, layout):
+    items, placed, nrows = layout
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    for (t, _, text), (r, mode) in zip(items, placed):
+        y = nrows - 1 - r + 0.5
+        ax.plot([t], [y], marker="D", markersize=4, color="#1d8a78", linestyle="none", clip_on=False)
+        x, ha = _label_x(t, t, "left" if mode == "left" else "right", 2.5 * s_per_pt, t0, t1)
+        ax.text(x, y, text, ha=ha, va="center", fontsize=6.5, color="#14584d", clip_on=False)
+    ax.set_ylim(0, nrows)
+    _blank(ax)
+    ax.set_label("physics:notes")
+    _lane_label(ax, "physics notes", "#14584d", bold=True)
+
+
+def _style_panel(ax, colour):
+    from matplotlib.ticker import MaxNLocator
+
+    ax.tick_params(axis="y", labelsize=TICK_PT, length=2, pad=1.5)
+    if not isinstance(ax.yaxis.get_major_locator(), MaxNLocator):
+        ax.yaxis.set_major_locator(MaxNLocator(nbins=3, min_n_ticks=2))
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    ax.spines["left"].set_color(colour)
+
+
+def _note_lines(notes) -> list[str]:
+    lines = []
+    for k, r in enumerate(notes):
+        text = f"{k + 1}  t={_fmt_seconds(r['time_s'])} [{r.get('block', '')}] {r['kind']}: " + "; ".join(r.get("items", ()))
+        wrapped = textwrap.wrap(text, width=150, subsequent_indent="     ")
+        lines.extend(wrapped or [text])
+    return lines
+
+
+# --- the timeline -------------------------------------------------------------------------------------------------
+
+
+def _window(shot, t_from, t_to):
+    end = shot.duration_s if shot.duration_s > 0 else 1e-3
+    t0 = 0.0 if t_from is None else float(t_from)
+    t1 = end if t_to is None else float(t_to)
+    if not t1 > t0:
+        raise PlotError(f"empty window: --from {_fmt_seconds(t0)} is not before --to {_fmt_seconds(t1)}")
+    return t0, t1
+
+
+def _lanes_by_device(rig, names):
+    groups: dict[str, list] = {}
+    for n in names:
+        groups.setdefault(rig.outputs[n].device, []).append(n)
+    order = [d for d in rig.devices if d in groups] + [d for d in groups if d not in rig.devices]
+    return [(d, groups[d]) for d in order]
+
+
+def _left_margin(names, extra=()):
+    longest = max([len(n) + 8 for n in names] + [len(e) for e in extra] + [14])
+    return min(0.5 + longest * LABEL_PT * 0.56 / 72 + 0.1, 3.2)
+
+
+def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, channels=None, physics: bool = True,
+                    intended: bool = True, title: str | None = None):
+    """The timeline of one shot as a matplotlib Figure (see the module docstring).
+
+    Axes carry labels for tools and tests: "blocks", "findings", "device:<name>", "lane:<output>",
+    "physics:trap-depth", "physics:trap-frequencies", "physics:cloud", "physics:notes".
+    """
+    from ..findings import summary
+
+    t0, t1 = _window(shot, t_from, t_to)
+    names = select_outputs(shot.rig, channels)
+    cols = _columns(compiled)
+    shown = _finding_items(findings, t0, t1)
+    hidden = len(list(findings)) - len(shown)
+    groups = _lanes_by_device(shot.rig, names)
+    phys = _physics(shot, t0, t1) if physics else {"trap": [], "clouds": [], "notes": []}
+
+    left = _left_margin(names, ["trap frequencies [Hz]", "trap depth / k_B [uK]"])
+    width_in = FIG_WIDTH_IN - left - 0.75
+    blay = _blocks_layout(shot.blocks, t0, t1, width_in)
+    rows = [_Row("blocks", 0.22 * blay[2] + 0.06)]
+    flay = _findings_layout(shown, t0, t1, width_in)
+    if shown or hidden:
+        rows.append(_Row("findings", 0.2 * flay[2] + 0.1))
+    for dev, outs in groups:
+        rows.append(_Row("header", HEADER_IN, dev))
+        rows.extend(_Row("lane", LANE_IN.get(shot.rig.outputs[n].kind, 0.5), n) for n in outs)
+    if phys["trap"] or phys["clouds"] or phys["notes"]:
+        rows.append(_Row("header", HEADER_IN, None))
+    if phys["trap"]:
+        rows += [_Row("depth", 0.8), _Row("freq", 0.9)]
+    if phys["clouds"]:
+        rows.append(_Row("cloud", 0.8))
+    nlay = _notes_layout(phys["notes"], t0, t1, width_in)
+    if phys["notes"]:
+        rows.append(_Row("notes", 0.2 * nlay[2] + 0.08))
+    s = summary(findings)
+    ttl = title or (f"{shot.file}  ·  rig {shot.rig.name}  ·  duration {_fmt_seconds(shot.duration_s)}  ·  "
+                    f"{s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s)")
+    fig, axes, width_in = _make_figure(rows, left, ttl, _note_lines(phys["notes"]))
+    dev_colour = {d: DEVICE_COLOURS[i % len(DEVICE_COLOURS)] for i, d in enumerate(shot.rig.devices)}
+    lanes_ax = []
+    for ax, row in zip(axes, rows):
+        if row.kind == "blocks":
+            _draw_blocks(ax, shot.blocks, t0, t1, width_in, blay)
+        elif row.kind == "findings":
+            _draw_findings(ax, t0, t1, width_in, flay, hidden)
+        elif row.kind == "header":
+            if row.payload is None:
+                _blank(ax)
+                ax.set_label("device:physics")
+                ax.annotate("physics (predicted from the rig's beams and the sample)", xy=(0, 0),
+                            xycoords="axes fraction", xytext=(-124, 2), textcoords="offset points", ha="left",
+                            va="bottom", fontsize=LABEL_PT, fontweight="bold", color="#14584d")
+                ax.axhline(0.0, color="#14584d", linewidth=1.0)
+                ax.set_ylim(0, 1)
+            else:
+                _draw_header(ax, shot.rig.devices.get(row.payload), dev_colour.get(row.payload, "#444444"))
+        elif row.kind == "lane":
+            out = shot.rig.outputs[row.payload]
+            colour = dev_colour.get(out.device, "#444444")
+            _shade_blocks(ax, shot.blocks, t0, t1)
+            _draw_lane(ax, shot, out, cols.get(out.name), t0, t1, colour, intended)
+            _finding_lines(ax, shown)
+            lanes_ax.append(ax)
+        elif row.kind == "depth":
+            _shade_blocks(ax, shot.blocks, t0, t1)
+            _draw_depth(ax, phys["trap"], "#1d8a78")
+        elif row.kind == "freq":
+            _shade_blocks(ax, shot.blocks, t0, t1)
+            _draw_freq(ax, phys["trap"])
+        elif row.kind == "cloud":
+            _shade_blocks(ax, shot.blocks, t0, t1)
+            _draw_clouds(ax, phys["clouds"], t0, t1, width_in)
+        elif row.kind == "notes":
+            _draw_notes(ax, t0, t1, width_in, nlay)
+    _style_time_axis(axes, t0, t1, axes[0], axes[-1])
+    _legend(fig, shown, intended, diff=False)
+    fig.seqgen_info = {"window": (t0, t1), "lanes": [r.payload for r in rows if r.kind == "lane"],
+                       "findings_shown": len(shown)}
+    return fig
+
+
+def _draw_lane(ax, shot, out, col, t0, t1, colour, intended):
+    arrays = []
+    model = shot.rig.devices[out.device].output_model if out.device in shot.rig.devices else "hold"
+    hw = (np.zeros(0), np.zeros(0))
+    if col is not None:
+        hw = hardware_series(col[0], col[1], out, t0, t1)
+        arrays.append(hw[1])
+    it = intended_series(shot, out.name, t0, t1) if intended else (np.zeros(0), np.zeros(0))
+    arrays.append(it[1])
+    ylim = _ylim(arrays, out.kind, _full_range(col, out) + [np.asarray([out.safe], float)])
+    peak = max(abs(ylim[0]), abs(ylim[1])) / 1.12 if out.kind != "digital" else 1.0
+    scale = _display_scale(peak, out.phys_unit if out.kind != "digital" else "")
+    factor = scale[0]
+    if len(hw[0]):
+        t, v = _decimate(hw[0], hw[1] / factor, t0, t1)
+        line = _step(ax, t, v, model, t1, color=colour, linewidth=1.3, zorder=3)
+        line.set_gid(f"table:{out.name}")
+        if out.kind == "digital":
+            ax.fill_between(np.r_[t, max(t1, t[-1])], np.r_[v, v[-1]], step="post", color=colour, alpha=0.18,
+                            linewidth=0, zorder=2)
+    if intended and len(it[0]):
+        (line,) = ax.plot(it[0], it[1] / factor, color=INTENDED_COLOUR, linewidth=0.8, linestyle=(0, (4, 2)),
+                          alpha=0.75, zorder=3.5)
+        line.set_gid(f"intended:{out.name}")
+    _style_lane(ax, out, colour, scale, ylim if out.kind == "digital" else (ylim[0] / factor, ylim[1] / factor))
+    ax.set_label(f"lane:{out.name}")
+    _lane_label(ax, out.name + (f" [{scale[1]}]" if scale[1] else ""), colour)
+
+
+def _legend(fig, shown, intended, diff):
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    handles = []
+    if diff:
+        handles += [Line2D([], [], color=OLD_COLOUR, linewidth=1.3, linestyle=(0, (2, 1.5)), label="old"),
+                    Line2D([], [], color=DEVICE_COLOURS[0], linewidth=1.3, label="new"),
+                    Patch(color=DIFF_COLOUR, alpha=0.45, label="outputs differ")]
+    else:
+        handles.append(Line2D([], [], color=DEVICE_COLOURS[0], linewidth=1.3, label="channel table (as output)"))
+        if intended:
+            handles.append(Line2D([], [], color=INTENDED_COLOUR, linewidth=0.8, linestyle=(0, (4, 2)),
+                                  label="intended (sequence)"))
+    handles.append(Patch(facecolor=BLOCK_TINTS[0], edgecolor="#7d8a99", label="block"))
+    for sev in ("error", "warning", "note"):
+        if any(f.severity == sev for f in shown):
+            c, m = SEVERITY_STYLE[sev]
+            handles.append(Line2D([], [], color=c, marker=m, linestyle="none", label=sev))
+    h = fig.get_figheight()
+    fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.42 / FIG_WIDTH_IN, 1 - 0.36 / h),
+               ncol=len(handles), fontsize=7, frameon=False, handlelength=2.4, columnspacing=1.4)
+
+
+# --- diff ---------------------------------------------------------------------------------------------------------
+
+
+def _series_full(table, j, out):
+    times = np.asarray(table.ticks, dtype=np.float64) * table.tick_s
+    vals = np.asarray(table.values[:, j], dtype=float)
+    return times, vals
+
+
+def _eval(times, vals, at, model):
+    if not len(times):
+        return np.full(len(at), np.nan)
+    if model == "linear" and len(times) > 1:
+        return np.interp(at, times, vals)
+    idx = np.clip(np.searchsorted(times, at, side="right") - 1, 0, len(times) - 1)
+    return vals[idx]
+
+
+def diff_windows(old_shot, old_compiled, new_shot, new_compiled) -> dict:
+    """{output: [(t0, t1), ...]} where the two channel tables make an output take different values.
+
+    Both tables are evaluated (held, or linear for `output_model: linear`) on the union of their change
+    times; two values differ when they are more than half a DAC code apart (any change for outputs without
+    bits). An output present in only one version differs over the whole of that version.
+    """
+    oc, nc = _columns(old_compiled), _columns(new_compiled)
+    end = max(old_compiled.duration_s, new_compiled.duration_s)
+    out: dict[str, list] = {}
+    for name in list(new_shot.rig.outputs) + [n for n in old_shot.rig.outputs if n not in new_shot.rig.outputs]:
+        if name not in oc or name not in nc:
+            if name in oc or name in nc:
+                out[name] = [(0.0, end)]
+            continue
+        o_new = new_shot.rig.outputs[name]
+        o_old = old_shot.rig.outputs[name]
+        to, vo = _series_full(*oc[name], o_old)
+        tn, vn = _series_full(*nc[name], o_new)
+        mo = old_shot.rig.devices[o_old.device].output_model
+        mn = new_shot.rig.devices[o_new.device].output_model
+        u = np.union1d(to, tn)
+        a, b = _eval(to, vo, u, mo), _eval(tn, vn, u, mn)
+        tol = 0.5 * min(x for x in (o_old.lsb, o_new.lsb)) if (o_old.lsb and o_new.lsb) else \
+            1e-9 * max(abs(o_new.hi - o_new.lo), 1e-300)
+        if o_new.kind == "digital":
+            tol = 0.5
+        bad = np.abs(a - b) > tol
+        if "linear" in (mo, mn):  # an interval between two change times differs if either end does
+            bad = bad | np.r_[bad[1:], False]
+        if not np.any(bad):
+            continue
+        edges = np.r_[u, end if end > u[-1] else u[-1]]
+        idx = np.flatnonzero(bad)
+        runs = np.split(idx, np.flatnonzero(np.diff(idx) > 1) + 1)
+        spans = []
+        for r in runs:
+            s, e = float(u[r[0]]), float(edges[r[-1] + 1])
+            if e <= s:  # a difference on the very last row (the end marker): give it a visible width
+                e = s + max(end, 1e-6) * 1e-4
+            spans.append((s, e))
+        out[name] = spans
+    return out
+
+
+def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="old", new_label="new",
+                t_from=None, t_to=None, channels=None, findings=(), title: str | None = None):
+    """Overlay two versions of a sequence, one lane per output, with the windows where they differ."""
+    end = max(old_shot.duration_s, new_shot.duration_s) or 1e-3
+    t0 = 0.0 if t_from is None else float(t_from)
+    t1 = end if t_to is None else float(t_to)
+    if not t1 > t0:
+        raise PlotError(f"empty window: --from {_fmt_seconds(t0)} is not before --to {_fmt_seconds(t1)}")
+    names = select_outputs(new_shot.rig, channels) if channels else list(new_shot.rig.outputs)
+    if channels:
+        try:
+            names += [n for n in select_outputs(old_shot.rig, channels) if n not in names]
+        except PlotError:
+            pass
+    else:
+        names += [n for n in old_shot.rig.outputs if n not in names]
+    windows = diff_windows(old_shot, old_compiled, new_shot, new_compiled)
+    oc, nc = _columns(old_compiled), _columns(new_compiled)
+    rig_of = {n: (new_shot.rig if n in new_shot.rig.outputs else old_shot.rig) for n in names}
+    groups: dict[str, list] = {}
+    for n in names:
+        groups.setdefault(rig_of[n].outputs[n].device, []).append(n)
+    left = _left_margin(names)
+    width_in = FIG_WIDTH_IN - left - 0.75
+    shown = _finding_items(findings, t0, t1)
+    blay = _blocks_layout(new_shot.blocks, t0, t1, width_in)
+    all_spans = sorted({s for spans in windows.values() for s in spans})
+    rows = [_Row("blocks", 0.22 * blay[2] + 0.06), _Row("diff", 0.3)]
+    flay = _findings_layout(shown, t0, t1, width_in)
+    if shown:
+        rows.append(_Row("findings", 0.2 * flay[2] + 0.1))
+    for dev, outs in groups.items():
+        rows.append(_Row("header", HEADER_IN, dev))
+        rows.extend(_Row("lane", LANE_IN.get(rig_of[n].outputs[n].kind, 0.5), n) for n in outs)
+    changed = [n for n in names if n in windows]
+    foot = [f"old: {old_label}", f"new: {new_label}",
+            (f"{len(changed)} output(s) differ: " + ", ".join(changed)) if changed else "no output differs"]
+    if abs(old_shot.duration_s - new_shot.duration_s) > 0:
+        foot.append(f"duration {_fmt_seconds(old_shot.duration_s)} -> {_fmt_seconds(new_shot.duration_s)}")
+    foot = [ln for text in foot for ln in (textwrap.wrap(text, 150, subsequent_indent="    ") or [text])]
+    ttl = title or f"diff  ·  {old_label}  ->  {new_label}"
+    fig, axes, width_in = _make_figure(rows, left, ttl, foot)
+    dev_colour = {d: DEVICE_COLOURS[i % len(DEVICE_COLOURS)] for i, d in enumerate(
+        list(new_shot.rig.devices) + [d for d in old_shot.rig.devices if d not in new_shot.rig.devices])}
+    for ax, row in zip(axes, rows):
+        if row.kind == "blocks":
+            _draw_blocks(ax, new_shot.blocks, t0, t1, width_in, blay)
+        elif row.kind == "diff":
+            for s, e in all_spans:
+                ax.axvspan(s, e, color=DIFF_COLOUR, alpha=0.8, linewidth=0)
+            _blank(ax)
+            ax.set_ylim(0, 1)
+            ax.set_label("diff")
+            _lane_label(ax, "differs", "#7a5a00", bold=True)
+            if not all_spans:
+                ax.text(0.5, 0.5, "no difference in any output", transform=ax.transAxes, ha="center", va="center",
+                        fontsize=7, color="#555555")
+        elif row.kind == "findings":
+            _draw_findings(ax, t0, t1, width_in, flay, 0)
+        elif row.kind == "header":
+            rig = new_shot.rig if row.payload in new_shot.rig.devices else old_shot.rig
+            _draw_header(ax, rig.devices.get(row.payload), dev_colour.get(row.payload, "#444444"))
+        elif row.kind == "lane":
+            n = row.payload
+            out = rig_of[n].outputs[n]
+            colour = dev_colour.get(out.device, "#444444")
+            _shade_blocks(ax, new_shot.blocks, t0, t1)
+            for s, e in windows.get(n, ()):
+                ax.axvspan(s, e, color=DIFF_COLOUR, alpha=0.45, linewidth=0, zorder=1)
+            arrays, series = [], []
+            for shot, cols, style in ((old_shot, oc, "old"), (new_shot, nc, "new")):
+                if n in cols and n in shot.rig.outputs:
+                    o = shot.rig.outputs[n]
+                    t, v = hardware_series(cols[n][0], cols[n][1], o, t0, t1)
+                    model = shot.rig.devices[o.device].output_model
+                    series.append((style, t, v, model))
+                    arrays.append(v)
+            full = [r for shot, cols in ((old_shot, oc), (new_shot, nc)) if n in shot.rig.outputs
+                    for r in _full_range(cols.get(n), shot.rig.outputs[n])]
+            ylim = _ylim(arrays, out.kind, full)
+            peak = max(abs(ylim[0]), abs(ylim[1])) / 1.12 if out.kind != "digital" else 1.0
+            scale = _display_scale(peak, out.phys_unit if out.kind != "digital" else "")
+            for style, t, v, model in series:
+                td, vd = _decimate(t, v / scale[0], t0, t1)
+                if style == "old":
+                    line = _step(ax, td, vd, model, t1, color=OLD_COLOUR, linewidth=1.6, linestyle=(0, (2, 1.5)),
+                                 zorder=3)
+                else:
+                    line = _step(ax, td, vd, model, t1, color=colour, linewidth=1.1, zorder=3.2)
+                if line is not None:
+                    line.set_gid(f"{style}:{n}")
+            _style_lane(ax, out, colour, scale, ylim if out.kind == "digital" else (ylim[0] / scale[0], ylim[1] / scale[0]))
+            ax.set_label(f"lane:{n}")
+            _lane_label(ax, n + (f" [{scale[1]}]" if scale[1] else "") + ("  *" if n in windows else ""),
+                        colour, bold=n in windows)
+            _finding_lines(ax, shown)
+    _style_time_axis(axes, t0, t1, axes[0], axes[-1])
+    _legend(fig, shown, False, diff=True)
+    fig.seqgen_info = {"window": (t0, t1), "lanes": names, "differs": {k: v for k, v in windows.items()}}
+    return fig
+
+
+# --- writing ------------------------------------------------------------------------------------------------------
+
+
+def figure_bytes(fig, fmt: str) -> bytes:
+    """Render a figure; the bytes depend only on the figure (no dates, fixed SVG ids)."""
+    import matplotlib
+
+    fmt = fmt.lower()
+    if fmt not in FORMATS:
+        raise PlotError(f"cannot write '.{fmt}' pictures; use one of " + ", ".join("." + f for f in FORMATS))
+    meta = {"png": {"Software": None}, "svg": {"Date": None}, "pdf": {"CreationDate": None, "Producer": None}}[fmt]
+    buf = io.BytesIO()
+    with matplotlib.rc_context({"svg.hashsalt": "seqgen", "svg.fonttype": "path", "pdf.fonttype": 42}):
+        fig.savefig(buf, format=fmt, metadata=meta)
+    return buf.getvalue()
+
+
+def svg_text(fig) -> str:
+    """The figure as an SVG element (no XML prolog), for inlining in HTML."""
+    text = figure_bytes(fig, "svg").decode("utf-8")
+    start = text.find("<svg")
+    return text[start:] if start >= 0 else text
+
+
+def write_atomic(path: str | Path, data: bytes, *, force: bool = False) -> Path:
+    """Write bytes to a temporary file beside `path`, then rename it into place."""
+    path = Path(path)
+    if path.exists() and not force:
+        raise OutputExists(f"{path} exists; use --force to replace it")
+    if path.exists() and path.is_dir():
+        raise OutputExists(f"{path} is a folder; give a file name")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        mask = os.umask(0)
+        os.umask(mask)
+        os.chmod(tmp, 0o666 & ~mask)
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+    return path
+
+
+def format_of(path: str | Path) -> str:
+    ext = Path(path).suffix.lower().lstrip(".")
+    if ext not in FORMATS:
+        raise PlotError(f"'{path}': give a file ending in " + ", ".join("." + f for f in FORMATS))
+    return ext
+
+
+def save_figure(fig, path: str | Path, *, force: bool = False) -> Path:
+    return write_atomic(path, figure_bytes(fig, format_of(path)), force=force)
