@@ -362,7 +362,7 @@ def _execute_dask(src, tasks, address, on_result) -> None:
     try:
         fsrc = client.scatter(src, broadcast=True, hash=False)
         futs = {client.submit(_dask_run, fsrc, replace(t, out_dir=None), pure=False): t for t in tasks}
-        for fut in as_completed(list(futs)):
+        for fut in as_completed(list(futs), loop=client.loop):
             t = futs[fut]
             try:
                 result, payload = fut.result()
@@ -767,7 +767,9 @@ def report_text(scan: Scan, *, built: bool = False) -> str:
     lines = [f"{scan.file}: scan of {len(scan.plan)} shots: {scan.plan.describe()}"]
     for c in summarize(scan):
         acc = f", {c.accepted} accepted" if c.accepted else ""
-        lines.append(f"  {c.code} ({c.severity}{acc}): {len(c.shots)} of {len(scan.shots)} shots, {c.where}")
+        count = (f"in all {len(scan.shots)} shots" if len(c.shots) == len(scan.shots)
+                 else f"{len(c.shots)} of {len(scan.shots)} shots, {c.where}")
+        lines.append(f"  {c.code} ({c.severity}{acc}): {count}")
         r = scan.shots[c.shots[0]]
         lines.append(f"    first in shot {r.index} ({_values_text(scan.plan.names, r.values)}):")
         lines.extend("      " + ln for ln in format_text(c.first).splitlines())

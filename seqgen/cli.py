@@ -1,4 +1,4 @@
-"""Command line: seqgen check | build | show | diff | explain.
+"""Command line: seqgen check | build | show | diff | plot | explain.
 
 Exit codes: 0 no error findings, 1 error findings, 2 the command could not
 run (usage, unreadable file, output folder exists without --force).
@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -27,7 +28,12 @@ def _caution() -> str:
 
 def _report(res, args, out=None) -> int:
     out = out or sys.stdout  # looked up per call, so redirection (and tests) see the output
-    if getattr(args, "json", False):
+    fmt = _format(args)
+    if fmt == "sarif":
+        from .emit.sarif import to_sarif_json
+
+        out.write(to_sarif_json(res.findings, sources=res.sources.hashes if res.sources else None))
+    elif fmt == "json":
         out.write(json.dumps({"file": args.file, "summary": summary(res.findings),
                               "findings": [f.to_dict() for f in res.findings]}, indent=2, sort_keys=True) + "\n")
     else:
@@ -40,6 +46,11 @@ def _report(res, args, out=None) -> int:
     return _exit_code(res, args.file)
 
 
+def _format(args) -> str:
+    """--format text|json|sarif; --json is a synonym of --format json."""
+    return getattr(args, "format", None) or ("json" if getattr(args, "json", False) else "text")
+
+
 def _exit_code(res, file) -> int:
     if res.shot is None and any(f.code in _CANNOT_RUN_CODES and f.file in (file, str(file)) for f in res.findings):
         return EXIT_CANNOT_RUN
@@ -49,11 +60,105 @@ def _exit_code(res, file) -> int:
 def cmd_check(args) -> int:
     from .pipeline import preflight
 
+    report = getattr(args, "report", None)
+    if report and Path(report).exists() and not args.force:
+        print(f"seqgen: {report} exists; use --force to replace it", file=sys.stderr)
+        return EXIT_CANNOT_RUN
     scan = _plan_scan(args)
     if scan.is_scan:
-        return _scan_run(scan, args, build=False)
+        code = _scan_run(scan, args, build=False)
+        if report:  # the report shows the nominal shot: every param at its written value
+            wrote = _write_check_report(report, preflight(args.file), args, scanned=True)
+            code = code if wrote == EXIT_OK else wrote
+        return code
     res = preflight(args.file, sources=scan.sources)
-    return _report(res, args)
+    code = _report(res, args)
+    if report:
+        wrote = _write_check_report(report, res, args)
+        code = code if wrote == EXIT_OK else wrote
+    return code
+
+
+def _write_check_report(path, res, args, scanned: bool = False) -> int:
+    """check --report FILE: the self-contained HTML preflight report (seqgen/emit/report.py)."""
+    from .emit.report import OutputExists, write_report
+
+    try:
+        write_report(path, res, args.file, force=args.force, scanned=scanned)
+    except OutputExists as exc:
+        print(f"seqgen: {exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    except OSError as exc:
+        print(f"seqgen: cannot write the report to {path}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    print(f"report written to {path}", file=sys.stderr if _format(args) != "text" else sys.stdout)
+    return EXIT_OK
+
+
+def cmd_plot(args) -> int:
+    """plot FILE [NEW] -o OUT: the timeline of one sequence, or two versions overlaid with their differences."""
+    from .emit.plot import OutputExists, PlotError, diff_figure, format_of, parse_channels, parse_time, \
+        save_figure, timeline_figure
+    from .findings import has_errors
+    from .pipeline import preflight
+
+    try:
+        if len(args.files) not in (1, 2):
+            raise PlotError("plot takes one sequence file, or two (OLD NEW) to overlay them")
+        format_of(args.output)
+        t_from = parse_time(args.t_from) if args.t_from is not None else None
+        t_to = parse_time(args.t_to) if args.t_to is not None else None
+    except PlotError as exc:
+        print(f"seqgen: {exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    if Path(args.output).exists() and not args.force:
+        print(f"seqgen: {args.output} exists; use --force to replace it", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    results = [preflight(f) for f in args.files]
+    for f, res in zip(args.files, results):
+        if res.shot is None:  # nothing to draw: show why
+            args.file = f
+            code = _report(res, args)
+            print(f"seqgen: no picture: {f} could not be resolved", file=sys.stderr)
+            return code if code == EXIT_CANNOT_RUN else EXIT_FINDINGS
+    try:
+        channels = parse_channels(args.channels)
+        if len(results) == 1:
+            res = results[0]
+            fig = timeline_figure(res.shot, res.compiled, res.findings, t_from=t_from, t_to=t_to, channels=channels,
+                                  physics=not args.no_physics)
+        else:
+            old, new = results
+            fig = diff_figure(old.shot, old.compiled, new.shot, new.compiled, old_label=args.files[0],
+                              new_label=args.files[1], t_from=t_from, t_to=t_to, channels=channels,
+                              findings=new.findings)
+        save_figure(fig, args.output, force=args.force)
+    except PlotError as exc:
+        print(f"seqgen: {exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    except OutputExists as exc:
+        print(f"seqgen: {exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    except OSError as exc:
+        print(f"seqgen: cannot write {args.output}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    info = fig.seqgen_info
+    errors = any(has_errors(r.findings) for r in results)
+    if args.json:
+        out = {"output": str(args.output), "files": list(args.files), "window_s": list(info["window"]),
+               "lanes": list(info["lanes"]), "summary": [summary(r.findings) for r in results]}
+        if "differs" in info:
+            out["differs"] = {k: [list(w) for w in v] for k, v in info["differs"].items()}
+        print(json.dumps(out, indent=2, sort_keys=True))
+    else:
+        t0, t1 = info["window"]
+        print(f"wrote {args.output}: {len(info['lanes'])} lanes, {format_value(t0, 's')} to {format_value(t1, 's')}"
+              + (f"; {len(info['differs'])} output(s) differ" if "differs" in info else ""))
+        for r in results:
+            s = summary(r.findings)
+            if s["error"]:
+                print(f"  {r.shot.file}: {s['error']} error finding(s) (run 'seqgen check' for details)")
+    return EXIT_FINDINGS if errors else EXIT_OK
 
 
 def _plan_scan(args):
@@ -69,7 +174,11 @@ def _scan_run(scan, args, *, build: bool) -> int:
     from .findings import has_errors
 
     if scan.plan is None or has_errors(scan.findings):  # the scan itself cannot be expanded
-        if args.json:
+        if _format(args) == "sarif":
+            from .emit.sarif import scan_to_sarif_json
+
+            sys.stdout.write(scan_to_sarif_json(scan))
+        elif args.json:
             print(json.dumps(scan_json(scan), indent=2, sort_keys=True))
         else:
             for f in scan.findings:
@@ -89,7 +198,11 @@ def _scan_run(scan, args, *, build: bool) -> int:
     except OSError as exc:
         print(f"seqgen: cannot write the scan to {args.output}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_CANNOT_RUN
-    if args.json:
+    if _format(args) == "sarif":
+        from .emit.sarif import scan_to_sarif_json
+
+        sys.stdout.write(scan_to_sarif_json(scan))
+    elif args.json:
         print(json.dumps(scan_json(scan), indent=2, sort_keys=True))
     else:
         print(report_text(scan, built=build))
@@ -215,7 +328,14 @@ def build_parser() -> argparse.ArgumentParser:
 
     c = sub.add_parser("check", help="preflight a sequence: schema, timing, hardware, safety, physics")
     c.add_argument("file", help="sequence file (.yaml)")
-    c.add_argument("--json", action="store_true", help="findings as JSON")
+    c.add_argument("--json", action="store_true", help="findings as JSON (same as --format json)")
+    c.add_argument("--format", choices=("text", "json", "sarif"), default=None,
+                   help="output format: text (default), json, or sarif (SARIF 2.1.0 for code-review tools)")
+    c.add_argument("--allow-outside-root", action="store_true",
+                   help="let use: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+    c.add_argument("--report", metavar="FILE", default=None,
+                   help="also write a self-contained HTML preflight report (findings, physics notes, timeline)")
+    c.add_argument("--force", action="store_true", help="replace an existing --report file")
     _scan_options(c)
     c.set_defaults(func=cmd_check)
 
@@ -224,6 +344,8 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("-o", "--output", required=True, help="build folder to write")
     b.add_argument("--force", action="store_true", help="replace an existing build folder")
     b.add_argument("--json", action="store_true", help="summary as JSON")
+    b.add_argument("--allow-outside-root", action="store_true",
+                   help="let use: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     _scan_options(b)
     b.set_defaults(func=cmd_build)
 
@@ -231,6 +353,8 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("file", help="sequence file (.yaml)")
     s.add_argument("--physics", action="store_true", help="also list the physics predictions per stage")
     s.add_argument("--json", action="store_true", help="timeline as JSON")
+    s.add_argument("--allow-outside-root", action="store_true",
+                   help="let use: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     s.set_defaults(func=cmd_show)
 
     d = sub.add_parser("diff", help="semantic diff of two versions: findings, outputs, timeline, rig")
@@ -241,6 +365,18 @@ def build_parser() -> argparse.ArgumentParser:
                    help="run as git's external diff driver (git passes PATH OLD-FILE OLD-HEX OLD-MODE NEW-FILE ...)")
     d.set_defaults(func=cmd_diff)
 
+    g = sub.add_parser("plot", help="draw the timeline (PNG, SVG or PDF); two files: overlay and mark differences")
+    g.add_argument("files", nargs="+", metavar="FILE", help="sequence file, or OLD NEW to overlay two versions")
+    g.add_argument("-o", "--output", required=True, help="picture to write: .png, .svg or .pdf")
+    g.add_argument("--from", dest="t_from", default=None, metavar="TIME", help="start of the window, e.g. '2.6 s'")
+    g.add_argument("--to", dest="t_to", default=None, metavar="TIME", help="end of the window, e.g. '2.75 s'")
+    g.add_argument("--channels", default=None, metavar="A,B",
+                   help="only these outputs (comma separated; glob patterns like 'cross_*'; channel or device names)")
+    g.add_argument("--no-physics", action="store_true", help="leave out the physics panels")
+    g.add_argument("--force", action="store_true", help="replace an existing picture")
+    g.add_argument("--json", action="store_true", help="what was drawn, as JSON")
+    g.set_defaults(func=cmd_plot)
+
     e = sub.add_parser("explain", help="explain a finding code (or 'all' to list them)")
     e.add_argument("code", nargs="?", help="finding code, e.g. timing.overlap")
     e.set_defaults(func=cmd_explain)
@@ -250,12 +386,22 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    if getattr(args, "format", None) == "json":
+        args.json = True  # --format json is --json
+    allow_before = os.environ.get("SEQGEN_ALLOW_OUTSIDE")
+    if getattr(args, "allow_outside_root", False):  # seen by every loader, scan workers included
+        os.environ["SEQGEN_ALLOW_OUTSIDE"] = "1"
     try:
         return args.func(args)
     except KeyboardInterrupt:
         return 130
     except BrokenPipeError:
         return EXIT_OK
+    finally:
+        if allow_before is None:
+            os.environ.pop("SEQGEN_ALLOW_OUTSIDE", None)
+        else:
+            os.environ["SEQGEN_ALLOW_OUTSIDE"] = allow_before
 
 
 if __name__ == "__main__":  # pragma: no cover

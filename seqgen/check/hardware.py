@@ -54,14 +54,23 @@ def hard_limits(shot):
 def pulse_width(shot):
     """A digital pulse shorter than the channel's declared minimum width (a
     shutter driver or a camera trigger input that needs a minimum high time)."""
+    import bisect
+
+    set_times: dict = {}  # (output, block) -> sorted start times of its sets (one pass, not one scan per pulse)
+    for x in shot.segments:
+        if x.kind == "set":
+            set_times.setdefault((x.output, x.block), []).append(x.t0)
+    for times in set_times.values():
+        times.sort()
     for s in shot.segments:
         out = shot.rig.outputs[s.output]
         if out.kind != "digital" or not out.min_pulse_s or not s.action.endswith(":end"):
             continue
-        # the matching start is the last set on this output before this end
-        starts = [x for x in shot.segments if x.output == s.output and x.kind == "set" and x.t0 < s.t0 and x.block == s.block]
-        if starts:
-            width = s.t0 - max(starts, key=lambda x: x.t0).t0
+        # the matching start is the last set on this output (in this block) before this end
+        times = set_times.get((s.output, s.block), [])
+        k = bisect.bisect_left(times, s.t0)
+        if k:
+            width = s.t0 - times[k - 1]
             if width < out.min_pulse_s:
                 yield make("hardware.pulse-too-short", f"pulse on '{out.name}' lasts {width * 1e6:.4g} us, shorter than its "
                            f"minimum {out.min_pulse_s * 1e6:.4g} us", s.pos, block=s.block, time_s=s.t0,

@@ -358,6 +358,15 @@ def analyse(shot, act):
     return rep
 
 
+def _hz_text(f_hz: float) -> str:
+    a = abs(f_hz)
+    if a >= 1e6:
+        return f"{f_hz / 1e6:.6g} MHz"
+    if a >= 1e3:
+        return f"{f_hz / 1e3:.5g} kHz"
+    return f"{f_hz:.4g} Hz"
+
+
 def _energy_text(e_j: float) -> str:
     t = e_j / sc.k
     temp = f"{t * 1e9:.4g} nK" if abs(t) < 1e-6 else f"{t * 1e6:.4g} uK"
@@ -442,11 +451,16 @@ def not_tunnelling(shot):
     kick, or correct `expect`."""
     for act, rep in _each(shot):
         e, v0, want = rep["E_mean"], rep["V0"], rep["expect"]
-        if want == "tunnelling" and e >= v0:
+        if want == "tunnelling" and v0 <= 0:
+            yield make("physics.not-tunnelling", f"expect: tunnelling, but '{act.args['beam']}' is red-detuned for "
+                       f"{shot.sample.species}: it makes a well ({_energy_text(v0)}), not a barrier", act.pos,
+                       block=act.block, time_s=act.t0, hint="use a beam blue of the D lines for a barrier",
+                       data={"E_J": e, "V0_J": v0})
+        elif want == "tunnelling" and e >= v0:
             yield make("physics.not-tunnelling", f"expect: tunnelling, but the mean kinetic energy {_energy_text(e)} "
                        f"is above the barrier top {_energy_text(v0)}", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"raise the sheet power above {act.args['power'] * e / v0 * 1e3:.3g} mW or kick less"
-                       if v0 > 0 else "use a blue-detuned sheet", data={"E_J": e, "V0_J": v0})
+                       hint=f"raise the sheet power above {act.args['power'] * e / v0 * 1e3:.3g} mW or kick less",
+                       data={"E_J": e, "V0_J": v0})
         elif want == "over_barrier" and e < v0:
             yield make("physics.not-tunnelling", f"expect: over_barrier, but the mean kinetic energy {_energy_text(e)} "
                        f"is below the barrier top {_energy_text(v0)}", act.pos, block=act.block, time_s=act.t0,
@@ -464,7 +478,7 @@ def _rotation_text(rep):
     txt = (f"rotation of the transmitted spin {rep['rotation']:.3g} rad (spread {rep['rotation_spread']:.2g}) on "
            f"|F={d['initial'][0]}, mF={d['initial'][1]}> -> |F={d['partner'][0]}, mF={d['partner'][1]}>; peak Rabi frequency "
            f"2 pi x {d['rabi_peak'] / (2 * math.pi):.4g} Hz (circular polarisation assumed), "
-           f"detuning {d['detuning_hz'] / 1e3:.4g} kHz from the bare line")
+           f"detuning {_hz_text(d['detuning_hz'])} from the bare line")
     if d["far_off"]:
         txt += " (far off resonance for the transit time: no transfer)"
     return txt + (" (no modulation frequency: taken on resonance)" if d["assumed_resonant"] else "")
@@ -538,7 +552,7 @@ def rotation_unresolvable(shot):
                     if off else "raise the modulation depth, or transmit more atoms")
             yield make("physics.rotation-unresolvable", f"rotation {rep['rotation']:.3g} rad of the transmitted spin is below "
                        f"the shot noise {noise:.3g} rad of {n:.3g} transmitted atoms (detuning "
-                       f"{d['detuning_hz'] / 1e3:.4g} kHz)", act.pos, block=act.block, time_s=act.t0, hint=hint,
+                       f"{_hz_text(d['detuning_hz'])})", act.pos, block=act.block, time_s=act.t0, hint=hint,
                        data={"rotation_rad": rep["rotation"], "noise_rad": noise})
 
 
@@ -550,7 +564,7 @@ def report(shot) -> list[dict]:
     rows = []
     for act, rep in _each(shot):
         direction = "+" if rep["signed"] > 0 else "-"
-        items = [f"incident {rep['speed'] * 1e3:.4g} mm/s ({rep['velocity_source']}; along {direction} its axis), "
+        items = [f"incident {rep['speed'] * 1e3:.4g} mm/s ({rep['velocity_source']}, towards {direction} along its axis), "
                  f"spread {rep['sigma_v'] * 1e3:.2g} mm/s ({rep['spread_kind']})",
                  f"barrier V0 {_energy_text(rep['V0'])}, mean kinetic energy {_energy_text(rep['E_mean'])}",
                  f"transmitted fraction {rep['T']:.3g} (spread {rep['T_spread']:.2g})"]

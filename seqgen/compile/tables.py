@@ -15,7 +15,7 @@ from ..calibration import to_output
 from ..findings import Finding, _fmt_time, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from ..registry import declare
-from .sampling import quantize_times, quantize_values, sample_ramp
+from .sampling import quantize_times, quantize_values, sample_ramp_report
 from .shapes import shape_fraction
 
 BEFORE_START = declare("timing.before-start", "error", """
@@ -24,7 +24,26 @@ BEFORE_START = declare("timing.before-start", "error", """
     start of the sequence (t = 0). Start the block later, or anchor the
     sequence so there is room for the latency.""", "seqgen's own rule", "compile")
 
+RAMP_UNDERSAMPLED = declare("hardware.ramp-undersampled", "warning", """
+    A ramp changes faster than its device can follow within the ramp's
+    tolerance: rows of a device table may not be closer than the device's
+    minimum interval (nor than one tick), so between two rows the output holds
+    (or, on a linearly interpolating device, draws a straight line) while the
+    intended curve moves on. The message gives the largest deviation from the
+    intended curve found at the device's ticks (output units) and how many
+    times the tolerance that is. The build is still written, with the closest
+    rows the device allows. Make the ramp slower, loosen its `tolerance:` (or
+    the channel's), or drive the channel from a device with a shorter minimum
+    interval. A step-and-hold output approximating a curve of slope y' with
+    rows h apart is off by up to y' h / 2; interpolating rows, by up to
+    h^2 |y''| / 8 (A Practical Guide to Splines, Springer (1978)).""",
+    "the rig file's min_interval and timebase per device; piecewise-constant and piecewise-linear "
+    "approximation error bounds (A Practical Guide to Splines, Springer (1978))", "compile")
+
 ENVELOPES = ("blackman", "gaussian")
+_VERIFY_CHUNK = 1 << 20    # ticks evaluated at once when checking a sampled ramp against its curve
+_VERIFY_MAX = 1 << 23      # longer ramps are checked on an evenly spaced subset of about this many ticks
+_RETRIES = 4               # re-samplings with a tighter tolerance when ticks between grid points miss it
 
 
 def _envelope(shape: str, s: np.ndarray) -> np.ndarray:
@@ -48,7 +67,9 @@ def _value_function(out: Output, seg, latency: float):
             frac = _envelope(seg.shape, s)
         else:
             frac = shape_fraction(seg.shape, s, duration_s=span, tau_s=seg.tau_s, table=seg.table)
-        return to_output(out, v0 + (v1 - v0) * frac)
+        # v0 (1 - f) + v1 f lands on v0 and v1 exactly at f = 0 and f = 1
+        # (v0 + (v1 - v0) f can miss v1 by an ulp, enough to flip a DAC code tie)
+        return to_output(out, v0 * (1.0 - frac) + v1 * frac)
 
     return value_at
 
@@ -94,8 +115,10 @@ def output_rows(out: Output, segments, device, findings: list, rows_per_segment:
             if k1 <= k0:
                 k1 = k0 + 1
             tol = seg.tolerance if seg.tolerance is not None else out.sample_tolerance
-            rt, rv = _sample_on_grid(_value_function(out, seg, lat), k0, k1, device, tol, linear)
-            rows_per_segment[(seg.block, out.name, seg.t0)] = int(len(rt))
+            rt, rv, err, limited = _sample_on_grid(_value_function(out, seg, lat), k0, k1, device, tol, linear)
+            rows_per_segment[(seg.block, out.name, seg.t0)] = (k0, k1)
+            if limited and seg.t1 - seg.t0 >= device.min_interval_ticks * tick:  # shorter: timing.ramp-too-fast
+                findings.append(_undersampled(out, seg, device, err, tol, len(rt)))
             ticks.append(np.asarray(rt, dtype=np.int64))
             vals.append(np.asarray(rv, dtype=float))
             flexible.append(np.r_[False, np.ones(len(rt) - 2, dtype=bool), False] if len(rt) >= 2 else np.zeros(len(rt), bool))
@@ -111,25 +134,81 @@ def output_rows(out: Output, segments, device, findings: list, rows_per_segment:
     return t[keep], v[keep], fl[keep]
 
 
+def _undersampled(out: Output, seg, device, err: float, tol: float, rows: int) -> Finding:
+    dt = device.min_interval_ticks * device.tick_s
+    unit = f" {out.unit}" if out.unit else ""
+    lsb = f" ({err / out.lsb:.3g} LSB)" if out.lsb > 0 else ""
+    return make(RAMP_UNDERSAMPLED,
+                f"{seg.shape} ramp on '{out.name}' deviates from its curve by up to {err:.4g}{unit}{lsb}, "
+                f"{err / tol:.3g} times its tolerance {tol:.4g}{unit} (misses it by {err - tol:.4g}{unit}): "
+                f"{rows} rows over {_fmt_time(seg.t1 - seg.t0)}, no closer than {device.name}'s minimum interval "
+                f"{_fmt_time(dt)}", seg.pos, block=seg.block, time_s=seg.t0,
+                hint=f"make the ramp about {(err / tol) ** (0.5 if device.output_model == 'linear' else 1.0):.3g} "
+                     f"times longer, loosen its tolerance to {err:.3g}{unit}, "
+                     "or use a device with a shorter minimum interval",
+                data={"max_error": err, "tolerance": tol, "rows": rows, "min_interval_s": dt})
+
+
 def _sample_on_grid(value_at, k0: int, k1: int, device, tol: float, linear: bool):
     """Sample a ramp with interior rows on the device-wide grid of its minimum interval.
 
     Putting every ramp's interior rows on multiples of the minimum interval keeps
     rows of different outputs of one device from landing closer together than
     the device can update; the endpoints stay exactly where the sequence puts them.
+    Returns (ticks, values, largest deviation from the curve at the device's
+    ticks, whether that deviation is over tol because rows cannot be closer).
     """
     m = device.min_interval_ticks
+    tick = device.tick_s
     model = "linear" if linear else "hold"
     if m <= 1:
-        return sample_ramp(value_at, k0, k1, device.tick_s, tolerance=tol, model=model)
+        r = sample_ramp_report(value_at, k0, k1, tick, tolerance=tol, model=model)
+        return r.ticks, r.values, r.max_error, r.min_interval_limited
     g0 = -(-(k0 + m) // m)
     g1 = (k1 - m) // m
     ends = np.array([k0, k1], dtype=np.int64)
-    if g1 <= g0:
-        return ends, np.asarray(value_at(ends * device.tick_s), dtype=float)
-    gt, gv = sample_ramp(value_at, g0, g1, device.tick_s * m, tolerance=tol, model=model)
-    y_ends = np.asarray(value_at(ends * device.tick_s), dtype=float)
-    return np.r_[k0, np.asarray(gt, dtype=np.int64) * m, k1], np.r_[y_ends[0], gv, y_ends[1]]
+    y_ends = np.asarray(value_at(ends * tick), dtype=float)
+    if g1 < g0:
+        ticks, vals = ends, y_ends
+        return ticks, vals, _deviation(value_at, ticks, vals, tick, linear), True
+    # the grid sampler sees only grid points: the ticks between them are checked
+    # here, and the grid is re-sampled with a tighter tolerance while they miss it
+    target, rows, best = tol, -1, None
+    for _ in range(_RETRIES):
+        r = sample_ramp_report(value_at, g0, g1, tick * m, tolerance=target, model=model)
+        ticks = np.concatenate(([k0], r.ticks * m, [k1]))
+        vals = np.concatenate((y_ends[:1], r.values, y_ends[1:]))
+        err = _deviation(value_at, ticks, vals, tick, linear)
+        if best is None or err < best[2]:
+            best = (ticks, vals, err)
+        if err <= tol * (1 + 1e-9) or r.min_interval_limited or r.rows == rows:
+            break
+        rows = r.rows
+        # hold errors shrink in proportion to the row spacing, linear ones faster
+        target *= 0.9 * tol / err
+    ticks, vals, err = best
+    return ticks, vals, err, err > tol * (1 + 1e-9)
+
+
+def _deviation(value_at, ticks: np.ndarray, vals: np.ndarray, tick_s: float, linear: bool) -> float:
+    """Largest |reconstructed - curve| over the ramp's ticks [ticks[0], ticks[-1]].
+
+    Hold: each row's value holds until the next row; linear: straight lines
+    between rows. Ramps longer than _VERIFY_MAX ticks are checked on an evenly
+    spaced subset of ticks (the rows' own ticks always included)."""
+    k0, k1 = int(ticks[0]), int(ticks[-1])
+    n = k1 - k0
+    stride = max(1, -(-n // _VERIFY_MAX))
+    worst = 0.0
+    for c0 in range(0, n + 1, _VERIFY_CHUNK * stride):
+        k = np.arange(k0 + c0, min(k1, k0 + c0 + _VERIFY_CHUNK * stride - 1) + 1, stride, dtype=np.int64)
+        y = np.asarray(value_at(k * tick_s), dtype=float)
+        if linear:
+            recon = np.interp(k, ticks, vals)
+        else:
+            recon = vals[np.searchsorted(ticks, k, side="right") - 1]
+        worst = max(worst, float(np.max(np.abs(recon - y))))
+    return worst
 
 
 def _drop_crowded_rows(ticks: np.ndarray, flexible: np.ndarray, m: int) -> np.ndarray:
@@ -159,7 +238,44 @@ def _quantize(out: Output, values: np.ndarray) -> np.ndarray:
     return quantize_values(clipped, out.lo, out.hi, out.bits)[1]
 
 
+def _sorted_unique(x: np.ndarray) -> np.ndarray:
+    """Sorted distinct values of an int array made of a few sorted runs (a stable
+    sort merges runs quickly; np.unique's hash path is slow on tens of millions)."""
+    a = np.sort(x, kind="stable")
+    if len(a) < 2:
+        return a
+    keep = np.empty(len(a), dtype=bool)
+    keep[0] = True
+    np.not_equal(a[1:], a[:-1], out=keep[1:])
+    return a[keep]
+
+
+def _needed(q: np.ndarray, linear: bool) -> np.ndarray:
+    """Rows of one output (quantized values q) that the device needs.
+
+    Hold: rows that change the code. Linear: all but those inside a run of equal
+    codes (dropping a row whose neighbours differ would bend the interpolation)."""
+    need = np.ones(len(q), dtype=bool)
+    if len(q) < 2:
+        return need
+    if linear:
+        if len(q) > 2:
+            need[1:-1] = (q[1:-1] != q[:-2]) | (q[1:-1] != q[2:])
+    else:
+        np.not_equal(q[1:], q[:-1], out=need[1:])
+    return need
+
+
 def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
+    """One DeviceTable per device; findings from compiling (latency, undersampling).
+
+    Per output: rows from its segments, quantized to the DAC code, reduced to
+    the rows the device needs. Per device: the union of those ticks (minus
+    ramp-interior rows crowding another row closer than the minimum interval),
+    then one column per output written straight into the value matrix (hold:
+    each needed row's code repeated up to the next one; linear: interpolated
+    and quantized). The matrix is allocated once at its final size.
+    """
     findings: list[Finding] = []
     rig = shot.rig
     by_output: dict[str, list] = {}
@@ -170,33 +286,43 @@ def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
         outs = [o for o in rig.outputs.values() if o.device == dev_name]
         if not outs:
             continue
+        linear = device.output_model == "linear"
         end_tick = int(quantize_times(np.array([shot.duration_s]), device.tick_s)[0])
-        rows_per_segment: dict = {}
-        per_out = []
+        end = np.array([end_tick], dtype=np.int64)
+        per_out, windows = [], []
         for o in outs:
             segs = sorted(by_output.get(o.name, []), key=lambda s: (s.t0, 0 if s.action.endswith(":end") else 1))
-            per_out.append(output_rows(o, segs, device, findings, rows_per_segment))
-        cat_t = np.concatenate([t for t, _, _ in per_out] + [np.array([end_tick], dtype=np.int64)])
-        cat_f = np.concatenate([f for _, _, f in per_out] + [np.zeros(1, dtype=bool)])
-        all_ticks, inverse = np.unique(cat_t, return_inverse=True)
-        # a tick is flexible only if every row on it is a ramp-interior row
-        fixed = np.zeros(len(all_ticks), dtype=bool)
-        np.logical_or.at(fixed, inverse, ~cat_f)
-        if device.min_interval_ticks > 1:
-            all_ticks = all_ticks[_drop_crowded_rows(all_ticks, ~fixed, device.min_interval_ticks)]
-        values = np.empty((len(all_ticks), len(outs)), dtype=float)
-        for j, (o, (t, v, _)) in enumerate(zip(outs, per_out)):
-            if device.output_model == "linear" and len(t) > 1:
-                col = np.interp(all_ticks, t, v)
+            spans: dict = {}
+            t, v, fl = output_rows(o, segs, device, findings, spans)
+            q = _quantize(o, v)
+            need = _needed(q, linear)
+            per_out.append((t, v, q, need, fl))
+            windows.append(spans)
+        ticks = _sorted_unique(np.concatenate([t[need] for t, _, _, need, _ in per_out] + [end]))
+        m = device.min_interval_ticks
+        if m > 1 and len(ticks) > 1 and np.any(np.diff(ticks) < m):
+            # a tick is flexible only if every needed row on it is a ramp-interior row
+            fixed = _sorted_unique(np.concatenate([t[need & ~fl] for t, _, _, need, fl in per_out] + [end]))
+            pos = np.minimum(np.searchsorted(fixed, ticks), len(fixed) - 1)
+            ticks = ticks[_drop_crowded_rows(ticks, fixed[pos] != ticks, m)]
+        n = len(ticks)
+        values = np.empty((n, len(outs)), dtype=float)
+        rows_per_segment: dict = {}
+        for j, (o, (t, v, q, need, _)) in enumerate(zip(outs, per_out)):
+            tn = t[need]
+            p = np.searchsorted(ticks, tn)  # rows of the table before each needed row
+            if linear and len(t) > 1:
+                values[:, j] = _quantize(o, np.interp(ticks, t, v))
             else:
-                col = v[np.searchsorted(t, all_ticks, side="right") - 1]
-            values[:, j] = _quantize(o, col)
-        # drop rows that change nothing (e.g. a write of the value already held)
-        if len(all_ticks) > 1:
-            changed = np.ones(len(all_ticks), dtype=bool)
-            changed[1:] = np.any(values[1:] != values[:-1], axis=1)
-            changed[-1] = True  # keep the end row: it marks the sequence end
-            all_ticks, values = all_ticks[changed], values[changed]
-        tables.append(DeviceTable(dev_name, device.tick_s, all_ticks, tuple(o.name for o in outs), values,
+                # hold: the code of the last needed row at or before each table tick;
+                # tick 0 is always a needed row, so p[0] == 0
+                values[:, j] = np.repeat(q[need], np.diff(p, append=n))
+            # rows this output's segments use: its needed rows that made it into the table
+            survived = tn == ticks[np.minimum(p, n - 1)]
+            cum = np.concatenate(([0], np.cumsum(survived)))
+            for key, (k0, k1) in windows[j].items():
+                a, b = np.searchsorted(tn, [k0, k1 + 1])
+                rows_per_segment[key] = int(cum[b] - cum[a])
+        tables.append(DeviceTable(dev_name, device.tick_s, ticks, tuple(o.name for o in outs), values,
                                   tuple(o.unit for o in outs), tuple(o.kind for o in outs), rows_per_segment))
     return Compiled(tuple(tables), shot.duration_s), findings

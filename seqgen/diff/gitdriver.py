@@ -72,13 +72,12 @@ def git_external_diff(argv: list, *, as_json: bool = False, out=None) -> int:
     if as_json:
         out.write(to_json(rep) + "\n")
         return 0
-    text = to_text(rep)
-    if rep.identical and old_text != new_text:
-        text = text.rstrip("\n") + " (the text changed: layout, comments, key order or equivalent units)\n"
-    out.write(text)
+    out.write(to_text(rep))
     if va.shot is None or vb.shot is None:
-        out.write("line diff (a version did not resolve):\n")
+        out.write("line diff (a version does not resolve on its own, e.g. a file other sequences use):\n")
         out.writelines(_line_diff(old_text, new_text, la, lb))
+    elif rep.identical and old_text != new_text:
+        out.write("note: the text changed only in layout, comments, key order or equivalent units\n")
     return 0
 
 

@@ -35,22 +35,40 @@ def tolerance(ca: Column, cb: Column, va: np.ndarray, vb: np.ndarray) -> float:
     return 1e-9 * span
 
 
-def _evaluate(ticks: np.ndarray, col: np.ndarray, at: np.ndarray, linear: bool) -> np.ndarray:
-    if linear and len(ticks) > 1:
-        return np.interp(at, ticks, col)
-    idx = np.searchsorted(ticks, at, side="right") - 1
-    return col[np.clip(idx, 0, len(col) - 1)]
+def _union(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Sorted union of two sorted arrays (concatenate, sort, drop repeats)."""
+    c = np.concatenate([x, y])
+    c.sort(kind="stable")
+    if len(c) > 1:
+        c = c[np.r_[True, c[1:] != c[:-1]]]
+    return c
 
 
-def compare_column(ta, ya, tick_a, lin_a, tb, yb, tick_b, lin_b, tol):
-    """Windows where two sampled columns differ: (union times s, starts, ends, per-window max |dy|, arg max, ya_u, yb_u)."""
-    if tick_a == tick_b:
-        xa, xb, scale = ta, tb, tick_a
-    else:  # different timebases (a rig change): compare on times
-        xa, xb, scale = ta * tick_a, tb * tick_b, 1.0
-    u = np.union1d(xa, xb)
-    ua = _evaluate(xa, ya, u, lin_a)
-    ub = _evaluate(xb, yb, u, lin_b)
+class DeviceGrid:
+    """Both tables of one device on the union of their ticks (or times, when the timebases differ)."""
+
+    def __init__(self, a, b, lin_a: bool, lin_b: bool):
+        if a.tick_s == b.tick_s:
+            xa, xb, scale = a.ticks, b.ticks, a.tick_s
+        else:  # different timebases (a rig change): compare on times
+            xa, xb, scale = a.ticks * a.tick_s, b.ticks * b.tick_s, 1.0
+        self.xa, self.xb, self.lin_a, self.lin_b = xa, xb, lin_a, lin_b
+        self.u = _union(xa, xb)
+        self.times = self.u * scale
+        # hold model: the row in force at each union point (the last row at or before it)
+        self.ia = np.clip(np.searchsorted(xa, self.u, side="right") - 1, 0, max(len(xa) - 1, 0))
+        self.ib = np.clip(np.searchsorted(xb, self.u, side="right") - 1, 0, max(len(xb) - 1, 0))
+
+    def old(self, col: np.ndarray) -> np.ndarray:
+        return np.interp(self.u, self.xa, col) if self.lin_a and len(col) > 1 else col[self.ia]
+
+    def new(self, col: np.ndarray) -> np.ndarray:
+        return np.interp(self.u, self.xb, col) if self.lin_b and len(col) > 1 else col[self.ib]
+
+
+def compare_column(grid: DeviceGrid, ya: np.ndarray, yb: np.ndarray, tol: float):
+    """Windows where a column differs: (starts, ends, peak, arg max, old and new values on the grid, |dy|) or None."""
+    ua, ub = grid.old(ya), grid.new(yb)
     d = np.abs(ub - ua)
     bad = d > tol
     if not bad.any():
@@ -65,8 +83,7 @@ def compare_column(ta, ya, tick_a, lin_a, tb, yb, tick_b, lin_b, tol):
     first = np.unique(wid[order], return_index=True)[1]
     arg = pos[order][first]
     peak = d[arg]
-    times = u * scale
-    return times, starts, ends, peak, arg, ua, ub
+    return starts, ends, peak, arg, ua, ub, bad
 
 
 def output_changes(old: Version, new: Version) -> list:
@@ -76,7 +93,7 @@ def output_changes(old: Version, new: Version) -> list:
     if old.duration_s is not None and new.duration_s is not None and not fmt.close_t(old.duration_s, new.duration_s):
         out.append(Change("output", "duration-changed", "duration",
                           f"sequence duration {fmt.t(old.duration_s)} -> {fmt.t(new.duration_s)} "
-                          f"({fmt.dt(new.duration_s - old.duration_s)})", fmt.t(old.duration_s), fmt.t(new.duration_s), 70,
+                          f"({fmt.dt(new.duration_s - old.duration_s)})", fmt.t(old.duration_s), fmt.t(new.duration_s), 95,
                           {"old_s": old.duration_s, "new_s": new.duration_s}))
     for dev in sorted(set(ta) - set(tb)):
         out.append(Change("output", "device-removed", dev, f"device {dev} no longer has a table ({len(ta[dev].ticks)} rows)",
@@ -89,7 +106,8 @@ def output_changes(old: Version, new: Version) -> list:
         if len(a.ticks) != len(b.ticks):
             out.append(Change("output", "rows-changed", dev, f"device {dev}: {len(a.ticks)} -> {len(b.ticks)} rows "
                               f"({len(b.ticks) - len(a.ticks):+d})", str(len(a.ticks)), str(len(b.ticks)), 10,
-                              {"old": int(len(a.ticks)), "new": int(len(b.ticks))}))
+                              {"old": int(len(a.ticks)), "new": int(len(b.ticks)),
+                               "delta": int(len(b.ticks)) - int(len(a.ticks))}))
         cols_a = {c: j for j, c in enumerate(a.columns)}
         cols_b = {c: j for j, c in enumerate(b.columns)}
         for c in sorted(set(cols_a) - set(cols_b)):
@@ -103,22 +121,27 @@ def output_changes(old: Version, new: Version) -> list:
                               {"device": dev}))
         lin_a = old.devices.get(dev, {}).get("output_model") == "linear"
         lin_b = new.devices.get(dev, {}).get("output_model") == "linear"
-        for c in sorted(set(cols_a) & set(cols_b)):
-            ch = _column_change(c, dev, a, b, cols_a[c], cols_b[c], old.columns.get(c), new.columns.get(c), lin_a, lin_b)
+        common = sorted(set(cols_a) & set(cols_b))
+        if not common:
+            continue
+        grid = DeviceGrid(a, b, lin_a, lin_b)
+        for c in common:
+            ch = _column_change(c, dev, a, b, cols_a[c], cols_b[c], old.columns.get(c), new.columns.get(c), grid)
             if ch is not None:
                 out.append(ch)
     return out
 
 
-def _column_change(name, dev, a, b, ja, jb, ca, cb, lin_a, lin_b):
+def _column_change(name, dev, a, b, ja, jb, ca, cb, grid: DeviceGrid):
     ya, yb = a.values[:, ja], b.values[:, jb]
     ca = ca or Column(name, dev, a.kinds[ja], a.units[ja])
     cb = cb or Column(name, dev, b.kinds[jb], b.units[jb])
     tol = tolerance(ca, cb, ya, yb)
-    res = compare_column(a.ticks, ya, a.tick_s, lin_a, b.ticks, yb, b.tick_s, lin_b, tol)
+    res = compare_column(grid, ya, yb, tol)
     if res is None:
         return None
-    times, starts, ends, peak, arg, ua, ub = res
+    starts, ends, peak, arg, ua, ub, bad = res
+    times = grid.times
     end_time = float(times[-1])
     unit = b.units[jb]
     phys = ca.output is not None and cb.output is not None and (ca.output.calibration is not None
@@ -150,7 +173,7 @@ def _column_change(name, dev, a, b, ja, jb, ca, cb, lin_a, lin_b):
     data = {"device": dev, "unit": unit, "tolerance": tol, "windows": windows, "window_count": int(len(starts)),
             "max_deviation": worst, "at_s": float(times[i])}
     if phys:
-        worst_p = float(dp[np.abs(ub - ua) > tol].max())
+        worst_p = float(dp[bad].max())
         text += f" ({fmt.q(float(pa[i]), punit)} -> {fmt.q(float(pb[i]), punit)}; max physical deviation {fmt.q(worst_p, punit)})"
         data["physical_unit"] = punit
         data["max_deviation_physical"] = worst_p

@@ -48,10 +48,37 @@ def _default(o):
 _MARK = {"finding-introduced": "+", "finding-resolved": "-", "finding-changed": "~"}
 
 
+GROUP_MIN = 3  # upstream shifts with one cause are listed on one line from this many blocks on
+
+
+def _upstream_groups(items) -> dict:
+    """id(first change) -> its group, for upstream block shifts sharing shift, causes and params."""
+    groups: dict = {}
+    for c in items:
+        if c.kind == "block-shifted" and c.data.get("cause") == "upstream":
+            key = (round(c.data["shift_s"], 12), tuple(c.data["caused_by"]), tuple(c.data["params"]))
+            groups.setdefault(key, []).append(c)
+    out = {}
+    for group in groups.values():
+        if len(group) >= GROUP_MIN:
+            out[id(group[0])] = group
+    return out
+
+
+def _group_line(group) -> str:
+    first = group[0]
+    cause = first.message.split("; upstream: ", 1)[1].split(" (via ", 1)[0]
+    starts = ", ".join(f"{c.subject} {fmt.t(c.data['start_old_s'])} -> {fmt.t(c.data['start_new_s'])}" for c in group)
+    return f"  * {len(group)} blocks start {fmt.dt(first.data['shift_s'])}, upstream: {cause}: {starts}"
+
+
 def to_text(rep: DiffReport) -> str:
     s = summary(rep)
     head = f"seqgen diff {rep.old.label} -> {rep.new.label}: "
-    if rep.identical:
+    unresolved = [v.label for v in (rep.old, rep.new) if v.kind != "build" and v.shot is None]
+    if rep.identical and unresolved:
+        lines = [head + "no differences in findings or params (" + " and ".join(unresolved) + " did not resolve)"]
+    elif rep.identical:
         lines = [head + "no differences"
                  + (f" ({s['unchanged_findings']} finding(s) unchanged)" if s["unchanged_findings"] else "")]
     else:
@@ -63,7 +90,16 @@ def to_text(rep: DiffReport) -> str:
             continue
         lines.append("")
         lines.append(LEVEL_TITLES[lv])
+        grouped = _upstream_groups(items)
+        done = set()
         for c in items:
+            if id(c) in done:
+                continue
+            group = grouped.get(id(c))
+            if group:
+                done.update(id(x) for x in group)
+                lines.append(_group_line(group))
+                continue
             mark = _MARK.get(c.kind, "*")
             lines.append(f"  {mark} {c.message}")
             if c.kind == "output-differs":

@@ -69,8 +69,8 @@ def rig_changes(old_shot, new_shot) -> list:
         out.append(Change("rig", kind, subject, message, old, new, _WEIGHTS.get(kind, 30) + (10 if written else 0),
                           {"affects": affects, "written": written}))
 
-    if ra.file != rb.file:
-        add("rig-file", "rig", f"rig file {ra.file} -> {rb.file}", ra.file, rb.file, [])
+    if ra.name != rb.name:  # another rig (a moved copy of the same rig file is no difference)
+        add("rig-file", "rig", f"rig {ra.name} ({ra.file}) -> {rb.name} ({rb.file})", ra.name, rb.name, [])
     # devices
     for d in sorted(set(ra.devices) | set(rb.devices)):
         a, b = ra.devices.get(d), rb.devices.get(d)

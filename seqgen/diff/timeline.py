@@ -21,6 +21,8 @@ _ANCHOR = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(?:([+-])\s*(.+?))?\s*$")
 _NAME_KEYS = {"name", "after", "with", "channel", "beam", "beams", "coil", "coils", "drive", "setup", "shape",
               "envelope", "expect", "file"}
 RENAME_MIN_SIMILARITY = 0.6
+CHAIN_MAX = 12  # names listed in a shift's anchor chain before '...' and its end
+RENAME_MAX_PAIRS = 40_000  # above this many (removed x added) pairs, only identical blocks count as renamed
 
 # display units of physics-action arguments (SI floats in PhysAction.args)
 _ARG_UNITS = {"duration": "s", "exposure": "s", "gradient": "T/m", "power": "W", "probe_power": "W", "to": "W",
@@ -47,6 +49,14 @@ class BlockView:
     @property
     def duration(self) -> float:
         return self.end - self.start
+
+    def structure(self) -> list:
+        """What the block does, without its numbers: outputs, write kinds, action kinds."""
+        sig = [("anchor", self.kind)]
+        for out, recs in sorted(self.writes.items()):
+            sig += [(out, r["kind"], r["action"]) for r in recs]
+        sig += [("action", k) + tuple(sorted(args)) for k, args in self.actions]
+        return sig
 
     def signature(self) -> list:
         sig = [("anchor", self.kind), ("duration", round(self.duration, 9))]
@@ -117,7 +127,11 @@ def block_views(version: Version, param_names: set) -> dict:
     deps = param_deps(version)
     raw = _raw_blocks(version.sources)
     blocks = {b.name: b for b in shot.blocks}
-    by_file_line = sorted(shot.blocks, key=lambda b: (b.pos.file, b.pos.line))
+    by_file_line: dict = {}  # block name -> the block before it in its file
+    ordered = sorted(shot.blocks, key=lambda b: (b.pos.file, b.pos.line))
+    for x, y in zip(ordered, ordered[1:]):
+        if x.pos.file == y.pos.file:
+            by_file_line[y.name] = x
     views = {}
     for b in shot.blocks:
         kind, rest = (b.anchor.split(" ", 1) + [""])[:2]
@@ -159,12 +173,13 @@ def block_views(version: Version, param_names: set) -> dict:
 
 
 def _previous(b, by_file_line, blocks):
-    """The block a block without an anchor follows (the one before it in its file, else the one ending at its start)."""
-    same = [x for x in by_file_line if x.pos.file == b.pos.file and x.pos.line < b.pos.line]
-    if same and abs(same[-1].end_s - b.start_s) <= 1e-12 + 1e-12 * abs(b.start_s):
-        return same[-1].name
-    ending = [x for x in by_file_line if x.name != b.name and abs(x.end_s - b.start_s) <= 1e-12 + 1e-12 * abs(b.start_s)]
-    return ending[-1].name if ending else (same[-1].name if same else None)
+    """The block a block without an anchor follows (the one before it in its file, else one ending at its start)."""
+    before = by_file_line.get(b.name)
+    tol = 1e-12 + 1e-12 * abs(b.start_s)
+    if before is not None and abs(before.end_s - b.start_s) <= tol:
+        return before.name
+    ending = [x for x in blocks.values() if x.name != b.name and abs(x.end_s - b.start_s) <= tol]
+    return ending[-1].name if ending else (before.name if before is not None else None)
 
 
 # ----------------------------------------------------------------------------- params and settings
@@ -258,12 +273,23 @@ def match_blocks(va: dict, vb: dict) -> tuple[dict, dict]:
     lone_a = [n for n in va if n not in vb]
     lone_b = [n for n in vb if n not in va]
     renames = {}
-    if lone_a and lone_b:
+    if lone_a and lone_b and len(lone_a) * len(lone_b) > RENAME_MAX_PAIRS:
+        # too many to score pairwise: pair blocks that do exactly the same thing, in file order
+        by_sig: dict = {}
+        for b in lone_b:
+            by_sig.setdefault(tuple(vb[b].signature()), []).append(b)
+        for a in lone_a:
+            cands = by_sig.get(tuple(va[a].signature()))
+            if cands:
+                renames[a] = cands.pop(0)
+    elif lone_a and lone_b:
         scored = []
         for a in lone_a:
-            sa = va[a].signature()
+            sa, ta = va[a].signature(), va[a].structure()
             for b in lone_b:
-                r = difflib.SequenceMatcher(None, sa, vb[b].signature(), autojunk=False).ratio()
+                # half for doing the same kind of thing, half for doing it with the same numbers
+                r = 0.5 * (difflib.SequenceMatcher(None, ta, vb[b].structure(), autojunk=False).ratio()
+                           + difflib.SequenceMatcher(None, sa, vb[b].signature(), autojunk=False).ratio())
                 if r >= RENAME_MIN_SIMILARITY:
                     scored.append((-r, abs(va[a].line - vb[b].line), a, b))
         used_a, used_b = set(), set()
@@ -321,35 +347,53 @@ def _timing(va, vb, pairs, back, changed_params) -> list:
         a = back.get(b)
         return a is not None and not fmt.close_t(va[a].start, vb[b].start)
 
-    def roots(b, seen=()):
-        """Causes of block b's start moving: list of (block, reason, params) and the chain to the first cause."""
-        if b in memo:
-            return memo[b]
-        if b in seen:
-            return [], [b]
-        a = back[b]
-        xa, xb = va[a], vb[b]
-        if not _anchor_same(xa, xb, pairs):
-            res = ([(b, "anchor", sorted(xb.anchor_uses & changed_params))], [b])
+    def own(b):
+        """(causes found at b itself, the block b's start depends on or None)."""
+        xa, xb = va[back[b]], vb[b]
+        anchor_cause = [(b, "anchor", sorted(xb.anchor_uses & changed_params))]
+        if not _anchor_same(xa, xb, pairs) or xb.ref is None or xb.ref not in back:
+            return anchor_cause, None
+        ref = xb.ref
+        causes = []
+        if xb.kind in ("after", "previous") and dur_changed(ref):
+            causes.append((ref, "duration", sorted(vb[ref].uses & changed_params)))
+        if start_moved(ref):
+            return causes, ref
+        return (causes or anchor_cause), None
+
+    def roots(b):
+        """Causes of block b's start moving, (block, reason, params), and the chain from b to the first cause
+        (at most CHAIN_MAX names: the first ones, '...', the last). Iterative: anchor chains can be thousands
+        of blocks long."""
+        path = []
+        node = b
+        while node not in memo:
+            if node in path:  # cannot happen for a resolved shot (anchor cycles are refused); be safe
+                memo[node] = ([(node, "anchor", [])], None, [node])
+                break
+            path.append(node)
+            causes, up = own(node)
+            if up is None:
+                memo[node] = (causes, None, [node] + ([causes[0][0]] if causes and causes[0][0] != node else []))
+                path.pop()
+                break
+            node = up
+        for n in reversed(path):
+            causes, up = own(n)
+            up_causes, _, up_end = memo[up]
+            memo[n] = (up_causes + [c for c in causes if c not in up_causes], up, up_end)
+        causes, _, end = memo[b]
+        chain, n = [], b
+        while n is not None and len(chain) < CHAIN_MAX:
+            chain.append(n)
+            n = memo[n][1]
+        if n is not None:  # long chain: skip to its end
+            if end[0] not in chain:
+                chain.append("...")
+            chain += [x for x in end if x not in chain]
         else:
-            ref = xb.ref
-            if ref is None or ref not in back:
-                res = ([(b, "anchor", sorted(xb.anchor_uses & changed_params))], [b])
-            else:
-                causes, chain = [], [b]
-                sub_chain = []
-                if start_moved(ref):
-                    rc, sub_chain = roots(ref, seen + (b,))
-                    causes += rc
-                if xb.kind in ("after", "previous") and dur_changed(ref):
-                    causes.append((ref, "duration", sorted(vb[ref].uses & changed_params)))
-                    if not sub_chain:
-                        sub_chain = [ref]
-                if not causes:  # the reference moved for a reason outside the matched blocks
-                    causes = [(b, "anchor", sorted(xb.anchor_uses & changed_params))]
-                res = (causes, chain + sub_chain)
-        memo[b] = res
-        return res
+            chain += [x for x in end if x not in chain]
+        return causes, chain
 
     out = []
     for b in sorted(back, key=lambda n: (vb[n].start, n)):

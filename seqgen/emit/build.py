@@ -10,6 +10,7 @@ names or absolute paths enter the files: the same input gives the same bytes.
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import os
@@ -138,8 +139,36 @@ def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: l
     return out
 
 
+_RENAME_EXCHANGE = 2  # renameat2(2) flag, Linux 3.15 and later
+
+
+def _exchange(a: Path, b: Path) -> bool:
+    """Swap two paths in one atomic step (renameat2 RENAME_EXCHANGE); False where unsupported."""
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        fn = libc.renameat2
+    except (OSError, AttributeError):
+        return False
+    at_fdcwd = -100
+    rc = fn(at_fdcwd, os.fsencode(str(a)), at_fdcwd, os.fsencode(str(b)), ctypes.c_uint(_RENAME_EXCHANGE))
+    if rc == 0:
+        return True
+    err = ctypes.get_errno()
+    if err in (errno.ENOSYS, errno.EINVAL, errno.ENOTSUP, errno.EOPNOTSUPP):  # kernel or file system without it
+        return False
+    raise OSError(err, os.strerror(err), str(b))
+
+
 def _swap_into_place(tmp: Path, out: Path) -> None:
+    if out.exists() and out.is_dir() and not out.is_symlink() and _exchange(tmp, out):
+        # the new build and the previous one traded places at once: at every instant `out` is one of them
+        shutil.rmtree(tmp, ignore_errors=True)
+        os.chmod(out, 0o755)
+        return
     if out.exists():
+        # fallback (no atomic exchange): a kill between the two renames leaves the previous build in .NAME.old-*
         old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
         old.rmdir()
         os.rename(out, old)

@@ -130,8 +130,8 @@ def time_axis(t0: float, t1: float) -> tuple[float, str, float]:
         factor, unit = 1e-6, "us"
     offset = 0.0
     if max(abs(t0), abs(t1)) / factor >= 1e5:  # labels would need 6+ digits: count from a round offset
-        step = factor * 10 ** math.ceil(math.log10(max(span / factor, 1e-12)) + 1)
-        offset = math.floor(t0 / step) * step
+        step = factor * 10 ** math.ceil(math.log10(max(span / factor, 1e-12)))
+        offset = math.floor(t0 / step + 1e-9) * step
     return factor, unit, offset
 
 
@@ -148,7 +148,7 @@ def _display_scale(max_abs: float, unit: str) -> tuple[float, str]:
     if any(c in unit for c in "/^ ") or unit in ("kg",) or not (max_abs > 0 and math.isfinite(max_abs)):
         return 1.0, unit
     for factor, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "u"), (1e-9, "n")):
-        if max_abs >= factor * 0.9999999:
+        if max_abs >= factor * 0.95:  # 0.99998 V (a DAC code below 1 V) still reads in V
             return factor, prefix + unit
     return 1e-9, "n" + unit
 
@@ -294,7 +294,7 @@ class _Row:
     payload: object = None
 
 
-def _make_figure(rows: list[_Row], left_in: float, title: str, footer_lines: list[str]):
+def _make_figure(rows: list[_Row], left_in: float, title: str, footer_lines: list[str], window):
     from matplotlib.figure import Figure
 
     top_in, right_in = 1.05, 0.75
@@ -307,11 +307,12 @@ def _make_figure(rows: list[_Row], left_in: float, title: str, footer_lines: lis
                           right=1 - right_in / FIG_WIDTH_IN, top=1 - top_in / height, bottom=bottom_in / height,
                           hspace=GAP_IN / max(mean_h, 1e-6))
     axes = []
-    first = None
     for i, r in enumerate(rows):
-        ax = fig.add_subplot(gs[i, 0], sharex=first)
-        if first is None:
-            first = ax
+        # every axes gets the same fixed limits instead of sharing x: with sixty shared axes each new artist
+        # would re-autoscale all siblings; limits are set explicitly everywhere, so autoscaling is off
+        ax = fig.add_subplot(gs[i, 0])
+        ax.set_xlim(*window)
+        ax.set_autoscale_on(False)
         axes.append(ax)
     fig.text(0.5 / FIG_WIDTH_IN, 1 - 0.18 / height, title, ha="left", va="top", fontsize=10, fontweight="bold")
     for k, line in enumerate(footer_lines):
@@ -352,13 +353,35 @@ def _blank(ax):
 
 
 def _shade_blocks(ax, blocks, t0, t1):
+    """Block spans as two collections per lane (one per tint): thousands of separate patches are slow."""
+    from matplotlib.collections import LineCollection, PolyCollection
+
+    trans = ax.get_xaxis_transform()  # x in data, y in axes fraction
+    polys = ([], [])
+    instants = []
     for i, b in enumerate(blocks):
         if b.end_s < t0 or b.start_s > t1:
             continue
         if b.end_s > b.start_s:
-            ax.axvspan(b.start_s, b.end_s, color=BLOCK_TINTS[i % 2], zorder=0, linewidth=0)
+            polys[i % 2].append([(b.start_s, 0), (b.end_s, 0), (b.end_s, 1), (b.start_s, 1)])
         else:
-            ax.axvline(b.start_s, color="#b8c2cf", linewidth=0.6, zorder=0)
+            instants.append([(b.start_s, 0), (b.start_s, 1)])
+    for tint, verts in zip(BLOCK_TINTS, polys):
+        if verts:
+            ax.add_collection(PolyCollection(verts, facecolors=tint, edgecolors="none", linewidths=0,
+                                             transform=trans, zorder=0), autolim=False)
+    if instants:
+        ax.add_collection(LineCollection(instants, colors="#b8c2cf", linewidths=0.6, transform=trans, zorder=0),
+                          autolim=False)
+
+
+def _spans(ax, spans, colour, alpha, zorder=1):
+    from matplotlib.collections import PolyCollection
+
+    verts = [[(a, 0), (b, 0), (b, 1), (a, 1)] for a, b in spans]
+    if verts:
+        ax.add_collection(PolyCollection(verts, facecolors=colour, edgecolors="none", linewidths=0, alpha=alpha,
+                                         transform=ax.get_xaxis_transform(), zorder=zorder), autolim=False)
 
 
 def _blocks_layout(blocks, t0, t1, width_in):
@@ -378,7 +401,9 @@ def _draw_blocks(ax, blocks, t0, t1, width_in, layout):
             ax.broken_barh([(b.start_s, width)], (y + 0.18, 0.64), facecolors=BLOCK_TINTS[index[id(b)] % 2],
                            edgecolors="#7d8a99", linewidth=0.6)
         x, ha = _label_x(start, end, mode, s_per_pt, t0, t1)
-        ax.text(x, y + 0.5, text, ha=ha, va="center", fontsize=7, color="#243447", clip_on=False)
+        box = dict(boxstyle="square,pad=0.1", facecolor="white", edgecolor="none", alpha=0.85) \
+            if len(members) > 1 and mode == "inside" else None
+        ax.text(x, y + 0.5, text, ha=ha, va="center", fontsize=7, color="#243447", clip_on=False, bbox=box)
     ax.set_ylim(0, nrows)
     _blank(ax)
     ax.set_label("blocks")
@@ -435,9 +460,16 @@ def _draw_findings(ax, t0, t1, width_in, layout, hidden: int):
 
 
 def _finding_lines(ax, shown):
-    for f in shown:
-        colour = SEVERITY_STYLE.get(f.severity, SEVERITY_STYLE["note"])[0]
-        ax.axvline(f.time_s, color=colour, linewidth=0.8, linestyle=(0, (3, 2)), alpha=0.85, zorder=4)
+    from matplotlib.collections import LineCollection
+
+    if not shown:
+        return
+    segs = [[(f.time_s, 0), (f.time_s, 1)] for f in shown]
+    colours = [SEVERITY_STYLE.get(f.severity, SEVERITY_STYLE["note"])[0] for f in shown]
+    many = len(shown) > 12  # a crowd of lines would hide the curves: draw them faint
+    ax.add_collection(LineCollection(segs, colors=colours, linewidths=0.5 if many else 0.8, linestyles=[(0, (3, 2))],
+                                     alpha=0.3 if many else 0.85, transform=ax.get_xaxis_transform(), zorder=4),
+                      autolim=False)
 
 
 def _draw_header(ax, device, colour):
@@ -458,7 +490,9 @@ def _fmt_hz(hz: float) -> str:
     return format_value(hz, "Hz")
 
 
-def _style_lane(ax, out, colour, scale_unit, ylim):
+def _style_lane(ax, out, colour, scale_unit, ylim, flat=None):
+    """Axes of one lane; `flat` is the value (display units) of a lane that never changes in the window:
+    it gets one tick, so neighbouring lanes' labels cannot collide."""
     from matplotlib.ticker import FixedLocator, MaxNLocator
 
     factor, unit = scale_unit
@@ -471,6 +505,8 @@ def _style_lane(ax, out, colour, scale_unit, ylim):
     if out.kind == "digital":
         ax.yaxis.set_major_locator(FixedLocator([0, 1]))
         ax.set_yticklabels(["off", "on"])
+    elif flat is not None:
+        ax.yaxis.set_major_locator(FixedLocator([flat]))
     else:
         ax.yaxis.set_major_locator(MaxNLocator(nbins=2, min_n_ticks=2))
     # the output unit on a secondary axis where a calibration maps the physical quantity to it
@@ -482,20 +518,26 @@ def _style_lane(ax, out, colour, scale_unit, ylim):
             return np.asarray(to_physical(out, np.asarray(v, float)), dtype=float) / factor
 
         sec = ax.secondary_yaxis("right", functions=(fwd, inv))
-        sec.yaxis.set_major_locator(MaxNLocator(nbins=2, min_n_ticks=2))
+        if flat is not None:
+            sec.yaxis.set_major_locator(FixedLocator([float(fwd(flat))]))
+        else:
+            sec.yaxis.set_major_locator(MaxNLocator(nbins=2, min_n_ticks=2))
         sec.tick_params(labelsize=TICK_PT - 0.5, length=2, pad=1.5, colors="#6b6b6b")
         sec.spines["right"].set_color("#b0b0b0")
         sec.set_ylabel(out.unit, rotation=0, fontsize=TICK_PT, color="#6b6b6b", labelpad=8, va="center")
         sec.set_label(f"output-unit:{out.name}")
 
 
-def _ylim(arrays, kind, full=None):
+def _ylim(arrays, kind, full=None, min_span: float = 0.0):
     """Y-limits of a lane from the values in the window; never narrower than 5 % of the range over the whole
-    shot (`full`), so a DAC-code offset near zero does not fill a zoomed lane."""
+    shot (`full`) nor than `min_span`, so a DAC-code offset near zero does not fill a zoomed lane."""
     if kind == "digital":
         return (-0.2, 1.3)
     vals = np.concatenate([np.asarray(a, float)[np.isfinite(a)] for a in arrays if len(a)] or [np.zeros(1)])
     lo, hi = float(np.min(vals)), float(np.max(vals))
+    if hi - lo < min_span:
+        mid = (hi + lo) / 2
+        lo, hi = mid - min_span / 2, mid + min_span / 2
     if full is not None:
         fvals = np.concatenate([np.asarray(a, float)[np.isfinite(a)] for a in full if len(a)] or [vals])
         need = 0.05 * float(np.max(fvals) - np.min(fvals))
@@ -509,6 +551,37 @@ def _ylim(arrays, kind, full=None):
         return lo - pad, hi + pad
     pad = 0.12 * (hi - lo)
     return lo - pad, hi + pad
+
+
+def _flat(values):
+    """The value of a lane that does not change (None when it changes or is empty)."""
+    v = np.asarray(values, float)
+    v = v[np.isfinite(v)]
+    if not len(v):
+        return None
+    lo, hi = float(np.min(v)), float(np.max(v))
+    return (lo + hi) / 2 if hi - lo <= 1e-9 * max(abs(lo), abs(hi), 1e-30) else None
+
+
+def _code_span(out, arrays, codes: int = 64) -> float:
+    """Physical span of `codes` DAC codes around the lane's values: the least height of an analog lane, so a
+    half-code offset (0 W on a symmetric range) stays a flat line instead of filling the lane."""
+    if out.kind == "digital" or not out.lsb:
+        return 0.0
+    vals = np.concatenate([np.asarray(a, float)[np.isfinite(a)] for a in arrays if len(a)] or [np.zeros(1)])
+    mid = float(np.mean([vals.min(), vals.max()]))
+    try:
+        v = float(to_output(out, mid)) if out.calibration is not None else mid
+        ends = np.array([v - codes / 2 * out.lsb, v + codes / 2 * out.lsb])
+        phys = to_physical(out, ends) if out.calibration is not None else ends
+        return float(abs(phys[1] - phys[0]))
+    except (ValueError, TypeError):
+        return 0.0
+
+
+def _peak(arrays) -> float:
+    vals = [float(np.nanmax(np.abs(a))) for a in arrays if len(a) and np.any(np.isfinite(a))]
+    return max(vals + [0.0])
 
 
 def _full_range(table_col, out):
@@ -648,19 +721,37 @@ def _draw_clouds(ax, clouds, t0, t1, width_in):
     _lane_label(ax, "cloud height [mm]", "#9c3c86")
 
 
-def _notes_layout(notes, t0, t1, width_in):
-    items = [(r["time_s"], r["time_s"], f"{k + 1} {r['kind']}") for k, r in enumerate(notes)]
-    placed, nrows = _place(items, t0, t1, width_in, 6.5, max_rows=4)
-    return items, placed, nrows
+def _notes_layout(notes, t0, t1, width_in, near_pt=14.0):
+    """Numbered labels for the physics notes; three or more notes close together share one label."""
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    groups: list[list] = []
+    for k, r in enumerate(notes):
+        if groups and r["time_s"] - notes[groups[-1][-1]]["time_s"] < near_pt * s_per_pt:
+            groups[-1].append(k)
+        else:
+            groups.append([k])
+    items = []
+    for g in groups:
+        if len(g) >= 3:
+            kinds = list(dict.fromkeys(notes[k]["kind"] for k in g))
+            text = f"{g[0] + 1}-{g[-1] + 1} " + ", ".join(kinds[:3]) + (" …" if len(kinds) > 3 else "")
+            items.append((notes[g[0]]["time_s"], notes[g[-1]]["time_s"], text, g))
+        else:
+            items.extend((notes[k]["time_s"], notes[k]["time_s"], f"{k + 1} {notes[k]['kind']}", [k]) for k in g)
+    placed, nrows = _place([(a, b, text) for a, b, text, _ in items], t0, t1, width_in, 6.5, max_rows=4)
+    return items, placed, nrows, notes
 
 
 def _draw_notes(ax, t0, t1, width_in, layout):
-    items, placed, nrows = layout
+    items, placed, nrows, notes = layout
     s_per_pt = (t1 - t0) / (width_in * 72.0)
-    for (t, _, text), (r, mode) in zip(items, placed):
+    for (start, end, text, members), (r, mode) in zip(items, placed):
         y = nrows - 1 - r + 0.5
-        ax.plot([t], [y], marker="D", markersize=4, color="#1d8a78", linestyle="none", clip_on=False)
-        x, ha = _label_x(t, t, "left" if mode == "left" else "right", 2.5 * s_per_pt, t0, t1)
+        for k in members:
+            (mk,) = ax.plot([notes[k]["time_s"]], [y], marker="D", markersize=4, color="#1d8a78", linestyle="none",
+                            clip_on=False)
+            mk.set_gid(f"note:{k + 1}")
+        x, ha = _label_x(start, end, "left" if mode == "left" else "right", 2.5 * s_per_pt, t0, t1)
         ax.text(x, y, text, ha=ha, va="center", fontsize=6.5, color="#14584d", clip_on=False)
     ax.set_ylim(0, nrows)
     _blank(ax)
@@ -709,8 +800,9 @@ def _lanes_by_device(rig, names):
 
 
 def _left_margin(names, extra=()):
-    longest = max([len(n) + 8 for n in names] + [len(e) for e in extra] + [14])
-    return min(0.5 + longest * LABEL_PT * 0.56 / 72 + 0.1, 3.2)
+    """Room for the lane labels (name plus unit, bold when marked) and the y tick labels."""
+    longest = max([len(n) + 10 for n in names] + [len(e) for e in extra] + [14])
+    return min(0.55 + longest * LABEL_PT * 0.62 / 72, 3.4)
 
 
 def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, channels=None, physics: bool = True,
@@ -752,7 +844,7 @@ def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, chan
     s = summary(findings)
     ttl = title or (f"{shot.file}  ·  rig {shot.rig.name}  ·  duration {_fmt_seconds(shot.duration_s)}  ·  "
                     f"{s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s)")
-    fig, axes, width_in = _make_figure(rows, left, ttl, _note_lines(phys["notes"]))
+    fig, axes, width_in = _make_figure(rows, left, ttl, _note_lines(phys["notes"]), (t0, t1))
     dev_colour = {d: DEVICE_COLOURS[i % len(DEVICE_COLOURS)] for i, d in enumerate(shot.rig.devices)}
     lanes_ax = []
     for ax, row in zip(axes, rows):
@@ -805,8 +897,9 @@ def _draw_lane(ax, shot, out, col, t0, t1, colour, intended):
         arrays.append(hw[1])
     it = intended_series(shot, out.name, t0, t1) if intended else (np.zeros(0), np.zeros(0))
     arrays.append(it[1])
-    ylim = _ylim(arrays, out.kind, _full_range(col, out) + [np.asarray([out.safe], float)])
-    peak = max(abs(ylim[0]), abs(ylim[1])) / 1.12 if out.kind != "digital" else 1.0
+    full = _full_range(col, out) + [np.asarray([out.safe], float)]
+    ylim = _ylim(arrays, out.kind, full, _code_span(out, arrays))
+    peak = _peak(arrays + full)
     scale = _display_scale(peak, out.phys_unit if out.kind != "digital" else "")
     factor = scale[0]
     if len(hw[0]):
@@ -820,7 +913,8 @@ def _draw_lane(ax, shot, out, col, t0, t1, colour, intended):
         (line,) = ax.plot(it[0], it[1] / factor, color=INTENDED_COLOUR, linewidth=0.8, linestyle=(0, (4, 2)),
                           alpha=0.75, zorder=3.5)
         line.set_gid(f"intended:{out.name}")
-    _style_lane(ax, out, colour, scale, ylim if out.kind == "digital" else (ylim[0] / factor, ylim[1] / factor))
+    _style_lane(ax, out, colour, scale, ylim if out.kind == "digital" else (ylim[0] / factor, ylim[1] / factor),
+                _flat(hw[1] / factor if len(hw[0]) else it[1] / factor))
     ax.set_label(f"lane:{out.name}")
     _lane_label(ax, out.name + (f" [{scale[1]}]" if scale[1] else ""), colour)
 
@@ -953,15 +1047,14 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
         foot.append(f"duration {_fmt_seconds(old_shot.duration_s)} -> {_fmt_seconds(new_shot.duration_s)}")
     foot = [ln for text in foot for ln in (textwrap.wrap(text, 150, subsequent_indent="    ") or [text])]
     ttl = title or f"diff  ·  {old_label}  ->  {new_label}"
-    fig, axes, width_in = _make_figure(rows, left, ttl, foot)
+    fig, axes, width_in = _make_figure(rows, left, ttl, foot, (t0, t1))
     dev_colour = {d: DEVICE_COLOURS[i % len(DEVICE_COLOURS)] for i, d in enumerate(
         list(new_shot.rig.devices) + [d for d in old_shot.rig.devices if d not in new_shot.rig.devices])}
     for ax, row in zip(axes, rows):
         if row.kind == "blocks":
             _draw_blocks(ax, new_shot.blocks, t0, t1, width_in, blay)
         elif row.kind == "diff":
-            for s, e in all_spans:
-                ax.axvspan(s, e, color=DIFF_COLOUR, alpha=0.8, linewidth=0)
+            _spans(ax, all_spans, DIFF_COLOUR, 0.8)
             _blank(ax)
             ax.set_ylim(0, 1)
             ax.set_label("diff")
@@ -979,8 +1072,7 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
             out = rig_of[n].outputs[n]
             colour = dev_colour.get(out.device, "#444444")
             _shade_blocks(ax, new_shot.blocks, t0, t1)
-            for s, e in windows.get(n, ()):
-                ax.axvspan(s, e, color=DIFF_COLOUR, alpha=0.45, linewidth=0, zorder=1)
+            _spans(ax, windows.get(n, ()), DIFF_COLOUR, 0.45)
             arrays, series = [], []
             for shot, cols, style in ((old_shot, oc, "old"), (new_shot, nc, "new")):
                 if n in cols and n in shot.rig.outputs:
@@ -991,8 +1083,8 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
                     arrays.append(v)
             full = [r for shot, cols in ((old_shot, oc), (new_shot, nc)) if n in shot.rig.outputs
                     for r in _full_range(cols.get(n), shot.rig.outputs[n])]
-            ylim = _ylim(arrays, out.kind, full)
-            peak = max(abs(ylim[0]), abs(ylim[1])) / 1.12 if out.kind != "digital" else 1.0
+            ylim = _ylim(arrays, out.kind, full, _code_span(out, arrays))
+            peak = _peak(arrays + full)
             scale = _display_scale(peak, out.phys_unit if out.kind != "digital" else "")
             for style, t, v, model in series:
                 td, vd = _decimate(t, v / scale[0], t0, t1)
@@ -1003,7 +1095,9 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
                     line = _step(ax, td, vd, model, t1, color=colour, linewidth=1.1, zorder=3.2)
                 if line is not None:
                     line.set_gid(f"{style}:{n}")
-            _style_lane(ax, out, colour, scale, ylim if out.kind == "digital" else (ylim[0] / scale[0], ylim[1] / scale[0]))
+            flat = _flat(np.concatenate([a / scale[0] for a in arrays])) if arrays else None
+            _style_lane(ax, out, colour, scale, ylim if out.kind == "digital" else (ylim[0] / scale[0], ylim[1] / scale[0]),
+                        flat)
             ax.set_label(f"lane:{n}")
             _lane_label(ax, n + (f" [{scale[1]}]" if scale[1] else "") + ("  *" if n in windows else ""),
                         colour, bold=n in windows)

@@ -62,6 +62,8 @@ def _plain(v):
     """JSON-safe value: non-finite floats (which JSON cannot hold) become text."""
     if isinstance(v, bool) or v is None or isinstance(v, (int, str)):
         return v
+    if isinstance(v, (list, tuple)):
+        return [_plain(x) for x in v]
     try:
         x = float(v)
     except (TypeError, ValueError):
@@ -111,7 +113,7 @@ def _result(f: Finding, rule_index: int) -> dict:
         props["data"] = {str(k): _plain(v) for k, v in f.data}
     res["properties"] = props
     if f.accepted:
-        res["suppressions"] = [{"kind": "inSource", "status": "accepted",
+        res["suppressions"] = [{"kind": "inSource",
                                 "justification": f.accept_reason or "accepted in the sequence file"}]
     return res
 
@@ -145,3 +147,44 @@ def to_sarif(findings: Iterable[Finding], *, sources: Mapping[str, str] | None =
 
 def to_sarif_json(findings: Iterable[Finding], *, sources: Mapping[str, str] | None = None) -> str:
     return json.dumps(to_sarif(findings, sources=sources), indent=2, sort_keys=True, allow_nan=False) + "\n"
+
+
+def scan_to_sarif(scan) -> dict:
+    """One SARIF log for a scanned sequence (`seqgen.batch.Scan` after `run_scan`).
+
+    A finding that several shots raise at one place is one result; its message
+    says in which shots it fires and its properties list them (`shots`).
+    """
+    shots = list(getattr(scan, "shots", None) or [])
+    groups: dict = {}
+    order: list = []
+    for f in scan.findings:
+        key = ("scan", f.code, f.severity, f.file, f.line, f.column, f.block, f.accepted, f.message)
+        groups.setdefault(key, (f, []))
+        order.append(key) if key not in order else None
+    for r in shots:
+        for f in r.findings:
+            key = ("shot", f.code, f.severity, f.file, f.line, f.column, f.block, f.accepted)
+            if key not in groups:
+                groups[key] = (f, [])
+                order.append(key)
+            groups[key][1].append(r.index)
+    merged = []
+    for key in order:
+        f, idx = groups[key]
+        if key[0] == "shot":
+            idx = sorted(set(idx))
+            where = "in every shot" if len(idx) == len(shots) else \
+                f"in shot{'s' if len(idx) > 1 else ''} {', '.join(map(str, idx))} of {len(shots)}"
+            from dataclasses import replace
+
+            f = replace(f, message=f"{f.message} ({where})", data=tuple(f.data) + (("shots", idx),))
+        merged.append(f)
+    from ..findings import sort_findings
+
+    src = getattr(scan, "sources", None)
+    return to_sarif(sort_findings(merged), sources=src.hashes if src is not None else None)
+
+
+def scan_to_sarif_json(scan) -> str:
+    return json.dumps(scan_to_sarif(scan), indent=2, sort_keys=True, allow_nan=False) + "\n"

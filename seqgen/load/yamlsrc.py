@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any
 
 import re
+import stat
 
 import yaml
 
@@ -77,7 +78,10 @@ def _plain_scalar(text: str):
     if low in _SPECIAL and text in (low, low.capitalize(), low.upper()):
         return _SPECIAL[low]
     if _INT.match(text):
-        return int(text.replace("_", ""))
+        try:
+            return int(text.replace("_", ""))
+        except ValueError:  # over Python's limit on digits (4300): no real quantity is that long
+            return float(text.replace("_", ""))
     if _HEX.match(text):
         return int(text.replace("_", ""), 16)
     if _FLOAT.match(text):
@@ -113,11 +117,21 @@ def load_file(path: str | Path, display: str | None = None) -> Document:
     p = Path(path)
     name = display or str(path)
     try:
-        size = p.stat().st_size
+        st = p.stat()
+        if stat.S_ISDIR(st.st_mode):
+            raise IsADirectoryError(name)
+        if not stat.S_ISREG(st.st_mode):  # a device (/dev/zero), a pipe or a socket: reading may never end
+            raise LoadError(make(FILE_MISSING, f"{name} is not a regular file", SourcePos(name),
+                                 hint="name a .yaml file"))
+        size = st.st_size
         if size > MAX_FILE_BYTES:
             raise LoadError(make(FILE_TOO_LARGE, f"file is {size} bytes, over the {MAX_FILE_BYTES} byte limit",
                                  SourcePos(name), hint="check that this is the sequence file you meant"))
-        raw = p.read_bytes()
+        with open(p, "rb") as fh:
+            raw = fh.read(MAX_FILE_BYTES + 1)  # bounded even if the file grows while it is read
+        if len(raw) > MAX_FILE_BYTES:
+            raise LoadError(make(FILE_TOO_LARGE, f"file is over the {MAX_FILE_BYTES} byte limit", SourcePos(name),
+                                 hint="check that this is the sequence file you meant"))
     except LoadError:
         raise
     except IsADirectoryError:
@@ -141,6 +155,7 @@ def load_text(text: str, name: str = "<text>") -> Document:
     if len(text) > MAX_FILE_BYTES:
         raise LoadError(make(FILE_TOO_LARGE, "text too large", SourcePos(name)))
     try:
+        _check_depth(text, name)
         nodes = list(yaml.compose_all(text, Loader=_Loader))
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
@@ -164,6 +179,28 @@ def load_text(text: str, name: str = "<text>") -> Document:
     conv = _Converter(name, positions)
     data = conv.convert(nodes[0], (), 0)
     return Document(name, data, positions, sha)
+
+
+def _check_depth(text: str, name: str) -> None:
+    """Refuse deep nesting before composing anything.
+
+    libyaml's composer recurses in C: a document nested some 50 000 levels deep
+    (100 kB of '[') overflows the C stack and kills the process outright, so the
+    depth is counted first on the parser's event stream, which keeps its own stack.
+    """
+    depth = 0
+    starts = (yaml.SequenceStartEvent, yaml.MappingStartEvent)
+    ends = (yaml.SequenceEndEvent, yaml.MappingEndEvent)
+    for ev in yaml.parse(text, Loader=_Loader):
+        if isinstance(ev, starts):
+            depth += 1
+            if depth > MAX_DEPTH:
+                m = ev.start_mark
+                raise LoadError(make(YAML_BOMB, f"document nests deeper than {MAX_DEPTH} levels",
+                                     SourcePos(name, m.line + 1, m.column + 1),
+                                     hint="sequence and rig files need only a few levels; remove the extra brackets"))
+        elif isinstance(ev, ends):
+            depth -= 1
 
 
 _PLAIN_COLLECTION_TAGS = ("tag:yaml.org,2002:map", "tag:yaml.org,2002:seq", "tag:yaml.org,2002:omap")

@@ -77,8 +77,11 @@ def evaluate(text: str, env: Mapping[str, Qty]) -> Qty:
 def _eval(node, env) -> Qty:
     if isinstance(node, ast.Constant):
         if isinstance(node.value, bool) or not isinstance(node.value, (int, float)):
-            raise ExprError("forbidden", f"only numbers are allowed, not {node.value!r}")
-        return Qty(float(node.value))
+            raise ExprError("forbidden", f"only numbers are allowed, not {str(node.value)[:40]!r}")
+        try:
+            return Qty(float(node.value))
+        except OverflowError:  # an integer literal of hundreds of digits
+            raise ExprError("overflow", "number too large", "check for a typo in the number") from None
     if isinstance(node, ast.Name):
         return _name(node.id, env)
     if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.UAdd, ast.USub)):

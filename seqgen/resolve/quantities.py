@@ -26,9 +26,14 @@ def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
     if isinstance(raw, bool):
         return Qty(1.0 if raw else 0.0)
     if isinstance(raw, (int, float)):
-        if not math.isfinite(raw):
+        try:
+            value = float(raw)
+        except OverflowError:  # an integer of hundreds of digits
+            raise Bad(make(E.OVERFLOW, f"a {len(str(raw))}-digit number is too large", pos,
+                           hint="check for a typo; write large numbers with an exponent")) from None
+        if not math.isfinite(value):
             raise Bad(make(E.NON_FINITE, f"value {raw} is not finite", pos, hint="give a finite number"))
-        return Qty(float(raw))
+        return Qty(value)
     if not isinstance(raw, str):
         raise Bad(make(E.EXPRESSION, f"expected a quantity, got {type(raw).__name__}", pos))
     text = raw.strip()

@@ -167,18 +167,19 @@ def expand(src, base_shot) -> tuple[ScanPlan | None, list[Finding]]:
     base = {p.name: p for p in base_shot.params}
     names_scanned = {n for n, _ in scanned}
     env = {n: Qty(p.value, p.dims) for n, p in base.items() if n not in names_scanned}
+    opts = (src.main.data or {}).get("scan") or {}
+    opts_pos = src.main.pos(("scan",))
+    limit = int(opts.get("max_shots", DEFAULT_MAX_SHOTS))
     axes = []
     for name, (raw, doc, path) in scanned:
         p = base.get(name)
         dims = p.dims if p is not None else DIMENSIONLESS
         try:
-            axes.append(_axis(name, raw["scan"], doc, path + ("scan",), dims, env))
+            axes.append(_axis(name, raw["scan"], doc, path + ("scan",), dims, env, limit))
         except Bad as bad:
             findings.append(bad.finding)
     if findings:
         return None, findings
-    opts = (src.main.data or {}).get("scan") or {}
-    opts_pos = src.main.pos(("scan",))
     combine = opts.get("combine", "grid")
     groups: dict[str, list[ScanAxis]] = {}
     for a in axes:
@@ -214,7 +215,6 @@ def expand(src, base_shot) -> tuple[ScanPlan | None, list[Finding]]:
     if findings:
         return None, findings
     total = math.prod(len(groups[k][0].values) for k in nest)
-    limit = int(opts.get("max_shots", DEFAULT_MAX_SHOTS))
     if total > limit:
         sizes = " x ".join(str(len(groups[k][0].values)) for k in nest)
         return None, [make(TOO_LARGE, f"the scan expands to {total} shots ({sizes}), more than max_shots {limit}",
@@ -242,7 +242,7 @@ def expand(src, base_shot) -> tuple[ScanPlan | None, list[Finding]]:
     return plan, findings
 
 
-def _axis(name, spec, doc, path, dims, env) -> ScanAxis:
+def _axis(name, spec, doc, path, dims, env, limit) -> ScanAxis:
     pos = doc.pos(path)
     if isinstance(spec, list):
         spec, vpath = {"values": spec}, path
@@ -269,6 +269,10 @@ def _axis(name, spec, doc, path, dims, env) -> ScanAxis:
     if spacing == "log" and not (lo.value != 0 and hi.value != 0 and (lo.value > 0) == (hi.value > 0)):
         raise Bad(make(BAD_SCAN, f"log scan of '{name}' from {lo} to {hi} must not reach or cross zero",
                        doc.pos(path + ("spacing",)), hint="use spacing: linear, or ends of the same sign"))
+    count = spec.get("steps", spec.get("random"))
+    if isinstance(count, int) and count > limit:
+        raise Bad(make(TOO_LARGE, f"scan of '{name}' asks for {count} values, more than max_shots {limit}", pos,
+                       hint="check the step count, or raise scan: {max_shots: ...}"))
     if "steps" in spec:
         if "random" in spec or "seed" in spec:
             raise Bad(make(BAD_SCAN, f"scan of '{name}' gives both steps and random/seed", pos,

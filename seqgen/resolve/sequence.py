@@ -255,6 +255,13 @@ def resolve(src: Sources, overrides: dict | None = None) -> tuple[Shot | None, l
         accepts.append(Accept(a["code"], a.get("block"), a["reason"], pos))
     blocks.sort(key=lambda b: (b.start_s, b.name))
     duration = max([b.end_s for b in blocks] + [s.t1 for s in final_segments] + [0.0])
+    countable = min((2.0 ** 52 / d.timebase_hz for d in rig.devices.values()), default=math.inf)
+    if duration >= countable:  # ticks would no longer be exact integers in a float64
+        last = max(blocks, key=lambda b: b.end_s)
+        findings.append(make(E.OVERFLOW, f"the sequence lasts {duration:.4g} s, longer than its devices can count "
+                             f"in ticks ({countable:.3g} s)", last.pos, block=last.name,
+                             hint="check the block times and durations for a typo in the exponent"))
+        return None, findings
     end = src.main.data.get("end") or {}
     shot = Shot(src.main.file, rig, sample, tuple(params), tuple(blocks), tuple(final_segments), tuple(phys),
                 tuple(accepts), src.hashes, limits, tuple(end.get("leave_on") or ()), duration)
@@ -487,9 +494,29 @@ class _Ctx:
                            hint="add 'tau: <time constant>'"))
         tol = None
         if "tolerance" in spec:
-            tol = quantity(spec["tolerance"], out.unit, self.doc, path + ("tolerance",), self.env)
+            tol = quantity(spec["tolerance"], out.unit, self.doc, path + ("tolerance",), self.env, positive=True)
+            if tol < 1e-9 * (out.hi - out.lo):  # finer than any DAC resolves: the sampler could never meet it
+                raise Bad(make("schema.bad-value", f"tolerance {tol:.3g} {out.unit} is below a billionth of the output "
+                               f"range of '{out.name}'", self.doc.pos(path + ("tolerance",)), block=self.block,
+                               hint="give at least half an LSB of the channel"))
+        if spec.get("shape") == "table":
+            _check_shape_table(self, spec.get("table"), path + ("table",))
         self.seg(out, "ramp", t0, t0 + dur, v_from, v_to, action, path, shape=spec.get("shape", "linear"), tau_s=tau,
                  table=tuple(map(tuple, spec["table"])) if spec.get("table") else None, tolerance=tol)
+
+
+def _check_shape_table(ctx, table, path):
+    """A ramp's shape table: [progress s, fraction f] pairs, finite, s from 0 to 1 strictly increasing."""
+    if not table:
+        raise Bad(make("schema.missing-key", "a table-shaped ramp needs 'table:'", ctx.doc.pos(path), block=ctx.block,
+                       hint="add 'table: [[0, 0], [0.5, 0.8], [1, 1]]' (progress, fraction)"))
+    s = [row[0] for row in table]
+    if not all(isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for row in table for x in row):
+        raise Bad(make(E.NON_FINITE, "shape table entries must be finite numbers", ctx.doc.pos(path), block=ctx.block,
+                       hint="replace .nan / .inf entries with numbers"))
+    if s[0] != 0 or s[-1] != 1 or any(b <= a for a, b in zip(s, s[1:])):
+        raise Bad(make("schema.bad-value", "shape table progress must run from 0 to 1, strictly increasing",
+                       ctx.doc.pos(path), block=ctx.block, hint="first column: 0, ..., 1 in increasing order"))
 
 
 def _lower_block(b, doc, path, rig, env, findings):

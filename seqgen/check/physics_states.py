@@ -1,0 +1,1024 @@
+"""Physics checks of the atoms' internal state and of state-dependent motion.
+
+Clock pulses (area, detuning, Ramsey and spin-echo pairs), rapid adiabatic
+passage by a frequency sweep, the barrier's modulation drive, magnetic and
+optical pushes, Stern-Gerlach separation and the absorption-imaging probe.
+One cached analysis per action (shared with `report`, i.e. `seqgen show
+--physics`); every check below reads it.
+
+Conventions of this module:
+
+* Magnetic moment = -dE/dB (J/T), the convention of
+  `seqgen.physics.zeeman.magnetic_moment` and `seqgen.physics.kinematics`:
+  the force along a coil axis is moment * d|B|/dx, a negative moment is a
+  low-field seeker. (`seqgen.physics.atoms.magnetic_moment_first_order`
+  uses E = +mu B, the opposite sign; it is not used here.) Moments and line
+  frequencies come from the Breit-Rabi formula at the rig's bias field
+  (`fields: bias`, 0 when absent).
+* A transition is ordered (initial, final): the sample state is the initial
+  one when it belongs to the pair. Its line frequency is |E_final - E_initial|/h
+  plus the drive's `light_shift`; detuning = drive frequency - line.
+  Without a declared `transition` the pair is the sample state and the other
+  hyperfine level at equal mF.
+* The rig file says nothing about the direction of d|B|/dx relative to a
+  coil's axis, so push velocities are compared by magnitude; the sign in the
+  report says whether the state is pushed towards stronger (+) or weaker (-)
+  field.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import constants as sc
+from scipy import optimize
+
+from ..findings import make
+from ..registry import check
+from ._values import value_at
+from .physics_traps import _cache, _species, cloud_at_image
+
+MU_B = sc.physical_constants["Bohr magneton"][0]
+TWO_PI = 2 * math.pi
+MG = 1e-7  # one milligauss in tesla
+
+TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
+TRANSFER_FLOOR = 0.01  # ... but at least by 0.01 in population, so that near-zero intended transfers do not warn on noise
+LZ_MIN_TRANSFER = 0.9
+PUSH_TOLERANCE = 0.10
+NO_FORCE_MOMENT = 0.01 * MU_B  # below this a gradient pushes < 2 % as hard as on an |mF| = 1 state
+EQUAL_MOMENT = 0.01 * MU_B
+SEPARATION_WIDTHS = 3.0
+RESONANT_WAVELENGTH_M = 0.01e-9  # a push beam within 0.01 nm of D2 is taken as resonant (wavelength figures are rounded)
+SQUARE_FWHM_TIMES_T = 0.885893  # FWHM x duration of the sinc^2 power spectrum of a square pulse (from memory)
+MAX_BLOCH_ROTATION = 5e5  # rad of |W| x duration above which a sweep is not integrated (LZ only)
+
+_GL_X, _GL_W = np.polynomial.legendre.leggauss(16)
+
+
+# --------------------------------------------------------------------------- helpers
+
+def pulse_nodes(t0, t1, panels=32):
+    """Composite Gauss-Legendre nodes and weights on [t0, t1] (16 points per panel)."""
+    edges = np.linspace(t0, t1, panels + 1)
+    a, b = edges[:-1, None], edges[1:, None]
+    return (0.5 * (b - a) * _GL_X + 0.5 * (a + b)).ravel(), (0.5 * (b - a) * _GL_W).ravel()
+
+
+def _bias(shot) -> float:
+    return float(shot.rig.bias_field_t or 0.0)
+
+
+def _sample_state(shot):
+    s = shot.sample
+    if s is None or s.F is None or s.mF is None:
+        return None
+    return (int(s.F), int(s.mF))
+
+
+def other_level(sp, state):
+    """The other ground hyperfine level at equal mF, or None where it has no such sublevel."""
+    i = sp.nuclear_spin
+    F, mF = state
+    other = i + 0.5 if abs(F - (i - 0.5)) < 1e-9 else i - 0.5
+    if abs(mF) > other + 1e-9:
+        return None
+    return (int(round(other)), int(mF))
+
+
+def transition_pair(shot, sp, declared=None):
+    """(initial, final) of a drive: the declared pair (sample state first when it is one of
+    them), else the sample state and the other hyperfine level at equal mF; None if unknown."""
+    state = _sample_state(shot)
+    if declared:
+        a, b = (tuple(int(x) for x in s) for s in declared)
+        if sp is not None:
+            i = sp.nuclear_spin
+            for F, mF in (a, b):
+                if min(abs(F - (i - 0.5)), abs(F - (i + 0.5))) > 1e-9 or abs(mF) > F:
+                    raise ValueError(f"|F={F}, mF={mF}> is not a ground level of {sp.name}")
+        if state == b:
+            a, b = b, a
+        return a, b
+    if state is None or sp is None:
+        return None
+    other = other_level(sp, state)
+    return None if other is None else (state, other)
+
+
+def state_text(s) -> str:
+    return f"|F={s[0]}, mF={s[1]:+d}>" if s[1] else f"|F={s[0]}, mF=0>"
+
+
+def line(sp, initial, final, bias_t):
+    """(|nu| in Hz, d|nu|/dB in Hz/T) of initial -> final at the bias field (Breit-Rabi).
+
+    nu = (E_f - E_i)/h, so d nu/dB = (mu_i - mu_f)/h with mu = -dE/dB.
+    """
+    from ..physics.zeeman import magnetic_moment, transition_frequency
+
+    nu = float(transition_frequency(initial[0], initial[1], final[0], final[1], bias_t, atom=sp))
+    mu_i = float(magnetic_moment(initial[0], initial[1], bias_t, atom=sp))
+    mu_f = float(magnetic_moment(final[0], final[1], bias_t, atom=sp))
+    slope = (mu_i - mu_f) / sc.h
+    return abs(nu), (slope if nu >= 0 else -slope)
+
+
+def amplitude_output(shot, drive):
+    """Name of the output that carries a drive's amplitude."""
+    outs = shot.rig.outputs
+    if f"{drive.channel}.amp" in outs:
+        return f"{drive.channel}.amp"
+    if drive.channel in outs:
+        return drive.channel
+    parts = shot.rig.channels.get(drive.channel) or ()
+    return parts[0] if parts else None
+
+
+def _fmt_hz(f, digits=4) -> str:
+    """Frequency text; `digits` significant digits (line frequencies use 10, enough for a synth setting)."""
+    a = abs(f)
+    for scale, unit in ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz")):
+        if a >= scale:
+            return f"{f / scale:.{digits}g} {unit}"
+    return f"{f:.{digits}g} Hz"
+
+
+def _line_hz(f) -> str:
+    return _fmt_hz(f, 10)
+
+
+def _fmt_t(t) -> str:
+    a = abs(t)
+    if a >= 1:
+        return f"{t:.4g} s"
+    if a >= 1e-3:
+        return f"{t * 1e3:.4g} ms"
+    return f"{t * 1e6:.4g} us"
+
+
+def _pi(x) -> str:
+    return f"{x:.4g} rad ({x / math.pi:.3g} pi)"
+
+
+def _rel_off(a, b) -> float:
+    return abs(a - b) / abs(b) if b else math.inf
+
+
+# --------------------------------------------------------------------------- clock pulses
+
+def _pulses(shot):
+    return [a for a in shot.phys if a.kind == "clock_pulse"]
+
+
+def _propagate(shot, amp_name, rabi_per_rad_s, t0, t1, detuning_hz, constant, peak):
+    """Excited (final-state) population after the pulse, from the ground (initial) state."""
+    from ..physics.drive import bloch_propagate
+
+    if constant:
+        return bloch_propagate(rabi_per_rad_s * peak, TWO_PI * detuning_hz, t0, t1).excited_population
+    return bloch_propagate(lambda t: rabi_per_rad_s * value_at(shot, amp_name, t), TWO_PI * detuning_hz, t0, t1,
+                           tol=1e-9).excited_population
+
+
+def pulse_analysis(shot, act):
+    """Cached physics of one clock pulse: area, line, detuning, transfers (dict), or None."""
+    key = ("state-pulse", act.index, act.t0)
+    cache = _cache(shot)
+    if key in cache:
+        return cache[key]
+    cache[key] = None
+    drive = shot.rig.drives.get(act.args["drive"])
+    amp_name = amplitude_output(shot, drive) if drive else None
+    if drive is None or amp_name is None or not act.t1 > act.t0:
+        return None
+    t, w = pulse_nodes(act.t0, act.t1)
+    amp = value_at(shot, amp_name, t)
+    peak = float(np.max(np.abs(amp)))
+    rabi_per = TWO_PI * drive.rabi_per_amplitude_hz
+    rep = dict(drive=drive.name, amp_output=amp_name, duration=act.t1 - act.t0, envelope=act.args.get("envelope", "square"),
+               area=float(rabi_per * np.sum(w * amp)), peak=peak, peak_rabi_hz=drive.rabi_per_amplitude_hz * peak,
+               constant=bool(np.ptp(amp) <= 1e-12 * max(peak, 1e-300)), angle=act.args.get("angle"),
+               rabi_per=rabi_per, light_shift_hz=drive.light_shift_hz)
+    sp = _species(shot)
+    try:
+        pair = transition_pair(shot, sp, act.args.get("transition")) if sp else None
+        if pair:
+            rep["line_hz"], rep["slope_hz_per_t"] = line(sp, pair[0], pair[1], _bias(shot))
+    except ValueError as exc:  # a declared state that is not a ground level
+        pair, rep["reason"] = None, str(exc)
+    rep["pair"] = pair
+    rep["intended_detuning_hz"] = float(act.args.get("detuning", 0.0))
+    if pair and "frequency" in act.args:
+        rep["resonance_hz"] = rep["line_hz"] + drive.light_shift_hz
+        rep["detuning_hz"], rep["detuning_source"] = act.args["frequency"] - rep["resonance_hz"], "frequency"
+    elif "detuning" in act.args:
+        rep["detuning_hz"], rep["detuning_source"] = rep["intended_detuning_hz"], "declared detuning"
+    elif "reason" in rep:
+        rep["detuning_hz"], rep["detuning_source"] = 0.0, f"line unknown, {rep['reason']}: taken on resonance"
+    else:
+        rep["detuning_hz"], rep["detuning_source"] = 0.0, "no frequency given: taken on resonance"
+    if peak > 0:
+        args = (shot, amp_name, rabi_per, act.t0, act.t1)
+        rep["transfer"] = _propagate(*args, rep["detuning_hz"], rep["constant"], peak)
+        rep["intended_transfer"] = (rep["transfer"] if rep["detuning_hz"] == rep["intended_detuning_hz"]
+                                    else _propagate(*args, rep["intended_detuning_hz"], rep["constant"], peak))
+    cache[key] = rep
+    return rep
+
+
+def _fourier_width(shot, act, rep):
+    from ..physics.drive import fourier_width_hz
+
+    if "fourier_hz" not in rep:
+        try:
+            if rep["constant"]:
+                rep["fourier_hz"] = fourier_width_hz("square", rep["duration"])
+            else:
+                name, t0, peak = rep["amp_output"], act.t0, rep["peak"]
+                rep["fourier_hz"] = fourier_width_hz(lambda t: value_at(shot, name, t0 + t) / peak, rep["duration"])
+        except ValueError:
+            rep["fourier_hz"] = None
+    return rep["fourier_hz"]
+
+
+_SRC_AREA = ("pulse area theorem, Phys. Rev. 183, 457 (1969); the rig file's drive calibration (rabi_per_amplitude) "
+             "and the amplitude envelope as compiled")
+
+
+@check("physics.pulse-angle", "error", _SRC_AREA, stage="physics")
+def pulse_angle(shot):
+    """A clock pulse's declared `angle` does not match its pulse area. seqgen
+    integrates the Rabi frequency over the pulse: the drive's calibration
+    (`rabi_per_amplitude` in the rig file, Omega/2pi at amplitude 1) times the
+    amplitude written to the drive's channel, with the envelope (square,
+    Blackman, Gaussian) exactly as compiled. A resonant pulse rotates the
+    state by this area (pi/2: equal superposition, pi: inversion). The
+    allowed relative difference is `limits: {angle_tolerance: ...}` (default
+    0.05). Change the duration or the amplitude (the hint gives both), or
+    recalibrate the drive in the rig file."""
+    tol = shot.limits.angle_tolerance
+    for act in _pulses(shot):
+        rep = pulse_analysis(shot, act)
+        if not rep or rep["angle"] is None or rep["angle"] <= 0 or rep["area"] <= 0:
+            continue
+        off = _rel_off(rep["area"], rep["angle"])
+        if off > tol:
+            k = rep["angle"] / rep["area"]
+            amp_hint = (f" or amplitude {act.args.get('amplitude', 1.0) * k:.4g}" if act.args.get("amplitude", 1.0) * k <= 1
+                        else "")
+            yield make("physics.pulse-angle", f"pulse area on '{rep['drive']}' is {_pi(rep['area'])} (peak Rabi frequency "
+                       f"2 pi x {_fmt_hz(rep['peak_rabi_hz'])}, {rep['envelope']} envelope, {_fmt_t(rep['duration'])}), "
+                       f"but angle says {_pi(rep['angle'])}: off by {off * 100:.3g} % (limit {tol * 100:g} %)",
+                       act.pos, block=act.block, time_s=act.t0,
+                       hint=f"use duration {_fmt_t(rep['duration'] * k)}{amp_hint}, or fix the drive's rabi_per_amplitude",
+                       data={"area_rad": rep["area"], "angle_rad": rep["angle"]})
+
+
+_SRC_DETUNED = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); Rabi formula, Phys. Rev. 51, 652 (1937); Bloch "
+                "propagation with a Magnus integrator, Phys. Rep. 470, 151 (2009)")
+
+
+@check("physics.pulse-detuned", "warning", _SRC_DETUNED + "; 10 % of the intended transfer (common practice, no source)",
+       stage="physics")
+def pulse_detuned(shot):
+    """A clock pulse's `frequency` is so far from the transition that the
+    pulse does not do what it should. The line is the Breit-Rabi frequency of
+    the pulse's `transition` (default: the sample state to the other
+    hyperfine level at equal mF) at the rig's bias field, plus the drive's
+    `light_shift`. seqgen integrates the Bloch equations of the actual pulse
+    (envelope as compiled) at the actual detuning and at the intended one
+    (`detuning:`, default 0) and warns when the transfer differs by more than
+    10 % of the intended transfer. The message gives the Fourier width of
+    the pulse: the detuning it tolerates is about a fraction of it. Set the
+    frequency to the line (the hint gives it) or declare the detuning."""
+    for act in _pulses(shot):
+        rep = pulse_analysis(shot, act)
+        if not rep or rep.get("detuning_source") != "frequency" or "transfer" not in rep:
+            continue
+        p, p0 = rep["transfer"], rep["intended_transfer"]
+        if abs(p - p0) > max(TRANSFER_TOLERANCE * p0, TRANSFER_FLOOR):
+            fw = _fourier_width(shot, act, rep)
+            initial, final = rep["pair"]
+            target = rep["resonance_hz"] + rep["intended_detuning_hz"]
+            yield make("physics.pulse-detuned", f"drive '{rep['drive']}' at {_line_hz(act.args['frequency'])} is "
+                       f"{_fmt_hz(rep['detuning_hz'])} from the {state_text(initial)} -> {state_text(final)} line at "
+                       f"{_line_hz(rep['resonance_hz'])} ({_bias(shot) * 1e4:.4g} G bias); transfer {p:.3g} instead of "
+                       f"{p0:.3g}" + (f"; Fourier width {_fmt_hz(fw)}" if fw else ""), act.pos, block=act.block,
+                       time_s=act.t0, hint=f"set frequency: {target:.10g} Hz",
+                       data={"detuning_hz": rep["detuning_hz"], "transfer": p, "intended_transfer": p0})
+
+
+def _is_area(rep, target, tol):
+    return rep is not None and _rel_off(rep["area"], target) <= tol
+
+
+def interferometers(shot):
+    """Ramsey pairs (pi/2, pi/2) and spin echoes (pi/2, pi, pi/2) on one drive: list of (kind, pulses)."""
+    tol = shot.limits.angle_tolerance
+    by_drive: dict = {}
+    for act in sorted(_pulses(shot), key=lambda a: a.t0):
+        by_drive.setdefault(act.args["drive"], []).append(act)
+    out = []
+    for acts in by_drive.values():
+        reps = [pulse_analysis(shot, a) for a in acts]
+        i = 0
+        while i + 1 < len(acts):
+            if _is_area(reps[i], math.pi / 2, tol):
+                if _is_area(reps[i + 1], math.pi / 2, tol):
+                    out.append(("ramsey", (acts[i], acts[i + 1])))
+                    i += 2
+                    continue
+                if i + 2 < len(acts) and _is_area(reps[i + 1], math.pi, tol) and _is_area(reps[i + 2], math.pi / 2, tol):
+                    out.append(("spin_echo", (acts[i], acts[i + 1], acts[i + 2])))
+                    i += 3
+                    continue
+            i += 1
+    return out
+
+
+def interferometer_analysis(shot, kind, acts):
+    """Free-evolution phase from the detuning, and its sensitivity to a field offset (rad per mG)."""
+    from ..physics.drive import field_noise_phase_sensitivity, ramsey_phase
+
+    rep = pulse_analysis(shot, acts[0])
+    delta = rep["detuning_hz"]
+    slope = rep.get("slope_hz_per_t")
+    if kind == "ramsey":
+        t_free = acts[1].t0 - acts[0].t1
+        t_net = t_free
+    else:
+        t1, t2 = acts[1].t0 - acts[0].t1, acts[2].t0 - acts[1].t1
+        t_free, t_net = t1 + t2, t1 - t2  # a static detuning's phase cancels between the two halves
+    out = dict(kind=kind, free_time=t_free, net_time=t_net, detuning_hz=delta,
+               phase_rad=float(ramsey_phase(delta, t_net)))
+    if slope is not None:
+        out["phase_per_mg"] = float(field_noise_phase_sensitivity(slope, t_net)) * MG
+        if kind == "spin_echo":  # a field step of 1 mG between the halves is not cancelled
+            out["step_phase_per_mg"] = float(field_noise_phase_sensitivity(slope, acts[2].t0 - acts[1].t1)) * MG
+    return out
+
+
+# --------------------------------------------------------------------------- rapid adiabatic passage
+
+def _sweeps(shot):
+    """(drive, segment) for every `sweep` of a drive's frequency output while its amplitude is on."""
+    out = []
+    for drive in shot.rig.drives.values():
+        fname = f"{drive.channel}.freq"
+        amp = amplitude_output(shot, drive)
+        if fname not in shot.rig.outputs or amp is None:
+            continue
+        for seg in shot.segments:
+            if seg.output == fname and seg.kind == "ramp" and seg.action == "sweep" and seg.t1 > seg.t0:
+                if value_at(shot, amp, 0.5 * (seg.t0 + seg.t1))[0] > 0:
+                    out.append((drive, seg))
+    return out
+
+
+def sweep_analysis(shot, drive, seg):
+    """Crossing, Landau-Zener and Bloch transfer of one frequency sweep (dict), or None."""
+    from ..physics.drive import bloch_propagate, landau_zener_probability
+
+    key = ("state-sweep", seg.output, seg.t0)
+    cache = _cache(shot)
+    if key in cache:
+        return cache[key]
+    cache[key] = None
+    sp = _species(shot)
+    pair = transition_pair(shot, sp) if sp else None
+    if pair is None:
+        return None
+    nu, _ = line(sp, pair[0], pair[1], _bias(shot))
+    res = nu + drive.light_shift_hz
+    amp = amplitude_output(shot, drive)
+    rabi_per = TWO_PI * drive.rabi_per_amplitude_hz
+    rep = dict(drive=drive.name, pair=pair, resonance_hz=res, f0=seg.v0, f1=seg.v1, duration=seg.t1 - seg.t0)
+    lo, hi = sorted((seg.v0, seg.v1))
+    rep["crosses"] = lo < res < hi
+    if rep["crosses"]:
+        tg = np.linspace(seg.t0, seg.t1, 2001)
+        fg = value_at(shot, seg.output, tg) - res
+        j = int(np.nonzero(np.sign(fg[1:]) != np.sign(fg[:-1]))[0][0])
+        tc = optimize.brentq(lambda t: float(value_at(shot, seg.output, t)[0] - res), tg[j], tg[j + 1], xtol=1e-15)
+        h = 1e-6 * rep["duration"]
+        rate = float(np.diff(value_at(shot, seg.output, [tc - h, tc + h]))[0] / (2 * h))  # Hz/s
+        rabi = rabi_per * float(value_at(shot, amp, tc)[0])
+        rep.update(t_cross=tc, rate_hz_s=rate, rabi_hz=rabi / TWO_PI,
+                   lz_transfer=1.0 - float(landau_zener_probability(rabi, TWO_PI * rate)))
+        # the sweep that gives LZ_MIN_TRANSFER at this Rabi frequency: pi Omega^2 / (2 rate) = -ln(1 - P)
+        rep["max_rate_hz_s"] = math.pi * rabi**2 / (2 * -math.log(1 - LZ_MIN_TRANSFER)) / TWO_PI
+    else:
+        rep["lz_transfer"] = 0.0
+    w_max = TWO_PI * max(abs(seg.v0 - res), abs(seg.v1 - res)) + rabi_per * float(np.max(value_at(shot, amp, np.linspace(seg.t0, seg.t1, 65))))
+    if w_max * rep["duration"] < MAX_BLOCH_ROTATION:
+        try:
+            rep["bloch_transfer"] = bloch_propagate(lambda t: rabi_per * value_at(shot, amp, t),
+                                                    lambda t: TWO_PI * (value_at(shot, seg.output, t) - res),
+                                                    seg.t0, seg.t1, tol=1e-7).excited_population
+        except RuntimeError:
+            pass
+    cache[key] = rep
+    return rep
+
+
+@check("physics.sweep-not-adiabatic", "warning", "Landau-Zener formula, Proc. R. Soc. A 137, 696 (1932); Breit-Rabi "
+       "formula, Phys. Rev. 38, 2082 (1931); 90 % transfer (common practice, no source)", stage="physics")
+def sweep_not_adiabatic(shot):
+    """A rapid adiabatic passage that does not transfer the atoms: a `sweep`
+    of a drive's frequency while its amplitude is on either misses the line
+    (Breit-Rabi at the bias field plus the drive's light shift; the sample
+    state to the other hyperfine level at equal mF), or crosses it too fast.
+    At the crossing seqgen takes the sweep rate and the Rabi frequency and
+    gives the Landau-Zener transfer 1 - exp(-pi Omega^2 / (2 |d Delta/dt|));
+    it warns below 0.9. The message also gives the transfer of the actual,
+    finite sweep from integrating the Bloch equations (it differs from
+    Landau-Zener when the sweep starts or ends within a few Rabi frequencies
+    of the line). Sweep more slowly, raise the amplitude, or widen the sweep."""
+    for drive, seg in _sweeps(shot):
+        rep = sweep_analysis(shot, drive, seg)
+        if rep is None:
+            continue
+        bloch = f"; integrated transfer {rep['bloch_transfer']:.3g}" if "bloch_transfer" in rep else ""
+        if not rep["crosses"]:
+            yield make("physics.sweep-not-adiabatic", f"sweep of '{drive.name}' from {_line_hz(rep['f0'])} to "
+                       f"{_line_hz(rep['f1'])} does not cross the {state_text(rep['pair'][0])} -> "
+                       f"{state_text(rep['pair'][1])} line at {_line_hz(rep['resonance_hz'])}{bloch}", seg.pos,
+                       block=seg.block, time_s=seg.t0, hint="sweep across the line", data={"lz_transfer": 0.0})
+        elif rep["lz_transfer"] < LZ_MIN_TRANSFER:
+            need = abs(rep["f1"] - rep["f0"]) / rep["max_rate_hz_s"] if rep["max_rate_hz_s"] > 0 else math.inf
+            yield make("physics.sweep-not-adiabatic", f"sweep of '{drive.name}' crosses the line at "
+                       f"{_fmt_hz(abs(rep['rate_hz_s']))}/s with Rabi frequency 2 pi x {_fmt_hz(rep['rabi_hz'])}: "
+                       f"Landau-Zener transfer {rep['lz_transfer']:.3g} (below {LZ_MIN_TRANSFER:g}){bloch}", seg.pos,
+                       block=seg.block, time_s=rep["t_cross"],
+                       hint=f"lengthen the sweep to at least {_fmt_t(need)} (linear), or raise the amplitude",
+                       data={"lz_transfer": rep["lz_transfer"], "rate_hz_s": rep["rate_hz_s"]})
+
+
+# --------------------------------------------------------------------------- barrier modulation drive
+
+def _barriers(shot):
+    return [a for a in shot.phys if a.kind == "barrier"]
+
+
+def barrier_drive_analysis(shot, act):
+    """Two-photon drive of a modulated barrier: Rabi frequency, light shift, resonance, offset (dict) or None."""
+    from ..physics.drive import two_photon_rabi_from_modulated_beam
+
+    key = ("state-barrier", act.index, act.t0)
+    cache = _cache(shot)
+    if key in cache:
+        return cache[key]
+    cache[key] = None
+    f_mod = act.args.get("mod_frequency")
+    sp = _species(shot)
+    beam = shot.rig.beams.get(act.args["beam"])
+    if f_mod is None or sp is None or beam is None or not beam.waist_m:
+        return None
+    rep = dict(f_mod=f_mod, depth=float(act.args.get("mod_depth", 1.0)))
+    try:
+        pair, why = transition_pair(shot, sp, act.args.get("transition")), None
+    except ValueError as exc:
+        pair, why = None, str(exc)
+    rep["pair"] = pair
+    i = sp.nuclear_spin
+    if pair is None or pair[0][1] != pair[1][1] or pair[0][0] == pair[1][0]:
+        rep["reason"] = why or "the modulated-beam drive model couples the two hyperfine levels at equal mF only"
+        cache[key] = rep
+        return rep
+    m = pair[0][1]
+    lower, upper = (int(round(i - 0.5)), m), (int(round(i + 0.5)), m)
+    # peak intensity 2 P / (pi w w_y) of an elliptic Gaussian beam, `power` taken as the peak of the modulation
+    i_peak = 2 * act.args["power"] / (math.pi * beam.waist_m * (beam.waist_y_m or beam.waist_m))
+    try:
+        d = two_photon_rabi_from_modulated_beam(i_peak, min(max(rep["depth"], 0.0), 1.0), beam.wavelength_m, m_f=m,
+                                                polarization=1.0, atom=sp)
+    except ValueError as exc:
+        rep["reason"] = str(exc)
+        cache[key] = rep
+        return rep
+    from ..physics.zeeman import transition_frequency
+
+    nu = float(transition_frequency(lower[0], lower[1], upper[0], upper[1], _bias(shot), atom=sp))
+    res = abs(nu + d.differential_light_shift_hz)  # shift of the F = I + 1/2 level minus that of F = I - 1/2
+    # a barrier pulse of duration T is itself ~0.89/T wide (sinc^2 FWHM): a smaller offset does not matter
+    fourier = SQUARE_FWHM_TIMES_T / act.args["duration"]
+    rep.update(i_peak=i_peak, rabi_hz=d.rabi_rad_s / TWO_PI, light_shift_hz=d.differential_light_shift_hz,
+               bare_hz=abs(nu), resonance_hz=res, offset_hz=f_mod - res, fourier_hz=fourier,
+               tolerance_hz=max(d.rabi_rad_s / TWO_PI, fourier))
+    cache[key] = rep
+    return rep
+
+
+_SRC_MOD = ("modulated-beam Raman coupling through the vector light shift and differential light shift, "
+            "Adv. At. Mol. Opt. Phys. 42, 95 (2000); Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)")
+
+
+@check("physics.modulation-off-resonance", "warning", _SRC_MOD + "; resonance within one Rabi frequency "
+       "(common practice, no source)", stage="physics")
+def modulation_off_resonance(shot):
+    """A barrier's intensity modulation is off the transition it should drive
+    by more than the drive's Rabi frequency, so it barely drives it. The
+    transition is the barrier's `modulation: {transition: ...}` (default:
+    the sample state to the other hyperfine level at equal mF; the model
+    couples equal mF only); its frequency is the Breit-Rabi line at the bias
+    field plus the time-averaged differential light shift of the sheet. The
+    Rabi frequency is that of the co-propagating Raman pair made by the
+    modulation (vector light shift, circular polarisation assumed since the
+    rig file does not give it, so the largest coupling), at the peak intensity
+    2P/(pi w w_y). seqgen warns when the offset exceeds both that Rabi
+    frequency and the Fourier width of the barrier pulse (0.886 / duration,
+    the FWHM of a square pulse's power spectrum): within either the drive
+    still works. Atoms crossing the sheet see it only for their transit
+    time, which widens the line further; see `physics.barrier-rotation`.
+    Tune `modulation: {frequency: ...}` to the line (the hint gives it)."""
+    for act in _barriers(shot):
+        rep = barrier_drive_analysis(shot, act)
+        if not rep or "offset_hz" not in rep:
+            continue
+        if abs(rep["offset_hz"]) > rep["tolerance_hz"]:
+            a, b = rep["pair"]
+            yield make("physics.modulation-off-resonance", f"modulation at {_line_hz(rep['f_mod'])} is "
+                       f"{_fmt_hz(rep['offset_hz'])} from the {state_text(a)} -> {state_text(b)} line at "
+                       f"{_line_hz(rep['resonance_hz'])} (Breit-Rabi {_line_hz(rep['bare_hz'])}, differential light shift "
+                       f"{_fmt_hz(rep['light_shift_hz'])}), more than the drive's Rabi frequency 2 pi x {_fmt_hz(rep['rabi_hz'])} and "
+                       f"the {_fmt_t(act.args['duration'])} pulse's Fourier width {_fmt_hz(rep['fourier_hz'])}",
+                       act.pos, block=act.block, time_s=act.t0, hint=f"set modulation frequency: {rep['resonance_hz']:.10g} Hz",
+                       data={"offset_hz": rep["offset_hz"], "rabi_hz": rep["rabi_hz"]})
+
+
+@check("hardware.modulation-unreachable", "error", "sampling theorem, Proc. IRE 37, 10 (1949) (from memory); the rig "
+       "file's device timebase and minimum interval", stage="physics")
+def modulation_unreachable(shot):
+    """A barrier's modulation is put on an analog (or digital) channel, i.e.
+    as rows of a channel table, but the channel's device cannot update fast
+    enough: a modulation at frequency f needs an update rate above 2 f
+    (timebase / minimum interval of the device). Put the modulation on a
+    synth channel (a frequency source), or lower the frequency."""
+    for act in _barriers(shot):
+        name, f = act.args.get("mod_channel"), act.args.get("mod_frequency")
+        out = shot.rig.outputs.get(name) if name else None
+        if out is None or f is None or out.kind not in ("analog", "digital"):
+            continue
+        dev = shot.rig.devices.get(out.device)
+        if dev is None:
+            continue
+        rate = dev.timebase_hz / max(1, dev.min_interval_ticks)
+        if rate <= 2 * f:
+            yield make("hardware.modulation-unreachable", f"modulation at {_fmt_hz(f)} on {out.kind} channel "
+                       f"'{out.channel}' needs more than {_fmt_hz(2 * f)} of updates, but device '{dev.name}' updates at "
+                       f"most {_fmt_hz(rate)}", act.pos, block=act.block, time_s=act.t0,
+                       hint="modulate through a synth channel of the rig (kind: synth)",
+                       data={"frequency_hz": f, "update_rate_hz": rate})
+
+
+# --------------------------------------------------------------------------- pushes
+
+def _pushes(shot):
+    return [a for a in shot.phys if a.kind == "push"]
+
+
+def push_analysis(shot, act):
+    """Kick velocity of a push (dict: velocity m/s signed, moment or photons, arrival at target), or None."""
+    from ..physics.kinematics import gradient_kick_velocity, optical_kick, time_to_reach
+
+    key = ("state-push", act.index, act.t0)
+    cache = _cache(shot)
+    if key in cache:
+        return cache[key]
+    cache[key] = None
+    sp = _species(shot)
+    if sp is None:
+        return None
+    dur = act.args["duration"]
+    rep = dict(duration=dur)
+    if "coil" in act.args:
+        from ..physics.zeeman import magnetic_moment
+
+        state = _sample_state(shot)
+        if state is None:
+            return None
+        try:
+            mu = float(magnetic_moment(state[0], state[1], _bias(shot), atom=sp))
+        except ValueError:
+            return None
+        rep.update(kind="magnetic", state=state, moment=mu, gradient=act.args["gradient"],
+                   velocity=float(gradient_kick_velocity(mu, act.args["gradient"], dur, sp.mass_kg)),
+                   no_force=state[1] == 0 or abs(mu) < NO_FORCE_MOMENT)
+    else:
+        from ..physics.imaging import saturation_parameter
+
+        beam = shot.rig.beams.get(act.args.get("beam"))
+        if beam is None or not beam.waist_m:
+            return None
+        s0 = float(saturation_parameter(act.args["power"], beam.waist_m, sp.saturation_intensity_w_m2))
+        off = beam.wavelength_m - sp.d2_wavelength_m
+        det = 0.0 if abs(off) < RESONANT_WAVELENGTH_M else TWO_PI * sc.c * (1 / beam.wavelength_m - 1 / sp.d2_wavelength_m)
+        k = optical_kick(TWO_PI * sp.d2_linewidth_hz, s0, det, dur, beam.wavelength_m, sp.mass_kg)
+        rep.update(kind="optical", beam=beam.name, saturation=s0, detuning_rad_s=det, photons=k.photons,
+                   recoil=k.recoil_velocity, velocity=k.velocity, rms_along=k.rms_velocity_along,
+                   heating_j=k.heating_j, no_force=False)
+    speed = abs(rep["velocity"])
+    d = act.args.get("target_distance")
+    if d is not None:
+        if speed == 0:
+            t = math.inf
+        elif d <= 0.5 * speed * dur:  # reached during the push, uniform acceleration from rest
+            t = float(time_to_reach(d, 0.0, speed / dur))
+        else:
+            t = dur + float(time_to_reach(d - 0.5 * speed * dur, speed))
+        rep["arrival"] = act.t0 + t
+        nxt = [b for b in _barriers(shot) if b.t0 >= act.t1 - 1e-12]
+        if nxt:
+            rep["barrier"] = min(nxt, key=lambda b: b.t0)
+    cache[key] = rep
+    return rep
+
+
+_SRC_PUSH = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); force = moment x field gradient and dv = F t / m "
+             "(textbook); photon recoil and steady-state scattering, Adv. At. Mol. Opt. Phys. 42, 95 (2000)")
+
+
+@check("physics.push-velocity", "error", _SRC_PUSH, stage="physics")
+def push_velocity(shot):
+    """A push does not give the velocity its `expect_velocity` says. A
+    magnetic push gives |dv| = |mu| b' tau / m with mu = -dE/dB of the sample
+    state from the Breit-Rabi formula at the rig's bias field, b' the
+    gradient and tau the duration; an optical push gives N v_rec with N the
+    photons scattered from the beam (steady-state rate, saturation from the
+    beam's power and waist). Magnitudes are compared (the rig does not say
+    which way the field magnitude grows along the coil axis); the allowed
+    relative difference is the push's `tolerance` (default 0.1). Change the
+    gradient or the duration (the hint gives the duration), or fix
+    `expect_velocity`."""
+    for act in _pushes(shot):
+        want = act.args.get("expect_velocity")
+        rep = push_analysis(shot, act)
+        if want is None or not rep or rep["no_force"]:
+            continue
+        tol = act.args.get("tolerance", PUSH_TOLERANCE)
+        got = abs(rep["velocity"])
+        if _rel_off(got, abs(want)) > tol:
+            how = (f"moment {rep['moment'] / MU_B:+.4g} mu_B of {state_text(rep['state'])}, gradient "
+                   f"{rep['gradient'] * 100:.4g} G/cm" if rep["kind"] == "magnetic" else
+                   f"{rep['photons']:.3g} photons of {rep['recoil'] * 1e3:.4g} mm/s recoil")
+            hint = (f"use duration {_fmt_t(rep['duration'] * abs(want) / got)} for {abs(want) * 1e3:.4g} mm/s"
+                    if got > 0 else "the push gives no velocity")
+            yield make("physics.push-velocity", f"the push gives {got * 1e3:.4g} mm/s ({how}, {_fmt_t(rep['duration'])}), "
+                       f"but expect_velocity is {abs(want) * 1e3:.4g} mm/s (tolerance {tol * 100:g} %)", act.pos,
+                       block=act.block, time_s=act.t0, hint=hint, data={"velocity_m_s": got, "expected_m_s": abs(want)})
+
+
+@check("physics.push-no-force", "error", "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); mF = 0 states have no "
+       "first-order moment (common practice, no source)", stage="physics")
+def push_no_force(shot):
+    """A magnetic push on a state without a first-order magnetic moment
+    (mF = 0, or |mu| below 0.01 mu_B at the bias field): the gradient does
+    not move the atoms. Transfer the atoms to a magnetic state first (a
+    clock pulse or a sweep), or push with light."""
+    for act in _pushes(shot):
+        rep = push_analysis(shot, act)
+        if rep and rep.get("kind") == "magnetic" and rep["no_force"]:
+            yield make("physics.push-no-force", f"{state_text(rep['state'])} has moment {rep['moment'] / MU_B:.3g} mu_B at "
+                       f"{_bias(shot) * 1e4:.4g} G: the {rep['gradient'] * 100:.4g} G/cm gradient does not push it "
+                       f"({abs(rep['velocity']) * 1e6:.3g} um/s)", act.pos, block=act.block, time_s=act.t0,
+                       hint="transfer the atoms to a state with mF != 0 before the push, or use an optical push")
+
+
+@check("physics.push-too-late", "warning", "uniform acceleration during the push, then free flight (textbook); "
+       + _SRC_PUSH, stage="physics")
+def push_too_late(shot):
+    """The atoms pushed towards `target_distance` arrive only after the next
+    barrier has ended: the barrier meets no atoms. The arrival time follows
+    from the push's velocity (as for `physics.push-velocity`), uniform
+    acceleration during the push and free flight after it. Start the barrier
+    block later, make it longer, or push harder."""
+    for act in _pushes(shot):
+        rep = push_analysis(shot, act)
+        if not rep or "barrier" not in rep:
+            continue
+        b = rep["barrier"]
+        if rep["arrival"] > b.t1:
+            when = "never" if math.isinf(rep["arrival"]) else f"at t = {_fmt_t(rep['arrival'])}"
+            yield make("physics.push-too-late", f"the atoms reach {act.args['target_distance'] * 1e3:.4g} mm {when} "
+                       f"({abs(rep['velocity']) * 1e3:.4g} mm/s), but the barrier in block '{b.block}' ends at "
+                       f"t = {_fmt_t(b.t1)}", b.pos, block=b.block, time_s=b.t1,
+                       hint=(f"keep the barrier on until at least {_fmt_t(rep['arrival'] - b.t0)} after its start"
+                             if not math.isinf(rep["arrival"]) else "the push gives no velocity"),
+                       data={"arrival_s": rep["arrival"], "barrier_end_s": b.t1})
+
+
+# --------------------------------------------------------------------------- Stern-Gerlach separation
+
+def separation_analysis(shot, act):
+    """Separation of the two components at the next image, against their widths (dict) or None."""
+    from ..physics.kinematics import components_resolved, stern_gerlach_separation
+    from ..physics.zeeman import magnetic_moment
+
+    key = ("state-separate", act.index, act.t0)
+    cache = _cache(shot)
+    if key in cache:
+        return cache[key]
+    cache[key] = None
+    sp = _species(shot)
+    if sp is None or _sample_state(shot) is None:
+        return None
+    images = [a for a in shot.phys if a.kind == "image" and a.t0 >= act.t1]
+    pulses = [a for a in _pulses(shot) if a.t1 <= act.t0 + 1e-12]
+    if not images or not pulses:
+        return None
+    img = min(images, key=lambda a: a.t0)
+    pulse = max(pulses, key=lambda a: a.t1)
+    try:
+        pair = transition_pair(shot, sp, pulse.args.get("transition"))
+        if pair is None:
+            return None
+        b = _bias(shot)
+        mu = [float(magnetic_moment(s[0], s[1], b, atom=sp)) for s in pair]
+    except ValueError:
+        return None
+    rep = dict(pair=pair, moments=mu, image=img, pulse=pulse, equal=abs(mu[0] - mu[1]) < EQUAL_MOMENT)
+    tof_after = img.t0 - act.t1
+    rep["separation"] = float(stern_gerlach_separation(mu[0], mu[1], act.args["gradient"], act.args["duration"],
+                                                       tof_after, sp.mass_kg))
+    cloud = cloud_at_image(shot, img)
+    if cloud:
+        # rms of a Thomas-Fermi profile along an axis is R / sqrt(7)
+        # (Bose-Einstein Condensation in Dilute Gases, Cambridge University Press, 2nd ed. 2008)
+        sigma = cloud["size"] / math.sqrt(7) if cloud["size_kind"].startswith("Thomas") else cloud["size"]
+        rep.update(sigma=sigma, combined=math.sqrt(2) * sigma,
+                   resolved=bool(components_resolved(rep["separation"], sigma, sigma, SEPARATION_WIDTHS)))
+    cache[key] = rep
+    return rep
+
+
+def _separations(shot):
+    for act in (a for a in shot.phys if a.kind == "separate"):
+        rep = separation_analysis(shot, act)
+        if rep:
+            yield act, rep
+
+
+_SRC_SG = ("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m with moments from the Breit-Rabi "
+           "formula, Phys. Rev. 38, 2082 (1931)")
+
+
+@check("physics.equal-moments", "error", _SRC_SG, stage="physics")
+def equal_moments(shot):
+    """A Stern-Gerlach separation of two states with equal magnetic moments
+    (within 0.01 mu_B at the bias field): the gradient moves both alike and
+    cannot separate them. The two states are the sample state and the other
+    state of the last clock pulse's transition. Pick a transition to a state
+    with another moment, or separate the components another way."""
+    for act, rep in _separations(shot):
+        if rep["equal"]:
+            a, b = rep["pair"]
+            yield make("physics.equal-moments", f"{state_text(a)} and {state_text(b)} have moments "
+                       f"{rep['moments'][0] / MU_B:+.4g} and {rep['moments'][1] / MU_B:+.4g} mu_B: the gradient cannot "
+                       f"separate them", act.pos, block=act.block, time_s=act.t0,
+                       hint="drive a transition to a state with a different moment (another mF)")
+
+
+@check("physics.components-overlap", "error", _SRC_SG + "; rms of a Thomas-Fermi profile R/sqrt(7) (Bose-Einstein "
+       "Condensation in Dilute Gases, Cambridge University Press, 2nd ed. 2008); at least 3 combined rms widths "
+       "(common practice, no source)", stage="physics")
+def components_overlap(shot):
+    """After the Stern-Gerlach separation the two components still overlap
+    at the image: their relative displacement (relative acceleration
+    (mu_1 - mu_2) b'/m during the gradient pulse, then free drift until the
+    image) is less than 3 combined rms widths, sqrt(sigma_1^2 + sigma_2^2).
+    The width is that of the cloud at the image (ballistic thermal, or the
+    Thomas-Fermi scaling solution with rms R/sqrt(7) along an axis; the
+    largest axis, so the estimate is on the safe side). Raise the gradient,
+    lengthen the pulse, or image later."""
+    for act, rep in _separations(shot):
+        if rep["equal"] or "resolved" not in rep or rep["resolved"]:
+            continue
+        need = SEPARATION_WIDTHS * rep["combined"]
+        k = need / abs(rep["separation"]) if rep["separation"] else math.inf
+        yield make("physics.components-overlap", f"the components are {abs(rep['separation']) * 1e6:.4g} um apart at the "
+                   f"image, {abs(rep['separation']) / rep['combined']:.3g} combined rms widths (each {rep['sigma'] * 1e6:.4g} "
+                   f"um); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
+                   hint=f"raise the gradient to {act.args['gradient'] * 100 * k:.3g} G/cm, or lengthen the pulse",
+                   data={"separation_m": rep["separation"], "combined_rms_m": rep["combined"]})
+
+
+@check("physics.components-separated", "note", _SRC_SG, stage="physics")
+def components_separated(shot):
+    """How well a Stern-Gerlach separation resolves the two components at
+    the image: their distance in combined rms widths (3 or more is enough;
+    see `physics.components-overlap`)."""
+    for act, rep in _separations(shot):
+        if rep["equal"] or not rep.get("resolved"):
+            continue
+        yield make("physics.components-separated", f"{state_text(rep['pair'][0])} and {state_text(rep['pair'][1])} are "
+                   f"{abs(rep['separation']) * 1e3:.3g} mm apart at the image, {abs(rep['separation']) / rep['combined']:.3g} "
+                   f"combined rms widths (margin {abs(rep['separation']) / (SEPARATION_WIDTHS * rep['combined']):.3g} x the "
+                   f"{SEPARATION_WIDTHS:g} needed)", act.pos, block=act.block, time_s=act.t0,
+                   data={"separation_m": rep["separation"], "combined_rms_m": rep["combined"]})
+
+
+# --------------------------------------------------------------------------- imaging probe
+
+def _images(shot):
+    return [a for a in shot.phys if a.kind == "image"]
+
+
+def probe_analysis(shot, act):
+    """Saturation, photons per atom, Doppler shift and recoil blur of an image (dict) or None."""
+    from ..physics import imaging as im
+    from ..physics.kinematics import recoil_velocity
+
+    key = ("state-probe", act.index, act.t0)
+    cache = _cache(shot)
+    if key in cache:
+        return cache[key]
+    cache[key] = None
+    sp = _species(shot)
+    setup = shot.rig.imaging.get(act.args["setup"])
+    beam = shot.rig.beams.get(setup.probe_beam) if setup and setup.probe_beam else None
+    power = act.args.get("probe_power")
+    if sp is None or beam is None or not beam.waist_m or power is None:
+        return None
+    out = shot.rig.outputs.get(beam.power_channel)
+    if out is not None and out.kind == "digital":
+        return None  # on/off probe: its power is not known
+    dur = act.args["duration"]
+    gamma = TWO_PI * sp.d2_linewidth_hz
+    s0 = float(im.saturation_parameter(power, beam.waist_m, sp.saturation_intensity_w_m2))
+    rate = float(im.scattering_rate(gamma, s0, TWO_PI * act.args.get("detuning", 0.0)))
+    n = float(im.photons_per_atom(rate, dur))
+    v_rec = float(recoil_velocity(beam.wavelength_m, sp.mass_kg))
+    rep = dict(saturation=s0, rate=rate, photons=n, recoil=v_rec,
+               doppler_linewidths=float(im.doppler_shift_linewidths(n, v_rec, beam.wavelength_m, sp.d2_linewidth_hz)),
+               doppler_hz=float(im.doppler_shift_after(n, v_rec, beam.wavelength_m)),
+               blur=float(im.recoil_blur(n, v_rec, dur)))
+    if setup.pixel_size_m and setup.magnification:
+        rep["pixel"] = float(im.pixel_size_object_plane(setup.pixel_size_m, setup.magnification))
+    cache[key] = rep
+    return rep
+
+
+_SRC_PROBE = ("steady-state scattering rate and saturation intensity, Sodium D Line Data and the other alkali D-line "
+              "data compilations; first-order Doppler shift; photon recoil (textbook)")
+
+
+@check("physics.probe-doppler", "warning", _SRC_PROBE + "; 1 linewidth (common practice, no source)", stage="physics")
+def probe_doppler(shot):
+    """The imaging probe pushes the atoms out of resonance: after N absorbed
+    photons an atom moves at N v_rec along the probe and sees a Doppler shift
+    N v_rec / lambda, here more than one natural linewidth of the D2 line, so
+    the last part of the pulse is absorbed less and the atom number comes out
+    low. N = R tau with the steady-state rate R = (Gamma/2) s / (1 + s + 4
+    Delta^2/Gamma^2) and s = 2P/(pi w^2)/I_sat of the probe beam. Shorten the
+    probe pulse or lower its power."""
+    for act in _images(shot):
+        rep = probe_analysis(shot, act)
+        if rep and rep["doppler_linewidths"] > 1.0:
+            yield make("physics.probe-doppler", f"{rep['photons']:.3g} photons per atom (saturation {rep['saturation']:.3g}) "
+                       f"Doppler-shift the atoms by {_fmt_hz(rep['doppler_hz'])}, {rep['doppler_linewidths']:.3g} natural "
+                       f"linewidths, during the probe", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"shorten the probe to {_fmt_t(act.args['duration'] / rep['doppler_linewidths'] * 0.5)} or lower its power",
+                       data={"photons": rep["photons"], "doppler_linewidths": rep["doppler_linewidths"]})
+
+
+@check("physics.imaging-blur", "warning", _SRC_PROBE + "; recoil random walk sigma = v_rec tau sqrt(N)/3 "
+       "(derived in seqgen.physics.imaging.recoil_blur)", stage="physics")
+def imaging_blur(shot):
+    """The random walk of spontaneous-emission recoils during the probe
+    blurs the image by more than one camera pixel in the atom plane (pixel
+    size / magnification): sigma = v_rec tau sqrt(N) / 3 for N photons over
+    the probe duration tau. Shorten the probe pulse or lower its power."""
+    for act in _images(shot):
+        rep = probe_analysis(shot, act)
+        if rep and rep.get("pixel") and rep["blur"] > rep["pixel"]:
+            # blur grows as tau^(3/2) at fixed power
+            t_ok = act.args["duration"] * (rep["pixel"] / rep["blur"]) ** (2 / 3) * 0.9
+            yield make("physics.imaging-blur", f"recoil blur {rep['blur'] * 1e6:.3g} um ({rep['photons']:.3g} photons per "
+                       f"atom) exceeds one pixel, {rep['pixel'] * 1e6:.3g} um in the atom plane", act.pos, block=act.block,
+                       time_s=act.t0, hint=f"shorten the probe to about {_fmt_t(t_ok)}",
+                       data={"blur_m": rep["blur"], "pixel_m": rep["pixel"]})
+
+
+@check("hardware.exposure-too-short", "error", "the rig file's camera channel; the camera must be exposing while the "
+       "probe is on (common practice, no source)", stage="physics")
+def exposure_too_short(shot):
+    """The camera exposure is shorter than the probe pulse: both start
+    together, so the end of the probe light is not recorded and the image
+    under-counts the absorption. Make `exposure` at least the probe
+    `duration`."""
+    for act in _images(shot):
+        exp_s, dur = act.args.get("exposure"), act.args["duration"]
+        if exp_s is not None and exp_s < dur * (1 - 1e-9):
+            yield make("hardware.exposure-too-short", f"camera exposure {_fmt_t(exp_s)} is shorter than the probe pulse "
+                       f"{_fmt_t(dur)}", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"set exposure: {_fmt_t(dur)} or longer")
+
+
+# --------------------------------------------------------------------------- `seqgen show --physics`
+
+def _pulse_items(shot, act, rep):
+    items = [f"angle {_pi(rep['area'])}" + (f" (declared {rep['angle'] / math.pi:.3g} pi)" if rep["angle"] is not None else ""),
+             f"peak Rabi frequency 2 pi x {_fmt_hz(rep['peak_rabi_hz'])}, {rep['envelope']} {_fmt_t(rep['duration'])}"]
+    if rep["pair"]:
+        a, b = rep["pair"]
+        items.append(f"{state_text(a)} -> {state_text(b)} line {_line_hz(rep['line_hz'] + rep['light_shift_hz'])} at "
+                     f"{_bias(shot) * 1e4:.4g} G")
+    items.append(f"detuning {_fmt_hz(rep['detuning_hz'])}" + ("" if rep["detuning_source"] == "frequency"
+                                                               else f" ({rep['detuning_source']})"))
+    if "transfer" in rep:
+        items.append(f"transfer {rep['transfer']:.4g}" + (f" (intended {rep['intended_transfer']:.4g})"
+                                                          if rep["intended_transfer"] != rep["transfer"] else ""))
+    fw = _fourier_width(shot, act, rep)
+    if fw:
+        items.append(f"Fourier width {_fmt_hz(fw)}")
+    if rep.get("slope_hz_per_t") is not None:
+        items.append(f"field sensitivity {rep['slope_hz_per_t'] * MG:.4g} Hz/mG")
+    return items
+
+
+def report(shot) -> list[dict]:
+    rows = []
+    if _species(shot) is None:
+        return rows
+    for act in _pulses(shot):
+        rep = pulse_analysis(shot, act)
+        if rep:
+            rows.append({"block": act.block, "kind": "clock_pulse", "time_s": act.t0, "items": _pulse_items(shot, act, rep)})
+    for kind, acts in interferometers(shot):
+        r = interferometer_analysis(shot, kind, acts)
+        items = [f"free evolution {_fmt_t(r['free_time'])} between blocks " + ", ".join(a.block for a in acts),
+                 f"detuning {_fmt_hz(r['detuning_hz'])} -> free-evolution phase {r['phase_rad']:.4g} rad"]
+        if kind == "spin_echo":
+            items[-1] += f" (static part cancelled; net time {_fmt_t(r['net_time'])})"
+        if "phase_per_mg" in r:
+            items.append(f"phase per mG of static field offset {r['phase_per_mg']:.4g} rad")
+        if "step_phase_per_mg" in r:
+            items.append(f"phase per mG of a field step between the halves {r['step_phase_per_mg']:.4g} rad")
+        rows.append({"block": acts[0].block, "kind": kind, "time_s": acts[0].t0, "items": items})
+    for drive, seg in _sweeps(shot):
+        rep = sweep_analysis(shot, drive, seg)
+        if not rep:
+            continue
+        items = [f"sweep {_line_hz(rep['f0'])} -> {_line_hz(rep['f1'])} in {_fmt_t(rep['duration'])}",
+                 f"{state_text(rep['pair'][0])} -> {state_text(rep['pair'][1])} line {_line_hz(rep['resonance_hz'])}"]
+        if rep["crosses"]:
+            items.append(f"crossing at {_fmt_hz(abs(rep['rate_hz_s']))}/s, Rabi frequency 2 pi x {_fmt_hz(rep['rabi_hz'])}")
+            items.append(f"Landau-Zener transfer {rep['lz_transfer']:.4g}")
+        else:
+            items.append("does not cross the line")
+        if "bloch_transfer" in rep:
+            items.append(f"integrated transfer {rep['bloch_transfer']:.4g}")
+        rows.append({"block": seg.block, "kind": "sweep", "time_s": seg.t0, "items": items})
+    for act in _barriers(shot):
+        rep = barrier_drive_analysis(shot, act)
+        if not rep:
+            continue
+        if "reason" in rep:
+            items = [rep["reason"]]
+        else:
+            a, b = rep["pair"]
+            items = [f"modulation {_line_hz(rep['f_mod'])} depth {rep['depth']:.3g} on {state_text(a)} -> {state_text(b)}",
+                     f"effective two-photon Rabi frequency 2 pi x {_fmt_hz(rep['rabi_hz'])} (circular polarisation assumed; "
+                     f"peak intensity {rep['i_peak'] * 1e-4:.4g} W/cm^2)",
+                     f"differential light shift {_fmt_hz(rep['light_shift_hz'])}",
+                     f"line {_line_hz(rep['resonance_hz'])} (Breit-Rabi {_line_hz(rep['bare_hz'])}), "
+                     f"modulation offset {_fmt_hz(rep['offset_hz'])} (tolerated {_fmt_hz(rep['tolerance_hz'])})"]
+        rows.append({"block": act.block, "kind": "barrier_drive", "time_s": act.t0, "items": items})
+    for act in _pushes(shot):
+        rep = push_analysis(shot, act)
+        if not rep:
+            continue
+        if rep["kind"] == "magnetic":
+            items = [f"{state_text(rep['state'])} moment {rep['moment'] / MU_B:+.5g} mu_B (-dE/dB) at {_bias(shot) * 1e4:.4g} G",
+                     f"kick {rep['velocity'] * 1e3:+.4g} mm/s (+ towards stronger field)"]
+        else:
+            items = [f"optical: saturation {rep['saturation']:.3g}, {rep['photons']:.3g} photons of "
+                     f"{rep['recoil'] * 1e3:.4g} mm/s recoil", f"kick {rep['velocity'] * 1e3:.4g} mm/s along the beam, "
+                     f"rms spread {rep['rms_along'] * 1e3:.3g} mm/s"]
+        if act.args.get("expect_velocity") is not None:
+            items.append(f"expected {abs(act.args['expect_velocity']) * 1e3:.4g} mm/s")
+        if "arrival" in rep:
+            items.append(f"reaches {act.args['target_distance'] * 1e3:.4g} mm at t = {_fmt_t(rep['arrival'])}")
+            if "barrier" in rep:
+                b = rep["barrier"]
+                items.append(f"barrier '{b.block}' on {_fmt_t(b.t0)} to {_fmt_t(b.t1)}")
+        rows.append({"block": act.block, "kind": "push", "time_s": act.t0, "items": items})
+    for act, rep in _separations(shot):
+        a, b = rep["pair"]
+        items = [f"{state_text(a)} {rep['moments'][0] / MU_B:+.4g} mu_B, {state_text(b)} {rep['moments'][1] / MU_B:+.4g} mu_B",
+                 f"separation at the image {abs(rep['separation']) * 1e3:.4g} mm"]
+        if "combined" in rep:
+            items.append(f"rms width {rep['sigma'] * 1e6:.4g} um each: {abs(rep['separation']) / rep['combined']:.3g} "
+                         f"combined rms widths (need {SEPARATION_WIDTHS:g})")
+        rows.append({"block": act.block, "kind": "separate", "time_s": act.t0, "items": items})
+    for act in _images(shot):
+        rep = probe_analysis(shot, act)
+        if not rep:
+            continue
+        items = [f"saturation {rep['saturation']:.3g}", f"{rep['photons']:.3g} photons per atom",
+                 f"Doppler shift {rep['doppler_linewidths']:.3g} linewidths", f"recoil blur {rep['blur'] * 1e6:.3g} um"
+                 + (f" (pixel {rep['pixel'] * 1e6:.3g} um in the atom plane)" if rep.get("pixel") else "")]
+        rows.append({"block": act.block, "kind": "probe", "time_s": act.t0, "items": items})
+    return rows

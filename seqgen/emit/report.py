@@ -1,0 +1,251 @@
+"""The preflight report: one self-contained HTML file.
+
+`render_report(result, file)` turns a `pipeline.Result` into HTML: the
+summary, every finding with the offending source line and its fix, what each
+finding code means, the physics notes, the safety caution and the timeline as
+inline SVG. Everything is inline (CSS, SVG); the page loads nothing from the
+network and needs no JavaScript. The text depends only on the inputs (no time
+stamps, no absolute paths beyond those given), so the same input gives the same
+bytes. `write_report` writes it atomically and refuses to replace an existing
+file without force.
+"""
+
+from __future__ import annotations
+
+import html
+from pathlib import Path
+
+from .. import __version__
+from ..findings import SEVERITIES, _fmt_time, summary
+from .plot import OutputExists, write_atomic  # noqa: F401  (OutputExists re-exported for the CLI)
+
+CONTEXT_LINES = 1  # source lines shown above and below the offending one
+
+_CSS = """
+:root { --ink: #1f2933; --muted: #5f6b7a; --line: #d5dbe3; --error: #b3202c; --warning: #a86200;
+        --note: #46596d; --accept: #5a5a5a; --paper: #ffffff; --tint: #f4f6f9; }
+* { box-sizing: border-box; }
+body { margin: 0; padding: 1.5rem 2rem 3rem; font: 14px/1.45 system-ui, -apple-system, "Segoe UI", sans-serif;
+       color: var(--ink); background: var(--paper); max-width: 1280px; }
+h1 { font-size: 1.35rem; margin: 0 0 .25rem; }
+h2 { font-size: 1.1rem; margin: 2rem 0 .6rem; border-bottom: 1px solid var(--line); padding-bottom: .2rem; }
+.meta { color: var(--muted); margin: 0 0 1rem; }
+.meta code { color: var(--ink); }
+.chips { display: flex; gap: .5rem; flex-wrap: wrap; margin: .5rem 0 1rem; }
+.chip { border-radius: 1rem; padding: .15rem .75rem; border: 1px solid var(--line); background: var(--tint); }
+.chip b { font-size: 1.05rem; }
+.chip.error { border-color: var(--error); color: var(--error); }
+.chip.warning { border-color: var(--warning); color: var(--warning); }
+.chip.note { border-color: var(--note); color: var(--note); }
+.verdict { font-weight: 600; }
+.verdict.bad { color: var(--error); }
+.verdict.good { color: #1d6b3a; }
+.caution { border-left: 4px solid var(--warning); background: #fff7e8; padding: .6rem .9rem; margin: 1rem 0; }
+table { border-collapse: collapse; width: 100%; }
+th, td { text-align: left; vertical-align: top; padding: .45rem .55rem; border-bottom: 1px solid var(--line); }
+th { background: var(--tint); font-weight: 600; white-space: nowrap; }
+td.sev { white-space: nowrap; font-weight: 600; }
+tr.sev-error td.sev { color: var(--error); }
+tr.sev-warning td.sev { color: var(--warning); }
+tr.sev-note td.sev { color: var(--note); }
+tr.accepted td { color: var(--accept); }
+td.where, td.time { white-space: nowrap; font-family: ui-monospace, "DejaVu Sans Mono", monospace; font-size: .85rem; }
+.code { font-family: ui-monospace, "DejaVu Sans Mono", monospace; font-weight: 600; }
+.msg { margin: 0 0 .3rem; }
+.fix { margin: .3rem 0 0; }
+.fix::before { content: "fix: "; font-weight: 600; }
+.accept-reason { margin: .3rem 0 0; font-style: italic; }
+pre.src { margin: .35rem 0; padding: .3rem .5rem; background: var(--tint); border: 1px solid var(--line);
+          overflow-x: auto; font-size: .82rem; line-height: 1.35; }
+pre.src .ln { color: var(--muted); user-select: none; display: inline-block; min-width: 3.2em; }
+pre.src .hit { background: #ffe9a8; display: block; }
+details { margin-top: .3rem; color: var(--muted); }
+details pre { white-space: pre-wrap; font-size: .82rem; margin: .3rem 0; color: var(--ink); }
+figure { margin: 0; overflow-x: auto; border: 1px solid var(--line); padding: .5rem; }
+figure svg { max-width: 100%; height: auto; display: block; }
+figcaption { color: var(--muted); font-size: .85rem; margin-top: .4rem; }
+ul.notes li { margin: .2rem 0; }
+footer { margin-top: 2.5rem; color: var(--muted); font-size: .8rem; }
+@media print { body { padding: 0; } figure { border: none; } }
+"""
+
+
+def _e(text) -> str:
+    return html.escape(str(text), quote=True)
+
+
+class _Sources:
+    """Lines of source files, read once each (missing or unreadable files give no lines)."""
+
+    def __init__(self):
+        self._cache: dict[str, list[str] | None] = {}
+
+    def lines(self, file: str):
+        if file not in self._cache:
+            try:
+                text = Path(file).read_text(encoding="utf-8", errors="replace")
+                self._cache[file] = text.splitlines()
+            except (OSError, ValueError):
+                self._cache[file] = None
+        return self._cache[file]
+
+    def snippet(self, file: str, line: int) -> str:
+        lines = self.lines(file) if file and line else None
+        if not lines or line > len(lines):
+            return ""
+        lo, hi = max(1, line - CONTEXT_LINES), min(len(lines), line + CONTEXT_LINES)
+        parts = []
+        for n in range(lo, hi + 1):
+            body = f'<span class="ln">{n}</span>{_e(lines[n - 1]) or " "}'
+            parts.append(f'<span class="hit">{body}</span>' if n == line else body + "\n")
+        return f'<pre class="src" data-line="{line}">' + "".join(parts).rstrip("\n") + "</pre>"
+
+
+def _code_doc(code: str) -> str:
+    from ..registry import CODES, _load_all
+
+    _load_all()
+    info = CODES.get(code)
+    if info is None:
+        return ""
+    return (f'<details><summary>what <span class="code">{_e(code)}</span> means</summary>'
+            f"<pre>{_e(info.doc)}\n\nSource: {_e(info.source)}</pre></details>")
+
+
+def _finding_row(k: int, f, sources: _Sources) -> str:
+    classes = f"finding sev-{_e(f.severity)}" + (" accepted" if f.accepted else "")
+    where = _e(f.where)
+    time = _e(_fmt_time(f.time_s)) if f.time_s is not None else "&ndash;"
+    block = _e(f.block) if f.block else "&ndash;"
+    parts = [f'<p class="msg"><span class="code">{_e(f.code)}</span>: {_e(f.message)}</p>',
+             sources.snippet(f.file, f.line)]
+    if f.hint:
+        parts.append(f'<p class="fix">{_e(f.hint)}</p>')
+    if f.accepted:
+        parts.append(f'<p class="accept-reason">accepted in the sequence file: {_e(f.accept_reason)}</p>')
+    parts.append(_code_doc(f.code))
+    sev = _e(f.severity) + (" (accepted)" if f.accepted else "")
+    return (f'<tr class="{classes}" id="finding-{k}" data-code="{_e(f.code)}" data-line="{f.line}">'
+            f'<td class="sev">{sev}</td><td class="where">{where}</td><td>{block}</td><td class="time">{time}</td>'
+            f'<td>{"".join(p for p in parts if p)}</td></tr>')
+
+
+def _physics_rows(shot) -> list[dict]:
+    if shot is None:
+        return []
+    try:
+        from ..check.physics import report_physics
+
+        rows = report_physics(shot)
+    except Exception:  # physics trouble is reported as findings; the report just lists what it can
+        return []
+    out, seen = [], set()
+    for r in rows:
+        key = (r.get("block"), r.get("kind"), r.get("time_s"), tuple(r.get("items", ())))
+        if key not in seen:
+            seen.add(key)
+            out.append(r)
+    return out
+
+
+def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "", scanned: bool = False) -> str:
+    """HTML text of the preflight report of `res` (a `pipeline.Result`) for sequence `file`."""
+    from ..check import CAUTION
+
+    findings = list(res.findings)
+    s = summary(findings)
+    shot = res.shot
+    sources = _Sources()
+    title = f"Preflight report: {file}"
+    meta = [f"sequence <code>{_e(file)}</code>"]
+    if shot is not None:
+        meta.append(f"rig <code>{_e(shot.rig.name)}</code> (<code>{_e(shot.rig.file)}</code>)")
+        meta.append(f"duration {_e(_fmt_time(shot.duration_s))}")
+        meta.append(f"{len(shot.blocks)} blocks, {len(shot.segments)} writes")
+    blocking = s["error"] > 0
+    verdict = ("error findings remain: a build is refused until they are fixed or accepted" if blocking
+               else "no error findings: the sequence may be built")
+    if shot is None:
+        verdict = "the sequence could not be resolved: fix the findings below first"
+    chips = "".join(f'<span class="chip {sev}"><b>{s[sev]}</b> {sev}{"s" if s[sev] != 1 else ""}</span>'
+                    for sev in SEVERITIES)
+    if s["accepted"]:
+        chips += f'<span class="chip"><b>{s["accepted"]}</b> accepted</span>'
+    out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+           '<meta name="viewport" content="width=device-width, initial-scale=1">',
+           f"<title>{_e(title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
+           f"<h1>{_e(title)}</h1>", f'<p class="meta">{" · ".join(meta)}</p>',
+           '<section id="summary"><h2>Summary</h2>', f'<div class="chips">{chips}</div>',
+           f'<p class="verdict {"bad" if blocking or shot is None else "good"}">{_e(verdict)}</p>',
+           f'<p class="caution" id="caution"><b>Safety caution.</b> {_e(CAUTION)}</p></section>']
+    if scanned:
+        out.insert(-1, '<p class="meta">This sequence scans params. The report shows the nominal shot (every param at '
+                       "its written value); <code>seqgen check</code> lists the findings of every shot of the scan.</p>")
+
+    out.append(f'<section id="findings"><h2>Findings ({len(findings)})</h2>')
+    if findings:
+        out.append("<table><thead><tr><th>severity</th><th>where</th><th>block</th><th>time</th>"
+                   "<th>finding, source line and fix</th></tr></thead><tbody>")
+        out += [_finding_row(k, f, sources) for k, f in enumerate(findings, 1)]
+        out.append("</tbody></table>")
+    else:
+        out.append("<p>No findings.</p>")
+    out.append("</section>")
+
+    prows = _physics_rows(shot)
+    out.append('<section id="physics"><h2>Physics notes</h2>')
+    if prows:
+        out.append('<table><thead><tr><th>time</th><th>block</th><th>action</th><th>predictions</th></tr></thead><tbody>')
+        for r in prows:
+            items = "".join(f"<li>{_e(i)}</li>" for i in r.get("items", ()))
+            t = _e(_fmt_time(r["time_s"])) if r.get("time_s") is not None else "&ndash;"
+            out.append(f'<tr class="physics-note"><td class="time">{t}</td><td>{_e(r.get("block", ""))}</td>'
+                       f'<td class="code">{_e(r.get("kind", ""))}</td><td><ul class="notes">{items}</ul></td></tr>')
+        out.append("</tbody></table>")
+    else:
+        out.append("<p>No physics predictions for this sequence (no sample, or no physics-level actions).</p>")
+    out.append("</section>")
+
+    out.append('<section id="timeline"><h2>Timeline</h2>')
+    if svg:
+        out.append(f"<figure>{svg}<figcaption>One lane per output, grouped by device: the solid curve is what the "
+                   "channel table makes the hardware output (after latency compensation and quantization), the "
+                   "dashed curve the value the sequence asks for. Shaded spans are blocks; dashed vertical lines "
+                   "mark findings (error &#x2716;, warning &#x25B2;, note &#x25CF;).</figcaption></figure>")
+    else:
+        out.append(f"<p>No timeline: {_e(svg_note or 'the sequence could not be resolved')}.</p>")
+    out.append("</section>")
+
+    if shot is not None and shot.sources:
+        out.append('<section id="sources"><h2>Source files</h2><table><thead><tr><th>file</th><th>sha256</th>'
+                   "</tr></thead><tbody>")
+        for path, sha in sorted(shot.sources.items()):
+            out.append(f'<tr><td class="where">{_e(path)}</td><td class="where">{_e(sha)}</td></tr>')
+        out.append("</tbody></table></section>")
+    out.append(f"<footer>Written by seqgen {_e(__version__)}. {_e(CAUTION)}</footer>")
+    out += ["</body>", "</html>", ""]
+    return "\n".join(out)
+
+
+def report_svg(res, **kw) -> tuple[str | None, str]:
+    """(inline SVG of the timeline or None, reason when None)."""
+    if res.shot is None:
+        return None, "the sequence could not be resolved"
+    from .plot import svg_text, timeline_figure
+
+    try:
+        fig = timeline_figure(res.shot, res.compiled, res.findings, **kw)
+        return svg_text(fig), ""
+    except Exception as exc:  # a picture problem must not cost the user the report
+        return None, f"the timeline could not be drawn ({type(exc).__name__}: {exc})"
+
+
+def write_report(path: str | Path, res, file: str, *, force: bool = False, timeline: bool = True,
+                 scanned: bool = False) -> Path:
+    """Render and write the report atomically; raises OutputExists when `path` exists and not force."""
+    path = Path(path)
+    if path.exists() and not force:
+        raise OutputExists(f"{path} exists; use --force to replace it")
+    svg, note = report_svg(res) if timeline else (None, "not requested")
+    text = render_report(res, file, svg=svg, svg_note=note, scanned=scanned)
+    return write_atomic(path, text.encode("utf-8"), force=force)
