@@ -375,6 +375,8 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--no-physics", action="store_true", help="leave out the physics panels")
     g.add_argument("--force", action="store_true", help="replace an existing picture")
     g.add_argument("--json", action="store_true", help="what was drawn, as JSON")
+    g.add_argument("--allow-outside-root", action="store_true",
+                   help="let use: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     g.set_defaults(func=cmd_plot)
 
     e = sub.add_parser("explain", help="explain a finding code (or 'all' to list them)")

@@ -90,6 +90,7 @@ def _load_all() -> None:
     """Import every module that declares codes, so the registry is complete."""
     from . import check as _check  # noqa: F401  (registers checks)
     from .load import yamlsrc  # noqa: F401
+    from . import batch  # noqa: F401  (scan codes)
     from .compile import tables  # noqa: F401
     from .resolve import errors  # noqa: F401
     from .validate import schema  # noqa: F401

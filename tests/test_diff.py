@@ -27,10 +27,10 @@ import yaml
 from seqgen.cli import main
 from seqgen.diff import DiffInputError, diff_paths, diff_versions, load_version, to_dict, to_text
 
-from .conftest import ROOT, SEQUENCES
+from .conftest import ROOT
 
 CORPUS = Path(__file__).resolve().parent / "diff_corpus"
-RIG = SEQUENCES / "rigs" / "na23_demo_rig.yaml"
+RIG = CORPUS / "rig.yaml"  # a frozen copy of the demo rig
 CASES = yaml.safe_load((CORPUS / "cases.yaml").read_text(encoding="utf-8"))
 SCHEMA = json.loads((ROOT / "schemas" / "diff.schema.json").read_text(encoding="utf-8"))
 LSB_16_20V = 20.0 / 65535  # the demo rig's cross_a / cross_b outputs: 16 bits over -10..10 V (the rig file)
@@ -366,13 +366,18 @@ def test_exit_codes_and_json(tmp_path, capsys):
 
 
 def test_broken_new_version_is_a_finding_not_a_traceback(tmp_path, capsys):
-    old = _version_folder(tmp_path, "old", "small.yaml")
-    new = _version_folder(tmp_path, "new", "small.yaml", {"small.yaml": [["kick_time: 2 ms", "kick_time: [2 ms"]]})
+    # the old version has a check finding (96 A > 80 A); the broken new one cannot be checked, so that finding
+    # is not reported as resolved
+    old = _version_folder(tmp_path, "old", "small.yaml", {"small.yaml": [["kick_gradient: 8 G/cm", "kick_gradient: 24 G/cm"]]})
+    new = _version_folder(tmp_path, "new", "small.yaml", {"small.yaml": [["kick_gradient: 8 G/cm", "kick_gradient: 24 G/cm"],
+                                                                         ["kick_time: 2 ms", "kick_time: [2 ms"]]})
     assert main(["diff", str(old), str(new)]) == 1
     out = capsys.readouterr().out
     assert "schema.yaml-syntax" in out and "did not resolve" in out
     rep = diff_paths(str(old), str(new))
     (intro,) = rep.find("preflight", "finding-introduced")
+    assert [c.kind for c in rep.changes] == ["finding-introduced"]  # no params 'removed': they were not read
+    assert [f.code for f in rep.old.findings] == ["safety.hard-limit"] and any("did not run" in n for n in rep.notes)
     # the edit is on line 12; a YAML parser reports an unclosed bracket where it gives up, at or after that line
     assert intro.data["code"] == "schema.yaml-syntax" and intro.data["line"] >= 12
     jsonschema.validate(to_dict(rep), SCHEMA)

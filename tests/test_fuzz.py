@@ -38,7 +38,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import yaml
-from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import HealthCheck, Phase, assume, given, settings
 from hypothesis import strategies as st
 
 from seqgen.check import apply_accepts
@@ -58,10 +58,12 @@ _CI_COUNTS = {"structured": 320, "mutated": 220, "rig": 60, "physics": 4}  # 604
 _TOTAL = int(os.environ.get("SEQGEN_FUZZ_EXAMPLES", "0") or 0)
 _LONG = _TOTAL > 0
 
+# no example database and no explain phase: the fuzzers write nothing into the work tree
+_PHASES = (Phase.explicit, Phase.generate, Phase.target, Phase.shrink)
 settings.register_profile("seqgen-fuzz-ci", deadline=None, derandomize=True, database=None, print_blob=True,
-                          suppress_health_check=list(HealthCheck))
+                          phases=_PHASES, suppress_health_check=list(HealthCheck))
 settings.register_profile("seqgen-fuzz-long", deadline=None, derandomize=False, database=None, print_blob=True,
-                          suppress_health_check=list(HealthCheck))
+                          phases=_PHASES, suppress_health_check=list(HealthCheck))
 _PROFILE = settings.get_profile("seqgen-fuzz-long" if _LONG else "seqgen-fuzz-ci")
 
 
@@ -164,7 +166,7 @@ _UNITLESS = ["0.2", "1", "0", "pi/2", "pi", "0.05", 0.5, 1]
 _BAD_UNITLESS = ["-1", "1e9", ".nan", "1 s", "pi/0"]
 _GOOD = {
     "time": _TIMES, "power": _POWERS, "unitless": _UNITLESS,
-    "frequency": ["1.769946 GHz", "1.77 GHz", "5 kHz", "1.5 GHz"],
+    "frequency": ["1.769946 GHz", "1.77 GHz", "5 kHz", "1.5 GHz", "100 Hz", "20 Hz"],
     "gradient": ["8 G/cm", "12 G/cm", "4 G/cm", "0.1 T/m"], "length": ["300 um", "0 m", "10 um"],
     "velocity": ["19 mm/s", "5 mm/s"], "tolerance": ["1 mV", "0.5 mV", "0.01"],
     "temperature": ["80 nK", "1.1 uK", "400 nK"],
@@ -177,7 +179,8 @@ _KIND_OF = {"at": "time", "over": "time", "duration": "time", "tau": "time", "wi
             "power": "power", "probe_power": "power", "to": "power", "from": "power", "value": "power",
             "back_to": "power", "frequency": "frequency", "detuning": "frequency", "gradient": "gradient",
             "position": "length", "target_distance": "length", "expect_velocity": "velocity", "angle": "unitless",
-            "depth": "unitless", "amplitude": "unitless", "tolerance": "tolerance", "temperature": "temperature"}
+            "depth": "unitless", "amplitude": "unitless", "tolerance": "tolerance", "temperature": "temperature",
+            "trap_frequencies": "frequency"}
 
 
 def _quantity(name: str, h: bool):
@@ -195,7 +198,7 @@ def _channel_values(ch: str) -> list:
     spec = RIG["channels"].get(ch.split(".")[0], {})
     kind = spec.get("kind")
     if kind == "digital":
-        return [0, 1, True, False]
+        return [0, 1]
     if kind == "synth":
         return ["0.5", "1", "0"] if ch.endswith(".amp") else ["1.77 GHz", "1.5 GHz", "2 GHz"]
     if kind == "analog":
@@ -232,7 +235,8 @@ def _value(name: str, defn: dict, h: bool):
     if name in ("beams", "coils"):
         return st.lists(_pick(_NAMES[name[:-1]], ["nope"], h), max_size=3)
     if name == "transition":
-        return st.lists(st.fixed_dictionaries({"F": st.integers(0, 3), "mF": st.integers(-3, 3)}), max_size=3)
+        state = st.fixed_dictionaries({"F": st.integers(1, 2), "mF": st.integers(-2, 2)})
+        return st.lists(state, min_size=2, max_size=2) if not h else st.lists(state, max_size=3)
     if name == "table":
         pair = st.tuples(st.sampled_from([0, 0.25, 0.5, 1, 1.5, -1, math.nan]),
                          st.sampled_from([0, 0.2, 0.8, 1, math.inf])).map(list)
@@ -241,7 +245,8 @@ def _value(name: str, defn: dict, h: bool):
     if kind == "object":
         return _object(defn, h)
     if kind == "array":
-        return st.lists(_value(name, defn.get("items", {}), h), max_size=3)
+        lo = 0 if h else defn.get("minItems", 0)
+        return st.lists(_value(name, defn.get("items", {}), h), min_size=lo, max_size=defn.get("maxItems", max(lo, 3)))
     if kind == "integer":
         return st.integers(-3, 3)
     if kind == "number":
@@ -269,8 +274,16 @@ def _action_of(draw, kind: str, h: bool):
                 spec[key] = draw(st.sampled_from(_channel_values(ch)))
     if kind == "ramp" and spec.get("shape") == "exponential" and "tau" not in spec and draw(st.integers(0, 3)):
         spec["tau"] = "1 ms"
-    if kind == "push" and "coil" not in spec and "beam" not in spec and draw(st.integers(0, 3)):
+    if kind == "push" and "coil" not in spec and "beam" not in spec and (not h or draw(st.integers(0, 3))):
         spec.update(coil="kick_coil", gradient="8 G/cm")
+    if not h:  # a clean sample: what a careful author would add
+        spec.pop("tolerance", None)
+        if kind == "pulse" and "value" not in spec and isinstance(ch, str):
+            spec["value"] = _channel_values(ch)[-1]
+        if kind == "image":
+            spec.setdefault("probe_power", "40 uW")
+        if kind == "push":
+            spec.setdefault("gradient" if "coil" in spec else "power", "8 G/cm" if "coil" in spec else "0.5 W")
     return {kind: spec}
 
 
@@ -300,6 +313,19 @@ def _block(actions, first: bool, h: bool):
         lambda x: {"name": x[0], **x[1], "actions": x[2]})
 
 
+def _clean_names(blocks: list) -> list:
+    """Unique block names, anchors only on earlier blocks (a clean sample has no anchor mistakes)."""
+    out = []
+    for i, b in enumerate(blocks):
+        b = dict(b, name=_BLOCKS[i])
+        for key in ("after", "with"):
+            if key in b:
+                target, sep, off = b[key].partition(" ")
+                b[key] = (_BLOCKS[i - 1] if target not in _BLOCKS[:i] else target) + (sep + off if sep else "")
+        out.append(b)
+    return out
+
+
 def _rare(strategy, h: bool, share: int = 6):
     """In a hostile sample, the strategy's value one draw in `share`, else (and always in a clean one) nothing."""
     if not h:
@@ -323,14 +349,17 @@ def _sequence(h: bool, kinds=None):
         "common/nope.yaml", "../../../../outside.yaml", "/etc/hostname", "fuzz_sample.yaml", "common"], h, 3)},
         optional={"params": st.just({"evap_time": "0.2 s"}), "blocks": st.just(["load_dipole"])}),
         min_size=1, max_size=2)
+    blocks = st.tuples(_block(actions, True, h), st.lists(_block(actions, False, h), max_size=3)).map(
+        lambda x: [x[0]] + x[1])
+    if not h:
+        blocks = blocks.map(_clean_names)
+        sample = sample.map(lambda s: dict(s, state={"F": 1, "mF": -1}) if "state" in s else s)
     top = st.fixed_dictionaries({
         "seqgen": _pick([1], [2, "1", 0, None], h, 12),
         "rig": _pick(["rigs/na23_demo_rig.yaml"], ["rigs/missing.yaml", "common/na23_prep.yaml", "", "rigs"], h, 12),
         "params": params, "sample": sample if not h else _rare(sample, h, 2), "accept": _rare(accept, h),
         "use": _rare(use, h), "limits": _rare(_object(SCHEMA["properties"]["limits"], h), h),
         "end": _rare(_object(SCHEMA["properties"]["end"], h), h), "blcoks": _rare(st.just([]), h, 20)})
-    blocks = st.tuples(_block(actions, True, h), st.lists(_block(actions, False, h), max_size=3)).map(
-        lambda x: [x[0]] + x[1])
     return st.tuples(top, blocks).map(lambda x: {**{k: v for k, v in x[0].items() if v is not None}, "blocks": x[1]})
 
 

@@ -169,10 +169,12 @@ def test_demo_probe_against_hand_formulas(demo):
 
 
 def test_demo_barrier_drive_uses_peak_intensity_and_line(demo):
-    rep = ps.barrier_drive_analysis(demo, only(demo, "barrier"))
-    # peak intensity of an elliptic Gaussian beam 2P/(pi w w_y) (textbook); rig waists 45 um x 1.8 um
-    power = only(demo, "barrier").args["power"]
-    assert rep["i_peak"] == pytest.approx(2 * power / (math.pi * 45e-6 * 1.8e-6), rel=1e-12)
+    act = only(demo, "barrier")
+    rep = ps.barrier_drive_analysis(demo, act)
+    # centre intensity of an elliptic Gaussian beam 2P/(pi w w_y) (textbook) for the mean power P; with
+    # modulation depth eps the intensity peaks at (1 + eps) times that. Rig waists 45 um x 1.8 um
+    power, depth = act.args["power"], act.args["mod_depth"]
+    assert rep["i_peak"] == pytest.approx(2 * power * (1 + depth) / (math.pi * 45e-6 * 1.8e-6), rel=1e-12)
     assert rep["bare_hz"] == pytest.approx(line_hz((1, -1), (2, -1)), abs=0.01)
     assert abs(rep["offset_hz"]) <= rep["tolerance_hz"]
 

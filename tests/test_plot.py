@@ -26,7 +26,7 @@ from seqgen.cli import main
 from seqgen.emit import plot
 from seqgen.pipeline import preflight
 
-from .conftest import ROOT, SEQUENCES
+from .conftest import SEQUENCES
 
 RIG = SEQUENCES / "rigs" / "na23_demo_rig.yaml"
 DEMO = SEQUENCES / "na23_barrier_scatter.yaml"

@@ -178,6 +178,14 @@ def _propagate(shot, amp_name, rabi_per_rad_s, t0, t1, detuning_hz, constant, pe
 
     if constant:
         return bloch_propagate(rabi_per_rad_s * peak, TWO_PI * detuning_hz, t0, t1).excited_population
+    breaks = sorted({x for seg in shot.segments if seg.output == amp_name for x in (seg.t0, seg.t1) if t0 < x < t1})
+    if breaks or abs(TWO_PI * detuning_hz) * (t1 - t0) > 1e5:
+        # a jump inside the pulse (another write to the amplitude), which the smooth integrator cannot step
+        # over, or far off resonance (over 1e5 rad of detuning phase: millions of steps): exact SU(2)
+        # propagators on 4096 pieces of constant amplitude, with the writes on piece edges, instead
+        edges = np.unique(np.concatenate([np.linspace(t0, t1, 4097), breaks]))
+        rabi = rabi_per_rad_s * np.asarray(value_at(shot, amp_name, 0.5 * (edges[1:] + edges[:-1])), dtype=float)
+        return bloch_propagate(rabi, TWO_PI * detuning_hz, t0, t1, edges=edges).excited_population
     return bloch_propagate(lambda t: rabi_per_rad_s * value_at(shot, amp_name, t), TWO_PI * detuning_hz, t0, t1,
                            tol=1e-9).excited_population
 
@@ -489,8 +497,10 @@ def barrier_drive_analysis(shot, act):
         return rep
     m = pair[0][1]
     lower, upper = (int(round(i - 0.5)), m), (int(round(i + 0.5)), m)
-    # peak intensity 2 P / (pi w w_y) of an elliptic Gaussian beam, `power` taken as the peak of the modulation
-    i_peak = 2 * act.args["power"] / (math.pi * beam.waist_m * (beam.waist_y_m or beam.waist_m))
+    # `power` is the time-averaged power (what a power meter reads, as in physics_barrier.py); the
+    # beam centre's intensity 2 P / (pi w w_y) then peaks at (1 + depth) times that during the modulation
+    i_peak = (2 * act.args["power"] / (math.pi * beam.waist_m * (beam.waist_y_m or beam.waist_m))
+              * (1 + min(max(rep["depth"], 0.0), 1.0)))
     try:
         d = two_photon_rabi_from_modulated_beam(i_peak, min(max(rep["depth"], 0.0), 1.0), beam.wavelength_m, m_f=m,
                                                 polarization=1.0, atom=sp)

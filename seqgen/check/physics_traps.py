@@ -284,3 +284,45 @@ def report(shot) -> list[dict]:
                          "items": [f"time of flight {c['tof'] * 1e3:.4g} ms", f"cloud centre {c['drop'] * 1e3:.3g} mm below release",
                                    f"{c['size_kind']} {c['size'] * 1e6:.3g} um"]})
     return rows
+
+
+@check("physics.cloud-out-of-focus", "warning", "ballistic / Thomas-Fermi expansion as for physics.cloud-outside-view; "
+       "depth of field of the imaging setup (rig file)", stage="physics")
+def cloud_out_of_focus(shot):
+    """At the image time the cloud is larger along the line of sight than the
+    imaging setup's depth of field: its near and far parts are imaged out of
+    focus, which blurs the picture and biases fitted sizes. Shorten the time
+    of flight or image a smaller cloud."""
+    for img in (a for a in shot.phys if a.kind == "image"):
+        setup = shot.rig.imaging.get(img.args["setup"])
+        if setup is None or not setup.depth_of_field_m:
+            continue
+        c = cloud_at_image(shot, img)
+        if c is None:
+            continue
+        extent = 2 * c["size"] if c["size_kind"].startswith("Thomas") else 4 * c["size"]
+        if extent > setup.depth_of_field_m:
+            yield make("physics.cloud-out-of-focus", f"the cloud spans {extent * 1e3:.3g} mm along the line of sight, more "
+                       f"than the {setup.depth_of_field_m * 1e3:.3g} mm depth of field of '{setup.name}'", img.pos,
+                       block=img.block, time_s=img.t0, hint="shorten the time of flight")
+
+
+@check("physics.cloud-clipped", "error", "free fall under standard gravity (SI Brochure); expansion as for "
+       "physics.cloud-outside-view; aperture radius of the rig's imaging setup", stage="physics")
+def cloud_clipped(shot):
+    """Falling and expanding after release, the cloud reaches the apparatus
+    aperture declared for the imaging setup (`aperture_radius`, e.g. the inner
+    radius of a glass cell or waveguide) before the image is taken: atoms are
+    lost on the wall. Shorten the time of flight."""
+    for img in (a for a in shot.phys if a.kind == "image"):
+        setup = shot.rig.imaging.get(img.args["setup"])
+        if setup is None or not setup.aperture_radius_m:
+            continue
+        c = cloud_at_image(shot, img)
+        if c is None:
+            continue
+        edge = c["drop"] + (c["size"] if c["size_kind"].startswith("Thomas") else 2 * c["size"])
+        if edge > setup.aperture_radius_m:
+            yield make("physics.cloud-clipped", f"after {c['tof'] * 1e3:.4g} ms the cloud reaches {edge * 1e3:.3g} mm from "
+                       f"the release point, beyond the {setup.aperture_radius_m * 1e3:.3g} mm aperture of '{setup.name}'",
+                       img.pos, block=img.block, time_s=img.t0, hint="shorten the time of flight")

@@ -1,10 +1,13 @@
 """Stage 5: resolved shot -> one quantized change-list table per device.
 
 Each output's rows are generated from its segments (sets are single rows;
-ramps are sampled adaptively within the output's tolerance), shifted earlier
-by the channel's latency, quantized to the device tick and the DAC code, and
-merged into one table per device with one row per tick at which any of its
-outputs changes. All per-sample work is vectorised with numpy.
+ramps are sampled adaptively within the output's tolerance, interior rows on
+the device-wide grid of its minimum interval, checked at every tick), shifted
+earlier by the channel's latency, quantized to the device tick and the DAC
+code, and merged into one table per device with one row per tick at which any
+of its outputs changes. All per-sample work is vectorised with numpy: no
+Python object per row, and the value matrix is allocated once at its final
+size and filled in cache-sized blocks of rows.
 """
 
 from __future__ import annotations
@@ -41,8 +44,8 @@ RAMP_UNDERSAMPLED = declare("hardware.ramp-undersampled", "warning", """
     "approximation error bounds (A Practical Guide to Splines, Springer (1978))", "compile")
 
 ENVELOPES = ("blackman", "gaussian")
-_VERIFY_CHUNK = 1 << 20    # ticks evaluated at once when checking a sampled ramp against its curve
 _VERIFY_MAX = 1 << 23      # longer ramps are checked on an evenly spaced subset of about this many ticks
+_FILL_ROWS = 1 << 15       # table rows filled at a time (a block of the value matrix stays in cache)
 _RETRIES = 4               # re-samplings with a tighter tolerance when ticks between grid points miss it
 
 
@@ -78,8 +81,9 @@ def _latency(out: Output, before: float, after: float) -> float:
     return out.latency_rise_s if after > before else (out.latency_fall_s if after < before else 0.0)
 
 
-def output_rows(out: Output, segments, device, findings: list, rows_per_segment: dict):
-    """(ticks, values in output units) for one output, before merging."""
+def output_rows(out: Output, segments, device, findings: list, spans: dict):
+    """(ticks, values in output units, ramp-interior flags) for one output, before
+    merging; spans gets (block, output, t0) -> (first tick, last tick) per ramp."""
     tick = device.tick_s
     ticks = [np.array([0], dtype=np.int64)]
     vals = [np.atleast_1d(to_output(out, out.safe)).astype(float)]
@@ -97,8 +101,12 @@ def output_rows(out: Output, segments, device, findings: list, rows_per_segment:
                                      f"to compensate its {_fmt_time(lat)} latency", seg.pos, block=seg.block, time_s=seg.t0,
                                      hint="start this block later or move the whole sequence later"))
             new = float(np.asarray(to_output(out, seg.v1)))
-            if linear and k > 0:
-                ticks.append(np.array([k - 1], dtype=np.int64))
+            # a linearly interpolating device makes a step as a ramp over one minimum
+            # interval: a row m ticks before the edge holds the old value (unless an
+            # earlier row of this output already sits within those m ticks)
+            pre = k - max(1, device.min_interval_ticks)
+            if linear and k > 0 and pre > ticks[-1][-1]:
+                ticks.append(np.array([pre], dtype=np.int64))
                 vals.append(np.array([vals[-1][-1]]))
                 flexible.append(np.zeros(1, dtype=bool))
             ticks.append(np.array([k], dtype=np.int64))
@@ -116,7 +124,7 @@ def output_rows(out: Output, segments, device, findings: list, rows_per_segment:
                 k1 = k0 + 1
             tol = seg.tolerance if seg.tolerance is not None else out.sample_tolerance
             rt, rv, err, limited = _sample_on_grid(_value_function(out, seg, lat), k0, k1, device, tol, linear)
-            rows_per_segment[(seg.block, out.name, seg.t0)] = (k0, k1)
+            spans[(seg.block, out.name, seg.t0)] = (k0, k1)
             if limited and seg.t1 - seg.t0 >= device.min_interval_ticks * tick:  # shorter: timing.ramp-too-fast
                 findings.append(_undersampled(out, seg, device, err, tol, len(rt)))
             ticks.append(np.asarray(rt, dtype=np.int64))
@@ -164,21 +172,19 @@ def _sample_on_grid(value_at, k0: int, k1: int, device, tol: float, linear: bool
     if m <= 1:
         r = sample_ramp_report(value_at, k0, k1, tick, tolerance=tol, model=model)
         return r.ticks, r.values, r.max_error, r.min_interval_limited
+    # the grid sampler sees only grid points: the curve is evaluated at the device's
+    # ticks too, hold rows get the midpoint of what the curve does while they hold,
+    # and the grid is re-sampled with a tighter tolerance while the ticks miss it
+    fit = _DenseFit(value_at, k0, k1, tick, linear)
     g0 = -(-(k0 + m) // m)
     g1 = (k1 - m) // m
-    ends = np.array([k0, k1], dtype=np.int64)
-    y_ends = np.asarray(value_at(ends * tick), dtype=float)
-    if g1 < g0:
-        ticks, vals = ends, y_ends
-        return ticks, vals, _deviation(value_at, ticks, vals, tick, linear), True
-    # the grid sampler sees only grid points: the ticks between them are checked
-    # here, and the grid is re-sampled with a tighter tolerance while they miss it
+    ticks, vals, err = fit(np.array([k0, k1], dtype=np.int64), None)
+    if g1 < g0 or err <= tol:  # no room for interior rows, or none needed (a linear ramp on a linear device)
+        return ticks, vals, err, err > tol * (1 + 1e-9)
     target, rows, best = tol, -1, None
     for _ in range(_RETRIES):
         r = sample_ramp_report(value_at, g0, g1, tick * m, tolerance=target, model=model)
-        ticks = np.concatenate(([k0], r.ticks * m, [k1]))
-        vals = np.concatenate((y_ends[:1], r.values, y_ends[1:]))
-        err = _deviation(value_at, ticks, vals, tick, linear)
+        ticks, vals, err = fit(np.concatenate(([k0], r.ticks * m, [k1])), r.values)
         if best is None or err < best[2]:
             best = (ticks, vals, err)
         if err <= tol * (1 + 1e-9) or r.min_interval_limited or r.rows == rows:
@@ -190,25 +196,36 @@ def _sample_on_grid(value_at, k0: int, k1: int, device, tol: float, linear: bool
     return ticks, vals, err, err > tol * (1 + 1e-9)
 
 
-def _deviation(value_at, ticks: np.ndarray, vals: np.ndarray, tick_s: float, linear: bool) -> float:
-    """Largest |reconstructed - curve| over the ramp's ticks [ticks[0], ticks[-1]].
+class _DenseFit:
+    """A ramp's curve at every device tick of [k0, k1] (an evenly spaced subset
+    for ramps over _VERIFY_MAX ticks), to fit and check rows placed on a grid.
 
-    Hold: each row's value holds until the next row; linear: straight lines
-    between rows. Ramps longer than _VERIFY_MAX ticks are checked on an evenly
-    spaced subset of ticks (the rows' own ticks always included)."""
-    k0, k1 = int(ticks[0]), int(ticks[-1])
-    n = k1 - k0
-    stride = max(1, -(-n // _VERIFY_MAX))
-    worst = 0.0
-    for c0 in range(0, n + 1, _VERIFY_CHUNK * stride):
-        k = np.arange(k0 + c0, min(k1, k0 + c0 + _VERIFY_CHUNK * stride - 1) + 1, stride, dtype=np.int64)
-        y = np.asarray(value_at(k * tick_s), dtype=float)
-        if linear:
-            recon = np.interp(k, ticks, vals)
-        else:
-            recon = vals[np.searchsorted(ticks, k, side="right") - 1]
-        worst = max(worst, float(np.max(np.abs(recon - y))))
-    return worst
+    Hold: each row but the last gets the midpoint of the curve's range while it
+    holds (error: half that range); the last row is the curve's end value.
+    Linear: rows keep the curve's values (interpolation); the error is the
+    largest |straight lines between rows - curve| at the ticks."""
+
+    def __init__(self, value_at, k0: int, k1: int, tick_s: float, linear: bool):
+        stride = max(1, -(-(k1 - k0) // _VERIFY_MAX))
+        self.k = np.arange(k0, k1 + 1, stride, dtype=np.int64)
+        if self.k[-1] != k1:
+            self.k = np.append(self.k, np.int64(k1))
+        self.y = np.asarray(value_at(self.k * tick_s), dtype=float)
+        self.value_at, self.tick_s, self.linear = value_at, tick_s, linear
+
+    def __call__(self, ticks: np.ndarray, interior: np.ndarray | None):
+        ticks = np.asarray(ticks, dtype=np.int64)
+        if self.linear:
+            ends = self.y[[0, -1]]
+            vals = np.concatenate((ends[:1], interior, ends[1:])) if interior is not None else ends.copy()
+            err = float(np.max(np.abs(np.interp(self.k, ticks, vals) - self.y)))
+            return ticks, vals, err
+        starts = np.searchsorted(self.k, ticks[:-1])
+        body = self.y[:-1]
+        lo = np.minimum.reduceat(body, starts)
+        hi = np.maximum.reduceat(body, starts)
+        vals = np.append(0.5 * (lo + hi), self.y[-1])
+        return ticks, vals, float(np.max(0.5 * (hi - lo)))
 
 
 def _drop_crowded_rows(ticks: np.ndarray, flexible: np.ndarray, m: int) -> np.ndarray:
@@ -307,22 +324,35 @@ def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
             ticks = ticks[_drop_crowded_rows(ticks, fixed[pos] != ticks, m)]
         n = len(ticks)
         values = np.empty((n, len(outs)), dtype=float)
-        rows_per_segment: dict = {}
+        bounds = np.arange(0, n + _FILL_ROWS, _FILL_ROWS).clip(max=n)  # row blocks that stay in cache
+        fills, rows_per_segment = [], {}
         for j, (o, (t, v, q, need, _)) in enumerate(zip(outs, per_out)):
             tn = t[need]
-            p = np.searchsorted(ticks, tn)  # rows of the table before each needed row
+            p = np.searchsorted(ticks, tn)  # table row of (or after) each needed row
             if linear and len(t) > 1:
-                values[:, j] = _quantize(o, np.interp(ticks, t, v))
+                fills.append((o, t, v, None, None))
             else:
-                # hold: the code of the last needed row at or before each table tick;
-                # tick 0 is always a needed row, so p[0] == 0
-                values[:, j] = np.repeat(q[need], np.diff(p, append=n))
+                # hold: row r gets the code of the last needed row at or before it; tick 0 is
+                # always a needed row (p[0] == 0); a needed row dropped for crowding ends up
+                # with a run of length 0, or hands its value to the next table row
+                fills.append((o, None, q[need], p, (np.searchsorted(p, bounds[:-1], side="right") - 1,
+                                                    np.searchsorted(p, bounds[1:], side="left"))))
             # rows this output's segments use: its needed rows that made it into the table
             survived = tn == ticks[np.minimum(p, n - 1)]
             cum = np.concatenate(([0], np.cumsum(survived)))
             for key, (k0, k1) in windows[j].items():
                 a, b = np.searchsorted(tn, [k0, k1 + 1])
                 rows_per_segment[key] = int(cum[b] - cum[a])
+        for c, (c0, c1) in enumerate(zip(bounds[:-1], bounds[1:])):
+            block = values[c0:c1]
+            for j, (o, t, v, p, ab) in enumerate(fills):
+                if p is None:
+                    block[:, j] = _quantize(o, np.interp(ticks[c0:c1], t, v))
+                else:
+                    a, b = ab[0][c], ab[1][c]
+                    runs = p[a:b].copy()
+                    runs[0] = c0
+                    block[:, j] = np.repeat(v[a:b], np.diff(runs, append=c1))
         tables.append(DeviceTable(dev_name, device.tick_s, ticks, tuple(o.name for o in outs), values,
                                   tuple(o.unit for o in outs), tuple(o.kind for o in outs), rows_per_segment))
     return Compiled(tuple(tables), shot.duration_s), findings

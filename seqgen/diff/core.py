@@ -5,7 +5,6 @@ from __future__ import annotations
 from . import outputs, preflight, rig, timeline
 from .inputs import load_version
 from .model import LEVELS, Change, DiffReport, Version
-from . import fmt
 
 
 def diff_paths(old: str, new: str) -> DiffReport:
@@ -18,9 +17,11 @@ def diff_versions(old: Version, new: Version) -> DiffReport:
     changes: list[Change] = []
     renames: dict = {}
     both_shots = old.shot is not None and new.shot is not None
-    # resolved level
-    pchanges, changed_params = timeline.param_changes(old, new)
-    changes += pchanges
+    # resolved level (params need a resolved shot or a build manifest on both sides)
+    changed_params: set = set()
+    if all(v.shot is not None or v.kind == "build" for v in (old, new)):
+        pchanges, changed_params = timeline.param_changes(old, new)
+        changes += pchanges
     if both_shots:
         changes += timeline.setting_changes(old.shot, new.shot)
         bchanges, renames = timeline.block_changes(old, new, changed_params)
@@ -31,7 +32,7 @@ def diff_versions(old: Version, new: Version) -> DiffReport:
             changes += rig.manifest_rig_changes(old.manifest, new.manifest)
         for v in (old, new):
             if v.kind != "build" and v.shot is None:
-                rep.notes.append(f"{v.label} did not resolve (see its findings): only findings and params are compared")
+                rep.notes.append(f"{v.label} did not resolve (see its findings): only findings are compared")
         if old.kind == "build" or new.kind == "build":
             rep.notes.append("a build folder carries tables, params and findings only: blocks, writes and rig details "
                              "are compared between sequence files")
@@ -41,7 +42,13 @@ def diff_versions(old: Version, new: Version) -> DiffReport:
     elif (old.tables or new.tables) or (old.shot is not None or new.shot is not None):
         rep.notes.append("output level skipped: one version has no compiled tables")
     # preflight level
-    fchanges, unchanged = preflight.finding_changes(old.findings, new.findings, renames)
+    fa, fb = old.findings, new.findings
+    unresolved = [v for v in (old, new) if v.kind != "build" and v.shot is None]
+    if len(unresolved) == 1:  # the checks ran on one side only: compare what both sides could report
+        fa, fb = (preflight.before_checks(fa), fb) if unresolved[0] is new else (fa, preflight.before_checks(fb))
+        rep.notes.append(f"the preflight checks did not run on {unresolved[0].label}: findings of checks on the "
+                         "other version are not compared")
+    fchanges, unchanged = preflight.finding_changes(fa, fb, renames)
     changes += fchanges
     rep.unchanged_findings = unchanged
     order = {lv: i for i, lv in enumerate(LEVELS)}
@@ -57,4 +64,4 @@ def _when(c: Change) -> float:
     return 0.0
 
 
-__all__ = ["diff_paths", "diff_versions", "fmt"]
+__all__ = ["diff_paths", "diff_versions"]

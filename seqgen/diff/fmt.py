@@ -33,7 +33,7 @@ def dt(value: float) -> str:
 
 def q(value, unit: str = "") -> str:
     if value is None:
-        return "-"
+        return "none"
     if isinstance(value, bool):
         return str(value).lower()
     if isinstance(value, (int, float)):
@@ -60,3 +60,38 @@ def close_t(a: float | None, b: float | None) -> bool:
     if a is None or b is None:
         return a is b
     return abs(a - b) <= TIME_TOL_S
+
+
+_PREFIX = {"G": 1e9, "M": 1e6, "k": 1e3, "": 1.0, "m": 1e-3, "u": 1e-6, "n": 1e-9, "p": 1e-12}
+
+
+def pair(a, b, unit: str = "", exact: bool = True) -> tuple[str, str]:
+    """Both values formatted with the digits each needs (6 to 12; `exact=False`: 6), and at least enough to
+    tell them apart."""
+    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in (a, b)):
+        return q(a, unit), q(b, unit)
+    da, db = (_needed(float(a)), _needed(float(b))) if exact else (6, 6)
+    sa, sb = _digits(float(a), unit, da), _digits(float(b), unit, db)
+    d = max(da, db)
+    while sa == sb and a != b and d < 12:
+        d += 1
+        sa, sb = _digits(float(a), unit, d), _digits(float(b), unit, d)
+    return sa, sb
+
+
+def _needed(v: float) -> int:
+    for d in range(6, 13):
+        if math.isclose(float(f"{v:.{d}g}"), v, rel_tol=1e-12, abs_tol=0.0):
+            return d
+    return 12
+
+
+def _digits(v: float, unit: str, digits: int) -> str:
+    text = q(v, unit)
+    if not unit or " " not in text:
+        return f"{v:.{digits}g}" if not unit else text
+    shown = text.split(" ", 1)[1]
+    prefix = shown[: len(shown) - len(unit)] if shown.endswith(unit) else None
+    if prefix in _PREFIX:
+        return f"{v / _PREFIX[prefix]:.{digits}g} {shown}"
+    return f"{v:.{digits}g} {shown}"

@@ -50,11 +50,9 @@ def git_show(rev: str, path: str) -> str:
     p = Path(path)
     folder = p.parent if str(p.parent) else Path(".")
     attempts = []
-    if folder.is_dir() and not p.is_absolute():
+    if folder.is_dir():  # './NAME' from the file's folder: git reads it relative to that folder
         attempts.append((folder, f"{rev}:./{p.name}"))
-    elif p.is_absolute() and folder.is_dir():
-        attempts.append((folder, f"{rev}:./{p.name}"))
-    attempts.append((Path("."), f"{rev}:{path}"))
+    attempts.append((Path("."), f"{rev}:{path}"))  # else relative to the top of the repository
     last = ""
     for cwd, obj in attempts:
         try:

@@ -169,7 +169,8 @@ def _column_change(name, dev, a, b, ja, jb, ca, cb, grid: DeviceGrid):
     text = (f"output {name} ({dev}) differs in {len(starts)} window(s) from {fmt.t(first['start_s'])}"
             + (f" to {fmt.t(float(times[ends[-1]]) if ends[-1] < len(times) else end_time)}" if len(starts) > 1 else
                f" to {fmt.t(first['end_s'])}")
-            + f"; max {fmt.q(worst, unit)} at {fmt.t(float(times[i]))}: {fmt.q(float(ua[i]), unit)} -> {fmt.q(float(ub[i]), unit)}")
+            + f"; max {fmt.q(worst, unit)} at {fmt.t(float(times[i]))}: "
+            + " -> ".join(fmt.pair(float(ua[i]), float(ub[i]), unit, exact=False)))
     data = {"device": dev, "unit": unit, "tolerance": tol, "windows": windows, "window_count": int(len(starts)),
             "max_deviation": worst, "at_s": float(times[i])}
     if phys:

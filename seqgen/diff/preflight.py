@@ -52,6 +52,16 @@ def finding_changes(old: list, new: list, renames: dict | None = None) -> tuple[
     return changes, unchanged
 
 
+_BEFORE_CHECKS = ("load", "schema", "resolve")
+
+
+def before_checks(findings: list) -> list:
+    """The findings raised while loading, validating and resolving (not by preflight checks)."""
+    from ..registry import CODES
+
+    return [f for f in findings if CODES.get(f.code) is None or CODES[f.code].stage in _BEFORE_CHECKS]
+
+
 def _state(f) -> str:
     return f.severity + (" (accepted)" if f.accepted else "")
 

@@ -4,6 +4,7 @@ and the JSON shape documented by schemas/diff.schema.json."""
 from __future__ import annotations
 
 import json
+import math
 
 from . import fmt
 from .model import LEVEL_TITLES, LEVELS, DiffReport
@@ -35,7 +36,18 @@ def to_dict(rep: DiffReport) -> dict:
 
 
 def to_json(rep: DiffReport) -> str:
-    return json.dumps(to_dict(rep), indent=2, sort_keys=True, allow_nan=False, default=_default)
+    return json.dumps(_finite(to_dict(rep)), indent=2, sort_keys=True, allow_nan=False, default=_default)
+
+
+def _finite(obj):
+    """JSON has no NaN or infinity: such numbers become null."""
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    if isinstance(obj, dict):
+        return {k: _finite(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_finite(v) for v in obj]
+    return obj
 
 
 def _default(o):
@@ -77,7 +89,7 @@ def to_text(rep: DiffReport) -> str:
     head = f"seqgen diff {rep.old.label} -> {rep.new.label}: "
     unresolved = [v.label for v in (rep.old, rep.new) if v.kind != "build" and v.shot is None]
     if rep.identical and unresolved:
-        lines = [head + "no differences in findings or params (" + " and ".join(unresolved) + " did not resolve)"]
+        lines = [head + "no differences in findings (" + " and ".join(unresolved) + " did not resolve)"]
     elif rep.identical:
         lines = [head + "no differences"
                  + (f" ({s['unchanged_findings']} finding(s) unchanged)" if s["unchanged_findings"] else "")]

@@ -205,7 +205,10 @@ def param_changes(old: Version, new: Version) -> tuple[list, set]:
         a, b = old.params[name], new.params[name]
         via = sorted((deps_new.get(name, set()) | deps_old.get(name, set())) & changed)
         written = f"{a[2]} -> {b[2]}" if a[2] != b[2] else f"{a[2]} (unchanged text)"
-        values = f"{fmt.q(a[0], a[1])} -> {fmt.q(b[0], b[1])}"
+        va_s, vb_s = fmt.pair(a[0], b[0], a[1] if a[1] == b[1] else "")
+        if a[1] != b[1]:
+            va_s, vb_s = fmt.q(a[0], a[1]), fmt.q(b[0], b[1])
+        values = f"{va_s} -> {vb_s}"
         simple = all(_is_plain_quantity(x[2]) for x in (a, b))
         msg = f"param {name}: {written}" + ("" if simple or values == written else f" = {values}")
         if via:
@@ -458,7 +461,7 @@ def _writes(xa: BlockView, xb: BlockView, outs_new, outs_old) -> list:
                     if not same:
                         diffs[name] = (v1, v2, unit if u == "phys" else u)
                 if diffs:
-                    text = "; ".join(f"{n} {_fv(v1, u)} -> {_fv(v2, u)}" for n, (v1, v2, u) in diffs.items())
+                    text = "; ".join(f"{n} {' -> '.join(_fv2(v1, v2, u))}" for n, (v1, v2, u) in diffs.items())
                     out.append(Change("resolved", "write-changed", f"{block}/{output}",
                                       f"{block}: {r2['action']} on {output}: {text}",
                                       None, None, 40, {"block": block, "output": output, "action": r2["action"],
@@ -472,6 +475,12 @@ def _writes(xa: BlockView, xb: BlockView, outs_new, outs_old) -> list:
                                   f"{block}: {r['action']} on {output} added ({_describe(r, unit)})", None, _describe(r, unit),
                                   42, {"block": block, "output": output, "action": r["action"]}))
     return out
+
+
+def _fv2(v1, v2, unit):
+    if unit == "s" and isinstance(v1, float) and isinstance(v2, float):
+        return fmt.t(v1), fmt.t(v2)
+    return fmt.pair(v1, v2, unit or "")
 
 
 def _fv(v, unit):
@@ -499,7 +508,7 @@ def _actions(xa: BlockView, xb: BlockView) -> list:
             if k1 != k2:
                 diffs = {"kind": (k1, k2), **diffs}
             if diffs:
-                text = "; ".join(f"{n} {fmt.q(v1, _ARG_UNITS.get(n, ''))} -> {fmt.q(v2, _ARG_UNITS.get(n, ''))}"
+                text = "; ".join(f"{n} {' -> '.join(fmt.pair(v1, v2, _ARG_UNITS.get(n, '')))}"
                                  for n, (v1, v2) in diffs.items())
                 out.append(Change("resolved", "action-changed", f"{block}/{n2}", f"{block}: {n2}: {text}", None, None, 44,
                                   {"block": block, "action": k2,

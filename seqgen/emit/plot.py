@@ -211,7 +211,7 @@ def intended_series(shot, output: str, t0: float, t1: float, n: int = 1200):
 
 
 def _text_pt(text: str, fontsize: float) -> float:
-    return len(text) * fontsize * 0.56 + 6
+    return len(text) * fontsize * 0.6 + 8
 
 
 def _place(items, t0: float, t1: float, width_in: float, fontsize: float, max_rows: int = 4):
@@ -282,6 +282,21 @@ def _cluster_blocks(blocks, t0, t1, width_in, small_pt=12.0, near_pt=40.0):
         else:
             items.extend((b.start_s, b.end_s, b.name, [b]) for b in members)
     return items
+
+
+def detail_window(shot, width_in: float = 8.0):
+    """A window around the busiest run of short blocks (those that share one label in the full view), or None
+    when every block can be told apart at full scale. Used for the report's second, zoomed timeline."""
+    t1 = shot.duration_s
+    if t1 <= 0:
+        return None
+    crowded = [it for it in _cluster_blocks(shot.blocks, 0.0, t1, width_in) if len(it[3]) >= 3]
+    if not crowded:
+        return None
+    start, end, _, _ = max(crowded, key=lambda it: len(it[3]))
+    pad = max(0.08 * (end - start), 1e-6)
+    a, b = max(0.0, start - pad), min(t1, end + pad)
+    return (a, b) if b - a < 0.5 * t1 else None
 
 
 # --- figure layout --------------------------------------------------------------------------------------------------
@@ -495,8 +510,12 @@ def _style_lane(ax, out, colour, scale_unit, ylim, flat=None):
     it gets one tick, so neighbouring lanes' labels cannot collide."""
     from matplotlib.ticker import FixedLocator, MaxNLocator
 
+    from matplotlib.ticker import FuncFormatter
+
     factor, unit = scale_unit
+    plain = FuncFormatter(lambda y, _pos: f"{y:.4g}")  # no offset text or 1e-5 multiplier above a lane
     ax.set_ylim(*ylim)
+    ax.yaxis.set_major_formatter(plain)
     ax.tick_params(axis="y", labelsize=TICK_PT, length=2, pad=1.5)
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
@@ -522,6 +541,7 @@ def _style_lane(ax, out, colour, scale_unit, ylim, flat=None):
             sec.yaxis.set_major_locator(FixedLocator([float(fwd(flat))]))
         else:
             sec.yaxis.set_major_locator(MaxNLocator(nbins=2, min_n_ticks=2))
+        sec.yaxis.set_major_formatter(plain)
         sec.tick_params(labelsize=TICK_PT - 0.5, length=2, pad=1.5, colors="#6b6b6b")
         sec.spines["right"].set_color("#b0b0b0")
         sec.set_ylabel(out.unit, rotation=0, fontsize=TICK_PT, color="#6b6b6b", labelpad=8, va="center")
@@ -577,11 +597,6 @@ def _code_span(out, arrays, codes: int = 64) -> float:
         return float(abs(phys[1] - phys[0]))
     except (ValueError, TypeError):
         return 0.0
-
-
-def _peak(arrays) -> float:
-    vals = [float(np.nanmax(np.abs(a))) for a in arrays if len(a) and np.any(np.isfinite(a))]
-    return max(vals + [0.0])
 
 
 def _full_range(table_col, out):
@@ -899,7 +914,7 @@ def _draw_lane(ax, shot, out, col, t0, t1, colour, intended):
     arrays.append(it[1])
     full = _full_range(col, out) + [np.asarray([out.safe], float)]
     ylim = _ylim(arrays, out.kind, full, _code_span(out, arrays))
-    peak = _peak(arrays + full)
+    peak = max(abs(ylim[0]), abs(ylim[1])) * 0.9  # the prefix fits what the lane shows, padding aside
     scale = _display_scale(peak, out.phys_unit if out.kind != "digital" else "")
     factor = scale[0]
     if len(hw[0]):
@@ -1084,7 +1099,7 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
             full = [r for shot, cols in ((old_shot, oc), (new_shot, nc)) if n in shot.rig.outputs
                     for r in _full_range(cols.get(n), shot.rig.outputs[n])]
             ylim = _ylim(arrays, out.kind, full, _code_span(out, arrays))
-            peak = _peak(arrays + full)
+            peak = max(abs(ylim[0]), abs(ylim[1])) * 0.9
             scale = _display_scale(peak, out.phys_unit if out.kind != "digital" else "")
             for style, t, v, model in series:
                 td, vd = _decimate(t, v / scale[0], t0, t1)
@@ -1111,8 +1126,8 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
 # --- writing ------------------------------------------------------------------------------------------------------
 
 
-def figure_bytes(fig, fmt: str) -> bytes:
-    """Render a figure; the bytes depend only on the figure (no dates, fixed SVG ids)."""
+def figure_bytes(fig, fmt: str, salt: str = "seqgen") -> bytes:
+    """Render a figure; the bytes depend only on the figure (no dates, SVG ids fixed by `salt`)."""
     import matplotlib
 
     fmt = fmt.lower()
@@ -1120,16 +1135,25 @@ def figure_bytes(fig, fmt: str) -> bytes:
         raise PlotError(f"cannot write '.{fmt}' pictures; use one of " + ", ".join("." + f for f in FORMATS))
     meta = {"png": {"Software": None}, "svg": {"Date": None}, "pdf": {"CreationDate": None, "Producer": None}}[fmt]
     buf = io.BytesIO()
-    with matplotlib.rc_context({"svg.hashsalt": "seqgen", "svg.fonttype": "path", "pdf.fonttype": 42}):
+    with matplotlib.rc_context({"svg.hashsalt": salt, "svg.fonttype": "path", "pdf.fonttype": 42}):
         fig.savefig(buf, format=fmt, metadata=meta)
     return buf.getvalue()
 
 
-def svg_text(fig) -> str:
-    """The figure as an SVG element (no XML prolog), for inlining in HTML."""
-    text = figure_bytes(fig, "svg").decode("utf-8")
+def svg_text(fig, prefix: str = "") -> str:
+    """The figure as an SVG element (no XML prolog), for inlining in HTML. With `prefix`, every id of the SVG
+    and every reference to one (href="#id", url(#id)) is prefixed, so several figures on one page keep their
+    ids unique."""
+    import re
+
+    text = figure_bytes(fig, "svg", prefix or "seqgen").decode("utf-8")
     start = text.find("<svg")
-    return text[start:] if start >= 0 else text
+    text = text[start:] if start >= 0 else text
+    if prefix:
+        text = re.sub(r'\bid="([^"]+)"', lambda m: f'id="{prefix}{m.group(1)}"', text)
+        text = re.sub(r'(href)="#([^"]+)"', lambda m: f'{m.group(1)}="#{prefix}{m.group(2)}"', text)
+        text = re.sub(r"url\(#([^)]+)\)", lambda m: f"url(#{prefix}{m.group(1)})", text)
+    return text
 
 
 def write_atomic(path: str | Path, data: bytes, *, force: bool = False) -> Path:

@@ -64,7 +64,9 @@ details pre { white-space: pre-wrap; font-size: .82rem; margin: .3rem 0; color: 
 figure { margin: 0; overflow-x: auto; border: 1px solid var(--line); padding: .5rem; }
 figure svg { max-width: 100%; height: auto; display: block; }
 figcaption { color: var(--muted); font-size: .85rem; margin-top: .4rem; }
-ul.notes li { margin: .2rem 0; }
+ul.notes { margin: 0; padding-left: 1.1rem; }
+ul.notes li { margin: .1rem 0; }
+figure + figure { margin-top: 1rem; }
 footer { margin-top: 2.5rem; color: var(--muted); font-size: .8rem; }
 @media print { body { padding: 0; } figure { border: none; } }
 """
@@ -148,8 +150,17 @@ def _physics_rows(shot) -> list[dict]:
     return out
 
 
-def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "", scanned: bool = False) -> str:
-    """HTML text of the preflight report of `res` (a `pipeline.Result`) for sequence `file`."""
+_CAPTION = ("One lane per output, grouped by device: the solid curve is what the channel table makes the hardware "
+            "output (after latency compensation and quantization), the dashed curve the value the sequence asks "
+            "for. Shaded spans are blocks; dashed vertical lines mark findings (error &#x2716;, warning &#x25B2;, "
+            "note &#x25CF;).")
+
+
+def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "", scanned: bool = False,
+                  detail: tuple | None = None) -> str:
+    """HTML text of the preflight report of `res` (a `pipeline.Result`) for sequence `file`.
+
+    `svg` is the inline SVG of the whole timeline; `detail` an optional (caption, svg) of a zoomed one."""
     from ..check import CAUTION
 
     findings = list(res.findings)
@@ -208,10 +219,9 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
 
     out.append('<section id="timeline"><h2>Timeline</h2>')
     if svg:
-        out.append(f"<figure>{svg}<figcaption>One lane per output, grouped by device: the solid curve is what the "
-                   "channel table makes the hardware output (after latency compensation and quantization), the "
-                   "dashed curve the value the sequence asks for. Shaded spans are blocks; dashed vertical lines "
-                   "mark findings (error &#x2716;, warning &#x25B2;, note &#x25CF;).</figcaption></figure>")
+        out.append(f'<figure id="timeline-full">{svg}<figcaption>The whole shot. {_CAPTION}</figcaption></figure>')
+        if detail:
+            out.append(f'<figure id="timeline-detail">{detail[1]}<figcaption>{_e(detail[0])}</figcaption></figure>')
     else:
         out.append(f"<p>No timeline: {_e(svg_note or 'the sequence could not be resolved')}.</p>")
     out.append("</section>")
@@ -227,7 +237,7 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
     return "\n".join(out)
 
 
-def report_svg(res, **kw) -> tuple[str | None, str]:
+def report_svg(res, prefix: str = "full-", **kw) -> tuple[str | None, str]:
     """(inline SVG of the timeline or None, reason when None)."""
     if res.shot is None:
         return None, "the sequence could not be resolved"
@@ -235,9 +245,25 @@ def report_svg(res, **kw) -> tuple[str | None, str]:
 
     try:
         fig = timeline_figure(res.shot, res.compiled, res.findings, **kw)
-        return svg_text(fig), ""
+        return svg_text(fig, prefix), ""
     except Exception as exc:  # a picture problem must not cost the user the report
         return None, f"the timeline could not be drawn ({type(exc).__name__}: {exc})"
+
+
+def report_detail_svg(res) -> tuple | None:
+    """(caption, SVG) of a zoom on the busiest run of short blocks, when the full view crowds them."""
+    if res.shot is None:
+        return None
+    from .plot import detail_window
+
+    win = detail_window(res.shot)
+    if win is None:
+        return None
+    svg, _ = report_svg(res, "detail-", t_from=win[0], t_to=win[1], physics=False)
+    if svg is None:
+        return None
+    return (f"Detail from {_fmt_time(win[0])} to {_fmt_time(win[1])}, where short blocks crowd the full view "
+            "(physics panels are in the full view above).", svg)
 
 
 def write_report(path: str | Path, res, file: str, *, force: bool = False, timeline: bool = True,
@@ -247,5 +273,6 @@ def write_report(path: str | Path, res, file: str, *, force: bool = False, timel
     if path.exists() and not force:
         raise OutputExists(f"{path} exists; use --force to replace it")
     svg, note = report_svg(res) if timeline else (None, "not requested")
-    text = render_report(res, file, svg=svg, svg_note=note, scanned=scanned)
+    detail = report_detail_svg(res) if svg else None
+    text = render_report(res, file, svg=svg, svg_note=note, scanned=scanned, detail=detail)
     return write_atomic(path, text.encode("utf-8"), force=force)

@@ -29,7 +29,8 @@ class ExprError(ValueError):
         self.names = names
 
 
-_NUM_UNIT = re.compile(r"(?<![\w.])((?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z_][A-Za-z0-9_]*)")
+# a number followed by a unit; the unit may not start like an exponent, or '1e308 * 10' would read as 1 * e308
+_NUM_UNIT = re.compile(r"(?<![\w.])((?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(?![eE][-+]?\d)([A-Za-z_][A-Za-z0-9_]*)")
 _FUNCS: dict[str, Callable] = {
     "sqrt": math.sqrt, "exp": math.exp, "log": math.log, "log10": math.log10, "sin": math.sin,
     "cos": math.cos, "tan": math.tan, "abs": abs, "min": min, "max": max,
@@ -166,4 +167,5 @@ def _call(name: str, args: list[Qty]) -> Qty:
             return Qty(abs(a.value), a.dims)
         return Qty(_FUNCS[name](a.value))
     except (ValueError, OverflowError) as exc:
-        raise ExprError("overflow", f"{name}({a.value:g}): {exc}") from None
+        raise ExprError("overflow", f"{name}({a.value:g}): {exc}", "check the argument: it is out of the function's "
+                        "range") from None

@@ -57,7 +57,10 @@ def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
             code = _KIND_CODE.get(exc.kind, E.EXPRESSION)
             raise Bad(make(code, f"{exc}", pos, hint=exc.hint))
     if not math.isfinite(q.value):
-        raise Bad(make(E.NON_FINITE, f"'{text}' is not finite", pos))
+        if "nan" in text.lower() or "inf" in text.lower():
+            raise Bad(make(E.NON_FINITE, f"'{text}' is not finite", pos, hint="give a finite number"))
+        raise Bad(make(E.OVERFLOW, f"'{text[:60]}' overflows: too large for a number", pos,
+                       hint="check for a typo in the exponent"))
     return q
 
 

@@ -55,7 +55,7 @@ class Sources:
 def _display(path: Path) -> str:
     try:
         return str(path.resolve().relative_to(Path.cwd().resolve()))
-    except ValueError:
+    except (ValueError, RuntimeError, OSError):  # outside the working folder, or a symlink loop
         return str(path)
 
 
@@ -655,6 +655,9 @@ def _do_push(ctx, spec, t0, path):
         args.update(coil=coil.name, gradient=grad)
     elif "beam" in spec:
         beam = _named(ctx, ctx.rig.beams, "beam", spec["beam"], path + ("beam",))
+        if "power" not in spec:
+            raise Bad(make("schema.missing-key", "an optical push needs 'power:'", ctx.doc.pos(path), block=ctx.block,
+                           hint="add 'power: <beam power>'"))
         power = ctx.q(spec, "power", path, "W", positive=True)
         out = ctx.output_for(beam.power_channel, path + ("beam",))
         ctx.pulse(out, t0, dur, power, 0.0, "push", path)

@@ -1,7 +1,7 @@
 """Compile benchmark (run by hand): python tests/benchmarks/bench_compile.py [--blocks N]
 
 Builds a synthetic sequence (64 channels on 4 devices, 10 000 blocks, ramps
-totalling about 10 million rows) and prints, measured in this run:
+totalling about 15 million table rows) and prints, measured in this run:
 - load + validate + resolve time of the 10 000-block file,
 - compile throughput (rows/s) end to end,
 - ratio of compile+write time to a raw-numpy lower bound (the same number of

@@ -10,12 +10,16 @@ N values of the time of flight (10 ms .. 16 ms) and prints, measured in this run
   (what checking the N shots one by one would cost; the target is <= 0.5 on
   2 cores);
 - parallel efficiency: serial time per shot (M shots with one process) x N
-  divided by (P x scan time).
+  divided by (P x scan time);
+- the CPU ratio: CPU seconds of the scan (this process and its workers) over
+  N x the single shot's CPU seconds, which shows the work shared between shots
+  whatever else runs on the machine (the load average is printed too).
 """
 
 from __future__ import annotations
 
 import argparse
+import resource
 import shutil
 import statistics
 import sys
@@ -33,20 +37,31 @@ DEMO = ROOT / "sequences" / "na23_barrier_scatter.yaml"
 
 
 def scanned_copy(folder: Path, shots: int, name: str = "scan.yaml") -> Path:
-    """The demo with absolute rig/use paths and a tof scan of `shots` values."""
+    """The demo (with its rig and used file copied beside it) with a tof scan of `shots` values."""
+    for sub in ("rigs", "common"):
+        (folder / sub).mkdir(exist_ok=True)
+        for f in (DEMO.parent / sub).glob("*.yaml"):
+            shutil.copy(f, folder / sub / f.name)
     lines = []
     for line in DEMO.read_text(encoding="utf-8").splitlines():
-        s = line.strip()
-        if s.startswith("rig:"):
-            line = f"rig: {(DEMO.parent / s.split(':', 1)[1].strip()).resolve()}"
-        elif s.startswith("- file:"):
-            line = line.replace(s.split(":", 1)[1].strip(), str((DEMO.parent / s.split(":", 1)[1].strip()).resolve()))
-        elif s.startswith("tof:"):
+        if line.strip().startswith("tof:"):
             line = f"  tof: {{value: 14 ms, scan: {{from: 10 ms, to: 16 ms, steps: {shots}}}}}"
         lines.append(line)
     path = folder / name
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return path
+
+
+def _children_cpu() -> float:
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
+
+
+def _load() -> float:
+    try:
+        return float(Path("/proc/loadavg").read_text().split()[0])
+    except (OSError, ValueError, IndexError):
+        return float("nan")
 
 
 def main() -> None:
@@ -61,14 +76,15 @@ def main() -> None:
     try:
         path = scanned_copy(folder, args.shots)
         preflight(path)  # warm-up: lazy imports, caches of unit texts
-        singles = []
+        singles, cpus = [], []
         for _ in range(3):
-            t = time.perf_counter()
+            t, c = time.perf_counter(), time.process_time()
             res = preflight(path)
             singles.append(time.perf_counter() - t)
-        single = statistics.median(singles)
-        print(f"single shot (preflight, in process): {single * 1e3:.1f} ms (median of 3; "
-              f"{'no errors' if res.ok else 'ERRORS'})")
+            cpus.append(time.process_time() - c)
+        single, single_cpu = statistics.median(singles), statistics.median(cpus)
+        print(f"single shot (preflight, in process): {single * 1e3:.1f} ms wall, {single_cpu * 1e3:.1f} ms CPU "
+              f"(median of 3; {'no errors' if res.ok else 'ERRORS'})")
 
         serial_path = scanned_copy(folder, args.serial, "serial.yaml")
         t = time.perf_counter()
@@ -77,15 +93,19 @@ def main() -> None:
         print(f"serial scan of {len(serial.shots)} shots: {t_serial * 1e3:.1f} ms per shot")
 
         out = folder / "out" if args.build else None
-        t = time.perf_counter()
+        t, c0, k0 = time.perf_counter(), time.process_time(), _children_cpu()
         scan = run_scan(plan_scan(path), jobs=jobs, out=out)
         t_scan = time.perf_counter() - t
+        cpu_scan = time.process_time() - c0 + _children_cpu() - k0
         n = len(scan.shots)
         what = "check + build" if args.build else "check"
         print(f"scan of {n} shots ({what}) on {jobs} process(es): {t_scan:.2f} s, {n / t_scan:.2f} shots/s, "
               f"{sum(r.ok for r in scan.shots)} pass")
         print(f"ratio scan time / (N x single-shot time): {t_scan / (n * single):.3f}  (target <= 0.5 on 2 cores)")
         print(f"parallel efficiency (N x serial per-shot) / (P x scan time): {n * t_serial / (jobs * t_scan):.2f}")
+        print(f"CPU ratio scan CPU / (N x single-shot CPU): {cpu_scan / (n * single_cpu):.3f}  (work shared between "
+              f"shots; independent of other load on the machine)")
+        print(f"machine load average during the run: {_load():.2f} on {default_jobs()} core(s)")
         if args.build:
             again_t = time.perf_counter()
             again = run_scan(plan_scan(path), jobs=jobs, out=out)

@@ -1,0 +1,153 @@
+"""Property: no build ever drives a calibrated channel beyond its hard limits.
+
+Random sequences on the demo rig (random set / ramp / pulse actions on every
+calibrated channel that has a hard limit, with values drawn around and beyond
+those limits, and a copy of the rig whose analog card interpolates linearly)
+must either raise a `safety.hard-limit` error (and then the build is refused:
+Result.ok is False), or compile to tables whose every value, converted back to
+physical units with seqgen.calibration.to_physical, lies within the rig's
+hard limits, also between rows as the device plays them (hold: the row values;
+linear: straight lines between rows, checked at the midpoints between rows).
+Allowance: half a least significant bit of the output (the quantization error
+of rounding to the nearest DAC code, textbook), converted to physical units
+through the calibration, plus float round-off.
+
+The hard limits come from the rig file itself (sequences/rigs/na23_demo_rig.yaml),
+read here with PyYAML and converted with pint, independently of seqgen's rig
+resolver. No `sample:` in these sequences: the physics checks stay quiet and fast.
+"""
+
+from pathlib import Path
+import tempfile
+
+import numpy as np
+import pint
+import yaml
+from hypothesis import HealthCheck, given, settings, strategies as st
+
+from seqgen.calibration import to_physical
+from seqgen.pipeline import preflight
+
+from .conftest import SEQUENCES
+
+RIG_PATH = SEQUENCES / "rigs" / "na23_demo_rig.yaml"
+RIG_TEXT = RIG_PATH.read_text(encoding="utf-8")
+RIG_DOC = yaml.safe_load(RIG_TEXT)
+UREG = pint.UnitRegistry()
+
+
+def _qty(text, unit):
+    return UREG.Quantity(text).to(unit).magnitude
+
+
+def _limited_channels():
+    """name -> (physical unit, hard min or None, hard max), for calibrated channels with a hard limit."""
+    out = {}
+    for name, ch in RIG_DOC["channels"].items():
+        cal, lim = ch.get("calibration"), ch.get("hard_limit")
+        if not cal or not lim:
+            continue
+        unit = cal["quantity"]
+        lo = _qty(lim["min"], unit) if "min" in lim else None
+        out[name] = (unit, lo, _qty(lim["max"], unit))
+    return out
+
+
+CHANNELS = _limited_channels()
+NAMES = sorted(CHANNELS)
+SHAPES = ["linear", "exponential", "smooth", "minimum_jerk", "table"]
+# an overshooting-free monotone shape table (PCHIP stays within its data)
+SHAPE_TABLE = "[[0, 0], [0.3, 0.6], [0.7, 0.65], [1, 1]]"
+# the analog card of the demo rig, as written in the rig file; the copy makes it interpolate linearly
+AO_LINE = "ao_main:    {timebase: 1 MHz, min_interval: 2 us,"
+assert AO_LINE in RIG_TEXT
+
+
+def value_strategy(name):
+    """Physical values around and beyond a channel's hard limits (and right on them)."""
+    _, lo, hi = CHANNELS[name]
+    base = 0.0 if lo is None else lo
+    span = hi - base
+    # on the limits and within float noise of them
+    edges = st.sampled_from([base, hi, hi * (1 + 1e-12), hi * (1 - 1e-12), base - 1e-12 * span])
+    # 1e-6 to 30 % of the span inside or beyond a limit, log-uniform: half an LSB of these
+    # 16-bit outputs is 1e-5 to 3e-5 of the span, so this covers sub-LSB to gross overshoots
+    offset = st.tuples(st.sampled_from([-1.0, 1.0]), st.floats(-6, -0.5)).map(lambda p: p[0] * 10 ** p[1] * span)
+    near_hi = offset.map(lambda d: hi + d)
+    near_lo = offset.map(lambda d: base + d)
+    anywhere = st.floats(base - 0.3 * span, hi + 0.3 * span, allow_nan=False)
+    return st.one_of(edges, near_hi, near_lo, anywhere)
+
+
+@st.composite
+def actions(draw):
+    name = draw(st.sampled_from(NAMES))
+    kind = draw(st.sampled_from(["set", "ramp", "pulse"]))
+    unit = CHANNELS[name][0]
+    v = lambda: f"{draw(value_strategy(name))!r} {unit}"
+    if kind == "set":
+        return name, f"set: {{channel: {name}, value: {v()}}}", 0
+    dur_us = draw(st.integers(4, 3000))
+    if kind == "pulse":
+        spec = f"pulse: {{channel: {name}, value: {v()}, duration: {dur_us} us"
+        if draw(st.booleans()):
+            spec += f", back_to: {v()}"
+        return name, spec + "}", dur_us
+    shape = draw(st.sampled_from(SHAPES))
+    spec = f"ramp: {{channel: {name}, to: {v()}, over: {dur_us} us, shape: {shape}"
+    if draw(st.booleans()):
+        spec += f", from: {v()}"
+    if shape == "exponential":
+        spec += f", tau: {draw(st.sampled_from([-1, 1])) * draw(st.integers(2, 5000))} us"
+    if shape == "table":
+        spec += f", table: {SHAPE_TABLE}"
+    return name, spec + "}", dur_us
+
+
+def _allowance(out, limit, sign):
+    """Half an LSB beyond a limit, in physical units through the calibration."""
+    from seqgen.calibration import to_output
+
+    v = float(to_output(out, limit))
+    return abs(float(to_physical(out, v + sign * out.lsb / 2)) - limit) * (1 + 1e-6) + 1e-12 * max(1.0, abs(limit))
+
+
+@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(steps=st.lists(st.tuples(actions(), st.integers(0, 2000)), min_size=1, max_size=6),
+       linear=st.booleans())
+def test_hard_limits_hold_in_every_build(steps, linear):
+    with tempfile.TemporaryDirectory(prefix="seqgen-safety-") as tmp:
+        tmp = Path(tmp)
+        rig = RIG_TEXT.replace(AO_LINE, AO_LINE + " output_model: linear,") if linear else RIG_TEXT
+        (tmp / "rig.yaml").write_text(rig, encoding="utf-8")
+        lines = ["seqgen: 1", "rig: rig.yaml", "blocks:"]
+        t_us = 100
+        for i, ((_, spec, dur_us), gap_us) in enumerate(steps):
+            lines += [f"  - name: b{i}", f"    at: {t_us} us", "    actions:", f"      - {spec}"]
+            t_us += dur_us + gap_us + 5
+        # every touched channel back to its safe value at the end (keeps safety.left-on out of the way)
+        lines += [f"  - name: end", f"    at: {t_us + 100} us", "    actions:"]
+        lines += [f"      - set: {{channel: {n}, value: 0 {CHANNELS[n][0]}}}" for n in sorted({s[0][0] for s in steps})]
+        (tmp / "seq.yaml").write_text("\n".join(lines) + "\n", encoding="utf-8")
+        res = preflight(tmp / "seq.yaml")
+    assert res.shot is not None, [f"{f.code}: {f.message}" for f in res.findings]
+    assert not [f for f in res.findings if f.code == "schema.check-crashed"]
+    if any(f.code == "safety.hard-limit" and f.severity == "error" for f in res.findings):
+        assert not res.ok  # the build is refused
+        return
+    assert res.compiled is not None
+    for table in res.compiled.tables:
+        for j, name in enumerate(table.columns):
+            if name not in CHANNELS:
+                continue
+            out = res.shot.rig.outputs[name]
+            _, lo, hi = CHANNELS[name]
+            col = np.asarray(table.values)[:, j]
+            played = col
+            if linear and table.device == "ao_main" and len(col) > 1:
+                mids = 0.5 * (table.ticks[1:] + table.ticks[:-1])
+                played = np.concatenate((col, np.interp(mids, table.ticks, col)))
+            phys = to_physical(out, played)
+            assert phys.max() <= hi + _allowance(out, hi, +1), (name, phys.max(), hi)
+            if lo is not None:
+                assert phys.min() >= lo - _allowance(out, lo, -1), (name, phys.min(), lo)
