@@ -186,6 +186,17 @@ def shallow_trap(shot):
                        block=act.block, time_s=act.t1, hint="end at a higher power, or accept it if spilling is intended")
 
 
+def _imaged_clouds(shot, needs: str):
+    """(image action, imaging setup, predicted cloud) for images whose setup declares `needs`."""
+    for img in (a for a in shot.phys if a.kind == "image"):
+        setup = shot.rig.imaging.get(img.args["setup"])
+        if setup is None or not getattr(setup, needs):
+            continue
+        c = cloud_at_image(shot, img)
+        if c is not None:
+            yield img, setup, c
+
+
 def cloud_at_image(shot, img):
     """Predicted centre drop (m) and rms size (m) of the cloud at an image, or None."""
     from ..physics.expansion import condensate_tof_radii, thermal_width, thomas_fermi
@@ -239,13 +250,7 @@ def cloud_outside_view(shot):
     expanding (Thomas-Fermi scaling solution for a condensate, ballistic for a
     thermal cloud), lies partly or wholly outside the imaging setup's field of
     view. Shorten the time of flight or move the camera."""
-    for img in (a for a in shot.phys if a.kind == "image"):
-        setup = shot.rig.imaging.get(img.args["setup"])
-        if setup is None or not setup.field_of_view_m:
-            continue
-        c = cloud_at_image(shot, img)
-        if c is None:
-            continue
+    for img, setup, c in _imaged_clouds(shot, "field_of_view_m"):
         half = setup.field_of_view_m / 2
         # a Thomas-Fermi radius is the cloud's edge; for a Gaussian take 2 rms widths
         edge = c["drop"] + (c["size"] if c["size_kind"].startswith("Thomas") else 2 * c["size"])
@@ -293,13 +298,7 @@ def cloud_out_of_focus(shot):
     imaging setup's depth of field: its near and far parts are imaged out of
     focus, which blurs the picture and biases fitted sizes. Shorten the time
     of flight or image a smaller cloud."""
-    for img in (a for a in shot.phys if a.kind == "image"):
-        setup = shot.rig.imaging.get(img.args["setup"])
-        if setup is None or not setup.depth_of_field_m:
-            continue
-        c = cloud_at_image(shot, img)
-        if c is None:
-            continue
+    for img, setup, c in _imaged_clouds(shot, "depth_of_field_m"):
         extent = 2 * c["size"] if c["size_kind"].startswith("Thomas") else 4 * c["size"]
         if extent > setup.depth_of_field_m:
             yield make("physics.cloud-out-of-focus", f"the cloud spans {extent * 1e3:.3g} mm along the line of sight, more "
@@ -314,13 +313,7 @@ def cloud_clipped(shot):
     aperture declared for the imaging setup (`aperture_radius`, e.g. the inner
     radius of a glass cell or waveguide) before the image is taken: atoms are
     lost on the wall. Shorten the time of flight."""
-    for img in (a for a in shot.phys if a.kind == "image"):
-        setup = shot.rig.imaging.get(img.args["setup"])
-        if setup is None or not setup.aperture_radius_m:
-            continue
-        c = cloud_at_image(shot, img)
-        if c is None:
-            continue
+    for img, setup, c in _imaged_clouds(shot, "aperture_radius_m"):
         edge = c["drop"] + (c["size"] if c["size_kind"].startswith("Thomas") else 2 * c["size"])
         if edge > setup.aperture_radius_m:
             yield make("physics.cloud-clipped", f"after {c['tof'] * 1e3:.4g} ms the cloud reaches {edge * 1e3:.3g} mm from "
