@@ -75,7 +75,9 @@ def test_deep_flow_nesting_is_refused_not_a_crash():
             "except LoadError as e:\n    print(e.finding.code, e.finding.line)\n")
     r = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=120)
     assert r.returncode == 0, r.stderr[-2000:]
-    assert r.stdout.split() == ["schema.yaml-too-complex", "1"]
+    # refused at line 1 either by seqgen's depth limit or, with PyYAML >= 6.0.4, by the parser's own
+    code, line = r.stdout.split()
+    assert code in ("schema.yaml-too-complex", "schema.yaml-syntax") and line == "1"
 
 
 @pytest.mark.parametrize("text", [

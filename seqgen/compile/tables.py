@@ -220,8 +220,9 @@ class _DenseFit:
             vals = np.concatenate((ends[:1], interior, ends[1:])) if interior is not None else ends.copy()
             err = float(np.max(np.abs(np.interp(self.k, ticks, vals) - self.y)))
             return ticks, vals, err
-        starts = np.searchsorted(self.k, ticks[:-1])
         body = self.y[:-1]
+        # a row after the last checked tick but one (ramps checked on a strided subset) starts in the last piece
+        starts = np.minimum(np.searchsorted(self.k, ticks[:-1]), len(body) - 1)
         lo = np.minimum.reduceat(body, starts)
         hi = np.maximum.reduceat(body, starts)
         vals = np.append(0.5 * (lo + hi), self.y[-1])

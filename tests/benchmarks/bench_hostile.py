@@ -27,7 +27,7 @@ def _block(actions: str) -> str:
 CASES = {
     "demo (reference)": "DEMO",
     "8 MiB of small mappings (the size limit)":
-        HEAD + "description: x\nfill:\n" + "".join(f"  k{i}: {{a: [1, 2, 3], b: x}}\n" for i in range(280_000)),
+        HEAD + "description: x\nfill:\n" + "".join(f"  k{i}: {{a: [1, 2, 3], b: x}}\n" for i in range(255_000)),
     "alias bomb (10^10 nodes)":
         "a0: &a0 [x, x, x, x, x, x, x, x, x, x]\n" + "".join(
             f"a{i}: &a{i} [{', '.join([f'*a{i - 1}'] * 10)}]\n" for i in range(1, 10)),
@@ -39,7 +39,7 @@ CASES = {
     "1000 s smooth ramp (1e9 ticks)": _block("      - ramp: {channel: cross_a_power, to: 1 W, over: 1000 s, shape: smooth}\n"
                                             "      - set: {channel: cross_a_power, value: 0 W}\n"),
     "1e8 s hold (sequence too long)": _block("      - hold: {duration: 1e8 s}\n"),
-    "2000-character expression": HEAD + "params:\n  t: '" + " + ".join(["1 ms"] * 399) + "'\n" + _block(
+    "2000-character expression": HEAD + "params:\n  t: '" + " + ".join(["1 ms"] * 285) + "'\n" + _block(
         "      - hold: {duration: t}\n")[len(HEAD):],
     "300 chained params": HEAD + "params:\n  p0: 1 us\n" + "".join(f"  p{i}: p{i - 1} * 1.01\n" for i in range(1, 300))
         + _block("      - hold: {duration: p299}\n")[len(HEAD):],
