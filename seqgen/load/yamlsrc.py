@@ -14,6 +14,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+import gc
 import re
 import stat
 
@@ -149,6 +150,22 @@ def load_file(path: str | Path, display: str | None = None) -> Document:
 
 
 def load_text(text: str, name: str = "<text>") -> Document:
+    """Parse YAML text into a Document (LoadError with a finding on bad input).
+
+    The cyclic garbage collector is paused meanwhile: building hundreds of
+    thousands of nodes otherwise triggers collections over an ever larger heap,
+    which made a file at the size limit about 2.5 times slower to load. The
+    node trees hold no reference cycles, so nothing is lost by waiting."""
+    paused = gc.isenabled()
+    gc.disable()
+    try:
+        return _load_text(text, name)
+    finally:
+        if paused:
+            gc.enable()
+
+
+def _load_text(text: str, name: str) -> Document:
     import hashlib
 
     sha = hashlib.sha256(text.encode("utf-8")).hexdigest()

@@ -38,7 +38,8 @@ CASES = {
         f"  - name: b{i}\n    actions:\n      - pulse: {{channel: camera, duration: 20 us}}\n" for i in range(3000)),
     "1000 s smooth ramp (1e9 ticks)": _block("      - ramp: {channel: cross_a_power, to: 1 W, over: 1000 s, shape: smooth}\n"
                                             "      - set: {channel: cross_a_power, value: 0 W}\n"),
-    "1e8 s hold (sequence too long)": _block("      - hold: {duration: 1e8 s}\n"),
+    "1e8 s hold (under the tick limit)": _block("      - hold: {duration: 1e8 s}\n"),
+    "1e11 s hold (over the tick limit)": _block("      - hold: {duration: 1e11 s}\n"),
     "2000-character expression": HEAD + "params:\n  t: '" + " + ".join(["1 ms"] * 285) + "'\n" + _block(
         "      - hold: {duration: t}\n")[len(HEAD):],
     "300 chained params": HEAD + "params:\n  p0: 1 us\n" + "".join(f"  p{i}: p{i - 1} * 1.01\n" for i in range(1, 300))
