@@ -54,7 +54,7 @@ from .conftest import ROOT, SEQUENCES
 
 _load_all()
 
-_CI_COUNTS = {"structured": 320, "mutated": 220, "rig": 60, "physics": 4}  # 604 examples in CI
+_CI_COUNTS = {"structured": 260, "mutated": 280, "rig": 60, "physics": 4}  # 604 examples in CI
 _TOTAL = int(os.environ.get("SEQGEN_FUZZ_EXAMPLES", "0") or 0)
 _LONG = _TOTAL > 0
 

@@ -6,7 +6,8 @@ sarif-om 1.0.4 (MIT licence; sha256 49729d59...9f61), the schema of the OASIS st
 "Static Analysis Results Interchange Format (SARIF) Version 2.1.0" as of its final
 release candidate (rtm.4). It is a draft-04 JSON Schema. The level values, the 1-based
 startLine / startColumn and the suppression kinds are those of the OASIS standard
-(sections 3.27.10, 3.30.5, 3.30.6 and 3.35.2 (from memory)).
+(sections 3.27.10, 3.30.5, 3.30.6 and 3.35.2 (from memory)). The final standard added an optional
+`status` to suppressions, which rtm.4 does not allow, so seqgen writes none.
 """
 
 import hashlib

@@ -155,33 +155,27 @@ def scan_to_sarif(scan) -> dict:
     A finding that several shots raise at one place is one result; its message
     says in which shots it fires and its properties list them (`shots`).
     """
+    from dataclasses import replace
+
+    from ..findings import sort_findings
+
     shots = list(getattr(scan, "shots", None) or [])
-    groups: dict = {}
-    order: list = []
+    groups: dict = {}  # insertion-ordered: first occurrence decides the message kept
     for f in scan.findings:
-        key = ("scan", f.code, f.severity, f.file, f.line, f.column, f.block, f.accepted, f.message)
-        groups.setdefault(key, (f, []))
-        order.append(key) if key not in order else None
+        groups.setdefault(("scan", f.code, f.severity, f.file, f.line, f.column, f.block, f.accepted, f.message),
+                          (f, []))
     for r in shots:
         for f in r.findings:
             key = ("shot", f.code, f.severity, f.file, f.line, f.column, f.block, f.accepted)
-            if key not in groups:
-                groups[key] = (f, [])
-                order.append(key)
-            groups[key][1].append(r.index)
+            groups.setdefault(key, (f, []))[1].append(r.index)
     merged = []
-    for key in order:
-        f, idx = groups[key]
+    for key, (f, idx) in groups.items():
         if key[0] == "shot":
             idx = sorted(set(idx))
             where = "in every shot" if len(idx) == len(shots) else \
                 f"in shot{'s' if len(idx) > 1 else ''} {', '.join(map(str, idx))} of {len(shots)}"
-            from dataclasses import replace
-
             f = replace(f, message=f"{f.message} ({where})", data=tuple(f.data) + (("shots", idx),))
         merged.append(f)
-    from ..findings import sort_findings
-
     src = getattr(scan, "sources", None)
     return to_sarif(sort_findings(merged), sources=src.hashes if src is not None else None)
 
