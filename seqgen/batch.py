@@ -522,6 +522,8 @@ def _prepare_out(out: Path, scan: Scan, folders: list, force: bool) -> dict:
 
 def _verify(folder: Path, rec: dict) -> list | None:
     """The shot's findings when its build is intact (manifest and tables match their hashes), else None."""
+    from .emit.build import file_sha256
+
     try:
         raw = (folder / "manifest.json").read_bytes()
         if hashlib.sha256(raw).hexdigest() != rec.get("manifest_sha256"):
@@ -529,19 +531,11 @@ def _verify(folder: Path, rec: dict) -> list | None:
         man = json.loads(raw)
         for info in man["devices"].values():
             for f in info["files"].values():
-                if _sha_file(folder / f["path"]) != f["sha256"]:
+                if file_sha256(folder / f["path"]) != f["sha256"]:
                     return None
         return [_finding_from(d) for d in man.get("findings_list", [])]
     except (OSError, ValueError, KeyError, TypeError):
         return None
-
-
-def _sha_file(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
 
 
 def _finding_from(d: dict) -> Finding:

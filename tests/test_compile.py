@@ -30,6 +30,8 @@ from scipy.interpolate import PchipInterpolator
 
 from seqgen.pipeline import preflight
 
+from . import reference_shapes as shapes_ref
+
 TICK = 1e-6  # every device of the test rig runs at 1 MHz
 BITS = 16
 LO, HI = -10.0, 10.0
@@ -93,32 +95,8 @@ def replay(ticks, col, k, model):
     return col[np.searchsorted(ticks, k, side="right") - 1]
 
 
-def fraction(shape, s, r=None):
-    """Independent closed forms of the ramp shapes (r = T / tau)."""
-    if shape == "linear":
-        return s
-    if shape == "exponential":
-        return (1 - np.exp(-r * s)) / (1 - np.exp(-r))
-    if shape == "smooth":
-        return (1 - np.cos(np.pi * s)) / 2
-    if shape == "minimum_jerk":
-        return 10 * s ** 3 - 15 * s ** 4 + 6 * s ** 5  # Phys. Rev. Lett. 104, 063002 (2010)
-    if shape == "table":
-        return SHAPE_PCHIP(s)
-    raise AssertionError(shape)
 
 
-def fraction_second_derivative(shape, s, r=None):
-    """d^2 f / ds^2 of the closed forms, by hand (table: scipy's PCHIP derivative)."""
-    if shape == "linear":
-        return 0 * s
-    if shape == "exponential":
-        return -r * r * np.exp(-r * s) / (1 - np.exp(-r))
-    if shape == "smooth":
-        return np.pi ** 2 / 2 * np.cos(np.pi * s)
-    if shape == "minimum_jerk":
-        return 60 * s - 180 * s ** 2 + 120 * s ** 3
-    return SHAPE_PCHIP_D2(s)
 
 
 def calibrate(cal, p):
@@ -161,7 +139,7 @@ def test_ramp_fidelity_and_row_count(tmp_path, dev, shape, tau, cal, p0, p1, tol
     k = np.arange(k0, k1 + 1000)  # the ramp and 1 ms of the hold after it
     s = np.clip((k - k0) / (k1 - k0), 0, 1)
     r = None if tau is None else T / tau
-    want = calibrate(cal, p0 + (p1 - p0) * fraction(shape, s, r))
+    want = calibrate(cal, p0 + (p1 - p0) * shapes_ref.fraction(shape, s, r, SHAPE_TABLE))
     tolerance = tol if tol is not None else LSB / 2  # the default: half an LSB (rig schema)
     dev_err = np.abs(replay(ticks, col, k, model) - want).max()
     # the ramp's tolerance plus half an LSB of DAC quantization (textbook)
@@ -183,13 +161,13 @@ def test_ramp_fidelity_and_row_count(tmp_path, dev, shape, tau, cal, p0, p1, tol
         # A Practical Guide to Splines, Springer (1978): about integral sqrt(|y''| / (8 tol)) dt intervals, + end row;
         # y(t) = V(P(t)): y'' = V'(P) P'' + V''(P) P'^2 with P' = dP/dt (second-derivative chain rule)
         def y2(ss):
-            p = p0 + (p1 - p0) * fraction(shape, np.array(ss), r)
+            p = p0 + (p1 - p0) * shapes_ref.fraction(shape, np.array(ss), r, SHAPE_TABLE)
             if cal == "lin":
                 v1, v2 = SLOPE, 0.0
             else:
                 v1, v2 = CAL_PCHIP_D1(p), CAL_PCHIP_D2(p)
             d1 = (p1 - p0) * _fd1(shape, ss, r)
-            d2 = (p1 - p0) * fraction_second_derivative(shape, np.array(ss), r)
+            d2 = (p1 - p0) * shapes_ref.second_derivative(shape, np.array(ss), r, SHAPE_TABLE)
             return (v1 * d2 + v2 * d1 ** 2) / (k1 - k0) ** 2  # per tick^2
         knots = sorted({x for x, _ in SHAPE_TABLE} | _cal_knots_in_s(cal, shape, p0, p1, r)) if shape == "table" or cal == "tab" else None
         integral, _ = integrate.quad(lambda ss: math.sqrt(abs(float(y2(ss))) / (8 * tolerance)) * (k1 - k0), 0, 1,
@@ -217,7 +195,7 @@ def _cal_knots_in_s(cal, shape, p0, p1, r):
     if cal != "tab":
         return set()
     ss = np.linspace(0, 1, 200001)
-    p = p0 + (p1 - p0) * fraction(shape, ss, r)
+    p = p0 + (p1 - p0) * shapes_ref.fraction(shape, ss, r, SHAPE_TABLE)
     out = set()
     for x, _ in CAL_TABLE:
         hit = np.nonzero(np.diff(np.sign(p - x)))[0]

@@ -25,10 +25,11 @@ import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 from scipy import integrate, special
-from scipy.interpolate import PchipInterpolator
 
 from seqgen.compile.sampling import quantize_times, quantize_values, sample_ramp, sample_ramp_report
 from seqgen.compile.shapes import SHAPES, shape_derivative_bounds, shape_fraction
+
+from . import reference_shapes as shapes_ref
 
 TABLE = ((0.0, 0.0), (0.2, 0.5), (0.5, 0.6), (1.0, 1.0))
 TICK = 1e-6
@@ -36,35 +37,8 @@ TICK = 1e-6
 ROUND = 1e-12
 
 
-def reference_fraction(shape, s, r=None):
-    """Independent closed forms of the shapes (r = T / tau)."""
-    if shape == "linear":
-        return s
-    if shape == "exponential":
-        return (1 - np.exp(-r * s)) / (1 - np.exp(-r))
-    if shape == "smooth":
-        return (1 - np.cos(np.pi * s)) / 2
-    if shape == "minimum_jerk":
-        # Phys. Rev. Lett. 104, 063002 (2010): 10 s^3 - 15 s^4 + 6 s^5
-        return 10 * s ** 3 - 15 * s ** 4 + 6 * s ** 5
-    if shape == "table":
-        xs, fs = zip(*TABLE)
-        return PchipInterpolator(xs, fs)(s)
-    raise AssertionError(shape)
 
 
-def reference_second_derivative(shape, s, r=None):
-    """d^2 f / ds^2 of the closed forms, by hand."""
-    if shape == "linear":
-        return 0 * s
-    if shape == "exponential":
-        return -r * r * np.exp(-r * s) / (1 - np.exp(-r))
-    if shape == "smooth":
-        return np.pi ** 2 / 2 * np.cos(np.pi * s)
-    if shape == "minimum_jerk":
-        return 60 * s - 180 * s ** 2 + 120 * s ** 3
-    xs, fs = zip(*TABLE)
-    return PchipInterpolator(xs, fs).derivative(2)(s)
 
 
 def reconstruct(ticks, values, k, model):
@@ -96,7 +70,7 @@ def test_shape_matches_closed_form_and_ends_exactly(shape, tau_frac):
     s = np.linspace(0, 1, 1001)
     tau = None if tau_frac is None else tau_frac * T
     f = shape_fraction(shape, s, duration_s=T, tau_s=tau, table=TABLE)
-    ref = reference_fraction(shape, s, None if tau is None else T / tau)
+    ref = shapes_ref.fraction(shape, s, None if tau is None else T / tau, table=TABLE)
     np.testing.assert_allclose(f, ref, rtol=1e-12, atol=1e-14)
     # the ramp must land on its end values to the last bit
     assert f[0] == 0.0 and f[-1] == 1.0
@@ -187,9 +161,9 @@ def test_derivative_bounds_against_dense_numerical_derivatives(shape, tau):
     # numerical derivatives of the independent closed forms on a dense grid
     s = np.linspace(0, 1, 200001)
     r = None if tau is None else 1.0 / tau
-    f = reference_fraction(shape, s, r)
+    f = shapes_ref.fraction(shape, s, r, table=TABLE)
     d1 = np.gradient(f, s)
-    d2 = np.abs(reference_second_derivative(shape, s, r))
+    d2 = np.abs(shapes_ref.second_derivative(shape, s, r, table=TABLE))
     b1, b2 = shape_derivative_bounds(shape, duration_s=1.0, tau_s=tau, table=TABLE)
     # grid step 5e-6: the dense maxima sit within one step of the true ones (PCHIP's f'' jumps at knots)
     np.testing.assert_allclose(b1, np.abs(d1).max(), rtol=1e-4)
@@ -210,7 +184,7 @@ def _linear_bound_intervals(shape, amplitude, tol, r=None):
         # integral of sqrt(A r^2 e^{-rs} / (8 tol (1 - e^{-r}))) = that prefactor * (2/r)(1 - e^{-r/2})
         return math.sqrt(amplitude * r * r / (8 * tol * (1 - math.exp(-r)))) * 2 / r * (1 - math.exp(-r / 2))
     knots = [x for x, _ in TABLE] if shape == "table" else None
-    val, _ = integrate.quad(lambda s: math.sqrt(abs(amplitude * reference_second_derivative(shape, np.array(s), r))
+    val, _ = integrate.quad(lambda s: math.sqrt(abs(amplitude * shapes_ref.second_derivative(shape, np.array(s), r, table=TABLE))
                                                 / (8 * tol)), 0, 1, points=knots, limit=200)
     return val
 
@@ -225,7 +199,7 @@ def test_every_tick_within_tolerance_and_rows_near_bound(shape, tau_frac, model)
                              tolerance=tol, model=model)
     k = np.arange(k0, k0 + n + 1)
     r = None if tau_frac is None else 1 / tau_frac
-    ref = v0 + (v1 - v0) * reference_fraction(shape, (k - k0) / n, r)
+    ref = v0 + (v1 - v0) * shapes_ref.fraction(shape, (k - k0) / n, r, table=TABLE)
     out = reconstruct(rep.ticks, rep.values, k, model)
     err = np.abs(out - ref).max()
     assert err <= tol + ROUND
@@ -368,7 +342,7 @@ def test_sampling_contract_property(shape, tau_frac, n, log_tol, model, m):
     rep = sample_ramp_report(f, 0, n, TICK, tolerance=tol, model=model, min_interval_ticks=m)
     k = np.arange(n + 1)
     s = k / n
-    ref = 1.0 - 2.0 * reference_fraction(shape, s, 1 / tau_frac)
+    ref = 1.0 - 2.0 * shapes_ref.fraction(shape, s, 1 / tau_frac, table=TABLE)
     err = np.abs(reconstruct(rep.ticks, rep.values, k, model) - ref).max()
     assert rep.ticks[0] == 0 and rep.ticks[-1] == n and rep.values[-1] == -1.0
     gaps = np.diff(rep.ticks)

@@ -48,7 +48,7 @@ from scipy import constants as sc
 
 from ..findings import make
 from ..registry import check
-from .physics_traps import _cache, _gaussian_beams, _species
+from .physics_traps import _gaussian_beams, _species, per_shot_cache
 
 DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
 N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
@@ -288,15 +288,11 @@ def _drive_model(shot, act, sp, beam, waist_y, speed):
     return out
 
 
+@per_shot_cache(lambda shot, act: ("barrier", act.index, act.t0))
 def analyse(shot, act):
     """Cached analysis of one barrier action (see the module docstring), or None."""
     from ..physics.scattering import average_over_momentum, transmission
 
-    key = ("barrier", act.index, act.t0)
-    cache = _cache(shot)
-    if key in cache:
-        return cache[key]
-    cache[key] = None
     sp = _species(shot)
     beam = shot.rig.beams.get(act.args["beam"])
     if sp is None or shot.sample is None or beam is None or not beam.waist_m:
@@ -354,7 +350,6 @@ def analyse(shot, act):
         rep["N_T"] = atoms * rep["T"]
         rep["N_R"] = atoms * (1.0 - rep["T"])
     rep["floor"] = shot.sample.detection_floor if shot.sample.detection_floor is not None else DEFAULT_DETECTION_FLOOR
-    cache[key] = rep
     return rep
 
 

@@ -37,7 +37,7 @@ from scipy import optimize
 from ..findings import make
 from ..registry import check
 from ._values import value_at
-from .physics_traps import _cache, _species, cloud_at_image
+from .physics_traps import _species, cloud_at_image, per_shot_cache
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
 TWO_PI = 2 * math.pi
@@ -190,13 +190,9 @@ def _propagate(shot, amp_name, rabi_per_rad_s, t0, t1, detuning_hz, constant, pe
                            tol=1e-9).excited_population
 
 
+@per_shot_cache(lambda shot, act: ("state-pulse", act.index, act.t0))
 def pulse_analysis(shot, act):
     """Cached physics of one clock pulse: area, line, detuning, transfers (dict), or None."""
-    key = ("state-pulse", act.index, act.t0)
-    cache = _cache(shot)
-    if key in cache:
-        return cache[key]
-    cache[key] = None
     drive = shot.rig.drives.get(act.args["drive"])
     amp_name = amplitude_output(shot, drive) if drive else None
     if drive is None or amp_name is None or not act.t1 > act.t0:
@@ -232,7 +228,6 @@ def pulse_analysis(shot, act):
         rep["transfer"] = _propagate(*args, rep["detuning_hz"], rep["constant"], peak)
         rep["intended_transfer"] = (rep["transfer"] if rep["detuning_hz"] == rep["intended_detuning_hz"]
                                     else _propagate(*args, rep["intended_detuning_hz"], rep["constant"], peak))
-    cache[key] = rep
     return rep
 
 
@@ -385,15 +380,11 @@ def _sweeps(shot):
     return out
 
 
+@per_shot_cache(lambda shot, drive, seg: ("state-sweep", seg.output, seg.t0))
 def sweep_analysis(shot, drive, seg):
     """Crossing, Landau-Zener and Bloch transfer of one frequency sweep (dict), or None."""
     from ..physics.drive import bloch_propagate, landau_zener_probability
 
-    key = ("state-sweep", seg.output, seg.t0)
-    cache = _cache(shot)
-    if key in cache:
-        return cache[key]
-    cache[key] = None
     sp = _species(shot)
     pair = transition_pair(shot, sp) if sp else None
     if pair is None:
@@ -427,7 +418,6 @@ def sweep_analysis(shot, drive, seg):
                                                     seg.t0, seg.t1, tol=1e-7).excited_population
         except RuntimeError:
             pass
-    cache[key] = rep
     return rep
 
 
@@ -470,15 +460,11 @@ def _barriers(shot):
     return [a for a in shot.phys if a.kind == "barrier"]
 
 
+@per_shot_cache(lambda shot, act: ("state-barrier", act.index, act.t0))
 def barrier_drive_analysis(shot, act):
     """Two-photon drive of a modulated barrier: Rabi frequency, light shift, resonance, offset (dict) or None."""
     from ..physics.drive import two_photon_rabi_from_modulated_beam
 
-    key = ("state-barrier", act.index, act.t0)
-    cache = _cache(shot)
-    if key in cache:
-        return cache[key]
-    cache[key] = None
     f_mod = act.args.get("mod_frequency")
     sp = _species(shot)
     beam = shot.rig.beams.get(act.args["beam"])
@@ -493,7 +479,6 @@ def barrier_drive_analysis(shot, act):
     i = sp.nuclear_spin
     if pair is None or pair[0][1] != pair[1][1] or pair[0][0] == pair[1][0]:
         rep["reason"] = why or "the modulated-beam drive model couples the two hyperfine levels at equal mF only"
-        cache[key] = rep
         return rep
     m = pair[0][1]
     lower, upper = (int(round(i - 0.5)), m), (int(round(i + 0.5)), m)
@@ -506,7 +491,6 @@ def barrier_drive_analysis(shot, act):
                                                 polarization=1.0, atom=sp)
     except ValueError as exc:
         rep["reason"] = str(exc)
-        cache[key] = rep
         return rep
     from ..physics.zeeman import transition_frequency
 
@@ -517,7 +501,6 @@ def barrier_drive_analysis(shot, act):
     rep.update(i_peak=i_peak, rabi_hz=d.rabi_rad_s / TWO_PI, light_shift_hz=d.differential_light_shift_hz,
                bare_hz=abs(nu), resonance_hz=res, offset_hz=f_mod - res, fourier_hz=fourier,
                tolerance_hz=max(d.rabi_rad_s / TWO_PI, fourier))
-    cache[key] = rep
     return rep
 
 
@@ -589,15 +572,11 @@ def _pushes(shot):
     return [a for a in shot.phys if a.kind == "push"]
 
 
+@per_shot_cache(lambda shot, act: ("state-push", act.index, act.t0))
 def push_analysis(shot, act):
     """Kick velocity of a push (dict: velocity m/s signed, moment or photons, arrival at target), or None."""
     from ..physics.kinematics import gradient_kick_velocity, optical_kick, time_to_reach
 
-    key = ("state-push", act.index, act.t0)
-    cache = _cache(shot)
-    if key in cache:
-        return cache[key]
-    cache[key] = None
     sp = _species(shot)
     if sp is None:
         return None
@@ -642,7 +621,6 @@ def push_analysis(shot, act):
         nxt = [b for b in _barriers(shot) if b.t0 >= act.t1 - 1e-12]
         if nxt:
             rep["barrier"] = min(nxt, key=lambda b: b.t0)
-    cache[key] = rep
     return rep
 
 
@@ -721,16 +699,12 @@ def push_too_late(shot):
 
 # --------------------------------------------------------------------------- Stern-Gerlach separation
 
+@per_shot_cache(lambda shot, act: ("state-separate", act.index, act.t0))
 def separation_analysis(shot, act):
     """Separation of the two components at the next image, against their widths (dict) or None."""
     from ..physics.kinematics import components_resolved, stern_gerlach_separation
     from ..physics.zeeman import magnetic_moment
 
-    key = ("state-separate", act.index, act.t0)
-    cache = _cache(shot)
-    if key in cache:
-        return cache[key]
-    cache[key] = None
     sp = _species(shot)
     if sp is None or _sample_state(shot) is None:
         return None
@@ -759,7 +733,6 @@ def separation_analysis(shot, act):
         sigma = cloud["size"] / math.sqrt(7) if cloud["size_kind"].startswith("Thomas") else cloud["size"]
         rep.update(sigma=sigma, combined=math.sqrt(2) * sigma,
                    resolved=bool(components_resolved(rep["separation"], sigma, sigma, SEPARATION_WIDTHS)))
-    cache[key] = rep
     return rep
 
 
@@ -835,16 +808,12 @@ def _images(shot):
     return [a for a in shot.phys if a.kind == "image"]
 
 
+@per_shot_cache(lambda shot, act: ("state-probe", act.index, act.t0))
 def probe_analysis(shot, act):
     """Saturation, photons per atom, Doppler shift and recoil blur of an image (dict) or None."""
     from ..physics import imaging as im
     from ..physics.kinematics import recoil_velocity
 
-    key = ("state-probe", act.index, act.t0)
-    cache = _cache(shot)
-    if key in cache:
-        return cache[key]
-    cache[key] = None
     sp = _species(shot)
     setup = shot.rig.imaging.get(act.args["setup"])
     beam = shot.rig.beams.get(setup.probe_beam) if setup and setup.probe_beam else None
@@ -866,7 +835,6 @@ def probe_analysis(shot, act):
                blur=float(im.recoil_blur(n, v_rec, dur)))
     if setup.pixel_size_m and setup.magnification:
         rep["pixel"] = float(im.pixel_size_object_plane(setup.pixel_size_m, setup.magnification))
-    cache[key] = rep
     return rep
 
 

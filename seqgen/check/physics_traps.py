@@ -3,6 +3,7 @@ gravity, and the cloud at imaging after release."""
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -46,7 +47,7 @@ def _gaussian_beams(shot, times):
 
 def trap_stage(shot, t0, t1, n=N_SAMPLES):
     """Frequencies (rad/s, shape (n, 3)), effective depths with gravity (J) and depths at n times in [t0, t1]."""
-    from ..physics.optical import effective_depth_with_gravity, trap_depth, trap_frequencies
+    from ..physics.optical import effective_depth_with_gravity, trap_frequencies
 
     sp = _species(shot)
     # just before t1: a release at the ramp's end time must not count as part of the ramp
@@ -69,17 +70,49 @@ def _trap_ramps(shot):
     return [a for a in shot.phys if a.kind == "trap_ramp"]
 
 
+_CACHES: dict = {}
+
+
+def _cache(shot) -> dict:
+    # one cache per shot object, so the report view and the checks share work
+    k = id(shot)
+    if k not in _CACHES or _CACHES[k][0] is not shot:
+        _CACHES.clear()
+        _CACHES[k] = (shot, {})
+    return _CACHES[k][1]
+
+
+def per_shot_cache(key_of):
+    """Cache a per-action analysis for the current shot under the key `key_of(*args)`.
+
+    The checks and the `show --physics` report ask for the same analyses; this
+    computes each once per shot. A re-entrant call sees None instead of recursing.
+    """
+
+    def wrap(func):
+        @functools.wraps(func)
+        def cached(shot, *args):
+            cache = _cache(shot)
+            key = key_of(shot, *args)
+            if key not in cache:
+                cache[key] = None
+                cache[key] = func(shot, *args)
+            return cache[key]
+
+        return cached
+
+    return wrap
+
+
+@per_shot_cache(lambda shot, act: ("trap", act.index))
 def _stage_report(shot, act):
     """Cached per-ramp physics: frequencies, depth, eta, excitation."""
     from ..physics.adiabatic import adiabaticity_parameter, ermakov_final_energy_ratio
 
-    key = ("trap", act.index)
-    cache = _cache(shot)
-    if key in cache:
-        return cache[key]
-    sp = _species(shot)
     times, omegas, depth_g = trap_stage(shot, act.t0, act.t1)
     rep = {"times": times, "omegas": omegas, "depth_g": depth_g, "excitation": None, "adiabaticity": None}
+    if shot.sample is not None and shot.sample.temperature_k:
+        rep["eta"] = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
     if np.all(np.isfinite(omegas)) and np.all(depth_g > 0):
         rep["adiabaticity"] = float(np.max(adiabaticity_parameter(times, omegas.T, axis=-1)))
         exc = []
@@ -88,9 +121,6 @@ def _stage_report(shot, act):
             # tests/physics/test_adiabatic.py); integrating thousands of trap periods would add nothing
             rep["excitation"] = [rep["adiabaticity"] ** 2] * 3
             rep["excitation_is_bound"] = True
-            cache[key] = rep
-            if shot.sample is not None and shot.sample.temperature_k:
-                rep["eta"] = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
             return rep
         for axis in range(3):
             w = omegas[:, axis]
@@ -103,23 +133,9 @@ def _stage_report(shot, act):
             except (ValueError, RuntimeError):
                 exc.append(float("nan"))
         rep["excitation"] = exc
-    if shot.sample is not None and shot.sample.temperature_k:
-        rep["eta"] = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
-    cache[key] = rep
-    del sp
     return rep
 
 
-_CACHES: dict = {}
-
-
-def _cache(shot) -> dict:
-    # one cache per shot object, so the report view and the checks share work
-    k = id(shot)
-    if k not in _CACHES or _CACHES[k][0] is not shot:
-        _CACHES.clear()
-        _CACHES[k] = (shot, {})
-    return _CACHES[k][1]
 
 
 @check("physics.trap-lost", "error", "optical dipole potential: Adv. At. Mol. Opt. Phys. 42, 95 (2000); "

@@ -68,7 +68,8 @@ def write_csv(path: Path, table: DeviceTable) -> None:
         np.savetxt(fh, data, fmt=fmt, delimiter=",")
 
 
-def _sha(path: Path) -> str:
+def file_sha256(path: Path) -> str:
+    """sha256 of a file, read in 1 MiB chunks."""
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         for chunk in iter(lambda: fh.read(1 << 20), b""):
@@ -118,14 +119,14 @@ def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: l
             entry = {}
             npz = tmp / f"{t.device}.npz"
             write_npz(npz, table_arrays(t))
-            entry["npz"] = {"path": npz.name, "sha256": _sha(npz)}
+            entry["npz"] = {"path": npz.name, "sha256": file_sha256(npz)}
             written += 1
             if _crash_after is not None and written > _crash_after:
                 raise RuntimeError("simulated crash during build")
             if len(t.ticks) <= csv_row_limit:
                 csv = tmp / f"{t.device}.csv"
                 write_csv(csv, t)
-                entry["csv"] = {"path": csv.name, "sha256": _sha(csv)}
+                entry["csv"] = {"path": csv.name, "sha256": file_sha256(csv)}
             files[t.device] = entry
         man = manifest(shot, compiled, findings, files)
         (tmp / "manifest.json").write_text(json.dumps(man, indent=2, sort_keys=True) + "\n", encoding="utf-8")
