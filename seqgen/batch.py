@@ -8,7 +8,10 @@
 Shots share work: the sequence, the files it uses and the rig are parsed and
 validated once, in this process, and handed to each worker once (not per shot).
 Each shot is then resolved with its scan values as overrides and preflighted
-through `seqgen.pipeline.preflight(..., sources=...)`.
+through `seqgen.pipeline.preflight_resolved`. Within each worker process the
+content-keyed caches of the trap analyses (physics_traps._held) and of the
+sampled ramps (compile.tables.RAMP_CACHE) carry over from shot to shot, so
+blocks whose inputs the scan does not change are computed once per worker.
 
 Execution: a local process pool over the machine's cores by default
 (concurrent.futures), or a dask.distributed cluster (`cluster="tcp://host:8786"`,
@@ -227,7 +230,7 @@ def run_task(src: Sources, task: _Task):
     Returns (ShotResult, payload): payload is (shot, compiled, findings) when
     the build is to be written by the caller (cluster path), else None.
     """
-    from .pipeline import preflight
+    from .pipeline import preflight_resolved
 
     try:
         if task.crash == "raise":
@@ -235,12 +238,12 @@ def run_task(src: Sources, task: _Task):
         if task.crash == "exit":
             os._exit(3)
         overrides = dict(zip(task.names, task.values))
-        shot, _ = resolve(src, overrides)
+        shot, rf = resolve(src, overrides)
         key = shot_key(_label(shot, overrides)) if shot is not None else None
         base = ShotResult(task.index, task.written_index, task.values, (), key)
         if key is not None and task.reuse_key == key:
             return replace(base, reused=True), None
-        res = preflight(src.main.file, sources=src, overrides=overrides)
+        res = preflight_resolved(src, shot, rf)
         result = replace(base, findings=tuple(res.findings), input_sha256=key if res.shot is not None else None)
         if not task.build or not result.ok or res.compiled is None:
             return result, None

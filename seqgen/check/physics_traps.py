@@ -45,10 +45,23 @@ def _gaussian_beams(shot, times):
     return out
 
 
+@functools.lru_cache(maxsize=4096)
+def _held(species, beams: tuple):
+    """Depth with gravity (J) and trap frequencies (rad/s or None) of one set of beams.
+
+    Keyed on content (species and the beams' powers and geometry), not on the
+    shot: the shots of a scan, and the flat parts of a ramp, reuse each other's
+    minimisations."""
+    from ..physics.optical import held_trap
+
+    try:
+        return held_trap(species, beams)
+    except (ValueError, RuntimeError, np.linalg.LinAlgError):
+        return 0.0, None
+
+
 def trap_stage(shot, t0, t1, n=N_SAMPLES):
     """Frequencies (rad/s, shape (n, 3)), effective depths with gravity (J) and depths at n times in [t0, t1]."""
-    from ..physics.optical import effective_depth_with_gravity, trap_frequencies
-
     sp = _species(shot)
     # just before t1: a release at the ramp's end time must not count as part of the ramp
     times = np.linspace(t0, t1 - 1e-9 * max(1.0, t1 - t0), n)
@@ -57,12 +70,9 @@ def trap_stage(shot, t0, t1, n=N_SAMPLES):
     for i, beams in enumerate(_gaussian_beams(shot, times)):
         if not beams:
             continue
-        try:
-            depth_g[i] = effective_depth_with_gravity(sp, beams)
-            if depth_g[i] > 0:
-                omegas[i] = trap_frequencies(sp, beams)
-        except (ValueError, RuntimeError, np.linalg.LinAlgError):
-            depth_g[i] = 0.0
+        depth_g[i], w = _held(sp, tuple(beams))
+        if w is not None:
+            omegas[i] = w
     return times, omegas, depth_g
 
 
@@ -80,6 +90,12 @@ def _cache(shot) -> dict:
         _CACHES.clear()
         _CACHES[k] = (shot, {})
     return _CACHES[k][1]
+
+
+def clear_caches() -> None:
+    """Drop the per-shot analyses and the content-keyed trap minimisations."""
+    _CACHES.clear()
+    _held.cache_clear()
 
 
 def per_shot_cache(key_of):
@@ -231,12 +247,7 @@ def cloud_at_image(shot, img):
     if shot.sample.trap_frequencies_hz:
         omegas = 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz)
     elif beams:
-        from ..physics.optical import trap_frequencies
-
-        try:
-            omegas = trap_frequencies(sp, beams)
-        except (ValueError, RuntimeError):
-            omegas = None
+        omegas = _held(sp, tuple(beams))[1]
     if omegas is None or not np.all(np.isfinite(omegas)):
         return None
     drop = 0.5 * 9.80665 * tof ** 2

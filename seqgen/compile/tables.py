@@ -123,7 +123,7 @@ def output_rows(out: Output, segments, device, findings: list, spans: dict):
             if k1 <= k0:
                 k1 = k0 + 1
             tol = seg.tolerance if seg.tolerance is not None else out.sample_tolerance
-            rt, rv, err, limited = _sample_on_grid(_value_function(out, seg, lat), k0, k1, device, tol, linear)
+            rt, rv, err, limited = _sampled_ramp(out, seg, lat, k0, k1, device, tol, linear)
             spans[(seg.block, out.name, seg.t0)] = (k0, k1)
             if limited and seg.t1 - seg.t0 >= device.min_interval_ticks * tick:  # shorter: timing.ramp-too-fast
                 findings.append(_undersampled(out, seg, device, err, tol, len(rt)))
@@ -155,6 +155,56 @@ def _undersampled(out: Output, seg, device, err: float, tol: float, rows: int) -
                      f"times longer, loosen its tolerance to {err:.3g}{unit}, "
                      "or use a device with a shorter minimum interval",
                 data={"max_error": err, "tolerance": tol, "rows": rows, "min_interval_s": dt})
+
+
+class _RampCache:
+    """Sampled ramps keyed on everything the sampling depends on (output, segment,
+    latency, tick span, device, tolerance), so the shots of a scan, which mostly
+    repeat the same ramps, sample each once per process. Bounded by total rows;
+    the cached arrays are read-only."""
+
+    MAX_ROWS = 1 << 21  # about 32 MB of ticks and values
+
+    def __init__(self):
+        self._items: dict = {}
+        self._rows = 0
+
+    def get(self, key):
+        return self._items.get(key)
+
+    def put(self, key, value):
+        rows = len(value[0])
+        if rows > self.MAX_ROWS // 8:
+            return
+        while self._items and self._rows + rows > self.MAX_ROWS:
+            old = self._items.pop(next(iter(self._items)))  # oldest first
+            self._rows -= len(old[0])
+        for a in value[:2]:
+            a.setflags(write=False)
+        self._items[key] = value
+        self._rows += rows
+
+    def clear(self):
+        self._items.clear()
+        self._rows = 0
+
+
+RAMP_CACHE = _RampCache()
+
+
+def _sampled_ramp(out: Output, seg, lat: float, k0: int, k1: int, device, tol: float, linear: bool):
+    key = (out, seg, lat, k0, k1, device, tol, linear)
+    try:
+        hit = RAMP_CACHE.get(key)
+    except TypeError:  # an unhashable field (never in resolved shots): sample without the cache
+        key, hit = None, None
+    if hit is not None:
+        return hit
+    rt, rv, err, limited = _sample_on_grid(_value_function(out, seg, lat), k0, k1, device, tol, linear)
+    value = (np.asarray(rt, dtype=np.int64), np.asarray(rv, dtype=float), err, limited)
+    if key is not None:
+        RAMP_CACHE.put(key, value)
+    return value
 
 
 def _sample_on_grid(value_at, k0: int, k1: int, device, tol: float, linear: bool):

@@ -8,7 +8,8 @@ throughout: W, m, J, s, rad/s. Positions are (..., 3) arrays in metres;
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import functools
+from dataclasses import dataclass, field
 from typing import Iterable, Sequence
 
 import numpy as np
@@ -31,6 +32,12 @@ def _lines(species: Species) -> tuple[np.ndarray, np.ndarray]:
     omega0 = 2 * np.pi * _C / np.array([species.d1_wavelength_m, species.d2_wavelength_m])
     gamma = 2 * np.pi * np.array([species.d1_linewidth_hz, species.d2_linewidth_hz])
     return omega0, gamma
+
+
+@functools.lru_cache(maxsize=256)
+def _u_per_i_scalar(species: Species, wavelength_m: float) -> float:
+    # the trap minimiser evaluates the potential thousands of times for a handful of wavelengths
+    return float(dipole_potential_per_intensity(species, wavelength_m))
 
 
 def dipole_potential_per_intensity(species: Species, wavelength_m) -> np.ndarray | float:
@@ -120,6 +127,9 @@ class GaussianBeam:
     focus_m: tuple = (0.0, 0.0, 0.0)
     waist2_m: float | None = None
     waist_axis: tuple | None = None
+    # derived on construction (rows: direction, waist axis, third axis; Rayleigh lengths of both waists)
+    _frame: np.ndarray = field(init=False, repr=False, compare=False, hash=False, default=None)
+    _rayleigh: tuple = field(init=False, repr=False, compare=False, hash=False, default=None)
 
     def __post_init__(self):
         if not (self.power_w >= 0 and self.waist_m > 0 and self.wavelength_m > 0):
@@ -137,6 +147,13 @@ class GaussianBeam:
         object.__setattr__(self, "direction", tuple(k))
         object.__setattr__(self, "waist_axis", tuple(e1 / np.linalg.norm(e1)))
         object.__setattr__(self, "focus_m", tuple(np.asarray(self.focus_m, dtype=float).reshape(3)))
+        e1 = np.asarray(self.waist_axis)
+        frame = np.array([k, e1, np.cross(k, e1)])
+        frame.setflags(write=False)
+        object.__setattr__(self, "_frame", frame)
+        w1, w2 = self.waists
+        object.__setattr__(self, "_rayleigh", (rayleigh_length(w1, self.wavelength_m),
+                                               rayleigh_length(w2, self.wavelength_m)))
 
     @property
     def waists(self) -> tuple[float, float]:
@@ -151,13 +168,11 @@ class GaussianBeam:
         I = 2P / (pi w1(s) w2(s)) exp(-2 u^2/w1(s)^2 - 2 v^2/w2(s)^2),
         w_j(s) = w_j sqrt(1 + (s/z_Rj)^2) (any optics text; ODT review)."""
         d = np.asarray(points_xyz, dtype=float) - np.asarray(self.focus_m)
-        k = np.asarray(self.direction)
-        e1 = np.asarray(self.waist_axis)
-        e2 = np.cross(k, e1)
-        s, u, v = d @ k, d @ e1, d @ e2
+        s, u, v = np.moveaxis(d @ self._frame.T, -1, 0)
         w1, w2 = self.waists
-        ws1 = w1 * np.sqrt(1 + (s / rayleigh_length(w1, self.wavelength_m)) ** 2)
-        ws2 = w2 * np.sqrt(1 + (s / rayleigh_length(w2, self.wavelength_m)) ** 2)
+        z1, z2 = self._rayleigh
+        ws1 = w1 * np.sqrt(1 + (s / z1) ** 2)
+        ws2 = w2 * np.sqrt(1 + (s / z2) ** 2)
         return 2 * self.power_w / (np.pi * ws1 * ws2) * np.exp(-2 * u**2 / ws1**2 - 2 * v**2 / ws2**2)
 
 
@@ -172,7 +187,7 @@ def _as_beams(beams) -> tuple[GaussianBeam, ...]:
 
 def beam_potential(species: Species, beam: GaussianBeam | Iterable[GaussianBeam], points_xyz) -> np.ndarray:
     """Light-shift potential (J) of one beam or the sum of several (incoherent) at points (..., 3)."""
-    return sum(dipole_potential_per_intensity(species, b.wavelength_m) * b.intensity(points_xyz)
+    return sum(_u_per_i_scalar(species, float(b.wavelength_m)) * b.intensity(points_xyz)
                for b in _as_beams(beam))
 
 
@@ -339,6 +354,26 @@ def effective_depth_with_gravity(species: Species, beams, vertical=(0, 0, 1)) ->
         m = find_trap_minimum(species, beams, gravity=True, vertical=up)
     except ValueError:
         return 0.0
+    return _depth_below_minimum(species, beams, m, up)
+
+
+def held_trap(species: Species, beams, vertical=(0, 0, 1)) -> tuple[float, np.ndarray | None]:
+    """(effective depth with gravity in J, trap angular frequencies or None) from one minimisation.
+
+    The same numbers as effective_depth_with_gravity and trap_frequencies, for
+    callers that need both (the trap-stage checks follow a ramp at many times).
+    """
+    beams = _as_beams(beams)
+    up = _unit(vertical)
+    try:
+        m = find_trap_minimum(species, beams, gravity=True, vertical=up)
+    except ValueError:
+        return 0.0, None
+    depth = _depth_below_minimum(species, beams, m, up)
+    return depth, (m.omegas_rad_s if depth > 0 else None)
+
+
+def _depth_below_minimum(species: Species, beams, m: TrapMinimum, up: np.ndarray) -> float:
     reach = 6 * max(max(b.waists) for b in beams)
     ref = m.position_m
 

@@ -3,7 +3,8 @@
 Scans the demo scattering sequence (sequences/na23_barrier_scatter.yaml) over
 N values of the time of flight (10 ms .. 16 ms) and prints, measured in this run:
 - the single-shot time: one `preflight` of the file (load + validate + resolve
-  + checks + compile, in process, imports excluded), median of 3;
+  + checks + compile, in process, imports excluded, the content-keyed caches
+  emptied first, as in a fresh `seqgen check`), median of 3;
 - the scan time: plan_scan + run_scan over P worker processes (default: every
   core), check only, or also writing every build with --build;
 - shots per second, and the ratio of the scan time to N x single-shot time
@@ -31,7 +32,7 @@ ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
 from seqgen.batch import default_jobs, plan_scan, run_scan  # noqa: E402
-from seqgen.pipeline import preflight  # noqa: E402
+from seqgen.pipeline import clear_shared_caches, preflight  # noqa: E402
 
 DEMO = ROOT / "sequences" / "na23_barrier_scatter.yaml"
 
@@ -78,6 +79,7 @@ def main() -> None:
         preflight(path)  # warm-up: lazy imports, caches of unit texts
         singles, cpus = [], []
         for _ in range(3):
+            clear_shared_caches()  # a single check starts cold, as a fresh `seqgen check` process does
             t, c = time.perf_counter(), time.process_time()
             res = preflight(path)
             singles.append(time.perf_counter() - t)
