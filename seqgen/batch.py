@@ -557,12 +557,20 @@ def _qty_json(q: Qty) -> dict:
     return {"value": q.value, "unit": display_unit(q.dims)}
 
 
-def shot_record(plan: ScanPlan, r: ShotResult) -> dict:
+def _shot_head(plan: ScanPlan, r: ShotResult) -> dict:
+    """What names a shot in both the scan manifest and the --json report."""
     return {
         "index": r.index,
         "written_index": r.written_index,
         "params": {n: _qty_json(q) for n, q in zip(plan.names, r.values)},
         "input_sha256": r.input_sha256,
+    }
+
+
+def shot_record(plan: ScanPlan, r: ShotResult) -> dict:
+    """One shot of OUT/scan.json (schemas/scan.schema.json)."""
+    return {
+        **_shot_head(plan, r),
         "status": "built" if r.folder else "refused",
         "build": r.folder,
         "manifest_sha256": r.manifest_sha256,
@@ -717,12 +725,10 @@ def _runs_text(name: str, dims, vals: list, fire: set, quiet: bool) -> str:
 
 
 def shot_json(plan: ScanPlan, r: ShotResult) -> dict:
+    """One shot of the `seqgen check --json` report of a scan."""
     return {
-        "index": r.index,
-        "written_index": r.written_index,
-        "params": {n: _qty_json(q) for n, q in zip(plan.names, r.values)},
+        **_shot_head(plan, r),
         "ok": r.ok,
-        "input_sha256": r.input_sha256,
         "build": r.folder,
         "reused": r.reused,
         "summary": summary(r.findings),

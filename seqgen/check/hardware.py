@@ -34,6 +34,30 @@ def output_range(shot):
                 break
 
 
+@check("hardware.outside-calibration", "warning", "the rig file's calibration table (measured points)")
+def outside_calibration(shot):
+    """A value on a channel calibrated by a table lies beyond the table's
+    measured points. There seqgen continues the calibration as a straight
+    line with the slope of the table's end interval, which is a guess: an AOM's
+    diffraction efficiency saturates, a photodiode clips. Measure the
+    calibration out to the values the sequence uses, or stay inside the
+    table."""
+    for s in shot.segments:
+        out = shot.rig.outputs[s.output]
+        cal = out.calibration
+        if cal is None or cal.kind != "table":
+            continue
+        lo, hi = min(cal.table_phys), max(cal.table_phys)
+        slack = 1e-12 * max(1.0, abs(lo), abs(hi))
+        for v in _extremes(s):
+            if v < lo - slack or v > hi + slack:
+                yield make("hardware.outside-calibration", f"'{out.name}' is set to {v:.6g} {out.phys_unit}, outside its "
+                           f"calibration table [{lo:.6g}, {hi:.6g}] {out.phys_unit}: the output value is extrapolated",
+                           s.pos, block=s.block, time_s=s.t0,
+                           hint="extend the calibration table in the rig file to cover this value, or stay inside it")
+                break
+
+
 @check("safety.hard-limit", "error", "the rig file's hard limits (the lab's safety limits for coils and lasers)")
 def hard_limits(shot):
     """A physical value beyond a hard limit of the rig (coil current, laser

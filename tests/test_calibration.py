@@ -1,0 +1,64 @@
+"""Calibration maps: the table cubic is scipy's monotone PCHIP (Fritsch-Carlson, SIAM J. Numer. Anal. 17,
+238 (1980)), its inverse returns the physical value, and beyond the table the map stays monotonic."""
+
+import numpy as np
+import pytest
+from scipy.interpolate import PchipInterpolator
+
+from seqgen.calibration import to_output, to_physical
+from seqgen.model import Calibration, Output
+from seqgen.pipeline import preflight
+
+from .conftest import SEQUENCES
+
+TABLES = [
+    ((0.0, 0.5, 1.0, 2.0, 3.0, 4.5), (0.0, 1.1, 2.05, 3.9, 5.8, 8.6)),  # rising, like the demo's cross_b
+    ((0.0, 1.0, 2.0, 4.0), (5.0, 3.0, 1.0, 0.2)),  # falling output
+    ((4.0, 2.0, 1.0, 0.0), (0.0, 0.5, 3.0, 4.0)),  # physical values written descending
+]
+
+
+def _out(tp, to):
+    cal = Calibration("W", (0,) * 7, "table", table_phys=tp, table_out=to)
+    return Output("o", "o", "d", "analog", "V", -10.0, 10.0, 16, 0.0, "W", (0,) * 7, calibration=cal)
+
+
+@pytest.mark.parametrize("tp,to", TABLES)
+def test_inside_the_table_the_map_is_scipy_pchip(tp, to):
+    order = np.argsort(tp)
+    ref = PchipInterpolator(np.asarray(tp)[order], np.asarray(to)[order])
+    x = np.linspace(min(tp), max(tp), 1001)
+    assert to_output(_out(tp, to), x) == pytest.approx(ref(x), rel=1e-14, abs=1e-14)
+
+
+@pytest.mark.parametrize("tp,to", TABLES)
+def test_to_physical_inverts_to_output_inside_and_beyond(tp, to):
+    out = _out(tp, to)
+    span = max(tp) - min(tp)
+    x = np.linspace(min(tp) - 0.3 * span, max(tp) + 0.3 * span, 4001)
+    y = to_output(out, x)
+    d = np.diff(y)
+    assert np.all(d > 0) or np.all(d < 0)  # monotonic everywhere, so the inverse exists
+    back = to_physical(out, y)
+    # backward error at rounding level; the forward error is larger only where the cubic is flat (PCHIP may set
+    # an end derivative to zero, where x is determined only to about sqrt(rounding))
+    assert to_output(out, back) == pytest.approx(y, abs=1e-13 * np.ptp(to))
+    assert back == pytest.approx(x, abs=1e-7 * span)
+    assert to_physical(out, np.asarray(to)) == pytest.approx(np.asarray(tp), abs=1e-7 * span)
+    assert isinstance(to_physical(out, float(to[1])), float)
+
+
+def test_beyond_the_table_the_end_intervals_continue_as_straight_lines():
+    tp, to = TABLES[0]
+    out = _out(tp, to)
+    slope = (to[-1] - to[-2]) / (tp[-1] - tp[-2])
+    assert float(to_output(out, 5.0)) == pytest.approx(to[-1] + 0.5 * slope, rel=1e-14)
+    slope0 = (to[1] - to[0]) / (tp[1] - tp[0])
+    assert float(to_output(out, -0.1)) == pytest.approx(-0.1 * slope0, rel=1e-14)
+
+
+def test_a_value_beyond_the_table_is_a_warning_at_its_line():
+    res = preflight(SEQUENCES / "faults" / "outside_calibration.yaml")
+    hits = [f for f in res.findings if f.code == "hardware.outside-calibration"]
+    assert [(f.severity, f.line) for f in hits] == [("warning", 8)]
+    assert "4.8 W" in hits[0].message and "[0, 4.5] W" in hits[0].message
