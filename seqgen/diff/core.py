@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from . import outputs, preflight, rig, timeline
+from . import outputs, preflight, rig, scan, timeline
 from .inputs import load_version
 from .model import LEVELS, Change, DiffReport, Version
 
@@ -23,6 +23,10 @@ def diff_versions(old: Version, new: Version) -> DiffReport:
         pchanges, changed_params = timeline.param_changes(old, new)
         changes += pchanges
     if both_shots:
+        changes += scan.scan_changes(old.scan, new.scan)
+        if old.scan is not None or new.scan is not None:
+            rep.notes.append("a scanned sequence is compared at its base values (`value:` of each scanned param); "
+                             "the scans themselves under 'scan-*'")
         changes += timeline.setting_changes(old.shot, new.shot)
         bchanges, renames = timeline.block_changes(old, new, changed_params)
         changes += bchanges

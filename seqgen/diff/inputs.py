@@ -96,10 +96,21 @@ def _sequence(path: str, text: str | None, label: str, kind: str) -> Version:
         v.devices = {d.name: {"tick_s": d.tick_s, "output_model": d.output_model} for d in rig.devices.values()}
         v.columns = {o.name: Column(o.name, o.device, o.kind, o.unit, o) for o in rig.outputs.values()}
         v.duration_s = res.shot.duration_s
+        v.scan = _scan_plan(res.sources, res.shot)
     if res.compiled is not None:
         v.tables = tuple(res.compiled.tables)
         v.duration_s = res.compiled.duration_s
     return v
+
+
+def _scan_plan(src, base_shot):
+    """The version's scan plan, or None (no scan, or one that does not expand: its findings say why)."""
+    from ..resolve.scan import expand, has_scans
+
+    if src is None or not has_scans(src):
+        return None
+    plan, _ = expand(src, base_shot)
+    return plan
 
 
 def load_build(folder: Path, label: str) -> Version:

@@ -66,6 +66,7 @@ class Version:
     params: dict = field(default_factory=dict)  # name -> (value SI, unit text, text as written)
     duration_s: float | None = None
     text: str | None = None  # the main file's text (sequence inputs)
+    scan: object = None  # resolve.scan.ScanPlan when the sequence scans params (the shot is then the base shot)
 
     @property
     def resolved(self) -> bool:
