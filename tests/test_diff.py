@@ -349,6 +349,20 @@ def test_not_a_build_folder(tmp_path, capsys):
     assert "manifest.json" in capsys.readouterr().err
 
 
+def test_a_scan_build_folder_points_to_its_shots(tmp_path, capsys):
+    old = _version_folder(tmp_path, "old", "small.yaml", {"small.yaml": [["  tof: 5 ms", "  tof: {value: 5 ms, scan: [4 ms, 6 ms]}"]]})
+    assert main(["build", str(old), "-o", str(tmp_path / "b")]) == 0
+    capsys.readouterr()
+    assert main(["diff", str(tmp_path / "b"), str(tmp_path / "b")]) == 2
+    err = capsys.readouterr().err
+    assert "build of a scan" in err and "shot_0000" in err
+    # one shot's folder is an ordinary build: the two shots differ by the 2 ms of flight (the edit above)
+    assert main(["diff", str(tmp_path / "b" / "shot_0000"), str(tmp_path / "b" / "shot_0001"), "--json"]) == 1
+    out = json.loads(capsys.readouterr().out)
+    dur = [c for c in out["changes"] if c["kind"] == "duration-changed"]
+    assert dur and dur[0]["data"]["new_s"] - dur[0]["data"]["old_s"] == pytest.approx(0.002, abs=1e-9)
+
+
 def test_exit_codes_and_json(tmp_path, capsys):
     old = _version_folder(tmp_path, "old", "small.yaml")
     new = _version_folder(tmp_path, "new", "small.yaml", {"small.yaml": [["tof: 5 ms", "tof: 6 ms"]]})

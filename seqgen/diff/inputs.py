@@ -118,6 +118,11 @@ def load_build(folder: Path, label: str) -> Version:
     try:
         man = json.loads(man_path.read_text(encoding="utf-8"))
     except FileNotFoundError:
+        if (folder / "scan.json").is_file():
+            shots = sorted(p.name for p in folder.glob("shot_*") if p.is_dir())
+            first = f" (e.g. {folder / shots[0]})" if shots else ""
+            raise DiffInputError(f"{label} is the build of a scan (scan.json, one folder per shot): diff one shot's "
+                                 f"build folder{first}, or the two sequence files to compare the scans") from None
         raise DiffInputError(f"{label} is a folder without manifest.json (not a seqgen build)") from None
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise DiffInputError(f"cannot read {man_path}: {exc}") from None
