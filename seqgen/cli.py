@@ -57,13 +57,30 @@ def _exit_code(res, file) -> int:
     return EXIT_OK if res.ok else EXIT_FINDINGS
 
 
+def _cannot_run(exc) -> int:
+    """Say on stderr why the command could not run; its exit code (2)."""
+    print(f"seqgen: {exc}", file=sys.stderr)
+    return EXIT_CANNOT_RUN
+
+
+def _writing(what: str, action, refused: tuple = ()):
+    """Run `action()`, which writes `what`: (None, its result), or (EXIT_CANNOT_RUN, None) after one line on
+    stderr: a refusal (one of the `refused` exceptions, e.g. the output exists without --force) in its own
+    words, an OSError (a full disk, a read-only folder) as 'cannot write WHAT: reason'."""
+    try:
+        return None, action()
+    except refused as exc:
+        return _cannot_run(exc), None
+    except OSError as exc:
+        return _cannot_run(f"cannot write {what}: {exc.strerror or exc}"), None
+
+
 def cmd_check(args) -> int:
     from .pipeline import preflight
 
     report = getattr(args, "report", None)
     if report and Path(report).exists() and not args.force:
-        print(f"seqgen: {report} exists; use --force to replace it", file=sys.stderr)
-        return EXIT_CANNOT_RUN
+        return _cannot_run(f"{report} exists; use --force to replace it")
     scan = _plan_scan(args)
     if scan.is_scan:
         code = _scan_run(scan, args, build=False)
@@ -83,14 +100,10 @@ def _write_check_report(path, res, args, scanned: bool = False) -> int:
     """check --report FILE: the self-contained HTML preflight report (seqgen/emit/report.py)."""
     from .emit.report import OutputExists, write_report
 
-    try:
-        write_report(path, res, args.file, force=args.force, scanned=scanned)
-    except OutputExists as exc:
-        print(f"seqgen: {exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
-    except OSError as exc:
-        print(f"seqgen: cannot write the report to {path}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
+    failed, _ = _writing(f"the report to {path}", lambda: write_report(path, res, args.file, force=args.force,
+                                                                        scanned=scanned), (OutputExists,))
+    if failed:
+        return failed
     print(f"report written to {path}", file=sys.stderr if _format(args) != "text" else sys.stdout)
     return EXIT_OK
 
@@ -109,11 +122,9 @@ def cmd_plot(args) -> int:
         t_from = parse_time(args.t_from) if args.t_from is not None else None
         t_to = parse_time(args.t_to) if args.t_to is not None else None
     except PlotError as exc:
-        print(f"seqgen: {exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
+        return _cannot_run(exc)
     if Path(args.output).exists() and not args.force:
-        print(f"seqgen: {args.output} exists; use --force to replace it", file=sys.stderr)
-        return EXIT_CANNOT_RUN
+        return _cannot_run(f"{args.output} exists; use --force to replace it")
     results = [preflight(f) for f in args.files]
     for f, res in zip(args.files, results):
         if res.shot is None:  # nothing to draw: show why
@@ -121,7 +132,8 @@ def cmd_plot(args) -> int:
             code = _report(res, args)
             print(f"seqgen: no picture: {f} could not be resolved", file=sys.stderr)
             return code if code == EXIT_CANNOT_RUN else EXIT_FINDINGS
-    try:
+
+    def draw():
         channels = parse_channels(args.channels)
         if len(results) == 1:
             res = results[0]
@@ -133,15 +145,11 @@ def cmd_plot(args) -> int:
                               new_label=args.files[1], t_from=t_from, t_to=t_to, channels=channels,
                               findings=new.findings)
         save_figure(fig, args.output, force=args.force)
-    except PlotError as exc:
-        print(f"seqgen: {exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
-    except OutputExists as exc:
-        print(f"seqgen: {exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
-    except OSError as exc:
-        print(f"seqgen: cannot write {args.output}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
+        return fig
+
+    failed, fig = _writing(str(args.output), draw, (PlotError, OutputExists))
+    if failed:
+        return failed
     info = fig.seqgen_info
     errors = any(has_errors(r.findings) for r in results)
     if args.json:
@@ -189,15 +197,11 @@ def _scan_run(scan, args, *, build: bool) -> int:
                 print("build not written: fix the errors above")
             print(_caution())
         return EXIT_FINDINGS
-    try:
-        run_scan(scan, out=args.output if build else None, force=getattr(args, "force", False), jobs=args.jobs,
-                 cluster=args.cluster, progress=sys.stderr.isatty() and not args.json)
-    except (BuildExists, ClusterUnavailable) as exc:
-        print(f"seqgen: {exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
-    except OSError as exc:
-        print(f"seqgen: cannot write the scan to {args.output}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
+    failed, _ = _writing(f"the scan to {args.output}" if build else "the scan", lambda: run_scan(
+        scan, out=args.output if build else None, force=getattr(args, "force", False), jobs=args.jobs,
+        cluster=args.cluster, progress=sys.stderr.isatty() and not args.json), (BuildExists, ClusterUnavailable))
+    if failed:
+        return failed
     if _format(args) == "sarif":
         from .emit.sarif import scan_to_sarif_json
 
@@ -226,14 +230,11 @@ def cmd_build(args) -> int:
         if not args.json:
             print("build not written: fix the errors above (or accept them in the sequence file with a reason)")
         return code
-    try:
-        out = write_build(args.output, res.shot, res.compiled, res.findings, force=args.force)
-    except BuildExists as exc:
-        print(f"seqgen: {exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
-    except OSError as exc:
-        print(f"seqgen: cannot write build to {args.output}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
+    failed, out = _writing(f"build to {args.output}", lambda: write_build(args.output, res.shot, res.compiled,
+                                                                           res.findings, force=args.force),
+                           (BuildExists,))
+    if failed:
+        return failed
     s = summary(res.findings)
     if args.json:
         print(json.dumps({"build": str(out), "summary": s, "devices": {t.device: int(len(t.ticks)) for t in res.compiled.tables},
@@ -308,8 +309,7 @@ def cmd_diff(args) -> int:
     try:
         rep = diff_paths(*args.inputs)
     except DiffInputError as exc:
-        print(f"seqgen: {exc}", file=sys.stderr)
-        return EXIT_CANNOT_RUN
+        return _cannot_run(exc)
     sys.stdout.write(to_json(rep) + "\n" if args.json else to_text(rep))
     return EXIT_OK if rep.identical else EXIT_FINDINGS
 
@@ -332,7 +332,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--format", choices=("text", "json", "sarif"), default=None,
                    help="output format: text (default), json, or sarif (SARIF 2.1.0 for code-review tools)")
     c.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     c.add_argument("--report", metavar="FILE", default=None,
                    help="also write a self-contained HTML preflight report (findings, physics notes, timeline)")
     c.add_argument("--force", action="store_true", help="replace an existing --report file")
@@ -345,7 +345,7 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("--force", action="store_true", help="replace an existing build folder")
     b.add_argument("--json", action="store_true", help="summary as JSON")
     b.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     _scan_options(b)
     b.set_defaults(func=cmd_build)
 
@@ -354,7 +354,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--physics", action="store_true", help="also list the physics predictions per stage")
     s.add_argument("--json", action="store_true", help="timeline as JSON")
     s.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     s.set_defaults(func=cmd_show)
 
     d = sub.add_parser("diff", help="semantic diff of two versions: findings, outputs, timeline, rig")
@@ -376,7 +376,7 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--force", action="store_true", help="replace an existing picture")
     g.add_argument("--json", action="store_true", help="what was drawn, as JSON")
     g.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     g.set_defaults(func=cmd_plot)
 
     e = sub.add_parser("explain", help="explain a finding code (or 'all' to list them)")

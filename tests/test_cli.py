@@ -57,3 +57,85 @@ def test_show_lists_rows_per_ramp(capsys):
     rows = json.loads(capsys.readouterr().out)["timeline"]
     ramps = [r for r in rows if "->" in r["values"]]
     assert ramps and all(isinstance(r["rows"], int) and r["rows"] > 1 for r in ramps)
+
+
+# ----------------------------------------------------------------------------- could not write: exit 2
+# Every verb that writes reports a refused or failed write the same way: one line on stderr, exit code 2
+# (README: "2 the command could not run"), no traceback. Error texts: POSIX errno through os.strerror.
+
+THERMO = SEQUENCES / "na23_thermometry.yaml"  # not scanned
+SCANNED = SEQUENCES / "na23_barrier_scatter.yaml"  # scans a param
+
+
+def _raiser(exc):
+    def boom(*args, **kwargs):
+        raise exc
+    return boom
+
+
+def _enospc(path="x"):
+    import errno
+    import os
+
+    return OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(path))
+
+
+def _run(argv, capsys):
+    code = main(argv)
+    cap = capsys.readouterr()
+    assert "Traceback" not in cap.out + cap.err
+    return code, cap.err.strip().splitlines()
+
+
+@pytest.mark.parametrize("verb", ["build", "build-scan", "plot", "report"])
+def test_a_failed_write_is_one_line_and_exit_2(verb, tmp_path, monkeypatch, capsys):
+    import os
+
+    import seqgen.batch
+    import seqgen.emit.build
+    import seqgen.emit.plot
+    import seqgen.emit.report
+
+    out = tmp_path / ("out.png" if verb == "plot" else "out.html" if verb == "report" else "out")
+    target, argv, what = {
+        "build": ((seqgen.emit.build, "write_build"), ["build", str(THERMO), "-o", str(out)], "build to"),
+        "build-scan": ((seqgen.batch, "run_scan"), ["build", str(SCANNED), "-o", str(out), "--jobs", "1"],
+                       "the scan to"),
+        "plot": ((seqgen.emit.plot, "save_figure"), ["plot", str(THERMO), "-o", str(out), "--no-physics"], ""),
+        "report": ((seqgen.emit.report, "write_report"), ["check", str(THERMO), "--report", str(out)],
+                   "the report to"),
+    }[verb]
+    monkeypatch.setattr(*target, _raiser(_enospc(out)))
+    code, err = _run(argv, capsys)
+    assert code == 2
+    assert err == [f"seqgen: cannot write {what + ' ' if what else ''}{out}: {os.strerror(28)}"]  # 28: ENOSPC
+
+
+@pytest.mark.parametrize("verb", ["build", "build-scan", "plot", "report"])
+def test_an_existing_output_is_refused_with_exit_2(verb, tmp_path, capsys):
+    out = tmp_path / ("out.svg" if verb == "plot" else "out.html" if verb == "report" else "out")
+    if verb in ("plot", "report"):
+        out.write_text("keep me", encoding="utf-8")
+    else:
+        out.mkdir()
+        (out / "keep.txt").write_text("keep me", encoding="utf-8")
+    argv = {
+        "build": ["build", str(THERMO), "-o", str(out)],
+        "build-scan": ["build", str(SCANNED), "-o", str(out), "--jobs", "1"],
+        "plot": ["plot", str(THERMO), "-o", str(out), "--no-physics"],
+        "report": ["check", str(THERMO), "--report", str(out)],
+    }[verb]
+    code, err = _run(argv, capsys)
+    assert code == 2
+    assert len(err) == 1 and err[0].startswith("seqgen: ") and str(out) in err[0] and "--force" in err[0]
+    kept = out if verb in ("plot", "report") else out / "keep.txt"
+    assert kept.read_text(encoding="utf-8") == "keep me"
+
+
+def test_cluster_unavailable_and_bad_plot_options_are_exit_2(capsys, tmp_path, monkeypatch):
+    import seqgen.batch
+
+    monkeypatch.setattr(seqgen.batch, "run_scan", _raiser(seqgen.batch.ClusterUnavailable("no cluster here")))
+    assert _run(["check", str(SCANNED), "--cluster", "tcp://127.0.0.1:1"], capsys) == (2, ["seqgen: no cluster here"])
+    code, err = _run(["plot", str(THERMO), "-o", str(tmp_path / "x.bmp")], capsys)
+    assert code == 2 and len(err) == 1 and err[0].startswith("seqgen: ") and not (tmp_path / "x.bmp").exists()

@@ -19,6 +19,15 @@ NA = get_species("Na23")
 M_NA = 22.989769282 * sc.atomic_mass  # AME2020, Chinese Physics C 45, 030003 (2021) (from memory)
 DEMO = SEQUENCES / "na23_barrier_scatter.yaml"
 RIG = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").resolve()
+
+
+@pytest.fixture(autouse=True)
+def _repo_rig_from_tmp_path(monkeypatch):
+    # these sequences live in tmp_path and name the repository's rig by absolute path, outside their project
+    # root (schema.rig-outside-root): allowed here, as --allow-outside-root would
+    monkeypatch.setenv("SEQGEN_ALLOW_OUTSIDE", "1")
+
+
 MY_CODES = ("physics.barrier-transmission", "physics.barrier-no-signal", "physics.not-tunnelling",
             "physics.barrier-rotation", "physics.drive-too-strong", "physics.rotation-unresolvable")
 
@@ -172,6 +181,12 @@ def test_demo_incident_velocity_is_the_magnetic_kick(demo):
     v = abs(g_f * -1) * sc.physical_constants["Bohr magneton"][0] * 0.08 * 2e-3 / M_NA
     rep = _rep(demo)
     assert rep["speed"] == pytest.approx(v, rel=2e-4)
+    # the low-field seeker |1,-1> (moment -dE/dB < 0, the seqgen.physics convention) is pushed towards weaker
+    # field by a positive gradient of |B| (common practice, no source), the same sign as physics.push-velocity's
+    from seqgen.check import physics_states as ps
+
+    push = next(a for a in demo.shot.phys if a.kind == "push")
+    assert rep["signed"] < 0 and ps.push_analysis(demo.shot, push)["velocity"] < 0
     assert rep["E_mean"] == pytest.approx(0.5 * M_NA * (v**2 + rep["sigma_v"] ** 2), rel=5e-4)
 
 

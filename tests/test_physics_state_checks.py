@@ -30,6 +30,15 @@ MASS = 22.989769282 * sc.physical_constants["atomic mass constant"][0]
 LAMBDA_D2, GAMMA_HZ, I_SAT = 589.1583264e-9, 9.7946e6, 62.600
 BIAS = 1.2e-4  # T, the demo rig's fields.bias (our own invented number)
 RIG = str(SEQUENCES / "rigs" / "na23_demo_rig.yaml")
+
+
+@pytest.fixture(autouse=True)
+def _repo_rig_from_tmp_path(monkeypatch):
+    # these sequences live in tmp_path and name the repository's rig by absolute path, outside their project
+    # root (schema.rig-outside-root): allowed here, as --allow-outside-root would
+    monkeypatch.setenv("SEQGEN_ALLOW_OUTSIDE", "1")
+
+
 DEMO = SEQUENCES / "na23_barrier_scatter.yaml"
 SAMPLE = "sample: {species: Na23, state: {F: 1, mF: -1}, atoms: 1.2e5, temperature: 80 nK, condensed: true}\n"
 
@@ -177,6 +186,38 @@ def test_demo_barrier_drive_uses_peak_intensity_and_line(demo):
     assert rep["i_peak"] == pytest.approx(2 * power * (1 + depth) / (math.pi * 45e-6 * 1.8e-6), rel=1e-12)
     assert rep["bare_hz"] == pytest.approx(line_hz((1, -1), (2, -1)), abs=0.01)
     assert abs(rep["offset_hz"]) <= rep["tolerance_hz"]
+
+
+# --------------------------------------------------------------------------- values of a channel (seqgen.values)
+
+def test_value_at_follows_the_published_shapes(tmp_path):
+    # seqgen.values.value_at, the evaluator the checks (and the pictures) use, against the closed forms:
+    # minimum-jerk polynomial 10 s^3 - 15 s^4 + 6 s^5 (Phys. Rev. Lett. 104, 063002 (2010)), raised cosine
+    # (1 - cos(pi s))/2 (common practice, no source), Blackman window 0.42 - 0.5 cos(2 pi s) + 0.08 cos(4 pi s)
+    # (Proc. IEEE 66, 51 (1978)); the safe value (0) before the first write, the end value held after a ramp.
+    import numpy as np
+
+    from seqgen.values import value_at
+
+    blocks = ("  - name: a\n    at: 1 ms\n    actions:\n"
+              "      - ramp: {channel: guide_power, from: 0.3 W, to: 0.65 W, over: 80 ms, shape: minimum_jerk}\n"
+              "      - ramp: {channel: cross_a_power, from: 0 W, to: 1.2 W, over: 20 ms, shape: smooth, at: 0 s}\n"
+              "      - clock_pulse: {drive: mw, duration: 200 us, envelope: blackman, at: 100 ms}\n")
+    shot = write(tmp_path, blocks)
+    s = np.linspace(0.0, 1.0, 41)[1:-1]
+    guide = value_at(shot, "guide_power", 1e-3 + 80e-3 * s)
+    np.testing.assert_allclose(guide, 0.3 + 0.35 * (10 * s**3 - 15 * s**4 + 6 * s**5), rtol=1e-12)
+    cross = value_at(shot, "cross_a_power", 1e-3 + 20e-3 * s)
+    np.testing.assert_allclose(cross, 1.2 * (1 - np.cos(np.pi * s)) / 2, rtol=1e-12)
+    assert value_at(shot, "guide_power", [0.0, 0.5e-3]).tolist() == [0.0, 0.0]
+    np.testing.assert_allclose(value_at(shot, "guide_power", [81e-3, 0.5]), [0.65, 0.65], rtol=1e-15)
+    np.testing.assert_allclose(value_at(shot, "cross_a_power", 30e-3), [1.2], rtol=1e-15)
+    pulse = only(shot, "clock_pulse")
+    amp = value_at(shot, "mw.amp", pulse.t0 + (pulse.t1 - pulse.t0) * s)
+    peak = value_at(shot, "mw.amp", 0.5 * (pulse.t0 + pulse.t1))[0]
+    assert peak > 0
+    np.testing.assert_allclose(amp / peak, 0.42 - 0.5 * np.cos(2 * np.pi * s) + 0.08 * np.cos(4 * np.pi * s),
+                               rtol=1e-9, atol=1e-12)
 
 
 # --------------------------------------------------------------------------- envelopes, detuning

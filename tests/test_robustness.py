@@ -49,8 +49,15 @@ def _cli(argv):
     return code, out.getvalue(), err.getvalue()
 
 
-def _seq(body: str, rig: Path = RIG) -> str:
-    return f"seqgen: 1\nrig: {rig.as_posix()}\n" + body
+def _seq(body: str, rig: str = "rig.yaml") -> str:
+    return f"seqgen: 1\nrig: {rig}\n" + body
+
+
+def _write(path: Path, body: str) -> Path:
+    """A sequence file with a copy of the demo rig beside it (a rig outside the project root is refused)."""
+    shutil.copy(RIG, path.parent / "rig.yaml")
+    path.write_text(_seq(body), encoding="utf-8")
+    return path
 
 
 # ----------------------------------------------------------------------------- YAML and files
@@ -157,10 +164,8 @@ def _project(tmp_path, marker: str | None):
 
 
 def _using(root: Path, target: str) -> Path:
-    seq = root / "seqs" / "main.yaml"
-    seq.write_text(_seq(f"use:\n  - file: {target}\nblocks:\n  - name: a\n    at: 1 ms\n    actions:\n"
-                        "      - hold: {duration: t_hold}\n"), encoding="utf-8")
-    return seq
+    return _write(root / "seqs" / "main.yaml", f"use:\n  - file: {target}\nblocks:\n  - name: a\n    at: 1 ms\n"
+                  "    actions:\n      - hold: {duration: t_hold}\n")
 
 
 def _codes(path, **kw):
@@ -227,6 +232,97 @@ def test_symlink_loop_as_the_sequence_itself(tmp_path):
     (tmp_path / "b.yaml").symlink_to(tmp_path / "a.yaml")
     code, out, err = _cli(["check", str(tmp_path / "a.yaml")])
     assert code == 2 and "schema.file-missing" in out and "Traceback" not in err
+
+
+# ----------------------------------------------------------------------------- rig: paths (the use: policy)
+
+_RIGGED = "blocks:\n  - name: a\n    at: 5 ms\n    actions:\n      - pulse: {channel: camera, duration: 20 us}\n"
+
+
+def _rigged(root: Path, rig: str) -> Path:
+    seq = root / "seqs" / "main.yaml"
+    seq.write_text(_seq(_RIGGED, rig=rig), encoding="utf-8")
+    return seq
+
+
+def _lab_with_rigs(tmp_path, marker="pyproject.toml"):
+    root = _project(tmp_path, marker)
+    (root / "rigs").mkdir()
+    shutil.copy(RIG, root / "rigs" / "demo.yaml")
+    shutil.copy(RIG, tmp_path / "outside_rig.yaml")
+    return root
+
+
+@pytest.mark.parametrize("marker", ["pyproject.toml", ".git", "seqgen.toml"])
+def test_a_rig_inside_the_project_root_is_read(tmp_path, marker):
+    root = _lab_with_rigs(tmp_path, marker)
+    src = load_sources(_rigged(root, "../rigs/demo.yaml"))
+    assert _codes(_rigged(root, "../rigs/demo.yaml")) == [] and src.rig is not None
+    assert _codes(_rigged(root, str(root / "rigs" / "demo.yaml"))) == []  # absolute, but inside
+
+
+@pytest.mark.parametrize("how", ["relative", "absolute", "symlink", "no-marker"])
+def test_a_rig_outside_the_project_root_is_refused_at_its_line(tmp_path, how):
+    root = _lab_with_rigs(tmp_path, None if how == "no-marker" else "pyproject.toml")
+    rig = {"relative": "../../outside_rig.yaml", "absolute": str(tmp_path / "outside_rig.yaml"),
+           "symlink": "../rigs/link.yaml", "no-marker": "../rigs/demo.yaml"}[how]
+    (root / "rigs" / "link.yaml").symlink_to(tmp_path / "outside_rig.yaml")  # inside by name, outside in fact
+    seq = _rigged(root, rig)
+    src = load_sources(seq)
+    assert [(f.code, f.line, f.column) for f in src.findings] == [("schema.rig-outside-root", 2, 1)]
+    assert src.rig is None and "--allow-outside-root" in src.findings[0].hint
+    code, out, err = _cli(["check", str(seq)])
+    assert code == 1 and "schema.rig-outside-root" in out and "Traceback" not in err
+
+
+def test_an_outside_rig_is_refused_before_it_is_read(tmp_path):
+    # what the file holds never reaches the findings: refused by path alone (a non-YAML file would be quoted
+    # in a syntax finding, and an unreadable one would be a different finding)
+    root = _lab_with_rigs(tmp_path)
+    secret = tmp_path / "secret.txt"
+    secret.write_text("token-3f9a\n", encoding="utf-8")
+    seq = _rigged(root, str(secret))
+    assert _codes(seq) == [("schema.rig-outside-root", 2)]
+    assert [f.code for f in load_sources(seq, allow_outside_root=True).findings] == ["schema.wrong-type"]
+    secret.chmod(0)
+    for fmt in ("text", "json", "sarif"):
+        code, out, err = _cli(["check", str(seq), "--format", fmt])
+        assert code == 1 and "token-3f9a" not in out + err and "schema.rig-outside-root" in out
+
+
+def test_an_outside_rig_is_allowed_by_env_or_flag(tmp_path, monkeypatch):
+    root = _lab_with_rigs(tmp_path)
+    seq = _rigged(root, "../../outside_rig.yaml")
+    assert _codes(seq, allow_outside_root=True) == []
+    monkeypatch.setenv("SEQGEN_ALLOW_OUTSIDE", "1")
+    assert _codes(seq) == []
+    monkeypatch.delenv("SEQGEN_ALLOW_OUTSIDE")
+    for verb in ("check", "show"):
+        assert _cli([verb, str(seq)])[0] == 1
+        code, out, _ = _cli([verb, str(seq), "--allow-outside-root"])
+        assert code == 0, out
+    assert "SEQGEN_ALLOW_OUTSIDE" not in os.environ  # the flag does not leak out of the command
+
+
+def test_a_scanned_sequence_with_an_outside_rig(tmp_path):
+    # seqgen check plans a scan through the same loader: refused there too, allowed by the same switch
+    root = _lab_with_rigs(tmp_path)
+    seq = root / "seqs" / "scan.yaml"
+    seq.write_text(_seq("params:\n  w: {value: 20 us, scan: [20 us, 30 us]}\nblocks:\n  - name: a\n    at: 1 ms\n"
+                        "    actions:\n      - pulse: {channel: camera, duration: w}\n", rig="../../outside_rig.yaml"),
+                   encoding="utf-8")
+    code, out, _ = _cli(["check", str(seq), "--json", "--jobs", "1"])
+    assert code == 1 and [f["code"] for f in json.loads(out)["findings"]] == ["schema.rig-outside-root"]
+    code, out, _ = _cli(["check", str(seq), "--json", "--jobs", "1", "--allow-outside-root"])
+    assert code == 0 and len(json.loads(out)["shots"]) == 2
+
+
+def test_symlink_loop_as_the_rig_is_a_finding(tmp_path):
+    root = _lab_with_rigs(tmp_path)
+    (root / "rigs" / "loop_a.yaml").symlink_to(root / "rigs" / "loop_b.yaml")
+    (root / "rigs" / "loop_b.yaml").symlink_to(root / "rigs" / "loop_a.yaml")
+    found = load_sources(_rigged(root, "../rigs/loop_a.yaml")).findings
+    assert [(f.code, f.line) for f in found] == [("schema.file-missing", 2)] and "link" in found[0].hint
 
 
 # ----------------------------------------------------------------------------- expressions
@@ -296,7 +392,7 @@ def test_deeply_nested_expression_is_refused():
 ])
 def test_bad_numbers_are_findings_at_their_line(tmp_path, action, code, line):
     p = tmp_path / "n.yaml"
-    p.write_text(_seq("blocks:\n  - name: a\n    at: 1 ms\n    actions:\n      - " + action + "\n"), encoding="utf-8")
+    _write(p, "blocks:\n  - name: a\n    at: 1 ms\n    actions:\n      - " + action + "\n")
     res = preflight(p)
     hits = [f for f in res.findings if f.code == code]
     assert hits, [(f.code, f.message) for f in res.findings]
@@ -309,7 +405,7 @@ def test_no_traceback_from_the_cli_on_hostile_files(tmp_path):
               "set: {channel: probe_shutter, value: 1e300}", "trigger: {channel: camera, width: 0 s}"]
     for i, body in enumerate(bodies):
         p = tmp_path / f"h{i}.yaml"
-        p.write_text(_seq("blocks:\n  - name: a\n    at: 1 ms\n    actions:\n      - " + body + "\n"), encoding="utf-8")
+        _write(p, "blocks:\n  - name: a\n    at: 1 ms\n    actions:\n      - " + body + "\n")
         for fmt in ("text", "json", "sarif"):
             code, out, err = _cli(["check", str(p), "--format", fmt])
             assert code == 1 and "Traceback" not in out + err and out
@@ -449,6 +545,108 @@ def test_sigkill_at_each_step_of_the_write(two_builds, tmp_path, where, expect):
         return
     assert rc == -signal.SIGKILL, proc.stderr.read().decode(errors="replace")[-2000:]
     assert _state(out, refs) == ("a" if expect == "old" else "b")
+
+
+def _at_second_table(action: str) -> str:
+    """A child prelude that runs `action` (Python, indented by 8) when the build starts its second table file."""
+    return ("import os, signal, time, seqgen.emit.build as B\n_w = B.write_npz\n_n = [0]\n"
+            "def w(*a, **k):\n    _n[0] += 1\n    if _n[0] == 2:\n" + action + "    return _w(*a, **k)\nB.write_npz = w\n")
+
+
+_KILL = "        os.kill(os.getpid(), signal.SIGKILL)\n"
+
+
+def _temporaries(out: Path) -> list:
+    staging = out.parent / f".{out.name}.tmp"
+    return sorted(p.name for p in staging.iterdir()) if staging.exists() else []
+
+
+def test_the_next_build_removes_what_a_killed_build_left(two_builds):
+    proj, refs = two_builds
+    out = proj / "out_stale"
+    shutil.copytree(proj / "ref_a", out)
+    killed = _build_proc(proj, "b", out, _at_second_table(_KILL))
+    assert killed.wait(timeout=300) == -signal.SIGKILL
+    left = _temporaries(out)
+    assert len(left) == 1 and left[0].startswith(f"{killed.pid}-")  # the dead writer's, named with its pid
+    assert _state(out, refs) == "a"
+    assert _build_proc(proj, "b", out).wait(timeout=300) == 0
+    assert _state(out, refs) == "b"
+    assert not (proj / ".out_stale.tmp").exists()  # removed, and the emptied staging folder with it
+    assert not [p.name for p in proj.iterdir() if p.name.startswith(".out_stale")]
+
+
+def test_a_live_builds_temporary_is_left_alone(two_builds):
+    # a build paused half-way (another process, alive) owns its temporary folder: a second build of the same
+    # output must not remove it; once the first is killed, the next build does
+    proj, refs = two_builds
+    out = proj / "out_live"
+    shutil.copytree(proj / "ref_a", out)
+    flag = proj / "paused.flag"
+    pause = f"        open({str(flag)!r}, 'w').close()\n        time.sleep(300)\n"
+    paused = _build_proc(proj, "b", out, _at_second_table(pause))
+    try:
+        for _ in range(6000):
+            if flag.exists() or paused.poll() is not None:
+                break
+            time.sleep(0.05)
+        assert flag.exists(), "the paused build never reached its second table"
+        owned = _temporaries(out)
+        assert len(owned) == 1 and owned[0].startswith(f"{paused.pid}-")
+        assert _build_proc(proj, "b", out).wait(timeout=300) == 0
+        assert _state(out, refs) == "b" and _temporaries(out) == owned  # left alone while its writer lives
+    finally:
+        paused.kill()
+        paused.wait(timeout=60)
+        flag.unlink(missing_ok=True)
+    assert _build_proc(proj, "a", out).wait(timeout=300) == 0
+    assert _state(out, refs) == "a" and _temporaries(out) == []
+
+
+def _dead_pid() -> int:
+    child = subprocess.Popen(["true"])
+    child.wait()  # reaped: its pid names no process now (POSIX kill(2) with signal 0 gives ESRCH)
+    return child.pid
+
+
+def test_only_this_outputs_dead_unlocked_temporaries_are_removed(tmp_path):
+    import fcntl
+
+    from seqgen.emit.build import remove_stale_temporaries
+
+    out = tmp_path / "out"
+    staging = tmp_path / ".out.tmp"
+    dead = _dead_pid()
+    for name in (f"{dead}-abcdefgh", f"{os.getpid()}-livewrtr", f"{dead}-lockedxx", f"{dead}-short", "notes",
+                 f"{dead}-abcdefgh.x"):
+        (staging / name).mkdir(parents=True)
+        (staging / name / "t.npz").write_bytes(b"x")
+    (tmp_path / "precious").mkdir()
+    (tmp_path / "precious" / "data").write_bytes(b"keep")
+    (staging / f"{dead}-symlinkx").symlink_to(tmp_path / "precious")  # a link of the right name: never followed
+    (staging / f"{dead}-plainfil").write_bytes(b"a file, not a folder")
+    (tmp_path / ".other.tmp" / f"{dead}-abcdefgh").mkdir(parents=True)  # another output's
+    (tmp_path / ".out.tmp-abcdefgh").mkdir()  # an older layout: no pid, so no way to tell its writer is gone
+    fd = os.open(staging / f"{dead}-lockedxx", os.O_RDONLY)  # a writer elsewhere (another machine) holds it
+    fcntl.flock(fd, fcntl.LOCK_EX)
+    try:
+        removed = remove_stale_temporaries(out)
+    finally:
+        os.close(fd)
+    assert removed == [staging / f"{dead}-abcdefgh"]
+    assert sorted(p.name for p in staging.iterdir()) == sorted(
+        [f"{os.getpid()}-livewrtr", f"{dead}-lockedxx", f"{dead}-short", "notes", f"{dead}-abcdefgh.x",
+         f"{dead}-symlinkx", f"{dead}-plainfil"])
+    assert (tmp_path / "precious" / "data").read_bytes() == b"keep"
+    assert (tmp_path / ".other.tmp" / f"{dead}-abcdefgh").is_dir() and (tmp_path / ".out.tmp-abcdefgh").is_dir()
+    assert remove_stale_temporaries(out) == [staging / f"{dead}-lockedxx"]  # once its lock is released
+
+
+def test_a_file_in_the_way_of_the_staging_folder_is_exit_2(two_builds, tmp_path):
+    (tmp_path / ".b.tmp").write_text("not a folder", encoding="utf-8")
+    code, _, err = _cli(["build", str(two_builds[0] / "a.yaml"), "-o", str(tmp_path / "b")])
+    assert code == 2 and "cannot write build" in err and ".b.tmp" in err and "Traceback" not in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == [".b.tmp"]
 
 
 def _enospc(*args, **kwargs):

@@ -26,6 +26,13 @@ from seqgen.pipeline import preflight
 
 from .conftest import ROOT, SEQUENCES
 
+
+@pytest.fixture(autouse=True)
+def _repo_rig_from_tmp_path(monkeypatch):
+    # these sequences live in tmp_path and name the repository's rig by absolute path, outside their project
+    # root (schema.rig-outside-root): allowed here, as --allow-outside-root would
+    monkeypatch.setenv("SEQGEN_ALLOW_OUTSIDE", "1")
+
 SCHEMA_FILE = ROOT / "tests" / "data" / "sarif-schema-2.1.0.json"
 SCHEMA_SHA256 = "49729d5909e2b1b976621a29dcebef22e57c78c20d469dfe6c7f15f759904f61"
 

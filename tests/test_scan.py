@@ -19,6 +19,15 @@ from seqgen.validate.schema import load_schema
 from .conftest import ROOT, SEQUENCES
 
 RIG = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").resolve()
+
+
+@pytest.fixture(autouse=True)
+def _repo_rig_from_tmp_path(monkeypatch):
+    # these sequences live in tmp_path and name the repository's rig by absolute path, outside their project
+    # root (schema.rig-outside-root): allowed here, as --allow-outside-root would
+    monkeypatch.setenv("SEQGEN_ALLOW_OUTSIDE", "1")
+
+
 MS, US = 1e-3, 1e-6
 
 # Two ramps on guide_power, the first lasting `rt`; `b` and `c` are extra scanned params that only

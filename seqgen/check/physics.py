@@ -6,7 +6,7 @@ from . import physics_traps  # noqa: F401
 
 _REPORTERS = [physics_traps.report]
 
-for _name in ("physics_states", "physics_barrier"):
+for _name in ("physics_states", "physics_barrier", "physics_magnetic"):
     try:
         _mod = __import__(f"{__package__}.{_name}", fromlist=["report"])
         _REPORTERS.append(_mod.report)

@@ -6,10 +6,12 @@ The model, in one place (every check below reads it from one cached analysis
 per barrier action):
 
 * Incident velocity: from the last `push` before the barrier. A magnetic push
-  gives |v| = |mu| b' tau / m with the first-order moment mu = g_F m_F mu_B of
-  the sample state (force = -dE/dz = -mu b' along the coil axis, E = +mu B);
-  only the speed is used, the sign is reported. An optical push, or a state
-  without a first-order moment, falls back to the push's `expect_velocity`.
+  gives v = moment b' tau / m with the first-order moment -dE/dB = -g_F m_F mu_B
+  of the sample state (force = moment x gradient of |B| along the coil axis,
+  the package-wide sign of `seqgen.physics`; `seqgen.physics.kinematics.magnetic_push`
+  at B = 0); only the speed is used, the sign is reported. An optical push,
+  or a state without a first-order moment, falls back to the push's
+  `expect_velocity`.
 * Velocity spread along the path: a condensate uses the Thomas-Fermi radius R
   along the path (trap frequencies from `sample.trap_frequencies`, else from
   the rig's trap beams at the time of the push) and sigma_v = 1.602 hbar/(m R)
@@ -18,9 +20,11 @@ per barrier action):
 * Barrier: V(x) = V0 exp(-2 x^2 / w_y^2) along the path, V0 = (U/I) 2P/(pi w w_y)
   with U/I the D1 + D2 light shift per intensity of the species at the beam's
   wavelength (Adv. At. Mol. Opt. Phys. 42, 95 (2000)); `power` is the
-  time-averaged power. Single-particle, stationary 1D scattering (mean-field
-  energy of the cloud and the finite length of the pulse are not included),
-  averaged over a Gaussian velocity distribution with Gauss-Hermite quadrature.
+  time-averaged power (intensities from `seqgen.physics.optical.peak_intensity`
+  and `modulated_peak_intensity`, shared with `physics_states`).
+  Single-particle, stationary 1D scattering (mean-field energy of the cloud
+  and the finite length of the pulse are not included), averaged over a
+  Gaussian velocity distribution with Gauss-Hermite quadrature.
 * Drive inside the barrier: an intensity modulation at `modulation.frequency`
   with depth eps makes a co-propagating Raman pair that couples |F, m> to the
   other hyperfine level at equal m; the Rabi frequency follows the local
@@ -67,10 +71,10 @@ FAR_OFF_RESONANCE = 20.0
 def barrier_height(species, wavelength_m: float, power_w: float, waist_m: float, waist_y_m: float) -> float:
     """Peak potential (J, > 0 repulsive) of an elliptical Gaussian sheet:
     V0 = (U/I) 2P/(pi w w_y), U/I from `seqgen.physics.optical.dipole_potential_per_intensity`
-    (Adv. At. Mol. Opt. Phys. 42, 95 (2000))."""
-    from ..physics.optical import dipole_potential_per_intensity
+    (Adv. At. Mol. Opt. Phys. 42, 95 (2000)), 2P/(pi w w_y) from `seqgen.physics.optical.peak_intensity`."""
+    from ..physics.optical import dipole_potential_per_intensity, peak_intensity
 
-    return float(dipole_potential_per_intensity(species, wavelength_m)) * 2.0 * power_w / (math.pi * waist_m * waist_y_m)
+    return float(dipole_potential_per_intensity(species, wavelength_m) * peak_intensity(power_w, waist_m, waist_y_m))
 
 
 def gaussian_profile(waist_y_m: float):
@@ -165,8 +169,10 @@ def _last_push(shot, act):
 
 
 def incident_velocity(shot, act):
-    """dict(speed, signed, direction, source, push) for the barrier action, or None."""
-    from ..physics.atoms import magnetic_moment_first_order
+    """dict(speed, signed, direction, source, push) for the barrier action, or None.
+
+    `signed` > 0: pushed towards stronger field (moment = -dE/dB > 0, a high-field seeker)."""
+    from ..physics.kinematics import magnetic_push
 
     sp = _species(shot)
     push = _last_push(shot, act)
@@ -178,11 +184,10 @@ def incident_velocity(shot, act):
         direction = shot.rig.coils[args["coil"]].axis
         s = shot.sample
         if s.F is not None and s.mF is not None:
-            try:
-                mu = magnetic_moment_first_order(sp, s.F, s.mF)
+            try:  # first-order moment: the low-field limit, B = 0
+                signed = float(magnetic_push(s.F, s.mF, args["gradient"], args["duration"], 0.0, atom=sp).velocity)
             except ValueError:
-                mu = 0.0
-            signed = -mu * args["gradient"] * args["duration"] / sp.mass_kg
+                signed = 0.0
             if signed != 0.0:
                 return dict(speed=abs(signed), signed=signed, direction=direction, push=push,
                             source=f"push by '{args['coil']}' on |F={s.F}, mF={s.mF}>")
@@ -250,6 +255,7 @@ def _partner(shot, act):
 def _drive_model(shot, act, sp, beam, waist_y, speed):
     """In-barrier coupling: dict with rabi_peak, partner offset / shift, detuning, or a reason it is absent."""
     from ..physics.drive import two_photon_rabi_from_modulated_beam
+    from ..physics.optical import modulated_peak_intensity
     from ..physics.zeeman import transition_frequency
 
     eps = act.args.get("mod_depth")
@@ -265,9 +271,9 @@ def _drive_model(shot, act, sp, beam, waist_y, speed):
         out["reason"] = (f"transition {initial} -> {partner} changes mF: a modulated beam along the quantisation "
                          "axis couples equal mF only; rotation not computed")
         return out
-    i_mean = 2.0 * act.args["power"] / (math.pi * beam.waist_m * waist_y)
     try:
-        d = two_photon_rabi_from_modulated_beam(i_mean * (1.0 + eps), eps, beam.wavelength_m, m_f=initial[1],
+        i_peak = float(modulated_peak_intensity(act.args["power"], beam.waist_m, waist_y, eps))
+        d = two_photon_rabi_from_modulated_beam(i_peak, eps, beam.wavelength_m, m_f=initial[1],
                                                 polarization=1.0, atom=sp)
         f = float(transition_frequency(initial[0], initial[1], partner[0], partner[1], shot.rig.bias_field_t or 0.0,
                                        atom=sp))

@@ -8,13 +8,14 @@ One cached analysis per action (shared with `report`, i.e. `seqgen show
 
 Conventions of this module:
 
-* Magnetic moment = -dE/dB (J/T), the convention of
-  `seqgen.physics.zeeman.magnetic_moment` and `seqgen.physics.kinematics`:
-  the force along a coil axis is moment * d|B|/dx, a negative moment is a
-  low-field seeker. (`seqgen.physics.atoms.magnetic_moment_first_order`
-  uses E = +mu B, the opposite sign; it is not used here.) Moments and line
+* Magnetic moment = -dE/dB (J/T), the convention of the whole physics
+  package (`seqgen.physics`): the force along a coil axis is
+  moment * d|B|/dx, a negative moment is a low-field seeker. Moments and line
   frequencies come from the Breit-Rabi formula at the rig's bias field
-  (`fields: bias`, 0 when absent).
+  (`fields: bias`, 0 when absent); push velocities from
+  `seqgen.physics.kinematics.magnetic_push`, sheet intensities from
+  `seqgen.physics.optical.modulated_peak_intensity` (both shared with
+  `physics_barrier`).
 * A transition is ordered (initial, final): the sample state is the initial
   one when it belongs to the pair. Its line frequency is |E_final - E_initial|/h
   plus the drive's `light_shift`; detuning = drive frequency - line.
@@ -36,7 +37,7 @@ from scipy import optimize
 
 from ..findings import make
 from ..registry import check
-from ._values import value_at
+from ..values import value_at
 from .physics_traps import _species, cloud_at_image, per_shot_cache
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
@@ -464,6 +465,7 @@ def _barriers(shot):
 def barrier_drive_analysis(shot, act):
     """Two-photon drive of a modulated barrier: Rabi frequency, light shift, resonance, offset (dict) or None."""
     from ..physics.drive import two_photon_rabi_from_modulated_beam
+    from ..physics.optical import modulated_peak_intensity
 
     f_mod = act.args.get("mod_frequency")
     sp = _species(shot)
@@ -484,10 +486,10 @@ def barrier_drive_analysis(shot, act):
     lower, upper = (int(round(i - 0.5)), m), (int(round(i + 0.5)), m)
     # `power` is the time-averaged power (what a power meter reads, as in physics_barrier.py); the
     # beam centre's intensity 2 P / (pi w w_y) then peaks at (1 + depth) times that during the modulation
-    i_peak = (2 * act.args["power"] / (math.pi * beam.waist_m * (beam.waist_y_m or beam.waist_m))
-              * (1 + min(max(rep["depth"], 0.0), 1.0)))
+    depth = min(max(rep["depth"], 0.0), 1.0)
     try:
-        d = two_photon_rabi_from_modulated_beam(i_peak, min(max(rep["depth"], 0.0), 1.0), beam.wavelength_m, m_f=m,
+        i_peak = float(modulated_peak_intensity(act.args["power"], beam.waist_m, beam.waist_y_m or beam.waist_m, depth))
+        d = two_photon_rabi_from_modulated_beam(i_peak, depth, beam.wavelength_m, m_f=m,
                                                 polarization=1.0, atom=sp)
     except ValueError as exc:
         rep["reason"] = str(exc)
@@ -575,7 +577,7 @@ def _pushes(shot):
 @per_shot_cache(lambda shot, act: ("state-push", act.index, act.t0))
 def push_analysis(shot, act):
     """Kick velocity of a push (dict: velocity m/s signed, moment or photons, arrival at target), or None."""
-    from ..physics.kinematics import gradient_kick_velocity, optical_kick, time_to_reach
+    from ..physics.kinematics import magnetic_push, optical_kick, time_to_reach
 
     sp = _species(shot)
     if sp is None:
@@ -583,18 +585,16 @@ def push_analysis(shot, act):
     dur = act.args["duration"]
     rep = dict(duration=dur)
     if "coil" in act.args:
-        from ..physics.zeeman import magnetic_moment
-
         state = _sample_state(shot)
         if state is None:
             return None
         try:
-            mu = float(magnetic_moment(state[0], state[1], _bias(shot), atom=sp))
+            kick = magnetic_push(state[0], state[1], act.args["gradient"], dur, _bias(shot), atom=sp)
         except ValueError:
             return None
+        mu = float(kick.moment)
         rep.update(kind="magnetic", state=state, moment=mu, gradient=act.args["gradient"],
-                   velocity=float(gradient_kick_velocity(mu, act.args["gradient"], dur, sp.mass_kg)),
-                   no_force=state[1] == 0 or abs(mu) < NO_FORCE_MOMENT)
+                   velocity=float(kick.velocity), no_force=state[1] == 0 or abs(mu) < NO_FORCE_MOMENT)
     else:
         from ..physics.imaging import saturation_parameter
 

@@ -11,7 +11,7 @@ from scipy import constants as sc
 
 from ..findings import make
 from ..registry import check
-from ._values import value_at
+from ..values import value_at
 
 N_SAMPLES = 24  # trap evaluations per ramp: frequencies vary smoothly with power
 

@@ -32,7 +32,7 @@ def left_on(shot):
 
 def _current_squared_integral(shot, output: str, t_end: float, window: float | None = None):
     """Integral of I^2 dt over the sequence, and its largest value over any window of `window` seconds."""
-    from ._values import value_at
+    from ..values import value_at
 
     segs = [s for s in shot.segments if s.output == output]
     edges = sorted({0.0, t_end, *(s.t0 for s in segs), *(s.t1 for s in segs)})

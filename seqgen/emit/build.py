@@ -4,6 +4,12 @@ Layout: `manifest.json` plus, per device, `<device>.npz` (always) and
 `<device>.csv` (unless the table is larger than the CSV row limit). Files are
 written into a temporary sibling folder which is renamed into place only when
 complete, so an interrupted build leaves either the old build or the new one.
+The temporary folder is `.NAME.tmp/<pid>-<random>/` beside the output `NAME`
+(one staging folder per output, so finding leftovers never lists a parent that
+holds thousands of scan shots); the writer holds an exclusive lock on it while
+it writes. A build killed mid-write leaves its temporary folder behind: the
+next build of the same output removes it once its writer's process is gone and
+nobody holds its lock (`remove_stale_temporaries`).
 An existing build is replaced only with `force=True`. No time stamps, host
 names or absolute paths enter the files: the same input gives the same bytes.
 """
@@ -12,8 +18,10 @@ from __future__ import annotations
 
 import errno
 import hashlib
+import itertools
 import json
 import os
+import re
 import shutil
 import tempfile
 import zipfile
@@ -28,6 +36,7 @@ from ..resolve.units import display_unit
 
 FORMAT_VERSION = 1
 CSV_ROW_LIMIT = 1_000_000
+_CSV_CHUNK = 4096  # rows formatted at a time
 _ZIP_DATE = (1980, 1, 1, 0, 0, 0)
 
 
@@ -62,10 +71,16 @@ def write_csv(path: Path, table: DeviceTable) -> None:
     """CSV: tick, time_s, one column per output (digital as 0/1, others %.10g)."""
     header = ",".join(["tick", "time_s"] + [f"{c} [{u}]" if u else c for c, u in zip(table.columns, table.units)])
     fmt = ["%d", "%.12g"] + ["%d" if k == "digital" else "%.10g" for k in table.kinds]
-    data = np.column_stack([table.ticks.astype(np.float64), table.ticks * table.tick_s, table.values])
+    row = ",".join(fmt) + "\n"
+    times = table.ticks * table.tick_s
     with open(path, "w", encoding="utf-8", newline="\n") as fh:
         fh.write(header + "\n")
-        np.savetxt(fh, data, fmt=fmt, delimiter=",")
+        # one %-format per chunk of rows: the same text as formatting row by row, several times faster;
+        # ticks stay Python ints (exact beyond 2^53)
+        for a in range(0, len(table.ticks), _CSV_CHUNK):
+            b = a + _CSV_CHUNK
+            cols = [table.ticks[a:b].tolist(), times[a:b].tolist(), *table.values[a:b].T.tolist()]
+            fh.write((row * len(cols[0])) % tuple(itertools.chain.from_iterable(zip(*cols))))
 
 
 def file_sha256(path: Path) -> str:
@@ -111,7 +126,9 @@ def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: l
     if out.exists() and not force:
         raise BuildExists(f"{out} exists; use --force to replace it")
     out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.tmp-", dir=out.parent))
+    remove_stale_temporaries(out)
+    tmp = _new_temporary(out)
+    lock = _hold_lock(tmp)
     try:
         files: dict = {}
         written = 0
@@ -137,7 +154,135 @@ def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: l
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+    finally:
+        if lock is not None:
+            os.close(lock)
+        _drop_staging(out)
     return out
+
+
+# ----------------------------------------------------------------------------- temporary folders
+
+_TEMP_NAME = re.compile(r"(\d{1,10})-[a-z0-9_]{8}")  # tempfile.mkdtemp(prefix="<pid>-"): 8 characters follow
+
+
+def staging_folder(out: Path) -> Path:
+    """Where the temporary folders of builds of `out` live: `.NAME.tmp/` beside it."""
+    return out.parent / f".{out.name}.tmp"
+
+
+def _new_temporary(out: Path) -> Path:
+    """A fresh `.NAME.tmp/<pid>-<random>/` folder (the staging folder is created as needed)."""
+    staging = staging_folder(out)
+    try:
+        for _ in range(8):
+            if staging.is_symlink() or (staging.exists() and not staging.is_dir()):
+                raise FileExistsError(errno.EEXIST, f"{staging.name} is in the way of the temporary folder "
+                                      "(not a folder); remove it", str(staging))
+            staging.mkdir(exist_ok=True)
+            try:
+                return Path(tempfile.mkdtemp(prefix=f"{os.getpid()}-", dir=staging))
+            except FileNotFoundError:  # another build of this output removed the empty staging folder just now
+                continue
+        raise OSError(errno.EAGAIN, "the staging folder keeps vanishing (another build of the same output?)",
+                      str(staging))
+    except BaseException:
+        _drop_staging(out)
+        raise
+
+
+def _hold_lock(folder: Path) -> int | None:
+    """An exclusive flock(2) on the folder for as long as this build writes it; the kernel drops it when the
+    process dies, however it dies. None where locks are not available (the pid in the name still protects it)."""
+    try:
+        import fcntl
+
+        fd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+    except (ImportError, OSError):
+        return None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        os.close(fd)
+        return None
+    return fd
+
+
+def _drop_staging(out: Path) -> None:
+    """Remove the staging folder when it is empty (another build may still be using it: then it stays)."""
+    try:
+        os.rmdir(staging_folder(out))
+    except OSError:
+        pass
+
+
+def _pid_alive(pid: int) -> bool:
+    """True unless the process surely does not exist (conservative: a reused pid counts as alive)."""
+    if pid <= 0:
+        return True
+    try:
+        os.kill(pid, 0)  # signal 0: existence check only (POSIX kill(2))
+    except ProcessLookupError:
+        return False
+    except (OSError, OverflowError):  # EPERM: it exists, owned by someone else; a number too large: not ours
+        return True
+    return True
+
+
+def remove_stale_temporaries(out: str | Path) -> list[Path]:
+    """Remove the temporary folders that killed builds of `out` left behind; return the ones removed.
+
+    Only `.NAME.tmp/<pid>-<random>` folders of this output are candidates (no other
+    name, no symbolic link), and one is removed only when the process named by its
+    pid is gone and no one holds its lock (a writer on another machine sharing the
+    folder holds its lock; a pid reused since counts as alive and the folder stays).
+    """
+    staging = staging_folder(Path(out))
+    removed: list[Path] = []
+    try:
+        if staging.is_symlink() or not staging.is_dir():
+            return removed
+        entries = list(os.scandir(staging))
+    except OSError:
+        return removed
+    for entry in entries:
+        m = _TEMP_NAME.fullmatch(entry.name)
+        try:
+            if not m or entry.is_symlink() or not entry.is_dir(follow_symlinks=False):
+                continue
+        except OSError:
+            continue
+        if _pid_alive(int(m.group(1))):
+            continue
+        path = Path(entry.path)
+        fd = _try_lock(path)
+        if fd is None:  # a live writer holds it, or it cannot be told
+            continue
+        try:
+            shutil.rmtree(path, ignore_errors=True)
+        finally:
+            os.close(fd)
+        if not path.exists():
+            removed.append(path)
+    return removed
+
+
+def _try_lock(folder: Path) -> int | None:
+    """An fd holding the folder's lock when nobody else holds it; None when someone does (or it cannot be told)."""
+    try:
+        fd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | getattr(os, "O_NOFOLLOW", 0))
+    except OSError:
+        return None
+    try:
+        import fcntl
+    except ImportError:  # no flock on this platform: the dead pid alone decides
+        return fd
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:  # EWOULDBLOCK: held by a live writer; anything else: cannot tell, keep it
+        os.close(fd)
+        return None
+    return fd
 
 
 _RENAME_EXCHANGE = 2  # renameat2(2) flag, Linux 3.15 and later

@@ -192,7 +192,7 @@ def hardware_series(table, j: int, out, t0: float, t1: float):
 
 def intended_series(shot, output: str, t0: float, t1: float, n: int = 1200):
     """(times, physical values) of the intended curve from the shot's segments, edges kept sharp."""
-    from ..check._values import value_at  # the one evaluator of segments shared by the physics checks
+    from ..values import value_at  # the one evaluator of a shot's segments, shared with the checks
 
     segs = [s for s in shot.segments if s.output == output and s.t1 >= t0 and s.t0 <= t1]
     grid = [np.linspace(t0, t1, n)]

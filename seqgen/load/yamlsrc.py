@@ -5,6 +5,12 @@ available (fast), then converted to plain dicts and lists while recording the
 position of each path. Aliases are expanded with a budget so that an
 alias-expansion bomb is refused instead of exhausting memory; duplicate keys
 are an error rather than silently last-wins.
+
+A plain document (no anchors, aliases or explicit tags; one document; no
+duplicate or non-scalar keys; within the depth and node limits) is built
+straight from libyaml's event stream in one pass, without composing nodes:
+about twice as fast on a large file. Anything else, every error included, is
+loaded again by the node path above, so findings and limits are exactly its own.
 """
 
 from __future__ import annotations
@@ -69,12 +75,18 @@ _SPECIAL = {"true": True, "false": False, "null": None, "~": None, "": None,
             ".inf": float("inf"), "+.inf": float("inf"), "-.inf": float("-inf"), ".nan": float("nan")}
 
 
+# first characters of every _SPECIAL word (in any of its accepted cases), of _INT, _HEX and _FLOAT, and ""
+_MAY_TYPE = frozenset("0123456789+-.~tTfFnN") | {""}
+
+
 def _plain_scalar(text: str):
     """Type a plain (unquoted) scalar by the YAML 1.2 core schema.
 
     1.2e5 is a number (a YAML 1.1 loader would read it as text, a common trap);
     `on`/`off`/`yes`/`no` stay text, so a channel named `on` is not a boolean.
     """
+    if text[:1] not in _MAY_TYPE:  # a word (channel, shape, param name): neither special nor a number
+        return text
     low = text.lower()
     if low in _SPECIAL and text in (low, low.capitalize(), low.upper()):
         return _SPECIAL[low]
@@ -172,6 +184,15 @@ def _load_text(text: str, name: str) -> Document:
     if len(text) > MAX_FILE_BYTES:
         raise LoadError(make(FILE_TOO_LARGE, "text too large", SourcePos(name)))
     try:
+        data, positions = _build_from_events(text)
+    except _NotPlain:
+        return _load_via_nodes(text, name, sha)
+    return Document(name, data, positions, sha)
+
+
+def _load_via_nodes(text: str, name: str, sha: str) -> Document:
+    """Compose the node tree, check it and convert it: every document, and every error, goes through here."""
+    try:
         _check_depth(text, name)
         nodes = list(yaml.compose_all(text, Loader=_Loader))
     except yaml.MarkedYAMLError as exc:
@@ -196,6 +217,116 @@ def _load_text(text: str, name: str) -> Document:
     conv = _Converter(name, positions)
     data = conv.convert(nodes[0], (), 0)
     return Document(name, data, positions, sha)
+
+
+class _NotPlain(Exception):
+    """The event path declines: the node path loads the text (and reports what is wrong)."""
+
+
+_SCALAR_EV, _MAP_EV, _SEQ_EV = yaml.ScalarEvent, yaml.MappingStartEvent, yaml.SequenceStartEvent
+_MAP_END_EV, _SEQ_END_EV = yaml.MappingEndEvent, yaml.SequenceEndEvent
+_DOC_EV, _DOC_END_EV = yaml.DocumentStartEvent, yaml.DocumentEndEvent
+_STREAM_EV, _STREAM_END_EV = yaml.StreamStartEvent, yaml.StreamEndEvent
+_KEY_TYPES = (str, int, float, bool)
+
+
+def _build_from_events(text: str):
+    """(data, positions) of a plain document, built from the parser's events; _NotPlain otherwise.
+
+    Gives what the node path gives (`_Converter` on the composed tree): the same values
+    (`_plain_scalar` for plain scalars), the same positions (a mapping value sits at its
+    key, a list item or the root at its own start), the same depth count as
+    `_check_depth`. It declines anchors, aliases, explicit tags (hence merge keys),
+    several documents, non-scalar, null or repeated keys, too many nodes and any
+    parser error, so that the node path reports them with its own findings.
+    """
+    parser = _Loader(text)
+    get = parser.get_event
+    positions: dict = {}
+    root = None
+    docs = 0
+    count = 0  # nodes other than keys, as _Converter counts them
+    stack: list = []
+    container = None  # the dict or list being filled; None at the top level
+    path: tuple = ()
+    is_map = False
+    key = None  # pending key of the mapping being filled
+    index = 0  # next index of the list being filled
+    try:
+        while True:
+            ev = get()
+            cls = type(ev)
+            if cls is _SCALAR_EV:
+                if ev.tag is not None or ev.anchor is not None:
+                    raise _NotPlain
+                value = ev.value if ev.style else _plain_scalar(ev.value)
+                m = ev.start_mark
+                if is_map:
+                    if key is None:
+                        if value is None or not isinstance(value, _KEY_TYPES):
+                            raise _NotPlain
+                        key = str(value)
+                        if key in container:
+                            raise _NotPlain
+                        positions[path + (key,)] = (m.line + 1, m.column + 1)
+                        continue
+                    count += 1
+                    container[key] = value
+                    key = None
+                    continue
+                count += 1
+                if container is None:
+                    positions[()] = (m.line + 1, m.column + 1)
+                    root = value
+                    continue
+                positions[path + (index,)] = (m.line + 1, m.column + 1)
+                container.append(value)
+                index += 1
+                continue
+            if cls is _MAP_EV or cls is _SEQ_EV:
+                if ev.tag is not None or ev.anchor is not None or len(stack) >= MAX_DEPTH:
+                    raise _NotPlain
+                count += 1
+                new: Any = {} if cls is _MAP_EV else []
+                m = ev.start_mark
+                if is_map:
+                    if key is None:
+                        raise _NotPlain  # a mapping or list used as a key
+                    new_path = path + (key,)
+                    container[key] = new
+                elif container is None:
+                    new_path = ()
+                    positions[()] = (m.line + 1, m.column + 1)
+                    root = new
+                else:
+                    new_path = path + (index,)
+                    positions[new_path] = (m.line + 1, m.column + 1)
+                    container.append(new)
+                    index += 1
+                stack.append((container, path, is_map, key, index))
+                container, path, is_map, key, index = new, new_path, cls is _MAP_EV, None, 0
+                continue
+            if cls is _MAP_END_EV or cls is _SEQ_END_EV:
+                container, path, is_map, key, index = stack.pop()
+                key = None
+                continue
+            if cls is _DOC_EV:
+                docs += 1
+                if docs > 1:
+                    raise _NotPlain
+                continue
+            if cls is _STREAM_END_EV:
+                break
+            if cls is _DOC_END_EV or cls is _STREAM_EV:
+                continue
+            raise _NotPlain  # an alias, or an event this path does not know
+    except Exception:  # a parser error, or anything unforeseen: the node path reports it its own way
+        raise _NotPlain from None
+    finally:
+        parser.dispose()
+    if count > MAX_NODES:
+        raise _NotPlain
+    return root, positions
 
 
 def _check_depth(text: str, name: str) -> None:

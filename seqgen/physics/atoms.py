@@ -8,6 +8,8 @@ Everything returned here is SI: kg, Hz, m, W/m^2, J/T.
 Sign convention for Zeeman energies (as in the alkali D-line data
 compilations): E = (g_J m_J + g_I m_I) mu_B B, and to first order in B
 E = g_F m_F mu_B B. A positive g_F m_F is therefore a low-field seeker.
+Magnetic moments are -dE/dB (the package-wide convention, see
+``seqgen.physics``): negative for a low-field seeker.
 """
 
 from __future__ import annotations
@@ -159,12 +161,15 @@ def g_f(species: Species, F: float) -> float:
 
 
 def magnetic_moment_first_order(species: Species, F: float, mF: float) -> float:
-    """First-order magnetic moment in J/T: mu = g_F m_F mu_B.
+    """First-order (low-field) magnetic moment in J/T: moment = -dE/dB = -g_F m_F mu_B.
 
-    Sign convention: the Zeeman energy is E = +mu B (= g_F m_F mu_B B), so a
-    positive value is a low-field seeker (trappable in a magnetic minimum) and
-    a negative value a high-field seeker. m_F = 0 gives zero (clock states).
+    Sign convention of the whole physics package (``seqgen.physics``): the
+    Zeeman energy is E = g_F m_F mu_B B to first order, the moment is -dE/dB,
+    so a negative value is a low-field seeker (trappable in a magnetic
+    minimum, pulled towards weaker field: force = moment grad|B|) and a
+    positive value a high-field seeker. m_F = 0 gives zero (clock states).
+    Equals ``seqgen.physics.zeeman.magnetic_moment`` at B = 0.
     """
     if abs(mF) > F + 1e-9 or abs((F - mF) - round(F - mF)) > 1e-9:
         raise ValueError(f"mF = {mF:g} is not a sublevel of F = {F:g}")
-    return g_f(species, F) * mF * MU_B
+    return -g_f(species, F) * mF * MU_B

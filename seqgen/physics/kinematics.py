@@ -2,7 +2,8 @@
 
 SI units: J/T, T/m, s, kg, m, m/s. One axis (z) throughout.
 
-Sign convention for magnetic forces: the moment is mu = -dE/dB (as in
+Sign convention for magnetic forces (the package-wide one, see
+``seqgen.physics``): the moment is mu = -dE/dB (as in
 seqgen.physics.zeeman.magnetic_moment), so the force is
 F_z = -dE/dz = -(dE/dB)(dB/dz) = mu dB/dz, with dB/dz the gradient of the
 field magnitude along z. A low-field seeker (mu < 0) is pushed towards weaker field.
@@ -16,9 +17,12 @@ import numpy as np
 from scipy import constants as sc
 
 from .imaging import scattering_rate
+from .zeeman import magnetic_moment
 
 __all__ = [
     "gradient_kick_velocity",
+    "MagneticPush",
+    "magnetic_push",
     "recoil_velocity",
     "OpticalKick",
     "optical_kick",
@@ -37,6 +41,38 @@ def gradient_kick_velocity(moment_J_per_T, gradient_T_per_m, duration_s, mass_kg
     """Velocity change (m/s) from a gradient pulse: dv = mu b' t / m (constant moment and gradient)."""
     return _out(np.asarray(moment_J_per_T, dtype=float) * np.asarray(gradient_T_per_m, dtype=float)
                 * np.asarray(duration_s, dtype=float) / np.asarray(mass_kg, dtype=float))
+
+
+@dataclass(frozen=True)
+class MagneticPush:
+    """Result of magnetic_push (SI): the state's moment -dE/dB (J/T) and the signed velocity change (m/s)."""
+
+    moment: float | np.ndarray
+    velocity: float | np.ndarray
+
+
+def magnetic_push(F, mF, gradient_T_per_m, duration_s, bias_T=0.0, *, mass_kg=None, atom=None,
+                  nuclear_spin=None, hyperfine_splitting_hz=None, g_j=None, g_i=None) -> MagneticPush:
+    """Kick of a ground state |F, mF> by a magnetic gradient pulse: moment and velocity change.
+
+    moment = -dE/dB of |F, mF> at the field ``bias_T`` from the Breit-Rabi
+    formula (Phys. Rev. 38, 2082 (1931); ``zeeman.magnetic_moment``; at
+    B = 0 this is the first-order -g_F m_F mu_B), taken as constant over the
+    pulse; velocity dv = moment b' tau / m (force = moment x gradient of |B|,
+    dv = F t / m, textbook; ``gradient_kick_velocity``). A positive b' means
+    |B| grows along the push axis, so a low-field seeker (moment < 0) gets
+    dv < 0: it is pushed towards weaker field. Atomic data as keywords or
+    through ``atom`` (e.g. an atoms.Species, which also gives ``mass_kg``).
+    F, mF, gradient, duration and bias broadcast against each other.
+    Raises ValueError for a state that is not a ground level.
+    """
+    if mass_kg is None:
+        mass_kg = getattr(atom, "mass_kg", None)
+    if mass_kg is None:
+        raise TypeError("missing mass_kg (pass it as a keyword or via atom=)")
+    mu = magnetic_moment(F, mF, bias_T, nuclear_spin=nuclear_spin, hyperfine_splitting_hz=hyperfine_splitting_hz,
+                         g_j=g_j, g_i=g_i, atom=atom)
+    return MagneticPush(moment=mu, velocity=gradient_kick_velocity(mu, gradient_T_per_m, duration_s, mass_kg))
 
 
 def recoil_velocity(wavelength_m, mass_kg):

@@ -15,11 +15,12 @@ Sign conventions used throughout:
   the "+" branch is always the one that connects to F = I + 1/2 at B = 0.
 - B is the field component along the quantisation axis in tesla (may be
   negative; |F, mF> labels are continued from B = 0).
-- magnetic moment = -dE/dB (J/T). A positive moment lowers its energy in a
-  stronger field (high-field seeker); a negative one is a low-field seeker
+- magnetic moment = -dE/dB (J/T), the convention of the whole physics package
+  (``seqgen.physics``). A positive moment lowers its energy in a stronger
+  field (high-field seeker); a negative one is a low-field seeker
   (magnetically trappable). The force along z is F_z = -dE/dz = moment * dB/dz.
-  (seqgen.physics.atoms.magnetic_moment_first_order uses the opposite sign,
-  E = +mu B; there mu = g_F m_F mu_B = -moment here.)
+  ``seqgen.physics.atoms.magnetic_moment_first_order`` is the B -> 0 limit,
+  -g_F m_F mu_B.
 
 All functions take the atomic numbers as keywords, or an ``atom`` object with
 attributes of the same names (duck typing, e.g. atoms.Species); explicit

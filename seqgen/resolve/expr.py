@@ -10,6 +10,7 @@ are refused.
 from __future__ import annotations
 
 import ast
+import keyword
 import math
 import re
 from functools import lru_cache
@@ -52,6 +53,11 @@ def parse(text: str) -> ast.Expression:
                         "write a number with a unit ('2.5 ms') or an expression of params ('2 * tof + 1 ms')") from None
     except (ValueError, MemoryError, RecursionError):
         raise ExprError("syntax", f"cannot read '{text}'") from None
+
+
+def is_plain_name(text: str) -> bool:
+    """True when `parse(text)` is a bare name: evaluating it then only looks the name up."""
+    return len(text) <= MAX_LENGTH and text.isascii() and text.isidentifier() and not keyword.iskeyword(text)
 
 
 def names_in(text: str) -> set[str]:

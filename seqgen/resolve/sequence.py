@@ -21,6 +21,7 @@ import networkx as nx
 from ..findings import Finding, SourcePos, make
 from ..load.yamlsrc import Document, LoadError, load_file
 from ..model import Accept, Block, Limits, Param, PhysAction, Sample, Segment, Shot
+from ..registry import declare
 from ..validate.schema import validate_document
 from . import errors as E
 from .expr import ExprError, names_in
@@ -63,7 +64,7 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
                  allow_outside_root: bool | None = None) -> Sources:
     """Load and validate a sequence, the files it uses, and its rig.
 
-    `allow_outside_root`: let `use:` name files outside the project root (None: the
+    `allow_outside_root`: let `use:` and `rig:` name files outside the project root (None: the
     SEQGEN_ALLOW_OUTSIDE environment variable decides)."""
     from ..load.yamlsrc import load_text
 
@@ -80,6 +81,10 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
     rig_text = main.data.get("rig")
     if isinstance(rig_text, str):
         rig_path = (p.parent / rig_text)
+        refused = _rig_refused(main, rig_text, rig_path, p, allow_outside_root)
+        if refused is not None:  # the use: root policy holds for the rig too
+            src.findings.append(refused)
+            return src
         try:
             rig = load_file(rig_path, _display(rig_path))
         except LoadError as exc:
@@ -137,6 +142,35 @@ def _outside_allowed(flag: bool | None) -> bool:
     if flag is not None:
         return bool(flag)
     return os.environ.get("SEQGEN_ALLOW_OUTSIDE", "").strip().lower() in ("1", "true", "yes")
+
+
+RIG_OUTSIDE_ROOT = declare("schema.rig-outside-root", "error", """
+    The `rig:` path names a file outside the project root: the nearest folder
+    above the top-level sequence that holds a pyproject.toml, .git or
+    seqgen.toml (else the sequence's own folder). The same rule as for `use:`
+    entries (schema.use-outside-root): a sequence may not read files from
+    elsewhere on the machine by `../`, an absolute path or a symbolic link
+    that leads out. Keep the rig file in the project (e.g. `rigs/`), or allow
+    it explicitly with `--allow-outside-root` or SEQGEN_ALLOW_OUTSIDE=1.""", E.S, "load")
+
+
+def _rig_refused(main: Document, rig_text: str, rig_path: Path, top: Path,
+                 allow_outside_root: bool | None) -> Finding | None:
+    """The finding that refuses a `rig:` path outside the project root (or that cannot be resolved), else None."""
+    if _outside_allowed(allow_outside_root):
+        return None
+    try:
+        resolved, root = rig_path.resolve(), project_root(top.resolve())
+    except (RuntimeError, OSError) as exc:  # a symlink loop (RuntimeError before Python 3.13)
+        return make("schema.file-missing", f"rig file '{rig_text}' cannot be read: {exc}", main.pos(("rig",)),
+                    hint="the path is a symbolic link loop; fix the link")
+    if resolved.is_relative_to(root):
+        return None
+    shown = _display(root)
+    shown = "(the current folder)" if shown == "." else f"'{shown}'"
+    return make(RIG_OUTSIDE_ROOT, f"rig file '{rig_text}' is outside the project root {shown}", main.pos(("rig",)),
+                hint="keep the rig file in the project (e.g. rigs/ beside the sequences), or allow it with "
+                     "--allow-outside-root (or SEQGEN_ALLOW_OUTSIDE=1)")
 
 
 def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_outside_root: bool | None = None) -> None:
@@ -769,9 +803,40 @@ def _do_image(ctx, spec, t0, path):
     return t0 + max(dur, exposure)
 
 
+def _do_magnetic_hold(ctx, spec, t0, path):
+    """Hold the sample in a magnetic trap: each coil of `currents` goes to its current (at once, or ramped
+    over `ramp_on`) and stays there for `duration`; the coils stay on afterwards (turn them off with
+    `release: {coils: [...]}`). The physics checks read the trap from every coil's current at the hold start."""
+    dur = ctx.q(spec, "duration", path, "s", positive=True)
+    ramp_on = ctx.q(spec, "ramp_on", path, "s", positive=True) if "ramp_on" in spec else 0.0
+    cpath = path + ("currents",)
+    currents = []
+    for name, raw in spec["currents"].items():
+        name = str(name)
+        coil = _named(ctx, ctx.rig.coils, "coil", name, cpath + (name,))
+        out = ctx.output_for(coil.current_channel, cpath + (name,))
+        amps = quantity(raw, "A", ctx.doc, cpath + (name,), ctx.env, what=f"current of coil '{name}'")
+        if ramp_on:
+            ctx.ramp(out, {"shape": spec.get("shape", "linear")}, t0, cpath + (name,), "magnetic_hold", None, amps,
+                     ramp_on)
+        else:
+            ctx.seg(out, "set", t0, t0, None, amps, "magnetic_hold", cpath + (name,))
+        currents.append((coil.name, amps))
+    args = dict(currents=tuple(currents), duration=dur, ramp_on=ramp_on)
+    st = spec.get("state")
+    if st:
+        if abs(st["mF"]) > st["F"]:
+            raise Bad(make(E.BAD_SAMPLE, f"state F={st['F']}, mF={st['mF']} is impossible (|mF| > F)",
+                           ctx.doc.pos(path + ("state",)), block=ctx.block, hint="mF runs from -F to F"))
+        args["state"] = (int(st["F"]), int(st["mF"]))
+    _phys(ctx, "magnetic_hold", t0, t0 + ramp_on + dur, path, **args)
+    return t0 + ramp_on + dur
+
+
 _LOWER = {"set": _do_set, "ramp": _do_ramp, "sweep": _do_sweep, "pulse": _do_pulse, "hold": _do_hold,
           "trigger": _do_trigger, "trap_ramp": _do_trap_ramp, "release": _do_release, "push": _do_push,
-          "barrier": _do_barrier, "clock_pulse": _do_clock_pulse, "separate": _do_separate, "image": _do_image}
+          "barrier": _do_barrier, "clock_pulse": _do_clock_pulse, "separate": _do_separate, "image": _do_image,
+          "magnetic_hold": _do_magnetic_hold}
 ACTION_KINDS = tuple(_LOWER)
 
 

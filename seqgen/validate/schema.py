@@ -3,6 +3,12 @@
 Validator errors are turned into findings at the YAML line and column of the
 offending key or value, with a "did you mean" for misspelt keys. Validators are
 built once per schema and cached.
+
+A valid document (the usual case) is recognised by a compiled yes/no check
+(`fast.py`) that gives the same answer as jsonschema's `is_valid`, many times
+faster. Only an invalid document is walked by jsonschema's `iter_errors`, so
+every finding comes from jsonschema's own errors; during that walk each `$ref`
+whose target the compiled check accepts is skipped, since it can yield no error.
 """
 
 from __future__ import annotations
@@ -17,6 +23,7 @@ import jsonschema
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from ..registry import declare
+from .fast import FastSchema, compile_schema
 
 UNKNOWN_KEY = declare("schema.unknown-key", "error", """
     A key the format does not know. Usually a typo: the message suggests the
@@ -54,9 +61,35 @@ def load_schema(schema_name: str) -> dict:
     return _validator(schema_name).schema
 
 
+@lru_cache(maxsize=None)
+def _fast(schema_name: str) -> tuple[FastSchema | None, jsonschema.Draft202012Validator]:
+    """(compiled check or None, the validator that walks an invalid document for its errors)."""
+    plain = _validator(schema_name)
+    fast = compile_schema(plain)
+    if fast is None:
+        return None, plain
+    base_ref = plain.VALIDATORS["$ref"]
+
+    def ref(validator, ref, instance, schema):
+        accept = fast.ref(ref)
+        if accept is not None and accept(instance):
+            return  # the target accepts the instance: jsonschema would find no error in it
+        yield from base_ref(validator, ref, instance, schema)
+
+    walker = jsonschema.validators.extend(jsonschema.Draft202012Validator, {"$ref": ref})
+    return fast, walker(plain.schema)
+
+
 def validate_document(doc: Document, schema_name: str) -> list[Finding]:
-    validator = _validator(schema_name)
-    errors = sorted(validator.iter_errors(doc.data), key=lambda e: (list(map(str, e.absolute_path)), e.validator))
+    fast, validator = _fast(schema_name)
+    if fast is not None and fast.is_valid(doc.data):
+        return []
+    return findings_from_errors(validator.iter_errors(doc.data), doc)
+
+
+def findings_from_errors(errors, doc: Document) -> list[Finding]:
+    """Findings for jsonschema's errors on `doc`, in path order, at most MAX_REPORTED."""
+    errors = sorted(errors, key=lambda e: (list(map(str, e.absolute_path)), e.validator))
     findings: list[Finding] = []
     seen_paths = set()
     for err in errors:

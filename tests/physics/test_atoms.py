@@ -177,13 +177,14 @@ def test_rb87_clock_quadratic_zeeman_from_data():
 @pytest.mark.parametrize("name", ALL)
 def test_g_f_closed_forms(name):
     # for J = 1/2: g_F(I+1/2) = (g_J + 2 I g_I)/(2I+1), g_F(I-1/2) = (-g_J + (2I+2) g_I)/(2I+1)
-    # (Rev. Mod. Phys. 49, 31 (1977)); the upper form makes the stretched-state moment
-    # g_F F mu_B = (g_J/2 + I g_I) mu_B, exact at all fields (Phys. Rev. 38, 2082 (1931))
+    # (Rev. Mod. Phys. 49, 31 (1977)); the upper form makes the stretched-state energy
+    # g_F F mu_B B = (g_J/2 + I g_I) mu_B B, exact at all fields (Phys. Rev. 38, 2082 (1931)),
+    # so its moment -dE/dB is -(g_J/2 + I g_I) mu_B
     s = get_species(name)
     i = s.nuclear_spin
     assert g_f(s, i + 0.5) == pytest.approx((s.g_j + 2 * i * s.g_i) / (2 * i + 1), rel=1e-12)
     assert g_f(s, i - 0.5) == pytest.approx((-s.g_j + (2 * i + 2) * s.g_i) / (2 * i + 1), rel=1e-12)
-    assert magnetic_moment_first_order(s, i + 0.5, i + 0.5) == pytest.approx((s.g_j / 2 + i * s.g_i) * MU_B, rel=1e-12)
+    assert magnetic_moment_first_order(s, i + 0.5, i + 0.5) == pytest.approx(-(s.g_j / 2 + i * s.g_i) * MU_B, rel=1e-12)
 
 
 def test_rb87_g_factors_and_signs():
@@ -191,14 +192,48 @@ def test_rb87_g_factors_and_signs():
     # g_F = +1/2 (F=2) and -1/2 (F=1), approximately (Rubidium 87 D Line Data)
     assert g_f(rb, 2) == pytest.approx(0.5, abs=1e-3)
     assert g_f(rb, 1) == pytest.approx(-0.5, abs=2e-3)
-    # low-field seekers |2,2>, |2,1>, |1,-1>; high-field seeker |1,1> (common practice, no source)
-    assert magnetic_moment_first_order(rb, 2, 2) > 0
-    assert magnetic_moment_first_order(rb, 2, 1) > 0
-    assert magnetic_moment_first_order(rb, 1, -1) > 0
-    assert magnetic_moment_first_order(rb, 1, 1) < 0
+    # low-field seekers |2,2>, |2,1>, |1,-1>; high-field seeker |1,1> (common practice, no source):
+    # moment = -dE/dB (the package convention) is negative for a low-field seeker
+    assert magnetic_moment_first_order(rb, 2, 2) < 0
+    assert magnetic_moment_first_order(rb, 2, 1) < 0
+    assert magnetic_moment_first_order(rb, 1, -1) < 0
+    assert magnetic_moment_first_order(rb, 1, 1) > 0
+    # |1,-1>: g_F m_F = +1/2, moment about -mu_B / 2
+    assert magnetic_moment_first_order(rb, 1, -1) == pytest.approx(-0.5 * MU_B, rel=5e-3)
     # m_F = 0 clock states have no first-order moment (common practice, no source)
     assert magnetic_moment_first_order(rb, 1, 0) == 0.0
     assert magnetic_moment_first_order(rb, 2, 0) == 0.0
+
+
+def _rb87_breit_rabi_hz(F, m, B):
+    """E/h of an Rb-87 ground level, Breit-Rabi formula written out here (Phys. Rev. 38, 2082 (1931)):
+    E = -h nu/(2(2I+1)) + g_I mu_B m B +/- (h nu/2) sqrt(1 + 4 m x/(2I+1) + x^2), x = (g_J - g_I) mu_B B/(h nu),
+    "+" for F = 2; stretched states |m| = 2 use the root 1 + sign(m) x. Data from "Rubidium 87 D Line Data"
+    (via REFERENCES.md): I = 3/2, nu = 6 834 682 610.904 Hz, g_J = 2.00233113, g_I = -0.0009951414."""
+    nu, gj, gi, i = 6834682610.904, 2.00233113, -0.0009951414, 1.5
+    x = (gj - gi) * MU_B * B / (sc.h * nu)
+    root = 1 + math.copysign(1.0, m) * x if abs(m) == 2 else math.sqrt(1 + 4 * m * x / (2 * i + 1) + x * x)
+    return -nu / (2 * (2 * i + 1)) + gi * MU_B * m * B / sc.h + (1 if F == 2 else -1) * 0.5 * nu * root
+
+
+def test_first_order_moment_is_minus_dE_dB_of_breit_rabi():
+    # The package convention moment = -dE/dB, checked against the hand-written Breit-Rabi levels at low field
+    # (central difference over +/- 1 mG: the quadratic term cancels, the cubic one is ~1e-9 of the slope)
+    from seqgen.physics.zeeman import magnetic_moment
+
+    rb = get_species("Rb87")
+    h = 1e-7  # T
+    for F, m in [(1, -1), (1, 0), (1, 1), (2, -2), (2, -1), (2, 0), (2, 1), (2, 2)]:
+        slope = sc.h * (_rb87_breit_rabi_hz(F, m, h) - _rb87_breit_rabi_hz(F, m, -h)) / (2 * h)
+        assert magnetic_moment_first_order(rb, F, m) == pytest.approx(-slope, abs=1e-6 * MU_B)
+        # the exact moment of the Zeeman module has the same sign and, at B = 0, the same value
+        assert magnetic_moment(F, m, 0.0, atom=rb) == pytest.approx(magnetic_moment_first_order(rb, F, m),
+                                                                    rel=1e-12, abs=1e-40)
+    # |F=1, mF=-1>: g_F = -1/2 ("Rubidium 87 D Line Data"), its energy rises with the field (a low-field
+    # seeker) and its moment is negative; the force moment x grad|B| then points towards weaker field
+    assert _rb87_breit_rabi_hz(1, -1, 1e-4) > _rb87_breit_rabi_hz(1, -1, 0.0)
+    assert g_f(rb, 1) == pytest.approx(-0.5, abs=2e-3)
+    assert magnetic_moment_first_order(rb, 1, -1) < 0
 
 
 def test_k40_inverted_g_factors():
@@ -243,7 +278,11 @@ def test_quadrupole_levitation_flattens_vertical_potential():
     z = np.linspace(-1e-3, -1e-4, 50)
     pts = np.stack([np.zeros_like(z), np.zeros_like(z), z], axis=-1)
     u = mt.quadrupole_potential(mu, radial, pts, mass_kg=rb.mass_kg)
-    assert np.ptp(u) < 1e-9 * mu * radial * 1e-3
+    assert np.ptp(u) < 1e-9 * abs(mu) * radial * 1e-3
+    # without gravity the low-field seeker (moment < 0) sits at the field zero: U = |moment| |B| >= 0
+    assert mt.quadrupole_potential(mu, radial, [0.0, 0.0, 0.0]) == 0.0
+    assert mt.quadrupole_potential(mu, radial, [[1e-4, 0, 0], [0, 0, -1e-4]]) == pytest.approx(
+        [abs(mu) * radial * 1e-4, abs(mu) * 2 * radial * 1e-4], rel=1e-12)
     # radially the field magnitude grows at b', axially at 2 b'
     assert mt.quadrupole_field_magnitude(0.1, [1e-3, 0, 0]) == pytest.approx(1e-4)
     assert mt.quadrupole_field_magnitude(0.1, [0, 0, 1e-3]) == pytest.approx(2e-4)
@@ -267,9 +306,13 @@ def test_ioffe_pritchard_against_field_expansion():
     curv_x = (bmag(h, 0, 0) - 2 * bmag(0, 0, 0) + bmag(-h, 0, 0)) / h**2
     curv_z = (bmag(0, 0, 10 * h) - 2 * bmag(0, 0, 0) + bmag(0, 0, -10 * h)) / (10 * h) ** 2
     w_rho, w_z = mt.ioffe_pritchard_frequencies(mu, b1, b2, b0, rb.mass_kg)
-    assert w_rho == pytest.approx(np.sqrt(mu * curv_x / rb.mass_kg), rel=1e-4)
-    assert w_z == pytest.approx(np.sqrt(mu * curv_z / rb.mass_kg), rel=1e-4)
+    # U = -moment |B| = |moment| |B| for the low-field seeker |1,-1> (moment = -dE/dB < 0)
+    assert mu < 0
+    assert w_rho == pytest.approx(np.sqrt(-mu * curv_x / rb.mass_kg), rel=1e-4)
+    assert w_z == pytest.approx(np.sqrt(-mu * curv_z / rb.mass_kg), rel=1e-4)
     assert w_z == pytest.approx(mt.harmonic_trap_frequency(mu, b2, rb.mass_kg), rel=1e-12)
+    with pytest.raises(ValueError):  # a high-field seeker is not held in a field minimum
+        mt.harmonic_trap_frequency(-mu, b2, rb.mass_kg)
 
 
 def test_gravity_sag_harmonic():

@@ -1,6 +1,8 @@
 """Magnetic and optical kicks, arrival times and Stern-Gerlach separation, checked
 against handbook values, scipy.constants, hand formulas and independent ODE / Monte Carlo."""
 
+from types import SimpleNamespace
+
 import numpy as np
 import pytest
 from scipy import constants as sc
@@ -32,9 +34,43 @@ def test_gradient_kick_hand_formula_and_sign():
 
 def test_levitation_gradient_rb87_stretched_state():
     # magnetic levitation of Rb-87 |2,2> (g_F m_F = 1) needs about 15.3 G/cm (from memory):
-    # the magnetic kick over 1 s then equals g_n * 1 s
-    gradient = 15.26e-2  # T/m (15.26 G/cm)
-    assert k.gradient_kick_velocity(MU_B, gradient, 1.0, M_RB87) == pytest.approx(G_N, rel=5e-3)
+    # the magnetic kick over 1 s then equals g_n * 1 s, upwards. The low-field seeker has moment
+    # -dE/dB = -mu_B, so |B| must grow downwards: d|B|/dz = -15.26 G/cm with z up.
+    gradient = -15.26e-2  # T/m
+    assert k.gradient_kick_velocity(-MU_B, gradient, 1.0, M_RB87) == pytest.approx(G_N, rel=5e-3)
+
+
+RB87 = SimpleNamespace(nuclear_spin=1.5, hyperfine_splitting_hz=6834682610.904, g_j=2.00233113,
+                       g_i=-0.0009951414, mass_kg=M_RB87)  # "Rubidium 87 D Line Data" (via REFERENCES.md)
+
+
+def test_magnetic_push_of_stretched_state_is_exact_at_any_field():
+    # |2,2> is a pure |m_J = 1/2, m_I = 3/2> state: E = (g_J/2 + 3 g_I/2) mu_B B at every field
+    # (Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)), so moment -dE/dB = -(g_J/2 + 3 g_I/2) mu_B;
+    # dv = moment b' tau / m (force = moment x gradient of |B|, textbook)
+    moment = -(RB87.g_j / 2 + 1.5 * RB87.g_i) * MU_B
+    for bias in (0.0, 1e-4, 0.1):
+        push = k.magnetic_push(2, 2, 0.2, 3e-3, bias, atom=RB87)
+        assert push.moment == pytest.approx(moment, rel=1e-12)
+        assert push.velocity == pytest.approx(moment * 0.2 * 3e-3 / M_RB87, rel=1e-12)
+    assert push.velocity < 0  # a low-field seeker is pushed towards weaker field
+
+
+def test_magnetic_push_low_field_and_vectorised():
+    # at B = 0 the moment is -g_F m_F mu_B, g_F(F=1) = (-g_J + (2I+2) g_I)/(2I+1) for J = 1/2
+    # (Rev. Mod. Phys. 49, 31 (1977)); m_F = 0 is not pushed (common practice, no source)
+    g1 = (-RB87.g_j + 5 * RB87.g_i) / 4
+    push = k.magnetic_push(1, np.array([-1.0, 0.0, 1.0]), 0.08, 2e-3, 0.0, atom=RB87)
+    np.testing.assert_allclose(push.moment, -g1 * np.array([-1.0, 0.0, 1.0]) * MU_B, rtol=1e-12, atol=1e-40)
+    np.testing.assert_allclose(push.velocity, push.moment * 0.08 * 2e-3 / M_RB87, rtol=1e-14, atol=0)
+    assert push.velocity[0] < 0 < push.velocity[2] and push.velocity[1] == 0.0
+    # explicit mass wins; no mass at all is an error; not a ground level is an error
+    assert k.magnetic_push(1, -1, 0.08, 2e-3, atom=RB87, mass_kg=2 * M_RB87).velocity == pytest.approx(
+        0.5 * push.velocity[0], rel=1e-14)
+    with pytest.raises(TypeError):
+        k.magnetic_push(1, -1, 0.08, 2e-3, nuclear_spin=1.5, hyperfine_splitting_hz=6.8e9, g_j=2.0, g_i=0.0)
+    with pytest.raises(ValueError):
+        k.magnetic_push(3, 0, 0.08, 2e-3, atom=RB87)
 
 
 def test_optical_kick_mean_and_heating():

@@ -85,6 +85,30 @@ def test_gaussian_beam_basics():
     assert o.rayleigh_length(50e-6, 1064e-9) == pytest.approx(7.3816e-3, rel=1e-4)
 
 
+def test_modulated_sheet_peak_intensity_against_numerical_normalisation():
+    # Light sheet, waists 45 um x 1.8 um, power P(t) = P_mean (1 + eps cos(w t)) (time average P_mean, as a
+    # power meter reads). The centre intensity is P(t) / integral of exp(-2x^2/w1^2 - 2y^2/w2^2) dx dy,
+    # the integral done numerically here (scipy quad, each axis), and its largest value over a period is at
+    # cos = 1 (definition of the modulation).
+    from scipy import integrate
+
+    w1, w2, p_mean, eps = 45e-6, 1.8e-6, 0.43e-3, 0.35
+    area = (integrate.quad(lambda x: np.exp(-2 * x**2 / w1**2), -10 * w1, 10 * w1, epsabs=0, epsrel=1e-13)[0]
+            * integrate.quad(lambda y: np.exp(-2 * y**2 / w2**2), -10 * w2, 10 * w2, epsabs=0, epsrel=1e-13)[0])
+    t = np.linspace(0.0, 1.0, 1001)  # one period, both ends
+    power = p_mean * (1 + eps * np.cos(2 * np.pi * t))
+    assert np.mean(power[:-1]) == pytest.approx(p_mean, rel=1e-12)
+    assert o.modulated_peak_intensity(p_mean, w1, w2, eps) == pytest.approx(power.max() / area, rel=1e-10)
+    # no modulation: the plain peak intensity; round beam when the second waist is left out; vectorised
+    assert o.modulated_peak_intensity(p_mean, w1, w2) == pytest.approx(p_mean / area, rel=1e-10)
+    assert o.modulated_peak_intensity(1.0, 50e-6, None, 1.0) == pytest.approx(2 * o.peak_intensity(1.0, 50e-6), rel=1e-15)
+    np.testing.assert_allclose(o.modulated_peak_intensity(p_mean, w1, w2, np.array([0.0, 1.0])),
+                               [p_mean / area, 2 * p_mean / area], rtol=1e-10)
+    for bad in (-0.1, 1.5, np.nan):
+        with pytest.raises(ValueError):
+            o.modulated_peak_intensity(p_mean, w1, w2, bad)
+
+
 @pytest.mark.parametrize("w2", [None, 20e-6])
 def test_beam_power_through_planes(w2):
     # the transverse integral of I is P in every plane; on axis at s = z_R the peak drops to 1/2
