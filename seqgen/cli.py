@@ -26,7 +26,8 @@ def _caution() -> str:
     return "caution: " + CAUTION
 
 
-def _report(res, args, out=None) -> int:
+def _report(res, args, out=None, choice=None) -> int:
+    """Print the findings of one shot; `choice` (seqgen.show.ShotChoice): which shot of a scan it is."""
     out = out or sys.stdout  # looked up per call, so redirection (and tests) see the output
     fmt = _format(args)
     if fmt == "sarif":
@@ -34,9 +35,13 @@ def _report(res, args, out=None) -> int:
 
         out.write(to_sarif_json(res.findings, sources=res.sources.hashes if res.sources else None))
     elif fmt == "json":
-        out.write(json.dumps({"file": args.file, "summary": summary(res.findings),
-                              "findings": [f.to_dict() for f in res.findings]}, indent=2, sort_keys=True) + "\n")
+        doc = {"file": args.file, "summary": summary(res.findings), "findings": [f.to_dict() for f in res.findings]}
+        if choice is not None:
+            doc["scan"] = choice.to_json()
+        out.write(json.dumps(doc, indent=2, sort_keys=True) + "\n")
     else:
+        if choice is not None:
+            out.write(f"{args.file}: {choice.caption()}\n")
         for f in res.findings:
             out.write(format_text(f) + "\n")
         s = summary(res.findings)
@@ -81,11 +86,25 @@ def cmd_check(args) -> int:
     report = getattr(args, "report", None)
     if report and Path(report).exists() and not args.force:
         return _cannot_run(f"{report} exists; use --force to replace it")
+    if getattr(args, "shot", None) is not None:  # one shot of a scan, preflighted like a file without scans
+        try:
+            res, choice, _ = _preflight_shot(args.file, args.shot)
+        except _ShotRefused as exc:
+            return _cannot_run(exc)
+        code = _report(res, args, choice=choice)
+        if report:
+            wrote = _write_check_report(report, res, args, choice=choice)
+            code = code if wrote == EXIT_OK else wrote
+        return code
     scan = _plan_scan(args)
     if scan.is_scan:
         code = _scan_run(scan, args, build=False)
-        if report:  # the report shows the nominal shot: every param at its written value
-            wrote = _write_check_report(report, preflight(args.file), args, scanned=True)
+        if report:  # the scan's plan, shots and per-code summary, then the base shot in detail
+            from .show import shot_choice
+
+            base = preflight(args.file, sources=scan.sources)
+            choice = shot_choice(scan.plan, None, base.shot) if scan.plan is not None else None
+            wrote = _write_check_report(report, base, args, scan=scan, choice=choice)
             code = code if wrote == EXIT_OK else wrote
         return code
     res = preflight(args.file, sources=scan.sources)
@@ -96,12 +115,13 @@ def cmd_check(args) -> int:
     return code
 
 
-def _write_check_report(path, res, args, scanned: bool = False) -> int:
-    """check --report FILE: the self-contained HTML preflight report (seqgen/emit/report.py)."""
+def _write_check_report(path, res, args, scan=None, choice=None) -> int:
+    """check --report FILE: the self-contained HTML preflight report (seqgen/emit/report.py); `scan`: the run
+    scan (batch.Scan) whose plan, shots and per-code summary head it; `choice`: which shot `res` is."""
     from .emit.report import OutputExists, write_report
 
     failed, _ = _writing(f"the report to {path}", lambda: write_report(path, res, args.file, force=args.force,
-                                                                        scanned=scanned), (OutputExists,))
+                                                                        scan=scan, choice=choice), (OutputExists,))
     if failed:
         return failed
     print(f"report written to {path}", file=sys.stderr if _format(args) != "text" else sys.stdout)
@@ -113,7 +133,6 @@ def cmd_plot(args) -> int:
     from .emit.plot import OutputExists, PlotError, diff_figure, format_of, parse_channels, parse_time, \
         save_figure, timeline_figure
     from .findings import has_errors
-    from .pipeline import preflight
 
     try:
         if len(args.files) not in (1, 2):
@@ -125,7 +144,13 @@ def cmd_plot(args) -> int:
         return _cannot_run(exc)
     if Path(args.output).exists() and not args.force:
         return _cannot_run(f"{args.output} exists; use --force to replace it")
-    results = [preflight(f) for f in args.files]
+    try:  # each file's base shot, or its shot N of the scan (--shot N)
+        picked = [_preflight_shot(f, args.shot) for f in args.files]
+    except _ShotRefused as exc:
+        return _cannot_run(exc)
+    results = [r for r, _, _ in picked]
+    choices = [c for _, c, _ in picked]
+    captions = [_scan_caption(c, scan) for _, c, scan in picked]
     for f, res in zip(args.files, results):
         if res.shot is None:  # nothing to draw: show why
             args.file = f
@@ -138,12 +163,13 @@ def cmd_plot(args) -> int:
         if len(results) == 1:
             res = results[0]
             fig = timeline_figure(res.shot, res.compiled, res.findings, t_from=t_from, t_to=t_to, channels=channels,
-                                  physics=not args.no_physics)
+                                  physics=not args.no_physics, subtitle=captions[0])
         else:
             old, new = results
+            sub = "\n".join(f"{which} ({f}): {c}" for which, f, c in zip(("old", "new"), args.files, captions) if c)
             fig = diff_figure(old.shot, old.compiled, new.shot, new.compiled, old_label=args.files[0],
                               new_label=args.files[1], t_from=t_from, t_to=t_to, channels=channels,
-                              findings=new.findings)
+                              findings=new.findings, subtitle=sub or None)
         save_figure(fig, args.output, force=args.force)
         return fig
 
@@ -157,11 +183,16 @@ def cmd_plot(args) -> int:
                "lanes": list(info["lanes"]), "summary": [summary(r.findings) for r in results]}
         if "differs" in info:
             out["differs"] = {k: [list(w) for w in v] for k, v in info["differs"].items()}
+        if any(choices):
+            out["scan"] = [c.to_json() if c is not None else None for c in choices]
         print(json.dumps(out, indent=2, sort_keys=True))
     else:
         t0, t1 = info["window"]
         print(f"wrote {args.output}: {len(info['lanes'])} lanes, {format_value(t0, 's')} to {format_value(t1, 's')}"
               + (f"; {len(info['differs'])} output(s) differ" if "differs" in info else ""))
+        for f, c in zip(args.files, captions):
+            if c:
+                print(f"  {f}: {c}")
         for r in results:
             s = summary(r.findings)
             if s["error"]:
@@ -174,6 +205,51 @@ def _plan_scan(args):
     from .batch import plan_scan
 
     return plan_scan(args.file)
+
+
+class _ShotRefused(Exception):
+    """--shot N cannot be honoured (the file scans no param, or has no shot N): one line, exit 2."""
+
+
+def _preflight_shot(file, n: int | None):
+    """(Result, ShotChoice or None, Scan) of the shot that show / plot / check --shot look at.
+
+    With n None the base shot (each scanned param at its value:); else shot n of the file's scan, in run order
+    (the index of `seqgen check --json` and scan.json), resolved with that shot's values. The choice is None
+    for a file without scans. A file that does not load, validate or expand gets a Result without a shot and
+    with the findings that say why. Raises _ShotRefused for an n the file has no shot for."""
+    from .batch import plan_scan
+    from .findings import has_errors
+    from .pipeline import Result, preflight
+    from .resolve.scan import has_scans
+    from .show import shot_choice
+
+    scan = plan_scan(file)
+    if n is None or (scan.plan is None and (scan.sources is None or has_errors(scan.sources.findings))):
+        res = preflight(file, sources=scan.sources)  # a file that does not load or validate: its findings
+        return res, (shot_choice(scan.plan, None, res.shot) if scan.plan is not None else None), scan
+    if scan.plan is None:
+        if scan.findings:  # the scan cannot be expanded: why
+            return Result(findings=list(scan.findings), sources=scan.sources), None, scan
+        if not has_scans(scan.sources):
+            raise _ShotRefused(f"--shot {n}: {file} scans no param, so it has only its one shot (leave out --shot)")
+        return preflight(file, sources=scan.sources), None, scan  # the base values do not resolve: why
+    count = len(scan.plan)
+    if not 0 <= n < count:
+        raise _ShotRefused(f"--shot {n}: {file} has {count} shot(s), numbered 0 to {count - 1} in run order "
+                           "(as in 'seqgen check --json')")
+    res = preflight(file, sources=scan.sources, overrides=scan.plan.overrides(n))
+    return res, shot_choice(scan.plan, n), scan
+
+
+def _scan_caption(choice, scan) -> str | None:
+    """The line show and plot print (and plot puts under its title) about the scan, or None: no scan."""
+    if choice is not None:
+        return choice.caption()
+    if scan.is_scan and scan.plan is None:
+        return ("base shot (each scanned param at its written value); the scan cannot be expanded into shots: "
+                "run 'seqgen check' for why")
+    return None
 
 
 def _scan_run(scan, args, *, build: bool) -> int:
@@ -252,18 +328,25 @@ def cmd_build(args) -> int:
 
 
 def cmd_show(args) -> int:
-    from .pipeline import preflight
     from .show import physics_rows, timeline_rows
 
-    res = preflight(args.file)
+    try:  # the base shot, or shot N of the scan (--shot N)
+        res, choice, scan = _preflight_shot(args.file, getattr(args, "shot", None))
+    except _ShotRefused as exc:
+        return _cannot_run(exc)
     if res.shot is None:
         return _report(res, args)
+    caption = _scan_caption(choice, scan)
     rows = timeline_rows(res.shot, res.compiled)
     prows = physics_rows(res.shot) if args.physics else []
     if args.json:
-        print(json.dumps({"timeline": rows, "physics": prows, "findings": [f.to_dict() for f in res.findings]},
-                         indent=2, sort_keys=True))
+        doc = {"timeline": rows, "physics": prows, "findings": [f.to_dict() for f in res.findings]}
+        if choice is not None:
+            doc["scan"] = choice.to_json()
+        print(json.dumps(doc, indent=2, sort_keys=True))
         return _exit_code(res, args.file)
+    if caption:
+        print(f"{args.file}: {caption}")
     cols = ("block", "start", "end", "output", "action", "values", "rows")
     widths = [max(len(c), *(len(str(r[c])) for r in rows)) if rows else len(c) for c in cols]
     print("  ".join(c.ljust(w) for c, w in zip(cols, widths)))
@@ -321,6 +404,10 @@ def _scan_options(p) -> None:
                    help="scanned sequences: run the shots on a dask.distributed scheduler, e.g. tcp://host:8786")
 
 
+def _shot_option(p, text: str) -> None:
+    p.add_argument("--shot", type=int, default=None, metavar="N", help=text)
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="seqgen", description="Author, preflight, compile and diff cold-atom run sequences.")
     p.add_argument("--version", action="version", version=f"seqgen {__version__}")
@@ -336,6 +423,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--report", metavar="FILE", default=None,
                    help="also write a self-contained HTML preflight report (findings, physics notes, timeline)")
     c.add_argument("--force", action="store_true", help="replace an existing --report file")
+    _shot_option(c, "preflight only shot N of the scan (run order, as in --json), like a file without scans")
     _scan_options(c)
     c.set_defaults(func=cmd_check)
 
@@ -353,6 +441,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("file", help="sequence file (.yaml)")
     s.add_argument("--physics", action="store_true", help="also list the physics predictions per stage")
     s.add_argument("--json", action="store_true", help="timeline as JSON")
+    _shot_option(s, "show shot N of the scan (run order, as in 'seqgen check --json'); default: the base shot")
     s.add_argument("--allow-outside-root", action="store_true",
                    help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     s.set_defaults(func=cmd_show)
@@ -375,6 +464,7 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--no-physics", action="store_true", help="leave out the physics panels")
     g.add_argument("--force", action="store_true", help="replace an existing picture")
     g.add_argument("--json", action="store_true", help="what was drawn, as JSON")
+    _shot_option(g, "draw shot N of the scan (run order, as in 'seqgen check --json'); default: the base shot")
     g.add_argument("--allow-outside-root", action="store_true",
                    help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     g.set_defaults(func=cmd_plot)

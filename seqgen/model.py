@@ -107,6 +107,7 @@ class Coil:
     i2t_limit: float | None = None  # A^2 s
     i2t_window: float | None = None
     pos: SourcePos = SourcePos("")
+    field_grows_along: tuple | None = None  # unit vector: where |B| grows at the atoms during a push
 
 
 @dataclass(frozen=True)

@@ -1,8 +1,12 @@
-"""Readable views of a resolved shot (for `seqgen show`)."""
+"""Readable views of a resolved shot (for `seqgen show`), and which shot of a scan a view shows (`show`,
+`plot` and the HTML report say it: the base shot, or shot N with its param values)."""
 
 from __future__ import annotations
 
-from .resolve.units import format_value
+import math
+from dataclasses import dataclass
+
+from .resolve.units import Qty, display_unit, format_qty, format_value
 
 
 def _fmt(v, unit):
@@ -38,3 +42,57 @@ def physics_rows(shot) -> list[dict]:
     except ImportError:
         return []
     return report_physics(shot)
+
+
+# ----------------------------------------------------------------------------- which shot of a scan
+
+
+@dataclass(frozen=True)
+class ShotChoice:
+    """Which shot of an N-shot scan a view shows: shot `index` (run order, as in `seqgen check --json` and
+    scan.json), or the base shot (`index` None: every scanned param at its `value:`)."""
+
+    shots: int  # shots in the scan
+    index: int | None  # run-order index; None: the base shot
+    written_index: int | None  # position in written (unshuffled) order; None for the base shot
+    names: tuple  # scanned params, written order
+    values: tuple  # of Qty, in `names` order
+    same_as: int | None = None  # the base shot: the index of the scan's shot with the same values, if any
+
+    @property
+    def values_text(self) -> str:
+        return ", ".join(f"{n} = {format_qty(q)}" for n, q in zip(self.names, self.values))
+
+    def caption(self) -> str:
+        """One line: what is shown, with which values, and how to see another shot."""
+        last = self.shots - 1
+        if self.index is None:
+            same = f"; the same values as shot {self.same_as}" if self.same_as is not None else ""
+            pick = f"--shot 0..{last} picks a shot" if last > 0 else "--shot 0 picks it"
+            return (f"base shot of a scan of {self.shots} shots (each scanned param at its written value): "
+                    f"{self.values_text}{same}; {pick}")
+        order = f", written-order position {self.written_index}" if self.written_index != self.index else ""
+        return f"shot {self.index} of the {self.shots} shots of the scan (run order{order}): {self.values_text}"
+
+    def to_json(self) -> dict:
+        return {"shots": self.shots, "shot": self.index, "written_index": self.written_index,
+                "base": self.index is None, "same_as": self.same_as,
+                "params": {n: {"value": q.value, "unit": display_unit(q.dims)} for n, q in zip(self.names, self.values)}}
+
+
+def shot_choice(plan, index: int | None, shot=None) -> ShotChoice:
+    """The ShotChoice of shot `index` of a `ScanPlan`, or (index None) of the base shot `shot` (a resolved
+    `Shot` whose params hold the base values)."""
+    if index is not None:
+        return ShotChoice(len(plan), index, plan.written_index[index], plan.names, tuple(plan.points[index]))
+    base = {p.name: Qty(p.value, p.dims) for p in (shot.params if shot is not None else ())}
+    values = tuple(base.get(n) for n in plan.names)
+    same = None
+    if all(v is not None for v in values):
+        same = next((i for i, pt in enumerate(plan.points)
+                     if all(math.isclose(a.value, b.value, rel_tol=1e-12, abs_tol=0.0) or a.value == b.value
+                            for a, b in zip(pt, values))), None)
+    else:  # a scanned param the base shot does not resolve: show what the scan knows
+        values = tuple(v if v is not None else Qty(float("nan"), plan.axis(n).values[0].dims)
+                       for n, v in zip(plan.names, values))
+    return ShotChoice(len(plan), None, None, plan.names, values, same)

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .compile.shapes import shape_fraction
+from .compile.shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
 from .model import Shot
 
 __all__ = ["value_at"]
@@ -37,11 +37,8 @@ def value_at(shot: Shot, output: str, times) -> np.ndarray:
             inside = (t >= s.t0) & (t < s.t1)
             if np.any(inside):
                 frac_s = (t[inside] - s.t0) / (s.t1 - s.t0)
-                if s.shape in ("blackman", "gaussian"):
-                    # pulse envelopes are defined once, by the compile stage (no public name yet)
-                    from .compile.tables import _envelope
-
-                    frac = _envelope(s.shape, frac_s)
+                if s.shape in PULSE_ENVELOPES:
+                    frac = pulse_envelope(s.shape, frac_s)
                 else:
                     frac = shape_fraction(s.shape, frac_s, duration_s=s.t1 - s.t0, tau_s=s.tau_s, table=s.table)
                 v = v.copy()

@@ -391,7 +391,9 @@ def test_broken_new_version_is_a_finding_not_a_traceback(tmp_path, capsys):
     rep = diff_paths(str(old), str(new))
     (intro,) = rep.find("preflight", "finding-introduced")
     assert [c.kind for c in rep.changes] == ["finding-introduced"]  # no params 'removed': they were not read
-    assert [f.code for f in rep.old.findings] == ["safety.hard-limit"] and any("did not run" in n for n in rep.notes)
+    # 96 A is beyond both kick_current's hard limit and kick_coil's max_current (80 A each, the rig file)
+    assert sorted(f.code for f in rep.old.findings) == ["safety.coil-current", "safety.hard-limit"]
+    assert any("did not run" in n for n in rep.notes)
     # the edit is on line 12; a YAML parser reports an unclosed bracket where it gives up, at or after that line
     assert intro.data["code"] == "schema.yaml-syntax" and intro.data["line"] >= 12
     jsonschema.validate(to_dict(rep), SCHEMA)

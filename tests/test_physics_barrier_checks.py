@@ -175,12 +175,22 @@ def _rep(res):
 
 
 def test_demo_incident_velocity_is_the_magnetic_kick(demo):
-    # |v| = |g_F m_F| mu_B b' tau / m, g_F(F=1) = -g_J/4 + 5 g_I/4 for I = 3/2, J = 1/2 (Lande formula),
-    # g_J = 2.00229600, g_I = -0.00080461 (Sodium D Line Data, from memory); b' = 8 G/cm, tau = 2 ms.
-    g_f = -2.00229600 / 4 + 5 * (-0.00080461) / 4
-    v = abs(g_f * -1) * sc.physical_constants["Bohr magneton"][0] * 0.08 * 2e-3 / M_NA
+    # |v| = |mu| b' tau / m with mu = -dE/dB of |F=1, mF=-1> at the rig's 1.2 G bias, from the Breit-Rabi formula
+    # (Phys. Rev. 38, 2082 (1931)) written out: E = -h nu/(2(2I+1)) + g_I mu_B m B - (h nu/2) sqrt(1 + 4 m x/(2I+1)
+    # + x^2), x = (g_J - g_I) mu_B B/(h nu); nu = 1 771 626 128.8 Hz, g_J = 2.00229600, g_I = -0.00080461, I = 3/2
+    # (Sodium D Line Data, from memory); b' = 8 G/cm, tau = 2 ms. At B = 0 this is |g_F m_F| mu_B, g_F = -1/2 + ...
+    mu_b, nu, g_j, g_i, m = sc.physical_constants["Bohr magneton"][0], 1771626128.8, 2.00229600, -0.00080461, -1
+
+    def energy(b):
+        x = (g_j - g_i) * mu_b * b / (sc.h * nu)
+        return -sc.h * nu / 8 + g_i * mu_b * m * b - 0.5 * sc.h * nu * math.sqrt(1 + m * x + x * x)
+
+    moment = -(energy(1.2e-4 + 1e-8) - energy(1.2e-4 - 1e-8)) / 2e-8
+    v = abs(moment) * 0.08 * 2e-3 / M_NA
     rep = _rep(demo)
     assert rep["speed"] == pytest.approx(v, rel=2e-4)
+    g_f = -2.00229600 / 4 + 5 * (-0.00080461) / 4  # Lande formula, low-field limit: within 0.5 % at 1.2 G
+    assert abs(moment) == pytest.approx(abs(g_f) * mu_b, rel=5e-3)
     # the low-field seeker |1,-1> (moment -dE/dB < 0, the seqgen.physics convention) is pushed towards weaker
     # field by a positive gradient of |B| (common practice, no source), the same sign as physics.push-velocity's
     from seqgen.check import physics_states as ps

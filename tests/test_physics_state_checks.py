@@ -349,6 +349,51 @@ def test_optical_push_is_recoil_times_photons(tmp_path):
     assert "physics.push-velocity" in [x.code for x in state_findings(shot)]  # ~1 m/s is far off
 
 
+# --------------------------------------------------------------------------- push direction
+
+PUSH_THEN_SHEET = ("  - name: k\n    at: 1 ms\n    actions:\n      - {push}\n"
+                   "  - name: bar\n    after: k + 1 ms\n    actions:\n"
+                   "      - barrier: {{beam: sheet, power: 0.43 mW, duration: 30 ms}}\n")
+
+
+@pytest.mark.parametrize("F,mF,away", [
+    # moment = -dE/dB from the Breit-Rabi energies (Phys. Rev. 38, 2082 (1931), written out above): a state whose
+    # energy falls with B (mu > 0, high-field seeker) goes where |B| grows, i.e. -x for the demo's kick coil
+    # (rig file: field_grows_along [-1, 0, 0]); the sheet sits at x = +0.3 mm
+    (1, -1, False), (2, 2, False), (2, 1, False), (2, -2, True), (2, -1, True), (1, 1, True)])
+def test_push_direction_follows_the_sign_of_the_moment(tmp_path, F, mF, away):
+    dE_dB = (breit_rabi_hz(F, mF, BIAS + 1e-7) - breit_rabi_hz(F, mF, BIAS - 1e-7)) * sc.h / 2e-7
+    assert (-dE_dB > 0) == away  # the parametrisation's claim, from the formula itself
+    sample = f"sample: {{species: Na23, state: {{F: {F}, mF: {mF}}}, atoms: 1.0e5, temperature: 100 nK}}\n"
+    shot = write(tmp_path, PUSH_THEN_SHEET.format(push="push: {coil: kick_coil, gradient: 8 G/cm, duration: 1 ms}"),
+                 sample=sample)
+    rep = ps.push_analysis(shot, only(shot, "push"))
+    assert rep["direction"] == pytest.approx((1.0, 0.0, 0.0) if not away else (-1.0, 0.0, 0.0))
+    codes = [x.code for x in state_findings(shot)]
+    assert ("physics.push-away-from-barrier" in codes) == away
+
+
+def test_push_direction_unknown_without_field_grows_along(tmp_path):
+    rig = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").read_text(encoding="utf-8")
+    (tmp_path / "rig.yaml").write_text(rig.replace(" field_grows_along: [-1, 0, 0],", ""), encoding="utf-8")
+    p = tmp_path / "s.yaml"
+    sample = "sample: {species: Na23, state: {F: 2, mF: -2}, atoms: 1.0e5, temperature: 100 nK}\n"
+    p.write_text("seqgen: 1\nrig: rig.yaml\n" + sample + "blocks:\n" + PUSH_THEN_SHEET.format(
+        push="push: {coil: kick_coil, gradient: 8 G/cm, duration: 1 ms}"), encoding="utf-8")
+    shot = shot_of(p)
+    assert "direction" not in ps.push_analysis(shot, only(shot, "push"))
+    assert "physics.push-away-from-barrier" not in [x.code for x in state_findings(shot)]
+
+
+def test_optical_push_goes_along_its_beam(tmp_path):
+    # photons scattered from a beam push along its wave vector (textbook); the demo probe runs along +y, the sheet
+    # sits at +x, perpendicular: not away (cos = 0), so silent
+    blocks = PUSH_THEN_SHEET.format(push="push: {beam: probe, power: 40 uW, duration: 20 us}")
+    shot = write(tmp_path, blocks)
+    assert ps.push_analysis(shot, only(shot, "push"))["direction"] == pytest.approx((0.0, 1.0, 0.0))
+    assert "physics.push-away-from-barrier" not in [x.code for x in state_findings(shot)]
+
+
 # --------------------------------------------------------------------------- fault corpus
 
 def _expect_codes():

@@ -181,16 +181,22 @@ def incident_velocity(shot, act):
     args = push.args
     direction = (1.0, 0.0, 0.0)
     if "coil" in args:
-        direction = shot.rig.coils[args["coil"]].axis
+        coil = shot.rig.coils[args["coil"]]
+        direction = coil.axis
         s = shot.sample
         if s.F is not None and s.mF is not None:
-            try:  # first-order moment: the low-field limit, B = 0
-                signed = float(magnetic_push(s.F, s.mF, args["gradient"], args["duration"], 0.0, atom=sp).velocity)
+            try:  # the moment at the rig's bias field, as physics.push-velocity uses it
+                signed = float(magnetic_push(s.F, s.mF, args["gradient"], args["duration"],
+                                             float(shot.rig.bias_field_t or 0.0), atom=sp).velocity)
             except ValueError:
                 signed = 0.0
             if signed != 0.0:
+                way = "towards stronger field" if signed > 0 else "towards weaker field"
+                if coil.field_grows_along is not None:
+                    direction = tuple(math.copysign(1.0, signed) * x + 0.0 for x in coil.field_grows_along)
+                    way += ", along [" + ", ".join(f"{x:.3g}" for x in direction) + "]"
                 return dict(speed=abs(signed), signed=signed, direction=direction, push=push,
-                            source=f"push by '{args['coil']}' on |F={s.F}, mF={s.mF}>")
+                            source=f"push by '{args['coil']}' on |F={s.F}, mF={s.mF}>, {way}")
     elif "beam" in args:
         direction = shot.rig.beams[args["beam"]].direction
     if args.get("expect_velocity"):
@@ -564,8 +570,7 @@ def rotation_unresolvable(shot):
 def report(shot) -> list[dict]:
     rows = []
     for act, rep in _each(shot):
-        direction = "+" if rep["signed"] > 0 else "-"
-        items = [f"incident {rep['speed'] * 1e3:.4g} mm/s ({rep['velocity_source']}, towards {direction} along its axis), "
+        items = [f"incident {rep['speed'] * 1e3:.4g} mm/s ({rep['velocity_source']}), "
                  f"spread {rep['sigma_v'] * 1e3:.2g} mm/s ({rep['spread_kind']})",
                  f"barrier V0 {_energy_text(rep['V0'])}, mean kinetic energy {_energy_text(rep['E_mean'])}",
                  f"transmitted fraction {rep['T']:.3g} (spread {rep['T_spread']:.2g})"]

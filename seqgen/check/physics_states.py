@@ -21,10 +21,11 @@ Conventions of this module:
   plus the drive's `light_shift`; detuning = drive frequency - line.
   Without a declared `transition` the pair is the sample state and the other
   hyperfine level at equal mF.
-* The rig file says nothing about the direction of d|B|/dx relative to a
-  coil's axis, so push velocities are compared by magnitude; the sign in the
-  report says whether the state is pushed towards stronger (+) or weaker (-)
-  field.
+* Push velocities are compared by magnitude; the sign in the report says
+  whether the state is pushed towards stronger (+) or weaker (-) field. Where
+  the rig's coil declares `field_grows_along` (the direction in which |B|
+  grows at the atoms), the push has a direction, and
+  physics.push-away-from-barrier checks it against the next barrier.
 """
 
 from __future__ import annotations
@@ -595,6 +596,9 @@ def push_analysis(shot, act):
         mu = float(kick.moment)
         rep.update(kind="magnetic", state=state, moment=mu, gradient=act.args["gradient"],
                    velocity=float(kick.velocity), no_force=state[1] == 0 or abs(mu) < NO_FORCE_MOMENT)
+        grows = shot.rig.coils[act.args["coil"]].field_grows_along
+        if grows is not None and rep["velocity"] != 0:  # velocity > 0: towards stronger field
+            rep["direction"] = tuple(math.copysign(1.0, rep["velocity"]) * x for x in grows)
     else:
         from ..physics.imaging import saturation_parameter
 
@@ -608,6 +612,9 @@ def push_analysis(shot, act):
         rep.update(kind="optical", beam=beam.name, saturation=s0, detuning_rad_s=det, photons=k.photons,
                    recoil=k.recoil_velocity, velocity=k.velocity, rms_along=k.rms_velocity_along,
                    heating_j=k.heating_j, no_force=False)
+        norm = math.sqrt(sum(x * x for x in beam.direction))
+        if norm > 0 and math.isfinite(norm):  # scattered photons push along the beam
+            rep["direction"] = tuple(x / norm for x in beam.direction)
     speed = abs(rep["velocity"])
     d = act.args.get("target_distance")
     if d is not None:
@@ -635,8 +642,8 @@ def push_velocity(shot):
     state from the Breit-Rabi formula at the rig's bias field, b' the
     gradient and tau the duration; an optical push gives N v_rec with N the
     photons scattered from the beam (steady-state rate, saturation from the
-    beam's power and waist). Magnitudes are compared (the rig does not say
-    which way the field magnitude grows along the coil axis); the allowed
+    beam's power and waist). Magnitudes are compared (the direction is
+    physics.push-away-from-barrier's business); the allowed
     relative difference is the push's `tolerance` (default 0.1). Change the
     gradient or the duration (the hint gives the duration), or fix
     `expect_velocity`."""
@@ -656,6 +663,52 @@ def push_velocity(shot):
             yield make("physics.push-velocity", f"the push gives {got * 1e3:.4g} mm/s ({how}, {_fmt_t(rep['duration'])}), "
                        f"but expect_velocity is {abs(want) * 1e3:.4g} mm/s (tolerance {tol * 100:g} %)", act.pos,
                        block=act.block, time_s=act.t0, hint=hint, data={"velocity_m_s": got, "expected_m_s": abs(want)})
+
+
+@check("physics.push-away-from-barrier", "error", "force = moment x grad|B| with moment = -dE/dB (Breit-Rabi "
+       "formula, Phys. Rev. 38, 2082 (1931)); photon recoil along the beam (textbook); the rig file's "
+       "field_grows_along and beam positions", stage="physics")
+def push_away_from_barrier(shot):
+    """A push sends the atoms away from the barrier that follows it. A
+    magnetic push moves a state with moment mu = -dE/dB > 0 (a high-field
+    seeker) towards stronger field and a low-field seeker (mu < 0) towards
+    weaker field; the rig's coil says where the field grows
+    (`field_grows_along`); an optical push moves atoms along its beam. The
+    barrier beam's `position` in the rig is taken relative to the atoms
+    before the push (the trap centre, the rig's origin). Usually the sample
+    is in the wrong state (e.g. |F=2, mF=-2> instead of |F=1, mF=-1>), the
+    coil's current has the wrong sign, or the barrier sits on the other
+    side. Without `field_grows_along` the direction of a magnetic push is
+    unknown and this check is silent."""
+    for act in _pushes(shot):
+        rep = push_analysis(shot, act)
+        if not rep or rep.get("no_force") or "direction" not in rep:
+            continue
+        nxt = [b for b in _barriers(shot) if b.t0 >= act.t1 - 1e-12]
+        if not nxt:
+            continue
+        bar = min(nxt, key=lambda b: b.t0)
+        beam = shot.rig.beams.get(bar.args.get("beam"))
+        where = np.asarray(beam.position_m if beam is not None else (0, 0, 0), dtype=float)
+        dist = float(np.linalg.norm(where))
+        if not (dist > 0 and math.isfinite(dist)):
+            continue
+        along = float(np.dot(rep["direction"], where)) / dist
+        if along < 0:
+            why = (f"{state_text(rep['state'])} has moment {rep['moment'] / MU_B:+.3g} mu_B and goes towards "
+                   f"{'stronger' if rep['moment'] > 0 else 'weaker'} field, i.e. along "
+                   f"{_vec_text(rep['direction'])}" if rep["kind"] == "magnetic"
+                   else f"light pushes along the beam '{rep['beam']}', {_vec_text(rep['direction'])}")
+            yield make("physics.push-away-from-barrier", f"the push moves the atoms away from barrier '{beam.name}' "
+                       f"(block '{bar.block}', {dist * 1e3:.4g} mm away along {_vec_text(where / dist)}): {why}",
+                       act.pos, block=act.block, time_s=act.t0,
+                       hint="prepare the state that the push sends towards the barrier, reverse the coil current, "
+                            "or check field_grows_along and the barrier position in the rig file",
+                       data={"cos_angle": along, "barrier_distance_m": dist})
+
+
+def _vec_text(v) -> str:
+    return "[" + ", ".join(f"{x + 0.0:.3g}" for x in v) + "]"  # + 0.0: no '-0'"
 
 
 @check("physics.push-no-force", "error", "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); mF = 0 states have no "
@@ -970,7 +1023,9 @@ def report(shot) -> list[dict]:
             continue
         if rep["kind"] == "magnetic":
             items = [f"{state_text(rep['state'])} moment {rep['moment'] / MU_B:+.5g} mu_B (-dE/dB) at {_bias(shot) * 1e4:.4g} G",
-                     f"kick {rep['velocity'] * 1e3:+.4g} mm/s (+ towards stronger field)"]
+                     f"kick {rep['velocity'] * 1e3:+.4g} mm/s (+ towards stronger field)"
+                     + (f", along {_vec_text(rep['direction'])}" if "direction" in rep else
+                        " (direction unknown: the coil has no field_grows_along)")]
         else:
             items = [f"optical: saturation {rep['saturation']:.3g}, {rep['photons']:.3g} photons of "
                      f"{rep['recoil'] * 1e3:.4g} mm/s recoil", f"kick {rep['velocity'] * 1e3:.4g} mm/s along the beam, "

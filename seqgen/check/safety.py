@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import numpy as np
+
 from ..findings import make
 from ..registry import check
 
@@ -53,7 +55,28 @@ def _current_squared_integral(shot, output: str, t_end: float, window: float | N
     return total, peak
 
 
-import numpy as np  # noqa: E402
+
+@check("safety.coil-current", "error", "the rig file's coil max_current (the coil's or its supply's rating)")
+def coil_current(shot):
+    """A write that asks a coil for more current than the rig file's
+    `max_current` for that coil (in either direction), the rating of the
+    coil or of its supply. A supply may fold back or trip; a coil may be
+    damaged. This is separate from the channel's hard limit (the lab's safety
+    limit for that output) and from coil heating (the average load). Lower
+    the current; raise `max_current` only with the coil's data."""
+    by_channel = {c.current_channel: c for c in shot.rig.coils.values() if c.max_current}
+    if not by_channel:
+        return
+    for s in shot.segments:
+        out = shot.rig.outputs[s.output]
+        coil = by_channel.get(out.channel)
+        if coil is None:
+            continue
+        peak = max(abs(v) for v in (s.v0, s.v1) if v is not None)
+        if peak > coil.max_current * (1 + 1e-12):
+            yield make("safety.coil-current", f"coil '{coil.name}' would carry {peak:.4g} A, above its max_current "
+                       f"{coil.max_current:.4g} A (rig file)", s.pos, block=s.block, time_s=s.t0,
+                       hint=f"lower the current to at most {coil.max_current:.4g} A")
 
 
 @check("safety.coil-heating", "error", "Joule heating P = I^2 R; continuous-current rating over the "

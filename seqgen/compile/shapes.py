@@ -174,3 +174,23 @@ def shape_derivative_bounds(shape: str, *, duration_s: float, tau_s: float | Non
         d2 = np.maximum(np.abs(2 * c1), np.abs(6 * c0 * h + 2 * c1))
         return float(np.max(np.maximum(d1_ends, d1_vertex))), float(np.max(d2))
     raise ValueError(f"unknown ramp shape {shape!r}; known shapes: {', '.join(SHAPES)}")
+
+
+PULSE_ENVELOPES = ("blackman", "gaussian")
+
+
+def pulse_envelope(shape: str, s: np.ndarray) -> np.ndarray:
+    """Pulse envelopes of peak 1 on progress s in [0, 1], 0 at both ends (what a shaped `pulse` writes).
+
+    - "blackman": 0.42 - 0.5 cos(2 pi s) + 0.08 cos(4 pi s) (Blackman window, Proc. IEEE 66, 51 (1978));
+    - "gaussian": truncated at +-3 sigma (sigma = duration / 6) and shifted down by its edge value so the
+      output starts and ends at 0 (no step at the edges).
+    """
+    s = np.asarray(s, dtype=float)
+    if shape == "blackman":
+        return 0.42 - 0.5 * np.cos(2 * np.pi * s) + 0.08 * np.cos(4 * np.pi * s)
+    if shape != "gaussian":
+        raise ValueError(f"unknown pulse envelope {shape!r}; known: {', '.join(PULSE_ENVELOPES)}")
+    g = np.exp(-0.5 * ((s - 0.5) * 6.0) ** 2)
+    edge = np.exp(-0.5 * 9.0)
+    return (g - edge) / (1 - edge)

@@ -19,7 +19,7 @@ from ..findings import Finding, _fmt_time, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from ..registry import declare
 from .sampling import quantize_times, quantize_values, sample_ramp_report
-from .shapes import shape_fraction
+from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
 
 BEFORE_START = declare("timing.before-start", "error", """
     After moving an edge earlier by its channel's latency (a shutter that needs
@@ -43,21 +43,9 @@ RAMP_UNDERSAMPLED = declare("hardware.ramp-undersampled", "warning", """
     "the rig file's min_interval and timebase per device; piecewise-constant and piecewise-linear "
     "approximation error bounds (A Practical Guide to Splines, Springer (1978))", "compile")
 
-ENVELOPES = ("blackman", "gaussian")
 _VERIFY_MAX = 1 << 23      # longer ramps are checked on an evenly spaced subset of about this many ticks
 _FILL_ROWS = 1 << 15       # table rows filled at a time (a block of the value matrix stays in cache)
 _RETRIES = 4               # re-samplings with a tighter tolerance when ticks between grid points miss it
-
-
-def _envelope(shape: str, s: np.ndarray) -> np.ndarray:
-    """Pulse envelopes of peak 1 on progress s in [0, 1] (0 at both ends)."""
-    if shape == "blackman":
-        # Blackman window coefficients 0.42, 0.5, 0.08 (Proc. IEEE 66, 51 (1978))
-        return 0.42 - 0.5 * np.cos(2 * np.pi * s) + 0.08 * np.cos(4 * np.pi * s)
-    # Gaussian truncated at +-3 sigma (sigma = duration / 6), shifted so it starts and ends at 0
-    g = np.exp(-0.5 * ((s - 0.5) * 6.0) ** 2)
-    edge = np.exp(-0.5 * 9.0)
-    return (g - edge) / (1 - edge)
 
 
 def _value_function(out: Output, seg, latency: float):
@@ -66,8 +54,8 @@ def _value_function(out: Output, seg, latency: float):
 
     def value_at(t):
         s = np.clip((np.asarray(t, float) + latency - seg.t0) / span, 0.0, 1.0)
-        if seg.shape in ENVELOPES:
-            frac = _envelope(seg.shape, s)
+        if seg.shape in PULSE_ENVELOPES:
+            frac = pulse_envelope(seg.shape, s)
         else:
             frac = shape_fraction(seg.shape, s, duration_s=span, tau_s=seg.tau_s, table=seg.table)
         # v0 (1 - f) + v1 f lands on v0 and v1 exactly at f = 0 and f = 1

@@ -309,10 +309,21 @@ class _Row:
     payload: object = None
 
 
-def _make_figure(rows: list[_Row], left_in: float, title: str, footer_lines: list[str], window):
+SUBTITLE_IN = 0.16  # height of one subtitle line under the title (e.g. which shot of a scan is drawn)
+SUBTITLE_CHARS = 165  # a subtitle line wraps beyond this many characters (7.5 pt on an 11 in wide figure)
+
+
+def _subtitle_lines(subtitle: str | None) -> list[str]:
+    return [w for ln in (subtitle or "").splitlines() if ln.strip()
+            for w in (textwrap.wrap(ln, SUBTITLE_CHARS, subsequent_indent="    ") or [ln])]
+
+
+def _make_figure(rows: list[_Row], left_in: float, title: str, footer_lines: list[str], window,
+                 subtitle: str | None = None):
     from matplotlib.figure import Figure
 
-    top_in, right_in = 1.05, 0.75
+    sub = _subtitle_lines(subtitle)
+    top_in, right_in = 1.05 + SUBTITLE_IN * len(sub), 0.75
     bottom_in = 0.55 + 0.135 * len(footer_lines)
     body = sum(r.height for r in rows) + GAP_IN * (len(rows) - 1)
     height = body + top_in + bottom_in
@@ -330,6 +341,10 @@ def _make_figure(rows: list[_Row], left_in: float, title: str, footer_lines: lis
         ax.set_autoscale_on(False)
         axes.append(ax)
     fig.text(0.5 / FIG_WIDTH_IN, 1 - 0.18 / height, title, ha="left", va="top", fontsize=10, fontweight="bold")
+    for k, line in enumerate(sub):  # under the title; the legend moves down by as many lines
+        fig.text(0.5 / FIG_WIDTH_IN, 1 - (0.36 + SUBTITLE_IN * k) / height, line, ha="left", va="top", fontsize=7.5,
+                 color="#33414f", gid=f"subtitle-{k}")
+    fig.seqgen_title = {"title": title, "subtitle": sub}
     for k, line in enumerate(footer_lines):
         fig.text(0.5 / FIG_WIDTH_IN, (bottom_in - 0.5 - 0.135 * k) / height, line, ha="left", va="top",
                  fontsize=7, family="monospace")
@@ -821,8 +836,10 @@ def _left_margin(names, extra=()):
 
 
 def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, channels=None, physics: bool = True,
-                    intended: bool = True, title: str | None = None):
+                    intended: bool = True, title: str | None = None, subtitle: str | None = None):
     """The timeline of one shot as a matplotlib Figure (see the module docstring).
+
+    `subtitle`: lines under the title, e.g. which shot of a scan this is and with which param values.
 
     Axes carry labels for tools and tests: "blocks", "findings", "device:<name>", "lane:<output>",
     "physics:trap-depth", "physics:trap-frequencies", "physics:cloud", "physics:notes".
@@ -859,7 +876,7 @@ def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, chan
     s = summary(findings)
     ttl = title or (f"{shot.file}  ·  rig {shot.rig.name}  ·  duration {_fmt_seconds(shot.duration_s)}  ·  "
                     f"{s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s)")
-    fig, axes, width_in = _make_figure(rows, left, ttl, _note_lines(phys["notes"]), (t0, t1))
+    fig, axes, width_in = _make_figure(rows, left, ttl, _note_lines(phys["notes"]), (t0, t1), subtitle)
     dev_colour = {d: DEVICE_COLOURS[i % len(DEVICE_COLOURS)] for i, d in enumerate(shot.rig.devices)}
     lanes_ax = []
     for ax, row in zip(axes, rows):
@@ -954,7 +971,8 @@ def _legend(fig, shown, intended, diff):
             c, m = SEVERITY_STYLE[sev]
             handles.append(Line2D([], [], color=c, marker=m, linestyle="none", label=sev))
     h = fig.get_figheight()
-    fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.42 / FIG_WIDTH_IN, 1 - 0.36 / h),
+    below = 0.36 + SUBTITLE_IN * len(getattr(fig, "seqgen_title", {}).get("subtitle", ()))
+    fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.42 / FIG_WIDTH_IN, 1 - below / h),
                ncol=len(handles), fontsize=7, frameon=False, handlelength=2.4, columnspacing=1.4)
 
 
@@ -1022,7 +1040,8 @@ def diff_windows(old_shot, old_compiled, new_shot, new_compiled) -> dict:
 
 
 def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="old", new_label="new",
-                t_from=None, t_to=None, channels=None, findings=(), title: str | None = None):
+                t_from=None, t_to=None, channels=None, findings=(), title: str | None = None,
+                subtitle: str | None = None):
     """Overlay two versions of a sequence, one lane per output, with the windows where they differ."""
     end = max(old_shot.duration_s, new_shot.duration_s) or 1e-3
     t0 = 0.0 if t_from is None else float(t_from)
@@ -1062,7 +1081,7 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
         foot.append(f"duration {_fmt_seconds(old_shot.duration_s)} -> {_fmt_seconds(new_shot.duration_s)}")
     foot = [ln for text in foot for ln in (textwrap.wrap(text, 150, subsequent_indent="    ") or [text])]
     ttl = title or f"diff  ·  {old_label}  ->  {new_label}"
-    fig, axes, width_in = _make_figure(rows, left, ttl, foot, (t0, t1))
+    fig, axes, width_in = _make_figure(rows, left, ttl, foot, (t0, t1), subtitle)
     dev_colour = {d: DEVICE_COLOURS[i % len(DEVICE_COLOURS)] for i, d in enumerate(
         list(new_shot.rig.devices) + [d for d in old_shot.rig.devices if d not in new_shot.rig.devices])}
     for ax, row in zip(axes, rows):

@@ -119,10 +119,14 @@ class Document:
 
     def pos(self, path: tuple = ()) -> SourcePos:
         """Position of the deepest known prefix of `path`."""
-        path = tuple(path)
-        while path and path not in self.positions:
+        positions = self.positions
+        if type(path) is not tuple:
+            path = tuple(path)
+        hit = positions.get(path)
+        while hit is None and path:
             path = path[:-1]
-        line, col = self.positions.get(path, (0, 0))
+            hit = positions.get(path)
+        line, col = hit if hit is not None else (0, 0)
         return SourcePos(self.file, line, col)
 
 

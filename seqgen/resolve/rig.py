@@ -140,7 +140,8 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
                            opt(base + ("bias_per_amp",), "T/A"), opt(base + ("curvature_per_amp",), "T/m^2/A"),
                            tuple(c.get("axis", (0, 0, 1))), opt(base + ("max_current",), "A", positive=True),
                            opt(base + ("continuous_current",), "A", positive=True), opt(base + ("i2t_limit",), "A^2*s", positive=True),
-                           opt(base + ("i2t_window",), "s", positive=True), doc.pos(base))
+                           opt(base + ("i2t_window",), "s", positive=True), doc.pos(base),
+                           _direction(c.get("field_grows_along"), base + ("field_grows_along",), doc, findings))
     drives = {}
     for name, d in (data.get("drives") or {}).items():
         base = ("drives", name)
@@ -167,6 +168,21 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
     rig = Rig(data.get("name", doc.file), doc.file, doc.text_sha256, devices, outputs, channels, beams, coils, drives,
               imaging, bias, rep)
     return rig, findings
+
+
+def _direction(raw, path, doc, findings):
+    """A unit 3-vector from the rig file, or None when absent (a zero or non-finite vector is a finding)."""
+    if raw is None:
+        return None
+    import math
+
+    v = tuple(float(x) for x in raw)
+    n = math.sqrt(sum(x * x for x in v))
+    if not (math.isfinite(n) and n > 0):
+        findings.append(make(E.BAD_RIG, f"{path[-1]} {list(raw)} is not a direction", doc.pos(path),
+                             hint="give three numbers, not all zero, e.g. [1, 0, 0]"))
+        return None
+    return tuple(x / n for x in v)
 
 
 def _replace(o, **kw):

@@ -10,6 +10,7 @@ start values and pulse ends in time order per output.
 from __future__ import annotations
 
 import difflib
+import gc
 import math
 import os
 import re
@@ -221,7 +222,22 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_out
 
 
 def resolve(src: Sources, overrides: dict | None = None) -> tuple[Shot | None, list[Finding]]:
-    """Resolve validated sources into a shot. `overrides`: param name -> Qty (scans)."""
+    """Resolve validated sources into a shot. `overrides`: param name -> Qty (scans).
+
+    The cyclic garbage collector is paused meanwhile, as while loading: the segments
+    and blocks made here survive, so collections would keep walking the whole loaded
+    document (about 40 % of the resolve time of a 10 000-block file). Any reference
+    cycle left behind is collected once the collector runs again."""
+    paused = gc.isenabled()
+    gc.disable()
+    try:
+        return _resolve(src, overrides)
+    finally:
+        if paused:
+            gc.enable()
+
+
+def _resolve(src: Sources, overrides: dict | None) -> tuple[Shot | None, list[Finding]]:
     findings: list[Finding] = []
     if src.rig is None or any(f.severity == "error" for f in src.findings):
         return None, findings

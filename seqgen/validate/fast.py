@@ -35,6 +35,7 @@ _APPLICATORS = frozenset({"$ref", "additionalProperties", "allOf", "anyOf", "one
 _REFUSE = frozenset({"$id", "$anchor", "$dynamicAnchor", "$dynamicRef", "$recursiveRef", "$recursiveAnchor",
                      "unevaluatedProperties", "unevaluatedItems"})
 
+_JSON_TYPES = frozenset({"array", "boolean", "integer", "null", "number", "object", "string"})
 _NONE = type(None)
 # JSON type names of the plain Python types a YAML document holds (draft 2020-12 type checker:
 # bool is not a number, a float with an integral value is an integer)
@@ -147,7 +148,6 @@ class _Compiler:
         if "patternProperties" in s or "prefixItems" in s:  # change what additionalProperties / items cover
             return self.delegate(s)
         checks: list[Pred] = []
-        obj_props = None
         for k in known:
             v = s[k]
             if k == "properties" and isinstance(v, dict):
@@ -166,8 +166,7 @@ class _Compiler:
         if "additionalProperties" in s and not (addl is False or addl is True or isinstance(addl, dict)):
             return self.delegate(s)
         if props is not None or addl is not True:
-            obj_props = self._object(props or {}, addl)
-            checks.insert(0, obj_props)
+            checks.insert(0, self._object(props or {}, addl))
         if not checks:
             return _always
         if len(checks) == 1:
@@ -196,8 +195,8 @@ class _Compiler:
 
     def _kw_type(self, v, s):
         names = (v,) if isinstance(v, str) else tuple(v) if isinstance(v, list) else None
-        if names is None or not all(isinstance(n, str) for n in names):
-            return None
+        if names is None or not all(n in _JSON_TYPES for n in names):
+            return None  # jsonschema's own keyword function decides (an unknown type name raises there)
         wanted = frozenset(names)
         fits = {t: any(n in wanted for n in ns) for t, ns in _EXACT_TYPES.items()}
         float_num = "number" in wanted
