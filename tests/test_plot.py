@@ -14,6 +14,7 @@ Phys. 42, 95 (2000)).
 from __future__ import annotations
 
 import fnmatch
+import json
 import math
 import shutil
 from pathlib import Path
@@ -407,3 +408,87 @@ def test_cli_plot(tmp_path, capsys):
     # a sequence with error findings still gets its picture, and exit code 1
     assert main(["plot", str(SEQUENCES / "faults" / "overlap.yaml"), "-o", str(tmp_path / "f.png")]) == 1
     assert (tmp_path / "f.png").exists()
+
+
+# --- scans: which shot a picture shows ----------------------------------------------------------------------------
+# Expected values: the scan values written in the YAML below (read back with PyYAML) in written order, which is
+# the run order without `order: shuffled` (README "Parameter scans"), and the geometry of the drawn texts.
+
+
+def _scanned_small(tmp_path, name="scanned.yaml", values="[3 ms, 8 ms]"):
+    text = SMALL.replace("KICK", "10 A").replace("blocks:\n", f"params:\n  g_at: {{value: 5 ms, scan: {values}}}\nblocks:\n", 1)
+    return _write(tmp_path, name, text.replace("at: 5 ms", "at: g_at"))
+
+
+def _captured(monkeypatch):
+    figs = []
+    real = plot.save_figure
+
+    def keep(fig, path, **kw):
+        figs.append(fig)
+        return real(fig, path, **kw)
+
+    monkeypatch.setattr(plot, "save_figure", keep)
+    return figs
+
+
+def _first_rise(fig, output="guide_power"):
+    line = _line(_lanes(fig)[output], f"intended:{output}")
+    t, v = np.asarray(line.get_xdata(), float), np.asarray(line.get_ydata(), float)
+    return float(t[np.argmax(v > 0)])
+
+
+def test_plot_shot_n_draws_that_shot_and_says_so(tmp_path, capsys, monkeypatch):
+    figs = _captured(monkeypatch)
+    seq = _scanned_small(tmp_path)
+    written = yaml.safe_load(seq.read_text(encoding="utf-8"))["params"]["g_at"]["scan"]
+    for n, text in enumerate(written):
+        assert main(["plot", str(seq), "-o", str(tmp_path / f"s{n}.png"), "--shot", str(n), "--no-physics"]) == 0
+        fig = figs[-1]
+        sub = fig.seqgen_title["subtitle"]
+        assert len(sub) == 1 and sub[0].startswith(f"shot {n} of the {len(written)} shots of the scan")
+        assert f"g_at = {text}" in sub[0]
+        assert _first_rise(fig) == pytest.approx(float(text.split()[0]) * 1e-3, abs=1e-6)
+        assert f"g_at = {text}" in capsys.readouterr().out
+    # without --shot: the base shot, every scanned param at its value: (5 ms), named as such in the title
+    assert main(["plot", str(seq), "-o", str(tmp_path / "base.png"), "--no-physics", "--json"]) == 0
+    sub = figs[-1].seqgen_title["subtitle"]
+    assert sub[0].startswith(f"base shot of a scan of {len(written)} shots") and "g_at = 5 ms" in sub[0]
+    assert f"--shot 0..{len(written) - 1}" in sub[0]
+    assert _first_rise(figs[-1]) == pytest.approx(5e-3, abs=1e-6)
+    out = json.loads(capsys.readouterr().out)
+    assert out["scan"][0]["base"] and out["scan"][0]["params"]["g_at"]["value"] == pytest.approx(5e-3)
+    # a sequence without scans keeps its one-line title
+    assert main(["plot", str(_small(tmp_path)), "-o", str(tmp_path / "plain.png"), "--no-physics"]) == 0
+    assert figs[-1].seqgen_title["subtitle"] == [] and "scan" not in capsys.readouterr().out
+
+
+def test_diff_of_two_scanned_versions_names_both_shots(tmp_path, capsys, monkeypatch):
+    figs = _captured(monkeypatch)
+    old = _scanned_small(tmp_path, "old.yaml")
+    new = _scanned_small(tmp_path, "new.yaml", values="[3 ms, 9 ms]")
+    assert main(["plot", str(old), str(new), "-o", str(tmp_path / "d.png"), "--shot", "1"]) == 0
+    sub = figs[-1].seqgen_title["subtitle"]
+    assert sub[0].startswith(f"old ({old}): shot 1 of the 2 shots") and "g_at = 8 ms" in sub[0]
+    assert sub[1].startswith(f"new ({new}): shot 1 of the 2 shots") and "g_at = 9 ms" in sub[1]
+    assert figs[-1].seqgen_info["differs"]  # 8 ms against 9 ms: the guide pulse moved
+
+
+def test_subtitle_lines_do_not_overlap_the_title_or_the_legend(tmp_path):
+    res = preflight(_small(tmp_path))
+    sub = "first line: shot 3 of the 10 shots of the scan (run order): a = 1 ms\nsecond line: " + "b = 2 ms, " * 30
+    fig = plot.timeline_figure(res.shot, res.compiled, res.findings, channels=["guide_power"], physics=False,
+                               subtitle=sub)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()
+    r = canvas.get_renderer()
+    lines = fig.seqgen_title["subtitle"]
+    assert len(lines) == 3  # the long second line wraps
+    texts = {t.get_text(): t.get_window_extent(r) for t in fig.texts}
+    boxes = [texts[fig.seqgen_title["title"]]] + [texts[ln] for ln in lines] + [fig.legends[0].get_window_extent(r)]
+    for a, b in zip(boxes, boxes[1:]):  # top to bottom, each one below the previous (display y grows upwards)
+        assert b.y1 <= a.y0 + 0.5, (a, b)
+    top_axes = min(ax.get_window_extent(r).y1 for ax in fig.axes if ax.get_label() == "blocks")
+    assert boxes[-1].y0 > top_axes

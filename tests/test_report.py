@@ -8,11 +8,14 @@ names no network resource (no http://, https:// or protocol-relative // in any
 src or href, HTML Living Standard: URLs in src/href are fetched). A headless
 browser test loads the file in Debian's chromium, which must find the finding
 rows in the DOM and log no console message (the page has no script, so any
-console line is an error: a failed load or a parse problem).
+console line is an error: a failed load or a parse problem). The scan section of a
+scanned sequence is checked against the YAML written in the test, the rig file's
+minimum interval and the run order README "Parameter scans" documents (hashlib SHA-256).
 """
 
 from __future__ import annotations
 
+import hashlib
 import os
 import shutil
 import subprocess
@@ -21,6 +24,7 @@ from html.parser import HTMLParser
 from pathlib import Path
 
 import pytest
+import yaml
 
 from seqgen.check import CAUTION
 from seqgen.cli import main
@@ -216,3 +220,190 @@ def test_report_in_a_headless_browser(fault_report, tmp_path):
     assert run.returncode == 0, run.stderr[-2000:]
     data = shot.read_bytes()
     assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000  # PNG signature (RFC 2083); not blank
+
+
+# --- scanned sequences: the scan section ------------------------------------------------------------------------
+# Expected values come from the YAML written here (read back with PyYAML), the demo rig file's minimum interval
+# of ao_main (timing.ramp-too-fast fires for a ramp shorter than it, README "What preflight checks") and the run
+# order README "Parameter scans" documents for `order: shuffled`: written positions sorted by
+# sha256("seqgen-order:<seed>:<i>") (hashlib, FIPS 180-4), the first written param varying slowest.
+
+RIG = SEQUENCES / "rigs" / "na23_demo_rig.yaml"
+SCANNED = """seqgen: 1
+rig: rig.yaml
+params:
+  ramp_time: {value: 1 us, scan: [1 us, 2 us, 5 us]}
+  level: {value: 0.2 W, scan: [0.1 W, 0.3 W]}
+scan: {order: shuffled, seed: 11}
+blocks:
+  - name: a
+    at: 0 s
+    actions:
+      - ramp: {channel: guide_power, to: level, over: ramp_time}
+      - hold: {duration: 1 ms}
+      - set: {channel: guide_power, value: 0 W}
+"""
+
+
+class _ScanPage(HTMLParser):
+    """Rows of the scan section: shots (their cells), finding codes (their attributes), plan params."""
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.shots: list[dict] = []
+        self.codes: list[dict] = []
+        self.params: list[str] = []
+        self._cells = None
+        self._row = None
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        cls = (a.get("class") or "").split()
+        if tag == "tr" and "shot" in cls:
+            self._row = {"index": int(a["data-index"]), "cells": [], "base": "base-shot" in cls}
+            self.shots.append(self._row)
+        elif tag == "tr" and "scan-code" in cls:
+            self._row = {"code": a["data-code"], "shots": [int(x) for x in a["data-shots"].split()], "cells": []}
+            self.codes.append(self._row)
+        elif tag == "tr" and "scan-param" in cls:
+            self.params.append(a["data-param"])
+            self._row = None
+        elif tag == "td" and self._row is not None:
+            self._cells = []
+
+    def handle_endtag(self, tag):
+        if tag == "td" and self._cells is not None and self._row is not None:
+            self._row["cells"].append("".join(self._cells).strip())
+            self._cells = None
+        elif tag == "tr":
+            self._row = None
+
+    def handle_data(self, data):
+        if self._cells is not None:
+            self._cells.append(data)
+
+
+def _q(text: str) -> float:
+    value, unit = text.split()
+    return float(value) * {"us": 1e-6, "ms": 1e-3, "s": 1.0, "W": 1.0, "mW": 1e-3}[unit]
+
+
+def _expected_shots(path):
+    """[(ramp_time, level, written position)] in run order, from the YAML and the README's rules."""
+    doc = yaml.safe_load(Path(path).read_text(encoding="utf-8"))
+    ramps = [_q(v) for v in doc["params"]["ramp_time"]["scan"]]
+    levels = [_q(v) for v in doc["params"]["level"]["scan"]]
+    written = [(r, lv) for r in ramps for lv in levels]
+    seed = doc["scan"]["seed"]
+    order = sorted(range(len(written)), key=lambda i: hashlib.sha256(f"seqgen-order:{seed}:{i}".encode()).digest())
+    return [(*written[i], i) for i in order]
+
+
+@pytest.fixture(scope="module")
+def scanned_report(tmp_path_factory):
+    from seqgen.batch import plan_scan, run_scan
+    from seqgen.show import shot_choice
+
+    folder = tmp_path_factory.mktemp("scanned")
+    shutil.copy(RIG, folder / "rig.yaml")
+    path = folder / "scanned.yaml"
+    path.write_text(SCANNED, encoding="utf-8")
+    scan = run_scan(plan_scan(path), jobs=1)
+    base = preflight(path, sources=scan.sources)
+    choice = shot_choice(scan.plan, None, base.shot)
+    text = report.render_report(base, str(path), svg="<svg></svg>", scan=scan, choice=choice)
+    return path, scan, base, choice, text
+
+
+def test_scan_section_lists_every_shot_in_run_order_with_pass_or_fail(scanned_report):
+    path, scan, _, _, text = scanned_report
+    page = _ScanPage()
+    page.feed(text)
+    want = _expected_shots(path)
+    min_interval = _q(yaml.safe_load(RIG.read_text(encoding="utf-8"))["devices"]["ao_main"]["min_interval"])
+    assert [r["index"] for r in page.shots] == list(range(len(want)))
+    for row, (ramp, level, written) in zip(page.shots, want):
+        # cells: shot, written order (shuffled), ramp_time, level, result, errors, warnings, notes, accepted
+        index, wpos, r_text, l_text, result, errors = row["cells"][:6]
+        assert int(wpos) == written and _q(r_text) == pytest.approx(ramp) and _q(l_text) == pytest.approx(level)
+        assert result == ("fail" if ramp < min_interval else "pass")
+        assert (int(errors) > 0) == (ramp < min_interval)
+    fast = [i for i, (ramp, _, _) in enumerate(want) if ramp < min_interval]
+    code = next(c for c in page.codes if c["code"] == "timing.ramp-too-fast")
+    assert code["shots"] == fast and code["cells"][2] == f"{len(fast)} of {len(want)}"
+    # the param range that bounds the firing shots: the scan values below the minimum interval
+    assert "ramp_time <= 1 us" in code["cells"][3]
+    assert page.params == list(yaml.safe_load(SCANNED)["params"])
+    good = len(want) - len(fast)
+    assert f"{good} of {len(want)} shots pass" in text and "seed 11" in text
+
+
+def test_scan_section_comes_before_the_base_shots_details(scanned_report):
+    path, scan, base, choice, text = scanned_report
+    page = _parse(text)
+    assert {"scan", "summary", "findings", "physics", "timeline", "caution", "shot-choice"} <= page.ids
+    assert text.index('id="summary"') < text.index('id="scan"') < text.index('id="base-shot"') < text.index(
+        'id="findings"')
+    # the base shot is every scanned param at its written value: (1 us, 0.2 W = 200 mW)
+    doc = yaml.safe_load(SCANNED)["params"]
+    assert choice.index is None and [q.value for q in choice.values] == pytest.approx(
+        [_q(doc["ramp_time"]["value"]), _q(doc["level"]["value"])])
+    para = text[text.index('id="shot-choice"'):].split("</p>")[0]
+    assert "base shot" in para and "ramp_time = 1 us" in para and "level = 200 mW" in para
+    assert len(page.rows) == len(base.findings)  # the detailed findings are the base shot's
+    _no_network(page, text)
+    assert "script" not in page.tags
+
+
+def test_scanned_report_from_the_cli_is_deterministic_and_self_contained(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    shutil.copy(RIG, tmp_path / "rig.yaml")
+    seq = tmp_path / "s.yaml"
+    seq.write_text(SCANNED, encoding="utf-8")
+    a, b = tmp_path / "a.html", tmp_path / "b.html"
+    assert main(["check", str(seq), "--report", str(a), "--jobs", "1"]) == 1  # some shots have errors
+    assert main(["check", str(seq), "--report", str(b), "--jobs", "2"]) == 1  # same bytes with two workers
+    assert a.read_bytes() == b.read_bytes()
+    text = a.read_text(encoding="utf-8")
+    page = _parse(text)
+    _no_network(page, text)
+    assert "svg" in page.tags and {"scan", "timeline-full"} <= page.ids
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]  # written atomically: no leftovers
+
+
+def test_large_scan_lists_failing_shots_first(scanned_report, monkeypatch):
+    path, scan, base, choice, _ = scanned_report
+    monkeypatch.setattr(report, "MAX_SHOT_ROWS", 2)
+    page = _ScanPage()
+    page.feed(report.render_report(base, str(path), scan=scan, choice=choice))
+    failing = [r.index for r in scan.shots if not r.ok]
+    assert [r["index"] for r in page.shots] == sorted(failing)[:2]
+
+
+def test_report_of_one_shot_names_it(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    shutil.copy(RIG, tmp_path / "rig.yaml")
+    seq = tmp_path / "s.yaml"
+    seq.write_text(SCANNED, encoding="utf-8")
+    out = tmp_path / "one.html"
+    want = _expected_shots(seq)
+    n = next(i for i, (ramp, _, _) in enumerate(want) if ramp == pytest.approx(5e-6))  # a shot that passes
+    assert main(["check", str(seq), "--shot", str(n), "--report", str(out)]) == 0
+    text = out.read_text(encoding="utf-8")
+    para = text[text.index('id="shot-choice"'):].split("</p>")[0]
+    assert f"shot {n} of the {len(want)} shots" in para and "ramp_time = 5 us" in para
+    assert 'id="scan"' not in text  # only this shot was preflighted
+
+
+@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed (apt-get install chromium): "
+                                              "browser test skipped")
+def test_scanned_report_in_a_headless_browser(scanned_report, tmp_path):
+    path, _, _, _, text = scanned_report
+    out = tmp_path / "scan.html"
+    out.write_text(text, encoding="utf-8")
+    run = _chromium("--dump-dom", out.resolve().as_uri())
+    assert run.returncode == 0, run.stderr[-2000:]
+    assert not _console(run.stderr), _console(run.stderr)
+    dom = _ScanPage()
+    dom.feed(run.stdout)
+    assert [r["index"] for r in dom.shots] == list(range(len(_expected_shots(path))))

@@ -352,6 +352,10 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
                else "no error findings: the sequence may be built")
     if shot is None:
         verdict = "the sequence could not be resolved: fix the findings below first"
+    if scan is None and choice is not None and shot is not None:  # one shot of a scan
+        verdict = ("error findings remain in this shot: a build of the scan leaves it out until they are fixed or "
+                   "accepted" if blocking else "no error findings in this shot (a build of the scan preflights "
+                   "every shot)")
     counts = s
     if scan is not None:  # the summary speaks for every shot; the details below are the base shot's
         counts, verdict, blocking = _scan_summary(scan)
