@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import functools
 import math
+import threading
 
 import numpy as np
 from scipy import constants as sc
@@ -80,21 +81,20 @@ def _trap_ramps(shot):
     return [a for a in shot.phys if a.kind == "trap_ramp"]
 
 
-_CACHES: dict = {}
+_LOCAL = threading.local()  # per thread: a threaded cluster worker checks several shots at once
 
 
 def _cache(shot) -> dict:
-    # one cache per shot object, so the report view and the checks share work
-    k = id(shot)
-    if k not in _CACHES or _CACHES[k][0] is not shot:
-        _CACHES.clear()
-        _CACHES[k] = (shot, {})
-    return _CACHES[k][1]
+    # one cache for the shot being checked, so the report view and the checks share work
+    slot = getattr(_LOCAL, "slot", None)
+    if slot is None or slot[0] is not shot:
+        slot = _LOCAL.slot = (shot, {})
+    return slot[1]
 
 
 def clear_caches() -> None:
-    """Drop the per-shot analyses and the content-keyed trap minimisations."""
-    _CACHES.clear()
+    """Drop the per-shot analyses (of this thread) and the content-keyed trap minimisations."""
+    _LOCAL.slot = None
     _held.cache_clear()
 
 

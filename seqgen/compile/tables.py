@@ -12,6 +12,8 @@ size and filled in cache-sized blocks of rows.
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 
 from ..calibration import to_output
@@ -156,6 +158,7 @@ class _RampCache:
     def __init__(self):
         self._items: dict = {}
         self._rows = 0
+        self._lock = threading.Lock()  # a threaded cluster worker may compile several shots at once
 
     def get(self, key):
         return self._items.get(key)
@@ -164,17 +167,20 @@ class _RampCache:
         rows = len(value[0])
         if rows > self.MAX_ROWS // 8:
             return
-        while self._items and self._rows + rows > self.MAX_ROWS:
-            old = self._items.pop(next(iter(self._items)))  # oldest first
-            self._rows -= len(old[0])
         for a in value[:2]:
             a.setflags(write=False)
-        self._items[key] = value
-        self._rows += rows
+        with self._lock:
+            while self._items and self._rows + rows > self.MAX_ROWS:
+                old = self._items.pop(next(iter(self._items)))  # oldest first
+                self._rows -= len(old[0])
+            if key not in self._items:
+                self._items[key] = value
+                self._rows += rows
 
     def clear(self):
-        self._items.clear()
-        self._rows = 0
+        with self._lock:
+            self._items.clear()
+            self._rows = 0
 
 
 RAMP_CACHE = _RampCache()
