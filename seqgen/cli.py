@@ -452,6 +452,8 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--json", action="store_true", help="the diff as JSON (schemas/diff.schema.json)")
     d.add_argument("--git", action="store_true",
                    help="run as git's external diff driver (git passes PATH OLD-FILE OLD-HEX OLD-MODE NEW-FILE ...)")
+    d.add_argument("--allow-outside-root", action="store_true",
+                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
     d.set_defaults(func=cmd_diff)
 
     g = sub.add_parser("plot", help="draw the timeline (PNG, SVG or PDF); two files: overlay and mark differences")

@@ -32,6 +32,25 @@ def test_inside_the_table_the_map_is_scipy_pchip(tp, to):
 
 
 @pytest.mark.parametrize("tp,to", TABLES)
+def test_table_cubic_has_the_published_properties(tp, to):
+    # Fritsch-Carlson (SIAM J. Numer. Anal. 17, 238 (1980)): the interpolant passes through the data, is
+    # monotone on every interval of monotone data, and its derivative at a point never exceeds three times the
+    # smaller adjacent secant slope in magnitude (their sufficient condition for monotonicity)
+    out = _out(tp, to)
+    order = np.argsort(tp)
+    xs, ys = np.asarray(tp, float)[order], np.asarray(to, float)[order]
+    assert to_output(out, xs) == pytest.approx(ys, abs=1e-14)
+    x = np.linspace(xs[0], xs[-1], 20001)
+    d = np.diff(to_output(out, x))
+    assert np.all(d > 0) or np.all(d < 0)
+    h = 1e-7 * (xs[-1] - xs[0])
+    secants = np.diff(ys) / np.diff(xs)
+    for k in range(1, len(xs) - 1):
+        slope = (to_output(out, xs[k] + h) - to_output(out, xs[k] - h)) / (2 * h)
+        assert abs(slope) <= 3 * min(abs(secants[k - 1]), abs(secants[k])) * (1 + 1e-6)
+
+
+@pytest.mark.parametrize("tp,to", TABLES)
 def test_to_physical_inverts_to_output_inside_and_beyond(tp, to):
     out = _out(tp, to)
     span = max(tp) - min(tp)

@@ -394,6 +394,30 @@ def test_optical_push_goes_along_its_beam(tmp_path):
     assert "physics.push-away-from-barrier" not in [x.code for x in state_findings(shot)]
 
 
+def test_optical_push_along_a_beam_pointing_away_is_reported(tmp_path):
+    # the same probe turned to -x: its photons push the atoms away from the sheet at +x
+    rig = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").read_text(encoding="utf-8")
+    old = "power_channel: probe_power, direction: [0, 1, 0]"
+    assert rig.count(old) == 1
+    (tmp_path / "rig.yaml").write_text(rig.replace(old, "power_channel: probe_power, direction: [-1, 0, 0]"),
+                                       encoding="utf-8")
+    p = tmp_path / "s.yaml"
+    p.write_text("seqgen: 1\nrig: rig.yaml\n" + SAMPLE + "blocks:\n" + PUSH_THEN_SHEET.format(
+        push="push: {beam: probe, power: 40 uW, duration: 20 us}"), encoding="utf-8")
+    shot = shot_of(p)
+    assert ps.push_analysis(shot, only(shot, "push"))["direction"] == pytest.approx((-1.0, 0.0, 0.0))
+    hits = [x for x in state_findings(shot) if x.code == "physics.push-away-from-barrier"]
+    assert len(hits) == 1 and "probe" in hits[0].message
+
+
+def test_reversed_current_does_not_reverse_the_push(tmp_path):
+    # |B| = |I| |b(r)| for a coil's own field (linear in I): where |B| grows does not depend on the sign of the
+    # current, so a low-field seeker still goes towards weaker field, +x here (common practice, no source)
+    shot = write(tmp_path, PUSH_THEN_SHEET.format(push="push: {coil: kick_coil, gradient: -8 G/cm, duration: 1 ms}"))
+    assert ps.push_analysis(shot, only(shot, "push"))["direction"] == pytest.approx((1.0, 0.0, 0.0))
+    assert "physics.push-away-from-barrier" not in [x.code for x in state_findings(shot)]
+
+
 # --------------------------------------------------------------------------- fault corpus
 
 def _expect_codes():

@@ -5,13 +5,13 @@ sheet drives in the atoms that cross it.
 The model, in one place (every check below reads it from one cached analysis
 per barrier action):
 
-* Incident velocity: from the last `push` before the barrier. A magnetic push
-  gives v = moment b' tau / m with the first-order moment -dE/dB = -g_F m_F mu_B
-  of the sample state (force = moment x gradient of |B| along the coil axis,
-  the package-wide sign of `seqgen.physics`; `seqgen.physics.kinematics.magnetic_push`
-  at B = 0); only the speed is used, the sign is reported. An optical push,
-  or a state without a first-order moment, falls back to the push's
-  `expect_velocity`.
+* Incident velocity: from the last `push` before the barrier, through the
+  push model of `physics_states.push_analysis`: a magnetic push gives
+  v = moment b' tau / m with the moment -dE/dB of the sample state from the
+  Breit-Rabi formula at the rig's bias field (force = moment x gradient of
+  |B|, the package-wide sign of `seqgen.physics`); only the speed is used,
+  the direction is reported. An optical push, or a state without a usable
+  moment (mF = 0), falls back to the push's `expect_velocity`.
 * Velocity spread along the path: a condensate uses the Thomas-Fermi radius R
   along the path (trap frequencies from `sample.trap_frequencies`, else from
   the rig's trap beams at the time of the push) and sigma_v = 1.602 hbar/(m R)
@@ -171,34 +171,29 @@ def _last_push(shot, act):
 def incident_velocity(shot, act):
     """dict(speed, signed, direction, source, push) for the barrier action, or None.
 
-    `signed` > 0: pushed towards stronger field (moment = -dE/dB > 0, a high-field seeker)."""
-    from ..physics.kinematics import magnetic_push
+    One push model for every check: `physics_states.push_analysis` (moment
+    -dE/dB from the Breit-Rabi formula at the rig's bias field). `signed` > 0:
+    pushed towards stronger field. A push that gives the state no force
+    (mF = 0, or |moment| below the push checks' threshold) or an optical push
+    falls back to the push's `expect_velocity` when it gives one."""
+    from .physics_states import push_analysis
 
-    sp = _species(shot)
     push = _last_push(shot, act)
-    if sp is None or push is None:
+    if _species(shot) is None or push is None:
         return None
     args = push.args
-    direction = (1.0, 0.0, 0.0)
-    if "coil" in args:
-        coil = shot.rig.coils[args["coil"]]
-        direction = coil.axis
+    rep = push_analysis(shot, push)
+    direction = (rep or {}).get("direction")
+    if direction is None:
+        direction = shot.rig.coils[args["coil"]].axis if "coil" in args else shot.rig.beams[args["beam"]].direction
+    if rep and rep.get("kind") == "magnetic" and not rep["no_force"] and rep["velocity"] != 0:
+        signed = rep["velocity"]
+        way = "towards stronger field" if rep["moment"] > 0 else "towards weaker field"
+        if "direction" in rep:
+            way += ", along [" + ", ".join(f"{x + 0.0:.3g}" for x in rep["direction"]) + "]"
         s = shot.sample
-        if s.F is not None and s.mF is not None:
-            try:  # the moment at the rig's bias field, as physics.push-velocity uses it
-                signed = float(magnetic_push(s.F, s.mF, args["gradient"], args["duration"],
-                                             float(shot.rig.bias_field_t or 0.0), atom=sp).velocity)
-            except ValueError:
-                signed = 0.0
-            if signed != 0.0:
-                way = "towards stronger field" if signed > 0 else "towards weaker field"
-                if coil.field_grows_along is not None:
-                    direction = tuple(math.copysign(1.0, signed) * x + 0.0 for x in coil.field_grows_along)
-                    way += ", along [" + ", ".join(f"{x:.3g}" for x in direction) + "]"
-                return dict(speed=abs(signed), signed=signed, direction=direction, push=push,
-                            source=f"push by '{args['coil']}' on |F={s.F}, mF={s.mF}>, {way}")
-    elif "beam" in args:
-        direction = shot.rig.beams[args["beam"]].direction
+        return dict(speed=abs(signed), signed=signed, direction=direction, push=push,
+                    source=f"push by '{args['coil']}' on |F={s.F}, mF={s.mF}>, {way}")
     if args.get("expect_velocity"):
         v = float(args["expect_velocity"])
         return dict(speed=abs(v), signed=v, direction=direction, push=push, source="expect_velocity of the push")

@@ -149,7 +149,7 @@ def hold_analysis(shot, act):
         return rep
     try:
         rep["moment"] = _moment(sp, state, bottom)
-    except ValueError as exc:
+    except (ValueError, OverflowError, TypeError) as exc:  # a state the species has not, or absurd numbers
         rep["bad_state"] = str(exc)
         return rep
     rep["trappable"] = rep["moment"] < -MIN_MOMENT

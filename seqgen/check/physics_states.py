@@ -597,8 +597,10 @@ def push_analysis(shot, act):
         rep.update(kind="magnetic", state=state, moment=mu, gradient=act.args["gradient"],
                    velocity=float(kick.velocity), no_force=state[1] == 0 or abs(mu) < NO_FORCE_MOMENT)
         grows = shot.rig.coils[act.args["coil"]].field_grows_along
-        if grows is not None and rep["velocity"] != 0:  # velocity > 0: towards stronger field
-            rep["direction"] = tuple(math.copysign(1.0, rep["velocity"]) * x for x in grows)
+        if grows is not None and mu != 0 and not rep["no_force"]:
+            # |B| = |I| |b(r)| for the coil's own field: where it grows does not depend on the current's sign,
+            # so the way the atoms go is the moment's sign alone (mu > 0: towards stronger field)
+            rep["direction"] = tuple(math.copysign(1.0, mu) * x + 0.0 for x in grows)
     else:
         from ..physics.imaging import saturation_parameter
 
@@ -676,9 +678,9 @@ def push_away_from_barrier(shot):
     (`field_grows_along`); an optical push moves atoms along its beam. The
     barrier beam's `position` in the rig is taken relative to the atoms
     before the push (the trap centre, the rig's origin). Usually the sample
-    is in the wrong state (e.g. |F=2, mF=-2> instead of |F=1, mF=-1>), the
-    coil's current has the wrong sign, or the barrier sits on the other
-    side. Without `field_grows_along` the direction of a magnetic push is
+    is in the wrong state (e.g. |F=2, mF=-2> instead of |F=1, mF=-1>), or
+    the coil or the barrier sits on the other side. (Reversing a coil's
+    current does not reverse where its |B| grows.) Without `field_grows_along` the direction of a magnetic push is
     unknown and this check is silent."""
     for act in _pushes(shot):
         rep = push_analysis(shot, act)
@@ -702,7 +704,7 @@ def push_away_from_barrier(shot):
             yield make("physics.push-away-from-barrier", f"the push moves the atoms away from barrier '{beam.name}' "
                        f"(block '{bar.block}', {dist * 1e3:.4g} mm away along {_vec_text(where / dist)}): {why}",
                        act.pos, block=act.block, time_s=act.t0,
-                       hint="prepare the state that the push sends towards the barrier, reverse the coil current, "
+                       hint="prepare a state that this push sends towards the barrier (the other sign of moment), "
                             "or check field_grows_along and the barrier position in the rig file",
                        data={"cos_angle": along, "barrier_distance_m": dist})
 

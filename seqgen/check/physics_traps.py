@@ -56,9 +56,13 @@ def _held(species, beams: tuple):
     from ..physics.optical import held_trap
 
     try:
-        return held_trap(species, beams)
+        depth, omegas = held_trap(species, beams)
     except (ValueError, RuntimeError, np.linalg.LinAlgError):
         return 0.0, None
+    if omegas is not None:
+        omegas = np.array(omegas, dtype=float)
+        omegas.setflags(write=False)  # shared by every shot that meets these beams
+    return depth, omegas
 
 
 def trap_stage(shot, t0, t1, n=N_SAMPLES):
@@ -112,7 +116,11 @@ def per_shot_cache(key_of):
             key = key_of(shot, *args)
             if key not in cache:
                 cache[key] = None
-                cache[key] = func(shot, *args)
+                try:
+                    cache[key] = func(shot, *args)
+                except BaseException:
+                    del cache[key]  # the next caller retries (and meets the same error itself), not a stale None
+                    raise
             return cache[key]
 
         return cached

@@ -23,7 +23,7 @@ def diff_versions(old: Version, new: Version) -> DiffReport:
         pchanges, changed_params = timeline.param_changes(old, new)
         changes += pchanges
     if both_shots:
-        changes += scan.scan_changes(old.scan, new.scan)
+        changes += scan.scan_changes(old.scan, new.scan, old.scan_invalid, new.scan_invalid)
         if old.scan is not None or new.scan is not None:
             rep.notes.append("a scanned sequence is compared at its base values (`value:` of each scanned param); "
                              "the scans themselves under 'scan-*'")

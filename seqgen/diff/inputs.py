@@ -96,7 +96,12 @@ def _sequence(path: str, text: str | None, label: str, kind: str) -> Version:
         v.devices = {d.name: {"tick_s": d.tick_s, "output_model": d.output_model} for d in rig.devices.values()}
         v.columns = {o.name: Column(o.name, o.device, o.kind, o.unit, o) for o in rig.outputs.values()}
         v.duration_s = res.shot.duration_s
-        v.scan = _scan_plan(res.sources, res.shot)
+        v.scan, scan_findings = _scan_plan(res.sources, res.shot)
+        if scan_findings:  # a scan that does not expand: its findings are the version's too
+            from ..findings import sort_findings
+
+            v.findings = sort_findings(v.findings + list(scan_findings))
+            v.scan_invalid = True
     if res.compiled is not None:
         v.tables = tuple(res.compiled.tables)
         v.duration_s = res.compiled.duration_s
@@ -104,13 +109,13 @@ def _sequence(path: str, text: str | None, label: str, kind: str) -> Version:
 
 
 def _scan_plan(src, base_shot):
-    """The version's scan plan, or None (no scan, or one that does not expand: its findings say why)."""
+    """(the version's scan plan or None, the findings of a scan that does not expand)."""
     from ..resolve.scan import expand, has_scans
 
     if src is None or not has_scans(src):
-        return None
-    plan, _ = expand(src, base_shot)
-    return plan
+        return None, []
+    plan, findings = expand(src, base_shot)
+    return (plan, []) if plan is not None and not findings else (None, findings or [])
 
 
 def load_build(folder: Path, label: str) -> Version:

@@ -67,6 +67,7 @@ class Version:
     duration_s: float | None = None
     text: str | None = None  # the main file's text (sequence inputs)
     scan: object = None  # resolve.scan.ScanPlan when the sequence scans params (the shot is then the base shot)
+    scan_invalid: bool = False  # the sequence scans params but the scan does not expand (see its findings)
 
     @property
     def resolved(self) -> bool:

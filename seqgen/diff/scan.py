@@ -24,8 +24,19 @@ def _how(plan) -> str:
     return f"{len(plan)} shots, {lockstep}, nest {' > '.join(plan.nest)}, {order}"
 
 
-def scan_changes(old, new) -> list[Change]:
-    """Changes between two ScanPlans (either may be None: no scan)."""
+def scan_changes(old, new, old_invalid: bool = False, new_invalid: bool = False) -> list[Change]:
+    """Changes between two ScanPlans (either may be None: no scan, or with *_invalid a scan that does not
+    expand, whose findings the preflight level reports)."""
+    if old_invalid or new_invalid:
+        if old_invalid and new_invalid:
+            return []  # both scans are broken: the preflight level compares their findings
+        good = new if old_invalid else old
+        what = good.describe() if good is not None else "no scan"
+        kind = "scan-added" if old_invalid else "scan-removed"
+        return [Change("resolved", kind, "scan", f"the scan of the {'old' if old_invalid else 'new'} version does "
+                       f"not expand into shots (see its findings); the {'new' if old_invalid else 'old'} one: {what}",
+                       None if old_invalid else what, what if old_invalid else None, weight=2.0,
+                       data={"invalid": "old" if old_invalid else "new"})]
     if old is None and new is None:
         return []
     if old is None or new is None:

@@ -70,7 +70,7 @@ YAML_TAG = declare("schema.yaml-unsupported", "error", """
 
 _INT = re.compile(r"^[-+]?(0|[1-9][0-9_]*)$")
 _HEX = re.compile(r"^0x[0-9a-fA-F_]+$")
-_FLOAT = re.compile(r"^[-+]?(\d[\d_]*\.?\d*|\.\d+)([eE][-+]?\d+)?$")
+_FLOAT = re.compile(r"^[-+]?([0-9][0-9_]*\.?[0-9]*|\.[0-9]+)([eE][-+]?[0-9]+)?$")  # ASCII digits only (YAML 1.2 core)
 _SPECIAL = {"true": True, "false": False, "null": None, "~": None, "": None,
             ".inf": float("inf"), "+.inf": float("inf"), "-.inf": float("-inf"), ".nan": float("nan")}
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import difflib
+import math
 
 from ..calibration import is_monotonic
 from ..findings import Finding, make
@@ -130,15 +131,18 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         if wl is None:
             continue
         beams[name] = Beam(name, wl, b["power_channel"], opt(base + ("waist",), "m", positive=True),
-                           opt(base + ("waist_y",), "m", positive=True), tuple(b.get("direction", (1, 0, 0))),
-                           tuple(b.get("position", (0, 0, 0))), b.get("role", "other"), doc.pos(base))
+                           opt(base + ("waist_y",), "m", positive=True),
+                           _direction(b.get("direction"), base + ("direction",), doc, findings, (1.0, 0.0, 0.0)),
+                           _vector(b.get("position", (0, 0, 0)), base + ("position",), doc, findings) or (0.0, 0.0, 0.0),
+                           b.get("role", "other"), doc.pos(base))
     coils = {}
     for name, c in (data.get("coils") or {}).items():
         base = ("coils", name)
         ref("coil", name, "current_channel", c["current_channel"], base + ("current_channel",))
         coils[name] = Coil(name, c["current_channel"], opt(base + ("gradient_per_amp",), "T/m/A"),
                            opt(base + ("bias_per_amp",), "T/A"), opt(base + ("curvature_per_amp",), "T/m^2/A"),
-                           tuple(c.get("axis", (0, 0, 1))), opt(base + ("max_current",), "A", positive=True),
+                           _direction(c.get("axis"), base + ("axis",), doc, findings, (0.0, 0.0, 1.0)),
+                           opt(base + ("max_current",), "A", positive=True),
                            opt(base + ("continuous_current",), "A", positive=True), opt(base + ("i2t_limit",), "A^2*s", positive=True),
                            opt(base + ("i2t_window",), "s", positive=True), doc.pos(base),
                            _direction(c.get("field_grows_along"), base + ("field_grows_along",), doc, findings))
@@ -170,19 +174,39 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
     return rig, findings
 
 
-def _direction(raw, path, doc, findings):
-    """A unit 3-vector from the rig file, or None when absent (a zero or non-finite vector is a finding)."""
-    if raw is None:
+def _vector(raw, path, doc, findings):
+    """Three finite floats from the rig file, or None (with a finding) when a number does not fit a float."""
+    try:
+        v = tuple(float(x) for x in raw)
+    except (OverflowError, TypeError, ValueError):
+        v = ()
+    if len(v) != 3 or not all(math.isfinite(x) for x in v):
+        findings.append(make(E.BAD_RIG, f"{path[-1]} {_short(raw)} is not three finite numbers", doc.pos(path),
+                             hint="give three ordinary numbers, e.g. [1, 0, 0]"))
         return None
-    import math
+    return v
 
-    v = tuple(float(x) for x in raw)
-    n = math.sqrt(sum(x * x for x in v))
-    if not (math.isfinite(n) and n > 0):
-        findings.append(make(E.BAD_RIG, f"{path[-1]} {list(raw)} is not a direction", doc.pos(path),
+
+def _direction(raw, path, doc, findings, default=None):
+    """A unit 3-vector from the rig file; `default` when absent (a zero or unusable vector is a finding)."""
+    if raw is None:
+        return default
+    v = _vector(raw, path, doc, findings)
+    if v is None:
+        return default
+    big = max(abs(x) for x in v)
+    if big == 0:
+        findings.append(make(E.BAD_RIG, f"{path[-1]} {_short(raw)} is not a direction (all zero)", doc.pos(path),
                              hint="give three numbers, not all zero, e.g. [1, 0, 0]"))
-        return None
+        return default
+    v = tuple(x / big for x in v)  # scaled first: the norm of [1e200, 1e200, 0] must not overflow
+    n = math.sqrt(sum(x * x for x in v))
     return tuple(x / n for x in v)
+
+
+def _short(raw) -> str:
+    text = repr(list(raw)) if isinstance(raw, (list, tuple)) else repr(raw)
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 def _replace(o, **kw):

@@ -159,4 +159,12 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document) -> list[Finding
     if v == "pattern":
         return [make(BAD_VALUE, f"{where}: '{err.instance}' is not a valid name", doc.pos(path),
                      hint="names are letters, digits and underscores, starting with a letter")]
-    return [make(BAD_VALUE, f"{where}: {err.message}", doc.pos(path))]
+    return [make(BAD_VALUE, f"{where}: {_shorten(err.message, err.instance)}", doc.pos(path))]
+
+
+def _shorten(message: str, instance) -> str:
+    """jsonschema repeats the offending value in full; a 400-digit number or a long list is cut to its start."""
+    text = repr(instance)
+    if len(text) <= 60 or text not in message:
+        return message
+    return message.replace(text, f"{text[:40]}... ({len(text)} characters)")
