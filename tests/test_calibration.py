@@ -1,5 +1,6 @@
-"""Calibration maps: the table cubic is scipy's monotone PCHIP (Fritsch-Carlson, SIAM J. Numer. Anal. 17,
-238 (1980)), its inverse returns the physical value, and beyond the table the map stays monotonic."""
+"""Calibration maps: the table cubic is scipy's monotone PCHIP (monotone piecewise cubic interpolation,
+SIAM J. Numer. Anal. 17, 238 (1980)), its inverse returns the physical value, and beyond the table the map
+stays monotonic."""
 
 import numpy as np
 import pytest
@@ -33,9 +34,9 @@ def test_inside_the_table_the_map_is_scipy_pchip(tp, to):
 
 @pytest.mark.parametrize("tp,to", TABLES)
 def test_table_cubic_has_the_published_properties(tp, to):
-    # Fritsch-Carlson (SIAM J. Numer. Anal. 17, 238 (1980)): the interpolant passes through the data, is
+    # monotone piecewise cubic interpolation (SIAM J. Numer. Anal. 17, 238 (1980)): the interpolant passes through the data, is
     # monotone on every interval of monotone data, and its derivative at a point never exceeds three times the
-    # smaller adjacent secant slope in magnitude (their sufficient condition for monotonicity)
+    # smaller adjacent secant slope in magnitude (the paper's sufficient condition for monotonicity)
     out = _out(tp, to)
     order = np.argsort(tp)
     xs, ys = np.asarray(tp, float)[order], np.asarray(to, float)[order]

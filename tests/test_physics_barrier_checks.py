@@ -44,7 +44,7 @@ def _rect_t(E, V0, a, m):
 
 def _poeschl_teller_T(E, V0, a, m):
     """V0 / cosh^2(x/a): T = sinh^2(pi k a) / [sinh^2(pi k a) + cosh^2((pi/2) sqrt(8 m V0 a^2 / hbar^2 - 1))]
-    (Landau and Lifshitz, Quantum Mechanics, section 25, problem 4)."""
+    (Quantum Mechanics: Non-Relativistic Theory, 3rd ed., Pergamon (1977), section 25, problem 4)."""
     k = np.sqrt(2 * m * E) / sc.hbar
     g = 8 * m * V0 * a**2 / sc.hbar**2 - 1
     ch2 = np.cosh(0.5 * np.pi * np.sqrt(g)) ** 2
@@ -291,8 +291,8 @@ def test_thermal_spread_is_maxwell_boltzmann(tmp_path):
 
 
 def test_condensate_spread_uses_the_thomas_fermi_radius_along_the_path(tmp_path):
-    # mu = (hbar w_bar / 2)(15 N a / a_ho)^(2/5), R = sqrt(2 mu / (m w_x^2)) (Pethick and Smith, Bose-Einstein
-    # Condensation in Dilute Gases, Thomas-Fermi chapter); a(|1,-1>) = 54.5 a0 (Phys. Rev. A 83, 042704 (2011),
+    # mu = (hbar w_bar / 2)(15 N a / a_ho)^(2/5), R = sqrt(2 mu / (m w_x^2)) (Bose-Einstein Condensation in
+    # Dilute Gases, 2nd ed., Cambridge University Press (2008), Thomas-Fermi chapter); a(|1,-1>) = 54.5 a0 (Phys. Rev. A 83, 042704 (2011),
     # from memory); the kick is along x; sigma_v = 1.602 hbar / (m R) is seqgen's Gaussian-equivalent width.
     res = _write(tmp_path, "{species: Na23, state: {F: 1, mF: -1}, atoms: 1.0e5, condensed: true, "
                            "trap_frequencies: [5 Hz, 300 Hz, 300 Hz]}")

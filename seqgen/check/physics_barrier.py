@@ -389,9 +389,9 @@ def _each(shot):
 # --------------------------------------------------------------------------
 
 _SRC_SCATTER = ("optical dipole potential, Adv. At. Mol. Opt. Phys. 42, 95 (2000); 1D transmission by transfer "
-                "matrices checked against the rectangular and Poeschl-Teller closed forms (Landau and Lifshitz, "
-                "Quantum Mechanics, section 25); Thomas-Fermi radius (Pethick and Smith, Bose-Einstein "
-                "Condensation in Dilute Gases)")
+                "matrices checked against the rectangular and Poeschl-Teller closed forms (Quantum Mechanics: "
+                "Non-Relativistic Theory, 3rd ed., Pergamon (1977), section 25); Thomas-Fermi radius "
+                "(Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008))")
 
 
 @check("physics.barrier-transmission", "note", _SRC_SCATTER, stage="physics")
