@@ -395,10 +395,13 @@ def run_scan(scan: Scan, *, out: str | Path | None = None, force: bool = False, 
     folders = [f"shot_{i:0{width}d}" for i in range(len(plan))]
     reuse: dict = {}
     manifest_writer = None
+    stale: list = []  # old shot folders to remove once this run has built something
     if out is not None:
         out = Path(out)
-        reuse = _prepare_out(out, scan, folders, force)
-        manifest_writer = _ManifestWriter(out, scan, folders, reuse)
+        reuse, stale, had_build = _prepare_out(out, scan, folders, force)
+        # over an existing build, scan.json is rewritten only once a shot is built or kept: a run whose every
+        # shot is refused leaves the previous build as it was (as a single file's refused build does)
+        manifest_writer = _ManifestWriter(out, scan, folders, reuse, hold=had_build)
     crash = _crash or {}
     tasks = [_Task(i, plan.written_index[i], plan.names, plan.points[i], folders[i],
                    str(out) if out is not None else None, out is not None,
@@ -420,7 +423,7 @@ def run_scan(scan: Scan, *, out: str | Path | None = None, force: bool = False, 
                     SHOT_FAILED, f"shot {result.index}: cannot write its build: {exc.strerror or exc}",
                     src.main.pos(()), hint="check the disk space and permissions of the output folder"),))
         if out is not None and result.folder is None:
-            _remove(out / folders[result.index])  # an old build of this index no longer matches
+            stale.append(out / folders[result.index])  # an old build of this index no longer matches
         results[result.index] = result
         if manifest_writer is not None:
             manifest_writer.update(result)
@@ -433,14 +436,17 @@ def run_scan(scan: Scan, *, out: str | Path | None = None, force: bool = False, 
             _execute_local(src, tasks, jobs, on_result)
     finally:
         bar.close()
-        if manifest_writer is not None:
+        if manifest_writer is not None and not manifest_writer.hold:
             manifest_writer.flush()
+            for p in stale:
+                _remove(p)
     scan.shots = [results[i] for i in range(len(plan))]
     scan.out = out
     scan.stats = {"shots": len(plan), "reused": sum(r.reused for r in scan.shots),
                   "built": sum(1 for r in scan.shots if r.folder and not r.reused),
                   "failed": sum(not r.ok for r in scan.shots), "jobs": 0 if cluster else jobs,
-                  "seconds": time.perf_counter() - t_start}
+                  "seconds": time.perf_counter() - t_start,
+                  "kept_previous": bool(manifest_writer is not None and manifest_writer.hold)}
     return scan
 
 
@@ -479,7 +485,7 @@ def scan_input_sha256(scan: Scan) -> str:
     return h.hexdigest()
 
 
-def _prepare_out(out: Path, scan: Scan, folders: list, force: bool) -> dict:
+def _prepare_out(out: Path, scan: Scan, folders: list, force: bool) -> tuple[dict, list, bool]:
     """Decide resume / update / replace; returns {index: verified previous record}."""
     if out.exists() and not out.is_dir():
         if not force:
@@ -506,9 +512,12 @@ def _prepare_out(out: Path, scan: Scan, folders: list, force: bool) -> dict:
                               "inputs are unchanged are kept)")
     out.mkdir(parents=True, exist_ok=True)
     wanted = set(folders)
-    for p in out.iterdir():  # leftovers of an interrupted run, shots no longer in the scan
-        if p.name.startswith(".shot_") or (p.name.startswith("shot_") and p.name not in wanted):
+    stale = []
+    for p in out.iterdir():
+        if p.name.startswith(".shot_"):  # leftovers of an interrupted run
             _remove(p)
+        elif p.name.startswith("shot_") and p.name not in wanted:  # shots no longer in the scan: removed
+            stale.append(p)  # only once the new run has built something
     reuse = {}
     for rec in (old or {}).get("shots", []):
         i = rec.get("index")
@@ -520,7 +529,7 @@ def _prepare_out(out: Path, scan: Scan, folders: list, force: bool) -> dict:
             reuse[i] = {"input_sha256": rec["input_sha256"], "build": rec["build"], "findings": tuple(found),
                         "manifest_sha256": rec["manifest_sha256"],
                         "tables": tuple((d, tuple(sorted(v.items()))) for d, v in sorted(rec["tables"].items()))}
-    return reuse
+    return reuse, stale, old is not None
 
 
 def _verify(folder: Path, rec: dict) -> list | None:
@@ -596,8 +605,9 @@ def scan_description(plan: ScanPlan) -> dict:
 class _ManifestWriter:
     """Keeps OUT/scan.json current (atomic replace; at most about once a second while running)."""
 
-    def __init__(self, out: Path, scan: Scan, folders: list, reuse: dict):
+    def __init__(self, out: Path, scan: Scan, folders: list, reuse: dict, hold: bool = False):
         self.out, self.scan, self.folders = out, scan, folders
+        self.hold = hold  # True: leave the existing scan.json until a shot is built or kept
         plan = scan.plan
         self.records = {}
         for i in range(len(folders)):
@@ -608,11 +618,14 @@ class _ManifestWriter:
                             manifest_sha256=rec["manifest_sha256"], tables=rec["tables"])
             self.records[i] = {**shot_record(plan, r), "status": "pending"}
         self.last = 0.0
-        self.flush()
+        if not hold:
+            self.flush()
 
     def update(self, r: ShotResult) -> None:
         self.records[r.index] = shot_record(self.scan.plan, r)
-        if time.monotonic() - self.last > 1.0:
+        if r.folder:
+            self.hold = False
+        if not self.hold and time.monotonic() - self.last > 1.0:
             self.flush()
 
     def flush(self) -> None:
@@ -780,8 +793,12 @@ def report_text(scan: Scan, *, built: bool = False) -> str:
     t = totals(scan)
     if built and scan.out is not None:
         st = scan.stats
-        lines.append(f"built {st['built'] + st['reused']} of {len(scan.shots)} shots into {scan.out}/ "
-                     f"({st['built']} written, {st['reused']} kept unchanged); scan manifest {scan.out / SCAN_MANIFEST}")
+        if st.get("kept_previous"):
+            lines.append(f"no shot could be built (every shot has errors): {scan.out}/ is left as it was")
+        else:
+            lines.append(f"built {st['built'] + st['reused']} of {len(scan.shots)} shots into {scan.out}/ "
+                         f"({st['built']} written, {st['reused']} kept unchanged); scan manifest "
+                         f"{scan.out / SCAN_MANIFEST}")
         if st["failed"]:
             lines.append(f"  {st['failed']} shot(s) not built: fix their errors (or accept them with a reason)")
     lines.append(f"{scan.file}: {good} of {len(scan.shots)} shots pass; over all shots {t['error']} error(s), "

@@ -317,6 +317,30 @@ def test_resume_rebuilds_only_what_changed(tmp_path):
     assert shorter.stats["reused"] == 3 and not (out / "shot_0003").exists()
 
 
+def _tree(folder):
+    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def test_a_forced_rebuild_whose_every_shot_fails_keeps_the_previous_build(tmp_path, capsys):
+    # as for one file (a build with error findings is not written), nothing is lost: README "Parameter scans"
+    p = _seq(tmp_path, ["rt: {value: 10 us, scan: [10 us, 20 us]}"])
+    out = tmp_path / "out"
+    assert run_scan(plan_scan(p), out=out, jobs=1).stats["built"] == 2
+    before = _tree(out)
+    # 1 us ramps are shorter than ao_main's 2 us minimum interval (the rig file): every shot has an error
+    p.write_text(p.read_text().replace("scan: [10 us, 20 us]", "scan: [1 us, 1.5 us, 0.5 us]"))
+    assert main(["build", str(p), "-o", str(out), "--force"]) == 1
+    assert "left as it was" in capsys.readouterr().out
+    assert _tree(out) == before
+    # when some shots pass, the scan is updated: the refused shot's old folder no longer matches and goes
+    p.write_text(p.read_text().replace("scan: [1 us, 1.5 us, 0.5 us]", "scan: [10 us, 1 us]"))
+    partial = run_scan(plan_scan(p), out=out, jobs=1, force=True)
+    assert [r.ok for r in partial.shots] == [True, False]
+    assert (out / "shot_0000").is_dir() and not (out / "shot_0001").exists()
+    doc = json.loads((out / "scan.json").read_text())
+    assert [s["status"] for s in doc["shots"]] == ["built", "refused"]
+
+
 def test_build_refuses_a_folder_that_is_not_a_scan(tmp_path, capsys):
     p = _seq(tmp_path, ["b: {value: 0 s, scan: [1 ms, 2 ms]}"])
     out = tmp_path / "out"
