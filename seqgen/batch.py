@@ -780,7 +780,8 @@ def report_text(scan: Scan, *, built: bool = False) -> str:
     """Compact text summary of a run scan: one entry per finding code with the param ranges where it fires."""
     from .findings import format_text
 
-    lines = [f"{scan.file}: scan of {len(scan.plan)} shots: {scan.plan.describe()}"]
+    n = len(scan.plan)
+    lines = [f"{scan.file}: scan of {n} shot{'s' if n != 1 else ''}: {scan.plan.describe()}"]
     for c in summarize(scan):
         acc = f", {c.accepted} accepted" if c.accepted else ""
         count = (f"in all {len(scan.shots)} shots" if len(c.shots) == len(scan.shots)

@@ -26,8 +26,9 @@ def _caution() -> str:
     return "caution: " + CAUTION
 
 
-def _report(res, args, out=None, choice=None) -> int:
-    """Print the findings of one shot; `choice` (seqgen.show.ShotChoice): which shot of a scan it is."""
+def _report(res, args, out=None, choice=None, caution: bool = True) -> int:
+    """Print the findings of one shot; `choice` (seqgen.show.ShotChoice): which shot of a scan it is;
+    `caution`: end with the safety caution (False when the caller prints more and the caution after it)."""
     out = out or sys.stdout  # looked up per call, so redirection (and tests) see the output
     fmt = _format(args)
     if fmt == "sarif":
@@ -47,7 +48,8 @@ def _report(res, args, out=None, choice=None) -> int:
         s = summary(res.findings)
         out.write(f"{args.file}: {s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s)"
                   + (f", {s['accepted']} accepted" if s["accepted"] else "") + "\n")
-        out.write(_caution() + "\n")
+        if caution:
+            out.write(_caution() + "\n")
     return _exit_code(res, args.file)
 
 
@@ -87,18 +89,23 @@ def cmd_check(args) -> int:
     if report and Path(report).exists() and not args.force:
         return _cannot_run(f"{report} exists; use --force to replace it")
     if getattr(args, "shot", None) is not None:  # one shot of a scan, preflighted like a file without scans
+        scan = _plan_scan(args)
+        if _is_rig_file(scan):
+            return _cannot_run(f"--shot {args.shot}: {args.file} is a rig file, which has no shots (leave out --shot)")
         try:
-            res, choice, _ = _preflight_shot(args.file, args.shot)
+            res, choice, _ = _preflight_shot(args.file, args.shot, scan)
         except _ShotRefused as exc:
             return _cannot_run(exc)
-        code = _report(res, args, choice=choice)
+        code = _report(res, args, choice=choice, caution=not report)
         if report:
             wrote = _write_check_report(report, res, args, choice=choice)
             code = code if wrote == EXIT_OK else wrote
         return code
     scan = _plan_scan(args)
+    if _is_rig_file(scan):  # a rig file: checked as a rig on its own
+        return _check_rig_file(scan, args, report)
     if scan.is_scan:
-        code = _scan_run(scan, args, build=False)
+        code = _scan_run(scan, args, build=False, caution=not report)
         if report:  # the scan's plan, shots and per-code summary, then the base shot in detail
             from .show import shot_choice
 
@@ -108,7 +115,28 @@ def cmd_check(args) -> int:
             code = code if wrote == EXIT_OK else wrote
         return code
     res = preflight(args.file, sources=scan.sources)
-    code = _report(res, args)
+    code = _report(res, args, caution=not report)
+    if report:
+        wrote = _write_check_report(report, res, args)
+        code = code if wrote == EXIT_OK else wrote
+    return code
+
+
+def _is_rig_file(scan) -> bool:
+    from .resolve.sequence import is_rig_document
+
+    return scan.sources is not None and is_rig_document(scan.sources.main)
+
+
+def _check_rig_file(scan, args, report) -> int:
+    """check of a rig file (seqgen_rig: 1): its schema and rig-builder findings, reported as a sequence's are."""
+    from .findings import has_errors, sort_findings
+    from .pipeline import Result
+    from .resolve.sequence import check_rig_document
+
+    res = Result(findings=sort_findings(check_rig_document(scan.sources.main)), sources=scan.sources)
+    _report(res, args, caution=not report)
+    code = EXIT_FINDINGS if has_errors(res.findings) else EXIT_OK
     if report:
         wrote = _write_check_report(report, res, args)
         code = code if wrote == EXIT_OK else wrote
@@ -123,8 +151,13 @@ def _write_check_report(path, res, args, scan=None, choice=None) -> int:
     failed, _ = _writing(f"the report to {path}", lambda: write_report(path, res, args.file, force=args.force,
                                                                         scan=scan, choice=choice), (OutputExists,))
     if failed:
+        if _format(args) == "text":  # the report was refused: the caution still closes the output
+            print(_caution())
         return failed
-    print(f"report written to {path}", file=sys.stderr if _format(args) != "text" else sys.stdout)
+    text = _format(args) == "text"
+    print(f"report written to {path}", file=sys.stdout if text else sys.stderr)
+    if text:
+        print(_caution())  # the safety caution comes last
     return EXIT_OK
 
 
@@ -211,7 +244,7 @@ class _ShotRefused(Exception):
     """--shot N cannot be honoured (the file scans no param, or has no shot N): one line, exit 2."""
 
 
-def _preflight_shot(file, n: int | None):
+def _preflight_shot(file, n: int | None, scan=None):
     """(Result, ShotChoice or None, Scan) of the shot that show / plot / check --shot look at.
 
     With n None the base shot (each scanned param at its value:); else shot n of the file's scan, in run order
@@ -224,7 +257,7 @@ def _preflight_shot(file, n: int | None):
     from .resolve.scan import has_scans
     from .show import shot_choice
 
-    scan = plan_scan(file)
+    scan = scan if scan is not None else plan_scan(file)
     if n is None or (scan.plan is None and (scan.sources is None or has_errors(scan.sources.findings))):
         res = preflight(file, sources=scan.sources)  # a file that does not load or validate: its findings
         return res, (shot_choice(scan.plan, None, res.shot) if scan.plan is not None else None), scan
@@ -252,8 +285,9 @@ def _scan_caption(choice, scan) -> str | None:
     return None
 
 
-def _scan_run(scan, args, *, build: bool) -> int:
-    """check / build of a scanned sequence: every shot, then a per-code summary of param ranges."""
+def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
+    """check / build of a scanned sequence: every shot, then a per-code summary of param ranges; `caution`:
+    end with the safety caution (False when the caller prints more and the caution after it)."""
     from .batch import BuildExists, ClusterUnavailable, report_text, run_scan, scan_json
     from .findings import has_errors
 
@@ -271,7 +305,8 @@ def _scan_run(scan, args, *, build: bool) -> int:
             print(f"{args.file}: {s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s)")
             if build:
                 print("build not written: fix the errors above")
-            print(_caution())
+            if caution:
+                print(_caution())
         return EXIT_FINDINGS
     failed, _ = _writing(f"the scan to {args.output}" if build else "the scan", lambda: run_scan(
         scan, out=args.output if build else None, force=getattr(args, "force", False), jobs=args.jobs,
@@ -286,7 +321,8 @@ def _scan_run(scan, args, *, build: bool) -> int:
         print(json.dumps(scan_json(scan), indent=2, sort_keys=True))
     else:
         print(report_text(scan, built=build))
-        print(_caution())
+        if caution:
+            print(_caution())
     return EXIT_OK if scan.ok else EXIT_FINDINGS
 
 
@@ -362,13 +398,12 @@ def cmd_show(args) -> int:
 
 def cmd_explain(args) -> int:
     from . import batch  # noqa: F401  (declares the scan codes)
-    from .registry import CODES, _load_all, close_codes, explain
+    from .registry import CODES, _load_all, close_codes, explain, summary_line
 
     if args.code in (None, "all"):
         _load_all()
         for code in sorted(CODES):
-            info = CODES[code]
-            print(f"{code:<36} {info.severity:<8} {info.doc.splitlines()[0] if info.doc else ''}")
+            print(f"{code:<36} {CODES[code].severity:<8} {summary_line(code)}")
         return EXIT_OK
     text = explain(args.code)
     if text is None:
@@ -480,6 +515,9 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    if getattr(args, "json", False) and getattr(args, "format", None) not in (None, "json"):
+        return _cannot_run(f"--json and --format {args.format} ask for two output formats; give one of them "
+                           "(--json is --format json)")
     if getattr(args, "format", None) == "json":
         args.json = True  # --format json is --json
     allow_before = os.environ.get("SEQGEN_ALLOW_OUTSIDE")

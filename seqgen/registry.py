@@ -79,6 +79,31 @@ def explain(code: str) -> str | None:
             f"Source: {info.source}")
 
 
+SUMMARY_WIDTH = 100  # characters of a one-line summary in `seqgen explain all`
+
+
+def summary_line(code: str, width: int = SUMMARY_WIDTH) -> str:
+    """The first sentence of a code's doc on one line; a longer one is cut at a word boundary, with an ellipsis."""
+    import re
+
+    info = CODES.get(code)
+    if info is None or not info.doc:
+        return ""
+    para = " ".join(info.doc.split("\n\n")[0].split())
+    # a sentence ends at '.', '!' or '?' before a space and a capital, backquote or opening bracket
+    m = re.search(r"[.!?](?=\s+[A-Z`(\[])", para)
+    first = para[:m.end()] if m else para
+    if len(first) <= width:
+        return first
+    cut = first[:width - 3].rstrip()
+    space = cut.rfind(" ")
+    if space > width // 2:
+        cut = cut[:space]
+    if cut.count("`") % 2:  # never leave a `code` span open
+        cut = cut[:cut.rfind("`")]
+    return cut.rstrip(" ,;:-([{") + "..."
+
+
 def close_codes(code: str) -> list[str]:
     import difflib
 

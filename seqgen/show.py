@@ -69,7 +69,8 @@ class ShotChoice:
         if self.index is None:
             same = f"; the same values as shot {self.same_as}" if self.same_as is not None else ""
             pick = f"--shot 0..{last} picks a shot" if last > 0 else "--shot 0 picks it"
-            return (f"base shot of a scan of {self.shots} shots (each scanned param at its written value): "
+            return (f"base shot of a scan of {self.shots} shot{'s' if self.shots != 1 else ''} (each scanned param "
+                    f"at its written value): "
                     f"{self.values_text}{same}; {pick}")
         order = f", written-order position {self.written_index}" if self.written_index != self.index else ""
         return f"shot {self.index} of the {self.shots} shots of the scan (run order{order}): {self.values_text}"

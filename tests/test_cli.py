@@ -10,6 +10,7 @@ import yaml
 
 from seqgen.cli import main
 from seqgen.registry import CODES, _load_all
+from seqgen.resolve.units import parse_simple
 
 from .conftest import SEQUENCES
 
@@ -283,3 +284,230 @@ def test_shot_of_a_scan_that_cannot_be_expanded_gives_its_finding(capsys):
     assert code == 1 and expect in [f["code"] for f in out["findings"]]
     main(["show", str(fault)])  # without --shot: the base shot, saying the scan cannot be expanded
     assert "the scan cannot be expanded" in capsys.readouterr().out.splitlines()[0]
+
+
+# ----------------------------------------------------------------------------- messages a new user stumbles over
+# Each message must say file:line, what is wrong in the user's words and a fix that works: the fix is applied to
+# the file and the file checked again. Unit facts: SI Brochure, 9th ed. (2019): S (siemens) is the unit of
+# conductance, unit symbols are case-sensitive (m milli, M mega), 1 G = 1e-4 T (from memory).
+
+
+def _seq(tmp_path, body: str, name="seq.yaml"):
+    shutil.copy(RIG, tmp_path / "rig.yaml")
+    p = tmp_path / name
+    p.write_text("seqgen: 1\nrig: rig.yaml\n" + body, encoding="utf-8")
+    return p
+
+
+def _hits(path, code, capsys):
+    rc, doc = _json(["check", str(path), "--json"], capsys)
+    return rc, [f for f in doc["findings"] if f["code"] == code]
+
+
+def _write_fix(hint: str) -> str:
+    return hint.split("write '", 1)[1].split("'", 1)[0]
+
+
+PARAM_BODY = """params:
+  kick_time: 2
+  kick_gradient: 8 G
+blocks:
+  - name: a
+    at: 10 ms
+    actions:
+      - set: {channel: probe_shutter, value: 1}
+      - hold: {duration: kick_time}
+      - set: {channel: probe_shutter, value: 0}
+      - push: {coil: kick_coil, gradient: kick_gradient, duration: 1 ms}
+"""
+
+
+def test_a_param_of_the_wrong_kind_is_reported_where_it_is_defined_and_its_fix_resolves(tmp_path, capsys):
+    path = _seq(tmp_path, PARAM_BODY)
+    lines = path.read_text(encoding="utf-8").splitlines()
+    def_line = {ln.split(":")[0].strip(): i + 1 for i, ln in enumerate(lines) if ln.startswith("  kick_")}
+    use_line = {k: next(i + 1 for i, ln in enumerate(lines) if f": {k}" in ln and i + 1 != def_line[k]) for k in def_line}
+    for code, name, fixed in (("schema.missing-unit", "kick_time", "kick_time: 2 ms"),
+                              ("schema.wrong-dimension", "kick_gradient", "kick_gradient: 8 G/cm")):
+        rc, hits = _hits(path, code, capsys)
+        assert rc == 1 and len(hits) == 1, hits
+        f = hits[0]
+        assert f["line"] == def_line[name] and f"param '{name}'" in f["message"]
+        assert f"line {use_line[name]}" in f["message"]  # ... and where it is used
+        assert _write_fix(f["hint"]) == fixed and "write it with a unit" not in f["hint"]
+        lines[def_line[name] - 1] = "  " + _write_fix(f["hint"])
+        path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    g = [f for f in _hits(path, "schema.wrong-dimension", capsys)[1]]
+    assert "did you mean G/cm?" not in str(g)
+    rc, doc = _json(["check", str(path), "--json"], capsys)
+    assert rc == 0 and not [f for f in doc["findings"] if f["code"].startswith("schema.")]
+
+
+@pytest.mark.parametrize("action,written,code,words,fixed", [
+    ("hold: {duration: %s}", "80 mS", "schema.wrong-dimension",
+     ["80 millisiemens (a conductance)", "expected a time", "did you mean ms?"], "80 ms"),
+    ("pulse: {channel: sheet_power, value: %s, duration: 1 ms}", "0.43 mw", "schema.unknown-unit",
+     ["unknown unit 'mw'", "did you mean mW?"], "0.43 mW"),
+    ("hold: {duration: %s}", "3", "schema.missing-unit", ["has no unit; expected a time"], "3 ms"),
+])
+def test_a_written_value_gets_a_fix_in_the_expected_unit(tmp_path, capsys, action, written, code, words, fixed):
+    body = ("blocks:\n  - name: a\n    at: 10 ms\n    actions:\n      - set: {channel: probe_shutter, value: 1}\n"
+            f"      - {action % written}\n      - set: {{channel: probe_shutter, value: 0}}\n")
+    path = _seq(tmp_path, body)
+    rc, hits = _hits(path, code, capsys)
+    assert rc == 1 and hits and hits[0]["line"] == 8
+    assert all(w in hits[0]["message"] for w in words), hits[0]["message"]
+    assert _write_fix(hits[0]["hint"]) == fixed
+    path.write_text(path.read_text(encoding="utf-8").replace(action % written, action % fixed), encoding="utf-8")
+    assert _json(["check", str(path), "--json"], capsys)[0] == 0
+
+
+def test_a_rig_file_is_checked_as_a_rig(tmp_path, capsys):
+    # README "Commands": check of a rig file validates it against schemas/rig.schema.json and the rig builder
+    rc, doc = _json(["check", str(RIG), "--json"], capsys)
+    assert rc == 0 and [f["code"] for f in doc["findings"]] == ["schema.rig-file"]
+    assert "add 'seqgen: 1'" not in json.dumps(doc)
+    rig = yaml.safe_load(RIG.read_text(encoding="utf-8"))
+    name = next(n for n, c in rig["channels"].items() if c.get("kind") == "analog")
+    lo, hi = rig["channels"][name]["output"]["range"]
+    bad = tmp_path / "bad_rig.yaml"
+    text = RIG.read_text(encoding="utf-8")
+    bad.write_text(text.replace(f"range: [{lo}, {hi}]", f"range: [{hi}, {lo}]", 1), encoding="utf-8")
+    rc, doc = _json(["check", str(bad), "--json"], capsys)
+    assert rc == 1 and "schema.bad-rig" in [f["code"] for f in doc["findings"]]
+    assert main(["show", str(RIG)]) == 1
+    assert "this is a rig file" in capsys.readouterr().out
+
+
+def test_json_and_format_text_contradict_and_are_refused(capsys):
+    for other in ("text", "sarif"):
+        code, err = _run(["check", str(THERMO), "--json", "--format", other], capsys)
+        assert code == 2 and len(err) == 1 and "--json" in err[0] and f"--format {other}" in err[0]
+    assert main(["check", str(THERMO), "--json", "--format", "json"]) == 0
+
+
+@pytest.mark.parametrize("scanned", [False, True])
+def test_the_safety_caution_comes_last_after_the_report_line(tmp_path, capsys, monkeypatch, scanned):
+    monkeypatch.chdir(tmp_path)
+    path = _scanned(tmp_path) if scanned else THERMO
+    out = tmp_path / "r.html"
+    main(["check", str(path), "--report", str(out), "--jobs", "1"])
+    lines = capsys.readouterr().out.strip().splitlines()
+    assert lines[-1].startswith("caution:") and lines[-2] == f"report written to {out}"
+    assert sum(ln.startswith("caution:") for ln in lines) == 1
+
+
+def test_explain_all_cuts_summaries_at_a_sentence_or_a_word(capsys):
+    # (common practice, no source): a summary is a whole first sentence, or a cut at a word with an ellipsis
+    _load_all()
+    assert main(["explain", "all"]) == 0
+    for line in capsys.readouterr().out.splitlines():
+        code, severity, text = line.split(None, 2)
+        doc = " ".join(CODES[code].doc.split())
+        if text.endswith("..."):
+            kept = text[:-3]
+            assert doc.startswith(kept) and doc[len(kept)] in " ,;:", (code, text)
+            assert kept.count("`") % 2 == 0, (code, text)
+        else:
+            assert doc.startswith(text) and text[-1] in ".?!" or text == doc, (code, text)
+
+
+def test_outside_root_and_missing_use_name_the_paths(tmp_path, capsys, monkeypatch):
+    proj = tmp_path / "proj"
+    proj.mkdir()
+    (proj / "seqgen.toml").write_text("", encoding="utf-8")
+    shutil.copy(RIG, tmp_path / "rig.yaml")
+    seq = proj / "s.yaml"
+    seq.write_text("seqgen: 1\nrig: ../rig.yaml\nuse:\n  - file: ../other.yaml\n  - file: common/gone.yaml\n"
+                   "blocks:\n  - name: a\n    actions:\n      - hold: {duration: 1 ms}\n", encoding="utf-8")
+    monkeypatch.chdir(proj)
+    rc, doc = _json(["check", "s.yaml", "--json"], capsys)
+    by = {f["code"]: f for f in doc["findings"]}
+    for code in ("schema.rig-outside-root", "schema.use-outside-root"):
+        assert f"'{proj}' (the current folder)" in by[code]["message"], by[code]
+    missing = by["schema.file-missing"]
+    assert missing["line"] == 5 and f"looked in {proj / 'common'}" in missing["message"]
+    monkeypatch.chdir(tmp_path)
+    rc, doc = _json(["check", "proj/s.yaml", "--json"], capsys)
+    assert any("root 'proj'" in f["message"] for f in doc["findings"] if f["code"] == "schema.rig-outside-root")
+
+
+def test_scan_steps_messages(tmp_path, capsys):
+    def run(scan):
+        path = _seq(tmp_path, f"params:\n  t: {{value: 2 ms, scan: {scan}}}\nblocks:\n  - name: a\n    at: 10 ms\n"
+                    "    actions:\n      - hold: {duration: t}\n")
+        rc, doc = _json(["check", str(path), "--json", "--jobs", "1"], capsys)
+        return rc, doc, [f for f in doc["findings"] if f["severity"] == "error"]
+
+    rc, _, errs = run("{from: 1 ms, to: 3 ms, steps: two}")
+    assert rc == 1 and errs[0]["hint"] == "give an integer"  # English article before a vowel sound
+    rc, _, errs = run("{from: 1 ms, to: 3 ms, steps: 0}")
+    assert errs[0]["code"] == "schema.bad-value" and "give 2 or more" in errs[0]["hint"]
+    rc, _, errs = run("{from: 1 ms, to: 3 ms, steps: 1}")  # one step would drop to: silently
+    assert errs[0]["code"] == "schema.bad-scan" and errs[0]["line"] == 4 and "to: 3 ms would be ignored" in errs[0]["message"]
+    rc, doc, errs = run("[1 ms]")
+    assert rc == 0 and not errs
+    main(["check", str(tmp_path / "seq.yaml"), "--jobs", "1"])
+    assert "t 1 ms (1 value)" in capsys.readouterr().out
+
+
+def _rig_numbers():
+    rig = yaml.safe_load(RIG.read_text(encoding="utf-8"))
+    ch = rig["channels"]["sg_current"]
+    dev = rig["devices"][ch["device"]]
+    slope = float(ch["calibration"]["linear"]["slope"].split()[0])  # V per A
+    tick = 1 / parse_simple(dev["timebase"]).value
+    h = parse_simple(dev["min_interval"]).value
+    lo, hi = (parse_simple(v).value for v in ch["output"]["range"])
+    lsb = (hi - lo) / (2 ** ch["output"]["bits"] - 1)
+    return slope, tick, h, lsb
+
+
+def test_magnetic_hold_ramp_deviation_is_the_hold_bound_and_its_tolerance_is_accepted(tmp_path, capsys):
+    """A linear 0 -> 40 A ramp over 20 ms on sg_current: rows may be no closer than the device's minimum interval
+    h, so each row holds over h / tick ticks while the curve moves on. Piecewise-constant approximation of a
+    curve of slope y' with rows h apart: error <= y' h / 2 (A Practical Guide to Splines, Springer (1978)); at
+    the device's ticks a row holding two ticks whose curve values differ by y' tick is off by at least
+    y' tick / 2 (elementary). Half an LSB (the default tolerance) lies below that, so the warning is real."""
+    slope, tick, h, lsb = _rig_numbers()
+    y1 = 40 * slope / 20e-3  # V/s
+    body = ("blocks:\n  - name: hold\n    at: 10 ms\n    actions:\n"
+            "      - magnetic_hold: {currents: {sg_coil: 40 A}, duration: 300 ms, ramp_on: 20 ms%s}\n"
+            "      - release: {coils: [sg_coil]}\n")
+    rc, hits = _hits(_seq(tmp_path, body % ""), "hardware.ramp-undersampled", capsys)
+    assert len(hits) == 1
+    err = hits[0]["data"]["max_error"]
+    assert y1 * (h - tick) / 2 * (1 - 1e-6) <= err <= y1 * h / 2 * (1 + 1e-6)
+    assert hits[0]["data"]["tolerance"] == pytest.approx(lsb / 2, rel=1e-9) and lsb / 2 < y1 * tick / 2
+    tol_mv = err * 1e3 * 1.01
+    rc, doc = _json(["check", str(_seq(tmp_path, body % f", tolerance: {tol_mv:.4f} mV")), "--json"], capsys)
+    assert rc == 0 and not [f for f in doc["findings"] if f["code"] in ("hardware.ramp-undersampled", "schema.unknown-key")]
+    rc, hits = _hits(_seq(tmp_path, body % ", tolerance: 0.2 mA"), "schema.wrong-dimension", capsys)
+    assert rc == 1 and hits[0]["line"] == 7 and "expected a voltage" in hits[0]["message"]
+
+
+def test_majorana_line_names_the_gradient_it_uses(capsys):
+    # one coil's quadrupole: |B| grows along the axis at b' and radially at b'/2 (div B = 0, Maxwell's equations);
+    # the cloud size k_B T / (|mu| b') uses the weakest one
+    fault = SEQUENCES / "faults" / "magnetic_majorana.yaml"
+    rig = yaml.safe_load(RIG.read_text(encoding="utf-8"))
+    per_amp = parse_simple(rig["coils"]["sg_coil"]["gradient_per_amp"].replace("/A", "")).value
+    amps = parse_simple(yaml.safe_load(fault.read_text(encoding="utf-8").split("\n", 1)[1])["blocks"][0]["actions"][0]
+                        ["magnetic_hold"]["currents"]["sg_coil"]).value
+    axial_g_cm = per_amp * amps * 100
+    _, doc = _json(["show", str(fault), "--physics", "--json"], capsys)
+    items = next(r["items"] for r in doc["physics"] if r["kind"] == "magnetic_hold")
+    line = next(i for i in items if i.startswith("cloud size"))
+    assert f"b' = {axial_g_cm / 2:.4g} G/cm" in line and "radial" in line and f"{axial_g_cm:.4g} G/cm along its axis" in line
+
+
+def test_readme_documents_end_leave_on_and_accept(tmp_path, capsys):
+    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text(encoding="utf-8")
+    block = next(b.split("\n", 1)[1] for b in readme.split("```yaml")[1:] if "leave_on" in b.split("```")[0])
+    example = yaml.safe_load(block.split("```")[0])
+    left = example["end"]["leave_on"][0]
+    body = (f"blocks:\n  - name: a\n    at: 10 ms\n    actions:\n      - set: {{channel: {left}, value: 1}}\n")
+    rc, hits = _hits(_seq(tmp_path, body), "safety.left-on", capsys)
+    assert hits  # left on: reported
+    rc, doc = _json(["check", str(_seq(tmp_path, body + block.split("```")[0])), "--json"], capsys)
+    assert not [f for f in doc["findings"] if f["code"] in ("safety.left-on",) or f["code"].startswith("schema.")]

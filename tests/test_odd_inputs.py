@@ -101,3 +101,15 @@ def test_diff_of_scans_that_do_not_expand_reports_their_findings(capsys):
 def test_diff_takes_allow_outside_root(tmp_path, capsys):
     assert main(["diff", "--allow-outside-root", str(SEQUENCES / "na23_thermometry.yaml"),
                  str(SEQUENCES / "na23_thermometry.yaml")]) == 0
+
+
+def test_an_absolute_path_inside_the_project_is_a_warning_with_its_relative_form(tmp_path):
+    # an absolute path works only where the project sits; the hint gives the path relative to the file
+    p = _project(tmp_path, RIG_TEXT, SEQ.replace("rig: rig.yaml", f"rig: {tmp_path / 'rig.yaml'}"))
+    res = preflight(p)
+    hits = [f for f in res.findings if f.code == "schema.absolute-path"]
+    assert [(f.severity, f.line) for f in hits] == [("warning", 2)]
+    assert "'rig.yaml'" in hits[0].hint
+    assert res.shot is not None  # it still works here
+    # a relative path is quiet
+    assert not [f for f in preflight(_project(tmp_path, RIG_TEXT, SEQ)).findings if f.code == "schema.absolute-path"]

@@ -146,7 +146,8 @@ def test_demo_separation_against_hand_formula(demo):
     # relative acceleration (mu_1 - mu_2) b'/m; low-field moments -g_F m_F mu_B: |1,-1> -> -|g_F1|, |2,-2> -> +2 g_F2
     dmu = abs(-g_f(1) * -1 - (-g_f(2) * -2)) * MU_B
     img = only(demo, "image")
-    hand = dmu * 0.12 / MASS * 4e-3 * (2e-3 + (img.t0 - act.t1))
+    grad, tau = act.args["gradient"], act.args["duration"]  # the demo's numbers may change: read them from the shot
+    hand = dmu * grad / MASS * tau * (tau / 2 + (img.t0 - act.t1))
     assert abs(rep["separation"]) == pytest.approx(hand, rel=5e-3)
     from seqgen.check.physics_traps import cloud_at_image
 
@@ -418,6 +419,21 @@ def test_reversed_current_does_not_reverse_the_push(tmp_path):
     assert "physics.push-away-from-barrier" not in [x.code for x in state_findings(shot)]
 
 
+@pytest.mark.parametrize("F,mF,way", [(1, -1, "weaker"), (2, -2, "stronger")])
+def test_push_report_says_the_way_in_words(tmp_path, F, mF, way):
+    # moment -dE/dB < 0 (|1,-1>, low-field seeker) goes towards weaker field, > 0 (|2,-2>) towards stronger
+    # (Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)); the speed is |mu| b' tau / m, printed without a sign
+    sample = f"sample: {{species: Na23, state: {{F: {F}, mF: {mF}}}, atoms: 1.0e5, temperature: 100 nK}}\n"
+    shot = write(tmp_path, PUSH_THEN_SHEET.format(push="push: {coil: kick_coil, gradient: 8 G/cm, duration: 1 ms}"),
+                 sample=sample)
+    (row,) = [r for r in ps.report(shot) if r["kind"] == "push"]
+    dE_dB = (breit_rabi_hz(F, mF, BIAS + 1e-7) - breit_rabi_hz(F, mF, BIAS - 1e-7)) * sc.h / 2e-7
+    speed = abs(dE_dB) * 0.08 * 1e-3 / MASS
+    kick = [item for item in row["items"] if item.startswith("kick ")][0]
+    assert kick.startswith(f"kick {speed * 1e3:.4g} mm/s towards {way} field, along [")
+    assert "+" not in kick and "-" not in kick.split(", along")[0]
+
+
 # --------------------------------------------------------------------------- fault corpus
 
 def _expect_codes():
@@ -442,7 +458,7 @@ def test_every_state_code_has_a_fault_file():
     ("push_no_force", "physics.push-no-force"), ("push_too_late", "physics.push-too-late"),
     ("components_overlap", "physics.components-overlap"), ("equal_moments", "physics.equal-moments"),
     ("probe_doppler", "physics.probe-doppler"), ("imaging_blur", "physics.imaging-blur"),
-    ("exposure_too_short", "hardware.exposure-too-short")])
+    ("exposure_too_short", "hardware.exposure-too-short"), ("transition_unpopulated", "physics.transition-unpopulated")])
 def test_fault_fires_through_the_state_checks(name, code):
     found = state_findings(shot_of(SEQUENCES / "faults" / f"{name}.yaml"))
     hits = [f for f in found if f.code == code]

@@ -12,11 +12,27 @@ per barrier action):
   |B|, the package-wide sign of `seqgen.physics`); only the speed is used,
   the direction is reported. An optical push, or a state without a usable
   moment (mF = 0), falls back to the push's `expect_velocity`.
-* Velocity spread along the path: a condensate uses the Thomas-Fermi radius R
-  along the path (trap frequencies from `sample.trap_frequencies`, else from
-  the rig's trap beams at the time of the push) and sigma_v = 1.602 hbar/(m R)
-  (`seqgen.physics.scattering.condensate_velocity_rms`); a thermal cloud
-  sqrt(k_B T / m).
+  A push that sends the atoms away from the barrier (the push's direction
+  against the barrier beam's `position` in the rig, the atoms starting at the
+  rig's origin) gives no incident velocity: the atoms never arrive, and
+  `physics.push-away-from-barrier` says so; the barrier checks stay silent.
+* The cloud along the path, from the trap just before the push (trap
+  frequencies from `sample.trap_frequencies`, else from the rig's trap beams
+  then on): a condensate has the Thomas-Fermi radius R along the path, line
+  density (15/16R)(1 - x^2/R^2)^2 and sigma_v = 1.602 hbar/(m R)
+  (`seqgen.physics.scattering.condensate_velocity_rms`); a thermal cloud is
+  Gaussian with rms width sqrt(k_B T/(m omega^2)) along the path (edge at 2.5
+  rms) and sigma_v = sqrt(k_B T / m).
+* Passage: the barrier plane lies d = position . direction from the atoms
+  along the path; every atom starts at its place x0 in the cloud with its own
+  velocity offset u, moves with the push (uniform acceleration over the push,
+  then at the pushed speed) plus u t, and has crossed the sheet once
+  x0 + s(t) + u t passes d + w_y. `physics.cloud-overlaps-barrier` warns when
+  the cloud's edge already reaches the sheet at the push,
+  `physics.barrier-too-short` when more than 10 % of the cloud crosses the
+  sheet only after it is off, `physics.barrier-too-late` when more than 10 %
+  reaches its near edge (d - w_y) before it is on: the transmission below
+  assumes that every atom meets the sheet, coming from one side.
 * Barrier: V(x) = V0 exp(-2 x^2 / w_y^2) along the path, V0 = (U/I) 2P/(pi w w_y)
   with U/I the D1 + D2 light shift per intensity of the species at the beam's
   wavelength (Adv. At. Mol. Opt. Phys. 42, 95 (2000)); `power` is the
@@ -62,6 +78,12 @@ MIN_CELLS, MAX_CELLS = 128, 8192
 # beyond |delta| w_y / v = 20 the transit-time Fourier factor of a Gaussian
 # coupling, exp(-(delta w_y / v)^2 / 8), is below 1e-21: no transfer at all
 FAR_OFF_RESONANCE = 20.0
+THERMAL_EDGE_RMS = 2.5  # a thermal cloud's edge along the path: 2.5 rms widths, 98.8 % of it (common practice, no source)
+MISSED_FRACTION = 0.10  # a barrier may miss at most 10 % of the cloud (common practice, no source)
+HINT_FRACTION = 0.01  # hints aim at 1 % missed
+U_NODES = 1601  # velocity offsets -8 .. 8 sigma_v in steps of 0.01 sigma_v for the passage fractions
+_U_X = np.linspace(-8.0, 8.0, U_NODES)
+_U_W = np.exp(-0.5 * _U_X**2) / np.sum(np.exp(-0.5 * _U_X**2))
 
 
 # --------------------------------------------------------------------------
@@ -145,6 +167,93 @@ def spin_rotation(x_edges, profile, V0_j: float, rabi_peak_rad_s: float, energie
     return SpinRotation(np.asarray(clock.probability), angle, clock)
 
 
+def thomas_fermi_fraction_beyond(u):
+    """Fraction of a Thomas-Fermi condensate whose coordinate along one axis exceeds u R (vectorised).
+
+    The density n ~ 1 - x^2/R_x^2 - y^2/R_y^2 - z^2/R_z^2 integrated over the two other axes gives the
+    line density (15/(16 R)) (1 - x^2/R^2)^2; its integral from u R to R is
+    1/2 - (15/16) (u - 2 u^3/3 + u^5/5) for |u| <= 1 (1 below -1, 0 above 1)."""
+    u = np.clip(np.asarray(u, dtype=float), -1.0, 1.0)
+    return np.clip(0.5 - (15.0 / 16.0) * (u - 2.0 * u**3 / 3.0 + u**5 / 5.0), 0.0, 1.0)  # no -1e-17 at the edges
+
+
+def fraction_beyond(y_m, profile: str, size_m: float):
+    """Fraction of the cloud whose initial coordinate along the path (from its centre) is >= y (vectorised).
+
+    profile "thomas-fermi": size = Thomas-Fermi radius; "gaussian": size = rms width
+    (1/2 erfc(y / (sqrt 2 sigma))); otherwise a point cloud (1 for y <= 0, else 0)."""
+    from scipy.special import erfc
+
+    y = np.asarray(y_m, dtype=float)
+    if size_m and size_m > 0 and profile == "thomas-fermi":
+        return thomas_fermi_fraction_beyond(y / size_m)
+    if size_m and size_m > 0 and profile == "gaussian":
+        return 0.5 * erfc(y / (math.sqrt(2.0) * size_m))
+    return (y <= 0).astype(float)
+
+
+def push_displacement(t_s, speed_m_s: float, push_duration_s: float):
+    """Distance covered t after the push began: uniform acceleration speed/tau from rest for the push
+    duration tau, s = speed t^2 / (2 tau), then free flight, s = speed (t - tau/2) (vectorised)."""
+    t = np.maximum(np.asarray(t_s, dtype=float), 0.0)
+    if push_duration_s <= 0:
+        return speed_m_s * t
+    return np.where(t < push_duration_s, 0.5 * speed_m_s * t**2 / push_duration_s,
+                    speed_m_s * (t - 0.5 * push_duration_s))
+
+
+def fraction_reached(t_s, distance_m: float, speed_m_s: float, push_duration_s: float, sigma_v_m_s: float,
+                     profile: str, size_m: float):
+    """Fraction of the cloud that has reached `distance_m` along the path by t after the push began (vectorised).
+
+    An atom starts at x0 (distributed as `fraction_beyond`) with a velocity offset u (Gaussian,
+    rms sigma_v, independent of x0) and moves to x0 + s(t) + u t (`push_displacement`). That path is
+    convex in t and starts at x0, so the atom has been at `distance_m` by t exactly when
+    x0 + max(0, s(t) + u t) >= distance. A point cloud gives the normal tail
+    1/2 erfc((d - s) / (sqrt 2 sigma_v t)) in closed form; otherwise the velocity average runs over
+    U_NODES points spaced 0.01 sigma_v out to 8 sigma_v (a step in u costs at most 0.4 % of the atoms)."""
+    from scipy.special import erfc
+
+    t = np.asarray(t_s, dtype=float)
+    s = push_displacement(t, speed_m_s, push_duration_s)
+    if not (size_m and size_m > 0) or profile not in ("thomas-fermi", "gaussian"):
+        if distance_m <= 0:
+            return np.ones_like(s)
+        if sigma_v_m_s <= 0:
+            return (s >= distance_m).astype(float)
+        spread = sigma_v_m_s * t
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = np.where(spread > 0, (distance_m - s) / np.where(spread > 0, spread, 1.0), np.inf)
+        return np.clip(0.5 * erfc(z / math.sqrt(2.0)), 0.0, 1.0)
+    u = sigma_v_m_s * _U_X
+    moved = np.maximum(0.0, s[..., None] + u * t[..., None])
+    return np.clip(np.sum(_U_W * fraction_beyond(distance_m - moved, profile, size_m), axis=-1), 0.0, 1.0)
+
+
+def time_to_fraction(fraction: float, distance_m: float, speed_m_s: float, push_duration_s: float,
+                     sigma_v_m_s: float, profile: str, size_m: float) -> float:
+    """First time after the push began by which `fraction` of the cloud has reached `distance_m`
+    (math.inf if it never does, e.g. atoms slower than the spread). Bisection on `fraction_reached`,
+    which never decreases with t, to 1e-7 relative."""
+    args = (distance_m, speed_m_s, push_duration_s, sigma_v_m_s, profile, size_m)
+
+    def reached(t):
+        return float(fraction_reached(t, *args))
+
+    if reached(0.0) >= fraction:
+        return 0.0
+    hi = max(push_duration_s, 1e-6)
+    while reached(hi) < fraction:
+        hi *= 2.0
+        if hi > 1e4:
+            return math.inf
+    lo = 0.0
+    while hi - lo > 1e-7 * hi:
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if reached(mid) < fraction else (lo, mid)
+    return hi
+
+
 def path_frequency(omegas_rad_s, axes, direction) -> float:
     """Harmonic frequency along a unit direction d: omega_d^2 = sum_j (a_j . d)^2 omega_j^2
     (a_j the principal axes, columns of `axes`; identity for lab-frame frequencies)."""
@@ -168,14 +277,23 @@ def _last_push(shot, act):
     return pushes[-1] if pushes else None
 
 
+def _unit(v):
+    a = np.asarray(v, dtype=float)
+    n = float(np.linalg.norm(a))
+    return a / n if n > 0 and math.isfinite(n) else None
+
+
 def incident_velocity(shot, act):
-    """dict(speed, signed, direction, source, push) for the barrier action, or None.
+    """dict(speed, signed, direction, known_direction, source, push) for the barrier action, or None.
 
     One push model for every check: `physics_states.push_analysis` (moment
     -dE/dB from the Breit-Rabi formula at the rig's bias field). `signed` > 0:
     pushed towards stronger field. A push that gives the state no force
     (mF = 0, or |moment| below the push checks' threshold) or an optical push
-    falls back to the push's `expect_velocity` when it gives one."""
+    falls back to the push's `expect_velocity` when it gives one. None when
+    the push has a direction (`push_analysis(...)["direction"]`) that leads
+    away from the barrier beam's rig `position` (the atoms start at the rig's
+    origin): the atoms never arrive (physics.push-away-from-barrier)."""
     from .physics_states import push_analysis
 
     push = _last_push(shot, act)
@@ -184,52 +302,109 @@ def incident_velocity(shot, act):
     args = push.args
     rep = push_analysis(shot, push)
     direction = (rep or {}).get("direction")
+    known = direction is not None
     if direction is None:
         direction = shot.rig.coils[args["coil"]].axis if "coil" in args else shot.rig.beams[args["beam"]].direction
+    beam = shot.rig.beams.get(act.args.get("beam"))
+    if known and beam is not None:
+        where = np.asarray(beam.position_m, dtype=float)
+        dist = float(np.linalg.norm(where))
+        if dist > 0 and math.isfinite(dist) and float(np.dot(direction, where)) < 0:
+            return None  # pushed away from the sheet: it meets no atoms
+    out = dict(direction=direction, known_direction=known, push=push)
     if rep and rep.get("kind") == "magnetic" and not rep["no_force"] and rep["velocity"] != 0:
         signed = rep["velocity"]
         way = "towards stronger field" if rep["moment"] > 0 else "towards weaker field"
         if "direction" in rep:
             way += ", along [" + ", ".join(f"{x + 0.0:.3g}" for x in rep["direction"]) + "]"
         s = shot.sample
-        return dict(speed=abs(signed), signed=signed, direction=direction, push=push,
+        return dict(out, speed=abs(signed), signed=signed,
                     source=f"push by '{args['coil']}' on |F={s.F}, mF={s.mF}>, {way}")
     if args.get("expect_velocity"):
         v = float(args["expect_velocity"])
-        return dict(speed=abs(v), signed=v, direction=direction, push=push, source="expect_velocity of the push")
+        return dict(out, speed=abs(v), signed=v, source="expect_velocity of the push")
     return None
 
 
-def velocity_spread(shot, time_s, direction):
-    """(sigma_v m/s, description) of the sample along `direction` at `time_s`."""
-    from ..physics.expansion import thomas_fermi
+def _before(t):
+    """Just before t: a write at the push's own start (a trap beam switched off) is not yet the trap."""
+    return t - 1e-9 * max(1.0, abs(t))
+
+
+def cloud_along_path(shot, time_s, direction):
+    """The sample along the unit `direction` in the trap at `time_s`: dict with
+
+    sigma_v (m/s), text, profile ("thomas-fermi", "gaussian" or "point"), size (Thomas-Fermi radius or
+    rms width, m; 0 when unknown) and half_length (the edge: R, or THERMAL_EDGE_RMS rms widths; None
+    when unknown). Trap frequencies from `sample.trap_frequencies`, else from the rig's trap beams on at
+    `time_s`."""
+    from ..physics.expansion import thermal_in_trap_width, thomas_fermi
     from ..physics.optical import find_trap_minimum
     from ..physics.scattering import condensate_velocity_rms, thermal_velocity_rms
 
     sp = _species(shot)
     s = shot.sample
-    if s.condensed and s.atoms:
-        omegas = axes = None
-        if s.trap_frequencies_hz:
-            omegas = 2 * np.pi * np.asarray(s.trap_frequencies_hz, dtype=float)
-        else:
-            beams = _gaussian_beams(shot, [time_s])[0]
-            if beams:
-                try:
-                    m = find_trap_minimum(sp, beams)
-                    omegas, axes = m.omegas_rad_s, m.axes
-                except (ValueError, RuntimeError, np.linalg.LinAlgError):
-                    omegas = None
+    omegas = axes = None
+    if s.trap_frequencies_hz:
+        omegas = 2 * np.pi * np.asarray(s.trap_frequencies_hz, dtype=float)
+    else:
+        beams = _gaussian_beams(shot, [time_s])[0]
+        if beams:
+            try:
+                m = find_trap_minimum(sp, beams)
+                omegas, axes = m.omegas_rad_s, m.axes
+            except (ValueError, RuntimeError, np.linalg.LinAlgError):
+                omegas = None
+    w_path = None
+    if omegas is not None and np.all(np.isfinite(omegas)) and np.all(np.asarray(omegas) > 0):
+        w_path = path_frequency(omegas, axes, direction)
+    if s.condensed and s.atoms and w_path:
         a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", next(iter(sp.scattering_lengths_m.values()), None))
-        if omegas is not None and np.all(np.isfinite(omegas)) and a and a > 0:
-            w_path = path_frequency(omegas, axes, direction)
+        if a and a > 0:
             mu, _ = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
             radius = math.sqrt(2 * mu / (sp.mass_kg * w_path**2))
-            return float(condensate_velocity_rms(radius, sp.mass_kg)), (
-                f"condensate, Thomas-Fermi radius {radius * 1e6:.4g} um along the path")
+            return dict(sigma_v=float(condensate_velocity_rms(radius, sp.mass_kg)), profile="thomas-fermi",
+                        size=radius, half_length=radius,
+                        text=f"condensate, Thomas-Fermi radius {radius * 1e6:.4g} um along the path")
     if s.temperature_k:
-        return float(thermal_velocity_rms(s.temperature_k, sp.mass_kg)), f"thermal, T = {s.temperature_k * 1e9:.4g} nK"
-    return 0.0, "no spread known (sample without temperature or trap)"
+        sigma_v = float(thermal_velocity_rms(s.temperature_k, sp.mass_kg))
+        text = f"thermal, T = {s.temperature_k * 1e9:.4g} nK"
+        if w_path:
+            width = float(thermal_in_trap_width(s.temperature_k, sp.mass_kg, w_path))
+            return dict(sigma_v=sigma_v, profile="gaussian", size=width, half_length=THERMAL_EDGE_RMS * width,
+                        text=f"{text}, rms width {width * 1e6:.4g} um along the path")
+        return dict(sigma_v=sigma_v, profile="point", size=0.0, half_length=None,
+                    text=f"{text}, size along the path unknown (no trap)")
+    return dict(sigma_v=0.0, profile="point", size=0.0, half_length=None,
+                text="no spread known (sample without temperature or trap)")
+
+
+def velocity_spread(shot, time_s, direction):
+    """(sigma_v m/s, description) of the sample along `direction` at `time_s` (see `cloud_along_path`)."""
+    c = cloud_along_path(shot, time_s, direction)
+    return c["sigma_v"], c["text"]
+
+
+def passage(shot, act, inc, cloud, waist_y):
+    """Where the cloud is against the sheet: dict with the distance d along the path, the cloud's edge,
+    whether they overlap at the push, and the fractions that reach the near edge d - w_y before the
+    barrier is on and cross the far edge d + w_y only after it is off (times from the push's start)."""
+    push = inc["push"]
+    beam = shot.rig.beams[act.args["beam"]]
+    d = float(np.dot(np.asarray(beam.position_m, dtype=float), _unit(inc["direction"])))
+    if not inc["known_direction"]:
+        d = abs(d)  # the push's sense is unknown: take it towards the sheet
+    tau = float(push.args["duration"])
+    args = (inc["speed"], tau, cloud["sigma_v"], cloud["profile"], cloud["size"])
+    on, off = act.t0 - push.t0, act.t1 - push.t0
+    out = dict(distance=d, edge=cloud["half_length"], on=on, off=off, push_t0=push.t0,
+               overlap=cloud["half_length"] is not None and cloud["half_length"] + waist_y >= d)
+    out["early"] = float(fraction_reached(on, d - waist_y, *args))
+    out["late"] = 1.0 - float(fraction_reached(off, d + waist_y, *args))
+    out["need_off"] = time_to_fraction(1.0 - HINT_FRACTION, d + waist_y, *args)
+    out["need_on"] = time_to_fraction(HINT_FRACTION, d - waist_y, *args)
+    out["centre_arrival"] = time_to_fraction(0.5, d, inc["speed"], tau, 0.0, "point", 0.0)
+    return out
 
 
 def _partner(shot, act):
@@ -306,10 +481,11 @@ def analyse(shot, act):
         return None
     waist_y = beam.waist_y_m or beam.waist_m
     inc = incident_velocity(shot, act)
-    if inc is None or inc["speed"] <= 0:
+    if inc is None or not inc["speed"] > 0 or _unit(inc["direction"]) is None:
         return None
     v = inc["speed"]
-    sigma, spread_kind = velocity_spread(shot, inc["push"].t0, inc["direction"])
+    cloud = cloud_along_path(shot, _before(inc["push"].t0), _unit(inc["direction"]))
+    sigma, spread_kind = cloud["sigma_v"], cloud["text"]
     m = sp.mass_kg
     v0 = barrier_height(sp, beam.wavelength_m, act.args["power"], beam.waist_m, waist_y)
     e_mean = 0.5 * m * (v**2 + sigma**2)
@@ -317,6 +493,8 @@ def analyse(shot, act):
                V0=v0, E_mean=e_mean, waist_y=waist_y, expect=act.args.get("expect", "any"))
     if v0 <= 0:
         rep["attractive"] = True  # red-detuned sheet: a well, not a barrier
+    rep["cloud"] = cloud
+    rep["passage"] = passage(shot, act, inc, cloud, waist_y)
     drive = _drive_model(shot, act, sp, beam, waist_y, v)
     rep["drive"] = drive
     v_max = v + 6.0 * sigma
@@ -335,7 +513,8 @@ def analyse(shot, act):
     except ValueError as exc:  # barrier too opaque for double precision: nothing gets through
         avg = None
         rep["opaque"] = str(exc)
-    rep["T"] = avg.mean_transmission if avg else 0.0
+    # a probability: keep the quadrature's round-off (1 + 1e-16) out of the atom counts
+    rep["T"] = min(max(float(avg.mean_transmission), 0.0), 1.0) if avg else 0.0
     rep["T_spread"] = avg.transmission_spread if avg else 0.0
     if drive and "rabi_peak" in drive:
         rep["free_flight_rotation"] = free_flight_rotation(drive["rabi_peak"], waist_y, v)
@@ -354,8 +533,8 @@ def analyse(shot, act):
                 rep["rotation"], rep["rotation_spread"] = 0.0, 0.0
     atoms = shot.sample.atoms
     if atoms:
-        rep["N_T"] = atoms * rep["T"]
-        rep["N_R"] = atoms * (1.0 - rep["T"])
+        rep["N_T"] = max(atoms * rep["T"], 0.0)
+        rep["N_R"] = max(atoms * (1.0 - rep["T"]), 0.0)
     rep["floor"] = shot.sample.detection_floor if shot.sample.detection_floor is not None else DEFAULT_DETECTION_FLOOR
     return rep
 
@@ -404,8 +583,11 @@ def barrier_transmission(shot):
     wavelength, solves the stationary 1D scattering problem and averages the
     transmission over the velocity distribution. The note gives the fraction,
     its spread over the distribution, V0 and the mean kinetic energy. It
-    describes a single atom crossing a static sheet: the cloud's mean-field
-    energy and a sheet pulse shorter than the cloud's passage are not included."""
+    describes a single atom crossing a static sheet, every atom meeting it from
+    one side: the cloud's mean-field energy is not included, and a cloud that
+    already reaches the sheet when it is pushed, or a sheet that is off while
+    part of the cloud passes, is outside the model (physics.cloud-overlaps-barrier,
+    physics.barrier-too-short, physics.barrier-too-late)."""
     for act, rep in _each(shot):
         if rep.get("attractive"):
             msg = f"'{act.args['beam']}' is red-detuned for {shot.sample.species}: a well, not a barrier; T = {rep['T']:.3g}"
@@ -417,6 +599,101 @@ def barrier_transmission(shot):
                    data={"transmission": rep["T"], "transmission_spread": rep["T_spread"], "V0_J": rep["V0"],
                          "mean_kinetic_energy_J": rep["E_mean"], "velocity_m_s": rep["speed"],
                          "velocity_spread_m_s": rep["sigma_v"]})
+
+
+def _um(x_m: float) -> str:
+    return f"{x_m * 1e6:.4g} um" if abs(x_m) < 1e-2 else f"{x_m * 1e3:.4g} mm"
+
+
+def _ms(t_s: float) -> str:
+    return f"{t_s * 1e3:.4g} ms" if math.isfinite(t_s) else "never"
+
+
+def _pct(x: float) -> str:
+    return f"{100 * x:.3g} %"
+
+
+_SRC_PASSAGE = ("uniform acceleration during the push, then free flight (textbook); Thomas-Fermi radius and "
+                "profile (Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008)); "
+                "thermal width sqrt(k_B T / (m omega^2)) by equipartition (textbook); the rig file's barrier "
+                "position and waist")
+
+
+@check("physics.cloud-overlaps-barrier", "warning", _SRC_PASSAGE + "; a thermal cloud's edge at 2.5 rms widths "
+       "(common practice, no source)", stage="physics")
+def cloud_overlaps_barrier(shot):
+    """The cloud already reaches the barrier when it is pushed. Its edge along
+    the path, in the trap just before the push (a condensate's Thomas-Fermi
+    radius R along the path, from the trap frequencies and the atom number; a
+    thermal cloud's 2.5 rms widths sqrt(k_B T / (m omega^2))), plus the sheet's
+    1/e^2 half-width w_y, reaches the sheet's distance d from the atoms along
+    the path (the barrier beam's rig `position`, the atoms at the rig's
+    origin). Part of the cloud then sits in or beyond the sheet before it
+    moves, which the transmission model (every atom arriving from one side
+    at the pushed speed) does not describe, and the predicted fraction means
+    little. Move the sheet farther from the atoms, or make the cloud shorter
+    along the path: a tighter trap along the path at the push (e.g. a crossed
+    beam switched off as the push starts), fewer atoms, or a colder cloud."""
+    for act, rep in _each(shot):
+        ps, cloud = rep["passage"], rep["cloud"]
+        if not ps["overlap"]:
+            continue
+        edge = ps["edge"] + rep["waist_y"]
+        what = ("Thomas-Fermi radius" if cloud["profile"] == "thomas-fermi"
+                else f"edge ({THERMAL_EDGE_RMS:g} rms widths)")
+        yield make("physics.cloud-overlaps-barrier", f"the cloud's {what} along the path at the push, {_um(ps['edge'])}, "
+                   f"reaches barrier '{act.args['beam']}' {_um(ps['distance'])} from the atoms (sheet 1/e^2 half-width "
+                   f"{_um(rep['waist_y'])} included): part of the cloud is in or beyond the sheet before it moves, outside "
+                   f"the transmission model", act.pos, block=act.block, time_s=act.t0,
+                   hint=f"put the sheet farther than {_um(1.5 * edge)} from the atoms (rig file: the beam's position), "
+                        "or shorten the cloud along the path (a tighter trap there at the push, fewer atoms)",
+                   data={"cloud_edge_m": ps["edge"], "barrier_distance_m": ps["distance"]})
+
+
+@check("physics.barrier-too-short", "warning", _SRC_PASSAGE + "; at most 10 % of the cloud missed (common practice, "
+       "no source)", stage="physics")
+def barrier_too_short(shot):
+    """The barrier is off before most of the cloud has crossed it: more than
+    10 % of the atoms pass the sheet's far edge (d + w_y) only after the
+    barrier action ends, and fly on unhindered. Each atom starts at its place
+    in the cloud (Thomas-Fermi or Gaussian profile along the path, as for
+    physics.cloud-overlaps-barrier) with its velocity offset from the spread,
+    and moves with the push (uniform acceleration over the push, then the
+    pushed speed). A long cloud needs about its length over the speed; the
+    hint gives the duration by which 99 % have crossed. Lengthen the barrier,
+    or shorten the cloud along the path."""
+    for act, rep in _each(shot):
+        ps = rep["passage"]
+        if ps["late"] <= MISSED_FRACTION:
+            continue
+        need = ps["need_off"] - ps["on"]
+        hint = (f"keep the barrier on for at least {_ms(need)} (99 % of the cloud across)" if math.isfinite(need)
+                else "part of the cloud never reaches the sheet: push harder")
+        yield make("physics.barrier-too-short", f"barrier '{act.args['beam']}' is off {_ms(ps['off'])} after the push "
+                   f"starts, but {_pct(ps['late'])} of the cloud crosses the sheet {_um(ps['distance'])} away only later "
+                   f"(v = {rep['speed'] * 1e3:.4g} mm/s, {rep['spread_kind']}): those atoms pass unhindered",
+                   act.pos, block=act.block, time_s=act.t1, hint=hint,
+                   data={"missed_fraction": ps["late"], "barrier_off_s": ps["off"], "needed_off_s": ps["need_off"]})
+
+
+@check("physics.barrier-too-late", "warning", _SRC_PASSAGE + "; at most 10 % of the cloud missed (common practice, "
+       "no source)", stage="physics")
+def barrier_too_late(shot):
+    """The barrier comes on after part of the cloud has reached it: more than
+    10 % of the atoms are at or past the sheet's near edge (d - w_y) when the
+    barrier action starts, so they are not scattered from one side (they
+    passed before, or the sheet is switched on around them). Same model as
+    physics.barrier-too-short. Start the barrier earlier (the hint gives the
+    latest start by which only 1 % have arrived)."""
+    for act, rep in _each(shot):
+        ps = rep["passage"]
+        if ps["overlap"] or ps["early"] <= MISSED_FRACTION:
+            continue  # an overlapping cloud is physics.cloud-overlaps-barrier's
+        yield make("physics.barrier-too-late", f"barrier '{act.args['beam']}' comes on {_ms(ps['on'])} after the push "
+                   f"starts, when {_pct(ps['early'])} of the cloud has already reached the sheet {_um(ps['distance'])} "
+                   f"away (v = {rep['speed'] * 1e3:.4g} mm/s)", act.pos, block=act.block, time_s=act.t0,
+                   hint=f"start the barrier no later than {_ms(ps['need_on'])} after the push starts",
+                   data={"early_fraction": ps["early"], "barrier_on_s": ps["on"], "needed_on_s": ps["need_on"]})
 
 
 @check("physics.barrier-no-signal", "warning", "atom number per image above a detection floor, default 100 atoms "
@@ -571,6 +848,11 @@ def report(shot) -> list[dict]:
                  f"transmitted fraction {rep['T']:.3g} (spread {rep['T_spread']:.2g})"]
         if "N_T" in rep:
             items.append(f"transmitted atoms {rep['N_T']:.3g}, reflected {rep['N_R']:.3g} (floor {rep['floor']:g})")
+        ps = rep["passage"]
+        edge = f", cloud edge {_um(ps['edge'])}" if ps["edge"] is not None else ""
+        items.append(f"sheet {_um(ps['distance'])} from the atoms along the path{edge}; on {_ms(ps['on'])} to "
+                     f"{_ms(ps['off'])} after the push starts; cloud centre there after {_ms(ps['centre_arrival'])}; "
+                     f"{_pct(ps['early'])} of the cloud arrives before it is on, {_pct(ps['late'])} after it is off")
         d = rep.get("drive")
         if d and "reason" in d:
             items.append(d["reason"])

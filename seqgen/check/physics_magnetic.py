@@ -189,6 +189,16 @@ def hold_analysis(shot, act):
     return rep
 
 
+def _weakest_text(rep, short: bool = False) -> str:
+    """Which gradient the quadrupole's cloud size and Majorana numbers use: the weakest one, named."""
+    one = len(rep.get("axial") or ()) == 1  # one coil: the radial gradient is half the axial one (div B = 0)
+    text = f"{_g_cm(rep['weakest_gradient'])}, the trap's weakest{' (radial)' if one and short else ''} gradient"
+    if one and not short:
+        name, g = rep["axial"][0]
+        text += f": the radial one, half of {name}'s {_g_cm(abs(g))} along its axis"
+    return text
+
+
 def _current_hint(rep, factor) -> str:
     parts = [f"'{n}' to {abs(i) * factor:.4g} A" for n, i in rep["coils"]]
     return "raise the coil currents by at least x" + f"{factor:.3g}" + (f" ({', '.join(parts)})" if parts else "")
@@ -306,7 +316,8 @@ def majorana_loss(shot):
                 continue
             lost = 1 - math.exp(-rep["duration"] / tau)
             yield make("physics.majorana-loss", f"Majorana spin flips: at {shot.sample.temperature_k * 1e6:.4g} uK the "
-                       f"cloud in the quadrupole is ~{rep['cloud_size'] * 1e6:.3g} um (k_B T / |moment| b'), lifetime "
+                       f"cloud in the quadrupole is ~{rep['cloud_size'] * 1e6:.3g} um (k_B T / |moment| b', "
+                       f"b' = {_weakest_text(rep, short=True)}), lifetime "
                        f"~ m l^2/hbar = {_fmt_t(tau)}, shorter than the {_fmt_t(rep['duration'])} hold (~{lost:.0%} lost)",
                        act.pos, block=act.block, time_s=rep["t_hold"],
                        hint="shorten the hold, or plug the field zero (optical plug, Ioffe-Pritchard trap, rotating bias)",
@@ -357,6 +368,7 @@ def report(shot) -> list[dict]:
                          f"{rep['adiabaticity']:.3g} x the trap / field-rotation rate")
         if "lifetime" in rep:
             items.append(f"cloud size ~{rep['cloud_size'] * 1e6:.3g} um, Majorana hole ~{rep['hole_radius'] * 1e6:.3g} um, "
-                         f"lifetime ~{_fmt_t(rep['lifetime'])} (hold {_fmt_t(rep['duration'])})")
+                         f"lifetime ~{_fmt_t(rep['lifetime'])} (hold {_fmt_t(rep['duration'])}), all with "
+                         f"b' = {_weakest_text(rep)}")
         rows.append({"block": act.block, "kind": "magnetic_hold", "time_s": act.t0, "items": items})
     return rows

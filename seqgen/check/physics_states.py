@@ -21,11 +21,17 @@ Conventions of this module:
   plus the drive's `light_shift`; detuning = drive frequency - line.
   Without a declared `transition` the pair is the sample state and the other
   hyperfine level at equal mF.
-* Push velocities are compared by magnitude; the sign in the report says
-  whether the state is pushed towards stronger (+) or weaker (-) field. Where
+* Push velocities are compared by magnitude; the report says in words
+  whether the state is pushed towards stronger or weaker field. Where
   the rig's coil declares `field_grows_along` (the direction in which |B|
   grows at the atoms), the push has a direction, and
   physics.push-away-from-barrier checks it against the next barrier.
+* Which states hold atoms (`populations`): followed from the sample state
+  through clock pulses and sweeps (their computed transfer, incoherently),
+  barrier modulation drives (partner possibly populated) and magnetic holds
+  with `state:`. Pushes act on the most populated state; separations, and
+  `components_at` (where each component is at an image, for the imaging
+  checks of physics_traps), follow every populated state.
 """
 
 from __future__ import annotations
@@ -569,6 +575,182 @@ def modulation_unreachable(shot):
                        data={"frequency_hz": f, "update_rate_hz": rate})
 
 
+# --------------------------------------------------------------------------- which states the atoms are in
+
+MIN_FRACTION = 0.01  # without an atom number, a state with under 1 % of the atoms counts as empty
+DETECTION_FLOOR = 100  # atoms; the default detection floor of physics.barrier-no-signal (common practice, no source)
+MAX_PATHS = 256  # state histories kept apart; beyond this, histories that end in one state are merged
+
+
+def min_fraction(shot) -> float:
+    """Fraction of the atoms below which a state counts as empty: the sample's detection floor (default
+    100 atoms) over its atom number, at most MIN_FRACTION (1 %)."""
+    s = shot.sample
+    if s is not None and s.atoms:
+        floor = s.detection_floor if s.detection_floor is not None else DETECTION_FLOOR
+        return min(MIN_FRACTION, max(float(floor), 0.0) / float(s.atoms))
+    return MIN_FRACTION
+
+
+def is_populated(shot, fraction) -> bool:
+    return fraction > 1e-12 and fraction >= min_fraction(shot)
+
+
+def state_at(changes, t):
+    """The state of a history ((t_change, state), ...) at time t (a change at t counts)."""
+    state = changes[0][1]
+    for tc, st in changes[1:]:
+        if tc <= t:
+            state = st
+    return state
+
+
+def _state_events(shot):
+    """Actions that move atoms between internal states, in time order: (t_end, t_start, kind, pair, transfer, act).
+
+    A clock pulse moves `transfer` (its Bloch-integrated transfer) between the two states of its transition;
+    a frequency sweep its Bloch (else Landau-Zener) transfer; a barrier's modulation drive an unknown part
+    (transfer None: the partner state becomes possibly populated); a magnetic hold with `state:` declares
+    the state the atoms are held in (pair of one state)."""
+    ev = []
+    for act in _pulses(shot):
+        rep = pulse_analysis(shot, act)
+        if rep and rep.get("pair"):
+            ev.append((act.t1, act.t0, "clock_pulse", rep["pair"], float(rep.get("transfer", 0.0)), act))
+    for drive, seg in _sweeps(shot):
+        rep = sweep_analysis(shot, drive, seg)
+        if rep:
+            ev.append((seg.t1, seg.t0, "sweep", rep["pair"], float(rep.get("bloch_transfer", rep["lz_transfer"])), seg))
+    for act in _barriers(shot):
+        rep = barrier_drive_analysis(shot, act)
+        if rep and rep.get("pair"):
+            ev.append((act.t1, act.t0, "barrier", rep["pair"], None, act))
+    for act in shot.phys:
+        if act.kind == "magnetic_hold" and act.args.get("state") is not None:
+            st = tuple(int(x) for x in act.args["state"])
+            ev.append((act.t0, act.t0, "magnetic_hold", (st,), 1.0, act))
+    ev.sort(key=lambda e: (e[0], e[1]))
+    return ev
+
+
+@per_shot_cache(lambda shot, t: ("state-populations", t))
+def populations(shot, t):
+    """The atoms' internal states just before time t, followed from the sample state.
+
+    dict(paths=[(fraction, changes)], possible=set of states, events=[...]): each path is one history of
+    states ((t_change, state), ...) that a part of the atoms took, starting with the sample state. Clock
+    pulses and sweeps whose end is at or before t split a path in a state of their transition into the part
+    that stays and the part transferred (populations followed incoherently: a Ramsey pair's interference
+    fringe is not followed, so both of its states count as populated afterwards); a barrier's modulation drive
+    marks its partner state as possibly populated (fraction not followed here: see physics.barrier-rotation);
+    a magnetic hold with `state:` puts every atom in that state. None without a sample state."""
+    state = _sample_state(shot)
+    if state is None:
+        return None
+    paths = [(1.0, ((-math.inf, state),))]
+    possible: set = set()
+    used = []
+    for t_end, t_start, kind, pair, p, act in _state_events(shot):
+        if t_end > t + 1e-12:
+            continue
+        if kind == "magnetic_hold":
+            best = max(paths, key=lambda fp: fp[0])
+            paths = [(1.0, best[1] + ((t_start, pair[0]),))]
+            possible.clear()
+            used.append((kind, act, pair, p))
+            continue
+        a, b = pair
+        if p is None:
+            if any(state_at(ch, t_end) in pair for _, ch in paths):
+                possible.update(pair)
+                used.append((kind, act, pair, p))
+            continue
+        new = []
+        for f, ch in paths:
+            now = state_at(ch, t_end)
+            if now not in pair or a == b:
+                new.append((f, ch))
+                continue
+            other = b if now == a else a
+            for part, changes in ((f * (1.0 - p), ch), (f * p, ch + ((t_end, other),))):
+                if part > 1e-12:
+                    new.append((part, changes))
+        if len(new) != len(paths) or any(n is not o for n, o in zip(new, paths)):
+            used.append((kind, act, pair, p))
+        paths = new
+        if len(paths) > MAX_PATHS:
+            merged: dict = {}
+            for f, ch in sorted(paths, key=lambda fp: -fp[0]):
+                key = state_at(ch, t_end)
+                merged[key] = (merged[key][0] + f, merged[key][1]) if key in merged else (f, ch)
+            paths = list(merged.values())
+    return dict(paths=paths, possible=possible, events=used)
+
+
+def state_fractions(shot, t):
+    """{state: fraction of the atoms} just before t (histories merged), or None without a sample state."""
+    pop = populations(shot, t)
+    if pop is None:
+        return None
+    out: dict = {}
+    for f, ch in pop["paths"]:
+        st = state_at(ch, t)
+        out[st] = out.get(st, 0.0) + f
+    return out
+
+
+def populated_states(shot, t):
+    """States holding atoms just before t (above the detection floor), most populated first; [] without a state."""
+    fr = state_fractions(shot, t) or {}
+    return [st for st, f in sorted(fr.items(), key=lambda kv: -kv[1]) if is_populated(shot, f)]
+
+
+def _pct(f) -> str:
+    return f"{f * 100:.3g} %"
+
+
+_SRC_UNPOP = ("populations followed from the sample state through clock pulses (Rabi formula, Phys. Rev. 51, 652 "
+              "(1937), Bloch propagation as for physics.pulse-detuned) and sweeps (Landau-Zener formula, Proc. R. Soc. "
+              "A 137, 696 (1932)); a two-level drive acts only on atoms in one of its two states (common practice, "
+              "no source)")
+
+
+@check("physics.transition-unpopulated", "warning", _SRC_UNPOP, stage="physics")
+def transition_unpopulated(shot):
+    """A clock pulse drives a transition neither of whose states holds any
+    atoms: the pulse does nothing (e.g. the sample is in |F=2, mF=+2> and
+    the pulse's `transition` is |F=1, mF=-1> -> |F=2, mF=-2>). seqgen follows
+    the populations from the sample state through the earlier clock pulses
+    (their transfer from the Bloch equations of the pulse as compiled) and
+    frequency sweeps (Landau-Zener / Bloch transfer), incoherently; a
+    barrier's modulation drive makes its other state possibly populated, and
+    a `magnetic_hold` with `state:` puts the atoms in that state. A state
+    counts as empty below the sample's `detection_floor` (default 100 atoms)
+    or below 1 % of the atoms. A warning, not an error: a drive seqgen does
+    not model may have filled the state. Fix the pulse's `transition` or
+    the sample's `state`."""
+    if _species(shot) is None or _sample_state(shot) is None:
+        return
+    for act in _pulses(shot):
+        rep = pulse_analysis(shot, act)
+        if not rep or not rep.get("pair"):
+            continue
+        fr = state_fractions(shot, act.t0) or {}
+        pop = populations(shot, act.t0)
+        full = populated_states(shot, act.t0)
+        if any(st in full or st in pop["possible"] for st in rep["pair"]):
+            continue
+        a, b = rep["pair"]
+        where = ", ".join(f"{state_text(st)} ({_pct(fr[st])})" for st in full) or "no state above the detection floor"
+        target = full[0] if full else None
+        hint = (f"start the transition from a populated state, e.g. transition: [{{F: {target[0]}, mF: {target[1]}}}, "
+                f"...], or fix the sample's state" if target else "fix the sample's state or the pulse's transition")
+        yield make("physics.transition-unpopulated", f"the clock pulse on '{rep['drive']}' drives {state_text(a)} -> "
+                   f"{state_text(b)}, but neither state holds atoms: before it the atoms are in {where}", act.pos,
+                   block=act.block, time_s=act.t0, hint=hint,
+                   data={"fraction_initial": fr.get(a, 0.0), "fraction_final": fr.get(b, 0.0)})
+
+
 # --------------------------------------------------------------------------- pushes
 
 def _pushes(shot):
@@ -586,7 +768,8 @@ def push_analysis(shot, act):
     dur = act.args["duration"]
     rep = dict(duration=dur)
     if "coil" in act.args:
-        state = _sample_state(shot)
+        states = populated_states(shot, act.t0)  # the state the atoms are in at the push (most populated first)
+        state = states[0] if states else _sample_state(shot)
         if state is None:
             return None
         try:
@@ -756,7 +939,13 @@ def push_too_late(shot):
 
 @per_shot_cache(lambda shot, act: ("state-separate", act.index, act.t0))
 def separation_analysis(shot, act):
-    """Separation of the two components at the next image, against their widths (dict) or None."""
+    """Separation of the populated components at the next image, against their widths (dict) or None.
+
+    The components are the states that hold atoms when the gradient pulse starts (`populated_states`); of
+    several, the two closest in moment (the hardest to separate) are compared. `pair` is None when only one
+    state holds atoms."""
+    from itertools import combinations
+
     from ..physics.kinematics import components_resolved, stern_gerlach_separation
     from ..physics.zeeman import magnetic_moment
 
@@ -764,20 +953,22 @@ def separation_analysis(shot, act):
     if sp is None or _sample_state(shot) is None:
         return None
     images = [a for a in shot.phys if a.kind == "image" and a.t0 >= act.t1]
-    pulses = [a for a in _pulses(shot) if a.t1 <= act.t0 + 1e-12]
-    if not images or not pulses:
+    if not images:
         return None
     img = min(images, key=lambda a: a.t0)
-    pulse = max(pulses, key=lambda a: a.t1)
+    states = populated_states(shot, act.t0)
+    fractions = state_fractions(shot, act.t0) or {}
+    b = _bias(shot)
     try:
-        pair = transition_pair(shot, sp, pulse.args.get("transition"))
-        if pair is None:
-            return None
-        b = _bias(shot)
-        mu = [float(magnetic_moment(s[0], s[1], b, atom=sp)) for s in pair]
+        mus = {st: float(magnetic_moment(st[0], st[1], b, atom=sp)) for st in states}
     except ValueError:
         return None
-    rep = dict(pair=pair, moments=mu, image=img, pulse=pulse, equal=abs(mu[0] - mu[1]) < EQUAL_MOMENT)
+    rep = dict(image=img, states=states, fractions=[fractions[st] for st in states], pair=None, equal=False)
+    if len(states) < 2:
+        return rep
+    pair = min(combinations(states, 2), key=lambda ab: abs(mus[ab[0]] - mus[ab[1]]))
+    mu = [mus[pair[0]], mus[pair[1]]]
+    rep.update(pair=pair, moments=mu, equal=abs(mu[0] - mu[1]) < EQUAL_MOMENT)
     tof_after = img.t0 - act.t1
     rep["separation"] = float(stern_gerlach_separation(mu[0], mu[1], act.args["gradient"], act.args["duration"],
                                                        tof_after, sp.mass_kg))
@@ -798,6 +989,120 @@ def _separations(shot):
             yield act, rep
 
 
+# --------------------------------------------------------------------------- where each component is at an image
+
+MAX_UNKNOWN_SIGNS = 10  # force directions of unknown sign enumerated one by one (2^10 cases); beyond: a bounding box
+
+
+def _unit(v):
+    v = np.asarray(v, dtype=float)
+    n = float(np.linalg.norm(v)) if v.shape == (3,) and np.all(np.isfinite(v)) else 0.0
+    return v / n if n > 0 and math.isfinite(n) else None
+
+
+def _force_parts(shot, t, paths):
+    """Per push / separation before t: (label, known_sign, displacements (n_paths, 3)) of each path at time t."""
+    from ..physics.kinematics import pulse_displacement
+    from ..physics.zeeman import magnetic_moment
+
+    sp = _species(shot)
+    b = _bias(shot)
+    parts = []
+    for act in sorted((a for a in shot.phys if a.kind in ("push", "separate") and a.t0 < t), key=lambda a: a.t0):
+        label = f"{act.kind} '{act.block}'"
+        if "coil" in act.args:
+            coil = shot.rig.coils.get(act.args["coil"])
+            if coil is None:
+                continue
+            grows = _unit(coil.field_grows_along) if coil.field_grows_along is not None else None
+            way = grows if grows is not None else _unit(coil.axis)
+            if way is None:
+                continue
+            grad = abs(float(act.args["gradient"]))
+            disp = []
+            for _, ch in paths:
+                st = state_at(ch, act.t0)
+                try:
+                    mu = float(magnetic_moment(st[0], st[1], b, atom=sp)) if st is not None else 0.0
+                except ValueError:
+                    mu = 0.0
+                # force = moment x grad|B|, with grad|B| = |b'| x (where |B| grows): mu > 0 goes that way
+                disp.append(pulse_displacement(mu * grad / sp.mass_kg * way, act.t0, act.t1, t))
+            if any(np.any(d != 0) for d in disp):
+                parts.append((label + f" ({coil.name})", grows is not None, np.array(disp, dtype=float).reshape(-1, 3)))
+        else:
+            rep = push_analysis(shot, act)
+            if not rep or "direction" not in rep or not rep["velocity"]:
+                continue
+            acc = rep["velocity"] / max(act.t1 - act.t0, 1e-300) * np.asarray(rep["direction"], dtype=float)
+            d = pulse_displacement(acc, act.t0, act.t1, t)
+            parts.append((label + f" (beam {rep['beam']})", True, np.tile(np.asarray(d, dtype=float), (len(paths), 1))))
+    return parts
+
+
+@per_shot_cache(lambda shot, img: ("state-components", img.index, img.t0))
+def components_at(shot, img):
+    """Where the atoms of each populated state are at an image, from the pushes and separations before it.
+
+    dict(components=[dict(state, fraction, displacements (n_cases, 3) m, parts=[(label, known_sign, vector for
+    the + sign, column in `signs` or None)])], unknown=[labels of forces whose sign is unknown], signs=(n_cases,
+    n_unknown) array of the signs of each case (None when the cases are the corners of a bounding box),
+    empty=[(state, fraction) of states below the floor]).
+    Displacements are from the atoms' place before the first force (the trap centre, the rig's origin), for
+    every combination of the unknown signs (a coil without `field_grows_along` pushes along its `axis`, either
+    way); gravity is not included. Each force: uniform acceleration moment x |b'| / m (moment -dE/dB of the
+    state the path is in when the force starts, Breit-Rabi at the rig's bias) or the optical push's velocity
+    over its duration, then free flight until the image: a trap that still holds the atoms after the force
+    would keep them closer, so the displacement is an upper bound. Paths that end in the same state with the
+    same displacement are merged. None without a species."""
+    from itertools import product
+
+    if _species(shot) is None:
+        return None
+    pop = populations(shot, img.t0)
+    paths = pop["paths"] if pop is not None else [(1.0, ((-math.inf, None),))]
+    parts = _force_parts(shot, img.t0, paths)
+    base = np.zeros((len(paths), 3))
+    unknown = []
+    for label, known, disp in parts:
+        if known:
+            base += disp
+        else:
+            unknown.append((label, disp))
+    n_unk = len(unknown)
+    signs = None
+    if n_unk <= MAX_UNKNOWN_SIGNS:
+        signs = np.array(list(product((1.0, -1.0), repeat=n_unk)), dtype=float).reshape(2 ** n_unk, n_unk)
+        stack = np.array([d for _, d in unknown], dtype=float).reshape(n_unk, len(paths), 3)
+        cases = base[None] + np.einsum("cu,upk->cpk", signs, stack)  # (n_cases, n_paths, 3)
+    else:  # the corners of the box that holds every combination
+        reach = np.sum(np.abs([d for _, d in unknown]), axis=0)  # (n_paths, 3)
+        corners = np.array(list(product((1.0, -1.0), repeat=3)))
+        cases = base[None] + corners[:, None, :] * reach[None]
+    comps: list = []
+    empty: dict = {}
+    for k, (f, ch) in enumerate(paths):
+        st = state_at(ch, img.t0)
+        d = cases[:, k, :]
+        for c in comps:
+            if c["state"] == st and np.allclose(c["displacements"], d, rtol=0, atol=1e-12):
+                c["fraction"] += f
+                break
+        else:
+            slots, j = [], 0
+            for label, known, disp in parts:  # which column of `signs` an unknown sign is
+                slots.append((label, known, disp[k], None if known else j))
+                j += 0 if known else 1
+            comps.append(dict(state=st, fraction=f, displacements=d, parts=slots))
+    kept = []
+    for c in sorted(comps, key=lambda c: -c["fraction"]):
+        if pop is None or is_populated(shot, c["fraction"]):
+            kept.append(c)
+        else:
+            empty[c["state"]] = empty.get(c["state"], 0.0) + c["fraction"]
+    return dict(components=kept, unknown=[label for label, _ in unknown], empty=sorted(empty.items()), signs=signs)
+
+
 _SRC_SG = ("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m with moments from the Breit-Rabi "
            "formula, Phys. Rev. 38, 2082 (1931)")
 
@@ -806,9 +1111,11 @@ _SRC_SG = ("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m w
 def equal_moments(shot):
     """A Stern-Gerlach separation of two states with equal magnetic moments
     (within 0.01 mu_B at the bias field): the gradient moves both alike and
-    cannot separate them. The two states are the sample state and the other
-    state of the last clock pulse's transition. Pick a transition to a state
-    with another moment, or separate the components another way."""
+    cannot separate them. The states are those that hold atoms when the
+    gradient pulse starts, followed from the sample state through the clock
+    pulses and sweeps before it (see `physics.transition-unpopulated`). Pick
+    a transition to a state with another moment, or separate the components
+    another way."""
     for act, rep in _separations(shot):
         if rep["equal"]:
             a, b = rep["pair"]
@@ -1024,10 +1331,15 @@ def report(shot) -> list[dict]:
         if not rep:
             continue
         if rep["kind"] == "magnetic":
+            if rep["no_force"]:
+                way = "no kick (no first-order magnetic moment)"
+            else:
+                way = (f"kick {abs(rep['velocity']) * 1e3:.4g} mm/s towards "
+                       f"{'stronger' if rep['moment'] > 0 else 'weaker'} field"
+                       + (f", along {_vec_text(rep['direction'])}" if "direction" in rep else
+                          " (direction unknown: the coil has no field_grows_along)"))
             items = [f"{state_text(rep['state'])} moment {rep['moment'] / MU_B:+.5g} mu_B (-dE/dB) at {_bias(shot) * 1e4:.4g} G",
-                     f"kick {rep['velocity'] * 1e3:+.4g} mm/s (+ towards stronger field)"
-                     + (f", along {_vec_text(rep['direction'])}" if "direction" in rep else
-                        " (direction unknown: the coil has no field_grows_along)")]
+                     way]
         else:
             items = [f"optical: saturation {rep['saturation']:.3g}, {rep['photons']:.3g} photons of "
                      f"{rep['recoil'] * 1e3:.4g} mm/s recoil", f"kick {rep['velocity'] * 1e3:.4g} mm/s along the beam, "
@@ -1041,6 +1353,11 @@ def report(shot) -> list[dict]:
                 items.append(f"barrier '{b.block}' on {_fmt_t(b.t0)} to {_fmt_t(b.t1)}")
         rows.append({"block": act.block, "kind": "push", "time_s": act.t0, "items": items})
     for act, rep in _separations(shot):
+        if rep["pair"] is None:
+            held = ", ".join(state_text(st) for st in rep["states"]) or "no state above the detection floor"
+            rows.append({"block": act.block, "kind": "separate", "time_s": act.t0,
+                         "items": [f"only {held} holds atoms: nothing to separate"]})
+            continue
         a, b = rep["pair"]
         items = [f"{state_text(a)} {rep['moments'][0] / MU_B:+.4g} mu_B, {state_text(b)} {rep['moments'][1] / MU_B:+.4g} mu_B",
                  f"separation at the image {abs(rep['separation']) * 1e3:.4g} mm"]

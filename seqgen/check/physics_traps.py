@@ -1,5 +1,14 @@
 """Physics checks of trap stages: adiabaticity, depth against temperature and
-gravity, and the cloud at imaging after release."""
+gravity, and the cloud at imaging after release.
+
+The cloud at an image (`image_prediction`): its size from the trap the
+release opened (optical beams, the sample's trap_frequencies, or a
+magnetic hold: Ioffe-Pritchard frequencies, or the Boltzmann profile of a
+linear quadrupole) and the expansion; the position of every populated
+internal-state component from the fall and the pushes and separations
+(physics_states.components_at); both against the camera's field of view,
+depth of field and aperture in the image plane perpendicular to the probe
+beam (assumptions in `image_prediction`)."""
 
 from __future__ import annotations
 
@@ -226,74 +235,303 @@ def shallow_trap(shot):
                        block=act.block, time_s=act.t1, hint="end at a higher power, or accept it if spilling is intended")
 
 
-def _imaged_clouds(shot, needs: str):
-    """(image action, imaging setup, predicted cloud) for images whose setup declares `needs`."""
-    for img in (a for a in shot.phys if a.kind == "image"):
-        setup = shot.rig.imaging.get(img.args["setup"])
-        if setup is None or not getattr(setup, needs):
-            continue
-        c = cloud_at_image(shot, img)
-        if c is not None:
-            yield img, setup, c
+UP = np.array([0.0, 0.0, 1.0])  # gravity along -z, as for the trap minimisation
+
+
+def _release_before(shot, t):
+    rels = [a for a in shot.phys if a.kind == "release" and a.t0 <= t]
+    return max(rels, key=lambda a: a.t0) if rels else None
+
+
+def _magnetic_hold_before(shot, t):
+    """The last magnetic hold that has begun before t and whose coils still carry current just before t, or None."""
+    holds = [a for a in shot.phys if a.kind == "magnetic_hold" and a.t0 < t]
+    if not holds:
+        return None
+    hold = max(holds, key=lambda a: a.t0)
+    names = [c for c, _ in hold.args.get("currents", ())] or list(shot.rig.coils)
+    for name in names:
+        coil = shot.rig.coils.get(name)
+        if coil is not None and coil.current_channel in shot.rig.outputs:
+            if float(value_at(shot, coil.current_channel, t - 1e-9)[0]) != 0:
+                return hold
+    return None
+
+
+def _trap_before_release(shot, sp, rel):
+    """(omegas or None, rms widths in a linear trap or None, text, reason) of the trap the release opens."""
+    from ..physics.kinematics import linear_trap_rms_widths
+
+    if shot.sample.trap_frequencies_hz:
+        return 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz, dtype=float), None, "the sample's trap_frequencies", None
+    beams = _gaussian_beams(shot, [rel.t0 - 1e-9])[0]
+    if beams:
+        omegas = _held(sp, tuple(beams))[1]
+        if omegas is None or not np.all(np.isfinite(omegas)):
+            return None, None, None, "the trap beams on before the release hold no atoms (no trap frequencies)"
+        return omegas, None, "the optical trap", None
+    hold = _magnetic_hold_before(shot, rel.t0)
+    if hold is None:
+        return None, None, None, ("no trap is known before the release: no trap beams on, no magnetic_hold, and the "
+                                  "sample gives no trap_frequencies")
+    from .physics_magnetic import hold_analysis
+
+    rep = hold_analysis(shot, hold)
+    where = f"the magnetic trap of block '{hold.block}'"
+    if rep.get("omega_radial"):
+        w_r, w_z = rep["omega_radial"], rep["omega_axial"]
+        return np.array([w_r, w_r, w_z]), None, f"{where} (Ioffe-Pritchard)", None
+    if rep.get("kind") == "quadrupole" and rep.get("trappable"):
+        temp = shot.sample.temperature_k
+        grads = np.abs(np.linalg.eigvalsh(np.asarray(rep["matrix"], dtype=float)))
+        if not temp:
+            return None, None, None, f"{where} is a linear quadrupole: its cloud size needs the sample's temperature"
+        if not np.all(grads > 0):
+            return None, None, None, f"{where} has a direction without gradient: the cloud is not confined"
+        return None, linear_trap_rms_widths(temp, rep["moment"], grads), f"{where} (linear quadrupole)", None
+    why = rep.get("bad_state") or rep.get("unconfined") or ("the held state is not trappable" if "trappable" in rep
+                                                            else "the trap could not be evaluated")
+    return None, None, None, f"{where} gives no cloud size: {why}"
+
+
+def _cloud_size(shot, img, rel):
+    """(cloud dict, None) or (None, reason) for the cloud released by `rel` and imaged by `img`."""
+    from ..physics.expansion import condensate_tof_radii, thermal_width, thomas_fermi
+
+    sp = _species(shot)
+    tof = img.t0 - rel.t0
+    drop = 0.5 * 9.80665 * tof ** 2
+    omegas, widths, trap, why = _trap_before_release(shot, sp, rel)
+    if why:
+        return None, why
+    s = shot.sample
+    cloud = {"tof": tof, "drop": drop, "omegas": omegas, "trap": trap}
+    if s.condensed and s.atoms and omegas is not None:
+        a = next(iter(sp.scattering_lengths_m.values()), None)
+        a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", a)
+        if not a or a <= 0:
+            return None, f"no positive scattering length of {sp.name} for a Thomas-Fermi condensate"
+        _, radii = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
+        r = condensate_tof_radii(radii, omegas, np.array([tof]))
+        cloud.update(size=float(np.max(np.asarray(r).reshape(3, -1)[:, -1])), size_kind="Thomas-Fermi radius")
+        return cloud, None
+    if not s.temperature_k:
+        return None, ("the sample gives neither a temperature nor, for a condensate, an atom number"
+                      if s.condensed else "the sample has no temperature")
+    if widths is not None:
+        sigma0 = np.asarray(widths, dtype=float)  # 2 k_B T / (|mu| b'_i) per principal axis
+    else:
+        sigma0 = np.sqrt(sc.k * s.temperature_k / (sp.mass_kg * np.asarray(omegas, dtype=float) ** 2))
+    cloud.update(size=float(np.max(thermal_width(sigma0, s.temperature_k, sp.mass_kg, tof))), size_kind="rms width",
+                 sigma0=float(np.max(sigma0)))
+    if s.condensed:
+        cloud["note"] = "condensate in a linear trap: sized as a thermal cloud at the sample's temperature"
+    return cloud, None
 
 
 def cloud_at_image(shot, img):
-    """Predicted centre drop (m) and rms size (m) of the cloud at an image, or None."""
-    from ..physics.expansion import condensate_tof_radii, thermal_width, thomas_fermi
+    """Predicted centre drop (m) and size (m; Thomas-Fermi radius or rms width) of the cloud at an image, or None.
+
+    Keys: tof, drop (free fall g_n tof^2 / 2 since the last release), size, size_kind, omegas (of the trap that
+    the release opened; None for a linear magnetic trap), trap (which trap). `image_prediction` says why when
+    this is None, and adds where each internal-state component is."""
+    pred = image_prediction(shot, img)
+    return pred["cloud"] if pred else None
+
+
+def _edge(cloud) -> float:
+    """The cloud's reach from its centre: a Thomas-Fermi radius is its edge; for a Gaussian take 2 rms widths."""
+    if cloud is None:
+        return 0.0
+    return cloud["size"] if cloud["size_kind"].startswith("Thomas") else 2 * cloud["size"]
+
+
+@per_shot_cache(lambda shot, img: ("image-prediction", img.index, img.t0))
+def image_prediction(shot, img):
+    """Everything known of the cloud at an image (dict), or None without a species / sample.
+
+    Geometry (stated assumptions): positions are in the rig's frame, the atoms sit at the origin before the
+    first push (the rig's convention for beam positions), z is up. The camera looks along its setup's
+    probe beam (`direction`), so the image plane is perpendicular to that beam and contains the vertical
+    when the probe is horizontal; the field of view is a square of side `field_of_view` centred on the
+    setup's `center` (metres, default the origin) with sides along the image's horizontal and vertical (a
+    circle of that diameter when the camera looks along the vertical), the focal plane goes through the
+    centre, and the aperture is a circle of `aperture_radius` around the release point in the image plane.
+    Without a probe beam the line of sight is unknown: the image plane is taken as vertical and every
+    horizontal displacement counts at its full length in it (the conservative side).
+
+    Keys: setup, release (action or None), tof (s), cloud (cloud dict or None), why (reason when cloud is None),
+    components (each: state, fraction, positions (n_cases, 3) m from the origin incl. gravity, plane
+    (n_cases, 2) right / up image coordinates from the setup's centre, along (n_cases,) offset
+    along the line of sight from the focal plane, from_release (n_cases,) in-plane distance from the
+    release point, parts), unknown (forces of unknown sign), signs (see physics_states.components_at), empty
+    (states below the detection floor), los (unit line of sight or None), top_down, edge (m: the size's reach)."""
+    from ..physics.kinematics import image_plane_basis
+    from .physics_states import components_at
 
     sp = _species(shot)
     if sp is None or shot.sample is None:
         return None
-    releases = [a for a in shot.phys if a.kind == "release" and a.t0 <= img.t0]
-    if not releases:
-        return None
-    rel = releases[-1]
+    setup = shot.rig.imaging.get(img.args.get("setup"))
+    out = {"setup": setup, "release": None, "tof": None, "cloud": None, "why": None, "components": [], "unknown": [],
+           "signs": None, "empty": [], "los": None, "edge": 0.0, "top_down": False}
+    rel = _release_before(shot, img.t0)
+    if rel is None:
+        out["why"] = "no release before the image (an in-situ image): no time-of-flight prediction"
+        return out
+    out["release"], out["tof"] = rel, img.t0 - rel.t0
+    out["cloud"], out["why"] = _cloud_size(shot, img, rel)
+    out["edge"] = _edge(out["cloud"])
     tof = img.t0 - rel.t0
-    before = rel.t0 - 1e-9
-    beams = _gaussian_beams(shot, [before])[0]
-    omegas = None
-    if shot.sample.trap_frequencies_hz:
-        omegas = 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz)
-    elif beams:
-        omegas = _held(sp, tuple(beams))[1]
-    if omegas is None or not np.all(np.isfinite(omegas)):
-        return None
-    drop = 0.5 * 9.80665 * tof ** 2
-    if shot.sample.condensed and shot.sample.atoms:
-        a = next(iter(sp.scattering_lengths_m.values()), None)
-        key = f"F={shot.sample.F},mF={shot.sample.mF}"
-        a = sp.scattering_lengths_m.get(key, a)
-        if not a or a <= 0:
-            return None
-        _, radii = thomas_fermi(shot.sample.atoms, sp.mass_kg, a, omegas)
-        r = condensate_tof_radii(radii, omegas, np.array([tof]))
-        size = float(np.max(np.asarray(r).reshape(3, -1)[:, -1]))  # Thomas-Fermi radius, largest axis
-        kind = "Thomas-Fermi radius"
-    elif shot.sample.temperature_k:
-        sigma0 = np.sqrt(sc.k * shot.sample.temperature_k / (sp.mass_kg * np.asarray(omegas) ** 2))
-        size = float(np.max(thermal_width(sigma0, shot.sample.temperature_k, sp.mass_kg, tof)))
-        kind = "rms width"
-    else:
-        return None
-    return {"tof": tof, "drop": drop, "size": size, "size_kind": kind, "omegas": omegas}
+    gravity = np.array([0.0, 0.0, -0.5 * 9.80665 * tof ** 2])
+    beam = shot.rig.beams.get(setup.probe_beam) if setup is not None and setup.probe_beam else None
+    basis = None
+    if beam is not None:
+        try:
+            basis = image_plane_basis(beam.direction, UP)
+            out["los"] = basis[2]
+        except ValueError:
+            basis = None
+    centre = np.asarray(setup.center_m if setup is not None else (0.0, 0.0, 0.0), dtype=float)
+    motion = components_at(shot, img) or {"components": [], "unknown": [], "empty": [], "signs": None}
+    out["unknown"], out["empty"], out["signs"] = motion["unknown"], motion["empty"], motion["signs"]
+    out["state_known"] = shot.sample.F is not None and shot.sample.mF is not None
+    for comp in motion["components"]:
+        pos = comp["displacements"] + gravity  # (n_cases, 3)
+        off = pos - centre
+        if basis is not None:
+            e_h, e_v, n = basis
+            plane = np.stack([off @ e_h, off @ e_v], axis=-1)
+            along = off @ n
+            rel_plane = np.stack([pos @ e_h, pos @ e_v], axis=-1)
+        else:  # line of sight unknown: vertical image plane, horizontal offsets at full length
+            plane = np.stack([np.hypot(off[:, 0], off[:, 1]), off[:, 2]], axis=-1)
+            along = None
+            rel_plane = np.stack([np.hypot(pos[:, 0], pos[:, 1]), pos[:, 2]], axis=-1)
+        out["components"].append(dict(state=comp["state"], fraction=comp["fraction"], positions=pos, plane=plane,
+                                      along=along, from_release=np.hypot(rel_plane[:, 0], rel_plane[:, 1]),
+                                      parts=comp["parts"]))
+    out["top_down"] = basis is not None and abs(float(np.dot(basis[2], UP))) > 1 - 1e-6
+    return out
 
 
-@check("physics.cloud-outside-view", "error", "free fall under standard gravity (SI Brochure); condensate expansion "
-       "Phys. Rev. Lett. 77, 5315 (1996); ballistic thermal expansion (textbook)", stage="physics")
+def _view_reach(pred, comp):
+    """Per case: how far the component's centre lies from the centre of view in the field-of-view metric."""
+    h, v = np.abs(comp["plane"][:, 0]), np.abs(comp["plane"][:, 1])
+    return np.hypot(h, v) if pred["top_down"] else np.maximum(h, v)
+
+
+def _who(comp) -> str:
+    from .physics_states import state_text
+
+    st = comp["state"]
+    return (f"{state_text(st)} ({comp['fraction'] * 100:.3g} % of the atoms)" if st is not None else "the cloud")
+
+
+def _why_there(pred, comp, case) -> str:
+    """How a component got where it is in one case: its fall and each force's displacement (mm)."""
+    bits = [f"fall {0.5 * 9.80665 * pred['tof'] ** 2 * 1e3:.3g} mm"]
+    signs = pred["signs"]
+    for label, known, vec, slot in comp["parts"]:
+        length = float(np.linalg.norm(vec))
+        if length == 0:
+            continue
+        if known:
+            bits.append(f"{label} {length * 1e3:.3g} mm along {_vec(vec / length)}")
+        elif signs is not None:
+            bits.append(f"{label} {length * 1e3:.3g} mm along {_vec(signs[case, slot] * vec / length)} (the coil has no "
+                        f"field_grows_along: both ways checked)")
+        else:
+            bits.append(f"{label} {length * 1e3:.3g} mm either way along {_vec(vec / length)}")
+    return ", ".join(bits)
+
+
+def _vec(v) -> str:
+    return "[" + ", ".join(f"{x + 0.0:.3g}" for x in v) + "]"
+
+
+def _worst(pred, metric):
+    """(component, case, value) with the largest metric(pred, comp)[case], or None."""
+    best = None
+    for comp in pred["components"]:
+        vals = metric(pred, comp)
+        if vals is None or not len(vals):
+            continue
+        i = int(np.argmax(vals))
+        if best is None or vals[i] > best[2]:
+            best = (comp, i, float(vals[i]))
+    return best
+
+
+def _imaging_predictions(shot, needs: str):
+    """(image action, setup, prediction) for images after a release whose setup declares `needs`."""
+    for img in (a for a in shot.phys if a.kind == "image"):
+        setup = shot.rig.imaging.get(img.args["setup"])
+        if setup is None or not getattr(setup, needs):
+            continue
+        pred = image_prediction(shot, img)
+        if pred and pred["release"] is not None and pred["components"]:
+            yield img, setup, pred
+
+
+def _length(x) -> str:
+    return f"{x * 1e6:.3g} um" if abs(x) < 1e-3 else f"{x * 1e3:.3g} mm"
+
+
+def _size_text(pred) -> str:
+    c = pred["cloud"]
+    if c is None:
+        return f"cloud size unknown ({pred['why']}): its centre alone is checked"
+    return f"{c['size_kind']} {_length(c['size'])}"
+
+
+_SRC_VIEW = ("free fall under standard gravity (SI Brochure); condensate expansion Phys. Rev. Lett. 77, 5315 (1996); "
+             "ballistic thermal expansion (textbook); Stern-Gerlach and push displacements with moments from the "
+             "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931), force = moment x grad|B|, uniform acceleration then "
+             "free flight (textbook)")
+
+
+@check("physics.cloud-outside-view", "error", _SRC_VIEW, stage="physics")
 def cloud_outside_view(shot):
-    """At the image time the cloud, falling from where it was released and
-    expanding (Thomas-Fermi scaling solution for a condensate, ballistic for a
-    thermal cloud), lies partly or wholly outside the imaging setup's field of
-    view. Shorten the time of flight or move the camera."""
-    for img, setup, c in _imaged_clouds(shot, "field_of_view_m"):
+    """At the image time a component of the cloud lies partly or wholly
+    outside the imaging setup's field of view. Each internal-state
+    component is followed from where it was released: free fall, every
+    push and Stern-Gerlach `separate` before the image (moment -dE/dB of
+    the state it is in, Breit-Rabi at the rig's bias, force = moment x
+    |b'| along the coil's `field_grows_along`, or along its `axis` both
+    ways when the rig does not say; uniform acceleration during the pulse,
+    then free flight), and expansion (Thomas-Fermi scaling solution for a
+    condensate, ballistic for a thermal cloud; from an optical trap, an
+    Ioffe-Pritchard trap, or the Boltzmann profile of a linear quadrupole).
+    Its centre plus its reach (Thomas-Fermi radius, or 2 rms widths) must
+    lie within half the field of view of the setup's `center`, along both
+    axes of the image plane (the plane perpendicular to the probe beam).
+    Without a size prediction the centre alone is checked. Shorten the
+    time of flight, weaken the separation, or recentre the camera."""
+    for img, setup, pred in _imaging_predictions(shot, "field_of_view_m"):
         half = setup.field_of_view_m / 2
-        # a Thomas-Fermi radius is the cloud's edge; for a Gaussian take 2 rms widths
-        edge = c["drop"] + (c["size"] if c["size_kind"].startswith("Thomas") else 2 * c["size"])
-        if edge > half:
-            yield make("physics.cloud-outside-view", f"after {c['tof'] * 1e3:.4g} ms of flight the cloud has fallen "
-                       f"{c['drop'] * 1e3:.3g} mm and is {c['size'] * 1e6:.3g} um in size ({c['size_kind']}); "
-                       f"the field of view reaches {half * 1e3:.3g} mm from the centre", img.pos, block=img.block,
-                       time_s=img.t0, hint="shorten the time of flight or recentre the camera")
+        edge = pred["edge"]
+        worst = _worst(pred, _view_reach)
+        if worst is None or worst[2] + edge <= half:
+            continue
+        comp, case, reach = worst
+        out = sum(1 for c in pred["components"] if np.any(_view_reach(pred, c) + edge > half))
+        others = f" ({out} of {len(pred['components'])} components leave it)" if len(pred["components"]) > 1 else ""
+        h, v = comp["plane"][case]
+        yield make("physics.cloud-outside-view", f"after {pred['tof'] * 1e3:.4g} ms of flight {_who(comp)} is centred "
+                   f"{reach * 1e3:.3g} mm from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "
+                   f"{v * 1e3 + 0.0:+.3g} mm up; {_why_there(pred, comp, case)}), {_size_text(pred)}; the field of view reaches "
+                   f"{half * 1e3:.3g} mm from its centre{others}", img.pos, block=img.block, time_s=img.t0,
+                   hint=("shorten the time of flight, weaken the push or separation, or recentre the camera (the imaging "
+                         "setup's center)" if reach > half - edge / 2 else
+                         "the cloud itself is too large for the view: shorten the time of flight or image a colder cloud"),
+                   data={"reach_m": reach + edge, "half_view_m": half})
+
+
+def _focus_offset(pred, comp):
+    if comp["along"] is None:
+        return np.zeros(len(comp["plane"]))
+    return np.abs(comp["along"])
 
 
 def report(shot) -> list[dict]:
@@ -318,39 +556,98 @@ def report(shot) -> list[dict]:
                 items.append("excitation E/E_ad-1 per axis " + ", ".join(f"{x:.2e}" for x in rep["excitation"]))
         rows.append({"block": act.block, "kind": "trap_ramp", "time_s": act.t0, "items": items})
     for img in (a for a in shot.phys if a.kind == "image"):
-        c = cloud_at_image(shot, img)
-        if c:
-            rows.append({"block": img.block, "kind": "image", "time_s": img.t0,
-                         "items": [f"time of flight {c['tof'] * 1e3:.4g} ms", f"cloud centre {c['drop'] * 1e3:.3g} mm below release",
-                                   f"{c['size_kind']} {c['size'] * 1e6:.3g} um"]})
+        pred = image_prediction(shot, img)
+        if pred:
+            rows.append({"block": img.block, "kind": "image", "time_s": img.t0, "items": _image_items(pred)})
     return rows
 
 
-@check("physics.cloud-out-of-focus", "warning", "ballistic / Thomas-Fermi expansion as for physics.cloud-outside-view; "
-       "depth of field of the imaging setup (rig file)", stage="physics")
+def _mm(v) -> str:
+    return "[" + ", ".join(f"{x * 1e3 + 0.0:.3g}" for x in v) + "] mm"
+
+
+def _image_items(pred) -> list:
+    """`show --physics` lines of one image: flight, size (or why unknown), geometry, each component."""
+    if pred["release"] is None:
+        return [pred["why"]]
+    c = pred["cloud"]
+    items = [f"time of flight {pred['tof'] * 1e3:.4g} ms",
+             f"free fall {0.5 * 9.80665 * pred['tof'] ** 2 * 1e3:.3g} mm below release"]
+    if c is None:
+        items.append(f"no size prediction: {pred['why']}; centres alone are checked")
+    else:
+        items.append(f"{c['size_kind']} {_length(c['size'])} (released from {c['trap']})")
+        if c.get("note"):
+            items.append(c["note"])
+    setup = pred["setup"]
+    if pred["los"] is not None:
+        items.append(f"camera looks along {_vec(pred['los'])} (probe beam '{setup.probe_beam}'), image plane perpendicular")
+    elif setup is not None:
+        items.append("line of sight unknown (no probe beam): vertical image plane, horizontal offsets counted in full")
+    if pred["unknown"]:
+        items.append("sign unknown, both ways checked: " + ", ".join(pred["unknown"]))
+    if not pred.get("state_known", True):
+        items.append("sample state unknown: magnetic pushes and separations left out")
+    half = setup.field_of_view_m / 2 if setup is not None and setup.field_of_view_m else None
+    for comp in pred["components"]:
+        pos = comp["positions"]
+        where = (" or ".join(_mm(p) for p in pos) if len(pos) <= 4 else
+                 "within " + _mm(pos.min(axis=0)) + " .. " + _mm(pos.max(axis=0)))
+        text = f"{_who(comp)} centred at {where} (rig frame)"
+        if half is not None:
+            reach = _view_reach(pred, comp) + pred["edge"]
+            text += f", reaching {float(np.max(reach)) * 1e3:.3g} mm of the {half * 1e3:.3g} mm half field of view"
+        items.append(text)
+    if pred["empty"]:
+        from .physics_states import state_text
+
+        items.append("below the detection floor: " + ", ".join(f"{state_text(st)} ({f * 100:.2g} %)" for st, f in pred["empty"]))
+    return items
+
+
+@check("physics.cloud-out-of-focus", "warning", "ballistic / Thomas-Fermi expansion and component positions as for "
+       "physics.cloud-outside-view; depth of field of the imaging setup (rig file)", stage="physics")
 def cloud_out_of_focus(shot):
-    """At the image time the cloud is larger along the line of sight than the
-    imaging setup's depth of field: its near and far parts are imaged out of
-    focus, which blurs the picture and biases fitted sizes. Shorten the time
-    of flight or image a smaller cloud."""
-    for img, setup, c in _imaged_clouds(shot, "depth_of_field_m"):
-        extent = 2 * c["size"] if c["size_kind"].startswith("Thomas") else 4 * c["size"]
-        if extent > setup.depth_of_field_m:
-            yield make("physics.cloud-out-of-focus", f"the cloud spans {extent * 1e3:.3g} mm along the line of sight, more "
-                       f"than the {setup.depth_of_field_m * 1e3:.3g} mm depth of field of '{setup.name}'", img.pos,
-                       block=img.block, time_s=img.t0, hint="shorten the time of flight")
+    """At the image time a component of the cloud reaches beyond the
+    imaging setup's depth of field along the line of sight (the probe
+    beam's direction): its centre's distance from the focal plane (through
+    the setup's `center`) plus its reach (Thomas-Fermi radius, or 2 rms
+    widths) exceeds half the depth of field, so its near or far part is
+    imaged out of focus, which blurs the picture and biases fitted sizes.
+    Positions as for `physics.cloud-outside-view` (without a probe beam the
+    line of sight is unknown and only the size is checked). Shorten the
+    time of flight, image a smaller cloud, or push across the line of sight."""
+    for img, setup, pred in _imaging_predictions(shot, "depth_of_field_m"):
+        edge = pred["edge"]
+        worst = _worst(pred, _focus_offset)
+        if worst is None or 2 * (worst[2] + edge) <= setup.depth_of_field_m:
+            continue
+        comp, case, off = worst
+        where = f", centred {off * 1e3:.3g} mm from the focal plane" if off > 0 else ""
+        yield make("physics.cloud-out-of-focus", f"{_who(comp)} spans {2 * (off + edge) * 1e3:.3g} mm about the focal plane "
+                   f"along the line of sight{where} ({_size_text(pred)}), more than the {setup.depth_of_field_m * 1e3:.3g} mm "
+                   f"depth of field of '{setup.name}'", img.pos, block=img.block, time_s=img.t0,
+                   hint="shorten the time of flight" + (", or push across the line of sight" if off > 0 else ""),
+                   data={"extent_m": 2 * (off + edge), "depth_of_field_m": setup.depth_of_field_m})
 
 
-@check("physics.cloud-clipped", "error", "free fall under standard gravity (SI Brochure); expansion as for "
-       "physics.cloud-outside-view; aperture radius of the rig's imaging setup", stage="physics")
+@check("physics.cloud-clipped", "error", "free fall under standard gravity (SI Brochure); expansion and component "
+       "positions as for physics.cloud-outside-view; aperture radius of the rig's imaging setup", stage="physics")
 def cloud_clipped(shot):
-    """Falling and expanding after release, the cloud reaches the apparatus
-    aperture declared for the imaging setup (`aperture_radius`, e.g. the inner
-    radius of a glass cell or waveguide) before the image is taken: atoms are
-    lost on the wall. Shorten the time of flight."""
-    for img, setup, c in _imaged_clouds(shot, "aperture_radius_m"):
-        edge = c["drop"] + (c["size"] if c["size_kind"].startswith("Thomas") else 2 * c["size"])
-        if edge > setup.aperture_radius_m:
-            yield make("physics.cloud-clipped", f"after {c['tof'] * 1e3:.4g} ms the cloud reaches {edge * 1e3:.3g} mm from "
-                       f"the release point, beyond the {setup.aperture_radius_m * 1e3:.3g} mm aperture of '{setup.name}'",
-                       img.pos, block=img.block, time_s=img.t0, hint="shorten the time of flight")
+    """Falling, pushed and expanding after release, a component of the
+    cloud reaches the apparatus aperture declared for the imaging setup
+    (`aperture_radius`, e.g. the inner radius of a glass cell or waveguide,
+    taken as a circle around the release point in the image plane) before
+    the image is taken: atoms are lost on the wall. Positions and sizes as
+    for `physics.cloud-outside-view`. Shorten the time of flight."""
+    for img, setup, pred in _imaging_predictions(shot, "aperture_radius_m"):
+        edge = pred["edge"]
+        worst = _worst(pred, lambda p, c: c["from_release"])
+        if worst is None or worst[2] + edge <= setup.aperture_radius_m:
+            continue
+        comp, case, dist = worst
+        yield make("physics.cloud-clipped", f"after {pred['tof'] * 1e3:.4g} ms {_who(comp)} reaches {(dist + edge) * 1e3:.3g} mm "
+                   f"from the release point ({_why_there(pred, comp, case)}; {_size_text(pred)}), beyond the "
+                   f"{setup.aperture_radius_m * 1e3:.3g} mm aperture of '{setup.name}'",
+                   img.pos, block=img.block, time_s=img.t0, hint="shorten the time of flight",
+                   data={"reach_m": dist + edge, "aperture_m": setup.aperture_radius_m})

@@ -647,7 +647,7 @@ def _physics(shot, t0, t1):
     out = {"trap": [], "clouds": [], "notes": []}
     try:
         from ..check.physics import report_physics
-        from ..check.physics_traps import cloud_at_image, trap_stage
+        from ..check.physics_traps import image_prediction, trap_stage
     except ImportError:  # pragma: no cover - physics checks absent in a partial checkout
         return out
     if shot.sample is None:
@@ -670,13 +670,17 @@ def _physics(shot, t0, t1):
         if img.kind != "image" or not (t0 <= img.t0 <= t1):
             continue
         try:
-            c = cloud_at_image(shot, img)
+            pred = image_prediction(shot, img)
         except Exception:
-            c = None
+            pred = None
+        c = pred["cloud"] if pred else None
         if c:
             setup = shot.rig.imaging.get(img.args.get("setup"))
+            # each internal-state component's height at the image, one per sign case of unknown forces
+            comps = [(comp["state"], comp["positions"][:, 2]) for comp in pred["components"]
+                     if np.any(np.abs(comp["positions"][:, 2] + c["drop"]) > 1e-9)]
             out["clouds"].append({"t": img.t0, "release": img.t0 - c["tof"], "cloud": c, "setup": setup,
-                                  "name": img.args.get("setup", "")})
+                                  "name": img.args.get("setup", ""), "components": comps, "edge": pred["edge"]})
     try:
         rows = report_physics(shot)
     except Exception:
@@ -723,7 +727,7 @@ def _draw_freq(ax, trap):
 
 def _draw_clouds(ax, clouds, t0, t1, width_in):
     s_per_pt = (t1 - t0) / (width_in * 72.0)
-    lo = 0.0
+    lo = hi = 0.0
     for c in clouds:
         cl = c["cloud"]
         tr = np.linspace(c["release"], c["t"], 60)
@@ -734,18 +738,32 @@ def _draw_clouds(ax, clouds, t0, t1, width_in):
                           markersize=4, capsize=3, linewidth=1.4)
         for artist in bar.lines[0:1] + tuple(bar.lines[1]) + tuple(bar.lines[2]):
             artist.set_clip_on(False)
+        for k, (state, heights) in enumerate(c.get("components", ())):  # pushed / separated components
+            for z in heights * 1e3:
+                comp = ax.errorbar([c["t"]], [z], yerr=[[c["edge"] * 1e3], [c["edge"] * 1e3]], fmt="s",
+                                   color=AXIS_COLOURS[k % len(AXIS_COLOURS)], markersize=3, capsize=2, linewidth=0.9,
+                                   mfc="none")
+                for artist in comp.lines[0:1] + tuple(comp.lines[1]) + tuple(comp.lines[2]):
+                    artist.set_clip_on(False)
+                lo, hi = min(lo, z - c["edge"] * 1e3), max(hi, z + c["edge"] * 1e3)
+                if state is not None:  # on the side away from the cloud's text
+                    right = c["t"] > t0 + 0.6 * (t1 - t0)
+                    ax.text(c["t"] + (6 if right else -6) * s_per_pt, z,
+                            f"|{state[0]},{state[1]:+d}>" if state[1] else f"|{state[0]},0>", ha="left" if right else "right",
+                            va="center", fontsize=5.5, color=AXIS_COLOURS[k % len(AXIS_COLOURS)], clip_on=False)
         if c["setup"] is not None and c["setup"].field_of_view_m:
             half = c["setup"].field_of_view_m / 2 * 1e3
-            ax.axhspan(-half, half, color="#dbe8d4", alpha=0.6, zorder=0, linewidth=0)
-            ax.axhline(-half, color="#6f8f62", linewidth=0.6)
-            lo = min(lo, -half)
+            mid = float(c["setup"].center_m[2]) * 1e3  # the camera's centre of view, height in the rig frame
+            ax.axhspan(mid - half, mid + half, color="#dbe8d4", alpha=0.6, zorder=0, linewidth=0)
+            ax.axhline(mid - half, color="#6f8f62", linewidth=0.6)
+            lo = min(lo, mid - half)
         lo = min(lo, centre - edge * 1e3)
         txt = (f"{c['name']}: time of flight {_fmt_seconds(cl['tof'])}, centre {cl['drop'] * 1e3:.3g} mm below "
                f"release, {cl['size_kind']} {cl['size'] * 1e6:.3g} um")
         right = c["t"] > t0 + 0.6 * (t1 - t0)
         ax.text(c["t"] + (-8 if right else 8) * s_per_pt, centre, txt, ha="right" if right else "left", va="center",
                 fontsize=6.5, color="#5e2452", clip_on=True)
-    ax.set_ylim(lo * 1.25 if lo < 0 else -1.0, abs(lo) * 0.6 + 0.1)
+    ax.set_ylim(lo * 1.25 if lo < 0 else -1.0, max(abs(lo) * 0.6 + 0.1, hi * 1.15))
     ax.set_label("physics:cloud")
     _style_panel(ax, "#9c3c86")
     _lane_label(ax, "cloud height [mm]", "#9c3c86")

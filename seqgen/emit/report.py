@@ -359,7 +359,8 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
     counts = s
     if scan is not None:  # the summary speaks for every shot; the details below are the base shot's
         counts, verdict, blocking = _scan_summary(scan)
-        meta.append(f"scan of {len(scan.plan)} shots" if scan.plan is not None else "scan (not expanded)")
+        n = len(scan.plan) if scan.plan is not None else 0
+        meta.append(f"scan of {n} shot{'s' if n != 1 else ''}" if scan.plan is not None else "scan (not expanded)")
     chips = "".join(f'<span class="chip {sev}"><b>{counts[sev]}</b> {sev}{"s" if counts[sev] != 1 else ""}</span>'
                     for sev in SEVERITIES)
     if counts["accepted"]:

@@ -1,6 +1,8 @@
-"""Centre-of-mass kicks from magnetic gradients and light; Stern-Gerlach separation.
+"""Centre-of-mass kicks from magnetic gradients and light; Stern-Gerlach separation;
+where a released cloud is, and how large, at an image.
 
-SI units: J/T, T/m, s, kg, m, m/s. One axis (z) throughout.
+SI units: J/T, T/m, s, kg, m, m/s, K. One axis (z) for the kicks; the image-plane
+geometry works on 3-vectors (z up, gravity along -z).
 
 Sign convention for magnetic forces (the package-wide one, see
 ``seqgen.physics``): the moment is mu = -dE/dB (as in
@@ -29,6 +31,9 @@ __all__ = [
     "time_to_reach",
     "stern_gerlach_separation",
     "components_resolved",
+    "pulse_displacement",
+    "linear_trap_rms_widths",
+    "image_plane_basis",
 ]
 
 
@@ -163,3 +168,61 @@ def components_resolved(separation, sigma1, sigma2, n_sigma=3.0):
     # 1e-12 slack: a separation of exactly n_sigma widths counts despite rounding
     out = np.abs(np.asarray(separation, dtype=float)) >= float(n_sigma) * combined * (1 - 1e-12)
     return bool(out) if out.ndim == 0 else out
+
+
+
+def pulse_displacement(acceleration, t_start, t_end, t):
+    """Displacement (m) at time t of an atom at rest, accelerated uniformly by ``acceleration`` from t_start
+    to t_end and free afterwards (textbook kinematics): 0 before t_start, a (t - t_start)^2 / 2 during the
+    pulse, a tau (tau / 2 + t - t_end) after it, tau = t_end - t_start. Vectorised over every argument (for
+    vectors give the acceleration a trailing axis of 3 and the times a matching trailing axis of 1).
+    """
+    a = np.asarray(acceleration, dtype=float)
+    t0, t1, t = (np.asarray(x, dtype=float) for x in (t_start, t_end, t))
+    under = np.clip(np.minimum(t, t1) - t0, 0.0, None)  # time spent under the force so far
+    after = np.clip(t - np.maximum(t1, t0), 0.0, None)  # free flight since the pulse ended
+    return _out(a * under * (0.5 * under + after))
+
+
+def linear_trap_rms_widths(temperature_K, moment_J_per_T, gradients_T_per_m):
+    """rms widths (m) along the principal axes of a thermal cloud in a linear trap U = |mu| |M r|.
+
+    ``gradients_T_per_m``: the gradients of |B| along the principal axes, i.e. the |eigenvalues| of the
+    field matrix M (for one quadrupole of axial gradient G: G/2, G/2, G). The Boltzmann density
+    exp(-|mu| |M r| / k_B T) is isotropic in u = |mu| M r / k_B T, and for exp(-|u|) in three dimensions
+    <|u|^2> = 4!/2! = 12, so <u_i^2> = 4 and sigma_i = 2 k_B T / (|mu| g_i): twice the 1/e Boltzmann length
+    l_i = k_B T / (|mu| g_i) along that axis (derived here from the Boltzmann factor, textbook statistical
+    mechanics). Gravity's tilt m g z is left out: it shifts and skews the cloud by of order l / (support - 1).
+    Broadcasts; the gradients' last axis holds the principal axes.
+    """
+    g = np.abs(np.asarray(gradients_T_per_m, dtype=float))
+    mu = np.abs(np.asarray(moment_J_per_T, dtype=float))
+    temp = np.asarray(temperature_K, dtype=float)
+    if g.ndim:
+        mu, temp = mu[..., None], temp[..., None]
+    with np.errstate(divide="ignore"):
+        return _out(2.0 * sc.k * temp / (mu * g))
+
+
+def image_plane_basis(line_of_sight, vertical=(0.0, 0.0, 1.0)):
+    """(e_h, e_v, n): unit vectors of a camera that looks along ``line_of_sight``.
+
+    n is the unit line of sight, e_v the part of ``vertical`` perpendicular to it (the image's "up"),
+    e_h = n x e_v the image's "right" (forward x up, as seen by the camera; so e_h x e_v = -n). For a camera
+    that looks straight along the
+    vertical the image has no "up": e_v is then built from the x axis (or y) instead; callers that care
+    test |n . vertical|. Raises ValueError for a line of sight that is zero or not finite.
+    """
+    n = np.asarray(line_of_sight, dtype=float).reshape(3)
+    norm = float(np.linalg.norm(n))
+    if not (norm > 0 and np.isfinite(norm)):
+        raise ValueError("the line of sight must be a finite, non-zero vector")
+    n = n / norm
+    up = np.asarray(vertical, dtype=float).reshape(3)
+    up = up / np.linalg.norm(up)
+    for ref in (up, np.array([1.0, 0.0, 0.0]), np.array([0.0, 1.0, 0.0])):
+        v = ref - np.dot(ref, n) * n
+        if np.linalg.norm(v) > 1e-6:
+            break
+    e_v = v / np.linalg.norm(v)
+    return np.cross(n, e_v), e_v, n

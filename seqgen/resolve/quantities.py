@@ -8,7 +8,8 @@ from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from . import errors as E
 from .expr import ExprError, evaluate, is_plain_name, names_in
-from .units import DIMENSIONLESS, Qty, UnitError, describe_dims, dims_of, display_unit, parse_simple, same_dims
+from .units import DIMENSIONLESS, Qty, UnitError, close_units, describe_kind, dims_of, kind_of, kind_units, parse_simple, \
+    same_dims, split_quantity, unit_name, usual_unit
 
 ABSURD = 1e12  # in SI base units: larger magnitudes are typos (a 1e30 s hold)
 _KIND_CODE = {"undefined": E.UNDEFINED, "zero-division": E.ZERO_DIV, "overflow": E.OVERFLOW,
@@ -19,6 +20,17 @@ class Bad(Exception):
     def __init__(self, finding: Finding):
         super().__init__(finding.message)
         self.finding = finding
+
+
+class Env(dict):
+    """Resolved params, name -> Qty, that also knows where each param is defined: `defs` maps a name to
+    (raw value as written, Document, path), so a finding about a param's value points at its definition."""
+
+    __slots__ = ("defs",)
+
+    def __init__(self, *args, defs: dict | None = None, **kwargs):
+        super().__init__(*args, **kwargs)
+        self.defs = defs or {}
 
 
 _NOT_FINITE_WORDS = frozenset(("nan", ".nan", "inf", ".inf", "-inf", "-.inf", "infinity"))
@@ -55,7 +67,7 @@ def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
         except ExprError:
             uses_params = False
         if not uses_params:
-            raise Bad(make(E.BAD_UNIT, str(exc), doc.pos(path), hint="use SI units with prefixes, e.g. ms, us, mW, G/cm, MHz"))
+            raise Bad(_unknown_unit(text, exc, doc.pos(path)))
         q = None
     if q is None:
         try:
@@ -83,12 +95,9 @@ def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positiv
     pos = doc.pos(path)
     label = what or (path[-1] if path else "value")
     if not same_dims(q.dims, want):
-        if same_dims(q.dims, DIMENSIONLESS) and q.value != 0:
-            raise Bad(make(E.MISSING_UNIT, f"{label}: {raw!r} has no unit; expected {display_unit(want)}", pos,
-                           hint=f"write it with a unit, e.g. '{raw} {expect}'"))
-        if not (same_dims(q.dims, DIMENSIONLESS) and q.value == 0):
-            raise Bad(make(E.WRONG_DIMENSION, f"{label}: {raw!r} is {describe_dims(q.dims)}, expected {display_unit(want)}",
-                           pos, hint=f"give a value in {expect} (or a unit of the same kind)"))
+        missing = same_dims(q.dims, DIMENSIONLESS) and q.value != 0
+        if missing or not (same_dims(q.dims, DIMENSIONLESS) and q.value == 0):
+            raise Bad(_dimension_finding(raw, q, want, expect, label, pos, env))
     if abs(q.value) > ABSURD * max(1.0, _scale(expect)):
         raise Bad(make(E.OVERFLOW, f"{label}: {raw!r} is an absurd magnitude", pos, hint="check for a typo in the exponent"))
     if positive and q.value <= 0:
@@ -101,3 +110,119 @@ def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positiv
 def _scale(expect: str) -> float:
     # frequencies of synths reach 1e10 Hz; allow a larger ceiling for them
     return 1e3 if expect in ("Hz",) else 1.0
+
+
+# ----------------------------------------------------------------------------- messages a new user can act on
+
+
+def _shown(raw) -> str:
+    return raw.strip() if isinstance(raw, str) else repr(raw)
+
+
+def _unknown_unit(text: str, exc: UnitError, pos) -> Finding:
+    """schema.unknown-unit, naming the unit names closest to the one written ('mw' -> 'mW')."""
+    split = split_quantity(text)
+    unit = split[1] if split and split[1] else None
+    close = close_units(unit) if unit else []
+    if not close:
+        return make(E.BAD_UNIT, str(exc), pos, hint="use SI units with prefixes, e.g. ms, us, mW, G/cm, MHz")
+    number = split[0]
+    return make(E.BAD_UNIT, f"unknown unit '{unit}' in '{text}'; did you mean {' or '.join(close)}?", pos,
+                hint=f"write '{number} {close[0]}' (unit names are case-sensitive: m is milli, M is mega)")
+
+
+def _what_it_is(text: str, dims) -> str:
+    """'80 mS is 80 millisiemens (a conductance)' / "'2 * t' is a time": what a written value is."""
+    split = split_quantity(text)
+    kind = describe_kind(dims)
+    if split and split[1]:
+        name = unit_name(split[1])
+        if name:
+            plural = float(split[0]) != 1 and not name.endswith(("s", "z", "x"))
+            return f"{text} is {split[0]} {name}{'s' if plural else ''} ({kind})"
+        return f"{text} is {kind}"
+    return f"'{text}' is {kind}"
+
+
+def _expected(want, expect: str) -> str:
+    units = kind_units(want) or ((expect,) if expect else ())
+    kind = describe_kind(want)
+    return f"{kind} ({', '.join(units)})" if units else kind
+
+
+def _dimension_finding(raw, q: Qty, want, expect: str, label: str, pos, env) -> Finding:
+    """schema.missing-unit / schema.wrong-dimension for a value used as `label`, in the user's words: what
+    the value is, what the place expects, and a fix to write. A param named as the value (`duration:
+    kick_time`) is reported at its definition, with the place it is used."""
+    text = _shown(raw)
+    defs = getattr(env, "defs", None) or {}
+    if isinstance(raw, str) and text in defs:
+        draw, ddoc, dpath = defs[text]
+        where = f"line {pos.line}" if ddoc.file == pos.file else f"{pos.file}:{pos.line}"
+        return _dimension_words(draw, q, want, expect, f"its use as {label} at {where}", ddoc.pos(dpath),
+                                name=text, defs=defs)
+    return _dimension_words(raw, q, want, expect, label, pos, defs=defs)
+
+
+def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: str | None = None,
+                     defs: dict | None = None) -> Finding:
+    """The finding for value `raw` (its Qty `q`) where `want` is expected; `name`: the param it defines (the
+    finding then sits at the definition and `label` says where it is used)."""
+    text = _shown(raw)
+    kind = kind_of(want)
+    usual = usual_unit(want, expect)
+    others = [u for u in kind_units(want) if u != usual][:3]
+    more = f" (or another {kind} unit: {', '.join(others)})" if kind and others else ""
+
+    def quoted(value: str) -> str:  # what to write, as it would stand in the file
+        return f"'{name}: {value}'" if name else f"'{value}'"
+
+    split = split_quantity(text) if isinstance(raw, str) else (text, None)
+    plain = split is not None and split[1] is None  # a bare number
+    shown = text if split is not None else f"'{text}'"
+    if same_dims(q.dims, DIMENSIONLESS):  # a bare number (or an expression of bare numbers)
+        if name:
+            message = f"param '{name}' is {shown} with no unit, but {label} needs {describe_kind(want)}"
+        else:
+            message = f"{label}: {shown} has no unit; expected {describe_kind(want)}"
+        if plain:
+            return make(E.MISSING_UNIT, message, pos, hint=f"write {quoted(f'{split[0]} {usual}')}{more}")
+        used = names_of(text)
+        bare = [n for n in sorted(defs or {}) if n in used and _is_bare_number(defs[n][0])]
+        if bare:
+            raw_b, doc_b, path_b = defs[bare[0]]
+            hint = (f"give '{bare[0]}' a unit where it is defined (line {doc_b.pos(path_b).line}), e.g. "
+                    f"'{bare[0]}: {_shown(raw_b)} {usual}'")
+        else:
+            hint = f"make it {_expected(want, expect)}"
+        return make(E.MISSING_UNIT, message, pos, hint=hint)
+    unit = split[1] if split else None
+    close = close_units(unit, want) if unit else []
+    expected = describe_kind(want) if unit else _expected(want, expect)
+    what_it_is = _what_it_is(text, q.dims)
+    if name:
+        message = f"param '{name}': {what_it_is}, but {label} expects {expected}"
+    else:
+        message = f"{label}: {what_it_is}, expected {expected}"
+    if same_dims(want, DIMENSIONLESS):
+        hint = f"write {quoted(split[0])} (a plain number, without a unit)" if unit else "give a plain number"
+    elif close:
+        message += f"; did you mean {' or '.join(close)}?"
+        hint = f"write {quoted(f'{split[0]} {close[0]}')}"
+    elif unit:
+        hint = f"give {describe_kind(want)}, e.g. {quoted(f'{split[0]} {usual}')}{more}"
+    else:
+        hint = f"give {_expected(want, expect)}"
+    return make(E.WRONG_DIMENSION, message, pos, hint=hint)
+
+
+def names_of(text: str) -> set:
+    """The names an expression uses (empty if it cannot be read)."""
+    try:
+        return names_in(text)
+    except ExprError:
+        return set()
+
+
+def _is_bare_number(raw) -> bool:
+    return isinstance(raw, (int, float)) and not isinstance(raw, bool) and raw != 0

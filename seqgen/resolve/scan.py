@@ -4,7 +4,8 @@ A param may carry a scan:
 
     tof:  {value: 14 ms, scan: [10 ms, 12 ms, 16 ms]}                      # a list
     tof:  {value: 14 ms, scan: {values: [10 ms, 12 ms], group: g1}}        # a list in a zipped group
-    hold: {value: 5 ms, scan: {from: 1 ms, to: 10 ms, steps: 10}}          # linear range (ends included)
+    hold: {value: 5 ms, scan: {from: 1 ms, to: 10 ms, steps: 10}}          # linear range (ends included;
+                                                                           # steps: 1 only if from == to)
     rate: {value: 1 kHz, scan: {from: 10 Hz, to: 10 kHz, steps: 7, spacing: log}}
     det:  {value: 0 Hz, scan: {from: -2 kHz, to: 2 kHz, random: 20, seed: 7}}  # random set, reproducible
 
@@ -37,13 +38,15 @@ from ..findings import Finding, SourcePos, make
 from ..registry import declare
 from . import errors as E
 from .quantities import Bad, to_qty
-from .units import DIMENSIONLESS, Qty, describe_dims, display_unit, format_value, same_dims
+from .units import DIMENSIONLESS, Qty, close_units, describe_kind, display_unit, format_value, kind_units, same_dims, \
+    split_quantity, usual_unit
 
 DEFAULT_MAX_SHOTS = 100_000
 
 BAD_SCAN = declare("schema.bad-scan", "error", """
     A scan that cannot be expanded: a range without `steps` (or `random` with
-    `seed`), a log range whose ends are zero or of opposite signs, an empty
+    `seed`), a range of `steps: 1` whose `to:` differs from its `from:` (one
+    step gives `from:` alone, so `to:` would be ignored), a log range whose ends are zero or of opposite signs, an empty
     list, or a top-level `scan: {nest: ...}` naming a param or group that has
     no scan. Forms: a list `[10 ms, 12 ms]`, `{values: [...]}`, `{from, to,
     steps, spacing: linear|log}`, `{from, to, random: COUNT, seed: N}`.""", stage="resolve")
@@ -79,7 +82,7 @@ class ScanAxis:
         else:
             body = f"{vals[0]} .. {vals[-1]}"
         extra = {"linear": "", "list": "", "log": ", log", "random": ", random"}[self.kind]
-        return f"{self.name} {body} ({len(vals)} values{extra})"
+        return f"{self.name} {body} ({len(vals)} value{'' if len(vals) == 1 else 's'}{extra})"
 
 
 @dataclass(frozen=True)
@@ -278,6 +281,11 @@ def _axis(name, spec, doc, path, dims, env, limit) -> ScanAxis:
             raise Bad(make(BAD_SCAN, f"scan of '{name}' gives both steps and random/seed", pos,
                            hint="steps: for an evenly spaced range, random: + seed: for a random set"))
         n = int(spec["steps"])
+        if n == 1 and not (same_dims(lo.dims, hi.dims) and lo.value == hi.value):
+            raise Bad(make(BAD_SCAN, f"scan of '{name}' has steps: 1, which gives only its from: value {lo}, so "
+                           f"to: {hi} would be ignored", doc.pos(path + ("steps",)),
+                           hint=f"give steps: 2 or more for a range from {lo} to {hi} (ends included), or scan one "
+                                f"value as a list: scan: [{_shown(spec['from'])}]"))
         fr = [0.0] if n == 1 else [k / (n - 1) for k in range(n)]
         kind = spacing
     elif "random" in spec:
@@ -302,16 +310,28 @@ def _axis(name, spec, doc, path, dims, env, limit) -> ScanAxis:
     return ScanAxis(name, tuple(qs), group, kind, pos)
 
 
+def _shown(raw) -> str:
+    return raw.strip() if isinstance(raw, str) else repr(raw)
+
+
 def _value(name, raw, doc, path, dims, env) -> Qty:
     q = to_qty(raw, doc, path, env)
     if not same_dims(q.dims, dims):
         pos = doc.pos(path)
+        text = _shown(raw)
+        kind = describe_kind(dims)
+        usual = usual_unit(dims)
+        split = split_quantity(text) if isinstance(raw, str) else (text, None)
         if same_dims(q.dims, DIMENSIONLESS) and q.value != 0:
-            raise Bad(make(E.MISSING_UNIT, f"scan value {raw!r} of '{name}' has no unit; '{name}' is in "
-                           f"{display_unit(dims)}", pos, hint=f"write it with a unit of {display_unit(dims)}"))
+            example = f"'{split[0]} {usual}'" if split and split[1] is None else f"{kind} ({usual})"
+            raise Bad(make(E.MISSING_UNIT, f"scan value {text} of '{name}' has no unit; '{name}' is {kind}", pos,
+                           hint=f"write {example}"))
         if not (same_dims(q.dims, DIMENSIONLESS) and q.value == 0):
-            raise Bad(make(E.WRONG_DIMENSION, f"scan value {raw!r} of '{name}' is {describe_dims(q.dims)}, but "
-                           f"'{name}' is {display_unit(dims)}", pos,
-                           hint=f"scan '{name}' over values in {display_unit(dims)}"))
+            close = close_units(split[1], dims) if split and split[1] else []
+            hint = (f"write '{split[0]} {close[0]}'" if close else
+                    f"give every scan value of '{name}' as {kind} ({', '.join(kind_units(dims)) or display_unit(dims)})")
+            raise Bad(make(E.WRONG_DIMENSION, f"scan value {text} of '{name}' is {describe_kind(q.dims)}, but "
+                           f"'{name}' is {kind}" + (f"; did you mean {' or '.join(close)}?" if close else ""),
+                           pos, hint=hint))
         q = Qty(q.value, dims)
     return q

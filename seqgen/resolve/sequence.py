@@ -26,7 +26,7 @@ from ..registry import declare
 from ..validate.schema import validate_document
 from . import errors as E
 from .expr import ExprError, names_in
-from .quantities import Bad, quantity, to_qty
+from .quantities import Bad, Env, quantity, to_qty
 from .rig import build_rig
 from .units import Qty
 
@@ -86,12 +86,13 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
         if refused is not None:  # the use: root policy holds for the rig too
             src.findings.append(refused)
             return src
+        src.findings += _absolute_path(main, ("rig",), rig_text, p.parent, p)
         try:
             rig = load_file(rig_path, _display(rig_path))
         except LoadError as exc:
             f = exc.finding
             if f.code == "schema.file-missing":
-                f = make("schema.file-missing", f"rig file '{rig_text}' not found (looked in {rig_path.parent})",
+                f = make("schema.file-missing", f"rig file '{rig_text}' not found (looked in {os.path.abspath(rig_path.parent)})",
                          main.pos(("rig",)), hint="rig paths are relative to the sequence file's folder")
             src.findings.append(f)
             return src
@@ -118,6 +119,11 @@ def _check_top(doc: Document, findings: list, key: str, code: str) -> bool:
         findings.append(make("schema.wrong-type", "the file must be a YAML mapping", doc.pos(()), hint=f"start with '{key}: 1'"))
         return False
     if key not in doc.data:
+        if key == "seqgen" and "seqgen_rig" in doc.data:  # a rig file where a sequence file is expected
+            findings.append(make(code, "this is a rig file (seqgen_rig:), not a sequence file (seqgen:)",
+                                 doc.pos(("seqgen_rig",)), hint="check a sequence file that names it ('rig: PATH'); "
+                                 "'seqgen check' of the rig file itself validates it as a rig"))
+            return False
         findings.append(make(code, f"missing '{key}:' version key", doc.pos(()), hint=f"add '{key}: 1' as the first line"))
         return False
     if doc.data[key] not in SUPPORTED_VERSIONS:
@@ -167,11 +173,81 @@ def _rig_refused(main: Document, rig_text: str, rig_path: Path, top: Path,
                     hint="the path is a symbolic link loop; fix the link")
     if resolved.is_relative_to(root):
         return None
-    shown = _display(root)
-    shown = "(the current folder)" if shown == "." else f"'{shown}'"
+    shown = _root_text(root)
     return make(RIG_OUTSIDE_ROOT, f"rig file '{rig_text}' is outside the project root {shown}", main.pos(("rig",)),
                 hint="keep the rig file in the project (e.g. rigs/ beside the sequences), or allow it with "
                      "--allow-outside-root (or SEQGEN_ALLOW_OUTSIDE=1)")
+
+
+ABSOLUTE_PATH = declare("schema.absolute-path", "warning", """
+    A `rig:` or `use:` path is absolute (it starts at the root of this
+    machine's file system). It works here, but not in a colleague's clone of
+    the project or on the control computer, where the project lives
+    elsewhere. Write the path relative to the file that names it; the hint
+    gives the relative form.""", E.S, "load")
+
+
+def _absolute_path(doc: Document, path: tuple, text: str, folder: Path, top: Path) -> list[Finding]:
+    """A warning for an absolute `rig:` / `use:` path inside the project, with its relative form.
+
+    Outside the project an absolute path is refused (or explicitly allowed), so it is not repeated here."""
+    if not os.path.isabs(text):
+        return []
+    try:
+        if not Path(text).resolve().is_relative_to(project_root(Path(top).resolve())):
+            return []
+    except (RuntimeError, OSError):
+        return []
+    try:
+        rel = os.path.relpath(text, folder)
+    except ValueError:  # another drive (Windows): no relative form
+        rel = None
+    hint = f"write '{rel}' (relative to {_display(folder) or '.'})" if rel else "write the path relative to this file"
+    return [make(ABSOLUTE_PATH, f"'{text}' is an absolute path: it works only where the project sits at this place",
+                 doc.pos(path), hint=hint)]
+
+
+def _root_text(root: Path) -> str:
+    """The project root as a message names it: its path, and 'the current folder' when it is that."""
+    shown = _display(root)
+    text = f"'{root}' (the current folder)" if shown == "." else f"'{shown}'"
+    if not any((root / m).exists() for m in _ROOT_MARKERS):
+        text += " (the sequence's own folder: no folder above it holds a pyproject.toml, .git or seqgen.toml)"
+    return text
+
+
+RIG_FILE = declare("schema.rig-file", "note", """
+    `seqgen check` was given a rig file (`seqgen_rig: 1`) rather than a
+    sequence file. It is checked as a rig on its own: against
+    schemas/rig.schema.json, then built as the resolve stage builds a rig
+    (devices, channels, ranges, calibrations, limits, beams, coils, drives,
+    imaging), and those findings are reported. What the rig means for a run
+    (ranges reached, timing, safety, physics) is checked with a sequence that
+    names it: `seqgen check SEQUENCE` for a sequence with `rig: PATH`.""", E.S, "resolve")
+
+
+def is_rig_document(doc: Document) -> bool:
+    """A rig file (`seqgen_rig:` and no `seqgen:` key)."""
+    return isinstance(doc.data, dict) and "seqgen_rig" in doc.data and "seqgen" not in doc.data
+
+
+def check_rig_document(doc: Document) -> list[Finding]:
+    """The findings of a rig file checked on its own: version, rig schema, then the rig builder; a note
+    that says so (and how many devices and channels it has) when it builds."""
+    findings: list[Finding] = []
+    if not _check_top(doc, findings, "seqgen_rig", E.VERSION):
+        return findings
+    findings += validate_document(doc, RIG_SCHEMA)
+    if any(f.severity == "error" for f in findings):
+        return findings
+    rig, rf = build_rig(doc)
+    findings += rf
+    if rig is not None and not any(f.severity == "error" for f in rf):
+        findings.append(make(RIG_FILE, f"rig file checked on its own: {len(rig.devices)} device(s), "
+                             f"{len(rig.channels)} channel(s), {len(rig.beams)} beam(s), {len(rig.coils)} coil(s)",
+                             doc.pos(("seqgen_rig",)),
+                             hint="check a sequence that names it ('rig: PATH') to preflight it with a timeline"))
+    return findings
 
 
 def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_outside_root: bool | None = None) -> None:
@@ -190,13 +266,13 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_out
                                      doc.pos(("use", i, "file")), hint="the path is a symbolic link loop; fix the link"))
             continue
         if not resolved.is_relative_to(root) and not _outside_allowed(allow_outside_root):
-            shown = _display(root)
-            shown = "(the current folder)" if shown == "." else f"'{shown}'"
+            shown = _root_text(root)
             src.findings.append(make(E.USE_OUTSIDE_ROOT, f"used file '{entry['file']}' is outside the project root {shown}",
                                      doc.pos(("use", i, "file")),
                                      hint="move the file into the project, or allow it with --allow-outside-root "
                                           "(or SEQGEN_ALLOW_OUTSIDE=1)"))
             continue
+        src.findings += _absolute_path(doc, ("use", i, "file"), entry["file"], folder, chain[0])
         if resolved in chain:
             names = " -> ".join(_display(c) for c in chain + [resolved])
             src.findings.append(make(E.USE_CYCLE, f"use cycle: {names}", doc.pos(("use", i, "file")),
@@ -207,8 +283,10 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_out
         except LoadError as exc:
             f = exc.finding
             if f.code == "schema.file-missing":
-                f = make("schema.file-missing", f"used file '{entry['file']}' not found", doc.pos(("use", i, "file")),
-                         hint="paths are relative to the file that uses them")
+                f = make("schema.file-missing", f"used file '{entry['file']}' not found (looked in "
+                         f"{os.path.abspath(target.parent)})",
+                         doc.pos(("use", i, "file")), hint="use: paths are relative to the folder of the file that "
+                                                          "uses them")
             src.findings.append(f)
             continue
         if not _check_top(used, src.findings, "seqgen", E.VERSION):
@@ -343,7 +421,7 @@ def _resolve_params(entries: dict, overrides: dict, findings: list):
         findings.append(make(E.PARAM_CYCLE, "params depend on each other in a cycle: " + " -> ".join(members + [members[0]]),
                              d.pos(path), hint="give one of them a plain value"))
         return None, None
-    env: dict[str, Qty] = {}
+    env = Env(defs=texts)  # name -> Qty; knows each param's definition, for findings about its value
     params = []
     ok = True
     for name in order:
@@ -827,14 +905,23 @@ def _do_magnetic_hold(ctx, spec, t0, path):
     ramp_on = ctx.q(spec, "ramp_on", path, "s", positive=True) if "ramp_on" in spec else 0.0
     cpath = path + ("currents",)
     currents = []
+    if ramp_on and "tolerance" in spec:  # each coil's ramp checks it in its own output unit: report it here
+        for name in spec["currents"]:
+            coil = ctx.rig.coils.get(str(name))
+            out = ctx.rig.outputs.get(coil.current_channel) if coil is not None else None
+            if out is not None:
+                quantity(spec["tolerance"], out.unit, ctx.doc, path + ("tolerance",), ctx.env, positive=True,
+                         what=f"tolerance of the ramp_on ramp of '{out.name}'")
     for name, raw in spec["currents"].items():
         name = str(name)
         coil = _named(ctx, ctx.rig.coils, "coil", name, cpath + (name,))
         out = ctx.output_for(coil.current_channel, cpath + (name,))
         amps = quantity(raw, "A", ctx.doc, cpath + (name,), ctx.env, what=f"current of coil '{name}'")
         if ramp_on:
-            ctx.ramp(out, {"shape": spec.get("shape", "linear")}, t0, cpath + (name,), "magnetic_hold", None, amps,
-                     ramp_on)
+            ramp = {"shape": spec.get("shape", "linear")}
+            if "tolerance" in spec:  # of the ramp_on ramp, in the output unit, as a ramp's tolerance:
+                ramp["tolerance"] = spec["tolerance"]
+            ctx.ramp(out, ramp, t0, cpath + (name,), "magnetic_hold", None, amps, ramp_on)
         else:
             ctx.seg(out, "set", t0, t0, None, amps, "magnetic_hold", cpath + (name,))
         currents.append((coil.name, amps))

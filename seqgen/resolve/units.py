@@ -76,6 +76,9 @@ def is_unit_name(word: str) -> bool:
 _QTY_RE = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([^\d\s].*)?$")
 
 
+_UNIT_TEXT = re.compile(r"[A-Za-zµμΩ_][A-Za-z0-9µμΩ_]*(\s*[*/]\s*[A-Za-zµμΩ_][A-Za-z0-9µμΩ_]*(\*\*|\^)?-?\d*)*(\*\*|\^)?-?\d*")
+
+
 @lru_cache(maxsize=16384)
 def parse_simple(text: str) -> Qty | None:
     """Parse '<number> [unit]' quickly; None if the text is not of that form."""
@@ -86,10 +89,21 @@ def parse_simple(text: str) -> Qty | None:
     unit = m.group(2)
     if unit is None:
         return Qty(number)
-    if not re.fullmatch(r"[A-Za-zµμΩ_][A-Za-z0-9µμΩ_]*(\s*[*/]\s*[A-Za-zµμΩ_][A-Za-z0-9µμΩ_]*(\*\*|\^)?-?\d*)*(\*\*|\^)?-?\d*", unit.strip()):
+    if not _UNIT_TEXT.fullmatch(unit.strip()):
         return None
     factor, dims = unit_factor(unit)
     return Qty(number * factor, dims)
+
+
+def split_quantity(text: str) -> tuple | None:
+    """('80', 'mS') for '80 mS', ('2', None) for '2'; None if the text is not '<number> [unit]'."""
+    m = _QTY_RE.match(text)
+    if not m:
+        return None
+    unit = m.group(2).strip() if m.group(2) else None
+    if unit is not None and not _UNIT_TEXT.fullmatch(unit):
+        return None  # '2 * n * 1 mW' is an expression, not a number with a unit
+    return m.group(1), unit
 
 
 @lru_cache(maxsize=256)
@@ -145,3 +159,130 @@ def format_qty(q: Qty) -> str:
 
 def same_dims(a: Dims, b: Dims) -> bool:
     return all(abs(x - y) < 1e-9 for x, y in zip(a, b))
+
+
+# ----------------------------------------------------------------------------- words for messages
+# What a new user reads when a unit is wrong: the kind of quantity a dimension is ("a time", "a magnetic
+# field gradient"), the units of that kind a lab writes (the first is the usual one), and close unit names.
+
+_KINDS = (  # (unit whose dimension defines the kind, kind, units of that kind to suggest)
+    ("s", "time", ("ms", "us", "s", "ns")),
+    ("Hz", "frequency", ("kHz", "MHz", "Hz", "GHz")),
+    ("W", "power", ("mW", "W", "uW", "nW")),
+    ("V", "voltage", ("V", "mV", "kV")),
+    ("A", "current", ("A", "mA")),
+    ("T", "magnetic field", ("G", "mG", "T", "mT")),
+    ("T/m", "magnetic field gradient", ("G/cm", "T/m")),
+    ("T/m^2", "magnetic field curvature", ("G/cm^2", "T/m^2")),
+    ("m", "length", ("mm", "um", "m", "nm", "cm")),
+    ("m/s", "velocity", ("mm/s", "m/s", "um/s", "cm/s")),
+    ("m/s^2", "acceleration", ("m/s^2",)),
+    ("K", "temperature", ("nK", "uK", "mK", "K")),
+    ("J", "energy", ("J", "eV")),
+    ("kg", "mass", ("kg", "g")),
+    ("S", "conductance", ("S", "mS")),
+    ("ohm", "resistance", ("ohm", "kohm")),
+    ("C", "charge", ("C",)),
+    ("F", "capacitance", ("F", "nF")),
+    ("H", "inductance", ("H", "mH")),
+    ("W/m^2", "intensity", ("mW/cm^2", "W/m^2")),
+    ("A/s", "current slew rate", ("A/s", "A/ms")),
+    ("V/s", "voltage slew rate", ("V/s", "V/ms")),
+    ("W/s", "power slew rate", ("W/s", "mW/ms")),
+    ("Hz/s", "frequency sweep rate", ("MHz/s", "kHz/ms", "Hz/s")),
+    ("T/m/A", "field gradient per current", ("G/cm/A",)),
+    ("T/A", "field per current", ("G/A",)),
+    ("", "plain number", ()),
+)
+_KIND_OF: dict = {}
+# unit names a lab writes, for "did you mean" on an unknown unit (compared without regard to case first)
+_KNOWN_UNITS = tuple(dict.fromkeys(
+    [p + b for b, ps in (("s", "mun"), ("Hz", "kMG"), ("W", "munk"), ("V", "mk"), ("A", "mk"), ("K", "mun"),
+                         ("m", "kcmun"), ("T", "mu"), ("G", "mk"), ("eV", "mukM")) for p in ("",) + tuple(ps)]
+    + [u for _, _, units in _KINDS for u in units] + ["J", "rad", "deg", "dB", "min", "kg", "g"]))
+
+
+def _kinds() -> dict:
+    if not _KIND_OF:
+        for unit, kind, units in _KINDS:
+            try:
+                _KIND_OF.setdefault(dims_of(unit), (kind, units))
+            except UnitError:  # pragma: no cover - every unit above is known to pint
+                continue
+    return _KIND_OF
+
+
+def _dims_key(dims: Dims) -> Dims:
+    return tuple(float(x) for x in dims)
+
+
+def kind_of(dims: Dims) -> str | None:
+    """The kind of quantity of a dimension ('time', 'magnetic field gradient'), or None if it has no name here."""
+    hit = _kinds().get(_dims_key(dims))
+    return hit[0] if hit else None
+
+
+def kind_units(dims: Dims) -> tuple:
+    """Units a lab writes for quantities of this dimension, the usual one first (empty if none is known)."""
+    hit = _kinds().get(_dims_key(dims))
+    return hit[1] if hit else ()
+
+
+def describe_kind(dims: Dims) -> str:
+    """'a time', 'a magnetic field gradient (T/m)'-style words for a dimension; its base units if unnamed."""
+    kind = kind_of(dims)
+    if kind is None:
+        return describe_dims(dims)
+    return f"{'an' if kind[0] in 'aeiou' else 'a'} {kind}"
+
+
+def usual_unit(dims: Dims, fallback: str = "") -> str:
+    """The unit a lab usually writes for this dimension ('ms' for a time), else `fallback` or the SI unit."""
+    units = kind_units(dims)
+    return units[0] if units else (fallback or display_unit(dims))
+
+
+def unit_name(unit_text: str) -> str | None:
+    """The spelled-out name of a single unit word ('mS' -> 'millisiemens', 'G' -> 'gauss'); None for a compound
+    unit or an unknown one."""
+    text = unit_text.strip()
+    if not re.fullmatch(r"[A-Za-zµμΩ]+", text):
+        return None
+    try:
+        unit_factor(text)
+        word = format(_UREG.Unit(_GAUSS_WORD.sub(lambda m: (m.group(1) or "") + "LabG", text.replace("µ", "u")
+                                                  .replace("μ", "u"))))
+    except Exception:  # pint raises many types for bad text
+        return None
+    return word.replace("labgauss", "gauss").replace("_", " ")
+
+
+def close_units(unit_text: str, dims: Dims | None = None, n: int = 3) -> list:
+    """Unit names close to `unit_text`: the same letters in another case first ('mw' -> 'mW', 'mS' -> 'ms'),
+    then similar spellings. With `dims`, only units of that dimension, and for a unit that lacks a
+    per-length to be a gradient (G where G/cm is expected), that unit per cm or per m."""
+    import difflib
+
+    text = unit_text.strip()
+    pool = list(kind_units(dims)) if dims is not None else list(_KNOWN_UNITS)
+    if dims is not None:
+        for extra in (f"{text}/cm", f"{text}/m"):  # a field where a gradient is expected, and the like
+            try:
+                if same_dims(dims_of(extra), dims) and extra not in pool:
+                    pool.append(extra)
+            except UnitError:
+                continue
+    same_case = [u for u in pool if u.lower() == text.lower() and u != text]
+    if dims is not None:
+        per_length = [u for u in pool if u in (f"{text}/cm", f"{text}/m")]
+        gauss_first = sorted(per_length, key=lambda u: not (u.endswith("/cm") and "G" in text))
+        return (same_case + gauss_first[:1])[:n]
+    lowered = {}
+    for u in pool:
+        lowered.setdefault(u.lower(), []).append(u)
+    if same_case:  # a slip of the shift key: the one that fits is the one to name
+        return same_case[:n]
+    out = []
+    for low in difflib.get_close_matches(text.lower(), list(lowered), n=n, cutoff=0.6):
+        out += [u for u in lowered[low] if u not in out and u != text]
+    return out[:n]

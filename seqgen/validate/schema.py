@@ -130,7 +130,7 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document) -> list[Finding
     if v == "type":
         want = err.validator_value if isinstance(err.validator_value, str) else " or ".join(err.validator_value)
         got = type(err.instance).__name__.replace("dict", "mapping").replace("list", "list").replace("str", "text")
-        hint = "write it as a mapping 'key: value'" if want == "object" else f"give a {want}"
+        hint = "write it as a mapping 'key: value'" if want == "object" else f"give {_article(want)} {want}"
         if want in ("string or number", "string") and isinstance(err.instance, (dict, list)):
             hint = "give a single quantity such as '2 ms'"
         return [make(WRONG_TYPE, f"{where} must be {want}, not {got}", doc.pos(path), hint=hint)]
@@ -156,10 +156,42 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document) -> list[Finding
     if v == "const":
         return [make(BAD_VALUE, f"{where} must be {err.validator_value!r}, not {err.instance!r}", doc.pos(path),
                      hint=f"write {err.validator_value!r}")]
+    if v == "dependentRequired" and isinstance(err.instance, dict):
+        out = []
+        for key, needs in (err.validator_value or {}).items():
+            for need in needs:
+                if key in err.instance and need not in err.instance:
+                    out.append(make(MISSING_KEY, f"{where}: '{key}' needs '{need}' beside it", doc.pos(path + (key,)),
+                                    hint=f"add '{need}:', or remove '{key}:'"))
+        if out:
+            return out
     if v == "pattern":
         return [make(BAD_VALUE, f"{where}: '{err.instance}' is not a valid name", doc.pos(path),
                      hint="names are letters, digits and underscores, starting with a letter")]
-    return [make(BAD_VALUE, f"{where}: {_shorten(err.message, err.instance)}", doc.pos(path))]
+    return [make(BAD_VALUE, f"{where}: {_shorten(err.message, err.instance)}", doc.pos(path),
+                 hint=_bound_hint(v, err.validator_value, path))]
+
+
+def _article(word: str) -> str:
+    return "an" if word[:1].lower() in "aeiou" else "a"
+
+
+_BOUND_WORDS = {"minimum": "{} or more", "maximum": "{} or less", "exclusiveMinimum": "more than {}",
+                "exclusiveMaximum": "less than {}", "minItems": "at least {} item(s)", "maxItems": "at most {} item(s)",
+                "minLength": "at least {} character(s)", "maxLength": "at most {} character(s)"}
+
+
+def _bound_hint(validator: str, bound, path: tuple) -> str:
+    """The fix for a value outside a schema bound: what to give instead ('' for other validators)."""
+    words = _BOUND_WORDS.get(validator)
+    if words is None:
+        return ""
+    key = path[-1] if path else None
+    if key == "steps" and validator == "minimum":  # a scan range: how many values, ends included
+        return "steps counts the values of the range, ends included: give 2 or more (steps: 1 only when from equals to)"
+    if key in ("random", "max_shots") and validator == "minimum":
+        return f"give {key}: {words.format(bound)} (how many shots)"
+    return "give " + words.format(bound)
 
 
 def _shorten(message: str, instance) -> str:

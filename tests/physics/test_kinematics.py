@@ -147,3 +147,61 @@ def test_components_resolved_rule():
     assert k.components_resolved(-150e-6, s1, s2)
     assert not k.components_resolved(150e-6, s1, s2, n_sigma=4)
     assert list(k.components_resolved(np.array([100e-6, 200e-6]), s1, s2)) == [False, True]
+
+
+def test_pulse_displacement_against_trajectory_integration():
+    # uniform acceleration a on [t0, t1], then free flight (textbook): integrate x'' = a numerically
+    a, t0, t1 = 3.7, 2e-3, 6e-3
+
+    def rhs(t, y):
+        return [y[1], a if t0 <= t < t1 else 0.0]
+
+    times = np.array([1e-3, 4e-3, 6e-3, 15e-3])
+    sol = integrate.solve_ivp(rhs, (0, 15e-3), [0, 0], t_eval=times, rtol=1e-12, atol=1e-15, max_step=1e-5)
+    np.testing.assert_allclose(k.pulse_displacement(a, t0, t1, times), sol.y[0], rtol=1e-6, atol=1e-12)
+    # hand forms: a tau^2/2 at the end of the pulse, a tau (tau/2 + t_after) after it
+    assert k.pulse_displacement(a, t0, t1, t1) == pytest.approx(a * 4e-3**2 / 2, rel=1e-14)
+    assert k.pulse_displacement(a, t0, t1, 15e-3) == pytest.approx(a * 4e-3 * (2e-3 + 9e-3), rel=1e-14)
+    assert k.pulse_displacement(a, t0, t1, 0.0) == 0.0
+    # vectors: an acceleration with a trailing axis of 3 and times with a matching axis of 1
+    out = k.pulse_displacement(np.array([[1.0, 0, 0], [0, 0, -2.0]]), 0.0, 1.0, np.array([[2.0], [1.0]]))
+    np.testing.assert_allclose(out, [[1.5, 0, 0], [0, 0, -1.0]], rtol=1e-14)
+
+
+def test_linear_trap_rms_widths_against_boltzmann_integral():
+    # quadrupole with axial gradient G along z: |B| = (G/2) sqrt(x^2 + y^2 + 4 z^2); density exp(-|mu| |B| / k_B T)
+    # (Boltzmann factor, textbook). Integrate <z^2> and <rho^2>/2 on (rho, z) with the 2 pi rho weight.
+    temp, mu, grad = 20e-6, -0.5 * MU_B, 0.2
+    l_rad = sc.k * temp / (abs(mu) * grad / 2)  # 1/e length across the axis
+
+    def dens(r, z):
+        return np.exp(-np.sqrt(r * r + 4 * z * z) / l_rad) * 2 * np.pi * r
+
+    lim = 40 * l_rad
+    norm = integrate.dblquad(lambda r, z: dens(r, z), -lim, lim, 0, lim, epsabs=0, epsrel=1e-10)[0]
+    z2 = integrate.dblquad(lambda r, z: z * z * dens(r, z), -lim, lim, 0, lim, epsabs=0, epsrel=1e-10)[0] / norm
+    x2 = integrate.dblquad(lambda r, z: r * r / 2 * dens(r, z), -lim, lim, 0, lim, epsabs=0, epsrel=1e-10)[0] / norm
+    widths = k.linear_trap_rms_widths(temp, mu, [grad / 2, grad / 2, grad])
+    np.testing.assert_allclose(widths, [np.sqrt(x2), np.sqrt(x2), np.sqrt(z2)], rtol=1e-6)
+    # twice the 1/e Boltzmann length k_B T / (|mu| b') along each axis
+    assert widths[0] == pytest.approx(2 * l_rad, rel=1e-14)
+    # broadcasting over temperatures
+    assert k.linear_trap_rms_widths(np.array([1e-6, 4e-6]), mu, [grad / 2, grad / 2, grad]).shape == (2, 3)
+
+
+def test_image_plane_basis():
+    # a camera looking along +y with z up has +x to its right (right = forward x up); every basis is
+    # orthonormal, and (right, up, forward) is left-handed: e_h x e_v = -n
+    e_h, e_v, n = k.image_plane_basis([0, 2, 0])
+    np.testing.assert_allclose(e_v, [0, 0, 1], atol=1e-15)
+    np.testing.assert_allclose(e_h, [1, 0, 0], atol=1e-15)
+    for los in ([0, 1, 0], [1, 1, 0.3], [0, 0, -1], [1e-9, 0, 1]):
+        basis = np.array(k.image_plane_basis(los))
+        np.testing.assert_allclose(basis @ basis.T, np.eye(3), atol=1e-12)
+        np.testing.assert_allclose(np.cross(basis[0], basis[1]), -basis[2], atol=1e-12)
+        np.testing.assert_allclose(basis[2], np.asarray(los) / np.linalg.norm(los), atol=1e-12)
+    # the image's "up" is the vertical's part perpendicular to the line of sight
+    e_h, e_v, n = k.image_plane_basis([1, 0, 1])
+    np.testing.assert_allclose(e_v, np.array([-1, 0, 1]) / np.sqrt(2), atol=1e-12)
+    with pytest.raises(ValueError):
+        k.image_plane_basis([0, 0, 0])
