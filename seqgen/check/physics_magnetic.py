@@ -32,6 +32,7 @@ from scipy import constants as sc
 from ..findings import make
 from ..registry import check
 from ..values import value_at
+from .physics_states import _fmt_t
 from .physics_traps import _species, per_shot_cache
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
@@ -59,15 +60,6 @@ def _g_cm(g_t_m) -> str:
 
 def _g_cm2(c_t_m2) -> str:
     return f"{c_t_m2:.4g} G/cm^2"  # 1 G/cm^2 = 1e-4 T / 1e-4 m^2 = 1 T/m^2
-
-
-def _fmt_t(t) -> str:
-    a = abs(t)
-    if a >= 1:
-        return f"{t:.4g} s"
-    if a >= 1e-3:
-        return f"{t * 1e3:.4g} ms"
-    return f"{t * 1e6:.4g} us"
 
 
 def _moment(sp, state, field_t):

@@ -538,14 +538,21 @@ def report(shot) -> list[dict]:
     rows = []
     if _species(shot) is None:
         return rows
+    seen: dict = {}  # ramps of several beams over the same interval describe one trap: one row, all beams named
     for act in _trap_ramps(shot):
+        key = (act.block, act.t0, act.t1)
+        if key in seen:
+            first = seen[key]["items"]
+            first[0] = first[0].replace("beam ", "beams ", 1) if first[0].startswith("beam ") else first[0]
+            first[0] += f" + {act.args['beam']}"
+            continue
         rep = _stage_report(shot, act)
         items = []
         w = rep["omegas"]
         if np.all(np.isfinite(w[[0, -1]])):
             f0, f1 = w[0] / (2 * math.pi), w[-1] / (2 * math.pi)
             items.append("trap frequencies " + "/".join(f"{x:.4g}" for x in f0) + " Hz -> " + "/".join(f"{x:.4g}" for x in f1) + " Hz")
-        items.insert(0, f"beam {act.args['beam']}")
+        items.insert(0, f"beam {act.args['beam']}")  # the crossed trap of every beam on at the time, not this beam alone
         items.append(f"depth with gravity k_B x {rep['depth_g'][0] / sc.k * 1e6:.4g} uK -> {rep['depth_g'][-1] / sc.k * 1e6:.4g} uK")
         if rep.get("eta") is not None:
             items.append(f"eta at end {rep['eta']:.3g}")
@@ -555,6 +562,7 @@ def report(shot) -> list[dict]:
             else:
                 items.append("excitation E/E_ad-1 per axis " + ", ".join(f"{x:.2e}" for x in rep["excitation"]))
         rows.append({"block": act.block, "kind": "trap_ramp", "time_s": act.t0, "items": items})
+        seen[key] = rows[-1]
     for img in (a for a in shot.phys if a.kind == "image"):
         pred = image_prediction(shot, img)
         if pred:
