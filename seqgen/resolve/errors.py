@@ -77,3 +77,17 @@ FRAGMENT = declare("schema.fragment", "note", """
     The file says `fragment: true`: it holds blocks and params for other
     sequences to `use` and names no rig, so it is only checked for syntax
     and schema on its own. Check the sequences that use it for the rest.""", S, "resolve")
+PARAM_RANGE = declare("schema.param-out-of-range", "error", """
+    A param's value lies outside the bounds its definition states:
+    `params: {tof: {value: 14 ms, min: 1 ms, max: 30 ms}}`. The bounds are
+    the author's own statement of what values the param may take (a time of
+    flight that must stay positive, a power a fibre can carry); both are
+    optional and inclusive, and are compared after conversion to SI units
+    (within a relative 1e-12, so `1000 us` meets `min: 1 ms`). They hold for
+    the base `value:`, for every scan value (each shot outside them fails with
+    this finding, the other shots run, and `seqgen check` prints the param
+    range where it fires) and for a value computed from other params by an
+    expression; a `use:` entry that overrides the param is held to the bounds
+    of the file that defines it. A bound is a quantity of the param's
+    dimension (or a bare 0); `min:` above `max:` is reported here too. Fix
+    the value, or change the bound if the value is meant.""", S, "resolve")

@@ -22,6 +22,9 @@ of sha256("seqgen-random:<seed>:<k>") read as a big-endian integer divided by
 2**64; the shuffled order sorts the shots by sha256("seqgen-order:<seed>:<i>").
 
 Every scan value is checked against the dimension of the param's base value.
+A param's `min:` / `max:` bounds are checked per shot, when the shot is resolved
+with its scan values (seqgen/resolve/sequence.py), so a shot beyond them fails
+with schema.param-out-of-range and the other shots run.
 The result is a `ScanPlan` (immutable); `ScanPlan.overrides(i)` is the
 `name -> Qty` mapping that `resolve(src, overrides)` takes for shot i.
 """

@@ -326,14 +326,17 @@ def _resolve(src: Sources, overrides: dict | None) -> tuple[Shot | None, list[Fi
     docs = [d for d, *_ in src.used] + [src.main]
     # params: used files first, their use-entry overrides, then the main file; later wins
     entries: dict[str, tuple] = {}
+    bounds: dict[str, dict] = {}  # name -> {"min"/"max": (raw, Document, path)}; a later min:/max: replaces
     for d, entry, parent, upath in src.used:
         for name, raw in (d.data.get("params") or {}).items():
             entries[name] = (raw, d, ("params", name))
+            _note_bounds(bounds, name, raw, d, ("params", name))
         for name, raw in (entry.get("params") or {}).items():
             entries[name] = (raw, parent, upath + ("params", name))
     for name, raw in (src.main.data.get("params") or {}).items():
         entries[name] = (raw, src.main, ("params", name))
-    params, env = _resolve_params(entries, overrides or {}, findings)
+        _note_bounds(bounds, name, raw, src.main, ("params", name))
+    params, env = _resolve_params(entries, overrides or {}, findings, bounds)
     if params is None:
         return None, findings
     sample = _sample(src.main, env, findings)
@@ -396,13 +399,36 @@ def _resolve(src: Sources, overrides: dict | None) -> tuple[Shot | None, list[Fi
     return shot, findings
 
 
-def _resolve_params(entries: dict, overrides: dict, findings: list):
+def _note_bounds(bounds: dict, name: str, raw, doc: Document, path: tuple) -> None:
+    if isinstance(raw, dict):
+        for key in ("min", "max"):
+            if key in raw:
+                bounds.setdefault(name, {})[key] = (raw[key], doc, path + (key,))
+
+
+def _resolve_params(entries: dict, overrides: dict, findings: list, bounds: dict | None = None):
     graph = nx.DiGraph()
     texts = {}
+    bounds = {n: dict(b) for n, b in (bounds or {}).items() if n in entries}
     for name, (raw, d, path) in entries.items():
         value = raw["value"] if isinstance(raw, dict) else raw
         texts[name] = (value, d, path + (("value",) if isinstance(raw, dict) else ()))
         graph.add_node(name)
+        for key, (braw, bdoc, bpath) in list(bounds.get(name, {}).items()):  # a bound may name other params
+            try:
+                bdeps = names_in(braw) if isinstance(braw, str) else set()
+            except ExprError as exc:
+                findings.append(make(E.EXPRESSION, str(exc), bdoc.pos(bpath), hint=exc.hint))
+                del bounds[name][key]
+                continue
+            if name in bdeps and not _plain_quantity(braw):
+                findings.append(make(E.EXPRESSION, f"the {key}: of param '{name}' names '{name}' itself",
+                                     bdoc.pos(bpath), hint=f"give {key}: as a quantity, e.g. '{key}: 1 ms'"))
+                del bounds[name][key]
+                continue
+            for dep in bdeps:
+                if dep in entries:
+                    graph.add_edge(dep, name)
         if isinstance(value, str) and name not in overrides:
             try:
                 deps = names_in(value)
@@ -437,7 +463,93 @@ def _resolve_params(entries: dict, overrides: dict, findings: list):
                 continue
         env[name] = q
         params.append(Param(name, q.value, q.dims, str(value), d.pos(path)))
+        if name in bounds and bounds[name]:
+            bad = _out_of_bounds(name, q, value, bounds[name], entries[name], name in overrides, env)
+            if bad:
+                findings.extend(bad)
+                ok = False
     return (params, env) if ok else (None, None)
+
+
+def _plain_quantity(text: str) -> bool:
+    """'14 ms', '0.3' (a number with a unit, no param), as opposed to an expression or a param name."""
+    from .units import UnitError, parse_simple
+
+    try:
+        return parse_simple(text.strip()) is not None
+    except UnitError:
+        return False
+
+
+BOUND_RTOL = 1e-12  # a value within this relative distance of a bound meets it (unit conversions round)
+
+
+def _out_of_bounds(name: str, q: Qty, written, spec: dict, entry: tuple, scanned: bool, env) -> list[Finding]:
+    """The findings of param `name` (value `q`) against its `min:` / `max:`: a bound that is no quantity of
+    the param's dimension, `min:` above `max:`, or the value outside them (at the param's line)."""
+    from .quantities import _dimension_words
+    from .units import DIMENSIONLESS, display_unit, format_qty, same_dims
+
+    out: list[Finding] = []
+    lim: dict[str, float] = {}
+    for key in ("min", "max"):
+        if key not in spec:
+            continue
+        braw, bdoc, bpath = spec[key]
+        try:
+            b = to_qty(braw, bdoc, bpath, env)
+        except Bad as bad:
+            out.append(bad.finding)
+            continue
+        if not same_dims(b.dims, q.dims):
+            if same_dims(b.dims, DIMENSIONLESS) and b.value == 0:  # a bare 0 fits every dimension
+                b = Qty(0.0, q.dims)
+            else:
+                out.append(_dimension_words(braw, b, q.dims, display_unit(q.dims), f"{key}: of param '{name}'",
+                                            bdoc.pos(bpath)))
+                continue
+        lim[key] = b.value
+    if out:
+        return out
+    _, doc, path = entry
+    pos = doc.pos(path)
+
+    def shown(v: float) -> str:
+        return format_qty(Qty(v, q.dims))
+
+    def where(key: str) -> str:
+        bpos = spec[key][1].pos(spec[key][2])
+        if bpos.file != pos.file:
+            return f" (set at {bpos})"
+        return f" (line {bpos.line})" if bpos.line != pos.line else ""
+
+    if "min" in lim and "max" in lim and lim["min"] > lim["max"]:
+        braw, bdoc, bpath = spec["min"]
+        return [make(E.PARAM_RANGE, f"param '{name}' has min: {shown(lim['min'])} above its max: "
+                     f"{shown(lim['max'])}, so no value can meet both", bdoc.pos(bpath),
+                     hint="swap min: and max:, or fix the one with the typo")]
+    v = q.value
+    for key, beyond in (("min", lambda lo: v < lo - BOUND_RTOL * max(abs(lo), abs(v))),
+                        ("max", lambda hi: v > hi + BOUND_RTOL * max(abs(hi), abs(v)))):
+        if key not in lim or not beyond(lim[key]):
+            continue
+        b = lim[key]
+        side, least = ("below", "at or above") if key == "min" else ("above", "at or below")
+        computed = isinstance(written, str) and not scanned and not _plain_quantity(written)
+        if scanned:
+            what = f"scan value {shown(v)} of '{name}'"
+            hint = (f"keep every scan value of '{name}' {least} {shown(b)} (this shot is refused, the others run), "
+                    f"or change {key}: if such values are meant")
+        elif computed:
+            what = f"'{name}' = {str(written).strip()} = {shown(v)}"
+            hint = (f"'{name}' follows the params it is computed from: change them so it stays {least} "
+                    f"{shown(b)}, or change {key}: if such values are meant")
+        else:
+            what = f"'{name}' = {shown(v)}"
+            hint = f"give '{name}' a value {least} {shown(b)}, or change {key}: if such values are meant"
+        out.append(make(E.PARAM_RANGE, f"{what} is {side} its {key}: {shown(b)}{where(key)}", pos, hint=hint,
+                        data={"value": v, key: b}))
+    return out
 
 
 def _sample(doc: Document, env, findings) -> Sample | None:
