@@ -196,13 +196,13 @@ def cmd_plot(args) -> int:
         if len(results) == 1:
             res = results[0]
             fig = timeline_figure(res.shot, res.compiled, res.findings, t_from=t_from, t_to=t_to, channels=channels,
-                                  physics=not args.no_physics, subtitle=captions[0])
+                                  physics=not args.no_physics, subtitle=captions[0], all_lanes=args.all_lanes)
         else:
             old, new = results
             sub = "\n".join(f"{which} ({f}): {c}" for which, f, c in zip(("old", "new"), args.files, captions) if c)
             fig = diff_figure(old.shot, old.compiled, new.shot, new.compiled, old_label=args.files[0],
                               new_label=args.files[1], t_from=t_from, t_to=t_to, channels=channels,
-                              findings=new.findings, subtitle=sub or None)
+                              findings=new.findings, subtitle=sub or None, all_lanes=args.all_lanes)
         save_figure(fig, args.output, force=args.force)
         return fig
 
@@ -213,7 +213,8 @@ def cmd_plot(args) -> int:
     errors = any(has_errors(r.findings) for r in results)
     if args.json:
         out = {"output": str(args.output), "files": list(args.files), "window_s": list(info["window"]),
-               "lanes": list(info["lanes"]), "summary": [summary(r.findings) for r in results]}
+               "lanes": list(info["lanes"]), "not_written": list(info.get("not_written", ())),
+               "summary": [summary(r.findings) for r in results]}
         if "differs" in info:
             out["differs"] = {k: [list(w) for w in v] for k, v in info["differs"].items()}
         if any(choices):
@@ -226,6 +227,10 @@ def cmd_plot(args) -> int:
         for f, c in zip(args.files, captions):
             if c:
                 print(f"  {f}: {c}")
+        if info.get("not_written"):
+            print(f"  not written (no lane; --all-lanes draws them): {', '.join(info['not_written'])}")
+        if info.get("hint"):
+            print(f"  {info['hint']}")
         for r in results:
             s = summary(r.findings)
             if s["error"]:
@@ -499,6 +504,8 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--channels", default=None, metavar="A,B",
                    help="only these outputs (comma separated; glob patterns like 'cross_*'; channel or device names)")
     g.add_argument("--no-physics", action="store_true", help="leave out the physics panels")
+    g.add_argument("--all-lanes", action="store_true",
+                   help="also draw outputs the sequence never writes (by default only named under the lanes)")
     g.add_argument("--force", action="store_true", help="replace an existing picture")
     g.add_argument("--json", action="store_true", help="what was drawn, as JSON")
     _shot_option(g, "draw shot N of the scan (run order, as in 'seqgen check --json'); default: the base shot")

@@ -97,7 +97,7 @@ def demo():
 
 @pytest.fixture(scope="module")
 def demo_fig(demo):
-    return plot.timeline_figure(demo.shot, demo.compiled, demo.findings)
+    return plot.timeline_figure(demo.shot, demo.compiled, demo.findings, all_lanes=True)
 
 
 # --- lanes ------------------------------------------------------------------------------------------------------
@@ -340,7 +340,7 @@ def test_diff_windows_from_the_two_tables(tmp_path):
     fig = plot.diff_figure(old.shot, old.compiled, new.shot, new.compiled)
     lanes = _lanes(fig)
     assert any(t.get_text().endswith("*") for t in lanes["guide_power"].texts)
-    assert not any(t.get_text().endswith("*") for t in lanes["probe_power"].texts)
+    assert not any(t.get_text().endswith("*") for t in lanes["probe_shutter"].texts)
     for gid in ("old:kick_current", "new:kick_current"):
         _line(lanes["kick_current"], gid)
     (strip,) = _by_label(fig, "diff")
@@ -492,3 +492,190 @@ def test_subtitle_lines_do_not_overlap_the_title_or_the_legend(tmp_path):
         assert b.y1 <= a.y0 + 0.5, (a, b)
     top_axes = min(ax.get_window_extent(r).y1 for ax in fig.axes if ax.get_label() == "blocks")
     assert boxes[-1].y0 > top_axes
+
+
+# --- pictures a new user misreads ------------------------------------------------------------------------------
+# Expected values: the rig file's latencies, ranges, bits and calibrations (read with PyYAML), the times written in
+# the YAML above, rounding to the nearest DAC code with ties to the higher code (README "Timing rules"), and plain
+# geometry of the drawn artists (bounding boxes from the Agg renderer).
+
+
+def _rendered(fig):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()
+    return canvas.get_renderer()
+
+
+def _seconds(text):
+    """'3.2 ms' -> 0.0032 (SI prefixes, SI Brochure, 9th ed., 2019)."""
+    value, unit = text.split()
+    return float(value) * {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9}[unit]
+
+
+def test_a_latency_lane_says_its_table_is_the_command_sent_early(tmp_path):
+    res = preflight(_small(tmp_path))
+    fig = plot.timeline_figure(res.shot, res.compiled, res.findings, t_from=0.0, t_to=0.03, all_lanes=True)
+    rig = _rig_yaml()["channels"]
+    lat = rig["probe_shutter"]["latency"]  # {rise: 3.2 ms, fall: 2.1 ms}
+    lanes = _lanes(fig)
+    notes = [a.get_text() for a in lanes["probe_shutter"].texts if a.get_gid() == "lane-note"]
+    assert notes == [f"command {lat['rise']} early on, {lat['fall']} early off (latency)"]
+    # the table's edges are the commands, each earlier by the rig's latency than the YAML's time (when it acts)
+    t, v = (np.asarray(x, float) for x in _line(lanes["probe_shutter"], "table:probe_shutter").get_data())
+    edges = t[1:][np.diff(v) != 0]
+    assert edges == pytest.approx([0.020 - _seconds(lat["rise"]), 0.025 - _seconds(lat["fall"])], abs=1e-7)
+    # a latency far below one point of the window (cross_a_power: 500 ns in a 30 ms window) gets no note
+    assert _seconds(rig["cross_a_power"]["latency"]) < 0.03 / (8 * 72)
+    assert not [a for a in lanes["cross_a_power"].texts if a.get_gid() == "lane-note"]
+    labels = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert any("command" in x and "early" in x for x in labels) and any("when the output acts" in x for x in labels)
+    # the note sits in the left margin, clear of the lane label and of the y tick labels
+    r = _rendered(fig)
+    ax = lanes["probe_shutter"]
+    boxes = [t.get_window_extent(r) for t in ax.texts] + \
+        [t.get_window_extent(r) for t in ax.get_yticklabels() if t.get_text()]
+    assert not [(i, j) for i in range(len(boxes)) for j in range(i + 1, len(boxes)) if boxes[i].overlaps(boxes[j])]
+    assert min(b.x0 for b in boxes) >= 0
+
+
+def test_a_flat_lane_gets_a_round_tick(demo):
+    fig = plot.timeline_figure(demo.shot, demo.compiled, demo.findings, t_from=2.70, t_to=2.746, physics=False)
+    ax = _lanes(fig)["cross_a_power"]  # ramped to 0 W before 2.70 s (load_guide), untouched after
+    spec = _rig_yaml()["channels"]["cross_a_power"]
+    lo_v, hi_v = (float(x.split()[0]) for x in spec["output"]["range"])  # [-10 V, 10 V], 16 bits
+    lsb = (hi_v - lo_v) / (2 ** spec["output"]["bits"] - 1)
+    slope = float(spec["calibration"]["linear"]["slope"].split()[0])  # 2 V/W
+    # 0 V falls halfway between two codes and rounds to the higher one: the table holds +lsb/2, 0.0763 mW
+    y = np.asarray(_line(ax, "table:cross_a_power").get_ydata(), float)
+    assert np.allclose(y, lsb / 2 / slope * 1e3, rtol=1e-6)
+    # ... but the lane reads a round 0 (mW) and 0 (V), not "0.0763" and "0.0001526"
+    assert list(ax.yaxis.get_major_locator()()) == [0.0]
+    (sec,) = [c for c in ax.child_axes if c.get_label() == "output-unit:cross_a_power"]
+    assert list(sec.yaxis.get_major_locator()()) == [0.0]
+    # every analog lane's tick labels are round: at most two significant digits (common practice, no source)
+    r = _rendered(fig)
+    for name, lane in _lanes(fig).items():
+        if demo.shot.rig.outputs[name].kind == "digital":
+            continue
+        lo, hi = lane.get_ylim()
+        for axis in [lane] + [c for c in lane.child_axes]:
+            for loc, lab in zip(axis.get_yticks(), axis.get_yticklabels()):
+                text = lab.get_text().replace("\u2212", "-")
+                if text and lo <= (loc if axis is lane else lo) <= hi:
+                    digits = text.lstrip("-").replace(".", "").lstrip("0")
+                    assert len(digits.rstrip("0")) <= 2, (name, text)
+    assert r is not None
+
+
+def test_outputs_the_sequence_never_writes_are_named_not_drawn(tmp_path, capsys):
+    res = preflight(_small(tmp_path))
+    rig = _rig_yaml()
+    every = [f"{c}.{part}" for c, spec in rig["channels"].items() if spec["kind"] == "synth"
+             for part in ("freq", "amp") + (("phase",) if "phase" in spec else ())]
+    every += [c for c, spec in rig["channels"].items() if spec["kind"] != "synth"]
+    written = {"guide_power", "probe_shutter", "kick_current"}  # the only channels SMALL writes
+    fig = plot.timeline_figure(res.shot, res.compiled, res.findings, physics=False)
+    assert set(_lanes(fig)) == written
+    (line,) = _by_label(fig, "not-written")
+    text = " ".join(_texts(line))
+    assert text.startswith("not written") and "--all-lanes" in text
+    assert set(fig.seqgen_info["not_written"]) == set(every) - written
+    for name in set(every) - written:
+        assert name in text
+    full = plot.timeline_figure(res.shot, res.compiled, res.findings, physics=False, all_lanes=True)
+    assert set(_lanes(full)) == set(every) and not _by_label(full, "not-written")
+    # the CLI: left out by default, drawn with --all-lanes
+    out = tmp_path / "t.svg"
+    assert main(["plot", str(_small(tmp_path)), "-o", str(out), "--json"]) == 0
+    info = json.loads(capsys.readouterr().out)
+    assert set(info["lanes"]) == written and set(info["not_written"]) == set(every) - written
+    assert main(["plot", str(_small(tmp_path)), "-o", str(out), "--json", "--force", "--all-lanes"]) == 0
+    info = json.loads(capsys.readouterr().out)
+    assert set(info["lanes"]) == set(every) and info["not_written"] == []
+    # a diff leaves out what neither version writes
+    new = preflight(_small(tmp_path, "new.yaml", kick="12 A"))
+    d = plot.diff_figure(res.shot, res.compiled, new.shot, new.compiled)
+    assert set(_lanes(d)) == written and _by_label(d, "not-written")
+
+
+def test_a_dense_final_part_gets_a_zoom_hint(demo, tmp_path):
+    blocks = demo.shot.blocks
+    end = demo.shot.duration_s
+    late = [b for b in blocks if b.start_s >= 0.95 * end]  # the rule: over half the blocks in the last 5 %
+    assert 2 * len(late) > len(blocks)
+    first = min(b.start_s for b in late)  # kick: after load_guide (2.606 s + 80 ms + 20 ms) = 2.706 s
+    assert first == pytest.approx(2.706, abs=1e-9)
+    fig = plot.timeline_figure(demo.shot, demo.compiled, demo.findings, physics=False)
+    hint = fig.seqgen_title["subtitle"][-1]
+    assert hint.startswith(f"most blocks ({len(late)} of {len(blocks)}) fall in 2.7 s")
+    assert "--from '2.7 s'" in hint  # 2.706 s rounded down to the 10 ms step of a 40 ms run
+    assert fig.seqgen_info["dense_window"][0] == pytest.approx(2.70)
+    # zoomed in, the blocks are apart: no hint; SMALL spreads its two blocks over the shot: no hint
+    zoom = plot.timeline_figure(demo.shot, demo.compiled, (), t_from=2.70, t_to=end, physics=False)
+    assert zoom.seqgen_info["hint"] is None
+    res = preflight(_small(tmp_path))
+    assert plot.timeline_figure(res.shot, res.compiled, ()).seqgen_info["hint"] is None
+
+
+def _overlapping_labels(ax, renderer, gid_prefix):
+    """Pairs (label, marker or label) whose boxes overlap, where the marker belongs to another item."""
+    texts = [t for t in ax.texts if t.get_text()]
+    marks = [ln for ln in ax.get_lines() if (ln.get_gid() or "").startswith(gid_prefix)]
+    tb = [t.get_window_extent(renderer) for t in texts]
+    bad = [(texts[i].get_text(), texts[j].get_text()) for i in range(len(tb)) for j in range(i + 1, len(tb))
+           if tb[i].overlaps(tb[j])]
+    for t, box in zip(texts, tb):
+        for ln in marks:
+            mb = ln.get_window_extent(renderer)
+            if box.overlaps(mb):
+                bad.append((t.get_text(), ln.get_gid()))
+    return bad
+
+
+def test_finding_labels_overlap_neither_labels_nor_other_markers_in_a_diff(tmp_path):
+    from seqgen.findings import make
+
+    old = preflight(_small(tmp_path, "old.yaml"))
+    new = preflight(_small(tmp_path, "new.yaml", kick="12 A", guide_at="7 ms"))
+    codes = ["timing.overlap", "hardware.slew-rate", "safety.hard-limit", "hardware.min-pulse", "timing.sub-tick"]
+    times = [0.0050, 0.0056, 0.0062, 0.0100, 0.0106, 0.0150, 0.0200, 0.0203, 0.0206, 0.0265, 0.0268]
+    fs = [make(codes[k % len(codes)], f"test {k}", None, time_s=t) for k, t in enumerate(times)]
+    # a long chain of close findings shares one label; one more finding just after the chain ends
+    chain = [make("hardware.slew-rate", f"chain {k}", None, time_s=0.002 + 3e-4 * k) for k in range(60)]
+    chain.append(make("timing.overlap", "after the chain", None, time_s=0.002 + 3e-4 * 59 + 1.2e-3))
+    for fs, t_from, t_to in ((fs, None, None), (fs, 0.004, 0.03), (chain, 0.0, 0.03)):
+        fig = plot.diff_figure(old.shot, old.compiled, new.shot, new.compiled, findings=fs, t_from=t_from, t_to=t_to)
+        r = _rendered(fig)
+        (strip,) = _by_label(fig, "findings")
+        # a label's box never covers another label or any marker (its own marker sits beside it)
+        assert not _overlapping_labels(strip, r, "finding:"), (t_from, t_to)
+        marks = [ln for ln in strip.get_lines() if (ln.get_gid() or "").startswith("finding:")]
+        assert len(marks) == len(fs)  # every finding keeps its marker
+
+
+def test_cloud_text_clears_the_trajectory_and_the_markers(demo, demo_fig):
+    r = _rendered(demo_fig)
+    for fig in (demo_fig, plot.timeline_figure(demo.shot, demo.compiled, demo.findings, t_from=2.70, t_to=2.7463)):
+        r = _rendered(fig)
+        (cloud,) = _by_label(fig, "physics:cloud")
+        (text,) = [t for t in cloud.texts if t.get_gid() == "cloud-text"]
+        box = text.get_window_extent(r)
+        for ln in cloud.get_lines():
+            xy = cloud.transData.transform(np.column_stack([ln.get_xdata(), ln.get_ydata()]).astype(float))
+            inside = (xy[:, 0] >= box.x0) & (xy[:, 0] <= box.x1) & (xy[:, 1] >= box.y0 - 3) & (xy[:, 1] <= box.y1 + 3)
+            assert not np.any(inside), ln
+        # the state labels of the components stay clear of it too
+        for t in cloud.texts:
+            if t is not text:
+                assert not t.get_window_extent(r).overlaps(box)
+
+
+def test_default_picture_with_notes_and_left_out_lanes_is_deterministic(tmp_path):
+    res = preflight(_small(tmp_path))
+    a = plot.figure_bytes(plot.timeline_figure(res.shot, res.compiled, res.findings, t_from=0.0, t_to=0.03), "svg")
+    b = plot.figure_bytes(plot.timeline_figure(res.shot, res.compiled, res.findings, t_from=0.0, t_to=0.03), "svg")
+    assert a == b
+    # matplotlib writes each text as an SVG comment beside its glyph paths: the note and the left-out line are drawn
+    assert b"command 3.2 ms early on" in a and b"not written (at the safe value all shot" in a

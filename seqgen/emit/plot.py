@@ -4,7 +4,9 @@
 by device, in physical units (the output unit on a secondary axis where a
 calibration maps one to the other). The solid step curve is what the channel
 table makes the hardware output (after latency compensation and quantization);
-the dashed curve is the intended value from the sequence's segments. Block
+the dashed curve is the intended value from the sequence's segments, i.e. when the output acts (a lane
+whose latency shows in the window says its table is the command sent early). Outputs the shot never writes
+get no lane unless `all_lanes` (one line names them). Block
 spans are shaded and labelled in a strip at the top, findings are marked at
 their sequence time by severity, and physics panels (trap depth and trap
 frequencies along trap ramps, the falling cloud at each image) follow the
@@ -45,6 +47,7 @@ SEVERITY_STYLE = {  # colour, marker: the marker shape carries the severity even
     "warning": ("#dd8a0f", "^"),
     "note": ("#53687e", "o"),
 }
+SEVERITY_ZORDER = {"error": 5, "warning": 4, "note": 3}
 INTENDED_COLOUR = "#1a1a1a"
 DIFF_COLOUR = "#f0b429"
 OLD_COLOUR = "#8a8a8a"
@@ -60,6 +63,10 @@ LABEL_PT = 8.0
 TICK_PT = 6.5
 MAX_POINTS_PER_LANE = 1500  # display bins per lane: min/max within a bin is kept, so no spike is lost
 FORMATS = ("png", "svg", "pdf")
+FINDING_MARKER_PT = 6.5  # marker sizes (points) in the findings and physics-notes strips
+NOTE_MARKER_PT = 4.0
+CLOUD_PANEL_IN = 0.8  # height of the cloud panel; its texts take rows of CLOUD_TEXT_ROW_PT at the top
+CLOUD_TEXT_ROW_PT = 11.0
 G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
 
 
@@ -211,17 +218,25 @@ def intended_series(shot, output: str, t0: float, t1: float, n: int = 1200):
 
 
 def _text_pt(text: str, fontsize: float) -> float:
-    return len(text) * fontsize * 0.6 + 8
+    """Generous width estimate of a label (DejaVu Sans averages about 0.55 em per character)."""
+    return len(text) * fontsize * 0.6
 
 
-def _place(items, t0: float, t1: float, width_in: float, fontsize: float, max_rows: int = 4):
-    """Rows for labels so that none overlap.
+LABEL_PAD_PT = 4.0  # free space kept after each label, so neighbours never touch
 
-    `items` are (start, end, text) in time order. A label sits inside its bar when the bar is wide enough,
-    else to the right of it, or to its left near the right edge of the window. Returns ([(row, mode)],
-    rows used); mode is "inside", "right" or "left".
+
+def _place(items, t0: float, t1: float, width_in: float, fontsize: float, max_rows: int = 4, *,
+           marker_pt: float = 0.0, gap_pt: float = 3.0, inside: bool = True):
+    """Rows for labels so that no label overlaps another label or another item's marker.
+
+    `items` are (start, end, text) in time order. A label sits inside its bar when the bar is wide enough
+    (and `inside`), else to the right of it, or to its left near the right edge of the window. Each item
+    reserves, in its row, the span of its bar, its markers (`marker_pt` on either side of start and end)
+    and its text, `gap_pt` away from the bar, exactly as `_label_x` draws it. Returns ([(row, mode)],
+    rows used); mode is "inside", "right" or "left". Deterministic: first fit, in the items' order.
     """
     s_per_pt = (t1 - t0) / (width_in * 72.0)
+    m, g, pad = marker_pt * s_per_pt, gap_pt * s_per_pt, LABEL_PAD_PT * s_per_pt
     rows: list[list[tuple]] = []
     out = []
     for start, end, text in items:
@@ -229,12 +244,12 @@ def _place(items, t0: float, t1: float, width_in: float, fontsize: float, max_ro
         end = min(max(end, start), t1)
         w = _text_pt(text, fontsize) * s_per_pt
         bar_end = max(end, start + 1.5 * s_per_pt)
-        if end - start >= w:
-            mode, iv = "inside", (start, end + 2 * s_per_pt)
-        elif bar_end + w <= t1:
-            mode, iv = "right", (start, bar_end + w)
+        if inside and end - start >= w + 2 * g:
+            mode, iv = "inside", (start - m, end + m + pad)
+        elif bar_end + m + g + w + pad <= t1:
+            mode, iv = "right", (start - m - pad, bar_end + m + g + w + pad)
         else:
-            mode, iv = "left", (start - w, bar_end + 2 * s_per_pt)
+            mode, iv = "left", (start - m - g - w - pad, bar_end + m + pad)
         for r, ivs in enumerate(rows):
             if all(iv[1] <= a or iv[0] >= b for a, b in ivs):
                 ivs.append(iv)
@@ -252,13 +267,14 @@ def _place(items, t0: float, t1: float, width_in: float, fontsize: float, max_ro
     return out, max(len(rows), 1)
 
 
-def _label_x(start, end, mode, s_per_pt, t0, t1):
+def _label_x(start, end, mode, s_per_pt, t0, t1, marker_pt: float = 0.0, gap_pt: float = 3.0):
+    """(x, horizontal alignment) of a label placed by `_place` with the same `marker_pt` and `gap_pt`."""
     start, end = max(start, t0), min(max(end, start), t1)
     if mode == "inside":
         return (start + end) / 2, "center"
     if mode == "right":
-        return max(end, start + 1.5 * s_per_pt) + 3 * s_per_pt, "left"
-    return start - 3 * s_per_pt, "right"
+        return max(end, start + 1.5 * s_per_pt) + (marker_pt + gap_pt) * s_per_pt, "left"
+    return start - (marker_pt + gap_pt) * s_per_pt, "right"
 
 
 def _cluster_blocks(blocks, t0, t1, width_in, small_pt=12.0, near_pt=40.0):
@@ -361,7 +377,8 @@ def _style_time_axis(axes, t0: float, t1: float, top_ax, bottom_ax):
         ax.xaxis.set_major_locator(MaxNLocator(nbins=12, steps=[1, 2, 2.5, 5, 10]))
         ax.xaxis.set_major_formatter(fmt)
         ax.tick_params(axis="x", labelbottom=False, labeltop=False, bottom=False, top=False, labelsize=TICK_PT + 0.5)
-        ax.grid(axis="x", color="#d9d9d9", linewidth=0.5)
+        if ax.get_label() != "not-written":  # no grid over the line of outputs left out
+            ax.grid(axis="x", color="#d9d9d9", linewidth=0.5)
         ax.set_axisbelow(True)
     label = f"time [{unit}]" if not offset else f"time - {_fmt_seconds(offset)} [{unit}]"
     bottom_ax.tick_params(axis="x", labelbottom=True, bottom=True)
@@ -370,9 +387,16 @@ def _style_time_axis(axes, t0: float, t1: float, top_ax, bottom_ax):
     return label
 
 
-def _lane_label(ax, text: str, colour: str, bold: bool = False):
-    ax.annotate(text, xy=(0, 0.5), xycoords="axes fraction", xytext=(-34, 0), textcoords="offset points",
-                ha="right", va="center", fontsize=LABEL_PT, color=colour, fontweight="bold" if bold else "normal")
+NOTE_PT = 6.0  # the small lane note under a lane label (e.g. a latency)
+
+
+def _lane_label(ax, text: str, colour: str, bold: bool = False, note: str | None = None):
+    ax.annotate(text, xy=(0, 0.5), xycoords="axes fraction", xytext=(-34, 3 if note else 0),
+                textcoords="offset points", ha="right", va="center", fontsize=LABEL_PT, color=colour,
+                fontweight="bold" if bold else "normal")
+    if note:
+        ax.annotate(note, xy=(0, 0.5), xycoords="axes fraction", xytext=(-34, -5), textcoords="offset points",
+                    ha="right", va="center", fontsize=NOTE_PT, color="#555555", gid="lane-note")
 
 
 def _blank(ax):
@@ -463,7 +487,8 @@ def _findings_layout(shown, t0, t1, width_in, near_pt=10.0, max_rows=4):
             items.append((g[0].time_s, g[-1].time_s, text, g))
         else:
             items.extend((f.time_s, f.time_s, f.code + (" (accepted)" if f.accepted else ""), [f]) for f in g)
-    placed, nrows = _place([(a, b, text) for a, b, text, _ in items], t0, t1, width_in, 6.5, max_rows=max_rows)
+    placed, nrows = _place([(a, b, text) for a, b, text, _ in items], t0, t1, width_in, 6.5, max_rows=max_rows,
+                           marker_pt=FINDING_MARKER_PT / 2 + 1, gap_pt=4.0, inside=False)
     return items, placed, nrows
 
 
@@ -474,11 +499,12 @@ def _draw_findings(ax, t0, t1, width_in, layout, hidden: int):
         y = nrows - 1 - r + 0.5
         for f in members:
             colour, marker = SEVERITY_STYLE.get(f.severity, SEVERITY_STYLE["note"])
-            (mk,) = ax.plot([f.time_s], [y], linestyle="none", marker=marker, markersize=6.5,
-                            markerfacecolor="none" if f.accepted else colour, markeredgecolor=colour, clip_on=False)
+            (mk,) = ax.plot([f.time_s], [y], linestyle="none", marker=marker, markersize=FINDING_MARKER_PT,
+                            markerfacecolor="none" if f.accepted else colour, markeredgecolor=colour, clip_on=False,
+                            zorder=SEVERITY_ZORDER.get(f.severity, 3))  # a shared spot shows the worst on top
             mk.set_gid(f"finding:{f.severity}:{f.code}")
         colour = SEVERITY_STYLE.get(members[0].severity, SEVERITY_STYLE["note"])[0]
-        x, ha = _label_x(start, end, "left" if mode == "left" else "right", 2.5 * s_per_pt, t0, t1)
+        x, ha = _label_x(start, end, mode, s_per_pt, t0, t1, marker_pt=FINDING_MARKER_PT / 2 + 1, gap_pt=4.0)
         ax.text(x, y, text, ha=ha, va="center", fontsize=6.5, color=colour, clip_on=False)
     ax.set_ylim(0, nrows)
     _blank(ax)
@@ -540,7 +566,7 @@ def _style_lane(ax, out, colour, scale_unit, ylim, flat=None):
         ax.yaxis.set_major_locator(FixedLocator([0, 1]))
         ax.set_yticklabels(["off", "on"])
     elif flat is not None:
-        ax.yaxis.set_major_locator(FixedLocator([flat]))
+        ax.yaxis.set_major_locator(FixedLocator([_round_tick(flat, ylim)]))
     else:
         ax.yaxis.set_major_locator(MaxNLocator(nbins=2, min_n_ticks=2))
     # the output unit on a secondary axis where a calibration maps the physical quantity to it
@@ -553,7 +579,7 @@ def _style_lane(ax, out, colour, scale_unit, ylim, flat=None):
 
         sec = ax.secondary_yaxis("right", functions=(fwd, inv))
         if flat is not None:
-            sec.yaxis.set_major_locator(FixedLocator([float(fwd(flat))]))
+            sec.yaxis.set_major_locator(FixedLocator([_round_tick(float(fwd(flat)), tuple(fwd(np.asarray(ylim))))]))
         else:
             sec.yaxis.set_major_locator(MaxNLocator(nbins=2, min_n_ticks=2))
         sec.yaxis.set_major_formatter(plain)
@@ -586,6 +612,35 @@ def _ylim(arrays, kind, full=None, min_span: float = 0.0):
         return lo - pad, hi + pad
     pad = 0.12 * (hi - lo)
     return lo - pad, hi + pad
+
+
+def _round_tick(value: float, ylim) -> float:
+    """The round number nearest `value` among the ticks a lane of limits `ylim` would get (0, 100, 0.25 ...):
+    the one tick of a flat lane reads "0", not the DAC code's "0.0763"."""
+    from matplotlib.ticker import MaxNLocator
+
+    lo, hi = sorted(float(y) for y in ylim)
+    if not (math.isfinite(lo) and math.isfinite(hi)) or hi <= lo:
+        return value
+    ticks = [t for t in MaxNLocator(nbins=4, steps=[1, 2, 2.5, 5, 10]).tick_values(lo, hi) if lo <= t <= hi]
+    if not ticks:
+        return value
+    best = min(ticks, key=lambda t: (abs(t - value), abs(t)))
+    return 0.0 if abs(best) < 1e-12 * (hi - lo) else float(best)
+
+
+def _nearly_flat(values, ylim, share: float = 0.02):
+    """The middle value of a lane whose values in the window span at most `share` of its height (a flat lane,
+    or one that moves by a few DAC codes only), else None."""
+    v = np.asarray(values, float)
+    v = v[np.isfinite(v)]
+    if not len(v):
+        return None
+    lo, hi = float(np.min(v)), float(np.max(v))
+    height = abs(float(ylim[1]) - float(ylim[0]))
+    if hi - lo <= share * height or hi - lo <= 1e-9 * max(abs(lo), abs(hi), 1e-30):
+        return (lo + hi) / 2
+    return None
 
 
 def _flat(values):
@@ -728,6 +783,7 @@ def _draw_freq(ax, trap):
 def _draw_clouds(ax, clouds, t0, t1, width_in):
     s_per_pt = (t1 - t0) / (width_in * 72.0)
     lo = hi = 0.0
+    texts = []
     for c in clouds:
         cl = c["cloud"]
         tr = np.linspace(c["release"], c["t"], 60)
@@ -758,12 +814,22 @@ def _draw_clouds(ax, clouds, t0, t1, width_in):
             ax.axhline(mid - half, color="#6f8f62", linewidth=0.6)
             lo = min(lo, mid - half)
         lo = min(lo, centre - edge * 1e3)
-        txt = (f"{c['name']}: time of flight {_fmt_seconds(cl['tof'])}, centre {cl['drop'] * 1e3:.3g} mm below "
-               f"release, {cl['size_kind']} {cl['size'] * 1e6:.3g} um")
-        right = c["t"] > t0 + 0.6 * (t1 - t0)
-        ax.text(c["t"] + (-8 if right else 8) * s_per_pt, centre, txt, ha="right" if right else "left", va="center",
-                fontsize=6.5, color="#5e2452", clip_on=True)
-    ax.set_ylim(lo * 1.25 if lo < 0 else -1.0, max(abs(lo) * 0.6 + 0.1, hi * 1.15))
+        hi = max(hi, centre + edge * 1e3)
+        texts.append((c["t"], c["t"], f"{c['name']}: time of flight {_fmt_seconds(cl['tof'])}, centre "
+                      f"{cl['drop'] * 1e3:.3g} mm below release, {cl['size_kind']} {cl['size'] * 1e6:.3g} um"))
+    # the texts go in a band of their own above everything drawn (trajectory, markers, state labels), in rows
+    # placed so that they overlap neither each other nor the image markers
+    placed, nrows = _place(texts, t0, t1, width_in, 6.5, max_rows=3, marker_pt=6.0, gap_pt=4.0, inside=False)
+    y_lo = lo * 1.25 if lo < 0 else -1.0
+    y_data = max(abs(lo) * 0.6 + 0.1, hi * 1.15)
+    band = min(CLOUD_TEXT_ROW_PT * nrows / (72.0 * CLOUD_PANEL_IN), 0.5)
+    ax.set_ylim(y_lo, y_data + (y_data - y_lo) * band / (1 - band))
+    trans = ax.get_xaxis_transform()
+    for (start, end, txt), (r, mode) in zip(texts, placed):
+        x, ha = _label_x(start, end, mode, s_per_pt, t0, t1, marker_pt=6.0, gap_pt=4.0)
+        y = 1 - (r + 0.5) * CLOUD_TEXT_ROW_PT / (72.0 * CLOUD_PANEL_IN)
+        ax.text(x, y, txt, ha=ha, va="center", fontsize=6.5, color="#5e2452", clip_on=True, transform=trans,
+                gid="cloud-text")
     ax.set_label("physics:cloud")
     _style_panel(ax, "#9c3c86")
     _lane_label(ax, "cloud height [mm]", "#9c3c86")
@@ -786,7 +852,8 @@ def _notes_layout(notes, t0, t1, width_in, near_pt=14.0):
             items.append((notes[g[0]]["time_s"], notes[g[-1]]["time_s"], text, g))
         else:
             items.extend((notes[k]["time_s"], notes[k]["time_s"], f"{k + 1} {notes[k]['kind']}", [k]) for k in g)
-    placed, nrows = _place([(a, b, text) for a, b, text, _ in items], t0, t1, width_in, 6.5, max_rows=4)
+    placed, nrows = _place([(a, b, text) for a, b, text, _ in items], t0, t1, width_in, 6.5, max_rows=4,
+                           marker_pt=NOTE_MARKER_PT / 2 + 1, gap_pt=4.0, inside=False)
     return items, placed, nrows, notes
 
 
@@ -796,10 +863,10 @@ def _draw_notes(ax, t0, t1, width_in, layout):
     for (start, end, text, members), (r, mode) in zip(items, placed):
         y = nrows - 1 - r + 0.5
         for k in members:
-            (mk,) = ax.plot([notes[k]["time_s"]], [y], marker="D", markersize=4, color="#1d8a78", linestyle="none",
+            (mk,) = ax.plot([notes[k]["time_s"]], [y], marker="D", markersize=NOTE_MARKER_PT, color="#1d8a78", linestyle="none",
                             clip_on=False)
             mk.set_gid(f"note:{k + 1}")
-        x, ha = _label_x(start, end, "left" if mode == "left" else "right", 2.5 * s_per_pt, t0, t1)
+        x, ha = _label_x(start, end, mode, s_per_pt, t0, t1, marker_pt=NOTE_MARKER_PT / 2 + 1, gap_pt=4.0)
         ax.text(x, y, text, ha=ha, va="center", fontsize=6.5, color="#14584d", clip_on=False)
     ax.set_ylim(0, nrows)
     _blank(ax)
@@ -853,11 +920,71 @@ def _left_margin(names, extra=()):
     return min(0.55 + longest * LABEL_PT * 0.62 / 72, 3.4)
 
 
+def written_outputs(shot) -> set:
+    """Outputs the shot writes at least once (every other output holds its safe value all shot)."""
+    return {seg.output for seg in shot.segments}
+
+
+def _drop_unwritten(names, written, all_lanes):
+    """(lanes to draw, outputs left out): outputs never written are left out unless `all_lanes` (or unless
+    nothing would be left to draw)."""
+    if all_lanes:
+        return list(names), []
+    kept = [n for n in names if n in written]
+    if not kept:
+        return list(names), []
+    return kept, [n for n in names if n not in written]
+
+
+def _unwritten_lines(names) -> list[str]:
+    if not names:
+        return []
+    text = "not written (at the safe value all shot; --all-lanes draws them): " + ", ".join(names)
+    return textwrap.wrap(text, 150, subsequent_indent="    ") or [text]
+
+
+def _draw_unwritten(ax, lines):
+    _blank(ax)
+    ax.set_ylim(0, 1)
+    ax.set_label("not-written")
+    ax.tick_params(axis="x", length=0)
+    for k, line in enumerate(lines):
+        ax.annotate(line, xy=(0, 1), xycoords="axes fraction", xytext=(0, -2 - 9 * k), textcoords="offset points",
+                    ha="left", va="top", fontsize=6.5, color="#555555")
+
+
+DENSE_SHARE = 0.05  # "dense final part": more than half of the blocks start in the last 5 % of the window
+
+
+def dense_hint(blocks, t0: float, t1: float):
+    """((a, b), text) when more than half of the blocks in the window start in its last 5 %: a zoom window
+    rounded outwards to a round step, and a hint naming the --from (and --to) that shows them; else None."""
+    visible = [b for b in blocks if b.end_s >= t0 and b.start_s <= t1]
+    span = t1 - t0
+    if len(visible) < 4 or span <= 0:
+        return None
+    late = [b for b in visible if b.start_s >= t1 - DENSE_SHARE * span]
+    if 2 * len(late) <= len(visible):
+        return None
+    a = min(b.start_s for b in late)
+    e = min(max(b.end_s for b in late), t1)
+    step = 10 ** math.floor(math.log10(max(e - a, span * 1e-6)))
+    lo = max(t0, math.floor(a / step + 1e-9) * step)
+    hi = math.ceil(e / step - 1e-9) * step
+    cmd = f"--from '{_fmt_seconds(lo)}'" + (f" --to '{_fmt_seconds(hi)}'" if hi < t1 else "")
+    text = (f"most blocks ({len(late)} of {len(visible)}) fall in {_fmt_seconds(lo)} to "
+            f"{_fmt_seconds(min(hi, t1))}: use {cmd} to see them apart")
+    return (lo, min(hi, t1)), text
+
+
 def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, channels=None, physics: bool = True,
-                    intended: bool = True, title: str | None = None, subtitle: str | None = None):
+                    intended: bool = True, title: str | None = None, subtitle: str | None = None,
+                    all_lanes: bool = False, hints: bool = True):
     """The timeline of one shot as a matplotlib Figure (see the module docstring).
 
     `subtitle`: lines under the title, e.g. which shot of a scan this is and with which param values.
+    Outputs the shot never writes get no lane (they are named in one line under the lanes) unless `all_lanes`.
+    `hints`: a line under the title when most blocks crowd the end of the window (see `dense_hint`).
 
     Axes carry labels for tools and tests: "blocks", "findings", "device:<name>", "lane:<output>",
     "physics:trap-depth", "physics:trap-frequencies", "physics:cloud", "physics:notes".
@@ -865,15 +992,25 @@ def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, chan
     from ..findings import summary
 
     t0, t1 = _window(shot, t_from, t_to)
-    names = select_outputs(shot.rig, channels)
+    names, unwritten = _drop_unwritten(select_outputs(shot.rig, channels), written_outputs(shot), all_lanes)
     cols = _columns(compiled)
     shown = _finding_items(findings, t0, t1)
     hidden = len(list(findings)) - len(shown)
     groups = _lanes_by_device(shot.rig, names)
     phys = _physics(shot, t0, t1) if physics else {"trap": [], "clouds": [], "notes": []}
 
-    left = _left_margin(names, ["trap frequencies [Hz]", "trap depth / k_B [uK]"])
+    width_guess = FIG_WIDTH_IN - _left_margin(names) - 0.75
+    notes = {n: latency_note(shot.rig.outputs[n], t0, t1, width_guess) for n in names if n in cols}
+    notes = {n: v for n, v in notes.items() if v}
+    # a lane note is NOTE_PT / LABEL_PT as wide per character as a lane label
+    extra = ["trap frequencies [Hz]", "trap depth / k_B [uK]"] + \
+        ["x" * math.ceil(len(v) * NOTE_PT / LABEL_PT) for v in notes.values()]
+    left = _left_margin(names, extra)
     width_in = FIG_WIDTH_IN - left - 0.75
+    hint = dense_hint(shot.blocks, t0, t1) if hints else None
+    if hint is not None:
+        subtitle = (subtitle + "\n" if subtitle else "") + hint[1]
+    unwritten_lines = _unwritten_lines(unwritten)
     blay = _blocks_layout(shot.blocks, t0, t1, width_in)
     rows = [_Row("blocks", 0.22 * blay[2] + 0.06)]
     flay = _findings_layout(shown, t0, t1, width_in)
@@ -882,12 +1019,14 @@ def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, chan
     for dev, outs in groups:
         rows.append(_Row("header", HEADER_IN, dev))
         rows.extend(_Row("lane", LANE_IN.get(shot.rig.outputs[n].kind, 0.5), n) for n in outs)
+    if unwritten_lines:
+        rows.append(_Row("unwritten", 0.04 + 0.125 * len(unwritten_lines), unwritten_lines))
     if phys["trap"] or phys["clouds"] or phys["notes"]:
         rows.append(_Row("header", HEADER_IN, None))
     if phys["trap"]:
         rows += [_Row("depth", 0.8), _Row("freq", 0.9)]
     if phys["clouds"]:
-        rows.append(_Row("cloud", 0.8))
+        rows.append(_Row("cloud", CLOUD_PANEL_IN))
     nlay = _notes_layout(phys["notes"], t0, t1, width_in)
     if phys["notes"]:
         rows.append(_Row("notes", 0.2 * nlay[2] + 0.08))
@@ -917,9 +1056,11 @@ def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, chan
             out = shot.rig.outputs[row.payload]
             colour = dev_colour.get(out.device, "#444444")
             _shade_blocks(ax, shot.blocks, t0, t1)
-            _draw_lane(ax, shot, out, cols.get(out.name), t0, t1, colour, intended)
+            _draw_lane(ax, shot, out, cols.get(out.name), t0, t1, colour, intended, note=notes.get(out.name))
             _finding_lines(ax, shown)
             lanes_ax.append(ax)
+        elif row.kind == "unwritten":
+            _draw_unwritten(ax, row.payload)
         elif row.kind == "depth":
             _shade_blocks(ax, shot.blocks, t0, t1)
             _draw_depth(ax, phys["trap"], "#1d8a78")
@@ -932,13 +1073,26 @@ def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, chan
         elif row.kind == "notes":
             _draw_notes(ax, t0, t1, width_in, nlay)
     _style_time_axis(axes, t0, t1, axes[0], axes[-1])
-    _legend(fig, shown, intended, diff=False)
+    _legend(fig, shown, intended, diff=False, early=bool(notes))
     fig.seqgen_info = {"window": (t0, t1), "lanes": [r.payload for r in rows if r.kind == "lane"],
-                       "findings_shown": len(shown)}
+                       "findings_shown": len(shown), "not_written": list(unwritten), "latency_notes": dict(notes),
+                       "hint": hint[1] if hint else None, "dense_window": hint[0] if hint else None}
     return fig
 
 
-def _draw_lane(ax, shot, out, col, t0, t1, colour, intended):
+def latency_note(out, t0: float, t1: float, width_in: float) -> str | None:
+    """The lane note of an output whose channel table is sent early by its latency, when the shift shows in the
+    window (at least one point wide), e.g. "command 3.2 ms early on, 2.1 ms early off (latency)"."""
+    rise, fall = float(out.latency_rise_s or 0.0), float(out.latency_fall_s or 0.0)
+    s_per_pt = (t1 - t0) / (width_in * 72.0)
+    if max(rise, fall) < s_per_pt:
+        return None
+    if rise == fall:
+        return f"command {_fmt_seconds(rise)} early (latency)"
+    return f"command {_fmt_seconds(rise)} early on, {_fmt_seconds(fall)} early off (latency)"
+
+
+def _draw_lane(ax, shot, out, col, t0, t1, colour, intended, note=None):
     arrays = []
     model = shot.rig.devices[out.device].output_model if out.device in shot.rig.devices else "hold"
     hw = (np.zeros(0), np.zeros(0))
@@ -952,24 +1106,26 @@ def _draw_lane(ax, shot, out, col, t0, t1, colour, intended):
     peak = max(abs(ylim[0]), abs(ylim[1])) * 0.9  # the prefix fits what the lane shows, padding aside
     scale = _display_scale(peak, out.phys_unit if out.kind != "digital" else "")
     factor = scale[0]
+    early = note is not None  # the table is the command, sent early: the dashed curve is when the output acts
     if len(hw[0]):
         t, v = _decimate(hw[0], hw[1] / factor, t0, t1)
-        line = _step(ax, t, v, model, t1, color=colour, linewidth=1.3, zorder=3)
+        line = _step(ax, t, v, model, t1, color=colour, linewidth=1.1 if early else 1.3, zorder=3,
+                     alpha=0.7 if early else 1.0)
         line.set_gid(f"table:{out.name}")
         if out.kind == "digital":
-            ax.fill_between(np.r_[t, max(t1, t[-1])], np.r_[v, v[-1]], step="post", color=colour, alpha=0.18,
-                            linewidth=0, zorder=2)
+            ax.fill_between(np.r_[t, max(t1, t[-1])], np.r_[v, v[-1]], step="post", color=colour,
+                            alpha=0.1 if early else 0.18, linewidth=0, zorder=2)
     if intended and len(it[0]):
-        (line,) = ax.plot(it[0], it[1] / factor, color=INTENDED_COLOUR, linewidth=0.8, linestyle=(0, (4, 2)),
-                          alpha=0.75, zorder=3.5)
+        (line,) = ax.plot(it[0], it[1] / factor, color=INTENDED_COLOUR, linewidth=1.0 if early else 0.8,
+                          linestyle=(0, (4, 2)), alpha=0.95 if early else 0.75, zorder=3.5)
         line.set_gid(f"intended:{out.name}")
-    _style_lane(ax, out, colour, scale, ylim if out.kind == "digital" else (ylim[0] / factor, ylim[1] / factor),
-                _flat(hw[1] / factor if len(hw[0]) else it[1] / factor))
+    dlim = ylim if out.kind == "digital" else (ylim[0] / factor, ylim[1] / factor)
+    _style_lane(ax, out, colour, scale, dlim, _nearly_flat(hw[1] / factor if len(hw[0]) else it[1] / factor, dlim))
     ax.set_label(f"lane:{out.name}")
-    _lane_label(ax, out.name + (f" [{scale[1]}]" if scale[1] else ""), colour)
+    _lane_label(ax, out.name + (f" [{scale[1]}]" if scale[1] else ""), colour, note=note)
 
 
-def _legend(fig, shown, intended, diff):
+def _legend(fig, shown, intended, diff, early=False):
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
@@ -979,10 +1135,13 @@ def _legend(fig, shown, intended, diff):
                     Line2D([], [], color=DEVICE_COLOURS[0], linewidth=1.3, label="new"),
                     Patch(color=DIFF_COLOUR, alpha=0.45, label="outputs differ")]
     else:
-        handles.append(Line2D([], [], color=DEVICE_COLOURS[0], linewidth=1.3, label="channel table (as output)"))
+        label = "channel table (command; sent early where a lane notes a latency)" if early else \
+            "channel table (as output)"
+        handles.append(Line2D([], [], color=DEVICE_COLOURS[0], linewidth=1.3, label=label))
         if intended:
             handles.append(Line2D([], [], color=INTENDED_COLOUR, linewidth=0.8, linestyle=(0, (4, 2)),
-                                  label="intended (sequence)"))
+                                  label="intended (sequence: when the output acts)" if early else
+                                  "intended (sequence)"))
     handles.append(Patch(facecolor=BLOCK_TINTS[0], edgecolor="#7d8a99", label="block"))
     for sev in ("error", "warning", "note"):
         if any(f.severity == sev for f in shown):
@@ -1059,8 +1218,10 @@ def diff_windows(old_shot, old_compiled, new_shot, new_compiled) -> dict:
 
 def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="old", new_label="new",
                 t_from=None, t_to=None, channels=None, findings=(), title: str | None = None,
-                subtitle: str | None = None):
-    """Overlay two versions of a sequence, one lane per output, with the windows where they differ."""
+                subtitle: str | None = None, all_lanes: bool = False):
+    """Overlay two versions of a sequence, one lane per output, with the windows where they differ.
+
+    Outputs that neither version writes get no lane unless `all_lanes` (they are named under the lanes)."""
     end = max(old_shot.duration_s, new_shot.duration_s) or 1e-3
     t0 = 0.0 if t_from is None else float(t_from)
     t1 = end if t_to is None else float(t_to)
@@ -1075,6 +1236,9 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
     else:
         names += [n for n in old_shot.rig.outputs if n not in names]
     windows = diff_windows(old_shot, old_compiled, new_shot, new_compiled)
+    names, unwritten = _drop_unwritten(names, written_outputs(old_shot) | written_outputs(new_shot) | set(windows),
+                                       all_lanes)
+    unwritten_lines = _unwritten_lines(unwritten)
     oc, nc = _columns(old_compiled), _columns(new_compiled)
     rig_of = {n: (new_shot.rig if n in new_shot.rig.outputs else old_shot.rig) for n in names}
     groups: dict[str, list] = {}
@@ -1092,6 +1256,8 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
     for dev, outs in groups.items():
         rows.append(_Row("header", HEADER_IN, dev))
         rows.extend(_Row("lane", LANE_IN.get(rig_of[n].outputs[n].kind, 0.5), n) for n in outs)
+    if unwritten_lines:
+        rows.append(_Row("unwritten", 0.04 + 0.125 * len(unwritten_lines), unwritten_lines))
     changed = [n for n in names if n in windows]
     foot = [f"old: {old_label}", f"new: {new_label}",
             (f"{len(changed)} output(s) differ: " + ", ".join(changed)) if changed else "no output differs"]
@@ -1147,16 +1313,19 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
                     line = _step(ax, td, vd, model, t1, color=colour, linewidth=1.1, zorder=3.2)
                 if line is not None:
                     line.set_gid(f"{style}:{n}")
-            flat = _flat(np.concatenate([a / scale[0] for a in arrays])) if arrays else None
-            _style_lane(ax, out, colour, scale, ylim if out.kind == "digital" else (ylim[0] / scale[0], ylim[1] / scale[0]),
-                        flat)
+            dlim = ylim if out.kind == "digital" else (ylim[0] / scale[0], ylim[1] / scale[0])
+            flat = _nearly_flat(np.concatenate([a / scale[0] for a in arrays]), dlim) if arrays else None
+            _style_lane(ax, out, colour, scale, dlim, flat)
             ax.set_label(f"lane:{n}")
             _lane_label(ax, n + (f" [{scale[1]}]" if scale[1] else "") + ("  *" if n in windows else ""),
                         colour, bold=n in windows)
             _finding_lines(ax, shown)
+        elif row.kind == "unwritten":
+            _draw_unwritten(ax, row.payload)
     _style_time_axis(axes, t0, t1, axes[0], axes[-1])
     _legend(fig, shown, False, diff=True)
-    fig.seqgen_info = {"window": (t0, t1), "lanes": names, "differs": {k: v for k, v in windows.items()}}
+    fig.seqgen_info = {"window": (t0, t1), "lanes": names, "differs": {k: v for k, v in windows.items()},
+                       "not_written": list(unwritten)}
     return fig
 
 
