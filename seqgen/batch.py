@@ -54,8 +54,9 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .findings import SEVERITIES, Finding, has_errors, make, sort_findings, summary
+from .findings import SEVERITIES, Finding, SourcePos, has_errors, make, sort_findings, summary
 from .load.yamlsrc import LoadError
+from .model import Rig, Shot
 from .registry import declare
 from .resolve.scan import ScanPlan, expand, has_scans
 from .resolve.sequence import Sources, load_sources, resolve
@@ -158,8 +159,14 @@ class _Task:
     crash: str | None = None  # tests only: "raise" or "exit"
 
 
+_PATH_HOLDERS = (SourcePos, Shot, Rig)  # their `file` is where the text sits, not what it says
+
+
 def shot_key(shot) -> str:
-    """sha256 of a resolved shot (without its source-file hashes) and the tool version."""
+    """sha256 of a resolved shot (without its source-file hashes) and the tool version.
+
+    Positions enter by line and column, not by file path: the same sequence checked from another folder
+    (a colleague's clone, a moved build) is the same shot."""
     h = hashlib.sha256(f"seqgen {__version__}\n".encode())
     _feed(h, shot, skip=("sources",))
     return h.hexdigest()
@@ -180,7 +187,7 @@ def _feed(h, obj, skip=()) -> None:
     elif is_dataclass(obj) and not isinstance(obj, type):
         h.update(b"D" + type(obj).__name__.encode() + b"{")
         for f in fields(obj):
-            if f.name in skip:
+            if f.name in skip or (f.name == "file" and isinstance(obj, _PATH_HOLDERS)):
                 continue
             h.update(f.name.encode() + b"=")
             _feed(h, getattr(obj, f.name))

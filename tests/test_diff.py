@@ -353,14 +353,90 @@ def test_a_scan_build_folder_points_to_its_shots(tmp_path, capsys):
     old = _version_folder(tmp_path, "old", "small.yaml", {"small.yaml": [["  tof: 5 ms", "  tof: {value: 5 ms, scan: [4 ms, 6 ms]}"]]})
     assert main(["build", str(old), "-o", str(tmp_path / "b")]) == 0
     capsys.readouterr()
-    assert main(["diff", str(tmp_path / "b"), str(tmp_path / "b")]) == 2
-    err = capsys.readouterr().err
-    assert "build of a scan" in err and "shot_0000" in err
+    assert main(["diff", str(tmp_path / "b"), str(tmp_path / "b")]) == 0  # a scan build against itself
+    assert "no differences" in capsys.readouterr().out
+    # against one shot's build or a sequence file: one line, exit 2 (the command could not run, GLOSSARY exit codes)
+    for other in (tmp_path / "b" / "shot_0001", old):
+        assert main(["diff", str(tmp_path / "b"), str(other)]) == 2
+        err = capsys.readouterr().err
+        assert "build of a scan" in err and "shot_0000" in err and len(err.strip().splitlines()) == 1
     # one shot's folder is an ordinary build: the two shots differ by the 2 ms of flight (the edit above)
     assert main(["diff", str(tmp_path / "b" / "shot_0000"), str(tmp_path / "b" / "shot_0001"), "--json"]) == 1
     out = json.loads(capsys.readouterr().out)
     dur = [c for c in out["changes"] if c["kind"] == "duration-changed"]
     assert dur and dur[0]["data"]["new_s"] - dur[0]["data"]["old_s"] == pytest.approx(0.002, abs=1e-9)
+
+
+def _scan_builds(tmp_path, old_edits, new_edits):
+    """Build the old version, edit the same file in place and build the new one (a shot's input hash includes its
+    file path and positions, README "Parameter scans", so both are built from one path)."""
+    src = _version_folder(tmp_path, "v", "small.yaml", old_edits)
+    main(["build", str(src), "-o", str(tmp_path / "b_old")])
+    _version_folder(tmp_path, "edited", "small.yaml", new_edits)
+    shutil.copy(tmp_path / "edited" / "small.yaml", src)
+    main(["build", str(src), "-o", str(tmp_path / "b_new")])
+    return tmp_path / "b_old", tmp_path / "b_new"
+
+
+def test_scan_builds_match_shots_by_param_values(tmp_path, capsys):
+    """Old scan tof 4, 6, 8 ms; new 8, 6, 4, 10 ms (reordered, extended) with min: 5 ms, so 4 ms is refused.
+    Expected from the edit: shots pair by tof, not by index (8 ms: old shot 2, new shot 0); 10 ms is new; 4 ms went
+    built -> refused with one error (schema.param-out-of-range, README "Bounds"); the resolved shots of 6 and 8 ms are
+    the same (the edit touches only the scan list and the bound, which the shot does not carry), while their build
+    manifests differ (a manifest records the sha256 of the edited source file, README "Builds")."""
+    old, new = _scan_builds(tmp_path, {"small.yaml": [["  tof: 5 ms", "  tof: {value: 5 ms, scan: [4 ms, 6 ms, 8 ms]}"]]},
+                            {"small.yaml": [["  tof: 5 ms", "  tof: {value: 5 ms, scan: [8 ms, 6 ms, 4 ms, 10 ms], min: 5 ms}"]]})
+    capsys.readouterr()
+    rep = diff_paths(str(old), str(new))
+    jsonschema.validate(to_dict(rep), SCHEMA)
+    assert _entries(rep) == Counter(["resolved scan-values tof", "resolved scan-shots scan",
+                                     "resolved scan-shot-added tof=10 ms", "resolved scan-shot-changed tof=4 ms",
+                                     "output scan-shot-output tof=6 ms", "output scan-shot-output tof=8 ms"])
+    assert rep.find(kind="scan-shots")[0].data["shots_new"] == 4
+    (refused,) = rep.find(kind="scan-shot-changed")
+    assert (refused.data["old"]["status"], refused.data["new"]["status"]) == ("built", "refused")
+    assert (refused.data["old"]["findings"]["error"], refused.data["new"]["findings"]["error"]) == (0, 1)
+    assert refused.data["new"]["input_sha256"] is None and refused.data["status_changed"]
+    (eight,) = rep.find("output", "scan-shot-output", "tof=8 ms")
+    assert (eight.data["old"]["index"], eight.data["new"]["index"]) == (2, 0)
+    assert eight.data["old"]["input_sha256"] == eight.data["new"]["input_sha256"]
+    assert eight.data["devices"] == []  # same tables
+    assert eight.data["params"] == {"tof": {"value": pytest.approx(0.008, rel=1e-12), "unit": "s"}}
+    (added,) = rep.find(kind="scan-shot-added")
+    assert added.data["new"]["index"] == 3 and added.data["old"] is None
+    note = next(n for n in rep.notes if "per-shot details" in n)
+    assert f"seqgen diff {old / 'shot_0002'} {new / 'shot_0000'}" in note  # the first changed pair, 8 ms
+    assert main(["diff", str(old), str(new)]) == 1
+    text = capsys.readouterr().out
+    assert "shot tof=10 ms only in the new scan" in text and "built -> refused" in text
+
+
+def test_scan_build_with_a_broken_scan_json(tmp_path, capsys):
+    """A hand-edited scan.json is a one-line refusal (exit 2), never a traceback."""
+    for body in ('{"format": "seqgen-scan", "scan": {"params": [{"name": "tof"}]}, "shots": []}', "{not json",
+                 '{"format": "seqgen-scan", "scan": {"params": [{"name": "tof", "unit": "zorkmids", "kind": "list",'
+                 ' "values": [1]}], "combine": "grid", "nest": ["tof"], "order": "written", "seed": null}, "shots": []}'):
+        folder = tmp_path / f"s{len(body)}"
+        folder.mkdir()
+        (folder / "scan.json").write_text(body, encoding="utf-8")
+        assert main(["diff", str(folder), str(folder)]) == 2
+        err = capsys.readouterr().err
+        assert err.startswith("seqgen: ") and "Traceback" not in err
+
+
+def test_bound_computed_from_a_param_follows_it(tmp_path):
+    """max: 2 * kick_time + 2 ms with kick_time 2 ms -> 3 ms: the bound's text is the same, its value 6 ms -> 8 ms
+    (arithmetic of the edit)."""
+    bound = [["  tof: 5 ms", "  tof: {value: 5 ms, max: 2 * kick_time + 2 ms}"]]
+    old = _version_folder(tmp_path, "old", "small.yaml", {"small.yaml": bound})
+    new = _version_folder(tmp_path, "new", "small.yaml", {"small.yaml": bound + [["kick_time: 2 ms", "kick_time: 3 ms"]]})
+    rep = diff_paths(str(old), str(new))
+    (c,) = rep.find("resolved", "param-bounds", "tof")
+    assert c.data["old"]["max"]["value"] == pytest.approx(0.006, rel=1e-12)
+    assert c.data["new"]["max"]["value"] == pytest.approx(0.008, rel=1e-12)
+    assert c.data["old"]["min"] is None and c.data["new"]["max"]["text"] == "2 * kick_time + 2 ms"
+    assert "(via kick_time)" in c.message
+    jsonschema.validate(to_dict(rep), SCHEMA)
 
 
 def test_exit_codes_and_json(tmp_path, capsys):

@@ -317,6 +317,22 @@ def test_resume_rebuilds_only_what_changed(tmp_path):
     assert shorter.stats["reused"] == 3 and not (out / "shot_0003").exists()
 
 
+def test_input_hashes_do_not_depend_on_where_the_project_sits(tmp_path):
+    # the same files in two folders: the same shots (a colleague's clone must resume, and diff as unchanged)
+    import shutil
+
+    hashes = []
+    for where in ("a", "b/deeper"):
+        folder = tmp_path / where
+        (folder / "rigs").mkdir(parents=True)
+        shutil.copy(RIG, folder / "rigs" / "rig.yaml")
+        (folder / "pyproject.toml").write_text("", encoding="utf-8")
+        p = _seq(folder, ["b: {value: 0 s, scan: [1 ms, 2 ms]}"])
+        p.write_text(p.read_text().replace(f"rig: {RIG}", "rig: rigs/rig.yaml"))
+        hashes.append([r.input_sha256 for r in run_scan(plan_scan(p), jobs=1).shots])
+    assert hashes[0] == hashes[1] and len(set(hashes[0])) == 2
+
+
 def _tree(folder):
     return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
 

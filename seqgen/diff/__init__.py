@@ -13,6 +13,9 @@ diff runs the pipeline on both versions and compares four levels:
 - rig: calibration, limits, latency, ranges, devices, geometry, with the
   outputs each change affects.
 
+Two scan build folders (scan.json) are compared through their scans and their
+shots, matched by param values (`scanbuild.py`).
+
 Only resolved values are compared, so whitespace, comments, key order and
 equivalent units make no difference.
 """

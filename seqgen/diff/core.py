@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from . import outputs, preflight, rig, scan, timeline
+from . import outputs, preflight, rig, scan, scanbuild, timeline
 from .inputs import load_version
 from .model import LEVELS, Change, DiffReport, Version
 
@@ -13,6 +13,10 @@ def diff_paths(old: str, new: str) -> DiffReport:
 
 
 def diff_versions(old: Version, new: Version) -> DiffReport:
+    if "scan-build" in (old.kind, new.kind):
+        if old.kind != new.kind:
+            scanbuild.refuse_mixed(old, new)
+        return scanbuild.diff_scan_builds(old, new)
     rep = DiffReport(old, new)
     changes: list[Change] = []
     renames: dict = {}
@@ -22,6 +26,7 @@ def diff_versions(old: Version, new: Version) -> DiffReport:
     if all(v.shot is not None or v.kind == "build" for v in (old, new)):
         pchanges, changed_params = timeline.param_changes(old, new)
         changes += pchanges
+        changes += timeline.bound_changes(old, new, changed_params)
     if both_shots:
         changes += scan.scan_changes(old.scan, new.scan, old.scan_invalid, new.scan_invalid)
         if old.scan is not None or new.scan is not None:

@@ -96,6 +96,7 @@ def _sequence(path: str, text: str | None, label: str, kind: str) -> Version:
         v.devices = {d.name: {"tick_s": d.tick_s, "output_model": d.output_model} for d in rig.devices.values()}
         v.columns = {o.name: Column(o.name, o.device, o.kind, o.unit, o) for o in rig.outputs.values()}
         v.duration_s = res.shot.duration_s
+        v.bounds = param_bounds(res.sources, res.shot)
         v.scan, scan_findings = _scan_plan(res.sources, res.shot)
         if scan_findings:  # a scan that does not expand: its findings are the version's too
             from ..findings import sort_findings
@@ -106,6 +107,42 @@ def _sequence(path: str, text: str | None, label: str, kind: str) -> Version:
         v.tables = tuple(res.compiled.tables)
         v.duration_s = res.compiled.duration_s
     return v
+
+
+def param_bounds(src, shot) -> dict:
+    """Param name -> {"min"/"max": (text as written, value SI or None)}: the `min:` / `max:` of each param as the
+    resolve stage reads them (used files first, then the main file; a later `min:` or `max:` replaces), read from
+    the version's documents and evaluated with the shot's resolved params."""
+    from ..resolve.expr import evaluate
+    from ..resolve.units import Qty, UnitError, parse_simple
+
+    if src is None or shot is None:
+        return {}
+    raw: dict = {}
+    for d in [d for d, *_ in src.used] + [src.main]:
+        params = d.data.get("params") if isinstance(d.data, dict) else None
+        for name, entry in (params.items() if isinstance(params, dict) else ()):
+            if isinstance(entry, dict):
+                for key in ("min", "max"):
+                    if key in entry:
+                        raw.setdefault(name, {})[key] = entry[key]
+    env = {p.name: Qty(p.value, p.dims) for p in shot.params}
+    out: dict = {}
+    for name, spec in raw.items():
+        if name not in env:
+            continue
+        for key, b in spec.items():
+            value = None
+            if isinstance(b, (int, float)) and not isinstance(b, bool):
+                value = float(b)
+            elif isinstance(b, str):
+                try:
+                    q = parse_simple(b.strip()) or evaluate(b, env)
+                    value = float(q.value)
+                except (ValueError, TypeError, ArithmeticError, RecursionError):  # ExprError, UnitError: ValueError
+                    value = None
+            out.setdefault(name, {})[key] = (str(b).strip(), value)
+    return out
 
 
 def _scan_plan(src, base_shot):
@@ -123,11 +160,8 @@ def load_build(folder: Path, label: str) -> Version:
     try:
         man = json.loads(man_path.read_text(encoding="utf-8"))
     except FileNotFoundError:
-        if (folder / "scan.json").is_file():
-            shots = sorted(p.name for p in folder.glob("shot_*") if p.is_dir())
-            first = f" (e.g. {folder / shots[0]})" if shots else ""
-            raise DiffInputError(f"{label} is the build of a scan (scan.json, one folder per shot): diff one shot's "
-                                 f"build folder{first}, or the two sequence files to compare the scans") from None
+        if (folder / SCAN_JSON).is_file():
+            return load_scan_build(folder, label)
         raise DiffInputError(f"{label} is a folder without manifest.json (not a seqgen build)") from None
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise DiffInputError(f"cannot read {man_path}: {exc}") from None
@@ -162,6 +196,66 @@ def load_build(folder: Path, label: str) -> Version:
                 for name, p in (man.get("params") or {}).items() if isinstance(p, dict) and "value" in p}
     v.findings = [_finding(d) for d in man.get("findings_list") or [] if isinstance(d, dict)]
     return v
+
+
+SCAN_JSON = "scan.json"  # the scan manifest of a scan build folder (schemas/scan.schema.json)
+_AXIS_KINDS = ("list", "linear", "log", "random")
+
+
+def load_scan_build(folder: Path, label: str) -> Version:
+    """A scan build folder through its scan.json: the scan (as a `ScanPlan` rebuilt from the recorded values) and
+    one record per shot (param values, status, input and manifest hashes, finding counts). The shot folders
+    themselves are not read (diff two of them for a shot's tables, params and findings)."""
+    from ..findings import SourcePos
+    from ..resolve.scan import ScanAxis, ScanPlan
+    from ..resolve.units import Qty, UnitError, dims_of
+
+    path = folder / SCAN_JSON
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise DiffInputError(f"cannot read {path}: {exc}") from None
+    if not isinstance(doc, dict) or doc.get("format") != "seqgen-scan":
+        raise DiffInputError(f"{path} is not a seqgen scan manifest")
+    try:
+        desc = doc["scan"]
+        axes, dims = [], {}
+        for a in desc["params"]:
+            name, unit = str(a["name"]), str(a["unit"])
+            if a["kind"] not in _AXIS_KINDS:
+                raise ValueError(f"scan kind {a['kind']!r} of '{name}'")
+            dims[name] = dims_of(unit)
+            axes.append(ScanAxis(name, tuple(Qty(float(x), dims[name]) for x in a["values"]),
+                                 a.get("group"), a["kind"], SourcePos(str(path))))
+        names = tuple(a.name for a in axes)
+        shots = []
+        for rec in doc["shots"]:
+            values = {n: (float(rec["params"][n]["value"]), str(rec["params"][n].get("unit", ""))) for n in names}
+            found = rec.get("findings") or {}
+            shots.append({"index": int(rec["index"]), "written_index": int(rec["written_index"]), "params": values,
+                          "status": str(rec["status"]), "build": rec.get("build"),
+                          "input_sha256": rec.get("input_sha256"), "manifest_sha256": rec.get("manifest_sha256"),
+                          "tables": {str(k): dict(t) for k, t in (rec.get("tables") or {}).items()},
+                          "findings": {k: int(found.get(k, 0)) for k in ("error", "warning", "note", "accepted")}})
+        shots.sort(key=lambda r: r["index"])
+        if [r["index"] for r in shots] != list(range(len(shots))) or len(shots) != int(desc["shots"]):
+            raise ValueError(f"{len(shots)} shot records for a scan of {desc['shots']} shots")
+        plan = ScanPlan(tuple(axes), names,
+                        tuple(tuple(Qty(r["params"][n][0], dims[n]) for n in names) for r in shots),
+                        tuple(r["written_index"] for r in shots), str(desc["combine"]),
+                        tuple(str(n) for n in desc["nest"]), str(desc["order"]),
+                        None if desc.get("seed") is None else int(desc["seed"]))
+    except (KeyError, TypeError, ValueError, AttributeError, UnitError) as exc:
+        raise DiffInputError(f"cannot read the scan of {label} ({path}): {exc.__class__.__name__}: {exc}") from None
+    v = Version(label, "scan-build", scan=plan)
+    v.scan_build = {"shots": shots, "folder": folder, "tool": (doc.get("tool") or {}).get("version"),
+                    "sequence": doc.get("sequence")}
+    return v
+
+
+def first_shot_folder(folder: Path) -> str:
+    shots = sorted(p.name for p in Path(folder).glob("shot_*") if p.is_dir())
+    return str(Path(folder) / shots[0]) if shots else str(Path(folder) / "shot_0000")
 
 
 def _finding(d: dict) -> Finding:

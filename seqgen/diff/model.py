@@ -54,7 +54,7 @@ class Version:
     """One side of a diff, whatever it was read from."""
 
     label: str  # as given (file path, REV:PATH, build folder)
-    kind: str  # "file" | "git" | "build"
+    kind: str  # "file" | "git" | "build" | "scan-build"
     shot: object = None  # model.Shot
     compiled: object = None  # model.Compiled
     findings: list = field(default_factory=list)
@@ -68,13 +68,15 @@ class Version:
     text: str | None = None  # the main file's text (sequence inputs)
     scan: object = None  # resolve.scan.ScanPlan when the sequence scans params (the shot is then the base shot)
     scan_invalid: bool = False  # the sequence scans params but the scan does not expand (see its findings)
+    bounds: dict = field(default_factory=dict)  # param -> {"min"/"max": (text, value SI or None)} (sequence inputs)
+    scan_build: dict | None = None  # a scan build folder: {"shots": [record per shot, run order], "folder", "tool"}
 
     @property
     def resolved(self) -> bool:
         return self.shot is not None
 
     def describe(self) -> dict:
-        return {"input": self.label, "kind": self.kind, "resolved": self.resolved or self.kind == "build",
+        return {"input": self.label, "kind": self.kind, "resolved": self.resolved or self.kind in ("build", "scan-build"),
                 "duration_s": self.duration_s}
 
 

@@ -11,6 +11,7 @@ from .model import LEVEL_TITLES, LEVELS, DiffReport
 
 FORMAT_VERSION = 1
 MAX_WINDOWS_TEXT = 3
+MAX_SHOTS_TEXT = 10  # shot entries of two scan builds listed per kind in the text report (--json: all)
 
 
 def summary(rep: DiffReport) -> dict:
@@ -87,7 +88,7 @@ def _group_line(group) -> str:
 def to_text(rep: DiffReport) -> str:
     s = summary(rep)
     head = f"seqgen diff {rep.old.label} -> {rep.new.label}: "
-    unresolved = [v.label for v in (rep.old, rep.new) if v.kind != "build" and v.shot is None]
+    unresolved = [v.label for v in (rep.old, rep.new) if v.kind not in ("build", "scan-build") and v.shot is None]
     if rep.identical and unresolved:
         lines = [head + "no differences in findings (" + " and ".join(unresolved) + " did not resolve)"]
     elif rep.identical:
@@ -104,9 +105,14 @@ def to_text(rep: DiffReport) -> str:
         lines.append(LEVEL_TITLES[lv])
         grouped = _upstream_groups(items)
         done = set()
+        shots: dict = {}  # kind -> scan-shot-* entries seen
         for c in items:
             if id(c) in done:
                 continue
+            if c.kind.startswith("scan-shot-"):
+                shots[c.kind] = shots.get(c.kind, 0) + 1
+                if shots[c.kind] > MAX_SHOTS_TEXT:
+                    continue
             group = grouped.get(id(c))
             if group:
                 done.update(id(x) for x in group)
@@ -124,6 +130,9 @@ def to_text(rep: DiffReport) -> str:
                 more = c.data["window_count"] - min(MAX_WINDOWS_TEXT, len(c.data["windows"]))
                 if more > 0:
                     lines.append(f"      ... and {more} more window(s) (--json lists them)")
+        for kind, n in sorted(shots.items()):
+            if n > MAX_SHOTS_TEXT:
+                lines.append(f"  ... and {n - MAX_SHOTS_TEXT} more {kind} shot(s) (--json lists them)")
         if lv == "preflight" and rep.unchanged_findings:
             lines.append(f"  = {len(rep.unchanged_findings)} finding(s) unchanged")
     for n in rep.notes:

@@ -220,6 +220,52 @@ def param_changes(old: Version, new: Version) -> tuple[list, set]:
     return changes, changed
 
 
+def bound_changes(old: Version, new: Version, changed_params: set = frozenset()) -> list:
+    """`min:` / `max:` of params in both versions: a bound added, removed, or with another value (compared on
+    values: `1 ms` and `1000 us` are the same bound). Only between two sequence versions (a build folder records
+    no bounds)."""
+    if old.shot is None or new.shot is None:
+        return []
+    out = []
+    for name in sorted(set(old.params) & set(new.params)):
+        ba, bb = old.bounds.get(name, {}), new.bounds.get(name, {})
+        unit = new.params[name][1]
+        parts, data = [], {"old": {}, "new": {}, "unit": unit}
+        for key in ("min", "max"):
+            a, b = ba.get(key), bb.get(key)
+            data["old"][key] = None if a is None else {"text": a[0], "value": a[1]}
+            data["new"][key] = None if b is None else {"text": b[0], "value": b[1]}
+            if a is None and b is None:
+                continue
+            if a is None:
+                parts.append(f"{key}: {_bound_text(b, unit)} added")
+            elif b is None:
+                parts.append(f"{key}: {_bound_text(a, unit)} removed")
+            elif a[1] is None or b[1] is None:
+                if a[0] != b[0]:
+                    parts.append(f"{key}: {a[0]} -> {b[0]}")
+            elif not fmt.close(a[1], b[1], abs_tol=1e-300):
+                if a[0] == b[0]:
+                    via = sorted(_idents(a[0], set(new.params)) & changed_params)
+                    va, vb = fmt.pair(a[1], b[1], unit)
+                    parts.append(f"{key}: {a[0]} = {va} -> {vb}" + (f" (via {', '.join(via)})" if via else ""))
+                else:
+                    parts.append(f"{key}: {_bound_text(a, unit)} -> {_bound_text(b, unit)}")
+        if parts:
+            shown = lambda bd: ", ".join(f"{k}: {_bound_text(bd[k], unit)}" for k in ("min", "max") if k in bd) or "none"  # noqa: E731
+            out.append(Change("resolved", "param-bounds", name, f"param {name} bounds: " + "; ".join(parts),
+                              shown(ba), shown(bb), 50, data))
+    return out
+
+
+def _bound_text(bound, unit: str) -> str:
+    """'1 ms', or '2 * tof = 10 ms' for a bound computed from other params."""
+    text, value = bound
+    if value is None or _is_plain_quantity(text):
+        return text
+    return f"{text} = {fmt.q(value, unit)}"
+
+
 def _is_plain_quantity(text) -> bool:
     from ..resolve.units import UnitError, parse_simple
 
