@@ -383,3 +383,26 @@ def _write_for_plot(tmp_path):
     seq = tmp_path / "plot.yaml"
     seq.write_text(f"seqgen: 1\nrig: rig.yaml\nsample: {CONDENSATE}\nblocks:\n{sg_blocks()}", encoding="utf-8")
     return seq
+
+
+def test_a_push_inside_a_holding_trap_is_bounded_by_the_oscillation(tmp_path):
+    # a kick of v inside a harmonic trap moves the atoms at most v / omega (textbook harmonic motion); after the
+    # release they fly at most at v. Free flight from the push to the image (200 ms later) would be v x 0.2 s.
+    blocks = ("  - name: load\n    at: 1 ms\n    actions:\n"
+              "      - set: {channel: cross_a_power, value: 0.3 W}\n      - set: {channel: cross_b_power, value: 0.3 W}\n"
+              "      - hold: {duration: 100 ms}\n"
+              "  - name: kick\n    after: load\n    actions:\n"
+              "      - push: {coil: kick_coil, gradient: 8 G/cm, duration: 2 ms}\n      - hold: {duration: 200 ms}\n"
+              "  - name: release\n    after: kick\n    actions:\n      - release: {}\n"
+              "  - name: image\n    after: release + 5 ms\n    actions:\n"
+              "      - image: {setup: side_camera, probe_power: 40 uW, duration: 30 us, exposure: 60 us}\n")
+    res = run(tmp_path, blocks)
+    assert "physics.cloud-outside-view" not in codes(res)
+    img = only(res.shot, "image")
+    comp = ps.components_at(res.shot, img)["components"][0]
+    dx = float(abs(comp["displacements"][0][0]))
+    v = abs(moment(1, -1)) * 0.08 * 2e-3 / MASS  # |mu| b' tau / m
+    beams = pt._gaussian_beams(res.shot, [0.103])[0]
+    w_min = float(min(pt._held(pt._species(res.shot), tuple(beams))[1]))
+    assert dx == pytest.approx(v / w_min + v * 5e-3, rel=1e-6)  # the bound, far below free flight
+    assert dx < 0.1 * v * 0.205

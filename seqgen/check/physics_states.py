@@ -45,7 +45,7 @@ from scipy import optimize
 from ..findings import make
 from ..registry import check
 from ..values import value_at
-from .physics_traps import _species, cloud_at_image, per_shot_cache
+from .physics_traps import _gaussian_beams, _held, _species, cloud_at_image, per_shot_cache
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
 TWO_PI = 2 * math.pi
@@ -1027,7 +1027,9 @@ def _force_parts(shot, t, paths):
                 except ValueError:
                     mu = 0.0
                 # force = moment x grad|B|, with grad|B| = |b'| x (where |B| grows): mu > 0 goes that way
-                disp.append(pulse_displacement(mu * grad / sp.mass_kg * way, act.t0, act.t1, t))
+                acc = mu * grad / sp.mass_kg
+                disp.append(_confined(shot, sp, act, t, pulse_displacement(acc * way, act.t0, act.t1, t),
+                                      abs(acc) * (act.t1 - act.t0)))
             if any(np.any(d != 0) for d in disp):
                 parts.append((label + f" ({coil.name})", grows is not None, np.array(disp, dtype=float).reshape(-1, 3)))
         else:
@@ -1035,9 +1037,29 @@ def _force_parts(shot, t, paths):
             if not rep or "direction" not in rep or not rep["velocity"]:
                 continue
             acc = rep["velocity"] / max(act.t1 - act.t0, 1e-300) * np.asarray(rep["direction"], dtype=float)
-            d = pulse_displacement(acc, act.t0, act.t1, t)
+            d = _confined(shot, sp, act, t, pulse_displacement(acc, act.t0, act.t1, t), abs(rep["velocity"]))
             parts.append((label + f" (beam {rep['beam']})", True, np.tile(np.asarray(d, dtype=float), (len(paths), 1))))
     return parts
+
+
+def _confined(shot, sp, act, t, disp, speed):
+    """The free-flight displacement `disp` at t of a force that ends while an optical trap still holds the atoms
+    (a release follows before t), bounded by what the trap allows: an oscillation of amplitude at most v / omega
+    along the trap's weakest axis (harmonic motion, textbook), then free flight from the release at no more
+    than the kick's speed v. Unchanged when the kick's energy exceeds the trap's depth (the atoms leave it)."""
+    releases = [a.t0 for a in shot.phys if a.kind == "release" and act.t1 <= a.t0 < t]
+    d = np.asarray(disp, dtype=float)
+    if not releases or speed <= 0:
+        return d
+    beams = _gaussian_beams(shot, [act.t1])[0]
+    if not beams:
+        return d
+    depth, omegas = _held(sp, tuple(beams))
+    if omegas is None or not depth > 0.5 * sp.mass_kg * speed ** 2:
+        return d
+    bound = speed / float(np.min(omegas)) + speed * (t - min(releases))
+    n = float(np.linalg.norm(d))
+    return d * (bound / n) if n > bound else d
 
 
 @per_shot_cache(lambda shot, img: ("state-components", img.index, img.t0))
@@ -1052,8 +1074,9 @@ def components_at(shot, img):
     every combination of the unknown signs (a coil without `field_grows_along` pushes along its `axis`, either
     way); gravity is not included. Each force: uniform acceleration moment x |b'| / m (moment -dE/dB of the
     state the path is in when the force starts, Breit-Rabi at the rig's bias) or the optical push's velocity
-    over its duration, then free flight until the image: a trap that still holds the atoms after the force
-    would keep them closer, so the displacement is an upper bound. Paths that end in the same state with the
+    over its duration, then free flight until the image; when an optical trap still holds the atoms after
+    the force (and the kick's energy is below its depth), the displacement is bounded by an oscillation of
+    amplitude v / omega_min and free flight at v after the release (`_confined`). Either way an upper bound. Paths that end in the same state with the
     same displacement are merged. None without a species."""
     from itertools import product
 

@@ -163,8 +163,8 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
             findings.append(make(E.UNKNOWN_NAME, f"imaging setup '{name}' names unknown beam '{im['probe_beam']}'",
                                  doc.pos(base + ("probe_beam",))))
         imaging[name] = ImagingSetup(name, im.get("probe_beam"), im.get("camera_channel"), opt(base + ("pixel_size",), "m", positive=True),
-                                     float(im.get("magnification", 1.0)), opt(base + ("field_of_view",), "m", positive=True),
-                                     opt(base + ("depth_of_field",), "m", positive=True), tuple(im.get("center", (0, 0, 0))),
+                                     _magnification(im, base, doc, findings), opt(base + ("field_of_view",), "m", positive=True),
+                                     opt(base + ("depth_of_field",), "m", positive=True), _vector(im.get("center", (0, 0, 0)), base + ("center",), doc, findings) or (0.0, 0.0, 0.0),
                                      opt(base + ("aperture_radius",), "m", positive=True), doc.pos(base))
     fields = data.get("fields") or {}
     bias = opt(("fields", "bias"), "T") if "bias" in fields else None
@@ -202,6 +202,18 @@ def _direction(raw, path, doc, findings, default=None):
     v = tuple(x / big for x in v)  # scaled first: the norm of [1e200, 1e200, 0] must not overflow
     n = math.sqrt(sum(x * x for x in v))
     return tuple(x / n for x in v)
+
+
+def _magnification(im, base, doc, findings) -> float:
+    try:
+        m = float(im.get("magnification", 1.0))
+    except (OverflowError, TypeError, ValueError):
+        m = math.nan
+    if not (math.isfinite(m) and m > 0):
+        findings.append(make(E.BAD_RIG, f"magnification {_short(im.get('magnification'))} is not a positive number",
+                             doc.pos(base + ("magnification",)), hint="give the imaging magnification, e.g. 2.0"))
+        return 1.0
+    return m
 
 
 def _short(raw) -> str:
