@@ -80,7 +80,9 @@ def make(code: str, message: str, pos: SourcePos | None = None, *, severity: str
 
 
 def sort_findings(findings: Iterable[Finding]) -> list[Finding]:
-    return sorted(findings, key=lambda f: (_RANK.get(f.severity, 9), f.file, f.line, f.column, f.code, f.message))
+    """Most severe first, then by place; a finding reported twice (two paths reach the same mistake) once."""
+    unique = dict.fromkeys(findings)  # equal findings (data aside) collapse, first one kept
+    return sorted(unique, key=lambda f: (_RANK.get(f.severity, 9), f.file, f.line, f.column, f.code, f.message))
 
 
 def has_errors(findings: Iterable[Finding]) -> bool:

@@ -113,3 +113,12 @@ def test_an_absolute_path_inside_the_project_is_a_warning_with_its_relative_form
     assert res.shot is not None  # it still works here
     # a relative path is quiet
     assert not [f for f in preflight(_project(tmp_path, RIG_TEXT, SEQ)).findings if f.code == "schema.absolute-path"]
+
+
+def test_a_mistake_reached_by_two_paths_is_reported_once(tmp_path):
+    # '5 ms ms' is read once for the param and once where it is used: one finding at the param's line
+    text = SEQ.replace("      - push: {coil: kick_coil, gradient: 8 G/cm, duration: 1 ms}\n",
+                       "      - hold: {duration: tof}\n").replace("blocks:\n", "params:\n  tof: 5 ms ms\nblocks:\n")
+    res = preflight(_project(tmp_path, RIG_TEXT, text))
+    bad = [(f.code, f.line, f.column) for f in res.findings if f.code == "schema.bad-expression"]
+    assert bad == [("schema.bad-expression", 5, 3)]
