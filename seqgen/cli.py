@@ -448,6 +448,11 @@ def _shot_option(p, text: str) -> None:
     p.add_argument("--shot", type=int, default=None, metavar="N", help=text)
 
 
+def _allow_outside_option(parser) -> None:
+    parser.add_argument("--allow-outside-root", action="store_true",
+                        help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="seqgen", description="Author, preflight, compile and diff cold-atom run sequences.")
     p.add_argument("--version", action="version", version=f"seqgen {__version__}")
@@ -458,8 +463,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--json", action="store_true", help="findings as JSON (same as --format json)")
     c.add_argument("--format", choices=("text", "json", "sarif"), default=None,
                    help="output format: text (default), json, or sarif (SARIF 2.1.0 for code-review tools)")
-    c.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+    _allow_outside_option(c)
     c.add_argument("--report", metavar="FILE", default=None,
                    help="also write a self-contained HTML preflight report (findings, physics notes, timeline)")
     c.add_argument("--force", action="store_true", help="replace an existing --report file")
@@ -472,8 +476,7 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("-o", "--output", required=True, help="build folder to write")
     b.add_argument("--force", action="store_true", help="replace an existing build folder")
     b.add_argument("--json", action="store_true", help="summary as JSON")
-    b.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+    _allow_outside_option(b)
     _scan_options(b)
     b.set_defaults(func=cmd_build)
 
@@ -482,8 +485,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--physics", action="store_true", help="also list the physics predictions per stage")
     s.add_argument("--json", action="store_true", help="timeline as JSON")
     _shot_option(s, "show shot N of the scan (run order, as in 'seqgen check --json'); default: the base shot")
-    s.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+    _allow_outside_option(s)
     s.set_defaults(func=cmd_show)
 
     d = sub.add_parser("diff", help="semantic diff of two versions: findings, outputs, timeline, rig")
@@ -492,8 +494,7 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--json", action="store_true", help="the diff as JSON (schemas/diff.schema.json)")
     d.add_argument("--git", action="store_true",
                    help="run as git's external diff driver (git passes PATH OLD-FILE OLD-HEX OLD-MODE NEW-FILE ...)")
-    d.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+    _allow_outside_option(d)
     d.set_defaults(func=cmd_diff)
 
     g = sub.add_parser("plot", help="draw the timeline (PNG, SVG or PDF); two files: overlay and mark differences")
@@ -509,8 +510,7 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--force", action="store_true", help="replace an existing picture")
     g.add_argument("--json", action="store_true", help="what was drawn, as JSON")
     _shot_option(g, "draw shot N of the scan (run order, as in 'seqgen check --json'); default: the base shot")
-    g.add_argument("--allow-outside-root", action="store_true",
-                   help="let use: and rig: name files outside the project root (same as SEQGEN_ALLOW_OUTSIDE=1)")
+    _allow_outside_option(g)
     g.set_defaults(func=cmd_plot)
 
     e = sub.add_parser("explain", help="explain a finding code (or 'all' to list them)")

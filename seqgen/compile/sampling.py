@@ -155,7 +155,7 @@ def quantize_values(values: np.ndarray, lo: float, hi: float, bits: int) -> tupl
 
 # ---------------------------------------------------------------- sampling helpers
 
-def _sorted_unique(x: np.ndarray, presorted: bool = False) -> np.ndarray:
+def sorted_unique(x: np.ndarray, presorted: bool = False) -> np.ndarray:
     """np.unique for int arrays that are (nearly) sorted; np.unique's hash path is slow here."""
     a = x if presorted else np.sort(x, kind="stable")
     if len(a) < 2:
@@ -264,7 +264,7 @@ def _refine(starts, err, limit, g, m, mg, max_rows, pieces_for, peaks):
         if len(order) == 0:
             return None, True
     new = _split_points(starts, lengths, k, order, peaks, mg)
-    starts = _sorted_unique(np.concatenate([starts, new]))
+    starts = sorted_unique(np.concatenate([starts, new]))
     return _enforce_spacing(starts, g, m, mg), rows_limited
 
 
@@ -307,7 +307,7 @@ def _sample_hold(y, g, step, tol, m, mg, max_rows):
     rho = np.minimum(dy / w, 1.0 / mg * (1 - 1e-12))
     rho = _scale_to_budget(rho, M - 1, max_rows, 2)
     phi = np.concatenate(([0.0], np.cumsum(rho)))
-    starts = _sorted_unique(np.concatenate(([0], _first_crossings(phi, phi[M - 1]))), presorted=True)
+    starts = sorted_unique(np.concatenate(([0], _first_crossings(phi, phi[M - 1]))), presorted=True)
     starts = _enforce_spacing(starts[starts < M], g, m, mg)
     rows_limited = False
     jump = np.concatenate(([0.0], dy))  # jump[i]: change from grid point i - 1 to i
@@ -350,7 +350,7 @@ def _sample_linear(y, g, step, tol, m, mg, max_rows):
     rho = np.minimum(density * _LINEAR_SAFETY * np.sqrt(tol / limit), 1.0 / mg * (1 - 1e-12))
     rho = _scale_to_budget(rho, M, max_rows, 2)
     phi = np.concatenate(([0.0], np.cumsum(rho)))
-    starts = _sorted_unique(np.concatenate(([0], _first_crossings(phi, phi[M]))), presorted=True)
+    starts = sorted_unique(np.concatenate(([0], _first_crossings(phi, phi[M]))), presorted=True)
     starts = _enforce_spacing(starts[starts < M], g, m, mg)
     idx = np.arange(M + 1, dtype=float)
 

@@ -20,7 +20,7 @@ from ..calibration import to_output
 from ..findings import Finding, _fmt_time, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from ..registry import declare
-from .sampling import quantize_times, quantize_values, sample_ramp_report
+from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
 from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
 
 BEFORE_START = declare("timing.before-start", "error", """
@@ -300,18 +300,6 @@ def _quantize(out: Output, values: np.ndarray) -> np.ndarray:
     return quantize_values(clipped, out.lo, out.hi, out.bits)[1]
 
 
-def _sorted_unique(x: np.ndarray) -> np.ndarray:
-    """Sorted distinct values of an int array made of a few sorted runs (a stable
-    sort merges runs quickly; np.unique's hash path is slow on tens of millions)."""
-    a = np.sort(x, kind="stable")
-    if len(a) < 2:
-        return a
-    keep = np.empty(len(a), dtype=bool)
-    keep[0] = True
-    np.not_equal(a[1:], a[:-1], out=keep[1:])
-    return a[keep]
-
-
 def _needed(q: np.ndarray, linear: bool) -> np.ndarray:
     """Rows of one output (quantized values q) that the device needs.
 
@@ -360,11 +348,11 @@ def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
             need = _needed(q, linear)
             per_out.append((t, v, q, need, fl))
             windows.append(spans)
-        ticks = _sorted_unique(np.concatenate([t[need] for t, _, _, need, _ in per_out] + [end]))
+        ticks = sorted_unique(np.concatenate([t[need] for t, _, _, need, _ in per_out] + [end]))
         m = device.min_interval_ticks
         if m > 1 and len(ticks) > 1 and np.any(np.diff(ticks) < m):
             # a tick is flexible only if every needed row on it is a ramp-interior row
-            fixed = _sorted_unique(np.concatenate([t[need & ~fl] for t, _, _, need, fl in per_out] + [end]))
+            fixed = sorted_unique(np.concatenate([t[need & ~fl] for t, _, _, need, fl in per_out] + [end]))
             pos = np.minimum(np.searchsorted(fixed, ticks), len(fixed) - 1)
             ticks = ticks[_drop_crowded_rows(ticks, fixed[pos] != ticks, m)]
         n = len(ticks)
