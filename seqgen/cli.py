@@ -13,7 +13,7 @@ import sys
 from pathlib import Path
 
 from . import __version__
-from .findings import format_text, summary, to_json
+from .findings import format_text, summary
 from .resolve.units import format_value
 
 EXIT_OK, EXIT_FINDINGS, EXIT_CANNOT_RUN = 0, 1, 2
@@ -402,7 +402,6 @@ def cmd_show(args) -> int:
 
 
 def cmd_explain(args) -> int:
-    from . import batch  # noqa: F401  (declares the scan codes)
     from .registry import CODES, _load_all, close_codes, explain, summary_line
 
     if args.code in (None, "all"):

@@ -69,8 +69,6 @@ def default_severity(code: str) -> str:
 
 
 def explain(code: str) -> str | None:
-    import difflib
-
     _load_all()
     info = CODES.get(code)
     if info is None:

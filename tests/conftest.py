@@ -1,10 +1,16 @@
-import os
+import hashlib
 from pathlib import Path
 
 import pytest
 
 ROOT = Path(__file__).resolve().parent.parent
 SEQUENCES = ROOT / "sequences"
+
+
+def readme_shuffled_order(seed, n: int) -> list:
+    """The README's rule for `order: shuffled`, written out independently of seqgen: written positions 0..n-1
+    sorted by sha256("seqgen-order:<seed>:<i>") (hashlib, FIPS 180-4 SHA-256)."""
+    return sorted(range(n), key=lambda i: hashlib.sha256(f"seqgen-order:{seed}:{i}".encode()).digest())
 
 
 @pytest.fixture(autouse=True)

@@ -1,6 +1,5 @@
 """The command line: exit codes, JSON output, explain, no tracebacks."""
 
-import hashlib
 import json
 import shutil
 from pathlib import Path
@@ -12,7 +11,7 @@ from seqgen.cli import main
 from seqgen.registry import CODES, _load_all
 from seqgen.resolve.units import parse_simple
 
-from .conftest import SEQUENCES
+from .conftest import SEQUENCES, readme_shuffled_order
 
 ALL_SEQUENCES = sorted(p for p in SEQUENCES.rglob("*.yaml") if "faults" not in p.parts and "rigs" not in p.parts)
 
@@ -189,7 +188,7 @@ def _run_order(path):
     ramp = [_ms(v) for v in doc["params"]["ramp_time"]["scan"]]
     written = [(a, b) for a in t_on for b in ramp]
     seed = doc["scan"]["seed"]
-    order = sorted(range(len(written)), key=lambda i: hashlib.sha256(f"seqgen-order:{seed}:{i}".encode()).digest())
+    order = readme_shuffled_order(seed, len(written))
     return [(written[i], i) for i in order]
 
 

@@ -15,7 +15,6 @@ minimum interval and the run order README "Parameter scans" documents (hashlib S
 
 from __future__ import annotations
 
-import hashlib
 import os
 import shutil
 import subprocess
@@ -32,7 +31,7 @@ from seqgen.emit import report
 from seqgen.findings import make
 from seqgen.pipeline import Result, preflight
 
-from .conftest import SEQUENCES
+from .conftest import SEQUENCES, readme_shuffled_order
 
 FAULT = SEQUENCES / "faults" / "overlap.yaml"  # two error findings with lines and times
 DEMO = SEQUENCES / "na23_thermometry.yaml"  # a sample and physics-level actions: physics notes
@@ -295,7 +294,7 @@ def _expected_shots(path):
     levels = [_q(v) for v in doc["params"]["level"]["scan"]]
     written = [(r, lv) for r in ramps for lv in levels]
     seed = doc["scan"]["seed"]
-    order = sorted(range(len(written)), key=lambda i: hashlib.sha256(f"seqgen-order:{seed}:{i}".encode()).digest())
+    order = readme_shuffled_order(seed, len(written))
     return [(*written[i], i) for i in order]
 
 

@@ -126,7 +126,7 @@ def test_hard_limits_hold_in_every_build(steps, linear):
             lines += [f"  - name: b{i}", f"    at: {t_us} us", "    actions:", f"      - {spec}"]
             t_us += dur_us + gap_us + 5
         # every touched channel back to its safe value at the end (keeps safety.left-on out of the way)
-        lines += [f"  - name: end", f"    at: {t_us + 100} us", "    actions:"]
+        lines += ["  - name: end", f"    at: {t_us + 100} us", "    actions:"]
         lines += [f"      - set: {{channel: {n}, value: 0 {CHANNELS[n][0]}}}" for n in sorted({s[0][0] for s in steps})]
         (tmp / "seq.yaml").write_text("\n".join(lines) + "\n", encoding="utf-8")
         res = preflight(tmp / "seq.yaml")

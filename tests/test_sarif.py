@@ -14,7 +14,6 @@ import hashlib
 import io
 import json
 from contextlib import redirect_stdout
-from pathlib import Path
 
 import jsonschema
 import pytest

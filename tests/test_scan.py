@@ -16,7 +16,7 @@ from seqgen.pipeline import preflight
 from seqgen.resolve.scan import shuffled_order, uniform_draws
 from seqgen.validate.schema import load_schema
 
-from .conftest import ROOT, SEQUENCES
+from .conftest import ROOT, SEQUENCES, readme_shuffled_order
 
 RIG = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").resolve()
 
@@ -137,7 +137,7 @@ def test_shuffled_order_is_reproducible(tmp_path):
     assert sorted(s1.plan.written_index) == list(range(20))  # a permutation: every point once
     assert [plain.plan.points[i] for i in s1.plan.written_index] == list(s1.plan.points)
     # the documented rule: written indices sorted by sha256("seqgen-order:<seed>:<i>")
-    want = sorted(range(20), key=lambda i: hashlib.sha256(f"seqgen-order:7:{i}".encode()).digest())
+    want = readme_shuffled_order(7, 20)
     assert list(s1.plan.written_index) == want == shuffled_order(7, 20)
 
 

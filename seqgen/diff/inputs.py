@@ -114,7 +114,7 @@ def param_bounds(src, shot) -> dict:
     resolve stage reads them (used files first, then the main file; a later `min:` or `max:` replaces), read from
     the version's documents and evaluated with the shot's resolved params."""
     from ..resolve.expr import evaluate
-    from ..resolve.units import Qty, UnitError, parse_simple
+    from ..resolve.units import Qty, parse_simple
 
     if src is None or shot is None:
         return {}

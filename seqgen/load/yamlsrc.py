@@ -15,7 +15,6 @@ loaded again by the node path above, so findings and limits are exactly its own.
 
 from __future__ import annotations
 
-import difflib  # noqa: F401  (kept for callers that build hints)
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any

@@ -102,9 +102,9 @@ def _build(name: str) -> Species:
     entry = _raw_data()["species"][name]
     values: dict = {}
     sources: dict = {}
-    for key, (field, factor) in _FIELDS.items():
-        values[field] = float(entry[key]["value"]) * factor
-        sources[field] = entry[key]["source"]
+    for key, (attr, factor) in _FIELDS.items():
+        values[attr] = float(entry[key]["value"]) * factor
+        sources[attr] = entry[key]["source"]
     lengths = {}
     for state, q in entry["scattering_lengths_a0"].items():
         lengths[state] = float(q["value"]) * _A0
