@@ -57,20 +57,14 @@ from . import __version__
 from .findings import SEVERITIES, Finding, SourcePos, has_errors, make, sort_findings, summary
 from .load.yamlsrc import LoadError
 from .model import Rig, Shot
-from .registry import declare
 from .resolve.scan import ScanPlan, expand, has_scans
 from .resolve.sequence import Sources, load_sources, resolve
 from .resolve.units import Qty, format_qty, format_value
+from .codes import SHOT_FAILED
 
 SCAN_MANIFEST = "scan.json"
 FORMAT_VERSION = 1
 
-SHOT_FAILED = declare("schema.shot-failed", "error", """
-    One shot of a scan could not be completed: a stage raised an unexpected
-    error, or the worker process running it died. This is a bug in seqgen or a
-    problem of the machine (memory, disk), not a mistake in the file; the other
-    shots still ran. The message names the shot's param values; run
-    `seqgen check` on a copy of the file with those values to reproduce it.""", stage="check")
 
 
 class BuildExists(Exception):

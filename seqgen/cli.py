@@ -402,12 +402,11 @@ def cmd_show(args) -> int:
 
 
 def cmd_explain(args) -> int:
-    from .registry import CODES, _load_all, close_codes, explain, summary_line
+    from .codes import ALL, close_codes, explain, summary_line
 
     if args.code in (None, "all"):
-        _load_all()
-        for code in sorted(CODES):
-            print(f"{code:<36} {CODES[code].severity:<8} {summary_line(code)}")
+        for code in sorted(ALL):
+            print(f"{code:<36} {ALL[code].severity:<8} {summary_line(code)}")
         return EXIT_OK
     text = explain(args.code)
     if text is None:

@@ -1,4 +1,7 @@
-"""The one diagnostic type of seqgen, shared by every stage."""
+"""The one diagnostic type of seqgen, shared by every stage.
+
+A leaf: it imports nothing from seqgen. Codes come from `seqgen.codes`.
+"""
 
 from __future__ import annotations
 
@@ -68,13 +71,13 @@ class Finding:
         return out
 
 
-def make(code: str, message: str, pos: SourcePos | None = None, *, severity: str | None = None,
+def make(code, message: str, pos: SourcePos | None = None, *, severity: str | None = None,
          block: str | None = None, time_s: float | None = None, hint: str = "", data: dict | None = None) -> Finding:
-    """Build a finding; the severity defaults to the code's registered default."""
-    from .registry import default_severity
-
-    sev = severity or default_severity(code)
-    f = Finding(code=code, severity=sev, message=message, block=block, time_s=time_s, hint=hint,
+    """Build a finding of a catalogue code (`seqgen.codes`); the severity defaults to the code's own."""
+    default = getattr(code, "severity", None)
+    if default is None:  # a bare string: codes are values, so a misspelt one cannot slip through
+        raise TypeError(f"finding code must be a seqgen.codes value, not {code!r}")
+    f = Finding(code=code.slug, severity=severity or default, message=message, block=block, time_s=time_s, hint=hint,
                 data=tuple(sorted((data or {}).items())))
     return f.with_pos(pos)
 

@@ -8,7 +8,7 @@ import pytest
 import yaml
 
 from seqgen.cli import main
-from seqgen.registry import CODES, _load_all
+from seqgen.codes import ALL as CODES
 from seqgen.resolve.units import parse_simple
 
 from .conftest import SEQUENCES, readme_shuffled_order
@@ -44,7 +44,6 @@ def test_build_refuses_errors_and_existing_folder(tmp_path, capsys):
 
 
 def test_explain_every_code_has_a_doc_and_source(capsys):
-    _load_all()
     assert len(CODES) >= 40
     for code, info in CODES.items():
         assert info.doc.strip(), code
@@ -398,7 +397,6 @@ def test_the_safety_caution_comes_last_after_the_report_line(tmp_path, capsys, m
 
 def test_explain_all_cuts_summaries_at_a_sentence_or_a_word(capsys):
     # (common practice, no source): a summary is a whole first sentence, or a cut at a word with an ellipsis
-    _load_all()
     assert main(["explain", "all"]) == 0
     for line in capsys.readouterr().out.splitlines():
         code, severity, text = line.split(None, 2)

@@ -4,7 +4,7 @@ Oracle (common practice, no source): a fuzzer's outcome is acceptable when the
 program either succeeds or reports the problem through its documented channel.
 Here that is: `load_sources` may raise only `LoadError` (carrying a finding); every
 later stage returns findings; a check or the compiler raising anything is a crash.
-The checks are called straight from the registry, without the safety net of
+The rules are called straight from `seqgen.check.RULES`, without the safety net of
 `seqgen.check._run` (which turns a crashing check into `schema.check-crashed`), so
 that a crash fails the test instead of hiding in a finding.
 
@@ -47,12 +47,12 @@ from seqgen.emit.build import write_build
 from seqgen.emit.sarif import to_sarif
 from seqgen.findings import SEVERITIES, has_errors, sort_findings
 from seqgen.load.yamlsrc import LoadError, load_file
-from seqgen.registry import CHECKS, CODES, _load_all
+from seqgen.check import RULES
+from seqgen.codes import ALL as CODES
 from seqgen.resolve.sequence import load_sources, resolve
 
 from .conftest import ROOT, SEQUENCES
 
-_load_all()
 
 _CI_COUNTS = {"structured": 260, "mutated": 280, "rig": 60, "physics": 4}  # 604 examples in CI
 _TOTAL = int(os.environ.get("SEQGEN_FUZZ_EXAMPLES", "0") or 0)
@@ -120,14 +120,14 @@ def run_pipeline(text: str | None, path: Path, display: str, *, physics: bool = 
         return "findings"
     STATS["resolved"] += 1
     run_physics = physics or not _heavy(shot)
-    for spec in CHECKS:
-        if spec.info.stage == "timeline" or (spec.info.stage == "physics" and run_physics):
-            findings += list(spec.func(shot))
+    for r in RULES:
+        if r.stage == "timeline" or (r.stage == "physics" and run_physics):
+            findings += list(r(shot))
     compiled, cf = compile_shot(shot)
     findings += cf
-    for spec in CHECKS:
-        if spec.info.stage == "tables":
-            findings += list(spec.func(shot, compiled))
+    for r in RULES:
+        if r.stage == "tables":
+            findings += list(r(shot, compiled))
     for t in compiled.tables:
         ticks = np.asarray(t.ticks)
         assert ticks.dtype == np.int64 and len(ticks) >= 1 and ticks[0] == 0

@@ -517,7 +517,7 @@ def test_atom_counts_stay_non_negative_when_the_average_rounds_above_one(demo, m
 
 
 def test_explain_shows_every_barrier_code():
-    from seqgen.registry import explain
+    from seqgen.codes import explain
 
     for code in MY_CODES:
         text = explain(code)

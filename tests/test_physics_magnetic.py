@@ -15,7 +15,7 @@ import pytest
 from scipy import constants as sc
 
 from seqgen.pipeline import preflight
-from seqgen.registry import explain
+from seqgen.codes import explain
 from seqgen.show import physics_rows
 
 from .conftest import SEQUENCES

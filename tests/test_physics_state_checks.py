@@ -19,7 +19,7 @@ from scipy import integrate, special
 
 from seqgen.check import physics_states as ps
 from seqgen.findings import Finding
-from seqgen.registry import CHECKS
+from seqgen.check import RULES
 from seqgen.resolve.sequence import load_sources, resolve
 
 from .conftest import SEQUENCES
@@ -77,9 +77,9 @@ def write(tmp_path, blocks, sample=SAMPLE, name="s.yaml"):
 
 def state_findings(shot):
     out = []
-    for spec in CHECKS:
-        if spec.func.__module__ == ps.__name__:
-            out.extend(spec.func(shot))
+    for r in RULES:
+        if r.func.__module__ == ps.__name__:
+            out.extend(r(shot))
     return out
 
 
@@ -446,7 +446,7 @@ def _expect_codes():
 
 
 def test_every_state_code_has_a_fault_file():
-    ours = {spec.info.code for spec in CHECKS if spec.func.__module__ == ps.__name__}
+    ours = {r.code.slug for r in RULES if r.func.__module__ == ps.__name__}
     ours.discard("physics.components-separated")  # a note: the demo raises it
     assert ours <= _expect_codes(), sorted(ours - _expect_codes())
 

@@ -28,6 +28,12 @@ from seqgen.emit import plot
 from seqgen.pipeline import preflight
 
 from .conftest import SEQUENCES
+from seqgen.codes import ALL, Code
+
+def _code(slug):
+    """The catalogue's code, or a stand-in of a made-up slug (severity error, as an unknown code had)."""
+    return ALL.get(slug) or Code(slug, "error", stage="test")
+
 
 RIG = SEQUENCES / "rigs" / "na23_demo_rig.yaml"
 DEMO = SEQUENCES / "na23_barrier_scatter.yaml"
@@ -236,7 +242,7 @@ def test_many_findings_at_one_time_share_a_label_but_keep_their_markers(tmp_path
     from seqgen.findings import make
 
     res = preflight(_small(tmp_path))
-    fs = [make("timing.overlap", f"test {k}", None, time_s=0.010) for k in range(9)]
+    fs = [make(_code("timing.overlap"), f"test {k}", None, time_s=0.010) for k in range(9)]
     fig = plot.timeline_figure(res.shot, res.compiled, fs, physics=False)
     (strip,) = _by_label(fig, "findings")
     marks = [ln for ln in strip.get_lines() if (ln.get_gid() or "").startswith("finding:")]
@@ -641,10 +647,10 @@ def test_finding_labels_overlap_neither_labels_nor_other_markers_in_a_diff(tmp_p
     new = preflight(_small(tmp_path, "new.yaml", kick="12 A", guide_at="7 ms"))
     codes = ["timing.overlap", "hardware.slew-rate", "safety.hard-limit", "hardware.min-pulse", "timing.sub-tick"]
     times = [0.0050, 0.0056, 0.0062, 0.0100, 0.0106, 0.0150, 0.0200, 0.0203, 0.0206, 0.0265, 0.0268]
-    fs = [make(codes[k % len(codes)], f"test {k}", None, time_s=t) for k, t in enumerate(times)]
+    fs = [make(_code(codes[k % len(codes)]), f"test {k}", None, time_s=t) for k, t in enumerate(times)]
     # a long chain of close findings shares one label; one more finding just after the chain ends
-    chain = [make("hardware.slew-rate", f"chain {k}", None, time_s=0.002 + 3e-4 * k) for k in range(60)]
-    chain.append(make("timing.overlap", "after the chain", None, time_s=0.002 + 3e-4 * 59 + 1.2e-3))
+    chain = [make(_code("hardware.slew-rate"), f"chain {k}", None, time_s=0.002 + 3e-4 * k) for k in range(60)]
+    chain.append(make(_code("timing.overlap"), "after the chain", None, time_s=0.002 + 3e-4 * 59 + 1.2e-3))
     for fs, t_from, t_to in ((fs, None, None), (fs, 0.004, 0.03), (chain, 0.0, 0.03)):
         fig = plot.diff_figure(old.shot, old.compiled, new.shot, new.compiled, findings=fs, t_from=t_from, t_to=t_to)
         r = _rendered(fig)

@@ -32,6 +32,12 @@ from seqgen.findings import make
 from seqgen.pipeline import Result, preflight
 
 from .conftest import SEQUENCES, readme_shuffled_order
+from seqgen.codes import ALL, Code
+
+def _code(slug):
+    """The catalogue's code, or a stand-in of a made-up slug (severity error, as an unknown code had)."""
+    return ALL.get(slug) or Code(slug, "error", stage="test")
+
 
 FAULT = SEQUENCES / "faults" / "overlap.yaml"  # two error findings with lines and times
 DEMO = SEQUENCES / "na23_thermometry.yaml"  # a sample and physics-level actions: physics notes
@@ -155,7 +161,7 @@ def test_physics_notes_and_timeline_for_a_demo():
 
 
 def test_text_is_escaped_and_report_works_without_a_shot():
-    nasty = make("timing.overlap", "value <script>alert(1)</script> & more", None, hint="use <b>less</b>")
+    nasty = make(_code("timing.overlap"), "value <script>alert(1)</script> & more", None, hint="use <b>less</b>")
     text = report.render_report(Result(findings=[nasty]), "x.yaml")
     page = _parse(text)
     assert "script" not in page.tags

@@ -24,6 +24,12 @@ from seqgen.findings import Finding, make
 from seqgen.pipeline import preflight
 
 from .conftest import ROOT, SEQUENCES
+from seqgen.codes import ALL, Code
+
+def _code(slug):
+    """The catalogue's code, or a stand-in of a made-up slug (severity error, as an unknown code had)."""
+    return ALL.get(slug) or Code(slug, "error", stage="test")
+
 
 
 @pytest.fixture(autouse=True)
@@ -120,7 +126,7 @@ def test_cli_rejects_unknown_format(capsys):
 
 
 def test_accepted_finding_is_suppressed_in_source(validator):
-    f = make("timing.sub-tick", "edge moved by 20 ns", None, block="load")
+    f = make(_code("timing.sub-tick"), "edge moved by 20 ns", None, block="load")
     from dataclasses import replace
 
     acc = replace(f, file="sequences/x.yaml", line=3, column=5, accepted=True, accept_reason="known and harmless")

@@ -1,50 +1,64 @@
-"""Stage 4: preflight checks (timing, hardware, safety, physics).
+"""Stage 4: preflight rules (timing, hardware, safety, physics).
 
-Importing this package registers every check. `run_timeline_checks` runs the
-checks on a resolved shot; `run_table_checks` the ones that need the compiled
-tables; `apply_accepts` marks findings the sequence file accepts.
+`RULES` is the explicit tuple of rules a preflight runs, in order; a caller
+may pass another tuple (`preflight(..., rules=...)`). `run_timeline_checks`
+runs the rules that read a resolved shot, `run_table_checks` the ones that
+need the compiled tables; `apply_accepts` marks findings the sequence accepts.
 """
 
 from __future__ import annotations
 
 from dataclasses import replace
 
+from ..caution import CAUTION  # noqa: F401  (re-exported for the command line)
+from ..codes import CHECK_CRASHED
 from ..findings import Finding, make
-from ..registry import CHECKS, declare
-from . import hardware, safety, timing  # noqa: F401  (register checks)
+from . import hardware, physics_barrier, physics_magnetic, physics_states, physics_traps, safety, timing
+from .rules import STAGES, Rule, rule
 
-try:  # physics checks need the physics package; they register on import
-    from . import physics  # noqa: F401
-except ImportError:  # pragma: no cover
-    physics = None
+__all__ = ["RULES", "STAGES", "Rule", "rule", "run_timeline_checks", "run_table_checks", "apply_accepts"]
 
-CHECK_CRASHED = declare("schema.check-crashed", "error", """
-    A preflight check raised an unexpected error. This is a bug in seqgen, not
-    in your file; the other checks still ran. Please report it with the file.""", stage="check")
+RULES: tuple[Rule, ...] = (
+    hardware.output_range, hardware.outside_calibration, hardware.hard_limits, hardware.pulse_width,
+    hardware.slew_rate, hardware.memory_depth, hardware.row_spacing, hardware.finer_than_resolution,
+    safety.left_on, safety.coil_current, safety.coil_heating,
+    timing.overlapping_writes, timing.sub_tick_timing, timing.ramp_faster_than_device,
+    timing.latency_reorders_edges, timing.edges_within_jitter,
+    physics_traps.trap_lost, physics_traps.nonadiabatic_ramp, physics_traps.shallow_trap,
+    physics_traps.cloud_outside_view, physics_traps.cloud_out_of_focus, physics_traps.cloud_clipped,
+    physics_states.pulse_angle, physics_states.pulse_detuned, physics_states.sweep_not_adiabatic,
+    physics_states.modulation_off_resonance, physics_states.modulation_unreachable,
+    physics_states.transition_unpopulated, physics_states.push_velocity, physics_states.push_away_from_barrier,
+    physics_states.push_no_force, physics_states.push_too_late, physics_states.equal_moments,
+    physics_states.components_overlap, physics_states.components_separated, physics_states.probe_doppler,
+    physics_states.imaging_blur, physics_states.exposure_too_short,
+    physics_barrier.barrier_transmission, physics_barrier.cloud_overlaps_barrier, physics_barrier.barrier_too_short,
+    physics_barrier.barrier_too_late, physics_barrier.barrier_no_signal, physics_barrier.not_tunnelling,
+    physics_barrier.barrier_rotation, physics_barrier.drive_too_strong, physics_barrier.rotation_unresolvable,
+    physics_magnetic.state_not_trappable, physics_magnetic.magnetic_trap_lost, physics_magnetic.majorana_loss,
+)
 
-CAUTION = ("Preflight reduces mistakes; it is no substitute for hardware interlocks, laser-safety rules, "
-           "coil and high-voltage safety, or the lab's local procedures and licensed practice.")
 
-
-def _run(stage: str, *args) -> list[Finding]:
+def _run(rules, stages: tuple[str, ...], *args) -> list[Finding]:
     out: list[Finding] = []
-    for spec in CHECKS:
-        if spec.info.stage != stage:
-            continue
-        try:
-            out.extend(spec.func(*args))
-        except Exception as exc:  # a bug in one check must not hide the others
-            out.append(make(CHECK_CRASHED, f"check {spec.info.code} failed: {type(exc).__name__}: {exc}",
-                            hint="report this; meanwhile the other checks' results stand"))
+    for stage in stages:
+        for r in rules:
+            if r.stage != stage:
+                continue
+            try:
+                out.extend(r(*args))
+            except Exception as exc:  # a bug in one rule must not hide the others
+                out.append(make(CHECK_CRASHED, f"check {r.code} failed: {type(exc).__name__}: {exc}",
+                                hint="report this; meanwhile the other checks' results stand"))
     return out
 
 
-def run_timeline_checks(shot) -> list[Finding]:
-    return _run("timeline", shot) + _run("physics", shot)
+def run_timeline_checks(shot, rules: tuple[Rule, ...] = RULES) -> list[Finding]:
+    return _run(rules, ("timeline", "physics"), shot)
 
 
-def run_table_checks(shot, compiled) -> list[Finding]:
-    return _run("tables", shot, compiled)
+def run_table_checks(shot, compiled, rules: tuple[Rule, ...] = RULES) -> list[Finding]:
+    return _run(rules, ("tables",), shot, compiled)
 
 
 def apply_accepts(findings: list[Finding], accepts) -> list[Finding]:

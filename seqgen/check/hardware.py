@@ -6,7 +6,10 @@ import numpy as np
 
 from ..calibration import to_output
 from ..findings import make
-from ..registry import check
+from .rules import rule
+from ..codes import (
+    HARD_LIMIT, MEMORY_DEPTH, MIN_INTERVAL, OUTSIDE_CALIBRATION, OUT_OF_RANGE, PULSE_TOO_SHORT, RESOLUTION, SLEW,
+)
 
 
 def _extremes(seg):
@@ -16,32 +19,22 @@ def _extremes(seg):
     return (seg.v0, seg.v1)
 
 
-@check("hardware.out-of-range", "error", "the rig file's output ranges (the hardware's data sheet values)")
+@rule(OUT_OF_RANGE)
 def output_range(shot):
-    """A value that, after calibration, lies outside the output's range (for
-    example 11 V on a +-10 V analog output, or a synth frequency above its
-    maximum). The hardware would clip or wrap it. Lower the value or check the
-    calibration."""
     for s in shot.segments:
         out = shot.rig.outputs[s.output]
         for v in _extremes(s):
             y = float(to_output(out, v))
             if not (out.lo - 1e-12 * max(1, abs(out.lo)) <= y <= out.hi + 1e-12 * max(1, abs(out.hi))):
                 phys = f" ({v:.6g} {out.phys_unit})" if out.calibration else ""
-                yield make("hardware.out-of-range", f"'{out.name}' would output {y:.6g} {out.unit}{phys}, outside "
+                yield make(OUT_OF_RANGE, f"'{out.name}' would output {y:.6g} {out.unit}{phys}, outside "
                            f"[{out.lo:g}, {out.hi:g}] {out.unit}", s.pos, block=s.block, time_s=s.t0,
                            hint="lower the value, or check the channel's calibration and range in the rig")
                 break
 
 
-@check("hardware.outside-calibration", "warning", "the rig file's calibration table (measured points)")
+@rule(OUTSIDE_CALIBRATION)
 def outside_calibration(shot):
-    """A value on a channel calibrated by a table lies beyond the table's
-    measured points. There seqgen continues the calibration as a straight
-    line with the slope of the table's end interval, which is a guess: an AOM's
-    diffraction efficiency saturates, a photodiode clips. Measure the
-    calibration out to the values the sequence uses, or stay inside the
-    table."""
     for s in shot.segments:
         out = shot.rig.outputs[s.output]
         cal = out.calibration
@@ -51,33 +44,28 @@ def outside_calibration(shot):
         slack = 1e-12 * max(1.0, abs(lo), abs(hi))
         for v in _extremes(s):
             if v < lo - slack or v > hi + slack:
-                yield make("hardware.outside-calibration", f"'{out.name}' is set to {v:.6g} {out.phys_unit}, outside its "
+                yield make(OUTSIDE_CALIBRATION, f"'{out.name}' is set to {v:.6g} {out.phys_unit}, outside its "
                            f"calibration table [{lo:.6g}, {hi:.6g}] {out.phys_unit}: the output value is extrapolated",
                            s.pos, block=s.block, time_s=s.t0,
                            hint="extend the calibration table in the rig file to cover this value, or stay inside it")
                 break
 
 
-@check("safety.hard-limit", "error", "the rig file's hard limits (the lab's safety limits for coils and lasers)")
+@rule(HARD_LIMIT)
 def hard_limits(shot):
-    """A physical value beyond a hard limit of the rig (coil current, laser
-    power). No build may ever exceed these. Hard limits are a second line of
-    defence: they never replace the hardware interlocks."""
     for s in shot.segments:
         out = shot.rig.outputs[s.output]
         for v in _extremes(s):
             if out.hard_max is not None and v > out.hard_max or out.hard_min is not None and v < out.hard_min:
-                yield make("safety.hard-limit", f"'{out.name}' would reach {v:.6g} {out.phys_unit}, beyond its hard limit "
+                yield make(HARD_LIMIT, f"'{out.name}' would reach {v:.6g} {out.phys_unit}, beyond its hard limit "
                            f"[{out.hard_min if out.hard_min is not None else '-inf'}, "
                            f"{out.hard_max if out.hard_max is not None else 'inf'}] {out.phys_unit}", s.pos, block=s.block,
                            time_s=s.t0, hint="reduce the value; hard limits are not to be raised without the lab's safety review")
                 break
 
 
-@check("hardware.pulse-too-short", "error", "the rig file's minimum pulse width per digital channel")
+@rule(PULSE_TOO_SHORT)
 def pulse_width(shot):
-    """A digital pulse shorter than the channel's declared minimum width (a
-    shutter driver or a camera trigger input that needs a minimum high time)."""
     import bisect
 
     set_times: dict = {}  # (output, block) -> sorted start times of its sets (one pass, not one scan per pulse)
@@ -96,17 +84,13 @@ def pulse_width(shot):
         if k:
             width = s.t0 - times[k - 1]
             if width < out.min_pulse_s:
-                yield make("hardware.pulse-too-short", f"pulse on '{out.name}' lasts {width * 1e6:.4g} us, shorter than its "
+                yield make(PULSE_TOO_SHORT, f"pulse on '{out.name}' lasts {width * 1e6:.4g} us, shorter than its "
                            f"minimum {out.min_pulse_s * 1e6:.4g} us", s.pos, block=s.block, time_s=s.t0,
                            hint=f"make it at least {out.min_pulse_s * 1e6:.4g} us")
 
 
-@check("hardware.slew", "error", "the rig file's max_slew per channel (e.g. a coil driver's voltage compliance)")
+@rule(SLEW)
 def slew_rate(shot):
-    """A ramp or step faster than the channel's maximum slew rate (physical
-    units per second). A coil's current cannot follow a step faster than its
-    driver's compliance allows; steps are judged over the device's minimum
-    interval."""
     for s in shot.segments:
         out = shot.rig.outputs[s.output]
         if not out.max_slew:
@@ -120,16 +104,13 @@ def slew_rate(shot):
                 dmax = 1.0
             rate = abs(s.v1 - s.v0) * dmax / (s.t1 - s.t0)
             if rate > out.max_slew * (1 + 1e-9):
-                yield make("hardware.slew", f"ramp on '{out.name}' changes at up to {rate:.4g} {out.phys_unit}/s, "
+                yield make(SLEW, f"ramp on '{out.name}' changes at up to {rate:.4g} {out.phys_unit}/s, "
                            f"{rate / out.max_slew:.3g} times its max slew {out.max_slew:.4g} {out.phys_unit}/s", s.pos,
                            block=s.block, time_s=s.t0, hint=f"make the ramp at least {(s.t1 - s.t0) * rate / out.max_slew * 1e3:.4g} ms long")
 
 
-@check("hardware.memory-depth", "error", "the rig file's memory_depth per device", stage="tables")
+@rule(MEMORY_DEPTH, stage="tables")
 def memory_depth(shot, compiled):
-    """A device table longer than the device's memory depth cannot be loaded.
-    The message says how many rows over and which blocks contribute most;
-    loosen ramp tolerances or shorten ramps there."""
     for t in compiled.tables:
         dev = shot.rig.devices[t.device]
         if dev.memory_depth and len(t.ticks) > dev.memory_depth:
@@ -139,16 +120,13 @@ def memory_depth(shot, compiled):
             top = sorted(contrib.items(), key=lambda kv: -kv[1])[:3]
             where = ", ".join(f"{b} ({n} rows)" for b, n in top) or "many sets"
             pos = shot.block(top[0][0]).pos if top else dev.pos
-            yield make("hardware.memory-depth", f"device '{t.device}' needs {len(t.ticks)} rows, "
+            yield make(MEMORY_DEPTH, f"device '{t.device}' needs {len(t.ticks)} rows, "
                        f"{len(t.ticks) - dev.memory_depth} over its memory depth {dev.memory_depth}; most from {where}",
                        pos, block=top[0][0] if top else None, hint="raise ramp tolerances, shorten ramps, or move channels to another device")
 
 
-@check("hardware.min-interval", "error", "the rig file's min_interval per device", stage="tables")
+@rule(MIN_INTERVAL, stage="tables")
 def row_spacing(shot, compiled):
-    """Two rows of a device table closer than the device's minimum interval
-    between updates (for example two edges 1 us apart on a device that updates
-    every 2 us). Move the events apart."""
     for t in compiled.tables:
         dev = shot.rig.devices[t.device]
         if dev.min_interval_ticks <= 1 or len(t.ticks) < 2:
@@ -160,19 +138,14 @@ def row_spacing(shot, compiled):
             time = float(t.ticks[k + 1] * t.tick_s)
             block = next((b.name for b in shot.blocks if b.start_s <= time <= b.end_s), None)
             pos = shot.block(block).pos if block else dev.pos
-            yield make("hardware.min-interval", f"device '{t.device}': {len(bad)} row(s) closer than its minimum interval "
+            yield make(MIN_INTERVAL, f"device '{t.device}': {len(bad)} row(s) closer than its minimum interval "
                        f"{dev.min_interval_ticks * t.tick_s * 1e6:.4g} us; first at {time * 1e3:.6g} ms "
                        f"({int(gaps[k])} ticks apart)", pos, block=block, time_s=time,
                        hint="separate the events by at least the minimum interval")
 
 
-@check("hardware.resolution", "warning", "DAC quantization error of half a least significant bit (textbook)")
+@rule(RESOLUTION)
 def finer_than_resolution(shot):
-    """A ramp asks for a tolerance finer than the output can resolve: with
-    `bits` over its range, a DAC output is always within half a least
-    significant bit of the wanted value, never closer. The compiled ramp then
-    deviates from the intended curve by up to half an LSB, more than the
-    tolerance asked for."""
     seen = set()
     for s in shot.segments:
         out = shot.rig.outputs[s.output]
@@ -181,6 +154,6 @@ def finer_than_resolution(shot):
             continue
         if tol < out.lsb / 2:
             seen.add((s.output, s.block))
-            yield make("hardware.resolution", f"ramp on '{out.name}' asks for {tol:.3g} {out.unit}, finer than half an LSB "
+            yield make(RESOLUTION, f"ramp on '{out.name}' asks for {tol:.3g} {out.unit}, finer than half an LSB "
                        f"({out.lsb / 2:.3g} {out.unit} at {out.bits} bits)", s.pos, block=s.block, time_s=s.t0,
                        hint=f"use a tolerance of at least {out.lsb / 2:.3g} {out.unit}")

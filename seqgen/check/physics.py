@@ -1,17 +1,10 @@
-"""Physics checks: registers the physics check modules and gathers their reports."""
+"""Gathers the physics rule modules' report rows for `show --physics`, the plot and the report."""
 
 from __future__ import annotations
 
-from . import physics_traps  # noqa: F401
+from . import physics_barrier, physics_magnetic, physics_states, physics_traps
 
-_REPORTERS = [physics_traps.report]
-
-for _name in ("physics_states", "physics_barrier", "physics_magnetic"):
-    try:
-        _mod = __import__(f"{__package__}.{_name}", fromlist=["report"])
-        _REPORTERS.append(_mod.report)
-    except ImportError:  # the module may not exist yet in a partial checkout
-        pass
+_REPORTERS = (physics_traps.report, physics_states.report, physics_barrier.report, physics_magnetic.report)
 
 
 def report_physics(shot) -> list[dict]:

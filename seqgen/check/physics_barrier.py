@@ -67,8 +67,12 @@ import numpy as np
 from scipy import constants as sc
 
 from ..findings import make
-from ..registry import check
+from .rules import rule
 from .physics_traps import _gaussian_beams, _species, per_shot_cache
+from ..codes import (
+    BARRIER_NO_SIGNAL, BARRIER_ROTATION, BARRIER_TOO_LATE, BARRIER_TOO_SHORT, BARRIER_TRANSMISSION,
+    CLOUD_OVERLAPS_BARRIER, DRIVE_TOO_STRONG, NOT_TUNNELLING, ROTATION_UNRESOLVABLE,
+)
 
 DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
 N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
@@ -573,21 +577,8 @@ _SRC_SCATTER = ("optical dipole potential, Adv. At. Mol. Opt. Phys. 42, 95 (2000
                 "(Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008))")
 
 
-@check("physics.barrier-transmission", "note", _SRC_SCATTER, stage="physics")
+@rule(BARRIER_TRANSMISSION, stage="physics")
 def barrier_transmission(shot):
-    """The predicted transmitted fraction of a `barrier` action. seqgen takes
-    the incident speed from the preceding `push` (|mu| b' tau / m with the
-    sample state's first-order moment, or the push's `expect_velocity`), the
-    velocity spread from the sample (Thomas-Fermi condensate or thermal cloud),
-    the barrier V0 exp(-2 x^2 / w_y^2) from the beam's power, waists and
-    wavelength, solves the stationary 1D scattering problem and averages the
-    transmission over the velocity distribution. The note gives the fraction,
-    its spread over the distribution, V0 and the mean kinetic energy. It
-    describes a single atom crossing a static sheet, every atom meeting it from
-    one side: the cloud's mean-field energy is not included, and a cloud that
-    already reaches the sheet when it is pushed, or a sheet that is off while
-    part of the cloud passes, is outside the model (physics.cloud-overlaps-barrier,
-    physics.barrier-too-short, physics.barrier-too-late)."""
     for act, rep in _each(shot):
         if rep.get("attractive"):
             msg = f"'{act.args['beam']}' is red-detuned for {shot.sample.species}: a well, not a barrier; T = {rep['T']:.3g}"
@@ -595,7 +586,7 @@ def barrier_transmission(shot):
             msg = (f"transmitted fraction {rep['T']:.3g} (spread {rep['T_spread']:.2g} over the momentum distribution); "
                    f"V0 = {_energy_text(rep['V0'])}, mean kinetic energy {_energy_text(rep['E_mean'])}, "
                    f"v = {rep['speed'] * 1e3:.4g} mm/s +/- {rep['sigma_v'] * 1e3:.2g} mm/s ({rep['spread_kind']})")
-        yield make("physics.barrier-transmission", msg, act.pos, block=act.block, time_s=act.t0,
+        yield make(BARRIER_TRANSMISSION, msg, act.pos, block=act.block, time_s=act.t0,
                    data={"transmission": rep["T"], "transmission_spread": rep["T_spread"], "V0_J": rep["V0"],
                          "mean_kinetic_energy_J": rep["E_mean"], "velocity_m_s": rep["speed"],
                          "velocity_spread_m_s": rep["sigma_v"]})
@@ -619,21 +610,8 @@ _SRC_PASSAGE = ("uniform acceleration during the push, then free flight (textboo
                 "position and waist")
 
 
-@check("physics.cloud-overlaps-barrier", "warning", _SRC_PASSAGE + "; a thermal cloud's edge at 2.5 rms widths "
-       "(common practice, no source)", stage="physics")
+@rule(CLOUD_OVERLAPS_BARRIER, stage="physics")
 def cloud_overlaps_barrier(shot):
-    """The cloud already reaches the barrier when it is pushed. Its edge along
-    the path, in the trap just before the push (a condensate's Thomas-Fermi
-    radius R along the path, from the trap frequencies and the atom number; a
-    thermal cloud's 2.5 rms widths sqrt(k_B T / (m omega^2))), plus the sheet's
-    1/e^2 half-width w_y, reaches the sheet's distance d from the atoms along
-    the path (the barrier beam's rig `position`, the atoms at the rig's
-    origin). Part of the cloud then sits in or beyond the sheet before it
-    moves, which the transmission model (every atom arriving from one side
-    at the pushed speed) does not describe, and the predicted fraction means
-    little. Move the sheet farther from the atoms, or make the cloud shorter
-    along the path: a tighter trap along the path at the push (e.g. a crossed
-    beam switched off as the push starts), fewer atoms, or a colder cloud."""
     for act, rep in _each(shot):
         ps, cloud = rep["passage"], rep["cloud"]
         if not ps["overlap"]:
@@ -641,7 +619,7 @@ def cloud_overlaps_barrier(shot):
         edge = ps["edge"] + rep["waist_y"]
         what = ("Thomas-Fermi radius" if cloud["profile"] == "thomas-fermi"
                 else f"edge ({THERMAL_EDGE_RMS:g} rms widths)")
-        yield make("physics.cloud-overlaps-barrier", f"the cloud's {what} along the path at the push, {_um(ps['edge'])}, "
+        yield make(CLOUD_OVERLAPS_BARRIER, f"the cloud's {what} along the path at the push, {_um(ps['edge'])}, "
                    f"reaches barrier '{act.args['beam']}' {_um(ps['distance'])} from the atoms (sheet 1/e^2 half-width "
                    f"{_um(rep['waist_y'])} included): part of the cloud is in or beyond the sheet before it moves, outside "
                    f"the transmission model", act.pos, block=act.block, time_s=act.t0,
@@ -650,18 +628,8 @@ def cloud_overlaps_barrier(shot):
                    data={"cloud_edge_m": ps["edge"], "barrier_distance_m": ps["distance"]})
 
 
-@check("physics.barrier-too-short", "warning", _SRC_PASSAGE + "; at most 10 % of the cloud missed (common practice, "
-       "no source)", stage="physics")
+@rule(BARRIER_TOO_SHORT, stage="physics")
 def barrier_too_short(shot):
-    """The barrier is off before most of the cloud has crossed it: more than
-    10 % of the atoms pass the sheet's far edge (d + w_y) only after the
-    barrier action ends, and fly on unhindered. Each atom starts at its place
-    in the cloud (Thomas-Fermi or Gaussian profile along the path, as for
-    physics.cloud-overlaps-barrier) with its velocity offset from the spread,
-    and moves with the push (uniform acceleration over the push, then the
-    pushed speed). A long cloud needs about its length over the speed; the
-    hint gives the duration by which 99 % have crossed. Lengthen the barrier,
-    or shorten the cloud along the path."""
     for act, rep in _each(shot):
         ps = rep["passage"]
         if ps["late"] <= MISSED_FRACTION:
@@ -669,42 +637,28 @@ def barrier_too_short(shot):
         need = ps["need_off"] - ps["on"]
         hint = (f"keep the barrier on for at least {_ms(need)} (99 % of the cloud across)" if math.isfinite(need)
                 else "part of the cloud never reaches the sheet: push harder")
-        yield make("physics.barrier-too-short", f"barrier '{act.args['beam']}' is off {_ms(ps['off'])} after the push "
+        yield make(BARRIER_TOO_SHORT, f"barrier '{act.args['beam']}' is off {_ms(ps['off'])} after the push "
                    f"starts, but {_pct(ps['late'])} of the cloud crosses the sheet {_um(ps['distance'])} away only later "
                    f"(v = {rep['speed'] * 1e3:.4g} mm/s, {rep['spread_kind']}): those atoms pass unhindered",
                    act.pos, block=act.block, time_s=act.t1, hint=hint,
                    data={"missed_fraction": ps["late"], "barrier_off_s": ps["off"], "needed_off_s": ps["need_off"]})
 
 
-@check("physics.barrier-too-late", "warning", _SRC_PASSAGE + "; at most 10 % of the cloud missed (common practice, "
-       "no source)", stage="physics")
+@rule(BARRIER_TOO_LATE, stage="physics")
 def barrier_too_late(shot):
-    """The barrier comes on after part of the cloud has reached it: more than
-    10 % of the atoms are at or past the sheet's near edge (d - w_y) when the
-    barrier action starts, so they are not scattered from one side (they
-    passed before, or the sheet is switched on around them). Same model as
-    physics.barrier-too-short. Start the barrier earlier (the hint gives the
-    latest start by which only 1 % have arrived)."""
     for act, rep in _each(shot):
         ps = rep["passage"]
         if ps["overlap"] or ps["early"] <= MISSED_FRACTION:
             continue  # an overlapping cloud is physics.cloud-overlaps-barrier's
-        yield make("physics.barrier-too-late", f"barrier '{act.args['beam']}' comes on {_ms(ps['on'])} after the push "
+        yield make(BARRIER_TOO_LATE, f"barrier '{act.args['beam']}' comes on {_ms(ps['on'])} after the push "
                    f"starts, when {_pct(ps['early'])} of the cloud has already reached the sheet {_um(ps['distance'])} "
                    f"away (v = {rep['speed'] * 1e3:.4g} mm/s)", act.pos, block=act.block, time_s=act.t0,
                    hint=f"start the barrier no later than {_ms(ps['need_on'])} after the push starts",
                    data={"early_fraction": ps["early"], "barrier_on_s": ps["on"], "needed_on_s": ps["need_on"]})
 
 
-@check("physics.barrier-no-signal", "warning", "atom number per image above a detection floor, default 100 atoms "
-       "(common practice, no source); transmission as in physics.barrier-transmission", stage="physics")
+@rule(BARRIER_NO_SIGNAL, stage="physics")
 def barrier_no_signal(shot):
-    """Too few atoms on one side of the barrier to be seen: the predicted
-    transmitted number (sample atoms x transmitted fraction) is below the
-    detection floor (`sample: {detection_floor: ...}`, default 100 atoms), or,
-    unless the barrier `expect`s `over_barrier`, the reflected number is. A
-    fraction read from an image where one part is invisible carries no
-    information. Lower or raise the sheet power, or change the kick."""
     for act, rep in _each(shot):
         if "N_T" not in rep:
             continue
@@ -715,33 +669,27 @@ def barrier_no_signal(shot):
         elif rep["N_R"] < floor and rep["expect"] != "over_barrier":
             side, n, fix = "reflected", rep["N_R"], "raise the sheet power or kick less"
         if side:
-            yield make("physics.barrier-no-signal", f"only {n:.3g} {side} atoms predicted (transmitted fraction "
+            yield make(BARRIER_NO_SIGNAL, f"only {n:.3g} {side} atoms predicted (transmitted fraction "
                        f"{rep['T']:.3g} of {shot.sample.atoms:.3g}); detection floor {floor:g} atoms", act.pos,
                        block=act.block, time_s=act.t0, hint=fix, data={"atoms": n, "floor": floor})
 
 
-@check("physics.not-tunnelling", "warning", "classical turning point: transmission below the barrier top is "
-       "tunnelling (any quantum mechanics text)", stage="physics")
+@rule(NOT_TUNNELLING, stage="physics")
 def not_tunnelling(shot):
-    """The barrier's `expect:` does not match the energies: `expect: tunnelling`
-    but the mean kinetic energy m <v^2> / 2 of the incident atoms is above the
-    barrier top V0 (the atoms pass over it classically), or
-    `expect: over_barrier` but it is below V0. Change the sheet power or the
-    kick, or correct `expect`."""
     for act, rep in _each(shot):
         e, v0, want = rep["E_mean"], rep["V0"], rep["expect"]
         if want == "tunnelling" and v0 <= 0:
-            yield make("physics.not-tunnelling", f"expect: tunnelling, but '{act.args['beam']}' is red-detuned for "
+            yield make(NOT_TUNNELLING, f"expect: tunnelling, but '{act.args['beam']}' is red-detuned for "
                        f"{shot.sample.species}: it makes a well ({_energy_text(v0)}), not a barrier", act.pos,
                        block=act.block, time_s=act.t0, hint="use a beam blue of the D lines for a barrier",
                        data={"E_J": e, "V0_J": v0})
         elif want == "tunnelling" and e >= v0:
-            yield make("physics.not-tunnelling", f"expect: tunnelling, but the mean kinetic energy {_energy_text(e)} "
+            yield make(NOT_TUNNELLING, f"expect: tunnelling, but the mean kinetic energy {_energy_text(e)} "
                        f"is above the barrier top {_energy_text(v0)}", act.pos, block=act.block, time_s=act.t0,
                        hint=f"raise the sheet power above {act.args['power'] * e / v0 * 1e3:.3g} mW or kick less",
                        data={"E_J": e, "V0_J": v0})
         elif want == "over_barrier" and e < v0:
-            yield make("physics.not-tunnelling", f"expect: over_barrier, but the mean kinetic energy {_energy_text(e)} "
+            yield make(NOT_TUNNELLING, f"expect: over_barrier, but the mean kinetic energy {_energy_text(e)} "
                        f"is below the barrier top {_energy_text(v0)}", act.pos, block=act.block, time_s=act.t0,
                        hint=f"lower the sheet power below {act.args['power'] * e / v0 * 1e3:.3g} mW or kick harder",
                        data={"E_J": e, "V0_J": v0})
@@ -769,56 +717,33 @@ def _with_rotation(shot):
             yield act, rep
 
 
-@check("physics.barrier-rotation", "note", _SRC_DRIVE, stage="physics")
+@rule(BARRIER_ROTATION, stage="physics")
 def barrier_rotation(shot):
-    """The spin rotation that an intensity-modulated barrier drives in the
-    atoms it transmits. The modulation couples the sample state to the other
-    hyperfine level at equal mF with a Rabi frequency that follows the local
-    intensity, Omega(x) = Omega_peak exp(-2 x^2 / w_y^2); seqgen solves the
-    two-component scattering problem (differential light shift and detuning
-    from the Breit-Rabi line at the rig's bias field included) and reports the
-    angle between the incident and the transmitted Bloch vectors, averaged over
-    the momentum distribution with the transmitted probability as weight. The
-    rig file does not give the sheet's polarisation; circular light (the
-    largest coupling) is assumed."""
     for act, rep in _each(shot):
         d = rep.get("drive")
         if not d:
             continue
         if "reason" in d:
-            yield make("physics.barrier-rotation", d["reason"], act.pos, block=act.block, time_s=act.t0)
+            yield make(BARRIER_ROTATION, d["reason"], act.pos, block=act.block, time_s=act.t0)
             continue
-        yield make("physics.barrier-rotation", _rotation_text(rep), act.pos, block=act.block, time_s=act.t0,
+        yield make(BARRIER_ROTATION, _rotation_text(rep), act.pos, block=act.block, time_s=act.t0,
                    data={"rotation_rad": rep["rotation"], "rotation_spread_rad": rep["rotation_spread"],
                          "rabi_peak_rad_s": d["rabi_peak"], "detuning_hz": d["detuning_hz"]})
 
 
-@check("physics.drive-too-strong", "warning", _SRC_DRIVE + "; weak-probe regime (common practice, no source)",
-       stage="physics")
+@rule(DRIVE_TOO_STRONG, stage="physics")
 def drive_too_strong(shot):
-    """The drive inside the barrier rotates the transmitted spin by more than
-    `limits: {weak_probe_angle: ...}` (default 0.3 rad). A weak probe reads the
-    time the atoms spend in the barrier in linear response; a strong drive
-    changes the scattering itself (the two dressed states see different
-    barriers) and the rotation no longer measures that time. Lower the
-    modulation depth or the sheet power."""
     lim = shot.limits.weak_probe_angle
     for act, rep in _with_rotation(shot):
         if rep["rotation"] > lim:
-            yield make("physics.drive-too-strong", f"the modulated barrier rotates the transmitted spin by "
+            yield make(DRIVE_TOO_STRONG, f"the modulated barrier rotates the transmitted spin by "
                        f"{rep['rotation']:.3g} rad, above the weak-probe limit {lim:g} rad", act.pos, block=act.block,
                        time_s=act.t0, hint=f"lower the modulation depth to about {rep['drive']['depth'] * lim / rep['rotation'] * 0.8:.2g}",
                        data={"rotation_rad": rep["rotation"], "limit_rad": lim})
 
 
-@check("physics.rotation-unresolvable", "warning", _SRC_DRIVE + "; atom shot noise 1/sqrt(N) of a spin-rotation "
-       "measurement (quantum projection noise, Phys. Rev. A 47, 3554 (1993), from memory)", stage="physics")
+@rule(ROTATION_UNRESOLVABLE, stage="physics")
 def rotation_unresolvable(shot):
-    """The spin rotation driven inside the barrier is smaller than the atom
-    shot noise of the transmitted atoms, about 1/sqrt(N_transmitted) rad, so
-    one shot cannot resolve it. Usual causes: a modulation frequency off the
-    transition (the message gives the detuning), a modulation depth too small,
-    or too few transmitted atoms."""
     for act, rep in _with_rotation(shot):
         n = rep.get("N_T")
         if not n:
@@ -829,7 +754,7 @@ def rotation_unresolvable(shot):
             off = abs(d["detuning_hz"]) * 2 * math.pi * rep["waist_y"] / rep["speed"] > 3.0
             hint = (f"tune the modulation to the line at {d['transition_hz'] / 1e9:.7g} GHz"
                     if off else "raise the modulation depth, or transmit more atoms")
-            yield make("physics.rotation-unresolvable", f"rotation {rep['rotation']:.3g} rad of the transmitted spin is below "
+            yield make(ROTATION_UNRESOLVABLE, f"rotation {rep['rotation']:.3g} rad of the transmitted spin is below "
                        f"the shot noise {noise:.3g} rad of {n:.3g} transmitted atoms (detuning "
                        f"{_hz_text(d['detuning_hz'])})", act.pos, block=act.block, time_s=act.t0, hint=hint,
                        data={"rotation_rad": rep["rotation"], "noise_rad": noise})

@@ -30,10 +30,11 @@ import numpy as np
 from scipy import constants as sc
 
 from ..findings import make
-from ..registry import check
+from .rules import rule
 from ..values import value_at
 from .physics_states import _fmt_t
 from .physics_traps import _species, per_shot_cache
+from ..codes import MAGNETIC_TRAP_LOST, MAJORANA_LOSS, STATE_NOT_TRAPPABLE
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
 TESLA_PER_GAUSS = 1e-4
@@ -200,21 +201,12 @@ _SRC_STATE = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); a static field ha
               "only low-field seekers are trapped (Phys. Rev. Lett. 51, 1336 (1983)) (from memory)")
 
 
-@check("physics.state-not-trappable", "error", _SRC_STATE, stage="physics")
+@rule(STATE_NOT_TRAPPABLE, stage="physics")
 def state_not_trappable(shot):
-    """The state held in a magnetic trap is not a low-field seeker: a
-    high-field seeker (its energy falls as the field grows, moment = -dE/dB
-    > 0) or a state without magnetic moment (mF = 0, |moment| below 0.01 mu_B).
-    A static magnetic field has a minimum of |B| but no maximum in free
-    space, so only low-field seekers are held; the others fall out at once.
-    The moment comes from the Breit-Rabi formula at the trap's bottom field
-    for the sample state (or the hold's `state:`). Transfer the atoms to a
-    low-field-seeking state first (a clock pulse or a sweep), or hold them in
-    an optical trap."""
     for act in _holds(shot):
         rep = hold_analysis(shot, act)
         if rep.get("bad_state"):
-            yield make("physics.state-not-trappable", f"the held state is not a ground level of {rep['species']}: "
+            yield make(STATE_NOT_TRAPPABLE, f"the held state is not a ground level of {rep['species']}: "
                        f"{rep['bad_state']}", act.pos, block=act.block, time_s=act.t0,
                        hint="give the state's F and mF of the species' ground levels")
             continue
@@ -224,7 +216,7 @@ def state_not_trappable(shot):
         ok = ", ".join(_state_text(s) for s in trappable_states(sp))
         mom = rep["moment"]
         why = ("has no magnetic moment" if abs(mom) < MIN_MOMENT else "is a high-field seeker")
-        yield make("physics.state-not-trappable", f"{_state_text(rep['state'])} of {rep['species']} {why} "
+        yield make(STATE_NOT_TRAPPABLE, f"{_state_text(rep['state'])} of {rep['species']} {why} "
                    f"(moment -dE/dB = {mom / MU_B:+.3g} mu_B): the magnetic trap cannot hold it", act.pos,
                    block=act.block, time_s=act.t0,
                    hint=f"transfer the atoms to a low-field seeker first ({ok}), or hold them optically",
@@ -235,20 +227,8 @@ _SRC_LOST = ("force = moment x gradient of |B|, standard gravity g_n (SI Brochur
              "Ioffe-Pritchard field, Phys. Rev. Lett. 51, 1336 (1983)")
 
 
-@check("physics.magnetic-trap-lost", "error", _SRC_LOST, stage="physics")
+@rule(MAGNETIC_TRAP_LOST, stage="physics")
 def magnetic_trap_lost(shot):
-    """The magnetic trap of a hold does not hold the atoms against gravity.
-
-    A quadrupole (B = M r, linear) holds a low-field seeker of moment mu only
-    if |mu| G_hold >= m g_n, where G_hold = 1/|M^-1 up| is the gradient that
-    gravity meets (for one coil pair: the axial gradient when its axis is
-    vertical, half of it when horizontal): below the levitation gradient
-    m g_n / |mu| the atoms fall through. In an Ioffe-Pritchard trap the radial
-    field grows at B' far from the axis, so |mu| B' must carry the weight
-    across the axis; and B'' > 0 and B'^2/B0 > B''/2 are needed for
-    confinement at all. Not raised while optical trap beams are on (a hybrid
-    trap). Raise the currents (the hint gives the factor), or use a stronger
-    coil."""
     for act in _holds(shot):
         rep = hold_analysis(shot, act)
         if not rep.get("trappable") or rep["optical"]:
@@ -256,7 +236,7 @@ def magnetic_trap_lost(shot):
         mom, sp = rep["moment"], _species(shot)
         weight = sp.mass_kg * 9.80665
         if rep.get("unconfined"):
-            yield make("physics.magnetic-trap-lost", f"the Ioffe-Pritchard trap does not confine {_state_text(rep['state'])} "
+            yield make(MAGNETIC_TRAP_LOST, f"the Ioffe-Pritchard trap does not confine {_state_text(rep['state'])} "
                        f"{rep['unconfined']} (B0 {_gauss(rep['bias'])}, B' {_g_cm(rep['gradient'])}, "
                        f"B'' {_g_cm2(rep['curvature'])})", act.pos, block=act.block, time_s=rep["t_hold"],
                        hint="check the coil currents and the signs of the coils' per-amp fields in the rig file")
@@ -271,7 +251,7 @@ def magnetic_trap_lost(shot):
         else:
             what = f"the radial gradient B' is {_g_cm(abs(rep['gradient']))}"
         hint = _current_hint(rep, 1 / support) if support > 0 else "give the coils a gradient (gradient_per_amp) and a current"
-        yield make("physics.magnetic-trap-lost", f"the magnetic trap does not hold {_state_text(rep['state'])} of "
+        yield make(MAGNETIC_TRAP_LOST, f"the magnetic trap does not hold {_state_text(rep['state'])} of "
                    f"{rep['species']} against gravity: {what}, {support:.3g} of the levitation gradient "
                    f"{_g_cm(need)} (m g_n / |moment|)", act.pos, block=act.block, time_s=rep["t_hold"], hint=hint,
                    data={"support": support, "levitation_gradient_t_m": need})
@@ -282,22 +262,8 @@ _SRC_MAJORANA = ("Majorana loss rate ~ hbar / (m l^2) for a cloud of size l = k_
                  "field-rotation rates x 10 (common practice, no source)")
 
 
-@check("physics.majorana-loss", "warning", _SRC_MAJORANA, stage="physics")
+@rule(MAJORANA_LOSS, stage="physics")
 def majorana_loss(shot):
-    """Atoms are lost by Majorana spin flips near a field zero or a weak field minimum.
-
-    In a quadrupole trap the field vanishes at the centre; within about
-    r0 = sqrt(hbar v / (|mu| b')) the field direction turns faster than the
-    spin can follow and the atom flips to an untrapped state. The loss rate is
-    of order hbar / (m l^2), l = k_B T / (|mu| b') the cloud size (b' the
-    weakest gradient); the warning fires when the hold is longer than this
-    lifetime m l^2 / hbar (an order-of-magnitude estimate: cold clouds are
-    lost fastest). In an Ioffe-Pritchard trap it fires when the bias B0 is
-    zero or negative (a field zero), or when the Larmor frequency at B0 is
-    less than 10 times the larger of the radial trap frequency and the rate
-    v B'/B0 at which the field turns for an atom crossing the axis (v =
-    sqrt(k_B T / m)). Shorten the hold, plug the zero (optical plug,
-    Ioffe-Pritchard trap, rotating bias), or raise the bias."""
     for act in _holds(shot):
         rep = hold_analysis(shot, act)
         if not rep.get("trappable"):
@@ -307,7 +273,7 @@ def majorana_loss(shot):
             if tau is None or rep["duration"] <= tau:
                 continue
             lost = 1 - math.exp(-rep["duration"] / tau)
-            yield make("physics.majorana-loss", f"Majorana spin flips: at {shot.sample.temperature_k * 1e6:.4g} uK the "
+            yield make(MAJORANA_LOSS, f"Majorana spin flips: at {shot.sample.temperature_k * 1e6:.4g} uK the "
                        f"cloud in the quadrupole is ~{rep['cloud_size'] * 1e6:.3g} um (k_B T / |moment| b', "
                        f"b' = {_weakest_text(rep, short=True)}), lifetime "
                        f"~ m l^2/hbar = {_fmt_t(tau)}, shorter than the {_fmt_t(rep['duration'])} hold (~{lost:.0%} lost)",
@@ -315,11 +281,11 @@ def majorana_loss(shot):
                        hint="shorten the hold, or plug the field zero (optical plug, Ioffe-Pritchard trap, rotating bias)",
                        data={"lifetime_s": tau, "hold_s": rep["duration"]})
         elif rep.get("field_zero"):
-            yield make("physics.majorana-loss", f"the Ioffe-Pritchard trap's bias B0 = {_gauss(rep['bias'])} leaves a field "
+            yield make(MAJORANA_LOSS, f"the Ioffe-Pritchard trap's bias B0 = {_gauss(rep['bias'])} leaves a field "
                        f"zero in the trap: spins flip there and atoms are lost", act.pos, block=act.block,
                        time_s=rep["t_hold"], hint="raise the bias (less anti-bias current) to well above zero")
         elif rep.get("adiabaticity") is not None and rep["adiabaticity"] < MIN_SPIN_ADIABATICITY:
-            yield make("physics.majorana-loss", f"Ioffe-Pritchard bias {_gauss(rep['bias'])} is low: Larmor frequency "
+            yield make(MAJORANA_LOSS, f"Ioffe-Pritchard bias {_gauss(rep['bias'])} is low: Larmor frequency "
                        f"{rep['larmor'] / (2 * math.pi):.4g} Hz is only {rep['adiabaticity']:.3g} x the faster of the radial "
                        f"trap frequency ({rep['omega_radial'] / (2 * math.pi):.4g} Hz) and the field rotation rate "
                        f"({rep['rotation'] / (2 * math.pi):.4g} Hz); want >= {MIN_SPIN_ADIABATICITY:g}", act.pos,

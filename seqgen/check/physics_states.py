@@ -43,9 +43,15 @@ from scipy import constants as sc
 from scipy import optimize
 
 from ..findings import make
-from ..registry import check
+from .rules import rule
 from ..values import value_at
 from .physics_traps import _gaussian_beams, _held, _species, cloud_at_image, per_shot_cache
+from ..codes import (
+    COMPONENTS_OVERLAP, COMPONENTS_SEPARATED, EQUAL_MOMENTS, EXPOSURE_TOO_SHORT, IMAGING_BLUR,
+    MODULATION_OFF_RESONANCE, MODULATION_UNREACHABLE, PROBE_DOPPLER, PULSE_ANGLE, PULSE_DETUNED,
+    PUSH_AWAY_FROM_BARRIER, PUSH_NO_FORCE, PUSH_TOO_LATE, PUSH_VELOCITY, SWEEP_NOT_ADIABATIC,
+    TRANSITION_UNPOPULATED,
+)
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
 TWO_PI = 2 * math.pi
@@ -258,17 +264,8 @@ _SRC_AREA = ("pulse area theorem, Phys. Rev. 183, 457 (1969); the rig file's dri
              "and the amplitude envelope as compiled")
 
 
-@check("physics.pulse-angle", "error", _SRC_AREA, stage="physics")
+@rule(PULSE_ANGLE, stage="physics")
 def pulse_angle(shot):
-    """A clock pulse's declared `angle` does not match its pulse area. seqgen
-    integrates the Rabi frequency over the pulse: the drive's calibration
-    (`rabi_per_amplitude` in the rig file, Omega/2pi at amplitude 1) times the
-    amplitude written to the drive's channel, with the envelope (square,
-    Blackman, Gaussian) exactly as compiled. A resonant pulse rotates the
-    state by this area (pi/2: equal superposition, pi: inversion). The
-    allowed relative difference is `limits: {angle_tolerance: ...}` (default
-    0.05). Change the duration or the amplitude (the hint gives both), or
-    recalibrate the drive in the rig file."""
     tol = shot.limits.angle_tolerance
     for act in _pulses(shot):
         rep = pulse_analysis(shot, act)
@@ -279,7 +276,7 @@ def pulse_angle(shot):
             k = rep["angle"] / rep["area"]
             amp_hint = (f" or amplitude {act.args.get('amplitude', 1.0) * k:.4g}" if act.args.get("amplitude", 1.0) * k <= 1
                         else "")
-            yield make("physics.pulse-angle", f"pulse area on '{rep['drive']}' is {_pi(rep['area'])} (peak Rabi frequency "
+            yield make(PULSE_ANGLE, f"pulse area on '{rep['drive']}' is {_pi(rep['area'])} (peak Rabi frequency "
                        f"2 pi x {_fmt_hz(rep['peak_rabi_hz'])}, {rep['envelope']} envelope, {_fmt_t(rep['duration'])}), "
                        f"but angle says {_pi(rep['angle'])}: off by {off * 100:.3g} % (limit {tol * 100:g} %)",
                        act.pos, block=act.block, time_s=act.t0,
@@ -291,19 +288,8 @@ _SRC_DETUNED = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); Rabi formula, P
                 "propagation with a Magnus integrator, Phys. Rep. 470, 151 (2009)")
 
 
-@check("physics.pulse-detuned", "warning", _SRC_DETUNED + "; 10 % of the intended transfer (common practice, no source)",
-       stage="physics")
+@rule(PULSE_DETUNED, stage="physics")
 def pulse_detuned(shot):
-    """A clock pulse's `frequency` is so far from the transition that the
-    pulse does not do what it should. The line is the Breit-Rabi frequency of
-    the pulse's `transition` (default: the sample state to the other
-    hyperfine level at equal mF) at the rig's bias field, plus the drive's
-    `light_shift`. seqgen integrates the Bloch equations of the actual pulse
-    (envelope as compiled) at the actual detuning and at the intended one
-    (`detuning:`, default 0) and warns when the transfer differs by more than
-    10 % of the intended transfer. The message gives the Fourier width of
-    the pulse: the detuning it tolerates is about a fraction of it. Set the
-    frequency to the line (the hint gives it) or declare the detuning."""
     for act in _pulses(shot):
         rep = pulse_analysis(shot, act)
         if not rep or rep.get("detuning_source") != "frequency" or "transfer" not in rep:
@@ -313,7 +299,7 @@ def pulse_detuned(shot):
             fw = _fourier_width(shot, act, rep)
             initial, final = rep["pair"]
             target = rep["resonance_hz"] + rep["intended_detuning_hz"]
-            yield make("physics.pulse-detuned", f"drive '{rep['drive']}' at {_line_hz(act.args['frequency'])} is "
+            yield make(PULSE_DETUNED, f"drive '{rep['drive']}' at {_line_hz(act.args['frequency'])} is "
                        f"{_fmt_hz(rep['detuning_hz'])} from the {state_text(initial)} -> {state_text(final)} line at "
                        f"{_line_hz(rep['resonance_hz'])} ({_bias(shot) * 1e4:.4g} G bias); transfer {p:.3g} instead of "
                        f"{p0:.3g}" + (f"; Fourier width {_fmt_hz(fw)}" if fw else ""), act.pos, block=act.block,
@@ -429,32 +415,21 @@ def sweep_analysis(shot, drive, seg):
     return rep
 
 
-@check("physics.sweep-not-adiabatic", "warning", "Landau-Zener formula, Proc. R. Soc. A 137, 696 (1932); Breit-Rabi "
-       "formula, Phys. Rev. 38, 2082 (1931); 90 % transfer (common practice, no source)", stage="physics")
+@rule(SWEEP_NOT_ADIABATIC, stage="physics")
 def sweep_not_adiabatic(shot):
-    """A rapid adiabatic passage that does not transfer the atoms: a `sweep`
-    of a drive's frequency while its amplitude is on either misses the line
-    (Breit-Rabi at the bias field plus the drive's light shift; the sample
-    state to the other hyperfine level at equal mF), or crosses it too fast.
-    At the crossing seqgen takes the sweep rate and the Rabi frequency and
-    gives the Landau-Zener transfer 1 - exp(-pi Omega^2 / (2 |d Delta/dt|));
-    it warns below 0.9. The message also gives the transfer of the actual,
-    finite sweep from integrating the Bloch equations (it differs from
-    Landau-Zener when the sweep starts or ends within a few Rabi frequencies
-    of the line). Sweep more slowly, raise the amplitude, or widen the sweep."""
     for drive, seg in _sweeps(shot):
         rep = sweep_analysis(shot, drive, seg)
         if rep is None:
             continue
         bloch = f"; integrated transfer {rep['bloch_transfer']:.3g}" if "bloch_transfer" in rep else ""
         if not rep["crosses"]:
-            yield make("physics.sweep-not-adiabatic", f"sweep of '{drive.name}' from {_line_hz(rep['f0'])} to "
+            yield make(SWEEP_NOT_ADIABATIC, f"sweep of '{drive.name}' from {_line_hz(rep['f0'])} to "
                        f"{_line_hz(rep['f1'])} does not cross the {state_text(rep['pair'][0])} -> "
                        f"{state_text(rep['pair'][1])} line at {_line_hz(rep['resonance_hz'])}{bloch}", seg.pos,
                        block=seg.block, time_s=seg.t0, hint="sweep across the line", data={"lz_transfer": 0.0})
         elif rep["lz_transfer"] < LZ_MIN_TRANSFER:
             need = abs(rep["f1"] - rep["f0"]) / rep["max_rate_hz_s"] if rep["max_rate_hz_s"] > 0 else math.inf
-            yield make("physics.sweep-not-adiabatic", f"sweep of '{drive.name}' crosses the line at "
+            yield make(SWEEP_NOT_ADIABATIC, f"sweep of '{drive.name}' crosses the line at "
                        f"{_fmt_hz(abs(rep['rate_hz_s']))}/s with Rabi frequency 2 pi x {_fmt_hz(rep['rabi_hz'])}: "
                        f"Landau-Zener transfer {rep['lz_transfer']:.3g} (below {LZ_MIN_TRANSFER:g}){bloch}", seg.pos,
                        block=seg.block, time_s=rep["t_cross"],
@@ -517,31 +492,15 @@ _SRC_MOD = ("modulated-beam Raman coupling through the vector light shift and di
             "Adv. At. Mol. Opt. Phys. 42, 95 (2000); Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)")
 
 
-@check("physics.modulation-off-resonance", "warning", _SRC_MOD + "; resonance within one Rabi frequency "
-       "(common practice, no source)", stage="physics")
+@rule(MODULATION_OFF_RESONANCE, stage="physics")
 def modulation_off_resonance(shot):
-    """A barrier's intensity modulation is off the transition it should drive
-    by more than the drive's Rabi frequency, so it barely drives it. The
-    transition is the barrier's `modulation: {transition: ...}` (default:
-    the sample state to the other hyperfine level at equal mF; the model
-    couples equal mF only); its frequency is the Breit-Rabi line at the bias
-    field plus the time-averaged differential light shift of the sheet. The
-    Rabi frequency is that of the co-propagating Raman pair made by the
-    modulation (vector light shift, circular polarisation assumed since the
-    rig file does not give it, so the largest coupling), at the peak intensity
-    2P/(pi w w_y). seqgen warns when the offset exceeds both that Rabi
-    frequency and the Fourier width of the barrier pulse (0.886 / duration,
-    the FWHM of a square pulse's power spectrum): within either the drive
-    still works. Atoms crossing the sheet see it only for their transit
-    time, which widens the line further; see `physics.barrier-rotation`.
-    Tune `modulation: {frequency: ...}` to the line (the hint gives it)."""
     for act in _barriers(shot):
         rep = barrier_drive_analysis(shot, act)
         if not rep or "offset_hz" not in rep:
             continue
         if abs(rep["offset_hz"]) > rep["tolerance_hz"]:
             a, b = rep["pair"]
-            yield make("physics.modulation-off-resonance", f"modulation at {_line_hz(rep['f_mod'])} is "
+            yield make(MODULATION_OFF_RESONANCE, f"modulation at {_line_hz(rep['f_mod'])} is "
                        f"{_fmt_hz(rep['offset_hz'])} from the {state_text(a)} -> {state_text(b)} line at "
                        f"{_line_hz(rep['resonance_hz'])} (Breit-Rabi {_line_hz(rep['bare_hz'])}, differential light shift "
                        f"{_fmt_hz(rep['light_shift_hz'])}), more than the drive's Rabi frequency 2 pi x {_fmt_hz(rep['rabi_hz'])} and "
@@ -550,14 +509,8 @@ def modulation_off_resonance(shot):
                        data={"offset_hz": rep["offset_hz"], "rabi_hz": rep["rabi_hz"]})
 
 
-@check("hardware.modulation-unreachable", "error", "sampling theorem, Proc. IRE 37, 10 (1949) (from memory); the rig "
-       "file's device timebase and minimum interval", stage="physics")
+@rule(MODULATION_UNREACHABLE, stage="physics")
 def modulation_unreachable(shot):
-    """A barrier's modulation is put on an analog (or digital) channel, i.e.
-    as rows of a channel table, but the channel's device cannot update fast
-    enough: a modulation at frequency f needs an update rate above 2 f
-    (timebase / minimum interval of the device). Put the modulation on a
-    synth channel (a frequency source), or lower the frequency."""
     for act in _barriers(shot):
         name, f = act.args.get("mod_channel"), act.args.get("mod_frequency")
         out = shot.rig.outputs.get(name) if name else None
@@ -568,7 +521,7 @@ def modulation_unreachable(shot):
             continue
         rate = dev.timebase_hz / max(1, dev.min_interval_ticks)
         if rate <= 2 * f:
-            yield make("hardware.modulation-unreachable", f"modulation at {_fmt_hz(f)} on {out.kind} channel "
+            yield make(MODULATION_UNREACHABLE, f"modulation at {_fmt_hz(f)} on {out.kind} channel "
                        f"'{out.channel}' needs more than {_fmt_hz(2 * f)} of updates, but device '{dev.name}' updates at "
                        f"most {_fmt_hz(rate)}", act.pos, block=act.block, time_s=act.t0,
                        hint="modulate through a synth channel of the rig (kind: synth)",
@@ -715,20 +668,8 @@ _SRC_UNPOP = ("populations followed from the sample state through clock pulses (
               "no source)")
 
 
-@check("physics.transition-unpopulated", "warning", _SRC_UNPOP, stage="physics")
+@rule(TRANSITION_UNPOPULATED, stage="physics")
 def transition_unpopulated(shot):
-    """A clock pulse drives a transition neither of whose states holds any
-    atoms: the pulse does nothing (e.g. the sample is in |F=2, mF=+2> and
-    the pulse's `transition` is |F=1, mF=-1> -> |F=2, mF=-2>). seqgen follows
-    the populations from the sample state through the earlier clock pulses
-    (their transfer from the Bloch equations of the pulse as compiled) and
-    frequency sweeps (Landau-Zener / Bloch transfer), incoherently; a
-    barrier's modulation drive makes its other state possibly populated, and
-    a `magnetic_hold` with `state:` puts the atoms in that state. A state
-    counts as empty below the sample's `detection_floor` (default 100 atoms)
-    or below 1 % of the atoms. A warning, not an error: a drive seqgen does
-    not model may have filled the state. Fix the pulse's `transition` or
-    the sample's `state`."""
     if _species(shot) is None or _sample_state(shot) is None:
         return
     for act in _pulses(shot):
@@ -745,7 +686,7 @@ def transition_unpopulated(shot):
         target = full[0] if full else None
         hint = (f"start the transition from a populated state, e.g. transition: [{{F: {target[0]}, mF: {target[1]}}}, "
                 f"...], or fix the sample's state" if target else "fix the sample's state or the pulse's transition")
-        yield make("physics.transition-unpopulated", f"the clock pulse on '{rep['drive']}' drives {state_text(a)} -> "
+        yield make(TRANSITION_UNPOPULATED, f"the clock pulse on '{rep['drive']}' drives {state_text(a)} -> "
                    f"{state_text(b)}, but neither state holds atoms: before it the atoms are in {where}", act.pos,
                    block=act.block, time_s=act.t0, hint=hint,
                    data={"fraction_initial": fr.get(a, 0.0), "fraction_final": fr.get(b, 0.0)})
@@ -820,18 +761,8 @@ _SRC_PUSH = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); force = moment x f
              "(textbook); photon recoil and steady-state scattering, Adv. At. Mol. Opt. Phys. 42, 95 (2000)")
 
 
-@check("physics.push-velocity", "error", _SRC_PUSH, stage="physics")
+@rule(PUSH_VELOCITY, stage="physics")
 def push_velocity(shot):
-    """A push does not give the velocity its `expect_velocity` says. A
-    magnetic push gives |dv| = |mu| b' tau / m with mu = -dE/dB of the sample
-    state from the Breit-Rabi formula at the rig's bias field, b' the
-    gradient and tau the duration; an optical push gives N v_rec with N the
-    photons scattered from the beam (steady-state rate, saturation from the
-    beam's power and waist). Magnitudes are compared (the direction is
-    physics.push-away-from-barrier's business); the allowed
-    relative difference is the push's `tolerance` (default 0.1). Change the
-    gradient or the duration (the hint gives the duration), or fix
-    `expect_velocity`."""
     for act in _pushes(shot):
         want = act.args.get("expect_velocity")
         rep = push_analysis(shot, act)
@@ -845,26 +776,13 @@ def push_velocity(shot):
                    f"{rep['photons']:.3g} photons of {rep['recoil'] * 1e3:.4g} mm/s recoil")
             hint = (f"use duration {_fmt_t(rep['duration'] * abs(want) / got)} for {abs(want) * 1e3:.4g} mm/s"
                     if got > 0 else "the push gives no velocity")
-            yield make("physics.push-velocity", f"the push gives {got * 1e3:.4g} mm/s ({how}, {_fmt_t(rep['duration'])}), "
+            yield make(PUSH_VELOCITY, f"the push gives {got * 1e3:.4g} mm/s ({how}, {_fmt_t(rep['duration'])}), "
                        f"but expect_velocity is {abs(want) * 1e3:.4g} mm/s (tolerance {tol * 100:g} %)", act.pos,
                        block=act.block, time_s=act.t0, hint=hint, data={"velocity_m_s": got, "expected_m_s": abs(want)})
 
 
-@check("physics.push-away-from-barrier", "error", "force = moment x grad|B| with moment = -dE/dB (Breit-Rabi "
-       "formula, Phys. Rev. 38, 2082 (1931)); photon recoil along the beam (textbook); the rig file's "
-       "field_grows_along and beam positions", stage="physics")
+@rule(PUSH_AWAY_FROM_BARRIER, stage="physics")
 def push_away_from_barrier(shot):
-    """A push sends the atoms away from the barrier that follows it. A
-    magnetic push moves a state with moment mu = -dE/dB > 0 (a high-field
-    seeker) towards stronger field and a low-field seeker (mu < 0) towards
-    weaker field; the rig's coil says where the field grows
-    (`field_grows_along`); an optical push moves atoms along its beam. The
-    barrier beam's `position` in the rig is taken relative to the atoms
-    before the push (the trap centre, the rig's origin). Usually the sample
-    is in the wrong state (e.g. |F=2, mF=-2> instead of |F=1, mF=-1>), or
-    the coil or the barrier sits on the other side. (Reversing a coil's
-    current does not reverse where its |B| grows.) Without `field_grows_along` the direction of a magnetic push is
-    unknown and this check is silent."""
     for act in _pushes(shot):
         rep = push_analysis(shot, act)
         if not rep or rep.get("no_force") or "direction" not in rep:
@@ -884,7 +802,7 @@ def push_away_from_barrier(shot):
                    f"{'stronger' if rep['moment'] > 0 else 'weaker'} field, i.e. along "
                    f"{_vec_text(rep['direction'])}" if rep["kind"] == "magnetic"
                    else f"light pushes along the beam '{rep['beam']}', {_vec_text(rep['direction'])}")
-            yield make("physics.push-away-from-barrier", f"the push moves the atoms away from barrier '{beam.name}' "
+            yield make(PUSH_AWAY_FROM_BARRIER, f"the push moves the atoms away from barrier '{beam.name}' "
                        f"(block '{bar.block}', {dist * 1e3:.4g} mm away along {_vec_text(where / dist)}): {why}",
                        act.pos, block=act.block, time_s=act.t0,
                        hint="prepare a state that this push sends towards the barrier (the other sign of moment), "
@@ -896,30 +814,19 @@ def _vec_text(v) -> str:
     return "[" + ", ".join(f"{x + 0.0:.3g}" for x in v) + "]"  # + 0.0: no '-0'"
 
 
-@check("physics.push-no-force", "error", "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); mF = 0 states have no "
-       "first-order moment (common practice, no source)", stage="physics")
+@rule(PUSH_NO_FORCE, stage="physics")
 def push_no_force(shot):
-    """A magnetic push on a state without a first-order magnetic moment
-    (mF = 0, or |mu| below 0.01 mu_B at the bias field): the gradient does
-    not move the atoms. Transfer the atoms to a magnetic state first (a
-    clock pulse or a sweep), or push with light."""
     for act in _pushes(shot):
         rep = push_analysis(shot, act)
         if rep and rep.get("kind") == "magnetic" and rep["no_force"]:
-            yield make("physics.push-no-force", f"{state_text(rep['state'])} has moment {rep['moment'] / MU_B:.3g} mu_B at "
+            yield make(PUSH_NO_FORCE, f"{state_text(rep['state'])} has moment {rep['moment'] / MU_B:.3g} mu_B at "
                        f"{_bias(shot) * 1e4:.4g} G: the {rep['gradient'] * 100:.4g} G/cm gradient does not push it "
                        f"({abs(rep['velocity']) * 1e6:.3g} um/s)", act.pos, block=act.block, time_s=act.t0,
                        hint="transfer the atoms to a state with mF != 0 before the push, or use an optical push")
 
 
-@check("physics.push-too-late", "warning", "uniform acceleration during the push, then free flight (textbook); "
-       + _SRC_PUSH, stage="physics")
+@rule(PUSH_TOO_LATE, stage="physics")
 def push_too_late(shot):
-    """The atoms pushed towards `target_distance` arrive only after the next
-    barrier has ended: the barrier meets no atoms. The arrival time follows
-    from the push's velocity (as for `physics.push-velocity`), uniform
-    acceleration during the push and free flight after it. Start the barrier
-    block later, make it longer, or push harder."""
     for act in _pushes(shot):
         rep = push_analysis(shot, act)
         if not rep or "barrier" not in rep:
@@ -927,7 +834,7 @@ def push_too_late(shot):
         b = rep["barrier"]
         if rep["arrival"] > b.t1:
             when = "never" if math.isinf(rep["arrival"]) else f"at t = {_fmt_t(rep['arrival'])}"
-            yield make("physics.push-too-late", f"the atoms reach {act.args['target_distance'] * 1e3:.4g} mm {when} "
+            yield make(PUSH_TOO_LATE, f"the atoms reach {act.args['target_distance'] * 1e3:.4g} mm {when} "
                        f"({abs(rep['velocity']) * 1e3:.4g} mm/s), but the barrier in block '{b.block}' ends at "
                        f"t = {_fmt_t(b.t1)}", b.pos, block=b.block, time_s=b.t1,
                        hint=(f"keep the barrier on until at least {_fmt_t(rep['arrival'] - b.t0)} after its start"
@@ -1130,57 +1037,37 @@ _SRC_SG = ("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m w
            "formula, Phys. Rev. 38, 2082 (1931)")
 
 
-@check("physics.equal-moments", "error", _SRC_SG, stage="physics")
+@rule(EQUAL_MOMENTS, stage="physics")
 def equal_moments(shot):
-    """A Stern-Gerlach separation of two states with equal magnetic moments
-    (within 0.01 mu_B at the bias field): the gradient moves both alike and
-    cannot separate them. The states are those that hold atoms when the
-    gradient pulse starts, followed from the sample state through the clock
-    pulses and sweeps before it (see `physics.transition-unpopulated`). Pick
-    a transition to a state with another moment, or separate the components
-    another way."""
     for act, rep in _separations(shot):
         if rep["equal"]:
             a, b = rep["pair"]
-            yield make("physics.equal-moments", f"{state_text(a)} and {state_text(b)} have moments "
+            yield make(EQUAL_MOMENTS, f"{state_text(a)} and {state_text(b)} have moments "
                        f"{rep['moments'][0] / MU_B:+.4g} and {rep['moments'][1] / MU_B:+.4g} mu_B: the gradient cannot "
                        f"separate them", act.pos, block=act.block, time_s=act.t0,
                        hint="drive a transition to a state with a different moment (another mF)")
 
 
-@check("physics.components-overlap", "error", _SRC_SG + "; rms of a Thomas-Fermi profile R/sqrt(7) (Bose-Einstein "
-       "Condensation in Dilute Gases, Cambridge University Press, 2nd ed. 2008); at least 3 combined rms widths "
-       "(common practice, no source)", stage="physics")
+@rule(COMPONENTS_OVERLAP, stage="physics")
 def components_overlap(shot):
-    """After the Stern-Gerlach separation the two components still overlap
-    at the image: their relative displacement (relative acceleration
-    (mu_1 - mu_2) b'/m during the gradient pulse, then free drift until the
-    image) is less than 3 combined rms widths, sqrt(sigma_1^2 + sigma_2^2).
-    The width is that of the cloud at the image (ballistic thermal, or the
-    Thomas-Fermi scaling solution with rms R/sqrt(7) along an axis; the
-    largest axis, so the estimate is on the safe side). Raise the gradient,
-    lengthen the pulse, or image later."""
     for act, rep in _separations(shot):
         if rep["equal"] or "resolved" not in rep or rep["resolved"]:
             continue
         need = SEPARATION_WIDTHS * rep["combined"]
         k = need / abs(rep["separation"]) if rep["separation"] else math.inf
-        yield make("physics.components-overlap", f"the components are {abs(rep['separation']) * 1e6:.4g} um apart at the "
+        yield make(COMPONENTS_OVERLAP, f"the components are {abs(rep['separation']) * 1e6:.4g} um apart at the "
                    f"image, {abs(rep['separation']) / rep['combined']:.3g} combined rms widths (each {rep['sigma'] * 1e6:.4g} "
                    f"um); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
                    hint=f"raise the gradient to {act.args['gradient'] * 100 * k:.3g} G/cm, or lengthen the pulse",
                    data={"separation_m": rep["separation"], "combined_rms_m": rep["combined"]})
 
 
-@check("physics.components-separated", "note", _SRC_SG, stage="physics")
+@rule(COMPONENTS_SEPARATED, stage="physics")
 def components_separated(shot):
-    """How well a Stern-Gerlach separation resolves the two components at
-    the image: their distance in combined rms widths (3 or more is enough;
-    see `physics.components-overlap`)."""
     for act, rep in _separations(shot):
         if rep["equal"] or not rep.get("resolved"):
             continue
-        yield make("physics.components-separated", f"{state_text(rep['pair'][0])} and {state_text(rep['pair'][1])} are "
+        yield make(COMPONENTS_SEPARATED, f"{state_text(rep['pair'][0])} and {state_text(rep['pair'][1])} are "
                    f"{abs(rep['separation']) * 1e3:.3g} mm apart at the image, {abs(rep['separation']) / rep['combined']:.3g} "
                    f"combined rms widths (margin {abs(rep['separation']) / (SEPARATION_WIDTHS * rep['combined']):.3g} x the "
                    f"{SEPARATION_WIDTHS:g} needed)", act.pos, block=act.block, time_s=act.t0,
@@ -1227,54 +1114,37 @@ _SRC_PROBE = ("steady-state scattering rate and saturation intensity, Sodium D L
               "data compilations; first-order Doppler shift; photon recoil (textbook)")
 
 
-@check("physics.probe-doppler", "warning", _SRC_PROBE + "; 1 linewidth (common practice, no source)", stage="physics")
+@rule(PROBE_DOPPLER, stage="physics")
 def probe_doppler(shot):
-    """The imaging probe pushes the atoms out of resonance: after N absorbed
-    photons an atom moves at N v_rec along the probe and sees a Doppler shift
-    N v_rec / lambda, here more than one natural linewidth of the D2 line, so
-    the last part of the pulse is absorbed less and the atom number comes out
-    low. N = R tau with the steady-state rate R = (Gamma/2) s / (1 + s + 4
-    Delta^2/Gamma^2) and s = 2P/(pi w^2)/I_sat of the probe beam. Shorten the
-    probe pulse or lower its power."""
     for act in _images(shot):
         rep = probe_analysis(shot, act)
         if rep and rep["doppler_linewidths"] > 1.0:
-            yield make("physics.probe-doppler", f"{rep['photons']:.3g} photons per atom (saturation {rep['saturation']:.3g}) "
+            yield make(PROBE_DOPPLER, f"{rep['photons']:.3g} photons per atom (saturation {rep['saturation']:.3g}) "
                        f"Doppler-shift the atoms by {_fmt_hz(rep['doppler_hz'])}, {rep['doppler_linewidths']:.3g} natural "
                        f"linewidths, during the probe", act.pos, block=act.block, time_s=act.t0,
                        hint=f"shorten the probe to {_fmt_t(act.args['duration'] / rep['doppler_linewidths'] * 0.5)} or lower its power",
                        data={"photons": rep["photons"], "doppler_linewidths": rep["doppler_linewidths"]})
 
 
-@check("physics.imaging-blur", "warning", _SRC_PROBE + "; recoil random walk sigma = v_rec tau sqrt(N)/3 "
-       "(derived in seqgen.physics.imaging.recoil_blur)", stage="physics")
+@rule(IMAGING_BLUR, stage="physics")
 def imaging_blur(shot):
-    """The random walk of spontaneous-emission recoils during the probe
-    blurs the image by more than one camera pixel in the atom plane (pixel
-    size / magnification): sigma = v_rec tau sqrt(N) / 3 for N photons over
-    the probe duration tau. Shorten the probe pulse or lower its power."""
     for act in _images(shot):
         rep = probe_analysis(shot, act)
         if rep and rep.get("pixel") and rep["blur"] > rep["pixel"]:
             # blur grows as tau^(3/2) at fixed power
             t_ok = act.args["duration"] * (rep["pixel"] / rep["blur"]) ** (2 / 3) * 0.9
-            yield make("physics.imaging-blur", f"recoil blur {rep['blur'] * 1e6:.3g} um ({rep['photons']:.3g} photons per "
+            yield make(IMAGING_BLUR, f"recoil blur {rep['blur'] * 1e6:.3g} um ({rep['photons']:.3g} photons per "
                        f"atom) exceeds one pixel, {rep['pixel'] * 1e6:.3g} um in the atom plane", act.pos, block=act.block,
                        time_s=act.t0, hint=f"shorten the probe to about {_fmt_t(t_ok)}",
                        data={"blur_m": rep["blur"], "pixel_m": rep["pixel"]})
 
 
-@check("hardware.exposure-too-short", "error", "the rig file's camera channel; the camera must be exposing while the "
-       "probe is on (common practice, no source)", stage="physics")
+@rule(EXPOSURE_TOO_SHORT, stage="physics")
 def exposure_too_short(shot):
-    """The camera exposure is shorter than the probe pulse: both start
-    together, so the end of the probe light is not recorded and the image
-    under-counts the absorption. Make `exposure` at least the probe
-    `duration`."""
     for act in _images(shot):
         exp_s, dur = act.args.get("exposure"), act.args["duration"]
         if exp_s is not None and exp_s < dur * (1 - 1e-9):
-            yield make("hardware.exposure-too-short", f"camera exposure {_fmt_t(exp_s)} is shorter than the probe pulse "
+            yield make(EXPOSURE_TOO_SHORT, f"camera exposure {_fmt_t(exp_s)} is shorter than the probe pulse "
                        f"{_fmt_t(dur)}", act.pos, block=act.block, time_s=act.t0,
                        hint=f"set exposure: {_fmt_t(dur)} or longer")
 

@@ -20,8 +20,9 @@ import numpy as np
 from scipy import constants as sc
 
 from ..findings import make
-from ..registry import check
+from .rules import rule
 from ..values import value_at
+from ..codes import CLOUD_CLIPPED, CLOUD_OUTSIDE_VIEW, CLOUD_OUT_OF_FOCUS, NONADIABATIC_RAMP, SHALLOW_TRAP, TRAP_LOST
 
 N_SAMPLES = 24  # trap evaluations per ramp: frequencies vary smoothly with power
 
@@ -171,15 +172,8 @@ def _stage_report(shot, act):
 
 
 
-@check("physics.trap-lost", "error", "optical dipole potential: Adv. At. Mol. Opt. Phys. 42, 95 (2000); "
-       "standard gravity g_n (SI Brochure)", stage="physics")
+@rule(TRAP_LOST, stage="physics")
 def trap_lost(shot):
-    """During a trap ramp the optical trap no longer holds the atoms against
-    gravity: the depth along the vertical, including the gravitational tilt
-    m g z, drops to zero. Computed from the rig's beams (power from the
-    sequence, waist, wavelength) with the D1 + D2 dipole potential of the
-    sample's species. Raise the final power, or declare the release with a
-    `release` action if dropping the atoms is intended."""
     if _species(shot) is None:
         return
     for act in _trap_ramps(shot):
@@ -187,22 +181,13 @@ def trap_lost(shot):
         lost = np.nonzero(rep["depth_g"] <= 0)[0]
         if len(lost):
             t = float(rep["times"][lost[0]])
-            yield make("physics.trap-lost", f"the trap no longer holds {shot.sample.species} against gravity from "
+            yield make(TRAP_LOST, f"the trap no longer holds {shot.sample.species} against gravity from "
                        f"t = {t * 1e3:.6g} ms (power of '{act.args['beam']}' {value_at(shot, act.args['output'], t)[0] * 1e3:.4g} mW)",
                        act.pos, block=act.block, time_s=t, hint="end the ramp at a higher power")
 
 
-@check("physics.nonadiabatic-ramp", "warning", "Ermakov scaling equation, J. Math. Phys. 10, 1458 (1969); "
-       "adiabaticity |d omega/dt| << omega^2 (common practice, no source)", stage="physics")
+@rule(NONADIABATIC_RAMP, stage="physics")
 def nonadiabatic_ramp(shot):
-    """A trap ramp that leaves the cloud excited. For each axis seqgen follows
-    the trap frequency through the ramp (from beam powers, waists and the
-    species' polarizability), integrates the Ermakov scaling equation
-    b'' + omega(t)^2 b = omega_0^2 / b^3 and reports the final energy above the
-    adiabatic value, E / E_ad - 1, which for a harmonic trap is the same for
-    every initial state (so for a thermal cloud too). The threshold is
-    `limits: {max_excitation: ...}` (default 0.05). Lengthen the ramp, use a
-    smooth shape, or accept the finding with a reason."""
     for act in _trap_ramps(shot) if _species(shot) else ():
         rep = _stage_report(shot, act)
         exc = rep["excitation"]
@@ -211,26 +196,22 @@ def nonadiabatic_ramp(shot):
         worst = max(exc)
         if worst > shot.limits.max_excitation:
             axis = int(np.argmax(exc))
-            yield make("physics.nonadiabatic-ramp", f"ramp of '{act.args['beam']}' leaves {worst:.3g} of the energy above "
+            yield make(NONADIABATIC_RAMP, f"ramp of '{act.args['beam']}' leaves {worst:.3g} of the energy above "
                        f"adiabatic on its axis {axis + 1} (limit {shot.limits.max_excitation:g}); max |d omega/dt|/omega^2 = "
                        f"{rep['adiabaticity']:.3g}", act.pos, block=act.block, time_s=act.t0,
                        hint="make the ramp longer or smoother (minimum_jerk / smooth shapes)",
                        data={"excitation": worst, "adiabaticity": rep["adiabaticity"]})
 
 
-@check("physics.shallow-trap", "warning", "truncation parameter eta = U / k_B T of about 6 to 10 in evaporation "
-       "(common practice, no source)", stage="physics")
+@rule(SHALLOW_TRAP, stage="physics")
 def shallow_trap(shot):
-    """At the end of a trap ramp the depth (with gravity) is less than
-    `limits.min_eta` (default 5) times k_B T of the sample: atoms spill out.
-    Intended in forced evaporation; accept it there with a reason."""
     if shot.sample is None or not shot.sample.temperature_k or _species(shot) is None:
         return
     for act in _trap_ramps(shot):
         rep = _stage_report(shot, act)
         eta = rep.get("eta")
         if eta is not None and 0 < eta < shot.limits.min_eta:
-            yield make("physics.shallow-trap", f"after the ramp of '{act.args['beam']}' the trap is only {eta:.3g} k_B T deep "
+            yield make(SHALLOW_TRAP, f"after the ramp of '{act.args['beam']}' the trap is only {eta:.3g} k_B T deep "
                        f"for T = {shot.sample.temperature_k * 1e9:.4g} nK (limit {shot.limits.min_eta:g})", act.pos,
                        block=act.block, time_s=act.t1, hint="end at a higher power, or accept it if spilling is intended")
 
@@ -491,23 +472,8 @@ _SRC_VIEW = ("free fall under standard gravity (SI Brochure); condensate expansi
              "free flight (textbook)")
 
 
-@check("physics.cloud-outside-view", "error", _SRC_VIEW, stage="physics")
+@rule(CLOUD_OUTSIDE_VIEW, stage="physics")
 def cloud_outside_view(shot):
-    """At the image time a component of the cloud lies partly or wholly
-    outside the imaging setup's field of view. Each internal-state
-    component is followed from where it was released: free fall, every
-    push and Stern-Gerlach `separate` before the image (moment -dE/dB of
-    the state it is in, Breit-Rabi at the rig's bias, force = moment x
-    |b'| along the coil's `field_grows_along`, or along its `axis` both
-    ways when the rig does not say; uniform acceleration during the pulse,
-    then free flight), and expansion (Thomas-Fermi scaling solution for a
-    condensate, ballistic for a thermal cloud; from an optical trap, an
-    Ioffe-Pritchard trap, or the Boltzmann profile of a linear quadrupole).
-    Its centre plus its reach (Thomas-Fermi radius, or 2 rms widths) must
-    lie within half the field of view of the setup's `center`, along both
-    axes of the image plane (the plane perpendicular to the probe beam).
-    Without a size prediction the centre alone is checked. Shorten the
-    time of flight, weaken the separation, or recentre the camera."""
     for img, setup, pred in _imaging_predictions(shot, "field_of_view_m"):
         half = setup.field_of_view_m / 2
         edge = pred["edge"]
@@ -518,7 +484,7 @@ def cloud_outside_view(shot):
         out = sum(1 for c in pred["components"] if np.any(_view_reach(pred, c) + edge > half))
         others = f" ({out} of {len(pred['components'])} components leave it)" if len(pred["components"]) > 1 else ""
         h, v = comp["plane"][case]
-        yield make("physics.cloud-outside-view", f"after {pred['tof'] * 1e3:.4g} ms of flight {_who(comp)} is centred "
+        yield make(CLOUD_OUTSIDE_VIEW, f"after {pred['tof'] * 1e3:.4g} ms of flight {_who(comp)} is centred "
                    f"{reach * 1e3:.3g} mm from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "
                    f"{v * 1e3 + 0.0:+.3g} mm up; {_why_there(pred, comp, case)}), {_size_text(pred)}; the field of view reaches "
                    f"{half * 1e3:.3g} mm from its centre{others}", img.pos, block=img.block, time_s=img.t0,
@@ -613,18 +579,8 @@ def _image_items(pred) -> list:
     return items
 
 
-@check("physics.cloud-out-of-focus", "warning", "ballistic / Thomas-Fermi expansion and component positions as for "
-       "physics.cloud-outside-view; depth of field of the imaging setup (rig file)", stage="physics")
+@rule(CLOUD_OUT_OF_FOCUS, stage="physics")
 def cloud_out_of_focus(shot):
-    """At the image time a component of the cloud reaches beyond the
-    imaging setup's depth of field along the line of sight (the probe
-    beam's direction): its centre's distance from the focal plane (through
-    the setup's `center`) plus its reach (Thomas-Fermi radius, or 2 rms
-    widths) exceeds half the depth of field, so its near or far part is
-    imaged out of focus, which blurs the picture and biases fitted sizes.
-    Positions as for `physics.cloud-outside-view` (without a probe beam the
-    line of sight is unknown and only the size is checked). Shorten the
-    time of flight, image a smaller cloud, or push across the line of sight."""
     for img, setup, pred in _imaging_predictions(shot, "depth_of_field_m"):
         edge = pred["edge"]
         worst = _worst(pred, _focus_offset)
@@ -632,29 +588,22 @@ def cloud_out_of_focus(shot):
             continue
         comp, case, off = worst
         where = f", centred {off * 1e3:.3g} mm from the focal plane" if off > 0 else ""
-        yield make("physics.cloud-out-of-focus", f"{_who(comp)} spans {2 * (off + edge) * 1e3:.3g} mm about the focal plane "
+        yield make(CLOUD_OUT_OF_FOCUS, f"{_who(comp)} spans {2 * (off + edge) * 1e3:.3g} mm about the focal plane "
                    f"along the line of sight{where} ({_size_text(pred)}), more than the {setup.depth_of_field_m * 1e3:.3g} mm "
                    f"depth of field of '{setup.name}'", img.pos, block=img.block, time_s=img.t0,
                    hint="shorten the time of flight" + (", or push across the line of sight" if off > 0 else ""),
                    data={"extent_m": 2 * (off + edge), "depth_of_field_m": setup.depth_of_field_m})
 
 
-@check("physics.cloud-clipped", "error", "free fall under standard gravity (SI Brochure); expansion and component "
-       "positions as for physics.cloud-outside-view; aperture radius of the rig's imaging setup", stage="physics")
+@rule(CLOUD_CLIPPED, stage="physics")
 def cloud_clipped(shot):
-    """Falling, pushed and expanding after release, a component of the
-    cloud reaches the apparatus aperture declared for the imaging setup
-    (`aperture_radius`, e.g. the inner radius of a glass cell or waveguide,
-    taken as a circle around the release point in the image plane) before
-    the image is taken: atoms are lost on the wall. Positions and sizes as
-    for `physics.cloud-outside-view`. Shorten the time of flight."""
     for img, setup, pred in _imaging_predictions(shot, "aperture_radius_m"):
         edge = pred["edge"]
         worst = _worst(pred, lambda p, c: c["from_release"])
         if worst is None or worst[2] + edge <= setup.aperture_radius_m:
             continue
         comp, case, dist = worst
-        yield make("physics.cloud-clipped", f"after {pred['tof'] * 1e3:.4g} ms {_who(comp)} reaches {(dist + edge) * 1e3:.3g} mm "
+        yield make(CLOUD_CLIPPED, f"after {pred['tof'] * 1e3:.4g} ms {_who(comp)} reaches {(dist + edge) * 1e3:.3g} mm "
                    f"from the release point ({_why_there(pred, comp, case)}; {_size_text(pred)}), beyond the "
                    f"{setup.aperture_radius_m * 1e3:.3g} mm aperture of '{setup.name}'",
                    img.pos, block=img.block, time_s=img.t0, hint="shorten the time of flight",

@@ -5,15 +5,12 @@ from __future__ import annotations
 import numpy as np
 
 from ..findings import make
-from ..registry import check
+from .rules import rule
+from ..codes import COIL_CURRENT, COIL_HEATING, LEFT_ON
 
 
-@check("safety.left-on", "error", "common practice (no source): every output ends at its safe value")
+@rule(LEFT_ON)
 def left_on(shot):
-    """An output whose last value is not its safe value, so it stays on after
-    the sequence ends: a coil left carrying current, a high-power beam left on.
-    Coil currents and beam powers are errors; other outputs warnings. List
-    outputs that must stay on under `end: {leave_on: [...]}`."""
     power_channels = {b.power_channel for b in shot.rig.beams.values()}
     coil_channels = {c.current_channel for c in shot.rig.coils.values()}
     last = {}
@@ -27,7 +24,7 @@ def left_on(shot):
             continue
         if abs(s.v1 - out.safe) > 1e-12 * max(1.0, abs(out.safe)):
             serious = out.channel in power_channels or out.channel in coil_channels
-            yield make("safety.left-on", f"'{name}' ends at {s.v1:.6g} {out.phys_unit}, not its safe value {out.safe:g}",
+            yield make(LEFT_ON, f"'{name}' ends at {s.v1:.6g} {out.phys_unit}, not its safe value {out.safe:g}",
                        s.pos, severity="error" if serious else "warning", block=s.block, time_s=s.t1,
                        hint=f"end with a set back to {out.safe:g}, or list it under end: leave_on")
 
@@ -56,14 +53,8 @@ def _current_squared_integral(shot, output: str, t_end: float, window: float | N
 
 
 
-@check("safety.coil-current", "error", "the rig file's coil max_current (the coil's or its supply's rating)")
+@rule(COIL_CURRENT)
 def coil_current(shot):
-    """A write that asks a coil for more current than the rig file's
-    `max_current` for that coil (in either direction), the rating of the
-    coil or of its supply. A supply may fold back or trip; a coil may be
-    damaged. This is separate from the channel's hard limit (the lab's safety
-    limit for that output) and from coil heating (the average load). Lower
-    the current; raise `max_current` only with the coil's data."""
     by_channel = {c.current_channel: c for c in shot.rig.coils.values() if c.max_current}
     if not by_channel:
         return
@@ -74,20 +65,13 @@ def coil_current(shot):
             continue
         peak = max(abs(v) for v in (s.v0, s.v1) if v is not None)
         if peak > coil.max_current * (1 + 1e-12):
-            yield make("safety.coil-current", f"coil '{coil.name}' would carry {peak:.4g} A, above its max_current "
+            yield make(COIL_CURRENT, f"coil '{coil.name}' would carry {peak:.4g} A, above its max_current "
                        f"{coil.max_current:.4g} A (rig file)", s.pos, block=s.block, time_s=s.t0,
                        hint=f"lower the current to at most {coil.max_current:.4g} A")
 
 
-@check("safety.coil-heating", "error", "Joule heating P = I^2 R; continuous-current rating over the "
-       "repetition period (common practice, no source)")
+@rule(COIL_HEATING)
 def coil_heating(shot):
-    """A coil carries more RMS current over the apparatus's repetition period
-    than its continuous rating (`continuous_current`), or more I^2 t in any
-    window of `i2t_window` than its `i2t_limit`. Joule heating goes as I^2 R:
-    the RMS over a full shot cycle (sequence plus dead time until the next
-    shot, `repetition_period` of the rig) is what warms the coil. Shorten the
-    high-current pulses or lengthen the repetition period."""
     period = max(shot.rig.repetition_period_s or shot.duration_s, shot.duration_s)
     for coil in shot.rig.coils.values():
         out = shot.rig.outputs.get(coil.current_channel)
@@ -100,9 +84,9 @@ def coil_heating(shot):
         if coil.continuous_current:
             rms = (total / period) ** 0.5
             if rms > coil.continuous_current:
-                yield make("safety.coil-heating", f"coil '{coil.name}' carries {rms:.3g} A RMS over the {period:.3g} s "
+                yield make(COIL_HEATING, f"coil '{coil.name}' carries {rms:.3g} A RMS over the {period:.3g} s "
                            f"repetition period, above its continuous rating {coil.continuous_current:.3g} A", pos,
                            hint="shorten the high-current pulses or lengthen the repetition period")
         if coil.i2t_limit and peak is not None and peak > coil.i2t_limit:
-            yield make("safety.coil-heating", f"coil '{coil.name}' reaches {peak:.3g} A^2 s within {coil.i2t_window:.3g} s, "
+            yield make(COIL_HEATING, f"coil '{coil.name}' reaches {peak:.3g} A^2 s within {coil.i2t_window:.3g} s, "
                        f"above its limit {coil.i2t_limit:.3g} A^2 s", pos, hint="spread the current pulses out")

@@ -19,31 +19,11 @@ import numpy as np
 from ..calibration import to_output
 from ..findings import Finding, _fmt_time, make
 from ..model import Compiled, DeviceTable, Output, Shot
-from ..registry import declare
 from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
 from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
+from ..codes import BEFORE_START, RAMP_UNDERSAMPLED
 
-BEFORE_START = declare("timing.before-start", "error", """
-    After moving an edge earlier by its channel's latency (a shutter that needs
-    3 ms to open must be told 3 ms early), the command would fall before the
-    start of the sequence (t = 0). Start the block later, or anchor the
-    sequence so there is room for the latency.""", "seqgen's own rule", "compile")
 
-RAMP_UNDERSAMPLED = declare("hardware.ramp-undersampled", "warning", """
-    A ramp changes faster than its device can follow within the ramp's
-    tolerance: rows of a device table may not be closer than the device's
-    minimum interval (nor than one tick), so between two rows the output holds
-    (or, on a linearly interpolating device, draws a straight line) while the
-    intended curve moves on. The message gives the largest deviation from the
-    intended curve found at the device's ticks (output units) and how many
-    times the tolerance that is. The build is still written, with the closest
-    rows the device allows. Make the ramp slower, loosen its `tolerance:` (or
-    the channel's), or drive the channel from a device with a shorter minimum
-    interval. A step-and-hold output approximating a curve of slope y' with
-    rows h apart is off by up to y' h / 2; interpolating rows, by up to
-    h^2 |y''| / 8 (A Practical Guide to Splines, Springer (1978)).""",
-    "the rig file's min_interval and timebase per device; piecewise-constant and piecewise-linear "
-    "approximation error bounds (A Practical Guide to Splines, Springer (1978))", "compile")
 
 _VERIFY_MAX = 1 << 23      # longer ramps are checked on an evenly spaced subset of about this many ticks
 _FILL_ROWS = 1 << 15       # table rows filled at a time (a block of the value matrix stays in cache)

@@ -57,9 +57,9 @@ _BEFORE_CHECKS = ("load", "schema", "resolve")
 
 def before_checks(findings: list) -> list:
     """The findings raised while loading, validating and resolving (not by preflight checks)."""
-    from ..registry import CODES
+    from ..codes import lookup
 
-    return [f for f in findings if CODES.get(f.code) is None or CODES[f.code].stage in _BEFORE_CHECKS]
+    return [f for f in findings if lookup(f.code) is None or lookup(f.code).stage in _BEFORE_CHECKS]
 
 
 def _state(f) -> str:

@@ -118,10 +118,9 @@ class _Sources:
 
 
 def _code_doc(code: str) -> str:
-    from ..registry import CODES, _load_all
+    from ..codes import lookup
 
-    _load_all()
-    info = CODES.get(code)
+    info = lookup(code)
     if info is None:
         return ""
     return (f'<details><summary>what <span class="code">{_e(code)}</span> means</summary>'

@@ -40,9 +40,9 @@ def _uri(path: str) -> tuple[str, str | None]:
 
 
 def _rule(code: str) -> dict:
-    from ..registry import CODES
+    from ..codes import lookup
 
-    info = CODES.get(code)
+    info = lookup(code)
     if info is None:  # a code no module declared (should not happen): still a valid rule
         return {"id": code, "shortDescription": {"text": code}}
     lines = info.doc.splitlines() if info.doc else [code]

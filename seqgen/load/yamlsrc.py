@@ -26,7 +26,7 @@ import stat
 import yaml
 
 from ..findings import Finding, SourcePos, make
-from ..registry import declare
+from ..codes import DUPLICATE_KEY, FILE_MISSING, FILE_TOO_LARGE, YAML_SYNTAX, YAML_TOO_COMPLEX, YAML_UNSUPPORTED
 
 _BASE_LOADER = getattr(yaml, "CBaseLoader", yaml.BaseLoader)
 _DEFAULT_TAGS = {yaml.ScalarNode: "tag:yaml.org,2002:str", yaml.SequenceNode: "tag:yaml.org,2002:seq",
@@ -45,26 +45,6 @@ MAX_FILE_BYTES = 8 * 1024 * 1024
 MAX_NODES = 2_000_000  # after alias expansion
 MAX_DEPTH = 64
 
-YAML_SYNTAX = declare("schema.yaml-syntax", "error", """
-    The file is not valid YAML. The position is where the parser gave up; the
-    mistake is often on the line before (a missing colon, a tab used for
-    indentation, an unclosed bracket or quote).""", "YAML 1.1 specification (yaml.org, 2005)", "load")
-DUPLICATE_KEY = declare("schema.duplicate-key", "error", """
-    The same key appears twice in one mapping. YAML loaders usually keep the
-    last one silently; seqgen refuses so that an edit is never lost.""", "YAML 1.2 specification, section 3.2.1.1 (keys are unique)", "load")
-FILE_MISSING = declare("schema.file-missing", "error", """
-    A file named by the command line, by `rig:` or by `use:` cannot be read.
-    Paths in a sequence file are relative to that file's folder.""", stage="load")
-FILE_TOO_LARGE = declare("schema.file-too-large", "error", f"""
-    The file is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB. Sequence and rig files are
-    small; a file this large is almost certainly not one.""", stage="load")
-YAML_BOMB = declare("schema.yaml-too-complex", "error", f"""
-    The document expands to more than {MAX_NODES} nodes (through aliases) or
-    nests deeper than {MAX_DEPTH} levels. This is refused to bound time and memory:
-    an alias-expansion bomb looks exactly like this.""", stage="load")
-YAML_TAG = declare("schema.yaml-unsupported", "error", """
-    The document uses a YAML feature seqgen does not accept (custom tags,
-    non-string mapping keys, several documents in one file).""", stage="load")
 
 
 _INT = re.compile(r"^[-+]?(0|[1-9][0-9_]*)$")
@@ -208,9 +188,9 @@ def _load_via_nodes(text: str, name: str, sha: str) -> Document:
     except yaml.YAMLError as exc:
         raise LoadError(make(YAML_SYNTAX, f"YAML error: {exc}", SourcePos(name))) from None
     except RecursionError:
-        raise LoadError(make(YAML_BOMB, "document nests too deeply", SourcePos(name))) from None
+        raise LoadError(make(YAML_TOO_COMPLEX, "document nests too deeply", SourcePos(name))) from None
     if len(nodes) > 1:
-        raise LoadError(make(YAML_TAG, "several YAML documents in one file", SourcePos(name),
+        raise LoadError(make(YAML_UNSUPPORTED, "several YAML documents in one file", SourcePos(name),
                              hint="keep one document per file (remove the extra '---')"))
     positions: dict = {}
     if not nodes or nodes[0] is None:
@@ -347,7 +327,7 @@ def _check_depth(text: str, name: str) -> None:
             depth += 1
             if depth > MAX_DEPTH:
                 m = ev.start_mark
-                raise LoadError(make(YAML_BOMB, f"document nests deeper than {MAX_DEPTH} levels",
+                raise LoadError(make(YAML_TOO_COMPLEX, f"document nests deeper than {MAX_DEPTH} levels",
                                      SourcePos(name, m.line + 1, m.column + 1),
                                      hint="sequence and rig files need only a few levels; remove the extra brackets"))
         elif isinstance(ev, ends):
@@ -370,7 +350,7 @@ def _check_size(root, name: str) -> None:
         node, depth, done = stack.pop()
         if depth > MAX_DEPTH:
             m = node.start_mark
-            raise LoadError(make(YAML_BOMB, f"document nests deeper than {MAX_DEPTH} levels",
+            raise LoadError(make(YAML_TOO_COMPLEX, f"document nests deeper than {MAX_DEPTH} levels",
                                  SourcePos(name, m.line + 1, m.column + 1)))
         if id(node) in sizes:
             continue
@@ -381,7 +361,7 @@ def _check_size(root, name: str) -> None:
             continue
         if node.tag not in _PLAIN_COLLECTION_TAGS and not node.tag.startswith("tag:yaml.org,2002:set"):
             m = node.start_mark
-            raise LoadError(make(YAML_TAG, f"unsupported YAML tag {node.tag}", SourcePos(name, m.line + 1, m.column + 1),
+            raise LoadError(make(YAML_UNSUPPORTED, f"unsupported YAML tag {node.tag}", SourcePos(name, m.line + 1, m.column + 1),
                                  hint="remove the '!tag'"))
         children = ([c for kv in node.value for c in kv] if isinstance(node, yaml.MappingNode) else list(node.value))
         if done:
@@ -389,7 +369,7 @@ def _check_size(root, name: str) -> None:
             sizes[id(node)] = total
             if total > MAX_NODES:
                 m = node.start_mark
-                raise LoadError(make(YAML_BOMB, f"document expands to more than {MAX_NODES} nodes",
+                raise LoadError(make(YAML_TOO_COMPLEX, f"document expands to more than {MAX_NODES} nodes",
                                      SourcePos(name, m.line + 1, m.column + 1),
                                      hint="remove the chain of aliases (&name / *name) that multiplies the content"))
             continue
@@ -411,24 +391,24 @@ class _Converter:
     def convert(self, node, path: tuple, depth: int):
         self.count += 1
         if self.count > MAX_NODES:
-            self._fail(YAML_BOMB, f"document expands to more than {MAX_NODES} nodes", node,
+            self._fail(YAML_TOO_COMPLEX, f"document expands to more than {MAX_NODES} nodes", node,
                        "remove the chain of aliases (&name / *name) that multiplies the content")
         if depth > MAX_DEPTH:
-            self._fail(YAML_BOMB, f"document nests deeper than {MAX_DEPTH} levels", node)
+            self._fail(YAML_TOO_COMPLEX, f"document nests deeper than {MAX_DEPTH} levels", node)
         m = node.start_mark
         self.positions.setdefault(path, (m.line + 1, m.column + 1))
         if not isinstance(node, yaml.ScalarNode) and node.tag not in _PLAIN_COLLECTION_TAGS:
-            self._fail(YAML_TAG, f"unsupported YAML tag {node.tag}", node, "remove the '!tag'")
+            self._fail(YAML_UNSUPPORTED, f"unsupported YAML tag {node.tag}", node, "remove the '!tag'")
         if isinstance(node, yaml.MappingNode):
             out: dict = {}
             # merge keys (<<) are resolved by flattening first
             self.constructor.flatten_mapping(node)
             for key_node, value_node in node.value:
                 if not isinstance(key_node, yaml.ScalarNode):
-                    self._fail(YAML_TAG, "mapping keys must be plain words", key_node)
+                    self._fail(YAML_UNSUPPORTED, "mapping keys must be plain words", key_node)
                 key = self._scalar(key_node)
                 if not isinstance(key, (str, int, float, bool)) or key is None:
-                    self._fail(YAML_TAG, "mapping keys must be plain words", key_node)
+                    self._fail(YAML_UNSUPPORTED, "mapping keys must be plain words", key_node)
                 key = str(key)
                 if key in out:
                     first = self.positions.get(path + (key,), (0, 0))[0]
@@ -451,12 +431,12 @@ class _Converter:
             try:
                 value = self.constructor.construct_object(node, deep=True)
             except yaml.constructor.ConstructorError as exc:
-                self._fail(YAML_TAG, f"cannot read value: {exc.problem}", node)
+                self._fail(YAML_UNSUPPORTED, f"cannot read value: {exc.problem}", node)
             except (ValueError, OverflowError) as exc:
-                self._fail(YAML_TAG, f"cannot read value: {exc}", node)
+                self._fail(YAML_UNSUPPORTED, f"cannot read value: {exc}", node)
             if tag.endswith(":timestamp"):
                 return node.value  # keep dates as written
             if tag.endswith(":binary"):
-                self._fail(YAML_TAG, "binary values are not accepted", node)
+                self._fail(YAML_UNSUPPORTED, "binary values are not accepted", node)
             return value
-        self._fail(YAML_TAG, f"unsupported YAML tag {tag}", node, "remove the '!tag'")
+        self._fail(YAML_UNSUPPORTED, f"unsupported YAML tag {tag}", node, "remove the '!tag'")

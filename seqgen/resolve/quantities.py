@@ -6,14 +6,17 @@ import math
 
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
-from . import errors as E
 from .expr import ExprError, evaluate, is_plain_name, names_in
 from .units import DIMENSIONLESS, Qty, UnitError, close_units, describe_kind, dims_of, kind_of, kind_units, parse_simple, \
     same_dims, split_quantity, unit_name, usual_unit
+from ..codes import (
+    BAD_EXPRESSION, DIVISION_BY_ZERO, MISSING_UNIT, NEGATIVE_DURATION, NON_FINITE, OVERFLOW, UNDEFINED_PARAM,
+    UNKNOWN_UNIT, WRONG_DIMENSION,
+)
 
 ABSURD = 1e12  # in SI base units: larger magnitudes are typos (a 1e30 s hold)
-_KIND_CODE = {"undefined": E.UNDEFINED, "zero-division": E.ZERO_DIV, "overflow": E.OVERFLOW,
-              "dimension": E.WRONG_DIMENSION}
+_KIND_CODE = {"undefined": UNDEFINED_PARAM, "zero-division": DIVISION_BY_ZERO, "overflow": OVERFLOW,
+              "dimension": WRONG_DIMENSION}
 
 
 class Bad(Exception):
@@ -44,16 +47,16 @@ def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
         try:
             value = float(raw)
         except OverflowError:  # an integer of hundreds of digits
-            raise Bad(make(E.OVERFLOW, f"a {len(str(raw))}-digit number is too large", doc.pos(path),
+            raise Bad(make(OVERFLOW, f"a {len(str(raw))}-digit number is too large", doc.pos(path),
                            hint="check for a typo; write large numbers with an exponent")) from None
         if not math.isfinite(value):
-            raise Bad(make(E.NON_FINITE, f"value {raw} is not finite", doc.pos(path), hint="give a finite number"))
+            raise Bad(make(NON_FINITE, f"value {raw} is not finite", doc.pos(path), hint="give a finite number"))
         return Qty(value)
     if not isinstance(raw, str):
-        raise Bad(make(E.EXPRESSION, f"expected a quantity, got {type(raw).__name__}", doc.pos(path)))
+        raise Bad(make(BAD_EXPRESSION, f"expected a quantity, got {type(raw).__name__}", doc.pos(path)))
     text = raw.strip()
     if text.lower() in _NOT_FINITE_WORDS:
-        raise Bad(make(E.NON_FINITE, f"value '{text}' is not finite", doc.pos(path), hint="give a finite number"))
+        raise Bad(make(NON_FINITE, f"value '{text}' is not finite", doc.pos(path), hint="give a finite number"))
     if text in env and is_plain_name(text):  # a param's name: what evaluate() returns, without the walk
         q = env[text]
         if type(q) is Qty and math.isfinite(q.value):
@@ -73,12 +76,12 @@ def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
         try:
             q = evaluate(text, env)
         except ExprError as exc:
-            code = _KIND_CODE.get(exc.kind, E.EXPRESSION)
+            code = _KIND_CODE.get(exc.kind, BAD_EXPRESSION)
             raise Bad(make(code, f"{exc}", doc.pos(path), hint=exc.hint))
     if not math.isfinite(q.value):
         if "nan" in text.lower() or "inf" in text.lower():
-            raise Bad(make(E.NON_FINITE, f"'{text}' is not finite", doc.pos(path), hint="give a finite number"))
-        raise Bad(make(E.OVERFLOW, f"'{text[:60]}' overflows: too large for a number", doc.pos(path),
+            raise Bad(make(NON_FINITE, f"'{text}' is not finite", doc.pos(path), hint="give a finite number"))
+        raise Bad(make(OVERFLOW, f"'{text[:60]}' overflows: too large for a number", doc.pos(path),
                        hint="check for a typo in the exponent"))
     return q
 
@@ -99,11 +102,11 @@ def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positiv
         if missing or not (same_dims(q.dims, DIMENSIONLESS) and q.value == 0):
             raise Bad(_dimension_finding(raw, q, want, expect, label, pos, env))
     if abs(q.value) > ABSURD * max(1.0, _scale(expect)):
-        raise Bad(make(E.OVERFLOW, f"{label}: {raw!r} is an absurd magnitude", pos, hint="check for a typo in the exponent"))
+        raise Bad(make(OVERFLOW, f"{label}: {raw!r} is an absurd magnitude", pos, hint="check for a typo in the exponent"))
     if positive and q.value <= 0:
-        raise Bad(make(E.NEGATIVE_DURATION, f"{label} must be positive, got {raw!r}", pos, hint="give a positive value"))
+        raise Bad(make(NEGATIVE_DURATION, f"{label} must be positive, got {raw!r}", pos, hint="give a positive value"))
     if nonnegative and q.value < 0:
-        raise Bad(make(E.NEGATIVE_DURATION, f"{label} must not be negative, got {raw!r}", pos))
+        raise Bad(make(NEGATIVE_DURATION, f"{label} must not be negative, got {raw!r}", pos))
     return q.value
 
 
@@ -125,9 +128,9 @@ def _unknown_unit(text: str, exc: UnitError, pos) -> Finding:
     unit = split[1] if split and split[1] else None
     close = close_units(unit) if unit else []
     if not close:
-        return make(E.BAD_UNIT, str(exc), pos, hint="use SI units with prefixes, e.g. ms, us, mW, G/cm, MHz")
+        return make(UNKNOWN_UNIT, str(exc), pos, hint="use SI units with prefixes, e.g. ms, us, mW, G/cm, MHz")
     number = split[0]
-    return make(E.BAD_UNIT, f"unknown unit '{unit}' in '{text}'; did you mean {' or '.join(close)}?", pos,
+    return make(UNKNOWN_UNIT, f"unknown unit '{unit}' in '{text}'; did you mean {' or '.join(close)}?", pos,
                 hint=f"write '{number} {close[0]}' (unit names are case-sensitive: m is milli, M is mega)")
 
 
@@ -186,7 +189,7 @@ def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: s
         else:
             message = f"{label}: {shown} has no unit; expected {describe_kind(want)}"
         if plain:
-            return make(E.MISSING_UNIT, message, pos, hint=f"write {quoted(f'{split[0]} {usual}')}{more}")
+            return make(MISSING_UNIT, message, pos, hint=f"write {quoted(f'{split[0]} {usual}')}{more}")
         used = names_of(text)
         bare = [n for n in sorted(defs or {}) if n in used and _is_bare_number(defs[n][0])]
         if bare:
@@ -195,7 +198,7 @@ def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: s
                     f"'{bare[0]}: {_shown(raw_b)} {usual}'")
         else:
             hint = f"make it {_expected(want, expect)}"
-        return make(E.MISSING_UNIT, message, pos, hint=hint)
+        return make(MISSING_UNIT, message, pos, hint=hint)
     unit = split[1] if split else None
     close = close_units(unit, want) if unit else []
     expected = describe_kind(want) if unit else _expected(want, expect)
@@ -213,7 +216,7 @@ def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: s
         hint = f"give {describe_kind(want)}, e.g. {quoted(f'{split[0]} {usual}')}{more}"
     else:
         hint = f"give {_expected(want, expect)}"
-    return make(E.WRONG_DIMENSION, message, pos, hint=hint)
+    return make(WRONG_DIMENSION, message, pos, hint=hint)
 
 
 def names_of(text: str) -> set:

@@ -9,9 +9,9 @@ from ..calibration import is_monotonic
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from ..model import Beam, Calibration, Coil, Device, Drive, ImagingSetup, Output, Rig
-from . import errors as E
 from .quantities import Bad, quantity
 from .units import dims_of, display_unit
+from ..codes import BAD_RIG, CALIBRATION_NOT_MONOTONIC, UNKNOWN_NAME, UNKNOWN_UNIT, VERSION
 
 SYNTH_PARTS = (("freq", "frequency", "Hz"), ("amp", "amplitude", ""), ("phase", "phase", "rad"))
 
@@ -20,7 +20,7 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
     findings: list[Finding] = []
     data = doc.data
     if data.get("seqgen_rig") != 1:
-        findings.append(make(E.VERSION, f"unsupported rig format version {data.get('seqgen_rig')!r}",
+        findings.append(make(VERSION, f"unsupported rig format version {data.get('seqgen_rig')!r}",
                              doc.pos(("seqgen_rig",)), hint="this seqgen reads 'seqgen_rig: 1'"))
         return None, findings
 
@@ -58,7 +58,7 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         if c["device"] not in devices:
             if c["device"] not in data["devices"]:
                 close = difflib.get_close_matches(c["device"], list(data["devices"]), n=1)
-                findings.append(make(E.BAD_RIG, f"channel '{name}' is on unknown device '{c['device']}'",
+                findings.append(make(BAD_RIG, f"channel '{name}' is on unknown device '{c['device']}'",
                                      doc.pos(base + ("device",)), hint=f"did you mean '{close[0]}'?" if close else "add the device"))
             continue
         common = _common(c, base, q, opt, doc, findings)
@@ -79,7 +79,7 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
                                         pos=pos, **{k: v for k, v in common.items() if k not in ("calibration",)})
                 names.append(oname)
             if not names:
-                findings.append(make(E.BAD_RIG, f"synth channel '{name}' declares none of frequency/amplitude/phase",
+                findings.append(make(BAD_RIG, f"synth channel '{name}' declares none of frequency/amplitude/phase",
                                      pos, hint="add e.g. 'frequency: {range: [0 Hz, 400 MHz], bits: 32}'"))
             channels[name] = tuple(names)
             continue
@@ -88,7 +88,7 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         else:
             spec = c.get("output")
             if spec is None:
-                findings.append(make(E.BAD_RIG, f"analog channel '{name}' needs 'output: {{unit, range, bits}}'", pos,
+                findings.append(make(BAD_RIG, f"analog channel '{name}' needs 'output: {{unit, range, bits}}'", pos,
                                      hint="add 'output: {unit: V, range: [-10 V, 10 V], bits: 16}'"))
                 continue
             unit = spec.get("unit", "V")
@@ -120,7 +120,7 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
     def ref(kind, owner, key, value, path):
         if value not in channels:
             close = difflib.get_close_matches(value, list(channels), n=1)
-            findings.append(make(E.UNKNOWN_NAME, f"{kind} '{owner}' names unknown channel '{value}'", doc.pos(path),
+            findings.append(make(UNKNOWN_NAME, f"{kind} '{owner}' names unknown channel '{value}'", doc.pos(path),
                                  hint=f"did you mean '{close[0]}'?" if close else "define the channel under channels:"))
 
     beams = {}
@@ -160,7 +160,7 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         if im.get("camera_channel"):
             ref("imaging setup", name, "camera_channel", im["camera_channel"], base + ("camera_channel",))
         if im.get("probe_beam") and im["probe_beam"] not in (data.get("beams") or {}):
-            findings.append(make(E.UNKNOWN_NAME, f"imaging setup '{name}' names unknown beam '{im['probe_beam']}'",
+            findings.append(make(UNKNOWN_NAME, f"imaging setup '{name}' names unknown beam '{im['probe_beam']}'",
                                  doc.pos(base + ("probe_beam",))))
         imaging[name] = ImagingSetup(name, im.get("probe_beam"), im.get("camera_channel"), opt(base + ("pixel_size",), "m", positive=True),
                                      _magnification(im, base, doc, findings), opt(base + ("field_of_view",), "m", positive=True),
@@ -181,7 +181,7 @@ def _vector(raw, path, doc, findings):
     except (OverflowError, TypeError, ValueError):
         v = ()
     if len(v) != 3 or not all(math.isfinite(x) for x in v):
-        findings.append(make(E.BAD_RIG, f"{path[-1]} {_short(raw)} is not three finite numbers", doc.pos(path),
+        findings.append(make(BAD_RIG, f"{path[-1]} {_short(raw)} is not three finite numbers", doc.pos(path),
                              hint="give three ordinary numbers, e.g. [1, 0, 0]"))
         return None
     return v
@@ -196,7 +196,7 @@ def _direction(raw, path, doc, findings, default=None):
         return default
     big = max(abs(x) for x in v)
     if big == 0:
-        findings.append(make(E.BAD_RIG, f"{path[-1]} {_short(raw)} is not a direction (all zero)", doc.pos(path),
+        findings.append(make(BAD_RIG, f"{path[-1]} {_short(raw)} is not a direction (all zero)", doc.pos(path),
                              hint="give three numbers, not all zero, e.g. [1, 0, 0]"))
         return default
     v = tuple(x / big for x in v)  # scaled first: the norm of [1e200, 1e200, 0] must not overflow
@@ -210,7 +210,7 @@ def _magnification(im, base, doc, findings) -> float:
     except (OverflowError, TypeError, ValueError):
         m = math.nan
     if not (math.isfinite(m) and m > 0):
-        findings.append(make(E.BAD_RIG, f"magnification {_short(im.get('magnification'))} is not a positive number",
+        findings.append(make(BAD_RIG, f"magnification {_short(im.get('magnification'))} is not a positive number",
                              doc.pos(base + ("magnification",)), hint="give the imaging magnification, e.g. 2.0"))
         return 1.0
     return m
@@ -233,7 +233,7 @@ def _range(spec, path, unit, q, doc, findings):
     if lo is None or hi is None:
         return None
     if not lo < hi:
-        findings.append(make(E.BAD_RIG, f"range [{lo:g}, {hi:g}] is empty or reversed", doc.pos(path + ("range",)),
+        findings.append(make(BAD_RIG, f"range [{lo:g}, {hi:g}] is empty or reversed", doc.pos(path + ("range",)),
                              hint="write the range low end first"))
         return None
     return lo, hi
@@ -258,7 +258,7 @@ def _common(c, base, q, opt, doc, findings):
         try:
             pdims = dims_of(phys)
         except Exception:
-            findings.append(make(E.BAD_UNIT, f"unknown calibration quantity unit '{phys}'", doc.pos(base + ("calibration", "quantity"))))
+            findings.append(make(UNKNOWN_UNIT, f"unknown calibration quantity unit '{phys}'", doc.pos(base + ("calibration", "quantity"))))
             return None
         out_unit = (c.get("output") or {}).get("unit", "V")
         if "table" in calspec:
@@ -272,7 +272,7 @@ def _common(c, base, q, opt, doc, findings):
                 xs.append(x)
                 ys.append(y)
             if not (is_monotonic(xs) and is_monotonic(ys)):
-                findings.append(make(E.CAL_NOT_MONOTONIC, "calibration table is not strictly monotonic",
+                findings.append(make(CALIBRATION_NOT_MONOTONIC, "calibration table is not strictly monotonic",
                                      doc.pos(base + ("calibration", "table")),
                                      hint="each row must increase (or each decrease) in both columns"))
                 return None
@@ -283,11 +283,11 @@ def _common(c, base, q, opt, doc, findings):
             if slope is None:
                 return None
             if slope == 0:
-                findings.append(make(E.BAD_RIG, "calibration slope is zero", doc.pos(base + ("calibration", "linear", "slope"))))
+                findings.append(make(BAD_RIG, "calibration slope is zero", doc.pos(base + ("calibration", "linear", "slope"))))
                 return None
             cal = Calibration(phys, pdims, "linear", slope, off)
         else:
-            findings.append(make(E.BAD_RIG, "calibration needs 'linear:' or 'table:'", doc.pos(base + ("calibration",))))
+            findings.append(make(BAD_RIG, "calibration needs 'linear:' or 'table:'", doc.pos(base + ("calibration",))))
             return None
     out["calibration"] = cal
     unit_for_phys = phys or (c.get("output") or {}).get("unit", "")

@@ -38,30 +38,13 @@ import math
 from dataclasses import dataclass
 
 from ..findings import Finding, SourcePos, make
-from ..registry import declare
-from . import errors as E
 from .quantities import Bad, to_qty
 from .units import DIMENSIONLESS, Qty, close_units, describe_kind, display_unit, format_value, kind_units, same_dims, \
     split_quantity, usual_unit
+from ..codes import BAD_SCAN, MISSING_UNIT, SCAN_LENGTH_MISMATCH, SCAN_TOO_LARGE, WRONG_DIMENSION
 
 DEFAULT_MAX_SHOTS = 100_000
 
-BAD_SCAN = declare("schema.bad-scan", "error", """
-    A scan that cannot be expanded: a range without `steps` (or `random` with
-    `seed`), a range of `steps: 1` whose `to:` differs from its `from:` (one
-    step gives `from:` alone, so `to:` would be ignored), a log range whose ends are zero or of opposite signs, an empty
-    list, or a top-level `scan: {nest: ...}` naming a param or group that has
-    no scan. Forms: a list `[10 ms, 12 ms]`, `{values: [...]}`, `{from, to,
-    steps, spacing: linear|log}`, `{from, to, random: COUNT, seed: N}`.""", stage="resolve")
-LENGTH_MISMATCH = declare("schema.scan-length-mismatch", "error", """
-    Params scanned in lockstep (the same `group:`, or `scan: {combine: zip}`)
-    have different numbers of values, so they cannot be zipped. Give every
-    member the same number of values, or put them in separate groups to scan
-    them as a grid.""", stage="resolve")
-TOO_LARGE = declare("schema.scan-too-large", "error", f"""
-    The scan expands to more shots than `scan: {{max_shots: ...}}` allows
-    (default {DEFAULT_MAX_SHOTS}). A grid multiplies the lengths of its axes;
-    usually a typo in `steps`. Raise `max_shots` if you mean it.""", stage="resolve")
 
 
 @dataclass(frozen=True)
@@ -196,7 +179,7 @@ def expand(src, base_shot) -> tuple[ScanPlan | None, list[Finding]]:
         for a in members[1:]:
             if len(a.values) != n0:
                 what = "every scanned param (combine: zip)" if key == "*" else f"group '{key}'"
-                findings.append(make(LENGTH_MISMATCH, f"'{a.name}' has {len(a.values)} scan values but "
+                findings.append(make(SCAN_LENGTH_MISMATCH, f"'{a.name}' has {len(a.values)} scan values but "
                                      f"'{members[0].name}' has {n0}; {what} must advance in lockstep", a.pos,
                                      hint="give every member the same number of values, or use separate groups "
                                           "for a grid"))
@@ -223,7 +206,7 @@ def expand(src, base_shot) -> tuple[ScanPlan | None, list[Finding]]:
     total = math.prod(len(groups[k][0].values) for k in nest)
     if total > limit:
         sizes = " x ".join(str(len(groups[k][0].values)) for k in nest)
-        return None, [make(TOO_LARGE, f"the scan expands to {total} shots ({sizes}), more than max_shots {limit}",
+        return None, [make(SCAN_TOO_LARGE, f"the scan expands to {total} shots ({sizes}), more than max_shots {limit}",
                            opts_pos if opts else axes[0].pos, hint="check the step counts, or raise scan: {max_shots: ...}")]
     order_of = {a.name: i for i, a in enumerate(axes)}
     names = tuple(a.name for a in axes)
@@ -277,7 +260,7 @@ def _axis(name, spec, doc, path, dims, env, limit) -> ScanAxis:
                        doc.pos(path + ("spacing",)), hint="use spacing: linear, or ends of the same sign"))
     count = spec.get("steps", spec.get("random"))
     if isinstance(count, int) and count > limit:
-        raise Bad(make(TOO_LARGE, f"scan of '{name}' asks for {count} values, more than max_shots {limit}", pos,
+        raise Bad(make(SCAN_TOO_LARGE, f"scan of '{name}' asks for {count} values, more than max_shots {limit}", pos,
                        hint="check the step count, or raise scan: {max_shots: ...}"))
     if "steps" in spec:
         if "random" in spec or "seed" in spec:
@@ -327,13 +310,13 @@ def _value(name, raw, doc, path, dims, env) -> Qty:
         split = split_quantity(text) if isinstance(raw, str) else (text, None)
         if same_dims(q.dims, DIMENSIONLESS) and q.value != 0:
             example = f"'{split[0]} {usual}'" if split and split[1] is None else f"{kind} ({usual})"
-            raise Bad(make(E.MISSING_UNIT, f"scan value {text} of '{name}' has no unit; '{name}' is {kind}", pos,
+            raise Bad(make(MISSING_UNIT, f"scan value {text} of '{name}' has no unit; '{name}' is {kind}", pos,
                            hint=f"write {example}"))
         if not (same_dims(q.dims, DIMENSIONLESS) and q.value == 0):
             close = close_units(split[1], dims) if split and split[1] else []
             hint = (f"write '{split[0]} {close[0]}'" if close else
                     f"give every scan value of '{name}' as {kind} ({', '.join(kind_units(dims)) or display_unit(dims)})")
-            raise Bad(make(E.WRONG_DIMENSION, f"scan value {text} of '{name}' is {describe_kind(q.dims)}, but "
+            raise Bad(make(WRONG_DIMENSION, f"scan value {text} of '{name}' is {describe_kind(q.dims)}, but "
                            f"'{name}' is {kind}" + (f"; did you mean {' or '.join(close)}?" if close else ""),
                            pos, hint=hint))
         q = Qty(q.value, dims)

@@ -22,13 +22,17 @@ import networkx as nx
 from ..findings import Finding, SourcePos, make
 from ..load.yamlsrc import Document, LoadError, load_file
 from ..model import Accept, Block, Limits, Param, PhysAction, Sample, Segment, Shot
-from ..registry import declare
 from ..validate.schema import validate_document
-from . import errors as E
 from .expr import ExprError, names_in
 from .quantities import Bad, Env, quantity, to_qty
 from .rig import build_rig
 from .units import Qty
+from ..codes import (
+    ABSOLUTE_PATH, ANCHOR_CYCLE, BAD_ANCHOR, BAD_EXPRESSION, BAD_SAMPLE, BAD_VALUE, DUPLICATE_BLOCK,
+    EMPTY_SEQUENCE, FILE_MISSING, FRAGMENT, MISSING_KEY, NON_FINITE, OVERFLOW, PARAM_CYCLE, PARAM_OUT_OF_RANGE,
+    RIG_FILE, RIG_OUTSIDE_ROOT, UNKNOWN_BLOCK, UNKNOWN_CHANNEL, UNKNOWN_NAME, USE_CYCLE, USE_OUTSIDE_ROOT,
+    VERSION, WRONG_TYPE,
+)
 
 SEQUENCE_SCHEMA = "sequence.schema.json"
 RIG_SCHEMA = "rig.schema.json"
@@ -75,7 +79,7 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
     except LoadError as exc:
         raise exc
     src = Sources(main, None)
-    if not _check_top(main, src.findings, "seqgen", E.VERSION):
+    if not _check_top(main, src.findings, "seqgen", VERSION):
         return src
     src.findings += validate_document(main, SEQUENCE_SCHEMA)
     _load_uses(main, p.parent, [p.resolve()], src, allow_outside_root)
@@ -92,31 +96,30 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
         except LoadError as exc:
             f = exc.finding
             if f.code == "schema.file-missing":
-                f = make("schema.file-missing", f"rig file '{rig_text}' not found (looked in {os.path.abspath(rig_path.parent)})",
+                f = make(FILE_MISSING, f"rig file '{rig_text}' not found (looked in {os.path.abspath(rig_path.parent)})",
                          main.pos(("rig",)), hint="rig paths are relative to the sequence file's folder")
             src.findings.append(f)
             return src
-        if _check_top(rig, src.findings, "seqgen_rig", E.VERSION):
+        if _check_top(rig, src.findings, "seqgen_rig", VERSION):
             src.findings += validate_document(rig, RIG_SCHEMA)
             src.rig = rig
     elif main.data.get("fragment") is True:
-        src.findings.append(make(E.FRAGMENT, "fragment file: checked for syntax and schema; its params, blocks "
+        src.findings.append(make(FRAGMENT, "fragment file: checked for syntax and schema; its params, blocks "
                                  "and physics are checked in the sequences that use it", main.pos(("fragment",))))
     elif "rig" not in main.data:
-        src.findings.append(make(E.MISSING_KEY_RIG, "the sequence names no rig", main.pos(()),
+        src.findings.append(make(MISSING_KEY, "the sequence names no rig", main.pos(()),
                                  hint="add 'rig: rigs/<your rig>.yaml', or 'fragment: true' for a file of shared blocks"))
     return src
 
 
-E.MISSING_KEY_RIG = "schema.missing-key"
 
 
 def _check_top(doc: Document, findings: list, key: str, code: str) -> bool:
     if doc.data is None:
-        findings.append(make(E.EMPTY, "the file is empty", doc.pos(()), hint=f"start with '{key}: 1'"))
+        findings.append(make(EMPTY_SEQUENCE, "the file is empty", doc.pos(()), hint=f"start with '{key}: 1'"))
         return False
     if not isinstance(doc.data, dict):
-        findings.append(make("schema.wrong-type", "the file must be a YAML mapping", doc.pos(()), hint=f"start with '{key}: 1'"))
+        findings.append(make(WRONG_TYPE, "the file must be a YAML mapping", doc.pos(()), hint=f"start with '{key}: 1'"))
         return False
     if key not in doc.data:
         if key == "seqgen" and "seqgen_rig" in doc.data:  # a rig file where a sequence file is expected
@@ -151,14 +154,6 @@ def _outside_allowed(flag: bool | None) -> bool:
     return os.environ.get("SEQGEN_ALLOW_OUTSIDE", "").strip().lower() in ("1", "true", "yes")
 
 
-RIG_OUTSIDE_ROOT = declare("schema.rig-outside-root", "error", """
-    The `rig:` path names a file outside the project root: the nearest folder
-    above the top-level sequence that holds a pyproject.toml, .git or
-    seqgen.toml (else the sequence's own folder). The same rule as for `use:`
-    entries (schema.use-outside-root): a sequence may not read files from
-    elsewhere on the machine by `../`, an absolute path or a symbolic link
-    that leads out. Keep the rig file in the project (e.g. `rigs/`), or allow
-    it explicitly with `--allow-outside-root` or SEQGEN_ALLOW_OUTSIDE=1.""", E.S, "load")
 
 
 def _rig_refused(main: Document, rig_text: str, rig_path: Path, top: Path,
@@ -169,7 +164,7 @@ def _rig_refused(main: Document, rig_text: str, rig_path: Path, top: Path,
     try:
         resolved, root = rig_path.resolve(), project_root(top.resolve())
     except (RuntimeError, OSError) as exc:  # a symlink loop (RuntimeError before Python 3.13)
-        return make("schema.file-missing", f"rig file '{rig_text}' cannot be read: {exc}", main.pos(("rig",)),
+        return make(FILE_MISSING, f"rig file '{rig_text}' cannot be read: {exc}", main.pos(("rig",)),
                     hint="the path is a symbolic link loop; fix the link")
     if resolved.is_relative_to(root):
         return None
@@ -179,12 +174,6 @@ def _rig_refused(main: Document, rig_text: str, rig_path: Path, top: Path,
                      "--allow-outside-root (or SEQGEN_ALLOW_OUTSIDE=1)")
 
 
-ABSOLUTE_PATH = declare("schema.absolute-path", "warning", """
-    A `rig:` or `use:` path is absolute (it starts at the root of this
-    machine's file system). It works here, but not in a colleague's clone of
-    the project or on the control computer, where the project lives
-    elsewhere. Write the path relative to the file that names it; the hint
-    gives the relative form.""", E.S, "load")
 
 
 def _absolute_path(doc: Document, path: tuple, text: str, folder: Path, top: Path) -> list[Finding]:
@@ -216,14 +205,6 @@ def _root_text(root: Path) -> str:
     return text
 
 
-RIG_FILE = declare("schema.rig-file", "note", """
-    `seqgen check` was given a rig file (`seqgen_rig: 1`) rather than a
-    sequence file. It is checked as a rig on its own: against
-    schemas/rig.schema.json, then built as the resolve stage builds a rig
-    (devices, channels, ranges, calibrations, limits, beams, coils, drives,
-    imaging), and those findings are reported. What the rig means for a run
-    (ranges reached, timing, safety, physics) is checked with a sequence that
-    names it: `seqgen check SEQUENCE` for a sequence with `rig: PATH`.""", E.S, "resolve")
 
 
 def is_rig_document(doc: Document) -> bool:
@@ -235,7 +216,7 @@ def check_rig_document(doc: Document) -> list[Finding]:
     """The findings of a rig file checked on its own: version, rig schema, then the rig builder; a note
     that says so (and how many devices and channels it has) when it builds."""
     findings: list[Finding] = []
-    if not _check_top(doc, findings, "seqgen_rig", E.VERSION):
+    if not _check_top(doc, findings, "seqgen_rig", VERSION):
         return findings
     findings += validate_document(doc, RIG_SCHEMA)
     if any(f.severity == "error" for f in findings):
@@ -262,12 +243,12 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_out
         try:
             resolved = target.resolve()
         except (RuntimeError, OSError) as exc:  # a symlink loop (RuntimeError before Python 3.13)
-            src.findings.append(make("schema.file-missing", f"used file '{entry['file']}' cannot be read: {exc}",
+            src.findings.append(make(FILE_MISSING, f"used file '{entry['file']}' cannot be read: {exc}",
                                      doc.pos(("use", i, "file")), hint="the path is a symbolic link loop; fix the link"))
             continue
         if not resolved.is_relative_to(root) and not _outside_allowed(allow_outside_root):
             shown = _root_text(root)
-            src.findings.append(make(E.USE_OUTSIDE_ROOT, f"used file '{entry['file']}' is outside the project root {shown}",
+            src.findings.append(make(USE_OUTSIDE_ROOT, f"used file '{entry['file']}' is outside the project root {shown}",
                                      doc.pos(("use", i, "file")),
                                      hint="move the file into the project, or allow it with --allow-outside-root "
                                           "(or SEQGEN_ALLOW_OUTSIDE=1)"))
@@ -275,7 +256,7 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_out
         src.findings += _absolute_path(doc, ("use", i, "file"), entry["file"], folder, chain[0])
         if resolved in chain:
             names = " -> ".join(_display(c) for c in chain + [resolved])
-            src.findings.append(make(E.USE_CYCLE, f"use cycle: {names}", doc.pos(("use", i, "file")),
+            src.findings.append(make(USE_CYCLE, f"use cycle: {names}", doc.pos(("use", i, "file")),
                                      hint="remove one of the use: entries in the chain"))
             continue
         try:
@@ -283,13 +264,13 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_out
         except LoadError as exc:
             f = exc.finding
             if f.code == "schema.file-missing":
-                f = make("schema.file-missing", f"used file '{entry['file']}' not found (looked in "
+                f = make(FILE_MISSING, f"used file '{entry['file']}' not found (looked in "
                          f"{os.path.abspath(target.parent)})",
                          doc.pos(("use", i, "file")), hint="use: paths are relative to the folder of the file that "
                                                           "uses them")
             src.findings.append(f)
             continue
-        if not _check_top(used, src.findings, "seqgen", E.VERSION):
+        if not _check_top(used, src.findings, "seqgen", VERSION):
             continue
         src.findings += validate_document(used, SEQUENCE_SCHEMA)
         _load_uses(used, target.parent, chain + [resolved], src, allow_outside_root)
@@ -352,13 +333,13 @@ def _resolve(src: Sources, overrides: dict | None) -> tuple[Shot | None, list[Fi
             if wanted is not None and b["name"] not in wanted:
                 continue
             if b["name"] in seen:
-                findings.append(make(E.DUPLICATE_BLOCK, f"block '{b['name']}' is defined twice (first at {seen[b['name']]})",
+                findings.append(make(DUPLICATE_BLOCK, f"block '{b['name']}' is defined twice (first at {seen[b['name']]})",
                                      d.pos(("blocks", i, "name")), hint="rename one of them"))
                 continue
             seen[b["name"]] = d.pos(("blocks", i, "name"))
             blocks_raw.append((b, d, ("blocks", i)))
     if not any(b.get("actions") for b, *_ in blocks_raw):
-        findings.append(make(E.EMPTY, "the sequence has no actions", src.main.pos(("blocks",)),
+        findings.append(make(EMPTY_SEQUENCE, "the sequence has no actions", src.main.pos(("blocks",)),
                              hint="add a block with at least one action"))
         return None, findings
     lowered = []
@@ -381,7 +362,7 @@ def _resolve(src: Sources, overrides: dict | None) -> tuple[Shot | None, list[Fi
         pos = src.main.pos(("accept", i))
         if a.get("block") and a["block"] not in seen:
             close = difflib.get_close_matches(a["block"], list(seen), n=1)
-            findings.append(make(E.UNKNOWN_BLOCK, f"acceptance names unknown block '{a['block']}'", pos,
+            findings.append(make(UNKNOWN_BLOCK, f"acceptance names unknown block '{a['block']}'", pos,
                                  hint=f"did you mean '{close[0]}'?" if close else "name an existing block"))
         accepts.append(Accept(a["code"], a.get("block"), a["reason"], pos))
     blocks.sort(key=lambda b: (b.start_s, b.name))
@@ -389,7 +370,7 @@ def _resolve(src: Sources, overrides: dict | None) -> tuple[Shot | None, list[Fi
     countable = min((2.0 ** 52 / d.timebase_hz for d in rig.devices.values()), default=math.inf)
     if duration >= countable:  # ticks would no longer be exact integers in a float64
         last = max(blocks, key=lambda b: b.end_s)
-        findings.append(make(E.OVERFLOW, f"the sequence lasts {duration:.4g} s, longer than its devices can count "
+        findings.append(make(OVERFLOW, f"the sequence lasts {duration:.4g} s, longer than its devices can count "
                              f"in ticks ({countable:.3g} s)", last.pos, block=last.name,
                              hint="check the block times and durations for a typo in the exponent"))
         return None, findings
@@ -418,11 +399,11 @@ def _resolve_params(entries: dict, overrides: dict, findings: list, bounds: dict
             try:
                 bdeps = names_in(braw) if isinstance(braw, str) else set()
             except ExprError as exc:
-                findings.append(make(E.EXPRESSION, str(exc), bdoc.pos(bpath), hint=exc.hint))
+                findings.append(make(BAD_EXPRESSION, str(exc), bdoc.pos(bpath), hint=exc.hint))
                 del bounds[name][key]
                 continue
             if name in bdeps and not _plain_quantity(braw):
-                findings.append(make(E.EXPRESSION, f"the {key}: of param '{name}' names '{name}' itself",
+                findings.append(make(BAD_EXPRESSION, f"the {key}: of param '{name}' names '{name}' itself",
                                      bdoc.pos(bpath), hint=f"give {key}: as a quantity, e.g. '{key}: 1 ms'"))
                 del bounds[name][key]
                 continue
@@ -433,7 +414,7 @@ def _resolve_params(entries: dict, overrides: dict, findings: list, bounds: dict
             try:
                 deps = names_in(value)
             except ExprError as exc:
-                findings.append(make(E.EXPRESSION, str(exc), d.pos(path), hint=exc.hint))
+                findings.append(make(BAD_EXPRESSION, str(exc), d.pos(path), hint=exc.hint))
                 continue
             for dep in deps:
                 if dep in entries:
@@ -444,7 +425,7 @@ def _resolve_params(entries: dict, overrides: dict, findings: list, bounds: dict
         cycle = nx.find_cycle(graph)
         members = [u for u, _ in cycle]
         _, d, path = texts[members[0]]
-        findings.append(make(E.PARAM_CYCLE, "params depend on each other in a cycle: " + " -> ".join(members + [members[0]]),
+        findings.append(make(PARAM_CYCLE, "params depend on each other in a cycle: " + " -> ".join(members + [members[0]]),
                              d.pos(path), hint="give one of them a plain value"))
         return None, None
     env = Env(defs=texts)  # name -> Qty; knows each param's definition, for findings about its value
@@ -525,7 +506,7 @@ def _out_of_bounds(name: str, q: Qty, written, spec: dict, entry: tuple, scanned
 
     if "min" in lim and "max" in lim and lim["min"] > lim["max"]:
         braw, bdoc, bpath = spec["min"]
-        return [make(E.PARAM_RANGE, f"param '{name}' has min: {shown(lim['min'])} above its max: "
+        return [make(PARAM_OUT_OF_RANGE, f"param '{name}' has min: {shown(lim['min'])} above its max: "
                      f"{shown(lim['max'])}, so no value can meet both", bdoc.pos(bpath),
                      hint="swap min: and max:, or fix the one with the typo")]
     v = q.value
@@ -547,7 +528,7 @@ def _out_of_bounds(name: str, q: Qty, written, spec: dict, entry: tuple, scanned
         else:
             what = f"'{name}' = {shown(v)}"
             hint = f"give '{name}' a value {least} {shown(b)}, or change {key}: if such values are meant"
-        out.append(make(E.PARAM_RANGE, f"{what} is {side} its {key}: {shown(b)}{where(key)}", pos, hint=hint,
+        out.append(make(PARAM_OUT_OF_RANGE, f"{what} is {side} its {key}: {shown(b)}{where(key)}", pos, hint=hint,
                         data={"value": v, key: b}))
     return out
 
@@ -560,7 +541,7 @@ def _sample(doc: Document, env, findings) -> Sample | None:
     st = s.get("state") or {}
     F, mF = st.get("F"), st.get("mF")
     if F is not None and mF is not None and abs(mF) > F:
-        findings.append(make(E.BAD_SAMPLE, f"state F={F}, mF={mF} is impossible (|mF| > F)", doc.pos(("sample", "state")),
+        findings.append(make(BAD_SAMPLE, f"state F={F}, mF={mF} is impossible (|mF| > F)", doc.pos(("sample", "state")),
                              hint="mF runs from -F to F"))
     try:
         from ..physics.atoms import get_species
@@ -568,7 +549,7 @@ def _sample(doc: Document, env, findings) -> Sample | None:
         sp = get_species(s["species"])
         name = sp.name
     except KeyError as exc:
-        findings.append(make(E.BAD_SAMPLE, f"unknown species '{s['species']}'", doc.pos(("sample", "species")),
+        findings.append(make(BAD_SAMPLE, f"unknown species '{s['species']}'", doc.pos(("sample", "species")),
                              hint=str(exc).strip("'\"")))
         name = s["species"]
     except ImportError:  # pragma: no cover - physics data missing
@@ -640,13 +621,13 @@ def _place_blocks(blocks_raw, lowered, env, findings):
             continue
         m = _ANCHOR.match(b[kind])
         if not m:
-            findings.append(make(E.BAD_ANCHOR, f"cannot read anchor '{kind}: {b[kind]}'", d.pos(path + (kind,)),
+            findings.append(make(BAD_ANCHOR, f"cannot read anchor '{kind}: {b[kind]}'", d.pos(path + (kind,)),
                                  hint=f"write '{kind}: BLOCK' or '{kind}: BLOCK + 5 ms'"))
             return None
         target, sign, off_text = m.groups()
         if target not in index:
             close = difflib.get_close_matches(target, names, n=1)
-            findings.append(make(E.UNKNOWN_BLOCK, f"block '{b['name']}' is anchored {kind} unknown block '{target}'",
+            findings.append(make(UNKNOWN_BLOCK, f"block '{b['name']}' is anchored {kind} unknown block '{target}'",
                                  d.pos(path + (kind,)), hint=f"did you mean '{close[0]}'?" if close else "name an existing block"))
             return None
         off = 0.0
@@ -664,7 +645,7 @@ def _place_blocks(blocks_raw, lowered, env, findings):
     except nx.NetworkXUnfeasible:
         cycle = [u for u, _ in nx.find_cycle(graph)]
         b, d, path = blocks_raw[index[cycle[0]]]
-        findings.append(make(E.ANCHOR_CYCLE, "blocks are anchored on each other in a cycle: " + " -> ".join(cycle + [cycle[0]]),
+        findings.append(make(ANCHOR_CYCLE, "blocks are anchored on each other in a cycle: " + " -> ".join(cycle + [cycle[0]]),
                              d.pos(path), hint="anchor one of them with 'at:' or on a block outside the cycle"))
         return None
     start: dict[str, float] = {}
@@ -707,7 +688,7 @@ class _Ctx:
                     if rig.outputs[p].phys_dims == dims_hint:
                         return rig.outputs[p]
             return rig.outputs[parts[0]]
-        raise Bad(make(E.UNKNOWN_CHANNEL, f"unknown channel '{channel}'", self.doc.pos(path),
+        raise Bad(make(UNKNOWN_CHANNEL, f"unknown channel '{channel}'", self.doc.pos(path),
                        block=self.block, hint=_close(channel, list(rig.channels) + list(rig.outputs))))
 
     def value(self, out, raw, path, what):
@@ -730,13 +711,13 @@ class _Ctx:
     def ramp(self, out, spec, t0, path, action, v_from, v_to, dur):
         tau = self.q(spec, "tau", path, "s") if "tau" in spec else None
         if spec.get("shape") == "exponential" and not tau:
-            raise Bad(make("schema.missing-key", "an exponential ramp needs 'tau:'", self.doc.pos(path), block=self.block,
+            raise Bad(make(MISSING_KEY, "an exponential ramp needs 'tau:'", self.doc.pos(path), block=self.block,
                            hint="add 'tau: <time constant>'"))
         tol = None
         if "tolerance" in spec:
             tol = quantity(spec["tolerance"], out.unit, self.doc, path + ("tolerance",), self.env, positive=True)
             if tol < 1e-9 * (out.hi - out.lo):  # finer than any DAC resolves: the sampler could never meet it
-                raise Bad(make("schema.bad-value", f"tolerance {tol:.3g} {out.unit} is below a billionth of the output "
+                raise Bad(make(BAD_VALUE, f"tolerance {tol:.3g} {out.unit} is below a billionth of the output "
                                f"range of '{out.name}'", self.doc.pos(path + ("tolerance",)), block=self.block,
                                hint="give at least half an LSB of the channel"))
         if spec.get("shape") == "table":
@@ -748,14 +729,14 @@ class _Ctx:
 def _check_shape_table(ctx, table, path):
     """A ramp's shape table: [progress s, fraction f] pairs, finite, s from 0 to 1 strictly increasing."""
     if not table:
-        raise Bad(make("schema.missing-key", "a table-shaped ramp needs 'table:'", ctx.doc.pos(path), block=ctx.block,
+        raise Bad(make(MISSING_KEY, "a table-shaped ramp needs 'table:'", ctx.doc.pos(path), block=ctx.block,
                        hint="add 'table: [[0, 0], [0.5, 0.8], [1, 1]]' (progress, fraction)"))
     s = [row[0] for row in table]
     if not all(isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for row in table for x in row):
-        raise Bad(make(E.NON_FINITE, "shape table entries must be finite numbers", ctx.doc.pos(path), block=ctx.block,
+        raise Bad(make(NON_FINITE, "shape table entries must be finite numbers", ctx.doc.pos(path), block=ctx.block,
                        hint="replace .nan / .inf entries with numbers"))
     if s[0] != 0 or s[-1] != 1 or any(b <= a for a, b in zip(s, s[1:])):
-        raise Bad(make("schema.bad-value", "shape table progress must run from 0 to 1, strictly increasing",
+        raise Bad(make(BAD_VALUE, "shape table progress must run from 0 to 1, strictly increasing",
                        ctx.doc.pos(path), block=ctx.block, hint="first column: 0, ..., 1 in increasing order"))
 
 
@@ -819,7 +800,7 @@ def _do_pulse(ctx, spec, t0, path):
     elif out.kind == "digital":
         value = 1.0
     else:
-        raise Bad(make("schema.missing-key", "an analog pulse needs 'value:'", ctx.doc.pos(path), block=ctx.block,
+        raise Bad(make(MISSING_KEY, "an analog pulse needs 'value:'", ctx.doc.pos(path), block=ctx.block,
                        hint="add 'value: <level during the pulse>'"))
     back = ctx.value(out, spec["back_to"], path + ("back_to",), "back_to") if "back_to" in spec else None
     ctx.pulse(out, t0, dur, value, back, "pulse", path)
@@ -839,7 +820,7 @@ def _do_trigger(ctx, spec, t0, path):
 
 def _named(ctx, table, kind, name, path):
     if name not in table:
-        raise Bad(make(E.UNKNOWN_NAME, f"unknown {kind} '{name}'", ctx.doc.pos(path), block=ctx.block,
+        raise Bad(make(UNKNOWN_NAME, f"unknown {kind} '{name}'", ctx.doc.pos(path), block=ctx.block,
                        hint=_close(name, table)))
     return table[name]
 
@@ -877,7 +858,7 @@ def _do_release(ctx, spec, t0, path):
 
 def _coil_current(ctx, coil, gradient, path):
     if not coil.gradient_per_amp:
-        raise Bad(make(E.UNKNOWN_NAME, f"coil '{coil.name}' has no gradient_per_amp in the rig", ctx.doc.pos(path),
+        raise Bad(make(UNKNOWN_NAME, f"coil '{coil.name}' has no gradient_per_amp in the rig", ctx.doc.pos(path),
                        block=ctx.block, hint="add 'gradient_per_amp: <G/cm per A>' to the coil"))
     return gradient / coil.gradient_per_amp
 
@@ -888,7 +869,7 @@ def _do_push(ctx, spec, t0, path):
     if "coil" in spec:
         coil = _named(ctx, ctx.rig.coils, "coil", spec["coil"], path + ("coil",))
         if "gradient" not in spec:
-            raise Bad(make("schema.missing-key", "a magnetic push needs 'gradient:'", ctx.doc.pos(path), block=ctx.block))
+            raise Bad(make(MISSING_KEY, "a magnetic push needs 'gradient:'", ctx.doc.pos(path), block=ctx.block))
         grad = ctx.q(spec, "gradient", path, "T/m")
         out = ctx.output_for(coil.current_channel, path + ("coil",))
         ctx.pulse(out, t0, dur, _coil_current(ctx, coil, grad, path + ("gradient",)), 0.0, "push", path)
@@ -896,14 +877,14 @@ def _do_push(ctx, spec, t0, path):
     elif "beam" in spec:
         beam = _named(ctx, ctx.rig.beams, "beam", spec["beam"], path + ("beam",))
         if "power" not in spec:
-            raise Bad(make("schema.missing-key", "an optical push needs 'power:'", ctx.doc.pos(path), block=ctx.block,
+            raise Bad(make(MISSING_KEY, "an optical push needs 'power:'", ctx.doc.pos(path), block=ctx.block,
                            hint="add 'power: <beam power>'"))
         power = ctx.q(spec, "power", path, "W", positive=True)
         out = ctx.output_for(beam.power_channel, path + ("beam",))
         ctx.pulse(out, t0, dur, power, 0.0, "push", path)
         args.update(beam=beam.name, power=power)
     else:
-        raise Bad(make("schema.missing-key", "a push needs 'coil:' (magnetic) or 'beam:' (optical)", ctx.doc.pos(path),
+        raise Bad(make(MISSING_KEY, "a push needs 'coil:' (magnetic) or 'beam:' (optical)", ctx.doc.pos(path),
                        block=ctx.block))
     if "expect_velocity" in spec:
         args["expect_velocity"] = ctx.q(spec, "expect_velocity", path, "m/s")
@@ -994,7 +975,7 @@ def _do_image(ctx, spec, t0, path):
         power = ctx.q(spec, "probe_power", path, out.phys_unit or "W", positive=True) if "probe_power" in spec else (
             1.0 if out.kind == "digital" else None)
         if power is None:
-            raise Bad(make("schema.missing-key", "imaging needs 'probe_power:' for an analog probe channel", ctx.doc.pos(path),
+            raise Bad(make(MISSING_KEY, "imaging needs 'probe_power:' for an analog probe channel", ctx.doc.pos(path),
                            block=ctx.block))
         ctx.pulse(out, t0, dur, power, 0.0, "image", path)
         args["probe_power"] = power
@@ -1041,7 +1022,7 @@ def _do_magnetic_hold(ctx, spec, t0, path):
     st = spec.get("state")
     if st:
         if abs(st["mF"]) > st["F"]:
-            raise Bad(make(E.BAD_SAMPLE, f"state F={st['F']}, mF={st['mF']} is impossible (|mF| > F)",
+            raise Bad(make(BAD_SAMPLE, f"state F={st['F']}, mF={st['mF']} is impossible (|mF| > F)",
                            ctx.doc.pos(path + ("state",)), block=ctx.block, hint="mF runs from -F to F"))
         args["state"] = (int(st["F"]), int(st["mF"]))
     _phys(ctx, "magnetic_hold", t0, t0 + ramp_on + dur, path, **args)

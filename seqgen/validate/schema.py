@@ -22,22 +22,9 @@ import jsonschema
 
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
-from ..registry import declare
 from .fast import FastSchema, compile_schema
+from ..codes import BAD_VALUE, MISSING_KEY, UNKNOWN_KEY, WRONG_TYPE
 
-UNKNOWN_KEY = declare("schema.unknown-key", "error", """
-    A key the format does not know. Usually a typo: the message suggests the
-    closest known key. `seqgen explain` and schemas/*.schema.json list them all.""",
-    "JSON Schema draft 2020-12 (json-schema.org), additionalProperties", "schema")
-WRONG_TYPE = declare("schema.wrong-type", "error", """
-    A value of the wrong kind: a list where a mapping is expected, text where
-    a whole number is expected, and so on.""", "JSON Schema draft 2020-12, type", "schema")
-MISSING_KEY = declare("schema.missing-key", "error", """
-    A required key is missing, for example `to:` or `over:` of a ramp.""",
-    "JSON Schema draft 2020-12, required", "schema")
-BAD_VALUE = declare("schema.bad-value", "error", """
-    A value outside the allowed set or range (an unknown ramp shape, a
-    negative bit depth, two anchors on one block).""", "JSON Schema draft 2020-12", "schema")
 
 MAX_REPORTED = 25
 

@@ -1,0 +1,116 @@
+"""Finding codes of the `hardware.*` family: what the devices can play.
+
+Each code is a value: rules report it by reference, so a misspelt name fails at import.
+"""
+
+from ._code import Code
+
+EXPOSURE_TOO_SHORT = Code(
+    "hardware.exposure-too-short", "error", stage="physics",
+    source=("the rig file's camera channel; the camera must be exposing while the probe is on (common "
+            "practice, no source)"),
+    doc="""
+    The camera exposure is shorter than the probe pulse: both start
+    together, so the end of the probe light is not recorded and the image
+    under-counts the absorption. Make `exposure` at least the probe
+    `duration`.""")
+
+JITTER = Code(
+    "hardware.jitter", "warning", stage="timeline",
+    source="the rig file's jitter per channel (e.g. a mechanical shutter's timing spread)",
+    doc="""
+    Two edges of one channel closer together than the channel's declared
+    timing jitter: the second may come before the first has settled, so the
+    pulse may be much shorter than written or missing.""")
+
+MEMORY_DEPTH = Code(
+    "hardware.memory-depth", "error", stage="tables",
+    source="the rig file's memory_depth per device",
+    doc="""
+    A device table longer than the device's memory depth cannot be loaded.
+    The message says how many rows over and which blocks contribute most;
+    loosen ramp tolerances or shorten ramps there.""")
+
+MIN_INTERVAL = Code(
+    "hardware.min-interval", "error", stage="tables",
+    source="the rig file's min_interval per device",
+    doc="""
+    Two rows of a device table closer than the device's minimum interval
+    between updates (for example two edges 1 us apart on a device that updates
+    every 2 us). Move the events apart.""")
+
+MODULATION_UNREACHABLE = Code(
+    "hardware.modulation-unreachable", "error", stage="physics",
+    source=("sampling theorem, Proc. IRE 37, 10 (1949) (from memory); the rig file's device timebase "
+            "and minimum interval"),
+    doc="""
+    A barrier's modulation is put on an analog (or digital) channel, i.e.
+    as rows of a channel table, but the channel's device cannot update fast
+    enough: a modulation at frequency f needs an update rate above 2 f
+    (timebase / minimum interval of the device). Put the modulation on a
+    synth channel (a frequency source), or lower the frequency.""")
+
+OUT_OF_RANGE = Code(
+    "hardware.out-of-range", "error", stage="timeline",
+    source="the rig file's output ranges (the hardware's data sheet values)",
+    doc="""
+    A value that, after calibration, lies outside the output's range (for
+    example 11 V on a +-10 V analog output, or a synth frequency above its
+    maximum). The hardware would clip or wrap it. Lower the value or check the
+    calibration.""")
+
+OUTSIDE_CALIBRATION = Code(
+    "hardware.outside-calibration", "warning", stage="timeline",
+    source="the rig file's calibration table (measured points)",
+    doc="""
+    A value on a channel calibrated by a table lies beyond the table's
+    measured points. There seqgen continues the calibration as a straight
+    line with the slope of the table's end interval, which is a guess: an AOM's
+    diffraction efficiency saturates, a photodiode clips. Measure the
+    calibration out to the values the sequence uses, or stay inside the
+    table.""")
+
+PULSE_TOO_SHORT = Code(
+    "hardware.pulse-too-short", "error", stage="timeline",
+    source="the rig file's minimum pulse width per digital channel",
+    doc="""
+    A digital pulse shorter than the channel's declared minimum width (a
+    shutter driver or a camera trigger input that needs a minimum high time).""")
+
+RAMP_UNDERSAMPLED = Code(
+    "hardware.ramp-undersampled", "warning", stage="compile",
+    source=("the rig file's min_interval and timebase per device; piecewise-constant and "
+            "piecewise-linear approximation error bounds (A Practical Guide to Splines, Springer "
+            "(1978))"),
+    doc="""
+    A ramp changes faster than its device can follow within the ramp's
+    tolerance: rows of a device table may not be closer than the device's
+    minimum interval (nor than one tick), so between two rows the output holds
+    (or, on a linearly interpolating device, draws a straight line) while the
+    intended curve moves on. The message gives the largest deviation from the
+    intended curve found at the device's ticks (output units) and how many
+    times the tolerance that is. The build is still written, with the closest
+    rows the device allows. Make the ramp slower, loosen its `tolerance:` (or
+    the channel's), or drive the channel from a device with a shorter minimum
+    interval. A step-and-hold output approximating a curve of slope y' with
+    rows h apart is off by up to y' h / 2; interpolating rows, by up to
+    h^2 |y''| / 8 (A Practical Guide to Splines, Springer (1978)).""")
+
+RESOLUTION = Code(
+    "hardware.resolution", "warning", stage="timeline",
+    source="DAC quantization error of half a least significant bit (textbook)",
+    doc="""
+    A ramp asks for a tolerance finer than the output can resolve: with
+    `bits` over its range, a DAC output is always within half a least
+    significant bit of the wanted value, never closer. The compiled ramp then
+    deviates from the intended curve by up to half an LSB, more than the
+    tolerance asked for.""")
+
+SLEW = Code(
+    "hardware.slew", "error", stage="timeline",
+    source="the rig file's max_slew per channel (e.g. a coil driver's voltage compliance)",
+    doc="""
+    A ramp or step faster than the channel's maximum slew rate (physical
+    units per second). A coil's current cannot follow a step faster than its
+    driver's compliance allows; steps are judged over the device's minimum
+    interval.""")
