@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+from ..caution import CAUTION  # noqa: F401  (re-exported: the one wording lives in seqgen/caution.py)
 from ..findings import Finding, make
 from ..registry import CHECKS, declare
 from . import hardware, safety, timing  # noqa: F401  (register checks)
@@ -21,9 +22,6 @@ except ImportError:  # pragma: no cover
 CHECK_CRASHED = declare("schema.check-crashed", "error", """
     A preflight check raised an unexpected error. This is a bug in seqgen, not
     in your file; the other checks still ran. Please report it with the file.""", stage="check")
-
-CAUTION = ("Preflight reduces mistakes; it is no substitute for hardware interlocks, laser-safety rules, "
-           "coil and high-voltage safety, or the lab's local procedures and licensed practice.")
 
 
 def _run(stage: str, *args) -> list[Finding]:
