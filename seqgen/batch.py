@@ -54,6 +54,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
+from .caution import CAUTION
 from .findings import SEVERITIES, Finding, SourcePos, has_errors, make, sort_findings, summary
 from .load.yamlsrc import LoadError
 from .model import Rig, Shot
@@ -642,6 +643,7 @@ class _ManifestWriter:
             "scan": scan_description(self.scan.plan),
             "summary": {"shots": len(recs), **counts},
             "shots": recs,
+            "caution": CAUTION,
         }
         tmp = self.out / f".{SCAN_MANIFEST}.tmp"
         with open(tmp, "w", encoding="utf-8", newline="\n") as fh:

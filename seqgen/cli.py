@@ -13,6 +13,7 @@ import sys
 from pathlib import Path
 
 from . import __version__
+from .caution import CAUTION
 from .findings import format_text, summary
 from .resolve.units import format_value
 
@@ -21,8 +22,6 @@ _CANNOT_RUN_CODES = {"schema.file-missing", "schema.file-too-large"}
 
 
 def _caution() -> str:
-    from .check import CAUTION
-
     return "caution: " + CAUTION
 
 
@@ -36,7 +35,8 @@ def _report(res, args, out=None, choice=None, caution: bool = True) -> int:
 
         out.write(to_sarif_json(res.findings, sources=res.sources.hashes if res.sources else None))
     elif fmt == "json":
-        doc = {"file": args.file, "summary": summary(res.findings), "findings": [f.to_dict() for f in res.findings]}
+        doc = {"file": args.file, "summary": summary(res.findings), "findings": [f.to_dict() for f in res.findings],
+               "caution": CAUTION}
         if choice is not None:
             doc["scan"] = choice.to_json()
         out.write(json.dumps(doc, indent=2, sort_keys=True) + "\n")
@@ -302,7 +302,7 @@ def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
 
             sys.stdout.write(scan_to_sarif_json(scan))
         elif args.json:
-            print(json.dumps(scan_json(scan), indent=2, sort_keys=True))
+            print(json.dumps({**scan_json(scan), "caution": CAUTION}, indent=2, sort_keys=True))
         else:
             for f in scan.findings:
                 print(format_text(f))
@@ -323,7 +323,7 @@ def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
 
         sys.stdout.write(scan_to_sarif_json(scan))
     elif args.json:
-        print(json.dumps(scan_json(scan), indent=2, sort_keys=True))
+        print(json.dumps({**scan_json(scan), "caution": CAUTION}, indent=2, sort_keys=True))
     else:
         print(report_text(scan, built=build))
         if caution:
@@ -333,6 +333,7 @@ def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
 
 def cmd_build(args) -> int:
     from .emit.build import BuildExists, write_build
+    from .emit.writers import WriterError
     from .pipeline import preflight
 
     scan = _plan_scan(args)
@@ -349,13 +350,13 @@ def cmd_build(args) -> int:
         return code
     failed, out = _writing(f"build to {args.output}", lambda: write_build(args.output, res.shot, res.compiled,
                                                                            res.findings, force=args.force),
-                           (BuildExists,))
+                           (BuildExists, WriterError))
     if failed:
         return failed
     s = summary(res.findings)
     if args.json:
         print(json.dumps({"build": str(out), "summary": s, "devices": {t.device: int(len(t.ticks)) for t in res.compiled.tables},
-                          "duration_s": res.compiled.duration_s}, indent=2, sort_keys=True))
+                          "duration_s": res.compiled.duration_s, "caution": CAUTION}, indent=2, sort_keys=True))
         return EXIT_OK
     for f in res.findings:
         print(format_text(f))
@@ -431,7 +432,7 @@ def cmd_diff(args) -> int:
         rep = diff_paths(*args.inputs)
     except DiffInputError as exc:
         return _cannot_run(exc)
-    sys.stdout.write(to_json(rep) + "\n" if args.json else to_text(rep))
+    sys.stdout.write(to_json(rep) + "\n" if args.json else to_text(rep) + _caution() + "\n")
     return EXIT_OK if rep.identical else EXIT_FINDINGS
 
 

@@ -1,14 +1,20 @@
-"""Building the demo: manifest schema, determinism, atomic writes, --force, table contents."""
+"""Building the demo: manifest schema, determinism, atomic writes, --force, table contents, table writers,
+the safety caution in manifest.json and scan.json."""
 
 import hashlib
 import json
+from dataclasses import dataclass, field
+from importlib.metadata import EntryPoint
 from pathlib import Path
 
 import jsonschema
 import numpy as np
 import pytest
 
+from seqgen.caution import CAUTION
+from seqgen.emit import writers as W
 from seqgen.emit.build import BuildExists, write_build
+from seqgen.emit.writers import CSV, NPZ, Writer, WriterError
 from seqgen.pipeline import preflight
 
 from .conftest import ROOT, SEQUENCES
@@ -65,15 +71,6 @@ def test_existing_build_needs_force(demo, tmp_path):
     assert (out / "manifest.json").exists()
 
 
-def test_crash_between_table_writes_keeps_previous_build(demo, tmp_path):
-    out = write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings)
-    before = _hashes(out)
-    with pytest.raises(RuntimeError):
-        write_build(out, demo.shot, demo.compiled, demo.findings, force=True, _crash_after=1)
-    assert _hashes(out) == before
-    assert [p.name for p in tmp_path.iterdir()] == ["b"]  # no half-written folder left behind
-
-
 def test_digital_edges_latency_compensated(demo):
     # the probe shutter opens 3.2 ms late (rig): its command must come 3.2 ms before the image block's first write
     shot, comp = demo.shot, demo.compiled
@@ -93,3 +90,197 @@ def test_calibrated_values_in_output_units(demo):
     assert abs(ao.values[0, col]) <= lsb / 2  # safe 0 W: nearest code to 0 V
     first_on = ao.values[np.argmax(ao.values[:, col] > 1.0), col]
     assert abs(first_on - 6.4) <= lsb / 2 + 1e-12
+
+
+# ----------------------------------------------------------------------------- table writers
+# A test writer: the ticks of a table as text, one per line. Its expected bytes are made here from the .npz
+# table numpy.load reads back (numpy's own reader), not from the writer.
+
+
+@dataclass(frozen=True)
+class TickLines:
+    name: str = "ticks"
+    suffix: str = ".ticks.txt"
+    calls: list = field(default_factory=list, compare=False, hash=False)
+
+    def write(self, table, path):
+        self.calls.append(table.device)
+        Path(path).write_text("".join(f"{int(t)}\n" for t in table.ticks), encoding="ascii")
+
+
+TICK_LINES = TickLines()  # the object a (programmatically made) entry point below names
+
+
+def _schema(name):
+    return jsonschema.Draft202012Validator(json.loads((ROOT / "schemas" / name).read_text(encoding="utf-8")))
+
+
+@pytest.fixture
+def entry_points(monkeypatch):
+    """Stand in for the installed `seqgen.writers` entry points (the built-in ones are always there)."""
+    def use(*eps):
+        monkeypatch.setattr(W, "declared_entry_points", lambda: tuple(eps))
+        W.available_writers.cache_clear()
+    yield use
+    W.available_writers.cache_clear()
+
+
+def test_an_entry_point_writer_is_called_and_listed_in_the_manifest(demo, tmp_path, entry_points):
+    TICK_LINES.calls.clear()
+    entry_points(EntryPoint("ticks", "tests.test_build:TICK_LINES", "seqgen.writers"),
+                 EntryPoint("npz", "seqgen.emit.writers:NPZ", "seqgen.writers"))  # a built-in: listed once
+    out = write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings)
+    man = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+    _schema("manifest.schema.json").validate(man)
+    # twice per table: a writer not built in is run again to check its bytes depend on the table only
+    assert sorted(TICK_LINES.calls) == sorted(list(man["devices"]) * 2)
+    for dev, info in man["devices"].items():
+        assert set(info["files"]) == {"npz", "csv", "ticks"}
+        entry = info["files"]["ticks"]
+        assert entry["path"] == f"{dev}.ticks.txt"
+        raw = (out / entry["path"]).read_bytes()
+        assert hashlib.sha256(raw).hexdigest() == entry["sha256"]
+        ticks = np.load(out / info["files"]["npz"]["path"])["tick"]
+        assert raw == "".join(f"{t}\n" for t in ticks.tolist()).encode("ascii")
+    listed = {e["path"] for info in man["devices"].values() for e in info["files"].values()}
+    assert {p.name for p in out.iterdir()} == listed | {"manifest.json"}
+
+
+def test_an_explicit_tuple_of_writers_is_all_that_is_written(demo, tmp_path):
+    out = write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings, writers=(NPZ, TickLines()))
+    man = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+    _schema("manifest.schema.json").validate(man)
+    assert {k for info in man["devices"].values() for k in info["files"]} == {"npz", "ticks"}
+    assert not list(out.glob("*.csv"))
+
+
+# The build's table bytes before the writers were split out (sequences/na23_thermometry.yaml built on commit
+# 713f9be): a regression pin on the file formats, not values the code under test produced for this test.
+THERMOMETRY_TABLES_713F9BE = {
+    "ao_main.csv": "a08cffc5eaa9bc6d663cd75eab165580d6fc5ab23804813cf230f01ca1b82925",
+    "ao_main.npz": "0f86c0afc83a4af1a7b02404d400398e476122e9bc59ed7fa5fc5f6557fbb773",
+    "dio_main.csv": "78d3973b28f1edc1e9903701f4d6aff1db7dae906e88c32f2146b721f2485192",
+    "dio_main.npz": "97f94a41f7f593b59ecf721f0004509e26afc9b420a7ba2ab1ada3a096c293c8",
+    "synth_rf.csv": "2805955eb4de106d2b8e9b6aa410a33bafa1e202db6ab643acc20a868a1846ce",
+    "synth_rf.npz": "42ddbb8e99ca68a7e670996d3de7df4fadd88cb7537e7b55cbbc03625709da71",
+}
+
+
+def test_default_writers_give_the_same_table_bytes_as_before(tmp_path, entry_points):
+    entry_points()  # no installed writer but the built-in ones
+    res = preflight(SEQUENCES / "na23_thermometry.yaml")
+    out = write_build(tmp_path / "t", res.shot, res.compiled, res.findings)
+    tables = {k: v for k, v in _hashes(out).items() if k != "manifest.json"}
+    assert tables == THERMOMETRY_TABLES_713F9BE
+
+
+@dataclass(frozen=True)
+class Broken:
+    """A writer broken in one way: `how` is raise-second (raises on the second table), random, no-file, extra,
+    or embeds-path."""
+    how: str
+    name: str = "broken"
+    suffix: str = ".bin"
+    calls: list = field(default_factory=list, compare=False, hash=False)
+
+    def write(self, table, path):
+        import os
+
+        self.calls.append(table.device)
+        path = Path(path)
+        if self.how == "raise-second" and len({*self.calls}) == 2:
+            raise ValueError("cannot encode this table")
+        if self.how == "random":
+            path.write_bytes(os.urandom(16))
+        elif self.how == "embeds-path":
+            path.write_text(str(path.resolve()), encoding="utf-8")
+        elif self.how == "extra":
+            path.write_bytes(b"x")
+            (path.parent / "notes.txt").write_bytes(b"y")
+        elif self.how != "no-file":
+            path.write_bytes(b"x")
+
+
+@pytest.mark.parametrize("how,words", [
+    ("raise-second", ["'broken' failed on device", "ValueError: cannot encode this table"]),
+    ("random", ["'broken' wrote different bytes for the same table"]),
+    ("embeds-path", ["'broken' wrote different bytes for the same table"]),
+    ("no-file", ["'broken' wrote no file"]),
+    ("extra", ["notes.txt"]),
+])
+def test_a_broken_writer_is_a_clear_error_and_the_previous_build_stays(demo, tmp_path, how, words):
+    out = write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings)
+    before = _hashes(out)
+    with pytest.raises(WriterError) as err:
+        write_build(out, demo.shot, demo.compiled, demo.findings, force=True, writers=(NPZ, CSV, Broken(how)))
+    for w in words:
+        assert w in str(err.value)
+    assert "was not written" in str(err.value)
+    assert _hashes(out) == before
+    assert [p.name for p in tmp_path.iterdir()] == ["b"]  # no half-written folder left behind
+
+
+def test_a_writer_entry_point_that_does_not_load_names_itself(demo, tmp_path, entry_points):
+    entry_points(EntryPoint("gone", "tests.no_such_module:WRITER", "seqgen.writers"))
+    with pytest.raises(WriterError, match=r"gone = tests\.no_such_module:WRITER .*does not load: "
+                                          r"ModuleNotFoundError"):
+        write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings)
+    assert not (tmp_path / "b").exists()
+
+
+@pytest.mark.parametrize("writers,words", [
+    ((), "no table writer"),
+    ((NPZ, object()), "is not a writer"),
+    ((NPZ, Writer("Bad Name", ".x", NPZ.write)), "lower-case word"),
+    ((NPZ, Writer("meta", ".json", NPZ.write)), "manifest"),
+    ((NPZ, Writer("meta", "x", NPZ.write)), "not a file suffix"),
+    ((NPZ, Writer("npz2", ".NPZ", NPZ.write)), "share"),
+    ((NPZ, Writer("npz", ".other", NPZ.write)), "share"),
+    ((NPZ, Writer("x", ".x", NPZ.write, max_rows=-1)), "max_rows"),
+])
+def test_writers_that_cannot_be_used_are_refused_before_anything_is_written(demo, tmp_path, writers, words):
+    with pytest.raises(WriterError, match=words):
+        write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings, writers=writers)
+    assert not list(tmp_path.iterdir())
+
+
+def test_the_csv_row_limit_leaves_larger_tables_as_npz_only(demo, tmp_path):
+    rows = {t.device: len(t.ticks) for t in demo.compiled.tables}
+    limit = sorted(rows.values())[0]  # the smallest table keeps its csv, larger ones do not
+    out = write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings, csv_row_limit=limit)
+    man = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+    for dev, n in rows.items():
+        assert ("csv" in man["devices"][dev]["files"]) == (n <= limit)
+
+
+# ----------------------------------------------------------------------------- the safety caution
+
+
+def test_the_caution_defers_to_codes_procedures_and_licensed_practice():
+    for words in ("no substitute", "hardware interlocks", "laser-safety", "high-voltage",
+                  "local codes and regulations", "procedures", "licensed practice"):
+        assert words in CAUTION
+
+
+def test_manifest_and_scan_json_carry_the_caution_and_validate(demo, tmp_path):
+    from seqgen.batch import plan_scan, run_scan
+
+    out = write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings)
+    man = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+    assert man["caution"] == CAUTION
+    schema = _schema("manifest.schema.json")
+    schema.validate(man)
+    assert not schema.is_valid({k: v for k, v in man.items() if k != "caution"})  # the caution is required
+
+    scan = plan_scan(SEQUENCES / "na23_barrier_scatter.yaml")
+    run_scan(scan, out=tmp_path / "s", jobs=1)
+    doc = json.loads((tmp_path / "s" / "scan.json").read_text(encoding="utf-8"))
+    assert doc["caution"] == CAUTION
+    schema = _schema("scan.schema.json")
+    schema.validate(doc)
+    assert not schema.is_valid({k: v for k, v in doc.items() if k != "caution"})
+    for rec in doc["shots"]:
+        shot_man = json.loads((tmp_path / "s" / rec["build"] / "manifest.json").read_text(encoding="utf-8"))
+        assert shot_man["caution"] == CAUTION
+        assert rec["tables"] == {d: {k: e["sha256"] for k, e in info["files"].items()}
+                                 for d, info in shot_man["devices"].items()}

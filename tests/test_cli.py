@@ -508,3 +508,66 @@ def test_readme_documents_end_leave_on_and_accept(tmp_path, capsys):
     assert hits  # left on: reported
     rc, doc = _json(["check", str(_seq(tmp_path, body + block.split("```")[0])), "--json"], capsys)
     assert not [f for f in doc["findings"] if f["code"] in ("safety.left-on",) or f["code"].startswith("schema.")]
+
+
+# ----------------------------------------------------------------------------- the safety caution in JSON
+
+
+def _validator(name):
+    import jsonschema
+
+    from .conftest import ROOT
+
+    return jsonschema.Draft202012Validator(json.loads((ROOT / "schemas" / name).read_text(encoding="utf-8")))
+
+
+@pytest.mark.parametrize("argv", [
+    ["check", str(THERMO), "--json"],  # one shot
+    ["check", str(SEQUENCES / "faults" / "overlap.yaml"), "--json"],  # with error findings
+    ["check", str(SCANNED), "--json", "--jobs", "1"],  # a scan
+    ["check", str(SCANNED), "--json", "--shot", "1"],  # one shot of a scan
+    ["check", str(SEQUENCES / "faults" / "scan_zip_lengths_differ.yaml"), "--json"],  # a scan that cannot expand
+    ["check", str(RIG), "--json"],  # a rig file
+])
+def test_check_json_is_one_object_with_the_caution(argv, capsys):
+    from seqgen.caution import CAUTION
+
+    main(argv)
+    doc = json.loads(capsys.readouterr().out)
+    assert isinstance(doc, dict) and doc["caution"] == CAUTION and isinstance(doc["findings"], list)
+
+
+def test_build_json_and_both_diff_outputs_carry_the_caution(tmp_path, capsys):
+    from seqgen.caution import CAUTION
+
+    code, doc = _json(["build", str(THERMO), "-o", str(tmp_path / "b"), "--json"], capsys)
+    assert code == 0 and doc["caution"] == CAUTION
+    old = SEQUENCES / "faults" / "overlap.yaml"
+    code, doc = _json(["diff", str(THERMO), str(old), "--json"], capsys)
+    assert code == 1 and doc["caution"] == CAUTION
+    schema = _validator("diff.schema.json")
+    schema.validate(doc)
+    assert not schema.is_valid({k: v for k, v in doc.items() if k != "caution"})  # the caution is required
+    assert main(["diff", str(THERMO), str(old)]) == 1
+    assert capsys.readouterr().out.rstrip("\n").splitlines()[-1] == "caution: " + CAUTION
+
+
+def test_a_broken_table_writer_is_one_line_and_exit_2_and_keeps_the_build(tmp_path, capsys, monkeypatch):
+    from importlib.metadata import EntryPoint
+
+    import seqgen.emit.writers as W
+
+    out = tmp_path / "b"
+    assert main(["build", str(THERMO), "-o", str(out)]) == 0
+    before = {p.name: p.read_bytes() for p in out.iterdir()}
+    # an installed plugin whose object is no writer (a module-level int), as a broken package would declare
+    monkeypatch.setattr(W, "declared_entry_points",
+                        lambda: (EntryPoint("bad", "seqgen.emit.writers:CSV_ROW_LIMIT", "seqgen.writers"),))
+    W.available_writers.cache_clear()
+    try:
+        code, err = _run(["build", str(THERMO), "-o", str(out), "--force"], capsys)
+    finally:
+        W.available_writers.cache_clear()
+    assert code == 2 and len(err) == 1 and err[0].startswith("seqgen: table writer") and "not a writer" in err[0] \
+        and "bad = seqgen.emit.writers:CSV_ROW_LIMIT" in err[0]
+    assert {p.name: p.read_bytes() for p in out.iterdir()} == before

@@ -527,9 +527,9 @@ def test_sigkill_at_each_step_of_the_write(two_builds, tmp_path, where, expect):
     out = proj / f"out_{where}"
     shutil.copytree(proj / "ref_a", out)  # the previous build
     prelude = {
-        "write_npz": "import os, signal, seqgen.emit.build as B\n_w = B.write_npz\n_n = [0]\n"
+        "write_npz": "import os, signal, seqgen.emit.writers as W\n_w = W.write_npz\n_n = [0]\n"
                      "def w(*a, **k):\n    _n[0] += 1\n    if _n[0] == 2:\n        os.kill(os.getpid(), signal.SIGKILL)\n"
-                     "    return _w(*a, **k)\nB.write_npz = w\n",
+                     "    return _w(*a, **k)\nW.write_npz = w\n",
         "manifest": "import os, signal, seqgen.emit.build as B\n_s = B._swap_into_place\n"
                     "def s(*a, **k):\n    os.kill(os.getpid(), signal.SIGKILL)\nB._swap_into_place = s\n",
         "rmtree": "import os, signal, seqgen.emit.build as B\n_r = B.shutil.rmtree\n"
@@ -549,8 +549,8 @@ def test_sigkill_at_each_step_of_the_write(two_builds, tmp_path, where, expect):
 
 def _at_second_table(action: str) -> str:
     """A child prelude that runs `action` (Python, indented by 8) when the build starts its second table file."""
-    return ("import os, signal, time, seqgen.emit.build as B\n_w = B.write_npz\n_n = [0]\n"
-            "def w(*a, **k):\n    _n[0] += 1\n    if _n[0] == 2:\n" + action + "    return _w(*a, **k)\nB.write_npz = w\n")
+    return ("import os, signal, time, seqgen.emit.writers as W\n_w = W.write_npz\n_n = [0]\n"
+            "def w(*a, **k):\n    _n[0] += 1\n    if _n[0] == 2:\n" + action + "    return _w(*a, **k)\nW.write_npz = w\n")
 
 
 _KILL = "        os.kill(os.getpid(), signal.SIGKILL)\n"
@@ -654,13 +654,13 @@ def _enospc(*args, **kwargs):
 
 
 def test_disk_full_is_a_clear_message_and_exit_2(two_builds, tmp_path, monkeypatch):
-    import seqgen.emit.build as B
+    import seqgen.emit.writers as W
 
     seq = str(two_builds[0] / "a.yaml")
     out = tmp_path / "b"
     assert _cli(["build", seq, "-o", str(out)])[0] == 0
     before = _tree(out)
-    monkeypatch.setattr(B, "write_csv", _enospc)
+    monkeypatch.setattr(W, "write_csv", _enospc)
     code, _, err = _cli(["build", seq, "-o", str(out), "--force"])
     assert code == 2
     assert "cannot write build" in err and os.strerror(errno.ENOSPC) in err and "Traceback" not in err

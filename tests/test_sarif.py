@@ -184,3 +184,19 @@ blocks:
     assert len(hits) == 1 and hits[0]["properties"]["data"]["shots"] == [0, 2]
     assert "in shots 0, 2 of 3" in hits[0]["message"]["text"]
     assert code == 1
+
+
+def test_every_sarif_log_carries_the_safety_caution(validator, tmp_path):
+    from seqgen.caution import CAUTION
+
+    rig = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").as_posix()
+    scanned = tmp_path / "scan.yaml"
+    scanned.write_text(f"seqgen: 1\nrig: {rig}\nparams:\n  width: {{value: 20 us, scan: [2 us, 20 us]}}\n"
+                       "blocks:\n  - name: a\n    at: 1 ms\n    actions:\n      - pulse: {channel: camera, "
+                       "duration: width}\n", encoding="utf-8")
+    broken = SEQUENCES / "faults" / "scan_zip_lengths_differ.yaml"  # a scan that cannot be expanded: its own path
+    for path in (SEQUENCES / "na23_thermometry.yaml", SEQUENCES / "faults" / "overlap.yaml", scanned, broken):
+        _, out = _cli(["check", str(path), "--format", "sarif", "--jobs", "1"])
+        log = json.loads(out)
+        assert not _errors(validator, log), path
+        assert log["runs"][0]["properties"]["caution"] == CAUTION, path

@@ -238,7 +238,7 @@ def test_unscanned_sequence_checks_as_before(tmp_path, capsys):
     code = main(["check", str(path), "--json"])
     doc = json.loads(capsys.readouterr().out)
     res = preflight(path)
-    assert code == 0 and set(doc) == {"file", "summary", "findings"}
+    assert code == 0 and set(doc) == {"file", "summary", "findings", "caution"}
     assert doc["findings"] == [f.to_dict() for f in res.findings]
 
 

@@ -6,6 +6,7 @@ from __future__ import annotations
 import json
 import math
 
+from ..caution import CAUTION
 from . import fmt
 from .model import LEVEL_TITLES, LEVELS, DiffReport
 
@@ -33,6 +34,7 @@ def to_dict(rep: DiffReport) -> dict:
         "unchanged_findings": [{"code": f.code, "severity": f.severity, "block": f.block, "message": f.message,
                                 "accepted": f.accepted} for f in rep.unchanged_findings],
         "notes": list(rep.notes),
+        "caution": CAUTION,
     }
 
 

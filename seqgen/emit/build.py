@@ -1,7 +1,8 @@
 """Write a build folder atomically and deterministically.
 
-Layout: `manifest.json` plus, per device, `<device>.npz` (always) and
-`<device>.csv` (unless the table is larger than the CSV row limit). Files are
+Layout: `manifest.json` plus, per device, one file per table writer
+(seqgen/emit/writers.py): by default `<device>.npz` (always) and `<device>.csv`
+(unless the table is larger than the CSV row limit). Files are
 written into a temporary sibling folder which is renamed into place only when
 complete, so an interrupted build leaves either the old build or the new one.
 The temporary folder is `.NAME.tmp/<pid>-<random>/` beside the output `NAME`
@@ -17,79 +18,27 @@ names or absolute paths enter the files: the same input gives the same bytes.
 from __future__ import annotations
 
 import errno
-import hashlib
-import itertools
 import json
 import os
 import re
 import shutil
 import tempfile
-import zipfile
 from pathlib import Path
 
-import numpy as np
-
 from .. import __version__
+from ..caution import CAUTION
 from ..findings import Finding, summary
-from ..model import Compiled, DeviceTable, Shot
+from ..model import Compiled, Shot
 from ..resolve.units import display_unit
+from .writers import CSV_ROW_LIMIT, WriterError, available_writers, check_writers, run_writer, with_row_limit, \
+    writes_table
+from .writers import _CSV_CHUNK, file_sha256, table_arrays, write_csv, write_npz  # noqa: F401  (re-exported)
 
 FORMAT_VERSION = 1
-CSV_ROW_LIMIT = 1_000_000
-_CSV_CHUNK = 4096  # rows formatted at a time
-_ZIP_DATE = (1980, 1, 1, 0, 0, 0)
 
 
 class BuildExists(Exception):
     pass
-
-
-def write_npz(path: Path, arrays: dict) -> None:
-    """An .npz readable by numpy.load, with fixed zip time stamps (deterministic).
-
-    Arrays are streamed into the archive, so writing needs no extra copy of a table.
-    """
-    with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_STORED) as zf:
-        for name, arr in arrays.items():
-            info = zipfile.ZipInfo(f"{name}.npy", date_time=_ZIP_DATE)
-            info.external_attr = 0o644 << 16
-            with zf.open(info, "w", force_zip64=True) as fh:
-                np.lib.format.write_array(fh, np.ascontiguousarray(arr), allow_pickle=False)
-
-
-def table_arrays(table: DeviceTable) -> dict:
-    return {
-        "tick": table.ticks.astype(np.int64, copy=False),
-        "time_s": table.ticks * table.tick_s,
-        "values": table.values.astype(np.float64, copy=False),
-        "columns": np.array(table.columns, dtype="U"),
-        "units": np.array(table.units, dtype="U"),
-    }
-
-
-def write_csv(path: Path, table: DeviceTable) -> None:
-    """CSV: tick, time_s, one column per output (digital as 0/1, others %.10g)."""
-    header = ",".join(["tick", "time_s"] + [f"{c} [{u}]" if u else c for c, u in zip(table.columns, table.units)])
-    fmt = ["%d", "%.12g"] + ["%d" if k == "digital" else "%.10g" for k in table.kinds]
-    row = ",".join(fmt) + "\n"
-    times = table.ticks * table.tick_s
-    with open(path, "w", encoding="utf-8", newline="\n") as fh:
-        fh.write(header + "\n")
-        # one %-format per chunk of rows: the same text as formatting row by row, several times faster;
-        # ticks stay Python ints (exact beyond 2^53)
-        for a in range(0, len(table.ticks), _CSV_CHUNK):
-            b = a + _CSV_CHUNK
-            cols = [table.ticks[a:b].tolist(), times[a:b].tolist(), *table.values[a:b].T.tolist()]
-            fh.write((row * len(cols[0])) % tuple(itertools.chain.from_iterable(zip(*cols))))
-
-
-def file_sha256(path: Path) -> str:
-    """sha256 of a file, read in 1 MiB chunks."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
 
 
 def manifest(shot: Shot, compiled: Compiled, findings: list[Finding], files: dict) -> dict:
@@ -116,13 +65,20 @@ def manifest(shot: Shot, compiled: Compiled, findings: list[Finding], files: dic
         "devices": devices,
         "findings": summary(findings),
         "findings_list": [f.to_dict() for f in findings],
+        "caution": CAUTION,
     }
 
 
 def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: list[Finding], *, force: bool = False,
-                csv_row_limit: int = CSV_ROW_LIMIT, _crash_after: int | None = None) -> Path:
-    """Write the build; `_crash_after` (tests only) raises after that many table files."""
+                csv_row_limit: int = CSV_ROW_LIMIT, writers: tuple | None = None) -> Path:
+    """Write the build: per device table one file per writer (default: the built-in npz and csv writers and
+    every installed `seqgen.writers` entry point, see seqgen/emit/writers.py), then manifest.json.
+
+    `csv_row_limit`: larger tables get no .csv. A broken writer raises WriterError and leaves `out_dir` as it was.
+    """
     out = Path(out_dir)
+    writers = with_row_limit(check_writers(available_writers() if writers is None else writers), "csv",
+                             csv_row_limit)
     if out.exists() and not force:
         raise BuildExists(f"{out} exists; use --force to replace it")
     out.parent.mkdir(parents=True, exist_ok=True)
@@ -131,34 +87,40 @@ def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: l
     lock = _hold_lock(tmp)
     try:
         files: dict = {}
-        written = 0
         for t in compiled.tables:
             entry = {}
-            npz = tmp / f"{t.device}.npz"
-            write_npz(npz, table_arrays(t))
-            entry["npz"] = {"path": npz.name, "sha256": file_sha256(npz)}
-            written += 1
-            if _crash_after is not None and written > _crash_after:
-                raise RuntimeError("simulated crash during build")
-            if len(t.ticks) <= csv_row_limit:
-                csv = tmp / f"{t.device}.csv"
-                write_csv(csv, t)
-                entry["csv"] = {"path": csv.name, "sha256": file_sha256(csv)}
+            for w in writers:
+                if writes_table(w, t):
+                    path = tmp / f"{t.device}{w.suffix}"
+                    entry[w.name] = {"path": path.name, "sha256": run_writer(w, t, path)}
             files[t.device] = entry
+        _only_listed(tmp, files)
         man = manifest(shot, compiled, findings, files)
         (tmp / "manifest.json").write_text(json.dumps(man, indent=2, sort_keys=True) + "\n", encoding="utf-8")
         for f in tmp.iterdir():
             with open(f, "rb") as fh:
                 os.fsync(fh.fileno())
         _swap_into_place(tmp, out)
-    except BaseException:
+    except BaseException as exc:
         shutil.rmtree(tmp, ignore_errors=True)
+        if isinstance(exc, WriterError):
+            raise WriterError(f"{exc}; {out} was not written (a build already there is left as it was)") from exc
         raise
     finally:
         if lock is not None:
             os.close(lock)
         _drop_staging(out)
     return out
+
+
+def _only_listed(tmp: Path, files: dict) -> None:
+    """Every file in the build is listed in its manifest: a writer that left others behind is refused (two
+    devices whose file names collide are caught here too)."""
+    listed = [e["path"] for entry in files.values() for e in entry.values()]
+    extra = sorted({p.name for p in tmp.iterdir()} - set(listed))
+    if extra or len(set(listed)) != len(listed):
+        raise WriterError("the table writers left files the manifest would not list: "
+                          + (", ".join(extra) if extra else "two tables share a file name"))
 
 
 # ----------------------------------------------------------------------------- temporary folders

@@ -334,7 +334,7 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
     `svg` is the inline SVG of the whole timeline; `detail` an optional (caption, svg) of a zoomed one.
     `scan`: the run scan (`batch.Scan`) of a scanned sequence, whose section heads the report; `res` is then
     its base shot. `choice` (`seqgen.show.ShotChoice`): which shot of a scan `res` is, said above its details."""
-    from ..check import CAUTION
+    from ..caution import CAUTION
 
     findings = list(res.findings)
     s = summary(findings)

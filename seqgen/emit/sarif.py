@@ -8,7 +8,8 @@ map one to one onto SARIF levels (error, warning, note); an accepted finding
 is kept as a result with an in-source suppression carrying the acceptance's
 reason. Relative file names are given against the `SRCROOT` base (the folder
 seqgen ran in, usually the repository root); nothing machine- or time-
-dependent enters the log, so the same findings give the same bytes.
+dependent enters the log, so the same findings give the same bytes. The run's
+properties carry the safety caution (`caution`).
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ from typing import Iterable, Mapping
 from urllib.parse import quote
 
 from .. import __version__
+from ..caution import CAUTION
 from ..findings import Finding
 
 SARIF_VERSION = "2.1.0"
@@ -132,6 +134,7 @@ def to_sarif(findings: Iterable[Finding], *, sources: Mapping[str, str] | None =
         }},
         "columnKind": "unicodeCodePoints",
         "results": [_result(f, index[f.code]) for f in findings],
+        "properties": {"caution": CAUTION},  # SARIF 3.8: a property bag; code-review tools show it with the run
     }
     if sources:
         arts = []

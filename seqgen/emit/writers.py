@@ -1,0 +1,236 @@
+"""Table writers: the file formats a build writes for each device table.
+
+A writer is any object with
+    name      its key under the device's `files` in manifest.json (and `tables` in scan.json): a lower-case word
+    suffix    the file suffix: the file is `<device><suffix>`, e.g. ".npz"
+    write(table, path)   writes the `DeviceTable` to `path`; the bytes depend only on the table (no time
+              stamps, no host names, no absolute paths), so the same input gives the same build
+and, optionally, `max_rows` (int or None): tables with more rows are not written in this format.
+
+Writers are found through the entry-point group `seqgen.writers` (pyproject.toml,
+`[project.entry-points."seqgen.writers"]`), each naming a writer object. The two built-in writers (npz, csv)
+are always there, so a checkout that was never installed builds the same folder. `write_build` may also be
+given an explicit tuple of writers.
+
+A writer that raises, writes no file, or writes other bytes when asked twice is refused with a `WriterError`
+naming it; the build folder is then left as it was (the build is written into a temporary folder).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import itertools
+import os
+import re
+import zipfile
+from dataclasses import dataclass, replace
+from functools import lru_cache
+from pathlib import Path
+from typing import Callable, Iterable, Protocol, runtime_checkable
+
+import numpy as np
+
+from ..model import DeviceTable
+
+ENTRY_POINT_GROUP = "seqgen.writers"
+CSV_ROW_LIMIT = 1_000_000
+_CSV_CHUNK = 4096  # rows formatted at a time
+_ZIP_DATE = (1980, 1, 1, 0, 0, 0)
+NAME_PATTERN = re.compile(r"[a-z][a-z0-9_]{0,31}")  # also in schemas/manifest.schema.json and scan.schema.json
+SUFFIX_PATTERN = re.compile(r"\.[A-Za-z0-9][A-Za-z0-9._-]{0,31}")
+
+
+class WriterError(Exception):
+    """A table writer is broken (raised, wrote no file, wrote other bytes twice) or not a writer at all."""
+
+
+@runtime_checkable
+class TableWriter(Protocol):
+    name: str
+    suffix: str
+
+    def write(self, table: DeviceTable, path: Path) -> None: ...
+
+
+@dataclass(frozen=True)
+class Writer:
+    """A table writer made of a function (the built-in ones are; a plugin may use it too)."""
+
+    name: str
+    suffix: str
+    write: Callable[[DeviceTable, Path], None]
+    max_rows: int | None = None
+
+
+# ----------------------------------------------------------------------------- the built-in formats
+
+
+def write_npz(path: Path, arrays: dict) -> None:
+    """An .npz readable by numpy.load, with fixed zip time stamps (deterministic).
+
+    Arrays are streamed into the archive, so writing needs no extra copy of a table.
+    """
+    with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_STORED) as zf:
+        for name, arr in arrays.items():
+            info = zipfile.ZipInfo(f"{name}.npy", date_time=_ZIP_DATE)
+            info.external_attr = 0o644 << 16
+            with zf.open(info, "w", force_zip64=True) as fh:
+                np.lib.format.write_array(fh, np.ascontiguousarray(arr), allow_pickle=False)
+
+
+def table_arrays(table: DeviceTable) -> dict:
+    return {
+        "tick": table.ticks.astype(np.int64, copy=False),
+        "time_s": table.ticks * table.tick_s,
+        "values": table.values.astype(np.float64, copy=False),
+        "columns": np.array(table.columns, dtype="U"),
+        "units": np.array(table.units, dtype="U"),
+    }
+
+
+def write_csv(path: Path, table: DeviceTable) -> None:
+    """CSV: tick, time_s, one column per output (digital as 0/1, others %.10g)."""
+    header = ",".join(["tick", "time_s"] + [f"{c} [{u}]" if u else c for c, u in zip(table.columns, table.units)])
+    fmt = ["%d", "%.12g"] + ["%d" if k == "digital" else "%.10g" for k in table.kinds]
+    row = ",".join(fmt) + "\n"
+    times = table.ticks * table.tick_s
+    with open(path, "w", encoding="utf-8", newline="\n") as fh:
+        fh.write(header + "\n")
+        # one %-format per chunk of rows: the same text as formatting row by row, several times faster;
+        # ticks stay Python ints (exact beyond 2^53)
+        for a in range(0, len(table.ticks), _CSV_CHUNK):
+            b = a + _CSV_CHUNK
+            cols = [table.ticks[a:b].tolist(), times[a:b].tolist(), *table.values[a:b].T.tolist()]
+            fh.write((row * len(cols[0])) % tuple(itertools.chain.from_iterable(zip(*cols))))
+
+
+def _npz_table(table: DeviceTable, path: Path) -> None:
+    write_npz(path, table_arrays(table))  # looked up at call time, so tests can stand in for write_npz
+
+
+def _csv_table(table: DeviceTable, path: Path) -> None:
+    write_csv(path, table)
+
+
+NPZ = Writer("npz", ".npz", _npz_table)
+CSV = Writer("csv", ".csv", _csv_table, max_rows=CSV_ROW_LIMIT)
+BUILTIN = (NPZ, CSV)
+_TESTED = (_npz_table, _csv_table)  # their determinism is tested, so a build does not write them twice
+
+
+# ----------------------------------------------------------------------------- finding and checking writers
+
+
+def check_writers(writers: Iterable) -> tuple:
+    """The writers as a tuple, after checking each has a valid name, suffix and write, all names and suffixes
+    distinct; else WriterError."""
+    out = tuple(writers)
+    if not out:
+        raise WriterError("no table writer given: a build needs at least one")
+    names, suffixes = set(), set()
+    for w in out:
+        label = repr(getattr(w, "name", w))
+        if not isinstance(w, TableWriter) or not callable(w.write):
+            raise WriterError(f"table writer {label} is not a writer: it needs a name, a suffix and write(table, "
+                              "path) (see seqgen/emit/writers.py)")
+        if not isinstance(w.name, str) or not NAME_PATTERN.fullmatch(w.name):
+            raise WriterError(f"table writer {label}: its name must be a lower-case word ({NAME_PATTERN.pattern})")
+        if not isinstance(w.suffix, str) or not SUFFIX_PATTERN.fullmatch(w.suffix) or w.suffix == ".json":
+            raise WriterError(f"table writer {label}: suffix {w.suffix!r} is not a file suffix like '.npz' "
+                              "(.json is the manifest's)")
+        limit = getattr(w, "max_rows", None)
+        if limit is not None and (isinstance(limit, bool) or not isinstance(limit, int) or limit < 0):
+            raise WriterError(f"table writer {label}: max_rows must be a whole number >= 0 or None")
+        if w.name in names or w.suffix.lower() in suffixes:
+            raise WriterError(f"two table writers share the name {w.name!r} or the suffix {w.suffix!r}")
+        names.add(w.name)
+        suffixes.add(w.suffix.lower())
+    return out
+
+
+def declared_entry_points() -> tuple:
+    """The entry points of the group `seqgen.writers` of the installed distributions."""
+    # the one place seqgen imports by name: entry points are how an installed package offers a writer
+    from importlib.metadata import entry_points
+
+    return tuple(entry_points(group=ENTRY_POINT_GROUP))
+
+
+def load_writers(entry_points: Iterable) -> tuple:
+    """The built-in writers, then the writer each entry point names (sorted by entry-point name); an entry
+    point naming a built-in writer adds nothing. A writer that fails to load is a WriterError."""
+    out = list(BUILTIN)
+    for ep in sorted(entry_points, key=lambda e: (e.name, e.value)):
+        try:
+            w = ep.load()
+        except Exception as exc:  # any error inside a plugin's module: say which entry point
+            raise WriterError(f"table writer entry point {ep.name} = {ep.value} (group {ENTRY_POINT_GROUP}) "
+                              f"does not load: {type(exc).__name__}: {exc}") from exc
+        if any(w is b for b in out):
+            continue
+        try:
+            check_writers((w,))
+        except WriterError as exc:
+            raise WriterError(f"{exc} (entry point {ep.name} = {ep.value}, group {ENTRY_POINT_GROUP})") from None
+        out.append(w)
+    return check_writers(out)
+
+
+@lru_cache(maxsize=1)
+def available_writers() -> tuple:
+    """The writers a build uses by default: the built-in ones and every installed `seqgen.writers` entry point
+    (looked up once per process)."""
+    return load_writers(declared_entry_points())
+
+
+def with_row_limit(writers: tuple, name: str, limit: int | None) -> tuple:
+    """`writers` with the writer called `name` (a `Writer`) limited to `limit` rows."""
+    return tuple(replace(w, max_rows=limit) if isinstance(w, Writer) and w.name == name else w for w in writers)
+
+
+def file_sha256(path: Path) -> str:
+    """sha256 of a file, read in 1 MiB chunks."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def writes_table(writer, table: DeviceTable) -> bool:
+    limit = getattr(writer, "max_rows", None)
+    return limit is None or len(table.ticks) <= limit
+
+
+def run_writer(writer, table: DeviceTable, path: Path) -> str:
+    """Write `table` to `path` with `writer`; the file's sha256.
+
+    A writer not built in writes the table a second time, to another name in the same folder, and the two must
+    be the same bytes (this catches random bytes, the file's own path and fine time stamps in the file).
+    An OSError (a full disk) passes unchanged; any other error is a WriterError naming the writer.
+    """
+    sha = _write_once(writer, table, path)
+    if not any(getattr(writer, "write", None) is f for f in _TESTED):
+        again = path.with_name(f".again.{path.name}")
+        try:
+            if _write_once(writer, table, again) != sha:
+                raise WriterError(f"table writer {writer.name!r} wrote different bytes for the same table "
+                                  f"({table.device}) twice: its output must depend on the table only (no time "
+                                  "stamps, random numbers or paths)")
+        finally:
+            if again.exists():
+                os.unlink(again)
+    return sha
+
+
+def _write_once(writer, table: DeviceTable, path: Path) -> str:
+    try:
+        writer.write(table, path)
+    except OSError:
+        raise
+    except Exception as exc:  # a plugin's bug: say whose
+        raise WriterError(f"table writer {writer.name!r} failed on device {table.device}: "
+                          f"{type(exc).__name__}: {exc}") from exc
+    if path.is_symlink() or not path.is_file():
+        raise WriterError(f"table writer {writer.name!r} wrote no file {path.name} for device {table.device}")
+    return file_sha256(path)
