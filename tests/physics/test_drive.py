@@ -230,7 +230,8 @@ def test_fourier_width_blackman_against_fft():
 
 # ---------------------------------------------------------------- modulated-beam Raman drive
 
-# Rb-87 line data from /work/shared/REFERENCES.md ("Rubidium 87 D Line Data" compilation)
+# Rb-87 line data from the "Rubidium 87 D Line Data" compilation; ground hyperfine splitting
+# Europhys. Lett. 45, 558 (1999) (from memory)
 RB = dict(nuclear_spin=1.5, hyperfine_splitting_hz=6_834_682_610.904, d1_wavelength_m=794.978851156e-9,
           d2_wavelength_m=780.241209686e-9, d1_linewidth_hz=5.7500e6, d2_linewidth_hz=6.0666e6)
 

@@ -1,6 +1,6 @@
 """Time of flight: thermal clouds, Thomas-Fermi condensates, free fall.
 
-Sources beside each check; values in /work/shared/REFERENCES.md.
+The source is named beside each check.
 """
 
 import numpy as np

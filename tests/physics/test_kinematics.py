@@ -13,7 +13,7 @@ from seqgen.physics import kinematics as k
 MU_B = sc.physical_constants["Bohr magneton"][0]
 U = sc.physical_constants["atomic mass constant"][0]
 G_N = 9.80665  # exact (3rd CGPM, 1901; SI Brochure)
-M_RB87 = 86.909180531 * U  # AME2020 (from memory, /work/shared/REFERENCES.md)
+M_RB87 = 86.909180531 * U  # AME2020, Chinese Physics C 45, 030003 (2021) (from memory)
 LAMBDA_D2 = 780.241209686e-9  # "Rubidium 87 D Line Data" compilation
 GAMMA_D2 = 2 * np.pi * 6.0666e6  # "Rubidium 87 D Line Data" compilation
 
@@ -41,7 +41,7 @@ def test_levitation_gradient_rb87_stretched_state():
 
 
 RB87 = SimpleNamespace(nuclear_spin=1.5, hyperfine_splitting_hz=6834682610.904, g_j=2.00233113,
-                       g_i=-0.0009951414, mass_kg=M_RB87)  # "Rubidium 87 D Line Data" (via REFERENCES.md)
+                       g_i=-0.0009951414, mass_kg=M_RB87)  # "Rubidium 87 D Line Data" compilation
 
 
 def test_magnetic_push_of_stretched_state_is_exact_at_any_field():

@@ -15,7 +15,7 @@ from scipy.optimize import brentq
 
 from seqgen.physics import scattering as sc
 
-# Rb-87 mass, AME2020 (Chinese Physics C 45, 030003 (2021)), value as in REFERENCES.md (from memory).
+# Rb-87 mass, AME2020 (Chinese Physics C 45, 030003 (2021)) (from memory).
 M_RB87 = 86.909180531 * u
 
 A = 1.0e-6                                   # barrier width, m
