@@ -293,7 +293,7 @@ def test_quadrupole_levitation_flattens_vertical_potential():
 
 
 def test_ioffe_pritchard_against_field_expansion():
-    # Ioffe-Pritchard field satisfying div B = curl B = 0 (textbook form):
+    # Ioffe-Pritchard field (Phys. Rev. Lett. 51, 1336 (1983)) expanded to second order so that div B = curl B = 0:
     # B = B0 z^ + B'(x, -y, 0) + (B''/2)(-x z, -y z, z^2 - (x^2 + y^2)/2);
     # curvature of |B| by finite differences vs the closed-form frequencies
     rb = get_species("Rb87")
@@ -314,7 +314,8 @@ def test_ioffe_pritchard_against_field_expansion():
     assert mu < 0
     assert w_rho == pytest.approx(np.sqrt(-mu * curv_x / rb.mass_kg), rel=1e-4)
     assert w_z == pytest.approx(np.sqrt(-mu * curv_z / rb.mass_kg), rel=1e-4)
-    assert w_z == pytest.approx(mt.harmonic_trap_frequency(mu, b2, rb.mass_kg), rel=1e-12)
+    # omega_z = sqrt(|mu| B'' / m) (Phys. Rev. Lett. 51, 1336 (1983))
+    assert mt.harmonic_trap_frequency(mu, b2, rb.mass_kg) == pytest.approx(np.sqrt(-mu * b2 / rb.mass_kg), rel=1e-12)
     with pytest.raises(ValueError):  # a high-field seeker is not held in a field minimum
         mt.harmonic_trap_frequency(-mu, b2, rb.mass_kg)
 

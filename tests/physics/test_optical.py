@@ -116,7 +116,8 @@ def test_modulated_sheet_peak_intensity_against_numerical_normalisation():
     assert o.modulated_peak_intensity(p_mean, w1, w2, eps) == pytest.approx(power.max() / area, rel=1e-10)
     # no modulation: the plain peak intensity; round beam when the second waist is left out; vectorised
     assert o.modulated_peak_intensity(p_mean, w1, w2) == pytest.approx(p_mean / area, rel=1e-10)
-    assert o.modulated_peak_intensity(1.0, 50e-6, None, 1.0) == pytest.approx(2 * o.peak_intensity(1.0, 50e-6), rel=1e-15)
+    # round Gaussian beam: peak intensity 2 P / (pi w^2) (the profile integrates to P)
+    assert o.modulated_peak_intensity(1.0, 50e-6, None, 1.0) == pytest.approx(2 * 2 / (np.pi * 50e-6**2), rel=1e-14)
     np.testing.assert_allclose(o.modulated_peak_intensity(p_mean, w1, w2, np.array([0.0, 1.0])),
                                [p_mean / area, 2 * p_mean / area], rtol=1e-10)
     for bad in (-0.1, 1.5, np.nan):

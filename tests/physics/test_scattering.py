@@ -314,9 +314,11 @@ def test_spin_independent_potential_gives_no_rotation():
     Vg = sc.gaussian_sheet_potential(x, 10 * E_UNIT, w)
     E = np.linspace(0.2, 3.0, 15) * 10 * E_UNIT
     res = sc.spinor_transmission(x, Vg, Vg, 0.0, 0.0, E, M_RB87)
-    for chi in (SPIN_X, SPIN_UP, np.array([1.0, 1j]) / np.sqrt(2), np.array([0.6, -0.8])):
+    # Bloch vector of a normalised (up, down) = (a, b): (2 Re a*b, 2 Im a*b, |a|^2 - |b|^2), i.e. <sigma_x, y, z>
+    for chi, want in ((SPIN_X, (1, 0, 0)), (SPIN_UP, (0, 0, 1)), (np.array([1.0, 1j]) / np.sqrt(2), (0, 1, 0)),
+                      (np.array([0.6, -0.8]), (-0.96, 0, -0.28))):
         _, bloch = sc.transmitted_spin(res.t, chi)
-        np.testing.assert_allclose(bloch, np.broadcast_to(sc.bloch_vector(chi), bloch.shape), atol=1e-12)
+        np.testing.assert_allclose(bloch, np.broadcast_to(want, bloch.shape), atol=1e-12)
     assert np.max(np.abs(res.t[..., 0, 1])) < 1e-14
     assert np.all(res.unitarity_error < UNITARITY)
 
