@@ -29,7 +29,8 @@ UNITARITY = 1e-10
 # --------------------------------------------------------------------------
 
 def rect_T_textbook(E, V0, a, m):
-    """Rectangular barrier (any quantum mechanics text):
+    """Rectangular barrier (Quantum Mechanics: Non-relativistic Theory, Course of Theoretical Physics vol. 3,
+    section 25, problem 2 (from memory); derived by matching plane waves at both edges):
     T = [1 + V0^2 sinh^2(kappa a) / (4E(V0-E))]^-1 below, with sin^2(q a) and E - V0 above."""
     E = np.asarray(E, dtype=float)
     below = E < V0
@@ -46,7 +47,7 @@ def rect_t_and_dlnt_textbook(E, V0, a, m):
     d kappa/dV0 = m/(hbar^2 kappa), d beta/d kappa = (kappa^2 + k^2)/(2 k kappa^2).
     Above: D = cos(q a) - i gamma sin(q a), gamma = (q^2 + k^2)/(2 k q),
     dq/dV0 = -m/(hbar^2 q), d gamma/dq = (q^2 - k^2)/(2 k q^2).
-    (textbook barrier solution; the derivatives are elementary calculus)
+    (the plane-wave matching solution above; the derivatives are elementary calculus)
     """
     E = float(E)
     k = np.sqrt(2 * m * E) / hbar
@@ -120,7 +121,8 @@ def test_energy_equal_to_barrier_height_is_stable():
 
 
 def test_potential_step_with_different_asymptotes():
-    # Step up by Vs: T = 4 k1 k2 / (k1 + k2)^2, R = ((k1 - k2)/(k1 + k2))^2 (textbook).
+    # Step up by Vs: T = 4 k1 k2 / (k1 + k2)^2, R = ((k1 - k2)/(k1 + k2))^2 (Course of Theoretical Physics vol. 3,
+    # section 25, problem 1 (from memory); continuity of psi and psi' at the step).
     Vs = 0.6 * V0
     E = np.linspace(1.05, 5.0, 9) * Vs
     res = sc.transmission(np.array([0.0, 1e-9]), Vs, E, M_RB87, v_right=Vs)
@@ -343,7 +345,7 @@ def test_spinor_smatrix_unitary_with_barrier_coupling_and_detuning():
 # --------------------------------------------------------------------------
 
 def test_gauss_hermite_moments_exact():
-    # Gaussian moments (textbook): E[v^2] = v0^2 + s^2, Var[v^2] = 4 v0^2 s^2 + 2 s^4,
+    # moments of a normal distribution (v = v0 + s z, E z^2 = 1, E z^4 = 3): E[v^2] = v0^2 + s^2, Var[v^2] = 4 v0^2 s^2 + 2 s^4,
     # E[v^4] = v0^4 + 6 v0^2 s^2 + 3 s^4.
     v0, s, m = 3e-3, 1e-3, M_RB87
     to_v2 = lambda E: 2 * E / m  # noqa: E731
@@ -374,7 +376,8 @@ def test_momentum_average_of_barrier_against_quadrature():
 
 
 def test_thermal_velocity_spread_is_equipartition():
-    # (1/2) m <v_x^2> = (1/2) k_B T (equipartition, textbook); constants from scipy.constants.
+    # (1/2) m <v_x^2> = (1/2) k_B T (equipartition theorem of classical statistical mechanics); constants from
+    # scipy.constants.
     T = 1e-6
     v = sc.thermal_velocity_rms(T, M_RB87)
     np.testing.assert_allclose(0.5 * M_RB87 * v**2, 0.5 * k_B * T, rtol=1e-14)
