@@ -62,7 +62,7 @@ def test_pi_and_pi_half_pulses():
 def test_complex_rabi_sets_rotation_axis():
     om = TWO_PI * 1e3
     r = d.bloch_propagate(1j * om, 0.0, 0.0, (np.pi / 2) / om)
-    # W along +y rotates (0,0,-1) to -x
+    # W along +y rotates (0,0,-1) to -x (dR/dt = W x R, Phys. Rev. 70, 460 (1946))
     assert np.allclose(r.bloch, [-1, 0, 0], atol=1e-12)
 
 

@@ -116,7 +116,8 @@ def test_low_field_moment_is_minus_gF_mF_muB(name):
 
 @pytest.mark.parametrize("name", list(ATOMS))
 def test_high_field_moment_is_decoupled_electron_and_nucleus(name):
-    # Paschen-Back regime: E -> (g_J m_J + g_I m_I) mu_B B. The state connected to
+    # Paschen-Back regime, the high-field limit of the Breit-Rabi formula (Phys. Rev. 38, 2082 (1931)):
+    # E -> (g_J m_J + g_I m_I) mu_B B. The state connected to
     # F = I + 1/2 has m_J = +1/2 for A > 0 (m_J = -1/2 for A < 0) unless stretched.
     p = ATOMS[name]
     i = p["nuclear_spin"]
