@@ -1,8 +1,10 @@
 """Independent closed forms of the ramp shapes, shared by the shape, sampling and compile tests.
 
 Written out from their definitions, not from seqgen: linear s; exponential (1 - e^{-r s}) / (1 - e^{-r})
-with r = T / tau; smooth (1 - cos pi s) / 2; minimum jerk 10 s^3 - 15 s^4 + 6 s^5 (Phys. Rev. Lett. 104,
-063002 (2010)); a table through scipy's PCHIP (SIAM J. Numer. Anal. 17, 238 (1980)).
+with r = T / tau; smooth (1 - cos pi s) / 2; minimum jerk 10 s^3 - 15 s^4 + 6 s^5 (the minimum-jerk profile,
+J. Neurosci. 5, 1688 (1985); the same polynomial in the frictionless trap ramp of Phys. Rev. Lett. 104, 063002
+(2010)); a table through scipy's PCHIP (SIAM J. Numer. Anal. 17, 238 (1980); scipy's slope rule, SIAM J. Sci.
+Stat. Comput. 5, 300 (1984)).
 """
 
 import numpy as np

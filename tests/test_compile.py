@@ -10,11 +10,13 @@ fill; linear: straight lines between rows, np.interp). References beside each ch
   calibrations (monotone piecewise cubic, SIAM J. Numer. Anal. 17, 238 (1980);
   scipy's slope rule, SIAM J. Sci. Stat. Comput. 5, 300 (1984));
 - allowed deviation: the ramp's tolerance plus half a least significant bit, the
-  quantization error of rounding to the nearest DAC code (textbook);
-- row counts: piecewise-constant approximation of a monotone curve needs at
-  least total variation / (2 tol) rows (textbook); piecewise-linear
-  interpolation has error h^2 max|y''| / 8, hence about integral sqrt(|y''| / (8 tol))
-  intervals (A Practical Guide to Splines, Springer (1978));
+  largest error of rounding to the nearest DAC code (by construction of rounding);
+- row counts: a held row stays within tol of a monotone curve only over a stretch
+  where the curve changes by at most 2 tol, so the rows need at least total
+  variation / (2 tol) (derived here); piecewise-linear interpolation has error
+  h^2 max|y''| / 8, hence about integral sqrt(|y''| / (8 tol)) intervals (A
+  Practical Guide to Splines, Springer (1978), chapter on broken-line
+  interpolation (from memory));
 - rounding of times and values: exact decimal arithmetic (Python's decimal
   module, ROUND_HALF_UP), against the rule the README states (nearest tick /
   code, an exact half going to the later tick / higher code).
@@ -142,7 +144,7 @@ def test_ramp_fidelity_and_row_count(tmp_path, dev, shape, tau, cal, p0, p1, tol
     want = calibrate(cal, p0 + (p1 - p0) * shapes_ref.fraction(shape, s, r, SHAPE_TABLE))
     tolerance = tol if tol is not None else LSB / 2  # the default: half an LSB (rig schema)
     dev_err = np.abs(replay(ticks, col, k, model) - want).max()
-    # the ramp's tolerance plus half an LSB of DAC quantization (textbook)
+    # the ramp's tolerance plus half an LSB of DAC quantization (rounding to the nearest code)
     assert dev_err <= tolerance + LSB / 2 + ROUND
     # the device's spacing is kept: rows at least the minimum interval apart
     assert np.all(np.diff(ticks) >= m)
@@ -152,7 +154,7 @@ def test_ramp_fidelity_and_row_count(tmp_path, dev, shape, tau, cal, p0, p1, tol
     # row count against the derivative bound; rows of this table inside the ramp
     rows = int(np.count_nonzero((ticks >= k0) & (ticks <= k1)))
     if model == "hold":
-        # monotone curve: total variation |V1 - V0| needs >= ceil(TV / (2 tol)) rows (textbook), + end row
+        # monotone curve: total variation |V1 - V0| needs >= ceil(TV / (2 tol)) rows (derived at the top of this file), + end row
         tv = abs(float(calibrate(cal, p1) - calibrate(cal, p0)))
         bound = math.ceil(tv / (2 * tolerance)) + 1
         if cal == "tab":  # tolerance over the cubic calibration's range: compute TV from the curve itself
@@ -354,6 +356,6 @@ def test_rows_column_of_show_counts_table_rows(tmp_path):
 """)
     rows = {r["action"]: r["rows"] for r in timeline_rows(res.shot, res.compiled)}
     _, ticks, _ = column(res, "lin_hold1")
-    # 2 V with a hold tolerance of 10 mV: ceil(2 / 0.02) = 100 rows at least (textbook bound), + end row
+    # 2 V with a hold tolerance of 10 mV: ceil(2 / 0.02) = 100 rows at least (the TV / (2 tol) bound), + end row
     in_ramp = int(np.count_nonzero((ticks >= 1000) & (ticks <= 11000)))
     assert rows["ramp"] == in_ramp and 100 <= in_ramp <= 150

@@ -82,7 +82,7 @@ def test_a_finding_of_part_of_a_scan_counts():
 
     Outside references: free fall d = g_n t^2 / 2 with standard gravity g_n = 9.80665 m/s^2 (exact; SI
     Brochure, 9th ed., 2019) and the rms velocity spread sqrt(k_B T / m) of a thermal cloud along one axis
-    (Maxwell-Boltzmann distribution, textbook), k_B and u from scipy.constants (CODATA); sodium-23 mass
+    (Maxwell-Boltzmann distribution: each velocity component is normal with variance k_B T / m), k_B and u from scipy.constants (CODATA); sodium-23 mass
     22.98976928 u (from memory; AME2020, Chinese Physics C 45, 030003 (2021)). The in-trap size (tens of um)
     is left out. seqgen's own rule: the cloud's edge is 2 rms widths below its centre, the field of view
     (4 mm in the demo rig) is centred on the release point.

@@ -4,17 +4,24 @@ Random sequences on the demo rig (random set / ramp / pulse actions on every
 calibrated channel that has a hard limit, with values drawn around and beyond
 those limits, and a copy of the rig whose analog card interpolates linearly)
 must either raise a `safety.hard-limit` error (and then the build is refused:
-Result.ok is False), or compile to tables whose every value, converted back to
-physical units with seqgen.calibration.to_physical, lies within the rig's
-hard limits, also between rows as the device plays them (hold: the row values;
-linear: straight lines between rows, checked at the midpoints between rows).
-Allowance: half a least significant bit of the output (the quantization error
-of rounding to the nearest DAC code, textbook), converted to physical units
-through the calibration, plus float round-off.
+Result.ok is False), or compile to tables whose every value lies within the
+rig's hard limits, also between rows as the device plays them (hold: the row
+values; linear: straight lines between rows, checked at the midpoints between rows).
 
-The hard limits come from the rig file itself (sequences/rigs/na23_demo_rig.yaml),
-read here with PyYAML and converted with pint, independently of seqgen's rig
-resolver. No `sample:` in these sequences: the physics checks stay quiet and fast.
+The comparison is made in output units: every calibration of the rig is monotonic,
+so a physical value lies within [min, max] exactly when its output value lies
+between the outputs of min and max. Those two outputs are computed here, not with
+seqgen.calibration (the code that compile itself uses): a linear calibration by its
+closed form out = slope * x + offset, a table by scipy's PchipInterpolator on the
+table as written in the rig file (monotone piecewise cubic interpolation, SIAM J.
+Numer. Anal. 17, 238 (1980); the README's "monotone cubic" for tables).
+Allowance: half a least significant bit, LSB = span / (2^bits - 1) (the step
+between codes when the lowest and highest codes sit on the ends of the range),
+the largest error of rounding to the nearest code, plus float round-off.
+
+The rig (sequences/rigs/na23_demo_rig.yaml) is read here with PyYAML and its
+quantities converted with pint, independently of seqgen's rig resolver. No
+`sample:` in these sequences: the physics checks stay quiet and fast.
 """
 
 from pathlib import Path
@@ -24,8 +31,8 @@ import numpy as np
 import pint
 import yaml
 from hypothesis import HealthCheck, given, settings, strategies as st
+from scipy.interpolate import PchipInterpolator
 
-from seqgen.calibration import to_physical
 from seqgen.pipeline import preflight
 
 from .conftest import SEQUENCES
@@ -40,8 +47,30 @@ def _qty(text, unit):
     return UREG.Quantity(text).to(unit).magnitude
 
 
+def _output_map(cal, unit):
+    """Physical value (in `unit`) -> output value (V), written out from the rig file's calibration."""
+    if "linear" in cal:
+        lin = cal["linear"]
+        slope = _qty(lin["slope"], f"V/{unit}")
+        offset = _qty(lin.get("offset", "0 V"), "V")
+        return lambda x: slope * np.asarray(x, float) + offset
+    xs = np.array([_qty(p, unit) for p, _ in cal["table"]])
+    ys = np.array([_qty(v, "V") for _, v in cal["table"]])
+    order = np.argsort(xs)
+    pchip = PchipInterpolator(xs[order], ys[order])
+
+    def to_volts(x):
+        x = np.asarray(x, float)
+        # the demo's limits sit inside their tables; beyond one, write its straight-line continuation here
+        assert np.all((x >= xs.min()) & (x <= xs.max())), (x, xs)
+        return pchip(x)
+
+    return to_volts
+
+
 def _limited_channels():
-    """name -> (physical unit, hard min or None, hard max), for calibrated channels with a hard limit."""
+    """name -> (physical unit, hard min or None, hard max, output map, half an LSB in V),
+    for calibrated channels with a hard limit."""
     out = {}
     for name, ch in RIG_DOC["channels"].items():
         cal, lim = ch.get("calibration"), ch.get("hard_limit")
@@ -49,7 +78,9 @@ def _limited_channels():
             continue
         unit = cal["quantity"]
         lo = _qty(lim["min"], unit) if "min" in lim else None
-        out[name] = (unit, lo, _qty(lim["max"], unit))
+        lo_v, hi_v = (_qty(v, "V") for v in ch["output"]["range"])
+        half_lsb = (hi_v - lo_v) / (2 ** ch["output"]["bits"] - 1) / 2
+        out[name] = (unit, lo, _qty(lim["max"], unit), _output_map(cal, unit), half_lsb)
     return out
 
 
@@ -63,9 +94,16 @@ AO_LINE = "ao_main:    {timebase: 1 MHz, min_interval: 2 us,"
 assert AO_LINE in RIG_TEXT
 
 
+def test_the_demo_calibrations_rise_over_their_limits():
+    # the output-unit comparison below rests on this: each map rises monotonically between its limits
+    for name, (_, lo, hi, to_volts, _) in CHANNELS.items():
+        x = np.linspace(0.0 if lo is None else lo, hi, 2001)
+        assert np.all(np.diff(to_volts(x)) > 0), name
+
+
 def value_strategy(name):
     """Physical values around and beyond a channel's hard limits (and right on them)."""
-    _, lo, hi = CHANNELS[name]
+    _, lo, hi, _, _ = CHANNELS[name]
     base = 0.0 if lo is None else lo
     span = hi - base
     # on the limits and within float noise of them
@@ -104,14 +142,6 @@ def actions(draw):
     return name, spec + "}", dur_us
 
 
-def _allowance(out, limit, sign):
-    """Half an LSB beyond a limit, in physical units through the calibration."""
-    from seqgen.calibration import to_output
-
-    v = float(to_output(out, limit))
-    return abs(float(to_physical(out, v + sign * out.lsb / 2)) - limit) * (1 + 1e-6) + 1e-12 * max(1.0, abs(limit))
-
-
 @settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(steps=st.lists(st.tuples(actions(), st.integers(0, 2000)), min_size=1, max_size=6),
        linear=st.booleans())
@@ -140,14 +170,16 @@ def test_hard_limits_hold_in_every_build(steps, linear):
         for j, name in enumerate(table.columns):
             if name not in CHANNELS:
                 continue
-            out = res.shot.rig.outputs[name]
-            _, lo, hi = CHANNELS[name]
+            _, lo, hi, to_volts, half_lsb = CHANNELS[name]
             col = np.asarray(table.values)[:, j]
             played = col
             if linear and table.device == "ao_main" and len(col) > 1:
                 mids = 0.5 * (table.ticks[1:] + table.ticks[:-1])
                 played = np.concatenate((col, np.interp(mids, table.ticks, col)))
-            phys = to_physical(out, played)
-            assert phys.max() <= hi + _allowance(out, hi, +1), (name, phys.max(), hi)
+            # rising maps (checked above): min <= x <= max  <=>  out(min) <= out(x) <= out(max)
+            allowance = half_lsb * (1 + 1e-6) + 1e-12 * max(1.0, np.abs(played).max())
+            hi_v = float(to_volts(hi))
+            assert played.max() <= hi_v + allowance, (name, played.max(), hi_v)
             if lo is not None:
-                assert phys.min() >= lo - _allowance(out, lo, -1), (name, phys.min(), lo)
+                lo_v = float(to_volts(lo))
+                assert played.min() >= lo_v - allowance, (name, played.min(), lo_v)

@@ -5,10 +5,11 @@ References beside each check:
   the polynomial of Phys. Rev. Lett. 104, 063002 (2010)), and scipy's
   PchipInterpolator for tables (monotone piecewise cubic interpolation,
   SIAM J. Numer. Anal. 17, 238 (1980));
-- row-count bounds: piecewise-constant approximation of a monotone curve needs
-  at least total variation / (2 tol) segments (textbook); piecewise-linear
-  interpolation error h^2 max|y''| / 8, hence about integral sqrt(|y''| / (8 tol))
-  intervals (A Practical Guide to Splines, Springer (1978));
+- row-count bounds: a held segment stays within tol of a monotone curve only
+  where the curve changes by at most 2 tol, so at least total variation / (2 tol)
+  segments (derived here); piecewise-linear interpolation error h^2 max|y''| / 8,
+  hence about integral sqrt(|y''| / (8 tol)) intervals (A Practical Guide to
+  Splines, Springer (1978), chapter on broken-line interpolation (from memory));
 - the Beta-function integral int_0^{pi/2} cos^(1/2) x dx = B(1/2, 3/4) / 2
   (Handbook of Mathematical Functions, NBS Appl. Math. Ser. 55, eq. 6.2.1 (1964), equation number from memory);
 - rounding: exact decimal / rational arithmetic from Python's decimal and
@@ -210,7 +211,7 @@ def test_every_tick_within_tolerance_and_rows_near_bound(shape, tau_frac, model)
     assert rep.within_tolerance and not rep.min_interval_limited and not rep.max_rows_limited
     amp = abs(v1 - v0)
     if model == "hold":
-        # monotone curve: total variation = |v1 - v0| -> at least ceil(TV / (2 tol)) segments (textbook), + end row
+        # monotone curve: total variation = |v1 - v0| -> at least ceil(TV / (2 tol)) segments (derived at the top of this file), + end row
         bound = math.ceil(amp / (2 * tol)) + 1
     else:
         # A Practical Guide to Splines, Springer (1978): about integral sqrt(|y''| / (8 tol)) intervals (at least one), + start row

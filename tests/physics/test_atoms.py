@@ -1,7 +1,8 @@
 """Atom data, g-factors, magnetic moments and magnetic traps.
 
-Reference values: /work/shared/REFERENCES.md and the sources named beside
-each check. "(from memory)" marks recalled values.
+Reference values: the sources named beside each check. "(from memory)" marks recalled values.
+Line data: the alkali D-line data compilations ("Rubidium 87 D Line Data", "Sodium D Line Data",
+"Cesium D Line Data", "Properties of Potassium" (2011), "Properties of 6Li" (2003)).
 """
 
 import math
@@ -72,7 +73,7 @@ def test_every_value_has_a_source_and_is_finite(name):
     assert s.d2_wavelength_m < s.d1_wavelength_m
 
 
-# masses in u: AME2020, Chinese Physics C 45, 030003 (2021), via REFERENCES.md (from memory)
+# masses in u: AME2020, Chinese Physics C 45, 030003 (2021) (from memory)
 @pytest.mark.parametrize("name,mass_u", [
     ("Rb87", 86.909180531), ("Na23", 22.989769282), ("Cs133", 132.905451961), ("K39", 38.963706486),
     ("K41", 40.961825257), ("Rb85", 84.911789738), ("Li6", 6.015122887)])
@@ -80,8 +81,9 @@ def test_masses(name, mass_u):
     assert get_species(name).mass_kg == pytest.approx(mass_u * U, rel=1e-10)
 
 
-# ground hyperfine splittings, REFERENCES.md (checked against a published table;
-# K and Li from Rev. Mod. Phys. 49, 31 (1977)); Cs exact by the SI definition of the second
+# ground hyperfine splittings: Rb-87 Europhys. Lett. 45, 558 (1999) (from memory); Na-23, Rb-85, K and Li
+# A (I + 1/2) with the A constants of Rev. Mod. Phys. 49, 31 (1977) (from memory); Cs exact by the SI
+# definition of the second (SI Brochure, 9th ed., 2019)
 @pytest.mark.parametrize("name,split_hz", [
     ("Rb87", 6_834_682_610.904), ("Na23", 1_771_626_128.8), ("Cs133", 9_192_631_770.0),
     ("K39", 461.7197202e6), ("K41", 254.0138720e6), ("Rb85", 3_035_732_440.0), ("Li6", 228.2052590e6)])
@@ -106,7 +108,8 @@ def test_k40_is_inverted():
     assert abs(k40.hyperfine_splitting_hz) == pytest.approx(1285.79e6, rel=1e-5)  # (from memory)
 
 
-# vacuum wavelengths in nm and linewidths in MHz from REFERENCES.md
+# vacuum wavelengths in nm: the alkali D-line data compilations (Rb-87 as quoted there; Na, Cs, K-39 and
+# Rb-85 from memory, hence their looser tolerances)
 @pytest.mark.parametrize("name,d2,d1,tol_nm", [
     ("Rb87", 780.241209686, 794.978851156, 1e-9),
     ("Na23", 589.158326, 589.755815, 1e-6),
@@ -121,9 +124,9 @@ def test_d_line_wavelengths(name, d2, d1, tol_nm):
 
 
 def test_potassium_41_lines():
-    # REFERENCES.md gives D2 = 766.70045 nm (from memory); the K41 lines lie about
-    # 235 MHz blue of K39 (isotope shift, Properties of Potassium (2011)) (from memory).
-    # REFERENCES.md's D1 = 770.10767 nm would mean a 361 MHz D1 isotope shift: not used.
+    # D2 = 766.70045 nm (Properties of Potassium (2011)) (from memory); the K41 lines lie about
+    # 235 MHz blue of K39 (isotope shift, same compilation) (from memory). A recalled
+    # D1 = 770.10767 nm would mean a 361 MHz D1 isotope shift: not used.
     k39, k41 = get_species("K39"), get_species("K41")
     assert k41.d2_wavelength_m * 1e9 == pytest.approx(766.70045, abs=2e-5)
     for attr in ("d1_wavelength_m", "d2_wavelength_m"):
@@ -132,7 +135,8 @@ def test_potassium_41_lines():
 
 
 def test_lithium_d1_from_fine_structure():
-    # Li D1 lies 10 052.95 MHz below D2 in frequency (REFERENCES.md, from memory); D1 stored to 1e-6 nm (~0.7 MHz)
+    # Li D1 lies 10 052.95 MHz (the 2P fine-structure interval) below D2 in frequency ("Properties of 6Li" (2003),
+    # from memory); D1 stored to 1e-6 nm (~0.7 MHz)
     li = get_species("Li6")
     assert li.d2_wavelength_m * 1e9 == pytest.approx(670.977338, abs=1e-6)
     assert sc.c / li.d2_wavelength_m - sc.c / li.d1_wavelength_m == pytest.approx(10052.95e6, abs=1e6)
@@ -142,7 +146,7 @@ def test_lithium_d1_from_fine_structure():
     ("Rb87", 6.0666, 5.7500), ("Na23", 9.795, 9.765), ("Cs133", 5.2347, 4.5612), ("K39", 6.035, 5.956),
     ("K41", 6.035, 5.956), ("Rb85", 6.0666, 5.7500), ("Li6", 5.8724, 5.8724)])
 def test_linewidths(name, g2, g1):
-    # Gamma/2pi in MHz, REFERENCES.md (alkali D-line data compilations)
+    # Gamma/2pi in MHz, alkali D-line data compilations (Rb-87 as quoted there; the others from memory)
     s = get_species(name)
     assert s.d2_linewidth_hz == pytest.approx(g2 * 1e6, abs=1e3)
     assert s.d1_linewidth_hz == pytest.approx(g1 * 1e6, abs=1e3)
@@ -160,9 +164,9 @@ def test_saturation_intensity_matches_two_level_formula(name):
 
 def test_rb87_saturation_intensity_and_recoil_velocity():
     rb = get_species("Rb87")
-    # 1.669 mW/cm^2 = 16.69 W/m^2 (Rubidium 87 D Line Data, via REFERENCES.md) (from memory)
+    # 1.669 mW/cm^2 = 16.69 W/m^2 ("Rubidium 87 D Line Data" compilation) (from memory)
     assert rb.saturation_intensity_w_m2 == pytest.approx(16.69, abs=0.01)
-    # recoil velocity h / (m lambda_D2) = 5.8845 mm/s (Rubidium 87 D Line Data, REFERENCES.md)
+    # recoil velocity h / (m lambda_D2) = 5.8845 mm/s ("Rubidium 87 D Line Data" compilation)
     assert sc.h / (rb.mass_kg * rb.d2_wavelength_m) == pytest.approx(5.8845e-3, abs=1e-7)
 
 
@@ -209,7 +213,7 @@ def _rb87_breit_rabi_hz(F, m, B):
     """E/h of an Rb-87 ground level, Breit-Rabi formula written out here (Phys. Rev. 38, 2082 (1931)):
     E = -h nu/(2(2I+1)) + g_I mu_B m B +/- (h nu/2) sqrt(1 + 4 m x/(2I+1) + x^2), x = (g_J - g_I) mu_B B/(h nu),
     "+" for F = 2; stretched states |m| = 2 use the root 1 + sign(m) x. Data from "Rubidium 87 D Line Data"
-    (via REFERENCES.md): I = 3/2, nu = 6 834 682 610.904 Hz, g_J = 2.00233113, g_I = -0.0009951414."""
+    compilation: I = 3/2, nu = 6 834 682 610.904 Hz, g_J = 2.00233113, g_I = -0.0009951414."""
     nu, gj, gi, i = 6834682610.904, 2.00233113, -0.0009951414, 1.5
     x = (gj - gi) * MU_B * B / (sc.h * nu)
     root = 1 + math.copysign(1.0, m) * x if abs(m) == 2 else math.sqrt(1 + 4 * m * x / (2 * i + 1) + x * x)
@@ -289,7 +293,7 @@ def test_quadrupole_levitation_flattens_vertical_potential():
 
 
 def test_ioffe_pritchard_against_field_expansion():
-    # Ioffe-Pritchard field satisfying div B = curl B = 0 (textbook form):
+    # Ioffe-Pritchard field (Phys. Rev. Lett. 51, 1336 (1983)) expanded to second order so that div B = curl B = 0:
     # B = B0 z^ + B'(x, -y, 0) + (B''/2)(-x z, -y z, z^2 - (x^2 + y^2)/2);
     # curvature of |B| by finite differences vs the closed-form frequencies
     rb = get_species("Rb87")
@@ -310,7 +314,8 @@ def test_ioffe_pritchard_against_field_expansion():
     assert mu < 0
     assert w_rho == pytest.approx(np.sqrt(-mu * curv_x / rb.mass_kg), rel=1e-4)
     assert w_z == pytest.approx(np.sqrt(-mu * curv_z / rb.mass_kg), rel=1e-4)
-    assert w_z == pytest.approx(mt.harmonic_trap_frequency(mu, b2, rb.mass_kg), rel=1e-12)
+    # omega_z = sqrt(|mu| B'' / m) (Phys. Rev. Lett. 51, 1336 (1983))
+    assert mt.harmonic_trap_frequency(mu, b2, rb.mass_kg) == pytest.approx(np.sqrt(-mu * b2 / rb.mass_kg), rel=1e-12)
     with pytest.raises(ValueError):  # a high-field seeker is not held in a field minimum
         mt.harmonic_trap_frequency(-mu, b2, rb.mass_kg)
 

@@ -1,6 +1,6 @@
 """Time of flight: thermal clouds, Thomas-Fermi condensates, free fall.
 
-Sources beside each check; values in /work/shared/REFERENCES.md.
+The source is named beside each check.
 """
 
 import numpy as np
@@ -15,7 +15,8 @@ M_RB87 = 86.909180531 * sc.physical_constants["atomic mass constant"][0]  # AME2
 
 
 def test_thermal_width_formula():
-    # sigma(t)^2 = sigma0^2 + k_B T t^2 / m (textbook ballistic expansion)
+    # sigma(t)^2 = sigma0^2 + k_B T t^2 / m: x(t) = x0 + v t with independent Gaussian x0 and v (Maxwell-Boltzmann,
+    # variance k_B T / m per velocity component), so the variances add (derived here)
     t = np.linspace(0, 30e-3, 7)
     got = ex.thermal_width(20e-6, 1e-6, M_RB87, t)
     assert got == pytest.approx(np.sqrt(20e-6**2 + sc.k * 1e-6 * t**2 / M_RB87), rel=1e-12)
@@ -24,7 +25,8 @@ def test_thermal_width_formula():
 
 
 def test_thermal_release_from_harmonic_trap():
-    # released equilibrium cloud: sigma(t) = sigma0 sqrt(1 + omega^2 t^2) (textbook)
+    # released equilibrium cloud: sigma0^2 = k_B T / (m omega^2) (equipartition in the trap), so the form above
+    # becomes sigma(t) = sigma0 sqrt(1 + omega^2 t^2) (derived here)
     w = 2 * np.pi * 80.0
     s0 = ex.thermal_in_trap_width(500e-9, M_RB87, w)
     assert s0 == pytest.approx(np.sqrt(sc.k * 500e-9 / (M_RB87 * w**2)), rel=1e-12)
@@ -83,7 +85,16 @@ def test_expansion_unsorted_times_and_radii():
     lam = ex.condensate_expansion(w, t)
     assert lam.shape == (3, 3)
     assert lam[:, 1] == pytest.approx([1, 1, 1])
-    assert lam[:, 0] == pytest.approx(ex.condensate_expansion(w, [20e-3])[:, 0], rel=1e-9)
+    # scaling equations of a released condensate, lambda_i'' = omega_i^2 / (lambda_i lambda_x lambda_y lambda_z),
+    # lambda(0) = 1, lambda'(0) = 0 (Phys. Rev. Lett. 77, 5315 (1996)), integrated here with scipy
+    def rhs(_, y):
+        lam_, dlam = y[:3], y[3:]
+        return np.r_[dlam, w**2 / (lam_ * np.prod(lam_))]
+
+    sol = integrate.solve_ivp(rhs, (0.0, 20e-3), np.r_[np.ones(3), np.zeros(3)], method="DOP853",
+                              rtol=1e-12, atol=1e-14, t_eval=[5e-3, 20e-3])
+    assert lam[:, 2] == pytest.approx(sol.y[:3, 0], rel=1e-8)
+    assert lam[:, 0] == pytest.approx(sol.y[:3, 1], rel=1e-8)
     radii = np.array([3e-6, 3e-6, 30e-6])
     assert ex.condensate_tof_radii(radii, w, t) == pytest.approx(radii[:, None] * lam, rel=1e-12)
 

@@ -13,7 +13,7 @@ from seqgen.physics import kinematics as k
 MU_B = sc.physical_constants["Bohr magneton"][0]
 U = sc.physical_constants["atomic mass constant"][0]
 G_N = 9.80665  # exact (3rd CGPM, 1901; SI Brochure)
-M_RB87 = 86.909180531 * U  # AME2020 (from memory, /work/shared/REFERENCES.md)
+M_RB87 = 86.909180531 * U  # AME2020, Chinese Physics C 45, 030003 (2021) (from memory)
 LAMBDA_D2 = 780.241209686e-9  # "Rubidium 87 D Line Data" compilation
 GAMMA_D2 = 2 * np.pi * 6.0666e6  # "Rubidium 87 D Line Data" compilation
 
@@ -41,13 +41,13 @@ def test_levitation_gradient_rb87_stretched_state():
 
 
 RB87 = SimpleNamespace(nuclear_spin=1.5, hyperfine_splitting_hz=6834682610.904, g_j=2.00233113,
-                       g_i=-0.0009951414, mass_kg=M_RB87)  # "Rubidium 87 D Line Data" (via REFERENCES.md)
+                       g_i=-0.0009951414, mass_kg=M_RB87)  # "Rubidium 87 D Line Data" compilation
 
 
 def test_magnetic_push_of_stretched_state_is_exact_at_any_field():
     # |2,2> is a pure |m_J = 1/2, m_I = 3/2> state: E = (g_J/2 + 3 g_I/2) mu_B B at every field
     # (Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)), so moment -dE/dB = -(g_J/2 + 3 g_I/2) mu_B;
-    # dv = moment b' tau / m (force = moment x gradient of |B|, textbook)
+    # dv = moment b' tau / m (force -dE/dz = moment d|B|/dz with moment = -dE/dB, derived here)
     moment = -(RB87.g_j / 2 + 1.5 * RB87.g_i) * MU_B
     for bias in (0.0, 1e-4, 0.1):
         push = k.magnetic_push(2, 2, 0.2, 3e-3, bias, atom=RB87)
@@ -150,7 +150,7 @@ def test_components_resolved_rule():
 
 
 def test_pulse_displacement_against_trajectory_integration():
-    # uniform acceleration a on [t0, t1], then free flight (textbook): integrate x'' = a numerically
+    # uniform acceleration a on [t0, t1], then free flight: integrate x'' = a numerically
     a, t0, t1 = 3.7, 2e-3, 6e-3
 
     def rhs(t, y):
@@ -170,7 +170,7 @@ def test_pulse_displacement_against_trajectory_integration():
 
 def test_linear_trap_rms_widths_against_boltzmann_integral():
     # quadrupole with axial gradient G along z: |B| = (G/2) sqrt(x^2 + y^2 + 4 z^2); density exp(-|mu| |B| / k_B T)
-    # (Boltzmann factor, textbook). Integrate <z^2> and <rho^2>/2 on (rho, z) with the 2 pi rho weight.
+    # (Boltzmann distribution of classical statistical mechanics). Integrate <z^2> and <rho^2>/2 on (rho, z) with the 2 pi rho weight.
     temp, mu, grad = 20e-6, -0.5 * MU_B, 0.2
     l_rad = sc.k * temp / (abs(mu) * grad / 2)  # 1/e length across the axis
 

@@ -105,7 +105,8 @@ def test_high_field_seeker_and_mf0_get_no_support():
 def test_ioffe_pritchard_frequencies_published_form_and_field_expansion():
     # omega_rho = sqrt(mu/m (B'^2/B0 - B''/2)), omega_z = sqrt(mu B''/m) (Phys. Rev. Lett. 51, 1336 (1983)),
     # with |mu| = mu_B/2; and against finite differences of the exact Ioffe-Pritchard field
-    # B = B0 z + B'(x, -y, 0) + (B''/2)(-x z, -y z, z^2 - (x^2 + y^2)/2) (textbook form, div B = curl B = 0)
+    # B = B0 z + B'(x, -y, 0) + (B''/2)(-x z, -y z, z^2 - (x^2 + y^2)/2) (the field of that paper expanded to second
+    # order; div B = curl B = 0 checked by hand)
     b0, b1, b2 = 0.5e-4, 1.5, 100.0  # 0.5 G, 150 G/cm, 100 G/cm^2
     mu = MU_B / 2
     w_rho, w_z = mt.ioffe_pritchard_frequencies(LFS_HALF, b1, b2, b0, M_NA23)
@@ -137,8 +138,9 @@ def test_harmonic_sag_against_numerical_minimum():
 
         r_min = optimize.minimize(u, np.zeros(3), method="Powell", options={"xtol": 1e-10, "ftol": 1e-16}).x * 1e-6
         assert mt.harmonic_sag(w_rho, w_z, axis) == pytest.approx(np.linalg.norm(r_min), rel=1e-5)
-    # horizontal axis: g / omega_rho^2, the textbook sag (gravity_sag)
-    assert mt.harmonic_sag(w_rho, w_z, (1, 0, 0)) == pytest.approx(mt.gravity_sag(w_rho), rel=1e-12)
+    # horizontal axis: force balance m omega_rho^2 z = m g gives the sag g / omega_rho^2
+    assert mt.harmonic_sag(w_rho, w_z, (1, 0, 0)) == pytest.approx(G_N / w_rho**2, rel=1e-12)
+    assert mt.gravity_sag(w_rho) == pytest.approx(G_N / w_rho**2, rel=1e-12)
 
 
 def test_majorana_hole_radius_is_where_larmor_meets_field_rotation():
@@ -158,7 +160,9 @@ def test_majorana_lifetime_hand_formula():
     # scale: cold clouds are lost fast (~0.4 s at 1.1 uK, 10 G/cm), hot ones hardly (lifetime grows as T^2)
     assert 0.1 < mt.majorana_lifetime(M_NA23, size) < 1.0
     hot = mt.majorana_lifetime(M_NA23, mt.linear_trap_size(100 * temp, LFS_HALF, b1))
-    assert hot == pytest.approx(1e4 * mt.majorana_lifetime(M_NA23, size), rel=1e-12)
+    hot_size = sc.k * 100 * temp / (MU_B / 2 * b1)
+    assert hot == pytest.approx(M_NA23 * hot_size**2 / sc.hbar, rel=1e-12)
+    assert hot == pytest.approx(1e4 * M_NA23 * size**2 / sc.hbar, rel=1e-12)
 
 
 def test_linear_trap_size_is_the_boltzmann_length():

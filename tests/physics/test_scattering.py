@@ -15,7 +15,7 @@ from scipy.optimize import brentq
 
 from seqgen.physics import scattering as sc
 
-# Rb-87 mass, AME2020 (Chinese Physics C 45, 030003 (2021)), value as in REFERENCES.md (from memory).
+# Rb-87 mass, AME2020 (Chinese Physics C 45, 030003 (2021)) (from memory).
 M_RB87 = 86.909180531 * u
 
 A = 1.0e-6                                   # barrier width, m
@@ -29,7 +29,8 @@ UNITARITY = 1e-10
 # --------------------------------------------------------------------------
 
 def rect_T_textbook(E, V0, a, m):
-    """Rectangular barrier (any quantum mechanics text):
+    """Rectangular barrier (Quantum Mechanics: Non-relativistic Theory, Course of Theoretical Physics vol. 3,
+    section 25, problem 2 (from memory); derived by matching plane waves at both edges):
     T = [1 + V0^2 sinh^2(kappa a) / (4E(V0-E))]^-1 below, with sin^2(q a) and E - V0 above."""
     E = np.asarray(E, dtype=float)
     below = E < V0
@@ -46,7 +47,7 @@ def rect_t_and_dlnt_textbook(E, V0, a, m):
     d kappa/dV0 = m/(hbar^2 kappa), d beta/d kappa = (kappa^2 + k^2)/(2 k kappa^2).
     Above: D = cos(q a) - i gamma sin(q a), gamma = (q^2 + k^2)/(2 k q),
     dq/dV0 = -m/(hbar^2 q), d gamma/dq = (q^2 - k^2)/(2 k q^2).
-    (textbook barrier solution; the derivatives are elementary calculus)
+    (the plane-wave matching solution above; the derivatives are elementary calculus)
     """
     E = float(E)
     k = np.sqrt(2 * m * E) / hbar
@@ -89,7 +90,7 @@ E_RECT = np.concatenate([np.linspace(0.02, 0.98, 25), np.linspace(1.02, 4.0, 25)
 @pytest.mark.parametrize("n_cells", [1, 13, 1000])
 def test_rectangular_barrier_matches_closed_form(n_cells):
     # Piecewise-constant cells are exact for a rectangle, so only rounding remains;
-    # the brief asks for 1e-6 relative below and above the barrier (textbook T).
+    # 1e-6 relative below and above the barrier (textbook T, cited above).
     res = sc.transmission(np.linspace(0.0, A, n_cells + 1), V0, E_RECT, M_RB87)
     T_ref = rect_T_textbook(E_RECT, V0, A, M_RB87)
     np.testing.assert_allclose(res.T, T_ref, rtol=1e-6)
@@ -120,7 +121,8 @@ def test_energy_equal_to_barrier_height_is_stable():
 
 
 def test_potential_step_with_different_asymptotes():
-    # Step up by Vs: T = 4 k1 k2 / (k1 + k2)^2, R = ((k1 - k2)/(k1 + k2))^2 (textbook).
+    # Step up by Vs: T = 4 k1 k2 / (k1 + k2)^2, R = ((k1 - k2)/(k1 + k2))^2 (Course of Theoretical Physics vol. 3,
+    # section 25, problem 1 (from memory); continuity of psi and psi' at the step).
     Vs = 0.6 * V0
     E = np.linspace(1.05, 5.0, 9) * Vs
     res = sc.transmission(np.array([0.0, 1e-9]), Vs, E, M_RB87, v_right=Vs)
@@ -314,9 +316,11 @@ def test_spin_independent_potential_gives_no_rotation():
     Vg = sc.gaussian_sheet_potential(x, 10 * E_UNIT, w)
     E = np.linspace(0.2, 3.0, 15) * 10 * E_UNIT
     res = sc.spinor_transmission(x, Vg, Vg, 0.0, 0.0, E, M_RB87)
-    for chi in (SPIN_X, SPIN_UP, np.array([1.0, 1j]) / np.sqrt(2), np.array([0.6, -0.8])):
+    # Bloch vector of a normalised (up, down) = (a, b): (2 Re a*b, 2 Im a*b, |a|^2 - |b|^2), i.e. <sigma_x, y, z>
+    for chi, want in ((SPIN_X, (1, 0, 0)), (SPIN_UP, (0, 0, 1)), (np.array([1.0, 1j]) / np.sqrt(2), (0, 1, 0)),
+                      (np.array([0.6, -0.8]), (-0.96, 0, -0.28))):
         _, bloch = sc.transmitted_spin(res.t, chi)
-        np.testing.assert_allclose(bloch, np.broadcast_to(sc.bloch_vector(chi), bloch.shape), atol=1e-12)
+        np.testing.assert_allclose(bloch, np.broadcast_to(want, bloch.shape), atol=1e-12)
     assert np.max(np.abs(res.t[..., 0, 1])) < 1e-14
     assert np.all(res.unitarity_error < UNITARITY)
 
@@ -341,7 +345,7 @@ def test_spinor_smatrix_unitary_with_barrier_coupling_and_detuning():
 # --------------------------------------------------------------------------
 
 def test_gauss_hermite_moments_exact():
-    # Gaussian moments (textbook): E[v^2] = v0^2 + s^2, Var[v^2] = 4 v0^2 s^2 + 2 s^4,
+    # moments of a normal distribution (v = v0 + s z, E z^2 = 1, E z^4 = 3): E[v^2] = v0^2 + s^2, Var[v^2] = 4 v0^2 s^2 + 2 s^4,
     # E[v^4] = v0^4 + 6 v0^2 s^2 + 3 s^4.
     v0, s, m = 3e-3, 1e-3, M_RB87
     to_v2 = lambda E: 2 * E / m  # noqa: E731
@@ -372,7 +376,8 @@ def test_momentum_average_of_barrier_against_quadrature():
 
 
 def test_thermal_velocity_spread_is_equipartition():
-    # (1/2) m <v_x^2> = (1/2) k_B T (equipartition, textbook); constants from scipy.constants.
+    # (1/2) m <v_x^2> = (1/2) k_B T (equipartition theorem of classical statistical mechanics); constants from
+    # scipy.constants.
     T = 1e-6
     v = sc.thermal_velocity_rms(T, M_RB87)
     np.testing.assert_allclose(0.5 * M_RB87 * v**2, 0.5 * k_B * T, rtol=1e-14)

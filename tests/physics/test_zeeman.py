@@ -11,8 +11,8 @@ from seqgen.physics import zeeman as z
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
 
-# Ground hyperfine splittings from /work/shared/REFERENCES.md; g factors from the
-# alkali D-line data compilations (Rb-87: g_J = 2.00233113, g_I = -0.0009951414).
+# Rb-87: hyperfine splitting Europhys. Lett. 45, 558 (1999) (from memory); g factors from the
+# "Rubidium 87 D Line Data" compilation (g_J = 2.00233113, g_I = -0.0009951414).
 RB87 = dict(nuclear_spin=1.5, hyperfine_splitting_hz=6_834_682_610.904, g_j=2.00233113, g_i=-0.0009951414)
 # Na-23: "Sodium D Line Data" compilation (g factors from memory)
 NA23 = dict(nuclear_spin=1.5, hyperfine_splitting_hz=1_771_626_128.8, g_j=2.0022960, g_i=-0.00080461)
@@ -116,7 +116,8 @@ def test_low_field_moment_is_minus_gF_mF_muB(name):
 
 @pytest.mark.parametrize("name", list(ATOMS))
 def test_high_field_moment_is_decoupled_electron_and_nucleus(name):
-    # Paschen-Back regime: E -> (g_J m_J + g_I m_I) mu_B B. The state connected to
+    # Paschen-Back regime, the high-field limit of the Breit-Rabi formula (Phys. Rev. 38, 2082 (1931)):
+    # E -> (g_J m_J + g_I m_I) mu_B B. The state connected to
     # F = I + 1/2 has m_J = +1/2 for A > 0 (m_J = -1/2 for A < 0) unless stretched.
     p = ATOMS[name]
     i = p["nuclear_spin"]
