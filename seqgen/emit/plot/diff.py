@@ -6,10 +6,11 @@ import textwrap
 
 import numpy as np
 
+from ...textfmt import fmt_when
 from .layout import (
     DEVICE_COLOURS, DIFF_COLOUR, FIG_WIDTH_IN, HEADER_IN, LANE_IN, OLD_COLOUR, PlotError, _Row, _blank,
     _blocks_layout, _draw_blocks, _draw_findings, _draw_unwritten, _drop_unwritten, _finding_items,
-    _finding_lines, _findings_layout, _fmt_seconds, _lane_label, _left_margin, _legend, _make_figure,
+    _finding_lines, _findings_layout, _lane_label, _left_margin, _legend, _make_figure,
     _shade_blocks, _spans, _style_time_axis, _unwritten_lines, select_outputs, written_outputs,
 )
 from .lanes import (
@@ -88,7 +89,7 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
     t0 = 0.0 if t_from is None else float(t_from)
     t1 = end if t_to is None else float(t_to)
     if not t1 > t0:
-        raise PlotError(f"empty window: --from {_fmt_seconds(t0)} is not before --to {_fmt_seconds(t1)}")
+        raise PlotError(f"empty window: --from {fmt_when(t0)} is not before --to {fmt_when(t1)}")
     names = select_outputs(new_shot.rig, channels) if channels else list(new_shot.rig.outputs)
     if channels:
         try:
@@ -124,7 +125,7 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
     foot = [f"old: {old_label}", f"new: {new_label}",
             (f"{len(changed)} output(s) differ: " + ", ".join(changed)) if changed else "no output differs"]
     if abs(old_shot.duration_s - new_shot.duration_s) > 0:
-        foot.append(f"duration {_fmt_seconds(old_shot.duration_s)} -> {_fmt_seconds(new_shot.duration_s)}")
+        foot.append(f"duration {fmt_when(old_shot.duration_s)} -> {fmt_when(new_shot.duration_s)}")
     foot = [ln for text in foot for ln in (textwrap.wrap(text, 150, subsequent_indent="    ") or [text])]
     ttl = title or f"diff  ·  {old_label}  ->  {new_label}"
     fig, axes, width_in = _make_figure(rows, left, ttl, foot, (t0, t1), subtitle)

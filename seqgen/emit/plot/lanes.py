@@ -8,7 +8,8 @@ import math
 import numpy as np
 
 from ...calibration import to_output, to_physical
-from .layout import INTENDED_COLOUR, LABEL_PT, MAX_POINTS_PER_LANE, TICK_PT, _blank, _fmt_seconds, _lane_label
+from ...textfmt import fmt_si, fmt_when
+from .layout import INTENDED_COLOUR, LABEL_PT, MAX_POINTS_PER_LANE, TICK_PT, _blank, _lane_label
 
 
 def _display_scale(max_abs: float, unit: str) -> tuple[float, str]:
@@ -81,18 +82,12 @@ def _draw_header(ax, device, colour):
     _blank(ax)
     ax.tick_params(axis="x", length=0)
     ax.set_label(f"device:{device.name}" if device is not None else "device:?")
-    text = device.name if device is None else (f"{device.name}   timebase {_fmt_hz(device.timebase_hz)}, "
+    text = device.name if device is None else (f"{device.name}   timebase {fmt_si(device.timebase_hz, 'Hz')}, "
                                                f"{device.output_model} between rows")
     ax.annotate(text, xy=(0, 0), xycoords="axes fraction", xytext=(-34 - 90, 2), textcoords="offset points",
                 ha="left", va="bottom", fontsize=LABEL_PT, fontweight="bold", color=colour)
     ax.axhline(0.0, color=colour, linewidth=1.0)
     ax.set_ylim(0, 1)
-
-
-def _fmt_hz(hz: float) -> str:
-    from ...resolve.units import format_value
-
-    return format_value(hz, "Hz")
 
 
 def _style_lane(ax, out, colour, scale_unit, ylim, flat=None):
@@ -249,8 +244,8 @@ def latency_note(out, t0: float, t1: float, width_in: float) -> str | None:
     if max(rise, fall) < s_per_pt:
         return None
     if rise == fall:
-        return f"command {_fmt_seconds(rise)} early (latency)"
-    return f"command {_fmt_seconds(rise)} early on, {_fmt_seconds(fall)} early off (latency)"
+        return f"command {fmt_when(rise)} early (latency)"
+    return f"command {fmt_when(rise)} early on, {fmt_when(fall)} early off (latency)"
 
 
 def _draw_lane(ax, shot, out, col, t0, t1, colour, intended, note=None):

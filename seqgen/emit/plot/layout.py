@@ -10,6 +10,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ...textfmt import fmt_when
+
 
 # Our own palette: hues far apart in both hue and lightness, so neighbouring devices stay distinct for
 # the common colour-vision deficiencies (checked by eye with a deuteranopia and a protanopia simulation).
@@ -143,12 +145,6 @@ def time_axis(t0: float, t1: float) -> tuple[float, str, float]:
         step = factor * 10 ** math.ceil(math.log10(max(span / factor, 1e-12)))
         offset = math.floor(t0 / step + 1e-9) * step
     return factor, unit, offset
-
-
-def _fmt_seconds(t: float) -> str:
-    from ...findings import _fmt_time
-
-    return _fmt_time(t)
 
 
 def _text_pt(text: str, fontsize: float) -> float:
@@ -313,7 +309,7 @@ def _style_time_axis(axes, t0: float, t1: float, top_ax, bottom_ax):
         if ax.get_label() != "not-written":  # no grid over the line of outputs left out
             ax.grid(axis="x", color="#d9d9d9", linewidth=0.5)
         ax.set_axisbelow(True)
-    label = f"time [{unit}]" if not offset else f"time - {_fmt_seconds(offset)} [{unit}]"
+    label = f"time [{unit}]" if not offset else f"time - {fmt_when(offset)} [{unit}]"
     bottom_ax.tick_params(axis="x", labelbottom=True, bottom=True)
     bottom_ax.set_xlabel(label, fontsize=LABEL_PT)
     top_ax.tick_params(axis="x", labeltop=True, top=True)
@@ -466,7 +462,7 @@ def _window(shot, t_from, t_to):
     t0 = 0.0 if t_from is None else float(t_from)
     t1 = end if t_to is None else float(t_to)
     if not t1 > t0:
-        raise PlotError(f"empty window: --from {_fmt_seconds(t0)} is not before --to {_fmt_seconds(t1)}")
+        raise PlotError(f"empty window: --from {fmt_when(t0)} is not before --to {fmt_when(t1)}")
     return t0, t1
 
 
@@ -535,9 +531,9 @@ def dense_hint(blocks, t0: float, t1: float):
     step = 10 ** math.floor(math.log10(max(e - a, span * 1e-6)))
     lo = max(t0, math.floor(a / step + 1e-9) * step)
     hi = math.ceil(e / step - 1e-9) * step
-    cmd = f"--from '{_fmt_seconds(lo)}'" + (f" --to '{_fmt_seconds(hi)}'" if hi < t1 else "")
-    text = (f"most blocks ({len(late)} of {len(visible)}) fall in {_fmt_seconds(lo)} to "
-            f"{_fmt_seconds(min(hi, t1))}: use {cmd} to see them apart")
+    cmd = f"--from '{fmt_when(lo)}'" + (f" --to '{fmt_when(hi)}'" if hi < t1 else "")
+    text = (f"most blocks ({len(late)} of {len(visible)}) fall in {fmt_when(lo)} to "
+            f"{fmt_when(min(hi, t1))}: use {cmd} to see them apart")
     return (lo, min(hi, t1)), text
 
 

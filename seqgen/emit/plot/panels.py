@@ -11,9 +11,11 @@ import textwrap
 
 import numpy as np
 
+from ...textfmt import fmt_when
+
 from .layout import (
     AXIS_COLOURS, AXIS_STYLES, CLOUD_PANEL_IN, CLOUD_TEXT_ROW_PT, G_N, NOTE_MARKER_PT, TICK_PT, _blank,
-    _fmt_seconds, _label_x, _lane_label, _place,
+    _label_x, _lane_label, _place,
 )
 
 
@@ -137,7 +139,7 @@ def _draw_clouds(ax, clouds, t0, t1, width_in):
             lo = min(lo, mid - half)
         lo = min(lo, centre - edge * 1e3)
         hi = max(hi, centre + edge * 1e3)
-        texts.append((c["t"], c["t"], f"{c['name']}: time of flight {_fmt_seconds(cl['tof'])}, centre "
+        texts.append((c["t"], c["t"], f"{c['name']}: time of flight {fmt_when(cl['tof'])}, centre "
                       f"{cl['drop'] * 1e3:.3g} mm below release, {cl['size_kind']} {cl['size'] * 1e6:.3g} um"))
     # the texts go in a band of their own above everything drawn (trajectory, markers, state labels), in rows
     # placed so that they overlap neither each other nor the image markers
@@ -210,7 +212,7 @@ def _style_panel(ax, colour):
 def _note_lines(notes) -> list[str]:
     lines = []
     for k, r in enumerate(notes):
-        text = f"{k + 1}  t={_fmt_seconds(r['time_s'])} [{r.get('block', '')}] {r['kind']}: " + "; ".join(r.get("items", ()))
+        text = f"{k + 1}  t={fmt_when(r['time_s'])} [{r.get('block', '')}] {r['kind']}: " + "; ".join(r.get("items", ()))
         wrapped = textwrap.wrap(text, width=150, subsequent_indent="     ")
         lines.extend(wrapped or [text])
     return lines

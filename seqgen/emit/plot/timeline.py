@@ -4,10 +4,11 @@ from __future__ import annotations
 
 import math
 
+from ...textfmt import fmt_when
 from .layout import (
     CLOUD_PANEL_IN, DEVICE_COLOURS, FIG_WIDTH_IN, HEADER_IN, LABEL_PT, LANE_IN, NOTE_PT, _Row, _blank,
     _blocks_layout, _draw_blocks, _draw_findings, _draw_unwritten, _drop_unwritten, _finding_items,
-    _finding_lines, _findings_layout, _fmt_seconds, _lanes_by_device, _left_margin, _legend, _make_figure,
+    _finding_lines, _findings_layout, _lanes_by_device, _left_margin, _legend, _make_figure,
     _shade_blocks, _style_time_axis, _unwritten_lines, _window, dense_hint, select_outputs, written_outputs,
 )
 from .lanes import _columns, _draw_header, _draw_lane, latency_note
@@ -68,7 +69,7 @@ def timeline_figure(shot, compiled, findings=(), *, t_from=None, t_to=None, chan
     if phys["notes"]:
         rows.append(_Row("notes", 0.2 * nlay[2] + 0.08))
     s = summary(findings)
-    ttl = title or (f"{shot.file}  ·  rig {shot.rig.name}  ·  duration {_fmt_seconds(shot.duration_s)}  ·  "
+    ttl = title or (f"{shot.file}  ·  rig {shot.rig.name}  ·  duration {fmt_when(shot.duration_s)}  ·  "
                     f"{s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s)")
     fig, axes, width_in = _make_figure(rows, left, ttl, _note_lines(phys["notes"]), (t0, t1), subtitle)
     dev_colour = {d: DEVICE_COLOURS[i % len(DEVICE_COLOURS)] for i, d in enumerate(shot.rig.devices)}
