@@ -6,6 +6,7 @@ import textwrap
 
 import numpy as np
 
+from ...compile import compare
 from ...textfmt import fmt_when
 from .layout import (
     DEVICE_COLOURS, DIFF_COLOUR, FIG_WIDTH_IN, HEADER_IN, LANE_IN, OLD_COLOUR, PlotError, _Row, _blank,
@@ -19,27 +20,12 @@ from .lanes import (
 )
 
 
-def _series_full(table, j, out):
-    times = np.asarray(table.ticks, dtype=np.float64) * table.tick_s
-    vals = np.asarray(table.values[:, j], dtype=float)
-    return times, vals
-
-
-def _eval(times, vals, at, model):
-    if not len(times):
-        return np.full(len(at), np.nan)
-    if model == "linear" and len(times) > 1:
-        return np.interp(at, times, vals)
-    idx = np.clip(np.searchsorted(times, at, side="right") - 1, 0, len(times) - 1)
-    return vals[idx]
-
-
 def diff_windows(old_shot, old_compiled, new_shot, new_compiled) -> dict:
     """{output: [(t0, t1), ...]} where the two channel tables make an output take different values.
 
-    Both tables are evaluated (held, or linear for `output_model: linear`) on the union of their change
-    times; two values differ when they are more than half a DAC code apart (any change for outputs without
-    bits). An output present in only one version differs over the whole of that version.
+    The comparison is `compile.compare`, the same as `seqgen diff`'s: both tables evaluated (held, or linear
+    for `output_model: linear`) on the union of their rows; one DAC code or more apart is a difference (half
+    a level on a digital line). An output present in only one version differs over the whole of that version.
     """
     oc, nc = _columns(old_compiled), _columns(new_compiled)
     end = max(old_compiled.duration_s, new_compiled.duration_s)
@@ -51,21 +37,18 @@ def diff_windows(old_shot, old_compiled, new_shot, new_compiled) -> dict:
             continue
         o_new = new_shot.rig.outputs[name]
         o_old = old_shot.rig.outputs[name]
-        to, vo = _series_full(*oc[name], o_old)
-        tn, vn = _series_full(*nc[name], o_new)
+        (ta, ja), (tb, jb) = oc[name], nc[name]
         mo = old_shot.rig.devices[o_old.device].output_model
         mn = new_shot.rig.devices[o_new.device].output_model
-        u = np.union1d(to, tn)
-        a, b = _eval(to, vo, u, mo), _eval(tn, vn, u, mn)
-        tol = 0.5 * min(x for x in (o_old.lsb, o_new.lsb)) if (o_old.lsb and o_new.lsb) else \
-            1e-9 * max(abs(o_new.hi - o_new.lo), 1e-300)
-        if o_new.kind == "digital":
-            tol = 0.5
-        bad = np.abs(a - b) > tol
+        grid = compare.TableGrid(ta, tb, mo == "linear", mn == "linear")
+        tol = compare.tolerance("digital" in (o_old.kind, o_new.kind), (o_old.lsb, o_new.lsb),
+                                (o_old.hi - o_old.lo, o_new.hi - o_new.lo))
+        _, _, bad = compare.differing(grid, ta.values[:, ja], tb.values[:, jb], tol)
         if "linear" in (mo, mn):  # an interval between two change times differs if either end does
             bad = bad | np.r_[bad[1:], False]
         if not np.any(bad):
             continue
+        u = grid.times
         edges = np.r_[u, end if end > u[-1] else u[-1]]
         idx = np.flatnonzero(bad)
         runs = np.split(idx, np.flatnonzero(np.diff(idx) > 1) + 1)
