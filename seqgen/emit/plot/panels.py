@@ -11,7 +11,7 @@ import textwrap
 
 import numpy as np
 
-from ...textfmt import fmt_when
+from ...textfmt import fmt_length, fmt_when
 
 from .layout import (
     AXIS_COLOURS, AXIS_STYLES, CLOUD_PANEL_IN, CLOUD_TEXT_ROW_PT, G_N, NOTE_MARKER_PT, TICK_PT, _blank,
@@ -140,7 +140,8 @@ def _draw_clouds(ax, clouds, t0, t1, width_in):
         lo = min(lo, centre - edge * 1e3)
         hi = max(hi, centre + edge * 1e3)
         texts.append((c["t"], c["t"], f"{c['name']}: time of flight {fmt_when(cl['tof'])}, centre "
-                      f"{cl['drop'] * 1e3:.3g} mm below release, {cl['size_kind']} {cl['size'] * 1e6:.3g} um"))
+                      f"{fmt_length(cl['drop'], 3, unit='mm')} below release, {cl['size_kind']} "
+                      f"{fmt_length(cl['size'], 3, unit='um')}"))
     # the texts go in a band of their own above everything drawn (trajectory, markers, state labels), in rows
     # placed so that they overlap neither each other nor the image markers
     placed, nrows = _place(texts, t0, t1, width_in, 6.5, max_rows=3, marker_pt=6.0, gap_pt=4.0, inside=False)
