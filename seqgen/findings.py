@@ -9,6 +9,8 @@ import json
 from dataclasses import dataclass, field, replace
 from typing import Iterable
 
+from .textfmt import fmt_when
+
 SEVERITIES = ("error", "warning", "note")
 _RANK = {name: i for i, name in enumerate(SEVERITIES)}
 
@@ -105,7 +107,7 @@ def summary(findings: Iterable[Finding]) -> dict:
 
 
 def format_text(f: Finding) -> str:
-    when = f" t={_fmt_time(f.time_s)}" if f.time_s is not None else ""
+    when = f" t={fmt_when(f.time_s)}" if f.time_s is not None else ""
     blk = f" [{f.block}]" if f.block else ""
     acc = f" (accepted: {f.accept_reason})" if f.accepted else ""
     text = f"{f.where}: {f.severity}: {f.code}:{blk}{when} {f.message}{acc}"
@@ -114,15 +116,7 @@ def format_text(f: Finding) -> str:
     return text
 
 
-def _fmt_time(t: float) -> str:
-    a = abs(t)
-    if a == 0:
-        return "0 s"
-    if a < 1e-3:
-        return f"{t * 1e6:.4g} us"
-    if a < 1:
-        return f"{t * 1e3:.6g} ms"
-    return f"{t:.6g} s"
+_fmt_time = fmt_when  # the old name, still imported by compile.tables
 
 
 def to_json(findings: Iterable[Finding]) -> str:

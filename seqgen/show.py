@@ -6,13 +6,14 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from .resolve.units import Qty, display_unit, format_qty, format_value
+from .resolve.units import Qty, display_unit, format_qty
+from .textfmt import fmt_si
 
 
 def _fmt(v, unit):
     if v is None:
         return "-"
-    return format_value(v, unit) if unit else f"{v:.6g}"
+    return fmt_si(v, unit) if unit else f"{v:.6g}"
 
 
 def timeline_rows(shot, compiled=None) -> list[dict]:
@@ -28,7 +29,7 @@ def timeline_rows(shot, compiled=None) -> list[dict]:
             values = f"{_fmt(s.v0, unit)} -> {_fmt(s.v1, unit)} ({s.shape})"
         else:
             values = _fmt(s.v1, unit)
-        out.append({"block": s.block, "start": format_value(s.t0, "s"), "end": format_value(s.t1, "s"),
+        out.append({"block": s.block, "start": fmt_si(s.t0, "s"), "end": fmt_si(s.t1, "s"),
                     "output": s.output, "action": s.action, "values": values,
                     "rows": rows_used.get((s.block, s.output, s.t0), 1 if s.kind == "set" else "-"),
                     "start_s": s.t0, "end_s": s.t1})

@@ -477,3 +477,54 @@ def test_broken_new_version_is_a_finding_not_a_traceback(tmp_path, capsys):
 
 def test_schema_is_valid_draft_2020_12():
     jsonschema.Draft202012Validator.check_schema(SCHEMA)  # the published 2020-12 meta-schema, via jsonschema
+
+
+# --- one DAC code --------------------------------------------------------------------------------------------------
+
+# probe_power in the demo rig file: range 0..5 V, 16 bits, calibration 0.05 V/uW. Codes span the range inclusive
+# (code 0 = lo, code 2^bits - 1 = hi, the convention of compile.sampling.quantize_values), so one code is
+# 5 V / 65535 = 1.5259e-3 uW of probe power.
+PROBE_LSB_V = 5.0 / (2 ** 16 - 1)
+PROBE_V_PER_UW = 0.05
+
+
+def test_one_dac_code_is_reported_by_diff_and_marked_by_the_plot(tmp_path, monkeypatch, capsys):
+    """40 uW is code 26214 exactly (2 V); one code more is 40 uW + 1 LSB / (0.05 V/uW). `seqgen diff` and the plot's
+    diff windows share one comparison, so both see this change."""
+    sides = {}
+    for side in ("old", "new"):
+        folder = tmp_path / side
+        folder.mkdir()
+        shutil.copytree(ROOT / "sequences" / "common", folder / "common")
+        shutil.copytree(ROOT / "sequences" / "rigs", folder / "rigs")
+        shutil.copy(ROOT / "sequences" / "na23_thermometry.yaml", folder / "thermo.yaml")
+        sides[side] = f"{side}/thermo.yaml"
+    one_code_uw = PROBE_LSB_V / PROBE_V_PER_UW
+    _apply(tmp_path / "new", {"thermo.yaml": [["probe_power: 40 uW", f"probe_power: {40 + one_code_uw:.12g} uW"]]})
+    monkeypatch.chdir(tmp_path)  # the rig file must sit under the project root (the current folder)
+    # the image (YAML): load_dipole at 1 ms + 200 ms hold, evaporation 1.5 s, release 10 ms later, image at
+    # release + tof (8 ms), after the shutter's 100 us hold: 1719.1 ms, for its 30 us duration
+    start, end = 1.7191, 1.7191 + 30e-6
+
+    assert main(["diff", sides["old"], sides["new"]]) == 1
+    text = capsys.readouterr().out
+    (line,) = [ln for ln in text.splitlines() if "output probe_power" in ln]
+    assert "differs in 1 window(s) from 1719.1 ms to 1719.13 ms" in line
+    assert "76.2951 uV" in line  # 5 V / 65535, one code
+    assert sum("differs in" in ln for ln in text.splitlines()) == 1  # no other output changed
+
+    assert main(["diff", sides["old"], sides["new"], "--json"]) == 1
+    out = json.loads(capsys.readouterr().out)
+    jsonschema.validate(out, SCHEMA)
+    (change,) = [c for c in out["changes"] if c["kind"] == "output-differs"]
+    assert change["subject"] == "probe_power"
+    assert change["data"]["max_deviation"] == pytest.approx(PROBE_LSB_V, rel=1e-9)
+    assert change["data"]["max_deviation_physical"] == pytest.approx(one_code_uw * 1e-6, rel=1e-6)
+    (window,) = change["data"]["windows"]
+    assert (window["start_s"], window["end_s"]) == (pytest.approx(start, abs=1e-9), pytest.approx(end, abs=1e-9))
+
+    assert main(["plot", sides["old"], sides["new"], "-o", "diff.svg", "--no-physics", "--json"]) == 0
+    drawn = json.loads(capsys.readouterr().out)
+    assert list(drawn["differs"]) == ["probe_power"]
+    ((w0, w1),) = drawn["differs"]["probe_power"]
+    assert (w0, w1) == (pytest.approx(start, abs=1e-9), pytest.approx(end, abs=1e-9))

@@ -4,26 +4,13 @@ from __future__ import annotations
 
 import math
 
-from ..resolve.units import format_value
+from ..textfmt import fmt_si, fmt_time_fixed
 from .model import REL_TOL, TIME_TOL_S
-
-
-def _trim(text: str) -> str:
-    if "." in text:
-        text = text.rstrip("0").rstrip(".")
-    return text or "0"
 
 
 def t(value: float | None) -> str:
     """A time: 'us' below 1 ms, else 'ms' (us resolution kept: 2723.06 ms)."""
-    if value is None:
-        return "-"
-    a = abs(value)
-    if a < 0.5e-12:
-        return "0 ms"
-    if a < 1e-3:
-        return _trim(f"{value * 1e6:.4f}") + " us"
-    return _trim(f"{value * 1e3:.4f}") + " ms"
+    return "-" if value is None else fmt_time_fixed(value)
 
 
 def dt(value: float) -> str:
@@ -37,7 +24,7 @@ def q(value, unit: str = "") -> str:
     if isinstance(value, bool):
         return str(value).lower()
     if isinstance(value, (int, float)):
-        return format_value(float(value), unit) if unit else f"{float(value):.6g}"
+        return fmt_si(float(value), unit) if unit else f"{float(value):.6g}"
     if isinstance(value, (tuple, list)):
         return "(" + ", ".join(q(v, unit) for v in value) + ")"
     return str(value)

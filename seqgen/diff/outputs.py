@@ -1,13 +1,9 @@
 """Output level: where the compiled channel tables of two versions differ.
 
-Both tables of a device are evaluated on the union of their ticks (hold model:
-forward fill with `searchsorted`; a linear-output device interpolates), all in
-numpy. A column differs where the two values are more than the channel's
-resolution apart (`Output.lsb`, one output code: a one-code difference is
-sampling, not a change; 0.5 on a digital line; a relative 1e-9 of the range
-for an unquantized output or a build folder, whose manifest has no resolution). Windows of
-consecutive differing rows are reported with their maximum deviation, in
-output units and, through each version's calibration, in physical units.
+The comparison itself (grid and tolerance) is `compile.compare`, shared with the plot's diff windows: both
+tables of a device on the union of their ticks, and a column differs where the two values are one output
+code (`Output.lsb`) or more apart. Windows of consecutive differing rows are reported with their maximum
+deviation, in output units and, through each version's calibration, in physical units.
 """
 
 from __future__ import annotations
@@ -15,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..calibration import to_physical
+from ..compile import compare
 from . import fmt
 from .model import Change, Column, Version
 
@@ -22,57 +19,21 @@ MAX_WINDOWS = 200  # listed per output in the JSON report (all are counted)
 
 
 def tolerance(ca: Column, cb: Column, va: np.ndarray, vb: np.ndarray) -> float:
-    """Differences above this count: more than one output code (Output.lsb) of the coarser version, more than
-    half a level on a digital line, and a relative 1e-9 of the range on an unquantized output."""
-    if "digital" in (ca.kind, cb.kind):
-        return 0.5
-    lsbs = [c.output.lsb for c in (ca, cb) if c.output is not None]
-    lsb = max(lsbs) if lsbs else 0.0
-    if lsb > 0:
-        return lsb * (1 + 1e-6)
-    spans = [c.output.hi - c.output.lo for c in (ca, cb) if c.output is not None]
-    span = max(spans) if spans else float(max(np.ptp(va) if len(va) else 0.0, np.ptp(vb) if len(vb) else 0.0, 1.0))
-    return 1e-9 * span
+    """The comparison's tolerance (compile.compare.tolerance: one output code or more is a difference) for
+    two columns; a build folder's column has no Output, so its range comes from the values."""
+    outs = [c.output for c in (ca, cb) if c.output is not None]
+    spans = [o.hi - o.lo for o in outs] or [float(max(np.ptp(va) if len(va) else 0.0,
+                                                       np.ptp(vb) if len(vb) else 0.0, 1.0))]
+    return compare.tolerance("digital" in (ca.kind, cb.kind), [o.lsb for o in outs], spans)
 
 
-def _union(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """Sorted union of two sorted arrays (concatenate, sort, drop repeats)."""
-    c = np.concatenate([x, y])
-    c.sort(kind="stable")
-    if len(c) > 1:
-        c = c[np.r_[True, c[1:] != c[:-1]]]
-    return c
-
-
-class DeviceGrid:
-    """Both tables of one device on the union of their ticks (or times, when the timebases differ)."""
-
-    def __init__(self, a, b, lin_a: bool, lin_b: bool):
-        if a.tick_s == b.tick_s:
-            xa, xb, scale = a.ticks, b.ticks, a.tick_s
-        else:  # different timebases (a rig change): compare on times
-            xa, xb, scale = a.ticks * a.tick_s, b.ticks * b.tick_s, 1.0
-        self.xa, self.xb, self.lin_a, self.lin_b = xa, xb, lin_a, lin_b
-        self.u = _union(xa, xb)
-        self.times = self.u * scale
-        # hold model: the row in force at each union point (the last row at or before it)
-        self.ia = np.clip(np.searchsorted(xa, self.u, side="right") - 1, 0, max(len(xa) - 1, 0))
-        self.ib = np.clip(np.searchsorted(xb, self.u, side="right") - 1, 0, max(len(xb) - 1, 0))
-
-    def old(self, col: np.ndarray) -> np.ndarray:
-        return np.interp(self.u, self.xa, col) if self.lin_a and len(col) > 1 else col[self.ia]
-
-    def new(self, col: np.ndarray) -> np.ndarray:
-        return np.interp(self.u, self.xb, col) if self.lin_b and len(col) > 1 else col[self.ib]
-
-
-def compare_column(grid: DeviceGrid, ya: np.ndarray, yb: np.ndarray, tol: float):
-    """Windows where a column differs: (starts, ends, peak, arg max, old and new values on the grid, |dy|) or None."""
-    ua, ub = grid.old(ya), grid.new(yb)
-    d = np.abs(ub - ua)
-    bad = d > tol
+def compare_column(grid: compare.TableGrid, ya: np.ndarray, yb: np.ndarray, tol: float):
+    """Windows where a column differs: (starts, ends, peak, arg max, old and new values on the grid, differs)
+    or None."""
+    ua, ub, bad = compare.differing(grid, ya, yb, tol)
     if not bad.any():
         return None
+    d = np.abs(ub - ua)
     edges = np.diff(np.r_[0, bad.astype(np.int8), 0])
     starts = np.nonzero(edges == 1)[0]
     ends = np.nonzero(edges == -1)[0]  # exclusive
@@ -124,7 +85,7 @@ def output_changes(old: Version, new: Version) -> list:
         common = sorted(set(cols_a) & set(cols_b))
         if not common:
             continue
-        grid = DeviceGrid(a, b, lin_a, lin_b)
+        grid = compare.TableGrid(a, b, lin_a, lin_b)
         for c in common:
             ch = _column_change(c, dev, a, b, cols_a[c], cols_b[c], old.columns.get(c), new.columns.get(c), grid)
             if ch is not None:
@@ -132,7 +93,7 @@ def output_changes(old: Version, new: Version) -> list:
     return out
 
 
-def _column_change(name, dev, a, b, ja, jb, ca, cb, grid: DeviceGrid):
+def _column_change(name, dev, a, b, ja, jb, ca, cb, grid: compare.TableGrid):
     ya, yb = a.values[:, ja], b.values[:, jb]
     ca = ca or Column(name, dev, a.kinds[ja], a.units[ja])
     cb = cb or Column(name, dev, b.kinds[jb], b.units[jb])

@@ -8,7 +8,7 @@ when that shot stays the same, so it is a difference of its own (level
 
 from __future__ import annotations
 
-from ..resolve.units import format_value
+from ..textfmt import fmt_si
 from .model import REL_TOL, Change
 
 
@@ -58,8 +58,8 @@ def scan_changes(old, new, old_invalid: bool = False, new_invalid: bool = False)
     for name in sorted(oa.keys() & na.keys()):
         a, b = oa[name], na[name]
         if not _same_values(a, b) or a.kind != b.kind or a.group != b.group:
-            lo = lambda ax: format_value(min(q.value for q in ax.values), ax.unit)  # noqa: E731
-            hi = lambda ax: format_value(max(q.value for q in ax.values), ax.unit)  # noqa: E731
+            lo = lambda ax: fmt_si(min(q.value for q in ax.values), ax.unit)  # noqa: E731
+            hi = lambda ax: fmt_si(max(q.value for q in ax.values), ax.unit)  # noqa: E731
             what = [] if _same_values(a, b) else [f"{len(a.values)} -> {len(b.values)} values, "
                                                    f"{lo(a)} .. {hi(a)} -> {lo(b)} .. {hi(b)}"]
             if a.kind != b.kind:

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..resolve.units import format_value
+from ..textfmt import fmt_si
 from . import scan
 from .inputs import DiffInputError, first_shot_folder
 from .model import LEVELS, Change, DiffReport, Version
@@ -32,7 +32,7 @@ def refuse_mixed(old: Version, new: Version) -> None:
 
 def shot_label(names, rec) -> str:
     """'tof=5 ms, kick_time=2 ms': a shot named by its param values (written order of the scanned params)."""
-    return ", ".join(f"{n}={format_value(rec['params'][n][0], rec['params'][n][1])}" for n in names)
+    return ", ".join(f"{n}={fmt_si(rec['params'][n][0], rec['params'][n][1])}" for n in names)
 
 
 def _key(rec) -> tuple:

@@ -20,7 +20,8 @@ import html
 from pathlib import Path
 
 from .. import __version__
-from ..findings import SEVERITIES, _fmt_time, summary
+from ..findings import SEVERITIES, summary
+from ..textfmt import fmt_when
 from .plot import OutputExists, write_atomic  # noqa: F401  (OutputExists re-exported for the CLI)
 
 CONTEXT_LINES = 1  # source lines shown above and below the offending one
@@ -130,7 +131,7 @@ def _code_doc(code: str) -> str:
 def _finding_row(k: int, f, sources: _Sources, prefix: str = "finding") -> str:
     classes = f"finding sev-{_e(f.severity)}" + (" accepted" if f.accepted else "")
     where = _e(f.where)
-    time = _e(_fmt_time(f.time_s)) if f.time_s is not None else "&ndash;"
+    time = _e(fmt_when(f.time_s)) if f.time_s is not None else "&ndash;"
     block = _e(f.block) if f.block else "&ndash;"
     parts = [f'<p class="msg"><span class="code">{_e(f.code)}</span>: {_e(f.message)}</p>',
              sources.snippet(f.file, f.line)]
@@ -230,7 +231,7 @@ def _codes_html(scan, sources: _Sources) -> list[str]:
         values = ", ".join(f"{name} = {_qty(q)}" for name, q in zip(scan.plan.names, r.values))
         first = [f'<p class="msg">shot {r.index} ({_e(values)}): <span class="where">{_e(f.where)}</span>'
                  + (f" [{_e(f.block)}]" if f.block else "")
-                 + (f" t={_e(_fmt_time(f.time_s))}" if f.time_s is not None else "") + f" {_e(f.message)}</p>",
+                 + (f" t={_e(fmt_when(f.time_s))}" if f.time_s is not None else "") + f" {_e(f.message)}</p>",
                  sources.snippet(f.file, f.line)]
         if f.hint:
             first.append(f'<p class="fix">{_e(f.hint)}</p>')
@@ -344,7 +345,7 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
     meta = [f"sequence <code>{_e(file)}</code>"]
     if shot is not None:
         meta.append(f"rig <code>{_e(shot.rig.name)}</code> (<code>{_e(shot.rig.file)}</code>)")
-        meta.append(f"duration {_e(_fmt_time(shot.duration_s))}")
+        meta.append(f"duration {_e(fmt_when(shot.duration_s))}")
         meta.append(f"{len(shot.blocks)} blocks, {len(shot.segments)} writes")
     blocking = s["error"] > 0
     verdict = ("error findings remain: a build is refused until they are fixed or accepted" if blocking
@@ -404,7 +405,7 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
         out.append('<table><thead><tr><th>time</th><th>block</th><th>action</th><th>predictions</th></tr></thead><tbody>')
         for r in prows:
             items = "".join(f"<li>{_e(i)}</li>" for i in r.get("items", ()))
-            t = _e(_fmt_time(r["time_s"])) if r.get("time_s") is not None else "&ndash;"
+            t = _e(fmt_when(r["time_s"])) if r.get("time_s") is not None else "&ndash;"
             out.append(f'<tr class="physics-note"><td class="time">{t}</td><td>{_e(r.get("block", ""))}</td>'
                        f'<td class="code">{_e(r.get("kind", ""))}</td><td><ul class="notes">{items}</ul></td></tr>')
         out.append("</tbody></table>")
@@ -458,7 +459,7 @@ def report_detail_svg(res) -> tuple | None:
     svg, _ = report_svg(res, "detail-", t_from=win[0], t_to=win[1], physics=False)
     if svg is None:
         return None
-    return (f"Detail from {_fmt_time(win[0])} to {_fmt_time(win[1])}, where short blocks crowd the full view "
+    return (f"Detail from {fmt_when(win[0])} to {fmt_when(win[1])}, where short blocks crowd the full view "
             "(physics panels are in the full view above).", svg)
 
 
