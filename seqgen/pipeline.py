@@ -26,6 +26,10 @@ from .model import Compiled, Shot
 from .resolve.sequence import resolve
 from .resolve.sources import Sources, load_sources
 
+# the stages, for a caller that strings them itself (e.g. to choose the rules after seeing the shot)
+__all__ = ["Result", "preflight", "preflight_resolved", "load_sources", "resolve", "run_timeline_checks",
+           "compile_shot", "run_table_checks", "clear_shared_caches"]
+
 
 @dataclass
 class Result:
