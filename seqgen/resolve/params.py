@@ -72,7 +72,7 @@ def _sort_overrides(overrides: dict, entries: dict, main: Document, findings: li
             given[name] = v
         else:
             _, d, path = entries[name]
-            findings.append(make(BAD_EXPRESSION, f"override of param '{name}' is {type(v).__name__} {v!r}",
+            findings.append(make(BAD_EXPRESSION, f"override of param '{name}' is {type(v).__name__} {repr(v)[:60]}",
                                  d.pos(path), hint="give a text with units ('12 ms') or a number in SI units"))
             ok = False
     return (fixed, given) if ok else (None, None)
