@@ -1,7 +1,16 @@
-"""The pipeline in one place: load -> validate -> resolve -> check -> compile.
+"""The pipeline in one place: load + validate (sources) -> resolve -> check -> compile.
 
 Each stage is its own module; this file only strings them together for the
-command line and for notebooks.
+command line, scans and notebooks:
+
+1. `load_sources(path)`: the sequence, the files it uses and its rig, read and
+   validated (a file that cannot be read at all raises `LoadError`);
+2. `resolve(src, overrides)`: a `Shot` (or None) and its findings;
+3. `run_timeline_checks(shot, rules)`: the timeline and physics rules;
+4. `compile_shot(shot)`, then `run_table_checks(shot, compiled, rules)`.
+
+`rules` is a tuple of rules (default: all of `seqgen.check.RULES`); a caller may
+pass fewer, e.g. without the slow physics rules.
 """
 
 from __future__ import annotations
@@ -9,12 +18,17 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .check import apply_accepts, run_table_checks, run_timeline_checks
+from .check import RULES, Rule, apply_accepts, run_table_checks, run_timeline_checks
 from .compile.tables import compile_shot
 from .findings import Finding, has_errors, sort_findings
 from .load.yamlsrc import LoadError
 from .model import Compiled, Shot
-from .resolve.sequence import Sources, load_sources, resolve
+from .resolve.sequence import resolve
+from .resolve.sources import Sources, load_sources
+
+# the stages, for a caller that strings them itself (e.g. to choose the rules after seeing the shot)
+__all__ = ["Result", "preflight", "preflight_resolved", "load_sources", "resolve", "run_timeline_checks",
+           "compile_shot", "run_table_checks", "clear_shared_caches"]
 
 
 @dataclass
@@ -31,18 +45,21 @@ class Result:
 
 
 def preflight(path: str | Path, *, compile_tables: bool = True, overrides: dict | None = None,
-              sources: Sources | None = None) -> Result:
-    """Run every stage that can run; findings collect along the way."""
+              sources: Sources | None = None, rules: tuple[Rule, ...] = RULES) -> Result:
+    """Run every stage that can run; findings collect along the way.
+
+    `overrides`: param name -> value replacing the param's (a text with units such as '3 mW', a number in SI
+    units, or a Qty); `sources`: sources already loaded (then `path` is not read); `rules`: the checks to run."""
     try:
         src = sources or load_sources(path)
     except LoadError as exc:
         return Result(findings=[exc.finding])
     shot, rf = resolve(src, overrides)
-    return preflight_resolved(src, shot, rf, compile_tables=compile_tables)
+    return preflight_resolved(src, shot, rf, compile_tables=compile_tables, rules=rules)
 
 
 def preflight_resolved(src: Sources, shot: Shot | None, resolve_findings: list, *,
-                       compile_tables: bool = True) -> Result:
+                       compile_tables: bool = True, rules: tuple[Rule, ...] = RULES) -> Result:
     """The stages after resolve, for a shot already resolved from `src` (a scan resolves each shot once)."""
     res = Result(sources=src)
     findings: list[Finding] = list(src.findings) + list(resolve_findings)
@@ -50,11 +67,11 @@ def preflight_resolved(src: Sources, shot: Shot | None, resolve_findings: list, 
         res.findings = sort_findings(findings)
         return res
     res.shot = shot
-    findings += run_timeline_checks(shot)
+    findings += run_timeline_checks(shot, rules)
     if compile_tables:
         compiled, cf = compile_shot(shot)
         findings += cf
-        findings += run_table_checks(shot, compiled)
+        findings += run_table_checks(shot, compiled, rules)
         res.compiled = compiled
     res.findings = sort_findings(apply_accepts(findings, shot.accepts))
     return res

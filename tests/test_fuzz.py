@@ -4,9 +4,10 @@ Oracle (common practice, no source): a fuzzer's outcome is acceptable when the
 program either succeeds or reports the problem through its documented channel.
 Here that is: `load_sources` may raise only `LoadError` (carrying a finding); every
 later stage returns findings; a check or the compiler raising anything is a crash.
-The rules are called straight from `seqgen.check.RULES`, without the safety net of
-`seqgen.check._run` (which turns a crashing check into `schema.check-crashed`), so
-that a crash fails the test instead of hiding in a finding.
+The stages are the pipeline's own (`load_sources`, `resolve`, then
+`pipeline.preflight_resolved` with a rules tuple); a check that crashes shows as
+`schema.check-crashed`, which the oracle counts as a crash, so it fails the test
+instead of hiding in a finding.
 
 Two generators:
 - structured random sequences, built from the vocabulary of
@@ -41,15 +42,13 @@ import yaml
 from hypothesis import HealthCheck, Phase, assume, given, settings
 from hypothesis import strategies as st
 
-from seqgen.check import apply_accepts
-from seqgen.compile.tables import compile_shot
 from seqgen.emit.build import write_build
 from seqgen.emit.sarif import to_sarif
-from seqgen.findings import SEVERITIES, has_errors, sort_findings
+from seqgen.findings import SEVERITIES, has_errors
 from seqgen.load.yamlsrc import LoadError, load_file
 from seqgen.check import RULES
 from seqgen.codes import ALL as CODES
-from seqgen.resolve.sequence import load_sources, resolve
+from seqgen.pipeline import load_sources, preflight_resolved, resolve
 
 from .conftest import ROOT, SEQUENCES
 
@@ -100,6 +99,9 @@ def _heavy(shot) -> bool:
     return any(a.kind == "barrier" for a in shot.phys)
 
 
+LIGHT_RULES = tuple(r for r in RULES if r.stage != "physics")  # for heavy samples: no physics stage
+
+
 def run_pipeline(text: str | None, path: Path, display: str, *, physics: bool = True, build: bool = False) -> str:
     """Every stage on one input; returns the outcome; raises (fails the test) on a crash."""
     STATS["examples"] += 1
@@ -109,9 +111,10 @@ def run_pipeline(text: str | None, path: Path, display: str, *, physics: bool = 
         _finding_ok(exc.finding)
         STATS["load_error"] += 1
         return "load-error"
-    findings = list(src.findings)
     shot, rf = resolve(src)
-    findings += rf
+    rules = RULES if physics or shot is None or not _heavy(shot) else LIGHT_RULES
+    res = preflight_resolved(src, shot, rf, rules=rules)
+    findings = res.findings
     for f in findings:
         _finding_ok(f)
     if shot is None:
@@ -119,24 +122,13 @@ def run_pipeline(text: str | None, path: Path, display: str, *, physics: bool = 
         STATS["findings_only"] += 1
         return "findings"
     STATS["resolved"] += 1
-    run_physics = physics or not _heavy(shot)
-    for r in RULES:
-        if r.stage == "timeline" or (r.stage == "physics" and run_physics):
-            findings += list(r(shot))
-    compiled, cf = compile_shot(shot)
-    findings += cf
-    for r in RULES:
-        if r.stage == "tables":
-            findings += list(r(shot, compiled))
+    compiled = res.compiled
     for t in compiled.tables:
         ticks = np.asarray(t.ticks)
         assert ticks.dtype == np.int64 and len(ticks) >= 1 and ticks[0] == 0
         assert np.all(np.diff(ticks) > 0)
         assert np.asarray(t.values).shape == (len(ticks), len(t.columns))
         assert np.all(np.isfinite(t.values))
-    findings = sort_findings(apply_accepts(findings, shot.accepts))
-    for f in findings:
-        _finding_ok(f)
     json.dumps(to_sarif(findings, sources=src.hashes), allow_nan=False)
     if build and not has_errors(findings):
         with tempfile.TemporaryDirectory() as tmp:

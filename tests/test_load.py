@@ -5,7 +5,7 @@ import resource
 import pytest
 
 from seqgen.load.yamlsrc import LoadError, load_file, load_text
-from seqgen.resolve.sequence import check_rig_document, is_rig_document, load_sources
+from seqgen.resolve.sources import check_rig_document, is_rig_document, load_sources
 
 from .conftest import SEQUENCES
 

@@ -20,7 +20,8 @@ from scipy import integrate, special
 from seqgen.check import physics_states as ps
 from seqgen.findings import Finding
 from seqgen.check import RULES
-from seqgen.resolve.sequence import load_sources, resolve
+from seqgen.resolve.sequence import resolve
+from seqgen.resolve.sources import load_sources
 
 from .conftest import SEQUENCES
 

@@ -35,7 +35,7 @@ from seqgen.cli import main
 from seqgen.load.yamlsrc import MAX_DEPTH, MAX_FILE_BYTES, LoadError, load_file, load_text
 from seqgen.pipeline import preflight
 from seqgen.resolve.expr import ExprError, evaluate
-from seqgen.resolve.sequence import load_sources, project_root
+from seqgen.resolve.sources import load_sources, project_root
 
 from .conftest import ROOT, SEQUENCES
 

@@ -74,7 +74,7 @@ def git_show(rev: str, path: str) -> str:
 def _sequence(path: str, text: str | None, label: str, kind: str) -> Version:
     from ..load.yamlsrc import LoadError
     from ..pipeline import Result, preflight
-    from ..resolve.sequence import load_sources
+    from ..resolve.sources import load_sources
 
     if text is None:
         try:

@@ -58,7 +58,7 @@ class Version:
     shot: object = None  # model.Shot
     compiled: object = None  # model.Compiled
     findings: list = field(default_factory=list)
-    sources: object = None  # resolve.sequence.Sources
+    sources: object = None  # resolve.sources.Sources
     manifest: dict | None = None
     tables: tuple = ()  # model.DeviceTable
     columns: dict = field(default_factory=dict)  # output name -> Column

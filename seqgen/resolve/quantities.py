@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import difflib
 import math
 
 from ..findings import Finding, make
@@ -108,6 +109,12 @@ def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positiv
     if nonnegative and q.value < 0:
         raise Bad(make(NEGATIVE_DURATION, f"{label} must not be negative, got {raw!r}", pos))
     return q.value
+
+
+def close_hint(name: str, options) -> str:
+    """'did you mean ...?' for the option closest to a misspelt name, else the known options ('' if none)."""
+    close = difflib.get_close_matches(name, list(options), n=1)
+    return f"did you mean '{close[0]}'?" if close else ("known: " + ", ".join(sorted(options)) if options else "")
 
 
 def _scale(expect: str) -> float:

@@ -52,7 +52,8 @@ from pathlib import Path
 from seqgen.check import run_table_checks, run_timeline_checks
 from seqgen.compile.tables import compile_shot
 from seqgen.load.yamlsrc import LoadError
-from seqgen.resolve.sequence import load_sources, resolve
+from seqgen.resolve.sequence import resolve
+from seqgen.resolve.sources import load_sources
 anchor = Path("sequences/bench_hostile.yaml")  # never written: rig paths resolve from its folder
 text = sys.stdin.read()
 if text == "DEMO":
