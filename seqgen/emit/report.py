@@ -191,7 +191,7 @@ def _plan_html(plan) -> list[str]:
     out.append("</tbody></table>")
     groups = {}
     for a in plan.axes:
-        key = "*" if plan.combine == "zip" else (a.group or a.name)
+        key = "*" if plan.combine == "lockstep" else (a.group or a.name)
         groups.setdefault(key, []).append(a.name)
     names = [" + ".join(groups[k]) for k in plan.nest]
     if len(plan.nest) == 1 and len(plan.axes) > 1:
@@ -213,7 +213,7 @@ def _plan_html(plan) -> list[str]:
 
 
 def _codes_html(scan, sources: _Sources) -> list[str]:
-    from ..batch import summarize
+    from ..scan.summary import summarize
 
     codes = summarize(scan)
     n = len(scan.shots)
@@ -306,7 +306,7 @@ def _scan_section(scan, choice, sources: _Sources) -> list[str]:
 
 def _scan_summary(scan) -> tuple[dict, str, bool]:
     """(counts over every shot, verdict, blocking) of a scan."""
-    from ..batch import totals
+    from ..scan.summary import totals
 
     if scan.plan is None:
         return summary(scan.findings), "the scan cannot be expanded into shots: fix the scan findings below", True
