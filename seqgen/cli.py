@@ -88,12 +88,13 @@ def cmd_check(args) -> int:
     report = getattr(args, "report", None)
     if report and Path(report).exists() and not args.force:
         return _cannot_run(f"{report} exists; use --force to replace it")
+    loaded = _load(args.file)
+    src, failed = loaded
     if getattr(args, "shot", None) is not None:  # one shot of a scan, preflighted like a file without scans
-        scan = _plan_scan(args)
-        if _is_rig_file(scan):
+        if _is_rig_file(src):
             return _cannot_run(f"--shot {args.shot}: {args.file} is a rig file, which has no shots (leave out --shot)")
         try:
-            res, choice, _ = _preflight_shot(args.file, args.shot, scan)
+            res, choice, _ = _preflight_shot(args.file, args.shot, loaded)
         except _ShotRefused as exc:
             return _cannot_run(exc)
         code = _report(res, args, choice=choice, caution=not report)
@@ -101,20 +102,20 @@ def cmd_check(args) -> int:
             wrote = _write_check_report(report, res, args, choice=choice)
             code = code if wrote == EXIT_OK else wrote
         return code
-    scan = _plan_scan(args)
-    if _is_rig_file(scan):  # a rig file: checked as a rig on its own
-        return _check_rig_file(scan, args, report)
-    if scan.is_scan:
+    if _is_rig_file(src):  # a rig file: checked as a rig on its own
+        return _check_rig_file(src, args, report)
+    scan = _plan_scan(args.file, src)
+    if scan is not None and scan.is_scan:
         code = _scan_run(scan, args, build=False, caution=not report)
         if report:  # the scan's plan, shots and per-code summary, then the base shot in detail
             from .show import shot_choice
 
-            base = preflight(args.file, sources=scan.sources)
+            base = preflight(args.file, sources=src)
             choice = shot_choice(scan.plan, None, base.shot) if scan.plan is not None else None
             wrote = _write_check_report(report, base, args, scan=scan, choice=choice)
             code = code if wrote == EXIT_OK else wrote
         return code
-    res = preflight(args.file, sources=scan.sources)
+    res = failed if failed is not None else preflight(args.file, sources=src)
     code = _report(res, args, caution=not report)
     if report:
         wrote = _write_check_report(report, res, args)
@@ -122,19 +123,19 @@ def cmd_check(args) -> int:
     return code
 
 
-def _is_rig_file(scan) -> bool:
+def _is_rig_file(src) -> bool:
     from .resolve.sequence import is_rig_document
 
-    return scan.sources is not None and is_rig_document(scan.sources.main)
+    return src is not None and is_rig_document(src.main)
 
 
-def _check_rig_file(scan, args, report) -> int:
+def _check_rig_file(src, args, report) -> int:
     """check of a rig file (seqgen_rig: 1): its schema and rig-builder findings, reported as a sequence's are."""
     from .findings import has_errors, sort_findings
     from .pipeline import Result
     from .resolve.sequence import check_rig_document
 
-    res = Result(findings=sort_findings(check_rig_document(scan.sources.main)), sources=scan.sources)
+    res = Result(findings=sort_findings(check_rig_document(src.main)), sources=src)
     _report(res, args, caution=not report)
     code = EXIT_FINDINGS if has_errors(res.findings) else EXIT_OK
     if report:
@@ -145,7 +146,7 @@ def _check_rig_file(scan, args, report) -> int:
 
 def _write_check_report(path, res, args, scan=None, choice=None) -> int:
     """check --report FILE: the self-contained HTML preflight report (seqgen/emit/report.py); `scan`: the run
-    scan (batch.Scan) whose plan, shots and per-code summary head it; `choice`: which shot `res` is."""
+    scan (seqgen.scan.plan.Scan) whose plan, shots and per-code summary head it; `choice`: which shot `res` is."""
     from .emit.report import OutputExists, write_report
 
     failed, _ = _writing(f"the report to {path}", lambda: write_report(path, res, args.file, force=args.force,
@@ -238,40 +239,60 @@ def cmd_plot(args) -> int:
     return EXIT_FINDINGS if errors else EXIT_OK
 
 
-def _plan_scan(args):
-    """The scan plan of a file that scans params (parsed and validated once); see seqgen/batch.py."""
-    from .batch import plan_scan
+def _load(file):
+    """(the file's loaded and validated sources, None), or (None, the Result that says why it does not load)."""
+    from .load.yamlsrc import LoadError
+    from .pipeline import Result
+    from .resolve.sequence import load_sources
 
-    return plan_scan(args.file)
+    try:
+        return load_sources(file), None
+    except LoadError as exc:
+        return None, Result(findings=[exc.finding])
+
+
+def _plan_scan(file, src):
+    """The scan of loaded, valid sources that scan a param (seqgen/scan/plan.py), else None: such a file goes
+    straight to the pipeline's preflight (a file with schema errors too, whose findings say why)."""
+    from .findings import has_errors
+    from .scan.plan import has_scans, plan_scan
+
+    if src is None or has_errors(src.findings) or not has_scans(src):
+        return None
+    return plan_scan(file, sources=src)
 
 
 class _ShotRefused(Exception):
     """--shot N cannot be honoured (the file scans no param, or has no shot N): one line, exit 2."""
 
 
-def _preflight_shot(file, n: int | None, scan=None):
-    """(Result, ShotChoice or None, Scan) of the shot that show / plot / check --shot look at.
+def _preflight_shot(file, n: int | None, loaded=None):
+    """(Result, ShotChoice or None, Scan or None) of the shot that show / plot / check --shot look at.
 
     With n None the base shot (each scanned param at its value:); else shot n of the file's scan, in run order
-    (the index of `seqgen check --json` and scan.json), resolved with that shot's values. The choice is None
-    for a file without scans. A file that does not load, validate or expand gets a Result without a shot and
-    with the findings that say why. Raises _ShotRefused for an n the file has no shot for."""
-    from .batch import plan_scan
+    (the index of `seqgen check --json` and scan.json), resolved with that shot's values. `loaded`: the file's
+    `_load` when done already. The choice is None (and so is the Scan) for a file without scans. A file that
+    does not load, validate or expand gets a Result without a shot and with the findings that say why. Raises
+    _ShotRefused for an n the file has no shot for."""
     from .findings import has_errors
     from .pipeline import Result, preflight
-    from .resolve.scan import has_scans
     from .show import shot_choice
 
-    scan = scan if scan is not None else plan_scan(file)
-    if n is None or (scan.plan is None and (scan.sources is None or has_errors(scan.sources.findings))):
-        res = preflight(file, sources=scan.sources)  # a file that does not load or validate: its findings
+    src, failed = loaded if loaded is not None else _load(file)
+    if failed is not None:  # a file that does not load: its finding
+        return failed, None, None
+    scan = _plan_scan(file, src)
+    if scan is None:  # no scan (or sources with errors): the pipeline's preflight
+        if n is not None and not has_errors(src.findings):
+            raise _ShotRefused(f"--shot {n}: {file} scans no param, so it has only its one shot (leave out --shot)")
+        return preflight(file, sources=src), None, None
+    if n is None:
+        res = preflight(file, sources=src)
         return res, (shot_choice(scan.plan, None, res.shot) if scan.plan is not None else None), scan
     if scan.plan is None:
         if scan.findings:  # the scan cannot be expanded: why
-            return Result(findings=list(scan.findings), sources=scan.sources), None, scan
-        if not has_scans(scan.sources):
-            raise _ShotRefused(f"--shot {n}: {file} scans no param, so it has only its one shot (leave out --shot)")
-        return preflight(file, sources=scan.sources), None, scan  # the base values do not resolve: why
+            return Result(findings=list(scan.findings), sources=src), None, scan
+        return preflight(file, sources=src), None, scan  # the base values do not resolve: why
     count = len(scan.plan)
     if not 0 <= n < count:
         raise _ShotRefused(f"--shot {n}: {file} has {count} shot(s), numbered 0 to {count - 1} in run order "
@@ -284,7 +305,7 @@ def _scan_caption(choice, scan) -> str | None:
     """The line show and plot print (and plot puts under its title) about the scan, or None: no scan."""
     if choice is not None:
         return choice.caption()
-    if scan.is_scan and scan.plan is None:
+    if scan is not None and scan.is_scan and scan.plan is None:
         return ("base shot (each scanned param at its written value); the scan cannot be expanded into shots: "
                 "run 'seqgen check' for why")
     return None
@@ -293,7 +314,9 @@ def _scan_caption(choice, scan) -> str | None:
 def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
     """check / build of a scanned sequence: every shot, then a per-code summary of param ranges; `caution`:
     end with the safety caution (False when the caller prints more and the caution after it)."""
-    from .batch import BuildExists, ClusterUnavailable, report_text, run_scan, scan_json
+    from .emit.build import BuildExists
+    from .scan.run import ClusterUnavailable, run_scan
+    from .scan.summary import report_text, scan_json
     from .findings import has_errors
 
     if scan.plan is None or has_errors(scan.findings):  # the scan itself cannot be expanded
@@ -336,10 +359,11 @@ def cmd_build(args) -> int:
     from .emit.writers import WriterError
     from .pipeline import preflight
 
-    scan = _plan_scan(args)
-    if scan.is_scan:
+    src, failed = _load(args.file)
+    scan = _plan_scan(args.file, src)
+    if scan is not None and scan.is_scan:
         return _scan_run(scan, args, build=True)
-    res = preflight(args.file, sources=scan.sources)
+    res = failed if failed is not None else preflight(args.file, sources=src)
     if not res.ok or res.compiled is None:
         code = _report(res, args)
         if res.ok:  # a fragment: nothing to build on its own

@@ -263,7 +263,8 @@ def test_the_caution_defers_to_codes_procedures_and_licensed_practice():
 
 
 def test_manifest_and_scan_json_carry_the_caution_and_validate(demo, tmp_path):
-    from seqgen.batch import plan_scan, run_scan
+    from seqgen.scan.plan import plan_scan
+    from seqgen.scan.run import run_scan
 
     out = write_build(tmp_path / "b", demo.shot, demo.compiled, demo.findings)
     man = json.loads((out / "manifest.json").read_text(encoding="utf-8"))

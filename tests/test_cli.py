@@ -94,15 +94,15 @@ def _run(argv, capsys):
 def test_a_failed_write_is_one_line_and_exit_2(verb, tmp_path, monkeypatch, capsys):
     import os
 
-    import seqgen.batch
     import seqgen.emit.build
     import seqgen.emit.plot
     import seqgen.emit.report
+    import seqgen.scan.run
 
     out = tmp_path / ("out.png" if verb == "plot" else "out.html" if verb == "report" else "out")
     target, argv, what = {
         "build": ((seqgen.emit.build, "write_build"), ["build", str(THERMO), "-o", str(out)], "build to"),
-        "build-scan": ((seqgen.batch, "run_scan"), ["build", str(SCANNED), "-o", str(out), "--jobs", "1"],
+        "build-scan": ((seqgen.scan.run, "run_scan"), ["build", str(SCANNED), "-o", str(out), "--jobs", "1"],
                        "the scan to"),
         "plot": ((seqgen.emit.plot, "save_figure"), ["plot", str(THERMO), "-o", str(out), "--no-physics"], ""),
         "report": ((seqgen.emit.report, "write_report"), ["check", str(THERMO), "--report", str(out)],
@@ -136,9 +136,9 @@ def test_an_existing_output_is_refused_with_exit_2(verb, tmp_path, capsys):
 
 
 def test_cluster_unavailable_and_bad_plot_options_are_exit_2(capsys, tmp_path, monkeypatch):
-    import seqgen.batch
+    import seqgen.scan.run
 
-    monkeypatch.setattr(seqgen.batch, "run_scan", _raiser(seqgen.batch.ClusterUnavailable("no cluster here")))
+    monkeypatch.setattr(seqgen.scan.run, "run_scan", _raiser(seqgen.scan.run.ClusterUnavailable("no cluster here")))
     assert _run(["check", str(SCANNED), "--cluster", "tcp://127.0.0.1:1"], capsys) == (2, ["seqgen: no cluster here"])
     code, err = _run(["plot", str(THERMO), "-o", str(tmp_path / "x.bmp")], capsys)
     assert code == 2 and len(err) == 1 and err[0].startswith("seqgen: ") and not (tmp_path / "x.bmp").exists()

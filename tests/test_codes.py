@@ -16,7 +16,7 @@ ROOT = Path(__file__).resolve().parents[1]
 
 # the modules a notebook or the command line might import first
 FIRST_IMPORTS = ["seqgen.findings", "seqgen.check", "seqgen.pipeline", "seqgen.cli", "seqgen.emit.sarif",
-                 "seqgen.diff", "seqgen.resolve.scan", "seqgen.compile.tables", "seqgen.load.yamlsrc"]
+                 "seqgen.diff", "seqgen.scan.plan", "seqgen.compile.tables", "seqgen.load.yamlsrc"]
 
 _PROBE = """
 import importlib, json, sys

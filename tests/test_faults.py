@@ -4,7 +4,7 @@ traceback.
 
 Each file is checked through the same entry point as `seqgen check FILE --json`
 (seqgen/cli.py): a scanned file is planned and every shot preflighted
-(seqgen/batch.py `plan_scan` + `run_scan`), and a finding of any shot counts, as
+(seqgen/scan: `plan_scan` + `run_scan`), and a finding of any shot counts, as
 do the scan-level findings (a scan that cannot be expanded). `--jobs 1` keeps the
 shots in this process (a 2-core machine).
 """
@@ -19,9 +19,9 @@ from types import SimpleNamespace
 import pytest
 import scipy.constants as sc
 
-from seqgen.batch import plan_scan
 from seqgen.cli import main
 from seqgen.pipeline import preflight
+from seqgen.scan.plan import plan_scan
 
 from .conftest import SEQUENCES
 
@@ -57,7 +57,7 @@ def test_corpus_is_large_enough():
 
 
 def test_corpus_holds_scanned_faults():
-    # the expansion codes of seqgen/resolve/scan.py, and a scanned file whose finding only some shots raise
+    # the expansion codes of seqgen/scan/plan.py, and a scanned file whose finding only some shots raise
     scanned = {p.values[1] for p in CORPUS if plan_scan(p.values[0]).is_scan}
     assert {"schema.bad-scan", "schema.scan-length-mismatch", "schema.scan-too-large"} <= scanned
     assert any(c.startswith("physics.") for c in scanned)

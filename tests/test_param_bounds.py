@@ -10,9 +10,11 @@ Values are compared in SI units; SI prefixes (milli = 1e-3, micro = 1e-6) from t
 import numpy as np
 import pytest
 
-from seqgen.batch import plan_scan, run_scan, summarize
 from seqgen.cli import main
 from seqgen.pipeline import preflight
+from seqgen.scan.plan import plan_scan
+from seqgen.scan.run import run_scan
+from seqgen.scan.summary import summarize
 
 from .conftest import SEQUENCES
 

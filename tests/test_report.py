@@ -306,7 +306,8 @@ def _expected_shots(path):
 
 @pytest.fixture(scope="module")
 def scanned_report(tmp_path_factory):
-    from seqgen.batch import plan_scan, run_scan
+    from seqgen.scan.plan import plan_scan
+    from seqgen.scan.run import run_scan
     from seqgen.show import shot_choice
 
     folder = tmp_path_factory.mktemp("scanned")

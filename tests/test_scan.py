@@ -10,10 +10,12 @@ import json
 import numpy as np
 import pytest
 
-from seqgen.batch import BuildExists, plan_scan, run_scan, scan_json, summarize
 from seqgen.cli import main
+from seqgen.emit.build import BuildExists
 from seqgen.pipeline import preflight
-from seqgen.resolve.scan import shuffled_order, uniform_draws
+from seqgen.scan.plan import plan_scan, shuffled_order, uniform_draws
+from seqgen.scan.run import run_scan
+from seqgen.scan.summary import scan_json, summarize
 from seqgen.validate.schema import load_schema
 
 from .conftest import ROOT, SEQUENCES, readme_shuffled_order
@@ -82,21 +84,21 @@ def test_nest_reorders_the_grid(tmp_path):
     np.testing.assert_allclose(np.array(list(zip(_values(scan, "b"), _values(scan, "c")))), np.array(want), rtol=1e-12)
 
 
-def test_groups_zip_and_combine_with_a_grid(tmp_path):
+def test_groups_advance_in_lockstep_and_combine_with_a_grid(tmp_path):
     p = _seq(tmp_path, ["rt: {value: 10 us, scan: {values: [4 us, 6 us, 8 us], group: g1}}",
                         "b: {value: 0 s, scan: {from: 1 ms, to: 3 ms, steps: 3, group: g1}}",
                         "c: {value: 0 s, scan: [10 us, 20 us]}"])
     scan = plan_scan(p)
-    assert len(scan.plan) == 3 * 2  # zipped group (3) x c (2), not 3 x 3 x 2
-    zipped = list(zip([4 * US, 6 * US, 8 * US], [1 * MS, 2 * MS, 3 * MS]))
-    want = [(r, b, c) for (r, b), c in itertools.product(zipped, [10 * US, 20 * US])]
+    assert len(scan.plan) == 3 * 2  # lockstep group (3) x c (2), not 3 x 3 x 2
+    lockstep = list(zip([4 * US, 6 * US, 8 * US], [1 * MS, 2 * MS, 3 * MS]))
+    want = [(r, b, c) for (r, b), c in itertools.product(lockstep, [10 * US, 20 * US])]
     np.testing.assert_allclose(np.array(list(zip(_values(scan, "rt"), _values(scan, "b"), _values(scan, "c")))),
                                np.array(want), rtol=1e-12)
 
 
-def test_combine_zip_puts_every_param_in_lockstep(tmp_path):
+def test_combine_lockstep_puts_every_param_in_one_group(tmp_path):
     p = _seq(tmp_path, ["b: {value: 0 s, scan: [1 ms, 2 ms, 3 ms]}", "c: {value: 0 s, scan: [10 us, 20 us, 30 us]}"],
-             top="scan: {combine: zip}\n")
+             top="scan: {combine: lockstep}\n")
     scan = plan_scan(p)
     np.testing.assert_allclose(np.array(list(zip(_values(scan, "b"), _values(scan, "c")))),
                                np.array(list(zip([1 * MS, 2 * MS, 3 * MS], [10 * US, 20 * US, 30 * US]))), rtol=1e-12)
@@ -120,7 +122,7 @@ def test_random_set_is_reproducible_and_in_range(tmp_path):
     other = _values(plan_scan(_seq(tmp_path, [spec.replace("42", "43")], name="c.yaml")), "b")
     assert a == b and a != other and len(a) == 12
     assert all(1e-3 <= v <= 5e-3 for v in a)
-    # the documented rule (README, seqgen/resolve/scan.py): first 8 bytes of sha256("seqgen-random:<seed>:<k>") / 2**64
+    # the documented rule (README, seqgen/scan/plan.py): first 8 bytes of sha256("seqgen-random:<seed>:<k>") / 2**64
     u = [int.from_bytes(hashlib.sha256(f"seqgen-random:42:{k}".encode()).digest()[:8], "big") / 2 ** 64 for k in range(12)]
     assert a == pytest.approx([1e-3 + 4e-3 * x for x in u], rel=1e-12)
     assert uniform_draws(42, 12) == u
@@ -167,7 +169,7 @@ def test_bad_scans_are_findings_at_their_line(tmp_path, param, code, line):
     assert hits[0].line == line and hits[0].hint
 
 
-def test_zipped_lengths_must_match(tmp_path):
+def test_lockstep_lengths_must_match(tmp_path):
     scan = plan_scan(_seq(tmp_path, ["b: {value: 0 s, scan: {values: [1 ms, 2 ms], group: g}}",
                                      "c: {value: 0 s, scan: {values: [1 us, 2 us, 3 us], group: g}}"]))
     assert scan.plan is None

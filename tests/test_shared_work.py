@@ -10,13 +10,14 @@ import numpy as np
 import pytest
 from scipy import constants as sc
 
-from seqgen.batch import plan_scan, run_scan
 from seqgen.check import physics_traps
 from seqgen.compile import tables
 from seqgen.compile.tables import RAMP_CACHE, _RampCache
 from seqgen.physics import optical as o
 from seqgen.physics.atoms import get_species
 from seqgen.pipeline import clear_shared_caches, preflight
+from seqgen.scan.plan import plan_scan
+from seqgen.scan.run import run_scan
 
 from .conftest import SEQUENCES
 

@@ -204,10 +204,10 @@ SCAN_LENGTH_MISMATCH = Code(
     "schema.scan-length-mismatch", "error", stage="resolve",
     source="seqgen's own rule",
     doc="""
-    Params scanned in lockstep (the same `group:`, or `scan: {combine: zip}`)
-    have different numbers of values, so they cannot be zipped. Give every
-    member the same number of values, or put them in separate groups to scan
-    them as a grid.""")
+    Params scanned in lockstep (the same `group:`, or `scan: {combine: lockstep}`)
+    have different numbers of values, so they cannot advance together. Give
+    every member the same number of values, or put them in separate groups to
+    scan them as a grid.""")
 
 SCAN_TOO_LARGE = Code(
     "schema.scan-too-large", "error", stage="resolve",

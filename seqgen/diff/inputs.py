@@ -147,7 +147,7 @@ def param_bounds(src, shot) -> dict:
 
 def _scan_plan(src, base_shot):
     """(the version's scan plan or None, the findings of a scan that does not expand)."""
-    from ..resolve.scan import expand, has_scans
+    from ..scan.plan import expand, has_scans
 
     if src is None or not has_scans(src):
         return None, []
@@ -207,7 +207,7 @@ def load_scan_build(folder: Path, label: str) -> Version:
     one record per shot (param values, status, input and manifest hashes, finding counts). The shot folders
     themselves are not read (diff two of them for a shot's tables, params and findings)."""
     from ..findings import SourcePos
-    from ..resolve.scan import ScanAxis, ScanPlan
+    from ..scan.plan import ScanAxis, ScanPlan
     from ..resolve.units import Qty, UnitError, dims_of
 
     path = folder / SCAN_JSON

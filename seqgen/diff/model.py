@@ -66,7 +66,7 @@ class Version:
     params: dict = field(default_factory=dict)  # name -> (value SI, unit text, text as written)
     duration_s: float | None = None
     text: str | None = None  # the main file's text (sequence inputs)
-    scan: object = None  # resolve.scan.ScanPlan when the sequence scans params (the shot is then the base shot)
+    scan: object = None  # scan.plan.ScanPlan when the sequence scans params (the shot is then the base shot)
     scan_invalid: bool = False  # the sequence scans params but the scan does not expand (see its findings)
     bounds: dict = field(default_factory=dict)  # param -> {"min"/"max": (text, value SI or None)} (sequence inputs)
     scan_build: dict | None = None  # a scan build folder: {"shots": [record per shot, run order], "folder", "tool"}

@@ -3,9 +3,9 @@
 `render_report(result, file)` turns a `pipeline.Result` into HTML: the
 summary, every finding with the offending source line and its fix, what each
 finding code means, the physics notes, the safety caution and the timeline as
-inline SVG. For a scanned sequence (`scan=`, a run `batch.Scan`) a scan section
+inline SVG. For a scanned sequence (`scan=`, a run `scan.plan.Scan`) a scan section
 comes first: the plan (params, values, combination, order), the per-code
-summary with the param ranges where each code fires (`batch.summarize`) and a
+summary with the param ranges where each code fires (`scan.summary.summarize`) and a
 table of every shot (values, pass or fail, finding counts); the details that
 follow are those of the base shot (each scanned param at its `value:`). Everything is inline (CSS, SVG); the page loads nothing from the
 network and needs no JavaScript. The text depends only on the inputs (no time
@@ -192,7 +192,7 @@ def _plan_html(plan) -> list[str]:
     out.append("</tbody></table>")
     groups = {}
     for a in plan.axes:
-        key = "*" if plan.combine == "zip" else (a.group or a.name)
+        key = "*" if plan.combine == "lockstep" else (a.group or a.name)
         groups.setdefault(key, []).append(a.name)
     names = [" + ".join(groups[k]) for k in plan.nest]
     if len(plan.nest) == 1 and len(plan.axes) > 1:
@@ -214,7 +214,7 @@ def _plan_html(plan) -> list[str]:
 
 
 def _codes_html(scan, sources: _Sources) -> list[str]:
-    from ..batch import summarize
+    from ..scan.summary import summarize
 
     codes = summarize(scan)
     n = len(scan.shots)
@@ -307,7 +307,7 @@ def _scan_section(scan, choice, sources: _Sources) -> list[str]:
 
 def _scan_summary(scan) -> tuple[dict, str, bool]:
     """(counts over every shot, verdict, blocking) of a scan."""
-    from ..batch import totals
+    from ..scan.summary import totals
 
     if scan.plan is None:
         return summary(scan.findings), "the scan cannot be expanded into shots: fix the scan findings below", True
@@ -333,7 +333,7 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
     """HTML text of the preflight report of `res` (a `pipeline.Result`) for sequence `file`.
 
     `svg` is the inline SVG of the whole timeline; `detail` an optional (caption, svg) of a zoomed one.
-    `scan`: the run scan (`batch.Scan`) of a scanned sequence, whose section heads the report; `res` is then
+    `scan`: the run scan (`scan.plan.Scan`) of a scanned sequence, whose section heads the report; `res` is then
     its base shot. `choice` (`seqgen.show.ShotChoice`): which shot of a scan `res` is, said above its details."""
     from ..caution import CAUTION
 
@@ -467,7 +467,7 @@ def write_report(path: str | Path, res, file: str, *, force: bool = False, timel
                  scanned: bool = False, scan=None, choice=None) -> Path:
     """Render and write the report atomically; raises OutputExists when `path` exists and not force.
 
-    `scan` (a run `batch.Scan`) adds the scan section; `choice` says which shot of a scan `res` is."""
+    `scan` (a run `scan.plan.Scan`) adds the scan section; `choice` says which shot of a scan `res` is."""
     path = Path(path)
     if path.exists() and not force:
         raise OutputExists(f"{path} exists; use --force to replace it")

@@ -153,7 +153,7 @@ def to_sarif_json(findings: Iterable[Finding], *, sources: Mapping[str, str] | N
 
 
 def scan_to_sarif(scan) -> dict:
-    """One SARIF log for a scanned sequence (`seqgen.batch.Scan` after `run_scan`).
+    """One SARIF log for a scanned sequence (`seqgen.scan.plan.Scan` after `run_scan`).
 
     A finding that several shots raise at one place is one result; its message
     says in which shots it fires and its properties list them (`shots`).

@@ -31,8 +31,9 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from seqgen.batch import default_jobs, plan_scan, run_scan  # noqa: E402
 from seqgen.pipeline import clear_shared_caches, preflight  # noqa: E402
+from seqgen.scan.plan import plan_scan  # noqa: E402
+from seqgen.scan.run import default_jobs, run_scan  # noqa: E402
 
 DEMO = ROOT / "sequences" / "na23_barrier_scatter.yaml"
 

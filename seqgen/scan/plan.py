@@ -1,18 +1,20 @@
-"""Scan expansion: the `scan:` of params (and the top-level `scan:` options) -> an ordered list of shot points.
+"""Planning a scan: the `scan:` of params -> an ordered list of shot points; the shot tasks and their hashes.
+
+    scan = plan_scan("sequences/x.yaml")   # load + validate once, resolve the base values, expand the scan
 
 A param may carry a scan:
 
     tof:  {value: 14 ms, scan: [10 ms, 12 ms, 16 ms]}                      # a list
-    tof:  {value: 14 ms, scan: {values: [10 ms, 12 ms], group: g1}}        # a list in a zipped group
+    tof:  {value: 14 ms, scan: {values: [10 ms, 12 ms], group: g1}}        # a list in a lockstep group
     hold: {value: 5 ms, scan: {from: 1 ms, to: 10 ms, steps: 10}}          # linear range (ends included;
                                                                            # steps: 1 only if from == to)
     rate: {value: 1 kHz, scan: {from: 10 Hz, to: 10 kHz, steps: 7, spacing: log}}
     det:  {value: 0 Hz, scan: {from: -2 kHz, to: 2 kHz, random: 20, seed: 7}}  # random set, reproducible
 
-Params whose scans share a `group` advance in lockstep (zipped; equal lengths
+Params whose scans share a `group` advance in lockstep (equal lengths
 required); separate params or groups combine as a grid (outer product, the
 first written varies slowest, as nested loops). The top-level `scan:` mapping
-sets `combine: grid | zip` (zip: every scanned param in one lockstep group),
+sets `combine: grid | lockstep` (lockstep: every scanned param in one group),
 `nest: [outermost, ...]` (grid nesting by param or group name),
 `order: written | shuffled` with `seed:` and `max_shots:`.
 
@@ -27,6 +29,11 @@ with its scan values (seqgen/resolve/sequence.py), so a shot beyond them fails
 with schema.param-out-of-range and the other shots run.
 The result is a `ScanPlan` (immutable); `ScanPlan.overrides(i)` is the
 `name -> Qty` mapping that `resolve(src, overrides)` takes for shot i.
+
+Each shot's input hash (`shot_key`) is the sha256 of its resolved shot (every
+block, segment, param, position and the rig, but not the hashes of the source
+files) and the tool version: two shots with the same input hash give the same
+tables and findings. `scan_input_sha256` hashes what defines a whole scan build.
 """
 
 from __future__ import annotations
@@ -35,13 +42,21 @@ import difflib
 import hashlib
 import itertools
 import math
-from dataclasses import dataclass
+from collections.abc import Mapping
+from dataclasses import dataclass, field, fields, is_dataclass, replace
+from pathlib import Path
 
-from ..findings import Finding, SourcePos, make
-from .quantities import Bad, to_qty
-from .units import DIMENSIONLESS, Qty, close_units, describe_kind, display_unit, format_value, kind_units, same_dims, \
-    split_quantity, usual_unit
+import numpy as np
+
+from .. import __version__
 from ..codes import BAD_SCAN, MISSING_UNIT, SCAN_LENGTH_MISMATCH, SCAN_TOO_LARGE, WRONG_DIMENSION
+from ..findings import Finding, SourcePos, has_errors, make, sort_findings
+from ..load.yamlsrc import LoadError
+from ..model import Rig, Shot
+from ..resolve.quantities import Bad, to_qty
+from ..resolve.sequence import Sources, load_sources, resolve
+from ..resolve.units import DIMENSIONLESS, Qty, close_units, describe_kind, display_unit, format_qty, format_value, \
+    kind_units, same_dims, split_quantity, usual_unit
 
 DEFAULT_MAX_SHOTS = 100_000
 
@@ -79,10 +94,14 @@ class ScanPlan:
     names: tuple  # param names, written order
     points: tuple  # of tuples of Qty
     written_index: tuple  # for each shot, its index in written (unshuffled) order
-    combine: str  # "grid" | "zip"
+    combine: str  # "grid" | "lockstep"
     nest: tuple  # group keys, outermost first (a key is a group name or a lone param's name)
     order: str  # "written" | "shuffled"
     seed: int | None
+
+    def __post_init__(self):
+        if self.combine == "zip":  # the former name of lockstep, in scan.json of builds written before the rename
+            object.__setattr__(self, "combine", "lockstep")
 
     def __len__(self) -> int:
         return len(self.points)
@@ -172,13 +191,13 @@ def expand(src, base_shot) -> tuple[ScanPlan | None, list[Finding]]:
     combine = opts.get("combine", "grid")
     groups: dict[str, list[ScanAxis]] = {}
     for a in axes:
-        key = "*" if combine == "zip" else (a.group or a.name)
+        key = "*" if combine == "lockstep" else (a.group or a.name)
         groups.setdefault(key, []).append(a)
     for key, members in groups.items():
         n0 = len(members[0].values)
         for a in members[1:]:
             if len(a.values) != n0:
-                what = "every scanned param (combine: zip)" if key == "*" else f"group '{key}'"
+                what = "every scanned param (combine: lockstep)" if key == "*" else f"group '{key}'"
                 findings.append(make(SCAN_LENGTH_MISMATCH, f"'{a.name}' has {len(a.values)} scan values but "
                                      f"'{members[0].name}' has {n0}; {what} must advance in lockstep", a.pos,
                                      hint="give every member the same number of values, or use separate groups "
@@ -321,3 +340,187 @@ def _value(name, raw, doc, path, dims, env) -> Qty:
                            pos, hint=hint))
         q = Qty(q.value, dims)
     return q
+
+
+# ----------------------------------------------------------------------------- a planned scan
+
+
+@dataclass(frozen=True)
+class ShotResult:
+    index: int  # position in run order (the shot_NNNN folder)
+    written_index: int  # position in written (unshuffled) order
+    values: tuple  # of Qty, in plan.names order
+    findings: tuple = ()
+    input_sha256: str | None = None  # None when the shot did not resolve
+    folder: str | None = None  # build folder name when built
+    manifest_sha256: str | None = None
+    tables: tuple = ()  # ((device, ((kind, sha256), ...)), ...)
+    reused: bool = False
+
+    @property
+    def ok(self) -> bool:
+        return self.input_sha256 is not None and not has_errors(self.findings)
+
+
+@dataclass
+class Scan:
+    """A planned (and, after run_scan, executed) scan of one sequence file."""
+
+    file: str
+    sources: Sources | None
+    plan: ScanPlan | None
+    findings: list = field(default_factory=list)  # scan-level: load, validate, expansion
+    shots: list = field(default_factory=list)  # ShotResult by index, after run_scan
+    out: Path | None = None
+    stats: dict = field(default_factory=dict)  # built / reused / failed counts, seconds
+
+    @property
+    def ok(self) -> bool:
+        return self.plan is not None and not has_errors(self.findings) and all(s.ok for s in self.shots)
+
+    @property
+    def is_scan(self) -> bool:
+        """True when the file scans params (planned, or with expansion findings to report)."""
+        return self.plan is not None or bool(self.findings and self.sources is not None and has_scans(self.sources))
+
+
+def plan_scan(path: str | Path, sources: Sources | None = None) -> Scan:
+    """Load and validate once (or take the loaded `sources`), resolve the base values, expand the scan.
+
+    `plan` is None when the sequence has no scans (or cannot be loaded, or its
+    base values do not resolve): run the ordinary `preflight` then, which
+    reports exactly what it always did. Expansion mistakes are in `findings`.
+    """
+    if sources is None:
+        try:
+            sources = load_sources(path)
+        except LoadError as exc:
+            return Scan(str(path), None, None, [exc.finding])
+    src = sources
+    if has_errors(src.findings) or not has_scans(src):
+        return Scan(src.main.file, src, None)
+    base, _ = resolve(src)
+    if base is None:
+        return Scan(src.main.file, src, None)
+    plan, pf = expand(src, base)
+    return Scan(src.main.file, src, plan, sort_findings(list(src.findings) + pf) if pf else [])
+
+
+@dataclass(frozen=True)
+class ShotTask:
+    """One shot to run: what a worker needs besides the shared sources."""
+
+    index: int
+    written_index: int
+    names: tuple
+    values: tuple  # of Qty
+    folder: str
+    out_dir: str | None  # where a worker writes the build; None: return tables instead (or no build)
+    build: bool
+    reuse_key: str | None = None
+    crash: str | None = None  # tests only: "raise" or "exit"
+
+
+def values_text(names, values) -> str:
+    return ", ".join(f"{n} = {format_qty(q)}" for n, q in zip(names, values))
+
+
+def label_shot(shot, overrides: dict):
+    """The scanned params' text becomes the shot's value ('10 ms'), not the base value's text."""
+    params = tuple(replace(p, text=format_qty(overrides[p.name])) if p.name in overrides else p for p in shot.params)
+    return replace(shot, params=params)
+
+
+# ----------------------------------------------------------------------------- input hashes
+
+_PATH_HOLDERS = (SourcePos, Shot, Rig)  # their `file` is where the text sits, not what it says
+
+
+def shot_key(shot) -> str:
+    """sha256 of a resolved shot (without its source-file hashes) and the tool version.
+
+    Positions enter by line and column, not by file path: the same sequence checked from another folder
+    (a colleague's clone, a moved build) is the same shot."""
+    h = hashlib.sha256(f"seqgen {__version__}\n".encode())
+    _feed(h, shot, skip=("sources",))
+    return h.hexdigest()
+
+
+def _feed(h, obj, skip=()) -> None:
+    if obj is None:
+        h.update(b"N")
+    elif isinstance(obj, bool):
+        h.update(b"T" if obj else b"F")
+    elif isinstance(obj, int):
+        h.update(b"i%d;" % obj)
+    elif isinstance(obj, float):
+        h.update(b"f" + obj.hex().encode() + b";")
+    elif isinstance(obj, str):
+        b = obj.encode()
+        h.update(b"s%d:" % len(b) + b)
+    elif is_dataclass(obj) and not isinstance(obj, type):
+        h.update(b"D" + type(obj).__name__.encode() + b"{")
+        for f in fields(obj):
+            if f.name in skip or (f.name == "file" and isinstance(obj, _PATH_HOLDERS)):
+                continue
+            h.update(f.name.encode() + b"=")
+            _feed(h, getattr(obj, f.name))
+        h.update(b"}")
+    elif isinstance(obj, Mapping):
+        h.update(b"M%d{" % len(obj))
+        for k in sorted(obj, key=repr):
+            _feed(h, k)
+            _feed(h, obj[k])
+        h.update(b"}")
+    elif isinstance(obj, (tuple, list)):
+        h.update(b"L%d(" % len(obj))
+        for x in obj:
+            _feed(h, x)
+        h.update(b")")
+    elif isinstance(obj, np.ndarray):
+        h.update(b"A" + str(obj.dtype).encode() + repr(obj.shape).encode())
+        h.update(np.ascontiguousarray(obj).tobytes())
+    elif isinstance(obj, np.generic):
+        _feed(h, obj.item())
+    elif isinstance(obj, (set, frozenset)):
+        _feed(h, sorted(obj, key=repr))
+    else:
+        h.update(b"R" + repr(obj).encode())
+
+
+def scan_input_sha256(scan: Scan) -> str:
+    """sha256 of what defines a scan build: tool version, main file name, source hashes, plan."""
+    h = hashlib.sha256(f"seqgen {__version__}\n{scan.sources.main.file}\n".encode())
+    for sha in sorted(scan.sources.hashes.values()):
+        h.update(sha.encode())
+    h.update(scan.plan.fingerprint().encode())
+    return h.hexdigest()
+
+
+# ----------------------------------------------------------------------------- the plan as JSON
+
+
+def qty_json(q: Qty) -> dict:
+    return {"value": q.value, "unit": display_unit(q.dims)}
+
+
+def shot_head(plan: ScanPlan, r: ShotResult) -> dict:
+    """What names a shot in both the scan manifest and the --json report."""
+    return {
+        "index": r.index,
+        "written_index": r.written_index,
+        "params": {n: qty_json(q) for n, q in zip(plan.names, r.values)},
+        "input_sha256": r.input_sha256,
+    }
+
+
+def scan_description(plan: ScanPlan) -> dict:
+    return {
+        "params": [{"name": a.name, "unit": display_unit(a.values[0].dims), "group": a.group, "kind": a.kind,
+                    "values": [q.value for q in a.values]} for a in plan.axes],
+        "combine": plan.combine,
+        "nest": list(plan.nest),
+        "order": plan.order,
+        "seed": plan.seed,
+        "shots": len(plan),
+    }
