@@ -23,8 +23,8 @@ import re
 import pytest
 from scipy import constants as sc
 
-from seqgen.check import physics_states as ps
-from seqgen.check import physics_traps as pt
+from seqgen import predict as ps
+from seqgen import predict as pt
 from seqgen.pipeline import preflight
 from seqgen.show import physics_rows
 
@@ -112,19 +112,19 @@ def test_separated_components_sit_where_the_moments_send_them(tmp_path):
     res = run(tmp_path, sg_blocks())
     shot = res.shot
     pred = pt.image_prediction(shot, only(shot, "image"))
-    by_state = {c["state"]: c for c in pred["components"]}
+    by_state = {c.state: c for c in pred.components}
     assert set(by_state) == {(1, -1), (2, -2)}
     for st, comp in by_state.items():
         # a resonant pi/2 pulse: Rabi formula sin^2(pi/4) = 1/2 in each state
-        assert comp["fraction"] == pytest.approx(0.5, abs=1e-9)
-        assert comp["positions"].shape == (1, 3)  # the coil says where |B| grows: one case
-        assert comp["positions"][0, 2] == pytest.approx(sg_hand_z(shot, st), rel=1e-6)
-        assert comp["positions"][0, :2] == pytest.approx([0.0, 0.0], abs=1e-15)
+        assert comp.fraction == pytest.approx(0.5, abs=1e-9)
+        assert comp.positions.shape == (1, 3)  # the coil says where |B| grows: one case
+        assert comp.positions[0, 2] == pytest.approx(sg_hand_z(shot, st), rel=1e-6)
+        assert comp.positions[0, :2] == pytest.approx([0.0, 0.0], abs=1e-15)
     # |2,-2> (moment ~ +mu_B, high-field seeker) goes up, |1,-1> (~ -mu_B/2) down
-    assert by_state[(2, -2)]["positions"][0, 2] > -0.5 * G_N * pred["tof"] ** 2 > by_state[(1, -1)]["positions"][0, 2]
+    assert by_state[(2, -2)]["positions"][0, 2] > -0.5 * G_N * pred.tof ** 2 > by_state[(1, -1)]["positions"][0, 2]
     # both inside the 2 mm half field of view with their Thomas-Fermi radius: quiet
     assert "physics.cloud-outside-view" not in codes(res)
-    rows = [r for r in physics_rows(shot) if r["kind"] == "image"]
+    rows = [r for r in physics_rows(shot) if r.kind == "image"]
     text = " ; ".join(rows[0]["items"])
     assert "|F=1, mF=-1> (50 % of the atoms)" in text and "|F=2, mF=-2> (50 % of the atoms)" in text
     assert "camera looks along [0, 1, 0]" in text
@@ -137,10 +137,10 @@ def test_separation_out_of_view_fires_where_free_fall_alone_would_not(tmp_path):
     half = 2e-3
     pred = pt.image_prediction(shot, only(shot, "image"))
     z_down = sg_hand_z(shot, (1, -1))
-    assert abs(z_down) + pred["edge"] > half > 0.5 * G_N * pred["tof"] ** 2 + pred["edge"]
+    assert abs(z_down) + pred.edge > half > 0.5 * G_N * pred.tof ** 2 + pred.edge
     hits = [f for f in res.findings if f.code == "physics.cloud-outside-view"]
     assert len(hits) == 1 and "|F=1, mF=-1>" in hits[0].message and "separate" in hits[0].message
-    assert hits[0].data and dict(hits[0].data)["reach_m"] == pytest.approx(abs(z_down) + pred["edge"], rel=1e-6)
+    assert hits[0].data and dict(hits[0].data)["reach_m"] == pytest.approx(abs(z_down) + pred.edge, rel=1e-6)
 
 
 def test_unknown_gradient_direction_checks_both_ways(tmp_path):
@@ -151,13 +151,13 @@ def test_unknown_gradient_direction_checks_both_ways(tmp_path):
     res = run(tmp_path / "unknown", blocks, rig=rig_text(sg=SG_UNKNOWN))
     shot = res.shot
     pred = pt.image_prediction(shot, only(shot, "image"))
-    assert pred["unknown"] and "sg_coil" in pred["unknown"][0]
-    comp = {c["state"]: c for c in pred["components"]}[(2, -2)]
-    got = sorted(comp["positions"][:, 2])
+    assert pred.unknown and pred.sg_coil is not None["unknown"][0]
+    comp = {c.state: c for c in pred.components}[(2, -2)]
+    got = sorted(comp.positions[:, 2])
     want = sorted(sg_hand_z(shot, (2, -2), s) for s in (1.0, -1.0))
     assert got == pytest.approx(want, rel=1e-6)
     # pulled down instead of up, |2,-2> leaves the view: the conservative reading fires
-    assert abs(want[0]) + pred["edge"] > 2e-3
+    assert abs(want[0]) + pred.edge > 2e-3
     hits = [f for f in res.findings if f.code == "physics.cloud-outside-view"]
     assert len(hits) == 1 and "both ways checked" in hits[0].message and "|F=2, mF=-2>" in hits[0].message
 
@@ -187,13 +187,13 @@ def test_push_across_the_line_of_sight_leaves_the_view_along_it_the_focus(tmp_pa
     res = run(tmp_path, PUSH, sample=THERMAL, rig=rig)
     shot = res.shot
     pred = pt.image_prediction(shot, only(shot, "image"))
-    (comp,) = pred["components"]
+    (comp,) = pred.components
     x = push_hand_x(shot)
-    assert comp["positions"][0] == pytest.approx([x, 0.0, -0.5 * G_N * pred["tof"] ** 2], rel=1e-6, abs=1e-12)
+    assert comp.positions[0] == pytest.approx([x, 0.0, -0.5 * G_N * pred.tof ** 2], rel=1e-6, abs=1e-12)
     # thermal cloud: sigma^2 = sigma_0^2 + k_B T t^2 / m, sigma_0 from the largest width in the trap
     sigma0 = math.sqrt(sc.k * 50e-9 / MASS) / (2 * math.pi * 340)
-    sigma = math.sqrt(sigma0**2 + sc.k * 50e-9 * pred["tof"] ** 2 / MASS)
-    assert pred["cloud"]["size"] == pytest.approx(sigma, rel=1e-3)  # Na-23 mass of the species table vs AME2020
+    sigma = math.sqrt(sigma0**2 + sc.k * 50e-9 * pred.tof ** 2 / MASS)
+    assert pred.cloud["size"] == pytest.approx(sigma, rel=1e-3)  # Na-23 mass of the species table vs AME2020
     edge = 2 * sigma
     assert (abs(x) + edge > 0.8e-3) and (2 * (abs(x) + edge) > 1.5e-3)  # the numbers that decide both cases
     assert ("physics.cloud-outside-view" in codes(res)) is outside
@@ -219,13 +219,13 @@ def test_release_from_a_quadrupole_has_the_boltzmann_size(tmp_path):
               sample=f"{{species: Na23, state: {{F: 1, mF: -1}}, atoms: 3e5, temperature: {temp * 1e6:g} uK}}")
     shot = res.shot
     pred = pt.image_prediction(shot, only(shot, "image"))
-    c = pred["cloud"]
-    assert c is not None and "linear quadrupole" in c["trap"]
+    c = pred.cloud
+    assert c is not None and "linear quadrupole" in c.trap
     # 50 A x 0.4 G/cm/A = 20 G/cm along the vertical axis, 10 G/cm across it; moment at the field zero
     radial = 50 * 0.4 * 0.01 / 2
     sigma0 = 2 * sc.k * temp / (abs(moment(1, -1, 0.0)) * radial)
-    sigma = math.sqrt(sigma0**2 + sc.k * temp * pred["tof"] ** 2 / MASS)
-    assert c["size"] == pytest.approx(sigma, rel=1e-3)
+    sigma = math.sqrt(sigma0**2 + sc.k * temp * pred.tof ** 2 / MASS)
+    assert c.size == pytest.approx(sigma, rel=1e-3)
     items = " ; ".join(r for row in physics_rows(shot) if row["kind"] == "image" for r in row["items"])
     assert "released from the magnetic trap of block 'hold' (linear quadrupole)" in items
 
@@ -248,15 +248,15 @@ def test_release_from_an_ioffe_pritchard_trap_uses_its_frequencies(tmp_path):
               sample=f"{{species: Na23, state: {{F: 1, mF: -1}}, atoms: 3e5, temperature: {temp * 1e6:g} uK}}")
     shot = res.shot
     pred = pt.image_prediction(shot, only(shot, "image"))
-    c = pred["cloud"]
-    assert c is not None and "Ioffe-Pritchard" in c["trap"]
+    c = pred.cloud
+    assert c is not None and "Ioffe-Pritchard" in c.trap
     b0, b1, b2 = 50 * 0.02e-4, 50 * 2 * 0.01, 50 * 2.0  # T, T/m, T/m^2
     mu = abs(moment(1, -1, b0))
     w_z = math.sqrt(mu * b2 / MASS)
     w_rho = math.sqrt(mu / MASS * (b1**2 / b0 - b2 / 2))
-    assert sorted(c["omegas"]) == pytest.approx(sorted([w_rho, w_rho, w_z]), rel=1e-6)
+    assert sorted(c.omegas) == pytest.approx(sorted([w_rho, w_rho, w_z]), rel=1e-6)
     sigma0 = math.sqrt(sc.k * temp / (MASS * w_z**2))  # the weak axis holds the widest cloud
-    assert c["size"] == pytest.approx(math.sqrt(sigma0**2 + sc.k * temp * pred["tof"] ** 2 / MASS), rel=1e-3)
+    assert c.size == pytest.approx(math.sqrt(sigma0**2 + sc.k * temp * pred.tof ** 2 / MASS), rel=1e-3)
 
 
 def test_unknown_trap_is_said_and_the_centre_still_checked(tmp_path):
@@ -268,12 +268,12 @@ def test_unknown_trap_is_said_and_the_centre_still_checked(tmp_path):
     res = run(tmp_path, blocks, sample="{species: Na23, state: {F: 1, mF: -1}, atoms: 1e5, temperature: 1 uK}")
     shot = res.shot
     pred = pt.image_prediction(shot, only(shot, "image"))
-    assert pred["cloud"] is None and "no trap is known" in pred["why"]
+    assert pred.cloud is None and "no trap is known" in pred.why
     items = " ; ".join(r for row in physics_rows(shot) if row["kind"] == "image" for r in row["items"])
     assert "no size prediction: no trap is known" in items
     hits = [f for f in res.findings if f.code == "physics.cloud-outside-view"]
     assert len(hits) == 1 and "cloud size unknown" in hits[0].message
-    assert dict(hits[0].data)["reach_m"] == pytest.approx(0.5 * G_N * pred["tof"] ** 2, rel=1e-9)
+    assert dict(hits[0].data)["reach_m"] == pytest.approx(0.5 * G_N * pred.tof ** 2, rel=1e-9)
 
 
 def test_in_situ_image_says_so(tmp_path):
@@ -341,13 +341,13 @@ def test_separation_follows_the_populated_states(tmp_path):
     assert "physics.transition-unpopulated" in codes(res)
     assert "physics.components-separated" not in codes(res) and "physics.equal-moments" not in codes(res)
     rep = ps.separation_analysis(shot, only(shot, "separate"))
-    assert rep["pair"] is None and rep["states"] == [(2, 2)]
-    rows = [r for r in physics_rows(shot) if r["kind"] == "separate"]
+    assert rep.pair is None and rep.states == [(2, 2)]
+    rows = [r for r in physics_rows(shot) if r.kind == "separate"]
     assert "only |F=2, mF=+2> holds atoms: nothing to separate" in rows[0]["items"][0]
     # the image holds one component, |2,+2> (moment ~ -mu_B: pulled down by the gradient that grows upwards)
     pred = pt.image_prediction(shot, only(shot, "image"))
-    (comp,) = pred["components"]
-    assert comp["state"] == (2, 2) and comp["positions"][0, 2] == pytest.approx(sg_hand_z(shot, (2, 2)), rel=1e-6)
+    (comp,) = pred.components
+    assert comp.state == (2, 2) and comp.positions[0, 2] == pytest.approx(sg_hand_z(shot, (2, 2)), rel=1e-6)
 
 
 def test_barrier_drive_makes_its_partner_possibly_populated(tmp_path):
@@ -400,7 +400,7 @@ def test_a_push_inside_a_holding_trap_is_bounded_by_the_oscillation(tmp_path):
     assert "physics.cloud-outside-view" not in codes(res)
     img = only(res.shot, "image")
     comp = ps.components_at(res.shot, img)["components"][0]
-    dx = float(abs(comp["displacements"][0][0]))
+    dx = float(abs(comp.displacements[0][0]))
     v = abs(moment(1, -1)) * 0.08 * 2e-3 / MASS  # |mu| b' tau / m
     beams = pt._gaussian_beams(res.shot, [0.103])[0]
     w_min = float(min(pt._held(pt._species(res.shot), tuple(beams))[1]))

@@ -8,8 +8,9 @@ import numpy as np
 import pytest
 from scipy import constants as sc
 
-from seqgen.check import physics_barrier as pb
-from seqgen.check.physics import report_physics
+from seqgen import predict as pb
+from seqgen.physics import barrier as pbar, passage as ppass
+from seqgen.show import physics_rows as report_physics
 from seqgen.physics.atoms import get_species
 from seqgen.pipeline import preflight
 
@@ -69,7 +70,7 @@ def test_barrier_height_is_d1_d2_light_shift_times_peak_intensity():
         w_i = 2 * np.pi * sc.c / lam_i
         u_per_i -= weight * 3 * np.pi * sc.c**2 / (2 * w_i**3) * 2 * np.pi * gamma_hz * (1 / (w_i - omega) + 1 / (w_i + omega))
     expected = u_per_i * 2 * P / (np.pi * w * wy)
-    got = pb.barrier_height(NA, lam, P, w, wy)
+    got = pbar.barrier_height(NA, lam, P, w, wy)
     assert got > 0  # 532 nm is blue of both D lines: repulsive
     assert got == pytest.approx(expected, rel=2e-3)
 
@@ -82,7 +83,7 @@ def test_sheet_grid_resolves_a_smooth_barrier_against_poeschl_teller():
     V0 = 7.3e-30
     energies = V0 * np.array([0.7, 0.9, 1.0, 1.1, 1.4])
     k_max = math.sqrt(2 * M_NA * energies.max()) / sc.hbar
-    x = pb.sheet_grid(a, k_max, half_width=16.0)  # cosh^-2 tails fall as exp(-2|x|/a): a wider window
+    x = pbar.sheet_grid(a, k_max, half_width=16.0)  # cosh^-2 tails fall as exp(-2|x|/a): a wider window
 
     def V(xx):
         return V0 / np.cosh(xx / a) ** 2
@@ -97,11 +98,11 @@ def test_free_flight_rotation_is_the_gaussian_pulse_area():
     wy, v = 1.8e-6, 0.0195
     E = 0.5 * M_NA * v**2
     omega = 2 * np.pi * 20.0
-    x = pb.sheet_grid(wy, math.sqrt(2 * M_NA * E) / sc.hbar)
-    r = pb.spin_rotation(x, pb.gaussian_profile(wy), 0.0, omega, np.array([E]), M_NA)
+    x = pbar.sheet_grid(wy, math.sqrt(2 * M_NA * E) / sc.hbar)
+    r = pbar.spin_rotation(x, pbar.gaussian_profile(wy), 0.0, omega, np.array([E]), M_NA)
     expected = math.sqrt(math.pi / 2) * omega * wy / v
     assert r.angle[0] == pytest.approx(expected, rel=1e-3)
-    assert pb.free_flight_rotation(omega, wy, v) == pytest.approx(expected, rel=1e-12)
+    assert pbar.free_flight_rotation(omega, wy, v) == pytest.approx(expected, rel=1e-12)
     assert r.probability[0] == pytest.approx(1.0, abs=1e-9)
 
 
@@ -113,8 +114,8 @@ def test_strong_resonant_coupling_rotates_by_the_full_pulse_area():
     area = 1.3
     omega = area * v / (math.sqrt(math.pi / 2) * wy)
     assert sc.hbar * omega < 2e-2 * E
-    x = pb.sheet_grid(wy, math.sqrt(2 * M_NA * E) / sc.hbar)
-    r = pb.spin_rotation(x, pb.gaussian_profile(wy), 0.0, omega, np.array([E]), M_NA)
+    x = pbar.sheet_grid(wy, math.sqrt(2 * M_NA * E) / sc.hbar)
+    r = pbar.spin_rotation(x, pbar.gaussian_profile(wy), 0.0, omega, np.array([E]), M_NA)
     assert r.angle[0] == pytest.approx(area, rel=1e-3)
 
 
@@ -129,7 +130,7 @@ def test_rotation_in_a_rectangular_barrier_matches_the_dressed_state_closed_form
     E = ratio * V0
     omega = 0.05 * V0 / sc.hbar
     x = np.linspace(0.0, a, 9)
-    r = pb.spin_rotation(x, lambda xx: np.ones_like(np.asarray(xx, dtype=float)), V0, omega, np.array([E]), M_NA)
+    r = pbar.spin_rotation(x, lambda xx: np.ones_like(np.asarray(xx, dtype=float)), V0, omega, np.array([E]), M_NA)
     tp = _rect_t(E, V0 + 0.5 * sc.hbar * omega, a, M_NA)
     tm = _rect_t(E, V0 - 0.5 * sc.hbar * omega, a, M_NA)
     expected = 2 * math.atan2(abs(tp - tm), abs(tp + tm))
@@ -148,20 +149,20 @@ def test_detuned_transit_follows_the_fourier_factor(sign):
     omega = 1e-3 * v / wy
     assert sc.hbar * delta < 0.05 * E
     k_max = math.sqrt(2 * M_NA * (E + sc.hbar * delta)) / sc.hbar
-    x = pb.sheet_grid(wy, k_max)
-    g = pb.gaussian_profile(wy)
-    on = pb.spin_rotation(x, g, 0.0, omega, np.array([E]), M_NA).angle[0]
-    off = pb.spin_rotation(x, g, 0.0, omega, np.array([E]), M_NA, partner_offset_j=-sign * sc.hbar * delta).angle[0]
+    x = pbar.sheet_grid(wy, k_max)
+    g = pbar.gaussian_profile(wy)
+    on = pbar.spin_rotation(x, g, 0.0, omega, np.array([E]), M_NA).angle[0]
+    off = pbar.spin_rotation(x, g, 0.0, omega, np.array([E]), M_NA, partner_offset_j=-sign * sc.hbar * delta).angle[0]
     assert off / on == pytest.approx(math.exp(-(delta * wy / v) ** 2 / 8), rel=2e-2)
 
 
 def test_path_frequency_of_a_harmonic_trap():
     # Curvature along a direction d of V = (m/2) sum w_i^2 x_i^2 is m sum d_i^2 w_i^2 (harmonic oscillator, textbook).
     w = np.array([2.0, 300.0, 310.0])
-    assert pb.path_frequency(w, None, (1, 0, 0)) == pytest.approx(2.0)
-    assert pb.path_frequency(w, None, (1, 1, 0)) == pytest.approx(math.sqrt((4.0 + 300.0**2) / 2))
+    assert ppass.path_frequency(w, None, (1, 0, 0)) == pytest.approx(2.0)
+    assert ppass.path_frequency(w, None, (1, 1, 0)) == pytest.approx(math.sqrt((4.0 + 300.0**2) / 2))
     rot = np.array([[0.0, 1.0, 0.0], [1.0, 0.0, 0.0], [0.0, 0.0, 1.0]])  # principal axes as columns: x <-> y
-    assert pb.path_frequency(w, rot, (1, 0, 0)) == pytest.approx(300.0)
+    assert ppass.path_frequency(w, rot, (1, 0, 0)) == pytest.approx(300.0)
 
 
 def _tf_beyond_by_integration(u):
@@ -177,9 +178,9 @@ def _tf_beyond_by_integration(u):
 
 @pytest.mark.parametrize("u", [-1.0, -0.7, -0.2, 0.0, 0.35, 0.8, 1.0])
 def test_thomas_fermi_line_fraction_against_direct_integration(u):
-    assert float(pb.thomas_fermi_fraction_beyond(u)) == pytest.approx(_tf_beyond_by_integration(u), abs=1e-9)
+    assert float(ppass.thomas_fermi_fraction_beyond(u)) == pytest.approx(_tf_beyond_by_integration(u), abs=1e-9)
     r = 25e-6
-    assert float(pb.fraction_beyond(u * r, "thomas-fermi", r)) == pytest.approx(_tf_beyond_by_integration(u), abs=1e-9)
+    assert float(ppass.fraction_beyond(u * r, "thomas-fermi", r)) == pytest.approx(_tf_beyond_by_integration(u), abs=1e-9)
 
 
 def test_point_cloud_arrives_at_the_textbook_time():
@@ -188,8 +189,8 @@ def test_point_cloud_arrives_at_the_textbook_time():
     v, tau = 0.0195, 2e-3
     for d in (5e-6, 0.3e-3):
         t = math.sqrt(2 * d * tau / v) if d <= v * tau / 2 else tau + (d - v * tau / 2) / v
-        assert pb.time_to_fraction(0.5, d, v, tau, 0.0, "point", 0.0) == pytest.approx(t, rel=1e-6)
-        reached = pb.fraction_reached(np.array([0.999 * t, 1.001 * t]), d, v, tau, 0.0, "point", 0.0)
+        assert ppass.time_to_fraction(0.5, d, v, tau, 0.0, "point", 0.0) == pytest.approx(t, rel=1e-6)
+        reached = ppass.fraction_reached(np.array([0.999 * t, 1.001 * t]), d, v, tau, 0.0, "point", 0.0)
         assert reached.tolist() == [0.0, 1.0]
 
 
@@ -200,7 +201,7 @@ def test_point_cloud_with_a_velocity_spread_is_a_normal_tail():
     v, tau, sv, d = 0.0195, 2e-3, 5e-3, 0.3e-3
     t = np.array([5e-3, 12e-3, 16e-3, 25e-3])
     s = np.where(t < tau, 0.5 * v * t**2 / tau, v * (t - tau / 2))
-    np.testing.assert_allclose(pb.fraction_reached(t, d, v, tau, sv, "point", 0.0), norm.sf((d - s) / (sv * t)),
+    np.testing.assert_allclose(ppass.fraction_reached(t, d, v, tau, sv, "point", 0.0), norm.sf((d - s) / (sv * t)),
                                rtol=1e-9, atol=1e-12)
 
 
@@ -220,7 +221,7 @@ def test_fraction_reached_against_simulated_trajectories():
     s = np.where(steps < tau, 0.5 * v * steps**2 / tau, v * (steps - tau / 2))
     far = np.max(x0[:, None] + s[None, :] + u[:, None] * steps[None, :], axis=1)
     mc = float(np.mean(far >= d))
-    got = float(pb.fraction_reached(t_end, d, v, tau, sv, "thomas-fermi", R))
+    got = float(ppass.fraction_reached(t_end, d, v, tau, sv, "thomas-fermi", R))
     assert 0.1 < mc < 0.9
     assert got == pytest.approx(mc, abs=4 * math.sqrt(mc * (1 - mc) / x0.size) + 5e-3)
 
@@ -236,7 +237,7 @@ def demo():
 
 def _rep(res):
     act = next(a for a in res.shot.phys if a.kind == "barrier")
-    return pb.analyse(res.shot, act)
+    return pb.barrier_analysis(res.shot, act)
 
 
 def test_demo_incident_velocity_is_the_magnetic_kick(demo):
@@ -253,16 +254,16 @@ def test_demo_incident_velocity_is_the_magnetic_kick(demo):
     moment = -(energy(1.2e-4 + 1e-8) - energy(1.2e-4 - 1e-8)) / 2e-8
     v = abs(moment) * 0.08 * 2e-3 / M_NA
     rep = _rep(demo)
-    assert rep["speed"] == pytest.approx(v, rel=2e-4)
+    assert rep.speed == pytest.approx(v, rel=2e-4)
     g_f = -2.00229600 / 4 + 5 * (-0.00080461) / 4  # Lande formula, low-field limit: within 0.5 % at 1.2 G
     assert abs(moment) == pytest.approx(abs(g_f) * mu_b, rel=5e-3)
     # the low-field seeker |1,-1> (moment -dE/dB < 0, the seqgen.physics convention) is pushed towards weaker
     # field by a positive gradient of |B| (common practice, no source), the same sign as physics.push-velocity's
-    from seqgen.check import physics_states as ps
+    from seqgen import predict as ps
 
     push = next(a for a in demo.shot.phys if a.kind == "push")
-    assert rep["signed"] < 0 and ps.push_analysis(demo.shot, push)["velocity"] < 0
-    assert rep["E_mean"] == pytest.approx(0.5 * M_NA * (v**2 + rep["sigma_v"] ** 2), rel=5e-4)
+    assert rep.signed < 0 and ps.push_analysis(demo.shot, push)["velocity"] < 0
+    assert rep.E_mean == pytest.approx(0.5 * M_NA * (v**2 + rep.sigma_v ** 2), rel=5e-4)
 
 
 def test_demo_reports_a_meaningful_transmission_and_a_resolvable_weak_rotation(demo):
@@ -284,7 +285,7 @@ def test_demo_reports_a_meaningful_transmission_and_a_resolvable_weak_rotation(d
 def test_show_physics_lists_transmission_and_rotation(demo, capsys):
     from seqgen.cli import main
 
-    rows = [r for r in report_physics(demo.shot) if r["kind"] == "barrier"]
+    rows = [r for r in report_physics(demo.shot) if r.kind == "barrier"]
     assert len(rows) == 1
     text = " ".join(rows[0]["items"])
     assert "transmitted fraction" in text and "rotation" in text
@@ -301,10 +302,10 @@ def test_barrier_top_at_the_kinetic_energy_transmits_about_half(demo):
     shot = demo.shot
     act = next(a for a in shot.phys if a.kind == "barrier")
     rep = _rep(demo)
-    power = act.args["power"] * rep["E_mean"] / rep["V0"]
+    power = act.args["power"] * rep.E_mean / rep.V0
     act2 = replace(act, args={**act.args, "power": power}, index=act.index + 1000)
     shot2 = replace(shot, phys=tuple(act2 if a is act else a for a in shot.phys))
-    assert pb.analyse(shot2, act2)["T"] == pytest.approx(0.5, abs=0.05)
+    assert pb.barrier_analysis(shot2, act2)["T"] == pytest.approx(0.5, abs=0.05)
 
 
 def _fault(name):
@@ -351,8 +352,8 @@ def test_thermal_spread_is_maxwell_boltzmann(tmp_path):
     # smooths the transmission step, so the mean sits strictly between 0 and 1.
     res = _write(tmp_path, "{species: Na23, state: {F: 1, mF: -1}, atoms: 1.0e5, temperature: 200 nK}")
     rep = _rep(res)
-    assert rep["sigma_v"] == pytest.approx(math.sqrt(sc.k * 200e-9 / M_NA), rel=1e-4)
-    assert 0.1 < rep["T"] < 0.9 and rep["T_spread"] > 0.1
+    assert rep.sigma_v == pytest.approx(math.sqrt(sc.k * 200e-9 / M_NA), rel=1e-4)
+    assert 0.1 < rep.T < 0.9 and rep.T_spread > 0.1
 
 
 def test_condensate_spread_uses_the_thomas_fermi_radius_along_the_path(tmp_path):
@@ -367,7 +368,7 @@ def test_condensate_spread_uses_the_thomas_fermi_radius_along_the_path(tmp_path)
     mu = 0.5 * sc.hbar * wbar * (15 * 1e5 * 54.5 * sc.physical_constants["Bohr radius"][0] / a_ho) ** 0.4
     radius = math.sqrt(2 * mu / (M_NA * w[0] ** 2))
     rep = _rep(res)
-    assert rep["sigma_v"] == pytest.approx(1.60222 * sc.hbar / (M_NA * radius), rel=5e-3)
+    assert rep.sigma_v == pytest.approx(1.60222 * sc.hbar / (M_NA * radius), rel=5e-3)
 
 
 def _u_per_i_1064():
@@ -404,13 +405,13 @@ def test_demo_cloud_is_short_and_the_sheet_on_while_it_passes(demo):
     # below the 0.3 mm to the sheet, and the sheet is on from before the front to after the tail crosses it.
     rep = _rep(demo)
     r = _tf_radius_x(demo.shot.sample.atoms, [(0.65, 55e-6, "x"), (5e-3, 42e-6, "y")])
-    assert rep["cloud"]["profile"] == "thomas-fermi"
-    assert rep["cloud"]["size"] == pytest.approx(r, rel=0.02)
-    ps = rep["passage"]
+    assert rep.cloud["profile"] == "thomas-fermi"
+    assert rep.cloud["size"] == pytest.approx(r, rel=0.02)
+    ps = rep.passage
     assert ps["distance"] == pytest.approx(SHEET_X, rel=1e-12) and not ps["overlap"]
     assert r + SHEET_WY < 0.2 * SHEET_X
     # uniform acceleration over the 2 ms kick, then uniform motion (textbook), for the front and the tail
-    v, tau = rep["speed"], 2e-3
+    v, tau = rep.speed, 2e-3
     front = tau + (SHEET_X - r - SHEET_WY - v * tau / 2) / v
     tail = tau + (SHEET_X + r + SHEET_WY - v * tau / 2) / v
     act = next(a for a in demo.shot.phys if a.kind == "barrier")
@@ -418,7 +419,7 @@ def test_demo_cloud_is_short_and_the_sheet_on_while_it_passes(demo):
     assert act.t0 - push.t0 < front and tail < act.t1 - push.t0
     assert ps["early"] < 1e-3 and ps["late"] < 1e-3
     # the velocity spread of that short cloud, 1.602 hbar / (m R), still well below the kick
-    assert rep["sigma_v"] == pytest.approx(1.60222 * sc.hbar / (M_NA * r), rel=0.02) and rep["sigma_v"] < 0.02 * v
+    assert rep.sigma_v == pytest.approx(1.60222 * sc.hbar / (M_NA * r), rel=0.02) and rep.sigma_v < 0.02 * v
 
 
 def _fault_rep(name):
@@ -430,7 +431,7 @@ def test_guide_alone_cloud_overlaps_the_sheet():
     # the new-user trial's case: the guide alone holds 1.2e5 atoms, 1.3 Hz along the path -> R ~ 0.5 mm > 0.3 mm
     res, rep = _fault_rep("barrier_cloud_overlaps.yaml")
     r = _tf_radius_x(1.2e5, [(0.65, 55e-6, "x")])
-    assert rep["cloud"]["size"] == pytest.approx(r, rel=0.02) and r > SHEET_X
+    assert rep.cloud["size"] == pytest.approx(r, rel=0.02) and r > SHEET_X
     hits = [f for f in res.findings if f.code == "physics.cloud-overlaps-barrier"]
     assert len(hits) == 1 and hits[0].severity == "warning"
     assert dict(hits[0].data)["cloud_edge_m"] == pytest.approx(r, rel=0.02)
@@ -443,7 +444,7 @@ def test_short_sheet_misses_the_cloud_tail():
     res, rep = _fault_rep("barrier_too_short.yaml")
     act = next(a for a in res.shot.phys if a.kind == "barrier")
     push = next(a for a in res.shot.phys if a.kind == "push")
-    v, tau, r = rep["speed"], 2e-3, _tf_radius_x(6e4, [(0.65, 55e-6, "x"), (5e-3, 42e-6, "y")])
+    v, tau, r = rep.speed, 2e-3, _tf_radius_x(6e4, [(0.65, 55e-6, "x"), (5e-3, 42e-6, "y")])
     t_off = act.t1 - push.t0
     s = v * (t_off - tau / 2)
     missed = 1 - _tf_beyond_by_integration((SHEET_X + SHEET_WY - s) / r)
@@ -451,14 +452,14 @@ def test_short_sheet_misses_the_cloud_tail():
     hits = [f for f in res.findings if f.code == "physics.barrier-too-short"]
     assert len(hits) == 1 and dict(hits[0].data)["missed_fraction"] == pytest.approx(missed, abs=0.02)
     # the hint's duration lets 99 % across: the tail (u = -1 is the last atom) at most that late
-    assert rep["passage"]["need_off"] <= tau + (SHEET_X + SHEET_WY + r - v * tau / 2) / v + 5 * rep["sigma_v"] * t_off / v
+    assert rep.passage["need_off"] <= tau + (SHEET_X + SHEET_WY + r - v * tau / 2) / v + 5 * rep.sigma_v * t_off / v
 
 
 def test_late_sheet_misses_the_cloud_front():
     res, rep = _fault_rep("barrier_too_late.yaml")
     act = next(a for a in res.shot.phys if a.kind == "barrier")
     push = next(a for a in res.shot.phys if a.kind == "push")
-    v, tau, r = rep["speed"], 2e-3, _tf_radius_x(6e4, [(0.65, 55e-6, "x"), (5e-3, 42e-6, "y")])
+    v, tau, r = rep.speed, 2e-3, _tf_radius_x(6e4, [(0.65, 55e-6, "x"), (5e-3, 42e-6, "y")])
     s = v * (act.t0 - push.t0 - tau / 2)
     early = _tf_beyond_by_integration((SHEET_X - SHEET_WY - s) / r)
     hits = [f for f in res.findings if f.code == "physics.barrier-too-late"]
@@ -474,8 +475,8 @@ def test_thermal_cloud_edge_is_two_and_a_half_equipartition_widths(tmp_path, f_p
                            f"trap_frequencies: [{f_path} Hz, 300 Hz, 300 Hz]}}")
     rep = _rep(res)
     width = math.sqrt(sc.k * 200e-9 / M_NA) / (2 * np.pi * f_path)
-    assert rep["cloud"]["profile"] == "gaussian" and rep["cloud"]["size"] == pytest.approx(width, rel=1e-6)
-    assert rep["passage"]["edge"] == pytest.approx(2.5 * width, rel=1e-6)
+    assert rep.cloud["profile"] == "gaussian" and rep.cloud["size"] == pytest.approx(width, rel=1e-6)
+    assert rep.passage["edge"] == pytest.approx(2.5 * width, rel=1e-6)
     assert ("physics.cloud-overlaps-barrier" in [f.code for f in res.findings]) is overlaps
 
 
@@ -484,7 +485,7 @@ def test_push_away_from_the_sheet_gives_no_barrier_analysis():
     # the sheet at +x: the atoms never arrive, so no transmission (and no fixes built on one) is reported
     res = preflight(_fault("push_away_from_barrier.yaml"), compile_tables=False)
     act = next(a for a in res.shot.phys if a.kind == "barrier")
-    assert pb.incident_velocity(res.shot, act) is None and pb.analyse(res.shot, act) is None
+    assert pb.incident_velocity(res.shot, act) is None and pb.barrier_analysis(res.shot, act) is None
     codes = {f.code for f in res.findings}
     assert "physics.push-away-from-barrier" in codes
     assert not codes & set(MY_CODES)
@@ -495,7 +496,7 @@ def test_atom_counts_stay_non_negative_when_the_average_rounds_above_one(demo, m
     # that rounds to T = 1 + 2e-15 must give 0 reflected atoms, not -2.4e-10
     from dataclasses import replace
 
-    from seqgen.check.physics_traps import clear_caches
+    from seqgen.predict import clear_caches
     from seqgen.physics import scattering
 
     real = scattering.average_over_momentum
@@ -508,9 +509,9 @@ def test_atom_counts_stay_non_negative_when_the_average_rounds_above_one(demo, m
     clear_caches()
     shot = demo.shot
     act = next(a for a in shot.phys if a.kind == "barrier")
-    rep = pb.analyse(shot, act)
+    rep = pb.barrier_analysis(shot, act)
     clear_caches()
-    assert rep["T"] == 1.0 and rep["N_R"] == 0.0 and rep["N_T"] == shot.sample.atoms
+    assert rep.T == 1.0 and rep.N_R == 0.0 and rep.N_T == shot.sample.atoms
     msg = [f.message for f in pb.barrier_no_signal(shot)]
     clear_caches()
     assert msg and "only 0 reflected atoms" in msg[0] and "-" not in msg[0].split("atoms")[0]
