@@ -177,7 +177,7 @@ def drive_too_strong(shot):
         if rep.rotation > lim:
             yield make(DRIVE_TOO_STRONG, f"the modulated barrier rotates the transmitted spin by "
                        f"{rep.rotation:.3g} rad, above the weak-probe limit {lim:g} rad", act.pos, block=act.block,
-                       time_s=act.t0, hint=f"lower the modulation depth to about {rep.drive['depth'] * lim / rep.rotation * 0.8:.2g}",
+                       time_s=act.t0, hint=f"lower the modulation depth to about {rep.drive.depth * lim / rep.rotation * 0.8:.2g}",
                        data={"rotation_rad": rep.rotation, "limit_rad": lim})
 
 
