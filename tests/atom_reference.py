@@ -11,6 +11,7 @@ import math
 
 import numpy as np
 from scipy import constants as sc
+from scipy import integrate
 from scipy.integrate import solve_ivp
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
@@ -35,8 +36,10 @@ def breit_rabi_hz(F, m, B):
 
 
 def moment(F, mF, B=BIAS):
-    """-dE/dB (J/T) from the written-out Breit-Rabi energies (central difference)."""
+    """-dE/dB (J/T) from the written-out Breit-Rabi energies (central difference; the formula is for B >= 0,
+    so the difference is centred at B = h at least)."""
     h = 1e-8
+    B = max(B, h)
     return -(breit_rabi_hz(F, mF, B + h) - breit_rabi_hz(F, mF, B - h)) * sc.h / (2 * h)
 
 
@@ -99,3 +102,12 @@ def thermal_width_after(sigma0, temperature_k, tof, mass=MASS):
     Maxwell-Boltzmann velocity distribution uncorrelated with position; Phys. Rev. Lett. 77, 5315 (1996),
     the non-interacting limit)."""
     return math.sqrt(sigma0**2 + sc.k * temperature_k * tof**2 / mass)
+
+
+def thomas_fermi_fraction_beyond_by_integration(u):
+    """Fraction of a Thomas-Fermi condensate, n ~ 1 - x^2 - y^2 - z^2 in units of the radii (Rev. Mod. Phys. 71,
+    463 (1999)), with x > u: direct numerical integration over slabs and rings of the unit ball, normalised by its
+    integral 8 pi / 15."""
+    val, _ = integrate.dblquad(lambda rho, x: 2 * np.pi * rho * (1 - x * x - rho * rho), u, 1.0,
+                               lambda x: 0.0, lambda x: math.sqrt(max(1 - x * x, 0.0)), epsabs=1e-12)
+    return val / (8 * np.pi / 15)

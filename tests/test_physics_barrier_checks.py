@@ -1,5 +1,6 @@
-"""Barrier checks (seqgen/check/physics_barrier.py): helper functions against
-closed forms, and the pipeline on the demo and on the barrier fault files."""
+"""Barrier checks (seqgen/check/physics_barrier.py) and the barrier predictions (seqgen.predict.barrier): the
+pipeline on the demo and on the barrier fault files, against hand formulas. The closed-form physics they use
+is tested in tests/physics/test_barrier.py and tests/physics/test_passage.py."""
 
 import math
 from pathlib import Path
@@ -10,15 +11,13 @@ from scipy import constants as sc
 
 from seqgen import predict as pb
 from seqgen.check.physics_barrier import barrier_no_signal
-from seqgen.physics import barrier as pbar, passage as ppass
 from seqgen.show import physics_rows as report_physics
-from seqgen.physics.atoms import get_species
 from seqgen.pipeline import preflight
 
 from .atom_reference import A_1M1, BIAS, MASS as M_NA, dipole_u_per_intensity, gaussian_beam_omega2, moment
+from .atom_reference import thomas_fermi_fraction_beyond_by_integration as _tf_beyond_by_integration
 from .conftest import SEQUENCES
 
-NA = get_species("Na23")
 DEMO = SEQUENCES / "na23_barrier_scatter.yaml"
 RIG = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").resolve()
 
@@ -45,198 +44,6 @@ def kick_speed():
     """|v| = |mu| b' tau / m of |F=1, mF=-1> at the rig's bias, mu = -dE/dB from the Breit-Rabi formula
     (Phys. Rev. 38, 2082 (1931)) written out in tests/atom_reference.py."""
     return abs(moment(1, -1, BIAS)) * KICK_GRADIENT * KICK_TIME / M_NA
-
-
-# ---------------------------------------------------------------- closed forms used below
-
-def _rect_t(E, V0, a, m):
-    """Rectangular barrier on [0, a]: t = e^{-ika} / [cos(qa) - i (q^2 + k^2)/(2 k q) sin(qa)], complex q below
-    the top (derivation: plane waves e^{ikx} + r e^{-ikx} before, A e^{iqx} + B e^{-iqx} inside, t e^{ikx} after;
-    psi and psi' continuous at 0 and a give the four equations, solved for t)."""
-    k = np.sqrt(2 * m * E) / sc.hbar
-    q = np.sqrt(2 * m * (E - V0) + 0j) / sc.hbar
-    return np.exp(-1j * k * a) / (np.cos(q * a) - 1j * (q**2 + k**2) / (2 * k * q) * np.sin(q * a))
-
-
-def _poeschl_teller_T(E, V0, a, m):
-    """V0 / cosh^2(x/a): T = sinh^2(pi k a) / [sinh^2(pi k a) + cosh^2((pi/2) sqrt(8 m V0 a^2 / hbar^2 - 1))]
-    (Quantum Mechanics: Non-Relativistic Theory, 3rd ed., Pergamon (1977), section 25, problem 4)."""
-    k = np.sqrt(2 * m * E) / sc.hbar
-    g = 8 * m * V0 * a**2 / sc.hbar**2 - 1
-    ch2 = np.cosh(0.5 * np.pi * np.sqrt(g)) ** 2
-    sh2 = np.sinh(np.pi * k * a) ** 2
-    return sh2 / (sh2 + ch2)
-
-
-# ---------------------------------------------------------------- helpers
-
-def test_barrier_height_is_d1_d2_light_shift_times_peak_intensity():
-    # U = -sum_i w_i (3 pi c^2 / (2 w_i^3)) Gamma_i [1/(w_i - w) + 1/(w_i + w)] I, w_D2 = 2/3, w_D1 = 1/3
-    # (Adv. At. Mol. Opt. Phys. 42, 95 (2000)); Na D lines 589.158326 / 589.755815 nm, Gamma/2pi 9.795 / 9.765 MHz
-    # (Sodium D Line Data, from memory); I0 = 2P/(pi w w_y) for an elliptical Gaussian beam (any optics text).
-    P, w, wy, lam = 0.43e-3, 45e-6, 1.8e-6, 532e-9
-    omega = 2 * np.pi * sc.c / lam
-    u_per_i = 0.0
-    for weight, lam_i, gamma_hz in ((2 / 3, 589.158326e-9, 9.795e6), (1 / 3, 589.755815e-9, 9.765e6)):
-        w_i = 2 * np.pi * sc.c / lam_i
-        u_per_i -= weight * 3 * np.pi * sc.c**2 / (2 * w_i**3) * 2 * np.pi * gamma_hz * (1 / (w_i - omega) + 1 / (w_i + omega))
-    expected = u_per_i * 2 * P / (np.pi * w * wy)
-    got = pbar.barrier_height(NA, lam, P, w, wy)
-    assert got > 0  # 532 nm is blue of both D lines: repulsive
-    assert got == pytest.approx(expected, rel=2e-3)
-
-
-def test_sheet_grid_resolves_a_smooth_barrier_against_poeschl_teller():
-    # A barrier of the sheet's width on the grid the checks use, against the exact Poeschl-Teller transmission.
-    from seqgen.physics.scattering import transmission
-
-    a = 0.9e-6
-    V0 = 7.3e-30
-    energies = V0 * np.array([0.7, 0.9, 1.0, 1.1, 1.4])
-    k_max = math.sqrt(2 * M_NA * energies.max()) / sc.hbar
-    x = pbar.sheet_grid(a, k_max, half_width=16.0)  # cosh^-2 tails fall as exp(-2|x|/a): a wider window
-
-    def V(xx):
-        return V0 / np.cosh(xx / a) ** 2
-
-    T = transmission(x, V, energies, M_NA).T
-    np.testing.assert_allclose(T, _poeschl_teller_T(energies, V0, a, M_NA), atol=2e-4)
-
-
-def test_free_flight_rotation_is_the_gaussian_pulse_area():
-    # No barrier, weak resonant coupling Omega_peak exp(-2x^2/w^2): rotation = int Omega dt = sqrt(pi/2) Omega w / v
-    # (Larmor clock in free flight, angle = Omega L / v (common practice, no source); Gaussian integral).
-    wy, v = 1.8e-6, 0.0195
-    E = 0.5 * M_NA * v**2
-    omega = 2 * np.pi * 20.0
-    x = pbar.sheet_grid(wy, math.sqrt(2 * M_NA * E) / sc.hbar)
-    r = pbar.spin_rotation(x, pbar.gaussian_profile(wy), 0.0, omega, np.array([E]), M_NA)
-    expected = math.sqrt(math.pi / 2) * omega * wy / v
-    assert r.angle[0] == pytest.approx(expected, rel=1e-3)
-    assert pbar.free_flight_rotation(omega, wy, v) == pytest.approx(expected, rel=1e-12)
-    assert r.probability[0] == pytest.approx(1.0, abs=1e-9)
-
-
-def test_strong_resonant_coupling_rotates_by_the_full_pulse_area():
-    # A resonant pulse rotates the Bloch vector by its area (Phys. Rev. 51, 652 (1937)); here area = 1.3 rad,
-    # with the kinetic energy far above hbar Omega (a wide coupling region) so the motion is unaffected.
-    wy, v = 20e-6, 0.0195
-    E = 0.5 * M_NA * v**2
-    area = 1.3
-    omega = area * v / (math.sqrt(math.pi / 2) * wy)
-    assert sc.hbar * omega < 2e-2 * E
-    x = pbar.sheet_grid(wy, math.sqrt(2 * M_NA * E) / sc.hbar)
-    r = pbar.spin_rotation(x, pbar.gaussian_profile(wy), 0.0, omega, np.array([E]), M_NA)
-    assert r.angle[0] == pytest.approx(area, rel=1e-3)
-
-
-@pytest.mark.parametrize("ratio", [0.8, 1.0, 1.25])
-def test_rotation_in_a_rectangular_barrier_matches_the_dressed_state_closed_form(ratio):
-    # Coupling hbar Omega sigma_x / 2 with the barrier's own profile: the sigma_x eigenstates see barriers
-    # V0 +/- hbar Omega / 2 (Larmor clock construction, Phys. Rev. B 27, 6178 (1983)); from |down> the
-    # transmitted spinor is ((t+ - t-)/2, (t+ + t-)/2), so tan(theta/2) = |t+ - t-| / |t+ + t-|,
-    # with t+/- the rectangular amplitudes of _rect_t.
-    a = 2.0e-6
-    V0 = 7.3e-30
-    E = ratio * V0
-    omega = 0.05 * V0 / sc.hbar
-    x = np.linspace(0.0, a, 9)
-    r = pbar.spin_rotation(x, lambda xx: np.ones_like(np.asarray(xx, dtype=float)), V0, omega, np.array([E]), M_NA)
-    tp = _rect_t(E, V0 + 0.5 * sc.hbar * omega, a, M_NA)
-    tm = _rect_t(E, V0 - 0.5 * sc.hbar * omega, a, M_NA)
-    expected = 2 * math.atan2(abs(tp - tm), abs(tp + tm))
-    assert r.angle[0] == pytest.approx(expected, rel=1e-8)
-    assert r.probability[0] == pytest.approx(0.5 * (abs(tp) ** 2 + abs(tm) ** 2), rel=1e-8)
-
-
-@pytest.mark.parametrize("sign", [1.0, -1.0])
-def test_detuned_transit_follows_the_fourier_factor(sign):
-    # Weak coupling, no barrier, detuning delta: first-order amplitude ~ int Omega(vt) e^{i delta t} dt, so the
-    # rotation falls by exp(-delta^2 w^2 / (8 v^2)) (Fourier transform of a Gaussian). A wide coupling region
-    # keeps hbar delta << E, where the in-grid rotating-frame offset is exact to first order.
-    wy, v = 20e-6, 0.0195
-    E = 0.5 * M_NA * v**2
-    delta = 2.0 * v / wy
-    omega = 1e-3 * v / wy
-    assert sc.hbar * delta < 0.05 * E
-    k_max = math.sqrt(2 * M_NA * (E + sc.hbar * delta)) / sc.hbar
-    x = pbar.sheet_grid(wy, k_max)
-    g = pbar.gaussian_profile(wy)
-    on = pbar.spin_rotation(x, g, 0.0, omega, np.array([E]), M_NA).angle[0]
-    off = pbar.spin_rotation(x, g, 0.0, omega, np.array([E]), M_NA, partner_offset_j=-sign * sc.hbar * delta).angle[0]
-    assert off / on == pytest.approx(math.exp(-(delta * wy / v) ** 2 / 8), rel=2e-2)
-
-
-def test_path_frequency_of_a_harmonic_trap():
-    # Curvature along a unit direction d of V = (m/2) sum w_i^2 x_i^2: V(s d) = (m/2) s^2 sum d_i^2 w_i^2, so
-    # d^2V/ds^2 = m sum d_i^2 w_i^2 and w_d^2 = sum d_i^2 w_i^2 (derivation).
-    w = np.array([2.0, 300.0, 310.0])
-    assert ppass.path_frequency(w, None, (1, 0, 0)) == pytest.approx(2.0)
-    assert ppass.path_frequency(w, None, (1, 1, 0)) == pytest.approx(math.sqrt((4.0 + 300.0**2) / 2))
-    rot = np.array([[0.0, 1.0, 0.0], [1.0, 0.0, 0.0], [0.0, 0.0, 1.0]])  # principal axes as columns: x <-> y
-    assert ppass.path_frequency(w, rot, (1, 0, 0)) == pytest.approx(300.0)
-
-
-def _tf_beyond_by_integration(u):
-    """Fraction of a Thomas-Fermi condensate, n ~ 1 - x^2 - y^2 - z^2 in units of the radii (Bose-Einstein
-    Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008)), with x > u: direct numerical
-    integration over slabs and rings of the unit ball, normalised by its integral 8 pi / 15."""
-    from scipy import integrate
-
-    val, _ = integrate.dblquad(lambda rho, x: 2 * np.pi * rho * (1 - x * x - rho * rho), u, 1.0,
-                               lambda x: 0.0, lambda x: math.sqrt(max(1 - x * x, 0.0)), epsabs=1e-12)
-    return val / (8 * np.pi / 15)
-
-
-@pytest.mark.parametrize("u", [-1.0, -0.7, -0.2, 0.0, 0.35, 0.8, 1.0])
-def test_thomas_fermi_line_fraction_against_direct_integration(u):
-    assert float(ppass.thomas_fermi_fraction_beyond(u)) == pytest.approx(_tf_beyond_by_integration(u), abs=1e-9)
-    r = 25e-6
-    assert float(ppass.fraction_beyond(u * r, "thomas-fermi", r)) == pytest.approx(_tf_beyond_by_integration(u), abs=1e-9)
-
-
-def test_point_cloud_arrives_when_the_kinematics_say():
-    # uniform acceleration v / tau from rest over the push tau, s = v t^2 / (2 tau), then uniform motion,
-    # s = v (t - tau / 2); solving s = d: t = sqrt(2 d tau / v) while d <= v tau / 2, else
-    # t = tau + (d - v tau / 2) / v (derivation)
-    v, tau = 0.0195, 2e-3
-    for d in (5e-6, 0.3e-3):
-        t = math.sqrt(2 * d * tau / v) if d <= v * tau / 2 else tau + (d - v * tau / 2) / v
-        assert ppass.time_to_fraction(0.5, d, v, tau, 0.0, "point", 0.0) == pytest.approx(t, rel=1e-6)
-        reached = ppass.fraction_reached(np.array([0.999 * t, 1.001 * t]), d, v, tau, 0.0, "point", 0.0)
-        assert reached.tolist() == [0.0, 1.0]
-
-
-def test_point_cloud_with_a_velocity_spread_is_a_normal_tail():
-    # position s(t) + u t with u ~ N(0, sigma_v^2): reached when u >= (d - s)/t, P = normal survival function
-    from scipy.stats import norm
-
-    v, tau, sv, d = 0.0195, 2e-3, 5e-3, 0.3e-3
-    t = np.array([5e-3, 12e-3, 16e-3, 25e-3])
-    s = np.where(t < tau, 0.5 * v * t**2 / tau, v * (t - tau / 2))
-    np.testing.assert_allclose(ppass.fraction_reached(t, d, v, tau, sv, "point", 0.0), norm.sf((d - s) / (sv * t)),
-                               rtol=1e-9, atol=1e-12)
-
-
-def test_fraction_reached_against_simulated_trajectories():
-    # Monte Carlo of the same kinematics, independent of the convexity shortcut: atoms drawn from the 3D
-    # Thomas-Fermi profile (uniform in the ball, accepted with probability 1 - r^2) and a Gaussian velocity offset,
-    # stepped through time; "reached" = at or beyond d at any step (common practice, no source)
-    rng = np.random.default_rng(20240611)
-    pts = rng.uniform(-1, 1, size=(400000, 3))
-    r2 = np.sum(pts**2, axis=1)
-    keep = (r2 < 1) & (rng.uniform(size=r2.size) < 1 - r2)
-    R, v, tau, sv, d = 30e-6, 0.0195, 2e-3, 2e-3, 0.3e-3
-    x0 = R * pts[keep, 0][:40000]
-    u = sv * rng.standard_normal(x0.size)
-    t_end = 16.5e-3
-    steps = np.linspace(0.0, t_end, 400)
-    s = np.where(steps < tau, 0.5 * v * steps**2 / tau, v * (steps - tau / 2))
-    far = np.max(x0[:, None] + s[None, :] + u[:, None] * steps[None, :], axis=1)
-    mc = float(np.mean(far >= d))
-    got = float(ppass.fraction_reached(t_end, d, v, tau, sv, "thomas-fermi", R))
-    assert 0.1 < mc < 0.9
-    assert got == pytest.approx(mc, abs=4 * math.sqrt(mc * (1 - mc) / x0.size) + 5e-3)
 
 
 # ---------------------------------------------------------------- pipeline
