@@ -184,7 +184,7 @@ def test_ioffe_pritchard_frequencies_in_the_report(tmp_path):
     got = [float(x) for x in item.split()[-2].split("/")]
     assert got[0] == pytest.approx(f_rho, rel=2e-3) and got[1] == pytest.approx(f_z, rel=2e-3)
     sag = next(i for i in row["items"] if i.startswith("gravity sag"))
-    # horizontal axis: sag g_n / omega_rho^2 (textbook)
+    # horizontal axis: the minimum of m omega_rho^2 x^2 / 2 + m g_n x lies at x = -g_n / omega_rho^2 (derivation)
     assert float(sag.split()[2]) == pytest.approx(G_N / (2 * math.pi * f_rho) ** 2 * 1e6, rel=5e-3)
 
 
