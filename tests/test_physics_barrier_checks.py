@@ -314,7 +314,7 @@ def test_push_away_from_the_sheet_gives_no_barrier_analysis():
 
 
 def test_atom_counts_stay_non_negative_when_the_average_rounds_above_one(demo, monkeypatch):
-    # T + R = 1 with 0 <= T <= 1 for a lossless 1D barrier (unitarity, any quantum mechanics text): a quadrature
+    # T + R = 1 with 0 <= T <= 1 for a lossless 1D barrier (probability current conserved: |t|^2 + |r|^2 = 1): a quadrature
     # that rounds to T = 1 + 2e-15 must give 0 reflected atoms, not -2.4e-10
     from dataclasses import replace
 

@@ -42,7 +42,8 @@ def _poeschl_teller_T(E, V0, a, m):
 def test_barrier_height_is_d1_d2_light_shift_times_peak_intensity():
     # U = -sum_i w_i (3 pi c^2 / (2 w_i^3)) Gamma_i [1/(w_i - w) + 1/(w_i + w)] I, w_D2 = 2/3, w_D1 = 1/3
     # (Adv. At. Mol. Opt. Phys. 42, 95 (2000)); Na D lines 589.158326 / 589.755815 nm, Gamma/2pi 9.795 / 9.765 MHz
-    # (Sodium D Line Data, from memory); I0 = 2P/(pi w w_y) for an elliptical Gaussian beam (any optics text).
+    # (Sodium D Line Data, from memory); I0 = 2P/(pi w w_y) for an elliptical Gaussian beam
+    # (the integral of I0 exp(-2x^2/w^2 - 2y^2/w_y^2) over the plane is I0 pi w w_y / 2).
     P, w, wy, lam = 0.43e-3, 45e-6, 1.8e-6, 532e-9
     omega = 2 * np.pi * sc.c / lam
     u_per_i = 0.0

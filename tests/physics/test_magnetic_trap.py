@@ -105,7 +105,7 @@ def test_high_field_seeker_and_mf0_get_no_support():
 def test_ioffe_pritchard_frequencies_published_form_and_field_expansion():
     # omega_rho = sqrt(mu/m (B'^2/B0 - B''/2)), omega_z = sqrt(mu B''/m) (Phys. Rev. Lett. 51, 1336 (1983)),
     # with |mu| = mu_B/2; and against finite differences of the exact Ioffe-Pritchard field
-    # B = B0 z + B'(x, -y, 0) + (B''/2)(-x z, -y z, z^2 - (x^2 + y^2)/2) (textbook form, div B = curl B = 0)
+    # B = B0 z + B'(x, -y, 0) + (B''/2)(-x z, -y z, z^2 - (x^2 + y^2)/2) (the second-order form with div B = 0 and curl B = 0, checkable by hand)
     b0, b1, b2 = 0.5e-4, 1.5, 100.0  # 0.5 G, 150 G/cm, 100 G/cm^2
     mu = MU_B / 2
     w_rho, w_z = mt.ioffe_pritchard_frequencies(LFS_HALF, b1, b2, b0, M_NA23)
@@ -137,7 +137,7 @@ def test_harmonic_sag_against_numerical_minimum():
 
         r_min = optimize.minimize(u, np.zeros(3), method="Powell", options={"xtol": 1e-10, "ftol": 1e-16}).x * 1e-6
         assert mt.harmonic_sag(w_rho, w_z, axis) == pytest.approx(np.linalg.norm(r_min), rel=1e-5)
-    # horizontal axis: g / omega_rho^2, the textbook sag (gravity_sag)
+    # horizontal axis: g / omega_rho^2, the minimum of m omega_rho^2 x^2 / 2 + m g x (gravity_sag)
     assert mt.harmonic_sag(w_rho, w_z, (1, 0, 0)) == pytest.approx(mt.gravity_sag(w_rho), rel=1e-12)
 
 
