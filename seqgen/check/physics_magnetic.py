@@ -11,7 +11,7 @@ from ..findings import make
 from ..physics.magnetic_trap import trappable_states
 from ..predict.magnetic import MIN_MOMENT, MU_B, hold_analysis, holds
 from ..predict.species import species
-from ..predict.text import fmt_t, g_cm, g_cm2, gauss, state_text, unconfined_text, weakest_text
+from ..predict.text import fmt_t, g_cm, g_cm2, gauss, level_problem_text, state_text, unconfined_text, weakest_text
 from .rules import rule
 
 MIN_SPIN_ADIABATICITY = 10.0  # Larmor frequency over the trap and field-rotation rates (common practice, no source)
@@ -32,7 +32,7 @@ def state_not_trappable(shot):
         rep = hold_analysis(shot, act)
         if rep.bad_state:
             yield make(STATE_NOT_TRAPPABLE, f"the held state is not a ground level of {rep.species}: "
-                       f"{rep.bad_state}", act.pos, block=act.block, time_s=act.t0,
+                       f"{level_problem_text(rep.bad_state)}", act.pos, block=act.block, time_s=act.t0,
                        hint="give the state's F and mF of the species' ground levels")
             continue
         if rep.moment is None or rep.trappable:

@@ -11,12 +11,13 @@ from __future__ import annotations
 
 from .barrier import BarrierPrediction, analyse as barrier_analysis, cloud_along_path, incident_velocity
 from .cache import clear_shot_cache, per_shot_cache
-from .cloud import CloudAtImage, ImagePrediction, Separation, cloud_at_image, image_prediction, separation_analysis
+from .cloud import (CloudAtImage, ImagePrediction, Separation, SizeUnknown, cloud_at_image, image_prediction,
+                    separation_analysis)
 from .imaging import ProbePrediction, probe_analysis
 from .magnetic import HoldPrediction, hold_analysis
 from .pushes import Components, PushPrediction, components_at, push_analysis
 from .report import PhysicsRow, report_rows
-from .species import gaussian_beams, species
+from .species import LevelProblem, gaussian_beams, species
 from .states import (BarrierDrive, Interferometer, Populations, PulsePrediction, SweepPrediction,
                      barrier_drive_analysis, interferometer_analysis, interferometers, populated_states,
                      populations, pulse_analysis, state_fractions, sweep_analysis)
@@ -24,8 +25,8 @@ from .traps import HeldTrap, TrapStage, held, trap_stage, trap_stage_prediction
 
 __all__ = [
     "BarrierDrive", "BarrierPrediction", "CloudAtImage", "Components", "HeldTrap", "HoldPrediction",
-    "ImagePrediction", "Interferometer", "PhysicsRow", "Populations", "ProbePrediction", "PulsePrediction",
-    "PushPrediction", "Separation", "SweepPrediction", "TrapStage",
+    "ImagePrediction", "Interferometer", "LevelProblem", "PhysicsRow", "Populations", "ProbePrediction", "PulsePrediction",
+    "PushPrediction", "Separation", "SizeUnknown", "SweepPrediction", "TrapStage",
     "barrier_analysis", "barrier_drive_analysis", "clear_caches", "cloud_along_path", "cloud_at_image",
     "components_at", "gaussian_beams", "held", "hold_analysis", "image_prediction", "incident_velocity",
     "interferometer_analysis", "interferometers", "per_shot_cache", "populated_states", "populations",

@@ -69,7 +69,8 @@ from ..physics.barrier import barrier_height, free_flight_rotation, gaussian_pro
 from ..physics.passage import fraction_reached, path_frequency, time_to_fraction
 from .cache import per_shot_cache
 from .pushes import push_analysis
-from .species import gaussian_beams, species
+from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, species,
+                      unevaluable)
 
 DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
 N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
@@ -135,7 +136,7 @@ class Passage:
 @dataclass(frozen=True)
 class InBarrierDrive:
     """The modulated sheet's coupling of the sample state (initial) to its partner. unsupported: why there is
-    none ("not_in_transition", "changes_mf", "no_coupling" with `error`); else rabi_peak (rad/s), the
+    none ("not_in_transition", "changes_mf", "no_coupling" with `problem`, a species.LevelProblem); else rabi_peak (rad/s), the
     partner's light shift and rotating-frame offset (J), the bare line (Hz), the modulation's detuning from
     it (Hz), assumed_resonant (no modulation frequency), far_off (no transfer in the transit time)."""
 
@@ -143,7 +144,7 @@ class InBarrierDrive:
     partner: tuple | None
     depth: float
     unsupported: str | None = None
-    error: str | None = None
+    problem: LevelProblem | None = None
     rabi_peak: float | None = None
     transition_hz: float | None = None
     detuning_hz: float | None = None
@@ -339,14 +340,21 @@ def _drive_model(shot, act, sp, beam, waist_y, speed) -> InBarrierDrive | None:
         return InBarrierDrive(**out, unsupported="not_in_transition")
     if partner[1] != initial[1]:
         return InBarrierDrive(**out, unsupported="changes_mf")
+    i = sp.nuclear_spin
     try:
+        # the refusals of seqgen.physics (optical, drive, zeeman), in their order, as data
+        problem = (LevelProblem(BAD_DEPTH, depth=float(eps)) if not 0 <= float(eps) <= 1
+                   else LevelProblem(NO_PARTNER, None, initial[1], sp.name, i) if abs(float(initial[1])) > i - 0.5 + 1e-9
+                   else level_problem(sp, *initial) or level_problem(sp, *partner))
+        if problem:
+            return InBarrierDrive(**out, unsupported="no_coupling", problem=problem)
         i_peak = float(modulated_peak_intensity(act.args["power"], beam.waist_m, waist_y, eps))
         d = two_photon_rabi_from_modulated_beam(i_peak, eps, beam.wavelength_m, m_f=initial[1],
                                                 polarization=1.0, atom=sp)
         f = float(transition_frequency(initial[0], initial[1], partner[0], partner[1], shot.rig.bias_field_t or 0.0,
                                        atom=sp))
     except (ValueError, TypeError) as exc:
-        return InBarrierDrive(**out, unsupported="no_coupling", error=str(exc))
+        return InBarrierDrive(**out, unsupported="no_coupling", problem=unevaluable(sp, initial, exc))
     sign = 1.0 if f > 0 else -1.0
     f_mod = act.args.get("mod_frequency")
     detuning_hz = (f_mod - abs(f)) if f_mod else 0.0  # modulation above the bare line > 0

@@ -30,11 +30,17 @@ EQUAL_MOMENT = 0.01 * MU_B  # moments closer than this cannot be separated
 SEPARATION_WIDTHS = 3.0  # components count as resolved this many combined rms widths apart
 
 
+# which trap the release opened (CloudAtImage.trap)
+TRAP_SAMPLE, TRAP_OPTICAL, TRAP_IOFFE_PRITCHARD, TRAP_QUADRUPOLE = "sample", "optical", "ioffe_pritchard", "quadrupole"
+
+
 @dataclass(frozen=True, eq=False)
 class CloudAtImage:
     """The cloud released before an image: tof (s), drop (m, g_n tof^2 / 2), size (m) and size_kind
     ("Thomas-Fermi radius" or "rms width"), omegas (rad/s, of the trap the release opened; None for a linear
-    magnetic trap), trap (which trap), sigma0 (in-trap rms width, m, thermal only), note."""
+    magnetic trap), trap (which trap: one of the TRAP_* codes), trap_block (the magnetic hold's block),
+    sigma0 (in-trap rms width, m, thermal only), thermal_stand_in (a condensate in a linear trap, sized as a
+    thermal cloud at the sample's temperature)."""
 
     tof: float
     drop: float
@@ -43,10 +49,12 @@ class CloudAtImage:
     size: float
     size_kind: str
     sigma0: float | None = None
-    note: str | None = None
+    trap_block: str | None = None
+    thermal_stand_in: bool = False
 
     def as_dict(self) -> dict:
-        return {f: getattr(self, f) for f in ("tof", "drop", "omegas", "trap", "size", "size_kind", "sigma0", "note")}
+        return {f: getattr(self, f) for f in ("tof", "drop", "omegas", "trap", "trap_block", "size", "size_kind",
+                                              "sigma0", "thermal_stand_in")}
 
     @property
     def edge(self) -> float:
@@ -70,6 +78,29 @@ class ImageComponent:
     parts: tuple
 
 
+# why an image has no cloud size (SizeUnknown.reason)
+IN_SITU = "in_situ"  # no release before the image
+TRAP_EMPTY = "trap_empty"  # the trap beams on before the release hold no atoms
+NO_TRAP = "no_trap"  # no trap beams, no magnetic hold, no sample trap_frequencies
+QUADRUPOLE_NEEDS_TEMPERATURE = "quadrupole_needs_temperature"
+QUADRUPOLE_FLAT = "quadrupole_flat"  # a direction without gradient
+HOLD_NO_SIZE = "hold_no_size"  # the magnetic hold gives no trap (see `hold`)
+NO_SCATTERING_LENGTH = "no_scattering_length"
+NO_TEMPERATURE = "no_temperature"  # thermal sample without a temperature
+NO_TEMPERATURE_NOR_ATOMS = "no_temperature_nor_atoms"  # condensate without an atom number or a temperature
+
+
+@dataclass(frozen=True, eq=False)
+class SizeUnknown:
+    """Why an image has no cloud size: reason (one of the codes above), block of the magnetic hold, species
+    name, and the hold's prediction (magnetic.HoldPrediction) for HOLD_NO_SIZE."""
+
+    reason: str
+    block: str | None = None
+    species: str | None = None
+    hold: object = None
+
+
 @dataclass(frozen=True, eq=False)
 class ImagePrediction:
     """Everything known of the cloud at an image (see `image_prediction`)."""
@@ -78,7 +109,7 @@ class ImagePrediction:
     release: object = None
     tof: float | None = None
     cloud: CloudAtImage | None = None
-    why: str | None = None
+    why: SizeUnknown | None = None
     components: tuple = ()
     unknown: tuple = ()
     signs: np.ndarray | None = None
@@ -110,65 +141,59 @@ def _magnetic_hold_before(shot, t):
 
 
 def _trap_before_release(shot, sp, rel):
-    """(omegas or None, rms widths in a linear trap or None, text, reason) of the trap the release opens."""
+    """(omegas or None, rms widths in a linear trap or None, trap code, block of a magnetic hold, SizeUnknown or
+    None) of the trap the release opens."""
     from ..physics.kinematics import linear_trap_rms_widths
 
     if shot.sample.trap_frequencies_hz:
-        return 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz, dtype=float), None, "the sample's trap_frequencies", None
+        return 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz, dtype=float), None, TRAP_SAMPLE, None, None
     beams = gaussian_beams(shot, [rel.t0 - 1e-9])[0]
     if beams:
         omegas = held(sp, tuple(beams)).omegas
         if omegas is None or not np.all(np.isfinite(omegas)):
-            return None, None, None, "the trap beams on before the release hold no atoms (no trap frequencies)"
-        return omegas, None, "the optical trap", None
+            return None, None, None, None, SizeUnknown(TRAP_EMPTY)
+        return omegas, None, TRAP_OPTICAL, None, None
     hold = _magnetic_hold_before(shot, rel.t0)
     if hold is None:
-        return None, None, None, ("no trap is known before the release: no trap beams on, no magnetic_hold, and the "
-                                  "sample gives no trap_frequencies")
+        return None, None, None, None, SizeUnknown(NO_TRAP)
     rep = hold_analysis(shot, hold)
-    where = f"the magnetic trap of block '{hold.block}'"
     if rep.omega_radial:
         w_r, w_z = rep.omega_radial, rep.omega_axial
-        return np.array([w_r, w_r, w_z]), None, f"{where} (Ioffe-Pritchard)", None
+        return np.array([w_r, w_r, w_z]), None, TRAP_IOFFE_PRITCHARD, hold.block, None
     if rep.kind == "quadrupole" and rep.trappable:
         temp = shot.sample.temperature_k
         grads = np.abs(np.linalg.eigvalsh(np.asarray(rep.matrix, dtype=float)))
         if not temp:
-            return None, None, None, f"{where} is a linear quadrupole: its cloud size needs the sample's temperature"
+            return None, None, None, None, SizeUnknown(QUADRUPOLE_NEEDS_TEMPERATURE, hold.block)
         if not np.all(grads > 0):
-            return None, None, None, f"{where} has a direction without gradient: the cloud is not confined"
-        return None, linear_trap_rms_widths(temp, rep.moment, grads), f"{where} (linear quadrupole)", None
-    unconfined = {"axial": "axially: the curvature B'' is not positive",
-                  "radial": "radially: B'^2/B0 < B''/2"}.get(rep.unconfined)
-    why = rep.bad_state or unconfined or ("the held state is not trappable" if rep.trappable is not None
-                                          else "the trap could not be evaluated")
-    return None, None, None, f"{where} gives no cloud size: {why}"
+            return None, None, None, None, SizeUnknown(QUADRUPOLE_FLAT, hold.block)
+        return None, linear_trap_rms_widths(temp, rep.moment, grads), TRAP_QUADRUPOLE, hold.block, None
+    return None, None, None, None, SizeUnknown(HOLD_NO_SIZE, hold.block, hold=rep)
 
 
 def _cloud_size(shot, img, rel):
-    """(cloud dict, None) or (None, reason) for the cloud released by `rel` and imaged by `img`."""
+    """(CloudAtImage, None) or (None, SizeUnknown) for the cloud released by `rel` and imaged by `img`."""
     from ..physics.expansion import condensate_tof_radii, thermal_width, thomas_fermi
 
     sp = species(shot)
     tof = img.t0 - rel.t0
     drop = 0.5 * G_N * tof ** 2
-    omegas, widths, trap, why = _trap_before_release(shot, sp, rel)
+    omegas, widths, trap, block, why = _trap_before_release(shot, sp, rel)
     if why:
         return None, why
     s = shot.sample
-    cloud = {"tof": tof, "drop": drop, "omegas": omegas, "trap": trap}
+    cloud = {"tof": tof, "drop": drop, "omegas": omegas, "trap": trap, "trap_block": block}
     if s.condensed and s.atoms and omegas is not None:
         a = next(iter(sp.scattering_lengths_m.values()), None)
         a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", a)
         if not a or a <= 0:
-            return None, f"no positive scattering length of {sp.name} for a Thomas-Fermi condensate"
+            return None, SizeUnknown(NO_SCATTERING_LENGTH, species=sp.name)
         _, radii = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
         r = condensate_tof_radii(radii, omegas, np.array([tof]))
         cloud.update(size=float(np.max(np.asarray(r).reshape(3, -1)[:, -1])), size_kind="Thomas-Fermi radius")
         return CloudAtImage(**cloud), None
     if not s.temperature_k:
-        return None, ("the sample gives neither a temperature nor, for a condensate, an atom number"
-                      if s.condensed else "the sample has no temperature")
+        return None, SizeUnknown(NO_TEMPERATURE_NOR_ATOMS if s.condensed else NO_TEMPERATURE)
     if widths is not None:
         sigma0 = np.asarray(widths, dtype=float)  # 2 k_B T / (|mu| b'_i) per principal axis
     else:
@@ -176,7 +201,7 @@ def _cloud_size(shot, img, rel):
     cloud.update(size=float(np.max(thermal_width(sigma0, s.temperature_k, sp.mass_kg, tof))), size_kind="rms width",
                  sigma0=float(np.max(sigma0)))
     if s.condensed:
-        cloud["note"] = "condensate in a linear trap: sized as a thermal cloud at the sample's temperature"
+        cloud["thermal_stand_in"] = True
     return CloudAtImage(**cloud), None
 
 
@@ -207,7 +232,7 @@ def image_prediction(shot, img) -> ImagePrediction | None:
     setup = shot.rig.imaging.get(img.args.get("setup"))
     rel = _release_before(shot, img.t0)
     if rel is None:
-        return ImagePrediction(setup, why="no release before the image (an in-situ image): no time-of-flight prediction")
+        return ImagePrediction(setup, why=SizeUnknown(IN_SITU))
     tof = img.t0 - rel.t0
     cloud, why = _cloud_size(shot, img, rel)
     gravity = np.array([0.0, 0.0, -0.5 * G_N * tof ** 2])

@@ -24,7 +24,7 @@ from scipy import constants as sc
 
 from ..values import value_at
 from .cache import per_shot_cache
-from .species import actions, species
+from .species import LevelProblem, actions, level_problem, species, unevaluable
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
 UP = (0.0, 0.0, 1.0)
@@ -35,8 +35,8 @@ MIN_MOMENT = 0.01 * MU_B  # below this a field minimum holds nothing (as for phy
 class HoldPrediction:
     """One magnetic hold, SI numbers. kind: "quadrupole", "ioffe_pritchard" or "unknown" (bad_axes: coils
     whose axis is no direction). unconfined: "axial" or "radial" when the Ioffe-Pritchard field does not
-    confine; field_zero: its bias B0 <= 0. bad_state: why the held state has no moment (error of the
-    Breit-Rabi evaluation). Fields that do not apply are None."""
+    confine; field_zero: its bias B0 <= 0. bad_state: why the held state has no moment
+    (species.LevelProblem). Fields that do not apply are None."""
 
     t_hold: float
     duration: float
@@ -56,7 +56,7 @@ class HoldPrediction:
     strongest_gradient: float | None = None
     axial: tuple | None = None  # (coil name, gradient T/m along its axis)
     moment: float | None = None
-    bad_state: str | None = None
+    bad_state: LevelProblem | None = None
     trappable: bool | None = None
     speed: float | None = None
     support: float | None = None
@@ -147,9 +147,12 @@ def _hold(shot, act) -> dict:
     if sp is None or state is None:
         return rep
     try:
-        rep["moment"] = _moment(sp, state, bottom)
-    except (ValueError, OverflowError, TypeError) as exc:  # a state the species has not, or absurd numbers
-        rep["bad_state"] = str(exc)
+        problem = level_problem(sp, *state)  # a state the species has not
+        rep["moment"] = None if problem else _moment(sp, state, bottom)
+    except (ValueError, OverflowError, TypeError) as exc:  # absurd numbers
+        problem = unevaluable(sp, state, exc)
+    if problem:
+        rep["bad_state"] = problem
         return rep
     rep["trappable"] = rep["moment"] < -MIN_MOMENT
     if not rep["trappable"]:

@@ -88,16 +88,16 @@ def _trap_rows(shot) -> list:
 def _image_items(pred) -> list:
     """The lines of one image: flight, size (or why unknown), geometry, each component."""
     if pred.release is None:
-        return [pred.why]
+        return [tx.size_unknown_text(pred.why)]
     c = pred.cloud
     items = [f"time of flight {pred.tof * 1e3:.4g} ms",
              f"free fall {0.5 * tx.G_N * pred.tof ** 2 * 1e3:.3g} mm below release"]
     if c is None:
-        items.append(f"no size prediction: {pred.why}; centres alone are checked")
+        items.append(f"no size prediction: {tx.size_unknown_text(pred.why)}; centres alone are checked")
     else:
-        items.append(f"{c.size_kind} {tx.length_text(c.size)} (released from {c.trap})")
-        if c.note:
-            items.append(c.note)
+        items.append(f"{c.size_kind} {tx.length_text(c.size)} (released from {tx.trap_text(c)})")
+        if c.thermal_stand_in:
+            items.append(tx.THERMAL_STAND_IN)
     setup = pred.setup
     if pred.los is not None:
         items.append(f"camera looks along {tx.vec_text(pred.los)} (probe beam '{setup.probe_beam}'), image plane perpendicular")
@@ -290,7 +290,7 @@ def _magnetic_rows(shot) -> list:
             items.append(f"Ioffe-Pritchard trap: B0 {tx.gauss(rep.bias)}, B' {tx.g_cm(rep.gradient)}, "
                          f"B'' {tx.g_cm2(rep.curvature)}")
         if rep.bad_state:
-            items.append(rep.bad_state)
+            items.append(tx.level_problem_text(rep.bad_state))
         if rep.moment is not None:
             kind = "low-field seeker" if rep.trappable else "not trappable"
             items.append(f"{tx.state_text(rep.state)}: moment -dE/dB {rep.moment / MU_B:+.4g} mu_B ({kind})")

@@ -3,6 +3,8 @@ the sample state and the two levels a drive couples (Breit-Rabi line and its fie
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 from scipy import constants as sc
 
@@ -67,10 +69,57 @@ def other_level(sp, state):
     return (int(round(other)), int(mF))
 
 
+# why a level's numbers could not be had (LevelProblem.kind)
+NOT_GROUND_LEVEL = "not_ground_level"  # a declared drive state that is not a ground level
+BAD_F = "bad_F"  # F is neither I - 1/2 nor I + 1/2
+BAD_MF = "bad_mF"  # mF is not a sublevel of F
+NO_PARTNER = "no_partner"  # mF exists only in F = I + 1/2: no hyperfine partner at equal mF
+BAD_DEPTH = "bad_depth"  # a modulation depth outside [0, 1]
+UNEVALUABLE = "unevaluable"  # the species' data or the numbers could not be evaluated (error: exception type)
+
+
+@dataclass(frozen=True)
+class LevelProblem:
+    """Why a level (F, mF) of the species has no numbers: kind (one of the codes above), F and mF as given,
+    the species' name and nuclear spin, depth (BAD_DEPTH), error (UNEVALUABLE: the exception's type)."""
+
+    kind: str
+    F: object = None
+    mF: object = None
+    species: str | None = None
+    nuclear_spin: float | None = None
+    depth: float | None = None
+    error: str | None = None
+
+
+class LevelError(ValueError):
+    """A drive's declared state is not a ground level (`problem` says which)."""
+
+    def __init__(self, problem: LevelProblem):
+        super().__init__(problem.kind)
+        self.problem = problem
+
+
+def level_problem(sp, F, mF) -> LevelProblem | None:
+    """The problem of |F, mF> as a ground level of `sp`, in the order seqgen.physics.zeeman checks it, or None."""
+    i = sp.nuclear_spin
+    f, m = float(F), float(mF)
+    if not (abs(f - (i + 0.5)) < 1e-9 or abs(f - (i - 0.5)) < 1e-9):
+        return LevelProblem(BAD_F, F, mF, sp.name, i)
+    if abs(m) > f + 1e-9 or abs((f - m) - round(f - m)) > 1e-9:
+        return LevelProblem(BAD_MF, F, mF, sp.name, i)
+    return None
+
+
+def unevaluable(sp, state, exc) -> LevelProblem:
+    return LevelProblem(UNEVALUABLE, state[0] if state else None, state[1] if state else None,
+                        getattr(sp, "name", None), getattr(sp, "nuclear_spin", None), error=type(exc).__name__)
+
+
 def transition_pair(shot, sp, declared=None):
     """(initial, final) of a drive: the declared pair (sample state first when it is one of
     them), else the sample state and the other hyperfine level at equal mF; None if unknown.
-    ValueError when a declared state is not a ground level."""
+    LevelError when a declared state is not a ground level."""
     state = sample_state(shot)
     if declared:
         a, b = (tuple(int(x) for x in s) for s in declared)
@@ -78,7 +127,7 @@ def transition_pair(shot, sp, declared=None):
             i = sp.nuclear_spin
             for F, mF in (a, b):
                 if min(abs(F - (i - 0.5)), abs(F - (i + 0.5))) > 1e-9 or abs(mF) > F:
-                    raise ValueError(f"|F={F}, mF={mF}> is not a ground level of {sp.name}")
+                    raise LevelError(LevelProblem(NOT_GROUND_LEVEL, F, mF, sp.name, i))
         if state == b:
             a, b = b, a
         return a, b

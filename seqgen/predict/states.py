@@ -23,7 +23,8 @@ from scipy import optimize
 
 from ..values import value_at
 from .cache import per_shot_cache
-from .species import actions, amplitude_output, bias, line, sample_state, species, transition_pair
+from .species import (NO_PARTNER, LevelError, LevelProblem, actions, amplitude_output, bias, level_problem, line,
+                      sample_state, species, transition_pair, unevaluable)
 
 TWO_PI = 2 * math.pi
 MG = 1e-7  # one milligauss in tesla
@@ -75,7 +76,7 @@ class PulsePrediction:
     detuning_source: str
     line_hz: float | None = None
     slope_hz_per_t: float | None = None
-    bad_level: str | None = None
+    bad_level: LevelProblem | None = None
     resonance_hz: float | None = None
     transfer: float | None = None
     intended_transfer: float | None = None
@@ -116,12 +117,18 @@ def pulse_analysis(shot, act) -> PulsePrediction | None:
                constant=bool(np.ptp(amp) <= 1e-12 * max(peak, 1e-300)), angle=act.args.get("angle"),
                rabi_per=rabi_per, light_shift_hz=drive.light_shift_hz)
     sp = species(shot)
+    pair = None
     try:
         pair = transition_pair(shot, sp, act.args.get("transition")) if sp else None
         if pair:
+            problem = level_problem(sp, *pair[0]) or level_problem(sp, *pair[1])
+            if problem:  # the sample state is not a ground level
+                raise LevelError(problem)
             rep["line_hz"], rep["slope_hz_per_t"] = line(sp, pair[0], pair[1], bias(shot))
-    except ValueError as exc:  # a declared state that is not a ground level
-        pair, rep["bad_level"] = None, str(exc)
+    except LevelError as exc:  # a declared state that is not a ground level
+        pair, rep["bad_level"] = None, exc.problem
+    except ValueError as exc:
+        pair, rep["bad_level"] = None, unevaluable(sp, pair[0] if pair else None, exc)
     rep["pair"] = pair
     rep["intended_detuning_hz"] = float(act.args.get("detuning", 0.0))
     if pair and "frequency" in act.args:
@@ -314,15 +321,15 @@ def barriers(shot):
 class BarrierDrive:
     """The two-photon drive of a modulated barrier (modulated-beam Raman coupling through the vector light
     shift, Adv. At. Mol. Opt. Phys. 42, 95 (2000)). unsupported: why there is no drive model, one of
-    "bad_level" (bad_level holds the error), "not_hyperfine" (the pair is not two hyperfine levels at
-    equal mF) or "no_coupling" (error in bad_level); else the Rabi frequency, differential light shift,
+    "bad_level" (bad_level: the species.LevelProblem), "not_hyperfine" (the pair is not two hyperfine levels at
+    equal mF) or "no_coupling" (the LevelProblem in bad_level); else the Rabi frequency, differential light shift,
     line with and without it, the modulation's offset from it and the offset tolerated."""
 
     f_mod: float
     depth: float
     pair: tuple | None
     unsupported: str | None = None
-    bad_level: str | None = None
+    bad_level: LevelProblem | None = None
     i_peak: float | None = None
     rabi_hz: float | None = None
     light_shift_hz: float | None = None
@@ -347,8 +354,10 @@ def barrier_drive_analysis(shot, act) -> BarrierDrive | None:
     rep = dict(f_mod=f_mod, depth=float(act.args.get("mod_depth", 1.0)))
     try:
         pair, why = transition_pair(shot, sp, act.args.get("transition")), None
+    except LevelError as exc:
+        pair, why = None, exc.problem
     except ValueError as exc:
-        pair, why = None, str(exc)
+        pair, why = None, unevaluable(sp, None, exc)
     rep["pair"] = pair
     i = sp.nuclear_spin
     if pair is None or pair[0][1] != pair[1][1] or pair[0][0] == pair[1][0]:
@@ -359,12 +368,14 @@ def barrier_drive_analysis(shot, act) -> BarrierDrive | None:
     # `power` is the time-averaged power (what a power meter reads, as for the barrier); the beam centre's
     # intensity 2 P / (pi w w_y) then peaks at (1 + depth) times that during the modulation
     depth = min(max(rep["depth"], 0.0), 1.0)
+    if abs(float(m)) > i - 0.5 + 1e-9:  # as seqgen.physics.drive refuses it
+        return BarrierDrive(**rep, unsupported="no_coupling", bad_level=LevelProblem(NO_PARTNER, None, m, sp.name, i))
     try:
         i_peak = float(modulated_peak_intensity(act.args["power"], beam.waist_m, beam.waist_y_m or beam.waist_m, depth))
         d = two_photon_rabi_from_modulated_beam(i_peak, depth, beam.wavelength_m, m_f=m,
                                                 polarization=1.0, atom=sp)
     except ValueError as exc:
-        return BarrierDrive(**rep, unsupported="no_coupling", bad_level=str(exc))
+        return BarrierDrive(**rep, unsupported="no_coupling", bad_level=unevaluable(sp, pair[0], exc))
     from ..physics.zeeman import transition_frequency
 
     nu = float(transition_frequency(lower[0], lower[1], upper[0], upper[1], bias(shot), atom=sp))

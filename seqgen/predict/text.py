@@ -8,6 +8,9 @@ import math
 import numpy as np
 from scipy import constants as sc
 
+from . import cloud as cl
+from . import species as spc
+
 G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
 TESLA_PER_GAUSS = 1e-4
 
@@ -70,12 +73,29 @@ def g_cm2(c_t_m2) -> str:
     return f"{c_t_m2:.4g} G/cm^2"  # 1 G/cm^2 = 1e-4 T / 1e-4 m^2 = 1 T/m^2
 
 
-# --------------------------------------------------------------------------- pulses
+# --------------------------------------------------------------------------- levels and pulses
+
+def level_problem_text(p) -> str:
+    """Why a level has no numbers (species.LevelProblem), in the words seqgen.physics uses for the same refusal."""
+    if p.kind == spc.NOT_GROUND_LEVEL:
+        return f"|F={p.F}, mF={p.mF}> is not a ground level of {p.species}"
+    i = p.nuclear_spin
+    if p.kind == spc.BAD_F:
+        return f"ground-state F must be {i - 0.5:g} or {i + 0.5:g}, got {np.asarray(p.F, dtype=float)}"
+    if p.kind == spc.BAD_MF:
+        return f"mF = {np.asarray(p.mF, dtype=float)} is not a sublevel of F = {np.asarray(p.F, dtype=float)}"
+    if p.kind == spc.NO_PARTNER:
+        return f"m_f = {float(p.mF):g} exists only in F = I + 1/2: no hyperfine partner at equal m"
+    if p.kind == spc.BAD_DEPTH:
+        return "modulation depth must lie in [0, 1]"
+    return f"the level numbers of |F={p.F}, mF={p.mF}> of {p.species} could not be evaluated ({p.error})"
+
 
 def detuning_source_text(rep) -> str:
     """How a pulse's detuning was found (PulsePrediction.detuning_source) in words."""
+    if rep.detuning_source == "unknown_line":
+        return f"line unknown, {level_problem_text(rep.bad_level)}: taken on resonance"
     return {"frequency": "frequency", "declared": "declared detuning",
-            "unknown_line": f"line unknown, {rep.bad_level}: taken on resonance",
             "assumed": "no frequency given: taken on resonance"}[rep.detuning_source]
 
 
@@ -83,7 +103,7 @@ def barrier_drive_reason(rep) -> str:
     """Why a modulated barrier has no drive model (BarrierDrive.unsupported)."""
     if rep.unsupported == "not_hyperfine":
         return "the modulated-beam drive model couples the two hyperfine levels at equal mF only"
-    return rep.bad_level
+    return level_problem_text(rep.bad_level)
 
 
 # --------------------------------------------------------------------------- the cloud at an image
@@ -111,10 +131,49 @@ def why_there(pred, comp, case) -> str:
     return ", ".join(bits)
 
 
+_TRAP_WORDS = {cl.TRAP_SAMPLE: "the sample's trap_frequencies", cl.TRAP_OPTICAL: "the optical trap"}
+_MAGNETIC_WORDS = {cl.TRAP_IOFFE_PRITCHARD: "Ioffe-Pritchard", cl.TRAP_QUADRUPOLE: "linear quadrupole"}
+THERMAL_STAND_IN = "condensate in a linear trap: sized as a thermal cloud at the sample's temperature"
+
+
+def trap_text(cloud) -> str:
+    """Which trap the release opened (CloudAtImage.trap)."""
+    if cloud.trap in _TRAP_WORDS:
+        return _TRAP_WORDS[cloud.trap]
+    return f"the magnetic trap of block '{cloud.trap_block}' ({_MAGNETIC_WORDS[cloud.trap]})"
+
+
+def hold_no_size_text(rep) -> str:
+    """Why a magnetic hold (HoldPrediction) gives no trap."""
+    if rep.bad_state is not None:
+        return level_problem_text(rep.bad_state)
+    if rep.unconfined in ("axial", "radial"):
+        return unconfined_text(rep)
+    return "the held state is not trappable" if rep.trappable is not None else "the trap could not be evaluated"
+
+
+def size_unknown_text(why) -> str:
+    """Why an image has no cloud size (SizeUnknown)."""
+    where = f"the magnetic trap of block '{why.block}'"
+    return {
+        cl.IN_SITU: lambda: "no release before the image (an in-situ image): no time-of-flight prediction",
+        cl.TRAP_EMPTY: lambda: "the trap beams on before the release hold no atoms (no trap frequencies)",
+        cl.NO_TRAP: lambda: ("no trap is known before the release: no trap beams on, no magnetic_hold, and the "
+                             "sample gives no trap_frequencies"),
+        cl.QUADRUPOLE_NEEDS_TEMPERATURE: lambda: f"{where} is a linear quadrupole: its cloud size needs the sample's "
+                                                 "temperature",
+        cl.QUADRUPOLE_FLAT: lambda: f"{where} has a direction without gradient: the cloud is not confined",
+        cl.HOLD_NO_SIZE: lambda: f"{where} gives no cloud size: {hold_no_size_text(why.hold)}",
+        cl.NO_SCATTERING_LENGTH: lambda: f"no positive scattering length of {why.species} for a Thomas-Fermi condensate",
+        cl.NO_TEMPERATURE: lambda: "the sample has no temperature",
+        cl.NO_TEMPERATURE_NOR_ATOMS: lambda: "the sample gives neither a temperature nor, for a condensate, an atom number",
+    }[why.reason]()
+
+
 def size_text(pred) -> str:
     c = pred.cloud
     if c is None:
-        return f"cloud size unknown ({pred.why}): its centre alone is checked"
+        return f"cloud size unknown ({size_unknown_text(pred.why)}): its centre alone is checked"
     return f"{c.size_kind} {length_text(c.size)}"
 
 
@@ -174,7 +233,7 @@ def in_barrier_drive_reason(d) -> str:
     if d.unsupported == "changes_mf":
         return (f"transition {initial} -> {partner} changes mF: a modulated beam along the quantisation "
                 "axis couples equal mF only; rotation not computed")
-    return f"no coupling in the drive model: {d.error}"
+    return f"no coupling in the drive model: {level_problem_text(d.problem)}"
 
 
 def rotation_text(rep) -> str:
