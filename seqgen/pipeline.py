@@ -83,8 +83,8 @@ def clear_shared_caches() -> None:
     Results never depend on these caches; benchmarks clear them to time a cold,
     first shot, as a fresh `seqgen check` process would see it.
     """
-    from .check.physics_traps import clear_caches
     from .compile.tables import RAMP_CACHE
+    from .predict import clear_caches
 
     clear_caches()
     RAMP_CACHE.clear()

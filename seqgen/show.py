@@ -37,12 +37,10 @@ def timeline_rows(shot, compiled=None) -> list[dict]:
 
 
 def physics_rows(shot) -> list[dict]:
-    """Physics predictions per physics action, from the physics checks' reports."""
-    try:
-        from .check.physics import report_physics
-    except ImportError:
-        return []
-    return report_physics(shot)
+    """Physics predictions per physics action (seqgen.predict.report_rows), as plain rows."""
+    from .predict import report_rows
+
+    return [r.as_dict() for r in report_rows(shot)]
 
 
 # ----------------------------------------------------------------------------- which shot of a scan

@@ -92,7 +92,8 @@ def test_physics_never_imports_the_rest_of_seqgen():
 
 def test_findings_and_codes_are_leaves():
     g = import_graph()
-    assert not list(g.successors("seqgen.findings"))
+    # findings may use other leaves (the text formatters), never a stage
+    assert all(not list(g.successors(t)) for t in g.successors("seqgen.findings")), list(g.successors("seqgen.findings"))
     for name in g:
         if name.startswith("seqgen.codes"):
             assert all(t.startswith("seqgen.codes") for t in g.successors(name)), name

@@ -1,38 +1,41 @@
-"""Where the clouds are at an image, and which states the atoms are in (seqgen/check/physics_traps.py
-`image_prediction` and the three imaging checks; seqgen/check/physics_states.py `populations`,
-`components_at`, physics.transition-unpopulated), through the pipeline on temporary sequences, against
-hand formulas.
+"""Where the clouds are at an image, and which states the atoms are in (seqgen.predict `image_prediction`,
+`populations`, `components_at` and the rules that read them: the three imaging checks in
+seqgen/check/physics_trapr.py, physics.transition-unpopulated), through the pipeline on temporary sequences,
+against hand formulas.
 
 The rig is a copy of the demo rig in tmp_path with our own Stern-Gerlach coil, probe beam and camera lines,
 so the demo's numbers may change without touching these tests. Geometry (the checks' stated assumption):
 the camera looks along the probe beam, the image plane is perpendicular to it, z is up.
 
-Hand formulas and data: Breit-Rabi formula (Phys. Rev. 38, 2082 (1931)) written out in
-tests/test_physics_state_checks.py with the Sodium D Line Data values there (from memory); moment = -dE/dB;
+Hand formulas and data (written out in tests/atom_reference.py, never taken from seqgen): Breit-Rabi formula
+(Phys. Rev. 38, 2082 (1931)) with the Sodium D Line Data values (from memory); moment = -dE/dB;
 force = moment x grad|B|, uniform acceleration during a pulse then free flight, free fall g_n t^2 / 2
-(g_n = 9.80665 m/s^2 exact, SI Brochure); Rabi formula (Phys. Rev. 51, 652 (1937)); thermal ballistic
-expansion sigma^2 = sigma_0^2 + k_B T t^2 / m and sigma_0 = sqrt(k_B T / (m omega^2)) (equipartition,
-textbook); Ioffe-Pritchard frequencies omega_rho^2 = |mu|/m (B'^2/B0 - B''/2), omega_z^2 = |mu| B''/m
-(Phys. Rev. Lett. 51, 1336 (1983), from memory); the rms width 2 k_B T / (|mu| b') of a linear trap is
-checked against the Boltzmann integral in tests/physics/test_kinematics.py. Constants: scipy.constants.
+(g_n from scipy.constants, exact by the SI Brochure); Rabi formula (Phys. Rev. 51, 652 (1937)); Thomas-Fermi
+radius R = sqrt(2 mu / (m omega^2)) (Rev. Mod. Phys. 71, 463 (1999)) and its scaling expansion (Phys. Rev.
+Lett. 77, 5315 (1996)); thermal ballistic expansion sigma^2 = sigma_0^2 + k_B T t^2 / m (free flight of a
+Maxwell-Boltzmann velocity distribution uncorrelated with position) with sigma_0 = sqrt(k_B T / (m omega^2))
+(equipartition: m omega^2 <x^2> / 2 = k_B T / 2); Ioffe-Pritchard frequencies omega_rho^2 = |mu|/m
+(B'^2/B0 - B''/2), omega_z^2 = |mu| B''/m (Phys. Rev. Lett. 51, 1336 (1983), from memory); Gaussian-beam trap
+frequencies from the dipole potential (Adv. At. Mol. Opr. Phys. 42, 95 (2000)); the rms width 2 k_B T / (|mu| b')
+of a linear trap is checked against the Boltzmann integral in tests/physics/test_kinematics.py. Constants:
+scipy.constants.
 """
 
 import math
 import re
 
+import numpy as np
 import pytest
 from scipy import constants as sc
 
-from seqgen.check import physics_states as ps
-from seqgen.check import physics_traps as pt
+from seqgen import predict as pr
 from seqgen.pipeline import preflight
 from seqgen.show import physics_rows
 
 from .conftest import SEQUENCES
-from .test_physics_state_checks import BIAS, MASS, breit_rabi_hz
+from .atom_reference import (BIAS, G_N, MASS, breit_rabi_hz, condensate_radius_after, gaussian_beam_omega2, moment,
+                             thermal_width_after)
 
-G_N = 9.80665
-MU_B = sc.physical_constants["Bohr magneton"][0]
 BASE_RIG = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").read_text(encoding="utf-8")
 SG_UP = ("  sg_coil:   {current_channel: sg_current, gradient_per_amp: 0.4 G/cm/A, axis: [0, 0, 1], "
          "field_grows_along: [0, 0, 1], max_current: 60 A, continuous_current: 20 A}")
@@ -82,12 +85,6 @@ def only(shot, kind):
     return acts[0]
 
 
-def moment(F, mF, B=BIAS):
-    """-dE/dB from the written-out Breit-Rabi energies (central difference)."""
-    h = 1e-8
-    return -(breit_rabi_hz(F, mF, B + h) - breit_rabi_hz(F, mF, B - h)) * sc.h / (2 * h)
-
-
 def sg_blocks(pulse="clock_pulse: {drive: mw, angle: pi/2, duration: 50 us, transition: [{F: 1, mF: -1}, {F: 2, mF: -2}]}",
               sg="separate: {coil: sg_coil, gradient: 20 G/cm, duration: 3 ms}", tof="12 ms", sg_after="0.5 ms"):
     return (f"  - name: analyse\n    at: 1 ms\n    actions:\n      - {pulse}\n"
@@ -95,6 +92,16 @@ def sg_blocks(pulse="clock_pulse: {drive: mw, angle: pi/2, duration: 50 us, tran
             f"  - name: separate\n    after: release + {sg_after}\n    actions:\n      - {sg}\n"
             f"  - name: image\n    after: release + {tof}\n    actions:\n"
             f"      - image: {{setup: side_camera, probe_power: 40 uW, duration: 30 us, exposure: 60 us}}\n")
+
+
+def tof_of(shot):
+    """Time of flight from the resolved release and image times (the resolve stage's, not the prediction's)."""
+    return only(shot, "image").t0 - only(shot, "release").t0
+
+
+def condensate_edge(shot):
+    """Thomas-Fermi radius at the image of CONDENSATE (1.2e5 atoms, 340/340/480 Hz), hand formulas."""
+    return condensate_radius_after(1.2e5, 2 * math.pi * np.array([340.0, 340.0, 480.0]), tof_of(shot))
 
 
 def sg_hand_z(shot, state, sign=1.0):
@@ -111,17 +118,17 @@ def sg_hand_z(shot, state, sign=1.0):
 def test_separated_components_sit_where_the_moments_send_them(tmp_path):
     res = run(tmp_path, sg_blocks())
     shot = res.shot
-    pred = pt.image_prediction(shot, only(shot, "image"))
-    by_state = {c["state"]: c for c in pred["components"]}
+    pred = pr.image_prediction(shot, only(shot, "image"))
+    by_state = {c.state: c for c in pred.components}
     assert set(by_state) == {(1, -1), (2, -2)}
     for st, comp in by_state.items():
         # a resonant pi/2 pulse: Rabi formula sin^2(pi/4) = 1/2 in each state
-        assert comp["fraction"] == pytest.approx(0.5, abs=1e-9)
-        assert comp["positions"].shape == (1, 3)  # the coil says where |B| grows: one case
-        assert comp["positions"][0, 2] == pytest.approx(sg_hand_z(shot, st), rel=1e-6)
-        assert comp["positions"][0, :2] == pytest.approx([0.0, 0.0], abs=1e-15)
+        assert comp.fraction == pytest.approx(0.5, abs=1e-9)
+        assert comp.positions.shape == (1, 3)  # the coil says where |B| grows: one case
+        assert comp.positions[0, 2] == pytest.approx(sg_hand_z(shot, st), rel=1e-6)
+        assert comp.positions[0, :2] == pytest.approx([0.0, 0.0], abs=1e-15)
     # |2,-2> (moment ~ +mu_B, high-field seeker) goes up, |1,-1> (~ -mu_B/2) down
-    assert by_state[(2, -2)]["positions"][0, 2] > -0.5 * G_N * pred["tof"] ** 2 > by_state[(1, -1)]["positions"][0, 2]
+    assert by_state[(2, -2)].positions[0, 2] > -0.5 * G_N * tof_of(shot) ** 2 > by_state[(1, -1)].positions[0, 2]
     # both inside the 2 mm half field of view with their Thomas-Fermi radius: quiet
     assert "physics.cloud-outside-view" not in codes(res)
     rows = [r for r in physics_rows(shot) if r["kind"] == "image"]
@@ -135,12 +142,15 @@ def test_separation_out_of_view_fires_where_free_fall_alone_would_not(tmp_path):
     res = run(tmp_path, sg_blocks(sg="separate: {coil: sg_coil, gradient: 20 G/cm, duration: 4 ms}", tof="14 ms"))
     shot = res.shot
     half = 2e-3
-    pred = pt.image_prediction(shot, only(shot, "image"))
+    pred = pr.image_prediction(shot, only(shot, "image"))
     z_down = sg_hand_z(shot, (1, -1))
-    assert abs(z_down) + pred["edge"] > half > 0.5 * G_N * pred["tof"] ** 2 + pred["edge"]
+    edge = condensate_edge(shot)
+    # the scaling solution integrated here and in seqgen agree to the ODE tolerance
+    assert pred.edge == pytest.approx(edge, rel=1e-5)
+    assert abs(z_down) + edge > half > 0.5 * G_N * tof_of(shot) ** 2 + edge
     hits = [f for f in res.findings if f.code == "physics.cloud-outside-view"]
     assert len(hits) == 1 and "|F=1, mF=-1>" in hits[0].message and "separate" in hits[0].message
-    assert hits[0].data and dict(hits[0].data)["reach_m"] == pytest.approx(abs(z_down) + pred["edge"], rel=1e-6)
+    assert hits[0].data and dict(hits[0].data)["reach_m"] == pytest.approx(abs(z_down) + edge, rel=1e-5)
 
 
 def test_unknown_gradient_direction_checks_both_ways(tmp_path):
@@ -150,14 +160,14 @@ def test_unknown_gradient_direction_checks_both_ways(tmp_path):
     assert "physics.cloud-outside-view" not in codes(run(tmp_path / "known", blocks))
     res = run(tmp_path / "unknown", blocks, rig=rig_text(sg=SG_UNKNOWN))
     shot = res.shot
-    pred = pt.image_prediction(shot, only(shot, "image"))
-    assert pred["unknown"] and "sg_coil" in pred["unknown"][0]
-    comp = {c["state"]: c for c in pred["components"]}[(2, -2)]
-    got = sorted(comp["positions"][:, 2])
+    pred = pr.image_prediction(shot, only(shot, "image"))
+    assert pred.unknown and "sg_coil" in pred.unknown[0]
+    comp = {c.state: c for c in pred.components}[(2, -2)]
+    got = sorted(comp.positions[:, 2])
     want = sorted(sg_hand_z(shot, (2, -2), s) for s in (1.0, -1.0))
     assert got == pytest.approx(want, rel=1e-6)
     # pulled down instead of up, |2,-2> leaves the view: the conservative reading fires
-    assert abs(want[0]) + pred["edge"] > 2e-3
+    assert abs(want[0]) + condensate_edge(shot) > 2e-3
     hits = [f for f in res.findings if f.code == "physics.cloud-outside-view"]
     assert len(hits) == 1 and "both ways checked" in hits[0].message and "|F=2, mF=-2>" in hits[0].message
 
@@ -186,14 +196,14 @@ def test_push_across_the_line_of_sight_leaves_the_view_along_it_the_focus(tmp_pa
     rig = rig_text(probe_dir=probe_dir, fov="1.6 mm", dof="1.5 mm", center=f"[0, 0, {-fall:.9f}]")
     res = run(tmp_path, PUSH, sample=THERMAL, rig=rig)
     shot = res.shot
-    pred = pt.image_prediction(shot, only(shot, "image"))
-    (comp,) = pred["components"]
+    pred = pr.image_prediction(shot, only(shot, "image"))
+    (comp,) = pred.components
     x = push_hand_x(shot)
-    assert comp["positions"][0] == pytest.approx([x, 0.0, -0.5 * G_N * pred["tof"] ** 2], rel=1e-6, abs=1e-12)
+    assert comp.positions[0] == pytest.approx([x, 0.0, -0.5 * G_N * tof_of(shot) ** 2], rel=1e-6, abs=1e-12)
     # thermal cloud: sigma^2 = sigma_0^2 + k_B T t^2 / m, sigma_0 from the largest width in the trap
     sigma0 = math.sqrt(sc.k * 50e-9 / MASS) / (2 * math.pi * 340)
-    sigma = math.sqrt(sigma0**2 + sc.k * 50e-9 * pred["tof"] ** 2 / MASS)
-    assert pred["cloud"]["size"] == pytest.approx(sigma, rel=1e-3)  # Na-23 mass of the species table vs AME2020
+    sigma = thermal_width_after(sigma0, 50e-9, tof_of(shot))
+    assert pred.cloud.size == pytest.approx(sigma, rel=1e-3)  # Na-23 mass of the species table vs AME2020
     edge = 2 * sigma
     assert (abs(x) + edge > 0.8e-3) and (2 * (abs(x) + edge) > 1.5e-3)  # the numbers that decide both cases
     assert ("physics.cloud-outside-view" in codes(res)) is outside
@@ -218,14 +228,13 @@ def test_release_from_a_quadrupole_has_the_boltzmann_size(tmp_path):
     res = run(tmp_path, HOLD.format(coil="sg_coil", tof="3 ms"),
               sample=f"{{species: Na23, state: {{F: 1, mF: -1}}, atoms: 3e5, temperature: {temp * 1e6:g} uK}}")
     shot = res.shot
-    pred = pt.image_prediction(shot, only(shot, "image"))
-    c = pred["cloud"]
-    assert c is not None and "linear quadrupole" in c["trap"]
+    pred = pr.image_prediction(shot, only(shot, "image"))
+    c = pred.cloud
+    assert c is not None and c.trap == "quadrupole" and c.trap_block == "hold"
     # 50 A x 0.4 G/cm/A = 20 G/cm along the vertical axis, 10 G/cm across it; moment at the field zero
     radial = 50 * 0.4 * 0.01 / 2
     sigma0 = 2 * sc.k * temp / (abs(moment(1, -1, 0.0)) * radial)
-    sigma = math.sqrt(sigma0**2 + sc.k * temp * pred["tof"] ** 2 / MASS)
-    assert c["size"] == pytest.approx(sigma, rel=1e-3)
+    assert c.size == pytest.approx(thermal_width_after(sigma0, temp, tof_of(shot)), rel=1e-3)
     items = " ; ".join(r for row in physics_rows(shot) if row["kind"] == "image" for r in row["items"])
     assert "released from the magnetic trap of block 'hold' (linear quadrupole)" in items
 
@@ -247,16 +256,16 @@ def test_release_from_an_ioffe_pritchard_trap_uses_its_frequencies(tmp_path):
     res = run(tmp_path, HOLD.format(coil="ip_coil", tof="5 ms"), rig=rig,
               sample=f"{{species: Na23, state: {{F: 1, mF: -1}}, atoms: 3e5, temperature: {temp * 1e6:g} uK}}")
     shot = res.shot
-    pred = pt.image_prediction(shot, only(shot, "image"))
-    c = pred["cloud"]
-    assert c is not None and "Ioffe-Pritchard" in c["trap"]
+    pred = pr.image_prediction(shot, only(shot, "image"))
+    c = pred.cloud
+    assert c is not None and c.trap == "ioffe_pritchard" and c.trap_block == "hold"
     b0, b1, b2 = 50 * 0.02e-4, 50 * 2 * 0.01, 50 * 2.0  # T, T/m, T/m^2
     mu = abs(moment(1, -1, b0))
     w_z = math.sqrt(mu * b2 / MASS)
     w_rho = math.sqrt(mu / MASS * (b1**2 / b0 - b2 / 2))
-    assert sorted(c["omegas"]) == pytest.approx(sorted([w_rho, w_rho, w_z]), rel=1e-6)
+    assert sorted(c.omegas) == pytest.approx(sorted([w_rho, w_rho, w_z]), rel=1e-6)
     sigma0 = math.sqrt(sc.k * temp / (MASS * w_z**2))  # the weak axis holds the widest cloud
-    assert c["size"] == pytest.approx(math.sqrt(sigma0**2 + sc.k * temp * pred["tof"] ** 2 / MASS), rel=1e-3)
+    assert c.size == pytest.approx(thermal_width_after(sigma0, temp, tof_of(shot)), rel=1e-3)
 
 
 def test_unknown_trap_is_said_and_the_centre_still_checked(tmp_path):
@@ -267,13 +276,13 @@ def test_unknown_trap_is_said_and_the_centre_still_checked(tmp_path):
               "      - image: {setup: side_camera, probe_power: 40 uW, duration: 30 us, exposure: 60 us}\n")
     res = run(tmp_path, blocks, sample="{species: Na23, state: {F: 1, mF: -1}, atoms: 1e5, temperature: 1 uK}")
     shot = res.shot
-    pred = pt.image_prediction(shot, only(shot, "image"))
-    assert pred["cloud"] is None and "no trap is known" in pred["why"]
+    pred = pr.image_prediction(shot, only(shot, "image"))
+    assert pred.cloud is None and pred.why.reason == "no_trap"
     items = " ; ".join(r for row in physics_rows(shot) if row["kind"] == "image" for r in row["items"])
     assert "no size prediction: no trap is known" in items
     hits = [f for f in res.findings if f.code == "physics.cloud-outside-view"]
     assert len(hits) == 1 and "cloud size unknown" in hits[0].message
-    assert dict(hits[0].data)["reach_m"] == pytest.approx(0.5 * G_N * pred["tof"] ** 2, rel=1e-9)
+    assert dict(hits[0].data)["reach_m"] == pytest.approx(0.5 * G_N * tof_of(shot) ** 2, rel=1e-9)
 
 
 def test_in_situ_image_says_so(tmp_path):
@@ -303,9 +312,9 @@ def test_pi_pulse_empties_the_sample_state(tmp_path):
     res = run(tmp_path, blocks)
     shot = res.shot
     p2 = [a for a in shot.phys if a.kind == "clock_pulse"][1]
-    fr = ps.state_fractions(shot, p2.t0)
+    fr = pr.state_fractions(shot, p2.t0)
     assert fr[(2, -2)] == pytest.approx(1.0, abs=1e-9)
-    assert ps.populated_states(shot, p2.t0) == [(2, -2)]
+    assert pr.populated_states(shot, p2.t0) == [(2, -2)]
     hits = [f for f in res.findings if f.code == "physics.transition-unpopulated"]
     assert len(hits) == 1 and hits[0].block == "p2" and "|F=2, mF=-2> (100 %)" in hits[0].message
     assert hits[0].severity == "warning"
@@ -322,7 +331,7 @@ def test_populations_follow_the_rabi_formula(tmp_path):
     om, de, t = 2 * math.pi * 5e3, 2 * math.pi * delta, 50e-6
     w = math.hypot(om, de)
     p = om**2 / w**2 * math.sin(w * t / 2) ** 2
-    fr = ps.state_fractions(shot, shot.duration_s + 1.0)
+    fr = pr.state_fractions(shot, shot.duration_s + 1.0)
     assert fr[(2, -2)] == pytest.approx(p, abs=1e-6) and fr[(1, -1)] == pytest.approx(1 - p, abs=1e-6)
 
 
@@ -330,7 +339,7 @@ def test_ramsey_pair_counts_both_states(tmp_path):
     # populations are followed incoherently: after two pi/2 pulses both states count as populated
     blocks = pulse("pi/2", T_1M1_2M2) + pulse("pi/2", T_1M1_2M2, at="after: p1 + 1 ms", name="p2")
     shot = run(tmp_path, blocks).shot
-    fr = ps.state_fractions(shot, shot.duration_s + 1.0)
+    fr = pr.state_fractions(shot, shot.duration_s + 1.0)
     assert fr[(1, -1)] == pytest.approx(0.5, abs=1e-9) and fr[(2, -2)] == pytest.approx(0.5, abs=1e-9)
 
 
@@ -340,14 +349,14 @@ def test_separation_follows_the_populated_states(tmp_path):
     shot = res.shot
     assert "physics.transition-unpopulated" in codes(res)
     assert "physics.components-separated" not in codes(res) and "physics.equal-moments" not in codes(res)
-    rep = ps.separation_analysis(shot, only(shot, "separate"))
-    assert rep["pair"] is None and rep["states"] == [(2, 2)]
+    rep = pr.separation_analysis(shot, only(shot, "separate"))
+    assert rep.pair is None and tuple(rep.states) == ((2, 2),)
     rows = [r for r in physics_rows(shot) if r["kind"] == "separate"]
     assert "only |F=2, mF=+2> holds atoms: nothing to separate" in rows[0]["items"][0]
     # the image holds one component, |2,+2> (moment ~ -mu_B: pulled down by the gradient that grows upwards)
-    pred = pt.image_prediction(shot, only(shot, "image"))
-    (comp,) = pred["components"]
-    assert comp["state"] == (2, 2) and comp["positions"][0, 2] == pytest.approx(sg_hand_z(shot, (2, 2)), rel=1e-6)
+    pred = pr.image_prediction(shot, only(shot, "image"))
+    (comp,) = pred.components
+    assert comp.state == (2, 2) and comp.positions[0, 2] == pytest.approx(sg_hand_z(shot, (2, 2)), rel=1e-6)
 
 
 def test_barrier_drive_makes_its_partner_possibly_populated(tmp_path):
@@ -386,8 +395,9 @@ def _write_for_plot(tmp_path):
 
 
 def test_a_push_inside_a_holding_trap_is_bounded_by_the_oscillation(tmp_path):
-    # a kick of v inside a harmonic trap moves the atoms at most v / omega (textbook harmonic motion); after the
-    # release they fly at most at v. Free flight from the push to the image (200 ms later) would be v x 0.2 s.
+    # a kick of v at the centre of a harmonic trap gives x(t) = (v / omega) sin(omega t), so |x| <= v / omega
+    # (solution of x'' = -omega^2 x, x(0) = 0, x'(0) = v); after the release the atoms fly at most at v. Free
+    # flight from the push to the image (200 ms later) would be v x 0.2 s.
     blocks = ("  - name: load\n    at: 1 ms\n    actions:\n"
               "      - set: {channel: cross_a_power, value: 0.3 W}\n      - set: {channel: cross_b_power, value: 0.3 W}\n"
               "      - hold: {duration: 100 ms}\n"
@@ -399,10 +409,12 @@ def test_a_push_inside_a_holding_trap_is_bounded_by_the_oscillation(tmp_path):
     res = run(tmp_path, blocks)
     assert "physics.cloud-outside-view" not in codes(res)
     img = only(res.shot, "image")
-    comp = ps.components_at(res.shot, img)["components"][0]
-    dx = float(abs(comp["displacements"][0][0]))
+    comp = pr.components_at(res.shot, img).components[0]
+    dx = float(abs(comp.displacements[0][0]))
     v = abs(moment(1, -1)) * 0.08 * 2e-3 / MASS  # |mu| b' tau / m
-    beams = pt._gaussian_beams(res.shot, [0.103])[0]
-    w_min = float(min(pt._held(pt._species(res.shot), tuple(beams))[1]))
-    assert dx == pytest.approx(v / w_min + v * 5e-3, rel=1e-6)  # the bound, far below free flight
+    # the crossed trap: cross_a along x and cross_b along y, 0.3 W each, 42 um waists, 1064 nm (rig); harmonic
+    # about the centre, so within the gravity sag and anharmonicity (under 0.1 % here) of the minimised trap
+    w2 = gaussian_beam_omega2(0.3, 42e-6, 1064e-9, 0) + gaussian_beam_omega2(0.3, 42e-6, 1064e-9, 1)
+    w_min = float(np.sqrt(np.min(w2)))
+    assert dx == pytest.approx(v / w_min + v * 5e-3, rel=5e-3)  # the bound, far below free flight
     assert dx < 0.1 * v * 0.205

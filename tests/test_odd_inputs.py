@@ -6,7 +6,7 @@ schema (ASCII digits only in numbers, from memory), IEEE 754 doubles (a 400-digi
 
 import pytest
 
-from seqgen.check.physics_traps import per_shot_cache
+from seqgen.predict import per_shot_cache
 from seqgen.cli import main
 from seqgen.diff import diff_paths
 from seqgen.load.yamlsrc import load_text

@@ -184,7 +184,7 @@ def test_ioffe_pritchard_frequencies_in_the_report(tmp_path):
     got = [float(x) for x in item.split()[-2].split("/")]
     assert got[0] == pytest.approx(f_rho, rel=2e-3) and got[1] == pytest.approx(f_z, rel=2e-3)
     sag = next(i for i in row["items"] if i.startswith("gravity sag"))
-    # horizontal axis: sag g_n / omega_rho^2 (textbook)
+    # horizontal axis: the minimum of m omega_rho^2 x^2 / 2 + m g_n x lies at x = -g_n / omega_rho^2 (derivation)
     assert float(sag.split()[2]) == pytest.approx(G_N / (2 * math.pi * f_rho) ** 2 * 1e6, rel=5e-3)
 
 
@@ -253,3 +253,16 @@ def test_rig_coil_without_a_direction_is_not_a_crash(tmp_path):
     # the rig file itself is refused at the axis, with its line (a zero vector gives no direction)
     bad = [f for f in res.findings if f.code == "schema.bad-rig"]
     assert bad and "not a direction" in bad[0].message and bad[0].line > 0
+
+
+def test_a_held_state_that_is_no_ground_level_is_named_with_its_numbers(tmp_path):
+    # Na-23 has I = 3/2 (Sodium D Line Data, from memory): its ground levels are F = I -/+ 1/2 = 1 and 2, and
+    # mF runs over -F..F; a held F = 5 is neither, and the hold's prediction says so as data, worded by the rule
+    res = run(tmp_path, hold({"sg_coil": "40 A"}, extra=", state: {F: 5, mF: 0}"))
+    f = only(res, "physics.state-not-trappable")
+    assert f.message == "the held state is not a ground level of Na23: ground-state F must be 1 or 2, got 5.0"
+    from seqgen.predict import hold_analysis
+
+    act = next(a for a in res.shot.phys if a.kind == "magnetic_hold")
+    problem = hold_analysis(res.shot, act).bad_state
+    assert (problem.kind, problem.F, problem.nuclear_spin) == ("bad_F", 5, 1.5)

@@ -153,9 +153,9 @@ def test_physics_notes_and_timeline_for_a_demo():
     assert not [f for f in res.findings if f.severity == "error"]  # the demo is clean
     assert len(page.rows) == len(res.findings)
     # one row per physics prediction the checks report (dedupe of identical rows aside)
-    from seqgen.check.physics import report_physics
+    from seqgen.predict import report_rows
 
-    expected = {(r["block"], r["kind"], r["time_s"], tuple(r["items"])) for r in report_physics(res.shot)}
+    expected = {(r.block, r.kind, r.time_s, r.items) for r in report_rows(res.shot)}
     assert page.physics_rows == len(expected) >= 1
     assert "<svg></svg>" in text
 

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from scipy import constants as sc
 
-from seqgen.check import physics_traps
+from seqgen.predict import held, report_rows
 from seqgen.compile import tables
 from seqgen.compile.tables import RAMP_CACHE, _RampCache
 from seqgen.physics import optical as o
@@ -37,12 +37,12 @@ def _findings(res):
 def test_warm_caches_give_the_same_shot_as_a_cold_process():
     clear_shared_caches()
     cold = preflight(DEMO)
-    assert physics_traps._held.cache_info().currsize > 0 and len(RAMP_CACHE._items) > 0
+    assert held.cache_info().currsize > 0 and len(RAMP_CACHE._items) > 0
     warm = preflight(DEMO)
     assert _findings(warm) == _findings(cold)
     assert _tables_bytes(warm.compiled) == _tables_bytes(cold.compiled)
     # and the physics report (`show --physics`) reads the same numbers
-    assert physics_traps.report(warm.shot) == physics_traps.report(cold.shot)
+    assert report_rows(warm.shot) == report_rows(cold.shot)
 
 
 def test_a_scan_shot_equals_the_same_values_checked_alone(tmp_path):

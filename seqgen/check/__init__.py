@@ -13,7 +13,8 @@ from dataclasses import replace
 from ..caution import CAUTION  # noqa: F401  (re-exported for the command line)
 from ..codes import CHECK_CRASHED
 from ..findings import Finding, make
-from . import hardware, physics_barrier, physics_magnetic, physics_states, physics_traps, safety, timing
+from . import (hardware, physics_barrier, physics_imaging, physics_magnetic, physics_pushes, physics_states,
+               physics_traps, safety, timing)
 from .rules import STAGES, Rule, rule
 
 __all__ = ["RULES", "STAGES", "Rule", "rule", "run_timeline_checks", "run_table_checks", "apply_accepts"]
@@ -28,10 +29,10 @@ RULES: tuple[Rule, ...] = (
     physics_traps.cloud_outside_view, physics_traps.cloud_out_of_focus, physics_traps.cloud_clipped,
     physics_states.pulse_angle, physics_states.pulse_detuned, physics_states.sweep_not_adiabatic,
     physics_states.modulation_off_resonance, physics_states.modulation_unreachable,
-    physics_states.transition_unpopulated, physics_states.push_velocity, physics_states.push_away_from_barrier,
-    physics_states.push_no_force, physics_states.push_too_late, physics_states.equal_moments,
-    physics_states.components_overlap, physics_states.components_separated, physics_states.probe_doppler,
-    physics_states.imaging_blur, physics_states.exposure_too_short,
+    physics_states.transition_unpopulated, physics_pushes.push_velocity, physics_pushes.push_away_from_barrier,
+    physics_pushes.push_no_force, physics_pushes.push_too_late, physics_pushes.equal_moments,
+    physics_pushes.components_overlap, physics_pushes.components_separated, physics_imaging.probe_doppler,
+    physics_imaging.imaging_blur, physics_imaging.exposure_too_short,
     physics_barrier.barrier_transmission, physics_barrier.cloud_overlaps_barrier, physics_barrier.barrier_too_short,
     physics_barrier.barrier_too_late, physics_barrier.barrier_no_signal, physics_barrier.not_tunnelling,
     physics_barrier.barrier_rotation, physics_barrier.drive_too_strong, physics_barrier.rotation_unresolvable,

@@ -150,9 +150,9 @@ def _physics_rows(shot) -> list[dict]:
     if shot is None:
         return []
     try:
-        from ..check.physics import report_physics
+        from ..predict import report_rows
 
-        rows = report_physics(shot)
+        rows = [r.as_dict() for r in report_rows(shot)]
     except Exception:  # physics trouble is reported as findings; the report just lists what it can
         return []
     out, seen = [], set()

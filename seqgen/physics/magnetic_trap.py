@@ -205,3 +205,18 @@ def harmonic_sag(omega_radial_rad_s: float, omega_axial_rad_s: float, axis, vert
     up = _unit_rows(vertical)[0]
     c2 = float(np.dot(n, up)) ** 2
     return float(G_N * np.sqrt(c2 / omega_axial_rad_s ** 4 + (1 - c2) / omega_radial_rad_s ** 4))
+
+
+def trappable_states(atom, field_t: float = 0.0, min_moment_j_t: float = 0.01 * _sc.physical_constants["Bohr magneton"][0]) -> list:
+    """The ground |F, mF> (integer F) of `atom` that a field minimum holds at |B| = field_t: moment -dE/dB
+    (Breit-Rabi, ``zeeman.magnetic_moment``) below -min_moment (default 0.01 mu_B). Only low-field seekers
+    are held because a static field has no maximum in free space (Phys. Rev. Lett. 51, 1336 (1983))."""
+    from .zeeman import ground_states, magnetic_moment
+
+    out = []
+    for F, mF in ground_states(atom.nuclear_spin):
+        if abs(F - round(F)) > 1e-9:
+            continue
+        if float(magnetic_moment(int(F), int(mF), abs(field_t), atom=atom)) < -min_moment_j_t:
+            out.append((int(F), int(mF)))
+    return out

@@ -185,3 +185,24 @@ def test_bad_axes_are_refused():
         mt.quadrupole_field_matrix([0.1], [(0, 0, 0)])
     with pytest.raises(ValueError):
         mt.quadrupole_field_matrix([0.1, 0.2], [(0, 0, 1)])
+
+
+@pytest.mark.parametrize("field_g", [0.0, 1.2, 100.0, 400.0])
+def test_trappable_states_are_the_low_field_seekers_of_the_breit_rabi_levels(field_g):
+    # A static field has a minimum but no maximum of |B| in free space, so only states whose energy grows with
+    # |B| (moment -dE/dB < 0) are held (Prog. Quantum Electron. 8, 181 (1984), from memory). Moments from the
+    # Breit-Rabi formula (Phys. Rev. 38, 2082 (1931)) written out in tests/atom_reference.py; threshold 0.01 mu_B
+    # as the function's default. Na-23: at low field |1,-1>, |2,+1>, |2,+2> (g_F m_F > 0, Rev. Mod. Phys. 49, 31
+    # (1977)); |2,0> joins once its second-order moment exceeds the threshold (100 G); |1,-1> turns into a
+    # high-field seeker where d/dx sqrt(1 - x + x^2) changes sign, x = 1/2 (about 316 G).
+    from seqgen.physics.atoms import get_species
+
+    from ..atom_reference import moment
+
+    b = field_g * 1e-4
+    levels = [(1, m) for m in (-1, 0, 1)] + [(2, m) for m in range(-2, 3)]
+    want = sorted(st for st in levels if moment(*st, b) < -0.01 * MU_B)
+    assert sorted(mt.trappable_states(get_species("Na23"), b)) == want
+    if field_g < 2:
+        assert want == [(1, -1), (2, 1), (2, 2)]
+    assert ((2, 0) in want) is (field_g >= 100) and ((1, -1) in want) is (field_g < 316)

@@ -24,11 +24,8 @@ def _physics(shot, t0, t1):
     from scipy import constants as sc
 
     out = {"trap": [], "clouds": [], "notes": []}
-    try:
-        from ...check.physics import report_physics
-        from ...check.physics_traps import image_prediction, trap_stage
-    except ImportError:  # pragma: no cover - physics checks absent in a partial checkout
-        return out
+    from ...predict import image_prediction, report_rows, trap_stage
+
     if shot.sample is None:
         return out
     seen = set()
@@ -52,16 +49,16 @@ def _physics(shot, t0, t1):
             pred = image_prediction(shot, img)
         except Exception:
             pred = None
-        c = pred["cloud"] if pred else None
+        c = pred.cloud if pred else None
         if c:
             setup = shot.rig.imaging.get(img.args.get("setup"))
             # each internal-state component's height at the image, one per sign case of unknown forces
-            comps = [(comp["state"], comp["positions"][:, 2]) for comp in pred["components"]
-                     if np.any(np.abs(comp["positions"][:, 2] + c["drop"]) > 1e-9)]
-            out["clouds"].append({"t": img.t0, "release": img.t0 - c["tof"], "cloud": c, "setup": setup,
-                                  "name": img.args.get("setup", ""), "components": comps, "edge": pred["edge"]})
+            comps = [(comp.state, comp.positions[:, 2]) for comp in pred.components
+                     if np.any(np.abs(comp.positions[:, 2] + c.drop) > 1e-9)]
+            out["clouds"].append({"t": img.t0, "release": img.t0 - c.tof, "cloud": c.as_dict(), "setup": setup,
+                                  "name": img.args.get("setup", ""), "components": comps, "edge": pred.edge})
     try:
-        rows = report_physics(shot)
+        rows = [r.as_dict() for r in report_rows(shot)]
     except Exception:
         rows = []
     seen_rows = set()

@@ -1,0 +1,49 @@
+"""Rules on the absorption-imaging probe: Doppler shift, recoil blur, exposure. They read
+`seqgen.predict.imaging`."""
+
+from __future__ import annotations
+
+from ..codes import EXPOSURE_TOO_SHORT, IMAGING_BLUR, PROBE_DOPPLER
+from ..findings import make
+from ..predict.imaging import images, probe_analysis
+from ..predict.text import fmt_hz, fmt_t
+from .rules import rule
+
+
+_SRC_PROBE = ("steady-state scattering rate and saturation intensity, Sodium D Line Data and the other alkali D-line "
+              "data compilations; first-order Doppler shift; photon recoil (textbook)")
+
+
+@rule(PROBE_DOPPLER, stage="physics")
+def probe_doppler(shot):
+    for act in images(shot):
+        rep = probe_analysis(shot, act)
+        if rep and rep.doppler_linewidths > 1.0:
+            yield make(PROBE_DOPPLER, f"{rep.photons:.3g} photons per atom (saturation {rep.saturation:.3g}) "
+                       f"Doppler-shift the atoms by {fmt_hz(rep.doppler_hz)}, {rep.doppler_linewidths:.3g} natural "
+                       f"linewidths, during the probe", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"shorten the probe to {fmt_t(act.args['duration'] / rep.doppler_linewidths * 0.5)} or lower its power",
+                       data={"photons": rep.photons, "doppler_linewidths": rep.doppler_linewidths})
+
+
+@rule(IMAGING_BLUR, stage="physics")
+def imaging_blur(shot):
+    for act in images(shot):
+        rep = probe_analysis(shot, act)
+        if rep and rep.pixel and rep.blur > rep.pixel:
+            # blur grows as tau^(3/2) at fixed power
+            t_ok = act.args["duration"] * (rep.pixel / rep.blur) ** (2 / 3) * 0.9
+            yield make(IMAGING_BLUR, f"recoil blur {rep.blur * 1e6:.3g} um ({rep.photons:.3g} photons per "
+                       f"atom) exceeds one pixel, {rep.pixel * 1e6:.3g} um in the atom plane", act.pos, block=act.block,
+                       time_s=act.t0, hint=f"shorten the probe to about {fmt_t(t_ok)}",
+                       data={"blur_m": rep.blur, "pixel_m": rep.pixel})
+
+
+@rule(EXPOSURE_TOO_SHORT, stage="physics")
+def exposure_too_short(shot):
+    for act in images(shot):
+        exp_s, dur = act.args.get("exposure"), act.args["duration"]
+        if exp_s is not None and exp_s < dur * (1 - 1e-9):
+            yield make(EXPOSURE_TOO_SHORT, f"camera exposure {fmt_t(exp_s)} is shorter than the probe pulse "
+                       f"{fmt_t(dur)}", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"set exposure: {fmt_t(dur)} or longer")

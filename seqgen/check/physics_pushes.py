@@ -1,0 +1,149 @@
+"""Rules on pushes (velocity, direction against the next barrier, no force, arrival) and on the
+Stern-Gerlach separation of the components at an image. They read `seqgen.predict.pushes` and
+`seqgen.predict.cloud`."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..codes import (
+    COMPONENTS_OVERLAP, COMPONENTS_SEPARATED, EQUAL_MOMENTS, PUSH_AWAY_FROM_BARRIER, PUSH_NO_FORCE, PUSH_TOO_LATE,
+    PUSH_VELOCITY,
+)
+from ..findings import make
+from ..predict.cloud import SEPARATION_WIDTHS, separations
+from ..predict.pushes import MU_B, push_analysis, pushes
+from ..predict.species import bias
+from ..predict.states import barriers
+from ..predict.text import fmt_t, state_text, vec_text
+from .rules import rule
+
+PUSH_TOLERANCE = 0.10
+
+
+def _rel_off(a, b) -> float:
+    return abs(a - b) / abs(b) if b else math.inf
+
+
+_SRC_PUSH = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); force = moment x field gradient and dv = F t / m "
+             "(textbook); photon recoil and steady-state scattering, Adv. At. Mol. Opt. Phys. 42, 95 (2000)")
+
+
+@rule(PUSH_VELOCITY, stage="physics")
+def push_velocity(shot):
+    for act in pushes(shot):
+        want = act.args.get("expect_velocity")
+        rep = push_analysis(shot, act)
+        if want is None or not rep or rep.no_force:
+            continue
+        tol = act.args.get("tolerance", PUSH_TOLERANCE)
+        got = abs(rep.velocity)
+        if _rel_off(got, abs(want)) > tol:
+            how = (f"moment {rep.moment / MU_B:+.4g} mu_B of {state_text(rep.state)}, gradient "
+                   f"{rep.gradient * 100:.4g} G/cm" if rep.kind == "magnetic" else
+                   f"{rep.photons:.3g} photons of {rep.recoil * 1e3:.4g} mm/s recoil")
+            hint = (f"use duration {fmt_t(rep.duration * abs(want) / got)} for {abs(want) * 1e3:.4g} mm/s"
+                    if got > 0 else "the push gives no velocity")
+            yield make(PUSH_VELOCITY, f"the push gives {got * 1e3:.4g} mm/s ({how}, {fmt_t(rep.duration)}), "
+                       f"but expect_velocity is {abs(want) * 1e3:.4g} mm/s (tolerance {tol * 100:g} %)", act.pos,
+                       block=act.block, time_s=act.t0, hint=hint, data={"velocity_m_s": got, "expected_m_s": abs(want)})
+
+
+@rule(PUSH_AWAY_FROM_BARRIER, stage="physics")
+def push_away_from_barrier(shot):
+    for act in pushes(shot):
+        rep = push_analysis(shot, act)
+        if not rep or rep.no_force or rep.direction is None:
+            continue
+        nxt = [b for b in barriers(shot) if b.t0 >= act.t1 - 1e-12]
+        if not nxt:
+            continue
+        bar = min(nxt, key=lambda b: b.t0)
+        beam = shot.rig.beams.get(bar.args.get("beam"))
+        where = np.asarray(beam.position_m if beam is not None else (0, 0, 0), dtype=float)
+        dist = float(np.linalg.norm(where))
+        if not (dist > 0 and math.isfinite(dist)):
+            continue
+        along = float(np.dot(rep.direction, where)) / dist
+        if along < 0:
+            why = (f"{state_text(rep.state)} has moment {rep.moment / MU_B:+.3g} mu_B and goes towards "
+                   f"{'stronger' if rep.moment > 0 else 'weaker'} field, i.e. along "
+                   f"{vec_text(rep.direction)}" if rep.kind == "magnetic"
+                   else f"light pushes along the beam '{rep.beam}', {vec_text(rep.direction)}")
+            yield make(PUSH_AWAY_FROM_BARRIER, f"the push moves the atoms away from barrier '{beam.name}' "
+                       f"(block '{bar.block}', {dist * 1e3:.4g} mm away along {vec_text(where / dist)}): {why}",
+                       act.pos, block=act.block, time_s=act.t0,
+                       hint="prepare a state that this push sends towards the barrier (the other sign of moment), "
+                            "or check field_grows_along and the barrier position in the rig file",
+                       data={"cos_angle": along, "barrier_distance_m": dist})
+
+
+@rule(PUSH_NO_FORCE, stage="physics")
+def push_no_force(shot):
+    for act in pushes(shot):
+        rep = push_analysis(shot, act)
+        if rep and rep.kind == "magnetic" and rep.no_force:
+            yield make(PUSH_NO_FORCE, f"{state_text(rep.state)} has moment {rep.moment / MU_B:.3g} mu_B at "
+                       f"{bias(shot) * 1e4:.4g} G: the {rep.gradient * 100:.4g} G/cm gradient does not push it "
+                       f"({abs(rep.velocity) * 1e6:.3g} um/s)", act.pos, block=act.block, time_s=act.t0,
+                       hint="transfer the atoms to a state with mF != 0 before the push, or use an optical push")
+
+
+@rule(PUSH_TOO_LATE, stage="physics")
+def push_too_late(shot):
+    for act in pushes(shot):
+        rep = push_analysis(shot, act)
+        if not rep or rep.barrier is None:
+            continue
+        b = rep.barrier
+        if rep.arrival > b.t1:
+            when = "never" if math.isinf(rep.arrival) else f"at t = {fmt_t(rep.arrival)}"
+            yield make(PUSH_TOO_LATE, f"the atoms reach {act.args['target_distance'] * 1e3:.4g} mm {when} "
+                       f"({abs(rep.velocity) * 1e3:.4g} mm/s), but the barrier in block '{b.block}' ends at "
+                       f"t = {fmt_t(b.t1)}", b.pos, block=b.block, time_s=b.t1,
+                       hint=(f"keep the barrier on until at least {fmt_t(rep.arrival - b.t0)} after its start"
+                             if not math.isinf(rep.arrival) else "the push gives no velocity"),
+                       data={"arrival_s": rep.arrival, "barrier_end_s": b.t1})
+
+
+_SRC_SG = ("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m with moments from the Breit-Rabi "
+           "formula, Phys. Rev. 38, 2082 (1931)")
+
+
+@rule(EQUAL_MOMENTS, stage="physics")
+def equal_moments(shot):
+    for act, rep in separations(shot):
+        if rep.equal:
+            a, b = rep.pair
+            yield make(EQUAL_MOMENTS, f"{state_text(a)} and {state_text(b)} have moments "
+                       f"{rep.moments[0] / MU_B:+.4g} and {rep.moments[1] / MU_B:+.4g} mu_B: the gradient cannot "
+                       f"separate them", act.pos, block=act.block, time_s=act.t0,
+                       hint="drive a transition to a state with a different moment (another mF)")
+
+
+@rule(COMPONENTS_OVERLAP, stage="physics")
+def components_overlap(shot):
+    for act, rep in separations(shot):
+        if rep.equal or rep.resolved is None or rep.resolved:
+            continue
+        need = SEPARATION_WIDTHS * rep.combined
+        k = need / abs(rep.separation) if rep.separation else math.inf
+        yield make(COMPONENTS_OVERLAP, f"the components are {abs(rep.separation) * 1e6:.4g} um apart at the "
+                   f"image, {abs(rep.separation) / rep.combined:.3g} combined rms widths (each {rep.sigma * 1e6:.4g} "
+                   f"um); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
+                   hint=f"raise the gradient to {act.args['gradient'] * 100 * k:.3g} G/cm, or lengthen the pulse",
+                   data={"separation_m": rep.separation, "combined_rms_m": rep.combined})
+
+
+@rule(COMPONENTS_SEPARATED, stage="physics")
+def components_separated(shot):
+    for act, rep in separations(shot):
+        if rep.equal or not rep.resolved:
+            continue
+        yield make(COMPONENTS_SEPARATED, f"{state_text(rep.pair[0])} and {state_text(rep.pair[1])} are "
+                   f"{abs(rep.separation) * 1e3:.3g} mm apart at the image, {abs(rep.separation) / rep.combined:.3g} "
+                   f"combined rms widths (margin {abs(rep.separation) / (SEPARATION_WIDTHS * rep.combined):.3g} x the "
+                   f"{SEPARATION_WIDTHS:g} needed)", act.pos, block=act.block, time_s=act.t0,
+                   data={"separation_m": rep.separation, "combined_rms_m": rep.combined})

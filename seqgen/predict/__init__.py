@@ -1,0 +1,41 @@
+"""Stage 4a: per-shot physics predictions, as frozen typed results, cached per shot (and, for the trap
+minimisations, by content across shots). Predictions carry numbers, not findings: the rules of
+`seqgen.check` read them and decide what to report; `report_rows` turns them into the physics notes that
+`show --physics`, the plot and the HTML report print.
+
+Modules by subject, each importing only those before it: cache, species, traps, magnetic, states, pushes,
+cloud, barrier, imaging, text (words for the numbers), report.
+"""
+
+from __future__ import annotations
+
+from .barrier import BarrierPrediction, analyse as barrier_analysis, cloud_along_path, incident_velocity
+from .cache import clear_shot_cache, per_shot_cache
+from .cloud import (CloudAtImage, ImagePrediction, Separation, SizeUnknown, cloud_at_image, image_prediction,
+                    separation_analysis)
+from .imaging import ProbePrediction, probe_analysis
+from .magnetic import HoldPrediction, hold_analysis
+from .pushes import Components, PushPrediction, components_at, push_analysis
+from .report import PhysicsRow, report_rows
+from .species import LevelProblem, gaussian_beams, species
+from .states import (BarrierDrive, Interferometer, Populations, PulsePrediction, SweepPrediction,
+                     barrier_drive_analysis, interferometer_analysis, interferometers, populated_states,
+                     populations, pulse_analysis, state_fractions, sweep_analysis)
+from .traps import HeldTrap, TrapStage, held, trap_stage, trap_stage_prediction
+
+__all__ = [
+    "BarrierDrive", "BarrierPrediction", "CloudAtImage", "Components", "HeldTrap", "HoldPrediction",
+    "ImagePrediction", "Interferometer", "LevelProblem", "PhysicsRow", "Populations", "ProbePrediction", "PulsePrediction",
+    "PushPrediction", "Separation", "SizeUnknown", "SweepPrediction", "TrapStage",
+    "barrier_analysis", "barrier_drive_analysis", "clear_caches", "cloud_along_path", "cloud_at_image",
+    "components_at", "gaussian_beams", "held", "hold_analysis", "image_prediction", "incident_velocity",
+    "interferometer_analysis", "interferometers", "per_shot_cache", "populated_states", "populations",
+    "probe_analysis", "pulse_analysis", "push_analysis", "report_rows", "separation_analysis", "species",
+    "state_fractions", "sweep_analysis", "trap_stage", "trap_stage_prediction",
+]
+
+
+def clear_caches() -> None:
+    """Drop the per-shot analyses (of this thread) and the content-keyed trap minimisations."""
+    clear_shot_cache()
+    held.cache_clear()

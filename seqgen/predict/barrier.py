@@ -1,0 +1,438 @@
+"""Predictions of `barrier` actions: transmission of the kicked cloud through
+a thin repulsive light sheet, and the spin rotation that an intensity-modulated
+sheet drives in the atoms that cross it.
+
+The model, in one place (one cached analysis per barrier action; the rules of
+seqgen.check.physics_barrier read it):
+
+* Incident velocity: from the last `push` before the barrier, through the
+  push model of `seqgen.predict.pushes.push_analysis`: a magnetic push gives
+  v = moment b' tau / m with the moment -dE/dB of the sample state from the
+  Breit-Rabi formula at the rig's bias field (force = moment x gradient of
+  |B|, the package-wide sign of `seqgen.physics`); only the speed is used,
+  the direction is reported. An optical push, or a state without a usable
+  moment (mF = 0), falls back to the push's `expect_velocity`.
+  A push that sends the atoms away from the barrier (the push's direction
+  against the barrier beam's `position` in the rig, the atoms starting at the
+  rig's origin) gives no incident velocity: the atoms never arrive, and
+  `physics.push-away-from-barrier` says so; the barrier checks stay silent.
+* The cloud along the path, from the trap just before the push (trap
+  frequencies from `sample.trap_frequencies`, else from the rig's trap beams
+  then on): a condensate has the Thomas-Fermi radius R along the path, line
+  density (15/16R)(1 - x^2/R^2)^2 and sigma_v = 1.602 hbar/(m R)
+  (`seqgen.physics.scattering.condensate_velocity_rms`); a thermal cloud is
+  Gaussian with rms width sqrt(k_B T/(m omega^2)) along the path (edge at 2.5
+  rms) and sigma_v = sqrt(k_B T / m).
+* Passage: the barrier plane lies d = position . direction from the atoms
+  along the path; every atom starts at its place x0 in the cloud with its own
+  velocity offset u, moves with the push (uniform acceleration over the push,
+  then at the pushed speed) plus u t, and has crossed the sheet once
+  x0 + s(t) + u t passes d + w_y. `physics.cloud-overlaps-barrier` warns when
+  the cloud's edge already reaches the sheet at the push,
+  `physics.barrier-too-short` when more than 10 % of the cloud crosses the
+  sheet only after it is off, `physics.barrier-too-late` when more than 10 %
+  reaches its near edge (d - w_y) before it is on: the transmission below
+  assumes that every atom meets the sheet, coming from one side.
+* Barrier: V(x) = V0 exp(-2 x^2 / w_y^2) along the path, V0 = (U/I) 2P/(pi w w_y)
+  with U/I the D1 + D2 light shift per intensity of the species at the beam's
+  wavelength (Adv. At. Mol. Opt. Phys. 42, 95 (2000)); `power` is the
+  time-averaged power (intensities from `seqgen.physics.optical.peak_intensity`
+  and `modulated_peak_intensity`, shared with `seqgen.predict.states`).
+  Single-particle, stationary 1D scattering (mean-field energy of the cloud
+  and the finite length of the pulse are not included), averaged over a
+  Gaussian velocity distribution with Gauss-Hermite quadrature.
+* Drive inside the barrier: an intensity modulation at `modulation.frequency`
+  with depth eps makes a co-propagating Raman pair that couples |F, m> to the
+  other hyperfine level at equal m; the Rabi frequency follows the local
+  intensity, Omega(x) = Omega_peak exp(-2 x^2 / w_y^2), with Omega_peak from
+  `seqgen.physics.drive.two_photon_rabi_from_modulated_beam` (vector light
+  shift, Adv. At. Mol. Opt. Phys. 42, 95 (2000)). The rig file does not state
+  the sheet's polarisation, so seqgen takes circular light (the largest
+  coupling): a warning that the drive is too strong is then conservative. The
+  partner level sees V(x) plus the differential light shift and, in the frame
+  rotating with the modulation, the internal offset h (f_0 - f_mod) (f_0 from
+  the Breit-Rabi formula at the rig's bias field). The two-component
+  stationary solver gives the transmitted spinor; the rotation angle is the
+  angle between the incident and the transmitted Bloch vectors (Larmor clock,
+  Phys. Rev. B 27, 6178 (1983)), averaged over the momentum distribution with
+  the transmitted probability as weight.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import constants as sc
+
+from ..physics.barrier import barrier_height, free_flight_rotation, gaussian_profile, sheet_grid, spin_rotation
+from ..physics.passage import fraction_reached, path_frequency, time_to_fraction
+from .cache import per_shot_cache
+from .pushes import push_analysis
+from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, species,
+                      unevaluable)
+
+DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
+N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
+# beyond |delta| w_y / v = 20 the transit-time Fourier factor of a Gaussian
+# coupling, exp(-(delta w_y / v)^2 / 8), is below 1e-21: no transfer at all
+FAR_OFF_RESONANCE = 20.0
+THERMAL_EDGE_RMS = 2.5  # a thermal cloud's edge along the path: 2.5 rms widths, 98.8 % of it (common practice, no source)
+HINT_FRACTION = 0.01  # the passage times aim at 1 % of the cloud missed
+
+
+@dataclass(frozen=True)
+class Incident:
+    """The atoms' velocity towards a barrier: speed (m/s), signed (> 0: pushed towards stronger field),
+    direction (unit vector of the push, or the coil axis / beam direction when its sense is unknown),
+    known_direction, the push action; source "push" (coil, state (F, mF), moment -dE/dB, push_direction
+    when known) or "expect_velocity" (the push's declared velocity)."""
+
+    speed: float
+    signed: float
+    direction: tuple
+    known_direction: bool
+    push: object
+    source: str
+    coil: str | None = None
+    state: tuple | None = None
+    moment: float | None = None
+    push_direction: tuple | None = None
+
+
+@dataclass(frozen=True)
+class CloudAlongPath:
+    """The sample along the path: sigma_v (m/s), profile ("thomas-fermi", "gaussian" or "point"), size
+    (Thomas-Fermi radius or rms width, m; 0 when unknown), half_length (the edge, m, or None), temperature_k
+    (a thermal cloud's temperature, else None)."""
+
+    sigma_v: float
+    profile: str
+    size: float
+    half_length: float | None
+    temperature_k: float | None = None
+
+
+@dataclass(frozen=True)
+class Passage:
+    """The cloud against the sheet, times from the push's start: distance (m) of the sheet along the path,
+    the cloud's edge (m or None), on / off (s), push_t0, overlap at the push, early (fraction at the near
+    edge before the sheet is on), late (fraction across the far edge only after it is off), need_off /
+    need_on (s: 99 % across / 1 % arrived), centre_arrival (s)."""
+
+    distance: float
+    edge: float | None
+    on: float
+    off: float
+    push_t0: float
+    overlap: bool
+    early: float
+    late: float
+    need_off: float
+    need_on: float
+    centre_arrival: float
+
+
+@dataclass(frozen=True)
+class InBarrierDrive:
+    """The modulated sheet's coupling of the sample state (initial) to its partner. unsupported: why there is
+    none ("not_in_transition", "changes_mf", "no_coupling" with `problem`, a species.LevelProblem); else rabi_peak (rad/s), the
+    partner's light shift and rotating-frame offset (J), the bare line (Hz), the modulation's detuning from
+    it (Hz), assumed_resonant (no modulation frequency), far_off (no transfer in the transit time)."""
+
+    initial: tuple
+    partner: tuple | None
+    depth: float
+    unsupported: str | None = None
+    problem: LevelProblem | None = None
+    rabi_peak: float | None = None
+    transition_hz: float | None = None
+    detuning_hz: float | None = None
+    shift_j: float | None = None
+    offset_j: float | None = None
+    light_shift_hz: float | None = None
+    assumed_resonant: bool = False
+    far_off: bool = False
+
+
+@dataclass(frozen=True)
+class BarrierPrediction:
+    """One barrier action (see the module notes): incident speed and its spread, V0 (J), mean kinetic energy
+    E_mean (J), waist_y (m), expect, transmission T and its spread, the cloud along the path, the passage,
+    the in-barrier drive and rotation (rad), atom numbers N_T / N_R and the detection floor."""
+
+    speed: float
+    signed: float
+    incident: Incident
+    sigma_v: float
+    V0: float
+    E_mean: float
+    waist_y: float
+    expect: str
+    cloud: CloudAlongPath
+    passage: Passage
+    drive: InBarrierDrive | None
+    T: float
+    T_spread: float
+    floor: float
+    attractive: bool = False
+    opaque: str | None = None
+    free_flight_rotation: float | None = None
+    rotation: float | None = None
+    rotation_spread: float | None = None
+    N_T: float | None = None
+    N_R: float | None = None
+
+
+def barriers(shot):
+    return [a for a in shot.phys if a.kind == "barrier"]
+
+
+def _last_push(shot, act):
+    pushes = [a for a in shot.phys if a.kind == "push" and a.t0 <= act.t0]
+    return pushes[-1] if pushes else None
+
+
+def _unit(v):
+    a = np.asarray(v, dtype=float)
+    n = float(np.linalg.norm(a))
+    return a / n if n > 0 and math.isfinite(n) else None
+
+
+def incident_velocity(shot, act) -> Incident | None:
+    """The atoms' velocity towards the barrier action, or None.
+
+    One push model for every rule: `pushes.push_analysis` (moment
+    -dE/dB from the Breit-Rabi formula at the rig's bias field). `signed` > 0:
+    pushed towards stronger field. A push that gives the state no force
+    (mF = 0, or |moment| below the push checks' threshold) or an optical push
+    falls back to the push's `expect_velocity` when it gives one. None when
+    the push has a direction (`push_analysis(...).direction`) that leads
+    away from the barrier beam's rig `position` (the atoms start at the rig's
+    origin): the atoms never arrive (physics.push-away-from-barrier)."""
+    push = _last_push(shot, act)
+    if species(shot) is None or push is None:
+        return None
+    args = push.args
+    rep = push_analysis(shot, push)
+    direction = rep.direction if rep else None
+    known = direction is not None
+    if direction is None:
+        direction = shot.rig.coils[args["coil"]].axis if "coil" in args else shot.rig.beams[args["beam"]].direction
+    beam = shot.rig.beams.get(act.args.get("beam"))
+    if known and beam is not None:
+        where = np.asarray(beam.position_m, dtype=float)
+        dist = float(np.linalg.norm(where))
+        if dist > 0 and math.isfinite(dist) and float(np.dot(direction, where)) < 0:
+            return None  # pushed away from the sheet: it meets no atoms
+    if rep and rep.kind == "magnetic" and not rep.no_force and rep.velocity != 0:
+        signed = rep.velocity
+        return Incident(abs(signed), signed, direction, known, push, "push", args["coil"],
+                        (shot.sample.F, shot.sample.mF), rep.moment, rep.direction)
+    if args.get("expect_velocity"):
+        v = float(args["expect_velocity"])
+        return Incident(abs(v), v, direction, known, push, "expect_velocity")
+    return None
+
+
+def _before(t):
+    """Just before t: a write at the push's own start (a trap beam switched off) is not yet the trap."""
+    return t - 1e-9 * max(1.0, abs(t))
+
+
+def cloud_along_path(shot, time_s, direction) -> CloudAlongPath:
+    """The sample along the unit `direction` in the trap at `time_s`:
+
+    sigma_v (m/s), profile ("thomas-fermi", "gaussian" or "point"), size (Thomas-Fermi radius or
+    rms width, m; 0 when unknown) and half_length (the edge: R, or THERMAL_EDGE_RMS rms widths; None
+    when unknown). Trap frequencies from `sample.trap_frequencies`, else from the rig's trap beams on at
+    `time_s`."""
+    from ..physics.expansion import thermal_in_trap_width, thomas_fermi
+    from ..physics.optical import find_trap_minimum
+    from ..physics.scattering import condensate_velocity_rms, thermal_velocity_rms
+
+    sp = species(shot)
+    s = shot.sample
+    omegas = axes = None
+    if s.trap_frequencies_hz:
+        omegas = 2 * np.pi * np.asarray(s.trap_frequencies_hz, dtype=float)
+    else:
+        beams = gaussian_beams(shot, [time_s])[0]
+        if beams:
+            try:
+                m = find_trap_minimum(sp, beams)
+                omegas, axes = m.omegas_rad_s, m.axes
+            except (ValueError, RuntimeError, np.linalg.LinAlgError):
+                omegas = None
+    w_path = None
+    if omegas is not None and np.all(np.isfinite(omegas)) and np.all(np.asarray(omegas) > 0):
+        w_path = path_frequency(omegas, axes, direction)
+    if s.condensed and s.atoms and w_path:
+        a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", next(iter(sp.scattering_lengths_m.values()), None))
+        if a and a > 0:
+            mu, _ = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
+            radius = math.sqrt(2 * mu / (sp.mass_kg * w_path**2))
+            return CloudAlongPath(float(condensate_velocity_rms(radius, sp.mass_kg)), "thomas-fermi", radius, radius)
+    if s.temperature_k:
+        sigma_v = float(thermal_velocity_rms(s.temperature_k, sp.mass_kg))
+        if w_path:
+            width = float(thermal_in_trap_width(s.temperature_k, sp.mass_kg, w_path))
+            return CloudAlongPath(sigma_v, "gaussian", width, THERMAL_EDGE_RMS * width, s.temperature_k)
+        return CloudAlongPath(sigma_v, "point", 0.0, None, s.temperature_k)
+    return CloudAlongPath(0.0, "point", 0.0, None)
+
+
+def passage(shot, act, inc, cloud, waist_y) -> Passage:
+    """Where the cloud is against the sheet: the distance d along the path, the cloud's edge,
+    whether they overlap at the push, and the fractions that reach the near edge d - w_y before the
+    barrier is on and cross the far edge d + w_y only after it is off (times from the push's start)."""
+    push = inc.push
+    beam = shot.rig.beams[act.args["beam"]]
+    d = float(np.dot(np.asarray(beam.position_m, dtype=float), _unit(inc.direction)))
+    if not inc.known_direction:
+        d = abs(d)  # the push's sense is unknown: take it towards the sheet
+    tau = float(push.args["duration"])
+    args = (inc.speed, tau, cloud.sigma_v, cloud.profile, cloud.size)
+    on, off = act.t0 - push.t0, act.t1 - push.t0
+    out = dict(distance=d, edge=cloud.half_length, on=on, off=off, push_t0=push.t0,
+               overlap=cloud.half_length is not None and cloud.half_length + waist_y >= d)
+    out["early"] = float(fraction_reached(on, d - waist_y, *args))
+    out["late"] = 1.0 - float(fraction_reached(off, d + waist_y, *args))
+    out["need_off"] = time_to_fraction(1.0 - HINT_FRACTION, d + waist_y, *args)
+    out["need_on"] = time_to_fraction(HINT_FRACTION, d - waist_y, *args)
+    out["centre_arrival"] = time_to_fraction(0.5, d, inc.speed, tau, 0.0, "point", 0.0)
+    return Passage(**out)
+
+
+def _partner(shot, act):
+    """(initial (F, mF), partner (F, mF) or None) of the in-barrier drive.
+
+    The initial level is the sample state; the partner is the other state of
+    the modulation's `transition`, or by default the other hyperfine level at
+    equal mF."""
+    s = shot.sample
+    initial = (s.F, s.mF)
+    tr = act.args.get("transition")
+    if tr and len(tr) == 2:
+        a, b = (tuple(t) for t in tr)
+        if initial == a:
+            return initial, b
+        if initial == b:
+            return initial, a
+        return initial, None
+    i = species(shot).nuclear_spin
+    other = i + 0.5 if abs(s.F - (i - 0.5)) < 1e-9 else i - 0.5
+    return initial, (int(round(other)), s.mF)
+
+
+def _drive_model(shot, act, sp, beam, waist_y, speed) -> InBarrierDrive | None:
+    """In-barrier coupling: rabi_peak, partner offset / shift, detuning, or why it is absent."""
+    from ..physics.drive import two_photon_rabi_from_modulated_beam
+    from ..physics.optical import modulated_peak_intensity
+    from ..physics.zeeman import transition_frequency
+
+    eps = act.args.get("mod_depth")
+    if not eps or shot.sample.F is None or shot.sample.mF is None:
+        return None
+    initial, partner = _partner(shot, act)
+    out = dict(initial=initial, partner=partner, depth=float(eps))
+    if partner is None:
+        return InBarrierDrive(**out, unsupported="not_in_transition")
+    if partner[1] != initial[1]:
+        return InBarrierDrive(**out, unsupported="changes_mf")
+    i = sp.nuclear_spin
+    try:
+        # the refusals of seqgen.physics (optical, drive, zeeman), in their order, as data
+        problem = (LevelProblem(BAD_DEPTH, depth=float(eps)) if not 0 <= float(eps) <= 1
+                   else LevelProblem(NO_PARTNER, None, initial[1], sp.name, i) if abs(float(initial[1])) > i - 0.5 + 1e-9
+                   else level_problem(sp, *initial) or level_problem(sp, *partner))
+        if problem:
+            return InBarrierDrive(**out, unsupported="no_coupling", problem=problem)
+        i_peak = float(modulated_peak_intensity(act.args["power"], beam.waist_m, waist_y, eps))
+        d = two_photon_rabi_from_modulated_beam(i_peak, eps, beam.wavelength_m, m_f=initial[1],
+                                                polarization=1.0, atom=sp)
+        f = float(transition_frequency(initial[0], initial[1], partner[0], partner[1], shot.rig.bias_field_t or 0.0,
+                                       atom=sp))
+    except (ValueError, TypeError) as exc:
+        return InBarrierDrive(**out, unsupported="no_coupling", problem=unevaluable(sp, initial, exc))
+    sign = 1.0 if f > 0 else -1.0
+    f_mod = act.args.get("mod_frequency")
+    detuning_hz = (f_mod - abs(f)) if f_mod else 0.0  # modulation above the bare line > 0
+    # rotating frame: the partner's internal energy is h (f - sign(f) f_mod) = -sign(f) h detuning
+    out.update(rabi_peak=d.rabi_rad_s, transition_hz=abs(f), detuning_hz=detuning_hz,
+               shift_j=sign * d.differential_light_shift_j, offset_j=-sign * sc.h * detuning_hz,
+               light_shift_hz=d.differential_light_shift_hz, assumed_resonant=not f_mod)
+    # the local line moves from the bare one (outside) to bare + differential light shift (at the peak)
+    lo, hi = detuning_hz, detuning_hz - d.differential_light_shift_hz
+    nearest = 0.0 if lo * hi <= 0 else min(abs(lo), abs(hi))
+    out["far_off"] = 2 * math.pi * nearest * waist_y / speed > FAR_OFF_RESONANCE
+    return InBarrierDrive(**out)
+
+
+@per_shot_cache(lambda shot, act: ("barrier", act.index, act.t0))
+def analyse(shot, act) -> BarrierPrediction | None:
+    """Cached analysis of one barrier action (see the module docstring), or None."""
+    from ..physics.scattering import average_over_momentum, transmission
+
+    sp = species(shot)
+    beam = shot.rig.beams.get(act.args["beam"])
+    if sp is None or shot.sample is None or beam is None or not beam.waist_m:
+        return None
+    waist_y = beam.waist_y_m or beam.waist_m
+    inc = incident_velocity(shot, act)
+    if inc is None or not inc.speed > 0 or _unit(inc.direction) is None:
+        return None
+    v = inc.speed
+    cloud = cloud_along_path(shot, _before(inc.push.t0), _unit(inc.direction))
+    sigma = cloud.sigma_v
+    m = sp.mass_kg
+    v0 = barrier_height(sp, beam.wavelength_m, act.args["power"], beam.waist_m, waist_y)
+    e_mean = 0.5 * m * (v**2 + sigma**2)
+    rep = dict(speed=v, signed=inc.signed, incident=inc, sigma_v=sigma,
+               V0=v0, E_mean=e_mean, waist_y=waist_y, expect=act.args.get("expect", "any"))
+    if v0 <= 0:
+        rep["attractive"] = True  # red-detuned sheet: a well, not a barrier
+    rep["cloud"] = cloud
+    rep["passage"] = passage(shot, act, inc, cloud, waist_y)
+    drive = _drive_model(shot, act, sp, beam, waist_y, v)
+    rep["drive"] = drive
+    v_max = v + 6.0 * sigma
+    e_top = max(0.5 * m * v_max**2, abs(v0))
+    if drive and drive.rabi_peak is not None and not drive.far_off:
+        e_top += abs(drive.offset_j) + abs(drive.shift_j)
+    x = sheet_grid(waist_y, math.sqrt(2 * m * e_top) / sc.hbar)
+    profile = gaussian_profile(waist_y)
+    tiny = 1e-6 * 0.5 * m * v**2  # a node at v ~ 0: keep the energy positive
+
+    def scalar(energies):
+        return transmission(x, lambda xx: v0 * profile(xx), np.maximum(energies, tiny), m).T
+
+    try:
+        avg = average_over_momentum(scalar, v, sigma, m, n_points=N_VELOCITIES)
+    except ValueError as exc:  # barrier too opaque for double precision: nothing gets through
+        avg = None
+        rep["opaque"] = str(exc)
+    # a probability: keep the quadrature's round-off (1 + 1e-16) out of the atom counts
+    rep["T"] = min(max(float(avg.mean_transmission), 0.0), 1.0) if avg else 0.0
+    rep["T_spread"] = avg.transmission_spread if avg else 0.0
+    if drive and drive.rabi_peak is not None:
+        rep["free_flight_rotation"] = free_flight_rotation(drive.rabi_peak, waist_y, v)
+        if drive.far_off or rep["T"] == 0.0:
+            rep["rotation"], rep["rotation_spread"] = 0.0, 0.0
+        else:
+            def spinor(energies):
+                r = spin_rotation(x, profile, v0, drive.rabi_peak, np.maximum(energies, tiny), m,
+                                  partner_shift_j=drive.shift_j, partner_offset_j=drive.offset_j)
+                return r.probability, r.angle
+
+            try:
+                sav = average_over_momentum(spinor, v, sigma, m, n_points=N_VELOCITIES)
+                rep["rotation"], rep["rotation_spread"] = sav.mean_rotation, sav.rotation_spread
+            except ValueError:  # the partner channel is closed and opaque: no transfer
+                rep["rotation"], rep["rotation_spread"] = 0.0, 0.0
+    atoms = shot.sample.atoms
+    if atoms:
+        rep["N_T"] = max(atoms * rep["T"], 0.0)
+        rep["N_R"] = max(atoms * (1.0 - rep["T"]), 0.0)
+    rep["floor"] = shot.sample.detection_floor if shot.sample.detection_floor is not None else DEFAULT_DETECTION_FLOOR
+    return BarrierPrediction(**rep)

@@ -1,0 +1,263 @@
+"""Words for the predictions: the numbers and states as the rules' messages and `show --physics` write them.
+One place, so that a finding and the physics notes say the same thing the same way."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import constants as sc
+
+from . import cloud as cl
+from . import species as spc
+
+G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
+TESLA_PER_GAUSS = 1e-4
+
+
+def state_text(s) -> str:
+    return f"|F={s[0]}, mF={s[1]:+d}>" if s[1] else f"|F={s[0]}, mF=0>"
+
+
+def fmt_hz(f, digits=4) -> str:
+    """Frequency text; `digits` significant digits (line frequencies use 10, enough for a synth setting)."""
+    a = abs(f)
+    for scale, unit in ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz")):
+        if a >= scale:
+            return f"{f / scale:.{digits}g} {unit}"
+    return f"{f:.{digits}g} Hz"
+
+
+def line_hz(f) -> str:
+    return fmt_hz(f, 10)
+
+
+def fmt_t(t) -> str:
+    a = abs(t)
+    if a >= 1:
+        return f"{t:.4g} s"
+    if a >= 1e-3:
+        return f"{t * 1e3:.4g} ms"
+    return f"{t * 1e6:.4g} us"
+
+
+def pi_text(x) -> str:
+    return f"{x:.4g} rad ({x / math.pi:.3g} pi)"
+
+
+def vec_text(v) -> str:
+    return "[" + ", ".join(f"{x + 0.0:.3g}" for x in v) + "]"  # + 0.0: no '-0'
+
+
+def length_text(x) -> str:
+    return f"{x * 1e6:.3g} um" if abs(x) < 1e-3 else f"{x * 1e3:.3g} mm"
+
+
+def mm_text(v) -> str:
+    return "[" + ", ".join(f"{x * 1e3 + 0.0:.3g}" for x in v) + "] mm"
+
+
+def pct(f) -> str:
+    return f"{f * 100:.3g} %"
+
+
+def gauss(b_t) -> str:
+    return f"{b_t / TESLA_PER_GAUSS:.4g} G"
+
+
+def g_cm(g_t_m) -> str:
+    return f"{g_t_m * 100:.4g} G/cm"
+
+
+def g_cm2(c_t_m2) -> str:
+    return f"{c_t_m2:.4g} G/cm^2"  # 1 G/cm^2 = 1e-4 T / 1e-4 m^2 = 1 T/m^2
+
+
+# --------------------------------------------------------------------------- levels and pulses
+
+def level_problem_text(p) -> str:
+    """Why a level has no numbers (species.LevelProblem), in the words seqgen.physics uses for the same refusal."""
+    if p.kind == spc.NOT_GROUND_LEVEL:
+        return f"|F={p.F}, mF={p.mF}> is not a ground level of {p.species}"
+    i = p.nuclear_spin
+    if p.kind == spc.BAD_F:
+        return f"ground-state F must be {i - 0.5:g} or {i + 0.5:g}, got {np.asarray(p.F, dtype=float)}"
+    if p.kind == spc.BAD_MF:
+        return f"mF = {np.asarray(p.mF, dtype=float)} is not a sublevel of F = {np.asarray(p.F, dtype=float)}"
+    if p.kind == spc.NO_PARTNER:
+        return f"m_f = {float(p.mF):g} exists only in F = I + 1/2: no hyperfine partner at equal m"
+    if p.kind == spc.BAD_DEPTH:
+        return "modulation depth must lie in [0, 1]"
+    return f"the level numbers of |F={p.F}, mF={p.mF}> of {p.species} could not be evaluated ({p.error})"
+
+
+def detuning_source_text(rep) -> str:
+    """How a pulse's detuning was found (PulsePrediction.detuning_source) in words."""
+    if rep.detuning_source == "unknown_line":
+        return f"line unknown, {level_problem_text(rep.bad_level)}: taken on resonance"
+    return {"frequency": "frequency", "declared": "declared detuning",
+            "assumed": "no frequency given: taken on resonance"}[rep.detuning_source]
+
+
+def barrier_drive_reason(rep) -> str:
+    """Why a modulated barrier has no drive model (BarrierDrive.unsupported)."""
+    if rep.unsupported == "not_hyperfine":
+        return "the modulated-beam drive model couples the two hyperfine levels at equal mF only"
+    return level_problem_text(rep.bad_level)
+
+
+# --------------------------------------------------------------------------- the cloud at an image
+
+def who(comp) -> str:
+    st = comp.state
+    return f"{state_text(st)} ({comp.fraction * 100:.3g} % of the atoms)" if st is not None else "the cloud"
+
+
+def why_there(pred, comp, case) -> str:
+    """How a component got where it is in one case: its fall and each force's displacement (mm)."""
+    bits = [f"fall {0.5 * G_N * pred.tof ** 2 * 1e3:.3g} mm"]
+    signs = pred.signs
+    for label, known, vec, slot in comp.parts:
+        length = float(np.linalg.norm(vec))
+        if length == 0:
+            continue
+        if known:
+            bits.append(f"{label} {length * 1e3:.3g} mm along {vec_text(vec / length)}")
+        elif signs is not None:
+            bits.append(f"{label} {length * 1e3:.3g} mm along {vec_text(signs[case, slot] * vec / length)} (the coil has no "
+                        f"field_grows_along: both ways checked)")
+        else:
+            bits.append(f"{label} {length * 1e3:.3g} mm either way along {vec_text(vec / length)}")
+    return ", ".join(bits)
+
+
+_TRAP_WORDS = {cl.TRAP_SAMPLE: "the sample's trap_frequencies", cl.TRAP_OPTICAL: "the optical trap"}
+_MAGNETIC_WORDS = {cl.TRAP_IOFFE_PRITCHARD: "Ioffe-Pritchard", cl.TRAP_QUADRUPOLE: "linear quadrupole"}
+THERMAL_STAND_IN = "condensate in a linear trap: sized as a thermal cloud at the sample's temperature"
+
+
+def trap_text(cloud) -> str:
+    """Which trap the release opened (CloudAtImage.trap)."""
+    if cloud.trap in _TRAP_WORDS:
+        return _TRAP_WORDS[cloud.trap]
+    return f"the magnetic trap of block '{cloud.trap_block}' ({_MAGNETIC_WORDS[cloud.trap]})"
+
+
+def hold_no_size_text(rep) -> str:
+    """Why a magnetic hold (HoldPrediction) gives no trap."""
+    if rep.bad_state is not None:
+        return level_problem_text(rep.bad_state)
+    if rep.unconfined in ("axial", "radial"):
+        return unconfined_text(rep)
+    return "the held state is not trappable" if rep.trappable is not None else "the trap could not be evaluated"
+
+
+def size_unknown_text(why) -> str:
+    """Why an image has no cloud size (SizeUnknown)."""
+    where = f"the magnetic trap of block '{why.block}'"
+    return {
+        cl.IN_SITU: lambda: "no release before the image (an in-situ image): no time-of-flight prediction",
+        cl.TRAP_EMPTY: lambda: "the trap beams on before the release hold no atoms (no trap frequencies)",
+        cl.NO_TRAP: lambda: ("no trap is known before the release: no trap beams on, no magnetic_hold, and the "
+                             "sample gives no trap_frequencies"),
+        cl.QUADRUPOLE_NEEDS_TEMPERATURE: lambda: f"{where} is a linear quadrupole: its cloud size needs the sample's "
+                                                 "temperature",
+        cl.QUADRUPOLE_FLAT: lambda: f"{where} has a direction without gradient: the cloud is not confined",
+        cl.HOLD_NO_SIZE: lambda: f"{where} gives no cloud size: {hold_no_size_text(why.hold)}",
+        cl.NO_SCATTERING_LENGTH: lambda: f"no positive scattering length of {why.species} for a Thomas-Fermi condensate",
+        cl.NO_TEMPERATURE: lambda: "the sample has no temperature",
+        cl.NO_TEMPERATURE_NOR_ATOMS: lambda: "the sample gives neither a temperature nor, for a condensate, an atom number",
+    }[why.reason]()
+
+
+def size_text(pred) -> str:
+    c = pred.cloud
+    if c is None:
+        return f"cloud size unknown ({size_unknown_text(pred.why)}): its centre alone is checked"
+    return f"{c.size_kind} {length_text(c.size)}"
+
+
+# --------------------------------------------------------------------------- barriers
+
+def hz_text(f_hz: float) -> str:
+    a = abs(f_hz)
+    if a >= 1e6:
+        return f"{f_hz / 1e6:.6g} MHz"
+    if a >= 1e3:
+        return f"{f_hz / 1e3:.5g} kHz"
+    return f"{f_hz:.4g} Hz"
+
+
+def energy_text(e_j: float) -> str:
+    t = e_j / sc.k
+    temp = f"{t * 1e9:.4g} nK" if abs(t) < 1e-6 else f"{t * 1e6:.4g} uK"
+    return f"h x {e_j / sc.h / 1e3:.4g} kHz ({temp} x k_B)"
+
+
+def um(x_m: float) -> str:
+    return f"{x_m * 1e6:.4g} um" if abs(x_m) < 1e-2 else f"{x_m * 1e3:.4g} mm"
+
+
+def ms(t_s: float) -> str:
+    return f"{t_s * 1e3:.4g} ms" if math.isfinite(t_s) else "never"
+
+
+def spread_text(cloud) -> str:
+    """The velocity spread's origin (CloudAlongPath) in words."""
+    if cloud.profile == "thomas-fermi":
+        return f"condensate, Thomas-Fermi radius {cloud.size * 1e6:.4g} um along the path"
+    if cloud.temperature_k:
+        text = f"thermal, T = {cloud.temperature_k * 1e9:.4g} nK"
+        if cloud.profile == "gaussian":
+            return f"{text}, rms width {cloud.size * 1e6:.4g} um along the path"
+        return f"{text}, size along the path unknown (no trap)"
+    return "no spread known (sample without temperature or trap)"
+
+
+def incident_text(inc) -> str:
+    """Where the incident velocity comes from (Incident) in words."""
+    if inc.source != "push":
+        return "expect_velocity of the push"
+    way = "towards stronger field" if inc.moment > 0 else "towards weaker field"
+    if inc.push_direction is not None:
+        way += ", along [" + ", ".join(f"{x + 0.0:.3g}" for x in inc.push_direction) + "]"
+    return f"push by '{inc.coil}' on |F={inc.state[0]}, mF={inc.state[1]}>, {way}"
+
+
+def in_barrier_drive_reason(d) -> str:
+    """Why a barrier's in-barrier drive gives no rotation (InBarrierDrive.unsupported)."""
+    initial, partner = d.initial, d.partner
+    if d.unsupported == "not_in_transition":
+        return (f"the sample state |F={initial[0]}, mF={initial[1]}> is not in the modulation's transition: "
+                "the drive does not act on it; rotation not computed")
+    if d.unsupported == "changes_mf":
+        return (f"transition {initial} -> {partner} changes mF: a modulated beam along the quantisation "
+                "axis couples equal mF only; rotation not computed")
+    return f"no coupling in the drive model: {level_problem_text(d.problem)}"
+
+
+def rotation_text(rep) -> str:
+    d = rep.drive
+    txt = (f"rotation of the transmitted spin {rep.rotation:.3g} rad (spread {rep.rotation_spread:.2g}) on "
+           f"|F={d.initial[0]}, mF={d.initial[1]}> -> |F={d.partner[0]}, mF={d.partner[1]}>; peak Rabi frequency "
+           f"2 pi x {d.rabi_peak / (2 * math.pi):.4g} Hz (circular polarisation assumed), "
+           f"detuning {hz_text(d.detuning_hz)} from the bare line")
+    if d.far_off:
+        txt += " (far off resonance for the transit time: no transfer)"
+    return txt + (" (no modulation frequency: taken on resonance)" if d.assumed_resonant else "")
+
+
+# --------------------------------------------------------------------------- magnetic holds
+
+def unconfined_text(rep) -> str:
+    return {"axial": "axially: the curvature B'' is not positive", "radial": "radially: B'^2/B0 < B''/2"}[rep.unconfined]
+
+
+def weakest_text(rep, short: bool = False) -> str:
+    """Which gradient the quadrupole's cloud size and Majorana numbers use: the weakest one, named."""
+    one = len(rep.axial or ()) == 1  # one coil: the radial gradient is half the axial one (div B = 0)
+    text = f"{g_cm(rep.weakest_gradient)}, the trap's weakest{' (radial)' if one and short else ''} gradient"
+    if one and not short:
+        name, g = rep.axial[0]
+        text += f": the radial one, half of {name}'s {g_cm(abs(g))} along its axis"
+    return text

@@ -1,0 +1,106 @@
+"""Optical trap stages: the trap that the trap beams on at a time make (depth with gravity, frequencies),
+and per `trap_ramp` its frequencies, depth, eta and the excitation the ramp leaves."""
+
+from __future__ import annotations
+
+import functools
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import constants as sc
+
+from .cache import per_shot_cache
+from .species import actions, gaussian_beams, species
+
+N_SAMPLES = 24  # trap evaluations per ramp: frequencies vary smoothly with power
+
+
+@dataclass(frozen=True, eq=False)
+class HeldTrap:
+    """Depth with gravity (J, 0 when nothing is held) and trap frequencies (rad/s, read-only, or None)."""
+
+    depth: float
+    omegas: np.ndarray | None
+
+
+@functools.lru_cache(maxsize=4096)
+def held(sp, beams: tuple) -> HeldTrap:
+    """The trap of one set of beams, keyed on content (species and the beams' powers and geometry), not on
+    the shot: the shots of a scan, and the flat parts of a ramp, reuse each other's minimisations."""
+    from ..physics.optical import held_trap
+
+    try:
+        depth, omegas = held_trap(sp, beams)
+    except (ValueError, RuntimeError, np.linalg.LinAlgError):
+        return HeldTrap(0.0, None)
+    if omegas is not None:
+        omegas = np.array(omegas, dtype=float)
+        omegas.setflags(write=False)  # shared by every shot that meets these beams
+    return HeldTrap(depth, omegas)
+
+
+def trap_stage(shot, t0, t1, n=N_SAMPLES):
+    """(times, frequencies (rad/s, shape (n, 3)), effective depths with gravity (J)) at n times in [t0, t1]."""
+    sp = species(shot)
+    # just before t1: a release at the ramp's end time must not count as part of the ramp
+    times = np.linspace(t0, t1 - 1e-9 * max(1.0, t1 - t0), n)
+    omegas = np.full((n, 3), np.nan)
+    depth_g = np.zeros(n)
+    for i, beams in enumerate(gaussian_beams(shot, times)):
+        if not beams:
+            continue
+        h = held(sp, tuple(beams))
+        depth_g[i] = h.depth
+        if h.omegas is not None:
+            omegas[i] = h.omegas
+    return times, omegas, depth_g
+
+
+def trap_ramps(shot):
+    return actions(shot, "trap_ramp")
+
+
+@dataclass(frozen=True, eq=False)
+class TrapStage:
+    """One trap ramp: times (s), omegas (rad/s, (n, 3)), depth_g (J), eta = final depth / k_B T (None without
+    a temperature), adiabaticity = max |d omega/dt| / omega^2 and excitation E/E_ad - 1 per axis (None when the
+    trap is lost somewhere); excitation_is_bound: the excitation is the bound adiabaticity^2, not integrated."""
+
+    times: np.ndarray
+    omegas: np.ndarray
+    depth_g: np.ndarray
+    eta: float | None = None
+    adiabaticity: float | None = None
+    excitation: tuple | None = None
+    excitation_is_bound: bool = False
+
+
+@per_shot_cache(lambda shot, act: ("trap", act.index))
+def trap_stage_prediction(shot, act) -> TrapStage:
+    """Frequencies, depth, eta and excitation of one trap ramp (Ermakov invariant, adiabaticity parameter:
+    seqgen.physics.adiabatic)."""
+    from ..physics.adiabatic import adiabaticity_parameter, ermakov_final_energy_ratio
+
+    times, omegas, depth_g = trap_stage(shot, act.t0, act.t1)
+    eta = adiabaticity = excitation = None
+    if shot.sample is not None and shot.sample.temperature_k:
+        eta = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
+    if np.all(np.isfinite(omegas)) and np.all(depth_g > 0):
+        adiabaticity = float(np.max(adiabaticity_parameter(times, omegas.T, axis=-1)))
+        if adiabaticity ** 2 < shot.limits.max_excitation * 1e-2:
+            # the excess energy of a slow ramp stays below (adiabaticity parameter)^2 (checked in
+            # tests/physics/test_adiabatic.py); integrating thousands of trap periods would add nothing
+            return TrapStage(times, omegas, depth_g, eta, adiabaticity, (adiabaticity ** 2,) * 3, True)
+        exc = []
+        for axis in range(3):
+            w = omegas[:, axis]
+
+            def omega_of_t(t, w=w):
+                return np.interp(t, times, w)
+
+            try:
+                exc.append(ermakov_final_energy_ratio(omega_of_t, act.t0, act.t1, rtol=1e-8).energy_ratio - 1.0)
+            except (ValueError, RuntimeError):
+                exc.append(float("nan"))
+        excitation = tuple(exc)
+    return TrapStage(times, omegas, depth_g, eta, adiabaticity, excitation)
