@@ -20,10 +20,28 @@ Only resolved values are compared, so whitespace, comments, key order and
 equivalent units make no difference.
 """
 
+import sys
+import types
+
 from .core import diff_paths, diff_versions
 from .inputs import DiffInputError, load_build, load_version
 from .model import LEVELS, Change, DiffReport, Version
 from .report import to_dict, to_json, to_text
 
-__all__ = ["diff_paths", "diff_versions", "load_version", "load_build", "DiffInputError", "Change", "DiffReport",
+__all__ = ["diff", "diff_paths", "diff_versions", "load_version", "load_build", "DiffInputError", "Change", "DiffReport",
            "Version", "LEVELS", "to_dict", "to_json", "to_text"]
+
+
+def diff(old: str, new: str) -> DiffReport:
+    """Compare two versions (sequence files, `REV:PATH` git revisions or build folders); as `seqgen diff OLD NEW`."""
+    return diff_paths(old, new)
+
+
+class _DiffPackage(types.ModuleType):
+    """`seqgen.diff` is both this package and, called, the comparison: `seqgen.diff(old, new)`."""
+
+    def __call__(self, old: str, new: str) -> DiffReport:
+        return diff_paths(old, new)
+
+
+sys.modules[__name__].__class__ = _DiffPackage
