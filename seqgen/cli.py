@@ -215,7 +215,7 @@ def cmd_plot(args) -> int:
     if args.json:
         out = {"output": str(args.output), "files": list(args.files), "window_s": list(info["window"]),
                "lanes": list(info["lanes"]), "not_written": list(info.get("not_written", ())),
-               "summary": [summary(r.findings) for r in results]}
+               "summary": [summary(r.findings) for r in results], "caution": CAUTION}
         if "differs" in info:
             out["differs"] = {k: [list(w) for w in v] for k, v in info["differs"].items()}
         if any(choices):
@@ -406,7 +406,8 @@ def cmd_show(args) -> int:
     rows = timeline_rows(res.shot, res.compiled)
     prows = physics_rows(res.shot) if args.physics else []
     if args.json:
-        doc = {"timeline": rows, "physics": prows, "findings": [f.to_dict() for f in res.findings]}
+        doc = {"timeline": rows, "physics": prows, "findings": [f.to_dict() for f in res.findings],
+               "caution": CAUTION}
         if choice is not None:
             doc["scan"] = choice.to_json()
         print(json.dumps(doc, indent=2, sort_keys=True))

@@ -17,6 +17,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+from ..caution import CAUTION
 from .core import diff_versions
 from .inputs import DiffInputError, load_version
 from .report import to_json, to_text
@@ -78,6 +79,7 @@ def git_external_diff(argv: list, *, as_json: bool = False, out=None) -> int:
         out.writelines(_line_diff(old_text, new_text, la, lb))
     elif rep.identical and old_text != new_text:
         out.write("note: the text changed only in layout, comments, key order or equivalent units\n")
+    out.write(f"caution: {CAUTION}\n")
     return 0
 
 
