@@ -11,8 +11,9 @@ from ..codes import (
     CLOUD_OVERLAPS_BARRIER, DRIVE_TOO_STRONG, NOT_TUNNELLING, ROTATION_UNRESOLVABLE,
 )
 from ..findings import make
-from ..predict.barrier import THERMAL_EDGE_RMS, analyse, barriers
+from ..predict.barrier import THERMAL_EDGE_RMS, analyse
 from ..predict.species import species
+from ..predict.states import barriers
 from ..predict.text import in_barrier_drive_reason, rotation_text, spread_text
 from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time
 from .rules import rule

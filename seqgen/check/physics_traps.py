@@ -76,7 +76,7 @@ def _worst(pred, metric):
 
 def _imaging_predictions(shot, needs: str):
     """(image action, setup, prediction) for images after a release whose setup declares `needs`."""
-    for img in (a for a in shot.phys if a.kind == "image"):
+    for img in shot.actions("image"):
         setup = shot.rig.imaging.get(img.args["setup"])
         if setup is None or not getattr(setup, needs):
             continue

@@ -121,13 +121,13 @@ class ImagePrediction:
 
 
 def _release_before(shot, t):
-    rels = [a for a in shot.phys if a.kind == "release" and a.t0 <= t]
+    rels = [a for a in shot.actions("release") if a.t0 <= t]
     return max(rels, key=lambda a: a.t0) if rels else None
 
 
 def _magnetic_hold_before(shot, t):
     """The last magnetic hold that has begun before t and whose coils still carry current just before t, or None."""
-    holds = [a for a in shot.phys if a.kind == "magnetic_hold" and a.t0 < t]
+    holds = [a for a in shot.actions("magnetic_hold") if a.t0 < t]
     if not holds:
         return None
     hold = max(holds, key=lambda a: a.t0)
@@ -316,7 +316,7 @@ def separation_analysis(shot, act) -> Separation | None:
     sp = species(shot)
     if sp is None or sample_state(shot) is None:
         return None
-    images = [a for a in shot.phys if a.kind == "image" and a.t0 >= act.t1]
+    images = [a for a in shot.actions("image") if a.t0 >= act.t1]
     if not images:
         return None
     img = min(images, key=lambda a: a.t0)
@@ -348,7 +348,7 @@ def separation_analysis(shot, act) -> Separation | None:
 
 def separations(shot):
     """(separate action, Separation) of every `separate` with a prediction."""
-    for act in (a for a in shot.phys if a.kind == "separate"):
+    for act in shot.actions("separate"):
         rep = separation_analysis(shot, act)
         if rep:
             yield act, rep

@@ -24,7 +24,7 @@ from scipy import constants as sc
 
 from ..values import value_at
 from .cache import per_shot_cache
-from .species import LevelProblem, actions, level_problem, species, unevaluable
+from .species import LevelProblem, level_problem, species, unevaluable
 
 MU_B = sc.physical_constants["Bohr magneton"][0]
 UP = (0.0, 0.0, 1.0)
@@ -74,7 +74,7 @@ class HoldPrediction:
 
 
 def holds(shot):
-    return actions(shot, "magnetic_hold")
+    return shot.actions("magnetic_hold")
 
 
 def _moment(sp, state, field_t):

@@ -31,7 +31,7 @@ MAX_UNKNOWN_SIGNS = 10  # force directions of unknown sign enumerated one by one
 
 
 def pushes(shot):
-    return [a for a in shot.phys if a.kind == "push"]
+    return shot.actions("push")
 
 
 @dataclass(frozen=True)
@@ -151,7 +151,7 @@ def _force_parts(shot, t, paths):
     sp = species(shot)
     b = bias(shot)
     parts = []
-    for act in sorted((a for a in shot.phys if a.kind in ("push", "separate") and a.t0 < t), key=lambda a: a.t0):
+    for act in sorted((a for a in shot.actions("push", "separate") if a.t0 < t), key=lambda a: a.t0):
         label = f"{act.kind} '{act.block}'"
         if "coil" in act.args:
             coil = shot.rig.coils.get(act.args["coil"])
@@ -190,7 +190,7 @@ def _confined(shot, sp, act, t, disp, speed):
     (a release follows before t), bounded by what the trap allows: an oscillation of amplitude at most v / omega
     along the trap's weakest axis (harmonic motion, textbook), then free flight from the release at no more
     than the kick's speed v. Unchanged when the kick's energy exceeds the trap's depth (the atoms leave it)."""
-    releases = [a.t0 for a in shot.phys if a.kind == "release" and act.t1 <= a.t0 < t]
+    releases = [a.t0 for a in shot.actions("release") if act.t1 <= a.t0 < t]
     d = np.asarray(disp, dtype=float)
     if not releases or speed <= 0:
         return d

@@ -12,13 +12,13 @@ from scipy import constants as sc
 from ..textfmt import (fmt_angle_pi, fmt_energy, fmt_freq, fmt_gauss, fmt_gauss_per_cm, fmt_gauss_per_cm2, fmt_length,
                        fmt_pct, fmt_state, fmt_time, fmt_vec)
 from . import text as tx
-from .barrier import analyse, barriers
+from .barrier import analyse
 from .cloud import SEPARATION_WIDTHS, image_prediction, separations, view_reach
 from .imaging import images, probe_analysis
 from .magnetic import holds, hold_analysis
 from .pushes import push_analysis, pushes
 from .species import bias, species
-from .states import (MG, barrier_drive_analysis, interferometer_analysis, interferometers, pulse_analysis,
+from .states import (MG, barrier_drive_analysis, barriers, interferometer_analysis, interferometers, pulse_analysis,
                      pulse_fourier_width, pulses, sweep_analysis, sweeps)
 from .traps import trap_ramps, trap_stage_prediction
 
@@ -80,7 +80,7 @@ def _trap_rows(shot) -> list:
         rows.append([act.block, "trap_ramp", act.t0, items])
         seen[key] = rows[-1]
     rows = [_row(*r) for r in rows]
-    for img in (a for a in shot.phys if a.kind == "image"):
+    for img in shot.actions("image"):
         pred = image_prediction(shot, img)
         if pred:
             rows.append(_row(img.block, "image", img.t0, _image_items(pred)))

@@ -54,11 +54,6 @@ def sample_state(shot):
     return (int(s.F), int(s.mF))
 
 
-def actions(shot, kind: str):
-    """The shot's physics actions of one kind, in order."""
-    return [a for a in shot.phys if a.kind == kind]
-
-
 def other_level(sp, state):
     """The other ground hyperfine level at equal mF, or None where it has no such sublevel."""
     i = sp.nuclear_spin
