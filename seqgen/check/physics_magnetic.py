@@ -9,8 +9,8 @@ import math
 from ..codes import MAGNETIC_TRAP_LOST, MAJORANA_LOSS, STATE_NOT_TRAPPABLE
 from ..findings import make
 from ..physics.magnetic_trap import trappable_states
-from ..predict.magnetic import MIN_MOMENT, MU_B, hold_analysis, holds
-from ..predict.species import species
+from ..predict.magnetic import MIN_MOMENT, hold_analysis, holds
+from ..predict.species import G_N, MU_B, species
 from ..predict.text import level_problem_text, unconfined_text, weakest_text
 from ..textfmt import fmt_gauss, fmt_gauss_per_cm, fmt_gauss_per_cm2, fmt_length, fmt_state, fmt_time
 from .rules import rule
@@ -60,7 +60,7 @@ def magnetic_trap_lost(shot):
         if not rep.trappable or rep.optical:
             continue
         mom, sp = rep.moment, species(shot)
-        weight = sp.mass_kg * 9.80665
+        weight = sp.mass_kg * G_N
         if rep.unconfined:
             yield make(MAGNETIC_TRAP_LOST, f"the Ioffe-Pritchard trap does not confine {fmt_state(*rep.state)} "
                        f"{unconfined_text(rep)} (B0 {fmt_gauss(rep.bias)}, B' {fmt_gauss_per_cm(rep.gradient)}, "

@@ -14,17 +14,13 @@ from ..codes import (
 )
 from ..findings import make
 from ..predict.cloud import SEPARATION_WIDTHS, separations
-from ..predict.pushes import MU_B, push_analysis, pushes
-from ..predict.species import bias
-from ..predict.states import barriers
+from ..predict.pushes import push_analysis, pushes
+from ..predict.species import MU_B, bias
+from ..predict.states import barriers, rel_off
 from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec
 from .rules import rule
 
 PUSH_TOLERANCE = 0.10
-
-
-def _rel_off(a, b) -> float:
-    return abs(a - b) / abs(b) if b else math.inf
 
 
 _SRC_PUSH = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); force = moment x field gradient and dv = F t / m "
@@ -40,7 +36,7 @@ def push_velocity(shot):
             continue
         tol = act.args.get("tolerance", PUSH_TOLERANCE)
         got = abs(rep.velocity)
-        if _rel_off(got, abs(want)) > tol:
+        if rel_off(got, abs(want)) > tol:
             how = (f"moment {rep.moment / MU_B:+.4g} mu_B of {fmt_state(*rep.state)}, gradient "
                    f"{rep.gradient * 100:.4g} G/cm" if rep.kind == "magnetic" else
                    f"{rep.photons:.3g} photons of {rep.recoil * 1e3:.4g} mm/s recoil")

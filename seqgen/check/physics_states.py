@@ -12,16 +12,13 @@ from ..codes import (
 from ..findings import make
 from ..predict.species import bias, sample_state, species
 from ..predict.states import (LZ_MIN_TRANSFER, barrier_drive_analysis, barriers, populated_states, populations,
-                              pulse_analysis, pulse_fourier_width, pulses, state_fractions, sweep_analysis, sweeps)
+                              pulse_analysis, pulse_fourier_width, pulses, rel_off, state_fractions, sweep_analysis,
+                              sweeps)
 from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time
 from .rules import rule
 
 TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
 TRANSFER_FLOOR = 0.01  # ... but at least by 0.01 in population, so that near-zero intended transfers do not warn on noise
-
-
-def _rel_off(a, b) -> float:
-    return abs(a - b) / abs(b) if b else math.inf
 
 
 _SRC_AREA = ("pulse area theorem, Phys. Rev. 183, 457 (1969); the rig file's drive calibration (rabi_per_amplitude) "
@@ -35,7 +32,7 @@ def pulse_angle(shot):
         rep = pulse_analysis(shot, act)
         if not rep or rep.angle is None or rep.angle <= 0 or rep.area <= 0:
             continue
-        off = _rel_off(rep.area, rep.angle)
+        off = rel_off(rep.area, rep.angle)
         if off > tol:
             k = rep.angle / rep.area
             amp_hint = (f" or amplitude {act.args.get('amplitude', 1.0) * k:.4g}" if act.args.get("amplitude", 1.0) * k <= 1

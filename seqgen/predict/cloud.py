@@ -19,13 +19,11 @@ from ..values import value_at
 from .cache import per_shot_cache
 from .magnetic import hold_analysis
 from .pushes import Components, components_at
-from .species import bias, gaussian_beams, sample_state, species
+from .species import G_N, MU_B, bias, gaussian_beams, sample_state, species
 from .states import populated_states, state_fractions
 from .traps import held
 
-G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
 UP = np.array([0.0, 0.0, 1.0])  # gravity along -z, as for the trap minimisation
-MU_B = sc.physical_constants["Bohr magneton"][0]
 EQUAL_MOMENT = 0.01 * MU_B  # moments closer than this cannot be separated
 SEPARATION_WIDTHS = 3.0  # components count as resolved this many combined rms widths apart
 

@@ -19,11 +19,10 @@ import numpy as np
 from scipy import constants as sc
 
 from .cache import per_shot_cache
-from .species import bias, gaussian_beams, sample_state, species, unit
+from .species import MU_B, bias, gaussian_beams, sample_state, species, unit
 from .states import barriers, is_populated, populated_states, populations, state_at
 from .traps import held
 
-MU_B = sc.physical_constants["Bohr magneton"][0]
 TWO_PI = 2 * math.pi
 NO_FORCE_MOMENT = 0.01 * MU_B  # below this a gradient pushes < 2 % as hard as on an |mF| = 1 state
 RESONANT_WAVELENGTH_M = 0.01e-9  # a push beam within 0.01 nm of D2 is taken as resonant (wavelength figures are rounded)

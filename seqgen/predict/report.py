@@ -17,12 +17,11 @@ from .cloud import SEPARATION_WIDTHS, image_prediction, separations, view_reach
 from .imaging import images, probe_analysis
 from .magnetic import holds, hold_analysis
 from .pushes import push_analysis, pushes
-from .species import bias, species
+from .species import G_N, MU_B, bias, species
 from .states import (MG, barrier_drive_analysis, barriers, interferometer_analysis, interferometers, pulse_analysis,
                      pulse_fourier_width, pulses, sweep_analysis, sweeps)
 from .traps import trap_ramps, trap_stage_prediction
 
-MU_B = sc.physical_constants["Bohr magneton"][0]
 
 
 @dataclass(frozen=True)
@@ -93,7 +92,7 @@ def _image_items(pred) -> list:
         return [tx.size_unknown_text(pred.why)]
     c = pred.cloud
     items = [f"time of flight {fmt_time(pred.tof, unit='ms')}",
-             f"free fall {fmt_length(0.5 * tx.G_N * pred.tof ** 2, 3, unit='mm')} below release"]
+             f"free fall {fmt_length(0.5 * G_N * pred.tof ** 2, 3, unit='mm')} below release"]
     if c is None:
         items.append(f"no size prediction: {tx.size_unknown_text(pred.why)}; centres alone are checked")
     else:

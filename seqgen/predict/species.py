@@ -10,6 +10,9 @@ from scipy import constants as sc
 
 from ..values import value_at
 
+G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
+MU_B = sc.physical_constants["Bohr magneton"][0]
+
 
 def species(shot):
     """The sample's species (seqgen.physics.atoms.Species) or None (no sample, unknown species)."""

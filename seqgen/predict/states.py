@@ -165,12 +165,13 @@ def pulse_fourier_width(shot, act) -> float | None:
         return None
 
 
-def _rel_off(a, b) -> float:
+def rel_off(a, b) -> float:
+    """|a - b| / |b|; inf when b is 0."""
     return abs(a - b) / abs(b) if b else math.inf
 
 
 def _is_area(rep, target, tol):
-    return rep is not None and _rel_off(rep.area, target) <= tol
+    return rep is not None and rel_off(rep.area, target) <= tol
 
 
 def interferometers(shot):

@@ -10,8 +10,7 @@ import numpy as np
 from ..textfmt import fmt_freq, fmt_gauss_per_cm, fmt_length, fmt_pct, fmt_state, fmt_vec
 from . import cloud as cl
 from . import species as spc
-
-G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
+from .species import G_N
 
 
 # --------------------------------------------------------------------------- levels and pulses
