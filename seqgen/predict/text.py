@@ -1,5 +1,6 @@
-"""Words for the predictions: the numbers and states as the rules' messages and `show --physics` write them.
-One place, so that a finding and the physics notes say the same thing the same way."""
+"""Words for the predictions: why a number is missing, where a value comes from, as the rules' messages and
+`show --physics` write them. One place, so that a finding and the physics notes say the same thing the same
+way; the numbers themselves are written by seqgen.textfmt."""
 
 from __future__ import annotations
 
