@@ -15,7 +15,7 @@ from pathlib import Path
 from . import __version__
 from .caution import CAUTION
 from .findings import format_text, summary
-from .resolve.units import format_value
+from .textfmt import fmt_si
 
 EXIT_OK, EXIT_FINDINGS, EXIT_CANNOT_RUN = 0, 1, 2
 _CANNOT_RUN_CODES = {"schema.file-missing", "schema.file-too-large"}
@@ -124,7 +124,7 @@ def cmd_check(args) -> int:
 
 
 def _is_rig_file(src) -> bool:
-    from .resolve.sequence import is_rig_document
+    from .resolve.sources import is_rig_document
 
     return src is not None and is_rig_document(src.main)
 
@@ -133,7 +133,7 @@ def _check_rig_file(src, args, report) -> int:
     """check of a rig file (seqgen_rig: 1): its schema and rig-builder findings, reported as a sequence's are."""
     from .findings import has_errors, sort_findings
     from .pipeline import Result
-    from .resolve.sequence import check_rig_document
+    from .resolve.sources import check_rig_document
 
     res = Result(findings=sort_findings(check_rig_document(src.main)), sources=src)
     _report(res, args, caution=not report)
@@ -223,7 +223,7 @@ def cmd_plot(args) -> int:
         print(json.dumps(out, indent=2, sort_keys=True))
     else:
         t0, t1 = info["window"]
-        print(f"wrote {args.output}: {len(info['lanes'])} lanes, {format_value(t0, 's')} to {format_value(t1, 's')}"
+        print(f"wrote {args.output}: {len(info['lanes'])} lanes, {fmt_si(t0, 's')} to {fmt_si(t1, 's')}"
               + (f"; {len(info['differs'])} output(s) differ" if "differs" in info else ""))
         for f, c in zip(args.files, captions):
             if c:
@@ -243,7 +243,7 @@ def _load(file):
     """(the file's loaded and validated sources, None), or (None, the Result that says why it does not load)."""
     from .load.yamlsrc import LoadError
     from .pipeline import Result
-    from .resolve.sequence import load_sources
+    from .resolve.sources import load_sources
 
     try:
         return load_sources(file), None
@@ -384,7 +384,7 @@ def cmd_build(args) -> int:
         return EXIT_OK
     for f in res.findings:
         print(format_text(f))
-    print(f"built {out}/ from {args.file}: duration {format_value(res.compiled.duration_s, 's')}")
+    print(f"built {out}/ from {args.file}: duration {fmt_si(res.compiled.duration_s, 's')}")
     for t in res.compiled.tables:
         print(f"  {t.device:<14} {len(t.ticks):>8} rows  {len(t.columns):>3} outputs")
     print(f"  findings: {s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s)"
@@ -422,7 +422,7 @@ def cmd_show(args) -> int:
     for p in prows:
         print(f"{p['block']}: {p['kind']}: " + "; ".join(p["items"]))
     s = summary(res.findings)
-    print(f"{len(rows)} writes, duration {format_value(res.shot.duration_s, 's')}; "
+    print(f"{len(rows)} writes, duration {fmt_si(res.shot.duration_s, 's')}; "
           f"{s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s) (run 'seqgen check' for details)")
     return _exit_code(res, args.file)
 

@@ -116,8 +116,5 @@ def format_text(f: Finding) -> str:
     return text
 
 
-_fmt_time = fmt_when  # the old name, still imported by compile.tables
-
-
 def to_json(findings: Iterable[Finding]) -> str:
     return json.dumps([f.to_dict() for f in findings], indent=2, sort_keys=True)

@@ -252,6 +252,10 @@ class Shot:
                 return b
         return None
 
+    def actions(self, *kinds: str) -> tuple:
+        """The physics actions of these kinds, in the order of `phys` (a PhysAction tuple)."""
+        return tuple(a for a in self.phys if a.kind in kinds)
+
 
 @dataclass(frozen=True)
 class DeviceTable:

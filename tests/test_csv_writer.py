@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from seqgen.emit.build import _CSV_CHUNK, write_csv
+from seqgen.emit.writers import _CSV_CHUNK, write_csv
 from seqgen.model import DeviceTable
 
 

@@ -48,7 +48,8 @@ from seqgen.findings import SEVERITIES, has_errors
 from seqgen.load.yamlsrc import LoadError, load_file
 from seqgen.check import RULES
 from seqgen.codes import ALL as CODES
-from seqgen.pipeline import load_sources, preflight_resolved, resolve
+from seqgen.pipeline import preflight_resolved, resolve
+from seqgen.resolve.sources import load_sources
 
 from .conftest import ROOT, SEQUENCES
 

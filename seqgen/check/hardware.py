@@ -5,11 +5,12 @@ from __future__ import annotations
 import numpy as np
 
 from ..calibration import to_output
-from ..findings import make
-from .rules import rule
 from ..codes import (
     HARD_LIMIT, MEMORY_DEPTH, MIN_INTERVAL, OUTSIDE_CALIBRATION, OUT_OF_RANGE, PULSE_TOO_SHORT, RESOLUTION, SLEW,
 )
+from ..findings import make
+from ..textfmt import fmt_time
+from .rules import rule
 
 
 def _extremes(seg):
@@ -84,9 +85,9 @@ def pulse_width(shot):
         if k:
             width = s.t0 - times[k - 1]
             if width < out.min_pulse_s:
-                yield make(PULSE_TOO_SHORT, f"pulse on '{out.name}' lasts {width * 1e6:.4g} us, shorter than its "
-                           f"minimum {out.min_pulse_s * 1e6:.4g} us", s.pos, block=s.block, time_s=s.t0,
-                           hint=f"make it at least {out.min_pulse_s * 1e6:.4g} us")
+                yield make(PULSE_TOO_SHORT, f"pulse on '{out.name}' lasts {fmt_time(width, unit='us')}, shorter than its "
+                           f"minimum {fmt_time(out.min_pulse_s, unit='us')}", s.pos, block=s.block, time_s=s.t0,
+                           hint=f"make it at least {fmt_time(out.min_pulse_s, unit='us')}")
 
 
 @rule(SLEW)
@@ -106,7 +107,7 @@ def slew_rate(shot):
             if rate > out.max_slew * (1 + 1e-9):
                 yield make(SLEW, f"ramp on '{out.name}' changes at up to {rate:.4g} {out.phys_unit}/s, "
                            f"{rate / out.max_slew:.3g} times its max slew {out.max_slew:.4g} {out.phys_unit}/s", s.pos,
-                           block=s.block, time_s=s.t0, hint=f"make the ramp at least {(s.t1 - s.t0) * rate / out.max_slew * 1e3:.4g} ms long")
+                           block=s.block, time_s=s.t0, hint=f"make the ramp at least {fmt_time((s.t1 - s.t0) * rate / out.max_slew, unit='ms')} long")
 
 
 @rule(MEMORY_DEPTH, stage="tables")
@@ -139,7 +140,7 @@ def row_spacing(shot, compiled):
             block = next((b.name for b in shot.blocks if b.start_s <= time <= b.end_s), None)
             pos = shot.block(block).pos if block else dev.pos
             yield make(MIN_INTERVAL, f"device '{t.device}': {len(bad)} row(s) closer than its minimum interval "
-                       f"{dev.min_interval_ticks * t.tick_s * 1e6:.4g} us; first at {time * 1e3:.6g} ms "
+                       f"{fmt_time(dev.min_interval_ticks * t.tick_s, unit='us')}; first at {fmt_time(time, 6, unit='ms')} "
                        f"({int(gaps[k])} ticks apart)", pos, block=block, time_s=time,
                        hint="separate the events by at least the minimum interval")
 

@@ -11,9 +11,11 @@ from ..codes import (
     CLOUD_OVERLAPS_BARRIER, DRIVE_TOO_STRONG, NOT_TUNNELLING, ROTATION_UNRESOLVABLE,
 )
 from ..findings import make
-from ..predict.barrier import THERMAL_EDGE_RMS, analyse, barriers
+from ..predict.barrier import THERMAL_EDGE_RMS, analyse
 from ..predict.species import species
-from ..predict.text import energy_text, hz_text, in_barrier_drive_reason, ms, pct, rotation_text, spread_text, um
+from ..predict.states import barriers
+from ..predict.text import in_barrier_drive_reason, rotation_text, spread_text
+from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time
 from .rules import rule
 
 MISSED_FRACTION = 0.10  # a barrier may miss at most 10 % of the cloud (common practice, no source)
@@ -45,7 +47,7 @@ def barrier_transmission(shot):
             msg = f"'{act.args['beam']}' is red-detuned for {shot.sample.species}: a well, not a barrier; T = {rep.T:.3g}"
         else:
             msg = (f"transmitted fraction {rep.T:.3g} (spread {rep.T_spread:.2g} over the momentum distribution); "
-                   f"V0 = {energy_text(rep.V0)}, mean kinetic energy {energy_text(rep.E_mean)}, "
+                   f"V0 = {fmt_energy(rep.V0)}, mean kinetic energy {fmt_energy(rep.E_mean)}, "
                    f"v = {rep.speed * 1e3:.4g} mm/s +/- {rep.sigma_v * 1e3:.2g} mm/s ({spread_text(rep.cloud)})")
         yield make(BARRIER_TRANSMISSION, msg, act.pos, block=act.block, time_s=act.t0,
                    data={"transmission": rep.T, "transmission_spread": rep.T_spread, "V0_J": rep.V0,
@@ -68,11 +70,11 @@ def cloud_overlaps_barrier(shot):
         edge = ps.edge + rep.waist_y
         what = ("Thomas-Fermi radius" if cloud.profile == "thomas-fermi"
                 else f"edge ({THERMAL_EDGE_RMS:g} rms widths)")
-        yield make(CLOUD_OVERLAPS_BARRIER, f"the cloud's {what} along the path at the push, {um(ps.edge)}, "
-                   f"reaches barrier '{act.args['beam']}' {um(ps.distance)} from the atoms (sheet 1/e^2 half-width "
-                   f"{um(rep.waist_y)} included): part of the cloud is in or beyond the sheet before it moves, outside "
+        yield make(CLOUD_OVERLAPS_BARRIER, f"the cloud's {what} along the path at the push, {fmt_length(ps.edge, mm_from=1e-2)}, "
+                   f"reaches barrier '{act.args['beam']}' {fmt_length(ps.distance, mm_from=1e-2)} from the atoms (sheet 1/e^2 half-width "
+                   f"{fmt_length(rep.waist_y, mm_from=1e-2)} included): part of the cloud is in or beyond the sheet before it moves, outside "
                    f"the transmission model", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"put the sheet farther than {um(1.5 * edge)} from the atoms (rig file: the beam's position), "
+                   hint=f"put the sheet farther than {fmt_length(1.5 * edge, mm_from=1e-2)} from the atoms (rig file: the beam's position), "
                         "or shorten the cloud along the path (a tighter trap there at the push, fewer atoms)",
                    data={"cloud_edge_m": ps.edge, "barrier_distance_m": ps.distance})
 
@@ -84,10 +86,10 @@ def barrier_too_short(shot):
         if ps.late <= MISSED_FRACTION:
             continue
         need = ps.need_off - ps.on
-        hint = (f"keep the barrier on for at least {ms(need)} (99 % of the cloud across)" if math.isfinite(need)
+        hint = (f"keep the barrier on for at least {fmt_time(need, unit='ms', nonfinite='never')} (99 % of the cloud across)" if math.isfinite(need)
                 else "part of the cloud never reaches the sheet: push harder")
-        yield make(BARRIER_TOO_SHORT, f"barrier '{act.args['beam']}' is off {ms(ps.off)} after the push "
-                   f"starts, but {pct(ps.late)} of the cloud crosses the sheet {um(ps.distance)} away only later "
+        yield make(BARRIER_TOO_SHORT, f"barrier '{act.args['beam']}' is off {fmt_time(ps.off, unit='ms', nonfinite='never')} after the push "
+                   f"starts, but {fmt_pct(ps.late)} of the cloud crosses the sheet {fmt_length(ps.distance, mm_from=1e-2)} away only later "
                    f"(v = {rep.speed * 1e3:.4g} mm/s, {spread_text(rep.cloud)}): those atoms pass unhindered",
                    act.pos, block=act.block, time_s=act.t1, hint=hint,
                    data={"missed_fraction": ps.late, "barrier_off_s": ps.off, "needed_off_s": ps.need_off})
@@ -99,10 +101,10 @@ def barrier_too_late(shot):
         ps = rep.passage
         if ps.overlap or ps.early <= MISSED_FRACTION:
             continue  # an overlapping cloud is physics.cloud-overlaps-barrier's
-        yield make(BARRIER_TOO_LATE, f"barrier '{act.args['beam']}' comes on {ms(ps.on)} after the push "
-                   f"starts, when {pct(ps.early)} of the cloud has already reached the sheet {um(ps.distance)} "
+        yield make(BARRIER_TOO_LATE, f"barrier '{act.args['beam']}' comes on {fmt_time(ps.on, unit='ms', nonfinite='never')} after the push "
+                   f"starts, when {fmt_pct(ps.early)} of the cloud has already reached the sheet {fmt_length(ps.distance, mm_from=1e-2)} "
                    f"away (v = {rep.speed * 1e3:.4g} mm/s)", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"start the barrier no later than {ms(ps.need_on)} after the push starts",
+                   hint=f"start the barrier no later than {fmt_time(ps.need_on, unit='ms', nonfinite='never')} after the push starts",
                    data={"early_fraction": ps.early, "barrier_on_s": ps.on, "needed_on_s": ps.need_on})
 
 
@@ -129,17 +131,17 @@ def not_tunnelling(shot):
         e, v0, want = rep.E_mean, rep.V0, rep.expect
         if want == "tunnelling" and v0 <= 0:
             yield make(NOT_TUNNELLING, f"expect: tunnelling, but '{act.args['beam']}' is red-detuned for "
-                       f"{shot.sample.species}: it makes a well ({energy_text(v0)}), not a barrier", act.pos,
+                       f"{shot.sample.species}: it makes a well ({fmt_energy(v0)}), not a barrier", act.pos,
                        block=act.block, time_s=act.t0, hint="use a beam blue of the D lines for a barrier",
                        data={"E_J": e, "V0_J": v0})
         elif want == "tunnelling" and e >= v0:
-            yield make(NOT_TUNNELLING, f"expect: tunnelling, but the mean kinetic energy {energy_text(e)} "
-                       f"is above the barrier top {energy_text(v0)}", act.pos, block=act.block, time_s=act.t0,
+            yield make(NOT_TUNNELLING, f"expect: tunnelling, but the mean kinetic energy {fmt_energy(e)} "
+                       f"is above the barrier top {fmt_energy(v0)}", act.pos, block=act.block, time_s=act.t0,
                        hint=f"raise the sheet power above {act.args['power'] * e / v0 * 1e3:.3g} mW or kick less",
                        data={"E_J": e, "V0_J": v0})
         elif want == "over_barrier" and e < v0:
-            yield make(NOT_TUNNELLING, f"expect: over_barrier, but the mean kinetic energy {energy_text(e)} "
-                       f"is below the barrier top {energy_text(v0)}", act.pos, block=act.block, time_s=act.t0,
+            yield make(NOT_TUNNELLING, f"expect: over_barrier, but the mean kinetic energy {fmt_energy(e)} "
+                       f"is below the barrier top {fmt_energy(v0)}", act.pos, block=act.block, time_s=act.t0,
                        hint=f"lower the sheet power below {act.args['power'] * e / v0 * 1e3:.3g} mW or kick harder",
                        data={"E_J": e, "V0_J": v0})
 
@@ -195,5 +197,5 @@ def rotation_unresolvable(shot):
                     if off else "raise the modulation depth, or transmit more atoms")
             yield make(ROTATION_UNRESOLVABLE, f"rotation {rep.rotation:.3g} rad of the transmitted spin is below "
                        f"the shot noise {noise:.3g} rad of {n:.3g} transmitted atoms (detuning "
-                       f"{hz_text(d.detuning_hz)})", act.pos, block=act.block, time_s=act.t0, hint=hint,
+                       f"{fmt_freq(d.detuning_hz, {'MHz': 6, 'kHz': 5, 'Hz': 4}, top='MHz')})", act.pos, block=act.block, time_s=act.t0, hint=hint,
                        data={"rotation_rad": rep.rotation, "noise_rad": noise})

@@ -6,7 +6,7 @@ from __future__ import annotations
 from ..codes import EXPOSURE_TOO_SHORT, IMAGING_BLUR, PROBE_DOPPLER
 from ..findings import make
 from ..predict.imaging import images, probe_analysis
-from ..predict.text import fmt_hz, fmt_t
+from ..textfmt import fmt_freq, fmt_length, fmt_time
 from .rules import rule
 
 
@@ -20,9 +20,9 @@ def probe_doppler(shot):
         rep = probe_analysis(shot, act)
         if rep and rep.doppler_linewidths > 1.0:
             yield make(PROBE_DOPPLER, f"{rep.photons:.3g} photons per atom (saturation {rep.saturation:.3g}) "
-                       f"Doppler-shift the atoms by {fmt_hz(rep.doppler_hz)}, {rep.doppler_linewidths:.3g} natural "
+                       f"Doppler-shift the atoms by {fmt_freq(rep.doppler_hz)}, {rep.doppler_linewidths:.3g} natural "
                        f"linewidths, during the probe", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"shorten the probe to {fmt_t(act.args['duration'] / rep.doppler_linewidths * 0.5)} or lower its power",
+                       hint=f"shorten the probe to {fmt_time(act.args['duration'] / rep.doppler_linewidths * 0.5)} or lower its power",
                        data={"photons": rep.photons, "doppler_linewidths": rep.doppler_linewidths})
 
 
@@ -33,9 +33,9 @@ def imaging_blur(shot):
         if rep and rep.pixel and rep.blur > rep.pixel:
             # blur grows as tau^(3/2) at fixed power
             t_ok = act.args["duration"] * (rep.pixel / rep.blur) ** (2 / 3) * 0.9
-            yield make(IMAGING_BLUR, f"recoil blur {rep.blur * 1e6:.3g} um ({rep.photons:.3g} photons per "
-                       f"atom) exceeds one pixel, {rep.pixel * 1e6:.3g} um in the atom plane", act.pos, block=act.block,
-                       time_s=act.t0, hint=f"shorten the probe to about {fmt_t(t_ok)}",
+            yield make(IMAGING_BLUR, f"recoil blur {fmt_length(rep.blur, 3, unit='um')} ({rep.photons:.3g} photons per "
+                       f"atom) exceeds one pixel, {fmt_length(rep.pixel, 3, unit='um')} in the atom plane", act.pos, block=act.block,
+                       time_s=act.t0, hint=f"shorten the probe to about {fmt_time(t_ok)}",
                        data={"blur_m": rep.blur, "pixel_m": rep.pixel})
 
 
@@ -44,6 +44,6 @@ def exposure_too_short(shot):
     for act in images(shot):
         exp_s, dur = act.args.get("exposure"), act.args["duration"]
         if exp_s is not None and exp_s < dur * (1 - 1e-9):
-            yield make(EXPOSURE_TOO_SHORT, f"camera exposure {fmt_t(exp_s)} is shorter than the probe pulse "
-                       f"{fmt_t(dur)}", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"set exposure: {fmt_t(dur)} or longer")
+            yield make(EXPOSURE_TOO_SHORT, f"camera exposure {fmt_time(exp_s)} is shorter than the probe pulse "
+                       f"{fmt_time(dur)}", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"set exposure: {fmt_time(dur)} or longer")

@@ -9,9 +9,10 @@ import math
 from ..codes import MAGNETIC_TRAP_LOST, MAJORANA_LOSS, STATE_NOT_TRAPPABLE
 from ..findings import make
 from ..physics.magnetic_trap import trappable_states
-from ..predict.magnetic import MIN_MOMENT, MU_B, hold_analysis, holds
-from ..predict.species import species
-from ..predict.text import fmt_t, g_cm, g_cm2, gauss, level_problem_text, state_text, unconfined_text, weakest_text
+from ..predict.magnetic import MIN_MOMENT, hold_analysis, holds
+from ..predict.species import G_N, MU_B, species
+from ..predict.text import level_problem_text, unconfined_text, weakest_text
+from ..textfmt import fmt_gauss, fmt_gauss_per_cm, fmt_gauss_per_cm2, fmt_length, fmt_state, fmt_time
 from .rules import rule
 
 MIN_SPIN_ADIABATICITY = 10.0  # Larmor frequency over the trap and field-rotation rates (common practice, no source)
@@ -38,10 +39,10 @@ def state_not_trappable(shot):
         if rep.moment is None or rep.trappable:
             continue
         sp = species(shot)
-        ok = ", ".join(state_text(s) for s in trappable_states(sp, 0.0, MIN_MOMENT))
+        ok = ", ".join(fmt_state(*s) for s in trappable_states(sp, 0.0, MIN_MOMENT))
         mom = rep.moment
         why = ("has no magnetic moment" if abs(mom) < MIN_MOMENT else "is a high-field seeker")
-        yield make(STATE_NOT_TRAPPABLE, f"{state_text(rep.state)} of {rep.species} {why} "
+        yield make(STATE_NOT_TRAPPABLE, f"{fmt_state(*rep.state)} of {rep.species} {why} "
                    f"(moment -dE/dB = {mom / MU_B:+.3g} mu_B): the magnetic trap cannot hold it", act.pos,
                    block=act.block, time_s=act.t0,
                    hint=f"transfer the atoms to a low-field seeker first ({ok}), or hold them optically",
@@ -59,11 +60,11 @@ def magnetic_trap_lost(shot):
         if not rep.trappable or rep.optical:
             continue
         mom, sp = rep.moment, species(shot)
-        weight = sp.mass_kg * 9.80665
+        weight = sp.mass_kg * G_N
         if rep.unconfined:
-            yield make(MAGNETIC_TRAP_LOST, f"the Ioffe-Pritchard trap does not confine {state_text(rep.state)} "
-                       f"{unconfined_text(rep)} (B0 {gauss(rep.bias)}, B' {g_cm(rep.gradient)}, "
-                       f"B'' {g_cm2(rep.curvature)})", act.pos, block=act.block, time_s=rep.t_hold,
+            yield make(MAGNETIC_TRAP_LOST, f"the Ioffe-Pritchard trap does not confine {fmt_state(*rep.state)} "
+                       f"{unconfined_text(rep)} (B0 {fmt_gauss(rep.bias)}, B' {fmt_gauss_per_cm(rep.gradient)}, "
+                       f"B'' {fmt_gauss_per_cm2(rep.curvature)})", act.pos, block=act.block, time_s=rep.t_hold,
                        hint="check the coil currents and the signs of the coils' per-amp fields in the rig file")
             continue
         support = rep.support
@@ -71,14 +72,14 @@ def magnetic_trap_lost(shot):
             continue
         need = weight / abs(mom)
         if rep.kind == "quadrupole":
-            what = (f"the coils' gradient that gravity meets is {g_cm(rep.holding_gradient)}" if rep.coils
+            what = (f"the coils' gradient that gravity meets is {fmt_gauss_per_cm(rep.holding_gradient)}" if rep.coils
                     else "no coil carries current")
         else:
-            what = f"the radial gradient B' is {g_cm(abs(rep.gradient))}"
+            what = f"the radial gradient B' is {fmt_gauss_per_cm(abs(rep.gradient))}"
         hint = _current_hint(rep, 1 / support) if support > 0 else "give the coils a gradient (gradient_per_amp) and a current"
-        yield make(MAGNETIC_TRAP_LOST, f"the magnetic trap does not hold {state_text(rep.state)} of "
+        yield make(MAGNETIC_TRAP_LOST, f"the magnetic trap does not hold {fmt_state(*rep.state)} of "
                    f"{rep.species} against gravity: {what}, {support:.3g} of the levitation gradient "
-                   f"{g_cm(need)} (m g_n / |moment|)", act.pos, block=act.block, time_s=rep.t_hold, hint=hint,
+                   f"{fmt_gauss_per_cm(need)} (m g_n / |moment|)", act.pos, block=act.block, time_s=rep.t_hold, hint=hint,
                    data={"support": support, "levitation_gradient_t_m": need})
 
 
@@ -99,18 +100,18 @@ def majorana_loss(shot):
                 continue
             lost = 1 - math.exp(-rep.duration / tau)
             yield make(MAJORANA_LOSS, f"Majorana spin flips: at {shot.sample.temperature_k * 1e6:.4g} uK the "
-                       f"cloud in the quadrupole is ~{rep.cloud_size * 1e6:.3g} um (k_B T / |moment| b', "
+                       f"cloud in the quadrupole is ~{fmt_length(rep.cloud_size, 3, unit='um')} (k_B T / |moment| b', "
                        f"b' = {weakest_text(rep, short=True)}), lifetime "
-                       f"~ m l^2/hbar = {fmt_t(tau)}, shorter than the {fmt_t(rep.duration)} hold (~{lost:.0%} lost)",
+                       f"~ m l^2/hbar = {fmt_time(tau)}, shorter than the {fmt_time(rep.duration)} hold (~{lost:.0%} lost)",
                        act.pos, block=act.block, time_s=rep.t_hold,
                        hint="shorten the hold, or plug the field zero (optical plug, Ioffe-Pritchard trap, rotating bias)",
                        data={"lifetime_s": tau, "hold_s": rep.duration})
         elif rep.field_zero:
-            yield make(MAJORANA_LOSS, f"the Ioffe-Pritchard trap's bias B0 = {gauss(rep.bias)} leaves a field "
+            yield make(MAJORANA_LOSS, f"the Ioffe-Pritchard trap's bias B0 = {fmt_gauss(rep.bias)} leaves a field "
                        f"zero in the trap: spins flip there and atoms are lost", act.pos, block=act.block,
                        time_s=rep.t_hold, hint="raise the bias (less anti-bias current) to well above zero")
         elif rep.adiabaticity is not None and rep.adiabaticity < MIN_SPIN_ADIABATICITY:
-            yield make(MAJORANA_LOSS, f"Ioffe-Pritchard bias {gauss(rep.bias)} is low: Larmor frequency "
+            yield make(MAJORANA_LOSS, f"Ioffe-Pritchard bias {fmt_gauss(rep.bias)} is low: Larmor frequency "
                        f"{rep.larmor / (2 * math.pi):.4g} Hz is only {rep.adiabaticity:.3g} x the faster of the radial "
                        f"trap frequency ({rep.omega_radial / (2 * math.pi):.4g} Hz) and the field rotation rate "
                        f"({rep.rotation / (2 * math.pi):.4g} Hz); want >= {MIN_SPIN_ADIABATICITY:g}", act.pos,

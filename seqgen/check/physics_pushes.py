@@ -14,17 +14,13 @@ from ..codes import (
 )
 from ..findings import make
 from ..predict.cloud import SEPARATION_WIDTHS, separations
-from ..predict.pushes import MU_B, push_analysis, pushes
-from ..predict.species import bias
-from ..predict.states import barriers
-from ..predict.text import fmt_t, state_text, vec_text
+from ..predict.pushes import push_analysis, pushes
+from ..predict.species import MU_B, bias
+from ..predict.states import barriers, rel_off
+from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec
 from .rules import rule
 
 PUSH_TOLERANCE = 0.10
-
-
-def _rel_off(a, b) -> float:
-    return abs(a - b) / abs(b) if b else math.inf
 
 
 _SRC_PUSH = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); force = moment x field gradient and dv = F t / m "
@@ -40,13 +36,13 @@ def push_velocity(shot):
             continue
         tol = act.args.get("tolerance", PUSH_TOLERANCE)
         got = abs(rep.velocity)
-        if _rel_off(got, abs(want)) > tol:
-            how = (f"moment {rep.moment / MU_B:+.4g} mu_B of {state_text(rep.state)}, gradient "
+        if rel_off(got, abs(want)) > tol:
+            how = (f"moment {rep.moment / MU_B:+.4g} mu_B of {fmt_state(*rep.state)}, gradient "
                    f"{rep.gradient * 100:.4g} G/cm" if rep.kind == "magnetic" else
                    f"{rep.photons:.3g} photons of {rep.recoil * 1e3:.4g} mm/s recoil")
-            hint = (f"use duration {fmt_t(rep.duration * abs(want) / got)} for {abs(want) * 1e3:.4g} mm/s"
+            hint = (f"use duration {fmt_time(rep.duration * abs(want) / got)} for {abs(want) * 1e3:.4g} mm/s"
                     if got > 0 else "the push gives no velocity")
-            yield make(PUSH_VELOCITY, f"the push gives {got * 1e3:.4g} mm/s ({how}, {fmt_t(rep.duration)}), "
+            yield make(PUSH_VELOCITY, f"the push gives {got * 1e3:.4g} mm/s ({how}, {fmt_time(rep.duration)}), "
                        f"but expect_velocity is {abs(want) * 1e3:.4g} mm/s (tolerance {tol * 100:g} %)", act.pos,
                        block=act.block, time_s=act.t0, hint=hint, data={"velocity_m_s": got, "expected_m_s": abs(want)})
 
@@ -68,12 +64,12 @@ def push_away_from_barrier(shot):
             continue
         along = float(np.dot(rep.direction, where)) / dist
         if along < 0:
-            why = (f"{state_text(rep.state)} has moment {rep.moment / MU_B:+.3g} mu_B and goes towards "
+            why = (f"{fmt_state(*rep.state)} has moment {rep.moment / MU_B:+.3g} mu_B and goes towards "
                    f"{'stronger' if rep.moment > 0 else 'weaker'} field, i.e. along "
-                   f"{vec_text(rep.direction)}" if rep.kind == "magnetic"
-                   else f"light pushes along the beam '{rep.beam}', {vec_text(rep.direction)}")
+                   f"{fmt_vec(rep.direction)}" if rep.kind == "magnetic"
+                   else f"light pushes along the beam '{rep.beam}', {fmt_vec(rep.direction)}")
             yield make(PUSH_AWAY_FROM_BARRIER, f"the push moves the atoms away from barrier '{beam.name}' "
-                       f"(block '{bar.block}', {dist * 1e3:.4g} mm away along {vec_text(where / dist)}): {why}",
+                       f"(block '{bar.block}', {fmt_length(dist, unit='mm')} away along {fmt_vec(where / dist)}): {why}",
                        act.pos, block=act.block, time_s=act.t0,
                        hint="prepare a state that this push sends towards the barrier (the other sign of moment), "
                             "or check field_grows_along and the barrier position in the rig file",
@@ -85,7 +81,7 @@ def push_no_force(shot):
     for act in pushes(shot):
         rep = push_analysis(shot, act)
         if rep and rep.kind == "magnetic" and rep.no_force:
-            yield make(PUSH_NO_FORCE, f"{state_text(rep.state)} has moment {rep.moment / MU_B:.3g} mu_B at "
+            yield make(PUSH_NO_FORCE, f"{fmt_state(*rep.state)} has moment {rep.moment / MU_B:.3g} mu_B at "
                        f"{bias(shot) * 1e4:.4g} G: the {rep.gradient * 100:.4g} G/cm gradient does not push it "
                        f"({abs(rep.velocity) * 1e6:.3g} um/s)", act.pos, block=act.block, time_s=act.t0,
                        hint="transfer the atoms to a state with mF != 0 before the push, or use an optical push")
@@ -99,11 +95,11 @@ def push_too_late(shot):
             continue
         b = rep.barrier
         if rep.arrival > b.t1:
-            when = "never" if math.isinf(rep.arrival) else f"at t = {fmt_t(rep.arrival)}"
-            yield make(PUSH_TOO_LATE, f"the atoms reach {act.args['target_distance'] * 1e3:.4g} mm {when} "
+            when = "never" if math.isinf(rep.arrival) else f"at t = {fmt_time(rep.arrival)}"
+            yield make(PUSH_TOO_LATE, f"the atoms reach {fmt_length(act.args['target_distance'], unit='mm')} {when} "
                        f"({abs(rep.velocity) * 1e3:.4g} mm/s), but the barrier in block '{b.block}' ends at "
-                       f"t = {fmt_t(b.t1)}", b.pos, block=b.block, time_s=b.t1,
-                       hint=(f"keep the barrier on until at least {fmt_t(rep.arrival - b.t0)} after its start"
+                       f"t = {fmt_time(b.t1)}", b.pos, block=b.block, time_s=b.t1,
+                       hint=(f"keep the barrier on until at least {fmt_time(rep.arrival - b.t0)} after its start"
                              if not math.isinf(rep.arrival) else "the push gives no velocity"),
                        data={"arrival_s": rep.arrival, "barrier_end_s": b.t1})
 
@@ -117,7 +113,7 @@ def equal_moments(shot):
     for act, rep in separations(shot):
         if rep.equal:
             a, b = rep.pair
-            yield make(EQUAL_MOMENTS, f"{state_text(a)} and {state_text(b)} have moments "
+            yield make(EQUAL_MOMENTS, f"{fmt_state(*a)} and {fmt_state(*b)} have moments "
                        f"{rep.moments[0] / MU_B:+.4g} and {rep.moments[1] / MU_B:+.4g} mu_B: the gradient cannot "
                        f"separate them", act.pos, block=act.block, time_s=act.t0,
                        hint="drive a transition to a state with a different moment (another mF)")
@@ -130,7 +126,7 @@ def components_overlap(shot):
             continue
         need = SEPARATION_WIDTHS * rep.combined
         k = need / abs(rep.separation) if rep.separation else math.inf
-        yield make(COMPONENTS_OVERLAP, f"the components are {abs(rep.separation) * 1e6:.4g} um apart at the "
+        yield make(COMPONENTS_OVERLAP, f"the components are {fmt_length(abs(rep.separation), unit='um')} apart at the "
                    f"image, {abs(rep.separation) / rep.combined:.3g} combined rms widths (each {rep.sigma * 1e6:.4g} "
                    f"um); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
                    hint=f"raise the gradient to {act.args['gradient'] * 100 * k:.3g} G/cm, or lengthen the pulse",
@@ -142,8 +138,8 @@ def components_separated(shot):
     for act, rep in separations(shot):
         if rep.equal or not rep.resolved:
             continue
-        yield make(COMPONENTS_SEPARATED, f"{state_text(rep.pair[0])} and {state_text(rep.pair[1])} are "
-                   f"{abs(rep.separation) * 1e3:.3g} mm apart at the image, {abs(rep.separation) / rep.combined:.3g} "
+        yield make(COMPONENTS_SEPARATED, f"{fmt_state(*rep.pair[0])} and {fmt_state(*rep.pair[1])} are "
+                   f"{fmt_length(abs(rep.separation), 3, unit='mm')} apart at the image, {abs(rep.separation) / rep.combined:.3g} "
                    f"combined rms widths (margin {abs(rep.separation) / (SEPARATION_WIDTHS * rep.combined):.3g} x the "
                    f"{SEPARATION_WIDTHS:g} needed)", act.pos, block=act.block, time_s=act.t0,
                    data={"separation_m": rep.separation, "combined_rms_m": rep.combined})

@@ -12,6 +12,7 @@ from ..predict.cloud import focus_offset, image_prediction, view_reach
 from ..predict.species import species
 from ..predict.text import size_text, who, why_there
 from ..predict.traps import trap_ramps, trap_stage_prediction
+from ..textfmt import fmt_length, fmt_time
 from ..values import value_at
 from .rules import rule
 
@@ -26,7 +27,7 @@ def trap_lost(shot):
         if len(lost):
             t = float(rep.times[lost[0]])
             yield make(TRAP_LOST, f"the trap no longer holds {shot.sample.species} against gravity from "
-                       f"t = {t * 1e3:.6g} ms (power of '{act.args['beam']}' {value_at(shot, act.args['output'], t)[0] * 1e3:.4g} mW)",
+                       f"t = {fmt_time(t, 6, unit='ms')} (power of '{act.args['beam']}' {value_at(shot, act.args['output'], t)[0] * 1e3:.4g} mW)",
                        act.pos, block=act.block, time_s=t, hint="end the ramp at a higher power")
 
 
@@ -75,7 +76,7 @@ def _worst(pred, metric):
 
 def _imaging_predictions(shot, needs: str):
     """(image action, setup, prediction) for images after a release whose setup declares `needs`."""
-    for img in (a for a in shot.phys if a.kind == "image"):
+    for img in shot.actions("image"):
         setup = shot.rig.imaging.get(img.args["setup"])
         if setup is None or not getattr(setup, needs):
             continue
@@ -102,10 +103,10 @@ def cloud_outside_view(shot):
         out = sum(1 for c in pred.components if np.any(view_reach(pred, c) + edge > half))
         others = f" ({out} of {len(pred.components)} components leave it)" if len(pred.components) > 1 else ""
         h, v = comp.plane[case]
-        yield make(CLOUD_OUTSIDE_VIEW, f"after {pred.tof * 1e3:.4g} ms of flight {who(comp)} is centred "
-                   f"{reach * 1e3:.3g} mm from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "
+        yield make(CLOUD_OUTSIDE_VIEW, f"after {fmt_time(pred.tof, unit='ms')} of flight {who(comp)} is centred "
+                   f"{fmt_length(reach, 3, unit='mm')} from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "
                    f"{v * 1e3 + 0.0:+.3g} mm up; {why_there(pred, comp, case)}), {size_text(pred)}; the field of view reaches "
-                   f"{half * 1e3:.3g} mm from its centre{others}", img.pos, block=img.block, time_s=img.t0,
+                   f"{fmt_length(half, 3, unit='mm')} from its centre{others}", img.pos, block=img.block, time_s=img.t0,
                    hint=("shorten the time of flight, weaken the push or separation, or recentre the camera (the imaging "
                          "setup's center)" if reach > half - edge / 2 else
                          "the cloud itself is too large for the view: shorten the time of flight or image a colder cloud"),
@@ -120,9 +121,9 @@ def cloud_out_of_focus(shot):
         if worst is None or 2 * (worst[2] + edge) <= setup.depth_of_field_m:
             continue
         comp, case, off = worst
-        where = f", centred {off * 1e3:.3g} mm from the focal plane" if off > 0 else ""
-        yield make(CLOUD_OUT_OF_FOCUS, f"{who(comp)} spans {2 * (off + edge) * 1e3:.3g} mm about the focal plane "
-                   f"along the line of sight{where} ({size_text(pred)}), more than the {setup.depth_of_field_m * 1e3:.3g} mm "
+        where = f", centred {fmt_length(off, 3, unit='mm')} from the focal plane" if off > 0 else ""
+        yield make(CLOUD_OUT_OF_FOCUS, f"{who(comp)} spans {fmt_length(2 * (off + edge), 3, unit='mm')} about the focal plane "
+                   f"along the line of sight{where} ({size_text(pred)}), more than the {fmt_length(setup.depth_of_field_m, 3, unit='mm')} "
                    f"depth of field of '{setup.name}'", img.pos, block=img.block, time_s=img.t0,
                    hint="shorten the time of flight" + (", or push across the line of sight" if off > 0 else ""),
                    data={"extent_m": 2 * (off + edge), "depth_of_field_m": setup.depth_of_field_m})
@@ -136,8 +137,8 @@ def cloud_clipped(shot):
         if worst is None or worst[2] + edge <= setup.aperture_radius_m:
             continue
         comp, case, dist = worst
-        yield make(CLOUD_CLIPPED, f"after {pred.tof * 1e3:.4g} ms {who(comp)} reaches {(dist + edge) * 1e3:.3g} mm "
+        yield make(CLOUD_CLIPPED, f"after {fmt_time(pred.tof, unit='ms')} {who(comp)} reaches {fmt_length(dist + edge, 3, unit='mm')} "
                    f"from the release point ({why_there(pred, comp, case)}; {size_text(pred)}), beyond the "
-                   f"{setup.aperture_radius_m * 1e3:.3g} mm aperture of '{setup.name}'",
+                   f"{fmt_length(setup.aperture_radius_m, 3, unit='mm')} aperture of '{setup.name}'",
                    img.pos, block=img.block, time_s=img.t0, hint="shorten the time of flight",
                    data={"reach_m": dist + edge, "aperture_m": setup.aperture_radius_m})

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import math
 
-from ..findings import make
-from .rules import rule
 from ..codes import JITTER, LATENCY_REORDER, OVERLAP, RAMP_TOO_FAST, SUB_TICK
+from ..findings import make
+from ..textfmt import fmt_time
+from .rules import rule
 
 
 @rule(OVERLAP)
@@ -21,11 +22,11 @@ def overlapping_writes(shot):
         for s in segs:
             if busy is not None and s.t0 < busy.t1 - 1e-12 and not (s.kind == "set" and s.t0 <= busy.t0 + 1e-12):
                 yield make(OVERLAP, f"'{name}': {s.action} in block '{s.block}' ({s.pos}) overlaps "
-                           f"{busy.action} in block '{busy.block}' ({busy.pos}) running until {busy.t1 * 1e3:.6g} ms",
+                           f"{busy.action} in block '{busy.block}' ({busy.pos}) running until {fmt_time(busy.t1, 6, unit='ms')}",
                            s.pos, block=s.block, time_s=s.t0, hint="start one after the other ends, or remove one")
             if (s.kind == "set" and last_set is not None and abs(s.t0 - last_set.t0) < 1e-12 and s.v1 != last_set.v1
                     and not last_set.action.endswith(":end") and not s.action.endswith(":end")):
-                yield make(OVERLAP, f"'{name}' is set to two values at t = {s.t0 * 1e3:.6g} ms: by {last_set.action} "
+                yield make(OVERLAP, f"'{name}' is set to two values at t = {fmt_time(s.t0, 6, unit='ms')}: by {last_set.action} "
                            f"in '{last_set.block}' ({last_set.pos}) and by {s.action} in '{s.block}' ({s.pos})",
                            s.pos, block=s.block, time_s=s.t0, hint="keep one of the two writes")
             if s.kind == "ramp" and (busy is None or s.t1 > busy.t1):
@@ -44,7 +45,7 @@ def sub_tick_timing(shot):
             shift = (math.floor(n + 0.5) - n) / dev.timebase_hz
             if abs(shift) > 1e-6 / dev.timebase_hz and (s.block, s.output, dev.name) not in seen:
                 seen.add((s.block, s.output, dev.name))
-                yield make(SUB_TICK, f"'{s.output}' at {t * 1e6:.6g} us is not on the {dev.name} tick "
+                yield make(SUB_TICK, f"'{s.output}' at {fmt_time(t, 6, unit='us')} is not on the {dev.name} tick "
                            f"({1e9 / dev.timebase_hz:.6g} ns); rounded by {shift * 1e9:+.4g} ns", s.pos, block=s.block,
                            time_s=t, hint="use times that are multiples of the tick to silence this note")
 
@@ -57,9 +58,9 @@ def ramp_faster_than_device(shot):
         dev = shot.rig.devices[shot.rig.outputs[s.output].device]
         min_dt = dev.min_interval_ticks / dev.timebase_hz
         if s.t1 - s.t0 < min_dt:
-            yield make(RAMP_TOO_FAST, f"ramp on '{s.output}' lasts {(s.t1 - s.t0) * 1e6:.4g} us, shorter than "
-                       f"{dev.name}'s minimum interval {min_dt * 1e6:.4g} us", s.pos, block=s.block, time_s=s.t0,
-                       hint=f"make it at least {min_dt * 1e6:.4g} us long, or use 'set'")
+            yield make(RAMP_TOO_FAST, f"ramp on '{s.output}' lasts {fmt_time((s.t1 - s.t0), unit='us')}, shorter than "
+                       f"{dev.name}'s minimum interval {fmt_time(min_dt, unit='us')}", s.pos, block=s.block, time_s=s.t0,
+                       hint=f"make it at least {fmt_time(min_dt, unit='us')} long, or use 'set'")
 
 
 @rule(LATENCY_REORDER)
@@ -74,8 +75,8 @@ def latency_reorders_edges(shot):
             cmd = s.t0 - lat
             if prev_cmd is not None and cmd < prev_cmd:
                 yield make(LATENCY_REORDER, f"'{name}': after latency compensation the edge at "
-                           f"{s.t0 * 1e3:.6g} ms would be commanded before the edge at {prev.t0 * 1e3:.6g} ms "
-                           f"(rise {out.latency_rise_s * 1e3:.4g} ms, fall {out.latency_fall_s * 1e3:.4g} ms)", s.pos,
+                           f"{fmt_time(s.t0, 6, unit='ms')} would be commanded before the edge at {fmt_time(prev.t0, 6, unit='ms')} "
+                           f"(rise {fmt_time(out.latency_rise_s, unit='ms')}, fall {fmt_time(out.latency_fall_s, unit='ms')})", s.pos,
                            block=s.block, time_s=s.t0, hint="make the pulse longer than the latency difference")
             prev_value, prev_cmd, prev = s.v1, cmd, s
 
@@ -88,6 +89,6 @@ def edges_within_jitter(shot):
         sets = sorted((s for s in shot.segments if s.output == name and s.kind == "set"), key=lambda s: s.t0)
         for a, b in zip(sets, sets[1:]):
             if 0 < b.t0 - a.t0 < out.jitter_s:
-                yield make(JITTER, f"'{name}' edges {(b.t0 - a.t0) * 1e6:.4g} us apart, within its "
-                           f"{out.jitter_s * 1e6:.4g} us jitter", b.pos, block=b.block, time_s=b.t0,
+                yield make(JITTER, f"'{name}' edges {fmt_time((b.t0 - a.t0), unit='us')} apart, within its "
+                           f"{fmt_time(out.jitter_s, unit='us')} jitter", b.pos, block=b.block, time_s=b.t0,
                            hint="keep edges of this channel further apart than its jitter")

@@ -17,11 +17,12 @@ import threading
 import numpy as np
 
 from ..calibration import to_output
-from ..findings import Finding, _fmt_time, make
+from ..findings import Finding, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
 from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
 from ..codes import BEFORE_START, RAMP_UNDERSAMPLED
+from ..textfmt import fmt_when
 
 
 
@@ -67,8 +68,8 @@ def output_rows(out: Output, segments, device, findings: list, spans: dict):
             t = seg.t0 - lat
             k = int(quantize_times(np.array([max(t, 0.0)]), tick)[0])
             if t < -0.5 * tick:
-                findings.append(make(BEFORE_START, f"'{out.name}' must be commanded {_fmt_time(-t)} before t = 0 "
-                                     f"to compensate its {_fmt_time(lat)} latency", seg.pos, block=seg.block, time_s=seg.t0,
+                findings.append(make(BEFORE_START, f"'{out.name}' must be commanded {fmt_when(-t)} before t = 0 "
+                                     f"to compensate its {fmt_when(lat)} latency", seg.pos, block=seg.block, time_s=seg.t0,
                                      hint="start this block later or move the whole sequence later"))
             new = float(np.asarray(to_output(out, seg.v1)))
             # a linearly interpolating device makes a step as a ramp over one minimum
@@ -119,8 +120,8 @@ def _undersampled(out: Output, seg, device, err: float, tol: float, rows: int) -
     return make(RAMP_UNDERSAMPLED,
                 f"{seg.shape} ramp on '{out.name}' deviates from its curve by up to {err:.4g}{unit}{lsb}, "
                 f"{err / tol:.3g} times its tolerance {tol:.4g}{unit} (misses it by {err - tol:.4g}{unit}): "
-                f"{rows} rows over {_fmt_time(seg.t1 - seg.t0)}, no closer than {device.name}'s minimum interval "
-                f"{_fmt_time(dt)}", seg.pos, block=seg.block, time_s=seg.t0,
+                f"{rows} rows over {fmt_when(seg.t1 - seg.t0)}, no closer than {device.name}'s minimum interval "
+                f"{fmt_when(dt)}", seg.pos, block=seg.block, time_s=seg.t0,
                 hint=f"make the ramp about {(err / tol) ** (0.5 if device.output_model == 'linear' else 1.0):.3g} "
                      f"times longer, loosen its tolerance to {err:.3g}{unit}, "
                      "or use a device with a shorter minimum interval",

@@ -32,7 +32,6 @@ from ..model import Compiled, Shot
 from ..resolve.units import display_unit
 from .writers import CSV_ROW_LIMIT, WriterError, available_writers, check_writers, run_writer, with_row_limit, \
     writes_table
-from .writers import _CSV_CHUNK, file_sha256, table_arrays, write_csv, write_npz  # noqa: F401  (re-exported)
 
 FORMAT_VERSION = 1
 

@@ -184,12 +184,8 @@ class BarrierPrediction:
     N_R: float | None = None
 
 
-def barriers(shot):
-    return [a for a in shot.phys if a.kind == "barrier"]
-
-
 def _last_push(shot, act):
-    pushes = [a for a in shot.phys if a.kind == "push" and a.t0 <= act.t0]
+    pushes = [a for a in shot.actions("push") if a.t0 <= act.t0]
     return pushes[-1] if pushes else None
 
 

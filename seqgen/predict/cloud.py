@@ -19,13 +19,11 @@ from ..values import value_at
 from .cache import per_shot_cache
 from .magnetic import hold_analysis
 from .pushes import Components, components_at
-from .species import bias, gaussian_beams, sample_state, species
+from .species import G_N, MU_B, bias, gaussian_beams, sample_state, species
 from .states import populated_states, state_fractions
 from .traps import held
 
-G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
 UP = np.array([0.0, 0.0, 1.0])  # gravity along -z, as for the trap minimisation
-MU_B = sc.physical_constants["Bohr magneton"][0]
 EQUAL_MOMENT = 0.01 * MU_B  # moments closer than this cannot be separated
 SEPARATION_WIDTHS = 3.0  # components count as resolved this many combined rms widths apart
 
@@ -121,13 +119,13 @@ class ImagePrediction:
 
 
 def _release_before(shot, t):
-    rels = [a for a in shot.phys if a.kind == "release" and a.t0 <= t]
+    rels = [a for a in shot.actions("release") if a.t0 <= t]
     return max(rels, key=lambda a: a.t0) if rels else None
 
 
 def _magnetic_hold_before(shot, t):
     """The last magnetic hold that has begun before t and whose coils still carry current just before t, or None."""
-    holds = [a for a in shot.phys if a.kind == "magnetic_hold" and a.t0 < t]
+    holds = [a for a in shot.actions("magnetic_hold") if a.t0 < t]
     if not holds:
         return None
     hold = max(holds, key=lambda a: a.t0)
@@ -316,7 +314,7 @@ def separation_analysis(shot, act) -> Separation | None:
     sp = species(shot)
     if sp is None or sample_state(shot) is None:
         return None
-    images = [a for a in shot.phys if a.kind == "image" and a.t0 >= act.t1]
+    images = [a for a in shot.actions("image") if a.t0 >= act.t1]
     if not images:
         return None
     img = min(images, key=lambda a: a.t0)
@@ -348,7 +346,7 @@ def separation_analysis(shot, act) -> Separation | None:
 
 def separations(shot):
     """(separate action, Separation) of every `separate` with a prediction."""
-    for act in (a for a in shot.phys if a.kind == "separate"):
+    for act in shot.actions("separate"):
         rep = separation_analysis(shot, act)
         if rep:
             yield act, rep

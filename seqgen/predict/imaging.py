@@ -9,13 +9,13 @@ import math
 from dataclasses import dataclass
 
 from .cache import per_shot_cache
-from .species import actions, species
+from .species import species
 
 TWO_PI = 2 * math.pi
 
 
 def images(shot):
-    return actions(shot, "image")
+    return shot.actions("image")
 
 
 @dataclass(frozen=True)

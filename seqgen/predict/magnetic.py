@@ -24,9 +24,8 @@ from scipy import constants as sc
 
 from ..values import value_at
 from .cache import per_shot_cache
-from .species import LevelProblem, actions, level_problem, species, unevaluable
+from .species import MU_B, LevelProblem, level_problem, species, unevaluable
 
-MU_B = sc.physical_constants["Bohr magneton"][0]
 UP = (0.0, 0.0, 1.0)
 MIN_MOMENT = 0.01 * MU_B  # below this a field minimum holds nothing (as for physics.push-no-force)
 
@@ -74,7 +73,7 @@ class HoldPrediction:
 
 
 def holds(shot):
-    return actions(shot, "magnetic_hold")
+    return shot.actions("magnetic_hold")
 
 
 def _moment(sp, state, field_t):

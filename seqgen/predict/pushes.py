@@ -19,11 +19,10 @@ import numpy as np
 from scipy import constants as sc
 
 from .cache import per_shot_cache
-from .species import bias, gaussian_beams, sample_state, species, unit
+from .species import MU_B, bias, gaussian_beams, sample_state, species, unit
 from .states import barriers, is_populated, populated_states, populations, state_at
 from .traps import held
 
-MU_B = sc.physical_constants["Bohr magneton"][0]
 TWO_PI = 2 * math.pi
 NO_FORCE_MOMENT = 0.01 * MU_B  # below this a gradient pushes < 2 % as hard as on an |mF| = 1 state
 RESONANT_WAVELENGTH_M = 0.01e-9  # a push beam within 0.01 nm of D2 is taken as resonant (wavelength figures are rounded)
@@ -31,7 +30,7 @@ MAX_UNKNOWN_SIGNS = 10  # force directions of unknown sign enumerated one by one
 
 
 def pushes(shot):
-    return [a for a in shot.phys if a.kind == "push"]
+    return shot.actions("push")
 
 
 @dataclass(frozen=True)
@@ -151,7 +150,7 @@ def _force_parts(shot, t, paths):
     sp = species(shot)
     b = bias(shot)
     parts = []
-    for act in sorted((a for a in shot.phys if a.kind in ("push", "separate") and a.t0 < t), key=lambda a: a.t0):
+    for act in sorted((a for a in shot.actions("push", "separate") if a.t0 < t), key=lambda a: a.t0):
         label = f"{act.kind} '{act.block}'"
         if "coil" in act.args:
             coil = shot.rig.coils.get(act.args["coil"])
@@ -190,7 +189,7 @@ def _confined(shot, sp, act, t, disp, speed):
     (a release follows before t), bounded by what the trap allows: an oscillation of amplitude at most v / omega
     along the trap's weakest axis (harmonic motion, textbook), then free flight from the release at no more
     than the kick's speed v. Unchanged when the kick's energy exceeds the trap's depth (the atoms leave it)."""
-    releases = [a.t0 for a in shot.phys if a.kind == "release" and act.t1 <= a.t0 < t]
+    releases = [a.t0 for a in shot.actions("release") if act.t1 <= a.t0 < t]
     d = np.asarray(disp, dtype=float)
     if not releases or speed <= 0:
         return d

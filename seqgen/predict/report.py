@@ -9,18 +9,19 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import constants as sc
 
+from ..textfmt import (fmt_angle_pi, fmt_energy, fmt_freq, fmt_gauss, fmt_gauss_per_cm, fmt_gauss_per_cm2, fmt_length,
+                       fmt_pct, fmt_state, fmt_time, fmt_vec)
 from . import text as tx
-from .barrier import analyse, barriers
+from .barrier import analyse
 from .cloud import SEPARATION_WIDTHS, image_prediction, separations, view_reach
 from .imaging import images, probe_analysis
 from .magnetic import holds, hold_analysis
 from .pushes import push_analysis, pushes
-from .species import bias, species
-from .states import (MG, barrier_drive_analysis, interferometer_analysis, interferometers, pulse_analysis,
+from .species import G_N, MU_B, bias, species
+from .states import (MG, barrier_drive_analysis, barriers, interferometer_analysis, interferometers, pulse_analysis,
                      pulse_fourier_width, pulses, sweep_analysis, sweeps)
 from .traps import trap_ramps, trap_stage_prediction
 
-MU_B = sc.physical_constants["Bohr magneton"][0]
 
 
 @dataclass(frozen=True)
@@ -78,7 +79,7 @@ def _trap_rows(shot) -> list:
         rows.append([act.block, "trap_ramp", act.t0, items])
         seen[key] = rows[-1]
     rows = [_row(*r) for r in rows]
-    for img in (a for a in shot.phys if a.kind == "image"):
+    for img in shot.actions("image"):
         pred = image_prediction(shot, img)
         if pred:
             rows.append(_row(img.block, "image", img.t0, _image_items(pred)))
@@ -90,17 +91,17 @@ def _image_items(pred) -> list:
     if pred.release is None:
         return [tx.size_unknown_text(pred.why)]
     c = pred.cloud
-    items = [f"time of flight {pred.tof * 1e3:.4g} ms",
-             f"free fall {0.5 * tx.G_N * pred.tof ** 2 * 1e3:.3g} mm below release"]
+    items = [f"time of flight {fmt_time(pred.tof, unit='ms')}",
+             f"free fall {fmt_length(0.5 * G_N * pred.tof ** 2, 3, unit='mm')} below release"]
     if c is None:
         items.append(f"no size prediction: {tx.size_unknown_text(pred.why)}; centres alone are checked")
     else:
-        items.append(f"{c.size_kind} {tx.length_text(c.size)} (released from {tx.trap_text(c)})")
+        items.append(f"{c.size_kind} {fmt_length(c.size, 3)} (released from {tx.trap_text(c)})")
         if c.thermal_stand_in:
             items.append(tx.THERMAL_STAND_IN)
     setup = pred.setup
     if pred.los is not None:
-        items.append(f"camera looks along {tx.vec_text(pred.los)} (probe beam '{setup.probe_beam}'), image plane perpendicular")
+        items.append(f"camera looks along {fmt_vec(pred.los)} (probe beam '{setup.probe_beam}'), image plane perpendicular")
     elif setup is not None:
         items.append("line of sight unknown (no probe beam): vertical image plane, horizontal offsets counted in full")
     if pred.unknown:
@@ -110,35 +111,35 @@ def _image_items(pred) -> list:
     half = setup.field_of_view_m / 2 if setup is not None and setup.field_of_view_m else None
     for comp in pred.components:
         pos = comp.positions
-        where = (" or ".join(tx.mm_text(p) for p in pos) if len(pos) <= 4 else
-                 "within " + tx.mm_text(pos.min(axis=0)) + " .. " + tx.mm_text(pos.max(axis=0)))
+        where = (" or ".join(fmt_vec(p, scale=1e3, unit="mm") for p in pos) if len(pos) <= 4 else
+                 "within " + fmt_vec(pos.min(axis=0), scale=1e3, unit="mm") + " .. " + fmt_vec(pos.max(axis=0), scale=1e3, unit="mm"))
         text = f"{tx.who(comp)} centred at {where} (rig frame)"
         if half is not None:
             reach = view_reach(pred, comp) + pred.edge
-            text += f", reaching {float(np.max(reach)) * 1e3:.3g} mm of the {half * 1e3:.3g} mm half field of view"
+            text += f", reaching {fmt_length(float(np.max(reach)), 3, unit='mm')} of the {fmt_length(half, 3, unit='mm')} half field of view"
         items.append(text)
     if pred.empty:
-        items.append("below the detection floor: " + ", ".join(f"{tx.state_text(st)} ({f * 100:.2g} %)" for st, f in pred.empty))
+        items.append("below the detection floor: " + ", ".join(f"{fmt_state(*st)} ({fmt_pct(f, 2)})" for st, f in pred.empty))
     return items
 
 
 # --------------------------------------------------------------------------- internal states, pushes, probes
 
 def _pulse_items(shot, act, rep):
-    items = [f"angle {tx.pi_text(rep.area)}" + (f" (declared {rep.angle / math.pi:.3g} pi)" if rep.angle is not None else ""),
-             f"peak Rabi frequency 2 pi x {tx.fmt_hz(rep.peak_rabi_hz)}, {rep.envelope} {tx.fmt_t(rep.duration)}"]
+    items = [f"angle {fmt_angle_pi(rep.area)}" + (f" (declared {rep.angle / math.pi:.3g} pi)" if rep.angle is not None else ""),
+             f"peak Rabi frequency 2 pi x {fmt_freq(rep.peak_rabi_hz)}, {rep.envelope} {fmt_time(rep.duration)}"]
     if rep.pair:
         a, b = rep.pair
-        items.append(f"{tx.state_text(a)} -> {tx.state_text(b)} line {tx.line_hz(rep.line_hz + rep.light_shift_hz)} at "
+        items.append(f"{fmt_state(*a)} -> {fmt_state(*b)} line {fmt_freq(rep.line_hz + rep.light_shift_hz, 10)} at "
                      f"{bias(shot) * 1e4:.4g} G")
-    items.append(f"detuning {tx.fmt_hz(rep.detuning_hz)}" + ("" if rep.detuning_source == "frequency"
+    items.append(f"detuning {fmt_freq(rep.detuning_hz)}" + ("" if rep.detuning_source == "frequency"
                                                               else f" ({tx.detuning_source_text(rep)})"))
     if rep.transfer is not None:
         items.append(f"transfer {rep.transfer:.4g}" + (f" (intended {rep.intended_transfer:.4g})"
                                                        if rep.intended_transfer != rep.transfer else ""))
     fw = pulse_fourier_width(shot, act)
     if fw:
-        items.append(f"Fourier width {tx.fmt_hz(fw)}")
+        items.append(f"Fourier width {fmt_freq(fw)}")
     if rep.slope_hz_per_t is not None:
         items.append(f"field sensitivity {rep.slope_hz_per_t * MG:.4g} Hz/mG")
     return items
@@ -154,10 +155,10 @@ def _state_rows(shot) -> list:
             rows.append(_row(act.block, "clock_pulse", act.t0, _pulse_items(shot, act, rep)))
     for kind, acts in interferometers(shot):
         r = interferometer_analysis(shot, kind, acts)
-        items = [f"free evolution {tx.fmt_t(r.free_time)} between blocks " + ", ".join(a.block for a in acts),
-                 f"detuning {tx.fmt_hz(r.detuning_hz)} -> free-evolution phase {r.phase_rad:.4g} rad"]
+        items = [f"free evolution {fmt_time(r.free_time)} between blocks " + ", ".join(a.block for a in acts),
+                 f"detuning {fmt_freq(r.detuning_hz)} -> free-evolution phase {r.phase_rad:.4g} rad"]
         if kind == "spin_echo":
-            items[-1] += f" (static part cancelled; net time {tx.fmt_t(r.net_time)})"
+            items[-1] += f" (static part cancelled; net time {fmt_time(r.net_time)})"
         if r.phase_per_mg is not None:
             items.append(f"phase per mG of static field offset {r.phase_per_mg:.4g} rad")
         if r.step_phase_per_mg is not None:
@@ -167,10 +168,10 @@ def _state_rows(shot) -> list:
         rep = sweep_analysis(shot, drive, seg)
         if not rep:
             continue
-        items = [f"sweep {tx.line_hz(rep.f0)} -> {tx.line_hz(rep.f1)} in {tx.fmt_t(rep.duration)}",
-                 f"{tx.state_text(rep.pair[0])} -> {tx.state_text(rep.pair[1])} line {tx.line_hz(rep.resonance_hz)}"]
+        items = [f"sweep {fmt_freq(rep.f0, 10)} -> {fmt_freq(rep.f1, 10)} in {fmt_time(rep.duration)}",
+                 f"{fmt_state(*rep.pair[0])} -> {fmt_state(*rep.pair[1])} line {fmt_freq(rep.resonance_hz, 10)}"]
         if rep.crosses:
-            items.append(f"crossing at {tx.fmt_hz(abs(rep.rate_hz_s))}/s, Rabi frequency 2 pi x {tx.fmt_hz(rep.rabi_hz)}")
+            items.append(f"crossing at {fmt_freq(abs(rep.rate_hz_s))}/s, Rabi frequency 2 pi x {fmt_freq(rep.rabi_hz)}")
             items.append(f"Landau-Zener transfer {rep.lz_transfer:.4g}")
         else:
             items.append("does not cross the line")
@@ -185,12 +186,12 @@ def _state_rows(shot) -> list:
             items = [tx.barrier_drive_reason(rep)]
         else:
             a, b = rep.pair
-            items = [f"modulation {tx.line_hz(rep.f_mod)} depth {rep.depth:.3g} on {tx.state_text(a)} -> {tx.state_text(b)}",
-                     f"effective two-photon Rabi frequency 2 pi x {tx.fmt_hz(rep.rabi_hz)} (circular polarisation assumed; "
+            items = [f"modulation {fmt_freq(rep.f_mod, 10)} depth {rep.depth:.3g} on {fmt_state(*a)} -> {fmt_state(*b)}",
+                     f"effective two-photon Rabi frequency 2 pi x {fmt_freq(rep.rabi_hz)} (circular polarisation assumed; "
                      f"peak intensity {rep.i_peak * 1e-4:.4g} W/cm^2)",
-                     f"differential light shift {tx.fmt_hz(rep.light_shift_hz)}",
-                     f"line {tx.line_hz(rep.resonance_hz)} (Breit-Rabi {tx.line_hz(rep.bare_hz)}), "
-                     f"modulation offset {tx.fmt_hz(rep.offset_hz)} (tolerated {tx.fmt_hz(rep.tolerance_hz)})"]
+                     f"differential light shift {fmt_freq(rep.light_shift_hz)}",
+                     f"line {fmt_freq(rep.resonance_hz, 10)} (Breit-Rabi {fmt_freq(rep.bare_hz, 10)}), "
+                     f"modulation offset {fmt_freq(rep.offset_hz)} (tolerated {fmt_freq(rep.tolerance_hz)})"]
         rows.append(_row(act.block, "barrier_drive", act.t0, items))
     for act in pushes(shot):
         rep = push_analysis(shot, act)
@@ -202,9 +203,9 @@ def _state_rows(shot) -> list:
             else:
                 way = (f"kick {abs(rep.velocity) * 1e3:.4g} mm/s towards "
                        f"{'stronger' if rep.moment > 0 else 'weaker'} field"
-                       + (f", along {tx.vec_text(rep.direction)}" if rep.direction is not None else
+                       + (f", along {fmt_vec(rep.direction)}" if rep.direction is not None else
                           " (direction unknown: the coil has no field_grows_along)"))
-            items = [f"{tx.state_text(rep.state)} moment {rep.moment / MU_B:+.5g} mu_B (-dE/dB) at {bias(shot) * 1e4:.4g} G",
+            items = [f"{fmt_state(*rep.state)} moment {rep.moment / MU_B:+.5g} mu_B (-dE/dB) at {bias(shot) * 1e4:.4g} G",
                      way]
         else:
             items = [f"optical: saturation {rep.saturation:.3g}, {rep.photons:.3g} photons of "
@@ -213,21 +214,21 @@ def _state_rows(shot) -> list:
         if act.args.get("expect_velocity") is not None:
             items.append(f"expected {abs(act.args['expect_velocity']) * 1e3:.4g} mm/s")
         if rep.arrival is not None:
-            items.append(f"reaches {act.args['target_distance'] * 1e3:.4g} mm at t = {tx.fmt_t(rep.arrival)}")
+            items.append(f"reaches {fmt_length(act.args['target_distance'], unit='mm')} at t = {fmt_time(rep.arrival)}")
             if rep.barrier is not None:
                 b = rep.barrier
-                items.append(f"barrier '{b.block}' on {tx.fmt_t(b.t0)} to {tx.fmt_t(b.t1)}")
+                items.append(f"barrier '{b.block}' on {fmt_time(b.t0)} to {fmt_time(b.t1)}")
         rows.append(_row(act.block, "push", act.t0, items))
     for act, rep in separations(shot):
         if rep.pair is None:
-            held = ", ".join(tx.state_text(st) for st in rep.states) or "no state above the detection floor"
+            held = ", ".join(fmt_state(*st) for st in rep.states) or "no state above the detection floor"
             rows.append(_row(act.block, "separate", act.t0, [f"only {held} holds atoms: nothing to separate"]))
             continue
         a, b = rep.pair
-        items = [f"{tx.state_text(a)} {rep.moments[0] / MU_B:+.4g} mu_B, {tx.state_text(b)} {rep.moments[1] / MU_B:+.4g} mu_B",
-                 f"separation at the image {abs(rep.separation) * 1e3:.4g} mm"]
+        items = [f"{fmt_state(*a)} {rep.moments[0] / MU_B:+.4g} mu_B, {fmt_state(*b)} {rep.moments[1] / MU_B:+.4g} mu_B",
+                 f"separation at the image {fmt_length(abs(rep.separation), unit='mm')}"]
         if rep.combined is not None:
-            items.append(f"rms width {rep.sigma * 1e6:.4g} um each: {abs(rep.separation) / rep.combined:.3g} "
+            items.append(f"rms width {fmt_length(rep.sigma, unit='um')} each: {abs(rep.separation) / rep.combined:.3g} "
                          f"combined rms widths (need {SEPARATION_WIDTHS:g})")
         rows.append(_row(act.block, "separate", act.t0, items))
     for act in images(shot):
@@ -235,8 +236,8 @@ def _state_rows(shot) -> list:
         if not rep:
             continue
         items = [f"saturation {rep.saturation:.3g}", f"{rep.photons:.3g} photons per atom",
-                 f"Doppler shift {rep.doppler_linewidths:.3g} linewidths", f"recoil blur {rep.blur * 1e6:.3g} um"
-                 + (f" (pixel {rep.pixel * 1e6:.3g} um in the atom plane)" if rep.pixel else "")]
+                 f"Doppler shift {rep.doppler_linewidths:.3g} linewidths", f"recoil blur {fmt_length(rep.blur, 3, unit='um')}"
+                 + (f" (pixel {fmt_length(rep.pixel, 3, unit='um')} in the atom plane)" if rep.pixel else "")]
         rows.append(_row(act.block, "probe", act.t0, items))
     return rows
 
@@ -253,15 +254,15 @@ def _barrier_rows(shot) -> list:
             continue
         items = [f"incident {rep.speed * 1e3:.4g} mm/s ({tx.incident_text(rep.incident)}), "
                  f"spread {rep.sigma_v * 1e3:.2g} mm/s ({tx.spread_text(rep.cloud)})",
-                 f"barrier V0 {tx.energy_text(rep.V0)}, mean kinetic energy {tx.energy_text(rep.E_mean)}",
+                 f"barrier V0 {fmt_energy(rep.V0)}, mean kinetic energy {fmt_energy(rep.E_mean)}",
                  f"transmitted fraction {rep.T:.3g} (spread {rep.T_spread:.2g})"]
         if rep.N_T is not None:
             items.append(f"transmitted atoms {rep.N_T:.3g}, reflected {rep.N_R:.3g} (floor {rep.floor:g})")
         ps = rep.passage
-        edge = f", cloud edge {tx.um(ps.edge)}" if ps.edge is not None else ""
-        items.append(f"sheet {tx.um(ps.distance)} from the atoms along the path{edge}; on {tx.ms(ps.on)} to "
-                     f"{tx.ms(ps.off)} after the push starts; cloud centre there after {tx.ms(ps.centre_arrival)}; "
-                     f"{tx.pct(ps.early)} of the cloud arrives before it is on, {tx.pct(ps.late)} after it is off")
+        edge = f", cloud edge {fmt_length(ps.edge, mm_from=1e-2)}" if ps.edge is not None else ""
+        items.append(f"sheet {fmt_length(ps.distance, mm_from=1e-2)} from the atoms along the path{edge}; on {fmt_time(ps.on, unit='ms', nonfinite='never')} to "
+                     f"{fmt_time(ps.off, unit='ms', nonfinite='never')} after the push starts; cloud centre there after {fmt_time(ps.centre_arrival, unit='ms', nonfinite='never')}; "
+                     f"{fmt_pct(ps.early)} of the cloud arrives before it is on, {fmt_pct(ps.late)} after it is off")
         d = rep.drive
         if d and d.unsupported:
             items.append(tx.in_barrier_drive_reason(d))
@@ -284,16 +285,16 @@ def _magnetic_rows(shot) -> list:
         if rep.bad_axes:
             items.append("trap not evaluated: coil axis of " + ", ".join(rep.bad_axes) + " is not a direction")
         elif rep.kind == "quadrupole":
-            items.append("quadrupole trap: " + (", ".join(f"{n} {tx.g_cm(g)} along its axis" for n, g in rep.axial)
+            items.append("quadrupole trap: " + (", ".join(f"{n} {fmt_gauss_per_cm(g)} along its axis" for n, g in rep.axial)
                                                 or "no gradient"))
         else:
-            items.append(f"Ioffe-Pritchard trap: B0 {tx.gauss(rep.bias)}, B' {tx.g_cm(rep.gradient)}, "
-                         f"B'' {tx.g_cm2(rep.curvature)}")
+            items.append(f"Ioffe-Pritchard trap: B0 {fmt_gauss(rep.bias)}, B' {fmt_gauss_per_cm(rep.gradient)}, "
+                         f"B'' {fmt_gauss_per_cm2(rep.curvature)}")
         if rep.bad_state:
             items.append(tx.level_problem_text(rep.bad_state))
         if rep.moment is not None:
             kind = "low-field seeker" if rep.trappable else "not trappable"
-            items.append(f"{tx.state_text(rep.state)}: moment -dE/dB {rep.moment / MU_B:+.4g} mu_B ({kind})")
+            items.append(f"{fmt_state(*rep.state)}: moment -dE/dB {rep.moment / MU_B:+.4g} mu_B ({kind})")
         elif rep.state is None:
             items.append("no sample state: trap not evaluated")
         if rep.optical:
@@ -304,12 +305,12 @@ def _magnetic_rows(shot) -> list:
         if rep.omega_radial is not None:
             items.append(f"trap frequencies radial/axial {rep.omega_radial / (2 * math.pi):.4g}/"
                          f"{rep.omega_axial / (2 * math.pi):.4g} Hz")
-            items.append(f"gravity sag {rep.sag * 1e6:.3g} um")
+            items.append(f"gravity sag {fmt_length(rep.sag, 3, unit='um')}")
             items.append(f"Larmor frequency {rep.larmor / (2 * math.pi):.4g} Hz, "
                          f"{rep.adiabaticity:.3g} x the trap / field-rotation rate")
         if rep.lifetime is not None:
-            items.append(f"cloud size ~{rep.cloud_size * 1e6:.3g} um, Majorana hole ~{rep.hole_radius * 1e6:.3g} um, "
-                         f"lifetime ~{tx.fmt_t(rep.lifetime)} (hold {tx.fmt_t(rep.duration)}), all with "
+            items.append(f"cloud size ~{fmt_length(rep.cloud_size, 3, unit='um')}, Majorana hole ~{fmt_length(rep.hole_radius, 3, unit='um')}, "
+                         f"lifetime ~{fmt_time(rep.lifetime)} (hold {fmt_time(rep.duration)}), all with "
                          f"b' = {tx.weakest_text(rep)}")
         rows.append(_row(act.block, "magnetic_hold", act.t0, items))
     return rows

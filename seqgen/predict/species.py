@@ -10,6 +10,9 @@ from scipy import constants as sc
 
 from ..values import value_at
 
+G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
+MU_B = sc.physical_constants["Bohr magneton"][0]
+
 
 def species(shot):
     """The sample's species (seqgen.physics.atoms.Species) or None (no sample, unknown species)."""
@@ -52,11 +55,6 @@ def sample_state(shot):
     if s is None or s.F is None or s.mF is None:
         return None
     return (int(s.F), int(s.mF))
-
-
-def actions(shot, kind: str):
-    """The shot's physics actions of one kind, in order."""
-    return [a for a in shot.phys if a.kind == kind]
 
 
 def other_level(sp, state):

@@ -23,7 +23,7 @@ from scipy import optimize
 
 from ..values import value_at
 from .cache import per_shot_cache
-from .species import (NO_PARTNER, LevelError, LevelProblem, actions, amplitude_output, bias, level_problem, line,
+from .species import (NO_PARTNER, LevelError, LevelProblem, amplitude_output, bias, level_problem, line,
                       sample_state, species, transition_pair, unevaluable)
 
 TWO_PI = 2 * math.pi
@@ -48,7 +48,7 @@ def pulse_nodes(t0, t1, panels=32):
 # --------------------------------------------------------------------------- clock pulses
 
 def pulses(shot):
-    return actions(shot, "clock_pulse")
+    return shot.actions("clock_pulse")
 
 
 @dataclass(frozen=True)
@@ -165,12 +165,13 @@ def pulse_fourier_width(shot, act) -> float | None:
         return None
 
 
-def _rel_off(a, b) -> float:
+def rel_off(a, b) -> float:
+    """|a - b| / |b|; inf when b is 0."""
     return abs(a - b) / abs(b) if b else math.inf
 
 
 def _is_area(rep, target, tol):
-    return rep is not None and _rel_off(rep.area, target) <= tol
+    return rep is not None and rel_off(rep.area, target) <= tol
 
 
 def interferometers(shot):
@@ -314,7 +315,7 @@ def sweep_analysis(shot, drive, seg) -> SweepPrediction | None:
 # --------------------------------------------------------------------------- barrier modulation drive
 
 def barriers(shot):
-    return actions(shot, "barrier")
+    return shot.actions("barrier")
 
 
 @dataclass(frozen=True)

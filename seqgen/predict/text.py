@@ -1,76 +1,17 @@
-"""Words for the predictions: the numbers and states as the rules' messages and `show --physics` write them.
-One place, so that a finding and the physics notes say the same thing the same way."""
+"""Words for the predictions: why a number is missing, where a value comes from, as the rules' messages and
+`show --physics` write them. One place, so that a finding and the physics notes say the same thing the same
+way; the numbers themselves are written by seqgen.textfmt."""
 
 from __future__ import annotations
 
 import math
 
 import numpy as np
-from scipy import constants as sc
 
+from ..textfmt import fmt_freq, fmt_gauss_per_cm, fmt_length, fmt_pct, fmt_state, fmt_vec
 from . import cloud as cl
 from . import species as spc
-
-G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
-TESLA_PER_GAUSS = 1e-4
-
-
-def state_text(s) -> str:
-    return f"|F={s[0]}, mF={s[1]:+d}>" if s[1] else f"|F={s[0]}, mF=0>"
-
-
-def fmt_hz(f, digits=4) -> str:
-    """Frequency text; `digits` significant digits (line frequencies use 10, enough for a synth setting)."""
-    a = abs(f)
-    for scale, unit in ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz")):
-        if a >= scale:
-            return f"{f / scale:.{digits}g} {unit}"
-    return f"{f:.{digits}g} Hz"
-
-
-def line_hz(f) -> str:
-    return fmt_hz(f, 10)
-
-
-def fmt_t(t) -> str:
-    a = abs(t)
-    if a >= 1:
-        return f"{t:.4g} s"
-    if a >= 1e-3:
-        return f"{t * 1e3:.4g} ms"
-    return f"{t * 1e6:.4g} us"
-
-
-def pi_text(x) -> str:
-    return f"{x:.4g} rad ({x / math.pi:.3g} pi)"
-
-
-def vec_text(v) -> str:
-    return "[" + ", ".join(f"{x + 0.0:.3g}" for x in v) + "]"  # + 0.0: no '-0'
-
-
-def length_text(x) -> str:
-    return f"{x * 1e6:.3g} um" if abs(x) < 1e-3 else f"{x * 1e3:.3g} mm"
-
-
-def mm_text(v) -> str:
-    return "[" + ", ".join(f"{x * 1e3 + 0.0:.3g}" for x in v) + "] mm"
-
-
-def pct(f) -> str:
-    return f"{f * 100:.3g} %"
-
-
-def gauss(b_t) -> str:
-    return f"{b_t / TESLA_PER_GAUSS:.4g} G"
-
-
-def g_cm(g_t_m) -> str:
-    return f"{g_t_m * 100:.4g} G/cm"
-
-
-def g_cm2(c_t_m2) -> str:
-    return f"{c_t_m2:.4g} G/cm^2"  # 1 G/cm^2 = 1e-4 T / 1e-4 m^2 = 1 T/m^2
+from .species import G_N
 
 
 # --------------------------------------------------------------------------- levels and pulses
@@ -110,24 +51,24 @@ def barrier_drive_reason(rep) -> str:
 
 def who(comp) -> str:
     st = comp.state
-    return f"{state_text(st)} ({comp.fraction * 100:.3g} % of the atoms)" if st is not None else "the cloud"
+    return f"{fmt_state(*st)} ({fmt_pct(comp.fraction)} of the atoms)" if st is not None else "the cloud"
 
 
 def why_there(pred, comp, case) -> str:
     """How a component got where it is in one case: its fall and each force's displacement (mm)."""
-    bits = [f"fall {0.5 * G_N * pred.tof ** 2 * 1e3:.3g} mm"]
+    bits = [f"fall {fmt_length(0.5 * G_N * pred.tof ** 2, 3, unit='mm')}"]
     signs = pred.signs
     for label, known, vec, slot in comp.parts:
         length = float(np.linalg.norm(vec))
         if length == 0:
             continue
         if known:
-            bits.append(f"{label} {length * 1e3:.3g} mm along {vec_text(vec / length)}")
+            bits.append(f"{label} {fmt_length(length, 3, unit='mm')} along {fmt_vec(vec / length)}")
         elif signs is not None:
-            bits.append(f"{label} {length * 1e3:.3g} mm along {vec_text(signs[case, slot] * vec / length)} (the coil has no "
+            bits.append(f"{label} {fmt_length(length, 3, unit='mm')} along {fmt_vec(signs[case, slot] * vec / length)} (the coil has no "
                         f"field_grows_along: both ways checked)")
         else:
-            bits.append(f"{label} {length * 1e3:.3g} mm either way along {vec_text(vec / length)}")
+            bits.append(f"{label} {fmt_length(length, 3, unit='mm')} either way along {fmt_vec(vec / length)}")
     return ", ".join(bits)
 
 
@@ -174,42 +115,19 @@ def size_text(pred) -> str:
     c = pred.cloud
     if c is None:
         return f"cloud size unknown ({size_unknown_text(pred.why)}): its centre alone is checked"
-    return f"{c.size_kind} {length_text(c.size)}"
+    return f"{c.size_kind} {fmt_length(c.size, 3)}"
 
 
 # --------------------------------------------------------------------------- barriers
 
-def hz_text(f_hz: float) -> str:
-    a = abs(f_hz)
-    if a >= 1e6:
-        return f"{f_hz / 1e6:.6g} MHz"
-    if a >= 1e3:
-        return f"{f_hz / 1e3:.5g} kHz"
-    return f"{f_hz:.4g} Hz"
-
-
-def energy_text(e_j: float) -> str:
-    t = e_j / sc.k
-    temp = f"{t * 1e9:.4g} nK" if abs(t) < 1e-6 else f"{t * 1e6:.4g} uK"
-    return f"h x {e_j / sc.h / 1e3:.4g} kHz ({temp} x k_B)"
-
-
-def um(x_m: float) -> str:
-    return f"{x_m * 1e6:.4g} um" if abs(x_m) < 1e-2 else f"{x_m * 1e3:.4g} mm"
-
-
-def ms(t_s: float) -> str:
-    return f"{t_s * 1e3:.4g} ms" if math.isfinite(t_s) else "never"
-
-
 def spread_text(cloud) -> str:
     """The velocity spread's origin (CloudAlongPath) in words."""
     if cloud.profile == "thomas-fermi":
-        return f"condensate, Thomas-Fermi radius {cloud.size * 1e6:.4g} um along the path"
+        return f"condensate, Thomas-Fermi radius {fmt_length(cloud.size, unit='um')} along the path"
     if cloud.temperature_k:
         text = f"thermal, T = {cloud.temperature_k * 1e9:.4g} nK"
         if cloud.profile == "gaussian":
-            return f"{text}, rms width {cloud.size * 1e6:.4g} um along the path"
+            return f"{text}, rms width {fmt_length(cloud.size, unit='um')} along the path"
         return f"{text}, size along the path unknown (no trap)"
     return "no spread known (sample without temperature or trap)"
 
@@ -220,7 +138,7 @@ def incident_text(inc) -> str:
         return "expect_velocity of the push"
     way = "towards stronger field" if inc.moment > 0 else "towards weaker field"
     if inc.push_direction is not None:
-        way += ", along [" + ", ".join(f"{x + 0.0:.3g}" for x in inc.push_direction) + "]"
+        way += f", along {fmt_vec(inc.push_direction)}"
     return f"push by '{inc.coil}' on |F={inc.state[0]}, mF={inc.state[1]}>, {way}"
 
 
@@ -241,7 +159,7 @@ def rotation_text(rep) -> str:
     txt = (f"rotation of the transmitted spin {rep.rotation:.3g} rad (spread {rep.rotation_spread:.2g}) on "
            f"|F={d.initial[0]}, mF={d.initial[1]}> -> |F={d.partner[0]}, mF={d.partner[1]}>; peak Rabi frequency "
            f"2 pi x {d.rabi_peak / (2 * math.pi):.4g} Hz (circular polarisation assumed), "
-           f"detuning {hz_text(d.detuning_hz)} from the bare line")
+           f"detuning {fmt_freq(d.detuning_hz, {'MHz': 6, 'kHz': 5, 'Hz': 4}, top='MHz')} from the bare line")
     if d.far_off:
         txt += " (far off resonance for the transit time: no transfer)"
     return txt + (" (no modulation frequency: taken on resonance)" if d.assumed_resonant else "")
@@ -256,8 +174,8 @@ def unconfined_text(rep) -> str:
 def weakest_text(rep, short: bool = False) -> str:
     """Which gradient the quadrupole's cloud size and Majorana numbers use: the weakest one, named."""
     one = len(rep.axial or ()) == 1  # one coil: the radial gradient is half the axial one (div B = 0)
-    text = f"{g_cm(rep.weakest_gradient)}, the trap's weakest{' (radial)' if one and short else ''} gradient"
+    text = f"{fmt_gauss_per_cm(rep.weakest_gradient)}, the trap's weakest{' (radial)' if one and short else ''} gradient"
     if one and not short:
         name, g = rep.axial[0]
-        text += f": the radial one, half of {name}'s {g_cm(abs(g))} along its axis"
+        text += f": the radial one, half of {name}'s {fmt_gauss_per_cm(abs(g))} along its axis"
     return text

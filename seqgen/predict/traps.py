@@ -10,7 +10,7 @@ import numpy as np
 from scipy import constants as sc
 
 from .cache import per_shot_cache
-from .species import actions, gaussian_beams, species
+from .species import gaussian_beams, species
 
 N_SAMPLES = 24  # trap evaluations per ramp: frequencies vary smoothly with power
 
@@ -57,7 +57,7 @@ def trap_stage(shot, t0, t1, n=N_SAMPLES):
 
 
 def trap_ramps(shot):
-    return actions(shot, "trap_ramp")
+    return shot.actions("trap_ramp")
 
 
 @dataclass(frozen=True, eq=False)

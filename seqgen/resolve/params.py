@@ -30,16 +30,18 @@ from .units import DIMENSIONLESS, Qty, UnitError, display_unit, format_qty, pars
 
 def param_entries(src: Sources) -> tuple[dict, dict]:
     """(entries, bounds): name -> (raw, Document, path) of the definition that wins, and
-    name -> {"min"/"max": (raw, Document, path)} (a later min:/max: replaces an earlier one)."""
+    name -> {"min"/"max": (raw, Document, path)} (a later min:/max: replaces an earlier one). Used files first,
+    then their use-entry params, then the main file; later wins. Sources with errors may hold a document
+    without data: it defines nothing."""
     entries: dict[str, tuple] = {}
     bounds: dict[str, dict] = {}
     for d, entry, parent, upath in src.used:
-        for name, raw in (d.data.get("params") or {}).items():
+        for name, raw in ((d.data or {}).get("params") or {}).items():
             entries[name] = (raw, d, ("params", name))
             _note_bounds(bounds, name, raw, d, ("params", name))
         for name, raw in (entry.get("params") or {}).items():
             entries[name] = (raw, parent, upath + ("params", name))
-    for name, raw in (src.main.data.get("params") or {}).items():
+    for name, raw in ((src.main.data or {}).get("params") or {}).items():
         entries[name] = (raw, src.main, ("params", name))
         _note_bounds(bounds, name, raw, src.main, ("params", name))
     return entries, bounds

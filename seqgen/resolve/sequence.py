@@ -22,9 +22,6 @@ from .place import anchor_block, anchor_text, collect_blocks, fill_values, place
 from .rig import build_rig
 from .sources import Sources
 
-# seqgen/batch.py and seqgen/cli.py still import these from here (the other modules import them from .sources)
-from .sources import check_rig_document, is_rig_document, load_sources  # noqa: F401
-
 __all__ = ["resolve"]
 
 

@@ -8,12 +8,13 @@ dimensions.
 
 from __future__ import annotations
 
-import math
 import re
 from dataclasses import dataclass
 from functools import lru_cache
 
 import pint
+
+from ..textfmt import fmt_si
 
 _UREG = pint.UnitRegistry(autoconvert_offset_to_baseunit=False)
 # pint's gauss belongs to the Gaussian-CGS system (square-root dimensions); labs
@@ -135,26 +136,8 @@ def display_unit(dims: Dims) -> str:
     return _DISPLAY.get(dims, describe_dims(dims))
 
 
-_PREFIXES = ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "u"), (1e-9, "n"), (1e-12, "p"))
-
-
-def format_value(value: float, unit: str) -> str:
-    """Engineering notation with an SI prefix: 0.0025 s -> '2.5 ms'."""
-    if unit in ("", "dimensionless"):
-        return f"{value:.6g}"
-    if not math.isfinite(value) or value == 0:
-        return f"{value:g} {unit}"
-    if unit in ("kg", "m/s", "W/m^2", "T/m", "rad/s") or " " in unit or "^" in unit:
-        return f"{value:.6g} {unit}"
-    a = abs(value)
-    for factor, prefix in _PREFIXES:
-        if a >= factor * 0.9999999:
-            return f"{value / factor:.6g} {prefix}{unit}"
-    return f"{value:.6g} {unit}"
-
-
 def format_qty(q: Qty) -> str:
-    return format_value(q.value, display_unit(q.dims))
+    return fmt_si(q.value, display_unit(q.dims))
 
 
 def same_dims(a: Dims, b: Dims) -> bool:

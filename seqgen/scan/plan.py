@@ -53,10 +53,13 @@ from ..codes import BAD_SCAN, MISSING_UNIT, SCAN_LENGTH_MISMATCH, SCAN_TOO_LARGE
 from ..findings import Finding, SourcePos, has_errors, make, sort_findings
 from ..load.yamlsrc import LoadError
 from ..model import Rig, Shot
+from ..resolve.params import param_entries
 from ..resolve.quantities import Bad, to_qty
-from ..resolve.sequence import Sources, load_sources, resolve
-from ..resolve.units import DIMENSIONLESS, Qty, close_units, describe_kind, display_unit, format_qty, format_value, \
+from ..resolve.sequence import resolve
+from ..resolve.sources import Sources, load_sources
+from ..resolve.units import DIMENSIONLESS, Qty, close_units, describe_kind, display_unit, format_qty, \
     kind_units, same_dims, split_quantity, usual_unit
+from ..textfmt import fmt_si
 
 DEFAULT_MAX_SHOTS = 100_000
 
@@ -77,7 +80,7 @@ class ScanAxis:
         return display_unit(self.values[0].dims) if self.values else ""
 
     def describe(self) -> str:
-        vals = [format_value(q.value, self.unit) for q in self.values]
+        vals = [fmt_si(q.value, self.unit) for q in self.values]
         if len(vals) <= 4:
             body = ", ".join(vals)
         else:
@@ -143,22 +146,8 @@ def shuffled_order(seed: int, n: int) -> list[int]:
     return sorted(range(n), key=lambda i: hashlib.sha256(f"seqgen-order:{seed}:{i}".encode()).digest())
 
 
-def param_entries(src) -> dict:
-    """name -> (raw, Document, path) of the param definition that wins (same rule as resolve:
-    used files first, then their use-entry params, then the main file; later wins)."""
-    entries: dict = {}
-    for d, entry, parent, upath in src.used:
-        for name, raw in ((d.data or {}).get("params") or {}).items():
-            entries[name] = (raw, d, ("params", name))
-        for name, raw in (entry.get("params") or {}).items():
-            entries[name] = (raw, parent, upath + ("params", name))
-    for name, raw in ((src.main.data or {}).get("params") or {}).items():
-        entries[name] = (raw, src.main, ("params", name))
-    return entries
-
-
 def has_scans(src) -> bool:
-    return any(isinstance(raw, dict) and raw.get("scan") is not None for raw, _, _ in param_entries(src).values())
+    return any(isinstance(raw, dict) and raw.get("scan") is not None for raw, _, _ in param_entries(src)[0].values())
 
 
 def expand(src, base_shot) -> tuple[ScanPlan | None, list[Finding]]:
@@ -168,7 +157,7 @@ def expand(src, base_shot) -> tuple[ScanPlan | None, list[Finding]]:
     param's dimension and the values other params' scan bounds may refer to.
     """
     findings: list[Finding] = []
-    entries = param_entries(src)
+    entries, _ = param_entries(src)
     scanned = [(n, e) for n, e in entries.items() if isinstance(e[0], dict) and e[0].get("scan") is not None]
     if not scanned:
         return None, findings

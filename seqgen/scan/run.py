@@ -35,7 +35,8 @@ from pathlib import Path
 from ..codes import SHOT_FAILED
 from ..findings import has_errors, make
 from ..pipeline import preflight_resolved
-from ..resolve.sequence import Sources, resolve
+from ..resolve.sequence import resolve
+from ..resolve.sources import Sources
 from .plan import Scan, ShotResult, ShotTask, label_shot, shot_key, values_text
 from .store import ManifestWriter, prepare_out, remove_path, write_shot
 

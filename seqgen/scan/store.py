@@ -27,7 +27,8 @@ from pathlib import Path
 
 from .. import __version__
 from ..caution import CAUTION
-from ..emit.build import BuildExists, file_sha256, write_build
+from ..emit.build import BuildExists, write_build
+from ..emit.writers import file_sha256
 from ..findings import Finding, summary
 from .plan import Scan, ScanPlan, ShotResult, scan_description, scan_input_sha256, shot_head
 

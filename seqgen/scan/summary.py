@@ -10,7 +10,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from ..findings import SEVERITIES, Finding, format_text, summary
-from ..resolve.units import Qty, format_qty, format_value
+from ..resolve.units import Qty, format_qty
+from ..textfmt import fmt_si
 from .plan import Scan, ScanPlan, ShotResult, scan_description, shot_head, values_text
 from .store import SCAN_MANIFEST
 
@@ -134,7 +135,7 @@ def totals(scan: Scan) -> dict:
 
 
 def fmt_duration(seconds: float) -> str:
-    return format_value(seconds, "s")
+    return fmt_si(seconds, "s")
 
 
 def report_text(scan: Scan, *, built: bool = False) -> str:

@@ -32,7 +32,8 @@ sys.path.insert(0, str(ROOT))
 
 from seqgen.check import run_table_checks, run_timeline_checks  # noqa: E402
 from seqgen.compile.tables import compile_shot  # noqa: E402
-from seqgen.emit.build import write_build, write_csv  # noqa: E402
+from seqgen.emit.build import write_build  # noqa: E402
+from seqgen.emit.writers import write_csv  # noqa: E402
 from seqgen.resolve.sequence import resolve  # noqa: E402
 from seqgen.resolve.sources import load_sources  # noqa: E402
 
