@@ -53,7 +53,7 @@ def test_an_override_with_units_equals_the_same_number_in_si_and_moves_the_image
         assert np.array_equal(a.ticks, b.ticks) and np.array_equal(a.values, b.values)
 
     def image_time(res):
-        return next(a.t0 for a in res.shot.phys if a.kind == "image")
+        return res.shot.actions("image")[0].t0
 
     # the file says tof: 8 ms and the image block is placed `after: release + tof`: 12 ms - 8 ms later
     assert image_time(text) - image_time(base) == pytest.approx(4e-3, abs=1e-12)
