@@ -22,7 +22,7 @@ __version__ = "0.1.0"
 
 __all__ = [
     # run the pipeline
-    "preflight", "preflight_resolved", "Result", "load_sources", "resolve", "compile_shot",
+    "preflight", "preflight_resolved", "Result", "load_sources", "resolve_shot", "compile_shot",
     # what comes out of it
     "Shot", "Compiled", "DeviceTable", "Finding", "format_text", "has_errors",
     # finding codes and rules
@@ -31,7 +31,7 @@ __all__ = [
     "report_rows", "image_prediction", "cloud_at_image",
     # writing, pictures, scans, diff
     "write_build", "Writer", "available_writers", "timeline_figure", "diff_figure", "write_report",
-    "plan_scan", "run_scan", "diff", "diff_paths",
+    "plan_scan", "run_scan", "diff", "diff_paths", "DiffInputError",
     "CAUTION", "__version__",
 ]
 
@@ -113,14 +113,15 @@ def _compile():
 
 _WHERE = {
     "preflight": _pipeline, "preflight_resolved": _pipeline, "Result": _pipeline, "load_sources": _pipeline,
-    "resolve": _pipeline, "compile_shot": _compile,
+    "resolve_shot": _pipeline, "compile_shot": _compile,
     "Shot": _model, "Compiled": _model, "DeviceTable": _model,
     "Finding": _findings, "format_text": _findings, "has_errors": _findings,
     "Code": _codes, "explain": _codes, "RULES": _check, "Rule": _check, "rule": _check,
     "report_rows": _predict, "image_prediction": _predict, "cloud_at_image": _predict,
     "write_build": _build, "Writer": _writers, "available_writers": _writers,
     "timeline_figure": _plot, "diff_figure": _plot, "write_report": _report,
-    "plan_scan": _scan_plan, "run_scan": _scan_run, "diff_paths": _diff, "CAUTION": _caution,
+    "plan_scan": _scan_plan, "run_scan": _scan_run, "diff_paths": _diff, "DiffInputError": _diff,
+    "CAUTION": _caution,
 }
 
 
@@ -132,7 +133,9 @@ def __getattr__(name: str):
     loader = _WHERE.get(name)
     if loader is None:
         raise AttributeError(f"module 'seqgen' has no attribute {name!r}")
-    value = getattr(loader(), name)
+    # `resolve` is also the name of the resolve stage's package, which importing it binds here: the face's
+    # function is `resolve_shot`, so one name never means two things
+    value = getattr(loader(), {"resolve_shot": "resolve"}.get(name, name))
     globals()[name] = value  # later look-ups skip this function
     return value
 

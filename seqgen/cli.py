@@ -236,6 +236,7 @@ def cmd_plot(args) -> int:
             s = summary(r.findings)
             if s["error"]:
                 print(f"  {r.shot.file}: {s['error']} error finding(s) (run 'seqgen check' for details)")
+        print(_caution())
     return EXIT_FINDINGS if errors else EXIT_OK
 
 
@@ -424,6 +425,7 @@ def cmd_show(args) -> int:
     s = summary(res.findings)
     print(f"{len(rows)} writes, duration {fmt_si(res.shot.duration_s, 's')}; "
           f"{s['error']} error(s), {s['warning']} warning(s), {s['note']} note(s) (run 'seqgen check' for details)")
+    print(_caution())
     return _exit_code(res, args.file)
 
 
@@ -456,6 +458,8 @@ def cmd_diff(args) -> int:
     try:
         rep = diff_paths(*args.inputs)
     except DiffInputError as exc:
+        if args.json:  # a tool reading stdout still gets a document, as from check and build
+            print(json.dumps({"error": str(exc), "caution": CAUTION}, indent=2, sort_keys=True))
         return _cannot_run(exc)
     sys.stdout.write(to_json(rep) + "\n" if args.json else to_text(rep) + _caution() + "\n")
     return EXIT_OK if rep.identical else EXIT_FINDINGS

@@ -91,6 +91,7 @@ def sort_findings(findings: Iterable[Finding]) -> list[Finding]:
 
 
 def has_errors(findings: Iterable[Finding]) -> bool:
+    """True when an error finding is not accepted: a build is refused."""
     return any(f.severity == "error" and not f.accepted for f in findings)
 
 
@@ -107,6 +108,7 @@ def summary(findings: Iterable[Finding]) -> dict:
 
 
 def format_text(f: Finding) -> str:
+    """A finding as `seqgen check` prints it: `file:line:column: severity: code: [block] t=... message`, then the fix."""
     when = f" t={fmt_when(f.time_s)}" if f.time_s is not None else ""
     blk = f" [{f.block}]" if f.block else ""
     acc = f" (accepted: {f.accept_reason})" if f.accepted else ""

@@ -19,6 +19,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .check import RULES, Rule, apply_accepts, run_table_checks, run_timeline_checks
+from .check.rules import as_rules
 from .compile.tables import compile_shot
 from .findings import Finding, has_errors, sort_findings
 from .load.yamlsrc import LoadError
@@ -45,7 +46,7 @@ class Result:
 
 
 def preflight(path: str | Path, *, compile_tables: bool = True, overrides: dict | None = None,
-              sources: Sources | None = None, rules: tuple[Rule, ...] = RULES) -> Result:
+              sources: Sources | None = None, rules: tuple[Rule, ...] | None = None) -> Result:
     """Run every stage that can run; findings collect along the way.
 
     `overrides`: param name -> value replacing the param's (a text with units such as '3 mW', a number in SI
@@ -59,8 +60,9 @@ def preflight(path: str | Path, *, compile_tables: bool = True, overrides: dict 
 
 
 def preflight_resolved(src: Sources, shot: Shot | None, resolve_findings: list, *,
-                       compile_tables: bool = True, rules: tuple[Rule, ...] = RULES) -> Result:
+                       compile_tables: bool = True, rules: tuple[Rule, ...] | None = None) -> Result:
     """The stages after resolve, for a shot already resolved from `src` (a scan resolves each shot once)."""
+    rules = RULES if rules is None else as_rules(rules)  # a wrong argument fails here, before any work
     res = Result(sources=src)
     findings: list[Finding] = list(src.findings) + list(resolve_findings)
     if shot is None:

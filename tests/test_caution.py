@@ -35,3 +35,16 @@ def test_the_wording_defers_to_codes_procedures_and_licensed_practice():
     for words in ("no substitute", "interlocks", "laser-safety", "local codes and regulations", "procedures",
                   "licensed practice"):
         assert words in CAUTION
+
+
+def test_show_and_plot_text_end_with_the_caution(capsys, tmp_path):
+    main(["show", str(THERMO), "--physics"])
+    assert capsys.readouterr().out.rstrip("\n").splitlines()[-1] == f"caution: {CAUTION}"
+    assert main(["plot", str(THERMO), "-o", str(tmp_path / "t.svg")]) == 0
+    assert capsys.readouterr().out.rstrip("\n").splitlines()[-1] == f"caution: {CAUTION}"
+
+
+def test_diff_json_of_a_missing_input_is_a_document_with_the_caution(capsys, tmp_path):
+    assert main(["diff", str(tmp_path / "nope.yaml"), str(THERMO), "--json"]) == 2
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["caution"] == CAUTION and "nope.yaml" in doc["error"]

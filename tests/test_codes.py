@@ -77,3 +77,12 @@ def test_rendered_limits_in_docs_match_the_loader():
 
     assert f"{MAX_FILE_BYTES // (1024 * 1024)} MiB" in codes.FILE_TOO_LARGE.doc
     assert str(MAX_NODES) in codes.YAML_TOO_COMPLEX.doc and str(MAX_DEPTH) in codes.YAML_TOO_COMPLEX.doc
+
+
+def test_a_rule_reads_the_stage_its_code_declares():
+    from seqgen.check import rule
+
+    for r in RULES:
+        assert r.stage == r.code.stage, r.code
+    with pytest.raises(ValueError):
+        rule(codes.MEMORY_DEPTH, stage="timeline")

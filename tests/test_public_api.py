@@ -11,7 +11,7 @@ import pytest
 import seqgen
 
 ROOT = Path(__file__).resolve().parents[1]
-THERMO = "sequences/na23_thermometry.yaml"
+THERMO = str(ROOT / "sequences" / "na23_thermometry.yaml")
 
 
 def _readme_example() -> str:
@@ -67,3 +67,31 @@ def test_diff_is_the_package_and_the_comparison():
     report = seqgen.diff(THERMO, THERMO)
     assert report.identical
     assert seqgen.diff.diff_paths is seqgen.diff_paths
+
+
+def test_resolve_shot_stays_a_function_after_the_stages_are_imported():
+    seqgen.preflight(THERMO)  # imports the resolve package, which binds `seqgen.resolve` to it
+    src = seqgen.load_sources(THERMO)
+    shot, findings = seqgen.resolve_shot(src, {"tof": "12 ms"})
+    assert shot is not None and not seqgen.has_errors(findings)
+
+
+def test_every_public_callable_has_a_docstring():
+    for name in seqgen.__all__:
+        value = getattr(seqgen, name)
+        if callable(value) and not isinstance(value, type(seqgen)):
+            assert (value.__doc__ or "").strip(), name
+
+
+def test_rules_argument_is_checked_and_a_subset_runs_only_those_codes():
+    with pytest.raises(TypeError, match="Rule"):
+        seqgen.preflight(THERMO, rules=["physics.pulse-detuned"])
+    res = seqgen.preflight(str(ROOT / "sequences" / "faults" / "pulse_detuned.yaml"),
+                           rules=[r for r in seqgen.RULES if r.code == "physics.pulse-detuned"])
+    assert {f.code for f in res.findings if f.severity != "note"} == {"physics.pulse-detuned"}
+    assert seqgen.preflight(THERMO, rules=None).ok
+
+
+def test_explain_all_and_unknown():
+    assert "physics.pulse-detuned" in seqgen.explain("all")
+    assert seqgen.explain("physics.pulse-detund") is None

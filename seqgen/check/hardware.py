@@ -9,7 +9,7 @@ from ..codes import (
     HARD_LIMIT, MEMORY_DEPTH, MIN_INTERVAL, OUTSIDE_CALIBRATION, OUT_OF_RANGE, PULSE_TOO_SHORT, RESOLUTION, SLEW,
 )
 from ..findings import make
-from ..textfmt import fmt_time
+from ..textfmt import fmt_si, fmt_time
 from .rules import rule
 
 
@@ -58,9 +58,10 @@ def hard_limits(shot):
         out = shot.rig.outputs[s.output]
         for v in _extremes(s):
             if out.hard_max is not None and v > out.hard_max or out.hard_min is not None and v < out.hard_min:
-                yield make(HARD_LIMIT, f"'{out.name}' would reach {v:.6g} {out.phys_unit}, beyond its hard limit "
-                           f"[{out.hard_min if out.hard_min is not None else '-inf'}, "
-                           f"{out.hard_max if out.hard_max is not None else 'inf'}] {out.phys_unit}", s.pos, block=s.block,
+                lo = fmt_si(out.hard_min, out.phys_unit) if out.hard_min is not None else "none"
+                hi = fmt_si(out.hard_max, out.phys_unit) if out.hard_max is not None else "none"
+                yield make(HARD_LIMIT, f"'{out.name}' would reach {fmt_si(v, out.phys_unit)}, beyond its hard limits "
+                           f"(min {lo}, max {hi})", s.pos, block=s.block,
                            time_s=s.t0, hint="reduce the value; hard limits are not to be raised without the lab's safety review")
                 break
 

@@ -12,7 +12,7 @@ from ..predict.cloud import focus_offset, image_prediction, view_reach
 from ..predict.species import species
 from ..predict.text import size_text, who, why_there
 from ..predict.traps import trap_ramps, trap_stage_prediction
-from ..textfmt import fmt_length, fmt_time
+from ..textfmt import fmt_length, fmt_temperature, fmt_time
 from ..values import value_at
 from .rules import rule
 
@@ -57,7 +57,7 @@ def shallow_trap(shot):
         eta = rep.eta
         if eta is not None and 0 < eta < shot.limits.min_eta:
             yield make(SHALLOW_TRAP, f"after the ramp of '{act.args['beam']}' the trap is only {eta:.3g} k_B T deep "
-                       f"for T = {shot.sample.temperature_k * 1e9:.4g} nK (limit {shot.limits.min_eta:g})", act.pos,
+                       f"for T = {fmt_temperature(shot.sample.temperature_k)} (limit {shot.limits.min_eta:g})", act.pos,
                        block=act.block, time_s=act.t1, hint="end at a higher power, or accept it if spilling is intended")
 
 

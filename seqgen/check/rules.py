@@ -29,10 +29,14 @@ class Rule:
         return self.func(*args)
 
 
-def rule(code: Code, *, stage: str = "timeline") -> Callable[[Callable], Rule]:
-    """Describe a rule function: the code it reports and what it reads (see `STAGES`)."""
+def rule(code: Code, *, stage: str | None = None) -> Callable[[Callable], Rule]:
+    """Describe a rule function: the code it reports and what it reads (see `STAGES`; by default the code's
+    own stage, and a stage that contradicts the code's is refused)."""
     if not isinstance(code, Code):
         raise TypeError(f"rule code must be a seqgen.codes value, not {code!r}")
+    stage = stage or code.stage
+    if stage != code.stage:
+        raise ValueError(f"rule for {code} reads stage {stage!r} but the code is declared for {code.stage!r}")
     if stage not in STAGES:
         raise ValueError(f"unknown rule stage {stage!r}; one of {STAGES}")
 
@@ -40,3 +44,12 @@ def rule(code: Code, *, stage: str = "timeline") -> Callable[[Callable], Rule]:
         return Rule(code, func, stage)
 
     return wrap
+
+
+def as_rules(rules) -> tuple[Rule, ...]:
+    """A caller's rules as a tuple of `Rule`s; anything else is refused with what to pass."""
+    rules = tuple(rules) if not isinstance(rules, (str, Rule)) else (rules,)
+    bad = [r for r in rules if not isinstance(r, Rule)]
+    if bad:
+        raise TypeError(f"rules must be seqgen.check.Rule values (e.g. a subset of seqgen.RULES), not {bad[0]!r}")
+    return rules

@@ -34,7 +34,11 @@ def lookup(slug: str) -> Code | None:
 
 
 def explain(slug: str) -> str | None:
-    code = ALL.get(slug)
+    """What a code means, its default severity, stage and source (as `seqgen explain CODE`); `"all"` lists every
+    code with its one-line summary; None for a slug that is no code (`close_codes` suggests near ones)."""
+    if slug == "all":
+        return "\n".join(f"{s:<36} {ALL[s].severity:<8} {summary_line(s)}" for s in sorted(ALL))
+    code = ALL.get(slug) if isinstance(slug, str) else None
     if code is None:
         return None
     return (f"{code.slug}  (default severity: {code.severity}; stage: {code.stage})\n\n{code.doc}\n\n"
