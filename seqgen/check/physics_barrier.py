@@ -34,11 +34,6 @@ def _each(shot):
 # Checks
 # --------------------------------------------------------------------------
 
-_SRC_SCATTER = ("optical dipole potential, Adv. At. Mol. Opt. Phys. 42, 95 (2000); 1D transmission by transfer "
-                "matrices checked against the rectangular and Poeschl-Teller closed forms (Quantum Mechanics: "
-                "Non-Relativistic Theory, 3rd ed., Pergamon (1977), section 25); Thomas-Fermi radius "
-                "(Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008))")
-
 
 @rule(BARRIER_TRANSMISSION, stage="physics")
 def barrier_transmission(shot):
@@ -54,11 +49,6 @@ def barrier_transmission(shot):
                          "mean_kinetic_energy_J": rep.E_mean, "velocity_m_s": rep.speed,
                          "velocity_spread_m_s": rep.sigma_v})
 
-
-_SRC_PASSAGE = ("uniform acceleration during the push, then free flight (textbook); Thomas-Fermi radius and "
-                "profile (Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008)); "
-                "thermal width sqrt(k_B T / (m omega^2)) by equipartition (textbook); the rig file's barrier "
-                "position and waist")
 
 
 @rule(CLOUD_OVERLAPS_BARRIER, stage="physics")
@@ -144,11 +134,6 @@ def not_tunnelling(shot):
                        f"is below the barrier top {fmt_energy(v0)}", act.pos, block=act.block, time_s=act.t0,
                        hint=f"lower the sheet power below {act.args['power'] * e / v0 * 1e3:.3g} mW or kick harder",
                        data={"E_J": e, "V0_J": v0})
-
-
-_SRC_DRIVE = ("modulated-beam Raman coupling via the vector light shift, Adv. At. Mol. Opt. Phys. 42, 95 (2000); "
-              "two-component scattering and Larmor clock, Sov. J. Nucl. Phys. 4, 182 (1967), Phys. Rev. B 27, 6178 (1983); "
-              "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)")
 
 
 

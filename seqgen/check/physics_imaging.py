@@ -10,9 +10,6 @@ from ..textfmt import fmt_freq, fmt_length, fmt_time
 from .rules import rule
 
 
-_SRC_PROBE = ("steady-state scattering rate and saturation intensity, Sodium D Line Data and the other alkali D-line "
-              "data compilations; first-order Doppler shift; photon recoil (textbook)")
-
 
 @rule(PROBE_DOPPLER, stage="physics")
 def probe_doppler(shot):

@@ -23,9 +23,6 @@ def _current_hint(rep, factor) -> str:
     return "raise the coil currents by at least x" + f"{factor:.3g}" + (f" ({', '.join(parts)})" if parts else "")
 
 
-_SRC_STATE = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); a static field has no maximum in free space, so "
-              "only low-field seekers are trapped (Phys. Rev. Lett. 51, 1336 (1983)) (from memory)")
-
 
 @rule(STATE_NOT_TRAPPABLE, stage="physics")
 def state_not_trappable(shot):
@@ -48,9 +45,6 @@ def state_not_trappable(shot):
                    hint=f"transfer the atoms to a low-field seeker first ({ok}), or hold them optically",
                    data={"moment_mu_b": mom / MU_B})
 
-
-_SRC_LOST = ("force = moment x gradient of |B|, standard gravity g_n (SI Brochure); levitation gradient m g / |mu|; "
-             "Ioffe-Pritchard field, Phys. Rev. Lett. 51, 1336 (1983)")
 
 
 @rule(MAGNETIC_TRAP_LOST, stage="physics")
@@ -82,10 +76,6 @@ def magnetic_trap_lost(shot):
                    f"{fmt_gauss_per_cm(need)} (m g_n / |moment|)", act.pos, block=act.block, time_s=rep.t_hold, hint=hint,
                    data={"support": support, "levitation_gradient_t_m": need})
 
-
-_SRC_MAJORANA = ("Majorana loss rate ~ hbar / (m l^2) for a cloud of size l = k_B T / (|mu| b') in a quadrupole "
-                 "trap, Phys. Rev. Lett. 74, 3352 (1995) (from memory); Larmor frequency against the trap and "
-                 "field-rotation rates x 10 (common practice, no source)")
 
 
 @rule(MAJORANA_LOSS, stage="physics")

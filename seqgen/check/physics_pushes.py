@@ -23,9 +23,6 @@ from .rules import rule
 PUSH_TOLERANCE = 0.10
 
 
-_SRC_PUSH = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); force = moment x field gradient and dv = F t / m "
-             "(textbook); photon recoil and steady-state scattering, Adv. At. Mol. Opt. Phys. 42, 95 (2000)")
-
 
 @rule(PUSH_VELOCITY, stage="physics")
 def push_velocity(shot):
@@ -103,9 +100,6 @@ def push_too_late(shot):
                              if not math.isinf(rep.arrival) else "the push gives no velocity"),
                        data={"arrival_s": rep.arrival, "barrier_end_s": b.t1})
 
-
-_SRC_SG = ("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m with moments from the Breit-Rabi "
-           "formula, Phys. Rev. 38, 2082 (1931)")
 
 
 @rule(EQUAL_MOMENTS, stage="physics")

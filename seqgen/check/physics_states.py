@@ -21,9 +21,6 @@ TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % o
 TRANSFER_FLOOR = 0.01  # ... but at least by 0.01 in population, so that near-zero intended transfers do not warn on noise
 
 
-_SRC_AREA = ("pulse area theorem, Phys. Rev. 183, 457 (1969); the rig file's drive calibration (rabi_per_amplitude) "
-             "and the amplitude envelope as compiled")
-
 
 @rule(PULSE_ANGLE, stage="physics")
 def pulse_angle(shot):
@@ -44,9 +41,6 @@ def pulse_angle(shot):
                        hint=f"use duration {fmt_time(rep.duration * k)}{amp_hint}, or fix the drive's rabi_per_amplitude",
                        data={"area_rad": rep.area, "angle_rad": rep.angle})
 
-
-_SRC_DETUNED = ("Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); Rabi formula, Phys. Rev. 51, 652 (1937); Bloch "
-                "propagation with a Magnus integrator, Phys. Rep. 470, 151 (2009)")
 
 
 @rule(PULSE_DETUNED, stage="physics")
@@ -90,9 +84,6 @@ def sweep_not_adiabatic(shot):
                        data={"lz_transfer": rep.lz_transfer, "rate_hz_s": rep.rate_hz_s})
 
 
-_SRC_MOD = ("modulated-beam Raman coupling through the vector light shift and differential light shift, "
-            "Adv. At. Mol. Opt. Phys. 42, 95 (2000); Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)")
-
 
 @rule(MODULATION_OFF_RESONANCE, stage="physics")
 def modulation_off_resonance(shot):
@@ -129,11 +120,6 @@ def modulation_unreachable(shot):
                        hint="modulate through a synth channel of the rig (kind: synth)",
                        data={"frequency_hz": f, "update_rate_hz": rate})
 
-
-_SRC_UNPOP = ("populations followed from the sample state through clock pulses (Rabi formula, Phys. Rev. 51, 652 "
-              "(1937), Bloch propagation as for physics.pulse-detuned) and sweeps (Landau-Zener formula, Proc. R. Soc. "
-              "A 137, 696 (1932)); a two-level drive acts only on atoms in one of its two states (common practice, "
-              "no source)")
 
 
 @rule(TRANSITION_UNPOPULATED, stage="physics")

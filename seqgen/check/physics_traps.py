@@ -85,11 +85,6 @@ def _imaging_predictions(shot, needs: str):
             yield img, setup, pred
 
 
-_SRC_VIEW = ("free fall under standard gravity (SI Brochure); condensate expansion Phys. Rev. Lett. 77, 5315 (1996); "
-             "ballistic thermal expansion (textbook); Stern-Gerlach and push displacements with moments from the "
-             "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931), force = moment x grad|B|, uniform acceleration then "
-             "free flight (textbook)")
-
 
 @rule(CLOUD_OUTSIDE_VIEW, stage="physics")
 def cloud_outside_view(shot):
