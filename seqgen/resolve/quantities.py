@@ -4,12 +4,13 @@ from __future__ import annotations
 
 import difflib
 import math
+from dataclasses import dataclass, replace
 
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from .expr import ExprError, evaluate, is_plain_name, names_in
 from .units import DIMENSIONLESS, Qty, UnitError, close_units, describe_kind, dims_of, kind_of, kind_units, parse_simple, \
-    same_dims, split_quantity, unit_name, usual_unit
+    same_dims, split_quantity, suggest_unit, unit_name
 from ..codes import (
     BAD_EXPRESSION, DIVISION_BY_ZERO, MISSING_UNIT, NEGATIVE_DURATION, NON_FINITE, OVERFLOW, UNDEFINED_PARAM,
     UNKNOWN_UNIT, WRONG_DIMENSION,
@@ -88,8 +89,10 @@ def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
 
 
 def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positive: bool = False,
-             nonnegative: bool = False, what: str = "") -> float:
-    """Value in SI base units, checked against the dimension of unit text `expect`."""
+             nonnegative: bool = False, what: str = "", units: tuple = (), span: tuple | None = None) -> float:
+    """Value in SI base units, checked against the dimension of unit text `expect`. For the fix of a value
+    without a unit: `units`, the units this place is written in (a channel's calibration unit), and `span`,
+    (lo, hi) in SI of a value that fits (a channel's range)."""
     q = to_qty(raw, doc, path, env)
     want = dims_of(expect) if expect else DIMENSIONLESS
     value = q.value
@@ -101,7 +104,8 @@ def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positiv
     if not same_dims(q.dims, want):
         missing = same_dims(q.dims, DIMENSIONLESS) and q.value != 0
         if missing or not (same_dims(q.dims, DIMENSIONLESS) and q.value == 0):
-            raise Bad(_dimension_finding(raw, q, want, expect, label, pos, env))
+            fit = Fit(tuple(units), key_examples(doc, path, want), span)
+            raise Bad(_dimension_finding(raw, q, want, expect, label, pos, env, fit))
     if abs(q.value) > ABSURD * max(1.0, _scale(expect)):
         raise Bad(make(OVERFLOW, f"{label}: {raw!r} is an absurd magnitude", pos, hint="check for a typo in the exponent"))
     if positive and q.value <= 0:
@@ -123,6 +127,51 @@ def _scale(expect: str) -> float:
 
 
 # ----------------------------------------------------------------------------- messages a new user can act on
+
+
+@dataclass(frozen=True)
+class Fit:
+    """What tells the unit a value should have been written in: `units`, those of the place (a channel's
+    calibration unit); `seen`, (unit, SI value) of the same key elsewhere in the file; `span`, (lo, hi) in SI
+    of a value that fits the place."""
+
+    units: tuple = ()
+    seen: tuple = ()
+    span: tuple | None = None
+
+
+def key_examples(doc: Document, path: tuple, want) -> tuple:
+    """(unit, SI value) of every quantity of dimension `want` written with a unit under the same key as the
+    last name of `path` anywhere in `doc` (the waists of the other beams for a beam's waist), in file order."""
+    key = next((p for p in reversed(path) if isinstance(p, str)), None)
+    if key is None or not isinstance(doc.data, dict):
+        return ()
+    out = []
+
+    def note(value):
+        if isinstance(value, dict):  # a param written {value: ..., min: ...}
+            value = value.get("value")
+        for v in value if isinstance(value, list) else (value,):
+            split = split_quantity(v) if isinstance(v, str) else None
+            if not split or not split[1]:
+                continue
+            try:
+                q = parse_simple(v)
+            except UnitError:
+                continue
+            if q is not None and q.value and same_dims(q.dims, want):
+                out.append((split[1], q.value))
+
+    stack = [doc.data]
+    while stack:
+        node = stack.pop()
+        if isinstance(node, dict):
+            if key in node:
+                note(node[key])
+            stack.extend(reversed([v for v in node.values() if isinstance(v, (dict, list))]))
+        elif isinstance(node, list):
+            stack.extend(reversed([v for v in node if isinstance(v, (dict, list))]))
+    return tuple(out)
 
 
 def _shown(raw) -> str:
@@ -160,7 +209,7 @@ def _expected(want, expect: str) -> str:
     return f"{kind} ({', '.join(units)})" if units else kind
 
 
-def _dimension_finding(raw, q: Qty, want, expect: str, label: str, pos, env) -> Finding:
+def _dimension_finding(raw, q: Qty, want, expect: str, label: str, pos, env, fit: Fit = Fit()) -> Finding:
     """schema.missing-unit / schema.wrong-dimension for a value used as `label`, in the user's words: what
     the value is, what the place expects, and a fix to write. A param named as the value (`duration:
     kick_time`) is reported at its definition, with the place it is used."""
@@ -169,25 +218,28 @@ def _dimension_finding(raw, q: Qty, want, expect: str, label: str, pos, env) -> 
     if isinstance(raw, str) and text in defs:
         draw, ddoc, dpath = defs[text]
         where = f"line {pos.line}" if ddoc.file == pos.file else f"{pos.file}:{pos.line}"
+        fit = replace(fit, seen=key_examples(ddoc, ("params", text), want) + fit.seen)
         return _dimension_words(draw, q, want, expect, f"its use as {label} at {where}", ddoc.pos(dpath),
-                                name=text, defs=defs)
-    return _dimension_words(raw, q, want, expect, label, pos, defs=defs)
+                                name=text, defs=defs, fit=fit)
+    return _dimension_words(raw, q, want, expect, label, pos, defs=defs, fit=fit)
 
 
 def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: str | None = None,
-                     defs: dict | None = None) -> Finding:
+                     defs: dict | None = None, fit: Fit = Fit()) -> Finding:
     """The finding for value `raw` (its Qty `q`) where `want` is expected; `name`: the param it defines (the
-    finding then sits at the definition and `label` says where it is used)."""
+    finding then sits at the definition and `label` says where it is used). The unit a fix proposes comes
+    from `fit` (the place's unit, the same key's units in the file), else it is the dimension's usual one."""
     text = _shown(raw)
     kind = kind_of(want)
-    usual = usual_unit(want, expect)
+    split = split_quantity(text) if isinstance(raw, str) else (text, None)
+    number = _number(split[0]) if split is not None else None
+    usual = suggest_unit(want, number, fit.units, fit.seen, fit.span, expect)
     others = [u for u in kind_units(want) if u != usual][:3]
     more = f" (or another {kind} unit: {', '.join(others)})" if kind and others else ""
 
     def quoted(value: str) -> str:  # what to write, as it would stand in the file
         return f"'{name}: {value}'" if name else f"'{value}'"
 
-    split = split_quantity(text) if isinstance(raw, str) else (text, None)
     plain = split is not None and split[1] is None  # a bare number
     shown = text if split is not None else f"'{text}'"
     if same_dims(q.dims, DIMENSIONLESS):  # a bare number (or an expression of bare numbers)
@@ -201,13 +253,14 @@ def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: s
         bare = [n for n in sorted(defs or {}) if n in used and _is_bare_number(defs[n][0])]
         if bare:
             raw_b, doc_b, path_b = defs[bare[0]]
+            unit_b = suggest_unit(want, _number(_shown(raw_b)), fit.units, fit.seen, fit.span, expect)
             hint = (f"give '{bare[0]}' a unit where it is defined (line {doc_b.pos(path_b).line}), e.g. "
-                    f"'{bare[0]}: {_shown(raw_b)} {usual}'")
+                    f"'{bare[0]}: {_shown(raw_b)} {unit_b}'")
         else:
             hint = f"make it {_expected(want, expect)}"
         return make(MISSING_UNIT, message, pos, hint=hint)
     unit = split[1] if split else None
-    close = close_units(unit, want) if unit else []
+    close = close_units(unit, want, number=number, seen=fit.seen) if unit else []
     expected = describe_kind(want) if unit else _expected(want, expect)
     what_it_is = _what_it_is(text, q.dims)
     if name:
@@ -224,6 +277,14 @@ def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: s
     else:
         hint = f"give {_expected(want, expect)}"
     return make(WRONG_DIMENSION, message, pos, hint=hint)
+
+
+def _number(text: str) -> float | None:
+    try:
+        value = float(text)
+    except (OverflowError, ValueError):
+        return None
+    return value if math.isfinite(value) else None
 
 
 def names_of(text: str) -> set:

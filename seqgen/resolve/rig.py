@@ -100,10 +100,11 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         cal = common.pop("calibration")
         # physical values are SI inside; keep the SI display unit (W, not the mW of the calibration text)
         phys_unit = display_unit(cal.dims) if cal else unit
+        fit = {"units": (cal.quantity,)} if cal else {"units": (unit,)}  # the fix for a value without a unit
         safe_raw = c.get("safe", 0)
         safe = 0.0
         if "safe" in c:
-            s = q(base + ("safe",), phys_unit)
+            s = q(base + ("safe",), phys_unit, **fit)
             safe = s if s is not None else 0.0
         elif c["kind"] == "analog" and cal is None:
             safe = min(max(0.0, lo), hi)
@@ -112,8 +113,8 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
                                dims_of(phys_unit) if phys_unit else dims_of(""), calibration=cal, pos=pos, **common)
         hl = c.get("hard_limit")
         if hl:
-            hmin = opt(base + ("hard_limit", "min"), phys_unit)
-            hmax = opt(base + ("hard_limit", "max"), phys_unit)
+            hmin = opt(base + ("hard_limit", "min"), phys_unit, **fit)
+            hmax = opt(base + ("hard_limit", "max"), phys_unit, **fit)
             outputs[name] = _replace(outputs[name], hard_min=hmin, hard_max=hmax)
         channels[name] = (name,)
 
@@ -228,7 +229,7 @@ def _replace(o, **kw):
 
 
 def _range(spec, path, unit, q, doc, findings):
-    lo = q(path + ("range", 0), unit)
+    lo = q(path + ("range", 0), unit)  # a range's fix takes the unit the other ranges are written in
     hi = q(path + ("range", 1), unit)
     if lo is None or hi is None:
         return None
@@ -265,8 +266,8 @@ def _common(c, base, q, opt, doc, findings):
             pts = calspec["table"]
             xs, ys = [], []
             for i in range(len(pts)):
-                x = q(base + ("calibration", "table", i, 0), phys)
-                y = q(base + ("calibration", "table", i, 1), out_unit)
+                x = q(base + ("calibration", "table", i, 0), phys, units=(phys,))
+                y = q(base + ("calibration", "table", i, 1), out_unit, units=(out_unit,))
                 if x is None or y is None:
                     return None
                 xs.append(x)
