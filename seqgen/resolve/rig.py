@@ -119,7 +119,8 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         channels[name] = (name,)
 
     def ref(kind, owner, key, value, path):
-        if value not in channels:
+        # a channel written under channels: but refused (bad device, calibration, range) has its finding already
+        if value not in channels and value not in (data.get("channels") or {}):
             close = difflib.get_close_matches(value, list(channels), n=1)
             findings.append(make(UNKNOWN_NAME, f"{kind} '{owner}' names unknown channel '{value}'", doc.pos(path),
                                  hint=f"did you mean '{close[0]}'?" if close else "define the channel under channels:"))
