@@ -22,10 +22,10 @@ from ..codes import (
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from ..model import Param, Sample
-from .expr import ExprError, names_in
-from .quantities import Bad, Env, _dimension_words, close_hint, quantity, to_qty
+from .expr import UNDEFINED_HINT, ExprError, names_in
+from .quantities import Bad, Env, Fit, _dimension_words, close_hint, quantity, to_qty
 from .sources import Sources
-from .units import DIMENSIONLESS, Qty, UnitError, display_unit, format_qty, parse_simple, same_dims
+from .units import DIMENSIONLESS, Qty, UnitError, display_unit, format_qty, parse_simple, same_dims, split_quantity
 
 
 def param_entries(src: Sources) -> tuple[dict, dict]:
@@ -155,7 +155,7 @@ def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bou
             try:
                 q = to_qty(value, d, path, env)
                 if name in given:
-                    q, text = _override(name, given[name], q, d, path, env)
+                    q, text = _override(name, given[name], q, d, path, env, value)
             except Bad as bad:
                 findings.append(bad.finding)
                 ok = False
@@ -183,9 +183,10 @@ def _as_override(f: Finding, name: str) -> Finding:
     return replace(f, message=f"override of param '{name}': {f.message}")
 
 
-def _override(name: str, v, written: Qty, doc: Document, path: tuple, env: dict) -> tuple[Qty, str]:
+def _override(name: str, v, written: Qty, doc: Document, path: tuple, env: dict, raw=None) -> tuple[Qty, str]:
     """(value, text) of param `name` overridden by `v` (a text with units or an SI number); `written` is the
-    param's value as the file defines it, which gives the dimension. Raises Bad with the finding."""
+    param's value as the file defines it (`raw` as written there), which gives the dimension and the unit of
+    a fix. Raises Bad with the finding."""
     if not isinstance(v, str):  # a plain number: SI, in the param's dimension
         try:
             value = float(v)
@@ -200,14 +201,31 @@ def _override(name: str, v, written: Qty, doc: Document, path: tuple, env: dict)
     try:
         q = to_qty(v, doc, path, env)  # read as a value in the file is, with the same findings
     except Bad as bad:
-        raise Bad(_as_override(bad.finding, name)) from None
+        f = bad.finding
+        if f.code == UNDEFINED_PARAM and f.hint == UNDEFINED_HINT:  # 'twelve': a value was meant, not a param
+            f = replace(f, hint=f"give a text with units, e.g. '{_example(written, raw)}'")
+        raise Bad(_as_override(f, name)) from None
     if not same_dims(q.dims, written.dims):
         if same_dims(q.dims, DIMENSIONLESS) and q.value == 0:  # a bare 0 fits every dimension, as in the file
             q = Qty(0.0, written.dims)
         else:
             raise Bad(_dimension_words(v, q, written.dims, display_unit(written.dims),
-                                       f"override of param '{name}'", doc.pos(path)))
+                                       f"override of param '{name}'", doc.pos(path),
+                                       fit=Fit(units=_written_unit(raw))))
     return q, v.strip()
+
+
+def _written_unit(raw) -> tuple:
+    """(unit,) of a param written as a number with a unit ('8 ms' -> ('ms',)), else ()."""
+    split = split_quantity(raw.strip()) if isinstance(raw, str) else None
+    return (split[1],) if split and split[1] else ()
+
+
+def _example(written: Qty, raw) -> str:
+    """A value to write for a param: as the file writes it ('8 ms'), else its value in words ('8 ms')."""
+    if isinstance(raw, str) and _written_unit(raw):
+        return raw.strip()
+    return format_qty(written)
 
 
 def _plain_quantity(text: str) -> bool:
