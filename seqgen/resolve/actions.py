@@ -86,16 +86,25 @@ class LowerCtx:
 
 def fit_of(out) -> dict:
     """What a fix for a value of output `out` written without a unit goes by: the calibration's unit (the one
-    its limits are written in), or, uncalibrated, the output's range."""
-    if out.calibration is not None:
-        return {"units": (out.calibration.quantity,)}
+    its limits are written in) and its hard limits, or, uncalibrated, the output's range."""
     if out.kind == "digital":
         return {}
-    return {"units": (), "span": (out.lo, out.hi)}
+    if out.calibration is None:
+        return {"span": (out.lo, out.hi)}
+    fit = {"units": (out.calibration.quantity,)}
+    if out.hard_min is not None or out.hard_max is not None:
+        fit["span"] = (-math.inf if out.hard_min is None else out.hard_min,
+                       math.inf if out.hard_max is None else out.hard_max)
+    return fit
 
 
 def _beam_fit(ctx, beam) -> dict:
     out = ctx.rig.outputs.get(beam.power_channel)
+    return fit_of(out) if out is not None else {}
+
+
+def _freq_fit(ctx, channel) -> dict:
+    out = ctx.rig.outputs.get(f"{channel}.freq")  # a synth's frequency: its range tells the unit meant
     return fit_of(out) if out is not None else {}
 
 
@@ -265,7 +274,8 @@ def lower_barrier(ctx, spec, t0, path):
     if mod:
         mpath = path + ("modulation",)
         if "frequency" in mod:
-            args["mod_frequency"] = ctx.q(mod, "frequency", mpath, "Hz", positive=True)
+            args["mod_frequency"] = ctx.q(mod, "frequency", mpath, "Hz", positive=True,
+                                          **_freq_fit(ctx, mod.get("channel")))
         if "depth" in mod:
             args["mod_depth"] = ctx.q(mod, "depth", mpath, "")
         if mod.get("channel"):
@@ -294,7 +304,7 @@ def lower_clock_pulse(ctx, spec, t0, path):
     if "angle" in spec:
         args["angle"] = ctx.q(spec, "angle", path, "")
     if "frequency" in spec:
-        args["frequency"] = ctx.q(spec, "frequency", path, "Hz", positive=True)
+        args["frequency"] = ctx.q(spec, "frequency", path, "Hz", positive=True, **_freq_fit(ctx, ch))
         fout = ctx.rig.outputs.get(f"{ch}.freq")
         if fout is not None:
             ctx.seg(fout, "set", t0, t0, None, args["frequency"], "clock_pulse", path + ("frequency",))

@@ -17,7 +17,7 @@ from dataclasses import replace
 import networkx as nx
 
 from ..codes import (
-    BAD_EXPRESSION, BAD_SAMPLE, NON_FINITE, OVERFLOW, PARAM_CYCLE, PARAM_OUT_OF_RANGE, UNDEFINED_PARAM,
+    BAD_EXPRESSION, BAD_SAMPLE, MISSING_UNIT, NON_FINITE, OVERFLOW, PARAM_CYCLE, PARAM_OUT_OF_RANGE, UNDEFINED_PARAM,
 )
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
@@ -25,7 +25,8 @@ from ..model import Param, Sample
 from .expr import UNDEFINED_HINT, ExprError, names_in
 from .quantities import Bad, Env, Fit, _dimension_words, close_hint, quantity, to_qty
 from .sources import Sources
-from .units import DIMENSIONLESS, Qty, UnitError, display_unit, format_qty, parse_simple, same_dims, split_quantity
+from .units import DIMENSIONLESS, Qty, UnitError, describe_kind, display_unit, format_qty, parse_simple, same_dims, \
+    split_quantity, suggest_unit
 
 
 def param_entries(src: Sources) -> tuple[dict, dict]:
@@ -215,6 +216,20 @@ def _override(name: str, v, written: Qty, doc: Document, path: tuple, env: dict,
     return q, v.strip()
 
 
+def _is_bare(raw) -> bool:
+    return isinstance(raw, (int, float)) and not isinstance(raw, bool) and raw != 0
+
+
+def _value_without_unit(name: str, written, bound: Qty, key: str, braw, entry: tuple) -> Finding:
+    """schema.missing-unit for param `name` written as a bare number beside a `key:` bound with a unit."""
+    raw, doc, path = entry
+    where = path + (("value",) if isinstance(raw, dict) else ())
+    unit = suggest_unit(bound.dims, float(written), _written_unit(braw))
+    value = f"{written} {unit}" if isinstance(raw, dict) else f"{name}: {written} {unit}"
+    return make(MISSING_UNIT, f"param '{name}' is {written} with no unit, but its {key}: is {describe_kind(bound.dims)}",
+                doc.pos(where), hint=f"write '{value}'")
+
+
 def _written_unit(raw) -> tuple:
     """(unit,) of a param written as a number with a unit ('8 ms' -> ('ms',)), else ()."""
     split = split_quantity(raw.strip()) if isinstance(raw, str) else None
@@ -257,9 +272,13 @@ def _out_of_bounds(name: str, q: Qty, written, spec: dict, entry: tuple, how: st
         if not same_dims(b.dims, q.dims):
             if same_dims(b.dims, DIMENSIONLESS) and b.value == 0:  # a bare 0 fits every dimension
                 b = Qty(0.0, q.dims)
+            elif how == "file" and _is_bare(written) and same_dims(q.dims, DIMENSIONLESS):
+                # '{value: 14, min: 1 ms}': the value lacks its unit, not the bound
+                return [_value_without_unit(name, written, b, key, braw, entry)]
             else:
+                value = entry[0]["value"] if isinstance(entry[0], dict) else entry[0]
                 out.append(_dimension_words(braw, b, q.dims, display_unit(q.dims), f"{key}: of param '{name}'",
-                                            bdoc.pos(bpath)))
+                                            bdoc.pos(bpath), fit=Fit(units=_written_unit(value))))
                 continue
         lim[key] = b.value
     if out:

@@ -295,29 +295,32 @@ def _center(seen) -> float | None:
 
 
 def suggest_unit(dims: Dims, number: float | None = None, prefer=(), seen=(), span=None, fallback: str = "") -> str:
-    """The unit to write after a bare `number` where a quantity of dimension `dims` is expected: the first of
-    `prefer` of that dimension (a channel's calibration unit); else one that puts the value inside `span`
-    (lo, hi in SI; a channel's range); else, of the units `seen` for the same key ((unit, SI value) pairs), the
-    one that puts the value nearest to them; else the dimension's usual unit."""
+    """The unit to write after a bare `number` where a quantity of dimension `dims` is expected. Candidates, in
+    this order: `prefer` (a channel's calibration unit), the units `seen` for the same key ((unit, SI value)
+    pairs; the one that puts the value nearest to them first), the dimension's usual units. With `span` (lo, hi
+    in SI: a channel's limits or range) the first candidate that puts the value inside it, else the first."""
+    cands = []
     for u in prefer:
         try:
             if u and same_dims(dims_of(u), dims):
-                return u
+                cands.append(u)
         except UnitError:
             continue
-    if number:
-        if span is not None:
-            lo, hi = span
-            inside = [u for u in _unit_pool(dims) if lo <= number * unit_factor(u)[0] <= hi]
-            if inside:
-                return inside[0]
-        center = _center(seen)
-        if center is not None:
-            units = list(dict.fromkeys(u for u, _ in seen))
-            return min(units, key=lambda u: (round(_log_distance(number, u, center), 9), units.index(u)))
-    if seen:
-        return seen[0][0]
-    return usual_unit(dims, fallback)
+    units = list(dict.fromkeys(u for u, _ in seen))
+    center = _center(seen) if number else None
+    if center is not None:
+        units.sort(key=lambda u: round(_log_distance(number, u, center), 9))
+    cands += units
+    cands += [u for u in kind_units(dims) if u not in cands] or [usual_unit(dims, fallback)]
+    if number and span is not None:
+        lo, hi = span
+        for u in cands:
+            try:
+                if lo <= number * unit_factor(u)[0] <= hi:
+                    return u
+            except UnitError:  # pragma: no cover - candidates are known units
+                continue
+    return cands[0]
 
 
 def close_units(unit_text: str, dims: Dims | None = None, n: int = 3, number: float | None = None,
