@@ -191,7 +191,8 @@ def _errors_of(main_files):
     return [f for path in main_files for f in errors(preflight(path).findings)]
 
 
-@pytest.mark.parametrize("rel, main_files", [(THERMO, (THERMO,)), (SCATTER, (SCATTER,)), (PREP, (SCATTER,))])
+@pytest.mark.parametrize("rel, main_files", [(THERMO, (THERMO,)), (SCATTER, (SCATTER,)), (PREP, (SCATTER,)),
+                                             (RIG, (THERMO,))])
 def test_every_quantity_of_the_demos_written_without_its_unit_is_fixed_by_the_hint(project, rel, main_files):
     """Each '<number> <unit>' value of a demo file, written as its bare number, gives a missing-unit finding
     whose fix, applied, leaves no error (the scan of the scatter demo is read at its params' values)."""
@@ -213,7 +214,6 @@ def test_every_quantity_of_the_demos_written_without_its_unit_is_fixed_by_the_hi
             failures.append((i + 1, lines[i].strip(), [(f.code, f.message) for f in found]))
             continue
         value = apply_fix(found[0])
-        print(i + 1, number, "->", value)
         left = _errors_of(main_files)
         if left:
             failures.append((i + 1, lines[i].strip(), value, [(f.code, f.message) for f in left]))

@@ -56,7 +56,19 @@ def resolve_params(src: Sources, overrides: dict | None, findings: list):
     fixed, given = _sort_overrides(overrides, entries, src.main, findings)
     if fixed is None:
         return None, None
-    return _resolve_params(entries, fixed, given, findings, bounds)
+    return _resolve_params(entries, fixed, given, findings, bounds, _all_written(src))
+
+
+def _all_written(src: Sources) -> dict:
+    """name -> the values of every definition of the param, in every file (for the unit of a fix)."""
+    out: dict = {}
+    for d, entry, _, _ in src.used:
+        for params in ((d.data or {}).get("params") or {}, entry.get("params") or {}):
+            for name, raw in params.items():
+                out.setdefault(name, []).append(raw)
+    for name, raw in ((src.main.data or {}).get("params") or {}).items():
+        out.setdefault(name, []).append(raw)
+    return out
 
 
 def _sort_overrides(overrides: dict, entries: dict, main: Document, findings: list):
@@ -88,7 +100,7 @@ def _note_bounds(bounds: dict, name: str, raw, doc: Document, path: tuple) -> No
                 bounds.setdefault(name, {})[key] = (raw[key], doc, path + (key,))
 
 
-def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bounds: dict):
+def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bounds: dict, written: dict | None = None):
     """`fixed`: name -> Qty taken as it is (its written value is not read); `given`: name -> text or SI number,
     read once the params it names (and those of the written value, which gives its dimension) are known."""
     graph = nx.DiGraph()
@@ -144,7 +156,7 @@ def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bou
         findings.append(make(PARAM_CYCLE, "params depend on each other in a cycle: " + " -> ".join(members + [members[0]]),
                              d.pos(path), hint="give one of them a plain value"))
         return None, None
-    env = Env(defs=texts)  # name -> Qty; knows each param's definition, for findings about its value
+    env = Env(defs=texts, written=written)  # name -> Qty; knows each param's definition, for findings about its value
     params = []
     ok = True
     for name in order:

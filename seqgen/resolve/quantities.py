@@ -29,13 +29,16 @@ class Bad(Exception):
 
 class Env(dict):
     """Resolved params, name -> Qty, that also knows where each param is defined: `defs` maps a name to
-    (raw value as written, Document, path), so a finding about a param's value points at its definition."""
+    (raw value as written, Document, path), so a finding about a param's value points at its definition;
+    `written` maps a name to the values of all its definitions (those another file's replace too), whose
+    units tell the fix for one written without a unit."""
 
-    __slots__ = ("defs",)
+    __slots__ = ("defs", "written")
 
-    def __init__(self, *args, defs: dict | None = None, **kwargs):
+    def __init__(self, *args, defs: dict | None = None, written: dict | None = None, **kwargs):
         super().__init__(*args, **kwargs)
         self.defs = defs or {}
+        self.written = written or {}
 
 
 _NOT_FINITE_WORDS = frozenset(("nan", ".nan", "inf", ".inf", "-inf", "-.inf", "infinity"))
@@ -140,38 +143,61 @@ class Fit:
     span: tuple | None = None
 
 
+def seen_in(raw, want) -> tuple | None:
+    """(unit, SI value) of `raw` if it is a nonzero '<number> <unit>' of dimension `want`, else None."""
+    if isinstance(raw, dict):  # a param written {value: ..., min: ...}
+        raw = raw.get("value")
+    split = split_quantity(raw) if isinstance(raw, str) else None
+    if not split or not split[1]:
+        return None
+    try:
+        q = parse_simple(raw)
+    except UnitError:
+        return None
+    return (split[1], q.value) if q is not None and q.value and same_dims(q.dims, want) else None
+
+
 def key_examples(doc: Document, path: tuple, want) -> tuple:
     """(unit, SI value) of every quantity of dimension `want` written with a unit under the same key as the
-    last name of `path` anywhere in `doc` (the waists of the other beams for a beam's waist), in file order."""
+    last name of `path` anywhere in `doc` (the waists of the other beams for a beam's waist), in file order;
+    if there is none, of those beside it in its mapping (`fall:` for `rise:`), else of those as deep in the
+    same section (`path[0]`: the latencies of the other channels for a channel's min_pulse)."""
     key = next((p for p in reversed(path) if isinstance(p, str)), None)
     if key is None or not isinstance(doc.data, dict):
         return ()
-    out = []
-
-    def note(value):
-        if isinstance(value, dict):  # a param written {value: ..., min: ...}
-            value = value.get("value")
-        for v in value if isinstance(value, list) else (value,):
-            split = split_quantity(v) if isinstance(v, str) else None
-            if not split or not split[1]:
-                continue
-            try:
-                q = parse_simple(v)
-            except UnitError:
-                continue
-            if q is not None and q.value and same_dims(q.dims, want):
-                out.append((split[1], q.value))
-
-    stack = [doc.data]
+    same_key, section = [], []
+    stack = [(doc.data, None, 0)]
     while stack:
-        node = stack.pop()
-        if isinstance(node, dict):
-            if key in node:
-                note(node[key])
-            stack.extend(reversed([v for v in node.values() if isinstance(v, (dict, list))]))
-        elif isinstance(node, list):
-            stack.extend(reversed([v for v in node if isinstance(v, (dict, list))]))
-    return tuple(out)
+        node, top, depth = stack.pop()
+        items = node.items() if isinstance(node, dict) else enumerate(node)
+        children = []
+        for k, v in items:
+            top_k = k if top is None else top
+            if isinstance(v, (dict, list)):
+                children.append((v, top_k, depth + 1))
+                if k == key and isinstance(node, dict):  # a param {value: ..., min: ...}, or a list of values
+                    same_key += [h for h in map(lambda x: seen_in(x, want), v if isinstance(v, list) else (v,)) if h]
+                continue
+            if k == key and isinstance(node, dict):
+                hit = seen_in(v, want)
+                if hit:
+                    same_key.append(hit)
+            elif top_k == path[0] and depth + 1 == len(path):  # as deep in the same section: another entry's
+                hit = seen_in(v, want)
+                if hit:
+                    section.append(hit)
+        stack.extend(reversed(children))
+    if same_key or not section:
+        return tuple(same_key)
+    parent = doc.data
+    for p in path[:-1]:  # the mapping the value stands in: its siblings ('rise: ..' beside 'fall: 2.1 ms')
+        try:
+            parent = parent[p]
+        except (KeyError, IndexError, TypeError):
+            parent = None
+            break
+    siblings = [seen_in(v, want) for k, v in parent.items() if k != path[-1]] if isinstance(parent, dict) else []
+    return tuple([h for h in siblings if h] or section)
 
 
 def _shown(raw) -> str:
@@ -218,7 +244,8 @@ def _dimension_finding(raw, q: Qty, want, expect: str, label: str, pos, env, fit
     if isinstance(raw, str) and text in defs:
         draw, ddoc, dpath = defs[text]
         where = f"line {pos.line}" if ddoc.file == pos.file else f"{pos.file}:{pos.line}"
-        fit = replace(fit, seen=key_examples(ddoc, ("params", text), want) + fit.seen)
+        others = tuple(seen_in(raw_w, want) for raw_w in getattr(env, "written", {}).get(text, ()))
+        fit = replace(fit, seen=tuple(x for x in others if x) + fit.seen)
         return _dimension_words(draw, q, want, expect, f"its use as {label} at {where}", ddoc.pos(dpath),
                                 name=text, defs=defs, fit=fit)
     return _dimension_words(raw, q, want, expect, label, pos, defs=defs, fit=fit)

@@ -280,7 +280,7 @@ def _common(c, base, q, opt, doc, findings):
                 return None
             cal = Calibration(phys, pdims, "table", table_phys=tuple(xs), table_out=tuple(ys))
         elif "linear" in calspec:
-            slope = q(base + ("calibration", "linear", "slope"), f"{out_unit}/({phys})")
+            slope = q(base + ("calibration", "linear", "slope"), f"{out_unit}/({phys})", units=(f"{out_unit}/{phys}",))
             off = opt(base + ("calibration", "linear", "offset"), out_unit) or 0.0
             if slope is None:
                 return None

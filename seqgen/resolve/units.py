@@ -296,9 +296,10 @@ def _center(seen) -> float | None:
 
 def suggest_unit(dims: Dims, number: float | None = None, prefer=(), seen=(), span=None, fallback: str = "") -> str:
     """The unit to write after a bare `number` where a quantity of dimension `dims` is expected. Candidates, in
-    this order: `prefer` (a channel's calibration unit), the units `seen` for the same key ((unit, SI value)
-    pairs; the one that puts the value nearest to them first), the dimension's usual units. With `span` (lo, hi
-    in SI: a channel's limits or range) the first candidate that puts the value inside it, else the first."""
+    this order: `prefer` (a channel's calibration unit), then the units `seen` for the same key ((unit, SI
+    value) pairs) and the dimension's usual units, the one that puts the value nearest to the values seen
+    first. With `span` (lo, hi in SI: a channel's limits or range) the first candidate that puts the value
+    inside it, else the first."""
     cands = []
     for u in prefer:
         try:
@@ -306,12 +307,11 @@ def suggest_unit(dims: Dims, number: float | None = None, prefer=(), seen=(), sp
                 cands.append(u)
         except UnitError:
             continue
-    units = list(dict.fromkeys(u for u, _ in seen))
+    units = list(dict.fromkeys([u for u, _ in seen] + list(kind_units(dims))))
     center = _center(seen) if number else None
-    if center is not None:
+    if center is not None:  # nearest to the values seen first; a tie goes to a unit seen, then the usual one
         units.sort(key=lambda u: round(_log_distance(number, u, center), 9))
-    cands += units
-    cands += [u for u in kind_units(dims) if u not in cands] or [usual_unit(dims, fallback)]
+    cands += [u for u in units if u not in cands] or [usual_unit(dims, fallback)]
     if number and span is not None:
         lo, hi = span
         for u in cands:
