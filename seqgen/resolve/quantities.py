@@ -135,8 +135,8 @@ def _scale(expect: str) -> float:
 @dataclass(frozen=True)
 class Fit:
     """What tells the unit a value should have been written in: `units`, those of the place (a channel's
-    calibration unit); `seen`, (unit, SI value) of the same key elsewhere in the file; `span`, (lo, hi) in SI
-    of a value that fits the place."""
+    calibration unit); `seen`, (unit, SI value) of the same key elsewhere in the file (`key_examples`) and of
+    the param's other definitions; `span`, (lo, hi) in SI of a value that fits the place."""
 
     units: tuple = ()
     seen: tuple = ()
@@ -187,7 +187,7 @@ def key_examples(doc: Document, path: tuple, want) -> tuple:
                 if hit:
                     section.append(hit)
         stack.extend(reversed(children))
-    if same_key or not section:
+    if same_key:
         return tuple(same_key)
     parent = doc.data
     for p in path[:-1]:  # the mapping the value stands in: its siblings ('rise: ..' beside 'fall: 2.1 ms')
