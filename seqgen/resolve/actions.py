@@ -56,7 +56,7 @@ class LowerCtx:
                 return 1.0 if raw else 0.0
             q = to_qty(raw, self.doc, path, self.env)
             return q.value
-        return quantity(raw, out.phys_unit, self.doc, path, self.env, what=what)
+        return quantity(raw, out.phys_unit, self.doc, path, self.env, what=what, **fit_of(out))
 
     def seg(self, out, kind, t0, t1, v0, v1, action, path, **kw):
         self.segments.append(dict(output=out.name, kind=kind, t0=t0, t1=t1, v0=v0, v1=v1, block=self.block,
@@ -82,6 +82,30 @@ class LowerCtx:
             _check_shape_table(self, spec.get("table"), path + ("table",))
         self.seg(out, "ramp", t0, t0 + dur, v_from, v_to, action, path, shape=spec.get("shape", "linear"), tau_s=tau,
                  table=tuple(map(tuple, spec["table"])) if spec.get("table") else None, tolerance=tol)
+
+
+def fit_of(out) -> dict:
+    """What a fix for a value of output `out` written without a unit goes by: the calibration's unit (the one
+    its limits are written in) and its hard limits, or, uncalibrated, the output's range."""
+    if out.kind == "digital":
+        return {}
+    if out.calibration is None:
+        return {"span": (out.lo, out.hi)}
+    fit = {"units": (out.calibration.quantity,)}
+    if out.hard_min is not None or out.hard_max is not None:
+        fit["span"] = (-math.inf if out.hard_min is None else out.hard_min,
+                       math.inf if out.hard_max is None else out.hard_max)
+    return fit
+
+
+def _beam_fit(ctx, beam) -> dict:
+    out = ctx.rig.outputs.get(beam.power_channel)
+    return fit_of(out) if out is not None else {}
+
+
+def _freq_fit(ctx, channel) -> dict:
+    out = ctx.rig.outputs.get(f"{channel}.freq")  # a synth's frequency: its range tells the unit meant
+    return fit_of(out) if out is not None else {}
 
 
 def _check_shape_table(ctx, table, path):
@@ -174,8 +198,8 @@ def lower_trap_ramp(ctx, spec, t0, path):
     beam = named(ctx, ctx.rig.beams, "beam", spec["beam"], path + ("beam",))
     out = ctx.output_for(beam.power_channel, path + ("beam",))
     dur = ctx.q(spec, "over", path, "s", positive=True)
-    v_to = ctx.q(spec, "to", path, out.phys_unit or "W", nonnegative=True)
-    v_from = ctx.q(spec, "from", path, out.phys_unit or "W", nonnegative=True) if "from" in spec else None
+    v_to = ctx.q(spec, "to", path, out.phys_unit or "W", nonnegative=True, **fit_of(out))
+    v_from = ctx.q(spec, "from", path, out.phys_unit or "W", nonnegative=True, **fit_of(out)) if "from" in spec else None
     ctx.ramp(out, spec, t0, path, "trap_ramp", v_from, v_to, dur)
     record_phys(ctx, "trap_ramp", t0, t0 + dur, path, beam=beam.name, output=out.name, to=v_to, start=v_from,
           shape=spec.get("shape", "linear"))
@@ -220,7 +244,7 @@ def lower_push(ctx, spec, t0, path):
         if "power" not in spec:
             raise Bad(make(MISSING_KEY, "an optical push needs 'power:'", ctx.doc.pos(path), block=ctx.block,
                            hint="add 'power: <beam power>'"))
-        power = ctx.q(spec, "power", path, "W", positive=True)
+        power = ctx.q(spec, "power", path, "W", positive=True, **_beam_fit(ctx, beam))
         out = ctx.output_for(beam.power_channel, path + ("beam",))
         ctx.pulse(out, t0, dur, power, 0.0, "push", path)
         args.update(beam=beam.name, power=power)
@@ -240,7 +264,7 @@ def lower_push(ctx, spec, t0, path):
 def lower_barrier(ctx, spec, t0, path):
     beam = named(ctx, ctx.rig.beams, "beam", spec["beam"], path + ("beam",))
     dur = ctx.q(spec, "duration", path, "s", positive=True)
-    power = ctx.q(spec, "power", path, "W", positive=True)
+    power = ctx.q(spec, "power", path, "W", positive=True, **_beam_fit(ctx, beam))
     out = ctx.output_for(beam.power_channel, path + ("beam",))
     ctx.pulse(out, t0, dur, power, 0.0, "barrier", path)
     args = dict(beam=beam.name, power=power, duration=dur, expect=spec.get("expect", "any"))
@@ -250,7 +274,8 @@ def lower_barrier(ctx, spec, t0, path):
     if mod:
         mpath = path + ("modulation",)
         if "frequency" in mod:
-            args["mod_frequency"] = ctx.q(mod, "frequency", mpath, "Hz", positive=True)
+            args["mod_frequency"] = ctx.q(mod, "frequency", mpath, "Hz", positive=True,
+                                          **_freq_fit(ctx, mod.get("channel")))
         if "depth" in mod:
             args["mod_depth"] = ctx.q(mod, "depth", mpath, "")
         if mod.get("channel"):
@@ -279,7 +304,7 @@ def lower_clock_pulse(ctx, spec, t0, path):
     if "angle" in spec:
         args["angle"] = ctx.q(spec, "angle", path, "")
     if "frequency" in spec:
-        args["frequency"] = ctx.q(spec, "frequency", path, "Hz", positive=True)
+        args["frequency"] = ctx.q(spec, "frequency", path, "Hz", positive=True, **_freq_fit(ctx, ch))
         fout = ctx.rig.outputs.get(f"{ch}.freq")
         if fout is not None:
             ctx.seg(fout, "set", t0, t0, None, args["frequency"], "clock_pulse", path + ("frequency",))
@@ -313,7 +338,8 @@ def lower_image(ctx, spec, t0, path):
     if setup.probe_beam:
         beam = ctx.rig.beams[setup.probe_beam]
         out = ctx.output_for(beam.power_channel, path)
-        power = ctx.q(spec, "probe_power", path, out.phys_unit or "W", positive=True) if "probe_power" in spec else (
+        power = ctx.q(spec, "probe_power", path, out.phys_unit or "W", positive=True, **fit_of(out)) \
+            if "probe_power" in spec else (
             1.0 if out.kind == "digital" else None)
         if power is None:
             raise Bad(make(MISSING_KEY, "imaging needs 'probe_power:' for an analog probe channel", ctx.doc.pos(path),

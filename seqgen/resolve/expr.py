@@ -110,6 +110,9 @@ def _eval(node, env) -> Qty:
                     "use only numbers with units, param names, + - * / ** and math functions")
 
 
+UNDEFINED_HINT = "define it under params:"  # the fix for a name that is no param, unit or constant
+
+
 def _name(name: str, env) -> Qty:
     if name in env:
         return env[name]
@@ -122,7 +125,7 @@ def _name(name: str, env) -> Qty:
         import difflib
 
         close = difflib.get_close_matches(name, list(env), n=1)
-        hint = f"did you mean '{close[0]}'?" if close else "define it under params:"
+        hint = f"did you mean '{close[0]}'?" if close else UNDEFINED_HINT
         raise ExprError("undefined", f"'{name}' is neither a param nor a unit", hint, (name,)) from None
 
 

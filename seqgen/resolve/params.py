@@ -17,15 +17,16 @@ from dataclasses import replace
 import networkx as nx
 
 from ..codes import (
-    BAD_EXPRESSION, BAD_SAMPLE, NON_FINITE, OVERFLOW, PARAM_CYCLE, PARAM_OUT_OF_RANGE, UNDEFINED_PARAM,
+    BAD_EXPRESSION, BAD_SAMPLE, MISSING_UNIT, NON_FINITE, OVERFLOW, PARAM_CYCLE, PARAM_OUT_OF_RANGE, UNDEFINED_PARAM,
 )
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from ..model import Param, Sample
-from .expr import ExprError, names_in
-from .quantities import Bad, Env, _dimension_words, close_hint, quantity, to_qty
+from .expr import UNDEFINED_HINT, ExprError, names_in
+from .quantities import Bad, Env, Fit, _dimension_words, close_hint, quantity, to_qty
 from .sources import Sources
-from .units import DIMENSIONLESS, Qty, UnitError, display_unit, format_qty, parse_simple, same_dims
+from .units import DIMENSIONLESS, Qty, UnitError, describe_kind, display_unit, format_qty, parse_simple, same_dims, \
+    split_quantity, suggest_unit
 
 
 def param_entries(src: Sources) -> tuple[dict, dict]:
@@ -55,7 +56,19 @@ def resolve_params(src: Sources, overrides: dict | None, findings: list):
     fixed, given = _sort_overrides(overrides, entries, src.main, findings)
     if fixed is None:
         return None, None
-    return _resolve_params(entries, fixed, given, findings, bounds)
+    return _resolve_params(entries, fixed, given, findings, bounds, _all_written(src))
+
+
+def _all_written(src: Sources) -> dict:
+    """name -> the values of every definition of the param, in every file (for the unit of a fix)."""
+    out: dict = {}
+    for d, entry, _, _ in src.used:
+        for params in ((d.data or {}).get("params") or {}, entry.get("params") or {}):
+            for name, raw in params.items():
+                out.setdefault(name, []).append(raw)
+    for name, raw in ((src.main.data or {}).get("params") or {}).items():
+        out.setdefault(name, []).append(raw)
+    return out
 
 
 def _sort_overrides(overrides: dict, entries: dict, main: Document, findings: list):
@@ -87,7 +100,7 @@ def _note_bounds(bounds: dict, name: str, raw, doc: Document, path: tuple) -> No
                 bounds.setdefault(name, {})[key] = (raw[key], doc, path + (key,))
 
 
-def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bounds: dict):
+def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bounds: dict, written: dict | None = None):
     """`fixed`: name -> Qty taken as it is (its written value is not read); `given`: name -> text or SI number,
     read once the params it names (and those of the written value, which gives its dimension) are known."""
     graph = nx.DiGraph()
@@ -143,7 +156,7 @@ def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bou
         findings.append(make(PARAM_CYCLE, "params depend on each other in a cycle: " + " -> ".join(members + [members[0]]),
                              d.pos(path), hint="give one of them a plain value"))
         return None, None
-    env = Env(defs=texts)  # name -> Qty; knows each param's definition, for findings about its value
+    env = Env(defs=texts, written=written)  # name -> Qty; knows each param's definition, for findings about its value
     params = []
     ok = True
     for name in order:
@@ -155,7 +168,7 @@ def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bou
             try:
                 q = to_qty(value, d, path, env)
                 if name in given:
-                    q, text = _override(name, given[name], q, d, path, env)
+                    q, text = _override(name, given[name], q, d, path, env, value)
             except Bad as bad:
                 findings.append(bad.finding)
                 ok = False
@@ -183,9 +196,10 @@ def _as_override(f: Finding, name: str) -> Finding:
     return replace(f, message=f"override of param '{name}': {f.message}")
 
 
-def _override(name: str, v, written: Qty, doc: Document, path: tuple, env: dict) -> tuple[Qty, str]:
+def _override(name: str, v, written: Qty, doc: Document, path: tuple, env: dict, raw=None) -> tuple[Qty, str]:
     """(value, text) of param `name` overridden by `v` (a text with units or an SI number); `written` is the
-    param's value as the file defines it, which gives the dimension. Raises Bad with the finding."""
+    param's value as the file defines it (`raw` as written there), which gives the dimension and the unit of
+    a fix. Raises Bad with the finding."""
     if not isinstance(v, str):  # a plain number: SI, in the param's dimension
         try:
             value = float(v)
@@ -200,14 +214,45 @@ def _override(name: str, v, written: Qty, doc: Document, path: tuple, env: dict)
     try:
         q = to_qty(v, doc, path, env)  # read as a value in the file is, with the same findings
     except Bad as bad:
-        raise Bad(_as_override(bad.finding, name)) from None
+        f = bad.finding
+        if f.code == UNDEFINED_PARAM and f.hint == UNDEFINED_HINT:  # 'twelve': a value was meant, not a param
+            f = replace(f, hint=f"give a text with units, e.g. '{_example(written, raw)}'")
+        raise Bad(_as_override(f, name)) from None
     if not same_dims(q.dims, written.dims):
         if same_dims(q.dims, DIMENSIONLESS) and q.value == 0:  # a bare 0 fits every dimension, as in the file
             q = Qty(0.0, written.dims)
         else:
             raise Bad(_dimension_words(v, q, written.dims, display_unit(written.dims),
-                                       f"override of param '{name}'", doc.pos(path)))
+                                       f"override of param '{name}'", doc.pos(path),
+                                       fit=Fit(units=_written_unit(raw))))
     return q, v.strip()
+
+
+def _is_bare(raw) -> bool:
+    return isinstance(raw, (int, float)) and not isinstance(raw, bool) and raw != 0
+
+
+def _value_without_unit(name: str, written, bound: Qty, key: str, braw, entry: tuple) -> Finding:
+    """schema.missing-unit for param `name` written as a bare number beside a `key:` bound with a unit."""
+    raw, doc, path = entry
+    where = path + (("value",) if isinstance(raw, dict) else ())
+    unit = suggest_unit(bound.dims, float(written), _written_unit(braw))
+    value = f"{written} {unit}" if isinstance(raw, dict) else f"{name}: {written} {unit}"
+    return make(MISSING_UNIT, f"param '{name}' is {written} with no unit, but its {key}: is {describe_kind(bound.dims)}",
+                doc.pos(where), hint=f"write '{value}'")
+
+
+def _written_unit(raw) -> tuple:
+    """(unit,) of a param written as a number with a unit ('8 ms' -> ('ms',)), else ()."""
+    split = split_quantity(raw.strip()) if isinstance(raw, str) else None
+    return (split[1],) if split and split[1] else ()
+
+
+def _example(written: Qty, raw) -> str:
+    """A value to write for a param: as the file writes it ('8 ms'), else its value in words ('8 ms')."""
+    if isinstance(raw, str) and _written_unit(raw):
+        return raw.strip()
+    return format_qty(written)
 
 
 def _plain_quantity(text: str) -> bool:
@@ -239,9 +284,13 @@ def _out_of_bounds(name: str, q: Qty, written, spec: dict, entry: tuple, how: st
         if not same_dims(b.dims, q.dims):
             if same_dims(b.dims, DIMENSIONLESS) and b.value == 0:  # a bare 0 fits every dimension
                 b = Qty(0.0, q.dims)
+            elif how == "file" and _is_bare(written) and same_dims(q.dims, DIMENSIONLESS):
+                # '{value: 14, min: 1 ms}': the value lacks its unit, not the bound
+                return [_value_without_unit(name, written, b, key, braw, entry)]
             else:
+                value = entry[0]["value"] if isinstance(entry[0], dict) else entry[0]
                 out.append(_dimension_words(braw, b, q.dims, display_unit(q.dims), f"{key}: of param '{name}'",
-                                            bdoc.pos(bpath)))
+                                            bdoc.pos(bpath), fit=Fit(units=_written_unit(value))))
                 continue
         lim[key] = b.value
     if out:

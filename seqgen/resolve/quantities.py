@@ -4,12 +4,13 @@ from __future__ import annotations
 
 import difflib
 import math
+from dataclasses import dataclass, replace
 
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from .expr import ExprError, evaluate, is_plain_name, names_in
 from .units import DIMENSIONLESS, Qty, UnitError, close_units, describe_kind, dims_of, kind_of, kind_units, parse_simple, \
-    same_dims, split_quantity, unit_name, usual_unit
+    same_dims, split_quantity, suggest_unit, unit_name
 from ..codes import (
     BAD_EXPRESSION, DIVISION_BY_ZERO, MISSING_UNIT, NEGATIVE_DURATION, NON_FINITE, OVERFLOW, UNDEFINED_PARAM,
     UNKNOWN_UNIT, WRONG_DIMENSION,
@@ -28,13 +29,16 @@ class Bad(Exception):
 
 class Env(dict):
     """Resolved params, name -> Qty, that also knows where each param is defined: `defs` maps a name to
-    (raw value as written, Document, path), so a finding about a param's value points at its definition."""
+    (raw value as written, Document, path), so a finding about a param's value points at its definition;
+    `written` maps a name to the values of all its definitions (those another file's replace too), whose
+    units tell the fix for one written without a unit."""
 
-    __slots__ = ("defs",)
+    __slots__ = ("defs", "written")
 
-    def __init__(self, *args, defs: dict | None = None, **kwargs):
+    def __init__(self, *args, defs: dict | None = None, written: dict | None = None, **kwargs):
         super().__init__(*args, **kwargs)
         self.defs = defs or {}
+        self.written = written or {}
 
 
 _NOT_FINITE_WORDS = frozenset(("nan", ".nan", "inf", ".inf", "-inf", "-.inf", "infinity"))
@@ -88,8 +92,10 @@ def to_qty(raw, doc: Document, path: tuple, env: dict) -> Qty:
 
 
 def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positive: bool = False,
-             nonnegative: bool = False, what: str = "") -> float:
-    """Value in SI base units, checked against the dimension of unit text `expect`."""
+             nonnegative: bool = False, what: str = "", units: tuple = (), span: tuple | None = None) -> float:
+    """Value in SI base units, checked against the dimension of unit text `expect`. For the fix of a value
+    without a unit: `units`, the units this place is written in (a channel's calibration unit), and `span`,
+    (lo, hi) in SI of a value that fits (a channel's range)."""
     q = to_qty(raw, doc, path, env)
     want = dims_of(expect) if expect else DIMENSIONLESS
     value = q.value
@@ -101,7 +107,8 @@ def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positiv
     if not same_dims(q.dims, want):
         missing = same_dims(q.dims, DIMENSIONLESS) and q.value != 0
         if missing or not (same_dims(q.dims, DIMENSIONLESS) and q.value == 0):
-            raise Bad(_dimension_finding(raw, q, want, expect, label, pos, env))
+            fit = Fit(tuple(units), key_examples(doc, path, want), span)
+            raise Bad(_dimension_finding(raw, q, want, expect, label, pos, env, fit))
     if abs(q.value) > ABSURD * max(1.0, _scale(expect)):
         raise Bad(make(OVERFLOW, f"{label}: {raw!r} is an absurd magnitude", pos, hint="check for a typo in the exponent"))
     if positive and q.value <= 0:
@@ -123,6 +130,74 @@ def _scale(expect: str) -> float:
 
 
 # ----------------------------------------------------------------------------- messages a new user can act on
+
+
+@dataclass(frozen=True)
+class Fit:
+    """What tells the unit a value should have been written in: `units`, those of the place (a channel's
+    calibration unit); `seen`, (unit, SI value) of the same key elsewhere in the file (`key_examples`) and of
+    the param's other definitions; `span`, (lo, hi) in SI of a value that fits the place."""
+
+    units: tuple = ()
+    seen: tuple = ()
+    span: tuple | None = None
+
+
+def seen_in(raw, want) -> tuple | None:
+    """(unit, SI value) of `raw` if it is a nonzero '<number> <unit>' of dimension `want`, else None."""
+    if isinstance(raw, dict):  # a param written {value: ..., min: ...}
+        raw = raw.get("value")
+    split = split_quantity(raw) if isinstance(raw, str) else None
+    if not split or not split[1]:
+        return None
+    try:
+        q = parse_simple(raw)
+    except UnitError:
+        return None
+    return (split[1], q.value) if q is not None and q.value and same_dims(q.dims, want) else None
+
+
+def key_examples(doc: Document, path: tuple, want) -> tuple:
+    """(unit, SI value) of every quantity of dimension `want` written with a unit under the same key as the
+    last name of `path` anywhere in `doc` (the waists of the other beams for a beam's waist), in file order;
+    if there is none, of those beside it in its mapping (`fall:` for `rise:`), else of those as deep in the
+    same section (`path[0]`: the latencies of the other channels for a channel's min_pulse)."""
+    key = next((p for p in reversed(path) if isinstance(p, str)), None)
+    if key is None or not isinstance(doc.data, dict):
+        return ()
+    same_key, section = [], []
+    stack = [(doc.data, None, 0)]
+    while stack:
+        node, top, depth = stack.pop()
+        items = node.items() if isinstance(node, dict) else enumerate(node)
+        children = []
+        for k, v in items:
+            top_k = k if top is None else top
+            if isinstance(v, (dict, list)):
+                children.append((v, top_k, depth + 1))
+                if k == key and isinstance(node, dict):  # a param {value: ..., min: ...}, or a list of values
+                    same_key += [h for h in map(lambda x: seen_in(x, want), v if isinstance(v, list) else (v,)) if h]
+                continue
+            if k == key and isinstance(node, dict):
+                hit = seen_in(v, want)
+                if hit:
+                    same_key.append(hit)
+            elif top_k == path[0] and depth + 1 == len(path):  # as deep in the same section: another entry's
+                hit = seen_in(v, want)
+                if hit:
+                    section.append(hit)
+        stack.extend(reversed(children))
+    if same_key:
+        return tuple(same_key)
+    parent = doc.data
+    for p in path[:-1]:  # the mapping the value stands in: its siblings ('rise: ..' beside 'fall: 2.1 ms')
+        try:
+            parent = parent[p]
+        except (KeyError, IndexError, TypeError):
+            parent = None
+            break
+    siblings = [seen_in(v, want) for k, v in parent.items() if k != path[-1]] if isinstance(parent, dict) else []
+    return tuple([h for h in siblings if h] or section)
 
 
 def _shown(raw) -> str:
@@ -160,7 +235,7 @@ def _expected(want, expect: str) -> str:
     return f"{kind} ({', '.join(units)})" if units else kind
 
 
-def _dimension_finding(raw, q: Qty, want, expect: str, label: str, pos, env) -> Finding:
+def _dimension_finding(raw, q: Qty, want, expect: str, label: str, pos, env, fit: Fit = Fit()) -> Finding:
     """schema.missing-unit / schema.wrong-dimension for a value used as `label`, in the user's words: what
     the value is, what the place expects, and a fix to write. A param named as the value (`duration:
     kick_time`) is reported at its definition, with the place it is used."""
@@ -169,25 +244,29 @@ def _dimension_finding(raw, q: Qty, want, expect: str, label: str, pos, env) -> 
     if isinstance(raw, str) and text in defs:
         draw, ddoc, dpath = defs[text]
         where = f"line {pos.line}" if ddoc.file == pos.file else f"{pos.file}:{pos.line}"
+        others = tuple(seen_in(raw_w, want) for raw_w in getattr(env, "written", {}).get(text, ()))
+        fit = replace(fit, seen=tuple(x for x in others if x) + fit.seen)
         return _dimension_words(draw, q, want, expect, f"its use as {label} at {where}", ddoc.pos(dpath),
-                                name=text, defs=defs)
-    return _dimension_words(raw, q, want, expect, label, pos, defs=defs)
+                                name=text, defs=defs, fit=fit)
+    return _dimension_words(raw, q, want, expect, label, pos, defs=defs, fit=fit)
 
 
 def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: str | None = None,
-                     defs: dict | None = None) -> Finding:
+                     defs: dict | None = None, fit: Fit = Fit()) -> Finding:
     """The finding for value `raw` (its Qty `q`) where `want` is expected; `name`: the param it defines (the
-    finding then sits at the definition and `label` says where it is used)."""
+    finding then sits at the definition and `label` says where it is used). The unit a fix proposes comes
+    from `fit` (the place's unit, the same key's units in the file), else it is the dimension's usual one."""
     text = _shown(raw)
     kind = kind_of(want)
-    usual = usual_unit(want, expect)
+    split = split_quantity(text) if isinstance(raw, str) else (text, None)
+    number = _number(split[0]) if split is not None else None
+    usual = suggest_unit(want, number, fit.units, fit.seen, fit.span, expect)
     others = [u for u in kind_units(want) if u != usual][:3]
     more = f" (or another {kind} unit: {', '.join(others)})" if kind and others else ""
 
     def quoted(value: str) -> str:  # what to write, as it would stand in the file
         return f"'{name}: {value}'" if name else f"'{value}'"
 
-    split = split_quantity(text) if isinstance(raw, str) else (text, None)
     plain = split is not None and split[1] is None  # a bare number
     shown = text if split is not None else f"'{text}'"
     if same_dims(q.dims, DIMENSIONLESS):  # a bare number (or an expression of bare numbers)
@@ -201,13 +280,14 @@ def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: s
         bare = [n for n in sorted(defs or {}) if n in used and _is_bare_number(defs[n][0])]
         if bare:
             raw_b, doc_b, path_b = defs[bare[0]]
+            unit_b = suggest_unit(want, _number(_shown(raw_b)), fit.units, fit.seen, fit.span, expect)
             hint = (f"give '{bare[0]}' a unit where it is defined (line {doc_b.pos(path_b).line}), e.g. "
-                    f"'{bare[0]}: {_shown(raw_b)} {usual}'")
+                    f"'{bare[0]}: {_shown(raw_b)} {unit_b}'")
         else:
             hint = f"make it {_expected(want, expect)}"
         return make(MISSING_UNIT, message, pos, hint=hint)
     unit = split[1] if split else None
-    close = close_units(unit, want) if unit else []
+    close = close_units(unit, want, number=number, seen=fit.seen) if unit else []
     expected = describe_kind(want) if unit else _expected(want, expect)
     what_it_is = _what_it_is(text, q.dims)
     if name:
@@ -224,6 +304,14 @@ def _dimension_words(raw, q: Qty, want, expect: str, label: str, pos, *, name: s
     else:
         hint = f"give {_expected(want, expect)}"
     return make(WRONG_DIMENSION, message, pos, hint=hint)
+
+
+def _number(text: str) -> float | None:
+    try:
+        value = float(text)
+    except (OverflowError, ValueError):
+        return None
+    return value if math.isfinite(value) else None
 
 
 def names_of(text: str) -> set:

@@ -100,10 +100,11 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         cal = common.pop("calibration")
         # physical values are SI inside; keep the SI display unit (W, not the mW of the calibration text)
         phys_unit = display_unit(cal.dims) if cal else unit
+        fit = {"units": (cal.quantity,)} if cal else {"units": (unit,)}  # the fix for a value without a unit
         safe_raw = c.get("safe", 0)
         safe = 0.0
         if "safe" in c:
-            s = q(base + ("safe",), phys_unit)
+            s = q(base + ("safe",), phys_unit, **fit)
             safe = s if s is not None else 0.0
         elif c["kind"] == "analog" and cal is None:
             safe = min(max(0.0, lo), hi)
@@ -112,13 +113,14 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
                                dims_of(phys_unit) if phys_unit else dims_of(""), calibration=cal, pos=pos, **common)
         hl = c.get("hard_limit")
         if hl:
-            hmin = opt(base + ("hard_limit", "min"), phys_unit)
-            hmax = opt(base + ("hard_limit", "max"), phys_unit)
+            hmin = opt(base + ("hard_limit", "min"), phys_unit, **fit)
+            hmax = opt(base + ("hard_limit", "max"), phys_unit, **fit)
             outputs[name] = _replace(outputs[name], hard_min=hmin, hard_max=hmax)
         channels[name] = (name,)
 
     def ref(kind, owner, key, value, path):
-        if value not in channels:
+        # a channel written under channels: but refused (bad device, calibration, range) has its finding already
+        if value not in channels and value not in (data.get("channels") or {}):
             close = difflib.get_close_matches(value, list(channels), n=1)
             findings.append(make(UNKNOWN_NAME, f"{kind} '{owner}' names unknown channel '{value}'", doc.pos(path),
                                  hint=f"did you mean '{close[0]}'?" if close else "define the channel under channels:"))
@@ -228,7 +230,7 @@ def _replace(o, **kw):
 
 
 def _range(spec, path, unit, q, doc, findings):
-    lo = q(path + ("range", 0), unit)
+    lo = q(path + ("range", 0), unit)  # a range's fix takes the unit the other ranges are written in
     hi = q(path + ("range", 1), unit)
     if lo is None or hi is None:
         return None
@@ -265,8 +267,8 @@ def _common(c, base, q, opt, doc, findings):
             pts = calspec["table"]
             xs, ys = [], []
             for i in range(len(pts)):
-                x = q(base + ("calibration", "table", i, 0), phys)
-                y = q(base + ("calibration", "table", i, 1), out_unit)
+                x = q(base + ("calibration", "table", i, 0), phys, units=(phys,))
+                y = q(base + ("calibration", "table", i, 1), out_unit, units=(out_unit,))
                 if x is None or y is None:
                     return None
                 xs.append(x)
@@ -278,7 +280,7 @@ def _common(c, base, q, opt, doc, findings):
                 return None
             cal = Calibration(phys, pdims, "table", table_phys=tuple(xs), table_out=tuple(ys))
         elif "linear" in calspec:
-            slope = q(base + ("calibration", "linear", "slope"), f"{out_unit}/({phys})")
+            slope = q(base + ("calibration", "linear", "slope"), f"{out_unit}/({phys})", units=(f"{out_unit}/{phys}",))
             off = opt(base + ("calibration", "linear", "offset"), out_unit) or 0.0
             if slope is None:
                 return None

@@ -8,6 +8,7 @@ dimensions.
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass
 from functools import lru_cache
@@ -240,14 +241,99 @@ def unit_name(unit_text: str) -> str | None:
     return word.replace("labgauss", "gauss").replace("_", " ")
 
 
-def close_units(unit_text: str, dims: Dims | None = None, n: int = 3) -> list:
+@lru_cache(maxsize=1024)
+def _prefix_of(unit: str) -> str:
+    """The SI prefix of a single unit word ('kilo' of 'kHz', 'micro' of 'uW'); '' for an unprefixed unit
+    ('min' is a minute, not a milli-inch), a compound or an unknown one."""
+    if not re.fullmatch(r"[A-Za-z]+", unit):
+        return ""
+    try:
+        readings = tuple(_UREG.parse_unit_name(unit))
+    except Exception:  # pint raises many types for bad text
+        return ""
+    if not readings or any(not prefix for prefix, _, _ in readings):
+        return ""
+    return readings[0][0]
+
+
+def _one_edit(a: str, b: str) -> bool:
+    """True if `a` and `b` differ by one letter changed, added or dropped (and share a letter, so that two
+    unrelated one-letter units such as s and m are not taken for each other)."""
+    if a == b or abs(len(a) - len(b)) > 1 or not set(a) & set(b):
+        return False
+    if len(a) == len(b):
+        return sum(x != y for x, y in zip(a, b)) == 1
+    short, long_ = sorted((a, b), key=len)
+    return any(long_[:i] + long_[i + 1:] == short for i in range(len(long_)))
+
+
+def _unit_pool(dims: Dims) -> list:
+    """Unit names of dimension `dims` a lab writes: the kind's units (usual first), then other known names."""
+    pool = list(kind_units(dims))
+    for u in _KNOWN_UNITS:
+        if u not in pool:
+            try:
+                if same_dims(dims_of(u), dims):
+                    pool.append(u)
+            except UnitError:  # pragma: no cover - every known name is a pint unit
+                continue
+    return pool
+
+
+def _log_distance(number: float, unit: str, center: float) -> float:
+    try:
+        v = abs(number) * unit_factor(unit)[0]
+    except UnitError:  # pragma: no cover - candidates are known units
+        return math.inf
+    return abs(math.log10(v) - center) if v > 0 else math.inf
+
+
+def _center(seen) -> float | None:
+    """Mean of log10 of the magnitudes (SI) of values seen for the same key: where a plausible value lies."""
+    logs = [math.log10(abs(v)) for _, v in seen if v]
+    return sum(logs) / len(logs) if logs else None
+
+
+def suggest_unit(dims: Dims, number: float | None = None, prefer=(), seen=(), span=None, fallback: str = "") -> str:
+    """The unit to write after a bare `number` where a quantity of dimension `dims` is expected. Candidates, in
+    this order: `prefer` (a channel's calibration unit), then the units `seen` for the same key ((unit, SI
+    value) pairs) and the dimension's usual units, the one that puts the value nearest to the values seen
+    first. With `span` (lo, hi in SI: a channel's limits or range) the first candidate that puts the value
+    inside it, else the first."""
+    cands = []
+    for u in prefer:
+        try:
+            if u and same_dims(dims_of(u), dims):
+                cands.append(u)
+        except UnitError:
+            continue
+    units = list(dict.fromkeys([u for u, _ in seen] + list(kind_units(dims))))
+    center = _center(seen) if number else None
+    if center is not None:  # nearest to the values seen first; a tie goes to a unit seen, then the usual one
+        units.sort(key=lambda u: round(_log_distance(number, u, center), 9))
+    cands += [u for u in units if u not in cands] or [usual_unit(dims, fallback)]
+    if number and span is not None:
+        lo, hi = span
+        for u in cands:
+            try:
+                if lo <= number * unit_factor(u)[0] <= hi:
+                    return u
+            except UnitError:  # pragma: no cover - candidates are known units
+                continue
+    return cands[0]
+
+
+def close_units(unit_text: str, dims: Dims | None = None, n: int = 3, number: float | None = None,
+                seen=()) -> list:
     """Unit names close to `unit_text`: the same letters in another case first ('mw' -> 'mW', 'mS' -> 'ms'),
-    then similar spellings. With `dims`, only units of that dimension, and for a unit that lacks a
+    then similar spellings. With `dims`, only units of that dimension: after the same letters in another case,
+    those one letter away or with the same prefix ('uW' -> 'um' for a length, 'kg' -> 'kHz' for a frequency;
+    nearest first to the values `seen` for the same key when `number` is given), then, for a unit that lacks a
     per-length to be a gradient (G where G/cm is expected), that unit per cm or per m."""
     import difflib
 
     text = unit_text.strip()
-    pool = list(kind_units(dims)) if dims is not None else list(_KNOWN_UNITS)
+    pool = _unit_pool(dims) if dims is not None else list(_KNOWN_UNITS)
     if dims is not None:
         for extra in (f"{text}/cm", f"{text}/m"):  # a field where a gradient is expected, and the like
             try:
@@ -257,9 +343,15 @@ def close_units(unit_text: str, dims: Dims | None = None, n: int = 3) -> list:
                 continue
     same_case = [u for u in pool if u.lower() == text.lower() and u != text]
     if dims is not None:
+        prefix = _prefix_of(text)
+        near = [u for u in pool if u not in same_case and u != text and "/" not in u and
+                (_one_edit(u, text) or (prefix and _prefix_of(u) == prefix))]
+        center = _center(seen) if number else None
+        if center is not None:
+            near.sort(key=lambda u: round(_log_distance(number, u, center), 9))
         per_length = [u for u in pool if u in (f"{text}/cm", f"{text}/m")]
         gauss_first = sorted(per_length, key=lambda u: not (u.endswith("/cm") and "G" in text))
-        return (same_case + gauss_first[:1])[:n]
+        return (same_case + near + gauss_first[:1])[:n]
     lowered = {}
     for u in pool:
         lowered.setdefault(u.lower(), []).append(u)

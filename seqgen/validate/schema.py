@@ -77,10 +77,12 @@ def validate_document(doc: Document, schema_name: str) -> list[Finding]:
 def findings_from_errors(errors, doc: Document) -> list[Finding]:
     """Findings for jsonschema's errors on `doc`, in path order, at most MAX_REPORTED."""
     errors = sorted(errors, key=lambda e: (list(map(str, e.absolute_path)), e.validator))
+    # the allowed values at each path, for a const: that names one of them (a former name and its new one)
+    enums = {tuple(e.absolute_path): e.validator_value for e in errors if e.validator == "enum"}
     findings: list[Finding] = []
     seen_paths = set()
     for err in errors:
-        for f in _to_findings(err, doc):
+        for f in _to_findings(err, doc, enums):
             key = (f.line, f.column, f.code)
             if key in seen_paths:
                 continue
@@ -98,7 +100,7 @@ def _where(path) -> str:
     return out or "top level"
 
 
-def _to_findings(err: jsonschema.ValidationError, doc: Document) -> list[Finding]:
+def _to_findings(err: jsonschema.ValidationError, doc: Document, enums: dict | None = None) -> list[Finding]:
     path = tuple(err.absolute_path)
     where = _where(path)
     v = err.validator
@@ -135,11 +137,17 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document) -> list[Finding
     if v in ("oneOf", "anyOf"):
         best = jsonschema.exceptions.best_match(err.context) if err.context else None
         if best is not None and best.validator not in ("oneOf", "anyOf"):
-            return _to_findings(best, doc)
+            return _to_findings(best, doc, enums)
     if v == "enum":
         close = difflib.get_close_matches(str(err.instance), [str(x) for x in err.validator_value], n=1)
         hint = f"did you mean '{close[0]}'?" if close else "choose one of: " + ", ".join(map(str, err.validator_value))
         return [make(BAD_VALUE, f"{where}: '{err.instance}' is not allowed", doc.pos(path), hint=hint)]
+    if v == "const" and isinstance(err.schema, dict) and err.schema.get("description"):
+        # an if/then that refuses a former name: the then: branch's description says so
+        others = [x for x in (enums or {}).get(path, ()) if x != err.validator_value]
+        alt = f" (or {' or '.join(repr(x) for x in others)})" if others else ""
+        return [make(BAD_VALUE, f"{where}: {err.schema['description']}", doc.pos(path),
+                     hint=f"write {err.validator_value!r}{alt}")]
     if v == "const":
         return [make(BAD_VALUE, f"{where} must be {err.validator_value!r}, not {err.instance!r}", doc.pos(path),
                      hint=f"write {err.validator_value!r}")]
