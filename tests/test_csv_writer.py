@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from seqgen.emit.writers import _CSV_CHUNK, write_csv
+from seqgen.emit.writers import CSV_CHUNK, write_csv
 from seqgen.model import DeviceTable
 
 
@@ -17,7 +17,7 @@ def _savetxt_reference(path, table):
 
 def test_csv_matches_numpy_savetxt_across_chunk_boundaries(tmp_path):
     rng = np.random.default_rng(3)
-    n = 2 * _CSV_CHUNK + 17  # three chunks, the last one partial
+    n = 2 * CSV_CHUNK + 17  # three chunks, the last one partial
     ticks = np.cumsum(rng.integers(1, 50, n)).astype(np.int64)
     values = np.column_stack([rng.normal(size=n) * 10.0 ** rng.integers(-9, 9, n), rng.integers(0, 2, n).astype(float),
                               np.full(n, -0.0), rng.uniform(-1e-300, 1e-300, n)])

@@ -369,7 +369,7 @@ def test_decimation_keeps_every_extreme():
     rng = np.random.default_rng(7)
     t = np.sort(rng.uniform(0, 1, 200_000))
     v = rng.normal(size=t.size)
-    td, vd = plot._decimate(t, v, 0.0, 1.0, nbins=500)
+    td, vd = plot.decimate(t, v, 0.0, 1.0, nbins=500)
     assert len(td) <= 4 * 500 + 2
     bins = np.floor(t * 500).astype(int)
     for b in (0, 123, 499):

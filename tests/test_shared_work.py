@@ -12,7 +12,7 @@ from scipy import constants as sc
 
 from seqgen.predict import held, report_rows
 from seqgen.compile import tables
-from seqgen.compile.tables import RAMP_CACHE, _RampCache
+from seqgen.compile.tables import RAMP_CACHE, RampCache
 from seqgen.physics import optical as o
 from seqgen.physics.atoms import get_species
 from seqgen.pipeline import clear_shared_caches, preflight
@@ -67,7 +67,7 @@ def test_a_scan_shot_equals_the_same_values_checked_alone(tmp_path):
 
 
 def test_ramp_cache_stays_within_its_row_budget():
-    cache = _RampCache()
+    cache = RampCache()
     cache.MAX_ROWS = 1000
     rows = 100
     for i in range(50):
@@ -91,7 +91,7 @@ def test_unhashable_ramp_inputs_bypass_the_cache():
     seg = Segment("o", "ramp", 0.0, 1e-3, 0.0, 1.0, "b", "ramp", SourcePos(""), shape="table",
                   table=[[0.0, 0.0], [0.5, 0.8], [1.0, 1.0]])
     before = len(RAMP_CACHE._items)
-    rt, rv, err, limited = tables._sampled_ramp(out, seg, 0.0, 0, 1000, dev, out.sample_tolerance, False)
+    rt, rv, err, limited = tables.sampled_ramp(out, seg, 0.0, 0, 1000, dev, out.sample_tolerance, False)
     assert len(RAMP_CACHE._items) == before
     assert rv[0] == pytest.approx(0.0) and rv[-1] == pytest.approx(1.0)
 

@@ -94,7 +94,7 @@ def output_rows(out: Output, segments, device, findings: list, spans: dict):
             if k1 <= k0:
                 k1 = k0 + 1
             tol = seg.tolerance if seg.tolerance is not None else out.sample_tolerance
-            rt, rv, err, limited = _sampled_ramp(out, seg, lat, k0, k1, device, tol, linear)
+            rt, rv, err, limited = sampled_ramp(out, seg, lat, k0, k1, device, tol, linear)
             spans[(seg.block, out.name, seg.t0)] = (k0, k1)
             if limited and seg.t1 - seg.t0 >= device.min_interval_ticks * tick:  # shorter: timing.ramp-too-fast
                 findings.append(_undersampled(out, seg, device, err, tol, len(rt)))
@@ -128,7 +128,7 @@ def _undersampled(out: Output, seg, device, err: float, tol: float, rows: int) -
                 data={"max_error": err, "tolerance": tol, "rows": rows, "min_interval_s": dt})
 
 
-class _RampCache:
+class RampCache:
     """Sampled ramps keyed on everything the sampling depends on (output, segment,
     latency, tick span, device, tolerance), so the shots of a scan, which mostly
     repeat the same ramps, sample each once per process. Bounded by total rows;
@@ -164,10 +164,10 @@ class _RampCache:
             self._rows = 0
 
 
-RAMP_CACHE = _RampCache()
+RAMP_CACHE = RampCache()
 
 
-def _sampled_ramp(out: Output, seg, lat: float, k0: int, k1: int, device, tol: float, linear: bool):
+def sampled_ramp(out: Output, seg, lat: float, k0: int, k1: int, device, tol: float, linear: bool):
     key = (out, seg, lat, k0, k1, device, tol, linear)
     try:
         hit = RAMP_CACHE.get(key)

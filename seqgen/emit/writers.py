@@ -34,7 +34,7 @@ from ..model import DeviceTable
 
 ENTRY_POINT_GROUP = "seqgen.writers"
 CSV_ROW_LIMIT = 1_000_000
-_CSV_CHUNK = 4096  # rows formatted at a time
+CSV_CHUNK = 4096  # rows formatted at a time
 _ZIP_DATE = (1980, 1, 1, 0, 0, 0)
 NAME_PATTERN = re.compile(r"[a-z][a-z0-9_]{0,31}")  # also in schemas/manifest.schema.json and scan.schema.json
 SUFFIX_PATTERN = re.compile(r"\.[A-Za-z0-9][A-Za-z0-9._-]{0,31}")
@@ -98,8 +98,8 @@ def write_csv(path: Path, table: DeviceTable) -> None:
         fh.write(header + "\n")
         # one %-format per chunk of rows: the same text as formatting row by row, several times faster;
         # ticks stay Python ints (exact beyond 2^53)
-        for a in range(0, len(table.ticks), _CSV_CHUNK):
-            b = a + _CSV_CHUNK
+        for a in range(0, len(table.ticks), CSV_CHUNK):
+            b = a + CSV_CHUNK
             cols = [table.ticks[a:b].tolist(), times[a:b].tolist(), *table.values[a:b].T.tolist()]
             fh.write((row * len(cols[0])) % tuple(itertools.chain.from_iterable(zip(*cols))))
 

@@ -28,7 +28,7 @@ the metadata, fixed SVG ids); an existing file is replaced only with force.
 
 from .diff import diff_figure, diff_windows
 from .files import FORMATS, OutputExists, figure_bytes, format_of, save_figure, svg_text, write_atomic
-from .lanes import _decimate, hardware_series, intended_series, latency_note
+from .lanes import decimate, hardware_series, intended_series, latency_note
 from .layout import (
     SEVERITY_STYLE, PlotError, dense_hint, detail_window, parse_channels, parse_time, select_outputs, time_axis,
     written_outputs,
@@ -39,5 +39,5 @@ __all__ = [
     "FORMATS", "SEVERITY_STYLE", "OutputExists", "PlotError", "dense_hint", "detail_window", "diff_figure",
     "diff_windows", "figure_bytes", "format_of", "hardware_series", "intended_series", "latency_note",
     "parse_channels", "parse_time", "save_figure", "select_outputs", "svg_text", "time_axis", "timeline_figure",
-    "write_atomic", "written_outputs", "_decimate",
+    "write_atomic", "written_outputs", "decimate",
 ]

@@ -15,7 +15,7 @@ from .layout import (
     _shade_blocks, _spans, _style_time_axis, _unwritten_lines, select_outputs, written_outputs,
 )
 from .lanes import (
-    _code_span, _columns, _decimate, _display_scale, _draw_header, _full_range, _nearly_flat, _step, _style_lane,
+    _code_span, _columns, decimate, _display_scale, _draw_header, _full_range, _nearly_flat, _step, _style_lane,
     _ylim, hardware_series,
 )
 
@@ -151,7 +151,7 @@ def diff_figure(old_shot, old_compiled, new_shot, new_compiled, *, old_label="ol
             peak = max(abs(ylim[0]), abs(ylim[1])) * 0.9
             scale = _display_scale(peak, out.phys_unit if out.kind != "digital" else "")
             for style, t, v, model in series:
-                td, vd = _decimate(t, v / scale[0], t0, t1)
+                td, vd = decimate(t, v / scale[0], t0, t1)
                 if style == "old":
                     line = _step(ax, td, vd, model, t1, color=OLD_COLOUR, linewidth=1.6, linestyle=(0, (2, 1.5)),
                                  zorder=3)

@@ -24,7 +24,7 @@ def _display_scale(max_abs: float, unit: str) -> tuple[float, str]:
     return 1e-9, "n" + unit
 
 
-def _decimate(t: np.ndarray, v: np.ndarray, t0: float, t1: float, nbins: int = MAX_POINTS_PER_LANE):
+def decimate(t: np.ndarray, v: np.ndarray, t0: float, t1: float, nbins: int = MAX_POINTS_PER_LANE):
     """Keep the first, last, lowest and highest point of each display bin (vectorised)."""
     if len(t) <= 4 * nbins or t1 <= t0:
         return t, v
@@ -264,7 +264,7 @@ def _draw_lane(ax, shot, out, col, t0, t1, colour, intended, note=None):
     factor = scale[0]
     early = note is not None  # the table is the command, sent early: the dashed curve is when the output acts
     if len(hw[0]):
-        t, v = _decimate(hw[0], hw[1] / factor, t0, t1)
+        t, v = decimate(hw[0], hw[1] / factor, t0, t1)
         line = _step(ax, t, v, model, t1, color=colour, linewidth=1.1 if early else 1.3, zorder=3,
                      alpha=0.7 if early else 1.0)
         line.set_gid(f"table:{out.name}")
