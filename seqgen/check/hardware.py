@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
+import math
+from dataclasses import dataclass
+
 import numpy as np
 
-from ..calibration import to_output
+from ..calibration import to_output, to_physical
 from ..codes import (
     HARD_LIMIT, MEMORY_DEPTH, MIN_INTERVAL, OUTSIDE_CALIBRATION, OUT_OF_RANGE, PULSE_TOO_SHORT, RESOLUTION, SLEW,
 )
+from ..compile.sampling import quantize_times
 from ..findings import make
 from ..textfmt import fmt_si, fmt_time
 from .rules import rule
@@ -20,6 +24,33 @@ def _extremes(seg):
     return (seg.v0, seg.v1)
 
 
+def _inward(x: float, up: bool, digits: int = 6) -> float:
+    """x rounded to `digits` significant digits toward the inside of a range (up: the range lies above),
+    so the text a fix names stays inside the range it names; float noise of the inverse is dropped first."""
+    x = float(f"{x:.12g}")
+    if x == 0 or not math.isfinite(x):
+        return x
+    q = 10.0 ** (math.floor(math.log10(abs(x))) - (digits - 1))
+    n = math.ceil(x / q) if up else math.floor(x / q)
+    return float(f"{n * q:.{digits}g}")
+
+
+def _range_fix(out, v: float, y: float) -> tuple[str, float]:
+    """The fix for a value v (output value y) outside an output's range: the direction in the channel's
+    physical unit (a falling calibration turns an output above the range into a value to raise) and the
+    limit it must reach, kept inside the hard limits too, so that applying it raises no other error."""
+    edge = out.hi if y > out.hi else out.lo
+    limit = float(to_physical(out, edge))
+    up = v < limit
+    if up and out.hard_min is not None:
+        limit = max(limit, out.hard_min)
+    if not up and out.hard_max is not None:
+        limit = min(limit, out.hard_max)
+    limit = _inward(limit, up)
+    text = fmt_si(limit, out.phys_unit) if out.phys_unit else f"{limit:.6g}"
+    return (f"raise the value to at least {text}" if up else f"lower the value to at most {text}"), limit
+
+
 @rule(OUT_OF_RANGE)
 def output_range(shot):
     for s in shot.segments:
@@ -28,9 +59,11 @@ def output_range(shot):
             y = float(to_output(out, v))
             if not (out.lo - 1e-12 * max(1, abs(out.lo)) <= y <= out.hi + 1e-12 * max(1, abs(out.hi))):
                 phys = f" ({v:.6g} {out.phys_unit})" if out.calibration else ""
+                fix, limit = _range_fix(out, v, y)
                 yield make(OUT_OF_RANGE, f"'{out.name}' would output {y:.6g} {out.unit}{phys}, outside "
                            f"[{out.lo:g}, {out.hi:g}] {out.unit}", s.pos, block=s.block, time_s=s.t0,
-                           hint="lower the value, or check the channel's calibration and range in the rig")
+                           hint=f"{fix}, or check the channel's calibration and range in the rig",
+                           data={"value": v, "limit": limit})
                 break
 
 
@@ -127,23 +160,113 @@ def memory_depth(shot, compiled):
                        pos, block=top[0][0] if top else None, hint="raise ramp tolerances, shorten ramps, or move channels to another device")
 
 
+@dataclass(frozen=True)
+class _Edge:
+    """A fixed row one segment writes: its tick, the time the sequence asked for, and the latency that moved it."""
+    tick: int
+    seg: object
+    time_s: float
+    latency_s: float
+    edge: str  # "rise" | "fall" | ""
+
+
+def _edges(shot, device) -> list[_Edge]:
+    """The fixed rows (sets, ramp ends) of a device's outputs, placed as compile places them: sorted as compile
+    sorts them, moved earlier by the latency of the edge's direction, rounded to the tick."""
+    tick = device.tick_s
+    m = max(1, device.min_interval_ticks)
+    linear = device.output_model == "linear"
+    edges = []
+    for out in shot.rig.outputs.values():
+        if out.device != device.name:
+            continue
+        segs = sorted((x for x in shot.segments if x.output == out.name),
+                      key=lambda x: (x.t0, 0 if x.action.endswith(":end") else 1))
+        current = out.safe
+        for x in segs:
+            start = current if x.kind == "set" else x.v0
+            edge = "rise" if x.v1 > start else ("fall" if x.v1 < start else "")
+            lat = {"rise": out.latency_rise_s, "fall": out.latency_fall_s}.get(edge, 0.0)
+            times = (x.t0,) if x.kind == "set" else (x.t0, x.t1)
+            ks = quantize_times(np.array([max(t - lat, 0.0) for t in times]), tick)
+            for k, when in zip(ks, times):
+                edges.append(_Edge(int(k), x, when, lat, edge))
+            if linear and x.kind == "set" and ks[0] - m > 0:  # the row that holds the old value before a step
+                edges.append(_Edge(int(ks[0]) - m, x, x.t0, lat, edge))
+            current = x.v1
+    return edges
+
+
+def _who(e: _Edge) -> str:
+    moved = (f"; its {e.edge} latency {fmt_time(e.latency_s, 6, unit='ms' if e.latency_s >= 1e-4 else 'us')} "
+             f"moved this edge from {fmt_time(e.time_s, 7, unit='ms')} to {fmt_time(e.time_s - e.latency_s, 7, unit='ms')}"
+             if e.latency_s else "")
+    return f"'{e.seg.output}' ({e.seg.action} in block '{e.seg.block}', line {e.seg.pos.line}{moved})"
+
+
+def _clear_tick(ticks: np.ndarray, start: int, m: int, step: int, skip: int) -> int:
+    """The first tick from `start` (walking by `step` = +1 later or -1 earlier) that lies at least m ticks
+    from every row of `ticks` except the one at `skip` (the row being moved)."""
+    others = ticks[ticks != skip]
+    k = start
+    for _ in range(64):
+        near = others[np.abs(others - k) < m]
+        if not len(near):
+            return k
+        k = int(near.max()) + m if step > 0 else int(near.min()) - m
+    return k
+
+
 @rule(MIN_INTERVAL, stage="tables")
 def row_spacing(shot, compiled):
     for t in compiled.tables:
         dev = shot.rig.devices[t.device]
-        if dev.min_interval_ticks <= 1 or len(t.ticks) < 2:
+        m = dev.min_interval_ticks
+        if m <= 1 or len(t.ticks) < 2:
             continue
         gaps = np.diff(t.ticks)
-        bad = np.nonzero(gaps < dev.min_interval_ticks)[0]
-        if len(bad):
-            k = int(bad[0])
-            time = float(t.ticks[k + 1] * t.tick_s)
-            block = next((b.name for b in shot.blocks if b.start_s <= time <= b.end_s), None)
-            pos = shot.block(block).pos if block else dev.pos
-            yield make(MIN_INTERVAL, f"device '{t.device}': {len(bad)} row(s) closer than its minimum interval "
-                       f"{fmt_time(dev.min_interval_ticks * t.tick_s, unit='us')}; first at {fmt_time(time, 6, unit='ms')} "
-                       f"({int(gaps[k])} ticks apart)", pos, block=block, time_s=time,
+        bad = np.nonzero(gaps < m)[0]
+        if not len(bad):
+            continue
+        k = int(bad[0])
+        a, b = int(t.ticks[k]), int(t.ticks[k + 1])
+        time = float(b * t.tick_s)
+        interval = fmt_time(m * t.tick_s, unit="us")
+        head = (f"device '{t.device}': {len(bad)} row(s) closer than its minimum interval {interval}; first at "
+                f"{fmt_time(time, 6, unit='ms')} ({int(gaps[k])} ticks apart)")
+        edges = _edges(shot, dev)
+        later = next((e for e in edges if e.tick == b), None)
+        earlier = next((e for e in edges if e.tick == a and (later is None or e.seg != later.seg)), None)
+        blamed = later or earlier
+        if blamed is None:  # rows of no segment (the table's first and last rows): name the place only
+            block = next((x.name for x in shot.blocks if x.start_s <= time <= x.end_s), None)
+            yield make(MIN_INTERVAL, head, shot.block(block).pos if block else dev.pos, block=block, time_s=time,
                        hint="separate the events by at least the minimum interval")
+            continue
+        other = earlier if blamed is later else None
+        against = f", {int(gaps[k])} tick(s) after the row of {_who(other)}" if other else ""
+        # ramp-interior rows give way to crowded rows (compile drops them): only fixed rows can crowd an edge
+        fixed = np.unique(np.array([e.tick for e in edges] + [0, int(t.ticks[-1])], dtype=np.int64))
+        own = later is not None and any(e.tick == a and e.seg == later.seg for e in edges)
+        if own and later.seg.kind == "ramp":  # a ramp's own two rows: only a longer ramp separates them
+            shift = m - (b - a)
+            hint = f"make the ramp at least {interval} long"
+        elif later is None and b == int(t.ticks[-1]):  # the table's last row: the end of the shot
+            shift = m - (b - a)
+            against = f", {int(gaps[k])} tick(s) before the shot's last row (its end)"
+            hint = (f"let the sequence run at least {fmt_time(shift * t.tick_s, 6, unit='us')} longer (a later block or "
+                    f"wait), so that it ends {interval} after this edge")
+        elif blamed is later:
+            shift = _clear_tick(fixed, a + m, m, +1, b) - b
+            hint = (f"move this edge at least {fmt_time(shift * t.tick_s, 6, unit='us')} later, so that it lies "
+                    f"{interval} from the other rows, or move the other write")
+        else:
+            shift = a - _clear_tick(fixed, b - m, m, -1, a)
+            hint = (f"move this edge at least {fmt_time(shift * t.tick_s, 6, unit='us')} earlier, so that it lies "
+                    f"{interval} from the other rows, or move the other write")
+        yield make(MIN_INTERVAL, f"{head}: the row of {_who(blamed)}{against}", blamed.seg.pos,
+                   block=blamed.seg.block, time_s=blamed.time_s, hint=hint,
+                   data={"shift_s": shift * t.tick_s})
 
 
 @rule(RESOLUTION)

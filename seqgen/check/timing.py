@@ -4,6 +4,9 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
+from ..compile.sampling import quantize_times
 from ..codes import JITTER, LATENCY_REORDER, OVERLAP, RAMP_TOO_FAST, SUB_TICK
 from ..findings import make
 from ..textfmt import fmt_time
@@ -50,16 +53,35 @@ def sub_tick_timing(shot):
                            time_s=t, hint="use times that are multiples of the tick to silence this note")
 
 
+def _ramp_ticks(out, dev, s) -> tuple[int, int]:
+    """The ticks a ramp's end rows land on, as compile places them: both ends moved earlier by the
+    channel's latency for the ramp's direction, rounded to the tick (ties to the later tick)."""
+    lat = out.latency_rise_s if s.v1 > s.v0 else (out.latency_fall_s if s.v1 < s.v0 else 0.0)
+    tick = 1.0 / dev.timebase_hz
+    t0, t1 = s.t0 - lat, s.t1 - lat
+    if t0 < -0.5 * tick:  # compile clips it (and reports timing.before-start)
+        t0, t1 = max(t0, 0.0), max(t1, tick)
+    k0, k1 = (int(k) for k in quantize_times(np.array([max(t0, 0.0), max(t1, 0.0)]), tick))
+    return k0, max(k1, k0 + 1)
+
+
 @rule(RAMP_TOO_FAST)
 def ramp_faster_than_device(shot):
+    # judged on ticks, not on t1 - t0: a ramp of exactly the minimum interval can compute as 1.9999999 us
+    # in floats, and compile rounds both ends, so what counts is the ticks between its two rows
     for s in shot.segments:
         if s.kind != "ramp":
             continue
-        dev = shot.rig.devices[shot.rig.outputs[s.output].device]
-        min_dt = dev.min_interval_ticks / dev.timebase_hz
-        if s.t1 - s.t0 < min_dt:
-            yield make(RAMP_TOO_FAST, f"ramp on '{s.output}' lasts {fmt_time((s.t1 - s.t0), unit='us')}, shorter than "
-                       f"{dev.name}'s minimum interval {fmt_time(min_dt, unit='us')}", s.pos, block=s.block, time_s=s.t0,
+        out = shot.rig.outputs[s.output]
+        dev = shot.rig.devices[out.device]
+        m = max(1, dev.min_interval_ticks)
+        k0, k1 = _ramp_ticks(out, dev, s)
+        if k1 - k0 < m:
+            min_dt = m / dev.timebase_hz
+            # a whole number of ticks: both ends then round alike, so the ramp spans exactly m ticks or more
+            yield make(RAMP_TOO_FAST, f"ramp on '{s.output}' lasts {fmt_time((s.t1 - s.t0), unit='us')} "
+                       f"({k1 - k0} tick(s) between its rows), shorter than {dev.name}'s minimum interval "
+                       f"{fmt_time(min_dt, unit='us')}", s.pos, block=s.block, time_s=s.t0,
                        hint=f"make it at least {fmt_time(min_dt, unit='us')} long, or use 'set'")
 
 

@@ -37,7 +37,13 @@ MIN_INTERVAL = Code(
     doc="""
     Two rows of a device table closer than the device's minimum interval
     between updates (for example two edges 1 us apart on a device that updates
-    every 2 us). Move the events apart.""")
+    every 2 us). The finding points at the write that made the later row (its
+    output, block and line) and names the output of the other row; when a
+    channel's latency moved an edge onto the other it says so, with the time
+    written and the time the edge is commanded. The fix says how far to move
+    the edge to clear every fixed row (ramp-interior rows give way on their
+    own), or to lengthen a ramp whose own two rows crowd. Move the events
+    apart.""")
 
 MODULATION_UNREACHABLE = Code(
     "hardware.modulation-unreachable", "error", stage="physics",
@@ -56,7 +62,9 @@ OUT_OF_RANGE = Code(
     doc="""
     A value that, after calibration, lies outside the output's range (for
     example 11 V on a +-10 V analog output, or a synth frequency above its
-    maximum). The hardware would clip or wrap it. Lower the value or check the
+    maximum). The hardware would clip or wrap it. The fix says whether to
+    raise or lower the value and names the limit in the channel's physical
+    unit (through its calibration, kept within its hard limits), or check the
     calibration.""")
 
 OUTSIDE_CALIBRATION = Code(

@@ -52,8 +52,11 @@ RAMP_TOO_FAST = Code(
     source="seqgen's own rule: a ramp needs at least two table rows",
     doc="""
     A ramp shorter than the device's minimum interval between rows cannot be
-    produced: the device can only jump. Make the ramp longer, use a set, or use
-    a faster device.""")
+    produced: the device can only jump. Judged as compile places the ramp's
+    two end rows (both moved earlier by the channel's latency and rounded to
+    the tick), so a ramp of exactly the minimum interval passes wherever it
+    starts. The fix names the minimum interval, a whole number of ticks, which
+    always passes. Make the ramp longer, use a set, or use a faster device.""")
 
 SUB_TICK = Code(
     "timing.sub-tick", "note", stage="timeline",
