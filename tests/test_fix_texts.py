@@ -123,7 +123,8 @@ def test_ramp_of_exactly_the_minimum_interval_passes_anywhere(project, at):
 
 @pytest.mark.parametrize("at,over,channel,to", [("0.7 s", "1.4 us", "guide_power", "0.5 W"),
                                                  ("10.5 us", "0.4 us", "cross_a_power", "1 W"),
-                                                 ("0.3 s", "1 us", "sheet_power", "10 mW")])
+                                                 ("0.3 s", "1 us", "sheet_power", "10 mW"),
+                                                 ("1 ms", "1.5 us", "guide_power", "0.5 W")])
 def test_ramp_too_fast_fix_passes_off_the_tick_and_with_latency(project, at, over, channel, to):
     path = _ramp_file("sequences/faults/_ramp_fast.yaml", at, over, channel, to)
     f = one(errors(check(path)), "timing.ramp-too-fast")

@@ -67,20 +67,22 @@ def _ramp_ticks(out, dev, s) -> tuple[int, int]:
 
 @rule(RAMP_TOO_FAST)
 def ramp_faster_than_device(shot):
-    # judged on ticks, not on t1 - t0: a ramp of exactly the minimum interval can compute as 1.9999999 us
-    # in floats, and compile rounds both ends, so what counts is the ticks between its two rows
+    # a ramp must be written at least the minimum interval long (up to float error: 0.7 s + 2 us - 0.7 s is
+    # 1.99999999999e-06), and its two rows, as compile rounds its ends, must lie that many ticks apart
     for s in shot.segments:
         if s.kind != "ramp":
             continue
         out = shot.rig.outputs[s.output]
         dev = shot.rig.devices[out.device]
-        m = max(1, dev.min_interval_ticks)
+        m = dev.min_interval_ticks
+        if m < 1:  # no minimum interval: nothing is too fast
+            continue
+        min_dt = m / dev.timebase_hz
         k0, k1 = _ramp_ticks(out, dev, s)
-        if k1 - k0 < m:
-            min_dt = m / dev.timebase_hz
+        if k1 - k0 < m or s.t1 - s.t0 < min_dt - 1e-6 / dev.timebase_hz:
             # a whole number of ticks: both ends then round alike, so the ramp spans exactly m ticks or more
-            yield make(RAMP_TOO_FAST, f"ramp on '{s.output}' lasts {fmt_time((s.t1 - s.t0), unit='us')} "
-                       f"({k1 - k0} tick(s) between its rows), shorter than {dev.name}'s minimum interval "
+            rows = f" ({k1 - k0} tick(s) between its rows)" if k1 - k0 < m else ""
+            yield make(RAMP_TOO_FAST, f"ramp on '{s.output}' lasts {fmt_time((s.t1 - s.t0), unit='us')}{rows}, shorter than {dev.name}'s minimum interval "
                        f"{fmt_time(min_dt, unit='us')}", s.pos, block=s.block, time_s=s.t0,
                        hint=f"make it at least {fmt_time(min_dt, unit='us')} long, or use 'set'")
 
