@@ -1,5 +1,6 @@
-"""Optical trap stages: the trap that the trap beams on at a time make (depth with gravity, frequencies),
-and per `trap_ramp` its frequencies, depth, eta and the excitation the ramp leaves."""
+"""Optical trap stages: the sign of each trap beam's light shift, the trap that the trap beams on at a time
+make (depth with gravity, frequencies), and per `trap_ramp` its frequencies, depth, eta and the excitation
+the ramp leaves."""
 
 from __future__ import annotations
 
@@ -10,9 +11,37 @@ import numpy as np
 from scipy import constants as sc
 
 from .cache import per_shot_cache
-from .species import gaussian_beams, species
+from .species import gaussian_beams, species, trap_beams
 
 N_SAMPLES = 24  # trap evaluations per ramp: frequencies vary smoothly with power
+
+
+@dataclass(frozen=True)
+class TrapBeamShift:
+    """One trap beam's ground-state light shift per intensity U/I (J per W/m^2; > 0 repels) and scalar
+    polarisability (atomic units, < 0 repels) at its wavelength (m) for the sample's species."""
+
+    beam: str
+    wavelength: float
+    potential_per_intensity: float
+    polarizability_au: float
+
+    @property
+    def repulsive(self) -> bool:
+        return self.potential_per_intensity > 0
+
+
+@per_shot_cache(lambda shot: ("trap-beam-shifts",))
+def trap_beam_shifts(shot) -> tuple:
+    """TrapBeamShift of every trap beam of the rig (rig order), () without a known species."""
+    from ..physics.optical import dipole_potential_per_intensity, scalar_polarizability_au
+
+    sp = species(shot)
+    if sp is None:
+        return ()
+    return tuple(TrapBeamShift(b.name, b.wavelength_m, float(dipole_potential_per_intensity(sp, b.wavelength_m)),
+                               float(scalar_polarizability_au(sp, b.wavelength_m)))
+                 for b in trap_beams(shot))
 
 
 @dataclass(frozen=True, eq=False)
