@@ -14,7 +14,7 @@ from scipy import constants as sc
 
 from seqgen.pipeline import preflight
 from seqgen.predict.imaging import probe_analysis, probe_line
-from seqgen.predict.traps import trap_beam_shifts
+from seqgen.predict.traps import trap_beam_shifts, trap_stage_prediction
 from seqgen.resolve.sequence import resolve
 from seqgen.resolve.sources import load_sources
 
@@ -81,8 +81,9 @@ def test_probe_off_resonance_finding_names_the_detuning_and_the_fix():
 
 def test_green_trap_beam_repels_rubidium():
     shot = shot_of(FAULTS / "repulsive_trap_beam.yaml")
-    (sh,) = trap_beam_shifts(shot)
-    assert sh.beam == "trap" and sh.repulsive
+    shifts = {s.beam: s for s in trap_beam_shifts(shot)}
+    sh = shifts["trap"]
+    assert sh.repulsive and not shifts["near"].repulsive  # 800 nm is red of both Rb lines
     # Rb-87 D lines, weights 1/3 and 2/3, written out by hand with the Rb data
     w = 2 * math.pi * sc.c / 532e-9
     ref = 0.0
@@ -120,3 +121,35 @@ def test_demos_trap_beams_attract_and_raise_no_new_code(path):
         assert s.potential_per_intensity == pytest.approx(dipole_u_per_intensity(s.wavelength), rel=1e-6)
     res = preflight(path, compile_tables=False)
     assert not [f.code for f in res.findings if f.code in NEW]
+
+
+def test_trap_heating_over_the_ramp_against_hand_formula():
+    # 800 nm, 55 um waist, 0.2 W -> 0.1 W over 1 s (rig_rb87_traps.yaml, trap_heating.yaml); the sag (< 1 um)
+    # is neglected: dT/dt = T_rec Gamma_sc(I0) / 3 (Adv. At. Mol. Opt. Phys. 42, 95 (2000)), proportional to
+    # the power, and a smooth ramp symmetric about its middle has mean power 0.15 W
+    shot = shot_of(FAULTS / "trap_heating.yaml")
+    (act,) = shot.actions("trap_ramp")
+    rep = trap_stage_prediction(shot, act)
+    lam, w = 800e-9, 55e-6
+    om = 2 * math.pi * sc.c / lam
+    per_i = 0.0
+    for weight, lam_i, g_hz in ((1 / 3, 794.978851156e-9, 5.75e6), (2 / 3, RB_D2, RB_GAMMA_HZ)):
+        wi, gi = 2 * math.pi * sc.c / lam_i, 2 * math.pi * g_hz
+        per_i += weight * 3 * math.pi * sc.c**2 / (2 * sc.hbar * wi**3) * (om / wi) ** 3 * gi**2 * (
+            1 / (wi - om) + 1 / (wi + om)) ** 2
+    mass = 86.909180531 * sc.physical_constants["atomic mass constant"][0]  # AME2020 (from memory)
+    t_rec = sc.hbar**2 * (2 * math.pi / lam) ** 2 / (mass * sc.k)
+    rate_per_w = t_rec * per_i * 2 / (math.pi * w**2) / 3
+    assert rep.heating_rate == pytest.approx(rate_per_w * 0.2, rel=2e-3)
+    assert rep.heating == pytest.approx(rate_per_w * 0.15 * 1.0, rel=2e-2)
+    res = preflight(FAULTS / "trap_heating.yaml", compile_tables=False)
+    (hit,) = [f for f in res.findings if f.code == "physics.trap-heating"]
+    assert hit.severity == "warning" and hit.line == 12
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
+def test_demo_trap_heating_stays_below_the_sample_temperature(path):
+    shot = shot_of(path)
+    for act in shot.actions("trap_ramp"):
+        assert 0 < trap_stage_prediction(shot, act).heating < shot.sample.temperature_k
+    assert not [f for f in preflight(path, compile_tables=False).findings if f.code == "physics.trap-heating"]

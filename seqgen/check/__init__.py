@@ -26,6 +26,7 @@ RULES: tuple[Rule, ...] = (
     timing.overlapping_writes, timing.sub_tick_timing, timing.ramp_faster_than_device,
     timing.latency_reorders_edges, timing.edges_within_jitter,
     physics_traps.repulsive_trap_beam, physics_traps.trap_lost, physics_traps.nonadiabatic_ramp, physics_traps.shallow_trap,
+    physics_traps.trap_heating,
     physics_traps.cloud_outside_view, physics_traps.cloud_out_of_focus, physics_traps.cloud_clipped,
     physics_states.pulse_angle, physics_states.pulse_detuned, physics_states.sweep_not_adiabatic,
     physics_states.modulation_off_resonance, physics_states.modulation_unreachable,

@@ -9,7 +9,7 @@ import numpy as np
 from scipy import constants as sc
 
 from ..codes import (CLOUD_CLIPPED, CLOUD_OUTSIDE_VIEW, CLOUD_OUT_OF_FOCUS, NONADIABATIC_RAMP, REPULSIVE_TRAP_BEAM,
-                     SHALLOW_TRAP, TRAP_LOST)
+                     SHALLOW_TRAP, TRAP_HEATING, TRAP_LOST)
 from ..findings import make
 from ..predict.cloud import focus_offset, image_prediction, view_reach
 from ..predict.species import species
@@ -60,6 +60,27 @@ def trap_lost(shot):
             yield make(TRAP_LOST, f"the trap no longer holds {shot.sample.species} against gravity from "
                        f"t = {fmt_time(t, 6, unit='ms')} (power of '{beam}' {value_at(shot, act.args['output'], t)[0] * 1e3:.4g} mW)",
                        act.pos, block=act.block, time_s=t, hint=hint)
+
+
+# warn when the trap light alone would add the sample's whole temperature over a ramp (common practice, no
+# source); an evaporation ramp carries part of it away, so a smaller share is not worth a warning
+HEATING_LIMIT = 1.0
+
+
+@rule(TRAP_HEATING, stage="physics")
+def trap_heating(shot):
+    if shot.sample is None or not shot.sample.temperature_k or species(shot) is None:
+        return
+    temp = shot.sample.temperature_k
+    for act in trap_ramps(shot):
+        rep = trap_stage_prediction(shot, act)
+        if rep.heating > HEATING_LIMIT * temp:
+            yield make(TRAP_HEATING, f"photon scattering from the trap light heats {shot.sample.species} by "
+                       f"{fmt_temperature(rep.heating)} during the ramp of '{act.args['beam']}' (up to "
+                       f"{fmt_temperature(rep.heating_rate)}/s at the trap minimum), more than the sample's "
+                       f"{fmt_temperature(temp)}", act.pos, block=act.block, time_s=act.t0,
+                       hint="use a trap wavelength farther from the D lines (e.g. 1064 nm), a shorter ramp or less power",
+                       data={"heating_k": rep.heating, "heating_rate_k_s": rep.heating_rate, "temperature_k": temp})
 
 
 @rule(NONADIABATIC_RAMP, stage="physics")

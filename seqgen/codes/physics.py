@@ -519,6 +519,21 @@ TRANSITION_UNPOPULATED = Code(
     not model may have filled the state. Fix the pulse's `transition` or
     the sample's `state`.""")
 
+TRAP_HEATING = Code(
+    "physics.trap-heating", "warning", stage="physics",
+    source=("photon scattering rate of the D lines and recoil heating dT/dt = T_rec Gamma_sc / 3 in a "
+            "harmonic trap: Adv. At. Mol. Opt. Phys. 42, 95 (2000); heating above the sample temperature "
+            "(common practice, no source)"),
+    doc="""
+    The trap light heats the atoms during a trap ramp: each photon
+    scattered from the trap beams adds two recoil energies, so at the trap
+    minimum dT/dt = T_rec Gamma_sc / 3 (k_B T_rec = hbar^2 k^2 / m), and
+    integrated over the ramp (with the power as played) the heating exceeds
+    the sample's temperature. A trap close to the D lines (a few nm) scatters
+    orders of magnitude more than one at 1064 nm for the same depth, since
+    the depth falls as 1/Delta but the scattering as 1/Delta^2. Use a trap
+    wavelength farther from the lines, a shorter stage, or less power.""")
+
 TRAP_LOST = Code(
     "physics.trap-lost", "error", stage="physics",
     source=("optical dipole potential: Adv. At. Mol. Opt. Phys. 42, 95 (2000); standard gravity g_n "

@@ -74,3 +74,30 @@ def test_rb87_polarisability_at_1064_nm_near_published():
     # about 687 a.u. at 1064 nm (Phys. Rev. A 73, 022505 (2006), from memory); the D1 + D2 model leaves out
     # the core and the higher P lines (a few per cent)
     assert opt.scalar_polarizability_au(get_species("Rb87"), 1064e-9) == pytest.approx(687, rel=0.06)
+
+
+def _scattering_per_intensity(lam, d1, d2, g1_hz, g2_hz):
+    # ODT review: Gamma_sc/I = sum w_i 3 pi c^2 / (2 hbar w_i^3) (w/w_i)^3 Gamma_i^2 [1/(w_i - w) + 1/(w_i + w)]^2
+    w = 2 * np.pi * sc.c / lam
+    total = 0.0
+    for weight, lam_i, g_hz in ((1 / 3, d1, g1_hz), (2 / 3, d2, g2_hz)):
+        wi, gi = 2 * np.pi * sc.c / lam_i, 2 * np.pi * g_hz
+        total += weight * 3 * np.pi * sc.c**2 / (2 * sc.hbar * wi**3) * (w / wi) ** 3 * gi**2 * (1 / (wi - w) + 1 / (wi + w)) ** 2
+    return total
+
+
+def test_held_trap_heating_is_recoil_heating_at_the_focus():
+    # dT/dt = T_rec Gamma_sc / 3, k_B T_rec = hbar^2 k^2 / m (ODT review); one horizontal beam, the atoms sit
+    # at the harmonic gravity sag z = g_n / omega_r^2, omega_r^2 = 4 U0 / (m w^2), where I = I0 exp(-2 z^2/w^2)
+    sp = get_species("Rb87")
+    lam, p, w = 1064e-9, 1.0, 50e-6
+    depth, omegas, rate = opt.held_trap_heating(sp, [opt.GaussianBeam(p, w, lam)])
+    i0 = 2 * p / (np.pi * w**2)
+    t_rec = sc.hbar**2 * (2 * np.pi / lam) ** 2 / (sp.mass_kg * sc.k)
+    u0 = -_two_line_potential_per_intensity(lam, RB_D1, RB_D2, RB_GAMMA_D1, RB_GAMMA_D2) * i0
+    sag = 9.80665 / (4 * u0 / (sp.mass_kg * w**2))  # standard gravity (SI Brochure)
+    i_min = i0 * np.exp(-2 * sag**2 / w**2)
+    ref = t_rec * _scattering_per_intensity(lam, RB_D1, RB_D2, RB_GAMMA_D1, RB_GAMMA_D2) * i_min / 3
+    assert depth > 0 and omegas is not None
+    assert rate == pytest.approx(ref, rel=3e-4)
+    assert opt.held_trap(sp, [opt.GaussianBeam(p, w, lam)])[0] == depth
