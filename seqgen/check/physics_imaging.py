@@ -1,14 +1,37 @@
-"""Rules on the absorption-imaging probe: Doppler shift, recoil blur, exposure. They read
+"""Rules on the absorption-imaging probe: its D line, Doppler shift, recoil blur, exposure. They read
 `seqgen.predict.imaging`."""
 
 from __future__ import annotations
 
-from ..codes import EXPOSURE_TOO_SHORT, IMAGING_BLUR, PROBE_DOPPLER
+from ..codes import EXPOSURE_TOO_SHORT, IMAGING_BLUR, PROBE_DOPPLER, PROBE_OFF_RESONANCE
 from ..findings import make
-from ..predict.imaging import images, probe_analysis
+from ..predict.imaging import images, probe_analysis, probe_line
+from ..predict.species import species
 from ..textfmt import fmt_freq, fmt_length, fmt_time
 from .rules import rule
 
+
+def _freq(f):
+    return f"{f / 1e12:.4g} THz" if f >= 1e12 else fmt_freq(f)
+
+
+@rule(PROBE_OFF_RESONANCE, stage="physics")
+def probe_off_resonance(shot):
+    for act in images(shot):
+        line = probe_line(shot, act)
+        if line is None or line.on_line:
+            continue
+        rep = probe_analysis(shot, act)
+        setup = shot.rig.imaging[act.args["setup"]]
+        scatter = (f"; it scatters {rep.photons:.3g} photons per atom" if rep else "")
+        yield make(PROBE_OFF_RESONANCE, f"probe beam '{setup.probe_beam}' at {line.wavelength * 1e9:.7g} nm is "
+                   f"{_freq(abs(line.detuning_hz))} {'blue' if line.detuning_hz > 0 else 'red'} of the "
+                   f"{shot.sample.species} {line.line} line at {line.line_wavelength * 1e9:.7g} nm, "
+                   f"{abs(line.detuning_linewidths):.3g} natural linewidths (limit {line.tolerance_hz / line.linewidth_hz:.3g})"
+                   f"{scatter}", act.pos, block=act.block, time_s=act.t0,
+                   hint=f"set the wavelength of '{setup.probe_beam}' to the {shot.sample.species} D2 line, "
+                        f"{species(shot).d2_wavelength_m * 1e9:.10g} nm",
+                   data={"detuning_hz": line.detuning_hz, "detuning_linewidths": line.detuning_linewidths})
 
 
 @rule(PROBE_DOPPLER, stage="physics")

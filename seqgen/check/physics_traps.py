@@ -1,34 +1,86 @@
-"""Rules on optical trap stages (adiabaticity, depth against temperature and gravity) and on the cloud at an
+"""Rules on optical trap beams and stages (a trap beam that repels, adiabaticity, depth against temperature
+and gravity) and on the cloud at an
 image after release (field of view, depth of field, aperture). They read `seqgen.predict.traps` and
 `seqgen.predict.cloud`."""
 
 from __future__ import annotations
 
 import numpy as np
+from scipy import constants as sc
 
-from ..codes import CLOUD_CLIPPED, CLOUD_OUTSIDE_VIEW, CLOUD_OUT_OF_FOCUS, NONADIABATIC_RAMP, SHALLOW_TRAP, TRAP_LOST
+from ..codes import (CLOUD_CLIPPED, CLOUD_OUTSIDE_VIEW, CLOUD_OUT_OF_FOCUS, NONADIABATIC_RAMP, REPULSIVE_TRAP_BEAM,
+                     SHALLOW_TRAP, TRAP_HEATING, TRAP_LOST)
 from ..findings import make
 from ..predict.cloud import focus_offset, image_prediction, view_reach
 from ..predict.species import species
 from ..predict.text import size_text, who, why_there
-from ..predict.traps import trap_ramps, trap_stage_prediction
+from ..predict.traps import trap_beam_shifts, trap_ramps, trap_stage_prediction
 from ..textfmt import fmt_length, fmt_temperature, fmt_time
 from ..values import value_at
 from .rules import rule
+
+
+def _first_on(shot, channel):
+    """The first write that gives `channel` a positive value, or None."""
+    for seg in shot.segments:
+        if seg.output == channel and max(seg.v1, seg.v0 or 0.0) > 0:
+            return seg
+    return None
+
+
+@rule(REPULSIVE_TRAP_BEAM, stage="physics")
+def repulsive_trap_beam(shot):
+    for sh in trap_beam_shifts(shot):
+        seg = _first_on(shot, shot.rig.beams[sh.beam].power_channel) if sh.repulsive else None
+        if seg is None:
+            continue
+        yield make(REPULSIVE_TRAP_BEAM, f"trap beam '{sh.beam}' at {sh.wavelength * 1e9:.6g} nm repels "
+                   f"{shot.sample.species}: its light shift is +k_B x {fmt_temperature(sh.potential_per_intensity * 1e7 / sc.k)} per "
+                   f"kW/cm^2 (polarisability {sh.polarizability_au:.4g} a.u.), blue of the D lines; more power pushes "
+                   f"the atoms out harder", seg.pos, block=seg.block, time_s=seg.t0,
+                   hint=f"use a wavelength red of the {shot.sample.species} D1 line for '{sh.beam}' (e.g. 1064 nm)",
+                   data={"potential_per_intensity": sh.potential_per_intensity,
+                         "polarizability_au": sh.polarizability_au})
 
 
 @rule(TRAP_LOST, stage="physics")
 def trap_lost(shot):
     if species(shot) is None:
         return
+    repels = {sh.beam for sh in trap_beam_shifts(shot) if sh.repulsive}
     for act in trap_ramps(shot):
         rep = trap_stage_prediction(shot, act)
         lost = np.nonzero(rep.depth_g <= 0)[0]
         if len(lost):
             t = float(rep.times[lost[0]])
+            beam = act.args['beam']
+            # more power of a repulsive beam only pushes harder: point at the wavelength instead
+            hint = (f"'{beam}' repels the atoms (physics.repulsive-trap-beam): more power will not hold them; use a "
+                    f"wavelength red of the D1 line" if beam in repels else "end the ramp at a higher power")
             yield make(TRAP_LOST, f"the trap no longer holds {shot.sample.species} against gravity from "
-                       f"t = {fmt_time(t, 6, unit='ms')} (power of '{act.args['beam']}' {value_at(shot, act.args['output'], t)[0] * 1e3:.4g} mW)",
-                       act.pos, block=act.block, time_s=t, hint="end the ramp at a higher power")
+                       f"t = {fmt_time(t, 6, unit='ms')} (power of '{beam}' {value_at(shot, act.args['output'], t)[0] * 1e3:.4g} mW)",
+                       act.pos, block=act.block, time_s=t, hint=hint)
+
+
+# warn when the trap light alone would add the sample's whole temperature over a ramp (common practice, no
+# source); an evaporation ramp carries part of it away, so a smaller share is not worth a warning
+HEATING_LIMIT = 1.0
+
+
+@rule(TRAP_HEATING, stage="physics")
+def trap_heating(shot):
+    if shot.sample is None or not shot.sample.temperature_k or species(shot) is None:
+        return
+    temp = shot.sample.temperature_k
+    for act in trap_ramps(shot):
+        rep = trap_stage_prediction(shot, act)
+        if rep.heating > HEATING_LIMIT * temp:
+            yield make(TRAP_HEATING, f"photon scattering from the trap light heats {shot.sample.species} by "
+                       f"{fmt_temperature(rep.heating)} during the ramp of '{act.args['beam']}' (up to "
+                       f"{fmt_temperature(rep.heating_rate)}/s at the trap minimum), more than the sample's "
+                       f"{fmt_temperature(temp)}", act.pos, block=act.block, time_s=act.t0,
+                       hint="use a trap wavelength farther from the D lines (e.g. 1064 nm), a shorter ramp or less power",
+                       data={"heating_k": rep.heating, "heating_rate_k_s": rep.heating_rate, "temperature_k": temp})
 
 
 @rule(NONADIABATIC_RAMP, stage="physics")

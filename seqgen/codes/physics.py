@@ -324,6 +324,23 @@ PROBE_DOPPLER = Code(
     Delta^2/Gamma^2) and s = 2P/(pi w^2)/I_sat of the probe beam. Shorten the
     probe pulse or lower its power.""")
 
+PROBE_OFF_RESONANCE = Code(
+    "physics.probe-off-resonance", "error", stage="physics",
+    source=("D-line wavelengths and natural linewidths: the alkali D-line data compilations (Sodium D Line "
+            "Data, Rubidium 87 D Line Data, ...); steady-state scattering rate R = (Gamma/2) s / (1 + s + "
+            "4 Delta^2/Gamma^2): Laser Cooling and Trapping, Springer (1999) (from memory); 3 natural "
+            "linewidths, and a wavelength written to 0.001 nm naming its line (common practice, no source)"),
+    doc="""
+    The imaging probe is not on a D line of the sample's species: the
+    beam's wavelength is detuned from the nearest D line, delta = c/lambda -
+    c/lambda_0, by more than 3 natural linewidths (and more than the
+    rounding of a wavelength written to 0.001 nm, so that 589.158 nm still
+    names the sodium D2 line). Such a probe scatters (Gamma/2) s Gamma^2 /
+    (4 delta^2) photons per second at low saturation, far fewer than on
+    resonance: the image shows few or no atoms (a rig built for another
+    species keeps its old probe). seqgen computes the scattering with this
+    detuning. Set the probe beam's wavelength to the species' D2 line.""")
+
 PULSE_ANGLE = Code(
     "physics.pulse-angle", "error", stage="physics",
     source=("pulse area theorem, Phys. Rev. 183, 457 (1969); the rig file's drive calibration "
@@ -413,6 +430,20 @@ PUSH_VELOCITY = Code(
     gradient or the duration (the hint gives the duration), or fix
     `expect_velocity`.""")
 
+REPULSIVE_TRAP_BEAM = Code(
+    "physics.repulsive-trap-beam", "error", stage="physics",
+    source=("optical dipole potential of the D1 and D2 lines with counter-rotating terms, U = -(3 pi c^2 /"
+            " 2 omega_0^3) Gamma [1/(omega_0 - omega) + 1/(omega_0 + omega)] I per line: Adv. At. Mol. Opt. "
+            "Phys. 42, 95 (2000)"),
+    doc="""
+    A beam declared as a trap (`role: trap`) repels the sample's atoms: at
+    its wavelength the ground-state light shift of the species (D1 + D2
+    lines weighted 1/3 and 2/3) is positive, i.e. the light is blue of the
+    lines (532 nm for rubidium), and the atoms are pushed out of the
+    intensity maximum instead of held in it. More power makes it worse.
+    Use a wavelength red of the D1 line (e.g. 1064 nm), or give the beam
+    another role if it is meant as a barrier.""")
+
 ROTATION_UNRESOLVABLE = Code(
     "physics.rotation-unresolvable", "warning", stage="physics",
     source=("modulated-beam Raman coupling via the vector light shift, Adv. At. Mol. Opt. Phys. 42, 95"
@@ -488,6 +519,21 @@ TRANSITION_UNPOPULATED = Code(
     not model may have filled the state. Fix the pulse's `transition` or
     the sample's `state`.""")
 
+TRAP_HEATING = Code(
+    "physics.trap-heating", "warning", stage="physics",
+    source=("photon scattering rate of the D lines and recoil heating dT/dt = T_rec Gamma_sc / 3 in a "
+            "harmonic trap: Adv. At. Mol. Opt. Phys. 42, 95 (2000); heating above the sample temperature "
+            "(common practice, no source)"),
+    doc="""
+    The trap light heats the atoms during a trap ramp: each photon
+    scattered from the trap beams adds two recoil energies, so at the trap
+    minimum dT/dt = T_rec Gamma_sc / 3 (k_B T_rec = hbar^2 k^2 / m), and
+    integrated over the ramp (with the power as played) the heating exceeds
+    the sample's temperature. A trap close to the D lines (a few nm) scatters
+    orders of magnitude more than one at 1064 nm for the same depth, since
+    the depth falls as 1/Delta but the scattering as 1/Delta^2. Use a trap
+    wavelength farther from the lines, a shorter stage, or less power.""")
+
 TRAP_LOST = Code(
     "physics.trap-lost", "error", stage="physics",
     source=("optical dipole potential: Adv. At. Mol. Opt. Phys. 42, 95 (2000); standard gravity g_n "
@@ -498,4 +544,6 @@ TRAP_LOST = Code(
     m g z, drops to zero. Computed from the rig's beams (power from the
     sequence, waist, wavelength) with the D1 + D2 dipole potential of the
     sample's species. Raise the final power, or declare the release with a
-    `release` action if dropping the atoms is intended.""")
+    `release` action if dropping the atoms is intended. A trap beam blue of
+    the D lines repels the atoms at any power (physics.repulsive-trap-beam);
+    the hint then points at its wavelength instead.""")

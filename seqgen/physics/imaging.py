@@ -7,8 +7,11 @@ argument name says rad_s; ``linewidth_hz`` means Gamma / 2 pi.
 from __future__ import annotations
 
 import numpy as np
+from scipy import constants as sc
 
 __all__ = [
+    "optical_detuning_hz",
+    "wavelength_step_hz",
     "peak_intensity",
     "saturation_parameter",
     "scattering_rate",
@@ -46,6 +49,17 @@ def scattering_rate(gamma_rad_s, s, detuning_rad_s=0.0):
     s = np.asarray(s, dtype=float)
     d = np.asarray(detuning_rad_s, dtype=float)
     return _out(0.5 * g * s / (1 + s + 4 * (d / g) ** 2))
+
+
+def optical_detuning_hz(wavelength_m, line_wavelength_m):
+    """Detuning (Hz) of light of vacuum wavelength lambda from a line at lambda_0:
+    delta = c/lambda - c/lambda_0 (positive: blue of the line)."""
+    return _out(sc.c / np.asarray(wavelength_m, dtype=float) - sc.c / np.asarray(line_wavelength_m, dtype=float))
+
+
+def wavelength_step_hz(wavelength_m, step_m):
+    """Frequency spanned by a wavelength step d_lambda at lambda: |d nu| = c d_lambda / lambda^2 (first order)."""
+    return _out(sc.c * np.asarray(step_m, dtype=float) / np.asarray(wavelength_m, dtype=float) ** 2)
 
 
 def photons_per_atom(rate_per_s, duration_s):

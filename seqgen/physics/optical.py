@@ -381,14 +381,23 @@ def held_trap(species: Species, beams, vertical=(0, 0, 1)) -> tuple[float, np.nd
     The same numbers as effective_depth_with_gravity and trap_frequencies, for
     callers that need both (the trap-stage checks follow a ramp at many times).
     """
+    depth, omegas, _ = held_trap_heating(species, beams, vertical)
+    return depth, omegas
+
+
+def held_trap_heating(species: Species, beams, vertical=(0, 0, 1)) -> tuple[float, np.ndarray | None, float]:
+    """held_trap plus the recoil heating rate dT/dt (K/s) at the sagged minimum (0.0 when nothing is held),
+    from the same minimisation (see recoil_heating_rate)."""
     beams = _as_beams(beams)
     up = _unit(vertical)
     try:
         m = find_trap_minimum(species, beams, gravity=True, vertical=up)
     except ValueError:
-        return 0.0, None
+        return 0.0, None, 0.0
     depth = _depth_below_minimum(species, beams, m, up)
-    return depth, (m.omegas_rad_s if depth > 0 else None)
+    if depth <= 0:
+        return depth, None, 0.0
+    return depth, m.omegas_rad_s, recoil_heating_rate_at(species, beams, m.position_m)
 
 
 def _depth_below_minimum(species: Species, beams, m: TrapMinimum, up: np.ndarray) -> float:
@@ -442,6 +451,13 @@ def recoil_heating_rate(species: Species, beams, gravity: bool = True, vertical=
     """
     beams = _as_beams(beams)
     x = find_trap_minimum(species, beams, gravity=gravity, vertical=vertical).position_m
+    return recoil_heating_rate_at(species, beams, x)
+
+
+def recoil_heating_rate_at(species: Species, beams, position_m) -> float:
+    """Recoil heating dT/dt (K/s) of atoms at ``position_m``: (2/3) sum_beams E_rec Gamma_sc / k_B, as in
+    recoil_heating_rate (ODT review, Adv. At. Mol. Opt. Phys. 42, 95 (2000))."""
+    x = np.asarray(position_m, dtype=float)
     power = sum(2 * recoil_energy(species, b.wavelength_m)
-                * scattering_rate_per_intensity(species, b.wavelength_m) * b.intensity(x) for b in beams)
+                * scattering_rate_per_intensity(species, b.wavelength_m) * b.intensity(x) for b in _as_beams(beams))
     return float(power / (3 * sc.k))
