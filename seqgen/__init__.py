@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import sys
 
-__version__ = "0.1.0"
+from .version import __version__
 
 __all__ = [
     # run the pipeline

@@ -12,7 +12,7 @@ import os
 import sys
 from pathlib import Path
 
-from . import __version__
+from .version import __version__
 from .caution import CAUTION
 from .findings import format_text, summary
 from .textfmt import fmt_si

@@ -42,7 +42,8 @@ def _imports(name: str, path: Path, known: set[str]) -> set[str]:
                 mod = ".".join(base + ([node.module] if node.module else []))
             else:
                 mod = node.module or ""
-            targets = [mod] + [f"{mod}.{a.name}" for a in node.names]
+            # `from pkg import sub` imports the submodule; `from pkg import name` the package itself
+            targets = [f"{mod}.{a.name}" if f"{mod}.{a.name}" in known else mod for a in node.names]
         else:
             continue
         for t in targets:
@@ -59,8 +60,7 @@ def import_graph() -> nx.DiGraph:
     g.add_nodes_from(mods)
     for name, path in mods.items():
         for target in _imports(name, path, set(mods)):
-            if not name.startswith(target + "."):  # a module importing its own package's face is not a circle
-                g.add_edge(name, target)
+            g.add_edge(name, target)
     return g
 
 

@@ -25,7 +25,7 @@ import shutil
 import tempfile
 from pathlib import Path
 
-from .. import __version__
+from ..version import __version__
 from ..caution import CAUTION
 from ..findings import Finding, summary
 from ..model import Compiled, Shot

@@ -19,7 +19,7 @@ from __future__ import annotations
 import html
 from pathlib import Path
 
-from .. import __version__
+from ..version import __version__
 from ..findings import SEVERITIES, summary
 from ..textfmt import fmt_when
 from .plot import OutputExists, write_atomic  # noqa: F401  (OutputExists re-exported for the CLI)

@@ -21,7 +21,7 @@ from pathlib import PurePosixPath, PureWindowsPath
 from typing import Iterable, Mapping
 from urllib.parse import quote
 
-from .. import __version__
+from ..version import __version__
 from ..caution import CAUTION
 from ..findings import Finding
 

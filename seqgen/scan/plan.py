@@ -48,7 +48,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import __version__
+from ..version import __version__
 from ..codes import BAD_SCAN, MISSING_UNIT, SCAN_LENGTH_MISMATCH, SCAN_TOO_LARGE, WRONG_DIMENSION
 from ..findings import Finding, SourcePos, has_errors, make, sort_findings
 from ..load.yamlsrc import LoadError

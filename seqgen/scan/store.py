@@ -25,7 +25,7 @@ import time
 from dataclasses import replace
 from pathlib import Path
 
-from .. import __version__
+from ..version import __version__
 from ..caution import CAUTION
 from ..emit.build import BuildExists, write_build
 from ..emit.writers import file_sha256
