@@ -18,3 +18,14 @@ def _run_from_repo_root(monkeypatch):
     # file paths in findings are shown relative to the working folder
     monkeypatch.chdir(ROOT)
     yield
+
+
+@pytest.fixture
+def project(tmp_path, monkeypatch):
+    """A copy of the demo sequences; the working folder is the project root, as for `seqgen check`."""
+    import shutil
+
+    shutil.copytree(SEQUENCES, tmp_path / "sequences")
+    (tmp_path / "seqgen.toml").write_text("", encoding="utf-8")  # marks the project root
+    monkeypatch.chdir(tmp_path)
+    return tmp_path

@@ -8,57 +8,19 @@ appeared in its place. The units the fixes are expected to name are those the de
 computed by seqgen.
 """
 
-import io
-import json
 import re
-import shutil
-from contextlib import redirect_stderr, redirect_stdout
 from pathlib import Path
-from types import SimpleNamespace
 
 import pytest
 
-from seqgen.cli import main
 from seqgen.pipeline import preflight
 
-from .conftest import SEQUENCES
+from .demo_copy import check, edit, errors
 
 THERMO = "sequences/na23_thermometry.yaml"
 SCATTER = "sequences/na23_barrier_scatter.yaml"
 RIG = "sequences/rigs/na23_demo_rig.yaml"
 PREP = "sequences/common/na23_prep.yaml"
-
-
-@pytest.fixture
-def project(tmp_path, monkeypatch):
-    """A copy of the demo sequences; the working folder is the project root, as for `seqgen check`."""
-    shutil.copytree(SEQUENCES, tmp_path / "sequences")
-    (tmp_path / "seqgen.toml").write_text("", encoding="utf-8")  # marks the project root
-    monkeypatch.chdir(tmp_path)
-    return tmp_path
-
-
-def check(path):
-    """`seqgen check PATH --json --jobs 1`: the findings of the file and of every shot."""
-    out, err = io.StringIO(), io.StringIO()
-    with redirect_stdout(out), redirect_stderr(err):
-        main(["check", str(path), "--json", "--jobs", "1"])
-    assert "Traceback" not in err.getvalue()
-    doc = json.loads(out.getvalue())
-    found = list(doc["findings"]) + [f for shot in doc.get("shots", []) for f in shot["findings"]]
-    return [SimpleNamespace(**f) for f in found]
-
-
-def errors(findings):
-    return [f for f in findings if f.severity == "error"]
-
-
-def edit(path, old, new):
-    """Change the one line of `path` that holds `old`."""
-    p = Path(path)
-    text = p.read_text(encoding="utf-8")
-    assert text.count(old) == 1, old
-    p.write_text(text.replace(old, new), encoding="utf-8")
 
 
 _PROPOSED = (re.compile(r"\bwrite '([^']+)'"), re.compile(r"\be\.g\. '([^']+)'"),

@@ -6,61 +6,23 @@ no error appeared in its place. The values the fixes must name are read off the 
 devices' min_interval, its synth's frequency range, its channels' hard limits), not computed by seqgen.
 """
 
-import io
-import json
 import re
-import shutil
-from contextlib import redirect_stderr, redirect_stdout
 from pathlib import Path
-from types import SimpleNamespace
 
 import pytest
 
-from seqgen.cli import main
 from seqgen.pipeline import preflight
 
-from .conftest import SEQUENCES
+from .demo_copy import check, edit, errors
 
 RIG = "sequences/rigs/na23_demo_rig.yaml"
 _SCALE = {"ns": 1e-9, "us": 1e-6, "ms": 1e-3, "s": 1.0}
-
-
-@pytest.fixture
-def project(tmp_path, monkeypatch):
-    """A copy of the demo sequences; the working folder is the project root, as for `seqgen check`."""
-    shutil.copytree(SEQUENCES, tmp_path / "sequences")
-    (tmp_path / "seqgen.toml").write_text("", encoding="utf-8")  # marks the project root
-    monkeypatch.chdir(tmp_path)
-    return tmp_path
-
-
-def check(path):
-    """`seqgen check PATH --json --jobs 1`: the findings of the file and of every shot."""
-    out, err = io.StringIO(), io.StringIO()
-    with redirect_stdout(out), redirect_stderr(err):
-        main(["check", str(path), "--json", "--jobs", "1"])
-    assert "Traceback" not in err.getvalue()
-    doc = json.loads(out.getvalue())
-    found = list(doc["findings"]) + [f for shot in doc.get("shots", []) for f in shot["findings"]]
-    return [SimpleNamespace(**f) for f in found]
-
-
-def errors(findings):
-    return [f for f in findings if f.severity == "error"]
 
 
 def one(findings, code):
     hits = [f for f in findings if f.code == code]
     assert hits, [(f.code, f.message) for f in findings]
     return hits[0]
-
-
-def edit(path, old, new):
-    """Change the one place of `path` that holds `old`."""
-    p = Path(path)
-    text = p.read_text(encoding="utf-8")
-    assert text.count(old) == 1, old
-    p.write_text(text.replace(old, new), encoding="utf-8")
 
 
 def rig_text(pattern):
