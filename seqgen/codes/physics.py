@@ -5,6 +5,19 @@ Each code is a value: rules report it by reference, so a misspelt name fails at 
 
 from ._code import Code
 
+# sources several codes share
+_PASSAGE = ("uniform acceleration during the push, then free flight (textbook); Thomas-Fermi radius "
+            "and profile (Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University "
+            "Press (2008)); thermal width sqrt(k_B T / (m omega^2)) by equipartition (textbook); the "
+            "rig file's barrier position and waist")
+_DRIVE = ("modulated-beam Raman coupling via the vector light shift, Adv. At. Mol. Opt. Phys. 42, 95 "
+          "(2000); two-component scattering and Larmor clock, Sov. J. Nucl. Phys. 4, 182 (1967), Phys."
+          " Rev. B 27, 6178 (1983); Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)")
+_STERN_GERLACH = ("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m with moments "
+                  "from the Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)")
+_PROBE = ("steady-state scattering rate and saturation intensity, Sodium D Line Data and the other "
+          "alkali D-line data compilations; first-order Doppler shift; photon recoil (textbook)")
+
 BARRIER_NO_SIGNAL = Code(
     "physics.barrier-no-signal", "warning", stage="physics",
     source=("atom number per image above a detection floor, default 100 atoms (common practice, no "
@@ -19,9 +32,7 @@ BARRIER_NO_SIGNAL = Code(
 
 BARRIER_ROTATION = Code(
     "physics.barrier-rotation", "note", stage="physics",
-    source=("modulated-beam Raman coupling via the vector light shift, Adv. At. Mol. Opt. Phys. 42, 95"
-            " (2000); two-component scattering and Larmor clock, Sov. J. Nucl. Phys. 4, 182 (1967), "
-            "Phys. Rev. B 27, 6178 (1983); Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)"),
+    source=_DRIVE,
     doc="""
     The spin rotation that an intensity-modulated barrier drives in the
     atoms it transmits. The modulation couples the sample state to the other
@@ -36,11 +47,7 @@ BARRIER_ROTATION = Code(
 
 BARRIER_TOO_LATE = Code(
     "physics.barrier-too-late", "warning", stage="physics",
-    source=("uniform acceleration during the push, then free flight (textbook); Thomas-Fermi radius "
-            "and profile (Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University "
-            "Press (2008)); thermal width sqrt(k_B T / (m omega^2)) by equipartition (textbook); the "
-            "rig file's barrier position and waist; at most 10 % of the cloud missed (common practice,"
-            " no source)"),
+    source=_PASSAGE + "; at most 10 % of the cloud missed (common practice, no source)",
     doc="""
     The barrier comes on after part of the cloud has reached it: more than
     10 % of the atoms are at or past the sheet's near edge (d - w_y) when the
@@ -51,11 +58,7 @@ BARRIER_TOO_LATE = Code(
 
 BARRIER_TOO_SHORT = Code(
     "physics.barrier-too-short", "warning", stage="physics",
-    source=("uniform acceleration during the push, then free flight (textbook); Thomas-Fermi radius "
-            "and profile (Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University "
-            "Press (2008)); thermal width sqrt(k_B T / (m omega^2)) by equipartition (textbook); the "
-            "rig file's barrier position and waist; at most 10 % of the cloud missed (common practice,"
-            " no source)"),
+    source=_PASSAGE + "; at most 10 % of the cloud missed (common practice, no source)",
     doc="""
     The barrier is off before most of the cloud has crossed it: more than
     10 % of the atoms pass the sheet's far edge (d + w_y) only after the
@@ -141,11 +144,7 @@ CLOUD_OUTSIDE_VIEW = Code(
 
 CLOUD_OVERLAPS_BARRIER = Code(
     "physics.cloud-overlaps-barrier", "warning", stage="physics",
-    source=("uniform acceleration during the push, then free flight (textbook); Thomas-Fermi radius "
-            "and profile (Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University "
-            "Press (2008)); thermal width sqrt(k_B T / (m omega^2)) by equipartition (textbook); the "
-            "rig file's barrier position and waist; a thermal cloud's edge at 2.5 rms widths (common "
-            "practice, no source)"),
+    source=_PASSAGE + "; a thermal cloud's edge at 2.5 rms widths (common practice, no source)",
     doc="""
     The cloud already reaches the barrier when it is pushed. Its edge along
     the path, in the trap just before the push (a condensate's Thomas-Fermi
@@ -178,8 +177,7 @@ COMPONENTS_OVERLAP = Code(
 
 COMPONENTS_SEPARATED = Code(
     "physics.components-separated", "note", stage="physics",
-    source=("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m with moments from the "
-            "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)"),
+    source=_STERN_GERLACH,
     doc="""
     How well a Stern-Gerlach separation resolves the two components at
     the image: their distance in combined rms widths (3 or more is enough;
@@ -187,10 +185,7 @@ COMPONENTS_SEPARATED = Code(
 
 DRIVE_TOO_STRONG = Code(
     "physics.drive-too-strong", "warning", stage="physics",
-    source=("modulated-beam Raman coupling via the vector light shift, Adv. At. Mol. Opt. Phys. 42, 95"
-            " (2000); two-component scattering and Larmor clock, Sov. J. Nucl. Phys. 4, 182 (1967), "
-            "Phys. Rev. B 27, 6178 (1983); Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); weak-probe "
-            "regime (common practice, no source)"),
+    source=_DRIVE + "; weak-probe regime (common practice, no source)",
     doc="""
     The drive inside the barrier rotates the transmitted spin by more than
     `limits: {weak_probe_angle: ...}` (default 0.3 rad). A weak probe reads the
@@ -201,8 +196,7 @@ DRIVE_TOO_STRONG = Code(
 
 EQUAL_MOMENTS = Code(
     "physics.equal-moments", "error", stage="physics",
-    source=("Stern-Gerlach separation: relative acceleration (mu_1 - mu_2) b'/m with moments from the "
-            "Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)"),
+    source=_STERN_GERLACH,
     doc="""
     A Stern-Gerlach separation of two states with equal magnetic moments
     (within 0.01 mu_B at the bias field): the gradient moves both alike and
@@ -214,10 +208,8 @@ EQUAL_MOMENTS = Code(
 
 IMAGING_BLUR = Code(
     "physics.imaging-blur", "warning", stage="physics",
-    source=("steady-state scattering rate and saturation intensity, Sodium D Line Data and the other "
-            "alkali D-line data compilations; first-order Doppler shift; photon recoil (textbook); "
-            "recoil random walk sigma = v_rec tau sqrt(N)/3 (derived in "
-            "seqgen.physics.imaging.recoil_blur)"),
+    source=(_PROBE + ("; recoil random walk sigma = v_rec tau sqrt(N)/3 (derived in "
+                     "seqgen.physics.imaging.recoil_blur)")),
     doc="""
     The random walk of spontaneous-emission recoils during the probe
     blurs the image by more than one camera pixel in the atom plane (pixel
@@ -312,9 +304,7 @@ NOT_TUNNELLING = Code(
 
 PROBE_DOPPLER = Code(
     "physics.probe-doppler", "warning", stage="physics",
-    source=("steady-state scattering rate and saturation intensity, Sodium D Line Data and the other "
-            "alkali D-line data compilations; first-order Doppler shift; photon recoil (textbook); 1 "
-            "linewidth (common practice, no source)"),
+    source=_PROBE + "; 1 linewidth (common practice, no source)",
     doc="""
     The imaging probe pushes the atoms out of resonance: after N absorbed
     photons an atom moves at N v_rec along the probe and sees a Doppler shift
@@ -446,11 +436,8 @@ REPULSIVE_TRAP_BEAM = Code(
 
 ROTATION_UNRESOLVABLE = Code(
     "physics.rotation-unresolvable", "warning", stage="physics",
-    source=("modulated-beam Raman coupling via the vector light shift, Adv. At. Mol. Opt. Phys. 42, 95"
-            " (2000); two-component scattering and Larmor clock, Sov. J. Nucl. Phys. 4, 182 (1967), "
-            "Phys. Rev. B 27, 6178 (1983); Breit-Rabi formula, Phys. Rev. 38, 2082 (1931); atom shot "
-            "noise 1/sqrt(N) of a spin-rotation measurement (quantum projection noise, Phys. Rev. A "
-            "47, 3554 (1993), from memory)"),
+    source=(_DRIVE + ("; atom shot noise 1/sqrt(N) of a spin-rotation measurement (quantum projection "
+                     "noise, Phys. Rev. A 47, 3554 (1993), from memory)")),
     doc="""
     The spin rotation driven inside the barrier is smaller than the atom
     shot noise of the transmitted atoms, about 1/sqrt(N_transmitted) rad, so
