@@ -124,6 +124,10 @@ _WHERE = {
     "CAUTION": _caution,
 }
 
+# `resolve` is also the name of the resolve stage's package, which importing it binds on this module: the
+# face's function is `resolve_shot`, so one name never means two things
+_NAMED_THERE = {"resolve_shot": "resolve"}
+
 
 def __getattr__(name: str):
     if name == "codes":
@@ -133,9 +137,7 @@ def __getattr__(name: str):
     loader = _WHERE.get(name)
     if loader is None:
         raise AttributeError(f"module 'seqgen' has no attribute {name!r}")
-    # `resolve` is also the name of the resolve stage's package, which importing it binds here: the face's
-    # function is `resolve_shot`, so one name never means two things
-    value = getattr(loader(), {"resolve_shot": "resolve"}.get(name, name))
+    value = getattr(loader(), _NAMED_THERE.get(name, name))
     globals()[name] = value  # later look-ups skip this function
     return value
 
