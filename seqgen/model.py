@@ -61,6 +61,7 @@ class Output:
     latency_fall_s: float = 0.0
     jitter_s: float = 0.0
     min_pulse_s: float = 0.0
+    settling_s: float = 0.0  # a synth's frequency settling after a frequency write
     max_slew: float | None = None  # physical units per second
     tolerance: float | None = None  # output units
     hard_min: float | None = None

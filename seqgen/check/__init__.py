@@ -21,7 +21,7 @@ __all__ = ["RULES", "STAGES", "Rule", "rule", "run_timeline_checks", "run_table_
 
 RULES: tuple[Rule, ...] = (
     hardware.output_range, hardware.outside_calibration, hardware.hard_limits, hardware.pulse_width,
-    hardware.slew_rate, hardware.memory_depth, hardware.row_spacing, hardware.finer_than_resolution,
+    hardware.synth_settling, hardware.slew_rate, hardware.memory_depth, hardware.row_spacing, hardware.finer_than_resolution,
     safety.left_on, safety.coil_current, safety.coil_heating,
     timing.overlapping_writes, timing.sub_tick_timing, timing.ramp_faster_than_device,
     timing.latency_reorders_edges, timing.edges_within_jitter,

@@ -10,6 +10,7 @@ import numpy as np
 from ..calibration import to_output, to_physical
 from ..codes import (
     HARD_LIMIT, MEMORY_DEPTH, MIN_INTERVAL, OUTSIDE_CALIBRATION, OUT_OF_RANGE, PULSE_TOO_SHORT, RESOLUTION, SLEW,
+    SYNTH_SETTLING,
 )
 from ..compile.sampling import quantize_times
 from ..findings import make
@@ -142,6 +143,42 @@ def slew_rate(shot):
                 yield make(SLEW, f"ramp on '{out.name}' changes at up to {rate:.4g} {out.phys_unit}/s, "
                            f"{rate / out.max_slew:.3g} times its max slew {out.max_slew:.4g} {out.phys_unit}/s", s.pos,
                            block=s.block, time_s=s.t0, hint=f"make the ramp at least {fmt_time((s.t1 - s.t0) * rate / out.max_slew, unit='ms')} long")
+
+
+@rule(SYNTH_SETTLING)
+def synth_settling(shot):
+    for channel, parts in shot.rig.channels.items():
+        fout = shot.rig.outputs.get(f"{channel}.freq")
+        aout = shot.rig.outputs.get(f"{channel}.amp")
+        if fout is None or aout is None or not fout.settling_s:
+            continue
+        freq_writes = sorted((s for s in shot.segments if s.output == fout.name), key=lambda s: s.t1)
+        level = aout.safe
+        for a in sorted((s for s in shot.segments if s.output == aout.name), key=lambda s: s.t0):
+            start, level = level, a.v1 if a.kind == "set" else a.v0
+            rises = start <= 0 < max(a.v1, a.v0 or 0.0)
+            level = a.v1
+            if not rises:
+                continue
+            # the last frequency write that ends at or before the amplitude rises (same channel, same latency)
+            last = None
+            for f in freq_writes:
+                if f.t1 > a.t0 + 1e-12:
+                    break
+                last = f
+            if last is None or a.t0 - last.t1 >= fout.settling_s * (1 - 1e-9):
+                continue
+            gap = a.t0 - last.t1
+            yield make(SYNTH_SETTLING, f"'{channel}' turns its amplitude on {fmt_time(gap, unit='us')} after its frequency "
+                       f"was written ({last.pos.file}:{last.pos.line}, block '{last.block}'); it settles in "
+                       f"{fmt_time(fout.settling_s, unit='us')}, so the pulse starts while the frequency is in transit (for "
+                       f"another {fmt_time(fout.settling_s - gap, unit='us')})",
+                       a.pos, block=a.block, time_s=a.t0,
+                       hint=f"write the frequency at least {fmt_time(fout.settling_s, unit='us')} before the pulse "
+                            f"(at or before t = {fmt_time(a.t0 - fout.settling_s, unit='ms')}), or give the "
+                            f"clock_pulse its `frequency:`, which it writes that far ahead",
+                       data={"settling_s": fout.settling_s, "gap_s": gap,
+                             "frequency_write": f"{last.pos.file}:{last.pos.line}"})
 
 
 @rule(MEMORY_DEPTH, stage="tables")

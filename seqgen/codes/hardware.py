@@ -114,6 +114,17 @@ RESOLUTION = Code(
     deviates from the intended curve by up to half an LSB, more than the
     tolerance asked for.""")
 
+SYNTH_SETTLING = Code(
+    "hardware.synth-settling", "warning", stage="timeline",
+    source=("the rig file's settling time per synth channel (the device's data sheet: frequency switching and "
+            "settling time)"),
+    doc="""
+    A synth's amplitude turns on less than its settling time after its
+    frequency was written: for the first part of the pulse the output is
+    still on its way to the new frequency, so the pulse is played partly off
+    the line. Write the frequency at least the settling time before the
+    amplitude rises (a `clock_pulse` with `frequency:` does this by itself).""")
+
 SLEW = Code(
     "hardware.slew", "error", stage="timeline",
     source="the rig file's max_slew per channel (e.g. a coil driver's voltage compliance)",

@@ -307,7 +307,9 @@ def lower_clock_pulse(ctx, spec, t0, path):
         args["frequency"] = ctx.q(spec, "frequency", path, "Hz", positive=True, **_freq_fit(ctx, ch))
         fout = ctx.rig.outputs.get(f"{ch}.freq")
         if fout is not None:
-            ctx.seg(fout, "set", t0, t0, None, args["frequency"], "clock_pulse", path + ("frequency",))
+            # written a settling time ahead, so the pulse plays the new frequency from its first tick
+            tf = t0 - fout.settling_s
+            ctx.seg(fout, "set", tf, tf, None, args["frequency"], "clock_pulse", path + ("frequency",))
     if "detuning" in spec:
         args["detuning"] = ctx.q(spec, "detuning", path, "Hz")
     if spec.get("transition"):

@@ -252,6 +252,8 @@ def _common(c, base, q, opt, doc, findings):
         out["latency_rise_s"] = out["latency_fall_s"] = v
     out["jitter_s"] = opt(base + ("jitter",), "s", nonnegative=True) or 0.0
     out["min_pulse_s"] = opt(base + ("min_pulse",), "s", nonnegative=True) or 0.0
+    if c.get("kind") == "synth":
+        out["settling_s"] = opt(base + ("settling",), "s", nonnegative=True) or 0.0
     cal = None
     calspec = c.get("calibration")
     phys = None
