@@ -74,9 +74,24 @@ def validate_document(doc: Document, schema_name: str) -> list[Finding]:
     return findings_from_errors(validator.iter_errors(doc.data), doc)
 
 
+def _unit_left_to_resolve(err) -> bool:
+    """A bare number where a unit is needed: the schema refuses it for editors, and resolve reports it as
+    schema.missing-unit with the unit to write (a better fix than a pattern mismatch)."""
+    if isinstance(err.schema, dict) and str(err.schema.get("$comment", "")).startswith("dimensioned"):
+        return isinstance(err.instance, (int, float, str)) and not isinstance(err.instance, bool)
+    if err.validator not in ("oneOf", "anyOf") or not err.context:
+        return False
+    # a choice (a latency, or its rise and fall): dropped when one branch fails only for bare numbers
+    branches: dict = {}
+    for sub in err.context:
+        branches.setdefault(sub.relative_schema_path[0], []).append(sub)
+    return any(all(_unit_left_to_resolve(sub) for sub in subs) for subs in branches.values())
+
+
 def findings_from_errors(errors, doc: Document) -> list[Finding]:
     """Findings for jsonschema's errors on `doc`, in path order, at most MAX_REPORTED."""
-    errors = sorted(errors, key=lambda e: (list(map(str, e.absolute_path)), e.validator))
+    errors = sorted((e for e in errors if not _unit_left_to_resolve(e)),
+                    key=lambda e: (list(map(str, e.absolute_path)), e.validator))
     # the allowed values at each path, for a const: that names one of them (a former name and its new one)
     enums = {tuple(e.absolute_path): e.validator_value for e in errors if e.validator == "enum"}
     findings: list[Finding] = []
@@ -134,6 +149,11 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document, enums: dict | N
         if key is not None:
             return [make(BAD_VALUE, f"{where} has more than one anchor (at / after / with)", doc.pos(path + (key,)),
                          hint="keep exactly one of at:, after:, with:")]
+    if v == "anyOf" and isinstance(err.schema, dict) and str(err.schema.get("$comment", "")).startswith("dimensioned"):
+        got = ("a mapping" if isinstance(err.instance, dict) else "a list" if isinstance(err.instance, list) else
+               "a yes/no value" if isinstance(err.instance, bool) else repr(err.instance))
+        return [make(WRONG_TYPE, f"{where} must be a quantity with its unit, not {got}", doc.pos(path),
+                     hint="give a single quantity such as '2 ms'")]
     if v in ("oneOf", "anyOf"):
         best = jsonschema.exceptions.best_match(err.context) if err.context else None
         if best is not None and best.validator not in ("oneOf", "anyOf"):
