@@ -153,6 +153,11 @@ def transition_unpopulated(shot):
                    data={"fraction_initial": fr.get(a, 0.0), "fraction_final": fr.get(b, 0.0)})
 
 
+def _dm(a, b) -> str:
+    d = b[1] - a[1]
+    return f"{d:+d}" if d else "0"
+
+
 def _pol_text(pol) -> str:
     return pol if isinstance(pol, str) else f"a field along {fmt_vec(pol)} (z: the bias axis)"
 
@@ -199,7 +204,7 @@ def transition_forbidden(shot):
             a, b = c.pair
             yield make(TRANSITION_FORBIDDEN, f"the clock pulse on '{drive.name}' drives {fmt_state(*a)} -> "
                        f"{fmt_state(*b)}, which its polarisation ({_pol_text(drive.polarisation)}) cannot drive: the "
-                       f"magnetic-dipole matrix element is zero (Delta mF = {b[1] - a[1]:+d}), so the pulse moves no atoms",
+                       f"magnetic-dipole matrix element is zero (Delta mF = {_dm(a, b)}), so the pulse moves no atoms",
                        act.pos, block=act.block, time_s=act.t0, hint=_forbidden_pulse_hint(shot, drive, act, rep, c.pair),
                        data={"element_j_per_t": c.element})
     for drive, seg in sweeps(shot):
@@ -212,19 +217,23 @@ def transition_forbidden(shot):
             yield make(TRANSITION_FORBIDDEN, f"the sweep of '{drive.name}' passes the {fmt_state(*a)} -> "
                        f"{fmt_state(*b)} line, which its polarisation ({_pol_text(drive.polarisation)}) cannot drive: "
                        f"the sweep moves no atoms", seg.pos, block=seg.block, time_s=seg.t0,
-                       hint="a sweep drives the sample state to the other hyperfine level at equal mF: sweep with a "
-                            "drive that has a pi component (polarisation: pi, or a field with a z part)",
+                       hint="a sweep drives the sample state to the other hyperfine level at equal mF (Delta mF = 0), "
+                            "which needs a field component along the bias axis: sweep with a drive whose field has one",
                        data={"element_j_per_t": c.element})
     for drive, c in references.values():
         if c.problem is None:
             continue
         a, b = c.reference
-        alt = allowed_instead(shot, drive, c.reference) if c.problem == REFERENCE_FORBIDDEN else ()
-        why = ("which its polarisation cannot drive" if c.problem == REFERENCE_FORBIDDEN
-               else f"which is no transition of {shot.sample.species}")
-        hint = (f"name the transition the Rabi frequency was measured on, one the polarisation drives, e.g. "
-                f"calibrated_on: {{from: {{F: {alt[0][0][0]}, mF: {alt[0][0][1]}}}, to: {{F: {alt[0][1][0]}, "
-                f"mF: {alt[0][1][1]}}}}}" if alt else "name the transition the Rabi frequency was measured on")
+        if c.problem == REFERENCE_FORBIDDEN:
+            # a Rabi frequency measured on this transition shows the field drives it: one of the two keys is wrong,
+            # and only the lab knows which, so the hint names no value
+            why = "which its polarisation cannot drive"
+            hint = (f"a Rabi frequency measured on {fmt_state(*a)} -> {fmt_state(*b)} shows that the field drives it "
+                    f"(Delta mF = {_dm(a, b)}): state the field's direction with that component "
+                    f"(polarisation: [x, y, z]), or name the transition the calibration was measured on (calibrated_on)")
+        else:
+            why = f"which is no transition of {shot.sample.species}"
+            hint = f"name two ground levels of {shot.sample.species} in calibrated_on: the transition the calibration was measured on"
         yield make(TRANSITION_FORBIDDEN, f"drive '{drive.name}' is calibrated_on {fmt_state(*a)} -> {fmt_state(*b)}, "
                    f"{why} ({_pol_text(drive.polarisation)}): its rabi_per_amplitude is used unscaled for every "
                    f"transition", drive.pos, hint=hint)
