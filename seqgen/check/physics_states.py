@@ -173,7 +173,7 @@ def _forbidden_pulse_hint(shot, drive, act, rep, pair) -> str:
     alt = allowed_instead(shot, drive, pair)
     if not alt:
         return (f"no transition from {fmt_state(*pair[0])} to F={pair[1][0]} is driven by {_pol_text(drive.polarisation)}:"
-                f" use a drive that has the polarisation, or state the field the drive has (polarisation: [x, y, z])")
+                f" use a drive whose field drives this transition, or state the field this drive has (polarisation: [x, y, z])")
     new = alt[0]
     parts = [_transition_text(new)]
     factor = coupling_factor(shot, drive, new)
