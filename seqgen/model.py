@@ -119,6 +119,9 @@ class Drive:
     kind: str = "microwave"
     light_shift_hz: float = 0.0
     pos: SourcePos = SourcePos("")
+    # both None: rabi_per_amplitude_hz holds for every transition (the rig states neither)
+    polarisation: str | tuple | None = None  # "sigma+" | "sigma-" | "pi" | unit (x, y, z), z along the bias field
+    calibrated_on: tuple | None = None  # ((F, mF), (F, mF)): the transition rabi_per_amplitude_hz was measured on
 
 
 @dataclass(frozen=True)

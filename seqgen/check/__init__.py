@@ -30,6 +30,7 @@ RULES: tuple[Rule, ...] = (
     physics_traps.cloud_outside_view, physics_traps.cloud_out_of_focus, physics_traps.cloud_clipped,
     physics_states.pulse_angle, physics_states.pulse_detuned, physics_states.sweep_not_adiabatic,
     physics_states.modulation_off_resonance, physics_states.modulation_unreachable,
+    physics_states.transition_forbidden,
     physics_states.transition_unpopulated, physics_pushes.push_velocity, physics_pushes.push_away_from_barrier,
     physics_pushes.push_no_force, physics_pushes.push_too_late, physics_pushes.equal_moments,
     physics_pushes.components_overlap, physics_pushes.components_separated, physics_imaging.probe_off_resonance,

@@ -5,16 +5,20 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from ..codes import (
     MODULATION_OFF_RESONANCE, MODULATION_UNREACHABLE, PULSE_ANGLE, PULSE_DETUNED, SWEEP_NOT_ADIABATIC,
-    TRANSITION_UNPOPULATED,
+    TRANSITION_FORBIDDEN, TRANSITION_UNPOPULATED,
 )
 from ..findings import make
-from ..predict.species import bias, sample_state, species
-from ..predict.states import (LZ_MIN_TRANSFER, barrier_drive_analysis, barriers, populated_states, populations,
-                              pulse_analysis, pulse_fourier_width, pulses, rel_off, state_fractions, sweep_analysis,
-                              sweeps)
-from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time
+from ..predict.species import (REFERENCE_FORBIDDEN, allowed_instead, bias, coupling_factor, drive_coupling, line,
+                               sample_state, species)
+from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, barriers, populated_states,
+                              populations, pulse_analysis, pulse_fourier_width, pulse_nodes, pulses, rel_off,
+                              state_fractions, sweep_analysis, sweeps)
+from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec
+from ..values import value_at
 from .rules import rule
 
 TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
@@ -68,6 +72,9 @@ def sweep_not_adiabatic(shot):
         rep = sweep_analysis(shot, drive, seg)
         if rep is None:
             continue
+        coupling = drive_coupling(shot, drive)
+        if coupling is not None and coupling.forbidden:
+            continue  # the polarisation cannot drive the pair at all: physics.transition-forbidden says so
         bloch = f"; integrated transfer {rep.bloch_transfer:.3g}" if rep.bloch_transfer is not None else ""
         if not rep.crosses:
             yield make(SWEEP_NOT_ADIABATIC, f"sweep of '{drive.name}' from {fmt_freq(rep.f0, 10)} to "
@@ -144,3 +151,89 @@ def transition_unpopulated(shot):
                    f"{fmt_state(*b)}, but neither state holds atoms: before it the atoms are in {where}", act.pos,
                    block=act.block, time_s=act.t0, hint=hint,
                    data={"fraction_initial": fr.get(a, 0.0), "fraction_final": fr.get(b, 0.0)})
+
+
+def _dm(a, b) -> str:
+    d = b[1] - a[1]
+    return f"{d:+d}" if d else "0"
+
+
+def _pol_text(pol) -> str:
+    return pol if isinstance(pol, str) else f"a field along {fmt_vec(pol)} (z: the bias axis)"
+
+
+def _transition_text(pair) -> str:
+    (f1, m1), (f2, m2) = pair
+    return f"transition: [{{F: {f1}, mF: {m1}}}, {{F: {f2}, mF: {m2}}}]"
+
+
+def _forbidden_pulse_hint(shot, drive, act, rep, pair) -> str:
+    """The allowed transition from the same state, with the duration that gives the pulse's angle there and its
+    line (pulse area ~ duration for a given envelope)."""
+    alt = allowed_instead(shot, drive, pair)
+    if not alt:
+        return (f"no transition from {fmt_state(*pair[0])} to F={pair[1][0]} is driven by {_pol_text(drive.polarisation)}:"
+                f" use a drive whose field drives this transition, or state the field this drive has (polarisation: [x, y, z])")
+    new = alt[0]
+    parts = [_transition_text(new)]
+    factor = coupling_factor(shot, drive, new)
+    t, w = pulse_nodes(act.t0, act.t1)
+    area = TWO_PI * drive.rabi_per_amplitude_hz * factor * float(np.sum(w * value_at(shot, rep.amp_output, t)))
+    if rep.angle and area > 0:
+        parts.append(f"duration: {fmt_time(rep.duration * rep.angle / area, 5)}")
+    if "frequency" in act.args:
+        nu, _ = line(species(shot), new[0], new[1], bias(shot))
+        parts.append(f"frequency: {nu + drive.light_shift_hz + rep.intended_detuning_hz:.10g} Hz")
+    return (f"drive a transition that {_pol_text(drive.polarisation)} drives: " + ", ".join(parts)
+            + f" (Rabi frequency 2 pi x {fmt_freq(drive.rabi_per_amplitude_hz * factor)} at amplitude 1)")
+
+
+@rule(TRANSITION_FORBIDDEN, stage="physics")
+def transition_forbidden(shot):
+    """Pulses and sweeps on a transition the drive's polarisation cannot drive; drives whose calibrated_on
+    transition cannot carry the calibration over."""
+    references = {}
+    for act in pulses(shot):
+        rep = pulse_analysis(shot, act)
+        drive = shot.rig.drives.get(act.args["drive"])
+        c = drive_coupling(shot, drive, act.args.get("transition")) if rep and rep.peak > 0 else None
+        if c is None:
+            continue
+        references.setdefault(drive.name, (drive, c))
+        if c.forbidden:
+            a, b = c.pair
+            yield make(TRANSITION_FORBIDDEN, f"the clock pulse on '{drive.name}' drives {fmt_state(*a)} -> "
+                       f"{fmt_state(*b)}, which its polarisation ({_pol_text(drive.polarisation)}) cannot drive: the "
+                       f"magnetic-dipole matrix element is zero (Delta mF = {_dm(a, b)}), so the pulse moves no atoms",
+                       act.pos, block=act.block, time_s=act.t0, hint=_forbidden_pulse_hint(shot, drive, act, rep, c.pair),
+                       data={"element_j_per_t": c.element})
+    for drive, seg in sweeps(shot):
+        c = drive_coupling(shot, drive)
+        if c is None:
+            continue
+        references.setdefault(drive.name, (drive, c))
+        if c.forbidden:
+            a, b = c.pair
+            yield make(TRANSITION_FORBIDDEN, f"the sweep of '{drive.name}' passes the {fmt_state(*a)} -> "
+                       f"{fmt_state(*b)} line, which its polarisation ({_pol_text(drive.polarisation)}) cannot drive: "
+                       f"the sweep moves no atoms", seg.pos, block=seg.block, time_s=seg.t0,
+                       hint="a sweep drives the sample state to the other hyperfine level at equal mF (Delta mF = 0), "
+                            "which needs a field component along the bias axis: sweep with a drive whose field has one",
+                       data={"element_j_per_t": c.element})
+    for drive, c in references.values():
+        if c.problem is None:
+            continue
+        a, b = c.reference
+        if c.problem == REFERENCE_FORBIDDEN:
+            # a Rabi frequency measured on this transition shows the field drives it: one of the two keys is wrong,
+            # and only the lab knows which, so the hint names no value
+            why = "which its polarisation cannot drive"
+            hint = (f"a Rabi frequency measured on {fmt_state(*a)} -> {fmt_state(*b)} shows that the field drives it "
+                    f"(Delta mF = {_dm(a, b)}): state the field's direction with that component "
+                    f"(polarisation: [x, y, z]), or name the transition the calibration was measured on (calibrated_on)")
+        else:
+            why = f"which is no transition of {shot.sample.species}"
+            hint = f"name two ground levels of {shot.sample.species} in calibrated_on: the transition the calibration was measured on"
+        yield make(TRANSITION_FORBIDDEN, f"drive '{drive.name}' is calibrated_on {fmt_state(*a)} -> {fmt_state(*b)}, "
+                   f"{why} ({_pol_text(drive.polarisation)}): its rabi_per_amplitude is used unscaled for every "
+                   f"transition", drive.pos, hint=hint)

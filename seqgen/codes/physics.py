@@ -486,6 +486,29 @@ SWEEP_NOT_ADIABATIC = Code(
     Landau-Zener when the sweep starts or ends within a few Rabi frequencies
     of the line). Sweep more slowly, raise the amplitude, or widen the sweep.""")
 
+TRANSITION_FORBIDDEN = Code(
+    "physics.transition-forbidden", "error", stage="physics",
+    source=("magnetic-dipole matrix elements <f| mu.e |i>, mu = -mu_B (g_J J + g_I I), between the Breit-Rabi "
+            "eigenstates of the ground hyperfine manifold (Phys. Rev. 38, 2082 (1931); Hamiltonian of Rev. Mod. "
+            "Phys. 49, 31 (1977)); selection rule Delta m = q of the Wigner-Eckart theorem; the rig file's "
+            "drive polarisation and calibrated_on"),
+    doc="""
+    A clock pulse or frequency sweep drives a transition that its drive's
+    polarisation cannot drive: the magnetic-dipole matrix element is zero,
+    so the atoms are not moved whatever the amplitude or duration (e.g. a
+    `pi` drive on |F=1, mF=-1> -> |F=2, mF=0>, Delta mF = 1; a `sigma+`
+    drive couples only mF_upper = mF_lower + 1, upper and lower by energy).
+    The polarisation is the rig's `drives: {NAME: {polarisation: ...}}`
+    (sigma+, sigma-, pi, or the field's direction [x, y, z] relative to the
+    bias axis); without it seqgen assumes every transition is driven. The
+    hint names a transition from the same state that the drive does drive,
+    with the duration that gives the pulse's `angle` on it and its line.
+    Also reported at the rig's drive when its `calibrated_on` transition is
+    one the polarisation cannot drive, or not a transition of the sample's
+    species: rabi_per_amplitude cannot then be carried over to other
+    transitions (it is used unscaled). An error, as physics.pulse-angle: the
+    pulse's area is zero, whatever rotation it was written for.""")
+
 TRANSITION_UNPOPULATED = Code(
     "physics.transition-unpopulated", "warning", stage="physics",
     source=("populations followed from the sample state through clock pulses (Rabi formula, Phys. Rev."

@@ -163,3 +163,77 @@ def unit(v):
     v = np.asarray(v, dtype=float)
     n = float(np.linalg.norm(v)) if v.shape == (3,) and np.all(np.isfinite(v)) else 0.0
     return v / n if n > 0 and np.isfinite(n) else None
+
+
+# why a drive's declared calibration reference cannot scale its Rabi frequency (Coupling.problem)
+REFERENCE_FORBIDDEN = "reference_forbidden"  # the polarisation does not drive the calibrated_on transition
+REFERENCE_NOT_LEVEL = "reference_not_level"  # a calibrated_on state is not a ground level of the species
+
+
+@dataclass(frozen=True)
+class Coupling:
+    """A drive's magnetic-dipole coupling of a pair (initial, final) at the bias field, from the rig's
+    `polarisation` (seqgen.physics.transitions): element |<upper| mu.e |lower>| (J/T), forbidden (zero element),
+    factor: the scale of rabi_per_amplitude for this pair (element / reference_element with `calibrated_on`,
+    else 1.0); problem: why a declared reference was not used (REFERENCE_*; factor then 1.0)."""
+
+    pair: tuple
+    polarisation: object
+    element: float
+    forbidden: bool
+    factor: float = 1.0
+    reference: tuple | None = None
+    reference_element: float | None = None
+    problem: str | None = None
+
+
+def drive_coupling(shot, drive, declared=None) -> Coupling | None:
+    """The coupling of the pair a drive addresses (`declared` transition, else the sample state and its partner,
+    as transition_pair), or None: no polarisation in the rig, a two-photon drive (kind raman: its calibration
+    holds for every transition), no species or pair, or a state that is not a ground level."""
+    from ..physics import transitions as tr
+
+    sp = species(shot)
+    if drive is None or drive.polarisation is None or drive.kind == "raman" or sp is None:
+        return None
+    try:
+        pair = transition_pair(shot, sp, declared)
+        if pair is None or level_problem(sp, *pair[0]) or level_problem(sp, *pair[1]):
+            return None
+        b = bias(shot)
+        element = tr.coupling_element(pair[0], pair[1], b, drive.polarisation, atom=sp)
+        out = dict(pair=pair, polarisation=drive.polarisation, element=element,
+                   forbidden=tr.is_forbidden(element, atom=sp))
+        ref = drive.calibrated_on
+        if ref is not None:
+            out["reference"] = ref
+            if level_problem(sp, *ref[0]) or level_problem(sp, *ref[1]):
+                return Coupling(**out, problem=REFERENCE_NOT_LEVEL)
+            out["reference_element"] = r = tr.coupling_element(ref[0], ref[1], b, drive.polarisation, atom=sp)
+            if tr.is_forbidden(r, atom=sp):
+                return Coupling(**out, problem=REFERENCE_FORBIDDEN)
+            out["factor"] = element / r
+        return Coupling(**out)
+    except (LevelError, ValueError):
+        return None
+
+
+def coupling_factor(shot, drive, declared=None) -> float:
+    """The factor on a drive's rabi_per_amplitude for the pair it addresses: |<f| mu.e |i>| / |<f_ref| mu.e |i_ref>|
+    at the bias field when the rig states the drive's polarisation and calibrated_on, else exactly 1.0."""
+    c = drive_coupling(shot, drive, declared)
+    return 1.0 if c is None else c.factor
+
+
+def allowed_instead(shot, drive, pair) -> tuple:
+    """Pairs (initial, final') the drive's polarisation does drive, final' in the final state's F, strongest first."""
+    from ..physics.transitions import allowed_partners
+
+    sp = species(shot)
+    if sp is None or drive is None or drive.polarisation is None:
+        return ()
+    try:
+        found = allowed_partners(pair[0], pair[1][0], bias(shot), drive.polarisation, atom=sp)
+    except ValueError:
+        return ()
+    return tuple((pair[0], (int(round(f[0])), int(round(f[1])))) for f, _ in found)

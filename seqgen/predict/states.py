@@ -23,8 +23,8 @@ from scipy import optimize
 
 from ..values import value_at
 from .cache import per_shot_cache
-from .species import (NO_PARTNER, LevelError, LevelProblem, amplitude_output, bias, level_problem, line,
-                      sample_state, species, transition_pair, unevaluable)
+from .species import (NO_PARTNER, LevelError, LevelProblem, amplitude_output, bias, coupling_factor, level_problem,
+                      line, sample_state, species, transition_pair, unevaluable)
 
 TWO_PI = 2 * math.pi
 MG = 1e-7  # one milligauss in tesla
@@ -111,9 +111,10 @@ def pulse_analysis(shot, act) -> PulsePrediction | None:
     t, w = pulse_nodes(act.t0, act.t1)
     amp = value_at(shot, amp_name, t)
     peak = float(np.max(np.abs(amp)))
-    rabi_per = TWO_PI * drive.rabi_per_amplitude_hz
+    factor = coupling_factor(shot, drive, act.args.get("transition"))  # 1.0 unless the rig states polarisation
+    rabi_per = TWO_PI * drive.rabi_per_amplitude_hz * factor
     rep = dict(drive=drive.name, amp_output=amp_name, duration=act.t1 - act.t0, envelope=act.args.get("envelope", "square"),
-               area=float(rabi_per * np.sum(w * amp)), peak=peak, peak_rabi_hz=drive.rabi_per_amplitude_hz * peak,
+               area=float(rabi_per * np.sum(w * amp)), peak=peak, peak_rabi_hz=drive.rabi_per_amplitude_hz * factor * peak,
                constant=bool(np.ptp(amp) <= 1e-12 * max(peak, 1e-300)), angle=act.args.get("angle"),
                rabi_per=rabi_per, light_shift_hz=drive.light_shift_hz)
     sp = species(shot)
@@ -283,7 +284,7 @@ def sweep_analysis(shot, drive, seg) -> SweepPrediction | None:
     nu, _ = line(sp, pair[0], pair[1], bias(shot))
     res = nu + drive.light_shift_hz
     amp = amplitude_output(shot, drive)
-    rabi_per = TWO_PI * drive.rabi_per_amplitude_hz
+    rabi_per = TWO_PI * drive.rabi_per_amplitude_hz * coupling_factor(shot, drive)
     rep = dict(drive=drive.name, pair=pair, resonance_hz=res, f0=seg.v0, f1=seg.v1, duration=seg.t1 - seg.t0)
     lo, hi = sorted((seg.v0, seg.v1))
     rep["crosses"] = lo < res < hi

@@ -155,7 +155,8 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         r = q(base + ("rabi_per_amplitude",), "Hz", positive=True)
         if r is not None:
             drives[name] = Drive(name, d["channel"], r, d.get("kind", "microwave"),
-                                 opt(base + ("light_shift",), "Hz") or 0.0, doc.pos(base))
+                                 opt(base + ("light_shift",), "Hz") or 0.0, doc.pos(base),
+                                 **_coupling_keys(d, base, doc, findings))
     imaging = {}
     for name, im in (data.get("imaging") or {}).items():
         base = ("imaging", name)
@@ -204,6 +205,23 @@ def _direction(raw, path, doc, findings, default=None):
     v = tuple(x / big for x in v)  # scaled first: the norm of [1e200, 1e200, 0] must not overflow
     n = math.sqrt(sum(x * x for x in v))
     return tuple(x / n for x in v)
+
+
+def _coupling_keys(d, base, doc, findings) -> dict:
+    """A drive's `polarisation` ("sigma+", "sigma-", "pi", or a unit vector relative to the bias axis) and
+    `calibrated_on` (((F, mF), (F, mF))), as Drive keywords; absent keys stay out (today's calibration)."""
+    out = {}
+    pol = d.get("polarisation")
+    if isinstance(pol, str):
+        out["polarisation"] = pol
+    elif pol is not None:
+        vec = _direction(pol, base + ("polarisation",), doc, findings)
+        if vec is not None:
+            out["polarisation"] = vec
+    cal = d.get("calibrated_on")
+    if cal is not None:
+        out["calibrated_on"] = tuple((int(cal[k]["F"]), int(cal[k]["mF"])) for k in ("from", "to"))
+    return out
 
 
 def _magnification(im, base, doc, findings) -> float:
