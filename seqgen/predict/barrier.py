@@ -83,10 +83,10 @@ from ..physics.barrier import (PROJECTED_RMS_PER_HALF_WIDTH, barrier_height, fre
                                projected_half_width, released_energy_per_atom, scaling_release, sheet_grid,
                                spin_rotation, transmitted_weighted_mean)
 from ..physics.passage import fraction_reached, path_frequency, time_to_fraction
+from ..values import value_at
 from .cache import per_shot_cache
 from .pushes import push_analysis
-from ..values import value_at
-from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, species,
+from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, species, trap_beams,
                       unevaluable)
 
 DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
@@ -96,6 +96,7 @@ N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
 FAR_OFF_RESONANCE = 20.0
 THERMAL_EDGE_RMS = 2.5  # a thermal cloud's edge along the path: 2.5 rms widths, 98.8 % of it (common practice, no source)
 HINT_FRACTION = 0.01  # the passage times aim at 1 % of the cloud missed
+RELEASE_HORIZON_S = 0.1  # the scaling solution is integrated at least this far, if the sheet is on that long
 
 
 @dataclass(frozen=True)
@@ -354,8 +355,6 @@ def sheet_distance(shot, act, inc) -> float:
 
 def _trap_beam_writes(shot, t0, t1):
     """Times in (t0, t1) at which a trap beam's power is written (the flight's piecewise-constant traps)."""
-    from .species import trap_beams
-
     channels = {b.power_channel for b in trap_beams(shot)}
     cuts = {t for seg in shot.segments if seg.output in channels for t in (seg.t0, seg.t1) if t0 < t < t1}
     return sorted(cuts)
@@ -374,7 +373,8 @@ def mean_field_release(shot, push, direction, read_at, until):
     a = np.eye(3) if axes is None else axes
     radii = np.sqrt(2 * mu / (sp.mass_kg * omegas**2))
     cosines = a.T @ _unit(direction)
-    t_end = max(read_at, until, 1e-6)
+    # solved up to the sheet's end (at most twice the arrival, or 0.1 s); straight-line flight beyond
+    t_end = max(min(until, max(2.0 * read_at, RELEASE_HORIZON_S)), read_at, 1e-6)
     pieces, held, cache = [], set(), {}
     starts = [0.0] + [t - push.t0 for t in _trap_beam_writes(shot, push.t0, push.t0 + t_end)]
     for k, t0 in enumerate(starts):
@@ -405,8 +405,6 @@ def mean_field_release(shot, push, direction, read_at, until):
 
 
 def _named_trap_beams(shot, t):
-    from .species import trap_beams
-
     return [b for b in trap_beams(shot) if value_at(shot, b.power_channel, [t])[0] > 0]
 
 
