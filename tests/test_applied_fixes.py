@@ -115,10 +115,10 @@ def test_bare_waist_takes_the_unit_of_the_other_waists(project):
 
 
 def test_voltage_unit_for_a_power_is_read_as_the_power_unit(project):
-    edit(SCATTER, "sheet_power: 0.43 mW", "sheet_power: 0.43 mV")
+    edit(SCATTER, "sheet_power: 0.48 mW", "sheet_power: 0.48 mV")
     f, value, _ = fix_and_recheck(SCATTER, "schema.wrong-dimension")
     assert "did you mean mW" in f.message
-    assert value == "0.43 mW"
+    assert value == "0.48 mW"
 
 
 def test_mass_unit_for_a_frequency_is_read_as_the_frequency_unit(project):

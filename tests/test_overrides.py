@@ -21,7 +21,7 @@ from .conftest import SEQUENCES
 
 SCATTER = SEQUENCES / "na23_barrier_scatter.yaml"
 BOUNDS = SEQUENCES / "faults" / "param_bounds.yaml"  # tof: {value: -2 ms, min: 1 ms, max: 30 ms}
-SHEET_LINE = 16  # where sheet_power is defined in the demo (0.43 mW)
+SHEET_LINE = 16  # where sheet_power is defined in the demo (0.48 mW)
 
 
 @pytest.fixture(scope="module")
@@ -75,8 +75,8 @@ def test_an_override_may_be_an_expression_of_other_params(scatter):
 
 def test_no_override_gives_the_written_values(scatter):
     shot, _ = resolve(scatter, {})
-    assert _param(shot, "sheet_power").value == pytest.approx(0.43 * milli)
-    assert _param(shot, "sheet_power").text == "0.43 mW"
+    assert _param(shot, "sheet_power").value == pytest.approx(0.48 * milli)
+    assert _param(shot, "sheet_power").text == "0.48 mW"
 
 
 def test_a_wrong_dimension_is_a_finding_with_a_fix(scatter):

@@ -14,7 +14,7 @@ from ..findings import make
 from ..predict.barrier import THERMAL_EDGE_RMS, analyse
 from ..predict.species import species
 from ..predict.states import barriers
-from ..predict.text import in_barrier_drive_reason, rotation_text, spread_text
+from ..predict.text import in_barrier_drive_reason, larmor_clock_text, release_text, rotation_text, spread_text
 from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time
 from .rules import rule
 
@@ -44,10 +44,14 @@ def barrier_transmission(shot):
             msg = (f"transmitted fraction {rep.T:.3g} (spread {rep.T_spread:.2g} over the momentum distribution); "
                    f"V0 = {fmt_energy(rep.V0)}, mean kinetic energy {fmt_energy(rep.E_mean)}, "
                    f"v = {rep.speed * 1e3:.4g} mm/s +/- {rep.sigma_v * 1e3:.2g} mm/s ({spread_text(rep.cloud)})")
-        yield make(BARRIER_TRANSMISSION, msg, act.pos, block=act.block, time_s=act.t0,
-                   data={"transmission": rep.T, "transmission_spread": rep.T_spread, "V0_J": rep.V0,
-                         "mean_kinetic_energy_J": rep.E_mean, "velocity_m_s": rep.speed,
-                         "velocity_spread_m_s": rep.sigma_v})
+            if rep.release is not None:
+                msg += f"; {release_text(rep.release)}"
+        data = {"transmission": rep.T, "transmission_spread": rep.T_spread, "V0_J": rep.V0,
+                "mean_kinetic_energy_J": rep.E_mean, "velocity_m_s": rep.speed, "velocity_spread_m_s": rep.sigma_v}
+        if rep.release is not None:
+            data.update(chemical_potential_J=rep.release.mu, released_energy_J=rep.release.released,
+                        released_along_path_J=rep.release.path_energy)
+        yield make(BARRIER_TRANSMISSION, msg, act.pos, block=act.block, time_s=act.t0, data=data)
 
 
 
@@ -115,6 +119,22 @@ def barrier_no_signal(shot):
                        block=act.block, time_s=act.t0, hint=fix, data={"atoms": n, "floor": floor})
 
 
+def _mw(power_w: float, up: bool) -> str:
+    """A power in mW to 3 significant digits, rounded away from the threshold so that the fix passes."""
+    mw = power_w * 1e3
+    step = 10.0 ** (math.floor(math.log10(mw)) - 2) if mw > 0 else 1.0
+    return f"{(math.ceil(mw / step) if up else math.floor(mw / step)) * step:.3g}"
+
+
+def _released(rep) -> str:
+    """The mean-field part of the mean kinetic energy, when there is one."""
+    rel = rep.release
+    if rel is None:
+        return ""
+    return (f" (of which the condensate's released mean-field energy gives {fmt_energy(rel.path_energy)} along the "
+            f"path, the push alone {fmt_energy(rep.E_mean - rel.path_energy)})")
+
+
 @rule(NOT_TUNNELLING, stage="physics")
 def not_tunnelling(shot):
     for act, rep in _each(shot):
@@ -126,13 +146,13 @@ def not_tunnelling(shot):
                        data={"E_J": e, "V0_J": v0})
         elif want == "tunnelling" and e >= v0:
             yield make(NOT_TUNNELLING, f"expect: tunnelling, but the mean kinetic energy {fmt_energy(e)} "
-                       f"is above the barrier top {fmt_energy(v0)}", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"raise the sheet power above {act.args['power'] * e / v0 * 1e3:.3g} mW or kick less",
+                       f"is above the barrier top {fmt_energy(v0)}{_released(rep)}", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"raise the sheet power above {_mw(act.args['power'] * e / v0, True)} mW or kick less",
                        data={"E_J": e, "V0_J": v0})
         elif want == "over_barrier" and e < v0:
             yield make(NOT_TUNNELLING, f"expect: over_barrier, but the mean kinetic energy {fmt_energy(e)} "
-                       f"is below the barrier top {fmt_energy(v0)}", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"lower the sheet power below {act.args['power'] * e / v0 * 1e3:.3g} mW or kick harder",
+                       f"is below the barrier top {fmt_energy(v0)}{_released(rep)}", act.pos, block=act.block, time_s=act.t0,
+                       hint=f"lower the sheet power below {_mw(act.args['power'] * e / v0, False)} mW or kick harder",
                        data={"E_J": e, "V0_J": v0})
 
 
@@ -152,9 +172,13 @@ def barrier_rotation(shot):
         if d.unsupported:
             yield make(BARRIER_ROTATION, in_barrier_drive_reason(d), act.pos, block=act.block, time_s=act.t0)
             continue
-        yield make(BARRIER_ROTATION, rotation_text(rep), act.pos, block=act.block, time_s=act.t0,
-                   data={"rotation_rad": rep.rotation, "rotation_spread_rad": rep.rotation_spread,
-                         "rabi_peak_rad_s": d.rabi_peak, "detuning_hz": d.detuning_hz})
+        msg = rotation_text(rep) + (f"; {larmor_clock_text(rep)}" if rep.precession is not None else "")
+        data = {"rotation_rad": rep.rotation, "rotation_spread_rad": rep.rotation_spread,
+                "rabi_peak_rad_s": d.rabi_peak, "detuning_hz": d.detuning_hz}
+        if rep.precession is not None:
+            data.update(precession_rad=rep.precession, alignment_rad=rep.alignment,
+                        precession_time_s=rep.precession_time, alignment_time_s=rep.alignment_time)
+        yield make(BARRIER_ROTATION, msg, act.pos, block=act.block, time_s=act.t0, data=data)
 
 
 @rule(DRIVE_TOO_STRONG, stage="physics")

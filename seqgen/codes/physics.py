@@ -87,7 +87,9 @@ BARRIER_TRANSMISSION = Code(
     transmission over the velocity distribution. The note gives the fraction,
     its spread over the distribution, V0 and the mean kinetic energy. It
     describes a single atom crossing a static sheet, every atom meeting it from
-    one side: the cloud's mean-field energy is not included, and a cloud that
+    one side (a condensate's released mean-field energy along the path, Rev.
+    Mod. Phys. 71, 463 (1999), Phys. Rev. Lett. 77, 5315 (1996), is in the
+    velocity spread; the interaction during the crossing is not), and a cloud that
     already reaches the sheet when it is pushed, or a sheet that is off while
     part of the cloud passes, is outside the model (physics.cloud-overlaps-barrier,
     physics.barrier-too-short, physics.barrier-too-late).""")

@@ -38,9 +38,23 @@ seqgen.check.physics_barrier read it):
   wavelength (Adv. At. Mol. Opt. Phys. 42, 95 (2000)); `power` is the
   time-averaged power (intensities from `seqgen.physics.optical.peak_intensity`
   and `modulated_peak_intensity`, shared with `seqgen.predict.states`).
-  Single-particle, stationary 1D scattering (mean-field energy of the cloud
-  and the finite length of the pulse are not included), averaged over a
-  Gaussian velocity distribution with Gauss-Hermite quadrature.
+  Single-particle, stationary 1D scattering (the finite length of the pulse
+  is not included), averaged over a Gaussian velocity distribution of the
+  same rms with Gauss-Hermite quadrature.
+* Mean-field release (a condensate): the push starts the release; the
+  interaction energy, (2/7) mu per atom (Rev. Mod. Phys. 71, 463 (1999)),
+  turns into kinetic energy as the cloud expands by the scaling solution of
+  Phys. Rev. Lett. 77, 5315 (1996) (`seqgen.physics.barrier.scaling_release`),
+  in the trap beams still on during the flight (piecewise constant between
+  their writes, frequencies projected on the held trap's axes; none: a free
+  release, as with `sample.trap_frequencies`). An atom at x_i moves at
+  x_i b_i'(t): the velocities form the Thomas-Fermi ellipsoid with
+  half-widths R_i b_i'(t), read when the cloud's centre reaches the sheet.
+  Projected on the path it is (1 - u^2/S^2)^2, rms S/sqrt(7); that rms adds
+  in quadrature to the in-trap width above. The passage uses the cloud's
+  length along the path scaled the same way. A radially held guide keeps
+  feeding its radial energy into the path in the scaling (Thomas-Fermi)
+  picture: an upper bound, the radial zero-point energy is not kept.
 * Drive inside the barrier: an intensity modulation at `modulation.frequency`
   with depth eps makes a co-propagating Raman pair that couples |F, m> to the
   other hyperfine level at equal m; the Rabi frequency follows the local
@@ -65,11 +79,14 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import constants as sc
 
-from ..physics.barrier import barrier_height, free_flight_rotation, gaussian_profile, sheet_grid, spin_rotation
+from ..physics.barrier import (PROJECTED_RMS_PER_HALF_WIDTH, barrier_height, free_flight_rotation, gaussian_profile,
+                               projected_half_width, released_energy_per_atom, scaling_release, sheet_grid,
+                               spin_rotation, transmitted_weighted_mean)
 from ..physics.passage import fraction_reached, path_frequency, time_to_fraction
+from ..values import value_at
 from .cache import per_shot_cache
 from .pushes import push_analysis
-from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, species,
+from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, species, trap_beams,
                       unevaluable)
 
 DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
@@ -79,6 +96,7 @@ N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
 FAR_OFF_RESONANCE = 20.0
 THERMAL_EDGE_RMS = 2.5  # a thermal cloud's edge along the path: 2.5 rms widths, 98.8 % of it (common practice, no source)
 HINT_FRACTION = 0.01  # the passage times aim at 1 % of the cloud missed
+RELEASE_HORIZON_S = 0.1  # the scaling solution is integrated at least this far, if the sheet is on that long
 
 
 @dataclass(frozen=True)
@@ -111,6 +129,24 @@ class CloudAlongPath:
     size: float
     half_length: float | None
     temperature_k: float | None = None
+
+
+@dataclass(frozen=True)
+class MeanFieldRelease:
+    """A condensate's interaction energy released from the push on (see the module notes): mu (J), released
+    (2/7 mu per atom, J), read_at (s after the push starts: the cloud's centre at the sheet), half_width S
+    (m/s) of the velocity profile along the path, sigma_v = S/sqrt(7) (m/s), path_energy m sigma_v^2 / 2 (J),
+    held (names of the trap beams on during the flight; empty: free release), path_scale (the cloud's
+    length along the path over its length at the push, at read_at)."""
+
+    mu: float
+    released: float
+    read_at: float
+    half_width: float
+    sigma_v: float
+    path_energy: float
+    held: tuple
+    path_scale: float
 
 
 @dataclass(frozen=True)
@@ -159,7 +195,11 @@ class InBarrierDrive:
 class BarrierPrediction:
     """One barrier action (see the module notes): incident speed and its spread, V0 (J), mean kinetic energy
     E_mean (J), waist_y (m), expect, transmission T and its spread, the cloud along the path, the passage,
-    the in-barrier drive and rotation (rad), atom numbers N_T / N_R and the detection floor."""
+    the in-barrier drive and rotation (rad), atom numbers N_T / N_R and the detection floor. sigma_v is the
+    whole spread along the path: the cloud's in-trap width and the mean-field `release` in quadrature.
+    precession / alignment (rad): the transmitted spin's rotation about the coupling axis and towards it
+    (Phys. Rev. B 27, 6178 (1983)), and their Larmor-clock times (angle / peak Rabi frequency, s), each
+    averaged with the transmitted probability as weight."""
 
     speed: float
     signed: float
@@ -182,6 +222,11 @@ class BarrierPrediction:
     rotation_spread: float | None = None
     N_T: float | None = None
     N_R: float | None = None
+    release: MeanFieldRelease | None = None
+    precession: float | None = None
+    alignment: float | None = None
+    precession_time: float | None = None
+    alignment_time: float | None = None
 
 
 def _last_push(shot, act):
@@ -236,6 +281,41 @@ def _before(t):
     return t - 1e-9 * max(1.0, abs(t))
 
 
+def _beam_trap(sp, beams):
+    """(omegas, principal axes as columns) of the trap of these beams, or (None, None)."""
+    from ..physics.optical import find_trap_minimum
+
+    if not beams:
+        return None, None
+    try:
+        m = find_trap_minimum(sp, beams)
+    except (ValueError, RuntimeError, np.linalg.LinAlgError):
+        return None, None
+    w = np.asarray(m.omegas_rad_s, dtype=float)
+    return (w, np.asarray(m.axes, dtype=float)) if np.all(np.isfinite(w)) and np.all(w > 0) else (None, None)
+
+
+def _trap_at(shot, time_s):
+    """(omegas, axes or None for the lab frame) of the sample's trap at `time_s`: `sample.trap_frequencies`,
+    else the rig's trap beams on then; (None, None) when there is none."""
+    s = shot.sample
+    if s.trap_frequencies_hz:
+        w = 2 * np.pi * np.asarray(s.trap_frequencies_hz, dtype=float)
+        return (w, None) if np.all(np.isfinite(w)) and np.all(w > 0) else (None, None)
+    return _beam_trap(species(shot), gaussian_beams(shot, [time_s])[0])
+
+
+def _chemical_potential(shot, omegas):
+    """Thomas-Fermi mu (J) of the sample's condensate in a trap of these frequencies, or None."""
+    from ..physics.expansion import thomas_fermi
+
+    sp, s = species(shot), shot.sample
+    a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", next(iter(sp.scattering_lengths_m.values()), None))
+    if not (a and a > 0 and s.atoms):
+        return None
+    return thomas_fermi(s.atoms, sp.mass_kg, a, omegas)[0]
+
+
 def cloud_along_path(shot, time_s, direction) -> CloudAlongPath:
     """The sample along the unit `direction` in the trap at `time_s`:
 
@@ -243,30 +323,18 @@ def cloud_along_path(shot, time_s, direction) -> CloudAlongPath:
     rms width, m; 0 when unknown) and half_length (the edge: R, or THERMAL_EDGE_RMS rms widths; None
     when unknown). Trap frequencies from `sample.trap_frequencies`, else from the rig's trap beams on at
     `time_s`."""
-    from ..physics.expansion import thermal_in_trap_width, thomas_fermi
-    from ..physics.optical import find_trap_minimum
+    from ..physics.expansion import thermal_in_trap_width
     from ..physics.scattering import condensate_velocity_rms, thermal_velocity_rms
 
     sp = species(shot)
     s = shot.sample
-    omegas = axes = None
-    if s.trap_frequencies_hz:
-        omegas = 2 * np.pi * np.asarray(s.trap_frequencies_hz, dtype=float)
-    else:
-        beams = gaussian_beams(shot, [time_s])[0]
-        if beams:
-            try:
-                m = find_trap_minimum(sp, beams)
-                omegas, axes = m.omegas_rad_s, m.axes
-            except (ValueError, RuntimeError, np.linalg.LinAlgError):
-                omegas = None
+    omegas, axes = _trap_at(shot, time_s)
     w_path = None
-    if omegas is not None and np.all(np.isfinite(omegas)) and np.all(np.asarray(omegas) > 0):
+    if omegas is not None:
         w_path = path_frequency(omegas, axes, direction)
     if s.condensed and s.atoms and w_path:
-        a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", next(iter(sp.scattering_lengths_m.values()), None))
-        if a and a > 0:
-            mu, _ = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
+        mu = _chemical_potential(shot, omegas)
+        if mu is not None:
             radius = math.sqrt(2 * mu / (sp.mass_kg * w_path**2))
             return CloudAlongPath(float(condensate_velocity_rms(radius, sp.mass_kg)), "thomas-fermi", radius, radius)
     if s.temperature_k:
@@ -278,26 +346,117 @@ def cloud_along_path(shot, time_s, direction) -> CloudAlongPath:
     return CloudAlongPath(0.0, "point", 0.0, None)
 
 
-def passage(shot, act, inc, cloud, waist_y) -> Passage:
-    """Where the cloud is against the sheet: the distance d along the path, the cloud's edge,
-    whether they overlap at the push, and the fractions that reach the near edge d - w_y before the
-    barrier is on and cross the far edge d + w_y only after it is off (times from the push's start)."""
-    push = inc.push
+def sheet_distance(shot, act, inc) -> float:
+    """Distance (m) of the barrier plane from the atoms along the path."""
     beam = shot.rig.beams[act.args["beam"]]
     d = float(np.dot(np.asarray(beam.position_m, dtype=float), _unit(inc.direction)))
-    if not inc.known_direction:
-        d = abs(d)  # the push's sense is unknown: take it towards the sheet
+    return d if inc.known_direction else abs(d)  # the push's sense unknown: take it towards the sheet
+
+
+def _trap_beam_writes(shot, t0, t1):
+    """Times in (t0, t1) at which a trap beam's power is written (the flight's piecewise-constant traps)."""
+    channels = {b.power_channel for b in trap_beams(shot)}
+    cuts = {t for seg in shot.segments if seg.output in channels for t in (seg.t0, seg.t1) if t0 < t < t1}
+    return sorted(cuts)
+
+
+def mean_field_release(shot, push, direction, read_at, until):
+    """(MeanFieldRelease, the cloud's path-length scale as a function of the time after the push starts) of a
+    condensate released as the push starts (module notes), or (None, None) for a cloud without mean field."""
+    s, sp = shot.sample, species(shot)
+    if not (s.condensed and s.atoms):
+        return None, None
+    omegas, axes = _trap_at(shot, _before(push.t0))
+    mu = _chemical_potential(shot, omegas) if omegas is not None else None
+    if mu is None:
+        return None, None
+    a = np.eye(3) if axes is None else axes
+    radii = np.sqrt(2 * mu / (sp.mass_kg * omegas**2))
+    cosines = a.T @ _unit(direction)
+    # solved up to the sheet's end (at most twice the arrival, or 0.1 s); straight-line flight beyond
+    t_end = max(min(until, max(2.0 * read_at, RELEASE_HORIZON_S)), read_at, 1e-6)
+    pieces, held, cache = [], set(), {}
+    starts = [0.0] + [t - push.t0 for t in _trap_beam_writes(shot, push.t0, push.t0 + t_end)]
+    for k, t0 in enumerate(starts):
+        t1 = starts[k + 1] if k + 1 < len(starts) else t_end
+        wsq = np.zeros(3)
+        if not s.trap_frequencies_hz:
+            beams = tuple(gaussian_beams(shot, [push.t0 + 0.5 * (t0 + t1)])[0])
+            if beams not in cache:
+                cache[beams] = _beam_trap(sp, list(beams))
+            w1, a1 = cache[beams]
+            if w1 is not None:
+                # curvature of the trap now along the held trap's axes: a_i . K a_i / m
+                wsq = np.einsum("ji,jk,k,lk,li->i", a, a1, w1**2, a1, a)
+                held.update(b.name for b in _named_trap_beams(shot, push.t0 + 0.5 * (t0 + t1)))
+        pieces.append((t0, wsq))
+    sol = scaling_release(omegas, pieces, t_end)
+    length0 = projected_half_width(radii, cosines)
+
+    def scale(t):
+        b, _ = sol.at(t)
+        return np.array([projected_half_width(radii * b[:, i], cosines) / length0 for i in range(b.shape[1])])
+
+    _, b_dot = sol.at(read_at)
+    half = projected_half_width(radii * b_dot[:, 0], cosines)
+    sigma = half * PROJECTED_RMS_PER_HALF_WIDTH
+    return MeanFieldRelease(mu, released_energy_per_atom(mu), read_at, half, sigma, 0.5 * sp.mass_kg * sigma**2,
+                            tuple(sorted(held)), float(scale(read_at)[0])), scale
+
+
+def _named_trap_beams(shot, t):
+    return [b for b in trap_beams(shot) if value_at(shot, b.power_channel, [t])[0] > 0]
+
+
+def _time_to(fraction, distance, speed, tau, sigma_v, profile, size, scale):
+    """`passage.time_to_fraction` for a cloud whose length along the path grows as scale(t)."""
+    if scale is None:
+        return time_to_fraction(fraction, distance, speed, tau, sigma_v, profile, size)
+
+    def reached(t):
+        return float(fraction_reached(t, distance, speed, tau, sigma_v, profile, size * float(scale(t)[0])))
+
+    if reached(0.0) >= fraction:
+        return 0.0
+    hi = max(tau, 1e-6)
+    while reached(hi) < fraction:
+        hi *= 2.0
+        if hi > 1e4:
+            return math.inf
+    lo = 0.0
+    while hi - lo > 1e-7 * hi:
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if reached(mid) < fraction else (lo, mid)
+    return hi
+
+
+def passage(shot, act, inc, cloud, waist_y, scale=None) -> Passage:
+    """Where the cloud is against the sheet: the distance d along the path, the cloud's edge,
+    whether they overlap at the push, and the fractions that reach the near edge d - w_y before the
+    barrier is on and cross the far edge d + w_y only after it is off (times from the push's start).
+    `scale(t)`: the cloud's length along the path over its length at the push (a released condensate)."""
+    push = inc.push
+    d = sheet_distance(shot, act, inc)
     tau = float(push.args["duration"])
-    args = (inc.speed, tau, cloud.sigma_v, cloud.profile, cloud.size)
     on, off = act.t0 - push.t0, act.t1 - push.t0
+
+    def size(t):
+        return cloud.size * (float(scale(t)[0]) if scale is not None else 1.0)
+
     out = dict(distance=d, edge=cloud.half_length, on=on, off=off, push_t0=push.t0,
                overlap=cloud.half_length is not None and cloud.half_length + waist_y >= d)
-    out["early"] = float(fraction_reached(on, d - waist_y, *args))
-    out["late"] = 1.0 - float(fraction_reached(off, d + waist_y, *args))
-    out["need_off"] = time_to_fraction(1.0 - HINT_FRACTION, d + waist_y, *args)
-    out["need_on"] = time_to_fraction(HINT_FRACTION, d - waist_y, *args)
-    out["centre_arrival"] = time_to_fraction(0.5, d, inc.speed, tau, 0.0, "point", 0.0)
+    base = (inc.speed, tau, cloud.sigma_v, cloud.profile)
+    out["early"] = float(fraction_reached(on, d - waist_y, *base, size(on)))
+    out["late"] = 1.0 - float(fraction_reached(off, d + waist_y, *base, size(off)))
+    out["need_off"] = _time_to(1.0 - HINT_FRACTION, d + waist_y, *base, cloud.size, scale)
+    out["need_on"] = _time_to(HINT_FRACTION, d - waist_y, *base, cloud.size, scale)
+    out["centre_arrival"] = centre_arrival(d, inc.speed, tau)
     return Passage(**out)
+
+
+def centre_arrival(distance, speed, tau) -> float:
+    """Time (s after the push starts) at which the cloud's centre reaches `distance` along the path."""
+    return time_to_fraction(0.5, distance, speed, tau, 0.0, "point", 0.0)
 
 
 def _partner(shot, act):
@@ -380,16 +539,22 @@ def analyse(shot, act) -> BarrierPrediction | None:
         return None
     v = inc.speed
     cloud = cloud_along_path(shot, _before(inc.push.t0), _unit(inc.direction))
-    sigma = cloud.sigma_v
+    arrival = centre_arrival(sheet_distance(shot, act, inc), v, float(inc.push.args["duration"]))
+    try:
+        release, scale = mean_field_release(shot, inc.push, inc.direction, arrival if math.isfinite(arrival) else 0.0,
+                                            act.t1 - inc.push.t0)
+    except RuntimeError:  # the scaling equations did not integrate: the in-trap spread alone
+        release, scale = None, None
+    sigma = math.hypot(cloud.sigma_v, release.sigma_v) if release else cloud.sigma_v
     m = sp.mass_kg
     v0 = barrier_height(sp, beam.wavelength_m, act.args["power"], beam.waist_m, waist_y)
     e_mean = 0.5 * m * (v**2 + sigma**2)
-    rep = dict(speed=v, signed=inc.signed, incident=inc, sigma_v=sigma,
+    rep = dict(speed=v, signed=inc.signed, incident=inc, sigma_v=sigma, release=release,
                V0=v0, E_mean=e_mean, waist_y=waist_y, expect=act.args.get("expect", "any"))
     if v0 <= 0:
         rep["attractive"] = True  # red-detuned sheet: a well, not a barrier
     rep["cloud"] = cloud
-    rep["passage"] = passage(shot, act, inc, cloud, waist_y)
+    rep["passage"] = passage(shot, act, inc, cloud, waist_y, scale)
     drive = _drive_model(shot, act, sp, beam, waist_y, v)
     rep["drive"] = drive
     v_max = v + 6.0 * sigma
@@ -413,19 +578,28 @@ def analyse(shot, act) -> BarrierPrediction | None:
     rep["T_spread"] = avg.transmission_spread if avg else 0.0
     if drive and drive.rabi_peak is not None:
         rep["free_flight_rotation"] = free_flight_rotation(drive.rabi_peak, waist_y, v)
+        none = dict(rotation=0.0, rotation_spread=0.0, precession=0.0, alignment=0.0, precession_time=0.0,
+                    alignment_time=0.0)
         if drive.far_off or rep["T"] == 0.0:
-            rep["rotation"], rep["rotation_spread"] = 0.0, 0.0
+            rep.update(none)
         else:
+            seen = []
+
             def spinor(energies):
                 r = spin_rotation(x, profile, v0, drive.rabi_peak, np.maximum(energies, tiny), m,
                                   partner_shift_j=drive.shift_j, partner_offset_j=drive.offset_j)
+                seen.append(r)
                 return r.probability, r.angle
 
             try:
                 sav = average_over_momentum(spinor, v, sigma, m, n_points=N_VELOCITIES)
                 rep["rotation"], rep["rotation_spread"] = sav.mean_rotation, sav.rotation_spread
+                clock = seen[-1].clock
+                for name, angles in (("precession", clock.precession_angle), ("alignment", clock.alignment_angle)):
+                    rep[name] = transmitted_weighted_mean(sav.weights, clock.probability, angles)
+                    rep[name + "_time"] = rep[name] / drive.rabi_peak
             except ValueError:  # the partner channel is closed and opaque: no transfer
-                rep["rotation"], rep["rotation_spread"] = 0.0, 0.0
+                rep.update(none)
     atoms = shot.sample.atoms
     if atoms:
         rep["N_T"] = max(atoms * rep["T"], 0.0)

@@ -253,7 +253,10 @@ def _barrier_rows(shot) -> list:
         if rep is None:
             continue
         items = [f"incident {rep.speed * 1e3:.4g} mm/s ({tx.incident_text(rep.incident)}), "
-                 f"spread {rep.sigma_v * 1e3:.2g} mm/s ({tx.spread_text(rep.cloud)})",
+                 f"spread {rep.sigma_v * 1e3:.2g} mm/s ({tx.spread_text(rep.cloud)})"]
+        if rep.release is not None:
+            items.append(tx.release_text(rep.release))
+        items += [
                  f"barrier V0 {fmt_energy(rep.V0)}, mean kinetic energy {fmt_energy(rep.E_mean)}",
                  f"transmitted fraction {rep.T:.3g} (spread {rep.T_spread:.2g})"]
         if rep.N_T is not None:
@@ -268,6 +271,8 @@ def _barrier_rows(shot) -> list:
             items.append(tx.in_barrier_drive_reason(d))
         elif d and rep.rotation is not None:
             items.append(tx.rotation_text(rep))
+            if rep.precession is not None:
+                items.append(tx.larmor_clock_text(rep))
             items.append(f"free-flight rotation (no barrier) {rep.free_flight_rotation:.3g} rad")
             if rep.N_T:
                 items.append(f"shot-noise angle 1/sqrt(N_T) {1 / math.sqrt(max(rep.N_T, 1.0)):.3g} rad")

@@ -8,7 +8,7 @@ import math
 
 import numpy as np
 
-from ..textfmt import fmt_freq, fmt_gauss_per_cm, fmt_length, fmt_pct, fmt_state, fmt_vec
+from ..textfmt import fmt_energy, fmt_freq, fmt_gauss_per_cm, fmt_length, fmt_pct, fmt_state, fmt_time, fmt_vec
 from . import cloud as cl
 from . import species as spc
 from .species import G_N
@@ -130,6 +130,23 @@ def spread_text(cloud) -> str:
             return f"{text}, rms width {fmt_length(cloud.size, unit='um')} along the path"
         return f"{text}, size along the path unknown (no trap)"
     return "no spread known (sample without temperature or trap)"
+
+
+def release_text(rel) -> str:
+    """The mean-field release of a condensate (MeanFieldRelease) in words."""
+    trap = (f"in the trap of {', '.join(rel.held)} left on (scaling solution: an upper bound, the radial zero-point "
+            f"energy is not kept)" if rel.held else "free expansion")
+    return (f"mean-field release: mu = {fmt_energy(rel.mu)}, 2/7 mu = {fmt_energy(rel.released)} per atom; along the path "
+            f"{fmt_energy(rel.path_energy)} when the centre reaches the sheet ({fmt_time(rel.read_at, unit='ms')} after the "
+            f"push starts, {trap}): velocity profile an inverted parabola of half-width {rel.half_width * 1e3:.3g} mm/s, "
+            f"rms = half-width/sqrt 7 = {rel.sigma_v * 1e3:.3g} mm/s, in quadrature with the in-trap spread")
+
+
+def larmor_clock_text(rep) -> str:
+    """Precession and alignment of the transmitted spin and their Larmor-clock times (BarrierPrediction)."""
+    return (f"precession about the coupling axis {rep.precession:.3g} rad (Larmor time {fmt_time(rep.precession_time)}), "
+            f"alignment towards it {rep.alignment:.3g} rad (Larmor time {fmt_time(rep.alignment_time)}); "
+            f"times = angle / peak Rabi frequency (Phys. Rev. B 27, 6178 (1983))")
 
 
 def incident_text(inc) -> str:

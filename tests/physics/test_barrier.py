@@ -135,3 +135,139 @@ def test_detuned_transit_follows_the_fourier_factor(sign):
     on = pbar.spin_rotation(x, g, 0.0, omega, np.array([E]), M_NA).angle[0]
     off = pbar.spin_rotation(x, g, 0.0, omega, np.array([E]), M_NA, partner_offset_j=-sign * sc.hbar * delta).angle[0]
     assert off / on == pytest.approx(math.exp(-(delta * wy / v) ** 2 / 8), rel=2e-2)
+
+
+# ---------------------------------------------------------------- mean-field release (Thomas-Fermi condensate)
+
+
+def test_released_energy_per_atom_is_two_sevenths_of_mu_by_integrating_the_profile():
+    # Interaction energy per atom (g/2) int n^2 / int n of n = (mu/g)(1 - r^2) in the scaled unit ball: 2/7 mu
+    # (Rev. Mod. Phys. 71, 463 (1999)); here the radial integrals done numerically.
+    from scipy import integrate
+
+    mu = 1.3e-30
+    n2, _ = integrate.quad(lambda r: (1 - r * r) ** 2 * r * r, 0.0, 1.0)
+    n1, _ = integrate.quad(lambda r: (1 - r * r) * r * r, 0.0, 1.0)
+    assert pbar.released_energy_per_atom(mu) == pytest.approx(0.5 * mu * n2 / n1, rel=1e-12)
+    assert 0.5 * n2 / n1 == pytest.approx(2 / 7, rel=1e-12)
+
+
+def test_projected_velocity_rms_is_the_half_width_over_sqrt_seven():
+    # <v_c^2> of the ellipsoid n(v) ~ 1 - sum v_i^2 / V_i^2 along direction cosines c: numerically, in the unit
+    # ball, <x^2> = int x^2 (1 - r^2) / int (1 - r^2) = (1/3) int r^4 (1 - r^2) dr / int r^2 (1 - r^2) dr, and the
+    # cross terms vanish by symmetry, so <v_c^2> = <x^2> sum c_i^2 V_i^2
+    from scipy import integrate
+
+    num, _ = integrate.quad(lambda r: r**4 * (1 - r * r), 0.0, 1.0)
+    den, _ = integrate.quad(lambda r: r**2 * (1 - r * r), 0.0, 1.0)
+    x2 = num / (3 * den)
+    half = np.array([3e-3, 1e-3, 0.4e-3])
+    c = np.array([0.6, 0.8, 0.0])
+    s = pbar.projected_half_width(half, c)
+    assert s == pytest.approx(math.sqrt(np.sum(c**2 * half**2)), rel=1e-12)
+    assert s * pbar.PROJECTED_RMS_PER_HALF_WIDTH == pytest.approx(math.sqrt(x2 * np.sum(c**2 * half**2)), rel=1e-9)
+
+
+def test_free_release_turns_all_the_interaction_energy_into_kinetic_energy():
+    # Energy conservation of the scaling solution (Phys. Rev. Lett. 77, 5315 (1996)): once expanded, the kinetic
+    # energy per atom, sum_i m <v_i^2> / 2 = sum_i m (R_i b_i')^2 / 14 with R_i^2 = 2 mu / (m w_i^2), is the
+    # released 2/7 mu (Rev. Mod. Phys. 71, 463 (1999)); an anisotropic trap shares it unequally.
+    mu, m = 70e-9 * sc.k, M_NA
+    w = 2 * np.pi * np.array([40.0, 290.0, 310.0])
+    radii = np.sqrt(2 * mu / (m * w**2))
+    t_end = 400.0 / w.min()
+    sol = pbar.scaling_release(w, [(0.0, np.zeros(3))], t_end)
+    _, bd = sol.at(t_end)
+    per_axis = 0.5 * m * (radii * bd[:, 0]) ** 2 / 7
+    assert per_axis.sum() == pytest.approx(pbar.released_energy_per_atom(mu), rel=2e-3)
+    assert per_axis.sum() == pytest.approx(2 / 7 * mu, rel=2e-3)
+    assert per_axis[0] < 0.05 * per_axis.sum()  # the weak axis gets little of it
+
+
+def test_cigar_release_follows_the_castin_dum_closed_form():
+    # Elongated trap, eps = w_z / w_perp << 1: b_perp = sqrt(1 + tau^2), b_z = 1 + eps^2 (tau atan tau -
+    # ln sqrt(1 + tau^2)), tau = w_perp t (Phys. Rev. Lett. 77, 5315 (1996), from memory), to O(eps^2) relative.
+    eps, w_perp = 0.01, 2 * np.pi * 300.0
+    w = np.array([w_perp, w_perp, eps * w_perp])
+    t = np.array([0.5, 2.0, 10.0, 40.0]) / w_perp
+    sol = pbar.scaling_release(w, [(0.0, np.zeros(3))], t[-1], n_times=4001)
+    b, bd = sol.at(t)
+    tau = w_perp * t
+    np.testing.assert_allclose(b[0], np.sqrt(1 + tau**2), rtol=3 * eps**2)
+    np.testing.assert_allclose(b[2] - 1, eps**2 * (tau * np.arctan(tau) - np.log(np.sqrt(1 + tau**2))), rtol=2e-2)
+    np.testing.assert_allclose(bd[2], eps**2 * w_perp * np.arctan(tau), rtol=2e-2)
+
+
+def test_a_trap_left_as_it_was_releases_nothing():
+    # The Thomas-Fermi ground state is stationary: with the trap unchanged, b = 1 and b' = 0 (Phys. Rev. Lett.
+    # 77, 5315 (1996): the scaling equations' fixed point)
+    w = 2 * np.pi * np.array([44.0, 293.0, 295.0])
+    sol = pbar.scaling_release(w, [(0.0, w**2)], 0.05)
+    b, bd = sol.at(np.array([0.01, 0.05]))
+    np.testing.assert_allclose(b, 1.0, atol=1e-8)
+    np.testing.assert_allclose(bd * 0.05, 0.0, atol=1e-8)
+
+
+# ---------------------------------------------------------------- precession, alignment, Larmor times
+
+
+def _rect_larmor_times(E, V0, a, m):
+    """Larmor times of a rectangular barrier of width a below its top, tau_y = -hbar d(arg t)/dV0 and
+    tau_z = -hbar d(ln|t|)/dV0 (Phys. Rev. B 27, 6178 (1983)), differentiated here by hand from the textbook
+    amplitude t = e^{-ika} / [cosh(kappa a) + i eps sinh(kappa a)], eps = (kappa^2 - k^2)/(2 k kappa), with
+    k0^2 = k^2 + kappa^2 = 2 m V0 / hbar^2, d kappa / dV0 = m / (hbar^2 kappa), D = 4 k^2 kappa^2 + k0^4 sinh^2(kappa a):
+    tau_y = m k [2 kappa a (kappa^2 - k^2) + k0^2 sinh(2 kappa a)] / (hbar kappa D),
+    tau_z = m k0^2 [(kappa^2 - k^2) sinh^2(kappa a) + (kappa a k0^2 / 2) sinh(2 kappa a)] / (hbar kappa^2 D)."""
+    k = math.sqrt(2 * m * E) / sc.hbar
+    kap = math.sqrt(2 * m * (V0 - E)) / sc.hbar
+    k0sq = 2 * m * V0 / sc.hbar**2
+    d = 4 * k**2 * kap**2 + k0sq**2 * math.sinh(kap * a) ** 2
+    tau_y = m * k * (2 * kap * a * (kap**2 - k**2) + k0sq * math.sinh(2 * kap * a)) / (sc.hbar * kap * d)
+    tau_z = (m * k0sq * ((kap**2 - k**2) * math.sinh(kap * a) ** 2 + 0.5 * kap * a * k0sq * math.sinh(2 * kap * a))
+             / (sc.hbar * kap**2 * d))
+    return tau_y, tau_z
+
+
+@pytest.mark.parametrize("ratio", [0.3, 0.6, 0.9])
+def test_weak_coupling_larmor_times_of_a_rectangular_barrier_are_buttikers(ratio):
+    # Weak coupling hbar Omega sigma_x / 2 over the barrier: precession about x = Omega tau_y, alignment towards
+    # the low-energy -x = Omega tau_z, tau_y = -hbar d(arg t)/dV0, tau_z = -hbar d(ln|t|)/dV0 (Phys. Rev. B 27,
+    # 6178 (1983)); the derivatives by central differences of the closed-form amplitude _rect_t, and the closed
+    # forms of _rect_larmor_times.
+    a, V0 = 2.0e-6, 7.3e-30
+    E = ratio * V0
+    omega = 1e-4 * V0 / sc.hbar
+    x = np.linspace(0.0, a, 9)
+    r = pbar.spin_rotation(x, lambda xx: np.ones_like(np.asarray(xx, dtype=float)), V0, omega, np.array([E]), M_NA)
+    dv = 1e-5 * V0
+    tp, tm = _rect_t(E, V0 + dv, a, M_NA), _rect_t(E, V0 - dv, a, M_NA)
+    tau_y = -sc.hbar * np.angle(tp / tm) / (2 * dv)
+    tau_z = -sc.hbar * (math.log(abs(tp)) - math.log(abs(tm))) / (2 * dv)
+    closed_y, closed_z = _rect_larmor_times(E, V0, a, M_NA)
+    assert tau_y == pytest.approx(closed_y, rel=1e-6) and tau_z == pytest.approx(closed_z, rel=1e-6)
+    assert r.clock.precession_time[0] == pytest.approx(closed_y, rel=1e-4)
+    assert r.clock.alignment_time[0] == pytest.approx(closed_z, rel=1e-4)
+    assert r.clock.precession_angle[0] == pytest.approx(omega * closed_y, rel=1e-4)
+    # weak field: the total angle from the pole is the hypotenuse of the two (small-angle geometry)
+    assert r.angle[0] == pytest.approx(math.hypot(omega * closed_y, omega * closed_z), rel=1e-3)
+
+
+@pytest.mark.parametrize("theta,alpha", [(0.3, 0.1), (1.2, -0.4), (2.5, 0.7)])
+def test_precession_and_alignment_of_a_constructed_bloch_pair(theta, alpha):
+    # From the pole -z: turn by theta right-handed about x (in the y-z plane, perpendicular to the axis), then
+    # tilt by alpha towards -x: s = (-sin a, cos a sin t, -cos a cos t); the angles are read back geometrically
+    # (Phys. Rev. B 27, 6178 (1983): precession about the field, alignment with it).
+    from seqgen.physics.scattering import spin_rotation_angles
+
+    s_in = np.array([0.0, 0.0, -1.0])
+    s_out = np.array([-math.sin(alpha), math.cos(alpha) * math.sin(theta), -math.cos(alpha) * math.cos(theta)])
+    prec, align = spin_rotation_angles(s_in, s_out, (1.0, 0.0, 0.0))
+    assert float(prec) == pytest.approx(theta, abs=1e-12)
+    assert float(align) == pytest.approx(alpha, abs=1e-12)
+
+
+def test_transmitted_weighted_mean_weights_by_what_gets_through():
+    # sum w P a / sum w P: two velocity classes, the second transmitted three times as often (arithmetic)
+    got = pbar.transmitted_weighted_mean([0.5, 0.5], [0.1, 0.3], [2.0, 6.0])
+    assert got == pytest.approx((0.05 * 2 + 0.15 * 6) / 0.2, rel=1e-12)
+    assert pbar.transmitted_weighted_mean([1.0], [0.0], [3.0]) == 0.0
