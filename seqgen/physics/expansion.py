@@ -118,9 +118,13 @@ def trap_scaling(omega0_xyz, times, omegas, b0=(1.0, 1.0, 1.0), db0=(0.0, 0.0, 0
     tau = (t - t[0]) * scale
     w0sq, wsq = (w0 / scale) ** 2, (w / scale) ** 2
 
+    slope = np.diff(wsq, axis=0) / np.maximum(np.diff(tau), 1e-300)[:, None] if t.size > 1 else np.zeros((0, 3))
+    last = max(t.size - 2, 0)
+
     def rhs(s, y):
         lam = y[:3]
-        now = np.array([np.interp(s, tau, wsq[:, j]) for j in range(3)])
+        k = min(max(int(np.searchsorted(tau, s, side="right")) - 1, 0), last)
+        now = wsq[k] + slope[k] * (min(max(s, tau[0]), tau[-1]) - tau[k]) if t.size > 1 else wsq[0]
         return np.concatenate([y[3:], w0sq / (lam * np.prod(lam)) - now * lam])
 
     y0 = np.r_[np.asarray(b0, dtype=float).reshape(3), np.asarray(db0, dtype=float).reshape(3) / scale]
