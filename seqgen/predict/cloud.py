@@ -29,8 +29,8 @@ UP = np.array([0.0, 0.0, 1.0])  # gravity along -z, as for the trap minimisation
 EQUAL_MOMENT = 0.01 * MU_B  # moments closer than this cannot be separated
 SEPARATION_WIDTHS = 3.0  # components count as resolved this many combined rms widths apart
 # a trap change with max |d omega/dt| / omega^2 below this leaves a condensate at rest at the new equilibrium
-# (excess energy ~ its square, 1e-6; tests/physics/test_adiabatic.py bounds it)
-ADIABATIC = 1e-3
+# (its breathing amplitude is of order this, its excess energy of its square: tests/physics/test_adiabatic.py)
+ADIABATIC = 2e-2
 # a breathing oscillation followed for longer than this many radians of the fastest trap frequency (about
 # 500 periods) is taken as damped: the condensate at rest in the trap there (common practice, no source)
 MAX_TRAP_RADIANS = 3000.0
