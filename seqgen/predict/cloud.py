@@ -32,8 +32,8 @@ SEPARATION_WIDTHS = 3.0  # components count as resolved this many combined rms w
 # (its breathing amplitude is of order this, its excess energy of its square: tests/physics/test_adiabatic.py)
 ADIABATIC = 2e-2
 # a breathing oscillation followed for longer than this many radians of the fastest trap frequency (about
-# 500 periods) is taken as damped: the condensate at rest in the trap there (common practice, no source)
-MAX_TRAP_RADIANS = 3000.0
+# 160 periods) is taken as damped: the condensate at rest in the trap there (common practice, no source)
+MAX_TRAP_RADIANS = 1000.0
 
 
 # which trap the release opened (CloudAtImage.trap)
@@ -252,6 +252,8 @@ def _optical_history(shot, sp, t_rel):
     edges = sorted({g.t0 for g in segs} | {r1 for _, r1 in ramps} | {t_rel})
     state = None  # (omega0, b, db, damped)
     for a, z in zip(edges[:-1], edges[1:]):
+        if z - a < 1e-8:  # shorter than any trap period: a step
+            continue
         if any(r0 < z and r1 > a for r0, r1 in ramps):
             times, omegas, _ = trap_stage(shot, a, z)
         else:
@@ -287,15 +289,19 @@ def _condensate_sizes(shot, sp, rel, omegas, tof, a) -> dict:
     from ..physics.expansion import condensate_tof_radii, free_scaling, thomas_fermi
 
     s = shot.sample
-    hist = _optical_history(shot, sp, rel.t0) if not s.trap_frequencies_hz else None
     _, radii = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
-    if hist is None or hist[3]:  # at rest in the trap the release opens
-        r = condensate_tof_radii(radii, omegas, np.array([tof]))
-        return dict(sizes=np.asarray(r, dtype=float).reshape(3, -1)[:, -1], damped=bool(hist and hist[4]))
-    w0, b, db, _, damped = hist
-    _, radii0 = thomas_fermi(s.atoms, sp.mass_kg, a, w0)
-    r = radii0 * np.asarray(free_scaling(w0, b, db, np.array([tof]))).reshape(3, -1)[:, -1]
-    return dict(sizes=r, at_release=radii0 * b, at_rest=radii, damped=damped)
+    try:
+        hist = _optical_history(shot, sp, rel.t0) if not s.trap_frequencies_hz else None
+        if hist is not None and not hist[3]:
+            w0, b, db, _, damped = hist
+            _, radii0 = thomas_fermi(s.atoms, sp.mass_kg, a, w0)
+            r = radii0 * np.asarray(free_scaling(w0, b, db, np.array([tof]))).reshape(3, -1)[:, -1]
+            if np.all(np.isfinite(r)):
+                return dict(sizes=r, at_release=radii0 * b, at_rest=radii, damped=damped)
+    except (ValueError, RuntimeError, ArithmeticError, np.linalg.LinAlgError):
+        hist = None  # the history could not be followed: the condensate is taken at rest in the release's trap
+    r = condensate_tof_radii(radii, omegas, np.array([tof]))  # at rest in the trap the release opens
+    return dict(sizes=np.asarray(r, dtype=float).reshape(3, -1)[:, -1], damped=bool(hist and hist[4]))
 
 
 def _cloud_size(shot, img, rel):
