@@ -34,6 +34,7 @@ ADIABATIC = 2e-2
 # a breathing oscillation followed for longer than this many radians of the fastest trap frequency (about
 # 160 periods) is taken as damped: the condensate at rest in the trap there (common practice, no source)
 MAX_TRAP_RADIANS = 1000.0
+HISTORY_SAMPLES = 24  # trap evaluations per ramp before a release (each a minimisation; frequencies vary smoothly)
 
 
 # which trap the release opened (CloudAtImage.trap)
@@ -255,7 +256,7 @@ def _optical_history(shot, sp, t_rel):
         if z - a < 1e-8:  # shorter than any trap period: a step
             continue
         if any(r0 < z and r1 > a for r0, r1 in ramps):
-            times, omegas, _ = trap_stage(shot, a, z)
+            times, omegas, _ = trap_stage(shot, a, z, n=HISTORY_SAMPLES)
         else:
             beams = gaussian_beams(shot, [0.5 * (a + z)])[0]
             w = held(sp, tuple(beams)).omegas if beams else None
