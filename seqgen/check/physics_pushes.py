@@ -113,6 +113,14 @@ def equal_moments(shot):
                        hint="drive a transition to a state with a different moment (another mF)")
 
 
+def _up3(x: float) -> float:
+    """x rounded up to 3 significant digits, so that the printed fix reaches the need."""
+    if not (x > 0 and math.isfinite(x)):
+        return x
+    step = 10.0 ** (math.floor(math.log10(x)) - 2)
+    return math.ceil(x / step * (1 - 1e-12)) * step
+
+
 @rule(COMPONENTS_OVERLAP, stage="physics")
 def components_overlap(shot):
     for act, rep in separations(shot):
@@ -123,7 +131,7 @@ def components_overlap(shot):
         yield make(COMPONENTS_OVERLAP, f"the components are {fmt_length(abs(rep.separation), unit='um')} apart at the "
                    f"image, {abs(rep.separation) / rep.combined:.3g} combined rms widths (each {rep.sigma * 1e6:.4g} "
                    f"um); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"raise the gradient to {act.args['gradient'] * 100 * k:.3g} G/cm, or lengthen the pulse",
+                   hint=f"raise the gradient to {math.copysign(_up3(abs(act.args['gradient']) * 100 * k), act.args['gradient']):.3g} G/cm, or lengthen the pulse",
                    data={"separation_m": rep.separation, "combined_rms_m": rep.combined})
 
 

@@ -11,7 +11,8 @@ from scipy import constants as sc
 from ..codes import (CLOUD_CLIPPED, CLOUD_OUTSIDE_VIEW, CLOUD_OUT_OF_FOCUS, NONADIABATIC_RAMP, REPULSIVE_TRAP_BEAM,
                      SHALLOW_TRAP, TRAP_HEATING, TRAP_LOST)
 from ..findings import make
-from ..predict.cloud import focus_offset, image_prediction, view_reach
+from ..predict.cloud import (aperture_reach, focus_offset, focus_reach, image_prediction, view_edge_reach,
+                             view_reach)
 from ..predict.species import species
 from ..predict.text import size_text, who, why_there
 from ..predict.traps import trap_beam_shifts, trap_ramps, trap_stage_prediction
@@ -140,52 +141,56 @@ def _imaging_predictions(shot, needs: str):
 
 @rule(CLOUD_OUTSIDE_VIEW, stage="physics")
 def cloud_outside_view(shot):
+    # the cloud's edge per image axis: its centre plus its half-extent along that axis (per-axis sizes)
     for img, setup, pred in _imaging_predictions(shot, "field_of_view_m"):
         half = setup.field_of_view_m / 2
-        edge = pred.edge
-        worst = _worst(pred, view_reach)
-        if worst is None or worst[2] + edge <= half:
+        worst = _worst(pred, view_edge_reach)
+        if worst is None or worst[2] <= half:
             continue
         comp, case, reach = worst
-        out = sum(1 for c in pred.components if np.any(view_reach(pred, c) + edge > half))
+        centre = float(view_reach(pred, comp)[case])
+        out = sum(1 for c in pred.components if np.any(view_edge_reach(pred, c) > half))
         others = f" ({out} of {len(pred.components)} components leave it)" if len(pred.components) > 1 else ""
         h, v = comp.plane[case]
         yield make(CLOUD_OUTSIDE_VIEW, f"after {fmt_time(pred.tof, unit='ms')} of flight {who(comp)} is centred "
-                   f"{fmt_length(reach, 3, unit='mm')} from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "
-                   f"{v * 1e3 + 0.0:+.3g} mm up; {why_there(pred, comp, case)}), {size_text(pred)}; the field of view reaches "
-                   f"{fmt_length(half, 3, unit='mm')} from its centre{others}", img.pos, block=img.block, time_s=img.t0,
+                   f"{fmt_length(centre, 3, unit='mm')} from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "
+                   f"{v * 1e3 + 0.0:+.3g} mm up; {why_there(pred, comp, case)}), {size_text(pred)}; its edge reaches "
+                   f"{fmt_length(reach, 3, unit='mm')} and the field of view {fmt_length(half, 3, unit='mm')} from its centre{others}",
+                   img.pos, block=img.block, time_s=img.t0,
                    hint=("shorten the time of flight, weaken the push or separation, or recentre the camera (the imaging "
-                         "setup's center)" if reach > half - edge / 2 else
+                         "setup's center)" if centre > half - (reach - centre) / 2 else
                          "the cloud itself is too large for the view: shorten the time of flight or image a colder cloud"),
-                   data={"reach_m": reach + edge, "half_view_m": half})
+                   data={"reach_m": reach, "half_view_m": half})
 
 
 @rule(CLOUD_OUT_OF_FOCUS, stage="physics")
 def cloud_out_of_focus(shot):
+    # the cloud's extent along the line of sight (its half-extent along the probe beam), not its largest size
     for img, setup, pred in _imaging_predictions(shot, "depth_of_field_m"):
-        edge = pred.edge
-        worst = _worst(pred, focus_offset)
-        if worst is None or 2 * (worst[2] + edge) <= setup.depth_of_field_m:
+        worst = _worst(pred, focus_reach)
+        if worst is None or 2 * worst[2] <= setup.depth_of_field_m:
             continue
-        comp, case, off = worst
+        comp, case, reach = worst
+        off = float(focus_offset(pred, comp)[case])
         where = f", centred {fmt_length(off, 3, unit='mm')} from the focal plane" if off > 0 else ""
-        yield make(CLOUD_OUT_OF_FOCUS, f"{who(comp)} spans {fmt_length(2 * (off + edge), 3, unit='mm')} about the focal plane "
-                   f"along the line of sight{where} ({size_text(pred)}), more than the {fmt_length(setup.depth_of_field_m, 3, unit='mm')} "
+        yield make(CLOUD_OUT_OF_FOCUS, f"{who(comp)} spans {fmt_length(2 * reach, 3, unit='mm')} about the focal plane "
+                   f"along the line of sight{where} ({size_text(pred)}; {fmt_length(pred.extents[2], 3)} "
+                   f"from its centre along the line of sight), more than the {fmt_length(setup.depth_of_field_m, 3, unit='mm')} "
                    f"depth of field of '{setup.name}'", img.pos, block=img.block, time_s=img.t0,
                    hint="shorten the time of flight" + (", or push across the line of sight" if off > 0 else ""),
-                   data={"extent_m": 2 * (off + edge), "depth_of_field_m": setup.depth_of_field_m})
+                   data={"extent_m": 2 * reach, "depth_of_field_m": setup.depth_of_field_m})
 
 
 @rule(CLOUD_CLIPPED, stage="physics")
 def cloud_clipped(shot):
+    # the cloud's largest half-extent in the image plane beyond its centre's distance from the release point
     for img, setup, pred in _imaging_predictions(shot, "aperture_radius_m"):
-        edge = pred.edge
-        worst = _worst(pred, lambda p, c: c.from_release)
-        if worst is None or worst[2] + edge <= setup.aperture_radius_m:
+        worst = _worst(pred, aperture_reach)
+        if worst is None or worst[2] <= setup.aperture_radius_m:
             continue
-        comp, case, dist = worst
-        yield make(CLOUD_CLIPPED, f"after {fmt_time(pred.tof, unit='ms')} {who(comp)} reaches {fmt_length(dist + edge, 3, unit='mm')} "
+        comp, case, reach = worst
+        yield make(CLOUD_CLIPPED, f"after {fmt_time(pred.tof, unit='ms')} {who(comp)} reaches {fmt_length(reach, 3, unit='mm')} "
                    f"from the release point ({why_there(pred, comp, case)}; {size_text(pred)}), beyond the "
                    f"{fmt_length(setup.aperture_radius_m, 3, unit='mm')} aperture of '{setup.name}'",
                    img.pos, block=img.block, time_s=img.t0, hint="shorten the time of flight",
-                   data={"reach_m": dist + edge, "aperture_m": setup.aperture_radius_m})
+                   data={"reach_m": reach, "aperture_m": setup.aperture_radius_m})

@@ -114,17 +114,20 @@ CLOUD_OUT_OF_FOCUS = Code(
     At the image time a component of the cloud reaches beyond the
     imaging setup's depth of field along the line of sight (the probe
     beam's direction): its centre's distance from the focal plane (through
-    the setup's `center`) plus its reach (Thomas-Fermi radius, or 2 rms
-    widths) exceeds half the depth of field, so its near or far part is
-    imaged out of focus, which blurs the picture and biases fitted sizes.
+    the setup's `center`) plus its reach along the line of sight (its
+    Thomas-Fermi radii, or 2 rms widths, per axis: an ellipsoid's
+    half-extent along that direction) exceeds half the depth of field, so
+    its near or far part is imaged out of focus, which blurs the picture
+    and biases fitted sizes.
     Positions as for `physics.cloud-outside-view` (without a probe beam the
     line of sight is unknown and only the size is checked). Shorten the
     time of flight, image a smaller cloud, or push across the line of sight.""")
 
 CLOUD_OUTSIDE_VIEW = Code(
     "physics.cloud-outside-view", "error", stage="physics",
-    source=("free fall under standard gravity (SI Brochure); condensate expansion Phys. Rev. Lett. 77,"
-            " 5315 (1996); ballistic thermal expansion (textbook); Stern-Gerlach and push "
+    source=("free fall under standard gravity (SI Brochure); condensate in a changing trap and its expansion"
+            " Phys. Rev. Lett. 77, 5315 (1996), Phys. Rev. A 54, R1753 (1996); ballistic thermal expansion"
+            " (textbook); Stern-Gerlach and push "
             "displacements with moments from the Breit-Rabi formula, Phys. Rev. 38, 2082 (1931), force"
             " = moment x grad|B|, uniform acceleration then free flight (textbook)"),
     doc="""
@@ -136,11 +139,13 @@ CLOUD_OUTSIDE_VIEW = Code(
     |b'| along the coil's `field_grows_along`, or along its `axis` both
     ways when the rig does not say; uniform acceleration during the pulse,
     then free flight), and expansion (Thomas-Fermi scaling solution for a
-    condensate, ballistic for a thermal cloud; from an optical trap, an
-    Ioffe-Pritchard trap, or the Boltzmann profile of a linear quadrupole).
-    Its centre plus its reach (Thomas-Fermi radius, or 2 rms widths) must
-    lie within half the field of view of the setup's `center`, along both
-    axes of the image plane (the plane perpendicular to the probe beam).
+    condensate, followed through the optical trap's changes before the
+    release; ballistic for a thermal cloud; from an optical trap, an
+    Ioffe-Pritchard trap, or the Boltzmann profile of a linear quadrupole),
+    per principal axis. Its centre plus its reach along each axis of the
+    image plane (the plane perpendicular to the probe beam; Thomas-Fermi
+    radii, or 2 rms widths, projected on that axis) must lie within half
+    the field of view of the setup's `center`.
     Without a size prediction the centre alone is checked. Shorten the
     time of flight, weaken the separation, or recentre the camera.""")
 
@@ -172,10 +177,11 @@ COMPONENTS_OVERLAP = Code(
     at the image: their relative displacement (relative acceleration
     (mu_1 - mu_2) b'/m during the gradient pulse, then free drift until the
     image) is less than 3 combined rms widths, sqrt(sigma_1^2 + sigma_2^2).
-    The width is that of the cloud at the image (ballistic thermal, or the
-    Thomas-Fermi scaling solution with rms R/sqrt(7) along an axis; the
-    largest axis, so the estimate is on the safe side). Raise the gradient,
-    lengthen the pulse, or image later.""")
+    The width is that of the cloud at the image along the line that joins
+    the two centres (the gradient's direction): ballistic thermal, or the
+    Thomas-Fermi scaling solution with rms R/sqrt(7), an ellipsoid with
+    radii R_j reaching sqrt(sum (R_j u_j)^2) along the unit vector u. Raise
+    the gradient, lengthen the pulse, or image later.""")
 
 COMPONENTS_SEPARATED = Code(
     "physics.components-separated", "note", stage="physics",

@@ -1,11 +1,13 @@
-"""The cloud at an image: its size from the trap the release opened (optical beams, the sample's
-trap_frequencies, or a magnetic hold: Ioffe-Pritchard frequencies, or the Boltzmann profile of a linear
-quadrupole) and the expansion; the position of every populated internal-state component from the fall and
-the pushes and separations; and the Stern-Gerlach separation of two components at the image.
+"""The cloud at an image, along three axes: its size per principal axis from the trap the release opened
+(optical beams, the sample's trap_frequencies, or a magnetic hold: Ioffe-Pritchard frequencies, or the
+Boltzmann profile of a linear quadrupole), a condensate followed through the optical trap's changes before
+the release and its expansion after it; the centre and velocity of every populated internal-state component
+from the fall and the pushes and separations; and the Stern-Gerlach separation of two components at the
+image, against their widths along the line that joins them.
 
-Sources: free fall under standard gravity (SI Brochure); condensate expansion Phys. Rev. Lett. 77, 5315
-(1996); ballistic thermal expansion (textbook); Thomas-Fermi radius (Bose-Einstein Condensation in Dilute
-Gases, 2nd ed., Cambridge University Press (2008))."""
+Sources: free fall under standard gravity (SI Brochure); condensate in a changing trap and its expansion
+Phys. Rev. Lett. 77, 5315 (1996) and Phys. Rev. A 54, R1753 (1996); ballistic thermal expansion (textbook);
+Thomas-Fermi radius (Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008))."""
 
 from __future__ import annotations
 
@@ -19,13 +21,20 @@ from ..values import value_at
 from .cache import per_shot_cache
 from .magnetic import hold_analysis
 from .pushes import Components, components_at
-from .species import G_N, MU_B, bias, gaussian_beams, sample_state, species
+from .species import G_N, MU_B, bias, gaussian_beams, sample_state, species, trap_beams, unit
 from .states import populated_states, state_fractions
-from .traps import held
+from .traps import held, trap_stage
 
 UP = np.array([0.0, 0.0, 1.0])  # gravity along -z, as for the trap minimisation
 EQUAL_MOMENT = 0.01 * MU_B  # moments closer than this cannot be separated
 SEPARATION_WIDTHS = 3.0  # components count as resolved this many combined rms widths apart
+# a trap change with max |d omega/dt| / omega^2 below this leaves a condensate at rest at the new equilibrium
+# (its breathing amplitude is of order this, its excess energy of its square: tests/physics/test_adiabatic.py)
+ADIABATIC = 2e-2
+# a breathing oscillation followed for longer than this many radians of the fastest trap frequency (about
+# 160 periods) is taken as damped: the condensate at rest in the trap there (common practice, no source)
+MAX_TRAP_RADIANS = 1000.0
+HISTORY_SAMPLES = 24  # trap evaluations per ramp before a release (each a minimisation; frequencies vary smoothly)
 
 
 # which trap the release opened (CloudAtImage.trap)
@@ -34,11 +43,15 @@ TRAP_SAMPLE, TRAP_OPTICAL, TRAP_IOFFE_PRITCHARD, TRAP_QUADRUPOLE = "sample", "op
 
 @dataclass(frozen=True, eq=False)
 class CloudAtImage:
-    """The cloud released before an image: tof (s), drop (m, g_n tof^2 / 2), size (m) and size_kind
-    ("Thomas-Fermi radius" or "rms width"), omegas (rad/s, of the trap the release opened; None for a linear
-    magnetic trap), trap (which trap: one of the TRAP_* codes), trap_block (the magnetic hold's block),
-    sigma0 (in-trap rms width, m, thermal only), thermal_stand_in (a condensate in a linear trap, sized as a
-    thermal cloud at the sample's temperature)."""
+    """The cloud released before an image: tof (s), drop (m, g_n tof^2 / 2), sizes (m, per principal axis:
+    Thomas-Fermi radii or rms widths, size_kind "Thomas-Fermi radius" or "rms width") along the columns of
+    axes (unit vectors in the rig frame), size (the largest), omegas (rad/s, of the trap the release opened,
+    along the same axes; None for a linear magnetic trap), trap (which trap: one of the TRAP_* codes),
+    trap_block (the magnetic hold's block), sigma0 (largest in-trap rms width, m, thermal only),
+    thermal_stand_in (a condensate in a linear trap, sized as a thermal cloud at the sample's temperature),
+    at_release and at_rest (a condensate that was not at rest when released: its Thomas-Fermi radii at the
+    release and those at rest in that trap, m, along the axes; None when it was at rest), damped (a breathing
+    oscillation was taken as damped, see MAX_TRAP_RADIANS)."""
 
     tof: float
     drop: float
@@ -49,15 +62,42 @@ class CloudAtImage:
     sigma0: float | None = None
     trap_block: str | None = None
     thermal_stand_in: bool = False
+    sizes: np.ndarray | None = None
+    axes: np.ndarray | None = None
+    at_release: np.ndarray | None = None
+    at_rest: np.ndarray | None = None
+    damped: bool = False
 
     def as_dict(self) -> dict:
         return {f: getattr(self, f) for f in ("tof", "drop", "omegas", "trap", "trap_block", "size", "size_kind",
-                                              "sigma0", "thermal_stand_in")}
+                                              "sigma0", "thermal_stand_in", "sizes", "axes")}
+
+    @property
+    def edges(self) -> np.ndarray:
+        """Reach from the centre per principal axis: a Thomas-Fermi radius is the edge; for a Gaussian 2 rms widths."""
+        sizes = np.full(3, self.size) if self.sizes is None else np.asarray(self.sizes, dtype=float)
+        return sizes if self.size_kind.startswith("Thomas") else 2 * sizes
 
     @property
     def edge(self) -> float:
-        """The cloud's reach from its centre: a Thomas-Fermi radius is its edge; for a Gaussian 2 rms widths."""
+        """The cloud's largest reach from its centre."""
         return self.size if self.size_kind.startswith("Thomas") else 2 * self.size
+
+    def reach_along(self, direction) -> float:
+        """Half-extent of the cloud's edge ellipsoid along `direction` (m)."""
+        from ..physics.expansion import ellipsoid_half_extent
+
+        return float(ellipsoid_half_extent(self.edges, self.axes, direction))
+
+    def rms_along(self, direction) -> float:
+        """rms width of the cloud's profile projected on `direction` (m): an ellipsoid's half-extent along u is
+        |A u|, and a Thomas-Fermi profile's rms along an axis is R / sqrt(7) (Bose-Einstein Condensation in
+        Dilute Gases, Cambridge University Press, 2nd ed. 2008)."""
+        from ..physics.expansion import ellipsoid_half_extent
+
+        sizes = np.full(3, self.size) if self.sizes is None else self.sizes
+        r = float(ellipsoid_half_extent(sizes, self.axes, direction))
+        return r / math.sqrt(7) if self.size_kind.startswith("Thomas") else r
 
 
 @dataclass(frozen=True, eq=False)
@@ -65,7 +105,9 @@ class ImageComponent:
     """One internal-state component at an image: state, fraction, positions (n_cases, 3) m from the origin
     incl. gravity, plane (n_cases, 2) right / up image coordinates from the setup's centre, along (n_cases,)
     offset along the line of sight from the focal plane (None without a line of sight), from_release
-    (n_cases,) in-plane distance from the release point, parts (see pushes.Component)."""
+    (n_cases,) in-plane distance from the release point, parts (see pushes.Component), velocities
+    (n_cases, 3) m/s incl. gravity, cloud (its CloudAtImage: size per axis; every component of one release
+    expands alike, None without a size)."""
 
     state: tuple | None
     fraction: float
@@ -74,6 +116,8 @@ class ImageComponent:
     along: np.ndarray | None
     from_release: np.ndarray
     parts: tuple
+    velocities: np.ndarray | None = None
+    cloud: CloudAtImage | None = None
 
 
 # why an image has no cloud size (SizeUnknown.reason)
@@ -101,7 +145,9 @@ class SizeUnknown:
 
 @dataclass(frozen=True, eq=False)
 class ImagePrediction:
-    """Everything known of the cloud at an image (see `image_prediction`)."""
+    """Everything known of the cloud at an image (see `image_prediction`). edge: the cloud's largest reach;
+    extents: its half-extents (m) along the image's horizontal and vertical, along the line of sight, and the
+    largest one in the image plane (0 without a size)."""
 
     setup: object
     release: object = None
@@ -116,6 +162,7 @@ class ImagePrediction:
     edge: float = 0.0
     top_down: bool = False
     state_known: bool = True
+    extents: tuple = (0.0, 0.0, 0.0, 0.0)
 
 
 def _release_before(shot, t):
@@ -138,57 +185,145 @@ def _magnetic_hold_before(shot, t):
     return None
 
 
-def _trap_before_release(shot, sp, rel):
-    """(omegas or None, rms widths in a linear trap or None, trap code, block of a magnetic hold, SizeUnknown or
-    None) of the trap the release opens."""
-    from ..physics.kinematics import linear_trap_rms_widths
+def _perpendicular_axes(axis) -> np.ndarray:
+    """Columns: two unit vectors perpendicular to `axis`, then `axis` itself (normalised)."""
+    n = np.asarray(axis, dtype=float) / np.linalg.norm(axis)
+    seed = np.eye(3)[int(np.argmin(np.abs(n)))]
+    p1 = np.cross(n, seed)
+    p1 /= np.linalg.norm(p1)
+    return np.column_stack([p1, np.cross(n, p1), n])
 
-    if shot.sample.trap_frequencies_hz:
-        return 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz, dtype=float), None, TRAP_SAMPLE, None, None
+
+def _trap_before_release(shot, sp, rel):
+    """(omegas or None, rms widths in a linear trap or None, principal axes (columns), trap code, block of a
+    magnetic hold, SizeUnknown or None) of the trap the release opens; omegas and widths along the axes."""
+    from ..physics.kinematics import linear_trap_rms_widths
+    from ..physics.optical import find_trap_minimum
+
+    if shot.sample.trap_frequencies_hz:  # stated along the rig's x, y, z
+        return 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz, dtype=float), None, np.eye(3), TRAP_SAMPLE, None, None
     beams = gaussian_beams(shot, [rel.t0 - 1e-9])[0]
     if beams:
         omegas = held(sp, tuple(beams)).omegas
         if omegas is None or not np.all(np.isfinite(omegas)):
-            return None, None, None, None, SizeUnknown(TRAP_EMPTY)
-        return omegas, None, TRAP_OPTICAL, None, None
+            return None, None, None, None, None, SizeUnknown(TRAP_EMPTY)
+        try:  # the principal axes of the same minimum (held keeps the ascending frequencies alone)
+            axes = find_trap_minimum(sp, tuple(beams)).axes
+        except (ValueError, RuntimeError, np.linalg.LinAlgError):
+            axes = np.eye(3)
+        return omegas, None, axes, TRAP_OPTICAL, None, None
     hold = _magnetic_hold_before(shot, rel.t0)
     if hold is None:
-        return None, None, None, None, SizeUnknown(NO_TRAP)
+        return None, None, None, None, None, SizeUnknown(NO_TRAP)
     rep = hold_analysis(shot, hold)
     if rep.omega_radial:
         w_r, w_z = rep.omega_radial, rep.omega_axial
-        return np.array([w_r, w_r, w_z]), None, TRAP_IOFFE_PRITCHARD, hold.block, None
+        axes = _perpendicular_axes(rep.axis) if rep.axis is not None else np.eye(3)
+        return np.array([w_r, w_r, w_z]), None, axes, TRAP_IOFFE_PRITCHARD, hold.block, None
     if rep.kind == "quadrupole" and rep.trappable:
         temp = shot.sample.temperature_k
-        grads = np.abs(np.linalg.eigvalsh(np.asarray(rep.matrix, dtype=float)))
+        eig, vec = np.linalg.eigh(np.asarray(rep.matrix, dtype=float))
+        grads = np.abs(eig)
         if not temp:
-            return None, None, None, None, SizeUnknown(QUADRUPOLE_NEEDS_TEMPERATURE, hold.block)
+            return None, None, None, None, None, SizeUnknown(QUADRUPOLE_NEEDS_TEMPERATURE, hold.block)
         if not np.all(grads > 0):
-            return None, None, None, None, SizeUnknown(QUADRUPOLE_FLAT, hold.block)
-        return None, linear_trap_rms_widths(temp, rep.moment, grads), TRAP_QUADRUPOLE, hold.block, None
-    return None, None, None, None, SizeUnknown(HOLD_NO_SIZE, hold.block, hold=rep)
+            return None, None, None, None, None, SizeUnknown(QUADRUPOLE_FLAT, hold.block)
+        return None, linear_trap_rms_widths(temp, rep.moment, grads), vec, TRAP_QUADRUPOLE, hold.block, None
+    return None, None, None, None, None, SizeUnknown(HOLD_NO_SIZE, hold.block, hold=rep)
+
+
+def _at_rest(b, db, eq, omega) -> bool:
+    """b at the equilibrium eq and b' negligible: a breathing of relative amplitude 1e-6 changes no size."""
+    return bool(np.allclose(b, eq, rtol=1e-6, atol=0) and np.all(np.abs(db) <= 1e-6 * omega * b))
+
+
+def _optical_history(shot, sp, t_rel):
+    """A condensate through the optical trap's changes before a release at t_rel: (omega0 (3,) of the trap it
+    was at rest in, b (3,), b' (3,) 1/s at the release, at_rest (at rest in the release's trap), damped), or
+    None without a trap just before t_rel. The condensate is taken at rest in the trap as it was right after
+    it was last switched on; the trap changes only where a trap beam's power channel is written: a set is a
+    sudden change, a ramp follows `trap_stage`. Principal axes are followed by their rank (ascending
+    frequency). Scaling equations: Phys. Rev. Lett. 77, 5315 (1996); Phys. Rev. A 54, R1753 (1996)."""
+    from ..physics.adiabatic import adiabaticity_parameter
+    from ..physics.expansion import scaling_equilibrium, trap_scaling
+
+    chans = {beam.power_channel for beam in trap_beams(shot)}
+    segs = [g for g in shot.segments if g.output in chans and g.t0 < t_rel]
+    ramps = [(g.t0, min(g.t1, t_rel)) for g in segs if g.t1 > g.t0]
+    edges = sorted({g.t0 for g in segs} | {r1 for _, r1 in ramps} | {t_rel})
+    state = None  # (omega0, b, db, damped)
+    for a, z in zip(edges[:-1], edges[1:]):
+        if z - a < 1e-8:  # shorter than any trap period: a step
+            continue
+        if any(r0 < z and r1 > a for r0, r1 in ramps):
+            times, omegas, _ = trap_stage(shot, a, z, n=HISTORY_SAMPLES)
+        else:
+            beams = gaussian_beams(shot, [0.5 * (a + z)])[0]
+            w = held(sp, tuple(beams)).omegas if beams else None
+            times = np.array([a, z])
+            omegas = np.tile(w if w is not None else np.nan, (2, 1))
+        if not np.all(np.isfinite(omegas)) or np.any(omegas <= 0):
+            state = None  # the atoms are not held here: a later trap makes the condensate afresh
+            continue
+        if state is None:
+            state = (omegas[0], np.ones(3), np.zeros(3), False)
+        w0, b, db, damped = state
+        top = float(np.max(omegas))
+        slow = len(times) < 3 or float(np.max(adiabaticity_parameter(times, omegas.T, axis=-1))) < ADIABATIC
+        if _at_rest(b, db, scaling_equilibrium(w0, omegas[0]), top) and slow:
+            b, db = scaling_equilibrium(w0, omegas[-1]), np.zeros(3)
+        elif top * (z - a) > MAX_TRAP_RADIANS:
+            b, db, damped = scaling_equilibrium(w0, omegas[-1]), np.zeros(3), True
+        else:
+            bs, dbs = trap_scaling(w0, times, omegas, b, db, rtol=1e-8)
+            b, db = bs[:, -1], dbs[:, -1]
+        state = (w0, b, db, damped)
+    if state is None:
+        return None
+    w0, b, db, damped = state
+    return w0, b, db, _at_rest(b, db, scaling_equilibrium(w0, omegas[-1]), float(np.max(omegas))), damped
+
+
+def _condensate_sizes(shot, sp, rel, omegas, tof, a) -> dict:
+    """Thomas-Fermi radii at the image along the release trap's axes (sizes), and when the condensate was not at
+    rest at the release its radii there (at_release) and at rest in that trap (at_rest); damped."""
+    from ..physics.expansion import condensate_tof_radii, free_scaling, thomas_fermi
+
+    s = shot.sample
+    _, radii = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
+    try:
+        hist = _optical_history(shot, sp, rel.t0) if not s.trap_frequencies_hz else None
+        if hist is not None and not hist[3]:
+            w0, b, db, _, damped = hist
+            _, radii0 = thomas_fermi(s.atoms, sp.mass_kg, a, w0)
+            r = radii0 * np.asarray(free_scaling(w0, b, db, np.array([tof]))).reshape(3, -1)[:, -1]
+            if np.all(np.isfinite(r)):
+                return dict(sizes=r, at_release=radii0 * b, at_rest=radii, damped=damped)
+    except (ValueError, RuntimeError, ArithmeticError, np.linalg.LinAlgError):
+        hist = None  # the history could not be followed: the condensate is taken at rest in the release's trap
+    r = condensate_tof_radii(radii, omegas, np.array([tof]))  # at rest in the trap the release opens
+    return dict(sizes=np.asarray(r, dtype=float).reshape(3, -1)[:, -1], damped=bool(hist and hist[4]))
 
 
 def _cloud_size(shot, img, rel):
     """(CloudAtImage, None) or (None, SizeUnknown) for the cloud released by `rel` and imaged by `img`."""
-    from ..physics.expansion import condensate_tof_radii, thermal_width, thomas_fermi
+    from ..physics.expansion import thermal_width
 
     sp = species(shot)
     tof = img.t0 - rel.t0
     drop = 0.5 * G_N * tof ** 2
-    omegas, widths, trap, block, why = _trap_before_release(shot, sp, rel)
+    omegas, widths, axes, trap, block, why = _trap_before_release(shot, sp, rel)
     if why:
         return None, why
     s = shot.sample
-    cloud = {"tof": tof, "drop": drop, "omegas": omegas, "trap": trap, "trap_block": block}
+    cloud = {"tof": tof, "drop": drop, "omegas": omegas, "trap": trap, "trap_block": block, "axes": axes}
     if s.condensed and s.atoms and omegas is not None:
         a = next(iter(sp.scattering_lengths_m.values()), None)
         a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", a)
         if not a or a <= 0:
             return None, SizeUnknown(NO_SCATTERING_LENGTH, species=sp.name)
-        _, radii = thomas_fermi(s.atoms, sp.mass_kg, a, omegas)
-        r = condensate_tof_radii(radii, omegas, np.array([tof]))
-        cloud.update(size=float(np.max(np.asarray(r).reshape(3, -1)[:, -1])), size_kind="Thomas-Fermi radius")
+        sized = _condensate_sizes(shot, sp, rel, omegas, tof, a)
+        cloud.update(size=float(np.max(sized["sizes"])), size_kind="Thomas-Fermi radius", **sized)
         return CloudAtImage(**cloud), None
     if not s.temperature_k:
         return None, SizeUnknown(NO_TEMPERATURE_NOR_ATOMS if s.condensed else NO_TEMPERATURE)
@@ -196,8 +331,8 @@ def _cloud_size(shot, img, rel):
         sigma0 = np.asarray(widths, dtype=float)  # 2 k_B T / (|mu| b'_i) per principal axis
     else:
         sigma0 = np.sqrt(sc.k * s.temperature_k / (sp.mass_kg * np.asarray(omegas, dtype=float) ** 2))
-    cloud.update(size=float(np.max(thermal_width(sigma0, s.temperature_k, sp.mass_kg, tof))), size_kind="rms width",
-                 sigma0=float(np.max(sigma0)))
+    sizes = np.asarray(thermal_width(sigma0, s.temperature_k, sp.mass_kg, tof), dtype=float)
+    cloud.update(size=float(np.max(sizes)), sizes=sizes, size_kind="rms width", sigma0=float(np.max(sigma0)))
     if s.condensed:
         cloud["thermal_stand_in"] = True
     return CloudAtImage(**cloud), None
@@ -234,6 +369,7 @@ def image_prediction(shot, img) -> ImagePrediction | None:
     tof = img.t0 - rel.t0
     cloud, why = _cloud_size(shot, img, rel)
     gravity = np.array([0.0, 0.0, -0.5 * G_N * tof ** 2])
+    fall_speed = np.array([0.0, 0.0, -G_N * tof])
     beam = shot.rig.beams.get(setup.probe_beam) if setup is not None and setup.probe_beam else None
     basis = los = None
     if beam is not None:
@@ -257,12 +393,30 @@ def image_prediction(shot, img) -> ImagePrediction | None:
             plane = np.stack([np.hypot(off[:, 0], off[:, 1]), off[:, 2]], axis=-1)
             along = None
             rel_plane = np.stack([np.hypot(pos[:, 0], pos[:, 1]), pos[:, 2]], axis=-1)
+        vel = (np.zeros_like(pos) if comp.velocities is None else comp.velocities) + fall_speed
         comps.append(ImageComponent(comp.state, comp.fraction, pos, plane, along,
-                                    np.hypot(rel_plane[:, 0], rel_plane[:, 1]), comp.parts))
+                                    np.hypot(rel_plane[:, 0], rel_plane[:, 1]), comp.parts, vel, cloud))
     return ImagePrediction(setup, rel, tof, cloud, why, tuple(comps), motion.unknown, motion.signs, motion.empty, los,
                            cloud.edge if cloud is not None else 0.0,
                            basis is not None and abs(float(np.dot(basis[2], UP))) > 1 - 1e-6,
-                           shot.sample.F is not None and shot.sample.mF is not None)
+                           shot.sample.F is not None and shot.sample.mF is not None,
+                           _extents(cloud, basis))
+
+
+def _extents(cloud, basis) -> tuple:
+    """Half-extents of the cloud's edge ellipsoid: (image horizontal, image vertical, line of sight, largest in
+    the image plane); without a line of sight the image plane is vertical and holds every horizontal direction
+    (the conservative side), the line of sight taking the largest reach."""
+    from ..physics.expansion import ellipsoid_plane_semi_major
+
+    if cloud is None:
+        return (0.0, 0.0, 0.0, 0.0)
+    if basis is not None:
+        e_h, e_v, n = basis
+        return (cloud.reach_along(e_h), cloud.reach_along(e_v), cloud.reach_along(n),
+                ellipsoid_plane_semi_major(cloud.edges, cloud.axes, np.stack([e_h, e_v])))
+    flat = ellipsoid_plane_semi_major(cloud.edges, cloud.axes, np.eye(3)[:2])
+    return (flat, cloud.reach_along(UP), cloud.edge, cloud.edge)
 
 
 def view_reach(pred: ImagePrediction, comp: ImageComponent):
@@ -278,14 +432,37 @@ def focus_offset(pred: ImagePrediction, comp: ImageComponent):
     return np.abs(comp.along)
 
 
+def view_edge_reach(pred: ImagePrediction, comp: ImageComponent):
+    """Per case: how far the cloud's edge reaches from the centre of view in the field-of-view metric: per
+    image axis |centre| + half-extent along it (a square view), or |centre| + the largest half-extent in the
+    image plane (a circular view, looking along the vertical; an upper bound)."""
+    ext_h, ext_v, _, ext_plane = pred.extents
+    h, v = np.abs(comp.plane[:, 0]), np.abs(comp.plane[:, 1])
+    return np.hypot(h, v) + ext_plane if pred.top_down else np.maximum(h + ext_h, v + ext_v)
+
+
+def focus_reach(pred: ImagePrediction, comp: ImageComponent):
+    """Per case: how far the cloud reaches from the focal plane: centre offset + half-extent along the line of
+    sight."""
+    return focus_offset(pred, comp) + pred.extents[2]
+
+
+def aperture_reach(pred: ImagePrediction, comp: ImageComponent):
+    """Per case: how far the cloud reaches from the release point in the image plane: centre distance + the
+    largest half-extent in the plane (an upper bound)."""
+    return comp.from_release + pred.extents[3]
+
+
 # --------------------------------------------------------------------------- Stern-Gerlach separation
 
 @dataclass(frozen=True)
 class Separation:
     """Separation of the populated components at the next image: states and their fractions; pair (None when
     only one state holds atoms) and its moments (-dE/dB, J/T); equal: moments too close to separate;
-    separation (m) at the image; sigma, combined (m): each component's and the combined rms width; resolved:
-    at least SEPARATION_WIDTHS combined widths apart (None without a cloud size)."""
+    separation (m) at the image along direction (unit vector of the line joining the two centres: the
+    gradient's, along the coil's `field_grows_along` or else its `axis`); sigma, combined (m): each
+    component's rms width along that line and the combined one; resolved: at least SEPARATION_WIDTHS combined
+    widths apart (None without a cloud size)."""
 
     image: object
     states: tuple
@@ -297,15 +474,19 @@ class Separation:
     sigma: float | None = None
     combined: float | None = None
     resolved: bool | None = None
+    direction: tuple | None = None
 
 
 @per_shot_cache(lambda shot, act: ("state-separate", act.index, act.t0))
 def separation_analysis(shot, act) -> Separation | None:
-    """Separation of the populated components at the next image, against their widths, or None.
+    """Separation of the populated components at the next image, against their widths along the line that
+    joins them, or None.
 
     The components are the states that hold atoms when the gradient pulse starts; of several, the two
     closest in moment (the hardest to separate) are compared (Stern-Gerlach: relative acceleration
-    (mu_1 - mu_2) b'/m, moments from the Breit-Rabi formula, Phys. Rev. 38, 2082 (1931))."""
+    (mu_1 - mu_2) b'/m, moments from the Breit-Rabi formula, Phys. Rev. 38, 2082 (1931)). The relative
+    acceleration is along the gradient, so the centres part along it; both components are the same cloud
+    (one release), whose rms width along that line is that of its profile projected on it."""
     from itertools import combinations
 
     from ..physics.kinematics import components_resolved, stern_gerlach_separation
@@ -334,11 +515,17 @@ def separation_analysis(shot, act) -> Separation | None:
     tof_after = img.t0 - act.t1
     rep["separation"] = float(stern_gerlach_separation(mu[0], mu[1], act.args["gradient"], act.args["duration"],
                                                        tof_after, sp.mass_kg))
+    coil = shot.rig.coils.get(act.args.get("coil"))
+    way = None
+    if coil is not None:
+        way = unit(coil.field_grows_along) if coil.field_grows_along is not None else unit(coil.axis)
+    if way is not None:
+        rep["direction"] = tuple(float(x) for x in way)
     cloud = cloud_at_image(shot, img)
     if cloud:
-        # rms of a Thomas-Fermi profile along an axis is R / sqrt(7)
-        # (Bose-Einstein Condensation in Dilute Gases, Cambridge University Press, 2nd ed. 2008)
-        sigma = cloud.size / math.sqrt(7) if cloud.size_kind.startswith("Thomas") else cloud.size
+        # without a direction (no usable coil axis) the largest width: the safe side
+        sigma = cloud.rms_along(way) if way is not None else (
+            cloud.size / math.sqrt(7) if cloud.size_kind.startswith("Thomas") else cloud.size)
         rep.update(sigma=sigma, combined=math.sqrt(2) * sigma,
                    resolved=bool(components_resolved(rep["separation"], sigma, sigma, SEPARATION_WIDTHS)))
     return Separation(**rep)

@@ -122,12 +122,14 @@ def push_analysis(shot, act) -> PushPrediction | None:
 class Component:
     """The atoms of one state that took one set of displacements: state, fraction of the atoms,
     displacements (n_cases, 3) m from the trap centre (gravity not included), parts ((label, known_sign,
-    vector for the + sign, column in `signs` or None), ...)."""
+    vector for the + sign, column in `signs` or None), ...), velocities (n_cases, 3) m/s the forces gave
+    (gravity not included; after a force confined by a trap, the kick's speed: an upper bound)."""
 
     state: tuple | None
     fraction: float
     displacements: np.ndarray
     parts: tuple
+    velocities: np.ndarray | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -142,8 +144,14 @@ class Components:
     signs: np.ndarray | None
 
 
+def _kick(acc, t0, t1, t):
+    """Velocity at t of an atom at rest accelerated uniformly by `acc` (3,) from t0 to t1 (textbook kinematics)."""
+    return np.asarray(acc, dtype=float) * min(max(t - t0, 0.0), t1 - t0)
+
+
 def _force_parts(shot, t, paths):
-    """Per push / separation before t: (label, known_sign, displacements (n_paths, 3)) of each path at time t."""
+    """Per push / separation before t: (label, known_sign, displacements (n_paths, 3), velocities (n_paths, 3))
+    of each path at time t."""
     from ..physics.kinematics import pulse_displacement
     from ..physics.zeeman import magnetic_moment
 
@@ -161,7 +169,7 @@ def _force_parts(shot, t, paths):
             if way is None:
                 continue
             grad = abs(float(act.args["gradient"]))
-            disp = []
+            disp, vel = [], []
             for _, ch in paths:
                 st = state_at(ch, act.t0)
                 try:
@@ -172,15 +180,18 @@ def _force_parts(shot, t, paths):
                 acc = mu * grad / sp.mass_kg
                 disp.append(_confined(shot, sp, act, t, pulse_displacement(acc * way, act.t0, act.t1, t),
                                       abs(acc) * (act.t1 - act.t0)))
+                vel.append(_kick(acc * way, act.t0, act.t1, t))
             if any(np.any(d != 0) for d in disp):
-                parts.append((label + f" ({coil.name})", grows is not None, np.array(disp, dtype=float).reshape(-1, 3)))
+                parts.append((label + f" ({coil.name})", grows is not None, np.array(disp, dtype=float).reshape(-1, 3),
+                              np.array(vel, dtype=float).reshape(-1, 3)))
         else:
             rep = push_analysis(shot, act)
             if not rep or rep.direction is None or not rep.velocity:
                 continue
             acc = rep.velocity / max(act.t1 - act.t0, 1e-300) * np.asarray(rep.direction, dtype=float)
             d = _confined(shot, sp, act, t, pulse_displacement(acc, act.t0, act.t1, t), abs(rep.velocity))
-            parts.append((label + f" (beam {rep.beam})", True, np.tile(np.asarray(d, dtype=float), (len(paths), 1))))
+            parts.append((label + f" (beam {rep.beam})", True, np.tile(np.asarray(d, dtype=float), (len(paths), 1)),
+                          np.tile(_kick(acc, act.t0, act.t1, t), (len(paths), 1))))
     return parts
 
 
@@ -209,8 +220,8 @@ def _confined(shot, sp, act, t, disp, speed):
 def components_at(shot, img) -> Components | None:
     """Where the atoms of each populated state are at an image, from the pushes and separations before it.
 
-    dict(components=[dict(state, fraction, displacements (n_cases, 3) m, parts=[(label, known_sign, vector for
-    the + sign, column in `signs` or None)])], unknown=[labels of forces whose sign is unknown], signs=(n_cases,
+    dict(components=[dict(state, fraction, displacements (n_cases, 3) m, velocities (n_cases, 3) m/s,
+    parts=[(label, known_sign, vector for the + sign, column in `signs` or None)])], unknown=[labels of forces whose sign is unknown], signs=(n_cases,
     n_unknown) array of the signs of each case (None when the cases are the corners of a bounding box),
     empty=[(state, fraction) of states below the floor]).
     Displacements are from the atoms' place before the first force (the trap centre, the rig's origin), for
@@ -227,24 +238,30 @@ def components_at(shot, img) -> Components | None:
         return None
     pop = populations(shot, img.t0)
     paths = pop.paths if pop is not None else [(1.0, ((-math.inf, None),))]
-    parts = _force_parts(shot, img.t0, paths)
+    forces = _force_parts(shot, img.t0, paths)
+    parts = [(label, known, disp) for label, known, disp, _ in forces]
     base = np.zeros((len(paths), 3))
-    unknown = []
-    for label, known, disp in parts:
+    base_v = np.zeros((len(paths), 3))
+    unknown, unknown_v = [], []
+    for label, known, disp, vel in forces:
         if known:
             base += disp
+            base_v += vel
         else:
             unknown.append((label, disp))
+            unknown_v.append(vel)
     n_unk = len(unknown)
     signs = None
     if n_unk <= MAX_UNKNOWN_SIGNS:
         signs = np.array(list(product((1.0, -1.0), repeat=n_unk)), dtype=float).reshape(2 ** n_unk, n_unk)
         stack = np.array([d for _, d in unknown], dtype=float).reshape(n_unk, len(paths), 3)
         cases = base[None] + np.einsum("cu,upk->cpk", signs, stack)  # (n_cases, n_paths, 3)
+        speeds = base_v[None] + np.einsum("cu,upk->cpk", signs, np.array(unknown_v, dtype=float).reshape(n_unk, len(paths), 3))
     else:  # the corners of the box that holds every combination
         reach = np.sum(np.abs([d for _, d in unknown]), axis=0)  # (n_paths, 3)
         corners = np.array(list(product((1.0, -1.0), repeat=3)))
         cases = base[None] + corners[:, None, :] * reach[None]
+        speeds = base_v[None] + corners[:, None, :] * np.sum(np.abs(unknown_v), axis=0)[None]
     comps: list = []
     empty: dict = {}
     for k, (f, ch) in enumerate(paths):
@@ -259,12 +276,13 @@ def components_at(shot, img) -> Components | None:
             for label, known, disp in parts:  # which column of `signs` an unknown sign is
                 slots.append((label, known, disp[k], None if known else j))
                 j += 0 if known else 1
-            comps.append(dict(state=st, fraction=f, displacements=d, parts=slots))
+            comps.append(dict(state=st, fraction=f, displacements=d, parts=slots, velocities=speeds[:, k, :]))
     kept = []
     for c in sorted(comps, key=lambda c: -c["fraction"]):
         if pop is None or is_populated(shot, c["fraction"]):
             kept.append(c)
         else:
             empty[c["state"]] = empty.get(c["state"], 0.0) + c["fraction"]
-    kept = tuple(Component(c["state"], c["fraction"], c["displacements"], tuple(c["parts"])) for c in kept)
+    kept = tuple(Component(c["state"], c["fraction"], c["displacements"], tuple(c["parts"]), c["velocities"])
+                 for c in kept)
     return Components(kept, tuple(label for label, _ in unknown), tuple(sorted(empty.items())), signs)

@@ -13,7 +13,7 @@ from ..textfmt import (fmt_angle_pi, fmt_energy, fmt_freq, fmt_gauss, fmt_gauss_
                        fmt_pct, fmt_state, fmt_time, fmt_vec)
 from . import text as tx
 from .barrier import analyse
-from .cloud import SEPARATION_WIDTHS, image_prediction, separations, view_reach
+from .cloud import SEPARATION_WIDTHS, image_prediction, separations, view_edge_reach
 from .imaging import images, probe_analysis
 from .magnetic import holds, hold_analysis
 from .pushes import push_analysis, pushes
@@ -96,9 +96,11 @@ def _image_items(pred) -> list:
     if c is None:
         items.append(f"no size prediction: {tx.size_unknown_text(pred.why)}; centres alone are checked")
     else:
-        items.append(f"{c.size_kind} {fmt_length(c.size, 3)} (released from {tx.trap_text(c)})")
+        items.append(f"{tx.sizes_text(c)} (released from {tx.trap_text(c)})")
         if c.thermal_stand_in:
             items.append(tx.THERMAL_STAND_IN)
+        if c.at_release is not None:
+            items.append(tx.not_at_rest_text(c))
     setup = pred.setup
     if pred.los is not None:
         items.append(f"camera looks along {fmt_vec(pred.los)} (probe beam '{setup.probe_beam}'), image plane perpendicular")
@@ -113,9 +115,14 @@ def _image_items(pred) -> list:
         pos = comp.positions
         where = (" or ".join(fmt_vec(p, scale=1e3, unit="mm") for p in pos) if len(pos) <= 4 else
                  "within " + fmt_vec(pos.min(axis=0), scale=1e3, unit="mm") + " .. " + fmt_vec(pos.max(axis=0), scale=1e3, unit="mm"))
-        text = f"{tx.who(comp)} centred at {where} (rig frame)"
+        vel = comp.velocities
+        moving = (" or ".join(fmt_vec(v, scale=1e3, unit="mm/s") for v in vel) if len(vel) <= 4 else
+                  "within " + fmt_vec(vel.min(axis=0), scale=1e3, unit="mm/s") + " .. " + fmt_vec(vel.max(axis=0), scale=1e3, unit="mm/s"))
+        text = f"{tx.who(comp)} centred at {where} (rig frame), moving at {moving}"
+        if comp.cloud is not None:
+            text += f", {tx.sizes_text(comp.cloud)}"
         if half is not None:
-            reach = view_reach(pred, comp) + pred.edge
+            reach = view_edge_reach(pred, comp)
             text += f", reaching {fmt_length(float(np.max(reach)), 3, unit='mm')} of the {fmt_length(half, 3, unit='mm')} half field of view"
         items.append(text)
     if pred.empty:
@@ -228,7 +235,8 @@ def _state_rows(shot) -> list:
         items = [f"{fmt_state(*a)} {rep.moments[0] / MU_B:+.4g} mu_B, {fmt_state(*b)} {rep.moments[1] / MU_B:+.4g} mu_B",
                  f"separation at the image {fmt_length(abs(rep.separation), unit='mm')}"]
         if rep.combined is not None:
-            items.append(f"rms width {fmt_length(rep.sigma, unit='um')} each: {abs(rep.separation) / rep.combined:.3g} "
+            along = f" along {fmt_vec(rep.direction)}" if rep.direction is not None else ""
+            items.append(f"rms width {fmt_length(rep.sigma, unit='um')}{along} each: {abs(rep.separation) / rep.combined:.3g} "
                          f"combined rms widths (need {SEPARATION_WIDTHS:g})")
         rows.append(_row(act.block, "separate", act.t0, items))
     for act in images(shot):

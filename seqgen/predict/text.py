@@ -111,11 +111,43 @@ def size_unknown_text(why) -> str:
     }[why.reason]()
 
 
+_PLURAL = {"Thomas-Fermi radius": "Thomas-Fermi radii", "rms width": "rms widths"}
+
+
+def axis_sizes_text(sizes, axes, kind: str) -> str:
+    """Sizes per principal axis (columns of `axes`): 'Thomas-Fermi radii 270 x 13 x 13 um (x, y, z)' when the
+    ellipsoid's axes are the rig's (its shape matrix sum_j R_j^2 e_j e_j^T is diagonal: equal sizes may share
+    any axes), else the sizes along its principal axes, named."""
+    sizes = np.asarray(sizes, dtype=float).reshape(3)
+    axes = np.eye(3) if axes is None else np.asarray(axes, dtype=float)
+    shape = (axes * sizes ** 2) @ axes.T
+    off = shape - np.diag(np.diag(shape))
+    unit, scale = ("um", 1e6) if float(np.max(sizes)) < 1e-3 else ("mm", 1e3)
+    if float(np.max(np.abs(off))) <= 1e-6 * float(np.max(np.diag(shape))):
+        by_axis, where = np.sqrt(np.diag(shape)), "(x, y, z)"
+    else:
+        by_axis, where = sizes, "along " + ", ".join(fmt_vec(axes[:, j]) for j in range(3))
+    return f"{_PLURAL.get(kind, kind)} " + " x ".join(f"{x * scale:.3g}" for x in by_axis) + f" {unit} {where}"
+
+
+def sizes_text(cloud) -> str:
+    """The cloud's size per axis at the image (CloudAtImage)."""
+    sizes = np.full(3, cloud.size) if cloud.sizes is None else cloud.sizes
+    return axis_sizes_text(sizes, cloud.axes, cloud.size_kind)
+
+
+def not_at_rest_text(cloud) -> str:
+    """A condensate the trap's changes left out of rest at the release (CloudAtImage.at_release)."""
+    text = (f"not at rest when released (the trap changed before): {axis_sizes_text(cloud.at_release, cloud.axes, cloud.size_kind)} "
+            f"at the release, {axis_sizes_text(cloud.at_rest, cloud.axes, cloud.size_kind)} at rest in that trap")
+    return text + "; a breathing oscillation taken as damped" if cloud.damped else text
+
+
 def size_text(pred) -> str:
     c = pred.cloud
     if c is None:
         return f"cloud size unknown ({size_unknown_text(pred.why)}): its centre alone is checked"
-    return f"{c.size_kind} {fmt_length(c.size, 3)}"
+    return sizes_text(c)
 
 
 # --------------------------------------------------------------------------- barriers
