@@ -173,6 +173,10 @@ def claim(out: str | Path, *, wait: bool = False, wait_s: float | None = None) -
             os.close(fd)
             if exc.errno in _UNSUPPORTED:  # a file system without flock (some network mounts)
                 _say_unlocked(out, f"the file system does not lock: {exc.strerror}")
+                try:
+                    os.unlink(lock)  # nothing left beside the output, as before
+                except OSError:
+                    pass
                 return Claim(out, lock, None)
             raise
         if not _same_file(fd, lock):  # the previous holder removed the file we opened: open the one now there
@@ -273,7 +277,12 @@ def read_whole(folder: str | Path, read: Callable[[Callable[[str], object]], T],
     while True:
         attempt += 1
         await_writer(folder)
-        dfd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | getattr(os, "O_CLOEXEC", 0))
+        try:
+            dfd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | getattr(os, "O_CLOEXEC", 0))
+        except FileNotFoundError:  # swapped away again just now (no atomic exchange): wait for the next one
+            if attempt >= tries or not writer_active(folder):
+                raise
+            continue
         try:
             return read(lambda name: open(name, "rb", opener=lambda p, flags: os.open(p, flags, dir_fd=dfd)))
         except FileNotFoundError:
