@@ -506,7 +506,8 @@ def build_parser() -> argparse.ArgumentParser:
     b = sub.add_parser("build", help="preflight and compile a sequence into a build folder")
     b.add_argument("file", help="sequence file (.yaml)")
     b.add_argument("-o", "--output", required=True, help="build folder to write")
-    b.add_argument("--force", action="store_true", help="replace an existing build folder")
+    b.add_argument("--force", action="store_true", help="replace an existing build folder (after waiting, at most 60 s, "
+                   "for another seqgen process writing it)")
     b.add_argument("--json", action="store_true", help="summary as JSON")
     _allow_outside_option(b)
     _scan_options(b)

@@ -144,7 +144,8 @@ def claim(out: str | Path, *, wait: bool = False, wait_s: float | None = None) -
     if fcntl is None:
         _say_unlocked(out, "no file locks on this platform")
         return Claim(out, lock, None)
-    deadline = time.monotonic() + (wait_seconds() if wait_s is None else wait_s)
+    limit = wait_seconds() if wait_s is None else wait_s
+    deadline = time.monotonic() + limit
     pause, said = _POLL_S[0], False
     while True:
         fd = os.open(lock, os.O_RDWR | os.O_CREAT | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_CLOEXEC", 0), 0o644)
@@ -159,12 +160,11 @@ def claim(out: str | Path, *, wait: bool = False, wait_s: float | None = None) -
                                  "output") from None
             if time.monotonic() >= deadline:
                 raise OutputBusy(f"{out} is still being written by another seqgen process ({holder}) after "
-                                 f"{wait_seconds() if wait_s is None else wait_s:g} s; nothing was written, try "
-                                 "again once it is done") from None
+                                 f"{limit:g} s; nothing was written, try again once it is done") from None
             if not said:
                 said = True
                 print(f"seqgen: {out} is being written by another seqgen process ({holder}); waiting for it "
-                      f"(at most {wait_seconds() if wait_s is None else wait_s:g} s), then replacing its output",
+                      f"(at most {limit:g} s), then replacing its output",
                       file=sys.stderr)
             time.sleep(pause)
             pause = min(pause * 2, _POLL_S[1])
