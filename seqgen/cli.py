@@ -1,7 +1,8 @@
 """Command line: seqgen check | build | show | diff | plot | explain.
 
 Exit codes: 0 no error findings, 1 error findings, 2 the command could not
-run (usage, unreadable file, output folder exists without --force).
+run (usage, unreadable file, output folder exists without --force, another
+seqgen process is writing the same output).
 """
 
 from __future__ import annotations
@@ -147,10 +148,12 @@ def _check_rig_file(src, args, report) -> int:
 def _write_check_report(path, res, args, scan=None, choice=None) -> int:
     """check --report FILE: the self-contained HTML preflight report (seqgen/emit/report.py); `scan`: the run
     scan (seqgen.scan.plan.Scan) whose plan, shots and per-code summary head it; `choice`: which shot `res` is."""
+    from .emit.claim import OutputBusy
     from .emit.report import OutputExists, write_report
 
     failed, _ = _writing(f"the report to {path}", lambda: write_report(path, res, args.file, force=args.force,
-                                                                        scan=scan, choice=choice), (OutputExists,))
+                                                                        scan=scan, choice=choice),
+                         (OutputExists, OutputBusy))
     if failed:
         if _format(args) == "text":  # the report was refused: the caution still closes the output
             print(_caution())
@@ -164,6 +167,7 @@ def _write_check_report(path, res, args, scan=None, choice=None) -> int:
 
 def cmd_plot(args) -> int:
     """plot FILE [NEW] -o OUT: the timeline of one sequence, or two versions overlaid with their differences."""
+    from .emit.claim import OutputBusy
     from .emit.plot import OutputExists, PlotError, diff_figure, format_of, parse_channels, parse_time, \
         save_figure, timeline_figure
     from .findings import has_errors
@@ -207,7 +211,7 @@ def cmd_plot(args) -> int:
         save_figure(fig, args.output, force=args.force)
         return fig
 
-    failed, fig = _writing(str(args.output), draw, (PlotError, OutputExists))
+    failed, fig = _writing(str(args.output), draw, (PlotError, OutputExists, OutputBusy))
     if failed:
         return failed
     info = fig.seqgen_info
@@ -315,7 +319,7 @@ def _scan_caption(choice, scan) -> str | None:
 def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
     """check / build of a scanned sequence: every shot, then a per-code summary of param ranges; `caution`:
     end with the safety caution (False when the caller prints more and the caution after it)."""
-    from .emit.build import BuildExists
+    from .emit.build import BuildExists, OutputBusy
     from .scan.run import ClusterUnavailable, run_scan
     from .scan.summary import report_text, scan_json
     from .findings import has_errors
@@ -339,7 +343,7 @@ def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
         return EXIT_FINDINGS
     failed, _ = _writing(f"the scan to {args.output}" if build else "the scan", lambda: run_scan(
         scan, out=args.output if build else None, force=getattr(args, "force", False), jobs=args.jobs,
-        cluster=args.cluster, progress=sys.stderr.isatty() and not args.json), (BuildExists, ClusterUnavailable))
+        cluster=args.cluster, progress=sys.stderr.isatty() and not args.json), (BuildExists, OutputBusy, ClusterUnavailable))
     if failed:
         return failed
     if _format(args) == "sarif":
@@ -356,7 +360,7 @@ def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
 
 
 def cmd_build(args) -> int:
-    from .emit.build import BuildExists, write_build
+    from .emit.build import BuildExists, OutputBusy, write_build
     from .emit.writers import WriterError
     from .pipeline import preflight
 
@@ -375,7 +379,7 @@ def cmd_build(args) -> int:
         return code
     failed, out = _writing(f"build to {args.output}", lambda: write_build(args.output, res.shot, res.compiled,
                                                                            res.findings, force=args.force),
-                           (BuildExists, WriterError))
+                           (BuildExists, OutputBusy, WriterError))
     if failed:
         return failed
     s = summary(res.findings)
@@ -502,7 +506,8 @@ def build_parser() -> argparse.ArgumentParser:
     b = sub.add_parser("build", help="preflight and compile a sequence into a build folder")
     b.add_argument("file", help="sequence file (.yaml)")
     b.add_argument("-o", "--output", required=True, help="build folder to write")
-    b.add_argument("--force", action="store_true", help="replace an existing build folder")
+    b.add_argument("--force", action="store_true", help="replace an existing build folder (after waiting, at most 60 s, "
+                   "for another seqgen process writing it)")
     b.add_argument("--json", action="store_true", help="summary as JSON")
     _allow_outside_option(b)
     _scan_options(b)

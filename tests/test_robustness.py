@@ -472,10 +472,10 @@ def two_builds(tmp_path_factory):
     return proj, refs
 
 
-def _build_proc(proj: Path, name: str, out: Path, prelude: str = ""):
+def _build_proc(proj: Path, name: str, out: Path, prelude: str = "", **env):
     code = prelude + f"import sys\nfrom seqgen.cli import main\nsys.exit(main(['build', '{name}.yaml', '-o', '{out}', '--force']))\n"
     return subprocess.Popen([sys.executable, "-c", code], cwd=proj, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-                            env=dict(os.environ, PYTHONPATH=str(ROOT)))
+                            env=dict(os.environ, PYTHONPATH=str(ROOT), **env))
 
 
 def _state(out: Path, refs: dict) -> str:
@@ -577,8 +577,9 @@ def test_the_next_build_removes_what_a_killed_build_left(two_builds):
 
 
 def test_a_live_builds_temporary_is_left_alone(two_builds):
-    # a build paused half-way (another process, alive) owns its temporary folder: a second build of the same
-    # output must not remove it; once the first is killed, the next build does
+    # a build paused half-way (another process, alive) owns its temporary folder and the claim on the output: a
+    # second build of the same output (--force: waits for the claim, here at most 1 s) must not remove it, nor
+    # write; once the first is killed, the next build does
     proj, refs = two_builds
     out = proj / "out_live"
     shutil.copytree(proj / "ref_a", out)
@@ -593,8 +594,10 @@ def test_a_live_builds_temporary_is_left_alone(two_builds):
         assert flag.exists(), "the paused build never reached its second table"
         owned = _temporaries(out)
         assert len(owned) == 1 and owned[0].startswith(f"{paused.pid}-")
-        assert _build_proc(proj, "b", out).wait(timeout=300) == 0
-        assert _state(out, refs) == "b" and _temporaries(out) == owned  # left alone while its writer lives
+        second = _build_proc(proj, "b", out, SEQGEN_LOCK_WAIT="1")
+        assert second.wait(timeout=300) == 2
+        assert f"pid {paused.pid} " in second.stderr.read().decode(errors="replace")  # names the writer
+        assert _state(out, refs) == "a" and _temporaries(out) == owned  # left alone while its writer lives
     finally:
         paused.kill()
         paused.wait(timeout=60)

@@ -3,7 +3,9 @@
 A git revision is read with `git show REV:./PATH` and resolved as if it stood at
 PATH in the working tree, so the relative `rig:` and `use:` paths of the old
 text resolve against the working tree's rig and used files. A build folder is
-read through its manifest and its `.npz` tables only.
+read through its manifest and its `.npz` tables only, all through one handle on
+the folder, so a build replaced meanwhile (`build --force`) is read whole: the
+old one or the new one, never a mix (seqgen/emit/claim.py).
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..emit.claim import await_writer, read_whole
 from ..findings import Finding
 from ..model import DeviceTable
 from ..resolve.units import display_unit
@@ -34,6 +37,7 @@ def load_version(spec: str, *, text: str | None = None, path: str | None = None,
     if text is not None:
         return _sequence(path or spec, text, label or spec, "git")
     p = Path(spec)
+    await_writer(p)  # a forced rebuild between its two renames (no atomic exchange here): wait for the new one
     if p.is_dir():
         return load_build(p, spec)
     if not p.exists():
@@ -155,47 +159,73 @@ def _scan_plan(src, base_shot):
     return (plan, []) if plan is not None and not findings else (None, findings or [])
 
 
+class _NoManifest(Exception):
+    pass
+
+
 def load_build(folder: Path, label: str) -> Version:
-    man_path = folder / "manifest.json"
+    """A build folder through its manifest and .npz tables, all read through one handle on the folder
+    (seqgen.emit.claim.read_whole): a forced rebuild replacing it meanwhile is seen whole, old or new."""
     try:
-        man = json.loads(man_path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
+        man, read = read_whole(folder, lambda open_file: _read_build(open_file, folder, label))
+    except _NoManifest:
         if (folder / SCAN_JSON).is_file():
             return load_scan_build(folder, label)
         raise DiffInputError(f"{label} is a folder without manifest.json (not a seqgen build)") from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise DiffInputError(f"cannot read {man_path}: {exc}") from None
-    if not isinstance(man, dict) or man.get("format") != "seqgen-build":
-        raise DiffInputError(f"{man_path} is not a seqgen build manifest")
+    except OSError as exc:
+        raise DiffInputError(f"cannot read build {label}: {exc}") from None
     v = Version(label, "build", manifest=man)
     tables = []
-    try:
-        for dev, info in sorted((man.get("devices") or {}).items()):
-            npz = (info.get("files") or {}).get("npz", {}).get("path")
-            if not npz:
-                raise DiffInputError(f"{man_path}: device '{dev}' lists no .npz table")
-            with np.load(folder / npz, allow_pickle=False) as z:
-                ticks = np.asarray(z["tick"], dtype=np.int64)
-                values = np.asarray(z["values"], dtype=float).reshape(len(ticks), -1)
-                names = tuple(str(c) for c in z["columns"])
-                units = tuple(str(u) for u in z["units"])
+    for dev, info, (ticks, values, names, units) in read:
+        try:
             kinds = {c["name"]: c.get("kind", "analog") for c in info.get("columns") or []}
             tick_s = 1.0 / float(info["timebase_hz"])
-            tables.append(DeviceTable(dev, tick_s, ticks, names, values, units,
-                                      tuple(kinds.get(n, "analog") for n in names)))
-            v.devices[dev] = {"tick_s": tick_s, "output_model": info.get("output_model", "hold")}
-            for n, u in zip(names, units):
-                v.columns[n] = Column(n, dev, kinds.get(n, "analog"), u)
-    except DiffInputError:
-        raise
-    except (OSError, KeyError, ValueError, TypeError) as exc:
-        raise DiffInputError(f"cannot read the tables of build {label}: {exc}") from None
+        except (KeyError, ValueError, TypeError, ZeroDivisionError) as exc:
+            raise DiffInputError(f"cannot read the tables of build {label}: {exc}") from None
+        tables.append(DeviceTable(dev, tick_s, ticks, names, values, units,
+                                  tuple(kinds.get(n, "analog") for n in names)))
+        v.devices[dev] = {"tick_s": tick_s, "output_model": info.get("output_model", "hold")}
+        for n, u in zip(names, units):
+            v.columns[n] = Column(n, dev, kinds.get(n, "analog"), u)
     v.tables = tuple(tables)
     v.duration_s = man.get("duration_s")
     v.params = {name: (float(p["value"]), p.get("unit", ""), str(p.get("text", p["value"])))
                 for name, p in (man.get("params") or {}).items() if isinstance(p, dict) and "value" in p}
     v.findings = [_finding(d) for d in man.get("findings_list") or [] if isinstance(d, dict)]
     return v
+
+
+def _read_build(open_file, folder: Path, label: str) -> tuple[dict, list]:
+    """(the manifest, [(device, its manifest entry, (ticks, values, column names, units))]) of one build folder;
+    every file through `open_file`. A missing folder file other than the manifest raises FileNotFoundError (so
+    read_whole can tell a folder swapped out meanwhile); other trouble is a DiffInputError."""
+    man_path = folder / "manifest.json"
+    try:
+        with open_file("manifest.json") as fh:
+            man = json.loads(fh.read().decode("utf-8"))
+    except FileNotFoundError:
+        raise _NoManifest() from None
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise DiffInputError(f"cannot read {man_path}: {exc}") from None
+    if not isinstance(man, dict) or man.get("format") != "seqgen-build":
+        raise DiffInputError(f"{man_path} is not a seqgen build manifest")
+    read = []
+    try:
+        for dev, info in sorted((man.get("devices") or {}).items()):
+            npz = (info.get("files") or {}).get("npz", {}).get("path")
+            if not npz:
+                raise DiffInputError(f"{man_path}: device '{dev}' lists no .npz table")
+            with open_file(npz) as fh, np.load(fh, allow_pickle=False) as z:
+                ticks = np.asarray(z["tick"], dtype=np.int64)
+                values = np.asarray(z["values"], dtype=float).reshape(len(ticks), -1)
+                names = tuple(str(c) for c in z["columns"])
+                units = tuple(str(u) for u in z["units"])
+            read.append((dev, info, (ticks, values, names, units)))
+    except (DiffInputError, FileNotFoundError):
+        raise
+    except (OSError, KeyError, ValueError, TypeError, AttributeError) as exc:
+        raise DiffInputError(f"cannot read the tables of build {label}: {exc}") from None
+    return man, read
 
 
 SCAN_JSON = "scan.json"  # the scan manifest of a scan build folder (schemas/scan.schema.json)

@@ -11,7 +11,11 @@ holds thousands of scan shots); the writer holds an exclusive lock on it while
 it writes. A build killed mid-write leaves its temporary folder behind: the
 next build of the same output removes it once its writer's process is gone and
 nobody holds its lock (`remove_stale_temporaries`).
-An existing build is replaced only with `force=True`. No time stamps, host
+An existing build is replaced only with `force=True`, and only one process
+writes an output at a time: the check-then-write holds the claim on it
+(seqgen/emit/claim.py; another writer is refused, or with force waits for it).
+The swap is one atomic exchange (renameat2) where the kernel has it, so a
+reader sees the old build or the new one, never a mix. No time stamps, host
 names or absolute paths enter the files: the same input gives the same bytes.
 """
 
@@ -30,6 +34,7 @@ from ..caution import CAUTION
 from ..findings import Finding, summary
 from ..model import Compiled, Shot
 from ..resolve.units import display_unit
+from .claim import OutputBusy, claimed  # noqa: F401  (OutputBusy re-exported for callers of write_build)
 from .writers import CSV_ROW_LIMIT, WriterError, available_writers, check_writers, run_writer, with_row_limit, \
     writes_table
 
@@ -69,15 +74,30 @@ def manifest(shot: Shot, compiled: Compiled, findings: list[Finding], files: dic
 
 
 def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: list[Finding], *, force: bool = False,
-                csv_row_limit: int = CSV_ROW_LIMIT, writers: tuple | None = None) -> Path:
+                csv_row_limit: int = CSV_ROW_LIMIT, writers: tuple | None = None, claim: bool = True) -> Path:
     """Write the build: per device table one file per writer (default: the built-in npz and csv writers and
     every installed `seqgen.writers` entry point, see seqgen/emit/writers.py), then manifest.json.
 
     `csv_row_limit`: larger tables get no .csv. A broken writer raises WriterError and leaves `out_dir` as it was.
+    The whole check-then-write runs under the exclusive claim on `out_dir` (seqgen/emit/claim.py): another
+    process holding it raises OutputBusy, or with `force` is waited for (bounded) and then replaced. `claim=False`:
+    the caller holds a claim that covers `out_dir` (a scan build's, for its shot folders).
     """
     out = Path(out_dir)
     writers = with_row_limit(check_writers(available_writers() if writers is None else writers), "csv",
                              csv_row_limit)
+    if out.exists() and not force:  # the quick answer; asked again under the claim
+        raise BuildExists(f"{out} exists; use --force to replace it")
+    if not claim:
+        return _write_claimed(out, shot, compiled, findings, force, writers)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    with claimed(out, wait=force):  # of two processes writing `out` at once, one writes; OutputBusy for the other
+        return _write_claimed(out, shot, compiled, findings, force, writers)
+
+
+def _write_claimed(out: Path, shot: Shot, compiled: Compiled, findings: list[Finding], force: bool,
+                   writers: tuple) -> Path:
+    """The check-then-write of a build, run while this process holds the claim on `out`."""
     if out.exists() and not force:
         raise BuildExists(f"{out} exists; use --force to replace it")
     out.parent.mkdir(parents=True, exist_ok=True)

@@ -465,7 +465,8 @@ def report_detail_svg(res) -> tuple | None:
 
 def write_report(path: str | Path, res, file: str, *, force: bool = False, timeline: bool = True,
                  scanned: bool = False, scan=None, choice=None) -> Path:
-    """Render and write the report atomically; raises OutputExists when `path` exists and not force.
+    """Render and write the report atomically; raises OutputExists when `path` exists and not force, OutputBusy
+    (seqgen/emit/claim.py) when another process is writing it (with force: waits for it, then replaces).
 
     `scan` (a run `scan.plan.Scan`) adds the scan section; `choice` says which shot of a scan `res` is."""
     path = Path(path)

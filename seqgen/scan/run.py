@@ -33,6 +33,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from ..codes import SHOT_FAILED
+from ..emit.claim import claimed
 from ..findings import has_errors, make
 from ..pipeline import preflight_resolved
 from ..resolve.sequence import resolve
@@ -200,11 +201,21 @@ def run_scan(scan: Scan, *, out: str | Path | None = None, force: bool = False, 
              cluster: str | None = None, progress: bool = False, _crash: dict | None = None) -> Scan:
     """Preflight every shot of a planned scan; with `out`, build each good shot.
 
-    Raises BuildExists (seqgen.emit.build: out exists and may not be touched), ClusterUnavailable.
+    Raises BuildExists (seqgen.emit.build: out exists and may not be touched), OutputBusy (another process
+    builds into `out`; with `force` it is waited for, bounded), ClusterUnavailable.
     `_crash` (tests only): {shot index: "raise" | "exit"}.
     """
     if scan.plan is None or has_errors(scan.findings):
         return scan
+    if out is None:
+        return _run(scan, None, force, jobs, cluster, progress, _crash)
+    out = Path(out)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    with claimed(out, wait=force):  # the whole run: resume decision, every shot, scan.json
+        return _run(scan, out, force, jobs, cluster, progress, _crash)
+
+
+def _run(scan: Scan, out: Path | None, force: bool, jobs, cluster, progress, _crash) -> Scan:
     src, plan = scan.sources, scan.plan
     t_start = time.perf_counter()
     jobs = default_jobs() if jobs is None else max(1, int(jobs))
@@ -214,7 +225,6 @@ def run_scan(scan: Scan, *, out: str | Path | None = None, force: bool = False, 
     manifest_writer = None
     stale: list = []  # old shot folders to remove once this run has built something
     if out is not None:
-        out = Path(out)
         reuse, stale, had_build = prepare_out(out, scan, folders, force)
         # over an existing build, scan.json is rewritten only once a shot is built or kept: a run whose every
         # shot is refused leaves the previous build as it was (as a single file's refused build does)

@@ -11,7 +11,10 @@ hashes. Re-running a build on the same folder:
   scan are removed;
 - a folder that is not a scan build: refused without `force`, replaced with it.
 Each shot's folder is written by `seqgen.emit.build.write_build` (atomic);
-scan.json is replaced atomically too.
+scan.json is replaced atomically too. The whole run (the resume decision, every
+shot, scan.json) holds the claim on OUT (seqgen/emit/claim.py), so a second
+scan build or resume of the same folder is refused (or with force waits): no two
+processes ever write shots into one scan folder.
 """
 
 from __future__ import annotations
@@ -38,7 +41,7 @@ FORMAT_VERSION = 1
 
 def write_shot(out: Path, folder: str, shot, compiled, findings, result: ShotResult) -> ShotResult:
     """Write one shot's build folder (atomic, via write_build) and note its hashes."""
-    path = write_build(out / folder, shot, compiled, findings, force=True)
+    path = write_build(out / folder, shot, compiled, findings, force=True, claim=False)  # under the scan's claim
     raw = (path / "manifest.json").read_bytes()
     man = json.loads(raw)
     tables = tuple((dev, tuple(sorted((kind, f["sha256"]) for kind, f in info["files"].items())))

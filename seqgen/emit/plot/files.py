@@ -7,6 +7,7 @@ import os
 import tempfile
 from pathlib import Path
 
+from ..claim import claimed
 from .layout import PlotError
 
 
@@ -48,13 +49,25 @@ def svg_text(fig, prefix: str = "") -> str:
 
 
 def write_atomic(path: str | Path, data: bytes, *, force: bool = False) -> Path:
-    """Write bytes to a temporary file beside `path`, then rename it into place."""
+    """Write bytes to a temporary file beside `path`, then rename it into place, holding the claim on `path`
+    (seqgen/emit/claim.py) from the check to the rename: of two processes writing it at once one writes, the
+    other gets OutputExists, or OutputBusy while the first still writes (with `force`: waits, then replaces)."""
     path = Path(path)
+    _refuse(path, force)  # the quick answer; asked again under the claim
+    path.parent.mkdir(parents=True, exist_ok=True)
+    with claimed(path, wait=force):
+        _refuse(path, force)
+        return _replace_with(path, data)
+
+
+def _refuse(path: Path, force: bool) -> None:
     if path.exists() and not force:
         raise OutputExists(f"{path} exists; use --force to replace it")
     if path.exists() and path.is_dir():
         raise OutputExists(f"{path} is a folder; give a file name")
-    path.parent.mkdir(parents=True, exist_ok=True)
+
+
+def _replace_with(path: Path, data: bytes) -> Path:
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
         with os.fdopen(fd, "wb") as fh:
