@@ -261,16 +261,19 @@ def _length_scale(beams) -> float:
 
 
 def _hessian(f, x0: np.ndarray, steps: np.ndarray, basis: np.ndarray) -> np.ndarray:
-    """Central-difference Hessian of f along the columns of ``basis`` with per-direction steps."""
+    """Central-difference Hessian of f along the columns of ``basis`` with per-direction steps (one call of f)."""
     n = len(steps)
+    d = (basis[:, :n] * steps).T  # row i: the step along direction i
+    pairs = [(i, j) for i in range(n) for j in range(i)]
+    pts = [x0] + [x0 + sgn * d[i] for i in range(n) for sgn in (1, -1)]
+    pts += [x0 + si * d[i] + sj * d[j] for i, j in pairs for si, sj in ((1, 1), (1, -1), (-1, 1), (-1, -1))]
+    v = f(np.array(pts))
     h = np.empty((n, n))
-    f0 = f(x0)
     for i in range(n):
-        di = basis[:, i] * steps[i]
-        h[i, i] = (f(x0 + di) - 2 * f0 + f(x0 - di)) / steps[i] ** 2
-        for j in range(i):
-            dj = basis[:, j] * steps[j]
-            h[i, j] = h[j, i] = (f(x0 + di + dj) - f(x0 + di - dj) - f(x0 - di + dj) + f(x0 - di - dj)) / (4 * steps[i] * steps[j])
+        h[i, i] = (v[1 + 2 * i] - 2 * v[0] + v[2 + 2 * i]) / steps[i] ** 2
+    for k, (i, j) in enumerate(pairs):
+        a = v[1 + 2 * n + 4 * k: 5 + 2 * n + 4 * k]
+        h[i, j] = h[j, i] = (a[0] - a[1] - a[2] + a[3]) / (4 * steps[i] * steps[j])
     return h
 
 
@@ -316,8 +319,11 @@ def find_trap_minimum(species: Species, beams, gravity: bool = True, vertical=(0
             raise ValueError("no trapping minimum: the beams do not hold the atoms against gravity")
         start = start + dz * up
 
-    res = optimize.minimize(lambda y: float(f(start + y * length)) / u_scale, np.zeros(3), method="BFGS",
-                            options={"gtol": 1e-11, "xrtol": 1e-12})
+    def scaled(y):  # value and analytic gradient in units of u_scale and length
+        p = start + y * length
+        return float(f(p)) / u_scale, potential_gradient(species, beams, p, gravity, up) * (length / u_scale)
+
+    res = optimize.minimize(scaled, np.zeros(3), jac=True, method="BFGS", options={"gtol": 1e-11, "xrtol": 1e-12})
     x = start + res.x * length
     if np.linalg.norm(res.x) > 10:
         raise ValueError("no trapping minimum near the beams' crossing point")
@@ -349,14 +355,11 @@ def trap_frequencies(species: Species, beams, gravity: bool = True, vertical=(0,
 
 
 def trap_depth(species: Species, beams) -> float:
-    """Depth (J, positive) of the light potential at its minimum, relative to zero far away, without gravity.
-
-    For crossed beams this counts all beams at the crossing; atoms can already
-    spill into a single beam's wings at the shallower single-beam depth.
+    """Depth (J, positive) of the light potential without gravity: the energy of its lowest escape route above
+    the minimum (trap_escape). One beam: its peak potential U0; crossed beams: atoms leave along the arm whose
+    crossing beam is weakest, at about that beam's own U0, not the sum at the crossing.
     """
-    beams = _as_beams(beams)
-    m = find_trap_minimum(species, beams, gravity=False)
-    return -m.potential_j
+    return trap_escape(species, _as_beams(beams), gravity=False).depth_j
 
 
 def effective_depth_with_gravity(species: Species, beams, vertical=(0, 0, 1)) -> float:
@@ -364,7 +367,8 @@ def effective_depth_with_gravity(species: Species, beams, vertical=(0, 0, 1)) ->
 
     Scans U_light + m g z downward from the (sagged) minimum to the first local
     maximum; returns U(max) - U(min), or 0.0 if gravity leaves no minimum.
-    Escape sideways (along a beam) is not considered here.
+    Escape sideways (along a beam) is not considered here: an upper bound of
+    the depth; trap_escape gives the lowest way out in 3-D.
     """
     beams = _as_beams(beams)
     up = _unit(vertical)
@@ -451,18 +455,22 @@ class TrapEscape:
 
 # rays from the minimum: log-spaced radii from a hundredth of the smallest waist to many Rayleigh lengths (the
 # light potential along a beam's axis falls as 1/(1 + s^2/z_R^2): a 0.1 % remainder at 30 z_R)
-_N_RADII = 240
-_N_SPHERE = 48  # golden-spiral directions besides the beams' axes, principal axes and the vertical
-_TILTS = np.array([0.002, 0.005, 0.01, 0.02, 0.05, 0.1, 0.2])  # downward slopes along each beam (gravity)
+_N_RADII = 160  # 9 % steps over 5.7 decades: maxima are refined, shoulders are flat
+_TILTS = np.array([0.002, 0.005, 0.01, 0.03, 0.1])  # downward slopes along each beam (gravity)
+
+
+@functools.lru_cache(maxsize=1)
+def _sphere() -> np.ndarray:
+    from .saddle import fibonacci_directions
+
+    return fibonacci_directions(32)  # golden-spiral directions besides the beams' axes, principal axes, vertical
 
 
 def _escape_directions(beams, m: TrapMinimum, up: np.ndarray | None) -> np.ndarray:
     """Beam axes, principal axes (both ways), the vertical, a golden-spiral set and, with gravity, each
     beam's axis tilted slightly downward: out along a beam, atoms fall where it has widened and weakened."""
-    from .saddle import fibonacci_directions
-
     axes = [np.asarray(b.direction) for b in beams] + list(m.axes.T)
-    dirs = [a * sgn for a in axes for sgn in (1.0, -1.0)] + list(fibonacci_directions(_N_SPHERE))
+    dirs = [a * sgn for a in axes for sgn in (1.0, -1.0)] + list(_sphere())
     if up is not None:
         dirs += [up, -up]
         for b in beams:
@@ -494,7 +502,7 @@ def trap_escape(species: Species, beams, gravity: bool = True, vertical=(0, 0, 1
     x0 = m.position_m
     length = _length_scale(beams)
     reach = 30 * max(max(b._rayleigh) for b in beams)
-    radii = np.concatenate([[0.0], np.geomspace(1e-2 * length, reach, _N_RADII)])
+    radii = np.concatenate([[0.0], 1e-2 * length * np.exp(np.linspace(0.0, np.log(reach / (1e-2 * length)), _N_RADII))])
 
     def f(p):
         return total_potential(species, beams, p, gravity=gravity, vertical=up, reference_m=x0)

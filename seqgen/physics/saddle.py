@@ -119,7 +119,8 @@ def refine_saddle(grad: Callable, start: np.ndarray, length: float, force_scale:
         res = optimize.root(g, np.zeros(3), jac=jac, method="hybr", options={"xtol": 1e-12})
     except (ValueError, np.linalg.LinAlgError):
         return None
-    if not res.success or not np.all(np.isfinite(res.x)):
+    # judged by the gradient left, not res.success: started on the saddle, hybr reports "no progress"
+    if not np.all(np.isfinite(res.x)) or not np.linalg.norm(g(res.x)) < 1e-8:
         return None
     x = start + res.x * length
     lam = np.linalg.eigvalsh(jac(res.x))
