@@ -13,10 +13,10 @@ from ..codes import (CLOUD_CLIPPED, CLOUD_OUTSIDE_VIEW, CLOUD_OUT_OF_FOCUS, NONA
 from ..findings import make
 from ..predict.cloud import (aperture_reach, focus_offset, focus_reach, image_prediction, view_edge_reach,
                              view_reach)
-from ..predict.species import species
+from ..predict.species import gaussian_beams, species, trap_beams
 from ..predict.text import size_text, who, why_there
-from ..predict.traps import trap_beam_shifts, trap_ramps, trap_stage_prediction
-from ..textfmt import fmt_length, fmt_temperature, fmt_time
+from ..predict.traps import held, trap_beam_shifts, trap_ramps, trap_stage_prediction
+from ..textfmt import fmt_length, fmt_temperature, fmt_time, fmt_vec
 from ..values import value_at
 from .rules import rule
 
@@ -101,6 +101,20 @@ def nonadiabatic_ramp(shot):
                        data={"excitation": worst, "adiabaticity": rep.adiabaticity})
 
 
+def _way_out(shot, t):
+    """'; the atoms escape along 'guide' (x)' for the trap at t (the lowest barrier's direction), or ''."""
+    beams = gaussian_beams(shot, [t])[0]
+    d = held(species(shot), tuple(beams)).escape if beams else None
+    if d is None:
+        return ""
+    for b, g in zip([b for b in trap_beams(shot) if value_at(shot, b.power_channel, [t])[0] > 0], beams):
+        k = np.asarray(g.direction)
+        if abs(float(d @ k)) > np.cos(np.radians(15)):
+            axis = "xyz"[int(np.argmax(np.abs(k)))] if np.max(np.abs(k)) > 0.99 else fmt_vec(k, 2)
+            return f"; the atoms escape along '{b.name}' ({axis})"
+    return "; the atoms escape downward" if d[2] < -0.9 else f"; the atoms escape towards {fmt_vec(d, 2)}"
+
+
 @rule(SHALLOW_TRAP, stage="physics")
 def shallow_trap(shot):
     if shot.sample is None or not shot.sample.temperature_k or species(shot) is None:
@@ -110,7 +124,8 @@ def shallow_trap(shot):
         eta = rep.eta
         if eta is not None and 0 < eta < shot.limits.min_eta:
             yield make(SHALLOW_TRAP, f"after the ramp of '{act.args['beam']}' the trap is only {eta:.3g} k_B T deep "
-                       f"for T = {fmt_temperature(shot.sample.temperature_k)} (limit {shot.limits.min_eta:g})", act.pos,
+                       f"for T = {fmt_temperature(shot.sample.temperature_k)} (limit {shot.limits.min_eta:g})"
+                       f"{_way_out(shot, float(rep.times[-1]))}", act.pos,
                        block=act.block, time_s=act.t1, hint="end at a higher power, or accept it if spilling is intended")
 
 

@@ -261,16 +261,19 @@ def _length_scale(beams) -> float:
 
 
 def _hessian(f, x0: np.ndarray, steps: np.ndarray, basis: np.ndarray) -> np.ndarray:
-    """Central-difference Hessian of f along the columns of ``basis`` with per-direction steps."""
+    """Central-difference Hessian of f along the columns of ``basis`` with per-direction steps (one call of f)."""
     n = len(steps)
+    d = (basis[:, :n] * steps).T  # row i: the step along direction i
+    pairs = [(i, j) for i in range(n) for j in range(i)]
+    pts = [x0] + [x0 + sgn * d[i] for i in range(n) for sgn in (1, -1)]
+    pts += [x0 + si * d[i] + sj * d[j] for i, j in pairs for si, sj in ((1, 1), (1, -1), (-1, 1), (-1, -1))]
+    v = f(np.array(pts))
     h = np.empty((n, n))
-    f0 = f(x0)
     for i in range(n):
-        di = basis[:, i] * steps[i]
-        h[i, i] = (f(x0 + di) - 2 * f0 + f(x0 - di)) / steps[i] ** 2
-        for j in range(i):
-            dj = basis[:, j] * steps[j]
-            h[i, j] = h[j, i] = (f(x0 + di + dj) - f(x0 + di - dj) - f(x0 - di + dj) + f(x0 - di - dj)) / (4 * steps[i] * steps[j])
+        h[i, i] = (v[1 + 2 * i] - 2 * v[0] + v[2 + 2 * i]) / steps[i] ** 2
+    for k, (i, j) in enumerate(pairs):
+        a = v[1 + 2 * n + 4 * k: 5 + 2 * n + 4 * k]
+        h[i, j] = h[j, i] = (a[0] - a[1] - a[2] + a[3]) / (4 * steps[i] * steps[j])
     return h
 
 
@@ -316,8 +319,11 @@ def find_trap_minimum(species: Species, beams, gravity: bool = True, vertical=(0
             raise ValueError("no trapping minimum: the beams do not hold the atoms against gravity")
         start = start + dz * up
 
-    res = optimize.minimize(lambda y: float(f(start + y * length)) / u_scale, np.zeros(3), method="BFGS",
-                            options={"gtol": 1e-11, "xrtol": 1e-12})
+    def scaled(y):  # value and analytic gradient in units of u_scale and length
+        p = start + y * length
+        return float(f(p)) / u_scale, potential_gradient(species, beams, p, gravity, up) * (length / u_scale)
+
+    res = optimize.minimize(scaled, np.zeros(3), jac=True, method="BFGS", options={"gtol": 1e-11, "xrtol": 1e-12})
     x = start + res.x * length
     if np.linalg.norm(res.x) > 10:
         raise ValueError("no trapping minimum near the beams' crossing point")
@@ -349,14 +355,11 @@ def trap_frequencies(species: Species, beams, gravity: bool = True, vertical=(0,
 
 
 def trap_depth(species: Species, beams) -> float:
-    """Depth (J, positive) of the light potential at its minimum, relative to zero far away, without gravity.
-
-    For crossed beams this counts all beams at the crossing; atoms can already
-    spill into a single beam's wings at the shallower single-beam depth.
+    """Depth (J, positive) of the light potential without gravity: the energy of its lowest escape route above
+    the minimum (trap_escape). One beam: its peak potential U0; crossed beams: atoms leave along the arm whose
+    crossing beam is weakest, at about that beam's own U0, not the sum at the crossing.
     """
-    beams = _as_beams(beams)
-    m = find_trap_minimum(species, beams, gravity=False)
-    return -m.potential_j
+    return trap_escape(species, _as_beams(beams), gravity=False).depth_j
 
 
 def effective_depth_with_gravity(species: Species, beams, vertical=(0, 0, 1)) -> float:
@@ -364,7 +367,8 @@ def effective_depth_with_gravity(species: Species, beams, vertical=(0, 0, 1)) ->
 
     Scans U_light + m g z downward from the (sagged) minimum to the first local
     maximum; returns U(max) - U(min), or 0.0 if gravity leaves no minimum.
-    Escape sideways (along a beam) is not considered here.
+    Escape sideways (along a beam) is not considered here: an upper bound of
+    the depth; trap_escape gives the lowest way out in 3-D.
     """
     beams = _as_beams(beams)
     up = _unit(vertical)
@@ -376,28 +380,20 @@ def effective_depth_with_gravity(species: Species, beams, vertical=(0, 0, 1)) ->
 
 
 def held_trap(species: Species, beams, vertical=(0, 0, 1)) -> tuple[float, np.ndarray | None]:
-    """(effective depth with gravity in J, trap angular frequencies or None) from one minimisation.
+    """(depth with gravity in J, trap angular frequencies or None) from one minimisation.
 
-    The same numbers as effective_depth_with_gravity and trap_frequencies, for
-    callers that need both (the trap-stage checks follow a ramp at many times).
+    The depth is that of the lowest escape route in 3-D (trap_escape), the frequencies those of
+    trap_frequencies; for callers that need both (the trap-stage checks follow a ramp at many times).
     """
-    depth, omegas, _ = held_trap_heating(species, beams, vertical)
-    return depth, omegas
+    held = held_trap_escape(species, beams, vertical)
+    return held.depth_j, held.omegas_rad_s
 
 
 def held_trap_heating(species: Species, beams, vertical=(0, 0, 1)) -> tuple[float, np.ndarray | None, float]:
     """held_trap plus the recoil heating rate dT/dt (K/s) at the sagged minimum (0.0 when nothing is held),
     from the same minimisation (see recoil_heating_rate)."""
-    beams = _as_beams(beams)
-    up = _unit(vertical)
-    try:
-        m = find_trap_minimum(species, beams, gravity=True, vertical=up)
-    except ValueError:
-        return 0.0, None, 0.0
-    depth = _depth_below_minimum(species, beams, m, up)
-    if depth <= 0:
-        return depth, None, 0.0
-    return depth, m.omegas_rad_s, recoil_heating_rate_at(species, beams, m.position_m)
+    held = held_trap_escape(species, beams, vertical)
+    return held.depth_j, held.omegas_rad_s, held.heating_k_s
 
 
 def _depth_below_minimum(species: Species, beams, m: TrapMinimum, up: np.ndarray) -> float:
@@ -416,6 +412,140 @@ def _depth_below_minimum(species: Species, beams, m: TrapMinimum, up: np.ndarray
     k = peaks[0]
     res = optimize.minimize_scalar(lambda t: -float(g(t)), bracket=(z[k - 1], z[k], z[k + 1]))
     return max(0.0, -float(res.fun) - float(g(0.0)))
+
+
+# --- depth as the lowest escape route in 3-D -------------------------------------------------------------
+
+def _intensity_gradient(beam: GaussianBeam, points_xyz) -> np.ndarray:
+    """Gradient (W/m^3, shape (..., 3)) of GaussianBeam.intensity, analytic: with W_j(s) = w_j^2 (1 + s^2/z_Rj^2),
+    d ln I/ds = sum_j (2 u_j^2/W_j - 1/2) W_j'/W_j, d ln I/du_j = -4 u_j/W_j (derivatives of the paraxial form)."""
+    d = np.asarray(points_xyz, dtype=float) - np.asarray(beam.focus_m)
+    s, u, v = np.moveaxis(d @ beam._frame.T, -1, 0)
+    (w1, w2), (z1, z2) = beam.waists, beam._rayleigh
+    big1, big2 = w1**2 * (1 + (s / z1) ** 2), w2**2 * (1 + (s / z2) ** 2)
+    i = 2 * beam.power_w / (np.pi * np.sqrt(big1 * big2)) * np.exp(-2 * u**2 / big1 - 2 * v**2 / big2)
+    ds = ((2 * u**2 / big1 - 0.5) * 2 * w1**2 * s / (z1**2 * big1)
+          + (2 * v**2 / big2 - 0.5) * 2 * w2**2 * s / (z2**2 * big2))
+    local = np.stack([ds, -4 * u / big1, -4 * v / big2], axis=-1) * i[..., None]
+    return local @ beam._frame
+
+
+def potential_gradient(species: Species, beams, points_xyz, gravity: bool = True, vertical=(0, 0, 1)) -> np.ndarray:
+    """Gradient (N, i.e. J/m; shape (..., 3)) of total_potential: the beams' light shifts plus m g_n vertical."""
+    beams = _as_beams(beams)
+    g = sum(_u_per_i_scalar(species, float(b.wavelength_m)) * _intensity_gradient(b, points_xyz) for b in beams)
+    if gravity:
+        g = g + species.mass_kg * G_N * _unit(vertical)
+    return g
+
+
+@dataclass(frozen=True)
+class TrapEscape:
+    """Depth of a trap as its lowest escape route: ``depth_j`` (J) = potential at the barrier minus that at
+    the minimum; ``direction`` (unit vector from the minimum towards the barrier), ``barrier_m`` (its position;
+    a ray's far end when the way out has no barrier but the far field), ``kind`` ('saddle', 'ridge', 'shoulder'
+    or 'far', see seqgen.physics.saddle) and the minimum (TrapMinimum)."""
+
+    depth_j: float
+    direction: np.ndarray
+    barrier_m: np.ndarray
+    kind: str
+    minimum: TrapMinimum
+
+
+# rays from the minimum: log-spaced radii from a hundredth of the smallest waist to many Rayleigh lengths (the
+# light potential along a beam's axis falls as 1/(1 + s^2/z_R^2): a 0.1 % remainder at 30 z_R)
+_N_RADII = 160  # 9 % steps over 5.7 decades: maxima are refined, shoulders are flat
+_TILTS = np.array([0.002, 0.005, 0.01, 0.03, 0.1])  # downward slopes along each beam (gravity)
+
+
+@functools.lru_cache(maxsize=1)
+def _sphere() -> np.ndarray:
+    from .saddle import fibonacci_directions
+
+    return fibonacci_directions(32)  # golden-spiral directions besides the beams' axes, principal axes, vertical
+
+
+def _escape_directions(beams, m: TrapMinimum, up: np.ndarray | None) -> np.ndarray:
+    """Beam axes, principal axes (both ways), the vertical, a golden-spiral set and, with gravity, each
+    beam's axis tilted slightly downward: out along a beam, atoms fall where it has widened and weakened."""
+    axes = [np.asarray(b.direction) for b in beams] + list(m.axes.T)
+    dirs = [a * sgn for a in axes for sgn in (1.0, -1.0)] + list(_sphere())
+    if up is not None:
+        dirs += [up, -up]
+        for b in beams:
+            k = np.asarray(b.direction) - np.dot(b.direction, up) * up
+            if np.linalg.norm(k) > 0.1:
+                k = k / np.linalg.norm(k)
+                dirs += [sgn * k - t * up for sgn in (1.0, -1.0) for t in _TILTS]
+    d = np.array(dirs)
+    return d / np.linalg.norm(d, axis=1, keepdims=True)
+
+
+def trap_escape(species: Species, beams, gravity: bool = True, vertical=(0, 0, 1),
+                minimum: TrapMinimum | None = None) -> TrapEscape:
+    """The trap's depth as the energy of its lowest escape route in 3-D (all beams, gravity if asked).
+
+    Rays from the minimum (seqgen.physics.saddle.lowest_escape) along the beams' axes, the principal axes,
+    the vertical and a spread of directions; each ray's first maximum, refined to the saddle point (gradient
+    zero, one negative Hessian eigenvalue), or its first shoulder where a weak beam crosses a strong one
+    (atoms escape along the strong beam), or the far-field value. A single beam without gravity gives its peak
+    potential U0 = -Re(alpha) I0/(2 eps0 c) (ODT review, Adv. At. Mol. Opt. Phys. 42, 95 (2000)); a strong
+    guide crossed by a weak dimple gives about the dimple's own U0, the way out along the guide. Raises
+    ValueError when there is no minimum (as find_trap_minimum).
+    """
+    from .saddle import lowest_escape
+
+    beams = _as_beams(beams)
+    up = _unit(vertical)
+    m = minimum if minimum is not None else find_trap_minimum(species, beams, gravity=gravity, vertical=up)
+    x0 = m.position_m
+    length = _length_scale(beams)
+    reach = 30 * max(max(b._rayleigh) for b in beams)
+    radii = np.concatenate([[0.0], 1e-2 * length * np.exp(np.linspace(0.0, np.log(reach / (1e-2 * length)), _N_RADII))])
+
+    def f(p):
+        return total_potential(species, beams, p, gravity=gravity, vertical=up, reference_m=x0)
+
+    def grad(p):
+        return potential_gradient(species, beams, p, gravity=gravity, vertical=up)
+
+    def far(p):  # the light gone: gravity alone
+        return species.mass_kg * G_N * ((p - x0) @ up) if gravity else np.zeros(len(p))
+
+    u_scale = abs(float(beam_potential(species, beams, x0)))
+    esc = lowest_escape(f, grad, x0, _escape_directions(beams, m, up if gravity else None), radii, far,
+                        length, u_scale / length)
+    return TrapEscape(max(0.0, esc.energy - float(f(x0))), esc.direction, esc.point, esc.kind, m)
+
+
+@dataclass(frozen=True)
+class HeldTrapNumbers:
+    """What held_trap_escape finds: depth (J, 0 when nothing is held), angular frequencies (rad/s, ascending)
+    and principal axes (columns) or None, recoil heating rate (K/s) at the minimum, escape direction (unit
+    vector) or None."""
+
+    depth_j: float
+    omegas_rad_s: np.ndarray | None = None
+    axes: np.ndarray | None = None
+    heating_k_s: float = 0.0
+    escape: np.ndarray | None = None
+
+
+def held_trap_escape(species: Species, beams, vertical=(0, 0, 1)) -> HeldTrapNumbers:
+    """Depth with gravity as the lowest escape route (trap_escape), frequencies, axes, heating at the
+    minimum and the way out, from one minimisation; depth 0 when gravity leaves no minimum."""
+    beams = _as_beams(beams)
+    up = _unit(vertical)
+    try:
+        m = find_trap_minimum(species, beams, gravity=True, vertical=up)
+    except ValueError:
+        return HeldTrapNumbers(0.0)
+    esc = trap_escape(species, beams, gravity=True, vertical=up, minimum=m)
+    if esc.depth_j <= 0:
+        return HeldTrapNumbers(0.0)
+    return HeldTrapNumbers(esc.depth_j, m.omegas_rad_s, m.axes, recoil_heating_rate_at(species, beams, m.position_m),
+                           esc.direction)
 
 
 def minimum_power_to_hold(species: Species, beam_waist_m: float, wavelength_m: float) -> float:

@@ -46,28 +46,33 @@ def trap_beam_shifts(shot) -> tuple:
 
 @dataclass(frozen=True, eq=False)
 class HeldTrap:
-    """Depth with gravity (J, 0 when nothing is held), trap frequencies (rad/s, read-only, or None) and recoil
-    heating rate at the minimum (K/s, 0 when nothing is held)."""
+    """Depth with gravity (J, 0 when nothing is held: the lowest escape route in 3-D, see
+    seqgen.physics.optical.trap_escape), trap frequencies (rad/s, read-only, or None), recoil heating rate at the
+    minimum (K/s, 0 when nothing is held) and the way out: unit vector from the minimum towards the lowest
+    barrier (read-only, or None)."""
 
     depth: float
     omegas: np.ndarray | None
     heating: float = 0.0
+    escape: np.ndarray | None = None
 
 
 @functools.lru_cache(maxsize=4096)
 def held(sp, beams: tuple) -> HeldTrap:
     """The trap of one set of beams, keyed on content (species and the beams' powers and geometry), not on
     the shot: the shots of a scan, and the flat parts of a ramp, reuse each other's minimisations."""
-    from ..physics.optical import held_trap_heating
+    from ..physics.optical import held_trap_escape
 
     try:
-        depth, omegas, heating = held_trap_heating(sp, beams)
+        h = held_trap_escape(sp, beams)
     except (ValueError, RuntimeError, np.linalg.LinAlgError):
         return HeldTrap(0.0, None)
-    if omegas is not None:
-        omegas = np.array(omegas, dtype=float)
-        omegas.setflags(write=False)  # shared by every shot that meets these beams
-    return HeldTrap(depth, omegas, heating)
+    if h.omegas_rad_s is None:
+        return HeldTrap(h.depth_j, None)
+    omegas, escape = np.array(h.omegas_rad_s, dtype=float), np.array(h.escape, dtype=float)
+    for a in (omegas, escape):
+        a.setflags(write=False)  # shared by every shot that meets these beams
+    return HeldTrap(h.depth_j, omegas, h.heating_k_s, escape)
 
 
 def trap_stage(shot, t0, t1, n=N_SAMPLES, heating=False):
