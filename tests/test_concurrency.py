@@ -148,10 +148,13 @@ _HOLDER = """import os, sys, time
 from seqgen.emit.claim import claim
 claim(sys.argv[1])
 if len(sys.argv) > 2:  # a forked child inherits the open lock file; the claim must still end with this process
+    r, w = os.pipe()
     pid = os.fork()
-    if pid == 0:
+    if pid == 0:  # the fork hooks have run once the child executes this: say so, so the test never races them
+        os.write(w, b"x")
         time.sleep(120)
         os._exit(0)
+    os.read(r, 1)
     print(pid, flush=True)
 print("held", flush=True)
 time.sleep(120)
