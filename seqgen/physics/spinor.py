@@ -19,7 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.constants import hbar
 
-from .transfer_matrix import amplitudes, as_energies, chain_product, cos_and_sinc, edges_and_cells, energy_blocks, refine
+from .transfer_matrix import (PROBE_PER_CELL, aligned_grid, amplitudes, as_energies, chain_product, cos_and_sinc,
+                              edges_and_cells, energy_blocks, jumps, refine)
 
 __all__ = [
     "SpinorScatteringResult",
@@ -139,22 +140,25 @@ def spinor_transmission(x, v_up, v_down, omega_rabi, delta, energies_J, mass_kg)
 
 def solve_spinor(v_up, v_down, omega_rabi, delta, x_range, energies_J, mass_kg, *, rtol=1e-6,
                  n_cells=64, max_cells=2**15):
-    """`spinor_transmission` on a uniform grid over x_range, doubling the cells until every
-    amplitude t_ij changes by less than rtol relative to max|t|; error_estimate is the
-    Richardson estimate |t_2n - t_n| / 3.  Profiles as in `spinor_transmission`.
+    """`spinor_transmission` on a grid over x_range, refined until the estimated error of
+    every amplitude t_ij is below rtol / 3 relative to max|t|.  As in `scattering.solve`:
+    the jumps of every callable profile are cell edges, successive grids (n -> 2n + 1
+    cells) are not nested, error_estimate is Richardson |t_fine - t_coarse| / (r^2 - 1)
+    and converged is False when max_cells is reached first.  Profiles as in
+    `spinor_transmission` (callables or scalars).
     """
     x0, x1 = map(float, x_range)
+    cuts = jumps((v_up, v_down, omega_rabi, delta), x0, x1, PROBE_PER_CELL * n_cells)
 
-    def run(n):
-        return spinor_transmission(np.linspace(x0, x1, n + 1), v_up, v_down, omega_rabi, delta,
-                                   energies_J, mass_kg)
+    def run(x):
+        return spinor_transmission(x, v_up, v_down, omega_rabi, delta, energies_J, mass_kg)
 
     def metric(res):
         # Relative to the largest amplitude of each energy so tiny off-diagonal
         # amplitudes do not stall the refinement.
         return res.t / np.max(np.abs(res.t), axis=(-2, -1), keepdims=True)
 
-    res, err, n, ok = refine(run, metric, n_cells, rtol, max_cells)
+    res, err, n, ok = refine(run, metric, lambda n: aligned_grid(x0, x1, cuts, n), n_cells, rtol, max_cells)
     err = err * np.max(np.abs(res.t), axis=(-2, -1), keepdims=True)
     return SpinorScatteringResult(res.energies, res.t, res.r, res.t_right, res.r_right, err, n, ok)
 
