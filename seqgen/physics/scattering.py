@@ -49,7 +49,7 @@ from scipy.constants import hbar, k as k_B
 from .spinor import (LarmorClock, SpinorScatteringResult, bloch_vector, is_weak_probe, larmor_clock,
                      rotation_per_rabi_frequency, solve_spinor, spin_rotation_angles, spinor_transmission,
                      transmitted_spin)
-from .transfer_matrix import (PROBE_PER_CELL, aligned_grid, amplitudes, as_energies, chain_product, cos_and_sinc,
+from .transfer_matrix import (PROBE_PER_CELL, aligned_counts, amplitudes, as_energies, chain_product, cos_and_sinc,
                               edges_and_cells, energy_blocks, jumps, refine)
 
 __all__ = [
@@ -210,12 +210,13 @@ def solve(potential, x_range, energies_J, mass_kg, *, rtol=1e-6, n_cells=64, max
     on a probe grid 16x finer than the first grid, and made cell edges: a cell
     straddling a jump is only first order in the cell width and its error does
     not shrink regularly, which fooled a comparison of successive nested grids
-    (per-cent errors on a rectangle reported as converged).  Between jumps the cells are uniform and
-    midpoint-sampled, second order; successive grids (n -> 2n + 1 cells) are not
-    nested.  error_estimate: Richardson on the last two grids,
-    |T_fine - T_coarse| / (r^2 - 1), r the ratio of cell counts.  converged is
-    False when max_cells is reached first.  Not located: kinks (a jump of dV/dx
-    only; they stay second order) and steps narrower than one probe interval,
+    (per-cent errors on a rectangle reported as converged).  Between jumps the
+    cells are uniform and midpoint-sampled, second order; each piece grows from c
+    to 2c - 1 cells, so successive grids are not nested.  error_estimate:
+    Richardson on the last two grids, |T_fine - T_coarse| / (r^2 - 1), r the
+    smallest ratio of cell counts.  converged is False when the next grid would
+    pass max_cells.  Not located: kinks (a jump of dV/dx only; they stay second
+    order) and a step up and down again inside one probe interval,
     (x_max - x_min) / (16 n_cells).
     """
     if not callable(potential):
@@ -226,7 +227,7 @@ def solve(potential, x_range, energies_J, mass_kg, *, rtol=1e-6, n_cells=64, max
     def run(x):
         return transmission(x, potential, energies_J, mass_kg, v_left=v_left, v_right=v_right)
 
-    res, err, n, ok = refine(run, lambda r: r.T, lambda n: aligned_grid(x0, x1, cuts, n), n_cells, rtol,
+    res, err, n, ok = refine(run, lambda r: r.T, aligned_counts(x0, x1, cuts, n_cells), rtol,
                              max_cells)
     return ScatteringResult(res.energies, res.t, res.r, res.T, res.R, err, n, ok)
 

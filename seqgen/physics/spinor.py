@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.constants import hbar
 
-from .transfer_matrix import (PROBE_PER_CELL, aligned_grid, amplitudes, as_energies, chain_product, cos_and_sinc,
+from .transfer_matrix import (PROBE_PER_CELL, aligned_counts, amplitudes, as_energies, chain_product, cos_and_sinc,
                               edges_and_cells, energy_blocks, jumps, refine)
 
 __all__ = [
@@ -142,8 +142,8 @@ def solve_spinor(v_up, v_down, omega_rabi, delta, x_range, energies_J, mass_kg, 
                  n_cells=64, max_cells=2**15):
     """`spinor_transmission` on a grid over x_range, refined until the estimated error of
     every amplitude t_ij is below rtol / 3 relative to max|t|.  As in `scattering.solve`:
-    the jumps of every callable profile are cell edges, successive grids (n -> 2n + 1
-    cells) are not nested, error_estimate is Richardson |t_fine - t_coarse| / (r^2 - 1)
+    the jumps of every callable profile are cell edges, successive grids (c -> 2c - 1
+    cells per piece between jumps) are not nested, error_estimate is Richardson |t_fine - t_coarse| / (r^2 - 1)
     and converged is False when max_cells is reached first.  Profiles as in
     `spinor_transmission` (callables or scalars).
     """
@@ -158,7 +158,7 @@ def solve_spinor(v_up, v_down, omega_rabi, delta, x_range, energies_J, mass_kg, 
         # amplitudes do not stall the refinement.
         return res.t / np.max(np.abs(res.t), axis=(-2, -1), keepdims=True)
 
-    res, err, n, ok = refine(run, metric, lambda n: aligned_grid(x0, x1, cuts, n), n_cells, rtol, max_cells)
+    res, err, n, ok = refine(run, metric, aligned_counts(x0, x1, cuts, n_cells), rtol, max_cells)
     err = err * np.max(np.abs(res.t), axis=(-2, -1), keepdims=True)
     return SpinorScatteringResult(res.energies, res.t, res.r, res.t_right, res.r_right, err, n, ok)
 

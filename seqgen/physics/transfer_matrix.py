@@ -54,17 +54,19 @@ def cos_and_sinc(q2, d, check_total=False):
 def chain_product(M):
     """Ordered product M[n-1] @ ... @ M[1] @ M[0] of a stack (n, ..., d, d).
 
-    Pairwise tree: log2(n) Python steps, each one batched matmul.
+    Pairwise tree: log2(n) Python steps, each one batched matmul.  An unpaired
+    last matrix (odd count) is the leftmost factor: it is multiplied into a
+    separate left factor instead of being appended to the halved stack (that copy
+    cost a third of the time for odd cell counts).
     """
+    left = None
     while M.shape[0] > 1:
         n = M.shape[0]
-        half = n // 2
-        P = np.matmul(M[1 : 2 * half : 2], M[0 : 2 * half : 2])
         if n % 2:
-            # The unpaired cell is the rightmost one, so it stays last.
-            P = np.concatenate([P, M[-1:]], axis=0)
-        M = P
-    return M[0]
+            left = M[-1] if left is None else left @ M[-1]
+            M = M[:-1]
+        M = np.matmul(M[1::2], M[0::2])
+    return M[0] if left is None else left @ M[0]
 
 
 def _boundary(k, x, k0):
@@ -144,92 +146,129 @@ def as_energies(energies_J):
 
 
 # Jumps are searched on a probe grid this many times finer than the first grid; a
-# step narrower than one probe interval (both edges inside it) is not seen.
+# step narrower than one probe interval whose two edges cancel there is not seen.
 PROBE_PER_CELL = 16
 # Bisection steps: halving a double-precision interval 64 times reaches adjacent floats.
 _BISECTIONS = 64
+# Rounds of the search: each splits the probe intervals where a jump was found, so a
+# second jump in the same interval is found in the next round.
+_ROUNDS = 8
+
+
+def _bisect_jumps(f, a, b, va, vb, tiny):
+    """Bisect each interval [a, b] towards its largest change; the (a, b) pairs that end
+    on a jump (change over the final interval at least half the change over the start
+    interval and above tiny), each a rounding-width bracket."""
+    d0 = np.abs(vb - va)
+    for _ in range(_BISECTIONS):
+        m = a + 0.5 * (b - a)
+        vm = np.broadcast_to(np.asarray(f(m), dtype=float), m.shape)
+        left = np.abs(vm - va) >= np.abs(vb - vm)
+        b = np.where(left, m, b)
+        vb = np.where(left, vm, vb)
+        a = np.where(left, a, m)
+        va = np.where(left, va, vm)
+    step = np.abs(vb - va)
+    keep = (step >= 0.5 * d0) & (step > tiny)
+    return a[keep], b[keep]
 
 
 def jumps(functions, x0, x1, n_probe):
     """Positions in (x0, x1) where any of the callables jumps, located to rounding.
 
-    Each probe interval [a, b] is bisected, always keeping the half over which
-    the function changes more: over a jump the change stays (the jump), over a
-    smooth stretch it halves each step.  A jump is kept when the change over the
-    final (rounding-width) interval is at least half the change over the probe
-    interval and above 1e-12 of the largest |value|, i.e. when the jump is larger
-    than the smooth change over one probe interval.
+    Each probe interval over which the function changes is bisected, always keeping
+    the half over which it changes more: over a jump the change stays (the jump),
+    over a smooth stretch it halves each step.  A jump is kept when it is larger than
+    half the change over its probe interval (so larger than the smooth change there)
+    and than 1e-12 of the largest |value|.  The brackets found become probe points
+    and the split intervals are searched again, so several jumps in one probe
+    interval are found too.
     """
-    x = np.linspace(x0, x1, n_probe + 1)
     found = []
     for f in functions:
         if not callable(f):
             continue
-        v = np.broadcast_to(np.asarray(f(x), dtype=float), x.shape)
-        d = np.abs(np.diff(v))
-        scale = float(np.max(np.abs(v))) if v.size else 0.0
-        idx = np.flatnonzero(d > 1e-12 * scale)
-        if idx.size == 0:
-            continue
-        a, b = x[idx].copy(), x[idx + 1].copy()
-        va, vb = v[idx].copy(), v[idx + 1].copy()
-        for _ in range(_BISECTIONS):
-            m = a + 0.5 * (b - a)
-            vm = np.broadcast_to(np.asarray(f(m), dtype=float), m.shape)
-            left = np.abs(vm - va) >= np.abs(vb - vm)
-            b = np.where(left, m, b)
-            vb = np.where(left, vm, vb)
-            a = np.where(left, a, m)
-            va = np.where(left, va, vm)
-        step = np.abs(vb - va)
-        keep = (step >= 0.5 * d[idx]) & (step > 1e-12 * scale)
-        found.append(0.5 * (a[keep] + b[keep]))
+        pts = np.linspace(x0, x1, n_probe + 1)
+        v = np.broadcast_to(np.asarray(f(pts), dtype=float), pts.shape)
+        finite = np.abs(v[np.isfinite(v)])
+        tiny = 1e-12 * (float(np.max(finite)) if finite.size else 0.0)
+        fresh = np.ones(pts.size - 1, dtype=bool)
+        for _ in range(_ROUNDS):
+            width_ok = np.diff(pts) > 4 * np.spacing(np.maximum(np.abs(pts[:-1]), np.abs(pts[1:])))
+            idx = np.flatnonzero(fresh & width_ok & (np.abs(np.diff(v)) > tiny))
+            if idx.size == 0:
+                break
+            a, b = _bisect_jumps(f, pts[idx], pts[idx + 1], v[idx], v[idx + 1], tiny)
+            new = np.setdiff1d(np.concatenate([a, b]), pts)
+            if new.size == 0:
+                break
+            found.append(0.5 * (a + b))
+            pts_new = np.union1d(pts, new)
+            v = np.broadcast_to(np.asarray(f(pts_new), dtype=float), pts_new.shape)
+            touched = np.isin(pts_new, new)
+            fresh = touched[:-1] | touched[1:]
+            pts = pts_new
     if not found:
         return np.empty(0)
     cuts = np.unique(np.concatenate(found))
     return cuts[(cuts > x0) & (cuts < x1)]
 
 
-def aligned_grid(x0, x1, cuts, n_cells):
-    """About n_cells edges over [x0, x1], uniform between cuts, every cut an edge.
+def aligned_counts(x0, x1, cuts, n_cells):
+    """Pieces between cuts and their initial cell counts, ceil(n_cells * length / total), at least one.
 
-    Each piece gets ceil(n_cells * length / total) cells (at least one), so a cell
-    never straddles a jump and midpoint sampling stays second order.
+    Cuts closer than 1e-9 of the range to each other or to an end are merged into it:
+    moving a jump that little changes T by far less than any tolerance asked for,
+    and keeps every piece wide enough to be divided into many cells.
     """
-    pts = np.concatenate([[x0], np.asarray(cuts, dtype=float), [x1]])
-    pts = pts[np.concatenate([[True], np.diff(pts) > 0])]
-    if pts[-1] != x1:
-        pts[-1] = x1
-    counts = np.maximum(1, np.ceil(n_cells * np.diff(pts) / (x1 - x0)).astype(int))
+    merge = 1e-9 * (x1 - x0)
+    inner = np.sort(np.asarray(cuts, dtype=float))
+    inner = inner[(inner > x0 + merge) & (inner < x1 - merge)]
+    pts = [x0]
+    for c in inner:
+        if c - pts[-1] > merge:
+            pts.append(c)
+    if x1 - pts[-1] <= merge:
+        pts.pop()
+    pts = np.array(pts + [x1])
+    return pts, np.maximum(1, np.ceil(n_cells * np.diff(pts) / (x1 - x0)).astype(int))
+
+
+def aligned_grid(pts, counts):
+    """Edges with counts[i] uniform cells between pts[i] and pts[i + 1]: every cut an edge,
+    so a cell never straddles a jump and midpoint sampling stays second order."""
     pieces = [np.linspace(a, b, c + 1)[:-1] for a, b, c in zip(pts[:-1], pts[1:], counts)]
-    return np.concatenate(pieces + [np.array([x1])])
+    return np.concatenate(pieces + [pts[-1:]])
 
 
-def refine(run, metric, grid, n_cells, rtol, max_cells):
+def refine(run, metric, pieces, rtol, max_cells):
     """Refine the grid until the estimated error of the metric is below rtol / 3 (relative).
 
-    grid(n) gives the edges of about n cells (cell edges on the located jumps),
-    run(x) the result on edges x.  Cells grow as n -> 2n + 1 so successive grids
-    are not nested: a feature the grid misses (a kink, a jump not located) does
-    not look converged just because two nested grids sample it alike.  Between
-    edges the potential is smooth and midpoint cells converge as h^2, so the
-    error estimate of the finer result is |change| / (r^2 - 1), r the ratio of
-    cell counts (Richardson); converged means 3 x that estimate <= rtol.  Stops
-    at max_cells (the first refinement is always made) with converged=False if
-    the tolerance was not met.  Returns (result, error_estimate, cells, converged).
+    pieces = (pts, counts) from `aligned_counts`: cell edges on the located jumps;
+    run(x) gives the result on edges x.  Every piece grows from c to 2c - 1 cells
+    (1 to 3): c and 2c - 1 have no common divisor, so successive grids share no
+    inner edge and a feature the grid misses (a kink, a jump not located) does not
+    look converged just because two nested grids sample it alike.  Between edges
+    the potential is smooth and midpoint cells converge as h^2, so the error
+    estimate of the finer result is |change| / (r^2 - 1), r the smallest ratio of
+    cell counts of a piece (Richardson; conservative for the other pieces);
+    converged means 3 x that estimate <= rtol.  The first refinement is always
+    made; refinement stops with converged=False when the next grid would pass
+    max_cells.  Returns (result, error_estimate, cells, converged).
     """
-    x = grid(n_cells)
-    prev = run(x)
-    n_prev, n = x.size - 1, n_cells
+    pts, counts = pieces
+    prev = run(aligned_grid(pts, counts))
+    error = None
     while True:
-        n = 2 * n + 1 if n >= max_cells else min(2 * n + 1, max_cells)
-        x = grid(n)
-        cur = run(x)
-        ratio = (x.size - 1) / n_prev
+        finer = np.where(counts == 1, 3, 2 * counts - 1)
+        if error is not None and int(np.sum(finer)) > max_cells:
+            return prev, error, int(np.sum(counts)), False
+        cur = run(aligned_grid(pts, finer))
+        ratio = float(np.min(finer / counts))
         error = np.abs(metric(cur) - metric(prev)) / (ratio**2 - 1.0)
         scale = np.maximum(np.abs(metric(cur)), np.finfo(float).tiny)
         # Safety factor 3 on an estimate that is only asymptotic (at r = 2 this is |change| <= rtol).
-        converged = bool(np.all(3.0 * error <= rtol * scale))
-        if converged or n >= max_cells:
-            return cur, error, x.size - 1, converged
-        prev, n_prev = cur, x.size - 1
+        counts = finer
+        if bool(np.all(3.0 * error <= rtol * scale)):
+            return cur, error, int(np.sum(counts)), True
+        prev = cur

@@ -161,7 +161,7 @@ def test_not_converged_is_reported_with_an_honest_estimate():
     res = sc.solve(lambda x: sc.poeschl_teller_potential(x, Vp, a), (-20 * a, 20 * a), e, M,
                    rtol=1e-9, max_cells=1024)
     assert not res.converged
-    assert res.n_cells == 1024
+    assert 512 < res.n_cells <= 1024
     true_err = np.abs(res.T - sc.poeschl_teller_transmission_exact(e, Vp, a, M))
     assert np.all(true_err <= 2 * res.error_estimate)
     assert np.all(res.error_estimate <= 2 * true_err)
