@@ -3,7 +3,7 @@
 Data live in ``data/atoms.yaml`` next to this module (units in the key names,
 a source beside every value) and are checked against
 ``data/atoms.schema.json`` (JSON Schema draft 2020-12) when first loaded.
-Everything returned here is SI: kg, Hz, m, W/m^2, J/T.
+Everything returned here is SI: kg, Hz, m, W/m^2, J/T, C m, C m^2/V.
 
 Sign convention for Zeeman energies (as in the alkali D-line data
 compilations): E = (g_J m_J + g_I m_I) mu_B B, and to first order in B
@@ -32,8 +32,22 @@ SCHEMA_FILE = _DATA_DIR / "atoms.schema.json"
 
 _U = sc.physical_constants["atomic mass constant"][0]
 _A0 = sc.physical_constants["Bohr radius"][0]
+_AU_POLARIZABILITY = 4 * sc.pi * sc.epsilon_0 * _A0**3  # C m^2 / V
+_AU_DIPOLE = sc.e * _A0  # C m
 MU_B = sc.physical_constants["Bohr magneton"][0]
 _J = 0.5  # electronic angular momentum of the alkali 2S1/2 ground state
+
+
+@dataclass(frozen=True)
+class PLine:
+    """A ground-state transition to a higher nP_J level (beyond D1 and D2).
+
+    ``reduced_dipole_cm`` is |<nS1/2||d||n'P_J>| in C m; ``wavelength_m`` the vacuum wavelength.
+    """
+
+    state: str
+    wavelength_m: float
+    reduced_dipole_cm: float
 
 
 @dataclass(frozen=True)
@@ -45,7 +59,12 @@ class Species:
     Linewidths are Gamma/2pi in Hz. ``saturation_intensity_w_m2`` is for the
     D2 cycling transition. ``scattering_lengths_m`` is keyed by state
     ("F=1,mF=-1", "singlet", "triplet"). ``sources`` maps each field name (and
-    "scattering_length:<state>") to the publication the value comes from.
+    "scattering_length:<state>", "p_line:<state>:wavelength",
+    "p_line:<state>:reduced_dipole") to the publication the value comes from.
+    ``core_polarizability_cm2_v`` (C m^2/V) is the static polarisability of the
+    closed-shell core and ``p_lines`` the transitions to higher P levels; with
+    the D lines they give the ground-state polarisability
+    (``seqgen.physics.optical``).
     """
 
     name: str
@@ -60,6 +79,8 @@ class Species:
     d1_linewidth_hz: float
     d2_linewidth_hz: float
     saturation_intensity_w_m2: float
+    core_polarizability_cm2_v: float
+    p_lines: tuple[PLine, ...]
     # read-only mappings: left out of the hash so Species stays hashable (cache keys)
     scattering_lengths_m: Mapping[str, float] = field(hash=False)
     sources: Mapping[str, str] = field(hash=False, repr=False)
@@ -78,6 +99,7 @@ _FIELDS = {
     "d1_linewidth_mhz": ("d1_linewidth_hz", 1e6),
     "d2_linewidth_mhz": ("d2_linewidth_hz", 1e6),
     "saturation_intensity_mw_cm2": ("saturation_intensity_w_m2", 10.0),  # 1 mW/cm^2 = 10 W/m^2
+    "core_polarizability_au": ("core_polarizability_cm2_v", _AU_POLARIZABILITY),
 }
 
 
@@ -105,6 +127,14 @@ def _build(name: str) -> Species:
     for key, (attr, factor) in _FIELDS.items():
         values[attr] = float(entry[key]["value"]) * factor
         sources[attr] = entry[key]["source"]
+    lines = []
+    for line in entry["p_lines"]:
+        state = line["state"]
+        lines.append(PLine(state, float(line["wavelength_nm"]["value"]) * 1e-9,
+                           float(line["reduced_dipole_au"]["value"]) * _AU_DIPOLE))
+        sources[f"p_line:{state}:wavelength"] = line["wavelength_nm"]["source"]
+        sources[f"p_line:{state}:reduced_dipole"] = line["reduced_dipole_au"]["source"]
+    values["p_lines"] = tuple(lines)
     lengths = {}
     for state, q in entry["scattering_lengths_a0"].items():
         lengths[state] = float(q["value"]) * _A0

@@ -1,7 +1,10 @@
 """Stationary 1D scattering of a matter wave off a barrier, scalar and two-component.
 
 Plain functions in SI units (J, m, kg, s, rad/s), independent of the rest of
-seqgen.  The solver is a transfer-matrix method with piecewise-constant cells:
+seqgen.  Modules: this one (potentials, scalar transmission, adaptive `solve`,
+closed forms, momentum averages), `spinor` (two components, spin analysis;
+re-exported here) and `transfer_matrix` (the shared numerics and the grid
+refinement).  The solver is a transfer-matrix method with piecewise-constant cells:
 inside a cell of width d with constant potential V the exact solution is
 propagated by
 
@@ -42,6 +45,13 @@ from typing import Callable
 import numpy as np
 from scipy.constants import hbar, k as k_B
 
+# The two-component functions live in `spinor`; re-exported so callers keep importing them from here.
+from .spinor import (LarmorClock, SpinorScatteringResult, bloch_vector, is_weak_probe, larmor_clock,
+                     rotation_per_rabi_frequency, solve_spinor, spin_rotation_angles, spinor_transmission,
+                     transmitted_spin)
+from .transfer_matrix import (PROBE_PER_CELL, aligned_counts, amplitudes, as_energies, chain_product, cos_and_sinc,
+                              edges_and_cells, energy_blocks, jumps, refine)
+
 __all__ = [
     "ScatteringResult",
     "SpinorScatteringResult",
@@ -69,17 +79,6 @@ __all__ = [
     "condensate_velocity_rms",
     "THOMAS_FERMI_MOMENTUM_WIDTH",
 ]
-
-# Number of cell matrices handled per block of energies: large enough to keep
-# the Python overhead of the tree reduction negligible, small enough that the
-# temporaries stay cache/allocator friendly (measured: ~5x faster for 4x4 than
-# one huge stack).
-_MATRICES_PER_BLOCK = 20_000
-
-# exp(650) is near the top of the double range: beyond it the product of cell
-# matrices overflows (T < 1e-560 there anyway).
-_MAX_EVANESCENT_EXPONENT = 650.0
-
 
 # --------------------------------------------------------------------------
 # Potentials
@@ -123,125 +122,6 @@ def tabulated_potential(x_table, V_table, outside=(0.0, 0.0)):
     return V
 
 
-# --------------------------------------------------------------------------
-# Core numerics
-# --------------------------------------------------------------------------
-
-def _cos_and_sinc(q2, d, check_total=False):
-    """cos(q d) and sin(q d)/q for real q^2 of either sign, in real arithmetic.
-
-    Both are entire in q^2, so the classically forbidden branch is cosh/sinh and
-    q^2 = 0 is the removable limit (1, d): stable at E = V.  check_total: axis 0
-    runs over cells; refuse barriers whose product of cells would overflow.
-    """
-    q2 = np.asarray(q2, dtype=float)
-    a = np.sqrt(np.abs(q2)) * d
-    pos = q2 >= 0.0
-    neg = ~pos
-    if np.any((a > _MAX_EVANESCENT_EXPONENT) & neg):
-        raise ValueError("a cell is too opaque (kappa*d > 650): refine the grid")
-    if check_total and np.any(np.sum(a, axis=0, where=neg) > _MAX_EVANESCENT_EXPONENT):
-        raise ValueError("barrier too opaque for double precision (integral of kappa dx > 650, T < 1e-560)")
-    # Evaluate each branch only where it applies (ufunc `where`), no wasted cosh.
-    c = np.empty_like(a)
-    num = np.empty_like(a)
-    np.cos(a, out=c, where=pos)
-    np.cosh(a, out=c, where=neg)
-    np.sin(a, out=num, where=pos)
-    np.sinh(a, out=num, where=neg)
-    zero = a == 0.0
-    np.divide(num, a, out=num, where=~zero)
-    num[zero] = 1.0
-    s = num * d
-    return c, s
-
-
-def _chain_product(M):
-    """Ordered product M[n-1] @ ... @ M[1] @ M[0] of a stack (n, ..., d, d).
-
-    Pairwise tree: log2(n) Python steps, each one batched matmul.
-    """
-    while M.shape[0] > 1:
-        n = M.shape[0]
-        half = n // 2
-        P = np.matmul(M[1 : 2 * half : 2], M[0 : 2 * half : 2])
-        if n % 2:
-            # The unpaired cell is the rightmost one, so it stays last.
-            P = np.concatenate([P, M[-1:]], axis=0)
-        M = P
-    return M[0]
-
-
-def _boundary(k, x, k0):
-    """Matrix mapping flux-normalised plane-wave amplitudes (a, b) to (psi, psi'/k0) at x.
-
-    psi_j = (a_j e^{i k_j x} + b_j e^{-i k_j x}) / sqrt(k_j); and its inverse.
-    k: (B, n) real positive, k0: (B,).
-    """
-    B, n = k.shape
-    ep = np.exp(1j * k * x)
-    em = 1.0 / ep
-    sk = np.sqrt(k)
-    kk = k / k0[:, None]
-    i = np.arange(n)
-    L = np.zeros((B, 2 * n, 2 * n), dtype=complex)
-    L[:, i, i] = ep / sk
-    L[:, i, n + i] = em / sk
-    L[:, n + i, i] = 1j * kk * ep / sk
-    L[:, n + i, n + i] = -1j * kk * em / sk
-    Linv = np.zeros_like(L)
-    Linv[:, i, i] = 0.5 * sk * em
-    Linv[:, i, n + i] = -0.5j * em * sk / kk
-    Linv[:, n + i, i] = 0.5 * sk * ep
-    Linv[:, n + i, n + i] = 0.5j * ep * sk / kk
-    return L, Linv
-
-
-def _amplitudes(P, kL, kR, x0, x1, k0):
-    """Scattering amplitudes from the total (psi, psi'/k0) transfer matrix P (B, 2n, 2n).
-
-    In the flux-normalised amplitude basis the transfer matrix Tm obeys
-    Tm^H S Tm = S with S = diag(1, -1) (current conservation), hence
-    (Tm^-1)_aa = Tm_aa^H and t = (Tm_aa^H)^-1: no subtraction of large numbers,
-    which keeps deep tunnelling accurate.  Returns t, r (incident from the
-    left) and t', r' (incident from the right), each (B, n, n).
-    """
-    n = kL.shape[1]
-    L0, _ = _boundary(kL, x0, k0)
-    _, R1inv = _boundary(kR, x1, k0)
-    Tm = R1inv @ P @ L0
-    Taa, Tab = Tm[:, :n, :n], Tm[:, :n, n:]
-    Tba, Tbb = Tm[:, n:, :n], Tm[:, n:, n:]
-    t = np.linalg.inv(np.conj(np.swapaxes(Taa, -1, -2)))
-    Tbb_inv = np.linalg.inv(Tbb)
-    r = -Tbb_inv @ Tba
-    t_right = Tbb_inv
-    r_right = Tab @ Tbb_inv
-    return t, r, t_right, r_right
-
-
-def _edges_and_cells(x, V):
-    """Cell edges and per-cell potential from (edges, cell values | node values | callable)."""
-    x = np.asarray(x, dtype=float)
-    if x.ndim != 1 or x.size < 2 or np.any(np.diff(x) <= 0):
-        raise ValueError("x must be a strictly increasing 1D array of at least 2 points")
-    if callable(V):
-        return x, np.broadcast_to(np.asarray(V(0.5 * (x[1:] + x[:-1])), dtype=float), (x.size - 1,))
-    V = np.asarray(V, dtype=float)
-    if V.ndim == 0:
-        return x, np.full(x.size - 1, float(V))
-    if V.shape == (x.size - 1,):
-        return x, V
-    if V.shape == (x.size,):
-        # Values on grid points: each cell takes the mean of its two ends.
-        return x, 0.5 * (V[1:] + V[:-1])
-    raise ValueError("potential must be callable, scalar, or have len(x)-1 (cells) or len(x) (points) values")
-
-
-def _energy_blocks(n_cells, n_energies):
-    step = max(1, min(n_energies, _MATRICES_PER_BLOCK // max(n_cells, 1)))
-    return [slice(s, min(s + step, n_energies)) for s in range(0, n_energies, step)]
-
 
 # --------------------------------------------------------------------------
 # Scalar scattering
@@ -279,10 +159,6 @@ class ScatteringResult:
         return np.abs(self.R + self.T - 1.0)
 
 
-def _as_energies(energies_J):
-    E = np.asarray(energies_J, dtype=float)
-    return E, E.reshape(-1)
-
 
 def transmission(x, potential, energies_J, mass_kg, *, v_left=0.0, v_right=0.0):
     """Transmission and reflection of a matter wave off V(x) on a grid.
@@ -293,8 +169,8 @@ def transmission(x, potential, energies_J, mass_kg, *, v_left=0.0, v_right=0.0):
     v_left, v_right: constant potentials beyond the grid (J).  Every energy
     must exceed both.  Vectorised over energies.
     """
-    x, Vc = _edges_and_cells(x, potential)
-    E, Ef = _as_energies(energies_J)
+    x, Vc = edges_and_cells(x, potential)
+    E, Ef = as_energies(energies_J)
     if np.any(Ef <= max(v_left, v_right)):
         raise ValueError("every energy must exceed the asymptotic potentials (open channels)")
     m = float(mass_kg)
@@ -304,17 +180,17 @@ def transmission(x, potential, energies_J, mass_kg, *, v_left=0.0, v_right=0.0):
     t = np.empty(Ef.size, dtype=complex)
     r = np.empty(Ef.size, dtype=complex)
     scale = 2.0 * m / hbar**2
-    for sl in _energy_blocks(Vc.size, Ef.size):
+    for sl in energy_blocks(Vc.size, Ef.size):
         k0 = kL[sl]
         q2 = scale * (Ef[sl][None, :] - Vc[:, None])          # (N, B)
-        c, s = _cos_and_sinc(q2, d[:, None], check_total=True)
+        c, s = cos_and_sinc(q2, d[:, None], check_total=True)
         M = np.empty(q2.shape + (2, 2))
         M[..., 0, 0] = c
         M[..., 1, 1] = c
         M[..., 0, 1] = k0 * s
         M[..., 1, 0] = -(q2 * s) / k0
-        P = _chain_product(M)
-        tf, rf, _, _ = _amplitudes(P, kL[sl, None], kR[sl, None], x[0], x[-1], k0)
+        P = chain_product(M)
+        tf, rf, _, _ = amplitudes(P, kL[sl, None], kR[sl, None], x[0], x[-1], k0)
         # Flux-normalised -> plain-wave amplitude: t_plain = t_flux sqrt(k_L/k_R).
         t[sl] = tf[:, 0, 0] * np.sqrt(kL[sl] / kR[sl])
         r[sl] = rf[:, 0, 0]
@@ -324,41 +200,35 @@ def transmission(x, potential, energies_J, mass_kg, *, v_left=0.0, v_right=0.0):
     return ScatteringResult(E, t.reshape(shp), r.reshape(shp), T.reshape(shp), R.reshape(shp), None, Vc.size, True)
 
 
-def _refine(run, metric, n_cells, rtol, max_cells):
-    """Double the cells until max|metric change| <= rtol * max(|metric|, tiny).
-
-    Midpoint-sampled piecewise-constant cells converge as h^2, so the
-    Richardson error estimate on the finer grid is |change| / (2^2 - 1).
-    """
-    prev = run(n_cells)
-    n = n_cells
-    while True:
-        n *= 2
-        cur = run(n)
-        change = np.abs(metric(cur) - metric(prev))
-        scale = np.maximum(np.abs(metric(cur)), np.finfo(float).tiny)
-        converged = bool(np.all(change <= rtol * scale))
-        if converged or n * 2 > max_cells:
-            return cur, change / 3.0, n, converged
-        prev = cur
-
 
 def solve(potential, x_range, energies_J, mass_kg, *, rtol=1e-6, n_cells=64, max_cells=2**16,
           v_left=0.0, v_right=0.0):
-    """`transmission` on a uniform grid over x_range = (x_min, x_max), doubling the cells
-    until T changes by less than rtol (relative); error_estimate is Richardson on the
-    last two grids (|T_2n - T_n| / 3, second-order scheme).  potential: callable V(x) in J.
-    If max_cells is reached first, the result has converged=False.
+    """`transmission` on a grid over x_range = (x_min, x_max), refined until the estimated
+    relative error of T is below rtol / 3; potential: callable V(x) in J.
+
+    Jumps of V (steps, the edges of a rectangle) are located first by bisection
+    on a probe grid 16x finer than the first grid, and made cell edges: a cell
+    straddling a jump is only first order in the cell width and its error does
+    not shrink regularly, which fooled a comparison of successive nested grids
+    (per-cent errors on a rectangle reported as converged).  Between jumps the
+    cells are uniform and midpoint-sampled, second order; each piece grows from c
+    to 2c - 1 cells, so successive grids are not nested.  error_estimate:
+    Richardson on the last two grids, |T_fine - T_coarse| / (r^2 - 1), r the
+    smallest ratio of cell counts.  converged is False when the next grid would
+    pass max_cells.  Not located: kinks (a jump of dV/dx only; they stay second
+    order) and a step up and down again inside one probe interval,
+    (x_max - x_min) / (16 n_cells).
     """
     if not callable(potential):
         raise TypeError("solve needs a callable potential (use tabulated_potential for tables)")
     x0, x1 = map(float, x_range)
+    cuts = jumps((potential,), x0, x1, PROBE_PER_CELL * n_cells)
 
-    def run(n):
-        return transmission(np.linspace(x0, x1, n + 1), potential, energies_J, mass_kg,
-                            v_left=v_left, v_right=v_right)
+    def run(x):
+        return transmission(x, potential, energies_J, mass_kg, v_left=v_left, v_right=v_right)
 
-    res, err, n, ok = _refine(run, lambda r: r.T, n_cells, rtol, max_cells)
+    res, err, n, ok = refine(run, lambda r: r.T, aligned_counts(x0, x1, cuts, n_cells), rtol,
+                             max_cells)
     return ScatteringResult(res.energies, res.t, res.r, res.T, res.R, err, n, ok)
 
 
@@ -376,7 +246,7 @@ def rectangular_barrier_amplitude_exact(E, V0, width, mass_kg):
     E = np.asarray(E, dtype=float)
     k = np.sqrt(2.0 * mass_kg * E) / hbar
     q2 = 2.0 * mass_kg * (E - V0) / hbar**2
-    c, s = _cos_and_sinc(q2, width)
+    c, s = cos_and_sinc(q2, width)
     D = c - 0.5j * (q2 + k**2) / k * s
     return np.exp(-1j * k * width) / D
 
@@ -389,7 +259,7 @@ def rectangular_barrier_transmission_exact(E, V0, width, mass_kg):
     E = np.asarray(E, dtype=float)
     k = np.sqrt(2.0 * mass_kg * E) / hbar
     q2 = 2.0 * mass_kg * (E - V0) / hbar**2
-    c, s = _cos_and_sinc(q2, width)
+    c, s = cos_and_sinc(q2, width)
     # |D|^2 = c^2 + ((q^2 + k^2)/(2k))^2 s^2 = 1 + ((q^2 - k^2)/(2k))^2 s^2 since c^2 + q^2 s^2 = 1.
     return 1.0 / (1.0 + (0.5 * (q2 - k**2) / k * s) ** 2)
 
@@ -413,214 +283,6 @@ def poeschl_teller_transmission_exact(E, V0, a, mass_kg):
     x = np.pi * k * a
     inv_sh2 = np.where(x < 350.0, 1.0 / np.sinh(np.minimum(x, 350.0)) ** 2, 0.0)
     return 1.0 / (1.0 + ch2 * inv_sh2)
-
-
-# --------------------------------------------------------------------------
-# Two-component (spinor) scattering
-# --------------------------------------------------------------------------
-
-@dataclass(frozen=True)
-class SpinorScatteringResult:
-    """Two-component scattering versus energy (basis (up, down)).
-
-    t, r: (..., 2, 2) amplitudes for incidence from the left, column = incident
-    component; t_right, r_right: same for incidence from the right.
-    error_estimate: Richardson estimate of the error of t (from `solve_spinor`).
-    """
-
-    energies: np.ndarray
-    t: np.ndarray
-    r: np.ndarray
-    t_right: np.ndarray
-    r_right: np.ndarray
-    error_estimate: np.ndarray | None = None
-    n_cells: int = 0
-    converged: bool = True
-
-    @property
-    def T(self):
-        """Total transmitted probability for each incident component, (..., 2)."""
-        return np.sum(np.abs(self.t) ** 2, axis=-2)
-
-    @property
-    def R(self):
-        return np.sum(np.abs(self.r) ** 2, axis=-2)
-
-    @property
-    def unitarity_error(self):
-        """max |S^H S - 1| of the 4x4 S-matrix [[r, t_right], [t, r_right]]."""
-        S = np.concatenate([np.concatenate([self.r, self.t_right], axis=-1),
-                            np.concatenate([self.t, self.r_right], axis=-1)], axis=-2)
-        G = np.conj(np.swapaxes(S, -1, -2)) @ S - np.eye(4)
-        return np.max(np.abs(G), axis=(-2, -1))
-
-
-def _cell_values(x, f):
-    return _edges_and_cells(x, f)[1]
-
-
-def spinor_transmission(x, v_up, v_down, omega_rabi, delta, energies_J, mass_kg):
-    """Two-component transmission through a region with spin-dependent potentials and coupling.
-
-    x: cell edges (m).  v_up, v_down (J), omega_rabi (Rabi frequency, rad/s,
-    coupling hbar Omega/2), delta (detuning, rad/s): each callable of x,
-    per-cell array, per-point array or scalar.  All vanish outside the grid.
-    Each cell is solved exactly in the eigenbasis of its 2x2 potential matrix.
-    Vectorised over energies (> 0, J).
-    """
-    x = np.asarray(x, dtype=float)
-    vu, vd = _cell_values(x, v_up), _cell_values(x, v_down)
-    om, de = _cell_values(x, omega_rabi), _cell_values(x, delta)
-    E, Ef = _as_energies(energies_J)
-    if np.any(Ef <= 0):
-        raise ValueError("energies must be positive (both asymptotic channels open)")
-    m = float(mass_kg)
-    d = np.diff(x)
-    N = d.size
-
-    W = np.empty((N, 2, 2))
-    W[:, 0, 0] = vu - 0.5 * hbar * de
-    W[:, 1, 1] = vd + 0.5 * hbar * de
-    W[:, 0, 1] = W[:, 1, 0] = 0.5 * hbar * om
-    wscale = max(float(np.max(np.abs(W))), np.finfo(float).tiny)
-    w, U = np.linalg.eigh(W / wscale)                          # energy-independent
-    w = w * wscale                                             # (N, 2)
-    # Projector on the first eigenvector, entries (N, 1) to broadcast over energies.
-    p00 = (U[:, 0, 0] ** 2)[:, None]
-    p11 = (U[:, 1, 0] ** 2)[:, None]
-    p01 = (U[:, 0, 0] * U[:, 1, 0])[:, None]
-
-    k = np.sqrt(2.0 * m * Ef) / hbar
-    kk = np.stack([k, k], axis=-1)
-    scale = 2.0 * m / hbar**2
-    shp = E.shape
-    t = np.empty((Ef.size, 2, 2), dtype=complex)
-    r, tr, rr = np.empty_like(t), np.empty_like(t), np.empty_like(t)
-    for sl in _energy_blocks(N, Ef.size):
-        k0 = k[sl]
-        q2 = scale * (Ef[sl][None, :, None] - w[:, None, :])  # (N, B, 2)
-        c, s = _cos_and_sinc(q2, d[:, None, None], check_total=True)
-        qs = q2 * s
-        # Block f0 P0 + f1 P1 with P1 = 1 - P0 (real symmetric): three distinct
-        # entries, each written as a sum of like-signed terms where possible.
-        M = np.empty((N, k0.size, 4, 4))
-        blocks = ((c, 1.0, ((0, 0), (2, 2))), (s, k0, ((0, 2),)), (qs, -1.0 / k0, ((2, 0),)))
-        for f, fac, corners in blocks:
-            f0, f1 = f[..., 0] * fac, f[..., 1] * fac
-            e00 = f0 * p00 + f1 * p11
-            e11 = f0 * p11 + f1 * p00
-            e01 = (f0 - f1) * p01
-            for i, j in corners:
-                M[..., i, j] = e00
-                M[..., i + 1, j + 1] = e11
-                M[..., i, j + 1] = e01
-                M[..., i + 1, j] = e01
-        P = _chain_product(M)
-        t[sl], r[sl], tr[sl], rr[sl] = _amplitudes(P, kk[sl], kk[sl], x[0], x[-1], k0)
-    return SpinorScatteringResult(E, t.reshape(shp + (2, 2)), r.reshape(shp + (2, 2)),
-                                  tr.reshape(shp + (2, 2)), rr.reshape(shp + (2, 2)), None, N, True)
-
-
-def solve_spinor(v_up, v_down, omega_rabi, delta, x_range, energies_J, mass_kg, *, rtol=1e-6,
-                 n_cells=64, max_cells=2**15):
-    """`spinor_transmission` on a uniform grid over x_range, doubling the cells until every
-    amplitude t_ij changes by less than rtol relative to max|t|; error_estimate is the
-    Richardson estimate |t_2n - t_n| / 3.  Profiles as in `spinor_transmission`.
-    """
-    x0, x1 = map(float, x_range)
-
-    def run(n):
-        return spinor_transmission(np.linspace(x0, x1, n + 1), v_up, v_down, omega_rabi, delta,
-                                   energies_J, mass_kg)
-
-    def metric(res):
-        # Relative to the largest amplitude of each energy so tiny off-diagonal
-        # amplitudes do not stall the refinement.
-        return res.t / np.max(np.abs(res.t), axis=(-2, -1), keepdims=True)
-
-    res, err, n, ok = _refine(run, metric, n_cells, rtol, max_cells)
-    err = err * np.max(np.abs(res.t), axis=(-2, -1), keepdims=True)
-    return SpinorScatteringResult(res.energies, res.t, res.r, res.t_right, res.r_right, err, n, ok)
-
-
-# --------------------------------------------------------------------------
-# Spin analysis: Bloch vectors, rotation angles, Larmor clock
-# --------------------------------------------------------------------------
-
-def bloch_vector(spinor):
-    """Unit Bloch vector (<sigma_x>, <sigma_y>, <sigma_z>) of spinor(s) (..., 2) = (up, down)."""
-    psi = np.asarray(spinor, dtype=complex)
-    a, b = psi[..., 0], psi[..., 1]
-    ab = np.conj(a) * b
-    norm = np.abs(a) ** 2 + np.abs(b) ** 2
-    return np.stack([2.0 * ab.real, 2.0 * ab.imag, np.abs(a) ** 2 - np.abs(b) ** 2], axis=-1) / norm[..., None]
-
-
-def transmitted_spin(t_matrix, spin_in):
-    """(transmitted probability, Bloch vector) for a normalised incident spinor spin_in (2,)."""
-    chi = np.asarray(spin_in, dtype=complex)
-    chi = chi / np.linalg.norm(chi)
-    out = np.asarray(t_matrix) @ chi
-    return np.sum(np.abs(out) ** 2, axis=-1), bloch_vector(out)
-
-
-def spin_rotation_angles(bloch_in, bloch_out, axis):
-    """(precession, alignment) angles (rad) of the spin about `axis`.
-
-    precession: right-handed rotation about axis of the component perpendicular
-    to it, from bloch_in to bloch_out.  alignment: change of elevation towards
-    -axis, the low-energy direction of H = (hbar/2) omega axis.sigma
-    (omega > 0); positive when the transmitted spin turns towards lower energy.
-    """
-    n = np.asarray(axis, dtype=float)
-    n = n / np.linalg.norm(n)
-    s_in = np.asarray(bloch_in, dtype=float)
-    s_out = np.asarray(bloch_out, dtype=float)
-    p_in = s_in - np.sum(s_in * n, axis=-1, keepdims=True) * n
-    p_out = s_out - np.sum(s_out * n, axis=-1, keepdims=True) * n
-    prec = np.arctan2(np.sum(np.cross(p_in, p_out) * n, axis=-1), np.sum(p_in * p_out, axis=-1))
-    elev_in = np.arcsin(np.clip(-np.sum(s_in * n, axis=-1), -1.0, 1.0))
-    elev_out = np.arcsin(np.clip(-np.sum(s_out * n, axis=-1), -1.0, 1.0))
-    return prec, elev_out - elev_in
-
-
-@dataclass(frozen=True)
-class LarmorClock:
-    """Transmitted spin and Larmor-clock readings (angles in rad, times in s)."""
-
-    probability: np.ndarray
-    bloch: np.ndarray
-    precession_angle: np.ndarray
-    alignment_angle: np.ndarray
-    precession_time: np.ndarray
-    alignment_time: np.ndarray
-
-
-def larmor_clock(t_matrix, spin_in, axis, omega_rad_s):
-    """Larmor clock of transmitted particles (Sov. J. Nucl. Phys. 4, 182 (1967); Phys. Rev. B 27, 6178 (1983)).
-
-    The field region acts as H = (hbar/2) omega axis.sigma; with spin_in
-    perpendicular to axis, in the weak-field limit
-        precession_angle = omega tau_y,  tau_y = -hbar d(arg t)/dV0,
-        alignment_angle  = omega tau_z,  tau_z = -hbar d(ln|t|)/dV0,
-    with t the spin-independent amplitude and V0 the barrier height.  Returns
-    times = angle / omega (for a Rabi coupling use omega = Omega).
-    """
-    p, s = transmitted_spin(t_matrix, spin_in)
-    s_in = bloch_vector(np.asarray(spin_in, dtype=complex))
-    prec, align = spin_rotation_angles(np.broadcast_to(s_in, s.shape), s, axis)
-    return LarmorClock(p, s, prec, align, prec / omega_rad_s, align / omega_rad_s)
-
-
-def rotation_per_rabi_frequency(angle_rad, omega_rabi_rad_s):
-    """Rotation angle per unit Rabi frequency (s): the effective interaction time."""
-    return np.asarray(angle_rad) / omega_rabi_rad_s
-
-
-def is_weak_probe(angle_rad, threshold=0.1):
-    """True where |rotation| < threshold (rad): the coupling only probes the dwell time,
-    linear response holds (common practice, no source)."""
-    return np.abs(np.asarray(angle_rad)) < threshold
 
 
 # --------------------------------------------------------------------------

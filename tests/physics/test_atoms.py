@@ -73,6 +73,23 @@ def test_every_value_has_a_source_and_is_finite(name):
     assert s.d2_wavelength_m < s.d1_wavelength_m
 
 
+@pytest.mark.parametrize("name", ALL)
+def test_higher_p_lines_and_core_have_sources(name):
+    s = get_species(name)
+    a_u = 4 * math.pi * sc.epsilon_0 * sc.physical_constants["Bohr radius"][0] ** 3
+    # closed-shell core polarisabilities are 0.19 (Li+) to 15.6 (Cs+) a.u. (Phys. Rev. A 49, 982 (1994)) (from memory)
+    assert 0.1 < s.core_polarizability_cm2_v / a_u < 20
+    assert s.sources["core_polarizability_cm2_v"].strip()
+    assert s.p_lines
+    for line in s.p_lines:
+        # above the D lines in energy, below the ionisation limit (at most about 5.4 eV, Li: 230 nm)
+        assert 220e-9 < line.wavelength_m < s.d2_wavelength_m
+        # far weaker than the resonance lines (reduced matrix elements of a few e a0)
+        assert 0 < line.reduced_dipole_cm < sc.e * sc.physical_constants["Bohr radius"][0]
+        assert s.sources[f"p_line:{line.state}:wavelength"].strip()
+        assert s.sources[f"p_line:{line.state}:reduced_dipole"].strip()
+
+
 # masses in u: AME2020, Chinese Physics C 45, 030003 (2021) (from memory)
 @pytest.mark.parametrize("name,mass_u", [
     ("Rb87", 86.909180531), ("Na23", 22.989769282), ("Cs133", 132.905451961), ("K39", 38.963706486),
