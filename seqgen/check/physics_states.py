@@ -71,7 +71,7 @@ def _played_text(shot, act, rep):
     seg = _writer(shot, fname, act.t0)
     whence = f"set by the {seg.action} at {_line(seg)}" if seg is not None else "its synth's idle frequency"
     return (f"clock pulse without 'frequency:': drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} "
-            f"({whence})", seg, "add to the pulse")
+            f"({whence})", seg, "add")
 
 
 @rule(PULSE_DETUNED, stage="physics")

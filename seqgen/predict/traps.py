@@ -71,12 +71,16 @@ def held(sp, beams: tuple) -> HeldTrap:
     return HeldTrap(depth, omegas, heating)
 
 
-def trap_stage(shot, t0, t1, n=N_SAMPLES, heating=False):
-    """(times, frequencies (rad/s, shape (n, 3)), effective depths with gravity (J)) at n times in [t0, t1];
-    with `heating`, the recoil heating rates (K/s) at those times as a fourth item."""
+def trap_stage(shot, t0, t1, n=N_SAMPLES, heating=False, extra=()):
+    """(times, frequencies (rad/s, shape (n, 3)), effective depths with gravity (J)) at n times in [t0, t1]
+    (and at the `extra` times inside it); with `heating`, the recoil heating rates (K/s) at those times as a
+    fourth item."""
     sp = species(shot)
     # just before t1: a release at the ramp's end time must not count as part of the ramp
     times = np.linspace(t0, t1 - 1e-9 * max(1.0, t1 - t0), n)
+    if len(extra):
+        times = np.unique(np.concatenate([times, [x for x in extra if t0 < x < times[-1]]]))
+        n = len(times)
     omegas = np.full((n, 3), np.nan)
     depth_g = np.zeros(n)
     rates = np.zeros(n)
@@ -188,16 +192,20 @@ def _settle(shot, channels) -> float:
 
 def write_prediction(shot, w: TrapWrite) -> TrapStage:
     """The TrapStage of a trap write: over [t0, t1] for a ramp, just after the set for a set."""
-    if w.action is not None:
+    if w.action is not None and not w.others:
         return trap_stage_prediction(shot, w.action)
+    if w.others:  # look just after each overriding write too: a set inside a ramp may be a short glitch
+        settle = _settle(shot, {x.output for x in w.others})
+        return span_prediction(shot, w.t0, w.t1, N_SAMPLES, tuple(sorted(x.t0 + settle for x in w.others)))
     if w.t1 > w.t0:
         return span_prediction(shot, w.t0, w.t1)
     return span_prediction(shot, w.t0, w.t0 + _settle(shot, {x.output for x in w.segments}), 1)
 
 
-@per_shot_cache(lambda shot, t0, t1, n=N_SAMPLES: ("trap-span", t0, t1, n))
-def span_prediction(shot, t0, t1, n=N_SAMPLES) -> TrapStage:
-    """Frequencies, depth, eta and excitation of the trap over [t0, t1] (n = 1: the trap at t1 alone)."""
+@per_shot_cache(lambda shot, t0, t1, n=N_SAMPLES, extra=(): ("trap-span", t0, t1, n, extra))
+def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=()) -> TrapStage:
+    """Frequencies, depth, eta and excitation of the trap over [t0, t1] (n = 1: the trap at t1 alone; extra:
+    more times inside to look at)."""
     from ..physics.adiabatic import adiabaticity_parameter, ermakov_final_energy_ratio
 
     if n == 1:
@@ -206,7 +214,7 @@ def span_prediction(shot, t0, t1, n=N_SAMPLES) -> TrapStage:
         if shot.sample is not None and shot.sample.temperature_k:
             eta = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
         return TrapStage(np.array([t1]), omegas, depth_g, eta)
-    times, omegas, depth_g, rates = trap_stage(shot, t0, t1, n=n, heating=True)
+    times, omegas, depth_g, rates = trap_stage(shot, t0, t1, n=n, heating=True, extra=extra)
     heat = (float(np.trapezoid(rates, times)), float(np.max(rates)))
     eta = adiabaticity = excitation = None
     if shot.sample is not None and shot.sample.temperature_k:
