@@ -23,7 +23,8 @@ from .species import LevelProblem, gaussian_beams, species
 from .states import (BarrierDrive, Interferometer, Populations, PulsePrediction, SweepPrediction,
                      barrier_drive_analysis, interferometer_analysis, interferometers, populated_states,
                      populations, pulse_analysis, state_fractions, sweep_analysis)
-from .traps import HeldTrap, TrapStage, held, trap_stage, trap_stage_prediction
+from .traps import (HeldTrap, TrapStage, TrapWrite, held, trap_stage, trap_stage_prediction, trap_writes,
+                    write_prediction)
 
 __all__ = [
     "BarrierDrive", "BarrierPrediction", "CloudAtImage", "Components", "HeldTrap", "HoldPrediction",
@@ -33,7 +34,7 @@ __all__ = [
     "compiled_shot", "components_at", "gaussian_beams", "held", "hold_analysis", "image_prediction", "incident_velocity",
     "interferometer_analysis", "interferometers", "per_shot_cache", "played", "played_source", "populated_states", "populations",
     "probe_analysis", "pulse_analysis", "push_analysis", "report_rows", "separation_analysis", "species",
-    "state_fractions", "sweep_analysis", "trap_stage", "trap_stage_prediction",
+    "state_fractions", "sweep_analysis", "trap_stage", "trap_stage_prediction", "trap_writes", "write_prediction", "TrapWrite",
 ]
 
 
