@@ -197,15 +197,16 @@ def write_prediction(shot, w: TrapWrite) -> TrapStage:
     if w.others:  # look just after each overriding write too: a set inside a ramp may be a short glitch
         settle = _settle(shot, {x.output for x in w.others})
         return span_prediction(shot, w.t0, w.t1, N_SAMPLES, tuple(sorted(x.t0 + settle for x in w.others)))
-    if w.t1 > w.t0:
-        return span_prediction(shot, w.t0, w.t1)
+    if w.t1 > w.t0:  # plain ramps are not reported row by row: the bound decides whenever it clears the limit
+        return span_prediction(shot, w.t0, w.t1, N_SAMPLES, (), 1.0)
     return span_prediction(shot, w.t0, w.t0 + _settle(shot, {x.output for x in w.segments}), 1)
 
 
-@per_shot_cache(lambda shot, t0, t1, n=N_SAMPLES, extra=(): ("trap-span", t0, t1, n, extra))
-def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=()) -> TrapStage:
+@per_shot_cache(lambda shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2: ("trap-span", t0, t1, n, extra, bound))
+def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2) -> TrapStage:
     """Frequencies, depth, eta and excitation of the trap over [t0, t1] (n = 1: the trap at t1 alone; extra:
-    more times inside to look at)."""
+    more times inside to look at). The excitation is the bound (adiabaticity parameter)^2 when that is under
+    `bound` x the limit max_excitation, else integrated."""
     from ..physics.adiabatic import adiabaticity_parameter, ermakov_final_energy_ratio
 
     if n == 1:
@@ -221,7 +222,7 @@ def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=()) -> TrapStage:
         eta = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
     if np.all(np.isfinite(omegas)) and np.all(depth_g > 0):
         adiabaticity = float(np.max(adiabaticity_parameter(times, omegas.T, axis=-1)))
-        if adiabaticity ** 2 < shot.limits.max_excitation * 1e-2:
+        if adiabaticity ** 2 < shot.limits.max_excitation * bound:
             # the excess energy of a slow ramp stays below (adiabaticity parameter)^2 (checked in
             # tests/physics/test_adiabatic.py); integrating thousands of trap periods would add nothing
             return TrapStage(times, omegas, depth_g, eta, adiabaticity, (adiabaticity ** 2,) * 3, True, *heat)
