@@ -4,8 +4,8 @@ minimisations, by content across shots). Predictions carry numbers, not findings
 `show --physics`, the plot and the HTML report print.
 
 Modules by subject, each importing only those before it: cache, played (what the hardware plays: the
-compiled tables read back in physical units, which every prediction reads), species, traps, magnetic, states, pushes,
-cloud, barrier, imaging, text (words for the numbers), report.
+compiled tables read back in physical units, which every prediction reads), species, traps, states, magnetic,
+pushes, cloud, barrier, imaging, text (words for the numbers), report.
 """
 
 from __future__ import annotations
