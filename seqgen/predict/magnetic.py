@@ -110,6 +110,14 @@ def hold_analysis(shot, act) -> HoldPrediction:
     return HoldPrediction(**rep)
 
 
+def _settled(shot, output, t):
+    """A tick of the output's device after t: a write at t is played by then (its row sits at the tick nearest
+    t - latency, so it may appear up to half a tick late)."""
+    out = shot.rig.outputs[output]
+    dev = shot.rig.devices.get(out.device)
+    return t + (dev.tick_s if dev is not None else 0.0)
+
+
 def held_states(shot, act) -> tuple:
     """The states a hold holds (see the module notes), most populated first; () without any state."""
     st = act.args.get("state")
@@ -150,14 +158,15 @@ def _hold(shot, act) -> dict:
         if coil.current_channel not in shot.rig.outputs:
             continue
         channels.append(coil.current_channel)
-        amps = float(played(shot, coil.current_channel, t_hold)[0])
+        amps = float(played(shot, coil.current_channel, _settled(shot, coil.current_channel, t_hold))[0])
         if abs(amps) > off_floor(shot, coil.current_channel) and math.isfinite(amps):
             coils.append((coil, amps))
     rep = {"t_hold": t_hold, "duration": act.args["duration"], "coils": tuple((c.name, i) for c, i in coils),
            "state": states[0] if states else None, "species": sp.name if sp else None,
            "source": played_source(shot, *channels)}
     beams_on = [b.name for b in shot.rig.beams.values()
-                if b.role == "trap" and float(played(shot, b.power_channel, t_hold)[0]) > off_floor(shot, b.power_channel)]
+                if b.role == "trap" and float(played(shot, b.power_channel, _settled(shot, b.power_channel, t_hold))[0])
+                > off_floor(shot, b.power_channel)]
     rep["optical"] = tuple(beams_on)
     bad_axes = [c.name for c, _ in coils if not (np.all(np.isfinite(c.axis)) and np.any(np.asarray(c.axis) != 0))]
     if bad_axes:  # the rig schema takes any three numbers; a zero axis gives no direction
