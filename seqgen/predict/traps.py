@@ -12,6 +12,7 @@ import numpy as np
 from scipy import constants as sc
 
 from .cache import per_shot_cache
+from .played import played_source
 from .species import gaussian_beams, species, trap_beams
 
 N_SAMPLES = 24  # trap evaluations per ramp: frequencies vary smoothly with power
@@ -105,7 +106,7 @@ class TrapStage:
     a temperature), adiabaticity = max |d omega/dt| / omega^2 and excitation E/E_ad - 1 per axis (None when the
     trap is lost somewhere); excitation_is_bound: the excitation is the bound adiabaticity^2, not integrated;
     heating: recoil heating over the ramp (K, trapezoid integral of dT/dt at the minimum) and the largest
-    rate heating_rate (K/s)."""
+    rate heating_rate (K/s); source: whether the powers were read from the compiled tables."""
 
     times: np.ndarray
     omegas: np.ndarray
@@ -116,6 +117,7 @@ class TrapStage:
     excitation_is_bound: bool = False
     heating: float = 0.0
     heating_rate: float = 0.0
+    source: str = "played"  # "intended" when a trap beam's output could not be compiled (predict.played)
 
 
 @per_shot_cache(lambda shot, act: ("trap", act.index))
@@ -209,12 +211,13 @@ def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2) -> TrapStag
     `bound` x the limit max_excitation, else integrated."""
     from ..physics.adiabatic import adiabaticity_parameter, ermakov_final_energy_ratio
 
+    source = played_source(shot, *(b.power_channel for b in trap_beams(shot)))
     if n == 1:
         _, omegas, depth_g, rates = trap_stage(shot, t1, t1 + 1e-12, n=1, heating=True)
         eta = None
         if shot.sample is not None and shot.sample.temperature_k:
             eta = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
-        return TrapStage(np.array([t1]), omegas, depth_g, eta)
+        return TrapStage(np.array([t1]), omegas, depth_g, eta, source=source)
     times, omegas, depth_g, rates = trap_stage(shot, t0, t1, n=n, heating=True, extra=extra)
     heat = (float(np.trapezoid(rates, times)), float(np.max(rates)))
     eta = adiabaticity = excitation = None
@@ -225,7 +228,8 @@ def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2) -> TrapStag
         if adiabaticity ** 2 < shot.limits.max_excitation * bound:
             # the excess energy of a slow ramp stays below (adiabaticity parameter)^2 (checked in
             # tests/physics/test_adiabatic.py); integrating thousands of trap periods would add nothing
-            return TrapStage(times, omegas, depth_g, eta, adiabaticity, (adiabaticity ** 2,) * 3, True, *heat)
+            return TrapStage(times, omegas, depth_g, eta, adiabaticity, (adiabaticity ** 2,) * 3, True, *heat,
+                             source=source)
         exc = []
         for axis in range(3):
             w = omegas[:, axis]
@@ -238,4 +242,4 @@ def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2) -> TrapStag
             except (ValueError, RuntimeError):
                 exc.append(float("nan"))
         excitation = tuple(exc)
-    return TrapStage(times, omegas, depth_g, eta, adiabaticity, excitation, False, *heat)
+    return TrapStage(times, omegas, depth_g, eta, adiabaticity, excitation, False, *heat, source=source)
