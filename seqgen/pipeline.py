@@ -7,7 +7,8 @@ command line, scans and notebooks:
    validated (a file that cannot be read at all raises `LoadError`);
 2. `resolve(src, overrides)`: a `Shot` (or None) and its findings;
 3. `run_timeline_checks(shot, rules)`: the timeline and physics rules;
-4. `compile_shot(shot)`, then `run_table_checks(shot, compiled, rules)`.
+4. `compile_shot(shot)`, then `run_table_checks(shot, compiled, rules)`: the shot is compiled once, and the
+   physics predictions of step 3 read the same tables (`seqgen.predict.played`).
 
 `rules` is a tuple of rules (default: all of `seqgen.check.RULES`); a caller may
 pass fewer, e.g. without the slow physics rules.
@@ -24,6 +25,7 @@ from .compile.tables import compile_shot
 from .findings import Finding, has_errors, sort_findings
 from .load.yamlsrc import LoadError
 from .model import Compiled, Shot
+from .predict.played import compiled_shot
 from .resolve.sequence import resolve
 from .resolve.sources import Sources, load_sources
 
@@ -71,8 +73,8 @@ def preflight_resolved(src: Sources, shot: Shot | None, resolve_findings: list, 
     res.shot = shot
     findings += run_timeline_checks(shot, rules)
     if compile_tables:
-        compiled, cf = compile_shot(shot)
-        findings += cf
+        compiled, cf = compiled_shot(shot)  # the tables the physics predictions read, compiled once per shot
+        findings += list(cf)
         findings += run_table_checks(shot, compiled, rules)
         res.compiled = compiled
     res.findings = sort_findings(apply_accepts(findings, shot.accepts))

@@ -21,7 +21,8 @@ from seqgen import predict as pr
 from seqgen.pipeline import preflight
 from seqgen.show import physics_rows
 
-from .atom_reference import G_N, MASS, condensate_radius_after, gaussian_beam_omega2, moment, thomas_fermi_radii
+from .atom_reference import (BIAS, G_N, MASS, breit_rabi_hz, condensate_radius_after, gaussian_beam_omega2, moment,
+                             thomas_fermi_radii)
 from .conftest import SEQUENCES
 
 RIG = (SEQUENCES / "rigs" / "na23_demo_rig.yaml").read_text(encoding="utf-8")
@@ -114,7 +115,10 @@ def test_depth_of_field_reads_the_extent_along_the_line_of_sight(tmp_path, probe
 def test_separation_width_is_the_width_along_the_separation(tmp_path, coil, axis):
     # a pi/2 pulse, then the gradient after the release: the components part along the coil's direction, and
     # their rms width along it is R_axis / sqrt(7)
-    pulse = ("clock_pulse: {drive: mw, angle: pi/2, duration: 50 us, transition: [{F: 1, mF: -1}, {F: 2, mF: -2}]}")
+    # on the line (Breit-Rabi at the rig's bias): without a frequency the synth would play its idle one
+    line = abs(breit_rabi_hz(2, -2, BIAS) - breit_rabi_hz(1, -1, BIAS))
+    pulse = ("clock_pulse: {drive: mw, angle: pi/2, duration: 50 us, frequency: " f"{line:.3f} Hz, "
+             "transition: [{F: 1, mF: -1}, {F: 2, mF: -2}]}")
     body = blocks(pulse).replace("  - name: image\n", f"  - name: split\n    after: release + 0.5 ms\n    actions:\n"
                         f"      - separate: {{coil: {coil}, gradient: 20 G/cm, duration: 2 ms}}\n  - name: image\n")
     res = run(tmp_path, body)

@@ -191,11 +191,19 @@ def test_ioffe_pritchard_frequencies_in_the_report(tmp_path):
 def test_ioffe_pritchard_low_bias_and_field_zero(tmp_path):
     body, sample = ip_hold("199.9 A")  # B0 = 0.01 G: Larmor ~7 kHz, below 10 x the radial frequency
     f = only(run(tmp_path, body, sample=sample, rig=IP_RIG), "physics.majorana-loss")
-    assert f.severity == "warning" and dict(f.data)["bias_t"] == pytest.approx(1e-6, rel=1e-6)
+    # the currents as played: the nearest code of a 16-bit 0..10 V channel at 0.025 V/A (LSB 10 V / (2^16 - 1));
+    # B0 is a small difference of two large currents, so the codes move it by a few per cent
+    lsb = 10.0 / (2 ** 16 - 1)
+
+    def amps(i):
+        return round(i * 0.025 / lsb) * lsb / 0.025
+
+    b0, b1, b2 = 1e-5 * (amps(200) - amps(199.9)), 0.01 * amps(150), 0.5 * amps(200)  # T, T/m, T/m^2
+    assert f.severity == "warning" and dict(f.data)["bias_t"] == pytest.approx(b0, rel=1e-6)
     # Larmor frequency |g_F| mu_B B0 / h at low field (Rev. Mod. Phys. 49, 31 (1977)) against the radial frequency
-    larmor = abs(g_f(1)) * MU_B * 1e-6 / sc.h
-    f_rho = math.sqrt(abs(MOMENT_1M1) / MASS * (1.5 ** 2 / 1e-6 - 50)) / (2 * math.pi)
-    rotation = 1.5 * math.sqrt(sc.k * 10e-6 / MASS) / 1e-6 / (2 * math.pi)  # v B'/B0, v = sqrt(k_B T / m)
+    larmor = abs(g_f(1)) * MU_B * b0 / sc.h
+    f_rho = math.sqrt(abs(MOMENT_1M1) / MASS * (b1 ** 2 / b0 - b2 / 2)) / (2 * math.pi)
+    rotation = b1 * math.sqrt(sc.k * 10e-6 / MASS) / b0 / (2 * math.pi)  # v B'/B0, v = sqrt(k_B T / m)
     assert dict(f.data)["adiabaticity"] == pytest.approx(larmor / max(f_rho, rotation), rel=1e-3)
     body, sample = ip_hold("201 A")  # B0 = -0.1 G: a field zero on the axis
     assert "field zero" in only(run(tmp_path, body, sample=sample, rig=IP_RIG), "physics.majorana-loss").message

@@ -110,7 +110,10 @@ def test_repulsive_beam_finding_and_trap_lost_no_longer_asks_for_power():
     res = preflight(FAULTS / "repulsive_trap_beam.yaml", compile_tables=False)
     (rep,) = [f for f in res.findings if f.code == "physics.repulsive-trap-beam"]
     assert rep.severity == "error" and rep.line == 9 and "1064 nm" in rep.hint
-    (lost,) = [f for f in res.findings if f.code == "physics.trap-lost"]
+    # the plain set that turns the beam on (line 9) loses the trap too: every write to a trap beam is checked
+    lost_lines = sorted(f.line for f in res.findings if f.code == "physics.trap-lost")
+    assert lost_lines == [9, 12]
+    (lost,) = [f for f in res.findings if f.code == "physics.trap-lost" and f.line == 12]
     assert "higher power" not in lost.hint and "wavelength red of the D1 line" in lost.hint
 
 

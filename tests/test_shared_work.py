@@ -133,3 +133,30 @@ def test_beam_frame_matches_the_direct_paraxial_formula():
     ws = 25e-6 * np.sqrt(1 + (s / zr) ** 2)
     ref = 2 * 0.3 / (np.pi * ws ** 2) * np.exp(-2 * r2 / ws ** 2)
     assert b.intensity(pts) == pytest.approx(ref, rel=1e-9, abs=1e-12 * ref.max())
+
+
+def _demo_with_tof(tmp_path, tof):
+    text = DEMO.read_text(encoding="utf-8")
+    for sub in ("rigs", "common"):
+        (tmp_path / sub).mkdir(exist_ok=True)
+        for f in (SEQUENCES / sub).glob("*.yaml"):
+            (tmp_path / sub / f.name).write_bytes(f.read_bytes())
+    path = tmp_path / f"tof_{tof.split()[0]}.yaml"
+    path.write_text(text.replace(text[text.index("  tof:"):].splitlines()[0], f"  tof: {tof}"), encoding="utf-8")
+    return path
+
+
+def test_scan_shots_share_the_trap_minimisations_of_the_beams_they_play(tmp_path):
+    # two shots that differ only in the time of flight play the same trap beams before the release: the
+    # second shot's trap minimisations are all hits of the content-keyed cache (keyed on the played powers),
+    # and its findings equal those of the same shot checked cold
+    first, second = _demo_with_tof(tmp_path, "11 ms"), _demo_with_tof(tmp_path, "14 ms")
+    clear_shared_caches()
+    preflight(first)
+    misses, hits = held.cache_info().misses, held.cache_info().hits
+    warm = preflight(second)
+    assert held.cache_info().misses == misses and held.cache_info().hits > hits
+    clear_shared_caches()
+    cold = preflight(second)
+    assert _findings(warm) == _findings(cold)
+    assert report_rows(warm.shot) == report_rows(cold.shot)

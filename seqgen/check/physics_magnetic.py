@@ -1,4 +1,5 @@
-"""Rules on magnetic trap stages (the `magnetic_hold` action): a state the trap cannot hold, a trap that
+"""Rules on magnetic trap stages (the `magnetic_hold` action): a state the trap cannot hold (the states that
+hold atoms at the hold, not only the sample's), a trap that
 does not hold against gravity, Majorana spin flips. They read `seqgen.predict.magnetic` (the trap model and
 its conventions are described there)."""
 
@@ -10,7 +11,7 @@ from ..codes import MAGNETIC_TRAP_LOST, MAJORANA_LOSS, STATE_NOT_TRAPPABLE
 from ..findings import make
 from ..physics.magnetic_trap import trappable_states
 from ..predict.magnetic import MIN_MOMENT, hold_analysis, holds
-from ..predict.species import G_N, MU_B, species
+from ..predict.species import G_N, MU_B, sample_state, species
 from ..predict.text import level_problem_text, unconfined_text, weakest_text
 from ..textfmt import fmt_gauss, fmt_gauss_per_cm, fmt_gauss_per_cm2, fmt_length, fmt_state, fmt_time
 from .rules import rule
@@ -33,17 +34,21 @@ def state_not_trappable(shot):
                        f"{level_problem_text(rep.bad_state)}", act.pos, block=act.block, time_s=act.t0,
                        hint="give the state's F and mF of the species' ground levels")
             continue
-        if rep.moment is None or rep.trappable:
+        lost = [(st, m, None) for st, m in ((rep.state, rep.moment),) if m is not None and not rep.trappable]
+        lost += list(rep.lost_states)
+        if not lost:
             continue
-        sp = species(shot)
-        ok = ", ".join(fmt_state(*s) for s in trappable_states(sp, 0.0, MIN_MOMENT))
-        mom = rep.moment
-        why = ("has no magnetic moment" if abs(mom) < MIN_MOMENT else "is a high-field seeker")
-        yield make(STATE_NOT_TRAPPABLE, f"{fmt_state(*rep.state)} of {rep.species} {why} "
-                   f"(moment -dE/dB = {mom / MU_B:+.3g} mu_B): the magnetic trap cannot hold it", act.pos,
-                   block=act.block, time_s=act.t0,
-                   hint=f"transfer the atoms to a low-field seeker first ({ok}), or hold them optically",
-                   data={"moment_mu_b": mom / MU_B})
+        ok = ", ".join(fmt_state(*s) for s in trappable_states(species(shot), 0.0, MIN_MOMENT))
+        for state, mom, fraction in lost:
+            why = ("has no magnetic moment" if abs(mom) < MIN_MOMENT else "is a high-field seeker")
+            share = f" ({fraction:.0%} of the atoms)" if fraction is not None else ""
+            declared = act.args.get("state") is not None or state == sample_state(shot)
+            whence = "" if declared else " (where the earlier pulses or sweeps put the atoms)"
+            yield make(STATE_NOT_TRAPPABLE, f"{fmt_state(*state)}{share} of {rep.species}{whence} {why} "
+                       f"(moment -dE/dB = {mom / MU_B:+.3g} mu_B): the magnetic trap cannot hold it", act.pos,
+                       block=act.block, time_s=act.t0,
+                       hint=f"transfer the atoms to a low-field seeker first ({ok}), or hold them optically",
+                       data={"moment_mu_b": mom / MU_B, "F": state[0], "mF": state[1]})
 
 
 

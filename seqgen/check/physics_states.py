@@ -47,23 +47,59 @@ def pulse_angle(shot):
 
 
 
+def _writer(shot, output, t):
+    """The last write to `output` that starts at or before t (as `values.value_at` orders them), or None."""
+    last = None
+    for seg in sorted((x for x in shot.segments if x.output == output),
+                      key=lambda x: (x.t0, 0 if x.action.endswith(":end") else 1)):
+        if seg.t0 <= t:
+            last = seg
+    return last
+
+
+def _line(seg) -> str:
+    return f"line {seg.pos.line}" if seg.pos.line else f"block '{seg.block}'"
+
+
+def _played_text(shot, act, rep):
+    """(what the synth plays during the pulse, the other write's SourcePos or None, the hint's first part)."""
+    fname = f"{shot.rig.drives[rep.drive].channel}.freq"
+    if rep.freq_span_hz > 0:
+        other = rep.other_writes[0] if rep.other_writes else _writer(shot, fname, act.t1)
+        where = f" ({other.action} at {_line(other)})" if other is not None else ""
+        return (f"drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} at the middle of the pulse, but its synth "
+                f"changes by {fmt_freq(rep.freq_span_hz)} during it{where}", other,
+                f"move the write to '{fname}'{where} out of the pulse; the pulse wants")
+    if "frequency" in act.args:
+        return f"drive '{rep.drive}' at {fmt_freq(rep.frequency_hz, 10)}", None, "set"
+    seg = _writer(shot, fname, act.t0)
+    whence = f"set by the {seg.action} at {_line(seg)}" if seg is not None else "its synth's idle frequency"
+    return (f"clock pulse without 'frequency:': drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} "
+            f"({whence})", seg, "add")
+
+
 @rule(PULSE_DETUNED, stage="physics")
 def pulse_detuned(shot):
     for act in pulses(shot):
         rep = pulse_analysis(shot, act)
-        if not rep or rep.detuning_source != "frequency" or rep.transfer is None:
+        if not rep or rep.detuning_source not in ("frequency", "played") or rep.transfer is None:
             continue
         p, p0 = rep.transfer, rep.intended_transfer
         if abs(p - p0) > max(TRANSFER_TOLERANCE * p0, TRANSFER_FLOOR):
             fw = pulse_fourier_width(shot, act)
             initial, final = rep.pair
             target = rep.resonance_hz + rep.intended_detuning_hz
-            yield make(PULSE_DETUNED, f"drive '{rep.drive}' at {fmt_freq(act.args['frequency'], 10)} is "
-                       f"{fmt_freq(rep.detuning_hz)} from the {fmt_state(*initial)} -> {fmt_state(*final)} line at "
-                       f"{fmt_freq(rep.resonance_hz, 10)} ({bias(shot) * 1e4:.4g} G bias); transfer {p:.3g} instead of "
-                       f"{p0:.3g}" + (f"; Fourier width {fmt_freq(fw)}" if fw else ""), act.pos, block=act.block,
-                       time_s=act.t0, hint=f"set frequency: {target:.10g} Hz",
-                       data={"detuning_hz": rep.detuning_hz, "transfer": p, "intended_transfer": p0})
+            data = {"detuning_hz": rep.detuning_hz, "transfer": p, "intended_transfer": p0}
+            if rep.detuning_source == "frequency":
+                what, other, fix = f"drive '{rep.drive}' at {fmt_freq(act.args['frequency'], 10)}", None, "set"
+            else:
+                what, other, fix = _played_text(shot, act, rep)
+            if other is not None:
+                data.update(other_line=other.pos.line, other_column=other.pos.column)
+            yield make(PULSE_DETUNED, f"{what} is {fmt_freq(rep.detuning_hz)} from the {fmt_state(*initial)} -> "
+                       f"{fmt_state(*final)} line at {fmt_freq(rep.resonance_hz, 10)} ({bias(shot) * 1e4:.4g} G bias); "
+                       f"transfer {p:.3g} instead of {p0:.3g}" + (f"; Fourier width {fmt_freq(fw)}" if fw else ""),
+                       act.pos, block=act.block, time_s=act.t0, hint=f"{fix} frequency: {target:.10g} Hz", data=data)
 
 
 @rule(SWEEP_NOT_ADIABATIC, stage="physics")

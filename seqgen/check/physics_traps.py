@@ -15,9 +15,9 @@ from ..predict.cloud import (aperture_reach, focus_offset, focus_reach, image_pr
                              view_reach)
 from ..predict.species import gaussian_beams, species, trap_beams
 from ..predict.text import size_text, who, why_there
-from ..predict.traps import held, trap_beam_shifts, trap_ramps, trap_stage_prediction
+from ..predict.played import off_floor, played
+from ..predict.traps import held, trap_beam_shifts, trap_writes, write_prediction
 from ..textfmt import fmt_length, fmt_temperature, fmt_time, fmt_vec
-from ..values import value_at
 from .rules import rule
 
 
@@ -44,23 +44,47 @@ def repulsive_trap_beam(shot):
                          "polarizability_au": sh.polarizability_au})
 
 
-@rule(TRAP_LOST, stage="physics")
-def trap_lost(shot):
+def _what(w) -> str:
+    """The write in words: "ramp of 'a'", "ramps of 'a', 'b'", "set of 'a'"."""
+    kind = "ramp" if w.t1 > w.t0 else "set"
+    names = ", ".join(f"'{b}'" for b in w.beams)
+    return f"{kind}{'s' if len(w.beams) > 1 else ''} of {names}"
+
+
+def _others(w):
+    """(text naming the writes that override a stretch, extra data) for a finding on trap write w."""
+    if not w.others:
+        return "", {}
+    o = w.others[0]
+    where = f"line {o.pos.line}" if o.pos.line else f"block '{o.block}'"
+    return (f" (as played: the {o.action} of '{o.output}' at {where} overrides it at t = {fmt_time(o.t0, 6, unit='ms')})",
+            {"other_line": o.pos.line, "other_column": o.pos.column})
+
+
+def _writes(shot):
+    """(trap write, its TrapStage) for every write to trap beams, with a species."""
     if species(shot) is None:
         return
+    for w in trap_writes(shot):
+        yield w, write_prediction(shot, w)
+
+
+@rule(TRAP_LOST, stage="physics")
+def trap_lost(shot):
     repels = {sh.beam for sh in trap_beam_shifts(shot) if sh.repulsive}
-    for act in trap_ramps(shot):
-        rep = trap_stage_prediction(shot, act)
+    for w, rep in _writes(shot):
         lost = np.nonzero(rep.depth_g <= 0)[0]
         if len(lost):
             t = float(rep.times[lost[0]])
-            beam = act.args['beam']
+            over, data = _others(w)
+            power = ", ".join(f"'{b}' {played(shot, shot.rig.beams[b].power_channel, t)[0] * 1e3:.4g} mW" for b in w.beams)
             # more power of a repulsive beam only pushes harder: point at the wavelength instead
-            hint = (f"'{beam}' repels the atoms (physics.repulsive-trap-beam): more power will not hold them; use a "
-                    f"wavelength red of the D1 line" if beam in repels else "end the ramp at a higher power")
+            hint = (f"'{w.beams[0]}' repels the atoms (physics.repulsive-trap-beam): more power will not hold them; use a "
+                    f"wavelength red of the D1 line" if w.beams[0] in repels else
+                    ("end the ramp at a higher power" if w.t1 > w.t0 else "set a higher power"))
             yield make(TRAP_LOST, f"the trap no longer holds {shot.sample.species} against gravity from "
-                       f"t = {fmt_time(t, 6, unit='ms')} (power of '{beam}' {value_at(shot, act.args['output'], t)[0] * 1e3:.4g} mW)",
-                       act.pos, block=act.block, time_s=t, hint=hint)
+                       f"t = {fmt_time(t, 6, unit='ms')} (power of {power}){over}",
+                       w.pos, block=w.block, time_s=t, hint=hint, data=data or None)
 
 
 # warn when the trap light alone would add the sample's whole temperature over a ramp (common practice, no
@@ -70,35 +94,36 @@ HEATING_LIMIT = 1.0
 
 @rule(TRAP_HEATING, stage="physics")
 def trap_heating(shot):
-    if shot.sample is None or not shot.sample.temperature_k or species(shot) is None:
+    if shot.sample is None or not shot.sample.temperature_k:
         return
     temp = shot.sample.temperature_k
-    for act in trap_ramps(shot):
-        rep = trap_stage_prediction(shot, act)
+    for w, rep in _writes(shot):
         if rep.heating > HEATING_LIMIT * temp:
+            over, data = _others(w)
             yield make(TRAP_HEATING, f"photon scattering from the trap light heats {shot.sample.species} by "
-                       f"{fmt_temperature(rep.heating)} during the ramp of '{act.args['beam']}' (up to "
+                       f"{fmt_temperature(rep.heating)} during the {_what(w)} (up to "
                        f"{fmt_temperature(rep.heating_rate)}/s at the trap minimum), more than the sample's "
-                       f"{fmt_temperature(temp)}", act.pos, block=act.block, time_s=act.t0,
+                       f"{fmt_temperature(temp)}{over}", w.pos, block=w.block, time_s=w.t0,
                        hint="use a trap wavelength farther from the D lines (e.g. 1064 nm), a shorter ramp or less power",
-                       data={"heating_k": rep.heating, "heating_rate_k_s": rep.heating_rate, "temperature_k": temp})
+                       data={"heating_k": rep.heating, "heating_rate_k_s": rep.heating_rate, "temperature_k": temp,
+                             **data})
 
 
 @rule(NONADIABATIC_RAMP, stage="physics")
 def nonadiabatic_ramp(shot):
-    for act in trap_ramps(shot) if species(shot) else ():
-        rep = trap_stage_prediction(shot, act)
+    for w, rep in _writes(shot):
         exc = rep.excitation
         if exc is None:
             continue
         worst = max(exc)
         if worst > shot.limits.max_excitation:
             axis = int(np.argmax(exc))
-            yield make(NONADIABATIC_RAMP, f"ramp of '{act.args['beam']}' leaves {worst:.3g} of the energy above "
+            over, data = _others(w)
+            yield make(NONADIABATIC_RAMP, f"{_what(w)} leaves {worst:.3g} of the energy above "
                        f"adiabatic on its axis {axis + 1} (limit {shot.limits.max_excitation:g}); max |d omega/dt|/omega^2 = "
-                       f"{rep.adiabaticity:.3g}", act.pos, block=act.block, time_s=act.t0,
+                       f"{rep.adiabaticity:.3g}{over}", w.pos, block=w.block, time_s=w.t0,
                        hint="make the ramp longer or smoother (minimum_jerk / smooth shapes)",
-                       data={"excitation": worst, "adiabaticity": rep.adiabaticity})
+                       data={"excitation": worst, "adiabaticity": rep.adiabaticity, **data})
 
 
 def _way_out(shot, t):
@@ -107,7 +132,8 @@ def _way_out(shot, t):
     d = held(species(shot), tuple(beams)).escape if beams else None
     if d is None:
         return ""
-    for b, g in zip([b for b in trap_beams(shot) if value_at(shot, b.power_channel, [t])[0] > 0], beams):
+    on = [b for b in trap_beams(shot) if played(shot, b.power_channel, [t])[0] > off_floor(shot, b.power_channel)]
+    for b, g in zip(on, beams):  # the same beams, in the same order, as gaussian_beams
         k = np.asarray(g.direction)
         if abs(float(d @ k)) > np.cos(np.radians(15)):
             axis = "xyz"[int(np.argmax(np.abs(k)))] if np.max(np.abs(k)) > 0.99 else fmt_vec(k, 2)
@@ -117,16 +143,17 @@ def _way_out(shot, t):
 
 @rule(SHALLOW_TRAP, stage="physics")
 def shallow_trap(shot):
-    if shot.sample is None or not shot.sample.temperature_k or species(shot) is None:
+    if shot.sample is None or not shot.sample.temperature_k:
         return
-    for act in trap_ramps(shot):
-        rep = trap_stage_prediction(shot, act)
+    for w, rep in _writes(shot):
         eta = rep.eta
         if eta is not None and 0 < eta < shot.limits.min_eta:
-            yield make(SHALLOW_TRAP, f"after the ramp of '{act.args['beam']}' the trap is only {eta:.3g} k_B T deep "
+            over, data = _others(w)
+            yield make(SHALLOW_TRAP, f"after the {_what(w)} the trap is only {eta:.3g} k_B T deep "
                        f"for T = {fmt_temperature(shot.sample.temperature_k)} (limit {shot.limits.min_eta:g})"
-                       f"{_way_out(shot, float(rep.times[-1]))}", act.pos,
-                       block=act.block, time_s=act.t1, hint="end at a higher power, or accept it if spilling is intended")
+                       f"{_way_out(shot, float(rep.times[-1]))}{over}", w.pos,
+                       block=w.block, time_s=w.t1, hint="end at a higher power, or accept it if spilling is intended",
+                       data=data or None)
 
 
 def _worst(pred, metric):

@@ -3,8 +3,9 @@ minimisations, by content across shots). Predictions carry numbers, not findings
 `seqgen.check` read them and decide what to report; `report_rows` turns them into the physics notes that
 `show --physics`, the plot and the HTML report print.
 
-Modules by subject, each importing only those before it: cache, species, traps, magnetic, states, pushes,
-cloud, barrier, imaging, text (words for the numbers), report.
+Modules by subject, each importing only those before it: cache, played (what the hardware plays: the
+compiled tables read back in physical units, which every prediction reads), species, traps, states, magnetic,
+pushes, cloud, barrier, imaging, text (words for the numbers), report.
 """
 
 from __future__ import annotations
@@ -15,23 +16,25 @@ from .cloud import (CloudAtImage, ImagePrediction, Separation, SizeUnknown, clou
                     separation_analysis)
 from .imaging import ProbePrediction, probe_analysis
 from .magnetic import HoldPrediction, hold_analysis
+from .played import INTENDED, PLAYED, Track, compiled_shot, played, played_source
 from .pushes import Components, PushPrediction, components_at, push_analysis
 from .report import PhysicsRow, report_rows
 from .species import LevelProblem, gaussian_beams, species
 from .states import (BarrierDrive, Interferometer, Populations, PulsePrediction, SweepPrediction,
                      barrier_drive_analysis, interferometer_analysis, interferometers, populated_states,
                      populations, pulse_analysis, state_fractions, sweep_analysis)
-from .traps import HeldTrap, TrapStage, held, trap_stage, trap_stage_prediction
+from .traps import (HeldTrap, TrapStage, TrapWrite, held, trap_stage, trap_stage_prediction, trap_writes,
+                    write_prediction)
 
 __all__ = [
     "BarrierDrive", "BarrierPrediction", "CloudAtImage", "Components", "HeldTrap", "HoldPrediction",
-    "ImagePrediction", "Interferometer", "LevelProblem", "PhysicsRow", "Populations", "ProbePrediction", "PulsePrediction",
+    "INTENDED", "ImagePrediction", "Interferometer", "PLAYED", "Track", "LevelProblem", "PhysicsRow", "Populations", "ProbePrediction", "PulsePrediction",
     "PushPrediction", "Separation", "SizeUnknown", "SweepPrediction", "TrapStage",
     "barrier_analysis", "barrier_drive_analysis", "clear_caches", "cloud_along_path", "cloud_at_image",
-    "components_at", "gaussian_beams", "held", "hold_analysis", "image_prediction", "incident_velocity",
-    "interferometer_analysis", "interferometers", "per_shot_cache", "populated_states", "populations",
+    "compiled_shot", "components_at", "gaussian_beams", "held", "hold_analysis", "image_prediction", "incident_velocity",
+    "interferometer_analysis", "interferometers", "per_shot_cache", "played", "played_source", "populated_states", "populations",
     "probe_analysis", "pulse_analysis", "push_analysis", "report_rows", "separation_analysis", "species",
-    "state_fractions", "sweep_analysis", "trap_stage", "trap_stage_prediction",
+    "state_fractions", "sweep_analysis", "trap_stage", "trap_stage_prediction", "trap_writes", "write_prediction", "TrapWrite",
 ]
 
 

@@ -1,5 +1,10 @@
 """The trap of a `magnetic_hold`: built from every rig coil's current at the start of the hold (after
-`ramp_on`), read from the shot's segments.
+`ramp_on`), as the hardware plays it (`predict.played`), for the states that hold atoms then.
+
+* Held states: the hold's `state:` when given, else the states that hold atoms at the start of the hold
+  (`predict.states.populated_states`: after a pi pulse, the state it transferred the atoms to), else the
+  sample's. The trap is analysed for the most populated state the trap can hold (else the most populated
+  one); other populated states it cannot hold are listed in `lost_states`.
 
 * Magnetic moment = -dE/dB (J/T), from `seqgen.physics.zeeman.magnetic_moment` (Breit-Rabi formula): a
   NEGATIVE moment is a low-field seeker, which a field minimum holds with potential energy |moment| |B|; a
@@ -22,9 +27,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import constants as sc
 
-from ..values import value_at
 from .cache import per_shot_cache
-from .species import MU_B, LevelProblem, level_problem, species, unevaluable
+from .played import off_floor, played, played_source
+from .species import MU_B, LevelProblem, level_problem, sample_state, species, unevaluable
+from .states import populated_states, state_fractions
 
 UP = (0.0, 0.0, 1.0)
 MIN_MOMENT = 0.01 * MU_B  # below this a field minimum holds nothing (as for physics.push-no-force)
@@ -35,7 +41,9 @@ class HoldPrediction:
     """One magnetic hold, SI numbers. kind: "quadrupole", "ioffe_pritchard" or "unknown" (bad_axes: coils
     whose axis is no direction). unconfined: "axial" or "radial" when the Ioffe-Pritchard field does not
     confine; field_zero: its bias B0 <= 0. bad_state: why the held state has no moment
-    (species.LevelProblem). Fields that do not apply are None."""
+    (species.LevelProblem). lost_states: ((state, moment J/T, fraction of the atoms), ...) of the other
+    populated states the trap cannot hold; source: "played" (currents read from the compiled tables) or
+    "intended" (some coil's output could not be compiled). Fields that do not apply are None."""
 
     t_hold: float
     duration: float
@@ -70,6 +78,8 @@ class HoldPrediction:
     larmor: float | None = None
     rotation: float | None = None
     adiabaticity: float | None = None
+    lost_states: tuple = ()
+    source: str = "played"
 
 
 def holds(shot):
@@ -100,25 +110,63 @@ def hold_analysis(shot, act) -> HoldPrediction:
     return HoldPrediction(**rep)
 
 
+def _settled(shot, output, t):
+    """A tick of the output's device after t: a write at t is played by then (its row sits at the tick nearest
+    t - latency, so it may appear up to half a tick late)."""
+    out = shot.rig.outputs[output]
+    dev = shot.rig.devices.get(out.device)
+    return t + (dev.tick_s if dev is not None else 0.0)
+
+
+def held_states(shot, act) -> tuple:
+    """The states a hold holds (see the module notes), most populated first; () without any state."""
+    st = act.args.get("state")
+    if st is not None:
+        return (tuple(int(x) for x in st),)
+    pop = populated_states(shot, act.t0) if species(shot) is not None else []
+    if pop:
+        return tuple(pop)
+    state = sample_state(shot)
+    return (state,) if state else ()
+
+
+def _pick_state(sp, states, bottom):
+    """(the state to analyse, ((state, moment), ...) of the others that cannot be held)."""
+    if sp is None or len(states) < 2:
+        return (states[0] if states else None), ()
+    moments = []
+    for st in states:
+        try:
+            moments.append(None if level_problem(sp, *st) else _moment(sp, st, bottom))
+        except (ValueError, OverflowError, TypeError):
+            moments.append(None)
+    held_ok = [i for i, m in enumerate(moments) if m is not None and m < -MIN_MOMENT]
+    main = held_ok[0] if held_ok else 0
+    lost = tuple((states[i], m) for i, m in enumerate(moments) if i != main and m is not None and m >= -MIN_MOMENT)
+    return states[main], lost
+
+
 def _hold(shot, act) -> dict:
     from ..physics import magnetic_trap as mt
 
     sp = species(shot)
-    state = act.args.get("state")
-    if state is None and shot.sample is not None and shot.sample.F is not None and shot.sample.mF is not None:
-        state = (int(shot.sample.F), int(shot.sample.mF))
+    states = held_states(shot, act)
     t_hold = act.t0 + act.args.get("ramp_on", 0.0)
     coils = []
+    channels = []
     for coil in shot.rig.coils.values():
         if coil.current_channel not in shot.rig.outputs:
             continue
-        amps = float(value_at(shot, coil.current_channel, t_hold)[0])
-        if amps != 0 and math.isfinite(amps):
+        channels.append(coil.current_channel)
+        amps = float(played(shot, coil.current_channel, _settled(shot, coil.current_channel, t_hold))[0])
+        if abs(amps) > off_floor(shot, coil.current_channel) and math.isfinite(amps):
             coils.append((coil, amps))
     rep = {"t_hold": t_hold, "duration": act.args["duration"], "coils": tuple((c.name, i) for c, i in coils),
-           "state": state, "species": sp.name if sp else None}
+           "state": states[0] if states else None, "species": sp.name if sp else None,
+           "source": played_source(shot, *channels)}
     beams_on = [b.name for b in shot.rig.beams.values()
-                if b.role == "trap" and float(value_at(shot, b.power_channel, t_hold)[0]) > 0]
+                if b.role == "trap" and float(played(shot, b.power_channel, _settled(shot, b.power_channel, t_hold))[0])
+                > off_floor(shot, b.power_channel)]
     rep["optical"] = tuple(beams_on)
     bad_axes = [c.name for c, _ in coils if not (np.all(np.isfinite(c.axis)) and np.any(np.asarray(c.axis) != 0))]
     if bad_axes:  # the rig schema takes any three numbers; a zero axis gives no direction
@@ -143,6 +191,11 @@ def _hold(shot, act) -> dict:
                    weakest_gradient=float(eig.min()), strongest_gradient=float(eig.max()),
                    axial=tuple((c.name, g) for c, g in grads))
         bottom = 0.0
+    state, lost = _pick_state(sp, states, bottom)
+    if lost:
+        fractions = state_fractions(shot, act.t0) or {}
+        rep["lost_states"] = tuple((st, m, fractions.get(st, 0.0)) for st, m in lost)
+    rep["state"] = state
     if sp is None or state is None:
         return rep
     try:

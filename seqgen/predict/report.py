@@ -139,7 +139,8 @@ def _pulse_items(shot, act, rep):
         a, b = rep.pair
         items.append(f"{fmt_state(*a)} -> {fmt_state(*b)} line {fmt_freq(rep.line_hz + rep.light_shift_hz, 10)} at "
                      f"{bias(shot) * 1e4:.4g} G")
-    items.append(f"detuning {fmt_freq(rep.detuning_hz)}" + ("" if rep.detuning_source == "frequency"
+    items.append(f"detuning {fmt_freq(rep.detuning_hz)}" + ("" if rep.detuning_source == "frequency" or (
+        rep.detuning_source == "played" and "frequency" in act.args)
                                                               else f" ({tx.detuning_source_text(rep)})"))
     if rep.transfer is not None:
         items.append(f"transfer {rep.transfer:.4g}" + (f" (intended {rep.intended_transfer:.4g})"

@@ -8,7 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import constants as sc
 
-from ..values import value_at
+from .played import off_floor, played
 
 G_N = 9.80665  # standard gravity, m/s^2 (exact, SI Brochure)
 MU_B = sc.physical_constants["Bohr magneton"][0]
@@ -31,15 +31,17 @@ def trap_beams(shot):
 
 
 def gaussian_beams(shot, times):
-    """For each time, the list of GaussianBeam of the trap beams that are on."""
+    """For each time, the list of GaussianBeam of the trap beams that are on, at the powers the hardware plays
+    (`predict.played`)."""
     from ..physics.optical import GaussianBeam
 
     beams = trap_beams(shot)
-    powers = {b.name: value_at(shot, b.power_channel, times) for b in beams}
+    powers = {b.name: played(shot, b.power_channel, times) for b in beams}
+    floors = {b.name: off_floor(shot, b.power_channel) for b in beams}  # within one DAC step of zero: off
     out = []
     for i in range(len(times)):
         on = [GaussianBeam(float(powers[b.name][i]), b.waist_m, b.wavelength_m, b.direction, b.position_m,
-                           b.waist_y_m) for b in beams if powers[b.name][i] > 0]
+                           b.waist_y_m) for b in beams if powers[b.name][i] > floors[b.name]]
         out.append(on)
     return out
 

@@ -21,8 +21,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
-from ..values import value_at
 from .cache import per_shot_cache
+from .played import played, played_source, track
 from .species import (NO_PARTNER, LevelError, LevelProblem, amplitude_output, bias, coupling_factor, level_problem,
                       line, sample_state, species, transition_pair, unevaluable)
 
@@ -55,9 +55,13 @@ def pulses(shot):
 class PulsePrediction:
     """One clock pulse. area (rad) = integral of the Rabi frequency; pair (initial, final) or None (bad_level:
     the declared state that is not a ground level); line_hz, slope_hz_per_t: Breit-Rabi line and its field
-    sensitivity; detuning_source: "frequency" (from the pulse's frequency against resonance_hz), "declared"
-    (the pulse's detuning), "unknown_line" or "assumed" (on resonance); transfer: final-state population
-    (None at zero amplitude), intended_transfer at the intended detuning."""
+    sensitivity; detuning_source: "played" (the frequency the drive's synth plays during the pulse, whether
+    or not the pulse writes `frequency:`, against resonance_hz), "frequency" (the pulse's frequency, for a
+    drive without a frequency output), "declared" (the pulse's detuning), "unknown_line" or "assumed" (on
+    resonance); transfer: final-state population (None at zero amplitude), intended_transfer at the intended
+    detuning. frequency_hz: the frequency played at the pulse's middle (freq_span_hz: its range over the
+    pulse, 0 when it holds); other_writes: the segments of other actions that write the synth's frequency
+    during the pulse; source: "played" (amplitude and frequency read from the compiled tables) or "intended"."""
 
     drive: str
     amp_output: str
@@ -80,6 +84,10 @@ class PulsePrediction:
     resonance_hz: float | None = None
     transfer: float | None = None
     intended_transfer: float | None = None
+    frequency_hz: float | None = None
+    freq_span_hz: float = 0.0
+    other_writes: tuple = ()
+    source: str = "played"
 
 
 def _propagate(shot, amp_name, rabi_per_rad_s, t0, t1, detuning_hz, constant, peak):
@@ -88,16 +96,55 @@ def _propagate(shot, amp_name, rabi_per_rad_s, t0, t1, detuning_hz, constant, pe
 
     if constant:
         return bloch_propagate(rabi_per_rad_s * peak, TWO_PI * detuning_hz, t0, t1).excited_population
-    breaks = sorted({x for seg in shot.segments if seg.output == amp_name for x in (seg.t0, seg.t1) if t0 < x < t1})
+    breaks = _breaks(shot, (amp_name,), t0, t1)
     if breaks or abs(TWO_PI * detuning_hz) * (t1 - t0) > 1e5:
-        # a jump inside the pulse (another write to the amplitude), which the smooth integrator cannot step
-        # over, or far off resonance (over 1e5 rad of detuning phase: millions of steps): exact SU(2)
-        # propagators on 4096 pieces of constant amplitude, with the writes on piece edges, instead
+        # a jump inside the pulse (another write to the amplitude, a played step), which the smooth integrator
+        # cannot step over, or far off resonance (over 1e5 rad of detuning phase: millions of steps): exact
+        # SU(2) propagators on 4096 pieces of constant amplitude, with the steps on piece edges, instead
         edges = np.unique(np.concatenate([np.linspace(t0, t1, 4097), breaks]))
-        rabi = rabi_per_rad_s * np.asarray(value_at(shot, amp_name, 0.5 * (edges[1:] + edges[:-1])), dtype=float)
+        rabi = rabi_per_rad_s * np.asarray(played(shot, amp_name, 0.5 * (edges[1:] + edges[:-1])), dtype=float)
         return bloch_propagate(rabi, TWO_PI * detuning_hz, t0, t1, edges=edges).excited_population
-    return bloch_propagate(lambda t: rabi_per_rad_s * value_at(shot, amp_name, t), TWO_PI * detuning_hz, t0, t1,
+    return bloch_propagate(lambda t: rabi_per_rad_s * played(shot, amp_name, t), TWO_PI * detuning_hz, t0, t1,
                            tol=1e-9).excited_population
+
+
+def _breaks(shot, outputs, t0, t1) -> list:
+    """Times inside (t0, t1) where an output's intended or played value jumps or kinks."""
+    out = {x for seg in shot.segments if seg.output in outputs for x in (seg.t0, seg.t1) if t0 < x < t1}
+    for name in outputs:
+        out.update(float(x) for x in track(shot, name).changes(t0, t1))
+    return sorted(out)
+
+
+def _propagate_played(shot, amp_name, freq_name, rabi_per_rad_s, t0, t1, resonance_hz):
+    """Final-state population after a pulse whose played frequency changes during it: exact SU(2) propagators
+    on pieces of constant amplitude and frequency, with every played step on a piece edge."""
+    from ..physics.drive import bloch_propagate
+
+    edges = np.unique(np.concatenate([np.linspace(t0, t1, 4097), _breaks(shot, (amp_name, freq_name), t0, t1)]))
+    mid = 0.5 * (edges[1:] + edges[:-1])
+    rabi = rabi_per_rad_s * np.asarray(played(shot, amp_name, mid), dtype=float)
+    det = TWO_PI * (np.asarray(played(shot, freq_name, mid), dtype=float) - resonance_hz)
+    return bloch_propagate(rabi, det, t0, t1, edges=edges).excited_population
+
+
+def frequency_output(shot, drive):
+    """Name of the output that carries a drive's frequency (its synth's `.freq`), or None."""
+    name = f"{drive.channel}.freq"
+    return name if name in shot.rig.outputs else None
+
+
+def other_writes(shot, output, act):
+    """Writes to `output` that change it during the action [t0, t1) other than the action's own: segments."""
+    found = []
+    for seg in shot.segments:
+        if seg.output != output or (seg.block == act.block and seg.action.split(":")[0] == act.kind
+                                    and seg.t0 == act.t0):
+            continue
+        if (seg.kind == "set" and act.t0 <= seg.t0 < act.t1) or (seg.kind != "set" and seg.t0 < act.t1
+                                                                   and seg.t1 > act.t0):
+            found.append(seg)
+    return tuple(found)
 
 
 @per_shot_cache(lambda shot, act: ("state-pulse", act.index, act.t0))
@@ -109,7 +156,7 @@ def pulse_analysis(shot, act) -> PulsePrediction | None:
     if drive is None or amp_name is None or not act.t1 > act.t0:
         return None
     t, w = pulse_nodes(act.t0, act.t1)
-    amp = value_at(shot, amp_name, t)
+    amp = played(shot, amp_name, t)
     peak = float(np.max(np.abs(amp)))
     factor = coupling_factor(shot, drive, act.args.get("transition"))  # 1.0 unless the rig states polarisation
     rabi_per = TWO_PI * drive.rabi_per_amplitude_hz * factor
@@ -132,7 +179,18 @@ def pulse_analysis(shot, act) -> PulsePrediction | None:
         pair, rep["bad_level"] = None, unevaluable(sp, pair[0] if pair else None, exc)
     rep["pair"] = pair
     rep["intended_detuning_hz"] = float(act.args.get("detuning", 0.0))
-    if pair and "frequency" in act.args:
+    fname = frequency_output(shot, drive)
+    rep["source"] = played_source(shot, amp_name, *((fname,) if fname else ()))
+    freqs = None
+    if fname:
+        freqs = played(shot, fname, np.concatenate(([act.t0], t, [act.t1 - 1e-9 * (act.t1 - act.t0)])))
+        rep["frequency_hz"] = float(played(shot, fname, 0.5 * (act.t0 + act.t1))[0])
+        rep["freq_span_hz"] = float(np.ptp(freqs))
+        rep["other_writes"] = other_writes(shot, fname, act)
+    if pair and fname:
+        rep["resonance_hz"] = rep["line_hz"] + drive.light_shift_hz
+        rep["detuning_hz"], rep["detuning_source"] = rep["frequency_hz"] - rep["resonance_hz"], "played"
+    elif pair and "frequency" in act.args:
         rep["resonance_hz"] = rep["line_hz"] + drive.light_shift_hz
         rep["detuning_hz"], rep["detuning_source"] = act.args["frequency"] - rep["resonance_hz"], "frequency"
     elif "detuning" in act.args:
@@ -143,7 +201,10 @@ def pulse_analysis(shot, act) -> PulsePrediction | None:
         rep["detuning_hz"], rep["detuning_source"] = 0.0, "assumed"
     if peak > 0:
         args = (shot, amp_name, rabi_per, act.t0, act.t1)
-        rep["transfer"] = _propagate(*args, rep["detuning_hz"], rep["constant"], peak)
+        if rep["detuning_source"] == "played" and rep["freq_span_hz"] > 0:  # the synth changes during the pulse
+            rep["transfer"] = _propagate_played(shot, amp_name, fname, rabi_per, act.t0, act.t1, rep["resonance_hz"])
+        else:
+            rep["transfer"] = _propagate(*args, rep["detuning_hz"], rep["constant"], peak)
         rep["intended_transfer"] = (rep["transfer"] if rep["detuning_hz"] == rep["intended_detuning_hz"]
                                     else _propagate(*args, rep["intended_detuning_hz"], rep["constant"], peak))
     return PulsePrediction(**rep)
@@ -161,7 +222,7 @@ def pulse_fourier_width(shot, act) -> float | None:
         if rep.constant:
             return fourier_width_hz("square", rep.duration)
         name, t0, peak = rep.amp_output, act.t0, rep.peak
-        return fourier_width_hz(lambda t: value_at(shot, name, t0 + t) / peak, rep.duration)
+        return fourier_width_hz(lambda t: played(shot, name, t0 + t) / peak, rep.duration)
     except ValueError:
         return None
 
@@ -246,7 +307,7 @@ def sweeps(shot):
             continue
         for seg in shot.segments:
             if seg.output == fname and seg.kind == "ramp" and seg.action == "sweep" and seg.t1 > seg.t0:
-                if value_at(shot, amp, 0.5 * (seg.t0 + seg.t1))[0] > 0:
+                if played(shot, amp, 0.5 * (seg.t0 + seg.t1))[0] > 0:
                     out.append((drive, seg))
     return out
 
@@ -270,6 +331,28 @@ class SweepPrediction:
     rabi_hz: float | None = None
     max_rate_hz_s: float | None = None
     bloch_transfer: float | None = None
+    source: str = "played"
+
+
+def _rate_at(shot, output, tc, t0, t1) -> float:
+    """d f/dt (Hz/s) of the played frequency at tc: the least-squares slope of the played rows within 5 % of
+    the sweep (at least three rows) about tc; a held output steps, so its rows stand for the curve (each row
+    holds the middle of what the curve does while it holds, so a straight sweep's rows lie on a line)."""
+    tr = track(shot, output)
+    if tr.source == "played":
+        inside = (tr.times >= t0) & (tr.times <= t1)
+        tt, ff = tr.times[inside], tr.phys[inside]
+        if len(tt) >= 3:
+            half = 0.05 * (t1 - t0)
+            while True:
+                near = np.abs(tt - tc) <= half
+                if np.count_nonzero(near) >= 3 or half > t1 - t0:
+                    break
+                half *= 2
+            if np.count_nonzero(near) >= 2 and np.ptp(tt[near]) > 0:
+                return float(np.polyfit(tt[near], ff[near], 1)[0])
+    h = 1e-6 * (t1 - t0)
+    return float(np.diff(played(shot, output, [tc - h, tc + h]))[0] / (2 * h))
 
 
 @per_shot_cache(lambda shot, drive, seg: ("state-sweep", seg.output, seg.t0))
@@ -285,31 +368,35 @@ def sweep_analysis(shot, drive, seg) -> SweepPrediction | None:
     res = nu + drive.light_shift_hz
     amp = amplitude_output(shot, drive)
     rabi_per = TWO_PI * drive.rabi_per_amplitude_hz * coupling_factor(shot, drive)
-    rep = dict(drive=drive.name, pair=pair, resonance_hz=res, f0=seg.v0, f1=seg.v1, duration=seg.t1 - seg.t0)
-    lo, hi = sorted((seg.v0, seg.v1))
-    rep["crosses"] = lo < res < hi
+    t0, t1 = seg.t0, seg.t1
+    f0, f1 = (float(x) for x in played(shot, seg.output, [t0, t1]))
+    rep = dict(drive=drive.name, pair=pair, resonance_hz=res, f0=f0, f1=f1, duration=t1 - t0,
+               source=played_source(shot, seg.output, amp))
+    breaks = _breaks(shot, (seg.output, amp), t0, t1)
+    tg = np.unique(np.concatenate([np.linspace(t0, t1, 2001), breaks]))
+    fg = played(shot, seg.output, tg) - res
+    rep["crosses"] = bool(np.min(fg) < 0 < np.max(fg))
     if rep["crosses"]:
-        tg = np.linspace(seg.t0, seg.t1, 2001)
-        fg = value_at(shot, seg.output, tg) - res
         j = int(np.nonzero(np.sign(fg[1:]) != np.sign(fg[:-1]))[0][0])
-        tc = optimize.brentq(lambda t: float(value_at(shot, seg.output, t)[0] - res), tg[j], tg[j + 1], xtol=1e-15)
-        h = 1e-6 * rep["duration"]
-        rate = float(np.diff(value_at(shot, seg.output, [tc - h, tc + h]))[0] / (2 * h))  # Hz/s
-        rabi = rabi_per * float(value_at(shot, amp, tc)[0])
+        tc = optimize.brentq(lambda t: float(played(shot, seg.output, t)[0] - res), tg[j], tg[j + 1], xtol=1e-15)
+        rate = _rate_at(shot, seg.output, tc, t0, t1)  # Hz/s
+        rabi = rabi_per * float(played(shot, amp, tc)[0])
         rep.update(t_cross=tc, rate_hz_s=rate, rabi_hz=rabi / TWO_PI,
                    lz_transfer=1.0 - float(landau_zener_probability(rabi, TWO_PI * rate)))
         # the sweep that gives LZ_MIN_TRANSFER at this Rabi frequency: pi Omega^2 / (2 rate) = -ln(1 - P)
         rep["max_rate_hz_s"] = math.pi * rabi**2 / (2 * -math.log(1 - LZ_MIN_TRANSFER)) / TWO_PI
     else:
         rep["lz_transfer"] = 0.0
-    w_max = TWO_PI * max(abs(seg.v0 - res), abs(seg.v1 - res)) + rabi_per * float(np.max(value_at(shot, amp, np.linspace(seg.t0, seg.t1, 65))))
+    w_max = TWO_PI * float(np.max(np.abs(fg))) + rabi_per * float(np.max(np.abs(played(shot, amp, tg))))
     if w_max * rep["duration"] < MAX_BLOCH_ROTATION:
-        try:
-            rep["bloch_transfer"] = bloch_propagate(lambda t: rabi_per * value_at(shot, amp, t),
-                                                    lambda t: TWO_PI * (value_at(shot, seg.output, t) - res),
-                                                    seg.t0, seg.t1, tol=1e-7).excited_population
-        except RuntimeError:
-            pass
+        # exact SU(2) propagators on pieces of constant played amplitude and frequency (each rotating by
+        # under about 0.3 rad), with the played steps on piece edges
+        n = int(min(max(4096, math.ceil(w_max * rep["duration"] / 0.3)), 1 << 19))
+        edges = np.unique(np.concatenate([np.linspace(t0, t1, n + 1), breaks]))
+        mid = 0.5 * (edges[1:] + edges[:-1])
+        rep["bloch_transfer"] = bloch_propagate(rabi_per * played(shot, amp, mid),
+                                                TWO_PI * (played(shot, seg.output, mid) - res),
+                                                t0, t1, edges=edges).excited_population
     return SweepPrediction(**rep)
 
 
@@ -340,6 +427,31 @@ class BarrierDrive:
     offset_hz: float | None = None
     fourier_hz: float | None = None
     tolerance_hz: float | None = None
+    source: str = "played"
+
+
+def _barrier_played(shot, act):
+    """(modulation frequency Hz or None, modulation depth, beam power W, source) that the hardware plays at
+    the middle of a barrier: the modulation channel's frequency (its synth's idle frequency when the barrier
+    writes none), its amplitude as the depth, and the beam's power; the barrier's own numbers where it has no
+    such output."""
+    mid = 0.5 * (act.t0 + act.t1)
+    f_mod, depth, power = act.args.get("mod_frequency"), float(act.args.get("mod_depth", 1.0)), act.args["power"]
+    outs = shot.rig.outputs
+    used = []
+    fname = act.args.get("mod_channel")
+    if fname in outs and outs[fname].phys_unit == "Hz":
+        f_mod = float(played(shot, fname, mid)[0])
+        used.append(fname)
+        amp = f"{outs[fname].channel}.amp"
+        if amp in outs:
+            depth = float(played(shot, amp, mid)[0])
+            used.append(amp)
+    beam = shot.rig.beams.get(act.args["beam"])
+    if beam is not None and beam.power_channel in outs:
+        power = float(played(shot, beam.power_channel, mid)[0])
+        used.append(beam.power_channel)
+    return f_mod, depth, power, played_source(shot, *used)
 
 
 @per_shot_cache(lambda shot, act: ("state-barrier", act.index, act.t0))
@@ -348,12 +460,12 @@ def barrier_drive_analysis(shot, act) -> BarrierDrive | None:
     from ..physics.drive import two_photon_rabi_from_modulated_beam
     from ..physics.optical import modulated_peak_intensity
 
-    f_mod = act.args.get("mod_frequency")
+    f_mod, depth, power, source = _barrier_played(shot, act)
     sp = species(shot)
     beam = shot.rig.beams.get(act.args["beam"])
     if f_mod is None or sp is None or beam is None or not beam.waist_m:
         return None
-    rep = dict(f_mod=f_mod, depth=float(act.args.get("mod_depth", 1.0)))
+    rep = dict(f_mod=f_mod, depth=depth, source=source)
     try:
         pair, why = transition_pair(shot, sp, act.args.get("transition")), None
     except LevelError as exc:
@@ -373,7 +485,7 @@ def barrier_drive_analysis(shot, act) -> BarrierDrive | None:
     if abs(float(m)) > i - 0.5 + 1e-9:  # as seqgen.physics.drive refuses it
         return BarrierDrive(**rep, unsupported="no_coupling", bad_level=LevelProblem(NO_PARTNER, None, m, sp.name, i))
     try:
-        i_peak = float(modulated_peak_intensity(act.args["power"], beam.waist_m, beam.waist_y_m or beam.waist_m, depth))
+        i_peak = float(modulated_peak_intensity(power, beam.waist_m, beam.waist_y_m or beam.waist_m, depth))
         d = two_photon_rabi_from_modulated_beam(i_peak, depth, beam.wavelength_m, m_f=m,
                                                 polarization=1.0, atom=sp)
     except ValueError as exc:

@@ -36,7 +36,7 @@ def detuning_source_text(rep) -> str:
     """How a pulse's detuning was found (PulsePrediction.detuning_source) in words."""
     if rep.detuning_source == "unknown_line":
         return f"line unknown, {level_problem_text(rep.bad_level)}: taken on resonance"
-    return {"frequency": "frequency", "declared": "declared detuning",
+    return {"frequency": "frequency", "played": "the frequency its synth plays", "declared": "declared detuning",
             "assumed": "no frequency given: taken on resonance"}[rep.detuning_source]
 
 

@@ -1,6 +1,7 @@
 """Optical trap stages: the sign of each trap beam's light shift, the trap that the trap beams on at a time
-make (depth with gravity, frequencies), and per `trap_ramp` its frequencies, depth, eta and the excitation
-the ramp leaves."""
+make (depth with gravity, frequencies) at the powers the hardware plays (`predict.played`), and per write
+to trap beams (a `trap_ramp`, plain ramps and sets: `trap_writes`) its frequencies, depth, eta and the
+excitation it leaves."""
 
 from __future__ import annotations
 
@@ -11,6 +12,7 @@ import numpy as np
 from scipy import constants as sc
 
 from .cache import per_shot_cache
+from .played import played_source
 from .species import gaussian_beams, species, trap_beams
 
 N_SAMPLES = 24  # trap evaluations per ramp: frequencies vary smoothly with power
@@ -75,12 +77,16 @@ def held(sp, beams: tuple) -> HeldTrap:
     return HeldTrap(h.depth_j, omegas, h.heating_k_s, escape)
 
 
-def trap_stage(shot, t0, t1, n=N_SAMPLES, heating=False):
-    """(times, frequencies (rad/s, shape (n, 3)), effective depths with gravity (J)) at n times in [t0, t1];
-    with `heating`, the recoil heating rates (K/s) at those times as a fourth item."""
+def trap_stage(shot, t0, t1, n=N_SAMPLES, heating=False, extra=()):
+    """(times, frequencies (rad/s, shape (n, 3)), effective depths with gravity (J)) at n times in [t0, t1]
+    (and at the `extra` times inside it); with `heating`, the recoil heating rates (K/s) at those times as a
+    fourth item."""
     sp = species(shot)
     # just before t1: a release at the ramp's end time must not count as part of the ramp
     times = np.linspace(t0, t1 - 1e-9 * max(1.0, t1 - t0), n)
+    if len(extra):
+        times = np.unique(np.concatenate([times, [x for x in extra if t0 < x < times[-1]]]))
+        n = len(times)
     omegas = np.full((n, 3), np.nan)
     depth_g = np.zeros(n)
     rates = np.zeros(n)
@@ -105,7 +111,7 @@ class TrapStage:
     a temperature), adiabaticity = max |d omega/dt| / omega^2 and excitation E/E_ad - 1 per axis (None when the
     trap is lost somewhere); excitation_is_bound: the excitation is the bound adiabaticity^2, not integrated;
     heating: recoil heating over the ramp (K, trapezoid integral of dT/dt at the minimum) and the largest
-    rate heating_rate (K/s)."""
+    rate heating_rate (K/s); source: whether the powers were read from the compiled tables."""
 
     times: np.ndarray
     omegas: np.ndarray
@@ -116,25 +122,119 @@ class TrapStage:
     excitation_is_bound: bool = False
     heating: float = 0.0
     heating_rate: float = 0.0
+    source: str = "played"  # "intended" when a trap beam's output could not be compiled (predict.played)
 
 
 @per_shot_cache(lambda shot, act: ("trap", act.index))
 def trap_stage_prediction(shot, act) -> TrapStage:
     """Frequencies, depth, eta and excitation of one trap ramp (Ermakov invariant, adiabaticity parameter:
-    seqgen.physics.adiabatic)."""
+    seqgen.physics.adiabatic), as played: a later write to the beam's channel inside the ramp counts."""
+    return span_prediction(shot, act.t0, act.t1)
+
+
+@dataclass(frozen=True)
+class TrapWrite:
+    """A stretch where trap beams' power channels change: a `trap_ramp` (action set), or plain ramps and sets
+    on trap beams' channels (segments: ramps that overlap in time form one stretch, evaluated together with
+    every trap beam on; sets at one instant form a stretch of t0 == t1, looked at just after). beams: the
+    beams written; others: segments of other actions that write those channels inside the stretch (a later
+    set overriding a ramp)."""
+
+    t0: float
+    t1: float
+    beams: tuple
+    segments: tuple
+    pos: object
+    block: str
+    action: object = None
+    others: tuple = ()
+
+
+PLAIN_WRITES = ("ramp", "set")  # plain writes on a trap beam's channel that the trap rules look at
+
+
+@per_shot_cache(lambda shot: ("trap-writes",))
+def trap_writes(shot) -> tuple:
+    """Every TrapWrite of the shot, in time order: each `trap_ramp`, then the plain ramps and sets on trap
+    beams' channels (a set inside a `trap_ramp` of its channel belongs to that ramp, as an override; plain writes
+    that leave no trap beam on are releases and are not looked at)."""
+    beams = {b.power_channel: b.name for b in trap_beams(shot)}
+    segs = [x for x in shot.segments if x.output in beams]
+    out = []
+    ramps = trap_ramps(shot)
+    for act in ramps:
+        ch = act.args.get("output")
+        others = tuple(x for x in segs if x.output == ch and x.action != "trap_ramp" and act.t0 < x.t0 < act.t1)
+        out.append(TrapWrite(act.t0, act.t1, (act.args["beam"],), (), act.pos, act.block, act, others))
+    plain = [x for x in segs if x.action in PLAIN_WRITES and not any(
+        a.args.get("output") == x.output and a.t0 < x.t0 < a.t1 for a in ramps)]
+    groups: list = []
+    for x in sorted(plain, key=lambda x: (x.t0, x.t1, x.pos.line)):
+        last = groups[-1] if groups else None
+        if last and ((x.kind == "ramp" and last[1] > last[0] and last[0] <= x.t0 < last[1])
+                     or (x.kind == "set" and last[0] == last[1] == x.t0)):
+            last[2].append(x)
+            last[1] = max(last[1], x.t1)
+        else:
+            groups.append([x.t0, x.t1, [x]])
+    for t0, t1, members in groups:
+        chans = {x.output for x in members}
+        after = t1 + (_settle(shot, chans) if t1 == t0 else 0.0)
+        on = gaussian_beams(shot, [after])[0]
+        if not on:  # every trap beam off: a release by plain writes
+            continue
+        others = tuple(x for x in segs if x.output in chans and x not in members and t0 < x.t0 < t1)
+        first = members[0]
+        out.append(TrapWrite(t0, t1, tuple(dict.fromkeys(beams[x.output] for x in members)), tuple(members),
+                             first.pos, first.block, None, others))
+    return tuple(sorted(out, key=lambda w: (w.t0, w.t1)))
+
+
+def _settle(shot, channels) -> float:
+    """How long after a set its value is surely played: two ticks of the slowest device involved."""
+    ticks = [shot.rig.devices[shot.rig.outputs[c].device].tick_s for c in channels
+             if shot.rig.outputs[c].device in shot.rig.devices]
+    return 2 * max(ticks, default=1e-6)
+
+
+def write_prediction(shot, w: TrapWrite) -> TrapStage:
+    """The TrapStage of a trap write: over [t0, t1] for a ramp, just after the set for a set."""
+    if w.action is not None and not w.others:
+        return trap_stage_prediction(shot, w.action)
+    if w.others:  # look just after each overriding write too: a set inside a ramp may be a short glitch
+        settle = _settle(shot, {x.output for x in w.others})
+        return span_prediction(shot, w.t0, w.t1, N_SAMPLES, tuple(sorted(x.t0 + settle for x in w.others)))
+    if w.t1 > w.t0:  # plain ramps are not reported row by row: the bound decides whenever it clears the limit
+        return span_prediction(shot, w.t0, w.t1, N_SAMPLES, (), 1.0)
+    return span_prediction(shot, w.t0, w.t0 + _settle(shot, {x.output for x in w.segments}), 1)
+
+
+@per_shot_cache(lambda shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2: ("trap-span", t0, t1, n, extra, bound))
+def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2) -> TrapStage:
+    """Frequencies, depth, eta and excitation of the trap over [t0, t1] (n = 1: the trap at t1 alone; extra:
+    more times inside to look at). The excitation is the bound (adiabaticity parameter)^2 when that is under
+    `bound` x the limit max_excitation, else integrated."""
     from ..physics.adiabatic import adiabaticity_parameter, ermakov_final_energy_ratio
 
-    times, omegas, depth_g, rates = trap_stage(shot, act.t0, act.t1, heating=True)
+    source = played_source(shot, *(b.power_channel for b in trap_beams(shot)))
+    if n == 1:
+        _, omegas, depth_g, rates = trap_stage(shot, t1, t1 + 1e-12, n=1, heating=True)
+        eta = None
+        if shot.sample is not None and shot.sample.temperature_k:
+            eta = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
+        return TrapStage(np.array([t1]), omegas, depth_g, eta, source=source)
+    times, omegas, depth_g, rates = trap_stage(shot, t0, t1, n=n, heating=True, extra=extra)
     heat = (float(np.trapezoid(rates, times)), float(np.max(rates)))
     eta = adiabaticity = excitation = None
     if shot.sample is not None and shot.sample.temperature_k:
         eta = float(depth_g[-1] / (sc.k * shot.sample.temperature_k))
     if np.all(np.isfinite(omegas)) and np.all(depth_g > 0):
         adiabaticity = float(np.max(adiabaticity_parameter(times, omegas.T, axis=-1)))
-        if adiabaticity ** 2 < shot.limits.max_excitation * 1e-2:
+        if adiabaticity ** 2 < shot.limits.max_excitation * bound:
             # the excess energy of a slow ramp stays below (adiabaticity parameter)^2 (checked in
             # tests/physics/test_adiabatic.py); integrating thousands of trap periods would add nothing
-            return TrapStage(times, omegas, depth_g, eta, adiabaticity, (adiabaticity ** 2,) * 3, True, *heat)
+            return TrapStage(times, omegas, depth_g, eta, adiabaticity, (adiabaticity ** 2,) * 3, True, *heat,
+                             source=source)
         exc = []
         for axis in range(3):
             w = omegas[:, axis]
@@ -143,8 +243,8 @@ def trap_stage_prediction(shot, act) -> TrapStage:
                 return np.interp(t, times, w)
 
             try:
-                exc.append(ermakov_final_energy_ratio(omega_of_t, act.t0, act.t1, rtol=1e-8).energy_ratio - 1.0)
+                exc.append(ermakov_final_energy_ratio(omega_of_t, t0, t1, rtol=1e-8).energy_ratio - 1.0)
             except (ValueError, RuntimeError):
                 exc.append(float("nan"))
         excitation = tuple(exc)
-    return TrapStage(times, omegas, depth_g, eta, adiabaticity, excitation, False, *heat)
+    return TrapStage(times, omegas, depth_g, eta, adiabaticity, excitation, False, *heat, source=source)
