@@ -430,14 +430,14 @@ PUSH_VELOCITY = Code(
 
 REPULSIVE_TRAP_BEAM = Code(
     "physics.repulsive-trap-beam", "error", stage="physics",
-    source=("optical dipole potential of the D1 and D2 lines with counter-rotating terms, U = -(3 pi c^2 /"
-            " 2 omega_0^3) Gamma [1/(omega_0 - omega) + 1/(omega_0 + omega)] I per line: Adv. At. Mol. Opt. "
-            "Phys. 42, 95 (2000)"),
+    source=("dipole potential from the scalar polarisability: D1 and D2 lines with counter-rotating terms, "
+            "Adv. At. Mol. Opt. Phys. 42, 95 (2000); the next P lines, Phys. Rev. A 60, 4476 (1999); the "
+            "ionic core, Phys. Rev. A 49, 982 (1994)"),
     doc="""
     A beam declared as a trap (`role: trap`) repels the sample's atoms: at
-    its wavelength the ground-state light shift of the species (D1 + D2
-    lines weighted 1/3 and 2/3) is positive, i.e. the light is blue of the
-    lines (532 nm for rubidium), and the atoms are pushed out of the
+    its wavelength the ground-state light shift of the species (D1 and D2
+    lines, the next P lines and the ionic core) is positive, i.e. the light
+    is blue of the lines (532 nm for rubidium), and the atoms are pushed out of the
     intensity maximum instead of held in it. More power makes it worse.
     Use a wavelength red of the D1 line (e.g. 1064 nm), or give the beam
     another role if it is meant as a barrier.""")
@@ -458,8 +458,12 @@ SHALLOW_TRAP = Code(
     source=("truncation parameter eta = U / k_B T of about 6 to 10 in evaporation (common practice, no"
             " source)"),
     doc="""
-    At the end of a trap ramp the depth (with gravity) is less than
+    At the end of a change of the trap beams (a `trap_ramp`, or any ramp or
+    set on a trap beam's power channel) the depth is less than
     `limits.min_eta` (default 5) times k_B T of the sample: atoms spill out.
+    The depth is that of the lowest way out of the 3D potential of all trap
+    beams on, with gravity (the saddle or shoulder the atoms leave over, e.g.
+    along a strong guide over a weak dimple); the message names the way out.
     Intended in forced evaporation; accept it there with a reason.""")
 
 STATE_NOT_TRAPPABLE = Code(
@@ -557,11 +561,12 @@ TRAP_LOST = Code(
     source=("optical dipole potential: Adv. At. Mol. Opt. Phys. 42, 95 (2000); standard gravity g_n "
             "(SI Brochure)"),
     doc="""
-    During a trap ramp the optical trap no longer holds the atoms against
-    gravity: the depth along the vertical, including the gravitational tilt
-    m g z, drops to zero. Computed from the rig's beams (power from the
-    sequence, waist, wavelength) with the D1 + D2 dipole potential of the
-    sample's species. Raise the final power, or declare the release with a
+    During a change of the trap beams (a `trap_ramp`, or any ramp or set on a
+    trap beam's power channel) the optical trap no longer holds the atoms
+    against gravity: the depth of the lowest way out of the 3D potential,
+    with the gravitational tilt m g z, drops to zero. Computed from the
+    powers the hardware plays (after calibration and DAC codes), the rig's
+    waists and wavelengths, and the species' polarisability. Raise the final power, or declare the release with a
     `release` action if dropping the atoms is intended. A trap beam blue of
     the D lines repels the atoms at any power (physics.repulsive-trap-beam);
     the hint then points at its wavelength instead.""")

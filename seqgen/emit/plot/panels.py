@@ -56,7 +56,8 @@ def _physics(shot, t0, t1):
             comps = [(comp.state, comp.positions[:, 2]) for comp in pred.components
                      if np.any(np.abs(comp.positions[:, 2] + c.drop) > 1e-9)]
             out["clouds"].append({"t": img.t0, "release": img.t0 - c.tof, "cloud": c.as_dict(), "setup": setup,
-                                  "name": img.args.get("setup", ""), "components": comps, "edge": pred.edge})
+                                  "name": img.args.get("setup", ""), "components": comps,
+                                  "edge": c.reach_along((0.0, 0.0, 1.0))})  # the panel's axis is height
     try:
         rows = [r.as_dict() for r in report_rows(shot)]
     except Exception:
@@ -109,7 +110,7 @@ def _draw_clouds(ax, clouds, t0, t1, width_in):
         cl = c["cloud"]
         tr = np.linspace(c["release"], c["t"], 60)
         ax.plot(tr, -0.5 * G_N * (tr - c["release"]) ** 2 * 1e3, color="#5a5a5a", linestyle=":", linewidth=1.0)
-        edge = cl["size"] if cl["size_kind"].startswith("Thomas") else 2 * cl["size"]
+        edge = c["edge"]  # the cloud's reach along the vertical, the panel's axis (a cigar lies flat)
         centre = -cl["drop"] * 1e3
         bar = ax.errorbar([c["t"]], [centre], yerr=[[edge * 1e3], [edge * 1e3]], fmt="o", color="#9c3c86",
                           markersize=4, capsize=3, linewidth=1.4)
