@@ -94,10 +94,10 @@ def test_probe_power_without_unit_takes_the_channels_unit(project):
 
 
 def test_power_param_without_unit_fits_the_channels_hard_limit(project):
-    # cross_b_power is calibrated in W with hard_limit max 4.5 W: a 5 W dimple would be refused, 5 mW is meant
-    edit(SCATTER, "dimple_power: 5 mW", "dimple_power: 5")
+    # cross_b_power is calibrated in W with hard_limit max 4.5 W: a 20 W dimple would be refused, 20 mW is meant
+    edit(SCATTER, "dimple_power: 20 mW", "dimple_power: 20")
     f, value, _ = fix_and_recheck(SCATTER, "schema.missing-unit")
-    assert value == "5 mW"
+    assert value == "20 mW"
 
 
 def test_waist_in_a_power_unit_is_read_as_the_length_one_letter_away(project):

@@ -70,7 +70,7 @@ def test_a_plain_number_is_si_in_the_params_dimension(scatter):
 def test_an_override_may_be_an_expression_of_other_params(scatter):
     shot, findings = resolve(scatter, {"sheet_power": "dimple_power / 10"})
     assert shot is not None and not _errors(findings)
-    assert _param(shot, "sheet_power").value == pytest.approx(5 * milli / 10)  # dimple_power: 5 mW in the file
+    assert _param(shot, "sheet_power").value == pytest.approx(20 * milli / 10)  # dimple_power: 20 mW in the file
 
 
 def test_no_override_gives_the_written_values(scatter):

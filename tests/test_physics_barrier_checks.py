@@ -215,7 +215,8 @@ def test_condensate_spread_uses_the_thomas_fermi_radius_along_the_path(tmp_path)
     assert rep.release.released == pytest.approx(2 / 7 * mu, rel=1e-9)
 
 
-DEMO_TRAP = [(0.65, 55e-6, "x"), (5e-3, 42e-6, "y")]  # guide along x plus the 5 mW dimple cross_b along y
+DEMO_TRAP = [(0.65, 55e-6, "x"), (20e-3, 42e-6, "y")]  # guide along x plus the 20 mW dimple cross_b along y
+FAULT_TRAP = [(0.65, 55e-6, "x"), (5e-3, 42e-6, "y")]  # the barrier fault files (and the demo before): a 5 mW dimple
 
 
 def _tf_radius_x(n_atoms, beams):
@@ -257,18 +258,19 @@ def _centre_arrival(v, tau, d=SHEET_X):
     return tau + (d - v * tau / 2) / v
 
 
-def _demo_mean_field_rms():
+def _demo_mean_field_rms(trap=None):
     """Velocity rms along the guide of the demo's condensate released from guide + dimple into the guide alone,
     when its centre reaches the sheet: R_x b_x'(t) / sqrt(7) (the inverted parabola (1 - u^2/S^2)^2, rms
     S/sqrt(7): the integral of u^2 (1 - u^2)^2 over that of (1 - u^2)^2 on [-1, 1] is 1/7)."""
+    trap = DEMO_TRAP if trap is None else trap
     t = _centre_arrival(kick_speed(), KICK_TIME)
-    _, bd = _scaling(_demo_omegas(DEMO_TRAP), _demo_omegas(DEMO_TRAP[:1]), t)
-    return _tf_radius_x(6e4, DEMO_TRAP) * bd[0] / math.sqrt(7)
+    _, bd = _scaling(_demo_omegas(trap), _demo_omegas(trap[:1]), t)
+    return _tf_radius_x(6e4, trap) * bd[0] / math.sqrt(7)
 
 
 def test_demo_cloud_is_short_and_the_sheet_on_while_it_passes(demo):
     # The demo's own invented numbers, within the model: the condensate sits in the guide (0.65 W, 55 um, along x)
-    # plus a 5 mW dimple (cross_b, 42 um, along y) until the kick; its Thomas-Fermi radius along the path is far
+    # plus a 20 mW dimple (cross_b, 42 um, along y) until the kick; its Thomas-Fermi radius along the path is far
     # below the 0.3 mm to the sheet, and the sheet is on from before the front to after the tail crosses it.
     rep = _rep(demo)
     r = _tf_radius_x(demo.shot.sample.atoms, DEMO_TRAP)
@@ -321,10 +323,10 @@ def test_short_sheet_misses_the_cloud_tail():
     res, rep = _fault_rep("barrier_too_short.yaml")
     act = next(a for a in res.shot.phys if a.kind == "barrier")
     push = next(a for a in res.shot.phys if a.kind == "push")
-    v, tau, r = kick_speed(), KICK_TIME, _tf_radius_x(6e4, DEMO_TRAP)
+    v, tau, r = kick_speed(), KICK_TIME, _tf_radius_x(6e4, FAULT_TRAP)
 
     def missed(t):
-        b, _ = _scaling(_demo_omegas(DEMO_TRAP), _demo_omegas(DEMO_TRAP[:1]), t)
+        b, _ = _scaling(_demo_omegas(FAULT_TRAP), _demo_omegas(FAULT_TRAP[:1]), t)
         return 1 - _tf_beyond_by_integration((SHEET_X + SHEET_WY - v * (t - tau / 2)) / (r * b[0]))
 
     t_off = act.t1 - push.t0
@@ -339,9 +341,9 @@ def test_late_sheet_misses_the_cloud_front():
     res, rep = _fault_rep("barrier_too_late.yaml")
     act = next(a for a in res.shot.phys if a.kind == "barrier")
     push = next(a for a in res.shot.phys if a.kind == "push")
-    v, tau, r = kick_speed(), KICK_TIME, _tf_radius_x(6e4, DEMO_TRAP)
+    v, tau, r = kick_speed(), KICK_TIME, _tf_radius_x(6e4, FAULT_TRAP)
     s = v * (act.t0 - push.t0 - tau / 2)
-    b, _ = _scaling(_demo_omegas(DEMO_TRAP), _demo_omegas(DEMO_TRAP[:1]), act.t0 - push.t0)  # grown in the guide
+    b, _ = _scaling(_demo_omegas(FAULT_TRAP), _demo_omegas(FAULT_TRAP[:1]), act.t0 - push.t0)  # grown in the guide
     early = _tf_beyond_by_integration((SHEET_X - SHEET_WY - s) / (r * b[0]))
     hits = [f for f in res.findings if f.code == "physics.barrier-too-late"]
     assert len(hits) == 1 and dict(hits[0].data)["early_fraction"] == pytest.approx(early, abs=0.02)
@@ -409,23 +411,23 @@ def test_explain_shows_every_barrier_code():
 # ---------------------------------------------------------------- released mean-field energy, Larmor clock
 
 def test_the_issue_claim_on_the_demo_at_its_old_sheet_power(demo):
-    # The demo used to run its sheet at 0.43 mW: V0 = (U/I) 2P / (pi w w_y) (Adv. At. Mol. Opt. Phys. 42, 95
+    # The demo used to run its sheet at 0.43 mW (and its dimple at 5 mW): V0 = (U/I) 2P / (pi w w_y) (Adv. At. Mol. Opt. Phys. 42, 95
     # (2000)). mu of 6e4 atoms in guide + dimple (Rev. Mod. Phys. 71, 463 (1999)) is about 71 nK; released into the
     # guide, which stays on, the scaling solution (_scaling) puts more than 2/7 mu along the guide by the time the
     # centre reaches the sheet and lifts the mean kinetic energy above that top; released into free space the
     # cigar would send almost all of it across the path (Phys. Rev. Lett. 77, 5315 (1996)) and stay below it.
     v0 = dipole_u_per_intensity(SHEET_LAMBDA) * 2 * 0.43e-3 / (np.pi * SHEET_W * SHEET_WY)
-    w0, r = _demo_omegas(DEMO_TRAP), _tf_radius_x(6e4, DEMO_TRAP)
+    w0, r = _demo_omegas(FAULT_TRAP), _tf_radius_x(6e4, FAULT_TRAP)
     mu = 0.5 * M_NA * (w0[0] * r) ** 2
     assert mu / sc.k == pytest.approx(71e-9, rel=0.03)
     v, t = kick_speed(), _centre_arrival(kick_speed(), KICK_TIME)
     in_trap = TF_MOMENTUM_WIDTH * sc.hbar / (M_NA * r)
-    guided = 0.5 * M_NA * (v**2 + in_trap**2 + _demo_mean_field_rms() ** 2)
+    guided = 0.5 * M_NA * (v**2 + in_trap**2 + _demo_mean_field_rms(FAULT_TRAP) ** 2)
     _, bd_free = _scaling(w0, np.zeros(3), t)
     free = 0.5 * M_NA * (v**2 + in_trap**2 + (r * bd_free[0]) ** 2 / 7)
     assert free < v0 < guided
     assert guided - 0.5 * M_NA * (v**2 + in_trap**2) > 2 / 7 * mu
-    res = preflight(DEMO, overrides={"sheet_power": "0.43 mW"}, compile_tables=False)
+    res = preflight(DEMO, overrides={"sheet_power": "0.43 mW", "dimple_power": "5 mW"}, compile_tables=False)
     hits = [f for f in res.findings if f.code == "physics.not-tunnelling"]
     assert hits and dict(hits[0].data)["E_J"] == pytest.approx(guided, rel=3e-3)
     assert dict(hits[0].data)["V0_J"] == pytest.approx(v0, rel=2e-3)

@@ -20,7 +20,7 @@ from .pushes import push_analysis, pushes
 from .species import G_N, MU_B, bias, species
 from .states import (MG, barrier_drive_analysis, barriers, interferometer_analysis, interferometers, pulse_analysis,
                      pulse_fourier_width, pulses, sweep_analysis, sweeps)
-from .traps import trap_ramps, trap_stage_prediction
+from .traps import trap_writes, write_prediction
 
 
 
@@ -54,21 +54,24 @@ def _trap_rows(shot) -> list:
     if species(shot) is None:
         return rows
     seen: dict = {}  # ramps of several beams over the same interval describe one trap: one row, all beams named
-    for act in trap_ramps(shot):
-        key = (act.block, act.t0, act.t1)
+    for w in trap_writes(shot):  # a trap_ramp, or plain ramps and sets on trap beams' channels
+        kind = w.action.kind if w.action is not None else ("ramp" if w.t1 > w.t0 else "set")
+        key = (w.block, w.t0, w.t1)
         if key in seen:
             first = seen[key][3]
             first[0] = first[0].replace("beam ", "beams ", 1) if first[0].startswith("beam ") else first[0]
-            first[0] += f" + {act.args['beam']}"
+            first[0] += " + " + " + ".join(w.beams)
             continue
-        rep = trap_stage_prediction(shot, act)
-        items = []
-        w = rep.omegas
-        if np.all(np.isfinite(w[[0, -1]])):
-            f0, f1 = w[0] / (2 * math.pi), w[-1] / (2 * math.pi)
-            items.append("trap frequencies " + "/".join(f"{x:.4g}" for x in f0) + " Hz -> " + "/".join(f"{x:.4g}" for x in f1) + " Hz")
-        items.insert(0, f"beam {act.args['beam']}")  # the crossed trap of every beam on at the time, not this beam alone
-        items.append(f"depth with gravity k_B x {rep.depth_g[0] / sc.k * 1e6:.4g} uK -> {rep.depth_g[-1] / sc.k * 1e6:.4g} uK")
+        rep = write_prediction(shot, w)
+        items = [("beams " if len(w.beams) > 1 else "beam ") + " + ".join(w.beams)]  # the trap of every beam on
+        om = rep.omegas
+        if np.all(np.isfinite(om[[0, -1]])):
+            f0, f1 = om[0] / (2 * math.pi), om[-1] / (2 * math.pi)
+            end = "/".join(f"{x:.4g}" for x in f1) + " Hz"
+            items.append("trap frequencies " + (end if len(om) == 1 else "/".join(f"{x:.4g}" for x in f0) + " Hz -> " + end))
+        depth = f"{rep.depth_g[-1] / sc.k * 1e6:.4g} uK"
+        items.append("depth with gravity k_B x " + (depth if len(rep.depth_g) == 1 else
+                                                    f"{rep.depth_g[0] / sc.k * 1e6:.4g} uK -> " + depth))
         if rep.eta is not None:
             items.append(f"eta at end {rep.eta:.3g}")
         if rep.excitation is not None:
@@ -76,7 +79,7 @@ def _trap_rows(shot) -> list:
                 items.append(f"excitation E/E_ad-1 <= {rep.excitation[0]:.2g} (slow ramp: bound from max |d omega/dt|/omega^2)")
             else:
                 items.append("excitation E/E_ad-1 per axis " + ", ".join(f"{x:.2e}" for x in rep.excitation))
-        rows.append([act.block, "trap_ramp", act.t0, items])
+        rows.append([w.block, kind, w.t0, items])
         seen[key] = rows[-1]
     rows = [_row(*r) for r in rows]
     for img in shot.actions("image"):
