@@ -15,7 +15,7 @@ from ..predict.barrier import THERMAL_EDGE_RMS, analyse
 from ..predict.species import species
 from ..predict.states import barriers
 from ..predict.text import in_barrier_drive_reason, rotation_text, spread_text
-from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time
+from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time, outward
 from .rules import rule
 
 MISSED_FRACTION = 0.10  # a barrier may miss at most 10 % of the cloud (common practice, no source)
@@ -76,7 +76,7 @@ def barrier_too_short(shot):
         if ps.late <= MISSED_FRACTION:
             continue
         need = ps.need_off - ps.on
-        hint = (f"keep the barrier on for at least {fmt_time(need, unit='ms', nonfinite='never')} (99 % of the cloud across)" if math.isfinite(need)
+        hint = (f"keep the barrier on for at least {fmt_time(outward(need), unit='ms', nonfinite='never')} (99 % of the cloud across)" if math.isfinite(need)
                 else "part of the cloud never reaches the sheet: push harder")
         yield make(BARRIER_TOO_SHORT, f"barrier '{act.args['beam']}' is off {fmt_time(ps.off, unit='ms', nonfinite='never')} after the push "
                    f"starts, but {fmt_pct(ps.late)} of the cloud crosses the sheet {fmt_length(ps.distance, mm_from=1e-2)} away only later "
@@ -94,7 +94,7 @@ def barrier_too_late(shot):
         yield make(BARRIER_TOO_LATE, f"barrier '{act.args['beam']}' comes on {fmt_time(ps.on, unit='ms', nonfinite='never')} after the push "
                    f"starts, when {fmt_pct(ps.early)} of the cloud has already reached the sheet {fmt_length(ps.distance, mm_from=1e-2)} "
                    f"away (v = {rep.speed * 1e3:.4g} mm/s)", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"start the barrier no later than {fmt_time(ps.need_on, unit='ms', nonfinite='never')} after the push starts",
+                   hint=f"start the barrier no later than {fmt_time(outward(ps.need_on, up=False), unit='ms', nonfinite='never')} after the push starts",
                    data={"early_fraction": ps.early, "barrier_on_s": ps.on, "needed_on_s": ps.need_on})
 
 
@@ -127,12 +127,12 @@ def not_tunnelling(shot):
         elif want == "tunnelling" and e >= v0:
             yield make(NOT_TUNNELLING, f"expect: tunnelling, but the mean kinetic energy {fmt_energy(e)} "
                        f"is above the barrier top {fmt_energy(v0)}", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"raise the sheet power above {act.args['power'] * e / v0 * 1e3:.3g} mW or kick less",
+                       hint=f"raise the sheet power above {outward(act.args['power'] * e / v0 * 1e3, 3, strict=True):.3g} mW or kick less",
                        data={"E_J": e, "V0_J": v0})
         elif want == "over_barrier" and e < v0:
             yield make(NOT_TUNNELLING, f"expect: over_barrier, but the mean kinetic energy {fmt_energy(e)} "
                        f"is below the barrier top {fmt_energy(v0)}", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"lower the sheet power below {act.args['power'] * e / v0 * 1e3:.3g} mW or kick harder",
+                       hint=f"lower the sheet power below {outward(act.args['power'] * e / v0 * 1e3, 3, up=False, strict=True):.3g} mW or kick harder",
                        data={"E_J": e, "V0_J": v0})
 
 

@@ -14,7 +14,7 @@ from ..predict.species import bias, sample_state, species
 from ..predict.states import (LZ_MIN_TRANSFER, barrier_drive_analysis, barriers, populated_states, populations,
                               pulse_analysis, pulse_fourier_width, pulses, rel_off, state_fractions, sweep_analysis,
                               sweeps)
-from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time
+from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, outward
 from .rules import rule
 
 TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
@@ -80,7 +80,8 @@ def sweep_not_adiabatic(shot):
                        f"{fmt_freq(abs(rep.rate_hz_s))}/s with Rabi frequency 2 pi x {fmt_freq(rep.rabi_hz)}: "
                        f"Landau-Zener transfer {rep.lz_transfer:.3g} (below {LZ_MIN_TRANSFER:g}){bloch}", seg.pos,
                        block=seg.block, time_s=rep.t_cross,
-                       hint=f"lengthen the sweep to at least {fmt_time(need)} (linear), or raise the amplitude",
+                       hint=f"lengthen the sweep to at least {fmt_time(outward(need, strict=True))} (linear), or raise "
+                            "the amplitude",
                        data={"lz_transfer": rep.lz_transfer, "rate_hz_s": rep.rate_hz_s})
 
 

@@ -1,0 +1,172 @@
+"""Every fix that proposes a number passes when applied, for each code that proposes one on the fault corpus.
+
+Each test copies the sequences into a temporary folder, runs `seqgen check FILE --json` on a fault file, reads
+the first number the finding's fix proposes (a value with its unit, or a factor such as 'x1.34' or '13.1 times
+longer'), writes it where the fix says (the finding's line, or the rig entry the fix names), checks again, and
+asserts that the finding is gone and that no error appeared that was not there before. The number comes from
+the finding at run time; where the fix offers alternatives, the first numeric one is applied. Only the key the
+fix speaks of ('set exposure:', 'the ramp ... longer' -> over:, 'the beam's position') is written here.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from pathlib import Path
+
+import pytest
+
+from .demo_copy import (
+    block_line, check, edit, errors, proposal, quantity_text, read_key, rig_line, rig_of, scale_key, si, write_key,
+)
+
+FAULTS = "sequences/faults"
+
+
+def _write_value(key):
+    """The fix's value (or factor) written for `key` at the finding's line."""
+    def apply(f, path):
+        p = proposal(f.hint)
+        if p.factor:
+            return scale_key(path, f.line, key, p.number)
+        write_key(path, f.line, key, p.quantity)
+        return p.quantity
+    return apply
+
+
+def _beam_named(text):
+    m = re.search(r"(?:barrier|of) '(\w+)'", text)
+    assert m, text
+    return m.group(1)
+
+
+def _sheet_farther(f, path):
+    """'put the sheet farther than D from the atoms (rig file: the beam's position)': the beam's position
+    vector scaled to a length just beyond D, its direction kept."""
+    p = proposal(f.hint)
+    rig = rig_of(path)
+    line = rig_line(rig, _beam_named(f.message))
+    lines = Path(rig).read_text(encoding="utf-8").split("\n")
+    m = re.search(r"position: \[([^\]]*)\]", lines[line - 1])
+    assert m, lines[line - 1]
+    pos = [float(x) for x in m.group(1).split(",")]
+    norm = math.sqrt(sum(x * x for x in pos))
+    want = si(p.quantity) * (1 + 1e-6)  # "farther than": just beyond the distance named
+    new = "[" + ", ".join(f"{x * want / norm:.10g}" for x in pos) + "]"
+    lines[line - 1] = lines[line - 1][:m.start()] + f"position: {new}" + lines[line - 1][m.end():]
+    Path(rig).write_text("\n".join(lines), encoding="utf-8")
+    return new
+
+
+def _probe_wavelength(f, path):
+    """'set the wavelength of 'probe' to ... nm': the rig's beam entry."""
+    p = proposal(f.hint.split(",", 1)[1])  # the number after the line's name ('Rb87 D2 line, 780.24 nm')
+    rig = rig_of(path)
+    write_key(rig, rig_line(rig, _beam_named(f.hint)), "wavelength", p.quantity)
+    return p.quantity
+
+
+def _coil_currents(f, path):
+    """'raise the coil currents by at least xK': every current of the action's `currents:` times K."""
+    p = proposal(f.hint)
+    assert p.factor
+    names = re.findall(r"'(\w+)' to", f.hint)
+    assert names, f.hint
+    return [scale_key(path, f.line, name, p.number) for name in names]
+
+
+def _barrier_earlier(f, path):
+    """'start the barrier no later than T after the push starts': its block moved earlier by (on - T), `on`
+    being when it comes on now (the finding's data)."""
+    from .demo_copy import shift_block
+
+    t = si(proposal(f.hint).quantity)
+    return shift_block(path, f.line, t - f.data["barrier_on_s"])
+
+
+def _scan_bound(f, path):
+    """'keep every scan value of P at or above B': the scan's bound beyond B set to B."""
+    p = proposal(f.hint)
+    line = f.line
+    for key in ("from", "to"):
+        old = read_key(path, line, key)
+        if old is not None and (si(old) < si(p.quantity) if "above" in f.hint else si(old) > si(p.quantity)):
+            write_key(path, line, key, p.quantity)
+    return p.quantity
+
+
+def _unit_text(f, path):
+    """'write '0.43 mW'': the text the message quotes, replaced by the one the fix names."""
+    old = re.search(r"in '([^']+)'", f.message).group(1)
+    new = re.search(r"write '([^']+)'", f.hint).group(1)
+    assert proposal(f.hint).quantity == new
+    edit(path, old, new)
+    return new
+
+
+def _pulse_after_write(f, path):
+    """'write the frequency at least S before the pulse': the pulse placed S after the write in its block
+    (`at:` may not be negative, so the write cannot move before its block's start)."""
+    s = si(proposal(f.hint).quantity)
+    write_file, write_at = f.data["frequency_write"].rsplit(":", 1)
+    assert Path(write_file) == Path(path) and block_line(path, int(write_at)) == block_line(path, f.line)
+    at = read_key(path, int(write_at), "at")
+    start = si(at) if at else 0.0
+    new = quantity_text(start + s, "us")
+    write_key(path, f.line, "at", new)
+    return new
+
+
+# code, fault file, how the fix is written
+CASES = [
+    ("hardware.exposure-too-short", "exposure_too_short.yaml", _write_value("exposure")),
+    ("hardware.pulse-too-short", "pulse_too_short.yaml", _write_value("width")),
+    ("hardware.ramp-undersampled", "ramp_undersampled.yaml", _write_value("over")),
+    ("hardware.ramp-undersampled", "nonadiabatic_ramp.yaml", _write_value("over")),
+    ("hardware.ramp-undersampled", "slew.yaml", _write_value("over")),
+    ("hardware.resolution", "resolution.yaml", _write_value("tolerance")),
+    ("hardware.slew", "slew.yaml", _write_value("over")),
+    ("hardware.synth-settling", "synth_settling.yaml", _pulse_after_write),
+    ("physics.barrier-too-late", "barrier_too_late.yaml", _barrier_earlier),
+    ("physics.barrier-too-short", "barrier_too_short.yaml", _write_value("duration")),
+    ("physics.barrier-too-short", "push_too_late.yaml", _write_value("duration")),
+    ("physics.cloud-overlaps-barrier", "barrier_cloud_overlaps.yaml", _sheet_farther),
+    ("physics.components-overlap", "components_overlap.yaml", _write_value("gradient")),
+    ("physics.drive-too-strong", "barrier_drive_too_strong.yaml", _write_value("depth")),
+    ("physics.imaging-blur", "imaging_blur.yaml", _write_value("duration")),
+    ("physics.imaging-blur", "probe_doppler.yaml", _write_value("duration")),
+    ("physics.magnetic-trap-lost", "magnetic_trap_lost.yaml", _coil_currents),
+    ("physics.modulation-off-resonance", "modulation_off_resonance.yaml", _write_value("frequency")),
+    ("physics.modulation-off-resonance", "barrier_rotation_unresolvable.yaml", _write_value("frequency")),
+    ("physics.not-tunnelling", "barrier_not_tunnelling.yaml", _write_value("power")),
+    ("physics.probe-doppler", "probe_doppler.yaml", _write_value("duration")),
+    ("physics.probe-off-resonance", "probe_off_resonance.yaml", _probe_wavelength),
+    ("physics.pulse-angle", "pulse_angle.yaml", _write_value("duration")),
+    ("physics.pulse-detuned", "pulse_detuned.yaml", _write_value("frequency")),
+    ("physics.push-too-late", "push_too_late.yaml", _write_value("duration")),
+    ("physics.push-velocity", "push_velocity.yaml", _write_value("duration")),
+    ("physics.sweep-not-adiabatic", "sweep_not_adiabatic.yaml", _write_value("over")),
+    ("safety.coil-current", "coil_current.yaml", _write_value("value")),
+    ("schema.param-out-of-range", "param_bounds.yaml", _write_value("value")),
+    ("schema.param-out-of-range", "param_bounds_scan.yaml", _scan_bound),
+    ("schema.unknown-unit", "unit_lowercase_power.yaml", _unit_text),
+]
+
+
+def _where(f):
+    return (f.code, f.file, f.line)
+
+
+@pytest.mark.parametrize("code, fault, apply", CASES, ids=[f"{c}-{f[:-5]}" for c, f, _ in CASES])
+def test_the_number_a_fix_proposes_passes_when_applied(project, code, fault, apply):
+    path = f"{FAULTS}/{fault}"
+    before = check(path)
+    hits = [f for f in before if f.code == code]
+    assert hits, [(g.code, g.line) for g in before]
+    f = hits[0]
+    written = apply(f, path)
+    after = check(path)
+    left = [g for g in after if g.code == code and g.file == f.file and g.line == f.line]
+    assert not left, (written, [(g.message, g.hint) for g in left])
+    new = {_where(g) for g in errors(after)} - {_where(g) for g in errors(before)}
+    assert not new, (written, [(g.code, g.line, g.message) for g in errors(after) if _where(g) in new])
