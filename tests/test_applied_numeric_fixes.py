@@ -170,3 +170,66 @@ def test_the_number_a_fix_proposes_passes_when_applied(project, code, fault, app
     assert not left, (written, [(g.message, g.hint) for g in left])
     new = {_where(g) for g in errors(after)} - {_where(g) for g in errors(before)}
     assert not new, (written, [(g.code, g.line, g.message) for g in errors(after) if _where(g) in new])
+
+
+# ----------------------------------------------------------------------------- other numbers in the same faults
+# Each fault again with one of its numbers changed (chosen here, not taken from seqgen), so that the proposed
+# number falls elsewhere on its rounding grid: a bound printed to a few digits must be rounded the way that
+# passes, whatever the digits it drops. ("rig", old, new) edits the fault's rig file.
+
+VARIANTS = {
+    ("hardware.exposure-too-short", "exposure_too_short.yaml"): [("duration: 30 us", "duration: 30.0004 us"),
+                                                                 ("duration: 30 us", "duration: 27.77777 us")],
+    ("hardware.pulse-too-short", "pulse_too_short.yaml"): [("at: 0 s", "at: 0.7 s"), ("at: 0 s", "at: 1.2345678 s"),
+                                                           ("rig", "min_pulse: 10 us", "min_pulse: 10.00044 us")],
+    ("hardware.ramp-undersampled", "ramp_undersampled.yaml"): [("over: 100 us", "over: 130 us"),
+                                                               ("to: 1 W, over", "to: 0.77 W, over")],
+    ("hardware.ramp-undersampled", "slew.yaml"): [("to: 60 A, over: 100 us", "to: 47 A, over: 100 us"),
+                                                  ("over: 100 us", "over: 70 us")],
+    ("hardware.resolution", "resolution.yaml"): [("rig", "range: [0 V, 10 V], bits: 16}\n    calibration: {quantity: W, "
+                                                  "linear: {slope: 5 V/W}}", "range: [0 V, 10 V], bits: 13}\n    "
+                                                  "calibration: {quantity: W, linear: {slope: 5 V/W}}")],
+    ("hardware.slew", "slew.yaml"): [("to: 60 A, over: 100 us", "to: 47 A, over: 100 us"),
+                                     ("over: 100 us", "over: 70 us"), ("rig", "max_slew: 200000 A/s\n    safe: 0 A\n  sg",
+                                                                       "max_slew: 170001 A/s\n    safe: 0 A\n  sg")],
+    ("hardware.synth-settling", "synth_settling.yaml"): [("rig", "settling: 200 us", "settling: 173.3337 us")],
+    ("physics.barrier-too-late", "barrier_too_late.yaml"): [("guide + 14 ms", "guide + 14.7 ms"),
+                                                            ("guide + 14 ms", "guide + 14.3 ms")],
+    ("physics.barrier-too-short", "barrier_too_short.yaml"): [("duration: 12 ms", "duration: 11 ms"),
+                                                              ("duration: 12 ms", "duration: 9.5 ms")],
+    ("physics.cloud-overlaps-barrier", "barrier_cloud_overlaps.yaml"): [("value: 0.65 W", "value: 0.5 W")],
+    ("physics.components-overlap", "components_overlap.yaml"): [("gradient: 1 G/cm", "gradient: 1.3 G/cm"),
+                                                                ("gradient: 1 G/cm", "gradient: 0.7 G/cm")],
+    ("physics.drive-too-strong", "barrier_drive_too_strong.yaml"): [("depth: 1}", "depth: 0.8}")],
+    ("physics.imaging-blur", "imaging_blur.yaml"): [("duration: 60 us", "duration: 47 us")],
+    ("physics.magnetic-trap-lost", "magnetic_trap_lost.yaml"): [("sg_coil: 15 A", "sg_coil: 14.3 A"),
+                                                                ("sg_coil: 15 A", "sg_coil: 12.7 A")],
+    ("physics.modulation-off-resonance", "modulation_off_resonance.yaml"): [("1.7716 GHz", "1.7733 GHz")],
+    ("physics.not-tunnelling", "barrier_not_tunnelling.yaml"): [("power: 0.36 mW", "power: 0.33 mW"),
+                                                                ("power: 0.36 mW", "power: 0.301 mW")],
+    ("physics.probe-doppler", "probe_doppler.yaml"): [("duration: 200 us", "duration: 170 us")],
+    ("physics.probe-off-resonance", "probe_off_resonance.yaml"): [("rig", "wavelength: 589.158 nm",
+                                                                   "wavelength: 670.8 nm")],
+    ("physics.pulse-angle", "pulse_angle.yaml"): [("duration: 50 us", "duration: 37 us")],
+    ("physics.pulse-detuned", "pulse_detuned.yaml"): [("1.77248 GHz", "1.7751 GHz")],
+    ("physics.push-too-late", "push_too_late.yaml"): [("target_distance: 0.3 mm", "target_distance: 0.37 mm"),
+                                                      ("target_distance: 0.3 mm", "target_distance: 0.41 mm")],
+    ("physics.push-velocity", "push_velocity.yaml"): [("expect_velocity: 38 mm/s", "expect_velocity: 31 mm/s")],
+    ("physics.sweep-not-adiabatic", "sweep_not_adiabatic.yaml"): [("over: 100 us", "over: 230 us"),
+                                                                  ("to: 1770.9 MHz", "to: 1771.3 MHz")],
+    ("safety.coil-current", "coil_current.yaml"): [("value: 70 A", "value: 63.3 A"),
+                                                   ("rig", "max_current: 60 A", "max_current: 58.00666 A")],
+    ("schema.param-out-of-range", "param_bounds.yaml"): [("min: 1 ms", "min: 1.000377 ms")],
+}
+
+_APPLY = {(c, f): a for c, f, a in CASES}
+VARIANT_CASES = [(c, f, edit_) for (c, f), edits in VARIANTS.items() for edit_ in edits]
+
+
+@pytest.mark.parametrize("code, fault, change", VARIANT_CASES,
+                         ids=[f"{c}-{f[:-5]}-{i}" for i, (c, f, _) in enumerate(VARIANT_CASES)])
+def test_the_number_passes_for_other_numbers_in_the_fault(project, code, fault, change):
+    path = f"{FAULTS}/{fault}"
+    target, old, new = change if len(change) == 3 else (path, *change)
+    edit(rig_of(path) if target == "rig" else target, old, new)
+    test_the_number_a_fix_proposes_passes_when_applied(project, code, fault, _APPLY[(code, fault)])

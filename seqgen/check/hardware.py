@@ -119,7 +119,7 @@ def pulse_width(shot):
         k = bisect.bisect_left(times, s.t0)
         if k:
             width = s.t0 - times[k - 1]
-            if width < out.min_pulse_s:
+            if width < out.min_pulse_s - 1e-12:  # float noise of a difference of times up to ~1000 s
                 yield make(PULSE_TOO_SHORT, f"pulse on '{out.name}' lasts {fmt_time(width, unit='us')}, shorter than its "
                            f"minimum {fmt_time(out.min_pulse_s, unit='us')}", s.pos, block=s.block, time_s=s.t0,
                            hint=f"make it at least {fmt_time(outward(out.min_pulse_s), unit='us')}",
