@@ -1,8 +1,11 @@
-"""Shared by the tests that apply proposed fixes: check a copy of the demos and edit it in place."""
+"""Shared by the tests that apply proposed fixes: check a copy of the demos and edit it in place; read the
+number a fix proposes and write it at a key of a sequence or rig file."""
 
 import io
 import json
+import re
 from contextlib import redirect_stderr, redirect_stdout
+from dataclasses import dataclass
 from pathlib import Path
 from types import SimpleNamespace
 
@@ -33,9 +36,6 @@ def edit(path, old, new):
 
 
 # ------------------------------------------------------------------ the number a fix proposes, and where it goes
-
-import re  # noqa: E402
-from dataclasses import dataclass  # noqa: E402
 
 _NUM = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
 _UNIT = r"(?:[GMkmunp]?(?:s|Hz|V|A|W|m|G|K)(?:/(?:cm|s))?)"
