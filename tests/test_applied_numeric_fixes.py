@@ -58,11 +58,14 @@ def _sheet_farther(f, path):
     return new
 
 
-def _probe_wavelength(f, path):
-    """'set the wavelength of 'probe' to ... nm': the rig's beam entry."""
+def _beam_wavelength(f, path):
+    """'set the wavelength of 'probe' to ... nm', 'a wavelength ... for 'trap' (e.g. 1064 nm)': the rig's entry
+    of the beam the fix (or else the message) names."""
     p = proposal(f.hint)  # digits inside a name ('Rb87 D2 line') are not numbers
     rig = rig_of(path)
-    write_key(rig, rig_line(rig, _beam_named(f.hint)), "wavelength", p.quantity)
+    m = re.search(r"(?:of|for) '(\w+)'", f.hint) or re.search(r"(?:beam|of) '(\w+)'", f.message)
+    assert m, (f.hint, f.message)
+    write_key(rig, rig_line(rig, m.group(1)), "wavelength", p.quantity)
     return p.quantity
 
 
@@ -138,8 +141,9 @@ CASES = [
     ("physics.modulation-off-resonance", "barrier_rotation_unresolvable.yaml", _write_value("frequency")),
     ("physics.not-tunnelling", "barrier_not_tunnelling.yaml", _write_value("power")),
     ("physics.probe-doppler", "probe_doppler.yaml", _write_value("duration")),
-    ("physics.probe-off-resonance", "probe_off_resonance.yaml", _probe_wavelength),
+    ("physics.probe-off-resonance", "probe_off_resonance.yaml", _beam_wavelength),
     ("physics.pulse-angle", "pulse_angle.yaml", _write_value("duration")),
+    ("physics.rotation-unresolvable", "barrier_rotation_unresolvable.yaml", _write_value("frequency")),
     ("physics.pulse-detuned", "pulse_detuned.yaml", _write_value("frequency")),
     ("physics.push-too-late", "push_too_late.yaml", _write_value("duration")),
     ("physics.push-velocity", "push_velocity.yaml", _write_value("duration")),
@@ -147,6 +151,7 @@ CASES = [
     ("safety.coil-current", "coil_current.yaml", _write_value("value")),
     ("schema.param-out-of-range", "param_bounds.yaml", _write_value("value")),
     ("schema.param-out-of-range", "param_bounds_scan.yaml", _scan_bound),
+    ("schema.bad-scan", "scan_one_step_range.yaml", _write_value("steps")),
     ("schema.unknown-unit", "unit_lowercase_power.yaml", _unit_text),
 ]
 
@@ -175,6 +180,16 @@ def test_the_number_a_fix_proposes_passes_when_applied(project, code, fault, app
     new = {_where(g) for g in _flagged(after)} - {_where(g) for g in _flagged(before)}
     assert not new, (written, [(g.code, g.line, g.message) for g in _flagged(after) if _where(g) in new])
 
+
+
+def test_the_line_rotation_unresolvable_names_is_the_one_modulation_off_resonance_accepts(project):
+    # both fire on the same barrier; the frequency either fix names, applied, silences both
+    path = f"{FAULTS}/barrier_rotation_unresolvable.yaml"
+    before = check(path)
+    f = next(g for g in before if g.code == "physics.rotation-unresolvable")
+    assert any(g.code == "physics.modulation-off-resonance" and g.line == f.line for g in before)
+    _write_value("frequency")(f, path)
+    assert not [g for g in _flagged(check(path)) if g.line == f.line]
 
 # ----------------------------------------------------------------------------- other numbers in the same faults
 # Each fault again with one of its numbers changed (chosen here, not taken from seqgen), so that the proposed

@@ -13,7 +13,7 @@ from ..codes import (
 from ..findings import make
 from ..predict.barrier import THERMAL_EDGE_RMS, analyse
 from ..predict.species import species
-from ..predict.states import barriers
+from ..predict.states import barrier_drive_analysis, barriers
 from ..predict.text import in_barrier_drive_reason, rotation_text, spread_text
 from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time, outward
 from .rules import rule
@@ -178,7 +178,9 @@ def rotation_unresolvable(shot):
         if rep.rotation < noise:
             d = rep.drive
             off = abs(d.detuning_hz) * 2 * math.pi * rep.waist_y / rep.speed > 3.0
-            hint = (f"tune the modulation to the line at {d.transition_hz / 1e9:.7g} GHz"
+            # the light-shifted line to the hertz, as physics.modulation-off-resonance names it: applied, neither fires
+            line = getattr(barrier_drive_analysis(shot, act), "resonance_hz", None) or d.transition_hz
+            hint = (f"tune the modulation to the line at {line:.10g} Hz"
                     if off else "raise the modulation depth, or transmit more atoms")
             yield make(ROTATION_UNRESOLVABLE, f"rotation {rep.rotation:.3g} rad of the transmitted spin is below "
                        f"the shot noise {noise:.3g} rad of {n:.3g} transmitted atoms (detuning "
