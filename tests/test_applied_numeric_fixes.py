@@ -225,7 +225,10 @@ VARIANTS = {
                                                                 ("sg_coil: 15 A", "sg_coil: 12.7 A")],
     ("physics.modulation-off-resonance", "modulation_off_resonance.yaml"): [("1.7716 GHz", "1.7733 GHz")],
     ("physics.not-tunnelling", "barrier_not_tunnelling.yaml"): [("power: 0.36 mW", "power: 0.33 mW"),
-                                                                ("power: 0.36 mW", "power: 0.301 mW")],
+                                                                ("power: 0.36 mW", "power: 0.301 mW"),
+                                                                # the other side: expected over the top, but below it
+                                                                ("power: 0.36 mW, duration: 20 ms, expect: tunnelling",
+                                                                 "power: 0.47 mW, duration: 20 ms, expect: over_barrier")],
     ("physics.probe-doppler", "probe_doppler.yaml"): [("duration: 200 us", "duration: 170 us")],
     ("physics.probe-off-resonance", "probe_off_resonance.yaml"): [("rig", "wavelength: 589.158 nm",
                                                                    "wavelength: 670.8 nm")],
