@@ -179,8 +179,7 @@ def synth_settling(shot):
                        a.pos, block=a.block, time_s=a.t0,
                        hint=f"write the frequency at least {fmt_time(outward(fout.settling_s), unit='us')} before the "
                             f"pulse (at or before t = {fmt_time(outward(a.t0 - fout.settling_s, up=False), unit='ms')}), "
-                            f"or give the "
-                            f"clock_pulse its `frequency:`, which it writes that far ahead",
+                            "or give the clock_pulse its `frequency:`, which it writes that far ahead",
                        data={"settling_s": fout.settling_s, "gap_s": gap,
                              "frequency_write": f"{last.pos.file}:{last.pos.line}"})
 

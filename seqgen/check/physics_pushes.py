@@ -120,13 +120,12 @@ def components_overlap(shot):
             continue
         need = SEPARATION_WIDTHS * rep.combined
         k = need / abs(rep.separation) if rep.separation else math.inf
+        gradient = outward(act.args['gradient'] * 100 * k, 3, strict=True)  # G/cm; up: the separation grows with it
         yield make(COMPONENTS_OVERLAP, f"the components are {fmt_length(abs(rep.separation), unit='um')} apart at the "
                    f"image, {abs(rep.separation) / rep.combined:.3g} combined rms widths (each {rep.sigma * 1e6:.4g} "
                    f"um); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"raise the gradient to {outward(act.args['gradient'] * 100 * k, 3, strict=True):.3g} G/cm, or "
-                        "lengthen the pulse",
-                   data={"separation_m": rep.separation, "combined_rms_m": rep.combined,
-                         "gradient_t_m": outward(act.args['gradient'] * 100 * k, 3, strict=True) / 100})
+                   hint=f"raise the gradient to {gradient:.3g} G/cm, or lengthen the pulse",
+                   data={"separation_m": rep.separation, "combined_rms_m": rep.combined})
 
 
 @rule(COMPONENTS_SEPARATED, stage="physics")
