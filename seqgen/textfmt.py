@@ -175,3 +175,19 @@ def fmt_si(value: float, unit: str, digits: int = 6) -> str:
         if a >= factor * 0.9999999:
             return f"{value / factor:.{digits}g} {prefix}{unit}"
     return f"{value:.{digits}g} {unit}"
+
+
+def outward(x: float, digits: int = 4, *, up: bool = True, strict: bool = False) -> float:
+    """`x` rounded to `digits` significant digits up (or down), so that a bound a fix names, printed to that
+    many digits, still meets the check it comes from; `strict`: a value on the rounding grid moves one step
+    further (for a check that still fires at equality). Float noise below 12 digits is dropped first, so
+    2 x 50 us stays 100 us."""
+    x = float(f"{x:.12g}")
+    if x == 0 or not math.isfinite(x):
+        return x
+    q = 10.0 ** (math.floor(math.log10(abs(x))) - (digits - 1))
+    n = round(x / q, 6)
+    r = math.ceil(n) if up else math.floor(n)
+    if strict and r == n:
+        r += 1 if up else -1
+    return float(f"{r * q:.{digits}g}")

@@ -14,7 +14,7 @@ from ..codes import (
 )
 from ..compile.sampling import quantize_times
 from ..findings import make
-from ..textfmt import fmt_si, fmt_time
+from ..textfmt import fmt_si, fmt_time, outward
 from .rules import rule
 
 
@@ -119,10 +119,11 @@ def pulse_width(shot):
         k = bisect.bisect_left(times, s.t0)
         if k:
             width = s.t0 - times[k - 1]
-            if width < out.min_pulse_s:
+            if width < out.min_pulse_s - 1e-12:  # float noise of a difference of times up to ~1000 s
                 yield make(PULSE_TOO_SHORT, f"pulse on '{out.name}' lasts {fmt_time(width, unit='us')}, shorter than its "
                            f"minimum {fmt_time(out.min_pulse_s, unit='us')}", s.pos, block=s.block, time_s=s.t0,
-                           hint=f"make it at least {fmt_time(out.min_pulse_s, unit='us')}")
+                           hint=f"make it at least {fmt_time(outward(out.min_pulse_s), unit='us')}",
+                           data={"width_s": width, "min_width_s": out.min_pulse_s})
 
 
 @rule(SLEW)
@@ -142,7 +143,9 @@ def slew_rate(shot):
             if rate > out.max_slew * (1 + 1e-9):
                 yield make(SLEW, f"ramp on '{out.name}' changes at up to {rate:.4g} {out.phys_unit}/s, "
                            f"{rate / out.max_slew:.3g} times its max slew {out.max_slew:.4g} {out.phys_unit}/s", s.pos,
-                           block=s.block, time_s=s.t0, hint=f"make the ramp at least {fmt_time((s.t1 - s.t0) * rate / out.max_slew, unit='ms')} long")
+                           block=s.block, time_s=s.t0,
+                           hint=f"make the ramp at least {fmt_time(outward((s.t1 - s.t0) * rate / out.max_slew), unit='ms')} long",
+                           data={"rate": rate, "max_slew": out.max_slew})
 
 
 @rule(SYNTH_SETTLING)
@@ -174,9 +177,9 @@ def synth_settling(shot):
                        f"{fmt_time(fout.settling_s, unit='us')}, so the pulse starts while the frequency is in transit (for "
                        f"another {fmt_time(fout.settling_s - gap, unit='us')})",
                        a.pos, block=a.block, time_s=a.t0,
-                       hint=f"write the frequency at least {fmt_time(fout.settling_s, unit='us')} before the pulse "
-                            f"(at or before t = {fmt_time(a.t0 - fout.settling_s, unit='ms')}), or give the "
-                            f"clock_pulse its `frequency:`, which it writes that far ahead",
+                       hint=f"write the frequency at least {fmt_time(outward(fout.settling_s), unit='us')} before the "
+                            f"pulse (at or before t = {fmt_time(outward(a.t0 - fout.settling_s, up=False), unit='ms')}), "
+                            "or give the clock_pulse its `frequency:`, which it writes that far ahead",
                        data={"settling_s": fout.settling_s, "gap_s": gap,
                              "frequency_write": f"{last.pos.file}:{last.pos.line}"})
 
@@ -318,4 +321,5 @@ def finer_than_resolution(shot):
             seen.add((s.output, s.block))
             yield make(RESOLUTION, f"ramp on '{out.name}' asks for {tol:.3g} {out.unit}, finer than half an LSB "
                        f"({out.lsb / 2:.3g} {out.unit} at {out.bits} bits)", s.pos, block=s.block, time_s=s.t0,
-                       hint=f"use a tolerance of at least {out.lsb / 2:.3g} {out.unit}")
+                       hint=f"use a tolerance of at least {outward(out.lsb / 2, 3):.3g} {out.unit}",
+                       data={"tolerance": tol, "half_lsb": out.lsb / 2})

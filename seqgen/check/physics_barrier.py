@@ -13,9 +13,9 @@ from ..codes import (
 from ..findings import make
 from ..predict.barrier import THERMAL_EDGE_RMS, analyse
 from ..predict.species import species
-from ..predict.states import barriers
+from ..predict.states import barrier_drive_analysis, barriers
 from ..predict.text import in_barrier_drive_reason, larmor_clock_text, release_text, rotation_text, spread_text
-from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time
+from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time, outward
 from .rules import rule
 
 MISSED_FRACTION = 0.10  # a barrier may miss at most 10 % of the cloud (common practice, no source)
@@ -80,7 +80,7 @@ def barrier_too_short(shot):
         if ps.late <= MISSED_FRACTION:
             continue
         need = ps.need_off - ps.on
-        hint = (f"keep the barrier on for at least {fmt_time(need, unit='ms', nonfinite='never')} (99 % of the cloud across)" if math.isfinite(need)
+        hint = (f"keep the barrier on for at least {fmt_time(outward(need), unit='ms', nonfinite='never')} (99 % of the cloud across)" if math.isfinite(need)
                 else "part of the cloud never reaches the sheet: push harder")
         yield make(BARRIER_TOO_SHORT, f"barrier '{act.args['beam']}' is off {fmt_time(ps.off, unit='ms', nonfinite='never')} after the push "
                    f"starts, but {fmt_pct(ps.late)} of the cloud crosses the sheet {fmt_length(ps.distance, mm_from=1e-2)} away only later "
@@ -98,7 +98,7 @@ def barrier_too_late(shot):
         yield make(BARRIER_TOO_LATE, f"barrier '{act.args['beam']}' comes on {fmt_time(ps.on, unit='ms', nonfinite='never')} after the push "
                    f"starts, when {fmt_pct(ps.early)} of the cloud has already reached the sheet {fmt_length(ps.distance, mm_from=1e-2)} "
                    f"away (v = {rep.speed * 1e3:.4g} mm/s)", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"start the barrier no later than {fmt_time(ps.need_on, unit='ms', nonfinite='never')} after the push starts",
+                   hint=f"start the barrier no later than {fmt_time(outward(ps.need_on, up=False), unit='ms', nonfinite='never')} after the push starts",
                    data={"early_fraction": ps.early, "barrier_on_s": ps.on, "needed_on_s": ps.need_on})
 
 
@@ -202,7 +202,9 @@ def rotation_unresolvable(shot):
         if rep.rotation < noise:
             d = rep.drive
             off = abs(d.detuning_hz) * 2 * math.pi * rep.waist_y / rep.speed > 3.0
-            hint = (f"tune the modulation to the line at {d.transition_hz / 1e9:.7g} GHz"
+            # the light-shifted line to the hertz, as physics.modulation-off-resonance names it: applied, neither fires
+            line = getattr(barrier_drive_analysis(shot, act), "resonance_hz", None) or d.transition_hz
+            hint = (f"tune the modulation to the line at {line:.10g} Hz"
                     if off else "raise the modulation depth, or transmit more atoms")
             yield make(ROTATION_UNRESOLVABLE, f"rotation {rep.rotation:.3g} rad of the transmitted spin is below "
                        f"the shot noise {noise:.3g} rad of {n:.3g} transmitted atoms (detuning "

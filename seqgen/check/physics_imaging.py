@@ -7,7 +7,7 @@ from ..codes import EXPOSURE_TOO_SHORT, IMAGING_BLUR, PROBE_DOPPLER, PROBE_OFF_R
 from ..findings import make
 from ..predict.imaging import images, probe_analysis, probe_line
 from ..predict.species import species
-from ..textfmt import fmt_freq, fmt_length, fmt_time
+from ..textfmt import fmt_freq, fmt_length, fmt_time, outward
 from .rules import rule
 
 
@@ -66,4 +66,4 @@ def exposure_too_short(shot):
         if exp_s is not None and exp_s < dur * (1 - 1e-9):
             yield make(EXPOSURE_TOO_SHORT, f"camera exposure {fmt_time(exp_s)} is shorter than the probe pulse "
                        f"{fmt_time(dur)}", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"set exposure: {fmt_time(dur)} or longer")
+                       hint=f"set exposure: {fmt_time(outward(dur))} or longer", data={"exposure_s": exp_s, "probe_s": dur})

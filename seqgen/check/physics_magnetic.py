@@ -13,15 +13,17 @@ from ..physics.magnetic_trap import trappable_states
 from ..predict.magnetic import MIN_MOMENT, hold_analysis, holds
 from ..predict.species import G_N, MU_B, sample_state, species
 from ..predict.text import level_problem_text, unconfined_text, weakest_text
-from ..textfmt import fmt_gauss, fmt_gauss_per_cm, fmt_gauss_per_cm2, fmt_length, fmt_state, fmt_time
+from ..textfmt import fmt_gauss, fmt_gauss_per_cm, fmt_gauss_per_cm2, fmt_length, fmt_state, fmt_time, outward
 from .rules import rule
 
 MIN_SPIN_ADIABATICITY = 10.0  # Larmor frequency over the trap and field-rotation rates (common practice, no source)
 
 
 def _current_hint(rep, factor) -> str:
-    parts = [f"'{n}' to {abs(i) * factor:.4g} A" for n, i in rep.coils]
-    return "raise the coil currents by at least x" + f"{factor:.3g}" + (f" ({', '.join(parts)})" if parts else "")
+    # rounded up and strictly above: the trap holds only when the support exceeds 1
+    parts = [f"'{n}' to {outward(abs(i) * factor, 4, strict=True):.4g} A" for n, i in rep.coils]
+    return ("raise the coil currents by at least x" + f"{outward(factor, 3, strict=True):.3g}"
+            + (f" ({', '.join(parts)})" if parts else ""))
 
 
 

@@ -17,7 +17,7 @@ from ..predict.cloud import SEPARATION_WIDTHS, separations
 from ..predict.pushes import push_analysis, pushes
 from ..predict.species import MU_B, bias
 from ..predict.states import barriers, rel_off
-from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec
+from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec, outward
 from .rules import rule
 
 PUSH_TOLERANCE = 0.10
@@ -96,8 +96,8 @@ def push_too_late(shot):
             yield make(PUSH_TOO_LATE, f"the atoms reach {fmt_length(act.args['target_distance'], unit='mm')} {when} "
                        f"({abs(rep.velocity) * 1e3:.4g} mm/s), but the barrier in block '{b.block}' ends at "
                        f"t = {fmt_time(b.t1)}", b.pos, block=b.block, time_s=b.t1,
-                       hint=(f"keep the barrier on until at least {fmt_time(rep.arrival - b.t0)} after its start"
-                             if not math.isinf(rep.arrival) else "the push gives no velocity"),
+                       hint=(f"keep the barrier on until at least {fmt_time(outward(rep.arrival - b.t0, strict=True))} "
+                             "after its start" if not math.isinf(rep.arrival) else "the push gives no velocity"),
                        data={"arrival_s": rep.arrival, "barrier_end_s": b.t1})
 
 
@@ -128,10 +128,11 @@ def components_overlap(shot):
             continue
         need = SEPARATION_WIDTHS * rep.combined
         k = need / abs(rep.separation) if rep.separation else math.inf
+        gradient = outward(act.args['gradient'] * 100 * k, 3, strict=True)  # G/cm; up: the separation grows with it
         yield make(COMPONENTS_OVERLAP, f"the components are {fmt_length(abs(rep.separation), unit='um')} apart at the "
                    f"image, {abs(rep.separation) / rep.combined:.3g} combined rms widths (each {rep.sigma * 1e6:.4g} "
                    f"um); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"raise the gradient to {math.copysign(_up3(abs(act.args['gradient']) * 100 * k), act.args['gradient']):.3g} G/cm, or lengthen the pulse",
+                   hint=f"raise the gradient to {gradient:.3g} G/cm, or lengthen the pulse",
                    data={"separation_m": rep.separation, "combined_rms_m": rep.combined})
 
 

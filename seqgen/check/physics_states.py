@@ -17,7 +17,7 @@ from ..predict.species import (REFERENCE_FORBIDDEN, allowed_instead, bias, coupl
 from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, barriers, populated_states,
                               populations, pulse_analysis, pulse_fourier_width, pulse_nodes, pulses, rel_off,
                               state_fractions, sweep_analysis, sweeps)
-from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec
+from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec, outward
 from ..values import value_at
 from .rules import rule
 
@@ -118,12 +118,14 @@ def sweep_not_adiabatic(shot):
                        f"{fmt_state(*rep.pair[1])} line at {fmt_freq(rep.resonance_hz, 10)}{bloch}", seg.pos,
                        block=seg.block, time_s=seg.t0, hint="sweep across the line", data={"lz_transfer": 0.0})
         elif rep.lz_transfer < LZ_MIN_TRANSFER:
-            need = abs(rep.f1 - rep.f0) / rep.max_rate_hz_s if rep.max_rate_hz_s > 0 else math.inf
+            # the crossing rate the check judged scales as 1 / duration for a linear sweep
+            need = (seg.t1 - seg.t0) * abs(rep.rate_hz_s) / rep.max_rate_hz_s if rep.max_rate_hz_s > 0 else math.inf
             yield make(SWEEP_NOT_ADIABATIC, f"sweep of '{drive.name}' crosses the line at "
                        f"{fmt_freq(abs(rep.rate_hz_s))}/s with Rabi frequency 2 pi x {fmt_freq(rep.rabi_hz)}: "
                        f"Landau-Zener transfer {rep.lz_transfer:.3g} (below {LZ_MIN_TRANSFER:g}){bloch}", seg.pos,
                        block=seg.block, time_s=rep.t_cross,
-                       hint=f"lengthen the sweep to at least {fmt_time(need)} (linear), or raise the amplitude",
+                       hint=f"lengthen the sweep to at least {fmt_time(outward(need, strict=True))} (linear), or raise "
+                            "the amplitude",
                        data={"lz_transfer": rep.lz_transfer, "rate_hz_s": rep.rate_hz_s})
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..findings import make
+from ..textfmt import outward
 from .rules import rule
 from ..codes import COIL_CURRENT, COIL_HEATING, LEFT_ON
 
@@ -67,7 +68,8 @@ def coil_current(shot):
         if peak > coil.max_current * (1 + 1e-12):
             yield make(COIL_CURRENT, f"coil '{coil.name}' would carry {peak:.4g} A, above its max_current "
                        f"{coil.max_current:.4g} A (rig file)", s.pos, block=s.block, time_s=s.t0,
-                       hint=f"lower the current to at most {coil.max_current:.4g} A")
+                       hint=f"lower the current to at most {outward(coil.max_current, up=False):.4g} A",
+                       data={"current_a": peak, "max_current_a": coil.max_current})
 
 
 @rule(COIL_HEATING)

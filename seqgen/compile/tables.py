@@ -22,7 +22,7 @@ from ..model import Compiled, DeviceTable, Output, Shot
 from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
 from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
 from ..codes import BEFORE_START, RAMP_UNDERSAMPLED
-from ..textfmt import fmt_when
+from ..textfmt import fmt_when, outward
 
 
 
@@ -117,15 +117,18 @@ def _undersampled(out: Output, seg, device, err: float, tol: float, rows: int) -
     dt = device.min_interval_ticks * device.tick_s
     unit = f" {out.unit}" if out.unit else ""
     lsb = f" ({err / out.lsb:.3g} LSB)" if out.lsb > 0 else ""
+    # rounded up, so that the longer ramp or looser tolerance the fix names is enough as printed
+    factor = outward((err / tol) ** (0.5 if device.output_model == 'linear' else 1.0), 3)
+    loose = outward(err, 3)
     return make(RAMP_UNDERSAMPLED,
                 f"{seg.shape} ramp on '{out.name}' deviates from its curve by up to {err:.4g}{unit}{lsb}, "
                 f"{err / tol:.3g} times its tolerance {tol:.4g}{unit} (misses it by {err - tol:.4g}{unit}): "
                 f"{rows} rows over {fmt_when(seg.t1 - seg.t0)}, no closer than {device.name}'s minimum interval "
                 f"{fmt_when(dt)}", seg.pos, block=seg.block, time_s=seg.t0,
-                hint=f"make the ramp about {(err / tol) ** (0.5 if device.output_model == 'linear' else 1.0):.3g} "
-                     f"times longer, loosen its tolerance to {err:.3g}{unit}, "
+                hint=f"make the ramp about {factor:.3g} times longer, loosen its tolerance to {loose:.3g}{unit}, "
                      "or use a device with a shorter minimum interval",
-                data={"max_error": err, "tolerance": tol, "rows": rows, "min_interval_s": dt})
+                data={"max_error": err, "tolerance": tol, "rows": rows, "min_interval_s": dt,
+                      "length_factor": factor, "loose_tolerance": loose})
 
 
 class RampCache:
