@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import os
 import re
+import shutil
 from pathlib import Path
 
 from ..emit.writers import file_sha256
@@ -90,8 +91,6 @@ def collect(out: Path, listed: set) -> None:
 def _remove(p: Path) -> None:
     try:
         if p.is_dir() and not p.is_symlink():
-            import shutil
-
             shutil.rmtree(p, ignore_errors=True)
         else:
             p.unlink()
