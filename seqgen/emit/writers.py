@@ -10,7 +10,9 @@ and, optionally, `max_rows` (int or None): tables with more rows are not written
 Writers are found through the entry-point group `seqgen.writers` (pyproject.toml,
 `[project.entry-points."seqgen.writers"]`), each naming a writer object. The two built-in writers (npz, csv)
 are always there, so a checkout that was never installed builds the same folder. `write_build` may also be
-given an explicit tuple of writers.
+given an explicit tuple of writers; `select_writers("npz,hdf5")` picks them by name (`seqgen build --tables`),
+among them the bundled HDF5 writer (seqgen/emit/hdf5.py, one file per build), chosen by name only. Scan builds
+store their tables with `compact_writers` (npz deflated, csv gzipped).
 
 A writer that raises, writes no file, or writes other bytes when asked twice is refused with a `WriterError`
 naming it; the build folder is then left as it was (the build is written into a temporary folder).
@@ -263,7 +265,7 @@ def select_writers(names) -> tuple:
         if w is None:
             close = difflib.get_close_matches(n.lower(), writer_names(), n=3, cutoff=0.5)
             raise WriterError(f"unknown table writer {n!r} (--tables)"
-                              + (f"; did you mean {' or '.join(close)}?" if close else "")
+                              + (f"; did you mean {' or '.join(close)}?" if close else ".")
                               + f" Known: {', '.join(writer_names())} (a package adds more through the entry-point "
                               f"group {ENTRY_POINT_GROUP})")
         if w is HDF5 and not h5py_available():
