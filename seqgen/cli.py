@@ -341,9 +341,13 @@ def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
             if caution:
                 print(_caution())
         return EXIT_FINDINGS
+    from .emit.writers import WriterError
+
     failed, _ = _writing(f"the scan to {args.output}" if build else "the scan", lambda: run_scan(
         scan, out=args.output if build else None, force=getattr(args, "force", False), jobs=args.jobs,
-        cluster=args.cluster, progress=sys.stderr.isatty() and not args.json), (BuildExists, OutputBusy, ClusterUnavailable))
+        cluster=args.cluster, progress=sys.stderr.isatty() and not args.json,
+        tables=getattr(args, "tables", None) if build else None),
+        (BuildExists, OutputBusy, ClusterUnavailable, WriterError))
     if failed:
         return failed
     if _format(args) == "sarif":
@@ -361,9 +365,13 @@ def _scan_run(scan, args, *, build: bool, caution: bool = True) -> int:
 
 def cmd_build(args) -> int:
     from .emit.build import BuildExists, OutputBusy, write_build
-    from .emit.writers import WriterError
+    from .emit.writers import WriterError, select_writers
     from .pipeline import preflight
 
+    try:  # --tables: an unknown writer, or one whose library is missing, is refused before anything runs
+        writers = select_writers(args.tables)
+    except WriterError as exc:
+        return _cannot_run(exc)
     src, failed = _load(args.file)
     scan = _plan_scan(args.file, src)
     if scan is not None and scan.is_scan:
@@ -378,7 +386,8 @@ def cmd_build(args) -> int:
             print("build not written: fix the errors above (or accept them in the sequence file with a reason)")
         return code
     failed, out = _writing(f"build to {args.output}", lambda: write_build(args.output, res.shot, res.compiled,
-                                                                           res.findings, force=args.force),
+                                                                           res.findings, force=args.force,
+                                                                           writers=writers),
                            (BuildExists, OutputBusy, WriterError))
     if failed:
         return failed
@@ -509,6 +518,9 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("--force", action="store_true", help="replace an existing build folder (after waiting, at most 60 s, "
                    "for another seqgen process writing it)")
     b.add_argument("--json", action="store_true", help="summary as JSON")
+    b.add_argument("--tables", default=None, metavar="NAMES",
+                   help="table writers by name, comma separated, e.g. npz,csv,hdf5 (default: npz, csv and every "
+                   "installed seqgen.writers entry point; hdf5 needs pip install 'seqgen[hdf5]')")
     _allow_outside_option(b)
     _scan_options(b)
     b.set_defaults(func=cmd_build)

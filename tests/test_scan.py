@@ -283,8 +283,10 @@ def test_build_writes_one_build_per_shot_and_a_scan_manifest(tmp_path):
         jsonschema.validate(shot_man, load_schema("manifest.schema.json"))
         assert shot_man["params"]["b"]["value"] == pytest.approx(rec["params"]["b"]["value"])
         assert shot_man["params"]["b"]["text"] == f"{rec['params']['b']['value'] * 1e3:g} ms"
-        for dev, files in rec["tables"].items():
-            assert hashlib.sha256((folder / f"{dev}.npz").read_bytes()).hexdigest() == files["npz"]
+        for dev, files in rec["tables"].items():  # the shot's tables, stored once in OUT/tables/ (README)
+            entry = shot_man["devices"][dev]["files"]["npz"]
+            assert entry["path"] == f"../tables/{files['npz']}.npz"
+            assert hashlib.sha256((folder / entry["path"]).read_bytes()).hexdigest() == files["npz"]
     # deterministic: a second fresh build gives the same bytes
     run_scan(plan_scan(p), out=tmp_path / "again", jobs=1)
     assert (tmp_path / "again" / "scan.json").read_bytes() == (out / "scan.json").read_bytes()
@@ -300,8 +302,9 @@ def test_resume_rebuilds_only_what_changed(tmp_path):
     again = run_scan(plan_scan(p), out=out, jobs=1)
     assert (again.stats["built"], again.stats["reused"]) == (1, 3) and again.ok
     before = {r.folder: r.manifest_sha256 for r in again.shots}
-    # a corrupted table is detected and that shot rebuilt
-    (out / "shot_0000" / "ao_main.csv").write_text("garbage\n")
+    # a corrupted table is detected and that shot rebuilt (b moves a ramp of ao_main: its table is the shot's own)
+    man = json.loads((out / "shot_0000" / "manifest.json").read_text())
+    (out / "shot_0000" / man["devices"]["ao_main"]["files"]["csv"]["path"]).write_bytes(b"garbage\n")
     fixed = run_scan(plan_scan(p), out=out, jobs=1)
     assert (fixed.stats["built"], fixed.stats["reused"]) == (1, 3)
     # other inputs: refused without force; with force only the changed shot is rebuilt

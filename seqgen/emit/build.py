@@ -35,8 +35,8 @@ from ..findings import Finding, summary
 from ..model import Compiled, Shot
 from ..resolve.units import display_unit
 from .claim import OutputBusy, claimed  # noqa: F401  (OutputBusy re-exported for callers of write_build)
-from .writers import CSV_ROW_LIMIT, WriterError, available_writers, check_writers, run_writer, with_row_limit, \
-    writes_table
+from .writers import CSV_ROW_LIMIT, WriterError, available_writers, check_writers, is_build_file_writer, \
+    run_build_file_writer, run_writer, with_row_limit, writes_table
 
 FORMAT_VERSION = 1
 
@@ -74,7 +74,8 @@ def manifest(shot: Shot, compiled: Compiled, findings: list[Finding], files: dic
 
 
 def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: list[Finding], *, force: bool = False,
-                csv_row_limit: int = CSV_ROW_LIMIT, writers: tuple | None = None, claim: bool = True) -> Path:
+                csv_row_limit: int = CSV_ROW_LIMIT, writers: tuple | None = None, claim: bool = True,
+                store=None) -> Path:
     """Write the build: per device table one file per writer (default: the built-in npz and csv writers and
     every installed `seqgen.writers` entry point, see seqgen/emit/writers.py), then manifest.json.
 
@@ -82,6 +83,9 @@ def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: l
     The whole check-then-write runs under the exclusive claim on `out_dir` (seqgen/emit/claim.py): another
     process holding it raises OutputBusy, or with `force` is waited for (bounded) and then replaced. `claim=False`:
     the caller holds a claim that covers `out_dir` (a scan build's, for its shot folders).
+    `store`: where the table files go instead of the build folder (a scan build's shared tables, seqgen/scan/
+    tables.py): called as store(written_file, sha256, suffix) once a file is written, it moves the file and returns
+    its manifest entry ({"path": relative to the build folder, "sha256"}).
     """
     out = Path(out_dir)
     writers = with_row_limit(check_writers(available_writers() if writers is None else writers), "csv",
@@ -89,14 +93,14 @@ def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: l
     if out.exists() and not force:  # the quick answer; asked again under the claim
         raise BuildExists(f"{out} exists; use --force to replace it")
     if not claim:
-        return _write_claimed(out, shot, compiled, findings, force, writers)
+        return _write_claimed(out, shot, compiled, findings, force, writers, store)
     out.parent.mkdir(parents=True, exist_ok=True)
     with claimed(out, wait=force):  # of two processes writing `out` at once, one writes; OutputBusy for the other
-        return _write_claimed(out, shot, compiled, findings, force, writers)
+        return _write_claimed(out, shot, compiled, findings, force, writers, store)
 
 
 def _write_claimed(out: Path, shot: Shot, compiled: Compiled, findings: list[Finding], force: bool,
-                   writers: tuple) -> Path:
+                   writers: tuple, store=None) -> Path:
     """The check-then-write of a build, run while this process holds the claim on `out`."""
     if out.exists() and not force:
         raise BuildExists(f"{out} exists; use --force to replace it")
@@ -105,15 +109,26 @@ def _write_claimed(out: Path, shot: Shot, compiled: Compiled, findings: list[Fin
     tmp = _new_temporary(out)
     lock = _hold_lock(tmp)
     try:
+        def listed(path: Path, sha: str, suffix: str) -> dict:
+            return {"path": path.name, "sha256": sha} if store is None else store(path, sha, suffix)
+
         files: dict = {}
         for t in compiled.tables:
             entry = {}
             for w in writers:
-                if writes_table(w, t):
+                if not is_build_file_writer(w) and writes_table(w, t):
                     path = tmp / f"{t.device}{w.suffix}"
-                    entry[w.name] = {"path": path.name, "sha256": run_writer(w, t, path)}
+                    entry[w.name] = listed(path, run_writer(w, t, path), w.suffix)
             files[t.device] = entry
-        _only_listed(tmp, files)
+        man = manifest(shot, compiled, findings, files)
+        for w in writers:  # one file for every table (HDF5): it holds the manifest as it stands without it
+            if is_build_file_writer(w):
+                path = tmp / f"{w.stem}{w.suffix}"
+                text = json.dumps(man, indent=2, sort_keys=True) + "\n"
+                entry = listed(path, run_build_file_writer(w, compiled.tables, text, path), w.suffix)
+                for t in compiled.tables:
+                    files[t.device][w.name] = dict(entry)
+        _only_listed(tmp, files, {w.name for w in writers if is_build_file_writer(w)})
         man = manifest(shot, compiled, findings, files)
         (tmp / "manifest.json").write_text(json.dumps(man, indent=2, sort_keys=True) + "\n", encoding="utf-8")
         for f in tmp.iterdir():
@@ -132,10 +147,12 @@ def _write_claimed(out: Path, shot: Shot, compiled: Compiled, findings: list[Fin
     return out
 
 
-def _only_listed(tmp: Path, files: dict) -> None:
+def _only_listed(tmp: Path, files: dict, whole: set = frozenset()) -> None:
     """Every file in the build is listed in its manifest: a writer that left others behind is refused (two
     devices whose file names collide are caught here too)."""
-    listed = [e["path"] for entry in files.values() for e in entry.values()]
+    # a file of a build-file writer (`whole`: HDF5) is listed under every device; shared tables live outside
+    local = [(w, e["path"]) for entry in files.values() for w, e in entry.items() if "/" not in e["path"]]
+    listed = [p for w, p in local if w not in whole] + sorted({p for w, p in local if w in whole})
     extra = sorted({p.name for p in tmp.iterdir()} - set(listed))
     if extra or len(set(listed)) != len(listed):
         raise WriterError("the table writers left files the manifest would not list: "

@@ -10,7 +10,9 @@ and, optionally, `max_rows` (int or None): tables with more rows are not written
 Writers are found through the entry-point group `seqgen.writers` (pyproject.toml,
 `[project.entry-points."seqgen.writers"]`), each naming a writer object. The two built-in writers (npz, csv)
 are always there, so a checkout that was never installed builds the same folder. `write_build` may also be
-given an explicit tuple of writers.
+given an explicit tuple of writers; `select_writers("npz,hdf5")` picks them by name (`seqgen build --tables`),
+among them the bundled HDF5 writer (seqgen/emit/hdf5.py, one file per build), chosen by name only. Scan builds
+store their tables with `compact_writers` (npz deflated, csv gzipped).
 
 A writer that raises, writes no file, or writes other bytes when asked twice is refused with a `WriterError`
 naming it; the build folder is then left as it was (the build is written into a temporary folder).
@@ -18,6 +20,8 @@ naming it; the build folder is then left as it was (the build is written into a 
 
 from __future__ import annotations
 
+import difflib
+import gzip
 import hashlib
 import itertools
 import os
@@ -31,6 +35,7 @@ from typing import Callable, Iterable, Protocol, runtime_checkable
 import numpy as np
 
 from ..model import DeviceTable
+from .hdf5 import HDF5, INSTALL_HINT, h5py_available
 
 ENTRY_POINT_GROUP = "seqgen.writers"
 CSV_ROW_LIMIT = 1_000_000
@@ -118,6 +123,50 @@ BUILTIN = (NPZ, CSV)
 _TESTED = (_npz_table, _csv_table)  # their determinism is tested, so a build does not write them twice
 
 
+# ----------------------------------------------------------------------------- compact forms (scan builds)
+
+
+def _npz_compressed_table(table: DeviceTable, path: Path) -> None:
+    """The npz arrays, deflated (fixed level and zip time stamps: deterministic bytes); numpy.load reads it."""
+    with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED, compresslevel=6) as zf:
+        for name, arr in table_arrays(table).items():
+            info = zipfile.ZipInfo(f"{name}.npy", date_time=_ZIP_DATE)
+            info.external_attr = 0o644 << 16
+            info.compress_type = zipfile.ZIP_DEFLATED
+            with zf.open(info, "w", force_zip64=True) as fh:
+                np.lib.format.write_array(fh, np.ascontiguousarray(arr), allow_pickle=False)
+
+
+def _csv_gz_table(table: DeviceTable, path: Path) -> None:
+    """The csv text, gzipped without a file name or time stamp (mtime 0): deterministic bytes."""
+    part = path.with_name(f".{path.name}.csv")
+    try:
+        write_csv(part, table)
+        with open(part, "rb") as src, open(path, "wb") as raw, \
+                gzip.GzipFile(filename="", mode="wb", fileobj=raw, mtime=0, compresslevel=6) as gz:
+            for chunk in iter(lambda: src.read(1 << 20), b""):
+                gz.write(chunk)
+    finally:
+        if part.exists():
+            os.unlink(part)
+
+
+NPZ_COMPRESSED = Writer("npz", ".npz", _npz_compressed_table)
+CSV_GZ = Writer("csv", ".csv.gz", _csv_gz_table, max_rows=CSV_ROW_LIMIT)
+_TESTED += (_npz_compressed_table, _csv_gz_table)
+_COMPACT = {"npz": NPZ_COMPRESSED, "csv": CSV_GZ}
+
+
+def compact_writers(writers: tuple) -> tuple:
+    """The writers a scan build stores its tables with: the built-in npz and csv writers compressed (npz
+    deflated, csv gzipped as .csv.gz); every other writer as it is (HDF5 compresses its datasets itself)."""
+    out = []
+    for w in writers:
+        builtin = isinstance(w, Writer) and any(w.write is b.write for b in BUILTIN)
+        out.append(replace(_COMPACT[w.name], max_rows=w.max_rows) if builtin else w)
+    return tuple(out)
+
+
 # ----------------------------------------------------------------------------- finding and checking writers
 
 
@@ -130,7 +179,9 @@ def check_writers(writers: Iterable) -> tuple:
     names, suffixes = set(), set()
     for w in out:
         label = repr(getattr(w, "name", w))
-        if not isinstance(w, TableWriter) or not callable(w.write):
+        if is_build_file_writer(w):
+            pass
+        elif not isinstance(w, TableWriter) or not callable(w.write):
             raise WriterError(f"table writer {label} is not a writer: it needs a name, a suffix and write(table, "
                               "path) (see seqgen/emit/writers.py)")
         if not isinstance(w.name, str) or not NAME_PATTERN.fullmatch(w.name):
@@ -146,6 +197,12 @@ def check_writers(writers: Iterable) -> tuple:
         names.add(w.name)
         suffixes.add(w.suffix.lower())
     return out
+
+
+def is_build_file_writer(w) -> bool:
+    """A writer of one file per build holding every table (the HDF5 writer): `write_tables(tables,
+    manifest_text, path)` and a file `stem`, instead of `write(table, path)`."""
+    return callable(getattr(w, "write_tables", None)) and isinstance(getattr(w, "stem", None), str)
 
 
 def declared_entry_points() -> tuple:
@@ -181,6 +238,40 @@ def available_writers() -> tuple:
     """The writers a build uses by default: the built-in ones and every installed `seqgen.writers` entry point
     (looked up once per process)."""
     return load_writers(declared_entry_points())
+
+
+OPTIONAL = {HDF5.name: HDF5}  # bundled, chosen by name only (their library is an optional extra)
+
+
+def writer_names() -> tuple:
+    """Every name `--tables` accepts: the available writers and the bundled optional ones."""
+    return tuple(sorted({w.name for w in available_writers()} | set(OPTIONAL)))
+
+
+def select_writers(names) -> tuple:
+    """The writers called `names` (a comma-separated text like "npz,hdf5", or an iterable of names), in that
+    order; None: the default set (`available_writers`). An unknown name, or HDF5 without h5py, is a WriterError
+    that says what to write or install."""
+    if names is None:
+        return available_writers()
+    wanted = [n.strip() for n in (names.split(",") if isinstance(names, str) else names)]
+    wanted = list(dict.fromkeys(n for n in wanted if n))
+    if not wanted:
+        raise WriterError(f"--tables names no table writer; give one or more of {', '.join(writer_names())}")
+    known = {w.name: w for w in available_writers()}
+    out = []
+    for n in wanted:
+        w = known.get(n) or OPTIONAL.get(n)
+        if w is None:
+            close = difflib.get_close_matches(n.lower(), writer_names(), n=3, cutoff=0.5)
+            raise WriterError(f"unknown table writer {n!r} (--tables)"
+                              + (f"; did you mean {' or '.join(close)}?" if close else ".")
+                              + f" Known: {', '.join(writer_names())} (a package adds more through the entry-point "
+                              f"group {ENTRY_POINT_GROUP})")
+        if w is HDF5 and not h5py_available():
+            raise WriterError(f"table writer 'hdf5' needs the h5py package, which is not installed: {INSTALL_HINT}")
+        out.append(w)
+    return check_writers(out)
 
 
 def with_row_limit(writers: tuple, name: str, limit: int | None) -> tuple:
@@ -221,6 +312,20 @@ def run_writer(writer, table: DeviceTable, path: Path) -> str:
             if again.exists():
                 os.unlink(again)
     return sha
+
+
+def run_build_file_writer(writer, tables, manifest_text: str, path: Path) -> str:
+    """Write every table of a build into one file with a build-file writer (HDF5); the file's sha256.
+    Errors as for run_writer."""
+    try:
+        writer.write_tables(tuple(tables), manifest_text, path)
+    except OSError:
+        raise
+    except Exception as exc:  # a bug in the writer or its library: say whose
+        raise WriterError(f"table writer {writer.name!r} failed: {type(exc).__name__}: {exc}") from exc
+    if path.is_symlink() or not path.is_file():
+        raise WriterError(f"table writer {writer.name!r} wrote no file {path.name}")
+    return file_sha256(path)
 
 
 def _write_once(writer, table: DeviceTable, path: Path) -> str:

@@ -408,6 +408,7 @@ class ShotTask:
     build: bool
     reuse_key: str | None = None
     crash: str | None = None  # tests only: "raise" or "exit"
+    tables: tuple | None = None  # table writer names (seqgen.emit.writers.select_writers); None: the default set
 
 
 def values_text(names, values) -> str:

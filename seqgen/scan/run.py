@@ -34,12 +34,14 @@ from pathlib import Path
 
 from ..codes import SHOT_FAILED
 from ..emit.claim import claimed
+from ..emit.writers import select_writers
 from ..findings import has_errors, make
 from ..pipeline import preflight_resolved
 from ..resolve.sequence import resolve
 from ..resolve.sources import Sources
 from .plan import Scan, ShotResult, ShotTask, label_shot, shot_key, values_text
-from .store import ManifestWriter, prepare_out, remove_path, write_shot
+from .store import ManifestWriter, listed_tables, prepare_out, remove_path, write_shot
+from .tables import collect
 
 
 class ClusterUnavailable(Exception):
@@ -80,7 +82,8 @@ def run_task(src: Sources, task: ShotTask):
         shot = label_shot(res.shot, overrides)
         if task.out_dir is None:
             return result, (shot, res.compiled, list(res.findings))
-        return write_shot(Path(task.out_dir), task.folder, shot, res.compiled, list(res.findings), result), None
+        return write_shot(Path(task.out_dir), task.folder, shot, res.compiled, list(res.findings), result,
+                          task.tables), None
     except Exception as exc:  # a failing shot never kills the scan
         return _failed(src, task, f"{type(exc).__name__}: {exc}"), None
 
@@ -198,8 +201,11 @@ def _execute_dask(src, tasks, address, on_result) -> None:
 
 
 def run_scan(scan: Scan, *, out: str | Path | None = None, force: bool = False, jobs: int | None = None,
-             cluster: str | None = None, progress: bool = False, _crash: dict | None = None) -> Scan:
+             cluster: str | None = None, progress: bool = False, tables=None, _crash: dict | None = None) -> Scan:
     """Preflight every shot of a planned scan; with `out`, build each good shot.
+
+    `tables`: the table writers by name ("npz,csv,hdf5" or a tuple of names; None: the default set); an unknown
+    name raises WriterError (seqgen.emit.writers) before anything is run.
 
     Raises BuildExists (seqgen.emit.build: out exists and may not be touched), OutputBusy (another process
     builds into `out`; with `force` it is waited for, bounded), ClusterUnavailable.
@@ -207,15 +213,17 @@ def run_scan(scan: Scan, *, out: str | Path | None = None, force: bool = False, 
     """
     if scan.plan is None or has_errors(scan.findings):
         return scan
+    if tables is not None:
+        tables = tuple(w.name for w in select_writers(tables))  # refused here, before any shot runs
     if out is None:
-        return _run(scan, None, force, jobs, cluster, progress, _crash)
+        return _run(scan, None, force, jobs, cluster, progress, _crash, tables)
     out = Path(out)
     out.parent.mkdir(parents=True, exist_ok=True)
-    with claimed(out, wait=force):  # the whole run: resume decision, every shot, scan.json
-        return _run(scan, out, force, jobs, cluster, progress, _crash)
+    with claimed(out, wait=force):  # the whole run: resume decision, every shot, the shared tables, scan.json
+        return _run(scan, out, force, jobs, cluster, progress, _crash, tables)
 
 
-def _run(scan: Scan, out: Path | None, force: bool, jobs, cluster, progress, _crash) -> Scan:
+def _run(scan: Scan, out: Path | None, force: bool, jobs, cluster, progress, _crash, tables=None) -> Scan:
     src, plan = scan.sources, scan.plan
     t_start = time.perf_counter()
     jobs = default_jobs() if jobs is None else max(1, int(jobs))
@@ -232,7 +240,7 @@ def _run(scan: Scan, out: Path | None, force: bool, jobs, cluster, progress, _cr
     crash = _crash or {}
     tasks = [ShotTask(i, plan.written_index[i], plan.names, plan.points[i], folders[i],
                    str(out) if out is not None else None, out is not None,
-                   reuse[i]["input_sha256"] if i in reuse else None, crash.get(i))
+                   reuse[i]["input_sha256"] if i in reuse else None, crash.get(i), tables)
              for i in range(len(plan))]
     results: dict = {}
     bar = _progress_bar(len(tasks), progress)
@@ -244,7 +252,7 @@ def _run(scan: Scan, out: Path | None, force: bool, jobs, cluster, progress, _cr
                              manifest_sha256=rec["manifest_sha256"], tables=rec["tables"])
         elif payload is not None:
             try:
-                result = write_shot(out, folders[result.index], *payload, result)
+                result = write_shot(out, folders[result.index], *payload, result, tables)
             except OSError as exc:
                 result = replace(result, findings=result.findings + (make(
                     SHOT_FAILED, f"shot {result.index}: cannot write its build: {exc.strerror or exc}",
@@ -267,6 +275,7 @@ def _run(scan: Scan, out: Path | None, force: bool, jobs, cluster, progress, _cr
             manifest_writer.flush()
             for p in stale:
                 remove_path(p)
+            collect(out, listed_tables(manifest_writer.records.values()))  # tables no shot lists any more
     scan.shots = [results[i] for i in range(len(plan))]
     scan.out = out
     scan.stats = {"shots": len(plan), "reused": sum(r.reused for r in scan.shots),

@@ -31,17 +31,21 @@ from pathlib import Path
 from ..version import __version__
 from ..caution import CAUTION
 from ..emit.build import BuildExists, write_build
-from ..emit.writers import file_sha256
+from ..emit.writers import compact_writers, file_sha256, select_writers
 from ..findings import Finding, summary
 from .plan import Scan, ScanPlan, ShotResult, scan_description, scan_input_sha256, shot_head
+from .tables import TableStore, clean
 
 SCAN_MANIFEST = "scan.json"
 FORMAT_VERSION = 1
 
 
-def write_shot(out: Path, folder: str, shot, compiled, findings, result: ShotResult) -> ShotResult:
-    """Write one shot's build folder (atomic, via write_build) and note its hashes."""
-    path = write_build(out / folder, shot, compiled, findings, force=True, claim=False)  # under the scan's claim
+def write_shot(out: Path, folder: str, shot, compiled, findings, result: ShotResult, tables=None) -> ShotResult:
+    """Write one shot's build folder (atomic, via write_build) and note its hashes. Its tables go compressed
+    into the scan's shared OUT/tables/ (seqgen/scan/tables.py); `tables`: writer names (None: the default set)."""
+    writers = compact_writers(select_writers(tables))
+    path = write_build(out / folder, shot, compiled, findings, force=True, claim=False,  # under the scan's claim
+                       writers=writers, store=TableStore(out))
     raw = (path / "manifest.json").read_bytes()
     man = json.loads(raw)
     tables = tuple((dev, tuple(sorted((kind, f["sha256"]) for kind, f in info["files"].items())))
@@ -91,13 +95,14 @@ def prepare_out(out: Path, scan: Scan, folders: list, force: bool) -> tuple[dict
             remove_path(p)
         elif p.name.startswith("shot_") and p.name not in wanted:  # shots no longer in the scan: removed
             stale.append(p)  # only once the new run has built something
+    known = clean(out)  # stored tables whose bytes no longer match their name go, so their shots are rebuilt
     reuse = {}
     for rec in (old or {}).get("shots", []):
         i = rec.get("index")
         if (not isinstance(i, int) or i >= len(folders) or rec.get("status") not in ("built", "pending")
                 or rec.get("build") != folders[i] or not rec.get("input_sha256")):
             continue
-        found = _verify(out / folders[i], rec)
+        found = _verify(out / folders[i], rec, known)
         if found is not None:
             reuse[i] = {"input_sha256": rec["input_sha256"], "build": rec["build"], "findings": tuple(found),
                         "manifest_sha256": rec["manifest_sha256"],
@@ -105,8 +110,9 @@ def prepare_out(out: Path, scan: Scan, folders: list, force: bool) -> tuple[dict
     return reuse, stale, old is not None
 
 
-def _verify(folder: Path, rec: dict) -> list | None:
-    """The shot's findings when its build is intact (manifest and tables match their hashes), else None."""
+def _verify(folder: Path, rec: dict, known: dict | None = None) -> list | None:
+    """The shot's findings when its build is intact (manifest and tables match their hashes), else None.
+    `known`: {resolved path: sha256} of files checked already (the shared tables)."""
     try:
         raw = (folder / "manifest.json").read_bytes()
         if hashlib.sha256(raw).hexdigest() != rec.get("manifest_sha256"):
@@ -114,7 +120,9 @@ def _verify(folder: Path, rec: dict) -> list | None:
         man = json.loads(raw)
         for info in man["devices"].values():
             for f in info["files"].values():
-                if file_sha256(folder / f["path"]) != f["sha256"]:
+                path = folder / f["path"]
+                sha = (known or {}).get(str(path.resolve()))
+                if (sha if sha is not None else file_sha256(path)) != f["sha256"]:
                     return None
         return [_finding_from(d) for d in man.get("findings_list", [])]
     except (OSError, ValueError, KeyError, TypeError):
@@ -141,6 +149,12 @@ def shot_record(plan: ScanPlan, r: ShotResult) -> dict:
         "tables": {dev: dict(files) for dev, files in r.tables},
         "findings": summary(r.findings),
     }
+
+
+def listed_tables(records) -> set:
+    """The sha256 of every table file the scan.json records of built (or pending) shots list."""
+    return {sha for rec in records if rec.get("status") in ("built", "pending")
+            for files in (rec.get("tables") or {}).values() for sha in files.values()}
 
 
 class ManifestWriter:
