@@ -160,3 +160,21 @@ def test_scan_shots_share_the_trap_minimisations_of_the_beams_they_play(tmp_path
     cold = preflight(second)
     assert _findings(warm) == _findings(cold)
     assert report_rows(warm.shot) == report_rows(cold.shot)
+
+
+def test_scan_shots_share_the_condensate_scaling_integrations(tmp_path):
+    # the trap history before the release and the release at the push are the same in two time-of-flight shots:
+    # the second shot integrates no scaling equation of its own (content-keyed caches), and its physics rows
+    # equal those of the same shot checked cold
+    from seqgen.predict import release_by_content, scaling_by_content
+
+    first, second = _demo_with_tof(tmp_path, "11 ms"), _demo_with_tof(tmp_path, "14 ms")
+    clear_shared_caches()
+    preflight(first)
+    assert scaling_by_content.cache_info().currsize > 0 and release_by_content.cache_info().currsize > 0
+    misses = (scaling_by_content.cache_info().misses, release_by_content.cache_info().misses)
+    warm = preflight(second)
+    assert (scaling_by_content.cache_info().misses, release_by_content.cache_info().misses) == misses
+    clear_shared_caches()
+    cold = preflight(second)
+    assert report_rows(warm.shot) == report_rows(cold.shot)

@@ -12,6 +12,8 @@ from __future__ import annotations
 
 from .barrier import BarrierPrediction, analyse as barrier_analysis, cloud_along_path, incident_velocity
 from .cache import clear_shot_cache, per_shot_cache
+from .cloud import scaling_by_content
+from .barrier import release_by_content
 from .cloud import (CloudAtImage, ImagePrediction, Separation, SizeUnknown, cloud_at_image, image_prediction,
                     separation_analysis)
 from .imaging import ProbePrediction, probe_analysis
@@ -42,3 +44,5 @@ def clear_caches() -> None:
     """Drop the per-shot analyses (of this thread) and the content-keyed trap minimisations."""
     clear_shot_cache()
     held.cache_clear()
+    scaling_by_content.cache_clear()
+    release_by_content.cache_clear()

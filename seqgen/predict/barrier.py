@@ -73,6 +73,7 @@ seqgen.check.physics_barrier read it):
 """
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -360,6 +361,13 @@ def _trap_beam_writes(shot, t0, t1):
     return sorted(cuts)
 
 
+@functools.lru_cache(maxsize=256)
+def release_by_content(omegas, pieces, t_end):
+    """`scaling_release` keyed on content: the shots of a scan that share the trap and the push (a time-of-flight
+    scan) share the integration."""
+    return scaling_release(np.array(omegas), [(t, np.array(w)) for t, w in pieces], t_end)
+
+
 def mean_field_release(shot, push, direction, read_at, until):
     """(MeanFieldRelease, the cloud's path-length scale as a function of the time after the push starts) of a
     condensate released as the push starts (module notes), or (None, None) for a cloud without mean field."""
@@ -390,7 +398,8 @@ def mean_field_release(shot, push, direction, read_at, until):
                 wsq = np.einsum("ji,jk,k,lk,li->i", a, a1, w1**2, a1, a)
                 held.update(b.name for b in _named_trap_beams(shot, push.t0 + 0.5 * (t0 + t1)))
         pieces.append((t0, wsq))
-    sol = scaling_release(omegas, pieces, t_end)
+    sol = release_by_content(tuple(np.ravel(omegas).tolist()),
+                             tuple((float(t), tuple(np.ravel(w).tolist())) for t, w in pieces), float(t_end))
     length0 = projected_half_width(radii, cosines)
 
     def scale(t):

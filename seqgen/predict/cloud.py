@@ -11,6 +11,7 @@ Thomas-Fermi radius (Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambri
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -237,6 +238,20 @@ def _at_rest(b, db, eq, omega) -> bool:
     return bool(np.allclose(b, eq, rtol=1e-6, atol=0) and np.all(np.abs(db) <= 1e-6 * omega * b))
 
 
+@functools.lru_cache(maxsize=1024)
+def scaling_by_content(w0, times, omegas, b, db):
+    """(b, b') at the last time of `trap_scaling`, keyed on content: the shots of a scan that share a trap
+    history (a time-of-flight scan) share its integration. Read-only arrays."""
+    from ..physics.expansion import trap_scaling
+
+    bs, dbs = trap_scaling(np.array(w0), np.array(times), np.array(omegas).reshape(-1, 3), np.array(b), np.array(db),
+                           rtol=1e-8)
+    out = bs[:, -1].copy(), dbs[:, -1].copy()
+    for x in out:
+        x.setflags(write=False)
+    return out
+
+
 def _optical_history(shot, sp, t_rel):
     """A condensate through the optical trap's changes before a release at t_rel: (omega0 (3,) of the trap it
     was at rest in, b (3,), b' (3,) 1/s at the release, at_rest (at rest in the release's trap), damped), or
@@ -245,7 +260,7 @@ def _optical_history(shot, sp, t_rel):
     sudden change, a ramp follows `trap_stage`. Principal axes are followed by their rank (ascending
     frequency). Scaling equations: Phys. Rev. Lett. 77, 5315 (1996); Phys. Rev. A 54, R1753 (1996)."""
     from ..physics.adiabatic import adiabaticity_parameter
-    from ..physics.expansion import scaling_equilibrium, trap_scaling
+    from ..physics.expansion import scaling_equilibrium
 
     chans = {beam.power_channel for beam in trap_beams(shot)}
     segs = [g for g in shot.segments if g.output in chans and g.t0 < t_rel]
@@ -275,8 +290,8 @@ def _optical_history(shot, sp, t_rel):
         elif top * (z - a) > MAX_TRAP_RADIANS:
             b, db, damped = scaling_equilibrium(w0, omegas[-1]), np.zeros(3), True
         else:
-            bs, dbs = trap_scaling(w0, times, omegas, b, db, rtol=1e-8)
-            b, db = bs[:, -1], dbs[:, -1]
+            b, db = scaling_by_content(tuple(w0.tolist()), tuple(times.tolist()), tuple(omegas.ravel().tolist()),
+                                       tuple(np.ravel(b).tolist()), tuple(np.ravel(db).tolist()))
         state = (w0, b, db, damped)
     if state is None:
         return None
