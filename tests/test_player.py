@@ -161,3 +161,25 @@ def test_a_damaged_table_is_refused(built, tmp_path):
     path.write_bytes(bytes(raw))
     with pytest.raises(ValueError, match="sha256"):
         seqgen.play(copy, [0.0])
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_the_players_table_calibration_is_scipys_monotone_cubic(seed):
+    # the player maps output values to physical ones with numpy alone: its table calibration must be the
+    # monotone cubic scipy's PchipInterpolator gives (SIAM J. Numer. Anal. 17, 238 (1980); SIAM J. Sci. Stat.
+    # Comput. 5, 300 (1984)), with straight lines beyond the table, and its inverse must undo it
+    from seqgen.player import to_physical
+
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(2, 9))
+    phys = np.cumsum(rng.uniform(0.1, 2.0, n))
+    out = np.cumsum(rng.uniform(0.05, 3.0, n)) * (1 if seed % 2 else -1)
+    cal = {"kind": "table", "physical": phys.tolist(), "output": out.tolist()}
+    x = np.linspace(phys[0], phys[-1], 301)
+    y = PchipInterpolator(phys, out)(x)
+    np.testing.assert_allclose(to_physical(cal, y), x, rtol=0, atol=1e-9 * (phys[-1] - phys[0]))
+    beyond = np.array([phys[0] - 0.5, phys[-1] + 0.7])
+    lines = np.array([out[0] - 0.5 * (out[1] - out[0]) / (phys[1] - phys[0]),
+                      out[-1] + 0.7 * (out[-1] - out[-2]) / (phys[-1] - phys[-2])])
+    np.testing.assert_allclose(to_physical(cal, lines), beyond, rtol=0, atol=1e-9)
+    assert to_physical({"kind": "linear", "slope": 2.0, "offset": 0.1}, np.array([0.1, 2.1])).tolist() == [0.0, 1.0]
