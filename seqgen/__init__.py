@@ -32,6 +32,8 @@ __all__ = [
     # writing, pictures, scans, diff
     "write_build", "Writer", "available_writers", "timeline_figure", "diff_figure", "write_report",
     "plan_scan", "run_scan", "diff", "diff_paths", "DiffInputError",
+    # a build folder played back (the loader contract by example)
+    "play", "Waveform",
     "CAUTION", "__version__",
 ]
 
@@ -106,6 +108,11 @@ def _caution():
     return sys.modules[f"{__name__}.caution"]
 
 
+def _player():
+    from .player import play  # noqa: F401  (a name, not the module: `from . import` would ask this face)
+    return sys.modules[f"{__name__}.player"]
+
+
 def _compile():
     from .compile.tables import compile_shot  # noqa: F401  (a name, not the module: `from . import` would ask this face)
     return sys.modules[f"{__name__}.compile.tables"]
@@ -121,7 +128,7 @@ _WHERE = {
     "write_build": _build, "Writer": _writers, "available_writers": _writers,
     "timeline_figure": _plot, "diff_figure": _plot, "write_report": _report,
     "plan_scan": _scan_plan, "run_scan": _scan_run, "diff_paths": _diff, "DiffInputError": _diff,
-    "CAUTION": _caution,
+    "CAUTION": _caution, "play": _player, "Waveform": _player,
 }
 
 # `resolve` is also the name of the resolve stage's package, which importing it binds on this module: the

@@ -67,12 +67,43 @@ class Output:
     hard_min: float | None = None
     hard_max: float | None = None
     pos: SourcePos = SourcePos("")
+    code: str | None = None  # DAC code convention as the rig writes it (None: the default, see code_convention)
+    reference_clock_hz: float | None = None  # a synth frequency part's reference clock: its word counts fclk / 2^bits
+
+    @property
+    def code_convention(self) -> str:
+        """How a value becomes the integer the hardware takes (IEEE Std 1658-2011, DAC terminology):
+        "digital" (0/1), "none" (no bits: no code), "offset_binary" (default for a range around 0: code 0 at
+        lo, 2^(bits-1) at the middle), "twos_complement" (the offset-binary code minus 2^(bits-1), so the
+        middle is 0) or "straight_binary" (default otherwise and for synth words: code 0 at lo)."""
+        if self.kind == "digital":
+            return "digital"
+        if not self.bits:
+            return "none"
+        if self.code:
+            return self.code
+        return "offset_binary" if self.kind != "synth" and self.lo < 0 < self.hi else "straight_binary"
 
     @property
     def lsb(self) -> float:
+        """One code step: span / 2^bits (so a bipolar range has an exact code at its middle and the top of the
+        range, hi, is one LSB above the top code); a synth frequency with a reference clock: fclk / 2^bits."""
         if self.kind == "digital" or not self.bits:
             return 0.0
-        return (self.hi - self.lo) / (2 ** self.bits - 1)
+        if self.reference_clock_hz:
+            return self.reference_clock_hz / 2 ** self.bits
+        return (self.hi - self.lo) / 2 ** self.bits
+
+    @property
+    def code_zero(self) -> float:
+        """The output value of code 0: value = code_zero + code x lsb (twos_complement: the signed code)."""
+        if self.kind == "digital" or not self.bits:
+            return 0.0
+        if self.reference_clock_hz:
+            return 0.0
+        if self.code_convention == "twos_complement":
+            return self.lo + 2 ** (self.bits - 1) * (self.hi - self.lo) / 2 ** self.bits
+        return self.lo
 
     @property
     def sample_tolerance(self) -> float:
@@ -271,6 +302,13 @@ class DeviceTable:
     units: tuple
     kinds: tuple
     rows_per_segment: Mapping = field(default_factory=dict)  # (block, output, t0) -> rows
+    # the integers the hardware takes, int64 rows x columns: value = code_zero + code x code_lsb per column
+    # (conventions: Output.code_convention; "none": no bits, code 0, read `values`)
+    codes: object = None
+    code_conventions: tuple = ()
+    code_bits: tuple = ()  # 1 for digital, 0 for "none"
+    code_lsb: tuple = ()  # output units per code (1 for digital, 0 for "none")
+    code_zero: tuple = ()  # output value of code 0
 
 
 @dataclass(frozen=True)

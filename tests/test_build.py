@@ -53,7 +53,16 @@ def test_manifest_validates_and_tables_load(demo, tmp_path):
         np.testing.assert_allclose(z["time_s"], z["tick"] / info["timebase_hz"])
         csv = np.loadtxt(out / info["files"]["csv"]["path"], delimiter=",", skiprows=1, ndmin=2)
         np.testing.assert_array_equal(csv[:, 0], z["tick"])
-        np.testing.assert_allclose(csv[:, 2:], z["values"], rtol=1e-9, atol=1e-12)
+        n = len(info["columns"])
+        assert csv.shape[1] == 2 + 2 * n  # tick, time_s, a value column and a code column per output
+        np.testing.assert_allclose(csv[:, 2:2 + n], z["values"], rtol=1e-9, atol=1e-12)
+        assert z["codes"].dtype == np.int64 and z["codes"].shape == z["values"].shape
+        np.testing.assert_array_equal(csv[:, 2 + n:], z["codes"])
+        for j, col in enumerate(info["columns"]):
+            code = col["code"]
+            if code["convention"] != "none":  # value = zero + code x lsb (schemas/manifest.schema.json)
+                np.testing.assert_allclose(code["zero"] + z["codes"][:, j] * code["lsb"], z["values"][:, j],
+                                           rtol=0, atol=1e-9 * max(1.0, abs(code["zero"])))
 
 
 def test_same_input_same_bytes(demo, tmp_path):
@@ -86,8 +95,9 @@ def test_calibrated_values_in_output_units(demo):
     # cross_a: 2 V per W (rig); the load block sets 3.2 W -> 6.4 V, quantized to a 16-bit code over +-10 V
     ao = next(t for t in demo.compiled.tables if t.device == "ao_main")
     col = ao.columns.index("cross_a_power")
-    lsb = 20.0 / (2 ** 16 - 1)
-    assert abs(ao.values[0, col]) <= lsb / 2  # safe 0 W: nearest code to 0 V
+    lsb = 20.0 / 2 ** 16  # IEEE Std 1658-2011: 2^N LSB span the range
+    assert ao.values[0, col] == 0.0  # safe 0 W: 0 V has its own code, 0x8000 in offset binary
+    assert ao.codes[0, col] == 0x8000 and ao.code_conventions[col] == "offset_binary"
     first_on = ao.values[np.argmax(ao.values[:, col] > 1.0), col]
     assert abs(first_on - 6.4) <= lsb / 2 + 1e-12
 
@@ -154,15 +164,16 @@ def test_an_explicit_tuple_of_writers_is_all_that_is_written(demo, tmp_path):
     assert not list(out.glob("*.csv"))
 
 
-# The build's table bytes before the writers were split out (sequences/na23_thermometry.yaml built on commit
-# 713f9be): a regression pin on the file formats, not values the code under test produced for this test.
-THERMOMETRY_TABLES_713F9BE = {
-    "ao_main.csv": "a08cffc5eaa9bc6d663cd75eab165580d6fc5ab23804813cf230f01ca1b82925",
-    "ao_main.npz": "0f86c0afc83a4af1a7b02404d400398e476122e9bc59ed7fa5fc5f6557fbb773",
-    "dio_main.csv": "78d3973b28f1edc1e9903701f4d6aff1db7dae906e88c32f2146b721f2485192",
-    "dio_main.npz": "97f94a41f7f593b59ecf721f0004509e26afc9b420a7ba2ab1ada3a096c293c8",
-    "synth_rf.csv": "2805955eb4de106d2b8e9b6aa410a33bafa1e202db6ab643acc20a868a1846ce",
-    "synth_rf.npz": "42ddbb8e99ca68a7e670996d3de7df4fadd88cb7537e7b55cbbc03625709da71",
+# The build's table bytes (sequences/na23_thermometry.yaml) since tables carry DAC codes (LSB = span / 2^bits,
+# a `codes` array in the .npz, code columns in the .csv): a regression pin on the file formats, taken when that
+# change was made on purpose (the earlier pin, of commit 713f9be, had LSB = span / (2^bits - 1) and no codes).
+THERMOMETRY_TABLES_DAC_CODES = {
+    "ao_main.csv": "ffb99e7e7f19f5659fa8d37b695586b3e2dfa5a449c1371a5439aefeffdc659a",
+    "ao_main.npz": "aa313488aa6a4e8d4a5aee8779a6c00d02540d16cd666544e58d6f3df2b55e21",
+    "dio_main.csv": "100d8ee9c6d171db23bcef80b2d2a623324cce6d336c0428e2673abfe8a7cf78",
+    "dio_main.npz": "166117bb87f289b449517e9a4c4dd0d0d68cc7105029a6f8b2ff83ee5e3eba33",
+    "synth_rf.csv": "c5d173444a0f3369c6c637ee0e40d85fd947e3b2e0936182405b5ba5d3ec0df9",
+    "synth_rf.npz": "f0d95e84006308b14b4bbdcd0770a68105fb539dec5a2eb871ffe70e445d4665",
 }
 
 
@@ -171,7 +182,7 @@ def test_default_writers_give_the_same_table_bytes_as_before(tmp_path, entry_poi
     res = preflight(SEQUENCES / "na23_thermometry.yaml")
     out = write_build(tmp_path / "t", res.shot, res.compiled, res.findings)
     tables = {k: v for k, v in _hashes(out).items() if k != "manifest.json"}
-    assert tables == THERMOMETRY_TABLES_713F9BE
+    assert tables == THERMOMETRY_TABLES_DAC_CODES
 
 
 @dataclass(frozen=True)

@@ -456,7 +456,7 @@ def _rig_numbers():
     tick = 1 / parse_simple(dev["timebase"]).value
     h = parse_simple(dev["min_interval"]).value
     lo, hi = (parse_simple(v).value for v in ch["output"]["range"])
-    lsb = (hi - lo) / (2 ** ch["output"]["bits"] - 1)
+    lsb = (hi - lo) / 2 ** ch["output"]["bits"]  # IEEE Std 1658-2011: 2^N LSB span the range
     return slope, tick, h, lsb
 
 

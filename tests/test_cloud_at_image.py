@@ -92,9 +92,15 @@ def line_of(a, b):
 
 
 def dac(value, lo, hi, bits):
-    """The value a DAC of 2^bits codes over [lo, hi] plays: the nearest code, LSB (hi - lo) / (2^bits - 1)."""
-    lsb = (hi - lo) / (2 ** bits - 1)
-    return lo + round((value - lo) / lsb) * lsb
+    """The value a DAC of 2^bits codes over [lo, hi] plays: the nearest code (ties up), LSB (hi - lo) / 2^bits,
+    the top code hi - 1 LSB (IEEE Std 1658-2011, DAC terminology)."""
+    lsb = (hi - lo) / 2 ** bits
+    return lo + min(math.floor((value - lo) / lsb + 0.5), 2 ** bits - 1) * lsb
+
+
+# the mw synth's 14-bit amplitude word over [0, 1] (rig): a pi/2 pulse of 50 us at 5 kHz per unit amplitude asks
+# for amplitude 1, the top of the range, which plays the top code, 1 - 2^-14
+MW_FULL = dac(1.0, 0.0, 1.0, 14)
 
 
 def sg_blocks(pulse="clock_pulse: {drive: mw, angle: pi/2, duration: 50 us, frequency: "
@@ -135,8 +141,9 @@ def test_separated_components_sit_where_the_moments_send_them(tmp_path):
     by_state = {c.state: c for c in pred.components}
     assert set(by_state) == {(1, -1), (2, -2)}
     for st, comp in by_state.items():
-        # a resonant pi/2 pulse: Rabi formula sin^2(pi/4) = 1/2 in each state
-        assert comp.fraction == pytest.approx(0.5, abs=1e-9)
+        # a resonant pi/2 pulse: Rabi formula sin^2(pi/4) = 1/2 in each state, at the played amplitude
+        p = math.sin(math.pi / 4 * MW_FULL) ** 2
+        assert comp.fraction == pytest.approx(p if st == (2, -2) else 1 - p, abs=1e-9)
         assert comp.positions.shape == (1, 3)  # the coil says where |B| grows: one case
         assert comp.positions[0, 2] == pytest.approx(sg_hand_z(shot, st), rel=1e-6)
         assert comp.positions[0, :2] == pytest.approx([0.0, 0.0], abs=1e-15)
@@ -348,7 +355,9 @@ def test_populations_follow_the_rabi_formula(tmp_path):
               f"frequency: {line + delta:.3f} Hz, transition: {T_1M1_2M2}}}\n")
     res = run(tmp_path, blocks)
     shot = res.shot
-    om, de, t = 2 * math.pi * 5e3, 2 * math.pi * delta, 50e-6
+    # the synth plays the 32-bit code nearest the frequency written (rig: 1.0 GHz .. 2.5 GHz)
+    played = dac(float(f"{line + delta:.3f}"), 1.0e9, 2.5e9, 32)
+    om, de, t = 2 * math.pi * 5e3 * MW_FULL, 2 * math.pi * (played - line), 50e-6
     w = math.hypot(om, de)
     p = om**2 / w**2 * math.sin(w * t / 2) ** 2
     fr = pr.state_fractions(shot, shot.duration_s + 1.0)

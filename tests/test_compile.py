@@ -37,7 +37,7 @@ from . import reference_shapes as shapes_ref
 TICK = 1e-6  # every device of the test rig runs at 1 MHz
 BITS = 16
 LO, HI = -10.0, 10.0
-LSB = (HI - LO) / (2 ** BITS - 1)
+LSB = (HI - LO) / 2 ** BITS  # IEEE Std 1658-2011: the full-scale range is 2^N LSB
 SLOPE, OFFSET = 2.0, 0.25  # linear calibration V = 2 V/W * P + 0.25 V
 CAL_TABLE = ((0.0, 0.0), (0.5, 1.1), (1.0, 2.05), (2.0, 3.9), (3.0, 5.8), (4.5, 8.6))  # W -> V
 SHAPE_TABLE = ((0.0, 0.0), (0.2, 0.5), (0.5, 0.6), (1.0, 1.0))
@@ -66,7 +66,7 @@ for _dev in DEVICES:
     RIG += (f"  tab_{_dev}: {{device: {_dev}, kind: analog, output: {{unit: V, range: [-10 V, 10 V], bits: 16}}, "
             "calibration: {quantity: W, table: [[0 W, 0 V], [0.5 W, 1.1 V], [1 W, 2.05 V], [2 W, 3.9 V], "
             "[3 W, 5.8 V], [4.5 W, 8.6 V]]}, safe: 0 W}\n")
-RIG += """  coarse: {device: hold1, kind: analog, output: {unit: V, range: [0 V, 6.5535 V], bits: 16}, safe: 0 V}
+RIG += """  coarse: {device: hold1, kind: analog, output: {unit: V, range: [0 V, 6.5536 V], bits: 16}, safe: 0 V}
   exact_hold1: {device: hold1, kind: analog, output: {unit: V, range: [-5 V, 5 V]}, safe: 0 V}
   exact_lin1: {device: lin1, kind: analog, output: {unit: V, range: [-5 V, 5 V]}, safe: 0 V}
   gate: {device: fine, kind: digital, safe: 0}
@@ -281,9 +281,12 @@ def test_latency_shift_then_half_tick_rounds_later(tmp_path):
     assert dict(zip(ticks.tolist(), col.tolist()))[30] == 0.0
 
 
-@pytest.mark.parametrize("volts", ["1.00005", "1.0000499", "0.00005", "6.55345", "6.5535", "0", "3.27675"])
+@pytest.mark.parametrize("volts", ["1.00005", "1.0000499", "0.00005", "6.55345", "6.5535", "0", "3.27675",
+                                   "6.55355", "6.5536"])
 def test_values_round_to_nearest_code_ties_up(tmp_path, volts):
-    # range [0 V, 6.5535 V] at 16 bits: LSB = 0.1 mV, so code = value / 0.1 mV, an exact half going up
+    # range [0 V, 6.5536 V] at 16 bits: LSB = 6.5536 V / 2^16 = 0.1 mV (IEEE Std 1658-2011: 2^N LSB span the
+    # range), so code = value / 0.1 mV, an exact half going up; the top code 65535 is 6.5535 V, and a value
+    # at or above 6.55355 V (the top of the range included) plays it
     res = run(tmp_path, f"""  - name: a
     at: 1 ms
     actions:
@@ -291,13 +294,13 @@ def test_values_round_to_nearest_code_ties_up(tmp_path, volts):
 """)
     assert res.ok
     _, ticks, col = column(res, "coarse")
-    code = int((Decimal(volts) / Decimal("0.0001")).quantize(Decimal(1), rounding=ROUND_HALF_UP))
+    code = min(65535, int((Decimal(volts) / Decimal("0.0001")).quantize(Decimal(1), rounding=ROUND_HALF_UP)))
     got = col[np.searchsorted(ticks, 1000, side="right") - 1]
-    lsb = 6.5535 / 65535
+    lsb = 0.0001
     assert round(got / lsb) == code
     assert got == pytest.approx(code * lsb, abs=1e-12)
-    if volts == "6.5535":
-        assert got == 6.5535  # the top code is the top of the range exactly
+    if volts in ("6.5535", "6.55355", "6.5536"):
+        assert got == pytest.approx(6.5535, abs=1e-12)  # the top code: one LSB below the top of the range
 
 
 @pytest.mark.parametrize("dev", ["hold1", "lin1"])

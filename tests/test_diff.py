@@ -481,15 +481,15 @@ def test_schema_is_valid_draft_2020_12():
 
 # --- one DAC code --------------------------------------------------------------------------------------------------
 
-# probe_power in the demo rig file: range 0..5 V, 16 bits, calibration 0.05 V/uW. Codes span the range inclusive
-# (code 0 = lo, code 2^bits - 1 = hi, the convention of compile.sampling.quantize_values), so one code is
-# 5 V / 65535 = 1.5259e-3 uW of probe power.
-PROBE_LSB_V = 5.0 / (2 ** 16 - 1)
+# probe_power in the demo rig file: range 0..5 V, 16 bits, calibration 0.05 V/uW. 2^bits codes span the range
+# (IEEE Std 1658-2011, DAC terminology: code 0 = lo, one LSB = (hi - lo) / 2^bits), so one code is
+# 5 V / 65536 = 1.5259e-3 uW of probe power.
+PROBE_LSB_V = 5.0 / 2 ** 16
 PROBE_V_PER_UW = 0.05
 
 
 def test_one_dac_code_is_reported_by_diff_and_marked_by_the_plot(tmp_path, monkeypatch, capsys):
-    """40 uW is code 26214 exactly (2 V); one code more is 40 uW + 1 LSB / (0.05 V/uW). `seqgen diff` and the plot's
+    """40 uW is 2 V, 26214.4 codes: code 26214; one code more is 40 uW + 1 LSB / (0.05 V/uW), code 26215. `seqgen diff` and the plot's
     diff windows share one comparison, so both see this change."""
     sides = {}
     for side in ("old", "new"):
@@ -510,7 +510,7 @@ def test_one_dac_code_is_reported_by_diff_and_marked_by_the_plot(tmp_path, monke
     text = capsys.readouterr().out
     (line,) = [ln for ln in text.splitlines() if "output probe_power" in ln]
     assert "differs in 1 window(s) from 1719.1 ms to 1719.13 ms" in line
-    assert "76.2951 uV" in line  # 5 V / 65535, one code
+    assert "76.2939 uV" in line  # 5 V / 65536, one code
     assert sum("differs in" in ln for ln in text.splitlines()) == 1  # no other output changed
 
     assert main(["diff", sides["old"], sides["new"], "--json"]) == 1

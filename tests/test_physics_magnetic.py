@@ -191,9 +191,10 @@ def test_ioffe_pritchard_frequencies_in_the_report(tmp_path):
 def test_ioffe_pritchard_low_bias_and_field_zero(tmp_path):
     body, sample = ip_hold("199.9 A")  # B0 = 0.01 G: Larmor ~7 kHz, below 10 x the radial frequency
     f = only(run(tmp_path, body, sample=sample, rig=IP_RIG), "physics.majorana-loss")
-    # the currents as played: the nearest code of a 16-bit 0..10 V channel at 0.025 V/A (LSB 10 V / (2^16 - 1));
+    # the currents as played: the nearest code of a 16-bit 0..10 V channel at 0.025 V/A (LSB 10 V / 2^16,
+    # IEEE Std 1658-2011);
     # B0 is a small difference of two large currents, so the codes move it by a few per cent
-    lsb = 10.0 / (2 ** 16 - 1)
+    lsb = 10.0 / 2 ** 16
 
     def amps(i):
         return round(i * 0.025 / lsb) * lsb / 0.025

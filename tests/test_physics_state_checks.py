@@ -44,15 +44,21 @@ SAMPLE = "sample: {species: Na23, state: {F: 1, mF: -1}, atoms: 1.2e5, temperatu
 
 
 def dac(value, lo, hi, bits):
-    """The value a DAC of 2^bits codes spanning [lo, hi] plays for `value`: the nearest code, LSB (hi - lo) /
-    (2^bits - 1) (the hardware plays quantized values: seqgen.predict.played)."""
-    lsb = (hi - lo) / (2 ** bits - 1)
-    return lo + round((value - lo) / lsb) * lsb
+    """The value a DAC of 2^bits codes spanning [lo, hi] plays for `value`: the nearest code (ties up), LSB
+    (hi - lo) / 2^bits, the top code hi - 1 LSB (IEEE Std 1658-2011, DAC terminology; the hardware plays
+    quantized values: seqgen.predict.played)."""
+    lsb = (hi - lo) / 2 ** bits
+    return lo + min(math.floor((value - lo) / lsb + 0.5), 2 ** bits - 1) * lsb
 
 
 def mw_freq(f):
     """The frequency the demo rig's mw synth plays for f (rig: range 1.0 GHz .. 2.5 GHz, 32 bits)."""
     return dac(f, 1.0e9, 2.5e9, 32)
+
+
+# the mw synth's 14-bit amplitude word over [0, 1] (rig): amplitude 1 (a pi/2 pulse of 50 us at 5 kHz per unit
+# amplitude, a sweep's full power) is the top of the range, which plays the top code, 1 - 2^-14
+MW_FULL = dac(1.0, 0.0, 1.0, 14)
 
 
 def line_hz(a, b, B=BIAS):
@@ -112,15 +118,16 @@ def test_demo_is_quiet_and_reports_every_stage(demo):
 
 def test_demo_pulse_area_line_and_transfer(demo):
     rep = ps.pulse_analysis(demo, only(demo, "clock_pulse"))
-    # square pulse: area = Omega t = 2 pi x 5 kHz x 50 us = pi/2 (pulse area theorem, Phys. Rev. 183, 457 (1969))
-    assert rep.area == pytest.approx(math.pi / 2, rel=1e-9)  # times near 2.7 s: float rounding ~1e-11
+    # square pulse: area = Omega t = 2 pi x 5 kHz x 50 us = pi/2 at amplitude 1 (pulse area theorem, Phys. Rev.
+    # 183, 457 (1969)), played at the top amplitude code
+    assert rep.area == pytest.approx(math.pi / 2 * MW_FULL, rel=1e-9)  # times near 2.7 s: float rounding ~1e-11
     a, b = (1, -1), (2, -2)
     assert rep.pair == (a, b)
     assert rep.line_hz == pytest.approx(line_hz(a, b), abs=0.01)
     delta = mw_freq(1.7691054e9) - line_hz(a, b)  # the synth plays the 32-bit code nearest the demo's frequency
     assert rep.detuning_hz == pytest.approx(delta, abs=0.01)
     # Rabi formula, Phys. Rev. 51, 652 (1937)
-    om, de, t = 2 * math.pi * 5e3, 2 * math.pi * delta, 50e-6
+    om, de, t = 2 * math.pi * 5e3 * MW_FULL, 2 * math.pi * delta, 50e-6
     w = math.hypot(om, de)
     assert rep.transfer == pytest.approx(om**2 / w**2 * math.sin(w * t / 2) ** 2, abs=1e-9)
     # d nu / dB from the hand Breit-Rabi formula (central difference); about -1.5 x 1.4 kHz/mG at low field
@@ -266,7 +273,7 @@ def test_detuned_pulse_warns_and_transfer_follows_rabi_formula(tmp_path):
               "transition: [{F: 1, mF: -1}, {F: 2, mF: -2}]}\n")
     shot = write(tmp_path, blocks)
     rep = ps.pulse_analysis(shot, only(shot, "clock_pulse"))
-    om, de, t = 2 * math.pi * 5e3, 2 * math.pi * (mw_freq(f) - line_hz(a, b)), 50e-6
+    om, de, t = 2 * math.pi * 5e3 * MW_FULL, 2 * math.pi * (mw_freq(f) - line_hz(a, b)), 50e-6
     w = math.hypot(om, de)
     assert rep.transfer == pytest.approx(om**2 / w**2 * math.sin(w * t / 2) ** 2, abs=1e-6)  # Phys. Rev. 51, 652 (1937)
     codes = [x.code for x in state_findings(shot)]
@@ -322,7 +329,7 @@ def test_slow_sweep_is_adiabatic_and_matches_landau_zener(tmp_path):
     shot = write(tmp_path, _sweep(f0 - 0.5e6, f0 + 0.5e6, "20 ms"))
     (drive, seg), = sweeps(shot)
     rep = ps.sweep_analysis(shot, drive, seg)
-    om, rate = 2 * math.pi * 5e3, 2 * math.pi * 1e6 / 20e-3
+    om, rate = 2 * math.pi * 5e3 * MW_FULL, 2 * math.pi * 1e6 / 20e-3
     lz = 1 - math.exp(-math.pi * om**2 / (2 * rate))  # Proc. R. Soc. A 137, 696 (1932)
     assert rep.lz_transfer == pytest.approx(lz, rel=1e-6)
     assert rep.bloch_transfer == pytest.approx(lz, abs=5e-3)  # 100 Rabi frequencies each side: LZ holds
@@ -333,7 +340,7 @@ def test_fast_sweep_fault_matches_landau_zener():
     shot = shot_of(SEQUENCES / "faults" / "sweep_not_adiabatic.yaml")
     (drive, seg), = sweeps(shot)
     rep = ps.sweep_analysis(shot, drive, seg)
-    om, rate = 2 * math.pi * 5e3, 2 * math.pi * 1.9e6 / 100e-6
+    om, rate = 2 * math.pi * 5e3 * MW_FULL, 2 * math.pi * 1.9e6 / 100e-6
     assert rep.lz_transfer == pytest.approx(1 - math.exp(-math.pi * om**2 / (2 * rate)), rel=1e-6)
 
 

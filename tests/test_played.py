@@ -1,11 +1,14 @@
 """`seqgen.predict.played`: the physical value each output plays, read back from the compiled tables.
 
 Expected values are computed here from the definitions, with the rig's own numbers written below: a DAC of
-2^bits codes over [lo, hi] plays the nearest code, LSB = (hi - lo) / (2^bits - 1); a row written at tick k
+2^bits codes over [lo, hi] plays the nearest code (ties up), LSB = (hi - lo) / 2^bits, codes 0 .. 2^bits - 1
+(IEEE Std 1658-2011, DAC terminology: 2^N LSB span the full-scale range); a row written at tick k
 with latency L appears at k x tick + L, the compiler writing it early by L (nearest tick) so that the output
 changes at the intended time; a linear calibration out = slope x phys + offset is inverted as
 phys = (out - offset) / slope; a hold device holds each row, a linear one interpolates between rows.
 """
+
+import math
 
 import numpy as np
 import pytest
@@ -48,12 +51,12 @@ channels:
 
 
 def lsb():
-    return (HI - LO) / (2 ** BITS - 1)
+    return (HI - LO) / 2 ** BITS
 
 
 def dac(volts):
-    """The output value of the nearest code."""
-    return LO + round((volts - LO) / lsb()) * lsb()
+    """The output value of the nearest code (an exact half goes up; the top code is hi - 1 LSB)."""
+    return LO + min(math.floor((volts - LO) / lsb() + 0.5), 2 ** BITS - 1) * lsb()
 
 
 def appears(t, latency, tick):

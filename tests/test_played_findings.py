@@ -39,8 +39,8 @@ def test_a_set_inside_a_trap_ramp_is_checked_as_played_and_named():
     assert [f.line for f in lost] == [15]
     assert "line 16" in lost[0].message and dict(lost[0].data)["other_line"] == 16
     # the played power at the glitch is the set's 5 mW (0.05 V through the guide's 5 V/W, 16 bits over
-    # 0..10 V: the nearest code), not the ramp's
-    lsb = 10.0 / (2 ** 16 - 1)
+    # 0..10 V, LSB 10 V / 2^16 (IEEE Std 1658-2011): the nearest code), not the ramp's
+    lsb = 10.0 / 2 ** 16
     assert "5.005 mW" in lost[0].message and abs(round(0.025 / lsb) * lsb / 5 - 5.005e-3) < 5e-7
 
 

@@ -143,7 +143,7 @@ def test_physical_units_with_output_unit_on_a_secondary_axis(tmp_path):
     table = _line(ax, "table:guide_power")
     y = np.asarray(table.get_ydata(), float)
     rig = _rig_yaml()["channels"]["guide_power"]
-    lsb_v = 10.0 / (2 ** rig["output"]["bits"] - 1)  # range [0 V, 10 V] in the rig file
+    lsb_v = 10.0 / 2 ** rig["output"]["bits"]  # range [0 V, 10 V] in the rig file (IEEE Std 1658-2011: 2^N LSB)
     slope = 5.0  # V/W, the rig file's linear calibration
     assert np.max(y) == pytest.approx(200.0, abs=lsb_v / slope * 1e3)
     # the secondary axis maps the display unit to the output unit with the rig's calibration: 200 mW -> 1 V
@@ -551,11 +551,12 @@ def test_a_flat_lane_gets_a_round_tick(demo):
     ax = _lanes(fig)["cross_a_power"]  # ramped to 0 W before 2.70 s (load_guide), untouched after
     spec = _rig_yaml()["channels"]["cross_a_power"]
     lo_v, hi_v = (float(x.split()[0]) for x in spec["output"]["range"])  # [-10 V, 10 V], 16 bits
-    lsb = (hi_v - lo_v) / (2 ** spec["output"]["bits"] - 1)
-    slope = float(spec["calibration"]["linear"]["slope"].split()[0])  # 2 V/W
-    # 0 V falls halfway between two codes and rounds to the higher one: the table holds +lsb/2, 0.0763 mW
+    lsb = (hi_v - lo_v) / 2 ** spec["output"]["bits"]  # IEEE Std 1658-2011: 2^N LSB span the range
+    # 0 V is half the range, 2^15 LSB above -10 V: a code of its own (0x8000 in offset binary), so the table
+    # holds 0 exactly
+    assert (0.0 - lo_v) / lsb == 2 ** 15
     y = np.asarray(_line(ax, "table:cross_a_power").get_ydata(), float)
-    assert np.allclose(y, lsb / 2 / slope * 1e3, rtol=1e-6)
+    assert len(y) and np.all(y == 0.0)
     # ... but the lane reads a round 0 (mW) and 0 (V), not "0.0763" and "0.0001526"
     assert list(ax.yaxis.get_major_locator()()) == [0.0]
     (sec,) = [c for c in ax.child_axes if c.get_label() == "output-unit:cross_a_power"]

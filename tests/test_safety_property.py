@@ -15,9 +15,10 @@ seqgen.calibration (the code that compile itself uses): a linear calibration by 
 closed form out = slope * x + offset, a table by scipy's PchipInterpolator on the
 table as written in the rig file (monotone piecewise cubic interpolation, SIAM J.
 Numer. Anal. 17, 238 (1980); the README's "monotone cubic" for tables).
-Allowance: half a least significant bit, LSB = span / (2^bits - 1) (the step
-between codes when the lowest and highest codes sit on the ends of the range),
-the largest error of rounding to the nearest code, plus float round-off.
+Allowance: half a least significant bit, LSB = span / 2^bits (IEEE Std 1658-2011,
+DAC terminology: 2^N codes from the bottom of the range, the top code one LSB below
+its top), the largest error of rounding to the nearest code, plus float round-off
+(a value in the top half code plays the top code, up to one LSB below it).
 
 The rig (sequences/rigs/na23_demo_rig.yaml) is read here with PyYAML and its
 quantities converted with pint, independently of seqgen's rig resolver. No
@@ -79,7 +80,7 @@ def _limited_channels():
         unit = cal["quantity"]
         lo = _qty(lim["min"], unit) if "min" in lim else None
         lo_v, hi_v = (_qty(v, "V") for v in ch["output"]["range"])
-        half_lsb = (hi_v - lo_v) / (2 ** ch["output"]["bits"] - 1) / 2
+        half_lsb = (hi_v - lo_v) / 2 ** ch["output"]["bits"] / 2
         out[name] = (unit, lo, _qty(lim["max"], unit), _output_map(cal, unit), half_lsb)
     return out
 

@@ -393,13 +393,14 @@ def test_quantize_times_negative_not_allowed():
 
 
 def test_quantize_values_16_bit_ends_and_code_boundaries():
+    # IEEE Std 1658-2011 (DAC terminology): the full-scale range is 2^N LSB, code 0 at its bottom, the top
+    # code 2^N - 1 one LSB below its top; a bipolar range has an exact code at its middle
     lo, hi, bits = -10.0, 10.0, 16
-    lsb = Fraction(20, 2 ** 16 - 1)  # (hi - lo) / (2^N - 1): code 0 = lo, code 2^N - 1 = hi
-    codes, back = quantize_values(np.array([lo, hi, 0.0]), lo, hi, bits)
-    # 0 V sits exactly 32767.5 codes above lo (10 / lsb, exact rational): a tie, which goes up
-    assert Fraction(10) / lsb == Fraction(65535, 2)
-    assert codes.tolist() == [0, 65535, 32768]
-    assert back[0] == lo and back[1] == hi
+    lsb = Fraction(20, 2 ** 16)
+    codes, back = quantize_values(np.array([lo, hi, 0.0, float(hi - lsb)]), lo, hi, bits)
+    assert Fraction(10) / lsb == 32768  # 0 V: exactly code 0x8000
+    assert codes.tolist() == [0x0000, 0xFFFF, 0x8000, 0xFFFF]  # a value at hi plays the top code
+    assert back[0] == lo and back[2] == 0.0 and back[1] == back[3] == float(hi - lsb)
     # exact half-LSB boundaries go up; a hair below stays down
     c = np.arange(0, 65535, 997)
     half = np.array([float(lo + (Fraction(int(x)) + Fraction(1, 2)) * lsb) for x in c])
@@ -412,21 +413,30 @@ def test_quantize_values_random_against_exact_rationals():
     rng = np.random.default_rng(7)
     for lo, hi, bits in ((-10.0, 10.0, 16), (0.0, 1.0, 12), (-5.0, 5.0, 18), (0.1, 0.3, 8)):
         v = rng.uniform(lo, hi, 2000)
-        nmax = 2 ** bits - 1
-        expected = [math.floor((Fraction(x) - Fraction(lo)) * nmax / (Fraction(hi) - Fraction(lo)) + Fraction(1, 2))
-                    for x in v]
+        n = 2 ** bits
+        expected = [min(n - 1, math.floor((Fraction(x) - Fraction(lo)) * n / (Fraction(hi) - Fraction(lo))
+                                          + Fraction(1, 2))) for x in v]
         codes, back = quantize_values(v, lo, hi, bits)
         assert codes.tolist() == expected
-        # the value written is within half an LSB of the request
-        assert np.all(np.abs(back - v) <= (hi - lo) / nmax / 2 * (1 + 1e-9))
+        # the value written is within half an LSB of the request (one LSB in the top half-code)
+        lsb = (hi - lo) / n
+        inside = v <= hi - lsb
+        assert np.all(np.abs(back - v)[inside] <= lsb / 2 * (1 + 1e-9))
+        assert np.all(np.abs(back - v) <= lsb * (1 + 1e-9))
 
 
-def test_quantize_values_round_trip_and_one_bit():
+def test_quantize_values_round_trip_one_bit_and_another_grid():
     codes = np.arange(2 ** 16)
-    back_all = -10.0 + codes * (20.0 / 65535)
-    assert np.array_equal(quantize_values(np.clip(back_all, -10, 10), -10.0, 10.0, 16)[0], codes)
-    c1, b1 = quantize_values(np.array([0.0, 0.49, 0.5, 1.0]), 0.0, 1.0, 1)
-    assert c1.tolist() == [0, 0, 1, 1] and b1.tolist() == [0.0, 0.0, 1.0, 1.0]
+    back_all = -10.0 + codes * (20.0 / 65536)
+    assert np.array_equal(quantize_values(back_all, -10.0, 10.0, 16)[0], codes)
+    # one bit over [0, 1]: LSB 1/2, codes 0 (0) and 1 (0.5); 0.25 is a tie and goes up
+    c1, b1 = quantize_values(np.array([0.0, 0.24, 0.25, 1.0]), 0.0, 1.0, 1)
+    assert c1.tolist() == [0, 0, 1, 1] and b1.tolist() == [0.0, 0.0, 0.5, 0.5]
+    # a frequency word: 32 bits of a 1 GHz clock count 1e9 / 2^32 Hz from 0 Hz (tuning word f 2^N / fclk)
+    step = 1e9 / 2 ** 32
+    c, b = quantize_values(np.array([100e6, 250e6]), 50e6, 300e6, 32, origin=0.0, step=step)
+    assert c.tolist() == [round(Fraction(100_000_000 * 2 ** 32, 10 ** 9)), 2 ** 30]
+    assert b[1] == 250e6
 
 
 def test_quantize_values_out_of_range_raises():

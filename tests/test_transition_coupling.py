@@ -98,8 +98,13 @@ def test_sigma_pulse_on_another_transition_is_scaled_by_the_matrix_element_ratio
     assert coupling_factor(shot, drive) != ratio  # the sample's own pair |1,1> -> |2,1> is pi: not this drive's
     act = next(a for a in shot.phys if a.kind == "clock_pulse")
     rep = pulse_analysis(shot, act)
-    assert rep.peak_rabi_hz == pytest.approx(2e3 * ratio, rel=1e-9)
-    assert rep.area == pytest.approx(2 * math.pi * 2e3 * ratio * 102.06e-6, rel=1e-6)
+    # the pulse asks for the amplitude of a pi pulse at 2 kHz x ratio per unit amplitude; the synth plays the
+    # nearest code of its 14-bit word over [0, 1] (LSB 2^-14, ties up, the top code 1 - 2^-14: IEEE Std
+    # 1658-2011, DAC terminology)
+    asked = 0.5 / (2e3 * ratio * 102.06e-6)
+    amp = min(math.floor(asked * 2 ** 14 + 0.5), 2 ** 14 - 1) / 2 ** 14
+    assert rep.peak_rabi_hz == pytest.approx(2e3 * ratio * amp, rel=1e-9)
+    assert rep.area == pytest.approx(2 * math.pi * 2e3 * ratio * amp * 102.06e-6, rel=1e-6)
     assert rep.area == pytest.approx(math.pi, rel=0.05)
 
 
@@ -213,4 +218,6 @@ def test_calibration_on_a_transition_the_polarisation_cannot_drive(tmp_path):
     assert "polarisation" in hits[0].hint and "calibrated_on" in hits[0].hint
     shot = shot_of(seq)
     act = next(a for a in shot.phys if a.kind == "clock_pulse")
-    assert pulse_analysis(shot, act).peak_rabi_hz == 2e3
+    # unscaled, the pi pulse asks for an amplitude above 1: the synth plays the top code of its 14-bit word over
+    # [0, 1], 1 - 2^-14 (IEEE Std 1658-2011, DAC terminology)
+    assert pulse_analysis(shot, act).peak_rabi_hz == pytest.approx(2e3 * (2 ** 14 - 1) / 2 ** 14, rel=1e-12)

@@ -8,8 +8,8 @@ timebases agree, else on times.
 The tolerance (`tolerance`): a difference of one quantisation step - one DAC code, `Output.lsb` - or more
 IS a difference; two values of the same code differ only by float noise, far below a code, and do not
 count. So the threshold is half a code of the finer of the two versions; half a level on a digital line;
-a relative 1e-9 of the range for an output without bits (or a build folder, whose manifest has no
-resolution). Imports only numpy: the diff and the plot both use it without reaching into each other.
+a relative 1e-9 of the range for an output without bits (or a build folder: its manifest's code grid is
+not read here). Imports only numpy: the diff and the plot both use it without reaching into each other.
 """
 
 from __future__ import annotations

@@ -123,18 +123,27 @@ def quantize_times(times_s: np.ndarray, tick_s: float) -> np.ndarray:
     return k.astype(np.int64).reshape(shape)
 
 
-def quantize_values(values: np.ndarray, lo: float, hi: float, bits: int) -> tuple[np.ndarray, np.ndarray]:
-    """Values -> (codes int64, values of those codes) for a DAC with 2^bits
-    codes spanning [lo, hi] inclusive: code 0 = lo, code 2^bits - 1 = hi,
-    LSB = (hi - lo) / (2^bits - 1). Nearest code, ties to the higher code.
-    Values outside [lo, hi] (beyond float noise, 1e-12 of the scale) raise
-    ValueError: they are not clipped silently."""
+def quantize_values(values: np.ndarray, lo: float, hi: float, bits: int, *, origin: float | None = None,
+                    step: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Values -> (codes int64, values of those codes) for a DAC of 2^bits codes over [lo, hi]:
+    LSB = (hi - lo) / 2^bits, code 0 = lo, code n = lo + n LSB, the top code 2^bits - 1 = hi - 1 LSB
+    (IEEE Std 1658-2011, DAC terminology: the full-scale range is 2^N LSB and its top is not a code; a
+    bipolar range then has an exact code at its middle). Nearest code, ties to the higher code; a value
+    within half an LSB of hi, or at hi, plays the top code.
+    `origin`, `step`: another code grid (code n = origin + n step, codes 0 .. 2^bits - 1), e.g. a synth's
+    frequency word counting fclk / 2^bits from 0 Hz; [lo, hi] stays the range values must lie in.
+    Values outside [lo, hi] (beyond float noise, 1e-12 of the scale) raise ValueError: they are not clipped
+    silently."""
     lo, hi = float(lo), float(hi)
     if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo):
         raise ValueError(f"DAC range must satisfy lo < hi, got [{lo!r}, {hi!r}]")
     if int(bits) != bits or not 1 <= bits <= 52:
         raise ValueError(f"DAC bits must be an integer from 1 to 52, got {bits!r}")
     nmax = 2 ** int(bits) - 1
+    origin = lo if origin is None else float(origin)
+    step = (hi - lo) / 2 ** int(bits) if step is None else float(step)  # a power of two: exact
+    if not (np.isfinite(origin) and np.isfinite(step) and step > 0):
+        raise ValueError(f"code grid must have a finite origin and a positive step, got {origin!r}, {step!r}")
     v = np.asarray(values, dtype=float)
     shape = v.shape
     v = v.reshape(-1)
@@ -146,10 +155,9 @@ def quantize_values(values: np.ndarray, lo: float, hi: float, bits: int) -> tupl
             if not (np.isfinite(vmin) and np.isfinite(vmax)):
                 raise ValueError("values must be finite")
             raise ValueError(f"values span [{vmin:.9g}, {vmax:.9g}], outside the output range [{lo:.9g}, {hi:.9g}]")
-    x = (v - lo) * (nmax / (hi - lo))
+    x = (v - origin) / step
     codes = np.clip(_round_half_up(x), 0, nmax, out=x).astype(np.int64)
-    back = lo + codes * ((hi - lo) / nmax)  # code 0 gives lo exactly
-    back[codes == nmax] = hi  # and the top code hi exactly, whatever the rounding of the product
+    back = origin + codes * step  # code 0 gives the origin exactly
     return codes.reshape(shape), back.reshape(shape)
 
 

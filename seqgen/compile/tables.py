@@ -275,13 +275,35 @@ def _drop_crowded_rows(ticks: np.ndarray, flexible: np.ndarray, m: int) -> np.nd
     return keep
 
 
+def _grid(out: Output) -> tuple[float, float, int]:
+    """(origin, step, shift) of an output's codes: code index n plays origin + n step; the code sent is
+    n - shift (two's complement: shift 2^(bits-1); IEEE Std 1658-2011, DAC terminology)."""
+    origin = 0.0 if out.reference_clock_hz else out.lo
+    shift = 2 ** (out.bits - 1) if out.code_convention == "twos_complement" else 0
+    return origin, out.lsb, shift
+
+
 def _quantize(out: Output, values: np.ndarray) -> np.ndarray:
     if out.kind == "digital":
         return (values >= 0.5).astype(float)
     clipped = np.clip(values, out.lo, out.hi)  # out-of-range values were reported by the range check
     if not out.bits:
         return clipped
-    return quantize_values(clipped, out.lo, out.hi, out.bits)[1]
+    origin, step, _ = _grid(out)
+    return quantize_values(clipped, out.lo, out.hi, out.bits, origin=origin, step=step)[1]
+
+
+def output_codes(out: Output, values: np.ndarray) -> np.ndarray:
+    """The integer codes (int64) of an output's quantized values (see `Output.code_convention`): 0/1 on a
+    digital line, 0 where the output has no bits; two's complement codes are signed."""
+    v = np.asarray(values, dtype=float)
+    if out.kind == "digital":
+        return (v >= 0.5).astype(np.int64)
+    if not out.bits:
+        return np.zeros(v.shape, dtype=np.int64)
+    origin, step, shift = _grid(out)
+    # the values sit on codes already: the division lands within float noise of an integer
+    return np.rint((v - origin) / step).astype(np.int64) - shift
 
 
 def _needed(q: np.ndarray, linear: bool) -> np.ndarray:
@@ -370,6 +392,13 @@ def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
                     runs = p[a:b].copy()
                     runs[0] = c0
                     block[:, j] = np.repeat(v[a:b], np.diff(runs, append=c1))
+        codes = np.empty(values.shape, dtype=np.int64)
+        for j, o in enumerate(outs):
+            codes[:, j] = output_codes(o, values[:, j])
         tables.append(DeviceTable(dev_name, device.tick_s, ticks, tuple(o.name for o in outs), values,
-                                  tuple(o.unit for o in outs), tuple(o.kind for o in outs), rows_per_segment))
+                                  tuple(o.unit for o in outs), tuple(o.kind for o in outs), rows_per_segment,
+                                  codes, tuple(o.code_convention for o in outs),
+                                  tuple(1 if o.kind == "digital" else int(o.bits or 0) for o in outs),
+                                  tuple(1.0 if o.kind == "digital" else o.lsb for o in outs),
+                                  tuple(o.code_zero for o in outs)))
     return Compiled(tuple(tables), shot.duration_s), findings

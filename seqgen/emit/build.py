@@ -54,7 +54,7 @@ def manifest(shot: Shot, compiled: Compiled, findings: list[Finding], files: dic
             "output_model": dev.output_model,
             "rows": int(len(t.ticks)),
             "duration_s": float(t.ticks[-1] * t.tick_s) if len(t.ticks) else 0.0,
-            "columns": [{"name": c, "unit": u, "kind": k} for c, u, k in zip(t.columns, t.units, t.kinds)],
+            "columns": [_column(shot.rig.outputs.get(c), c, u, k) for c, u, k in zip(t.columns, t.units, t.kinds)],
             "files": files.get(t.device, {}),
         }
     return {
@@ -71,6 +71,28 @@ def manifest(shot: Shot, compiled: Compiled, findings: list[Finding], files: dic
         "findings_list": [f.to_dict() for f in findings],
         "caution": CAUTION,
     }
+
+
+def _column(out, name: str, unit: str, kind: str) -> dict:
+    """A table column in the manifest: what a loader needs to send it and to read it back in physical units
+    (the code convention, the channel's latency and calibration); see README, "Build folder"."""
+    col = {"name": name, "unit": unit, "kind": kind}
+    if out is None:
+        return col
+    digital = out.kind == "digital"
+    col["code"] = {"convention": out.code_convention, "bits": 1 if digital else int(out.bits or 0),
+                   "lsb": 1.0 if digital else out.lsb, "zero": out.code_zero}
+    col["range"] = [out.lo, out.hi]
+    col["latency_s"] = {"rise": out.latency_rise_s, "fall": out.latency_fall_s}
+    col["physical_unit"] = out.phys_unit
+    cal = out.calibration
+    if cal is None:
+        col["calibration"] = None
+    elif cal.kind == "linear":
+        col["calibration"] = {"kind": "linear", "slope": cal.slope, "offset": cal.offset}
+    else:
+        col["calibration"] = {"kind": "table", "physical": list(cal.table_phys), "output": list(cal.table_out)}
+    return col
 
 
 def write_build(out_dir: str | Path, shot: Shot, compiled: Compiled, findings: list[Finding], *, force: bool = False,

@@ -83,29 +83,41 @@ def write_npz(path: Path, arrays: dict) -> None:
                 np.lib.format.write_array(fh, np.ascontiguousarray(arr), allow_pickle=False)
 
 
+def table_codes(table: DeviceTable) -> np.ndarray:
+    """The table's integer codes (int64, rows x columns); a table compiled without them gets zeros."""
+    if table.codes is None:
+        return np.zeros(np.shape(table.values), dtype=np.int64)
+    return np.asarray(table.codes).astype(np.int64, copy=False)
+
+
 def table_arrays(table: DeviceTable) -> dict:
     return {
         "tick": table.ticks.astype(np.int64, copy=False),
         "time_s": table.ticks * table.tick_s,
         "values": table.values.astype(np.float64, copy=False),
+        "codes": table_codes(table),
         "columns": np.array(table.columns, dtype="U"),
         "units": np.array(table.units, dtype="U"),
     }
 
 
 def write_csv(path: Path, table: DeviceTable) -> None:
-    """CSV: tick, time_s, one column per output (digital as 0/1, others %.10g)."""
-    header = ",".join(["tick", "time_s"] + [f"{c} [{u}]" if u else c for c, u in zip(table.columns, table.units)])
-    fmt = ["%d", "%.12g"] + ["%d" if k == "digital" else "%.10g" for k in table.kinds]
+    """CSV: tick, time_s, one column per output (digital as 0/1, others %.10g), then one code column per
+    output (`<column> [code]`, the integer the hardware takes)."""
+    header = ",".join(["tick", "time_s"] + [f"{c} [{u}]" if u else c for c, u in zip(table.columns, table.units)]
+                      + [f"{c} [code]" for c in table.columns])
+    fmt = ["%d", "%.12g"] + ["%d" if k == "digital" else "%.10g" for k in table.kinds] + ["%d"] * len(table.columns)
     row = ",".join(fmt) + "\n"
     times = table.ticks * table.tick_s
+    codes = table_codes(table)
     with open(path, "w", encoding="utf-8", newline="\n") as fh:
         fh.write(header + "\n")
         # one %-format per chunk of rows: the same text as formatting row by row, several times faster;
-        # ticks stay Python ints (exact beyond 2^53)
+        # ticks and codes stay Python ints (exact beyond 2^53)
         for a in range(0, len(table.ticks), CSV_CHUNK):
             b = a + CSV_CHUNK
-            cols = [table.ticks[a:b].tolist(), times[a:b].tolist(), *table.values[a:b].T.tolist()]
+            cols = [table.ticks[a:b].tolist(), times[a:b].tolist(), *table.values[a:b].T.tolist(),
+                    *codes[a:b].T.tolist()]
             fh.write((row * len(cols[0])) % tuple(itertools.chain.from_iterable(zip(*cols))))
 
 

@@ -138,8 +138,9 @@ def played_source(shot, *outputs: str) -> str:
 def off_floor(shot, output: str) -> float:
     """The largest physical value (>= 0) that still counts as off: one DAC step above the output's zero.
 
-    A DAC cannot always put out exactly its zero (a 16-bit card spanning -10 V .. 10 V has no code at 0 V
-    and plays half a step above it), so a beam or coil played within one step of zero is off."""
+    A DAC cannot always put out exactly its zero: 0 V has a code on a range from 0 V or around it (LSB =
+    span / 2^bits), but a calibration offset or another range can put the physical zero between codes; so a
+    beam or coil played within one step of zero is off."""
     out = shot.rig.outputs[output]
     if out.kind == "digital" or not out.bits:
         return 0.0

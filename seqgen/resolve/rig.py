@@ -74,9 +74,10 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
                 if rng is None:
                     continue
                 oname = f"{name}.{short}"
+                words = _synth_words(c, spec, base, key, short, rng, q, doc, findings)
                 outputs[oname] = Output(oname, name, c["device"], "synth", unit, rng[0], rng[1], spec.get("bits"),
                                         safe=0.0 if short != "freq" else rng[0], phys_unit=unit, phys_dims=dims_of(unit),
-                                        pos=pos, **{k: v for k, v in common.items() if k not in ("calibration",)})
+                                        pos=pos, **words, **{k: v for k, v in common.items() if k not in ("calibration",)})
                 names.append(oname)
             if not names:
                 findings.append(make(BAD_RIG, f"synth channel '{name}' declares none of frequency/amplitude/phase",
@@ -97,6 +98,12 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
                 continue
             lo, hi = rng
             bits = spec.get("bits")
+            # the channel's own convention, else its device's, else the default for the range (Output.code_convention)
+            common["code"] = spec.get("code") or (data["devices"].get(c["device"]) or {}).get("code")
+        if "reference_clock" in c:
+            findings.append(make(BAD_RIG, f"{c['kind']} channel '{name}' has a reference_clock: only a synth's "
+                                 "frequency word counts one", doc.pos(base + ("reference_clock",)),
+                                 hint="remove reference_clock (it belongs on a synth channel)"))
         cal = common.pop("calibration")
         # physical values are SI inside; keep the SI display unit (W, not the mW of the calibration text)
         phys_unit = display_unit(cal.dims) if cal else unit
@@ -175,6 +182,31 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
     rig = Rig(data.get("name", doc.file), doc.file, doc.text_sha256, devices, outputs, channels, beams, coils, drives,
               imaging, bias, rep)
     return rig, findings
+
+
+def _synth_words(c, spec, base, key, short, rng, q, doc, findings) -> dict:
+    """A synth part's code keywords: its words are unsigned (straight binary); the frequency word counts
+    reference_clock / 2^bits from 0 Hz when the channel states its reference clock."""
+    out = {}
+    if spec.get("code") not in (None, "straight_binary"):
+        findings.append(make(BAD_RIG, f"synth '{base[-1]}' {key} word is unsigned: code '{spec['code']}' does not "
+                             "apply", doc.pos(base + (key, "code")), hint="remove code: (synth words are straight binary)"))
+    if short != "freq" or "reference_clock" not in c:
+        return out
+    clock = q(base + ("reference_clock",), "Hz", positive=True)
+    if clock is None:
+        return out
+    if not spec.get("bits"):
+        findings.append(make(BAD_RIG, f"synth '{base[-1]}' states a reference_clock but no frequency bits",
+                             doc.pos(base + ("reference_clock",)), hint="add bits: to frequency (e.g. bits: 32)"))
+        return out
+    if rng[0] < 0 or rng[1] > clock:
+        findings.append(make(BAD_RIG, f"synth '{base[-1]}' frequency range [{rng[0]:.9g}, {rng[1]:.9g}] Hz does not "
+                             f"fit its word: 0 Hz to the reference clock {clock:.9g} Hz",
+                             doc.pos(base + (key, "range")), hint="keep the frequency range within [0 Hz, reference_clock]"))
+        return out
+    out["reference_clock_hz"] = clock
+    return out
 
 
 def _vector(raw, path, doc, findings):
