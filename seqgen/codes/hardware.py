@@ -106,13 +106,15 @@ RAMP_UNDERSAMPLED = Code(
 
 RESOLUTION = Code(
     "hardware.resolution", "warning", stage="timeline",
-    source="DAC quantization error of half a least significant bit (textbook)",
+    source=("DAC quantization error of half a least significant bit, LSB = span / 2^bits (IEEE Std 1658-2011, "
+            "DAC terminology)"),
     doc="""
     A ramp asks for a tolerance finer than the output can resolve: with
-    `bits` over its range, a DAC output is always within half a least
-    significant bit of the wanted value, never closer. The compiled ramp then
-    deviates from the intended curve by up to half an LSB, more than the
-    tolerance asked for.""")
+    `bits` over its range (one LSB = span / 2^bits), a DAC output is within
+    half an LSB of the wanted value, never closer (up to one LSB in the top
+    half-code, where the range's end has no code of its own). The compiled
+    ramp then deviates from the intended curve by at least that much, more
+    than the tolerance asked for.""")
 
 SYNTH_SETTLING = Code(
     "hardware.synth-settling", "warning", stage="timeline",
