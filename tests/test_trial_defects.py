@@ -94,3 +94,24 @@ def test_stretched_potassium41_condensate_uses_the_triplet_scattering_length(tmp
     mu = 0.5 * sc.hbar * wbar * (15 * 1e5 * a / abar) ** 0.4
     expected = np.sqrt(2 * mu / (m * omegas ** 2)) * _castin_dum(omegas, 15e-3)
     np.testing.assert_allclose(np.sort(cloud.sizes), np.sort(expected), rtol=0.01)
+
+
+def test_pulse_spoilt_by_the_next_pulses_early_frequency_write_gets_a_fix_that_names_it(tmp_path):
+    # the rig's synth settles in 100 us, so the second pulse (line 12) writes its frequency 100 us ahead: before
+    # the first pulse starts. The first pulse already has its `frequency:`; a fix that says "give the clock_pulse
+    # its frequency" or "set frequency: <the same value>" changes nothing when applied: it must point at line 12
+    _copy_rig(CS_RIG, tmp_path, "rig.yaml")
+    seq = tmp_path / "seq.yaml"
+    seq.write_text(
+        "seqgen: 1\nrig: rig.yaml\nsample: {species: Cs133, state: {F: 3, mF: 3}, atoms: 2e5, temperature: 1 uK}\n"
+        "blocks:\n  - name: first\n    at: 1 ms\n    actions:\n"
+        "      - clock_pulse: {drive: mw, angle: pi/2, duration: 38 us, frequency: 9.193683078 GHz, "
+        "transition: [{F: 3, mF: 3}, {F: 4, mF: 3}]}\n"
+        "  - name: second\n    after: first + 20 us\n    actions:\n"
+        "      - clock_pulse: {drive: mw, angle: pi/2, duration: 38 us, frequency: 9.193733078 GHz, detuning: 50 kHz, "
+        "transition: [{F: 3, mF: 3}, {F: 4, mF: 3}]}\n", encoding="utf-8")
+    _, found, _ = check(seq)
+    first = [f for f in found if f.line == 8 and f.code in ("hardware.synth-settling", "physics.pulse-detuned")]
+    assert first, [(f.code, f.line) for f in found]
+    for f in first:
+        assert "12" in f.hint or "second" in f.hint, f"{f.code}: {f.hint}"
