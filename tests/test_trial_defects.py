@@ -6,6 +6,7 @@ import re
 import shutil
 
 import numpy as np
+import pytest
 import scipy.constants as sc
 from scipy.integrate import solve_ivp
 
@@ -115,3 +116,20 @@ def test_pulse_spoilt_by_the_next_pulses_early_frequency_write_gets_a_fix_that_n
     assert first, [(f.code, f.line) for f in found]
     for f in first:
         assert "12" in f.hint or "second" in f.hint, f"{f.code}: {f.hint}"
+
+
+def test_scattering_length_of_a_state_is_its_own_or_the_triplet_of_a_stretched_state():
+    # stretched states (|mF| = F = I + 1/2) collide as a pure triplet; values (from memory): K-41 triplet 60.54 a0
+    # (Phys. Rev. A 78, 012503 (2008)), Cs-133 triplet 2858.8 a0 (Phys. Rev. A 87, 032517 (2013)), Rb-87
+    # |1,-1> 100.40 a0 (Phys. Rev. Lett. 88, 093201 (2002)); a state that is neither tabulated nor stretched has
+    # no known length (the singlet and triplet alone do not give it)
+    from seqgen.physics.atoms import get_species
+    from seqgen.predict.species import scattering_length
+
+    a0 = sc.physical_constants["Bohr radius"][0]
+    k41, cs, rb = get_species("K41"), get_species("Cs133"), get_species("Rb87")
+    assert scattering_length(k41, (2, 2)) / a0 == pytest.approx(60.54, rel=1e-6)
+    assert scattering_length(k41, (2, -2)) / a0 == pytest.approx(60.54, rel=1e-6)
+    assert scattering_length(cs, (4, 4)) / a0 == pytest.approx(2858.8, rel=1e-6)
+    assert scattering_length(rb, (1, -1)) / a0 == pytest.approx(100.40, rel=1e-6)
+    assert scattering_length(k41, (1, -1)) is None and scattering_length(cs, (3, 3)) is None

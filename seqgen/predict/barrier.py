@@ -87,8 +87,8 @@ from ..physics.passage import fraction_reached, path_frequency, time_to_fraction
 from ..values import value_at
 from .cache import per_shot_cache
 from .pushes import push_analysis
-from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, species, trap_beams,
-                      unevaluable)
+from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, sample_state,
+                      scattering_length, species, trap_beams, unevaluable)
 
 DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
 N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
@@ -311,7 +311,7 @@ def _chemical_potential(shot, omegas):
     from ..physics.expansion import thomas_fermi
 
     sp, s = species(shot), shot.sample
-    a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", next(iter(sp.scattering_lengths_m.values()), None))
+    a = scattering_length(sp, sample_state(shot))
     if not (a and a > 0 and s.atoms):
         return None
     return thomas_fermi(s.atoms, sp.mass_kg, a, omegas)[0]

@@ -22,7 +22,8 @@ from ..values import value_at
 from .cache import per_shot_cache
 from .magnetic import hold_analysis
 from .pushes import Components, components_at
-from .species import G_N, MU_B, bias, gaussian_beams, sample_state, species, trap_beams, unit
+from .species import (G_N, MU_B, bias, gaussian_beams, sample_state, scattering_length, species, trap_beams,
+                      unit)
 from .states import populated_states, state_fractions
 from .traps import held, trap_stage
 
@@ -333,10 +334,9 @@ def _cloud_size(shot, img, rel):
     s = shot.sample
     cloud = {"tof": tof, "drop": drop, "omegas": omegas, "trap": trap, "trap_block": block, "axes": axes}
     if s.condensed and s.atoms and omegas is not None:
-        a = next(iter(sp.scattering_lengths_m.values()), None)
-        a = sp.scattering_lengths_m.get(f"F={s.F},mF={s.mF}", a)
+        a = scattering_length(sp, sample_state(shot))
         if not a or a <= 0:
-            return None, SizeUnknown(NO_SCATTERING_LENGTH, species=sp.name)
+            return None, SizeUnknown(NO_SCATTERING_LENGTH, species=f"{sp.name} in |F={s.F}, mF={s.mF}>")
         sized = _condensate_sizes(shot, sp, rel, omegas, tof, a)
         cloud.update(size=float(np.max(sized["sizes"])), size_kind="Thomas-Fermi radius", **sized)
         return CloudAtImage(**cloud), None

@@ -46,6 +46,22 @@ def gaussian_beams(shot, times):
     return out
 
 
+def scattering_length(sp, state) -> float | None:
+    """s-wave scattering length (m) of two atoms both in `state` (F, mF): the species table's value for that
+    state, else the triplet for a stretched state (|mF| = F = I + 1/2: electron and nuclear spins aligned, a pure
+    triplet pair; Phys. Rev. A 78, 012503 (2008)), else None: the singlet and triplet lengths alone do not give
+    another state's."""
+    if sp is None or state is None:
+        return None
+    lengths = sp.scattering_lengths_m
+    F, mF = state
+    if f"F={F},mF={mF}" in lengths:
+        return lengths[f"F={F},mF={mF}"]
+    if abs(mF) == F and abs(F - (sp.nuclear_spin + 0.5)) < 1e-9:
+        return lengths.get("triplet")
+    return None
+
+
 def bias(shot) -> float:
     """The rig's bias field (T), 0 when absent."""
     return float(shot.rig.bias_field_t or 0.0)
@@ -209,7 +225,7 @@ def drive_coupling(shot, drive, declared=None) -> Coupling | None:
         ref = drive.calibrated_on
         if ref is not None:
             out["reference"] = ref
-            if level_problem(sp, *ref[0]) or level_problem(sp, *ref[1]):
+            if ref[0] == ref[1] or level_problem(sp, *ref[0]) or level_problem(sp, *ref[1]):  # no transition
                 return Coupling(**out, problem=REFERENCE_NOT_LEVEL)
             out["reference_element"] = r = tr.coupling_element(ref[0], ref[1], b, drive.polarisation, atom=sp)
             if tr.is_forbidden(r, atom=sp):

@@ -28,6 +28,8 @@ from .sources import Sources
 from .units import DIMENSIONLESS, Qty, UnitError, describe_kind, display_unit, format_qty, parse_simple, same_dims, \
     split_quantity, suggest_unit
 
+MAX_ATOMS = 1e12  # more atoms than any laser-cooled sample holds (common practice, no source): a typo
+
 
 def param_entries(src: Sources) -> tuple[dict, dict]:
     """(entries, bounds): name -> (raw, Document, path) of the definition that wins, and
@@ -371,6 +373,22 @@ def read_sample(doc: Document, env, findings) -> Sample | None:
             findings.append(bad.finding)
             return None
 
+    def count(key):
+        """An atom number (atoms, detection_floor): finite and below MAX_ATOMS, else a finding and None."""
+        v = s.get(key)
+        if v is None or isinstance(v, bool) or not isinstance(v, (int, float)):
+            return v
+        if not math.isfinite(v):
+            findings.append(make(NON_FINITE, f"sample {key}: {v!r} is not a finite number", doc.pos(("sample", key)),
+                                 hint=f"give the number of atoms, e.g. '{key}: 2e5'"))
+            return None
+        if v > MAX_ATOMS:
+            findings.append(make(OVERFLOW, f"sample {key}: {v:.3g} atoms is an absurd number for a cold-atom sample "
+                                 f"(more than {MAX_ATOMS:.0e})", doc.pos(("sample", key)),
+                                 hint="check the exponent for a typo"))
+            return None
+        return v
+
     tf = None
     if s.get("trap_frequencies"):
         try:
@@ -378,5 +396,5 @@ def read_sample(doc: Document, env, findings) -> Sample | None:
                        for i, v in enumerate(s["trap_frequencies"]))
         except Bad as bad:
             findings.append(bad.finding)
-    return Sample(name, F, mF, s.get("atoms"), q("temperature", "K"), bool(s.get("condensed", False)), tf,
-                  s.get("detection_floor"), pos)
+    return Sample(name, F, mF, count("atoms"), q("temperature", "K"), bool(s.get("condensed", False)), tf,
+                  count("detection_floor"), pos)

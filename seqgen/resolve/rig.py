@@ -159,6 +159,14 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
     for name, d in (data.get("drives") or {}).items():
         base = ("drives", name)
         ref("drive", name, "channel", d["channel"], base + ("channel",))
+        out = outputs.get(f"{d['channel']}.amp") or outputs.get(d["channel"])
+        if out is not None and out.kind != "synth" and out.phys_dims != dims_of(""):
+            # the drive's amplitude is a fraction of full scale: a power or voltage line would play '1' as 1 W
+            findings.append(make(BAD_RIG, f"drive '{name}' is on channel '{d['channel']}', whose values are in "
+                                 f"{out.phys_unit}: a drive's channel sets its amplitude as a fraction of full scale",
+                                 doc.pos(base + ("channel",)),
+                                 hint="put the drive on a synth channel (frequency and amplitude), or on an output "
+                                      "calibrated as a fraction (no unit)"))
         r = q(base + ("rabi_per_amplitude",), "Hz", positive=True)
         if r is not None:
             drives[name] = Drive(name, d["channel"], r, d.get("kind", "microwave"),

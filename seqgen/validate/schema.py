@@ -159,8 +159,8 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document, enums: dict | N
         if best is not None and best.validator not in ("oneOf", "anyOf"):
             return _to_findings(best, doc, enums)
     if v == "enum":
-        close = difflib.get_close_matches(str(err.instance), [str(x) for x in err.validator_value], n=1)
-        hint = f"did you mean '{close[0]}'?" if close else "choose one of: " + ", ".join(map(str, err.validator_value))
+        close = _closest_choice(str(err.instance), [str(x) for x in err.validator_value])
+        hint = f"did you mean '{close}'?" if close else "choose one of: " + ", ".join(map(str, err.validator_value))
         return [make(BAD_VALUE, f"{where}: '{err.instance}' is not allowed", doc.pos(path), hint=hint)]
     if v == "const" and isinstance(err.schema, dict) and err.schema.get("description"):
         # an if/then that refuses a former name: the then: branch's description says so
@@ -185,6 +185,22 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document, enums: dict | N
                      hint="names are letters, digits and underscores, starting with a letter")]
     return [make(BAD_VALUE, f"{where}: {_shorten(err.message, err.instance)}", doc.pos(path),
                  hint=_bound_hint(v, err.validator_value, path))]
+
+
+def _closest_choice(value: str, choices: list) -> str | None:
+    """The one allowed value `value` most likely means, or None: a spelt-out sign ('sigma_plus' is 'sigma+'),
+    else the closest by similarity unless two are equally close (then a guess could be the opposite one)."""
+    def norm(x):
+        x = x.lower().replace("plus", "+").replace("minus", "-")
+        return "".join(ch for ch in x if ch not in " _-" or ch == "-" and x.endswith("-"))
+
+    spelt = [c for c in choices if norm(c) == norm(value)]
+    if len(spelt) == 1:
+        return spelt[0]
+    ranked = sorted(((difflib.SequenceMatcher(None, value, c).ratio(), c) for c in choices), reverse=True)
+    if not ranked or ranked[0][0] < 0.6 or (len(ranked) > 1 and ranked[1][0] == ranked[0][0]):
+        return None
+    return ranked[0][1]
 
 
 def _article(word: str) -> str:
