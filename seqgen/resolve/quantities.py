@@ -12,7 +12,7 @@ from .expr import ExprError, evaluate, is_plain_name, names_in
 from .units import DIMENSIONLESS, Qty, UnitError, close_units, describe_kind, dims_of, kind_of, kind_units, parse_simple, \
     same_dims, split_quantity, suggest_unit, unit_name
 from ..codes import (
-    BAD_EXPRESSION, DIVISION_BY_ZERO, MISSING_UNIT, NEGATIVE_DURATION, NON_FINITE, OVERFLOW, UNDEFINED_PARAM,
+    BAD_EXPRESSION, BAD_VALUE, DIVISION_BY_ZERO, MISSING_UNIT, NEGATIVE_DURATION, NON_FINITE, OVERFLOW, UNDEFINED_PARAM,
     UNKNOWN_UNIT, WRONG_DIMENSION,
 )
 
@@ -111,10 +111,11 @@ def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positiv
             raise Bad(_dimension_finding(raw, q, want, expect, label, pos, env, fit))
     if abs(q.value) > ABSURD * max(1.0, _scale(expect)):
         raise Bad(make(OVERFLOW, f"{label}: {raw!r} is an absurd magnitude", pos, hint="check for a typo in the exponent"))
+    code = NEGATIVE_DURATION if same_dims(want, dims_of("s")) else BAD_VALUE  # a 0 K temperature is no duration
     if positive and q.value <= 0:
-        raise Bad(make(NEGATIVE_DURATION, f"{label} must be positive, got {raw!r}", pos, hint="give a positive value"))
+        raise Bad(make(code, f"{label} must be positive, got {raw!r}", pos, hint="give a positive value"))
     if nonnegative and q.value < 0:
-        raise Bad(make(NEGATIVE_DURATION, f"{label} must not be negative, got {raw!r}", pos))
+        raise Bad(make(code, f"{label} must not be negative, got {raw!r}", pos, hint="give a value of 0 or more"))
     return q.value
 
 
