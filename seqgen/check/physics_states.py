@@ -62,20 +62,21 @@ def _line(seg) -> str:
 
 
 def _played_text(shot, act, rep):
-    """(what the synth plays during the pulse, the other write's SourcePos or None, the hint's first part)."""
+    """(what the synth plays during the pulse, joined to the detuning text by " is " or ", ", what follows the
+    line's text, the other write's segment or None, the hint's first part)."""
     fname = f"{shot.rig.drives[rep.drive].channel}.freq"
     if rep.freq_span_hz > 0:
         other = rep.other_writes[0] if rep.other_writes else _writer(shot, fname, act.t1)
         where = f" ({other.action} at {_line(other)})" if other is not None else ""
-        return (f"drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} at the middle of the pulse, but its synth "
-                f"changes by {fmt_freq(rep.freq_span_hz)} during it{where}", other,
+        return (f"drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} at the middle of the pulse, ",
+                f", and its synth changes by {fmt_freq(rep.freq_span_hz)} during it{where}", other,
                 f"move the write to '{fname}'{where} out of the pulse; the pulse wants")
     if "frequency" in act.args:
-        return f"drive '{rep.drive}' at {fmt_freq(rep.frequency_hz, 10)}", None, "set"
+        return f"drive '{rep.drive}' at {fmt_freq(rep.frequency_hz, 10)} is ", "", None, "set"
     seg = _writer(shot, fname, act.t0)
     whence = f"set by the {seg.action} at {_line(seg)}" if seg is not None else "its synth's idle frequency"
     return (f"clock pulse without 'frequency:': drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} "
-            f"({whence})", seg, "add")
+            f"({whence}) is ", "", seg, "add")
 
 
 @rule(PULSE_DETUNED, stage="physics")
@@ -91,14 +92,14 @@ def pulse_detuned(shot):
             target = rep.resonance_hz + rep.intended_detuning_hz
             data = {"detuning_hz": rep.detuning_hz, "transfer": p, "intended_transfer": p0}
             if rep.detuning_source == "frequency":
-                what, other, fix = f"drive '{rep.drive}' at {fmt_freq(act.args['frequency'], 10)}", None, "set"
+                what, tail, other, fix = f"drive '{rep.drive}' at {fmt_freq(act.args['frequency'], 10)} is ", "", None, "set"
             else:
-                what, other, fix = _played_text(shot, act, rep)
+                what, tail, other, fix = _played_text(shot, act, rep)
             if other is not None:
                 data.update(other_line=other.pos.line, other_column=other.pos.column)
-            yield make(PULSE_DETUNED, f"{what} is {fmt_freq(rep.detuning_hz)} from the {fmt_state(*initial)} -> "
-                       f"{fmt_state(*final)} line at {fmt_freq(rep.resonance_hz, 10)} ({bias(shot) * 1e4:.4g} G bias); "
-                       f"transfer {p:.3g} instead of {p0:.3g}" + (f"; Fourier width {fmt_freq(fw)}" if fw else ""),
+            yield make(PULSE_DETUNED, f"{what}{fmt_freq(rep.detuning_hz)} from the {fmt_state(*initial)} -> "
+                       f"{fmt_state(*final)} line at {fmt_freq(rep.resonance_hz, 10)} ({bias(shot) * 1e4:.4g} G bias)"
+                       f"{tail}; transfer {p:.3g} instead of {p0:.3g}" + (f"; Fourier width {fmt_freq(fw)}" if fw else ""),
                        act.pos, block=act.block, time_s=act.t0, hint=f"{fix} frequency: {target:.10g} Hz", data=data)
 
 
