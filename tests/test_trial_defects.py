@@ -115,6 +115,19 @@ def test_pulse_spoilt_by_the_next_pulses_early_frequency_write_gets_a_fix_that_n
     assert first, [(f.code, f.line) for f in found]
     for f in first:
         assert "12" in f.hint or "second" in f.hint, f"{f.code}: {f.hint}"
+    # applied: the second block starts the proposed time later. The first pulse ends at 1 ms + 38 us; the second
+    # writes 100 us (the rig's settling) before its start, first + 20 us: it must start at least 80 us later
+    shifts = set()
+    for f in first:
+        m = re.search(r"start block 'second' at least ([0-9.]+) us later", f.hint)
+        assert m, f"{f.code}: {f.hint}"
+        shifts.add(float(m.group(1)))
+    (shift,) = shifts
+    assert 80.0 <= shift < 81.0
+    text = seq.read_text(encoding="utf-8")
+    seq.write_text(text.replace("after: first + 20 us", f"after: first + {20 + shift:g} us"), encoding="utf-8")
+    _, found, _ = check(seq)
+    assert not [(f.code, f.line) for f in found if f.line == 8 and f.severity != "note"]
 
 
 def test_clock_pulse_frequency_write_before_t0_is_called_settling_and_its_fix_passes(tmp_path):
