@@ -3,7 +3,6 @@ Each test states what a user sees and checks it against something outside seqgen
 values written in the file, or the finding's own proposed fix applied to the file."""
 
 import re
-import shutil
 
 import numpy as np
 import pytest
@@ -116,7 +115,59 @@ def test_pulse_spoilt_by_the_next_pulses_early_frequency_write_gets_a_fix_that_n
     assert first, [(f.code, f.line) for f in found]
     for f in first:
         assert "12" in f.hint or "second" in f.hint, f"{f.code}: {f.hint}"
+    # applied: the second block starts the proposed time later. The first pulse ends at 1 ms + 38 us; the second
+    # writes 100 us (the rig's settling) before its start, first + 20 us: it must start at least 80 us later
+    shifts = set()
+    for f in first:
+        m = re.search(r"start block 'second' at least ([0-9.]+) us later", f.hint)
+        assert m, f"{f.code}: {f.hint}"
+        shifts.add(float(m.group(1)))
+    (shift,) = shifts
+    assert 80.0 <= shift < 81.0
+    text = seq.read_text(encoding="utf-8")
+    seq.write_text(text.replace("after: first + 20 us", f"after: first + {20 + shift:g} us"), encoding="utf-8")
+    _, found, _ = check(seq)
+    assert not [(f.code, f.line) for f in found if f.line == 8 and f.severity != "note"]
 
+
+def test_clock_pulse_frequency_write_before_t0_is_called_settling_and_its_fix_passes(tmp_path):
+    # a clock pulse at t = 0 on a synth whose rig entry says `settling: 100 us`: its frequency is written 100 us
+    # ahead of the pulse, before t = 0. That lead is the synth's settling time, not a latency, and the fix must
+    # name the start the pulse needs (at least the settling time after t = 0)
+    _copy_rig(CS_RIG, tmp_path, "rig.yaml")
+    rig = (tmp_path / "rig.yaml").read_text(encoding="utf-8")
+    assert re.search(r"^\s+settling: 100 us$", rig, re.M)
+    body = ("seqgen: 1\nrig: rig.yaml\nsample: {species: Cs133, state: {F: 3, mF: 3}, atoms: 2e5, temperature: 1 uK}\n"
+            "blocks:\n  - name: first\n    at: %s\n    actions:\n"
+            "      - clock_pulse: {drive: mw, angle: pi/2, duration: 38 us, frequency: 9.193683078 GHz, "
+            "transition: [{F: 3, mF: 3}, {F: 4, mF: 3}]}\n")
+    seq = tmp_path / "seq.yaml"
+    seq.write_text(body % "0 ms", encoding="utf-8")
+    _, found, _ = check(seq)
+    early = [f for f in found if f.code == "timing.before-start"]
+    assert early, [(f.code, f.message) for f in found]
+    assert "settling time" in early[0].message and "latency" not in early[0].message, early[0].message
+    assert "100 us" in early[0].message, early[0].message
+    m = re.search(r"start the pulse at least ([0-9.]+ [a-z]+) after t = 0", early[0].hint)
+    assert m and m.group(1) == "100 us", early[0].hint
+    seq.write_text(body % m.group(1), encoding="utf-8")
+    _, found, _ = check(seq)
+    assert not [f.message for f in found if f.code == "timing.before-start"]
+
+
+def test_pulse_swept_during_reads_as_one_sentence():
+    # a sweep of the pulse's synth starts during the pulse: the message gives the played frequency, its
+    # distance from the line and the change during the pulse as one readable sentence
+    _, found, _ = check(SEQUENCES / "faults" / "pulse_swept_during.yaml")
+    hit = [f for f in found if f.code == "physics.pulse-detuned"]
+    assert hit, [(f.code, f.message) for f in found]
+    msg = hit[0].message
+    m = re.search(r"plays ([0-9.]+) GHz at the middle of the pulse, ([0-9.]+) kHz from the .+ line at ([0-9.]+) GHz "
+                  r"\(.+ bias\), and its synth changes by [0-9.]+ kHz during it \(sweep at line 11\); transfer", msg)
+    assert m, msg
+    assert " is " not in msg.split("during it")[1].split(";")[0], msg
+    # the distance it names is the difference of the two frequencies it names (to the digits printed)
+    assert abs(abs(float(m.group(1)) - float(m.group(3))) * 1e6 - float(m.group(2))) < 0.2, msg
 
 def test_scattering_length_of_a_state_is_its_own_or_the_triplet_of_a_stretched_state():
     # stretched states (|mF| = F = I + 1/2) collide as a pure triplet; values (from memory): K-41 triplet 60.54 a0

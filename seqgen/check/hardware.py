@@ -148,6 +148,14 @@ def slew_rate(shot):
                            data={"rate": rate, "max_slew": out.max_slew})
 
 
+def _pulse_end(shot, rise):
+    """End time of the clock pulse whose amplitude rises with segment `rise`, or None (not a clock pulse)."""
+    for act in shot.actions("clock_pulse"):
+        if act.block == rise.block and abs(act.t0 - rise.t0) <= 1e-12 * max(1.0, abs(act.t0)):
+            return act.t1
+    return None
+
+
 @rule(SYNTH_SETTLING)
 def synth_settling(shot):
     for channel, parts in shot.rig.channels.items():
@@ -172,14 +180,23 @@ def synth_settling(shot):
             if last is None or a.t0 - last.t1 >= fout.settling_s * (1 - 1e-9):
                 continue
             gap = a.t0 - last.t1
+            hint = (f"write the frequency at least {fmt_time(outward(fout.settling_s), unit='us')} before the "
+                    f"pulse (at or before t = {fmt_time(outward(a.t0 - fout.settling_s, up=False), unit='ms')}), "
+                    "or give the clock_pulse its `frequency:`, which it writes that far ahead")
+            end = _pulse_end(shot, a)
+            if last.action == "clock_pulse" and last.t0 + fout.settling_s > a.t0 + 1e-12 and end is not None:
+                # a later clock_pulse's own write, a settling time ahead of its pulse: giving this pulse its
+                # frequency changes nothing; the other pulse must write after this one ends
+                whom = f"block '{last.block}'" if last.block != a.block else f"the clock_pulse at line {last.pos.line}"
+                hint = (f"the clock_pulse at line {last.pos.line} (block '{last.block}') writes its frequency "
+                        f"{fmt_time(fout.settling_s, unit='us')} (the synth's settling time) ahead of its own pulse, before "
+                        f"this pulse ends at t = {fmt_time(end, 6, unit='ms')}: start {whom} at least "
+                        f"{fmt_time(outward(end - last.t0), unit='us')} later")
             yield make(SYNTH_SETTLING, f"'{channel}' turns its amplitude on {fmt_time(gap, unit='us')} after its frequency "
                        f"was written ({last.pos.file}:{last.pos.line}, block '{last.block}'); it settles in "
                        f"{fmt_time(fout.settling_s, unit='us')}, so the pulse starts while the frequency is in transit (for "
                        f"another {fmt_time(fout.settling_s - gap, unit='us')})",
-                       a.pos, block=a.block, time_s=a.t0,
-                       hint=f"write the frequency at least {fmt_time(outward(fout.settling_s), unit='us')} before the "
-                            f"pulse (at or before t = {fmt_time(outward(a.t0 - fout.settling_s, up=False), unit='ms')}), "
-                            "or give the clock_pulse its `frequency:`, which it writes that far ahead",
+                       a.pos, block=a.block, time_s=a.t0, hint=hint,
                        data={"settling_s": fout.settling_s, "gap_s": gap,
                              "frequency_write": f"{last.pos.file}:{last.pos.line}"})
 

@@ -61,21 +61,64 @@ def _line(seg) -> str:
     return f"line {seg.pos.line}" if seg.pos.line else f"block '{seg.block}'"
 
 
+def _own_write(seg, act, settling) -> bool:
+    """Whether `seg` is the pulse's own frequency write (lower_clock_pulse: a settling time ahead of it)."""
+    return (seg.block == act.block and seg.action == "clock_pulse" and seg.kind == "set"
+            and abs(seg.t0 - (act.t0 - settling)) <= 1e-12 * max(1.0, abs(act.t0)))
+
+
+def _spoiler(shot, act, fname):
+    """The first write to the pulse's synth frequency, other than the pulse's own, that starts after the pulse's
+    own write (with `frequency:`; else at or after its start) and before its end: it overrides what the pulse
+    wanted. A clock_pulse's write comes its synth's settling time ahead of its own pulse, so the next pulse's
+    write may land inside (or even before the start of) this one. None without one."""
+    settling = shot.rig.outputs[fname].settling_s
+    own = act.t0 - settling if "frequency" in act.args else act.t0
+    for seg in sorted((x for x in shot.segments if x.output == fname), key=lambda x: (x.t0, x.pos.line)):
+        if _own_write(seg, act, settling):
+            continue
+        if (seg.t0 > own or (seg.t0 == own and "frequency" not in act.args)) and seg.t0 < act.t1:
+            return seg
+    return None
+
+
+def _later_text(shot, act, seg) -> str:
+    """The fix for a write `seg` that lands before the pulse `act` ends: start it (its block, when that is
+    another block) late enough that the write comes at or after the pulse's end."""
+    shift = outward(act.t1 - seg.t0)
+    fname = seg.output
+    settling = shot.rig.outputs[fname].settling_s
+    lead = (f", {fmt_time(settling, unit='us')} (the synth's settling time) ahead of its own pulse,"
+            if seg.action == "clock_pulse" and settling > 0 else "")
+    whom = f"block '{seg.block}'" if seg.block != act.block else f"the {seg.action} at {_line(seg)}"
+    return (f"the {seg.action} at {_line(seg)} (block '{seg.block}') writes '{fname}'{lead} at "
+            f"t = {fmt_time(seg.t0, 6, unit='ms')}, before this pulse ends at t = {fmt_time(act.t1, 6, unit='ms')}: "
+            f"start {whom} at least {fmt_time(shift, unit='us')} later")
+
+
 def _played_text(shot, act, rep):
-    """(what the synth plays during the pulse, the other write's SourcePos or None, the hint's first part)."""
+    """(what the synth plays during the pulse, joined to the detuning text by " is " or ", ", what follows the
+    line's text, the other write's segment or None, the hint's first part)."""
     fname = f"{shot.rig.drives[rep.drive].channel}.freq"
+    spoiler = _spoiler(shot, act, fname)
     if rep.freq_span_hz > 0:
-        other = rep.other_writes[0] if rep.other_writes else _writer(shot, fname, act.t1)
+        other = spoiler or (rep.other_writes[0] if rep.other_writes else _writer(shot, fname, act.t1))
         where = f" ({other.action} at {_line(other)})" if other is not None else ""
-        return (f"drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} at the middle of the pulse, but its synth "
-                f"changes by {fmt_freq(rep.freq_span_hz)} during it{where}", other,
-                f"move the write to '{fname}'{where} out of the pulse; the pulse wants")
+        fix = (_later_text(shot, act, spoiler) if spoiler is not None else
+               f"move the write to '{fname}'{where} out of the pulse")
+        return (f"drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} at the middle of the pulse, ",
+                f", and its synth changes by {fmt_freq(rep.freq_span_hz)} during it{where}", other,
+                f"{fix}; the pulse wants")
+    if spoiler is not None:  # the pulse's own write (or the one before it) is overridden before it starts
+        return (f"drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} during the pulse (written by the "
+                f"{spoiler.action} at {_line(spoiler)}, block '{spoiler.block}') and is ", "", spoiler,
+                f"{_later_text(shot, act, spoiler)}; the pulse wants")
     if "frequency" in act.args:
-        return f"drive '{rep.drive}' at {fmt_freq(rep.frequency_hz, 10)}", None, "set"
+        return f"drive '{rep.drive}' at {fmt_freq(rep.frequency_hz, 10)} is ", "", None, "set"
     seg = _writer(shot, fname, act.t0)
     whence = f"set by the {seg.action} at {_line(seg)}" if seg is not None else "its synth's idle frequency"
     return (f"clock pulse without 'frequency:': drive '{rep.drive}' plays {fmt_freq(rep.frequency_hz, 10)} "
-            f"({whence})", seg, "add")
+            f"({whence}) is ", "", seg, "add")
 
 
 @rule(PULSE_DETUNED, stage="physics")
@@ -91,14 +134,14 @@ def pulse_detuned(shot):
             target = rep.resonance_hz + rep.intended_detuning_hz
             data = {"detuning_hz": rep.detuning_hz, "transfer": p, "intended_transfer": p0}
             if rep.detuning_source == "frequency":
-                what, other, fix = f"drive '{rep.drive}' at {fmt_freq(act.args['frequency'], 10)}", None, "set"
+                what, tail, other, fix = f"drive '{rep.drive}' at {fmt_freq(act.args['frequency'], 10)} is ", "", None, "set"
             else:
-                what, other, fix = _played_text(shot, act, rep)
+                what, tail, other, fix = _played_text(shot, act, rep)
             if other is not None:
                 data.update(other_line=other.pos.line, other_column=other.pos.column)
-            yield make(PULSE_DETUNED, f"{what} is {fmt_freq(rep.detuning_hz)} from the {fmt_state(*initial)} -> "
-                       f"{fmt_state(*final)} line at {fmt_freq(rep.resonance_hz, 10)} ({bias(shot) * 1e4:.4g} G bias); "
-                       f"transfer {p:.3g} instead of {p0:.3g}" + (f"; Fourier width {fmt_freq(fw)}" if fw else ""),
+            yield make(PULSE_DETUNED, f"{what}{fmt_freq(rep.detuning_hz)} from the {fmt_state(*initial)} -> "
+                       f"{fmt_state(*final)} line at {fmt_freq(rep.resonance_hz, 10)} ({bias(shot) * 1e4:.4g} G bias)"
+                       f"{tail}; transfer {p:.3g} instead of {p0:.3g}" + (f"; Fourier width {fmt_freq(fw)}" if fw else ""),
                        act.pos, block=act.block, time_s=act.t0, hint=f"{fix} frequency: {target:.10g} Hz", data=data)
 
 

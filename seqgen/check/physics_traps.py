@@ -17,7 +17,7 @@ from ..predict.species import gaussian_beams, species, trap_beams
 from ..predict.text import size_text, who, why_there
 from ..predict.played import off_floor, played
 from ..predict.traps import held, trap_beam_shifts, trap_writes, write_prediction
-from ..textfmt import fmt_length, fmt_temperature, fmt_time, fmt_vec
+from ..textfmt import fmt_length, fmt_temperature, fmt_time, fmt_vec, outward
 from .rules import rule
 
 
@@ -118,12 +118,37 @@ def nonadiabatic_ramp(shot):
         worst = max(exc)
         if worst > shot.limits.max_excitation:
             axis = int(np.argmax(exc))
+            if rep.omegas_before is not None:
+                yield _sudden_step(shot, w, rep, worst, axis)
+                continue
             over, data = _others(w)
             yield make(NONADIABATIC_RAMP, f"{_what(w)} leaves {worst:.3g} of the energy above "
                        f"adiabatic on its axis {axis + 1} (limit {shot.limits.max_excitation:g}); max |d omega/dt|/omega^2 = "
                        f"{rep.adiabaticity:.3g}{over}", w.pos, block=w.block, time_s=w.t0,
                        hint="make the ramp longer or smoother (minimum_jerk / smooth shapes)",
                        data={"excitation": worst, "adiabaticity": rep.adiabaticity, **data})
+
+
+def _sudden_step(shot, w, rep, worst, axis):
+    """The finding for sets that step the trap at once (excitation of a sudden change, predict.step_prediction),
+    with the shortest linear ramp of the same powers that passes the check."""
+    def hz(omegas):
+        return "/".join(f"{x / (2 * np.pi):.4g}" for x in omegas) + " Hz"
+
+    many = len(w.segments) > 1
+    if rep.min_ramp_s is not None:
+        # 10 % above the shortest ramp: the check samples the played ramp, not this ideal one
+        need = fmt_time(outward(1.1 * rep.min_ramp_s, 2), unit="ms")
+        hint = (f"replace the set{'s' if many else ''} by {'ramps' if many else 'a ramp'} to the same "
+                f"value{'s' if many else ''} of at least {need} (linear{', starting together: at: 0 s' if many else ''})")
+    else:
+        hint = "ramp the powers instead of setting them (a linear ramp, long against the trap periods)"
+    return make(NONADIABATIC_RAMP, f"{_what(w)} step{'' if many else 's'} the trap at once from "
+                f"{hz(rep.omegas_before)} to {hz(rep.omegas[-1])}: a sudden change leaves {worst:.3g} of the energy "
+                f"above adiabatic on its axis {axis + 1} (E/E_ad = (omega0^2 + omega1^2)/(2 omega0 omega1); limit "
+                f"{shot.limits.max_excitation:g})", w.pos, block=w.block, time_s=w.t0, hint=hint,
+                data={"excitation": worst, "omegas_before_rad_s": [float(x) for x in rep.omegas_before],
+                      "omegas_after_rad_s": [float(x) for x in rep.omegas[-1]], "min_ramp_s": rep.min_ramp_s})
 
 
 def _way_out(shot, t):

@@ -295,9 +295,14 @@ NONADIABATIC_RAMP = Code(
     species' polarizability), integrates the Ermakov scaling equation
     b'' + omega(t)^2 b = omega_0^2 / b^3 and reports the final energy above the
     adiabatic value, E / E_ad - 1, which for a harmonic trap is the same for
-    every initial state (so for a thermal cloud too). The threshold is
-    `limits: {max_excitation: ...}` (default 0.05). Lengthen the ramp, use a
-    smooth shape, or accept the finding with a reason.""")
+    every initial state (so for a thermal cloud too). Plain sets that step the
+    trap at once are a sudden change: E / E_ad = (omega0^2 + omega1^2) /
+    (2 omega0 omega1) per axis (virial theorem and the adiabatic invariant
+    E / omega, from memory); a set that lets the atoms go along an axis (its
+    frequency below a tenth), switches the trap on or leaves none is not one.
+    The threshold is `limits: {max_excitation: ...}` (default 0.05). Lengthen
+    the ramp, use a smooth shape, replace a set by a ramp at least as long as
+    the fix names, or accept the finding with a reason.""")
 
 NOT_TUNNELLING = Code(
     "physics.not-tunnelling", "warning", stage="physics",

@@ -68,9 +68,7 @@ def output_rows(out: Output, segments, device, findings: list, spans: dict):
             t = seg.t0 - lat
             k = int(quantize_times(np.array([max(t, 0.0)]), tick)[0])
             if t < -0.5 * tick:
-                findings.append(make(BEFORE_START, f"'{out.name}' must be commanded {fmt_when(-t)} before t = 0 "
-                                     f"to compensate its {fmt_when(lat)} latency", seg.pos, block=seg.block, time_s=seg.t0,
-                                     hint="start this block later or move the whole sequence later"))
+                findings.append(_before_start(out, seg, t, lat))
             new = float(np.asarray(to_output(out, seg.v1)))
             # a linearly interpolating device makes a step as a ramp over one minimum
             # interval: a row m ticks before the edge holds the old value (unless an
@@ -111,6 +109,21 @@ def output_rows(out: Output, segments, device, findings: list, spans: dict):
     keep = np.ones(len(t), dtype=bool)
     keep[:-1] = t[1:] != t[:-1]
     return t[keep], v[keep], fl[keep]
+
+
+def _before_start(out: Output, seg, t: float, lat: float) -> Finding:
+    """A set that would have to be commanded before t = 0. A clock pulse's frequency write comes a synth's
+    settling time ahead of its pulse (resolve's lower_clock_pulse): then the lead is the settling, not a latency."""
+    if seg.action == "clock_pulse" and out.name == f"{out.channel}.freq" and out.settling_s > 0:
+        lead = out.settling_s + lat
+        plus = f" plus its {fmt_when(lat)} latency" if lat > 0 else ""
+        return make(BEFORE_START, f"'{out.name}' is written {fmt_when(lead)} (the synth's settling time{plus}) before "
+                    f"its pulse, before t = 0 (by {fmt_when(-t)})", seg.pos, block=seg.block, time_s=seg.t0,
+                    hint=f"start the pulse at least {fmt_when(outward(lead))} after t = 0",
+                    data={"settling_s": out.settling_s, "latency_s": lat})
+    return make(BEFORE_START, f"'{out.name}' must be commanded {fmt_when(-t)} before t = 0 "
+                f"to compensate its {fmt_when(lat)} latency", seg.pos, block=seg.block, time_s=seg.t0,
+                hint="start this block later or move the whole sequence later")
 
 
 def _undersampled(out: Output, seg, device, err: float, tol: float, rows: int) -> Finding:

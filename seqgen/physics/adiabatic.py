@@ -95,6 +95,21 @@ def ermakov_final_energy_ratio(omega_of_t: Callable, t0: float, t1: float, rtol:
     return RampExcitation(energy_ratio=float(ratio), breathing_amplitude=float(amp), b=float(b), b_dot=float(bd))
 
 
+def sudden_energy_ratio(omega0, omega1):
+    """E/E_ad after a sudden change of a harmonic trap from omega0 to omega1 (per axis, vectorised).
+
+    Derivation: in the trap omega0 any eigenstate or thermal state has half its energy E0 kinetic and half
+    potential (virial theorem). A sudden change keeps positions and velocities: the kinetic part stays E0/2,
+    the potential part m omega^2 <x^2>/2 becomes (omega1/omega0)^2 E0/2, so E = E0 (omega0^2 + omega1^2) /
+    (2 omega0^2). An adiabatic change keeps the action E/omega (Mechanics, 3rd ed., Pergamon (1976), sect. 49,
+    from memory): E_ad = E0 omega1/omega0. Hence E/E_ad = (omega0^2 + omega1^2) / (2 omega0 omega1), the
+    Ermakov ratio of ermakov_final_energy_ratio with b = 1, b' = 0 at the change.
+    """
+    w0 = np.asarray(omega0, dtype=float)
+    w1 = np.asarray(omega1, dtype=float)
+    return (w0**2 + w1**2) / (2 * w0 * w1)
+
+
 # --- Thomas-Fermi condensate ----------------------------------------------
 
 def _tf_rhs_factory(omegas_sq_of_t: Callable, w0sq: np.ndarray, t0: float, tscale: float):

@@ -12,7 +12,7 @@ import numpy as np
 from scipy import constants as sc
 
 from .cache import per_shot_cache
-from .played import played_source
+from .played import off_floor, played, played_source
 from .species import gaussian_beams, species, trap_beams
 
 N_SAMPLES = 24  # trap evaluations per ramp: frequencies vary smoothly with power
@@ -123,6 +123,8 @@ class TrapStage:
     heating: float = 0.0
     heating_rate: float = 0.0
     source: str = "played"  # "intended" when a trap beam's output could not be compiled (predict.played)
+    omegas_before: np.ndarray | None = None  # a sudden step (set): the frequencies just before it (rad/s, (3,))
+    min_ramp_s: float | None = None  # a sudden step: the shortest linear ramp of the same powers within the limit
 
 
 @per_shot_cache(lambda shot, act: ("trap", act.index))
@@ -206,7 +208,69 @@ def write_prediction(shot, w: TrapWrite) -> TrapStage:
         return span_prediction(shot, w.t0, w.t1, N_SAMPLES, tuple(sorted(x.t0 + settle for x in w.others)))
     if w.t1 > w.t0:  # plain ramps are not reported row by row: the bound decides whenever it clears the limit
         return span_prediction(shot, w.t0, w.t1, N_SAMPLES, (), 1.0)
-    return span_prediction(shot, w.t0, w.t0 + _settle(shot, {x.output for x in w.segments}), 1)
+    chans = {x.output for x in w.segments}
+    return step_prediction(shot, w.t0 - _lead(shot, chans), w.t0 + _settle(shot, chans))
+
+
+def _lead(shot, channels) -> float:
+    """How long before a set the old value is surely still played: two minimum intervals of the slowest device
+    involved (a linearly interpolating device starts a step one minimum interval early)."""
+    steps = [d.tick_s * max(1, d.min_interval_ticks) for d in
+             (shot.rig.devices.get(shot.rig.outputs[c].device) for c in channels) if d is not None]
+    return 2 * max(steps, default=1e-6)
+
+
+RELEASE_RATIO = 0.1  # an axis whose frequency drops below this fraction is let go along it (a release), not excited
+
+
+@per_shot_cache(lambda shot, before, after: ("trap-step", before, after))
+def step_prediction(shot, before, after) -> TrapStage:
+    """The TrapStage of a sudden step of the trap (sets): the trap just after it and, when a trap holds the
+    atoms before and after and no axis is let go (frequency below RELEASE_RATIO of its value), the excitation
+    per axis of a sudden change (seqgen.physics.adiabatic.sudden_energy_ratio) with the frequencies just before;
+    when that passes the limit max_excitation, the shortest linear ramp of the same powers the check accepts."""
+    from ..physics.adiabatic import sudden_energy_ratio
+
+    base = span_prediction(shot, after, after, 1)
+    _, w0, d0 = trap_stage(shot, before, before + 1e-12, n=1)
+    w0, w1 = w0[0], base.omegas[0]
+    if not (np.all(np.isfinite(w0)) and np.all(np.isfinite(w1)) and d0[0] > 0 and base.depth_g[0] > 0
+            and np.all(w0 > 0) and np.all(w1 > 0)) or np.any(w1 < RELEASE_RATIO * w0):
+        return base  # switched on from nothing, lost (physics.trap-lost), or a release along some axis
+    exc = tuple(float(x) for x in sudden_energy_ratio(w0, w1) - 1.0)
+    need = linear_ramp_time(shot, before, after) if max(exc) > shot.limits.max_excitation else None
+    w0 = np.array(w0)
+    w0.setflags(write=False)
+    return TrapStage(base.times, base.omegas, base.depth_g, base.eta, None, exc, False, base.heating,
+                     base.heating_rate, base.source, w0, need)
+
+
+def linear_ramp_time(shot, before, after, n=N_SAMPLES) -> float | None:
+    """The shortest linear ramp (s) of every trap beam's power from its value played at `before` to that at
+    `after` whose adiabaticity parameter max |d omega/dt| / omega^2 stays below sqrt(max_excitation): the
+    bound under which span_prediction takes a plain ramp's excitation as (adiabaticity)^2, within the limit.
+    For a ramp of duration T the parameter is max |d omega/ds| / omega^2 / T (s = the ramp's fraction, 0..1).
+    None when some power on the way holds no trap."""
+    from ..physics.adiabatic import adiabaticity_parameter
+    from ..physics.optical import GaussianBeam
+
+    sp = species(shot)
+    beams = trap_beams(shot)
+    p0 = np.array([float(played(shot, b.power_channel, [before])[0]) for b in beams])
+    p1 = np.array([float(played(shot, b.power_channel, [after])[0]) for b in beams])
+    floors = np.array([off_floor(shot, b.power_channel) for b in beams])
+    s = np.linspace(0.0, 1.0, n)
+    omegas = np.full((n, 3), np.nan)
+    for i, x in enumerate(s):
+        p = p0 + x * (p1 - p0)
+        on = tuple(GaussianBeam(float(q), b.waist_m, b.wavelength_m, b.direction, b.position_m, b.waist_y_m)
+                   for b, q, f in zip(beams, p, floors) if q > f)  # as gaussian_beams builds them
+        h = held(sp, on) if on else None
+        if h is None or h.omegas is None or h.depth <= 0:
+            return None
+        omegas[i] = h.omegas
+    rate = float(np.max(adiabaticity_parameter(s, omegas.T, axis=-1)))
+    return rate / np.sqrt(shot.limits.max_excitation)
 
 
 @per_shot_cache(lambda shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2: ("trap-span", t0, t1, n, extra, bound))
