@@ -1,4 +1,5 @@
-"""Physics panels under the lanes: trap depth and frequencies along trap ramps, the falling cloud at each
+"""Physics panels under the lanes: trap depth and frequencies along every trap ramp (a `trap_ramp` or a plain
+ramp of a trap beam), the falling cloud at each
 image, and the physics notes strip.
 
 Every physics prediction the plot draws is fetched in `_physics`, the one place that calls into the checks' reports
@@ -24,14 +25,16 @@ def _physics(shot, t0, t1):
     from scipy import constants as sc
 
     out = {"trap": [], "clouds": [], "notes": []}
-    from ...predict import image_prediction, report_rows, trap_stage
+    from ...predict import image_prediction, report_rows, trap_stage, trap_writes
 
     if shot.sample is None:
         return out
     seen = set()
-    for act in shot.phys:
-        if act.kind != "trap_ramp":
-            continue
+    try:
+        writes = trap_writes(shot)  # trap_ramps and plain ramps of trap beams alike: what is played
+    except Exception:
+        writes = ()
+    for act in writes:
         a, b = max(act.t0, t0), min(act.t1, t1)
         if b <= a or (a, b) in seen:
             continue
