@@ -251,10 +251,25 @@ def test_release_from_a_quadrupole_has_the_boltzmann_size(tmp_path):
     pred = pr.image_prediction(shot, only(shot, "image"))
     c = pred.cloud
     assert c is not None and c.trap == "quadrupole" and c.trap_block == "hold"
-    # 50 A x 0.4 G/cm/A = 20 G/cm along the vertical axis, 10 G/cm across it; moment at the field zero
-    radial = 50 * 0.4 * 0.01 / 2
-    sigma0 = 2 * sc.k * temp / (abs(moment(1, -1, 0.0)) * radial)
-    assert c.size == pytest.approx(thermal_width_after(sigma0, temp, tof_of(shot)), rel=1e-3)
+    # 50 A x 0.4 G/cm/A = 20 G/cm along the vertical axis, 10 G/cm across it; moment at the field zero. The
+    # Boltzmann density exp(-(|mu| |B(r)| + m g z) / k_B T) with |B| = b' sqrt(rho^2 + 4 z^2), b' = 10 G/cm,
+    # integrated here in cylindrical coordinates (scipy dblquad): gravity stretches the cloud beyond the
+    # no-gravity rms 2 k_B T / (|mu| b') across the axis
+    from scipy.integrate import dblquad
+
+    b1, mu, weight = 50 * 0.4 * 0.01 / 2, abs(moment(1, -1, 0.0)), MASS * sc.g
+
+    def density(rho, z):
+        return rho * np.exp(-(mu * b1 * np.hypot(rho, 2 * z) + weight * z) / (sc.k * temp))
+
+    span = 60 * sc.k * temp / (mu * b1)
+    norm = dblquad(density, -span, span, 0, span)[0]
+    x2 = dblquad(lambda rho, z: density(rho, z) * rho**2 / 2, -span, span, 0, span)[0] / norm
+    zm = dblquad(lambda rho, z: density(rho, z) * z, -span, span, 0, span)[0] / norm
+    z2 = dblquad(lambda rho, z: density(rho, z) * z**2, -span, span, 0, span)[0] / norm - zm**2
+    assert math.sqrt(x2) > 1.05 * 2 * sc.k * temp / (mu * b1)  # gravity matters at this support
+    expected = max(thermal_width_after(math.sqrt(v), temp, tof_of(shot)) for v in (x2, z2))
+    assert c.size == pytest.approx(expected, rel=5e-3)
     items = " ; ".join(r for row in physics_rows(shot) if row["kind"] == "image" for r in row["items"])
     assert "released from the magnetic trap of block 'hold' (linear quadrupole)" in items
 

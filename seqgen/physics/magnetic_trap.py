@@ -220,3 +220,37 @@ def trappable_states(atom, field_t: float = 0.0, min_moment_j_t: float = 0.01 * 
         if float(magnetic_moment(int(F), int(mF), abs(field_t), atom=atom)) < -min_moment_j_t:
             out.append((int(F), int(mF)))
     return out
+
+
+def linear_trap_cloud(field_matrix, moment_j_t, mass_kg, temperature_k, vertical=(0.0, 0.0, 1.0), points: int = 81):
+    """(mean position (3,) m, covariance (3, 3) m^2) of a thermal cloud in a linear magnetic trap with gravity:
+    the Boltzmann density exp(-(|moment| |M r| + m g_n r.up) / k_B T), integrated on a grid.
+
+    Without gravity the density is isotropic in u = |moment| M r / k_B T with <u_i^2> = 4 (see
+    ``kinematics.linear_trap_rms_widths``); gravity pulls the cloud below the field zero and stretches it along
+    the vertical, by a factor that grows as the support (force over weight) approaches 1: the cloud's decay
+    length below the zero is k_B T / (|moment| G_v - m g_n) instead of k_B T / (|moment| G_v). The grid spans
+    30 decay lengths on each side of every principal axis of M (the gravity-shortened one below). ValueError when
+    gravity wins (support <= 1): no bound cloud."""
+    m = np.asarray(field_matrix, dtype=float)
+    up = _unit_rows(vertical)[0]
+    mu = abs(float(moment_j_t))
+    kt = K_B * float(temperature_k)
+    hold = holding_gradient(m)
+    weight = float(mass_kg) * G_N
+    if not (mu > 0 and kt > 0) or mu * hold <= weight:
+        raise ValueError("gravity is not held: no bound thermal cloud")
+    eig, vec = np.linalg.eigh(m)
+    g = np.abs(eig)
+    # decay length along each principal axis; along the direction gravity pulls, shortened by the weight
+    tilt = np.abs(vec.T @ up) * weight
+    reach = 30.0 * kt / np.maximum(mu * g - tilt, mu * g * (1 - weight / (mu * hold)))
+    axes_1d = [np.linspace(-r, r, points) for r in reach]
+    a, b, c = np.meshgrid(*axes_1d, indexing="ij")
+    pts = (a[..., None] * vec[:, 0] + b[..., None] * vec[:, 1] + c[..., None] * vec[:, 2]).reshape(-1, 3)
+    u = (mu * np.linalg.norm(pts @ m.T, axis=1) + weight * (pts @ up)) / kt
+    w = np.exp(-(u - u.min()))
+    w /= w.sum()
+    mean = w @ pts
+    d = pts - mean
+    return mean, (d * w[:, None]).T @ d

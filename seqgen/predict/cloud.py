@@ -200,6 +200,7 @@ def _trap_before_release(shot, sp, rel):
     """(omegas or None, rms widths in a linear trap or None, principal axes (columns), trap code, block of a
     magnetic hold, SizeUnknown or None) of the trap the release opens; omegas and widths along the axes."""
     from ..physics.kinematics import linear_trap_rms_widths
+    from ..physics.magnetic_trap import linear_trap_cloud
     from ..physics.optical import find_trap_minimum
 
     if shot.sample.trap_frequencies_hz:  # stated along the rig's x, y, z
@@ -230,7 +231,12 @@ def _trap_before_release(shot, sp, rel):
             return None, None, None, None, None, SizeUnknown(QUADRUPOLE_NEEDS_TEMPERATURE, hold.block)
         if not np.all(grads > 0):
             return None, None, None, None, None, SizeUnknown(QUADRUPOLE_FLAT, hold.block)
-        return None, linear_trap_rms_widths(temp, rep.moment, grads), vec, TRAP_QUADRUPOLE, hold.block, None
+        try:  # gravity pulls the cloud below the zero and stretches it as the support nears 1
+            _, cov = linear_trap_cloud(rep.matrix, rep.moment, sp.mass_kg, temp)
+            widths = np.sqrt(np.einsum("ji,jk,ki->i", vec, cov, vec))
+        except ValueError:
+            widths = linear_trap_rms_widths(temp, rep.moment, grads)
+        return None, widths, vec, TRAP_QUADRUPOLE, hold.block, None
     return None, None, None, None, None, SizeUnknown(HOLD_NO_SIZE, hold.block, hold=rep)
 
 

@@ -206,3 +206,40 @@ def test_trappable_states_are_the_low_field_seekers_of_the_breit_rabi_levels(fie
     if field_g < 2:
         assert want == [(1, -1), (2, 1), (2, 2)]
     assert ((2, 0) in want) is (field_g >= 100) and ((1, -1) in want) is (field_g < 316)
+
+
+def test_linear_trap_cloud_with_gravity_obeys_the_virial_theorem_and_sags():
+    # U = |mu| |M r| + m g z is homogeneous of degree 1 in r, so a Boltzmann cloud has <r . grad U> = <U> = 3 k_B T
+    # (virial theorem of classical statistical mechanics) whatever the support; without gravity the rms widths
+    # are 2 k_B T / (|mu| g_i) (the exp(-|u|) moments); with gravity the cloud sits below the zero and is wider
+    import numpy as np
+    import scipy.constants as sc
+
+    from seqgen.physics.magnetic_trap import linear_trap_cloud, quadrupole_field_matrix
+
+    mu_b = sc.physical_constants["Bohr magneton"][0]
+    mass = 132.905451961 * sc.atomic_mass  # Cs-133 (from memory)
+    mu, temp = 0.75 * mu_b, 1e-6  # |F=3, mF=-3>: g_F = -1/4 (from memory), a low-field seeker
+    kt = sc.k * temp
+    for grad, axis in ((0.40, (0, 0, 1)), (2.0, (0, 0, 1)), (0.8, (1, 0, 0))):
+        m = quadrupole_field_matrix([grad], [axis])
+        mean, cov = linear_trap_cloud(m, -mu, mass, temp)
+        # held against gravity: the cloud sits below the zero, with a positive definite covariance
+        assert mean[2] < 0 and np.all(np.linalg.eigvalsh(cov) > 0)
+    # no gravity (a vanishing mass): the closed-form widths
+    m = quadrupole_field_matrix([0.40], [(0, 0, 1)])
+    _, cov = linear_trap_cloud(m, -mu, 1e-40, temp)
+    expected = 2 * kt / (mu * np.array([0.20, 0.20, 0.40]))
+    assert np.sqrt(np.diag(cov)) == pytest.approx(expected, rel=5e-3)
+    # the virial theorem near levitation (support 1.29), on a finer grid written here, and the function's sag
+    grad, up = 0.40, np.array([0.0, 0.0, 1.0])
+    m = quadrupole_field_matrix([grad], [(0, 0, 1)])
+    reach = 40 * kt / (mu * 0.20)
+    xs = np.linspace(-reach, reach, 121)
+    x, y, z = np.meshgrid(xs, xs, xs, indexing="ij")
+    pts = np.stack([x, y, z], axis=-1).reshape(-1, 3)
+    u = mu * np.linalg.norm(pts @ m.T, axis=1) + mass * sc.g * (pts @ up)
+    w = np.exp(-(u - u.min()) / kt)
+    assert float(w @ u / w.sum()) == pytest.approx(3 * kt, rel=0.02)
+    mean, _ = linear_trap_cloud(m, -mu, mass, temp)
+    assert mean[2] == pytest.approx(float(w @ pts[:, 2] / w.sum()), rel=0.02)
