@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import numpy as np
-from scipy.interpolate import PchipInterpolator
 
 from .model import Calibration, Output
 
 
 def _pchip(x, y):
+    from scipy.interpolate import PchipInterpolator  # here: scipy.interpolate costs ~0.2 s to load
+
     return PchipInterpolator(np.asarray(x, float), np.asarray(y, float), extrapolate=False)
 
 

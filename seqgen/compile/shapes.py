@@ -20,9 +20,12 @@ Shapes (all dimensionless; T = ramp duration in s, tau = time constant in s):
 from __future__ import annotations
 
 from functools import lru_cache
+from typing import TYPE_CHECKING
 
 import numpy as np
-from scipy.interpolate import PchipInterpolator
+
+if TYPE_CHECKING:
+    from scipy.interpolate import PchipInterpolator
 
 SHAPES = ("linear", "exponential", "smooth", "minimum_jerk", "table")
 
@@ -81,6 +84,8 @@ def _table_interpolator(table: tuple[tuple[float, float], ...]) -> PchipInterpol
     # its endpoints and the range check on the endpoints stays valid
     if np.any(f < 0) or np.any(f > 1):
         raise ValueError("shape table f values must lie in [0, 1] (the ramp may not overshoot its endpoints)")
+    from scipy.interpolate import PchipInterpolator  # here: only shape tables need it, and it loads slowly
+
     return PchipInterpolator(s, f, extrapolate=False)
 
 

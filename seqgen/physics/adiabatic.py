@@ -11,7 +11,6 @@ from typing import Callable
 
 import numpy as np
 from scipy import constants as sc
-from scipy.integrate import solve_ivp
 
 
 def adiabaticity_profile(t, omega_t, axis: int = -1) -> np.ndarray:
@@ -67,6 +66,8 @@ def ermakov_final_energy_ratio(omega_of_t: Callable, t0: float, t1: float, rtol:
     With ``squared=True`` the callable returns omega^2 (may be negative:
     expulsive intervals).
     """
+    from scipy.integrate import solve_ivp
+
     if not t1 > t0:
         raise ValueError("need t1 > t0")
 
@@ -184,6 +185,8 @@ def condensate_ramp_excitation(omegas_of_t: Callable, t0: float, t1: float, rtol
     from lambda = 1, lambda' = 0 at t0. ``omegas_of_t(t)`` returns the three
     angular frequencies (rad/s).
     """
+    from scipy.integrate import solve_ivp
+
     if not t1 > t0:
         raise ValueError("need t1 > t0")
     w0 = np.asarray(omegas_of_t(t0), dtype=float).reshape(3)

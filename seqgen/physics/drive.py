@@ -15,7 +15,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy import constants as sc
-from scipy import integrate, optimize
 
 from .zeeman import _params
 
@@ -111,6 +110,8 @@ def _breakpoints(name, duration, opts):
 
 def envelope_area(name, duration, **opts) -> float:
     """Integral of the envelope over [0, duration] in s (closed form for square, quadrature otherwise)."""
+    from scipy import integrate
+
     T = float(duration)
     if name == "square":
         return T
@@ -371,6 +372,8 @@ def fourier_width_hz(envelope_name, duration, **opts) -> float:
     envelope must be non-negative so that the maximum is at f = 0. This is
     the small-area (linear-response) excitation linewidth of the pulse.
     """
+    from scipy import optimize
+
     T = float(duration)
     t, wf = _spectrum_nodes(envelope_name, T, opts)
     p0 = abs(np.sum(wf)) ** 2

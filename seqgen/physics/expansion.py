@@ -9,7 +9,6 @@ from bisect import bisect_right
 
 import numpy as np
 from scipy import constants as sc
-from scipy.integrate import odeint, solve_ivp
 
 G_N = 9.80665  # standard gravity, m/s^2, exact (SI Brochure)
 
@@ -50,6 +49,8 @@ def condensate_expansion(omegas_xyz, t_array, rtol: float = 1e-10) -> np.ndarray
     lambda = 1, lambda' = 0 at release (Phys. Rev. Lett. 77, 5315 (1996)); the
     radii are R_j(t) = lambda_j(t) R_j(0). Times need not be sorted; t >= 0.
     """
+    from scipy.integrate import solve_ivp
+
     w = np.asarray(omegas_xyz, dtype=float).reshape(3)
     t = np.asarray(t_array, dtype=float)
     flat = t.ravel()
@@ -109,6 +110,8 @@ def trap_scaling(omega0_xyz, times, omegas, b0=(1.0, 1.0, 1.0), db0=(0.0, 0.0, 0
     condensate at rest in the trap omega0_xyz (rad/s) that then sees the trap frequencies `omegas` ((n, 3)
     rad/s, linear between the times; 0 is no trap): b_j'' = omega0_j^2 / (b_j b_x b_y b_z) - omega_j(t)^2 b_j
     from b = b0, b' = db0 at times[0] (Phys. Rev. Lett. 77, 5315 (1996); Phys. Rev. A 54, R1753 (1996))."""
+    from scipy.integrate import odeint
+
     w0 = np.asarray(omega0_xyz, dtype=float).reshape(3)
     t = np.asarray(times, dtype=float).reshape(-1)
     w = np.asarray(omegas, dtype=float).reshape(t.size, 3)
@@ -147,6 +150,8 @@ def free_scaling(omega0_xyz, b0, db0, t_array, rtol: float = 1e-10) -> np.ndarra
     """Scaling factors b_j(t), shape (3, N), a time t >= 0 after the trap is switched off, of a condensate
     with b = b0, b' = db0 (1/s) at the switch-off (at rest in omega0_xyz when b = 1): b_j'' = omega0_j^2 /
     (b_j b_x b_y b_z) (Phys. Rev. Lett. 77, 5315 (1996)). Times need not be sorted."""
+    from scipy.integrate import solve_ivp
+
     w0 = np.asarray(omega0_xyz, dtype=float).reshape(3)
     t = np.asarray(t_array, dtype=float)
     flat = t.ravel()

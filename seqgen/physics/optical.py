@@ -14,7 +14,6 @@ from typing import Iterable, Sequence
 
 import numpy as np
 from scipy import constants as sc
-from scipy import optimize
 
 from .atoms import Species
 
@@ -296,6 +295,8 @@ def _hessian(f, x0: np.ndarray, steps: np.ndarray, basis: np.ndarray) -> np.ndar
 
 def _vertical_scan_minimum(f, start: np.ndarray, up: np.ndarray, reach: float) -> float | None:
     """Offset along ``up`` of the local minimum of f nearest ``start`` on the vertical line, or None."""
+    from scipy import optimize
+
     z = np.linspace(-reach, 0.5 * reach, 3001)
     vals = f(start + z[:, None] * up)
     inner = np.flatnonzero((vals[1:-1] < vals[:-2]) & (vals[1:-1] <= vals[2:])) + 1
@@ -316,6 +317,8 @@ def find_trap_minimum(species: Species, beams, gravity: bool = True, vertical=(0
     is not swamped). omega_k = sqrt(lambda_k / m). Raises ValueError if there is
     no minimum (too weak to hold against gravity, or blue detuned).
     """
+    from scipy import optimize
+
     beams = _as_beams(beams)
     up = _unit(vertical)
     length = _length_scale(beams)
@@ -414,6 +417,8 @@ def held_trap_heating(species: Species, beams, vertical=(0, 0, 1)) -> tuple[floa
 
 
 def _depth_below_minimum(species: Species, beams, m: TrapMinimum, up: np.ndarray) -> float:
+    from scipy import optimize
+
     reach = 6 * max(max(b.waists) for b in beams)
     ref = m.position_m
 

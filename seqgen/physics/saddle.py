@@ -27,7 +27,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy import optimize
 
 # a shoulder counts as the way out when the slope there is below this fraction of the steepest slope before it
 # (modelling choice, no source: a weak crossing beam on a strong one gives ~1e-3; two beams of comparable
@@ -109,6 +108,8 @@ def refine_saddle(grad: Callable, start: np.ndarray, length: float, force_scale:
 
     Newton's method on grad = 0 (scipy.optimize.root, 'hybr' with the Hessian as Jacobian) in coordinates
     scaled by ``length``, the gradient by ``force_scale``."""
+    from scipy import optimize
+
     def g(y):
         return grad(start + y * length) / force_scale
 
@@ -135,6 +136,8 @@ def lowest_escape(f: Callable, grad: Callable, x0, directions, radii, far: Calla
     ``radii`` (n_r,) increasing from 0; ``far(end_points)`` the far-field value (the potential with the local
     features gone, e.g. gravity alone) at the rays' ends; ``length`` and ``force_scale`` the scales of the
     well for the Newton refinement; ``refine`` how many of the lowest ray maxima to refine."""
+    from scipy import optimize
+
     x0 = np.asarray(x0, dtype=float)
     dirs = np.asarray(directions, dtype=float)
     pts = x0 + radii[None, :, None] * dirs[:, None, :]

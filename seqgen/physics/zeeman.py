@@ -31,7 +31,6 @@ from __future__ import annotations
 
 import numpy as np
 from scipy import constants as sc
-from scipy import optimize
 
 MU_B = sc.physical_constants["Bohr magneton"][0]  # J/T
 H = sc.h  # J s
@@ -249,6 +248,8 @@ def field_insensitive_point(F1, m1, F2, m2, *, b_max_t=1.0, nuclear_spin=None, h
     two levels nearly cancel and the quadratic term turns the slope over at a
     few gauss (two-photon "magic" field).
     """
+    from scipy import optimize
+
     i, nu, gj, gi = _zeeman_params(atom, nuclear_spin, hyperfine_splitting_hz, g_j, g_i)
     s1, m1a = _branch(F1, m1, i)
     s2, m2a = _branch(F2, m2, i)

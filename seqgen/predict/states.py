@@ -19,7 +19,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize
 
 from .cache import per_shot_cache
 from .played import played, played_source, track
@@ -358,6 +357,7 @@ def _rate_at(shot, output, tc, t0, t1) -> float:
 @per_shot_cache(lambda shot, drive, seg: ("state-sweep", seg.output, seg.t0))
 def sweep_analysis(shot, drive, seg) -> SweepPrediction | None:
     """Crossing, Landau-Zener and Bloch transfer of one frequency sweep, or None without a transition."""
+    from scipy import optimize
     from ..physics.drive import bloch_propagate, landau_zener_probability
 
     sp = species(shot)

@@ -9,18 +9,63 @@ dimensions.
 from __future__ import annotations
 
 import math
+import os
 import re
+import sys
+import threading
 from dataclasses import dataclass
 from functools import lru_cache
-
-import pint
+from pathlib import Path
 
 from ..textfmt import fmt_si
 
-_UREG = pint.UnitRegistry(autoconvert_offset_to_baseunit=False)
-# pint's gauss belongs to the Gaussian-CGS system (square-root dimensions); labs
-# mean the SI-compatible 1 G = 1e-4 T, so every G / gauss word is mapped to it.
-_UREG.define("labgauss = 1e-4 * tesla = LabG")
+_UREG = None
+_UREG_LOCK = threading.Lock()
+
+
+def _cache_folder() -> Path | None:
+    """Where pint keeps its parsed definitions between runs: a per-user cache folder ($XDG_CACHE_HOME, else
+    ~/.cache), per Python version (the files are pickles); None (no cache) when it cannot be written."""
+    try:
+        base = os.environ.get("XDG_CACHE_HOME", "")
+        root = Path(base) if os.path.isabs(base) else Path.home() / ".cache"
+        folder = root / "seqgen" / f"pint-py{sys.version_info[0]}.{sys.version_info[1]}"
+        folder.mkdir(parents=True, exist_ok=True)
+    except (OSError, RuntimeError):  # RuntimeError: no home folder to be found
+        return None
+    return folder if os.access(folder, os.W_OK | os.X_OK) else None
+
+
+def _new_registry():
+    import pint  # here, not at the head: commands that parse no unit never load pint
+
+    folder = _cache_folder()
+    if folder is not None:
+        try:  # building the registry from pint's text definitions takes ~0.1 s; its own cache skips that
+            return pint.UnitRegistry(autoconvert_offset_to_baseunit=False, cache_folder=folder)
+        except Exception:  # a cache file cut short (a killed run, a concurrent first write): drop it, build anew
+            for stale in (*folder.glob("*.pickle"), *folder.glob("*.json")):
+                try:
+                    stale.unlink()
+                except OSError:
+                    pass
+    return pint.UnitRegistry(autoconvert_offset_to_baseunit=False)
+
+
+def _ureg():
+    """The one pint registry of the process, built on first use."""
+    global _UREG
+    if _UREG is None:
+        with _UREG_LOCK:
+            if _UREG is None:
+                ureg = _new_registry()
+                # pint's gauss belongs to the Gaussian-CGS system (square-root dimensions); labs
+                # mean the SI-compatible 1 G = 1e-4 T, so every G / gauss word is mapped to it.
+                ureg.define("labgauss = 1e-4 * tesla = LabG")
+                _UREG = ureg
+    return _UREG
+
+
 _GAUSS_WORD = re.compile(r"\b(da|[yzafpnumcdhkMGTP])?(G|gauss|Gs)\b")
 _BASE = ("[length]", "[mass]", "[time]", "[current]", "[temperature]", "[substance]", "[luminosity]")
 _SYMBOL = ("m", "kg", "s", "A", "K", "mol", "cd")
@@ -54,7 +99,7 @@ def unit_factor(unit_text: str) -> tuple[float, Dims]:
     if not text:
         return 1.0, DIMENSIONLESS
     try:
-        q = _UREG.Quantity(1.0, text)
+        q = _ureg().Quantity(1.0, text)
         if not q._ok_for_muldiv():
             raise UnitError("offset temperature units (degC, degF) are not accepted; use K")
         base = q.to_base_units()
@@ -234,7 +279,7 @@ def unit_name(unit_text: str) -> str | None:
         return None
     try:
         unit_factor(text)
-        word = format(_UREG.Unit(_GAUSS_WORD.sub(lambda m: (m.group(1) or "") + "LabG", text.replace("µ", "u")
+        word = format(_ureg().Unit(_GAUSS_WORD.sub(lambda m: (m.group(1) or "") + "LabG", text.replace("µ", "u")
                                                   .replace("μ", "u"))))
     except Exception:  # pint raises many types for bad text
         return None
@@ -248,7 +293,7 @@ def _prefix_of(unit: str) -> str:
     if not re.fullmatch(r"[A-Za-z]+", unit):
         return ""
     try:
-        readings = tuple(_UREG.parse_unit_name(unit))
+        readings = tuple(_ureg().parse_unit_name(unit))
     except Exception:  # pint raises many types for bad text
         return ""
     if not readings or any(not prefix for prefix, _, _ in readings):

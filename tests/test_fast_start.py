@@ -1,0 +1,114 @@
+"""A command loads only the libraries it needs (structural: which modules a fresh process holds, never how long
+it took; the times are printed by tests/benchmarks/bench_start.py), and pint's disk cache of its unit definitions
+never changes a unit: cached, spoilt or unwritable, the values are those of the SI."""
+
+import json
+import math
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+from scipy import constants as sc
+
+ROOT = Path(__file__).resolve().parents[1]
+HEAVY = ("numpy", "scipy", "pint", "matplotlib", "networkx", "jsonschema", "yaml", "dask")
+
+
+def _fresh(code: str, **env) -> dict:
+    """Run `code` in a fresh interpreter from the repository root; the JSON it prints last."""
+    done = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=120,
+                          env=dict(os.environ, PYTHONPATH=str(ROOT), **env))
+    assert done.returncode == 0, done.stderr
+    return json.loads(done.stdout.splitlines()[-1])
+
+
+def _after_cli(*argv: str) -> dict:
+    """Run `seqgen ARGV` through the command line's main in a fresh process: its exit code, what it printed and
+    which of the heavy libraries were loaded at the end."""
+    return _fresh(f"""
+import contextlib, io, json, sys
+from seqgen.cli import main
+out = io.StringIO()
+with contextlib.redirect_stdout(out):
+    code = main({list(argv)!r})
+print(json.dumps({{"code": code, "out": out.getvalue(),
+                  "loaded": [m for m in {HEAVY!r} if m in sys.modules]}}))""")
+
+
+def test_explain_loads_only_the_code_catalogue():
+    res = _after_cli("explain", "physics.shallow-trap")
+    assert res["code"] == 0 and res["out"].startswith("physics.shallow-trap")
+    assert res["loaded"] == []
+
+
+def test_import_seqgen_loads_no_library():
+    assert _fresh("import json, sys, seqgen; print(json.dumps([m for m in %r if m in sys.modules]))" % (HEAVY,)) == []
+
+
+def test_check_does_not_load_the_plotting_library():
+    res = _after_cli("check", "sequences/na23_thermometry.yaml")
+    assert res["code"] == 0 and "0 error(s)" in res["out"]
+    assert "matplotlib" not in res["loaded"]
+
+
+def test_units_module_loads_pint_on_first_parse_only():
+    res = _fresh("""
+import json, sys
+from seqgen.resolve import units
+before = "pint" in sys.modules
+units.unit_factor("ms")
+print(json.dumps([before, "pint" in sys.modules]))""")
+    assert res == [False, True]
+
+
+# 1 G = 1e-4 T (CGS-Gaussian unit of magnetic flux density; SI Brochure, 8th ed. (2006), Table 9, from memory)
+_GAUSS_T = 1e-4
+_PROBE = """
+import json
+from seqgen.resolve import units
+words = ["G/cm", "mW", "uK", "kHz", "eV", "ms", "mG", "G/cm^2"]
+print(json.dumps({"folder": str(units._ureg().cache_folder), "si": {w: units.unit_factor(w) for w in words}}))"""
+
+
+def _expect_si(si: dict) -> None:
+    expected = {  # unit: (SI factor, exponents of m, kg, s, A, K, mol, cd)
+        "G/cm": (_GAUSS_T / 1e-2, (-1, 1, -2, -1, 0, 0, 0)), "G/cm^2": (_GAUSS_T / 1e-4, (-2, 1, -2, -1, 0, 0, 0)),
+        "mG": (_GAUSS_T * 1e-3, (0, 1, -2, -1, 0, 0, 0)), "mW": (1e-3, (2, 1, -3, 0, 0, 0, 0)),
+        "uK": (1e-6, (0, 0, 0, 0, 1, 0, 0)), "kHz": (1e3, (0, 0, -1, 0, 0, 0, 0)),
+        "eV": (sc.eV, (2, 1, -2, 0, 0, 0, 0)), "ms": (1e-3, (0, 0, 1, 0, 0, 0, 0))}
+    assert set(si) == set(expected)
+    for word, (factor, dims) in expected.items():
+        assert math.isclose(si[word][0], factor, rel_tol=1e-12), word
+        assert tuple(si[word][1]) == dims, word
+
+
+def test_pint_cache_is_filled_then_read_and_gives_the_same_units(tmp_path):
+    first = _fresh(_PROBE, XDG_CACHE_HOME=str(tmp_path))
+    folder = Path(first["folder"])
+    assert folder.parent == tmp_path / "seqgen" and list(folder.glob("*.pickle"))
+    stamps = {p: p.stat().st_mtime_ns for p in folder.iterdir()}
+    second = _fresh(_PROBE, XDG_CACHE_HOME=str(tmp_path))
+    assert {p: p.stat().st_mtime_ns for p in folder.iterdir()} == stamps  # read, not written again
+    _expect_si(first["si"])
+    assert second["si"] == first["si"]
+
+
+def test_a_spoilt_cache_is_built_anew(tmp_path):
+    folder = Path(_fresh(_PROBE, XDG_CACHE_HOME=str(tmp_path))["folder"])
+    for p in folder.glob("*.pickle"):  # as a run killed while writing them leaves them
+        p.write_bytes(p.read_bytes()[:64])
+    res = _fresh(_PROBE, XDG_CACHE_HOME=str(tmp_path))
+    _expect_si(res["si"])
+    assert res["folder"] == "None"  # this run went without; the spoilt files are gone for the next one
+    assert not list(folder.glob("*.pickle"))
+    again = _fresh(_PROBE, XDG_CACHE_HOME=str(tmp_path))
+    assert again["folder"] == str(folder) and again["si"] == res["si"]
+
+
+def test_no_cache_where_the_folder_cannot_be_made(tmp_path):
+    blocker = tmp_path / "a-file"
+    blocker.write_text("not a folder")
+    res = _fresh(_PROBE, XDG_CACHE_HOME=str(blocker))
+    assert res["folder"] == "None"
+    _expect_si(res["si"])
