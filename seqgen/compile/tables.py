@@ -385,7 +385,7 @@ def _wiring_edges(shot, device, outs, table, by_output) -> list:
         line = rig.outputs[device.start_on]
         parent = rig.devices[line.device]
         start = start_time(device, _first_write(outs, by_output))
-        if start is not None:
+        if start is not None and start - device.start_latency_s >= 0:  # else check.wiring reports it
             out.extend(pulse(line, start - device.start_latency_s, pulse_width(line, parent), device))
     edge_line = device.edge_line
     if edge_line and edge_line in rig.outputs:
@@ -394,7 +394,8 @@ def _wiring_edges(shot, device, outs, table, by_output) -> list:
         w = pulse_width(line, parent)
         end_tick = int(quantize_times(np.array([shot.duration_s]), device.tick_s)[0])
         for t in row_edges(device, table, end_tick):
-            out.extend(pulse(line, t, w, device))
+            if t >= 0:  # an edge before t = 0 cannot be played: check.wiring reports it
+                out.extend(pulse(line, t, w, device))
     return out
 
 

@@ -65,7 +65,11 @@ def pulse(line: Output, t: float, width: float, device: Device) -> tuple:
 
 
 def row_edges(device: Device, table, end_tick: int) -> list:
-    """Edge times (s) of a stepped or clocked device: one per row after the first, the shot's end row excepted,
-    one step latency ahead of the row."""
+    """Edge times (s) of a stepped or clocked device: one per row after the first, one step latency ahead of the
+    row; the shot's end row only when it changes a value (else it is the end marker, which needs no edge)."""
     lat = device.start_latency_s if device.step_on else 0.0
-    return [int(k) * table.tick_s - lat for k in table.ticks[1:] if int(k) < end_tick]
+    ticks = [int(k) for k in table.ticks]
+    n = len(ticks)
+    if n > 1 and ticks[-1] >= end_tick and (table.codes[-1] == table.codes[-2]).all():
+        n -= 1
+    return [k * table.tick_s - lat for k in ticks[1:n]]
