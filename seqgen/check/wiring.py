@@ -38,7 +38,7 @@ def line_written(shot, compiled):
     for d, line, role in _wired(shot):
         seg = next((s for s in shot.segments if s.output == line), None)
         if seg is not None:
-            yield make(WIRING_LINE_WRITTEN, f"the sequence writes '{line}', the line of '{d.name}''s {role}: seqgen "
+            yield make(WIRING_LINE_WRITTEN, f"the sequence writes '{line}', the line of device '{d.name}'s {role}: seqgen "
                        "generates that line's edges, and this write would add one", seg.pos, block=seg.block,
                        time_s=seg.t0, hint=f"remove the writes of '{line}' from the sequence (the rig wires it to "
                        f"'{d.name}')", data={"device": d.name, "line": line})
@@ -60,7 +60,7 @@ def before_start(shot, compiled):
             continue
         seg = _write_at(shot, d, first)
         late = outward(lat - first)
-        yield make(WIRING_BEFORE_START, f"'{d.name}''s first row at {fmt_when(first)} needs its {role} on '{line}' "
+        yield make(WIRING_BEFORE_START, f"device '{d.name}'s first row at {fmt_when(first)} needs its {role} on '{line}' "
                    f"{fmt_when(lat)} (the trigger latency) ahead, before t = 0", seg.pos if seg else d.wiring_pos,
                    block=seg.block if seg else None, time_s=first,
                    hint=f"start the first write of '{d.name}' at least {fmt_when(late)} later",

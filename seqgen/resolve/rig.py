@@ -248,7 +248,7 @@ def _wiring(data, devices, outputs, q, doc, findings) -> dict:
                     findings.append(make(WIRING_BAD, f"device '{name}' clock max_rate {rate:.6g} Hz is faster than the "
                                          f"device takes: one row per min_interval, {takes:.6g} Hz",
                                          doc.pos(("devices", name, key, "max_rate")),
-                                         hint=f"set max_rate to at most {takes:.6g} Hz"))
+                                         hint=f"write '{takes:.6g} Hz' (or less) as max_rate"))
                     continue
                 kw["clock_on"], kw["clock_max_hz"] = line, rate
         if kw.get("step_on") and kw.get("clock_on"):
