@@ -21,7 +21,7 @@ from ..findings import Finding, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
 from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
-from .wiring import compile_order, pulse, pulse_width, row_edges, start_time
+from .wiring import compile_order, pulse, pulse_width, row_edges
 from ..codes import BEFORE_START, RAMP_UNDERSAMPLED
 from ..textfmt import fmt_when, outward
 
@@ -360,33 +360,38 @@ def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
             continue
         table = _device_table(shot, dev_name, device, outs, by_output, findings)
         built[dev_name] = table
-        for seg in _wiring_edges(shot, device, outs, table, by_output):
+        for seg in _wiring_edges(shot, device, outs, table, starts):
             by_output.setdefault(seg.output, []).append(seg)
             generated.append(seg)
-        if device.start_on and device.start_on in rig.outputs:
-            first = _first_write(outs, by_output)
-            if first is not None:
-                starts[dev_name] = start_time(device, first)
     tables = [built[n] for n in rig.devices if n in built]
     return Compiled(tuple(tables), shot.duration_s, tuple(generated), starts), findings
 
 
-def _first_write(outs, by_output) -> float | None:
-    """When a device's first commanded row plays, ahead by its outputs' longest latency (None: no writes)."""
-    times = [s.t0 - max(o.latency_rise_s, o.latency_fall_s) for o in outs for s in by_output.get(o.name, ())]
-    return max(0.0, min(times)) if times else None
+def _table_start(device, outs, table) -> float | None:
+    """When a triggered device must start: its first row that is not the safe row it is armed with (row 0 when
+    the sequence writes at t = 0); None when it plays nothing."""
+    safe = np.array([output_codes(o, _quantize(o, np.atleast_1d(to_output(o, o.safe)).astype(float)))[0]
+                     for o in outs])
+    if (table.codes[0] != safe).any():
+        return 0.0
+    if len(table.ticks) < 2 or (len(table.ticks) == 2 and (table.codes[1] == table.codes[0]).all()):
+        return None  # only the end row: nothing to play
+    return int(table.ticks[1]) / device.timebase_hz
 
 
-def _wiring_edges(shot, device, outs, table, by_output) -> list:
-    """The pulses a wired device needs on its parent's lines (compile/wiring.py)."""
+def _wiring_edges(shot, device, outs, table, starts) -> list:
+    """The pulses a wired device needs on its parent's lines (compile/wiring.py); a triggered device's start
+    goes to starts."""
     rig = shot.rig
     out = []
     if device.start_on and device.start_on in rig.outputs:
         line = rig.outputs[device.start_on]
         parent = rig.devices[line.device]
-        start = start_time(device, _first_write(outs, by_output))
-        if start is not None and start - device.start_latency_s >= 0:  # else check.wiring reports it
-            out.extend(pulse(line, start - device.start_latency_s, pulse_width(line, parent), device))
+        start = _table_start(device, outs, table)
+        if start is not None:
+            starts[device.name] = start
+            if start - device.start_latency_s >= 0:  # else check.wiring reports it
+                out.extend(pulse(line, start - device.start_latency_s, pulse_width(line, parent), device))
     edge_line = device.edge_line
     if edge_line and edge_line in rig.outputs:
         line = rig.outputs[edge_line]

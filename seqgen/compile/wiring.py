@@ -9,8 +9,6 @@ end row excepted. Children are compiled before their parents, so the pulses come
 
 from __future__ import annotations
 
-import math
-
 from ..model import Device, Output, Segment
 
 DEFAULT_PULSE_S = 1e-6  # a trigger pulse when the line states no min_pulse (common practice, no source)
@@ -48,13 +46,6 @@ def compile_order(devices, outputs) -> list:
 def pulse_width(line: Output, parent: Device) -> float:
     """A generated pulse: the line's min_pulse (else 1 us), at least one row interval of the line's device."""
     return max(line.min_pulse_s or DEFAULT_PULSE_S, parent.min_interval_ticks * parent.tick_s)
-
-
-def start_time(device: Device, first_write_s: float | None) -> float | None:
-    """A triggered device's start: its first commanded row, on its own tick grid (None: nothing to play)."""
-    if first_write_s is None:
-        return None
-    return math.floor(first_write_s / device.tick_s + 1e-9) * device.tick_s
 
 
 def pulse(line: Output, t: float, width: float, device: Device) -> tuple:
