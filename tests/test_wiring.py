@@ -106,3 +106,15 @@ def test_wiring_lines_must_be_digital_lines_of_another_device():
     rig, found = build_rig(load_text(text, "rig.yaml"))
     assert [(f.code, f.line) for f in found] == [("hardware.wiring-bad", 6)]
     assert rig.devices["dio"].start_on is None  # left free-running
+
+
+def test_show_and_plot_mark_the_generated_edges(tmp_path, capsys):
+    assert main(["show", str(WIRED)]) == 0
+    shown = [line.split() for line in capsys.readouterr().out.splitlines()]
+    edges = [row for row in shown if row[:1] == ["wiring"]]
+    # one start pulse on ao_start and a pulse per synthesizer row after the first (writes at 1, 2 and 3 ms)
+    assert sum(row[3] == "ao_start" for row in edges) == 2 and sum(row[3] == "synth_step" for row in edges) == 6
+    svg = tmp_path / "p.svg"
+    assert main(["plot", str(WIRED), "-o", str(svg)]) == 0
+    text = svg.read_text()
+    assert "ao_start (wiring)" in text and "synth_step (wiring)" in text
