@@ -113,7 +113,7 @@ def test_show_and_plot_mark_the_generated_edges(tmp_path, capsys):
     shown = [line.split() for line in capsys.readouterr().out.splitlines()]
     edges = [row for row in shown if row[:1] == ["wiring"]]
     # one start pulse on ao_start and a pulse per synthesizer row after the first (writes at 1, 2 and 3 ms)
-    assert sum(row[3] == "ao_start" for row in edges) == 2 and sum(row[3] == "synth_step" for row in edges) == 6
+    assert sum("ao_start" in row for row in edges) == 2 and sum("synth_step" in row for row in edges) == 6
     svg = tmp_path / "p.svg"
     assert main(["plot", str(WIRED), "-o", str(svg)]) == 0
     text = svg.read_text()
