@@ -35,6 +35,18 @@ class Device:
     memory_depth: int | None
     output_model: str  # "hold" | "linear"
     pos: SourcePos
+    # wiring (README "Wiring"): None is the default, a free-running device started with the others at t = 0
+    start_on: str | None = None  # digital output whose rising edge starts the device
+    start_latency_s: float = 0.0  # from that edge to the device's start
+    step_on: str | None = None  # digital output whose rising edges step the device one table row each
+    clock_on: str | None = None  # digital output that is the device's external sample clock (one edge per row)
+    clock_max_hz: float | None = None  # the fastest external clock the device takes
+    wiring_pos: SourcePos | None = None  # the device's start/advance/clock key, for findings
+
+    @property
+    def edge_line(self) -> str | None:
+        """The line that gets one generated edge per table row after the first (stepped or clocked), or None."""
+        return self.step_on or self.clock_on
 
     @property
     def tick_s(self) -> float:
@@ -315,3 +327,5 @@ class DeviceTable:
 class Compiled:
     tables: tuple  # of DeviceTable
     duration_s: float
+    wiring: tuple = ()  # of Segment: the edges the rig's wiring needs, generated on the parents' lines (action "wiring")
+    starts: Mapping = field(default_factory=dict)  # device -> its start time (s) when started by a trigger

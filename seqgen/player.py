@@ -8,6 +8,10 @@ so a lab's own loader can be checked against it. For each output:
   without bits, convention "none", uses the table's values), checked against the table's values;
 * each row at tick k appears at k / timebase_hz plus the column's latency (rise when the physical value
   goes up, fall when it goes down; a row that changes nothing appears at once);
+* a wired device (the device's `wiring` in the manifest; README "Wiring") runs off the edges its parent's
+  table plays: a triggered device plays row k at (its start edge + start latency) + (k / timebase_hz -
+  start_s), its rows before start_s being the values it is armed with; a stepped or clocked device plays its
+  row i (i >= 1) at its i-th rising edge (+ step latency), and stays on its last row once the edges run out;
 * between rows the device holds the value (`output_model: hold`) or interpolates linearly (`linear`);
 * physical units through the inverse of the column's calibration (linear, or a monotone piecewise-cubic
   table with straight lines beyond its ends, inverted by bisection).
@@ -182,12 +186,48 @@ def _column_values(col: dict, table: _Table, j: int) -> np.ndarray:
     return from_codes
 
 
+def _rising_edges(line: str, manifest: dict, tables: dict) -> np.ndarray:
+    """When a digital line of the build goes high (s), its rise latency included; empty if no table has it."""
+    for dev, info in manifest["devices"].items():
+        for j, col in enumerate(info["columns"]):
+            if col["name"] == line:
+                table = tables[dev]
+                v = _column_values(col, table, j) >= 0.5
+                up = np.flatnonzero(v[1:] & ~v[:-1]) + 1
+                rise = (col.get("latency_s") or {}).get("rise", 0.0)
+                return table.ticks[up] / info["timebase_hz"] + rise
+    return np.zeros(0)
+
+
+def _commanded(dev: str, info: dict, manifest: dict, tables: dict) -> np.ndarray:
+    """When each row of a device's table is commanded (s): its tick, or for a wired device, from the edges the
+    parent plays (a start edge; one step or clock edge per row after the first)."""
+    ticks = tables[dev].ticks / info["timebase_hz"]
+    wiring = info.get("wiring") or {}
+    if "start_on" in wiring and "start_s" in wiring:
+        edges = _rising_edges(wiring["start_on"], manifest, tables)
+        if len(edges):
+            start = edges[0] + wiring.get("start_latency_s", 0.0)
+            after = ticks >= wiring["start_s"] - 1e-12
+            ticks = np.where(after, start + ticks - wiring["start_s"], ticks)
+    line = wiring.get("step_on") or wiring.get("clock_on")
+    if line:
+        edges = _rising_edges(line, manifest, tables) + wiring.get("step_latency_s", 0.0)
+        rows = ticks.copy()
+        n = min(len(edges), len(rows) - 1)
+        rows[1:n + 1] = edges[:n]
+        rows[n + 1:] = np.inf  # no edge left: the device stays on its last stepped row
+        ticks = rows
+    return ticks
+
+
 def play(build, times, outputs=None) -> dict:
     """{output name: Waveform} of a build folder at `times` (s; any shape is flattened); `outputs`: the names
     to play (default: every column)."""
     manifest, tables = read_build(build)
     t = np.atleast_1d(np.asarray(times, dtype=float)).reshape(-1)
     result = {}
+    commanded = {dev: _commanded(dev, info, manifest, tables) for dev, info in manifest["devices"].items()}
     for dev, info in manifest["devices"].items():
         table = tables[dev]
         linear = info["output_model"] == "linear"
@@ -202,7 +242,7 @@ def play(build, times, outputs=None) -> dict:
             step = np.r_[0.0, np.diff(phys)]
             delay = np.where(step > 0, lat["rise"], np.where(step < 0, lat["fall"], 0.0))
             # unequal rise and fall latencies cannot reorder rows: a row appears no earlier than the one before
-            appear = np.maximum.accumulate(table.ticks / info["timebase_hz"] + delay)
+            appear = np.maximum.accumulate(commanded[dev] + delay)
             if linear and len(appear) > 1:
                 out_t = np.interp(t, appear, vals)
                 phys_t = np.interp(t, appear, phys) if cal is None or cal["kind"] == "linear" \

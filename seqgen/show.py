@@ -22,7 +22,8 @@ def timeline_rows(shot, compiled=None) -> list[dict]:
         for t in compiled.tables:
             rows_used.update(t.rows_per_segment)
     out = []
-    for s in sorted(shot.segments, key=lambda s: (s.t0, s.output)):
+    generated = tuple(getattr(compiled, "wiring", ())) if compiled is not None else ()  # block and action "wiring"
+    for s in sorted(shot.segments + generated, key=lambda s: (s.t0, s.output)):
         o = shot.rig.outputs[s.output]
         unit = o.phys_unit
         if s.kind == "ramp":

@@ -14,7 +14,7 @@ from ..caution import CAUTION  # noqa: F401  (re-exported for the command line)
 from ..codes import CHECK_CRASHED
 from ..findings import Finding, make
 from . import (hardware, physics_barrier, physics_imaging, physics_magnetic, physics_pushes, physics_states,
-               physics_traps, safety, timing)
+               physics_traps, safety, timing, wiring)
 from .rules import STAGES, Rule, rule
 
 __all__ = ["RULES", "STAGES", "Rule", "rule", "run_timeline_checks", "run_table_checks", "apply_accepts"]
@@ -22,6 +22,7 @@ __all__ = ["RULES", "STAGES", "Rule", "rule", "run_timeline_checks", "run_table_
 RULES: tuple[Rule, ...] = (
     hardware.output_range, hardware.outside_calibration, hardware.hard_limits, hardware.pulse_width,
     hardware.synth_settling, hardware.slew_rate, hardware.memory_depth, hardware.row_spacing, hardware.finer_than_resolution,
+    wiring.line_written, wiring.before_start, wiring.edges_too_close, wiring.clock_grid,
     safety.left_on, safety.coil_current, safety.coil_heating,
     timing.overlapping_writes, timing.sub_tick_timing, timing.ramp_faster_than_device,
     timing.latency_reorders_edges, timing.edges_within_jitter,

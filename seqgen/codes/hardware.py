@@ -135,3 +135,63 @@ SLEW = Code(
     units per second). A coil's current cannot follow a step faster than its
     driver's compliance allows; steps are judged over the device's minimum
     interval.""")
+
+WIRING_BAD = Code(
+    "hardware.wiring-bad", "error", stage="resolve",
+    source="the rig file's device wiring (start, advance, clock)",
+    doc="""
+    A device's wiring names a line that cannot carry it: an unknown channel,
+    a channel that is not digital, a line of the device itself, or an
+    external clock faster than the device takes. Name a digital channel of
+    another device (and a max_rate the device's minimum interval allows).""")
+
+WIRING_CYCLE = Code(
+    "hardware.wiring-cycle", "error", stage="resolve",
+    source="the rig file's device wiring; a device cannot start before the device that starts it",
+    doc="""
+    The devices' wiring forms a loop (A starts or steps B, B starts or steps
+    A): no device of the loop can run first. Make one device of the loop
+    free-running (`start: free`, `advance: timebase`, `clock: internal`).""")
+
+WIRING_LINE_SHARED = Code(
+    "hardware.wiring-line-shared", "error", stage="resolve",
+    source="the rig file's device wiring",
+    doc="""
+    One line wires two things (two devices started or stepped by it, or a
+    start and a step): every edge seqgen generates for one would also start
+    or step the other. Give each wiring its own digital line.""")
+
+WIRING_LINE_WRITTEN = Code(
+    "hardware.wiring-line-written", "error", stage="tables",
+    source="the rig file's device wiring",
+    doc="""
+    The sequence writes a line that the rig's wiring uses: seqgen generates
+    that line's edges (start triggers, step or clock edges), and the
+    sequence's own writes would start the device twice or step it off its
+    rows. Remove the writes of that line from the sequence.""")
+
+WIRING_BEFORE_START = Code(
+    "hardware.wiring-before-start", "error", stage="tables",
+    source="the rig file's trigger latency per wired device",
+    doc="""
+    A wired device's first row comes so early that the edge starting (or
+    stepping) it, one trigger latency ahead, falls before t = 0, where no line
+    can play. Move the device's first write later by the amount stated.""")
+
+WIRING_EDGES_TOO_CLOSE = Code(
+    "hardware.wiring-edges-too-close", "error", stage="tables",
+    source="the rig file's min_pulse of the wiring line (default 1 us) and min_interval of its device",
+    doc="""
+    Two rows of a stepped or externally clocked device are closer than one
+    generated edge needs (a pulse of the line's min_pulse, else 1 us, and as
+    long a gap): the line cannot give each row its own edge. Space those
+    writes further apart.""")
+
+WIRING_CLOCK = Code(
+    "hardware.wiring-clock", "error", stage="tables",
+    source="the rig file's clock line and max_rate per externally clocked device",
+    doc="""
+    An externally clocked device gets a row the clock cannot give: a row time
+    off the clock line's tick grid (its device's timebase), or two rows
+    closer than 1 / max_rate. Put the writes on the clock line's grid and no
+    closer than the device's maximum rate.""")

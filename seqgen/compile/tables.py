@@ -21,6 +21,7 @@ from ..findings import Finding, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
 from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
+from .wiring import compile_order, pulse, pulse_width, row_edges
 from ..codes import BEFORE_START, RAMP_UNDERSAMPLED
 from ..textfmt import fmt_when, outward
 
@@ -350,68 +351,117 @@ def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
     by_output: dict[str, list] = {}
     for seg in shot.segments:
         by_output.setdefault(seg.output, []).append(seg)
-    tables = []
-    for dev_name, device in rig.devices.items():
+    built, generated, starts = {}, [], {}
+    # a wired child before its parent: the parent's generated edges come from the child's rows
+    for dev_name in compile_order(rig.devices, rig.outputs):
+        device = rig.devices[dev_name]
         outs = [o for o in rig.outputs.values() if o.device == dev_name]
         if not outs:
             continue
-        linear = device.output_model == "linear"
+        table = _device_table(shot, dev_name, device, outs, by_output, findings)
+        built[dev_name] = table
+        for seg in _wiring_edges(shot, device, outs, table, starts):
+            by_output.setdefault(seg.output, []).append(seg)
+            generated.append(seg)
+    tables = [built[n] for n in rig.devices if n in built]
+    return Compiled(tuple(tables), shot.duration_s, tuple(generated), starts), findings
+
+
+def _table_start(device, outs, table) -> float | None:
+    """When a triggered device must start: its first row that is not the safe row it is armed with (row 0 when
+    the sequence writes at t = 0); None when it plays nothing."""
+    safe = np.array([output_codes(o, _quantize(o, np.atleast_1d(to_output(o, o.safe)).astype(float)))[0]
+                     for o in outs])
+    if (table.codes[0] != safe).any():
+        return 0.0
+    if len(table.ticks) < 2 or (len(table.ticks) == 2 and (table.codes[1] == table.codes[0]).all()):
+        return None  # only the end row: nothing to play
+    return int(table.ticks[1]) / device.timebase_hz
+
+
+def _wiring_edges(shot, device, outs, table, starts) -> list:
+    """The pulses a wired device needs on its parent's lines (compile/wiring.py); a triggered device's start
+    goes to starts."""
+    rig = shot.rig
+    out = []
+    if device.start_on and device.start_on in rig.outputs:
+        line = rig.outputs[device.start_on]
+        parent = rig.devices[line.device]
+        start = _table_start(device, outs, table)
+        if start is not None:
+            starts[device.name] = start
+            if start - device.start_latency_s >= 0:  # else check.wiring reports it
+                out.extend(pulse(line, start - device.start_latency_s, pulse_width(line, parent), device))
+    edge_line = device.edge_line
+    if edge_line and edge_line in rig.outputs:
+        line = rig.outputs[edge_line]
+        parent = rig.devices[line.device]
+        w = pulse_width(line, parent)
         end_tick = int(quantize_times(np.array([shot.duration_s]), device.tick_s)[0])
-        end = np.array([end_tick], dtype=np.int64)
-        per_out, windows = [], []
-        for o in outs:
-            segs = sorted(by_output.get(o.name, []), key=lambda s: (s.t0, 0 if s.action.endswith(":end") else 1))
-            spans: dict = {}
-            t, v, fl = output_rows(o, segs, device, findings, spans)
-            q = _quantize(o, v)
-            need = _needed(q, linear)
-            per_out.append((t, v, q, need, fl))
-            windows.append(spans)
-        ticks = sorted_unique(np.concatenate([t[need] for t, _, _, need, _ in per_out] + [end]))
-        m = device.min_interval_ticks
-        if m > 1 and len(ticks) > 1 and np.any(np.diff(ticks) < m):
-            # a tick is flexible only if every needed row on it is a ramp-interior row
-            fixed = sorted_unique(np.concatenate([t[need & ~fl] for t, _, _, need, fl in per_out] + [end]))
-            pos = np.minimum(np.searchsorted(fixed, ticks), len(fixed) - 1)
-            ticks = ticks[_drop_crowded_rows(ticks, fixed[pos] != ticks, m)]
-        n = len(ticks)
-        values = np.empty((n, len(outs)), dtype=float)
-        bounds = np.arange(0, n + _FILL_ROWS, _FILL_ROWS).clip(max=n)  # row blocks that stay in cache
-        fills, rows_per_segment = [], {}
-        for j, (o, (t, v, q, need, _)) in enumerate(zip(outs, per_out)):
-            tn = t[need]
-            p = np.searchsorted(ticks, tn)  # table row of (or after) each needed row
-            if linear and len(t) > 1:
-                fills.append((o, t, v, None, None))
+        for t in row_edges(device, table, end_tick):
+            if t >= 0:  # an edge before t = 0 cannot be played: check.wiring reports it
+                out.extend(pulse(line, t, w, device))
+    return out
+
+
+def _device_table(shot, dev_name, device, outs, by_output, findings) -> DeviceTable:
+    """One device's table (see compile_shot)."""
+    linear = device.output_model == "linear"
+    end_tick = int(quantize_times(np.array([shot.duration_s]), device.tick_s)[0])
+    end = np.array([end_tick], dtype=np.int64)
+    per_out, windows = [], []
+    for o in outs:
+        segs = sorted(by_output.get(o.name, []), key=lambda s: (s.t0, 0 if s.action.endswith(":end") else 1))
+        spans: dict = {}
+        t, v, fl = output_rows(o, segs, device, findings, spans)
+        q = _quantize(o, v)
+        need = _needed(q, linear)
+        per_out.append((t, v, q, need, fl))
+        windows.append(spans)
+    ticks = sorted_unique(np.concatenate([t[need] for t, _, _, need, _ in per_out] + [end]))
+    m = device.min_interval_ticks
+    if m > 1 and len(ticks) > 1 and np.any(np.diff(ticks) < m):
+        # a tick is flexible only if every needed row on it is a ramp-interior row
+        fixed = sorted_unique(np.concatenate([t[need & ~fl] for t, _, _, need, fl in per_out] + [end]))
+        pos = np.minimum(np.searchsorted(fixed, ticks), len(fixed) - 1)
+        ticks = ticks[_drop_crowded_rows(ticks, fixed[pos] != ticks, m)]
+    n = len(ticks)
+    values = np.empty((n, len(outs)), dtype=float)
+    bounds = np.arange(0, n + _FILL_ROWS, _FILL_ROWS).clip(max=n)  # row blocks that stay in cache
+    fills, rows_per_segment = [], {}
+    for j, (o, (t, v, q, need, _)) in enumerate(zip(outs, per_out)):
+        tn = t[need]
+        p = np.searchsorted(ticks, tn)  # table row of (or after) each needed row
+        if linear and len(t) > 1:
+            fills.append((o, t, v, None, None))
+        else:
+            # hold: row r gets the code of the last needed row at or before it; tick 0 is
+            # always a needed row (p[0] == 0); a needed row dropped for crowding ends up
+            # with a run of length 0, or hands its value to the next table row
+            fills.append((o, None, q[need], p, (np.searchsorted(p, bounds[:-1], side="right") - 1,
+                                                np.searchsorted(p, bounds[1:], side="left"))))
+        # rows this output's segments use: its needed rows that made it into the table
+        survived = tn == ticks[np.minimum(p, n - 1)]
+        cum = np.concatenate(([0], np.cumsum(survived)))
+        for key, (k0, k1) in windows[j].items():
+            a, b = np.searchsorted(tn, [k0, k1 + 1])
+            rows_per_segment[key] = int(cum[b] - cum[a])
+    for c, (c0, c1) in enumerate(zip(bounds[:-1], bounds[1:])):
+        block = values[c0:c1]
+        for j, (o, t, v, p, ab) in enumerate(fills):
+            if p is None:
+                block[:, j] = _quantize(o, np.interp(ticks[c0:c1], t, v))
             else:
-                # hold: row r gets the code of the last needed row at or before it; tick 0 is
-                # always a needed row (p[0] == 0); a needed row dropped for crowding ends up
-                # with a run of length 0, or hands its value to the next table row
-                fills.append((o, None, q[need], p, (np.searchsorted(p, bounds[:-1], side="right") - 1,
-                                                    np.searchsorted(p, bounds[1:], side="left"))))
-            # rows this output's segments use: its needed rows that made it into the table
-            survived = tn == ticks[np.minimum(p, n - 1)]
-            cum = np.concatenate(([0], np.cumsum(survived)))
-            for key, (k0, k1) in windows[j].items():
-                a, b = np.searchsorted(tn, [k0, k1 + 1])
-                rows_per_segment[key] = int(cum[b] - cum[a])
-        for c, (c0, c1) in enumerate(zip(bounds[:-1], bounds[1:])):
-            block = values[c0:c1]
-            for j, (o, t, v, p, ab) in enumerate(fills):
-                if p is None:
-                    block[:, j] = _quantize(o, np.interp(ticks[c0:c1], t, v))
-                else:
-                    a, b = ab[0][c], ab[1][c]
-                    runs = p[a:b].copy()
-                    runs[0] = c0
-                    block[:, j] = np.repeat(v[a:b], np.diff(runs, append=c1))
-        codes = np.empty(values.shape, dtype=np.int64)
-        for j, o in enumerate(outs):
-            codes[:, j] = output_codes(o, values[:, j])
-        tables.append(DeviceTable(dev_name, device.tick_s, ticks, tuple(o.name for o in outs), values,
-                                  tuple(o.unit for o in outs), tuple(o.kind for o in outs), rows_per_segment,
-                                  codes, tuple(o.code_convention for o in outs),
-                                  tuple(1 if o.kind == "digital" else int(o.bits or 0) for o in outs),
-                                  tuple(1.0 if o.kind == "digital" else o.lsb for o in outs),
-                                  tuple(o.code_zero for o in outs)))
-    return Compiled(tuple(tables), shot.duration_s), findings
+                a, b = ab[0][c], ab[1][c]
+                runs = p[a:b].copy()
+                runs[0] = c0
+                block[:, j] = np.repeat(v[a:b], np.diff(runs, append=c1))
+    codes = np.empty(values.shape, dtype=np.int64)
+    for j, o in enumerate(outs):
+        codes[:, j] = output_codes(o, values[:, j])
+    return DeviceTable(dev_name, device.tick_s, ticks, tuple(o.name for o in outs), values,
+                       tuple(o.unit for o in outs), tuple(o.kind for o in outs), rows_per_segment,
+                       codes, tuple(o.code_convention for o in outs),
+                       tuple(1 if o.kind == "digital" else int(o.bits or 0) for o in outs),
+                       tuple(1.0 if o.kind == "digital" else o.lsb for o in outs),
+                       tuple(o.code_zero for o in outs))

@@ -57,6 +57,9 @@ def manifest(shot: Shot, compiled: Compiled, findings: list[Finding], files: dic
             "columns": [_column(shot.rig.outputs.get(c), c, u, k) for c, u, k in zip(t.columns, t.units, t.kinds)],
             "files": files.get(t.device, {}),
         }
+        wiring = _wiring(dev, compiled)
+        if wiring:  # a free-running device (the default) has none: unwired rigs keep their manifests
+            devices[t.device]["wiring"] = wiring
     return {
         "format": "seqgen-build",
         "format_version": FORMAT_VERSION,
@@ -71,6 +74,24 @@ def manifest(shot: Shot, compiled: Compiled, findings: list[Finding], files: dic
         "findings_list": [f.to_dict() for f in findings],
         "caution": CAUTION,
     }
+
+
+def _wiring(dev, compiled) -> dict:
+    """How a wired device runs (README "Wiring"): its table keeps the shot's ticks; a triggered one starts at
+    start_s (its rows before that are what it is armed with), a stepped or clocked one moves one row per edge."""
+    out = {}
+    if dev.start_on:
+        out["start_on"] = dev.start_on
+        out["start_latency_s"] = dev.start_latency_s
+        if dev.name in compiled.starts:
+            out["start_s"] = compiled.starts[dev.name]
+    if dev.step_on:
+        out["step_on"] = dev.step_on
+        out["step_latency_s"] = dev.start_latency_s
+    if dev.clock_on:
+        out["clock_on"] = dev.clock_on
+        out["clock_max_hz"] = dev.clock_max_hz
+    return out
 
 
 def _column(out, name: str, unit: str, kind: str) -> dict:

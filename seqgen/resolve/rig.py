@@ -11,7 +11,8 @@ from ..load.yamlsrc import Document
 from ..model import Beam, Calibration, Coil, Device, Drive, ImagingSetup, Output, Rig
 from .quantities import Bad, quantity
 from .units import dims_of, display_unit
-from ..codes import BAD_RIG, CALIBRATION_NOT_MONOTONIC, UNKNOWN_NAME, UNKNOWN_UNIT, VERSION
+from ..codes import (BAD_RIG, CALIBRATION_NOT_MONOTONIC, UNKNOWN_NAME, UNKNOWN_UNIT, VERSION, WIRING_BAD, WIRING_CYCLE,
+                     WIRING_LINE_SHARED)
 
 SYNTH_PARTS = (("freq", "frequency", "Hz"), ("amp", "amplitude", ""), ("phase", "phase", "rad"))
 
@@ -184,12 +185,100 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
                                      _magnification(im, base, doc, findings), opt(base + ("field_of_view",), "m", positive=True),
                                      opt(base + ("depth_of_field",), "m", positive=True), _vector(im.get("center", (0, 0, 0)), base + ("center",), doc, findings) or (0.0, 0.0, 0.0),
                                      opt(base + ("aperture_radius",), "m", positive=True), doc.pos(base))
+    devices = _wiring(data, devices, outputs, q, doc, findings)
     fields = data.get("fields") or {}
     bias = opt(("fields", "bias"), "T") if "bias" in fields else None
     rep = opt(("repetition_period",), "s", positive=True)
     rig = Rig(data.get("name", doc.file), doc.file, doc.text_sha256, devices, outputs, channels, beams, coils, drives,
               imaging, bias, rep)
     return rig, findings
+
+
+_WIRING_KEYS = (("start", "on", "free"), ("advance", "per_edge", "timebase"), ("clock", "line", "internal"))
+
+
+def _wiring(data, devices, outputs, q, doc, findings) -> dict:
+    """Devices with their wiring (start / advance / clock) read and checked: each line a digital output of another
+    device, no line wiring two things, no loop. A device whose wiring is refused stays free-running."""
+    wired = {}
+    users: dict[str, tuple] = {}  # line -> (device, key) of its first use
+    for name, dev in devices.items():
+        raw = data["devices"][name]
+        kw = {}
+        for key, sub, default in _WIRING_KEYS:
+            spec = raw.get(key, default)
+            if not isinstance(spec, dict):
+                continue
+            path = ("devices", name, key, sub)
+            line = spec[sub]
+            out = outputs.get(line)
+            if out is None or out.kind != "digital" or out.device == name:
+                why = ("is no channel of the rig" if out is None and line not in (data.get("channels") or {}) else
+                       "could not be read" if out is None else
+                       f"is {'an ' if out.kind == 'analog' else 'a '}{out.kind} channel, not a digital line"
+                       if out.kind != "digital" else f"is a line of '{name}' itself")
+                close = difflib.get_close_matches(line, [o.name for o in outputs.values()
+                                                         if o.kind == "digital" and o.device != name], n=1)
+                findings.append(make(WIRING_BAD, f"device '{name}' {key}: line '{line}' {why}", doc.pos(path),
+                                     hint=f"name a digital channel of another device, e.g. '{close[0]}'" if close else
+                                     "add a digital channel on another device for it and name it here"))
+                continue
+            if line in users:
+                other = users[line]
+                findings.append(make(WIRING_LINE_SHARED, f"line '{line}' wires both '{other[0]}' ({other[1]}) and "
+                                     f"'{name}' ({key})", doc.pos(path),
+                                     hint=f"add a digital channel for '{name}' {key} and name it here"))
+                continue
+            users[line] = (name, key)
+            kw["wiring_pos"] = doc.pos(path)
+            if key == "start":
+                kw["start_on"] = line
+                if "latency" in spec:
+                    kw["start_latency_s"] = q(("devices", name, key, "latency"), "s", nonnegative=True) or 0.0
+            elif key == "advance":
+                kw["step_on"] = line
+                if "latency" in spec:
+                    kw["start_latency_s"] = q(("devices", name, key, "latency"), "s", nonnegative=True) or 0.0
+            else:
+                rate = q(("devices", name, key, "max_rate"), "Hz", positive=True)
+                takes = dev.timebase_hz / dev.min_interval_ticks
+                if rate is None:
+                    continue
+                if rate > takes * (1 + 1e-9):
+                    findings.append(make(WIRING_BAD, f"device '{name}' clock max_rate {rate:.6g} Hz is faster than the "
+                                         f"device takes: one row per min_interval, {takes:.6g} Hz",
+                                         doc.pos(("devices", name, key, "max_rate")),
+                                         hint=f"write '{takes:.6g} Hz' (or less) as max_rate"))
+                    continue
+                kw["clock_on"], kw["clock_max_hz"] = line, rate
+        if kw.get("step_on") and kw.get("clock_on"):
+            findings.append(make(WIRING_BAD, f"device '{name}' is both stepped per edge and externally clocked",
+                                 doc.pos(("devices", name, "clock")), hint="keep one of advance: and clock:"))
+            kw.pop("clock_on")
+        wired[name] = _replace(dev, **kw) if kw else dev
+    return _acyclic(wired, outputs, doc, findings)
+
+
+def _acyclic(devices, outputs, doc, findings) -> dict:
+    """The devices with the wiring of any loop's devices removed (and a finding per loop)."""
+    import networkx as nx  # only a wired rig needs the graph
+
+    graph = nx.DiGraph()
+    for d in devices.values():
+        for line in (d.start_on, d.step_on, d.clock_on):
+            if line:
+                graph.add_edge(outputs[line].device, d.name)
+    if not graph.number_of_edges():
+        return devices
+    out = dict(devices)
+    for loop in nx.simple_cycles(graph):
+        first = sorted(loop)[0]
+        chain = " -> ".join(loop + [loop[0]])
+        findings.append(make(WIRING_CYCLE, f"the devices' wiring forms a loop: {chain}", devices[first].wiring_pos,
+                             hint=f"make '{first}' free-running: remove its start/advance/clock wiring"))
+        for name in loop:
+            out[name] = _replace(out[name], start_on=None, step_on=None, clock_on=None)
+    return out
 
 
 def _synth_words(c, spec, base, key, short, rng, q, doc, findings) -> dict:

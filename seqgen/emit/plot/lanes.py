@@ -278,5 +278,8 @@ def _draw_lane(ax, shot, out, col, t0, t1, colour, intended, note=None):
     dlim = ylim if out.kind == "digital" else (ylim[0] / factor, ylim[1] / factor)
     _style_lane(ax, out, colour, scale, dlim, _nearly_flat(hw[1] / factor if len(hw[0]) else it[1] / factor, dlim))
     ax.set_label(f"lane:{out.name}")
-    _lane_label(ax, out.name + (f" [{scale[1]}]" if scale[1] else ""), colour, note=note)
+    # a line of the rig's wiring carries the edges seqgen generates (README "Wiring")
+    wired = any(out.name in (d.start_on, d.step_on, d.clock_on) for d in shot.rig.devices.values())
+    _lane_label(ax, out.name + (f" [{scale[1]}]" if scale[1] else "") + (" (wiring)" if wired else ""), colour,
+                note=note)
 

@@ -481,8 +481,11 @@ def _left_margin(names, extra=()):
 
 
 def written_outputs(shot) -> set:
-    """Outputs the shot writes at least once (every other output holds its safe value all shot)."""
-    return {seg.output for seg in shot.segments}
+    """Outputs the shot writes at least once, and the rig's wiring lines, which carry generated edges (every
+    other output holds its safe value all shot)."""
+    wiring = {line for d in shot.rig.devices.values() for line in (d.start_on, d.step_on, d.clock_on)
+              if line in shot.rig.outputs}
+    return {seg.output for seg in shot.segments} | wiring
 
 
 def _drop_unwritten(names, written, all_lanes):

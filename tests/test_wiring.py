@@ -1,0 +1,120 @@
+"""Device wiring (README "Wiring"): the edges seqgen generates on a parent's lines, the manifest's wiring entry and
+the reference player running a wired device off its parent's edges.
+
+Expected times come from the sequence and rig texts (sequences/good/wired_devices.yaml: writes at 1, 2 and
+3 ms; rig_wired.yaml: a 2 us trigger latency, 1 us pulses), not from seqgen."""
+
+import hashlib
+import json
+
+import jsonschema
+import numpy as np
+import pytest
+
+from seqgen.cli import main
+from seqgen.player import play
+
+from .conftest import ROOT, SEQUENCES
+
+WIRED = SEQUENCES / "good" / "wired_devices.yaml"
+DEMO = SEQUENCES / "na23_thermometry.yaml"
+
+
+@pytest.fixture(scope="module")
+def wired_build(tmp_path_factory):
+    out = tmp_path_factory.mktemp("wired") / "b"
+    assert main(["build", str(WIRED), "-o", str(out), "--force", "--tables", "npz,csv"]) == 0
+    return out
+
+
+def _csv(path):
+    lines = path.read_text().splitlines()
+    head = lines[0].split(",")
+    rows = [dict(zip(head, r.split(","))) for r in lines[1:]]
+    return rows
+
+
+def _rises(rows, column):
+    vals = [int(r[column]) for r in rows]
+    return [float(rows[i]["time_s"]) for i in range(1, len(rows)) if vals[i] and not vals[i - 1]]
+
+
+def test_start_trigger_comes_one_latency_ahead(wired_build):
+    rows = _csv(wired_build / "dio.csv")
+    # the analog card's first write is at 1 ms, its trigger latency 2 us
+    assert _rises(rows, "ao_start") == pytest.approx([1e-3 - 2e-6], abs=1e-12)
+    # the pulse is the line's min_pulse, 1 us
+    up = next(i for i, r in enumerate(rows) if r["ao_start"] == "1")
+    assert float(rows[up + 1]["time_s"]) - float(rows[up]["time_s"]) == pytest.approx(1e-6, abs=1e-12)
+
+
+def test_stepped_device_gets_one_edge_per_row_after_the_first(wired_build):
+    edges = _rises(_csv(wired_build / "dio.csv"), "synth_step")
+    synth = _csv(wired_build / "synth.csv")
+    assert edges == pytest.approx([1e-3, 2e-3, 3e-3], abs=1e-12)  # the synthesizer's writes
+    assert len(edges) == len(synth) - 1
+
+
+def test_manifest_records_the_wiring(wired_build):
+    manifest = json.loads((wired_build / "manifest.json").read_text())
+    schema = json.loads((ROOT / "schemas" / "manifest.schema.json").read_text())
+    jsonschema.Draft202012Validator(schema).validate(manifest)
+    devs = manifest["devices"]
+    assert "wiring" not in devs["dio"]  # the free-running master
+    assert devs["ao"]["wiring"] == {"start_on": "ao_start", "start_latency_s": pytest.approx(2e-6), "start_s": 1e-3}
+    assert devs["synth"]["wiring"]["step_on"] == "synth_step"
+
+
+def test_unwired_demo_has_no_wiring(tmp_path):
+    out = tmp_path / "b"
+    assert main(["build", str(DEMO), "-o", str(out), "--force"]) in (0, 1)
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert all("wiring" not in d for d in manifest["devices"].values())
+
+
+def test_player_plays_wired_rows_at_their_edges(wired_build):
+    w = play(wired_build, [0.0])
+    assert w["coil"].appear_s[1] == pytest.approx(1e-3, abs=1e-12)  # start edge + latency
+    assert list(w["rf.freq"].appear_s[1:]) == pytest.approx([1e-3, 2e-3, 3e-3], abs=1e-12)
+
+
+def test_player_follows_a_moved_start_edge(wired_build, tmp_path):
+    # a loader that moved the trigger edge 1 us earlier: the analog card's rows follow the edge, not their ticks
+    import shutil
+
+    b = tmp_path / "moved"
+    shutil.copytree(wired_build, b)
+    manifest = json.loads((b / "manifest.json").read_text())
+    text = (b / "dio.csv").read_text().replace("\n9980,0.000998,1,", "\n9970,0.000997,1,")
+    (b / "dio.csv").write_text(text)
+    dio = manifest["devices"]["dio"]["files"]
+    dio.pop("npz")
+    dio["csv"]["sha256"] = hashlib.sha256(text.encode()).hexdigest()
+    (b / "manifest.json").write_text(json.dumps(manifest))
+    w = play(b, np.array([0.0]))
+    assert w["coil"].appear_s[1] == pytest.approx(1e-3 - 1e-6, abs=1e-12)
+    assert w["coil"].appear_s[0] == 0.0  # the armed value
+
+
+def test_wiring_lines_must_be_digital_lines_of_another_device():
+    # a rig whose device starts on one of its own lines: a finding at the rig's line, no traceback
+    from seqgen.load.yamlsrc import load_text
+    from seqgen.resolve.rig import build_rig
+
+    text = ("seqgen_rig: 1\nname: own\ndevices:\n  dio:\n    timebase: 1 MHz\n    start: {on: trig}\n"
+            "channels:\n  trig: {device: dio, kind: digital}\n")
+    rig, found = build_rig(load_text(text, "rig.yaml"))
+    assert [(f.code, f.line) for f in found] == [("hardware.wiring-bad", 6)]
+    assert rig.devices["dio"].start_on is None  # left free-running
+
+
+def test_show_and_plot_mark_the_generated_edges(tmp_path, capsys):
+    assert main(["show", str(WIRED)]) == 0
+    shown = [line.split() for line in capsys.readouterr().out.splitlines()]
+    edges = [row for row in shown if row[:1] == ["wiring"]]
+    # one start pulse on ao_start and a pulse per synthesizer row after the first (writes at 1, 2 and 3 ms)
+    assert sum("ao_start" in row for row in edges) == 2 and sum("synth_step" in row for row in edges) == 6
+    svg = tmp_path / "p.svg"
+    assert main(["plot", str(WIRED), "-o", str(svg)]) == 0
+    text = svg.read_text()
+    assert "ao_start (wiring)" in text and "synth_step (wiring)" in text
