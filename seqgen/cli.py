@@ -86,6 +86,8 @@ def _writing(what: str, action, refused: tuple = ()):
 def cmd_check(args) -> int:
     from .pipeline import preflight
 
+    if getattr(args, "watch", False):
+        return _watch(args)
     report = getattr(args, "report", None)
     if report and Path(report).exists() and not args.force:
         return _cannot_run(f"{report} exists; use --force to replace it")
@@ -128,6 +130,38 @@ def _is_rig_file(src) -> bool:
     from .resolve.sources import is_rig_document
 
     return src is not None and is_rig_document(src.main)
+
+
+def _watch(args) -> int:
+    """check FILE --watch: the findings of the base shot, then after every change of the sequence, a file it uses
+    or its rig, the findings that appeared (+) and those that went away (-); Ctrl-C ends it."""
+    from .findings import format_text, summary
+    from .pipeline import preflight
+    from .watch import watch
+
+    from .findings import has_errors
+
+    print(_caution())
+    last: tuple = ()
+    try:
+        for change in watch(args.file, lambda p: preflight(p).findings, max_checks=args.watch_checks):
+            last = change.findings
+            if change.first:
+                for f in change.findings:
+                    print(format_text(f))
+            else:
+                print(f"-- {args.file} changed: {len(change.new)} new, {len(change.resolved)} resolved")
+                for f in change.new:
+                    print("+ " + format_text(f).replace("\n", "\n  "))
+                for f in change.resolved:
+                    print("- " + format_text(f).splitlines()[0])
+            counts = summary(change.findings)
+            print(f"{args.file}: {counts.get('error', 0)} error(s), {counts.get('warning', 0)} warning(s), "
+                  f"{counts.get('note', 0)} note(s); watching for changes (Ctrl-C to stop)", flush=True)
+    except KeyboardInterrupt:
+        pass
+    print(_caution())
+    return EXIT_FINDINGS if has_errors(last) else EXIT_OK  # as a plain check of the last state
 
 
 def _check_rig_file(src, args, report) -> int:
@@ -508,6 +542,10 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--report", metavar="FILE", default=None,
                    help="also write a self-contained HTML preflight report (findings, physics notes, timeline)")
     c.add_argument("--force", action="store_true", help="replace an existing --report file")
+    c.add_argument("--watch", action="store_true",
+                   help="check again whenever the file, a file it uses or its rig changes, and print the findings "
+                        "that appeared (+) and went away (-); the base shot of a scan; Ctrl-C stops")
+    c.add_argument("--watch-checks", type=int, default=None, metavar="N", help="with --watch: stop after N checks")
     _shot_option(c, "preflight only shot N of the scan (run order, as in --json), like a file without scans")
     _scan_options(c)
     c.set_defaults(func=cmd_check)
