@@ -76,8 +76,9 @@ def watch(path, check: Callable[[str], list], *, interval: float = POLL_S, sleep
         if now != printed:
             printed = now
             findings = tuple(check(str(path)))
-            files = watched_files(path)  # a changed `use:` or `rig:` changes what is watched
-            printed = _fingerprint(files) if files != tuple(Path(p) for p, *_ in now) else printed
+            watched = watched_files(path)  # a changed `use:` or `rig:` changes what is watched
+            if watched != files:
+                files, printed = watched, _fingerprint(watched)
             keys = {finding_key(f): f for f in findings}
             new = tuple(f for k, f in keys.items() if k not in seen)
             resolved = tuple(f for k, f in seen.items() if k not in keys)

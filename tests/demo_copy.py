@@ -99,7 +99,8 @@ def _item_span(lines: list, line: int) -> range:
     return range(line - 1, end)
 
 
-def _scalar_at(line: str, start: int) -> int:
+def scalar_end(line: str, start: int) -> int:
+    """Where the YAML scalar that starts at `start` of `line` ends (a quoted string, or up to , } ] or a comment)."""
     if line[start] in "'\"":
         return line.index(line[start], start + 1) + 1
     end = start
@@ -120,7 +121,7 @@ def read_key(path, line: int, key: str) -> str | None:
     for i in _item_span(lines, line):
         m = _key_rx(key).search(lines[i].split(" #")[0])
         if m:
-            return lines[i][m.end():_scalar_at(lines[i], m.end())]
+            return lines[i][m.end():scalar_end(lines[i], m.end())]
     return None
 
 
@@ -132,7 +133,7 @@ def write_key(path, line: int, key: str, text: str) -> None:
     for i in _item_span(lines, line):
         m = _key_rx(key).search(lines[i].split(" #")[0])
         if m:
-            lines[i] = lines[i][:m.end()] + text + lines[i][_scalar_at(lines[i], m.end()):]
+            lines[i] = lines[i][:m.end()] + text + lines[i][scalar_end(lines[i], m.end()):]
             break
     else:
         at = lines[line - 1].split(" #")[0].rindex("}")

@@ -15,7 +15,7 @@ import pytest
 
 from seqgen.pipeline import preflight
 
-from .demo_copy import check, edit, errors
+from .demo_copy import check, edit, errors, scalar_end
 
 THERMO = "sequences/na23_thermometry.yaml"
 SCATTER = "sequences/na23_barrier_scatter.yaml"
@@ -36,17 +36,6 @@ def proposed(hint: str) -> str:
     raise AssertionError(f"the fix names no value to write: {hint!r}")
 
 
-def _scalar_end(line: str, start: int) -> int:
-    if line[start] in "'\"":
-        return line.index(line[start], start + 1) + 1
-    end = start
-    while end < len(line) and line[end] not in ",}]" and not line.startswith(" #", end):
-        end += 1
-    while end > start and line[end - 1] == " ":
-        end -= 1
-    return end
-
-
 def apply_fix(f) -> str:
     """Write the value the fix of finding `f` names into its file, at its line: at its column (after the key
     that stands there), or after the key a 'key: value' fix names. Returns the value written."""
@@ -64,7 +53,7 @@ def apply_fix(f) -> str:
         start = f.column - 1
         at = re.compile(r"[A-Za-z_][A-Za-z0-9_]*:\s+").match(line, start)  # the position of a key: its value
         start = at.end() if at else start
-    lines[f.line - 1] = line[:start] + value + line[_scalar_end(line, start):]
+    lines[f.line - 1] = line[:start] + value + line[scalar_end(line, start):]
     p.write_text("\n".join(lines), encoding="utf-8")
     return value
 

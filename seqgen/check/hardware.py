@@ -166,8 +166,7 @@ def synth_settling(shot):
         freq_writes = sorted((s for s in shot.segments if s.output == fout.name), key=lambda s: s.t1)
         level = aout.safe
         for a in sorted((s for s in shot.segments if s.output == aout.name), key=lambda s: s.t0):
-            start, level = level, a.v1 if a.kind == "set" else a.v0
-            rises = start <= 0 < max(a.v1, a.v0 or 0.0)
+            rises = level <= 0 < max(a.v1, a.v0 or 0.0)  # from off (the level before this write) to on
             level = a.v1
             if not rises:
                 continue

@@ -49,30 +49,7 @@ def condensate_expansion(omegas_xyz, t_array, rtol: float = 1e-10) -> np.ndarray
     lambda = 1, lambda' = 0 at release (Phys. Rev. Lett. 77, 5315 (1996)); the
     radii are R_j(t) = lambda_j(t) R_j(0). Times need not be sorted; t >= 0.
     """
-    from scipy.integrate import solve_ivp
-
-    w = np.asarray(omegas_xyz, dtype=float).reshape(3)
-    t = np.asarray(t_array, dtype=float)
-    flat = t.ravel()
-    if np.any(flat < 0) or np.any(w <= 0):
-        raise ValueError("need t >= 0 and positive trap frequencies")
-    scale = float(w.max())  # dimensionless time omega_max t
-    wsq = (w / scale) ** 2
-
-    def rhs(tau, y):
-        lam = y[:3]
-        return np.concatenate([y[3:], wsq / (lam * np.prod(lam))])
-
-    order = np.argsort(flat)
-    tau = flat[order] * scale
-    out = np.ones((3, flat.size))
-    if flat.size and tau[-1] > 0:
-        sol = solve_ivp(rhs, (0.0, tau[-1]), np.r_[np.ones(3), np.zeros(3)], method="DOP853",
-                        t_eval=tau, rtol=rtol, atol=rtol * 1e-2)
-        if not sol.success:
-            raise RuntimeError(f"scaling-equation integration failed: {sol.message}")
-        out[:, order] = sol.y[:3]
-    return out.reshape((3,) + t.shape)
+    return free_scaling(omegas_xyz, np.ones(3), np.zeros(3), t_array, rtol=rtol)  # at rest at the release
 
 
 def condensate_tof_radii(radii_m, omegas_xyz, t_array) -> np.ndarray:

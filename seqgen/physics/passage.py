@@ -81,14 +81,16 @@ def fraction_reached(t_s, distance_m: float, speed_m_s: float, push_duration_s: 
 
 
 def time_to_fraction(fraction: float, distance_m: float, speed_m_s: float, push_duration_s: float,
-                     sigma_v_m_s: float, profile: str, size_m: float) -> float:
+                     sigma_v_m_s: float, profile: str, size_m: float, size_scale=None) -> float:
     """First time after the push began by which `fraction` of the cloud has reached `distance_m`
     (math.inf if it never does, e.g. atoms slower than the spread). Bisection on `fraction_reached`,
-    which never decreases with t, to 1e-7 relative."""
-    args = (distance_m, speed_m_s, push_duration_s, sigma_v_m_s, profile, size_m)
+    which never decreases with t, to 1e-7 relative. `size_scale(t)`: the cloud's length along the path grows
+    as size_m x size_scale(t) (an expanding condensate), else it keeps size_m."""
+    args = (distance_m, speed_m_s, push_duration_s, sigma_v_m_s, profile)
 
     def reached(t):
-        return float(fraction_reached(t, *args))
+        size = size_m if size_scale is None else size_m * float(size_scale(t))
+        return float(fraction_reached(t, *args, size))
 
     if reached(0.0) >= fraction:
         return 0.0

@@ -419,24 +419,8 @@ def _named_trap_beams(shot, t):
 
 def _time_to(fraction, distance, speed, tau, sigma_v, profile, size, scale):
     """`passage.time_to_fraction` for a cloud whose length along the path grows as scale(t)."""
-    if scale is None:
-        return time_to_fraction(fraction, distance, speed, tau, sigma_v, profile, size)
-
-    def reached(t):
-        return float(fraction_reached(t, distance, speed, tau, sigma_v, profile, size * float(scale(t)[0])))
-
-    if reached(0.0) >= fraction:
-        return 0.0
-    hi = max(tau, 1e-6)
-    while reached(hi) < fraction:
-        hi *= 2.0
-        if hi > 1e4:
-            return math.inf
-    lo = 0.0
-    while hi - lo > 1e-7 * hi:
-        mid = 0.5 * (lo + hi)
-        lo, hi = (mid, hi) if reached(mid) < fraction else (lo, mid)
-    return hi
+    grow = None if scale is None else (lambda t: scale(t)[0])
+    return time_to_fraction(fraction, distance, speed, tau, sigma_v, profile, size, grow)
 
 
 def passage(shot, act, inc, cloud, waist_y, scale=None) -> Passage:

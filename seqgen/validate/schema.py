@@ -191,8 +191,7 @@ def _closest_choice(value: str, choices: list) -> str | None:
     """The one allowed value `value` most likely means, or None: a spelt-out sign ('sigma_plus' is 'sigma+'),
     else the closest by similarity unless two are equally close (then a guess could be the opposite one)."""
     def norm(x):
-        x = x.lower().replace("plus", "+").replace("minus", "-")
-        return "".join(ch for ch in x if ch not in " _-" or ch == "-" and x.endswith("-"))
+        return x.lower().replace("plus", "+").replace("minus", "-").replace("_", "").replace(" ", "")
 
     spelt = [c for c in choices if norm(c) == norm(value)]
     if len(spelt) == 1:
