@@ -7,6 +7,7 @@ import math
 
 from ..calibration import is_monotonic
 from ..findings import Finding, make
+from ..textfmt import fmt_freq
 from ..load.yamlsrc import Document
 from ..model import Beam, Calibration, Coil, Device, Drive, ImagingSetup, Output, Rig
 from .quantities import Bad, quantity
@@ -298,8 +299,8 @@ def _synth_words(c, spec, base, key, short, rng, q, doc, findings) -> dict:
                              doc.pos(base + ("reference_clock",)), hint="add bits: to frequency (e.g. bits: 32)"))
         return out
     if rng[0] < 0 or rng[1] > clock:
-        findings.append(make(BAD_RIG, f"synth '{base[-1]}' frequency range [{rng[0]:.9g}, {rng[1]:.9g}] Hz does not "
-                             f"fit its word: 0 Hz to the reference clock {clock:.9g} Hz",
+        findings.append(make(BAD_RIG, f"synth '{base[-1]}' frequency range [{fmt_freq(rng[0], 9)}, {fmt_freq(rng[1], 9)}] "
+                             f"does not fit its word: 0 Hz to the reference clock {fmt_freq(clock, 9)}",
                              doc.pos(base + (key, "range")), hint="keep the frequency range within [0 Hz, reference_clock]"))
         return out
     out["reference_clock_hz"] = clock
