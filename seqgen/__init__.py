@@ -31,7 +31,7 @@ __all__ = [
     "report_rows", "image_prediction", "cloud_at_image",
     # writing, pictures, scans, diff
     "write_build", "Writer", "available_writers", "timeline_figure", "diff_figure", "write_report",
-    "plan_scan", "run_scan", "diff", "diff_paths", "DiffInputError",
+    "plan_scan", "run_scan", "scan_summary", "ScanSummary", "diff", "diff_paths", "DiffInputError",
     # a build folder played back (the loader contract by example)
     "play", "Waveform",
     "CAUTION", "__version__",
@@ -98,6 +98,11 @@ def _scan_run():
     return sys.modules[f"{__name__}.scan.run"]
 
 
+def _scan_summary():
+    from .scan.summary import scan_summary  # noqa: F401  (a name, not the module: `from . import` would ask this face)
+    return sys.modules[f"{__name__}.scan.summary"]
+
+
 def _diff():
     from .diff import diff_paths  # noqa: F401  (a name, not the module: `from . import` would ask this face)
     return sys.modules[f"{__name__}.diff"]
@@ -127,7 +132,8 @@ _WHERE = {
     "report_rows": _predict, "image_prediction": _predict, "cloud_at_image": _predict,
     "write_build": _build, "Writer": _writers, "available_writers": _writers,
     "timeline_figure": _plot, "diff_figure": _plot, "write_report": _report,
-    "plan_scan": _scan_plan, "run_scan": _scan_run, "diff_paths": _diff, "DiffInputError": _diff,
+    "plan_scan": _scan_plan, "run_scan": _scan_run,
+    "scan_summary": _scan_summary, "ScanSummary": _scan_summary, "diff_paths": _diff, "DiffInputError": _diff,
     "CAUTION": _caution, "play": _player, "Waveform": _player,
 }
 

@@ -46,6 +46,12 @@ class Result:
         resolved = self.shot is not None or any(f.code == "schema.fragment" for f in self.findings)
         return resolved and not has_errors(self.findings)
 
+    def _repr_html_(self) -> str:
+        """In a notebook: the findings table, the safety caution and the timeline (inline SVG, no script)."""
+        from .emit.notebook import result_html
+
+        return result_html(self)
+
 
 def preflight(path: str | Path, *, compile_tables: bool = True, overrides: dict | None = None,
               sources: Sources | None = None, rules: tuple[Rule, ...] | None = None) -> Result:

@@ -3,6 +3,7 @@
     summarize(scan)      # [CodeSummary]: "for hold <= 3 ms; quiet from 4 ms", "in every shot", ...
     report_text(scan)    # the compact text of `seqgen check` / `build` of a scanned sequence
     scan_json(scan)      # the same as JSON-ready data (`--json`)
+    scan_summary(scan)   # ScanSummary: the same, and its HTML in a notebook (`_repr_html_`)
 """
 
 from __future__ import annotations
@@ -165,3 +166,36 @@ def report_text(scan: Scan, *, built: bool = False) -> str:
     lines.append(f"{scan.file}: {good} of {len(scan.shots)} shots pass; over all shots {t['error']} error(s), "
                  f"{t['warning']} warning(s), {t['note']} note(s)" + (f", {t['accepted']} accepted" if t["accepted"] else ""))
     return "\n".join(lines)
+
+
+@dataclass(frozen=True)
+class ScanSummary:
+    """What a run scan found, for a notebook: Jupyter shows it as the per-code table and one row per shot."""
+
+    file: str
+    description: str
+    shots: int
+    passing: int
+    totals: dict
+    codes: tuple  # CodeSummary, in report order
+    rows: tuple  # (index, param values text, ok, finding counts) per shot
+    text: str  # what `seqgen check` prints for the scan
+
+    def _repr_html_(self) -> str:
+        from ..emit.notebook import scan_html
+
+        codes = [(c.code, c.severity, f"{len(c.shots)} of {self.shots}", c.where) for c in self.codes]
+        return scan_html(self.file, self.description, self.totals, self.shots, self.passing, codes, self.rows)
+
+
+def scan_summary(scan: Scan) -> ScanSummary:
+    """The summary of a run scan (`seqgen.run_scan(seqgen.plan_scan(file))`); a scan that could not be expanded
+    into shots summarises its own findings."""
+    if scan.plan is None:
+        counts = summary(scan.findings)
+        text = "\n".join([f"{scan.file}: the scan cannot be expanded into shots"] +
+                          [format_text(f) for f in scan.findings])
+        return ScanSummary(scan.file, "not expanded", 0, 0, counts, (), (), text)
+    rows = tuple((r.index, values_text(scan.plan.names, r.values), r.ok, summary(r.findings)) for r in scan.shots)
+    return ScanSummary(scan.file, scan.plan.describe(), len(scan.shots), sum(r.ok for r in scan.shots), totals(scan),
+                       tuple(summarize(scan)), rows, report_text(scan) if scan.shots else "")
