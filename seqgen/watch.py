@@ -1,9 +1,12 @@
 """`seqgen check FILE --watch`: check a sequence again whenever it, a file it uses or its rig changes, and say
 what changed since the last check (the findings that appeared and those that went away).
 
-The files are polled (modification time and size, standard library only), so it also works on network shares
-that send no change notifications. A file being written when it is polled is seen again at the next poll: the
-fingerprint is taken before each check, so a change during a check triggers the next one.
+With watchfiles installed (`pip install 'seqgen[watch]'`) the watch waits for the operating system's change
+notifications on the files' folders, so a save is checked at once; it still compares the files' modification
+times and sizes after every wake-up and at least every 2 s, so a change the notifications miss (a network
+share, a change between two waits) is checked too. Without watchfiles the files are polled twice a second
+(standard library only). The fingerprint is taken before each check, so a change during a check triggers the
+next one.
 """
 
 from __future__ import annotations
@@ -15,7 +18,7 @@ from typing import Callable, Iterator
 
 from .findings import Finding
 
-__all__ = ["Change", "watch", "watched_files", "finding_key"]
+__all__ = ["Change", "watch", "watched_files", "finding_key", "event_wait"]
 
 POLL_S = 0.5  # between looks at the files: a save shows up within half a second
 
@@ -63,10 +66,43 @@ def finding_key(f: Finding) -> tuple:
     return (f.code, f.file, f.line, f.column, f.message)
 
 
-def watch(path, check: Callable[[str], list], *, interval: float = POLL_S, sleep=time.sleep,
+EVENT_TIMEOUT_MS = 2000  # the longest wait for a notification before the files are compared anyway
+
+
+def event_wait(files, timeout_ms: int = EVENT_TIMEOUT_MS) -> set:
+    """Wait for watchfiles to report a change of one of `files`, at most `timeout_ms`; the changed paths (empty
+    after a timeout). Raises ImportError without watchfiles, OSError when a folder cannot be watched."""
+    import watchfiles
+
+    names = {str(Path(f).resolve()) for f in files}
+    folders = sorted({str(Path(f).resolve().parent) for f in files})
+    for changes in watchfiles.watch(*folders, watch_filter=lambda _kind, p: str(Path(p).resolve()) in names,
+                                    debounce=50, rust_timeout=timeout_ms, yield_on_timeout=True, recursive=False):
+        return {p for _kind, p in changes}
+    return set()
+
+
+def _waiter(interval: float):
+    """How to wait for the next look at the files: notifications when watchfiles is installed, else a poll."""
+    try:
+        import watchfiles  # noqa: F401  (optional: seqgen[watch])
+    except ImportError:
+        return lambda files: time.sleep(interval)
+
+    def wait(files):
+        try:
+            event_wait(files)
+        except OSError:  # a folder gone or not watchable: poll instead
+            time.sleep(interval)
+    return wait
+
+
+def watch(path, check: Callable[[str], list], *, interval: float = POLL_S, sleep=None,
           max_checks: int | None = None) -> Iterator[Change]:
     """Check `path` now and after every change of its files; yield a Change per check (`max_checks`: stop
-    after that many; `sleep`: how to wait between polls, replaceable in tests)."""
+    after that many; `sleep(interval)`: how to wait between looks, replaceable in tests; default: change
+    notifications with watchfiles, else polling every `interval` seconds)."""
+    wait = _waiter(interval) if sleep is None else (lambda _files: sleep(interval))
     seen: dict = {}
     printed = None
     checks = 0
@@ -86,4 +122,4 @@ def watch(path, check: Callable[[str], list], *, interval: float = POLL_S, sleep
             seen = keys
             checks += 1
             continue
-        sleep(interval)
+        wait(files)

@@ -87,3 +87,29 @@ def test_the_command_prints_the_change_and_the_caution(tmp_path):
     assert "\n- " in text and "schema.missing-unit" in text
     assert text.startswith("caution:") and text.rstrip().splitlines()[-1].startswith("caution:")
     assert "Traceback" not in err
+
+
+def test_notifications_report_a_real_change_of_a_watched_file(tmp_path):
+    """With watchfiles (a test extra), the wait returns the file that changed on disk; a change of another file
+    in the same folder is not one of the watched files."""
+    import threading
+
+    from seqgen.watch import event_wait
+
+    seq = _project(tmp_path)
+    other = tmp_path / "notes.txt"
+
+    def later():
+        time.sleep(0.3)  # after the watcher has started
+        other.write_text("unrelated", encoding="utf-8")
+        _edit(seq, "duration: 5}", "duration: 5 ms}")
+
+    t = threading.Thread(target=later)
+    t.start()
+    changed = set()
+    for _ in range(10):  # a wait may end on its timeout before the edit; the edit ends one of them
+        changed = event_wait([seq], timeout_ms=5000)
+        if changed:
+            break
+    t.join()
+    assert {os.path.realpath(p) for p in changed} == {os.path.realpath(seq)}
