@@ -104,6 +104,23 @@ RAMP_UNDERSAMPLED = Code(
     rows h apart is off by up to y' h / 2; interpolating rows, by up to
     h^2 |y''| / 8 (A Practical Guide to Splines, Springer (1978)).""")
 
+SWEEP_STEPPED = Code(
+    "hardware.sweep-stepped", "note", stage="compile",
+    source=("the rig file's min_interval per device; step-and-hold error y' h / 2 of a ramp of slope y' with rows "
+            "h apart (A Practical Guide to Splines, Springer (1978)); a frequency staircase counts only through "
+            "what it does to the atoms, which the physics checks follow"),
+    doc="""
+    A synthesizer's frequency sweep that gives no `tolerance:` (nor its
+    channel) plays as a staircase of rows no closer than the device's
+    minimum interval. Half an LSB of a frequency word (a fraction of a hertz
+    on a 32-bit word) is no bound any table-driven synthesizer meets, so a
+    sweep is not held to it: this note says how many rows the sweep became
+    and how far the staircase strays from the straight line. The physics
+    checks propagate the atoms through the staircase as played (transfer of
+    an adiabatic passage, a pulse's detuning), so steps that matter for the
+    atoms show up there. Give the sweep a `tolerance:` to be warned
+    (`hardware.ramp-undersampled`) when the steps exceed it.""")
+
 RESOLUTION = Code(
     "hardware.resolution", "warning", stage="timeline",
     source=("DAC quantization error of half a least significant bit, LSB = span / 2^bits (IEEE Std 1658-2011, "

@@ -22,7 +22,7 @@ from ..model import Compiled, DeviceTable, Output, Shot
 from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
 from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
 from .wiring import compile_order, pulse, pulse_width, row_edges
-from ..codes import BEFORE_START, RAMP_UNDERSAMPLED
+from ..codes import BEFORE_START, RAMP_UNDERSAMPLED, SWEEP_STEPPED
 from ..textfmt import fmt_when, outward
 
 
@@ -96,7 +96,8 @@ def output_rows(out: Output, segments, device, findings: list, spans: dict):
             rt, rv, err, limited = sampled_ramp(out, seg, lat, k0, k1, device, tol, linear)
             spans[(seg.block, out.name, seg.t0)] = (k0, k1)
             if limited and seg.t1 - seg.t0 >= device.min_interval_ticks * tick:  # shorter: timing.ramp-too-fast
-                findings.append(_undersampled(out, seg, device, err, tol, len(rt)))
+                stepped = seg.tolerance is None and out.tolerance is None and out.name == f"{out.channel}.freq"
+                findings.append((_stepped if stepped else _undersampled)(out, seg, device, err, tol, len(rt)))
             ticks.append(np.asarray(rt, dtype=np.int64))
             vals.append(np.asarray(rv, dtype=float))
             flexible.append(np.r_[False, np.ones(len(rt) - 2, dtype=bool), False] if len(rt) >= 2 else np.zeros(len(rt), bool))
@@ -143,6 +144,19 @@ def _undersampled(out: Output, seg, device, err: float, tol: float, rows: int) -
                      "or use a device with a shorter minimum interval",
                 data={"max_error": err, "tolerance": tol, "rows": rows, "min_interval_s": dt,
                       "length_factor": factor, "loose_tolerance": loose})
+
+
+def _stepped(out: Output, seg, device, err: float, tol: float, rows: int) -> Finding:
+    """A synth frequency sweep without a tolerance of its own: a staircase, told as a note (hardware.sweep-stepped)."""
+    dt = device.min_interval_ticks * device.tick_s
+    loose = outward(err, 3)
+    return make(SWEEP_STEPPED,
+                f"{seg.shape} sweep on '{out.name}' plays as {rows} rows no closer than {device.name}'s minimum "
+                f"interval {fmt_when(dt)}, up to {err:.4g} {out.unit} off the intended curve; the physics checks "
+                "follow the atoms through these steps", seg.pos, block=seg.block, time_s=seg.t0,
+                hint=f"to hold the sweep to a bound, give it `tolerance: {loose:.3g} {out.unit}` (a warning when "
+                     "the steps exceed it)",
+                data={"max_error": err, "rows": rows, "min_interval_s": dt, "loose_tolerance": loose})
 
 
 class RampCache:
