@@ -136,6 +136,7 @@ class Beam:
     position_m: tuple = (0.0, 0.0, 0.0)
     role: str = "other"
     pos: SourcePos = SourcePos("")
+    shutter: str | None = None  # digital channel of the beam's shutter, open at 1
 
 
 @dataclass(frozen=True)

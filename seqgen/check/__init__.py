@@ -14,7 +14,7 @@ from ..caution import CAUTION  # noqa: F401  (re-exported for the command line)
 from ..codes import CHECK_CRASHED
 from ..findings import Finding, make
 from . import (hardware, physics_barrier, physics_imaging, physics_magnetic, physics_pushes, physics_states,
-               physics_traps, safety, timing, wiring)
+               physics_traps, safety, shutters, timing, wiring)
 from .rules import STAGES, Rule, rule
 
 __all__ = ["RULES", "STAGES", "Rule", "rule", "run_timeline_checks", "run_table_checks", "apply_accepts"]
@@ -36,7 +36,7 @@ RULES: tuple[Rule, ...] = (
     physics_pushes.push_no_force, physics_pushes.push_too_late, physics_pushes.equal_moments,
     physics_pushes.components_overlap, physics_pushes.components_separated, physics_imaging.probe_off_resonance,
     physics_imaging.probe_doppler,
-    physics_imaging.imaging_blur, physics_imaging.exposure_too_short,
+    physics_imaging.imaging_blur, physics_imaging.exposure_too_short, shutters.beam_shuttered,
     physics_barrier.barrier_transmission, physics_barrier.cloud_overlaps_barrier, physics_barrier.barrier_too_short,
     physics_barrier.barrier_too_late, physics_barrier.barrier_no_signal, physics_barrier.not_tunnelling,
     physics_barrier.barrier_rotation, physics_barrier.drive_too_strong, physics_barrier.rotation_unresolvable,

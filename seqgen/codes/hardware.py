@@ -121,6 +121,21 @@ SWEEP_STEPPED = Code(
     atoms show up there. Give the sweep a `tolerance:` to be warned
     (`hardware.ramp-undersampled`) when the steps exceed it.""")
 
+BEAM_SHUTTERED = Code(
+    "hardware.beam-shuttered", "error", stage="physics",
+    source=("the rig file's beam `shutter:` with the shutter channel's latency and jitter; the channel's table as "
+            "played (seqgen.predict.played)"),
+    doc="""
+    A beam that an image or a barrier needs is behind its shutter (the
+    rig's beam `shutter:`, a digital channel open at 1) while it should
+    shine: the shutter, as played after its latency, is closed during part
+    or all of the probe pulse or the barrier (error: the camera records no
+    absorption, the atoms see no sheet). Open it before the pulse, and
+    close it after. When the shutter is open throughout but opens or closes
+    less than its `jitter:` from the pulse, the edge may land inside the
+    pulse on some shots (warning): leave at least the jitter between the
+    shutter's edge and the pulse.""")
+
 RESOLUTION = Code(
     "hardware.resolution", "warning", stage="timeline",
     source=("DAC quantization error of half a least significant bit, LSB = span / 2^bits (IEEE Std 1658-2011, "

@@ -138,6 +138,8 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
     for name, b in (data.get("beams") or {}).items():
         base = ("beams", name)
         ref("beam", name, "power_channel", b["power_channel"], base + ("power_channel",))
+        if b.get("shutter") is not None:
+            ref("beam", name, "shutter", b["shutter"], base + ("shutter",))
         wl = q(base + ("wavelength",), "m", positive=True)
         if wl is None:
             continue
@@ -145,7 +147,7 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
                            opt(base + ("waist_y",), "m", positive=True),
                            _direction(b.get("direction"), base + ("direction",), doc, findings, (1.0, 0.0, 0.0)),
                            _vector(b.get("position", (0, 0, 0)), base + ("position",), doc, findings) or (0.0, 0.0, 0.0),
-                           b.get("role", "other"), doc.pos(base))
+                           b.get("role", "other"), doc.pos(base), _shutter(b.get("shutter"), base, outputs, doc, findings))
     coils = {}
     for name, c in (data.get("coils") or {}).items():
         base = ("coils", name)
@@ -318,6 +320,18 @@ def _vector(raw, path, doc, findings):
                              hint="give three ordinary numbers, e.g. [1, 0, 0]"))
         return None
     return v
+
+
+def _shutter(name, base, outputs, doc, findings):
+    """A beam's shutter channel: a digital output (an unknown name has its finding from `ref` already)."""
+    if name is None or name not in outputs:
+        return None
+    if outputs[name].kind != "digital":
+        findings.append(make(BAD_RIG, f"beam '{base[-1]}' has shutter '{name}', a {outputs[name].kind} channel: a "
+                             "shutter is open or closed", doc.pos(base + ("shutter",)),
+                             hint="name the digital channel that opens the shutter (open at 1)"))
+        return None
+    return name
 
 
 def _direction(raw, path, doc, findings, default=None):
