@@ -11,6 +11,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 from functools import lru_cache
+from pathlib import Path
 
 _KEY = re.compile(r"""("[^"\n]*"|'[^'\n]*'|[^\s:{}\[\],#'"][^:{}\[\],#]*?)[ \t]*:(?=[ \t]|$)""")
 _WORD_CHARS = frozenset("ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789_")
@@ -33,15 +34,15 @@ class Entry:
 @dataclass(frozen=True)
 class Cursor:
     """The cursor's place: `path` is the collection it is in (its mapping or sequence); `key` the key whose value
-    holds it (None when the cursor is where a key, or a sequence item, is written); `item` True when it is
-    where a plain `- ` item starts (a key or a scalar); `value` the text of the scalar (or flow element) it is in,
+    holds it (an int: the index of the sequence item it is in; None when the cursor is where a key is written);
+    `item` True when it is where a plain `- ` item starts (a key of a mapping item, or a scalar item); `value` the text of the scalar (or flow element) it is in,
     up to the cursor; `word` the name under the cursor (letters, digits, _) and its columns; `token` the same
     with `.`, `-` and `/` (finding codes, synth parts, paths); `siblings` the other keys of its mapping with
     their values as written on the cursor's line."""
 
     line: int
     path: tuple
-    key: str | None
+    key: str | int | None
     item: bool
     value: str
     word: str
@@ -210,7 +211,7 @@ def _flow(text: str, base: tuple):
     element = text[start:].lstrip()
     if kind == "map":
         return path, label, label is None, element, tuple(pairs)
-    return path + (label,), None, False, element, ()
+    return path, label, False, element, ()
 
 
 def _around(line: str, character: int, chars) -> tuple:
@@ -273,11 +274,9 @@ def cursor_at(text: str, line: int, character: int) -> Cursor | None:
                       value=before.strip(), **common)
     kind, col, name, value, vcol = last
     full_pairs = _rest_pairs(cur[vcol:])
-    if kind == "item" and value is None:  # "- na|": a key or a scalar item being typed
+    if kind == "item":  # "- na|": a key or a scalar item being typed
         path = stack.path()
-        return Cursor(path=path, key=None, item=True, value=before[tail_start:].strip(), **common)
-    if kind == "item":
-        return Cursor(path=stack.path()[:-1], key=None, item=True, value=before[vcol:].strip(), **common)
+        return Cursor(path=path[:-1], key=path[-1], item=True, value=before[tail_start:].strip(), **common)
     key_path = stack.path()
     parent = key_path[:-1]
     vtext = before[vcol:] if len(before) >= vcol else ""
@@ -295,3 +294,217 @@ def block_name_spans(text: str) -> dict:
         if len(e.path) == 3 and e.path[0] == "blocks" and e.path[2] == "name" and e.value:
             out.setdefault(_unquote(e.value), (e.line, e.value_col))
     return out
+
+
+# ----------------------------------------------------------------------------- the document's world
+# What the features read beside the cursor's text: the schema, the files the document uses and its rig. Each
+# is cached by the file's content, so a call after the first reads a few small files and hashes them.
+
+
+@dataclass(frozen=True)
+class Place:
+    """A name's place: its file, 0-based line and the columns of the name."""
+
+    file: Path
+    line: int
+    col: int
+    end: int
+
+
+def is_rig_text(text: str) -> bool:
+    return re.search(r"(?m)^seqgen_rig\s*:", text) is not None
+
+
+@lru_cache(maxsize=4)
+def _schema(name: str) -> dict:
+    from ..validate.schema import load_schema
+
+    return load_schema(name)
+
+
+def schema_for(text: str) -> dict:
+    return _schema("rig.schema.json" if is_rig_text(text) else "sequence.schema.json")
+
+
+def deref(root: dict, node) -> dict:
+    """`node` with its `$ref`s followed (its own description kept over the target's)."""
+    seen = 0
+    while isinstance(node, dict) and isinstance(node.get("$ref"), str) and seen < 16:
+        ref = node["$ref"]
+        target = root
+        for part in ref.lstrip("#/").split("/") if ref.startswith("#/") else ("\0",):
+            target = target.get(part) if isinstance(target, dict) else None
+        if not isinstance(target, dict):
+            break
+        node = {**target, **{k: v for k, v in node.items() if k != "$ref"}}
+        seen += 1
+    return node if isinstance(node, dict) else {}
+
+
+def properties(root: dict, node) -> dict:
+    """The properties a mapping may hold, those of its anyOf / oneOf / allOf branches included."""
+    node = deref(root, node)
+    props = dict(node.get("properties") or {})
+    for branch in (*node.get("anyOf", ()), *node.get("oneOf", ()), *node.get("allOf", ())):
+        for k, v in properties(root, branch).items():
+            props.setdefault(k, v)
+    return props
+
+
+def schema_at(root: dict, path: tuple):
+    """The schema of the value at `path` (None where the schema says nothing)."""
+    node = root
+    for part in path:
+        node = deref(root, node)
+        if isinstance(part, int):
+            items = node.get("items")
+            if not isinstance(items, dict):
+                items = next((b.get("items") for b in (*node.get("anyOf", ()), *node.get("oneOf", ()))
+                              if isinstance(b, dict) and isinstance(b.get("items"), dict)), None)
+            node = items
+        else:
+            props = properties(root, node)
+            extra = node.get("additionalProperties")
+            node = props.get(part) if part in props else (extra if isinstance(extra, dict) else None)
+        if node is None:
+            return None
+    return node
+
+
+def description(root: dict, node) -> str:
+    if not isinstance(node, dict):
+        return ""
+    return str(node.get("description") or deref(root, node).get("description") or "")
+
+
+def _read(path: Path) -> str | None:
+    try:
+        if not path.is_file() or path.stat().st_size > 8 * 1024 * 1024:
+            return None
+        return path.read_text(encoding="utf-8", errors="replace")
+    except (OSError, ValueError):
+        return None
+
+
+def top_value(text: str, key: str) -> Entry | None:
+    e = entry_at(outline(text), (key,))
+    return e if e is not None and e.value else None
+
+
+def rig_path(text: str, path: Path) -> Path | None:
+    """The rig file a sequence names (`rig:`, relative to the sequence); the document itself for a rig file."""
+    if is_rig_text(text):
+        return Path(path)
+    e = top_value(text, "rig")
+    return Path(path).parent / _unquote(e.value) if e is not None else None
+
+
+@lru_cache(maxsize=8)
+def _rig_model(rig_text: str, name: str):
+    from ..load.yamlsrc import LoadError, load_text
+    from ..resolve.rig import build_rig
+
+    try:
+        doc = load_text(rig_text, name)
+    except LoadError:
+        return None
+    if not isinstance(doc.data, dict):
+        return None
+    try:
+        rig, _ = build_rig(doc)
+    except (ValueError, TypeError, KeyError, AttributeError, ArithmeticError):  # a broken rig: names only
+        rig = None
+    return rig
+
+
+@dataclass(frozen=True)
+class RigInfo:
+    """A rig file: its path and text, the model seqgen builds from it (None if it cannot), and where each of
+    its names is written: section ("channels", "beams", "coils", "drives", "imaging", "devices") -> name ->
+    Place, with the section of every beam's role."""
+
+    path: Path
+    text: str
+    rig: object
+    names: dict
+    roles: dict
+
+
+@lru_cache(maxsize=8)
+def _rig_info(rig_text: str, file: str) -> RigInfo:
+    names: dict = {}
+    roles = {}
+    for e in outline(rig_text):
+        if len(e.path) == 2 and e.kind == "key" and isinstance(e.path[1], str):
+            names.setdefault(e.path[0], {})[e.path[1]] = Place(Path(file), e.line, e.col, e.col + len(e.path[1]))
+            if e.path[0] == "beams" and e.value:
+                m = re.search(r"\brole\s*:\s*([A-Za-z_]+)", e.value)
+                if m:
+                    roles[e.path[1]] = m.group(1)
+        elif len(e.path) == 3 and e.path[0] == "beams" and e.path[2] == "role" and e.value:
+            roles[e.path[1]] = _unquote(e.value)
+    return RigInfo(Path(file), rig_text, _rig_model(rig_text, file), names, roles)
+
+
+def rig_info(text: str, path: Path) -> RigInfo | None:
+    """The rig of a sequence (or the rig file being edited), cached by its content; None if there is none."""
+    rp = rig_path(text, path)
+    if rp is None:
+        return None
+    rig_text = text if is_rig_text(text) else _read(rp)
+    return _rig_info(rig_text, str(rp)) if rig_text is not None else None
+
+
+@dataclass(frozen=True)
+class Names:
+    """The blocks and params a sequence sees, its own and those of the files it uses: name -> Place, and each
+    param's value as written."""
+
+    blocks: dict
+    params: dict
+    written: dict
+    files: tuple  # (Place of the `use:` / `rig:` path in the document, the file's path)
+
+
+@lru_cache(maxsize=32)
+def _file_names(text: str, file: str) -> tuple:
+    blocks, params, written = {}, {}, {}
+    for e in outline(text):
+        p = e.path
+        if len(p) == 3 and p[0] == "blocks" and p[2] == "name" and e.value:
+            name = _unquote(e.value)
+            blocks.setdefault(name, Place(Path(file), e.line, e.value_col, e.value_col + len(name)))
+        elif len(p) == 2 and p[0] == "params" and isinstance(p[1], str):
+            params.setdefault(p[1], Place(Path(file), e.line, e.col, e.col + len(p[1])))
+            written.setdefault(p[1], e.value or "")
+        elif len(p) == 3 and p[0] == "params" and p[2] == "value" and e.value:
+            written[p[1]] = e.value
+    return blocks, params, written
+
+
+def _use_files(text: str, path: Path) -> tuple:
+    out = []
+    for e in outline(text):
+        p = e.path
+        if e.value and ((len(p) == 3 and p[0] == "use" and p[2] == "file") or p == ("rig",)):
+            value = _unquote(e.value)
+            start = e.value_col + (1 if e.value[:1] in "'\"" else 0)
+            out.append((Place(Path(path), e.line, start, start + len(value)), Path(path).parent / value))
+    return tuple(out)
+
+
+def names(text: str, path: Path) -> Names:
+    blocks, params, written = (dict(d) for d in _file_names(text, str(path)))
+    files = _use_files(text, path)
+    for place, file in files:
+        if place.line >= 0 and file.suffix in (".yaml", ".yml") and not is_rig_text(text):
+            used = _read(file) if file != rig_path(text, path) else None
+            if used is None:
+                continue
+            b, p, w = _file_names(used, str(file))
+            for k, v in b.items():
+                blocks.setdefault(k, v)
+            for k, v in p.items():
+                params.setdefault(k, v)
+                written.setdefault(k, w.get(k, ""))
+    return Names(blocks, params, written, files)
