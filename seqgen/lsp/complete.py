@@ -11,8 +11,8 @@ import re
 from pathlib import Path
 
 from .context import (
-    Cursor, RigInfo, cursor_at, deref, description, is_rig_text, names, outline, properties, rig_info, schema_at,
-    schema_for,
+    BLOCK_FIELDS, NAME_FIELDS, Cursor, RigInfo, cursor_at, deref, description, is_rig_text, names, outline, owner_of,
+    properties, rig_info, schema_at, schema_for,
 )
 from .features import Completion
 
@@ -31,22 +31,6 @@ FUNCTIONS = (
     ("max", "function", "largest of its arguments (one dimension)"),
 )
 
-# (the mapping's key or action, the key) -> the rig names it takes, as the lowerings of seqgen.resolve.actions
-# and the rig builder read them; "beams:trap" is the beams of that role
-NAME_FIELDS = {
-    ("set", "channel"): "outputs", ("ramp", "channel"): "outputs", ("pulse", "channel"): "outputs",
-    ("sweep", "channel"): "synth-freq", ("trigger", "channel"): "digital", ("modulation", "channel"): "synth",
-    ("trap_ramp", "beam"): "beams:trap", ("release", "beams"): "beams:trap", ("release", "coils"): "coils",
-    ("push", "coil"): "coils", ("push", "beam"): "beams", ("barrier", "beam"): "beams:barrier",
-    ("clock_pulse", "drive"): "drives", ("separate", "coil"): "coils", ("image", "setup"): "imaging",
-    ("end", "leave_on"): "outputs", ("magnetic_hold", "currents"): "coils",
-    # rig files: (section, key)
-    ("beams", "power_channel"): "channels", ("coils", "current_channel"): "channels",
-    ("drives", "channel"): "synth", ("imaging", "camera_channel"): "digital", ("imaging", "probe_beam"): "beams",
-    ("channels", "device"): "devices",
-}
-BLOCK_FIELDS = {("blocks", "after"), ("blocks", "with"), ("accept", "block"), ("use", "blocks")}
-
 # keys whose dimension the schema's words do not give, as the lowerings read them (seqgen.resolve.actions)
 KEY_UNITS = {"at": "s", "duration": "s", "over": "s", "tau": "s", "exposure": "s", "width": "s", "ramp_on": "s",
              "detuning": "Hz", "frequency": "Hz", "after": "s", "with": "s", "gradient": "T/m", "power": "W", "temperature": "K"}
@@ -58,16 +42,6 @@ _WRITTEN_UNIT = re.compile(r"(?<![\w.])(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?\s*([
 
 def _fits(label: str, prefix: str) -> bool:
     return label.lower().startswith(prefix.lower())
-
-
-def _owner(full: tuple, rig_file: bool) -> tuple:
-    """(the mapping's key or action, the key) of a value path, indexes skipped."""
-    keys = [p for p in full if isinstance(p, str)]
-    if not keys:
-        return "", ""
-    if rig_file:
-        return keys[0], keys[-1]
-    return (keys[-2] if len(keys) > 1 else ""), keys[-1]
 
 
 def rig_names(info: RigInfo | None, what: str) -> dict:
@@ -125,7 +99,7 @@ def _dims(unit: str):
 def expected_unit(cur: Cursor, text: str, path: Path, node, root) -> str | None:
     """A unit of the dimension expected at the cursor's value: from the output a channel key names, from the
     schema (an x-unit, or the example in the description), or as the lowerings read the key."""
-    owner, field = _owner(cur.full_path, is_rig_text(text))
+    owner, field = owner_of(cur.full_path, is_rig_text(text))
     info = rig_info(text, path) if not is_rig_text(text) else None
     rig = info.rig if info is not None else None
     if rig is not None:
@@ -240,7 +214,7 @@ def _values(cur: Cursor, text: str, path: Path, root) -> list:
     full = cur.full_path
     node = schema_at(root, full)
     rig_file = is_rig_text(text)
-    owner, field = _owner(full, rig_file)
+    owner, field = owner_of(full, rig_file)
     typed = cur.value_prefix
     section = full[0] if full else ""
     what = NAME_FIELDS.get((owner, field))

@@ -508,3 +508,80 @@ def names(text: str, path: Path) -> Names:
                 params.setdefault(k, v)
                 written.setdefault(k, w.get(k, ""))
     return Names(blocks, params, written, files)
+
+
+# ----------------------------------------------------------------------------- what a name at the cursor is
+
+# (the mapping's key or action, the key) -> the rig names it takes, as the lowerings of seqgen.resolve.actions
+# and the rig builder read them; "beams:trap" is the beams of that role
+NAME_FIELDS = {
+    ("set", "channel"): "outputs", ("ramp", "channel"): "outputs", ("pulse", "channel"): "outputs",
+    ("sweep", "channel"): "synth-freq", ("trigger", "channel"): "digital", ("modulation", "channel"): "synth",
+    ("trap_ramp", "beam"): "beams:trap", ("release", "beams"): "beams:trap", ("release", "coils"): "coils",
+    ("push", "coil"): "coils", ("push", "beam"): "beams", ("barrier", "beam"): "beams:barrier",
+    ("clock_pulse", "drive"): "drives", ("separate", "coil"): "coils", ("image", "setup"): "imaging",
+    ("end", "leave_on"): "outputs", ("magnetic_hold", "currents"): "coils",
+    # rig files: (section, key)
+    ("beams", "power_channel"): "channels", ("coils", "current_channel"): "channels",
+    ("drives", "channel"): "synth", ("imaging", "camera_channel"): "digital", ("imaging", "probe_beam"): "beams",
+    ("channels", "device"): "devices",
+}
+BLOCK_FIELDS = {("blocks", "after"), ("blocks", "with"), ("accept", "block"), ("use", "blocks")}
+
+
+def owner_of(full: tuple, rig_file: bool) -> tuple:
+    """(the mapping's key or action, the key) of a value path, indexes skipped."""
+    keys = [p for p in full if isinstance(p, str)]
+    if not keys:
+        return "", ""
+    if rig_file:
+        return keys[0], keys[-1]
+    return (keys[-2] if len(keys) > 1 else ""), keys[-1]
+
+
+
+def subject(cur: Cursor, text: str, path: Path) -> tuple:
+    """What the name under the cursor is: ("code", slug), ("block", name), ("param", name), ("rig", section,
+    name), ("file", Path), ("key", key path) or ("", "")."""
+    from ..codes import ALL
+
+    if cur.token in ALL:
+        return ("code", cur.token)
+    world = names(text, path)
+    for place, file in world.files:
+        if place.line == cur.line and place.col <= cur.word_start and cur.word_end <= place.end:
+            return ("file", file)
+    rig_file = is_rig_text(text)
+    word = cur.word
+    if cur.key is None:  # on a key
+        full = cur.path + (word,)
+        if rig_file and len(full) == 2 and full[0] in ("channels", "beams", "coils", "drives", "imaging", "devices"):
+            return ("rig", full[0], word)
+        if not rig_file and full[:1] == ("params",) and len(full) == 2:
+            return ("param", word)
+        if not rig_file and full[-3:-1] == ("magnetic_hold", "currents"):
+            return ("rig", "coils", word)
+        return ("key", full)
+    full = cur.full_path
+    owner, field = owner_of(full, rig_file)
+    section = full[0] if full else ""
+    if not rig_file and (((section, field) in BLOCK_FIELDS) or full[:1] == ("blocks",) and field == "name") \
+            and word in world.blocks:
+        return ("block", word)
+    what = NAME_FIELDS.get((owner, field))
+    info = rig_info(text, path)
+    if what and info is not None:
+        sec = {"outputs": "channels", "synth-freq": "channels", "digital": "channels", "synth": "channels"}.get(
+            what.partition(":")[0], what.partition(":")[0])
+        name = cur.token.split(".")[0] if sec == "channels" else word
+        if name in info.names.get(sec, {}):
+            return ("rig", sec, cur.token if sec == "channels" and "." in cur.token else name)
+    if not rig_file and word in world.params:
+        return ("param", word)
+    if not rig_file and word in world.blocks:
+        return ("block", word)
+    if info is not None:
+        for sec in ("channels", "beams", "coils", "drives", "imaging", "devices"):
+            if word in info.names.get(sec, {}):
+                return ("rig", sec, word)
+    return ("", "")
