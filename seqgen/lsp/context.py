@@ -403,18 +403,17 @@ def rig_path(text: str, path: Path) -> Path | None:
 def _rig_model(rig_text: str, name: str):
     from ..load.yamlsrc import LoadError, load_text
     from ..resolve.rig import build_rig
+    from ..resolve.sources import RIG_SCHEMA
+    from ..validate.schema import validate_document
 
     try:
         doc = load_text(rig_text, name)
     except LoadError:
         return None
-    if not isinstance(doc.data, dict):
-        return None
-    try:
-        rig, _ = build_rig(doc)
-    except (ValueError, TypeError, KeyError, AttributeError, ArithmeticError):  # a broken rig: names only
-        rig = None
-    return rig
+    if not isinstance(doc.data, dict) or any(f.severity == "error" for f in validate_document(doc, RIG_SCHEMA)):
+        return None  # the rig builder reads only rigs its schema passes (as seqgen.resolve.sources does)
+    rig, findings = build_rig(doc)
+    return None if any(f.severity == "error" for f in findings) else rig
 
 
 @dataclass(frozen=True)
