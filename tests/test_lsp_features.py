@@ -52,11 +52,15 @@ def seconds(words: str) -> float:
     return UREG.Quantity(words).to("s").magnitude
 
 
-@pytest.fixture(scope="module")
-def shown():
-    out = subprocess.run([sys.executable, "-m", "seqgen", "show", str(BARRIER), "--physics", "--json"],
+def show_json(path: Path) -> dict:
+    out = subprocess.run([sys.executable, "-m", "seqgen", "show", str(path), "--physics", "--json"],
                          capture_output=True, text=True, cwd=ROOT, check=False)
     return json.loads(out.stdout)
+
+
+@pytest.fixture(scope="module")
+def shown():
+    return show_json(BARRIER)
 
 
 # ----------------------------------------------------------------------------- completion
@@ -171,12 +175,13 @@ def _times(md: str) -> tuple:
     return seconds(start), seconds(end)
 
 
-@pytest.mark.parametrize("block", ["kick", "scatter", "image", "load_guide"])
-def test_hover_block_shows_the_times_show_gives(block, shown):
-    text = BARRIER.read_text(encoding="utf-8")
-    rows = [r for r in shown["timeline"] if r["block"] == block]
+@pytest.mark.parametrize("demo, block", [(BARRIER, "kick"), (BARRIER, "scatter"), (BARRIER, "image"),
+                                         (BARRIER, "load_guide"), (THERMO, "release"), (THERMO, "image")])
+def test_hover_block_shows_the_times_show_gives(demo, block, shown):
+    text = demo.read_text(encoding="utf-8")
+    rows = [r for r in (shown if demo == BARRIER else show_json(demo))["timeline"] if r["block"] == block]
     line, ch = where(text, f"name: {block}", len("name: ") + 1)
-    h = hover(text, BARRIER, line, ch)
+    h = hover(text, demo, line, ch)
     assert isinstance(h, HoverText) and h.span == Span(line, len(f"  - name: "), line, len(f"  - name: {block}"))
     start, end = _times(h.markdown)
     # in these demos a block's first write starts it, and its last write, or the holds written after it, end it
@@ -313,3 +318,28 @@ def test_broken_documents_never_raise(text):
             h = hover(text, path, line, ch)
             assert h is None or isinstance(h, HoverText)
             assert isinstance(definition(text, path, line, ch), tuple)
+
+
+def test_hover_in_the_rig_file_and_on_a_used_files_param():
+    rig = RIG.read_text(encoding="utf-8")
+    line, ch = where(rig, "  kick_current:", 4)
+    md = hover(rig, RIG, line, ch).markdown
+    spec = RIG_DATA["channels"]["kick_current"]
+    assert f"max {spec['hard_limit']['max']}" in md and "kick_current" in md
+    text = BARRIER.read_text(encoding="utf-8")
+    line, ch = where(text, "params: {evap_end: 0.30 W}", len("params: {ev"))
+    md = hover(text, BARRIER, line, ch).markdown
+    assert "param `evap_end`" in md and "`0.30 W`" in md  # the value the sequence gives it
+    assert "block `evaporate` (na23_prep.yaml)" in md  # where the fragment uses it
+
+
+def test_complete_coil_names_as_magnetic_hold_currents_and_outputs_to_leave_on():
+    text = THERMO.read_text(encoding="utf-8").replace(
+        "      - release: {beams: [cross_a, cross_b]}\n",
+        "      - magnetic_hold:\n          duration: 10 ms\n          currents:\n            \n", 1)
+    line, _ = where(text, "          currents:")
+    got = completions(text, THERMO, line + 1, 12)
+    assert {c.label for c in got} == set(RIG_DATA["coils"]) and all(c.kind == "rig-name" for c in got)
+    text = THERMO.read_text(encoding="utf-8") + "end:\n  leave_on: [pro]\n"
+    assert set(labels(text, THERMO, "leave_on: [pro", len("leave_on: [pro"))) >= \
+        {c for c in RIG_DATA["channels"] if c.startswith("pro")}

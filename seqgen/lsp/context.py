@@ -54,12 +54,8 @@ class Cursor:
     siblings: tuple = ()
 
     @property
-    def prefix(self) -> str:
-        """The part of the word before the cursor."""
-        return self.value_prefix
-
-    @property
     def value_prefix(self) -> str:
+        """The name being typed: the letters, digits and _ of the value just before the cursor."""
         m = re.search(r"[A-Za-z0-9_]*$", self.value)
         return m.group(0) if m else ""
 
@@ -556,7 +552,8 @@ def subject(cur: Cursor, text: str, path: Path) -> tuple:
         full = cur.path + (word,)
         if rig_file and len(full) == 2 and full[0] in ("channels", "beams", "coils", "drives", "imaging", "devices"):
             return ("rig", full[0], word)
-        if not rig_file and full[:1] == ("params",) and len(full) == 2:
+        if not rig_file and ((full[:1] == ("params",) and len(full) == 2) or
+                             (full[:1] == ("use",) and len(full) == 4 and full[2] == "params")):
             return ("param", word)
         if not rig_file and full[-3:-1] == ("magnetic_hold", "currents"):
             return ("rig", "coils", word)

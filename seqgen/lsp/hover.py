@@ -116,8 +116,9 @@ def _users(name: str, text: str, path: Path) -> list:
                 continue  # a use: entry's params: sets the param rather than using it
             else:
                 who = f"`{e.path[0]}`"
+            who += "" if Path(file) == Path(path) else f" ({Path(file).name})"
             if who not in out:
-                out.append(who + ("" if Path(file) == Path(path) else f" ({Path(file).name})"))
+                out.append(who)
     return out
 
 
@@ -130,6 +131,12 @@ def _param(name: str, text: str, path: Path, analysis) -> str:
     place = world.params.get(name)
     lines = [f"**param `{name}`**" + (f" ({place.file.name}, line {place.line + 1})" if place else ""),
              f"\n- as written: `{(m.group(1) if m else written).strip()}`"]
+    for e in outline(text):  # a `use:` entry of this file that gives the used file's param a value
+        if e.path[:1] == ("use",) and e.path[2:] in (("params",), ("params", name)) and e.value:
+            given = re.search(rf"(?<![\w.]){re.escape(name)}\s*:\s*([^,}}]+)", e.value) if len(e.path) == 3 else None
+            value = given.group(1) if given else (e.value if len(e.path) == 4 else None)
+            if value:
+                lines.append(f"- given by `use:` (line {e.line + 1}): `{value.strip()}`")
     shot, _ = _shot(text, path, analysis)
     p = next((p for p in shot.params if p.name == name), None) if shot is not None else None
     if p is not None:
