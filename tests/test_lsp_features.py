@@ -182,7 +182,7 @@ def test_hover_block_shows_the_times_show_gives(demo, block, shown):
     rows = [r for r in (shown if demo == BARRIER else show_json(demo))["timeline"] if r["block"] == block]
     line, ch = where(text, f"name: {block}", len("name: ") + 1)
     h = hover(text, demo, line, ch)
-    assert isinstance(h, HoverText) and h.span == Span(line, len(f"  - name: "), line, len(f"  - name: {block}"))
+    assert isinstance(h, HoverText) and h.span == Span(line, len("  - name: "), line, len(f"  - name: {block}"))
     start, end = _times(h.markdown)
     # in these demos a block's first write starts it, and its last write, or the holds written after it, end it
     actions = next(b for b in yaml.safe_load(text)["blocks"] if b["name"] == block)["actions"]
