@@ -206,7 +206,7 @@ def test_hover_block_in_after_and_physics_from_the_analysis(shown):
     line, ch = where(text, "name: scatter", len("name: s"))
     md = hover(text, BARRIER, line, ch, analysis=res).markdown
     items = [i for r in shown["physics"] if r["block"] == "scatter" for i in r["items"]]
-    assert items and all(i in md for i in items)
+    assert items and all(i in md for i in items) and "before this edit" not in md
     # a stale analysis (the text edited since) still shows its predictions, marked as such
     edited = text.replace("sheet_time: 20 ms", "sheet_time: 21 ms")
     md = hover(edited, BARRIER, line, ch, analysis=res).markdown
