@@ -1,0 +1,1 @@
+"""Editor support: the language server and the pure editor features it serves."""
