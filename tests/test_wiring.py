@@ -2,7 +2,8 @@
 the reference player running a wired device off its parent's edges.
 
 Expected times come from the sequence and rig texts (sequences/good/wired_devices.yaml: writes at 1, 2 and
-3 ms; rig_wired.yaml: a 2 us trigger latency, 1 us pulses), not from seqgen."""
+3 ms; rig_wired.yaml: a 2 us trigger latency, 1 us pulses, the master's 200 ns minimum interval, the analog
+card's 1 MHz timebase) and README's rule for the start edge, not from seqgen."""
 
 import hashlib
 import json
@@ -18,6 +19,7 @@ from .conftest import ROOT, SEQUENCES
 
 WIRED = SEQUENCES / "good" / "wired_devices.yaml"
 DEMO = SEQUENCES / "na23_thermometry.yaml"
+UNWIRED = SEQUENCES / "good" / "rb87_crossed_trap_ramp.yaml"  # its rig states no start/advance/clock
 
 
 @pytest.fixture(scope="module")
@@ -39,10 +41,11 @@ def _rises(rows, column):
     return [float(rows[i]["time_s"]) for i in range(1, len(rows)) if vals[i] and not vals[i - 1]]
 
 
-def test_start_trigger_comes_one_latency_ahead(wired_build):
+def test_start_trigger_comes_once_at_a_fixed_time_near_the_start(wired_build):
     rows = _csv(wired_build / "dio.csv")
-    # the analog card's first write is at 1 ms, its trigger latency 2 us
-    assert _rises(rows, "ao_start") == pytest.approx([1e-3 - 2e-6], abs=1e-12)
+    # README: the pulse at the master's first row after row 0 (200 ns) or later, so that pulse + 2 us latency
+    # falls on a 1 us tick of the analog card: 2.2 us rounds up to a start at 3 us, the pulse at 1 us
+    assert _rises(rows, "ao_start") == pytest.approx([1e-6], abs=1e-12)
     # the pulse is the line's min_pulse, 1 us
     up = next(i for i, r in enumerate(rows) if r["ao_start"] == "1")
     assert float(rows[up + 1]["time_s"]) - float(rows[up]["time_s"]) == pytest.approx(1e-6, abs=1e-12)
@@ -61,13 +64,14 @@ def test_manifest_records_the_wiring(wired_build):
     jsonschema.Draft202012Validator(schema).validate(manifest)
     devs = manifest["devices"]
     assert "wiring" not in devs["dio"]  # the free-running master
-    assert devs["ao"]["wiring"] == {"start_on": "ao_start", "start_latency_s": pytest.approx(2e-6), "start_s": 1e-3}
+    assert devs["ao"]["wiring"] == {"start_on": "ao_start", "start_latency_s": pytest.approx(2e-6),
+                                    "start_s": pytest.approx(3e-6, abs=1e-15)}
     assert devs["synth"]["wiring"]["step_on"] == "synth_step"
 
 
-def test_unwired_demo_has_no_wiring(tmp_path):
+def test_unwired_rig_has_no_wiring(tmp_path):
     out = tmp_path / "b"
-    assert main(["build", str(DEMO), "-o", str(out), "--force"]) in (0, 1)
+    assert main(["build", str(UNWIRED), "-o", str(out), "--force"]) in (0, 1)
     manifest = json.loads((out / "manifest.json").read_text())
     assert all("wiring" not in d for d in manifest["devices"].values())
 
@@ -79,20 +83,20 @@ def test_player_plays_wired_rows_at_their_edges(wired_build):
 
 
 def test_player_follows_a_moved_start_edge(wired_build, tmp_path):
-    # a loader that moved the trigger edge 1 us earlier: the analog card's rows follow the edge, not their ticks
+    # a loader that moved the trigger edge 0.5 us earlier: the analog card's rows follow the edge, not their ticks
     import shutil
 
     b = tmp_path / "moved"
     shutil.copytree(wired_build, b)
     manifest = json.loads((b / "manifest.json").read_text())
-    text = (b / "dio.csv").read_text().replace("\n9980,0.000998,1,", "\n9970,0.000997,1,")
+    text = (b / "dio.csv").read_text().replace("\n10,1e-06,1,", "\n5,5e-07,1,", 1)
     (b / "dio.csv").write_text(text)
     dio = manifest["devices"]["dio"]["files"]
     dio.pop("npz")
     dio["csv"]["sha256"] = hashlib.sha256(text.encode()).hexdigest()
     (b / "manifest.json").write_text(json.dumps(manifest))
     w = play(b, np.array([0.0]))
-    assert w["coil"].appear_s[1] == pytest.approx(1e-3 - 1e-6, abs=1e-12)
+    assert w["coil"].appear_s[1] == pytest.approx(1e-3 - 0.5e-6, abs=1e-12)
     assert w["coil"].appear_s[0] == 0.0  # the armed value
 
 
