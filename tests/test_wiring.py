@@ -122,3 +122,73 @@ def test_show_and_plot_mark_the_generated_edges(tmp_path, capsys):
     assert main(["plot", str(WIRED), "-o", str(svg)]) == 0
     text = svg.read_text()
     assert "ao_start (wiring)" in text and "synth_step (wiring)" in text
+
+
+def _copy_wired(tmp_path, rig_edits=()):
+    """The good wired sequence and its rig copied into tmp_path, the rig edited (old, new) pairs."""
+    import shutil
+
+    shutil.copy(WIRED, tmp_path / WIRED.name)
+    rig = (WIRED.parent / "rig_wired.yaml").read_text()
+    for old, new in rig_edits:
+        assert rig.count(old) == 1, old
+        rig = rig.replace(old, new)
+    (tmp_path / "rig_wired.yaml").write_text(rig)
+    return tmp_path / WIRED.name
+
+
+def test_generated_pulses_last_the_childs_min_trigger_pulse(tmp_path, monkeypatch):
+    # the synthesizer takes pulses of at least 3 us (the edit); the line's own pulse is 1 us (the default): each
+    # step pulse lasts 3 us, and the manifest carries the limits the rig states
+    monkeypatch.chdir(tmp_path)
+    seq = _copy_wired(tmp_path, [("advance: {per_edge: synth_step}",
+                                  "advance: {per_edge: synth_step}\n    min_trigger_pulse: 3 us\n"
+                                  "    min_trigger_period: 100 us\n    trigger_jitter: 50 ns")])
+    out = tmp_path / "b"
+    assert main(["build", str(seq), "-o", str(out), "--force", "--tables", "npz,csv"]) == 0
+    rows = _csv(out / "dio.csv")
+    vals = [int(r["synth_step"]) for r in rows]
+    times = [float(r["time_s"]) for r in rows]
+    widths = [times[j] - times[i] for i in range(1, len(rows)) if vals[i] and not vals[i - 1]
+              for j in [next(k for k in range(i + 1, len(rows)) if not vals[k])]]
+    assert widths == pytest.approx([3e-6] * 3, abs=1e-12)
+    wiring = json.loads((out / "manifest.json").read_text())["devices"]["synth"]["wiring"]
+    assert wiring["min_trigger_pulse_s"] == pytest.approx(3e-6) and wiring["trigger_jitter_s"] == pytest.approx(50e-9)
+    assert wiring["min_trigger_period_s"] == pytest.approx(100e-6)
+
+
+@pytest.mark.parametrize("text", ["min_trigger_period: 5", "min_trigger_pulse: -1 us", "trigger_jitter: 3 V",
+                                  "min_trigger_period: [1 us]"])
+def test_bad_trigger_limits_are_findings_at_their_line(text, tmp_path, monkeypatch, capsys):
+    # `seqgen check` of the rig file: an error at the key's line (8), no traceback
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "rig.yaml").write_text(
+        "seqgen_rig: 1\nname: t\ndevices:\n  dio: {timebase: 10 MHz}\n  synth:\n    timebase: 1 MHz\n"
+        f"    advance: {{per_edge: step}}\n    {text}\nchannels:\n  step: {{device: dio, kind: digital}}\n")
+    assert main(["check", "rig.yaml", "--json"]) == 1
+    doc = json.loads(capsys.readouterr().out)
+    errors = [f for f in doc["findings"] if f["severity"] == "error"]
+    assert errors and all(f["line"] == 8 for f in errors), errors
+
+
+def test_diff_of_two_builds_names_wiring_and_code_changes(tmp_path, monkeypatch):
+    # the same sequence built on its rig and on one with a 3 us trigger latency and two's complement codes for the
+    # coil (the edits): the builds' manifests differ in the analog card's wiring and the coil's code convention
+    from seqgen.diff import diff_paths
+
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "a").mkdir()
+    (tmp_path / "b").mkdir()
+    old = _copy_wired(tmp_path / "a")
+    new = _copy_wired(tmp_path / "b", [("latency: 2 us}", "latency: 3 us}"),
+                                       ("range: [0 V, 10 V], bits: 16}", "range: [0 V, 10 V], bits: 16, code: twos_complement}")])
+    for seq, out in ((old, tmp_path / "oa"), (new, tmp_path / "ob")):
+        assert main(["build", str(seq), "-o", str(out), "--force", "--tables", "npz"]) == 0
+    rep = diff_paths(str(tmp_path / "oa"), str(tmp_path / "ob"))
+    (lat,) = rep.find("rig", "wiring", "ao.start_latency_s")
+    assert (float(lat.old), float(lat.new)) == (pytest.approx(2e-6), pytest.approx(3e-6))
+    (code,) = rep.find("rig", "handoff", "coil.code.convention")
+    assert (code.old, code.new) == ("straight_binary", "twos_complement")  # README: a unipolar range's default
+    # and from the sequence files themselves, through the resolved rigs
+    rep = diff_paths(str(old), str(new))
+    assert rep.find("rig", "wiring", "ao.start_latency_s") and rep.find("rig", "handoff", "coil.code_convention")
