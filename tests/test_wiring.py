@@ -192,3 +192,17 @@ def test_diff_of_two_builds_names_wiring_and_code_changes(tmp_path, monkeypatch)
     # and from the sequence files themselves, through the resolved rigs
     rep = diff_paths(str(old), str(new))
     assert rep.find("rig", "wiring", "ao.start_latency_s") and rep.find("rig", "handoff", "coil.code_convention")
+
+
+def test_demo_rig_is_wired_and_the_demo_builds_clean(tmp_path):
+    # the demo rig file: dio_main free-running; ao_main started on ao_start, 500 ns trigger latency; synth_rf
+    # stepped on rf_step. README: the start pulse at the master's first row after row 0 (200 ns) or later, so
+    # that pulse + 500 ns falls on a 1 us tick of ao_main: the card starts at 1 us, the pulse at 500 ns
+    out = tmp_path / "b"
+    assert main(["build", str(DEMO), "-o", str(out), "--force", "--tables", "npz,csv"]) == 0
+    devs = json.loads((out / "manifest.json").read_text())["devices"]
+    assert "wiring" not in devs["dio_main"]
+    assert devs["ao_main"]["wiring"]["start_on"] == "ao_start"
+    assert devs["ao_main"]["wiring"]["start_s"] == pytest.approx(1e-6, abs=1e-15)
+    assert devs["synth_rf"]["wiring"]["step_on"] == "rf_step"
+    assert _rises(_csv(out / "dio_main.csv"), "ao_start") == pytest.approx([0.5e-6], abs=1e-12)

@@ -80,7 +80,7 @@ def before_start(shot, compiled):
             first = early[0]
             seg = _write_at(shot, d, first)
             yield make(WIRING_BEFORE_START, f"device '{d.name}' starts at {fmt_when(start)} (its start edge on '{line}' "
-                       f"at {fmt_when(start - d.start_latency_s)}, the master's first row after t = 0, plus "
+                       f"at {fmt_when(start - d.start_latency_s)}, fixed near the start of the shot, plus "
                        f"{fmt_when(d.start_latency_s)} trigger latency): its row at {fmt_when(first)} comes before",
                        seg.pos if seg else d.wiring_pos, block=seg.block if seg else None, time_s=first,
                        hint=_at_fix(shot, seg, first, start, table.tick_s, f"at or after the device's start at "
