@@ -39,9 +39,19 @@ class Device:
     start_on: str | None = None  # digital output whose rising edge starts the device
     start_latency_s: float = 0.0  # from that edge to the device's start
     step_on: str | None = None  # digital output whose rising edges step the device one table row each
+    step_latency_s: float = 0.0  # from a step edge to the new row's output
     clock_on: str | None = None  # digital output that is the device's external sample clock (one edge per row)
     clock_max_hz: float | None = None  # the fastest external clock the device takes
     wiring_pos: SourcePos | None = None  # the device's start/advance/clock key, for findings
+    # what the device's trigger input takes (the rig's min_trigger_period / min_trigger_pulse / trigger_jitter)
+    min_trigger_period_s: float = 0.0  # shortest time from one accepted rising edge to the next
+    min_trigger_pulse_s: float = 0.0  # shortest high (and low) time of a pulse it sees
+    trigger_jitter_s: float = 0.0  # spread of the time from an edge to its response
+    trigger_pos: tuple = ()  # (rig key, SourcePos) of each of those three the rig states, for findings
+
+    def trigger_key_pos(self, key: str) -> SourcePos | None:
+        """Where the rig states `key` (e.g. "min_trigger_period") for this device, else None."""
+        return next((p for k, p in self.trigger_pos if k == key), None)
 
     @property
     def edge_line(self) -> str | None:

@@ -43,6 +43,14 @@ def _rig_yaml():
     return yaml.safe_load(RIG.read_text(encoding="utf-8"))
 
 
+def _wiring_lines(rig) -> set:
+    """The lines the rig file's wiring names (start: {on}, advance: {per_edge}, clock: {line}); PyYAML reads the
+    key `on` as YAML 1.1's true."""
+    keys = (("start", "on"), ("advance", "per_edge"), ("clock", "line"))
+    return {d[k].get(sub, d[k].get(True)) for d in rig["devices"].values() for k, sub in keys
+            if isinstance(d.get(k), dict)}
+
+
 def _write(tmp_path: Path, name: str, text: str) -> Path:
     if not (tmp_path / "rig.yaml").exists():
         shutil.copy(RIG, tmp_path / "rig.yaml")
@@ -121,7 +129,8 @@ def test_one_lane_per_output_grouped_by_device(demo, demo_fig):
             assert name in lanes
     # each lane's visible label names its output
     for name, ax in lanes.items():
-        assert any(t.get_text().split(" [")[0] == name for t in ax.texts), (name, _texts(ax))
+        assert any(t.get_text().split(" [")[0].removesuffix(" (wiring)") == name for t in ax.texts), \
+                (name, _texts(ax))
     # lanes are grouped under their device's header, in the rig file's device order
     order = [ax.get_label() for ax in demo_fig.axes if ax.get_label().startswith(("device:", "lane:"))]
     headers = [x[7:] for x in order if x.startswith("device:") and x != "device:physics"]
@@ -582,7 +591,8 @@ def test_outputs_the_sequence_never_writes_are_named_not_drawn(tmp_path, capsys)
     every = [f"{c}.{part}" for c, spec in rig["channels"].items() if spec["kind"] == "synth"
              for part in ("freq", "amp") + (("phase",) if "phase" in spec else ())]
     every += [c for c, spec in rig["channels"].items() if spec["kind"] != "synth"]
-    written = {"guide_power", "probe_shutter", "kick_current"}  # the only channels SMALL writes
+    # the only channels SMALL writes, and the rig's wiring lines, which carry generated edges
+    written = {"guide_power", "probe_shutter", "kick_current"} | _wiring_lines(rig)
     fig = plot.timeline_figure(res.shot, res.compiled, res.findings, physics=False)
     assert set(_lanes(fig)) == written
     (line,) = _by_label(fig, "not-written")

@@ -22,7 +22,8 @@ __all__ = ["RULES", "STAGES", "Rule", "rule", "run_timeline_checks", "run_table_
 RULES: tuple[Rule, ...] = (
     hardware.output_range, hardware.outside_calibration, hardware.hard_limits, hardware.pulse_width,
     hardware.synth_settling, hardware.slew_rate, hardware.memory_depth, hardware.row_spacing, hardware.finer_than_resolution,
-    wiring.line_written, wiring.before_start, wiring.edges_too_close, wiring.clock_grid,
+    wiring.line_written, wiring.before_start, wiring.edges_too_close, wiring.trigger_pulse,
+    wiring.trigger_period, wiring.clock_grid,
     safety.left_on, safety.coil_current, safety.coil_heating,
     timing.overlapping_writes, timing.sub_tick_timing, timing.ramp_faster_than_device,
     timing.latency_reorders_edges, timing.edges_within_jitter,

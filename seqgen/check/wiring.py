@@ -5,10 +5,15 @@ the rig is resolved (seqgen/resolve/rig.py)."""
 
 from __future__ import annotations
 
-from ..codes import WIRING_BEFORE_START, WIRING_CLOCK, WIRING_EDGES_TOO_CLOSE, WIRING_LINE_WRITTEN
+import math
+
+from ..codes import (
+    WIRING_BEFORE_START, WIRING_CLOCK, WIRING_EDGES_TOO_CLOSE, WIRING_LINE_WRITTEN, WIRING_TRIGGER_PERIOD,
+    WIRING_TRIGGER_PULSE,
+)
 from ..compile.wiring import pulse_width, row_edges
 from ..findings import make
-from ..textfmt import fmt_when, outward
+from ..textfmt import fmt_time, fmt_when, outward
 from .rules import rule
 
 
@@ -44,26 +49,53 @@ def line_written(shot, compiled):
                        f"'{d.name}')", data={"device": d.name, "line": line})
 
 
+def _at_fix(shot, seg, row_s: float, want_s: float, tick_s: float, why: str) -> str:
+    """A fix that moves the write `seg` (whose row is at row_s) so that its row comes at want_s or later: the
+    action's `at:` (from its block's start), the row rounded up to the device's tick."""
+    block = shot.block(seg.block) if seg is not None else None
+    if block is None:
+        return f"move this write at least {fmt_when(outward(want_s - row_s))} later ({why})"
+    new_row = math.ceil(want_s / tick_s - 1e-9) * tick_s
+    at = outward(seg.t0 + (new_row - row_s) - block.start_s)
+    return f"write 'at: {fmt_time(at, 6, unit='us')}' in this action (from the start of block '{block.name}'), {why}"
+
+
 @rule(WIRING_BEFORE_START, stage="tables")
 def before_start(shot, compiled):
     starts = getattr(compiled, "starts", {}) or {}
     for d, line, role in _wired(shot):
         if role == "clock edges":
             continue
-        lat = d.start_latency_s
+        table = next((t for t in compiled.tables if t.device == d.name), None)
+        if table is None:
+            continue
         if role == "start trigger":
-            first = starts.get(d.name)
-        else:
-            table = next((t for t in compiled.tables if t.device == d.name), None)
-            first = int(table.ticks[1]) * table.tick_s if table is not None and len(table.ticks) > 1 else None
+            start = starts.get(d.name)
+            rows = [int(k) * table.tick_s for k in table.ticks[1:-1]]
+            if start is None:
+                continue
+            early = [t for t in rows if t < start - 1e-12]  # row 0 is what it is armed with: it holds until the start
+            if not early:
+                continue
+            first = early[0]
+            seg = _write_at(shot, d, first)
+            yield make(WIRING_BEFORE_START, f"device '{d.name}' starts at {fmt_when(start)} (its start edge on '{line}' "
+                       f"at {fmt_when(start - d.start_latency_s)}, fixed near the start of the shot, plus "
+                       f"{fmt_when(d.start_latency_s)} trigger latency): its row at {fmt_when(first)} comes before",
+                       seg.pos if seg else d.wiring_pos, block=seg.block if seg else None, time_s=first,
+                       hint=_at_fix(shot, seg, first, start, table.tick_s, f"at or after the device's start at "
+                                    f"{fmt_when(start)}"),
+                       data={"device": d.name, "latency_s": d.start_latency_s, "start_s": start, "first_s": first})
+            continue
+        lat = d.step_latency_s
+        first = int(table.ticks[1]) * table.tick_s if len(table.ticks) > 1 else None
         if first is None or first - lat >= -1e-12:
             continue
         seg = _write_at(shot, d, first)
-        late = outward(lat - first)
         yield make(WIRING_BEFORE_START, f"device '{d.name}'s first row at {fmt_when(first)} needs its {role} on '{line}' "
-                   f"{fmt_when(lat)} (the trigger latency) ahead, before t = 0", seg.pos if seg else d.wiring_pos,
+                   f"{fmt_when(lat)} (the step latency) ahead, before t = 0", seg.pos if seg else d.wiring_pos,
                    block=seg.block if seg else None, time_s=first,
-                   hint=f"start the first write of '{d.name}' at least {fmt_when(late)} later",
+                   hint=_at_fix(shot, seg, first, lat, table.tick_s, f"at least the step latency after t = 0"),
                    data={"device": d.name, "latency_s": lat, "first_s": first})
 
 
@@ -72,28 +104,74 @@ def _row_times(compiled, d, end):
     table = next((t for t in compiled.tables if t.device == d.name), None)
     if table is None:
         return None, []
-    lat = d.start_latency_s if d.step_on else 0.0
+    lat = d.step_latency_s if d.step_on else 0.0
     return table, [t + lat for t in row_edges(d, table, round(end / table.tick_s))]
+
+
+def _edge_need(shot, d, line):
+    """(code, gap needed, why) per limit on the edges of a stepped or clocked device: the line's own pulse and
+    gap, the child's min_trigger_pulse and gap, its min_trigger_period + 2 x jitter."""
+    out = shot.rig.outputs[line]
+    parent = shot.rig.devices[out.device]
+    own = pulse_width(out, parent)
+    need = [(WIRING_EDGES_TOO_CLOSE, 2 * own, f"a {fmt_when(own)} pulse and as long a gap")]
+    if d.min_trigger_pulse_s > own:
+        need.append((WIRING_TRIGGER_PULSE, 2 * d.min_trigger_pulse_s, f"a pulse of at least "
+                     f"{fmt_when(d.min_trigger_pulse_s)} ('{d.name}'s min_trigger_pulse) and as long a gap"))
+    if d.min_trigger_period_s:
+        jit = f" plus twice its {fmt_time(d.trigger_jitter_s, floor='ns')} trigger_jitter" if d.trigger_jitter_s else ""
+        need.append((WIRING_TRIGGER_PERIOD, d.min_trigger_period_s + 2 * d.trigger_jitter_s,
+                     f"edges at least {fmt_when(d.min_trigger_period_s)} apart ('{d.name}'s "
+                     f"min_trigger_period){jit}"))
+    return need
+
+
+def _rig_pos(d, code):
+    """The rig entry a limit comes from (the device's min_trigger_* key, else its wiring key)."""
+    key = {WIRING_TRIGGER_PULSE: "min_trigger_pulse", WIRING_TRIGGER_PERIOD: "min_trigger_period"}.get(code)
+    return (d.trigger_key_pos(key) if key else None) or d.wiring_pos
+
+
+def _close_edges(shot, compiled, want):
+    """Findings `want` on the first two rows of each stepped or clocked device that are closer than the limit
+    of that code allows (a pair is reported once, under the limit needing the widest gap, so its fix meets
+    all of them)."""
+    for d, line, role in _wired(shot):
+        if role == "start trigger":
+            continue
+        table, times = _row_times(compiled, d, compiled.duration_s)
+        limits = _edge_need(shot, d, line)
+        for a, b in zip(times, times[1:]):
+            broken = sorted((x for x in limits if b - a < x[1] - 1e-12), key=lambda x: -x[1])
+            if not broken or broken[0][0] != want:
+                continue
+            code, need, why = broken[0]
+            seg = _write_at(shot, d, b)
+            rig = _rig_pos(d, code)
+            where = f"; rig: {rig.file}:{rig.line}" if rig and code != WIRING_EDGES_TOO_CLOSE else ""
+            yield make(code, f"rows of '{d.name}' at {fmt_when(a)} and {fmt_when(b)} are {fmt_when(b - a)} apart: "
+                       f"each needs its own edge on '{line}', {why} ({fmt_when(need)}){where}",
+                       seg.pos if seg else d.wiring_pos, block=seg.block if seg else None, time_s=b,
+                       hint=_at_fix(shot, seg, b, a + need, table.tick_s,
+                                    f"so its row comes at least {fmt_when(outward(need))} after the one before"),
+                       data={"device": d.name, "line": line, "gap_s": b - a, "need_s": need,
+                             "rig_file": rig.file if rig else None, "rig_line": rig.line if rig else None})
+            break
 
 
 @rule(WIRING_EDGES_TOO_CLOSE, stage="tables")
 def edges_too_close(shot, compiled):
-    for d, line, role in _wired(shot):
-        if role == "start trigger":
-            continue
-        out = shot.rig.outputs[line]
-        width = pulse_width(out, shot.rig.devices[out.device])
-        table, times = _row_times(compiled, d, compiled.duration_s)
-        for a, b in zip(times, times[1:]):
-            if b - a < 2 * width - 1e-12:
-                seg = _write_at(shot, d, b)
-                yield make(WIRING_EDGES_TOO_CLOSE, f"rows of '{d.name}' at {fmt_when(a)} and {fmt_when(b)} are "
-                           f"{fmt_when(b - a)} apart: each needs its own edge on '{line}', a {fmt_when(width)} pulse "
-                           f"and as long a gap ({fmt_when(2 * width)})", seg.pos if seg else d.wiring_pos,
-                           block=seg.block if seg else None, time_s=b,
-                           hint=f"space these writes at least {fmt_when(outward(2 * width))} apart",
-                           data={"device": d.name, "line": line, "gap_s": b - a})
-                break
+    yield from _close_edges(shot, compiled, WIRING_EDGES_TOO_CLOSE)
+
+
+@rule(WIRING_TRIGGER_PULSE, stage="tables")
+def trigger_pulse(shot, compiled):
+    yield from _close_edges(shot, compiled, WIRING_TRIGGER_PULSE)
+
+
+@rule(WIRING_TRIGGER_PERIOD, stage="tables")
+def trigger_period(shot, compiled):
+    yield from _close_edges(shot, compiled, WIRING_TRIGGER_PERIOD)
 
 
 @rule(WIRING_CLOCK, stage="tables")

@@ -206,9 +206,13 @@ WIRING_BEFORE_START = Code(
     "hardware.wiring-before-start", "error", stage="tables",
     source="the rig file's trigger latency per wired device",
     doc="""
-    A wired device's first row comes so early that the edge starting (or
-    stepping) it, one trigger latency ahead, falls before t = 0, where no line
-    can play. Move the device's first write later by the amount stated.""")
+    A wired device gets a row before it can play it: a triggered device starts
+    at a fixed time near the start of the shot (its start edge, at the
+    parent's first row after row 0, plus the trigger latency), so a row
+    before that (a write at t = 0 included) is not played on time; a stepped
+    device's row whose edge, one step latency ahead, falls before t = 0,
+    where no line can play. Move the device's first write later (to the time
+    stated).""")
 
 WIRING_EDGES_TOO_CLOSE = Code(
     "hardware.wiring-edges-too-close", "error", stage="tables",
@@ -227,3 +231,26 @@ WIRING_CLOCK = Code(
     off the clock line's tick grid (its device's timebase), or two rows
     closer than 1 / max_rate. Put the writes on the clock line's grid and no
     closer than the device's maximum rate.""")
+
+WIRING_TRIGGER_PERIOD = Code(
+    "hardware.wiring-trigger-period", "error", stage="tables",
+    source="the rig file's min_trigger_period and trigger_jitter per wired device; the margin of twice the "
+           "jitter is common practice, no source",
+    doc="""
+    Two edges seqgen generates for a stepped or externally clocked device
+    come closer than the device's trigger input accepts: its
+    min_trigger_period, plus twice its trigger_jitter (two responses may each
+    be one jitter early or late). The device would miss an edge and play the
+    rest of its table one row late. Space the writes that make those rows
+    further apart (the fix gives the offset in the block).""")
+
+WIRING_TRIGGER_PULSE = Code(
+    "hardware.wiring-trigger-pulse", "error", stage="tables",
+    source="the rig file's min_trigger_pulse per wired device",
+    doc="""
+    A stepped or externally clocked device states min_trigger_pulse: each
+    generated pulse is made that long, and needs as long a low time before
+    the next one. Two of the device's rows are closer than that pulse and its
+    gap, so the device would see a pulse too short, or two edges as one.
+    Space the writes that make those rows further apart (the fix gives the
+    offset in the block).""")

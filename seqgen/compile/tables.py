@@ -21,7 +21,7 @@ from ..findings import Finding, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
 from .shapes import PULSE_ENVELOPES, pulse_envelope, shape_fraction
-from .wiring import compile_order, pulse, pulse_width, row_edges
+from .wiring import compile_order, pulse, pulse_width, row_edges, start_edge
 from ..codes import BEFORE_START, RAMP_UNDERSAMPLED, SWEEP_STEPPED
 from ..textfmt import fmt_when, outward
 
@@ -381,18 +381,6 @@ def compile_shot(shot: Shot) -> tuple[Compiled, list[Finding]]:
     return Compiled(tuple(tables), shot.duration_s, tuple(generated), starts), findings
 
 
-def _table_start(device, outs, table) -> float | None:
-    """When a triggered device must start: its first row that is not the safe row it is armed with (row 0 when
-    the sequence writes at t = 0); None when it plays nothing."""
-    safe = np.array([output_codes(o, _quantize(o, np.atleast_1d(to_output(o, o.safe)).astype(float)))[0]
-                     for o in outs])
-    if (table.codes[0] != safe).any():
-        return 0.0
-    if len(table.ticks) < 2 or (len(table.ticks) == 2 and (table.codes[1] == table.codes[0]).all()):
-        return None  # only the end row: nothing to play
-    return int(table.ticks[1]) / device.timebase_hz
-
-
 def _wiring_edges(shot, device, outs, table, starts) -> list:
     """The pulses a wired device needs on its parent's lines (compile/wiring.py); a triggered device's start
     goes to starts."""
@@ -401,16 +389,13 @@ def _wiring_edges(shot, device, outs, table, starts) -> list:
     if device.start_on and device.start_on in rig.outputs:
         line = rig.outputs[device.start_on]
         parent = rig.devices[line.device]
-        start = _table_start(device, outs, table)
-        if start is not None:
-            starts[device.name] = start
-            if start - device.start_latency_s >= 0:  # else check.wiring reports it
-                out.extend(pulse(line, start - device.start_latency_s, pulse_width(line, parent), device))
+        t, starts[device.name] = start_edge(device, parent)
+        out.extend(pulse(line, t, pulse_width(line, parent, device), device))
     edge_line = device.edge_line
     if edge_line and edge_line in rig.outputs:
         line = rig.outputs[edge_line]
         parent = rig.devices[line.device]
-        w = pulse_width(line, parent)
+        w = pulse_width(line, parent, device)
         end_tick = int(quantize_times(np.array([shot.duration_s]), device.tick_s)[0])
         for t in row_edges(device, table, end_tick):
             if t >= 0:  # an edge before t = 0 cannot be played: check.wiring reports it

@@ -1,13 +1,17 @@
 """The edges a rig's wiring needs, generated on the parents' lines (README "Wiring").
 
-A device started by a trigger (`start: {on: LINE, latency: ...}`) gets one pulse on LINE, one trigger latency
-before its first commanded row; its table keeps the shot's absolute ticks and `Compiled.starts` (the manifest's
-`start_s`) says when it starts. A table-stepped or externally clocked device (`advance: {per_edge: LINE}`,
+A device started by a trigger (`start: {on: LINE, latency: ...}`) gets one pulse on LINE at a fixed time near the
+start of the shot, as a lab's master starts the others once: the parent's first row after its armed row 0, moved
+later until the device starts (pulse + trigger latency) on a tick of its own timebase. The start so does not depend
+on what the sequence writes (a scan's shots share the parent's table); its table keeps the shot's absolute ticks and
+`Compiled.starts` (the manifest's `start_s`) says when it starts; rows before it are check.wiring's. A table-stepped or externally clocked device (`advance: {per_edge: LINE}`,
 `clock: {line: LINE}`) gets one pulse per table row after its first (the initial row it is armed with), the shot's
 end row excepted. Children are compiled before their parents, so the pulses come from the child's final rows.
 """
 
 from __future__ import annotations
+
+import numpy as np
 
 from ..model import Device, Output, Segment
 
@@ -43,9 +47,25 @@ def compile_order(devices, outputs) -> list:
     return done
 
 
-def pulse_width(line: Output, parent: Device) -> float:
-    """A generated pulse: the line's min_pulse (else 1 us), at least one row interval of the line's device."""
-    return max(line.min_pulse_s or DEFAULT_PULSE_S, parent.min_interval_ticks * parent.tick_s)
+def pulse_width(line: Output, parent: Device, child: Device | None = None) -> float:
+    """A generated pulse: the line's min_pulse (else 1 us), at least one row interval of the line's device and the
+    child's min_trigger_pulse."""
+    child_min = child.min_trigger_pulse_s if child is not None else 0.0
+    return max(line.min_pulse_s or DEFAULT_PULSE_S, parent.min_interval_ticks * parent.tick_s, child_min)
+
+
+def start_edge(device: Device, parent: Device) -> tuple:
+    """(pulse time, start time) (s) of a triggered device: the pulse at the parent's first row after row 0 or
+    later, on the parent's grid, such that pulse + trigger latency falls on a tick of the device (the first such
+    within 10 000 of its ticks; else the first, off the parent's grid by less than one of the parent's ticks)."""
+    lat, ct, pt = device.start_latency_s, device.tick_s, parent.tick_s
+    first = parent.min_interval_ticks * pt
+    k0 = max(1, int(np.ceil((first + lat) / ct - 1e-9)))
+    for k in range(k0, k0 + 10_000):
+        t = k * ct - lat
+        if abs(t / pt - round(t / pt)) < 1e-6:
+            return round(t / pt) * pt, k * ct
+    return k0 * ct - lat, k0 * ct
 
 
 def pulse(line: Output, t: float, width: float, device: Device) -> tuple:
@@ -58,7 +78,7 @@ def pulse(line: Output, t: float, width: float, device: Device) -> tuple:
 def row_edges(device: Device, table, end_tick: int) -> list:
     """Edge times (s) of a stepped or clocked device: one per row after the first, one step latency ahead of the
     row; the shot's end row only when it changes a value (else it is the end marker, which needs no edge)."""
-    lat = device.start_latency_s if device.step_on else 0.0
+    lat = device.step_latency_s if device.step_on else 0.0
     ticks = [int(k) for k in table.ticks]
     n = len(ticks)
     if n > 1 and ticks[-1] >= end_tick and (table.codes[-1] == table.codes[-2]).all():

@@ -15,7 +15,7 @@ LEVEL_TITLES = {
     "preflight": "preflight (findings)",
     "output": "outputs (compiled channel tables)",
     "resolved": "resolved timeline (params, blocks, timing, writes)",
-    "rig": "rig (devices, channels, calibration, limits, latency, geometry)",
+    "rig": "rig (devices, wiring, channels, codes, calibration, limits, latency, geometry)",
 }
 
 TIME_TOL_S = 1e-9  # below any tick of a <= 1 GHz timebase

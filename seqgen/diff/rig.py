@@ -17,8 +17,15 @@ _OUTPUT_FIELDS = {
     "range": (("lo", "out"), ("hi", "out"), ("bits", None), ("unit", None), ("kind", None), ("tolerance", "out")),
     "safe-value": (("safe", "phys"),),
     "channel": (("device", None), ("min_pulse_s", "s"), ("phys_unit", None)),
+    # what a loader sends (README "DAC codes"): the code convention in effect (the channel's `code:`, else its
+    # device's, else the default for its range), a synth word's reference clock, a synth's settling
+    "handoff": (("code_convention", None), ("reference_clock_hz", "Hz"), ("settling_s", "s")),
 }
-_WEIGHTS = {"limits": 70, "calibration": 65, "latency": 60, "range": 55, "safe-value": 50, "device": 50,
+# Device wiring (README "Wiring") and what its trigger input takes, with the unit to show them in
+_WIRING_FIELDS = (("start_on", None), ("start_latency_s", "s"), ("step_on", None), ("step_latency_s", "s"),
+                  ("clock_on", None), ("clock_max_hz", "Hz"), ("min_trigger_period_s", "s"),
+                  ("min_trigger_pulse_s", "s"), ("trigger_jitter_s", "s"))
+_WEIGHTS = {"wiring": 62, "handoff": 58, "limits": 70, "calibration": 65, "latency": 60, "range": 55, "safe-value": 50, "device": 50,
             "channel": 45, "geometry": 40, "field": 40, "repetition": 20, "channel-added": 45, "channel-removed": 50,
             "rig-file": 15}
 
@@ -34,6 +41,8 @@ def _fmt_field(value, unit, out):
         return fmt.q(value, f"{out.phys_unit}/s" if out.phys_unit else "1/s")
     if unit == "out":
         return fmt.q(value, out.unit)
+    if unit == "Hz":
+        return fmt.q(value, "Hz")
     return str(value)
 
 
@@ -87,6 +96,13 @@ def rig_changes(old_shot, new_shot) -> list:
             if not fmt.close(x, y):
                 xs, ys = (fmt.t(x), fmt.t(y)) if unit == "s" else ((fmt.q(x, unit), fmt.q(y, unit)) if unit else (str(x), str(y)))
                 add("device", f"{d}.{f}", f"device {d}: {f} {xs} -> {ys}", xs, ys, outs)
+        for f, unit in _WIRING_FIELDS:
+            x, y = getattr(a, f), getattr(b, f)
+            if x == y or (unit and x is not None and y is not None and fmt.close(x, y)):
+                continue
+            xs, ys = (_fmt_field(v, unit, None) if v is not None else "none" for v in (x, y))
+            lines = [v for v in (x, y) if isinstance(v, str)]
+            add("wiring", f"{d}.{f}", f"device {d} wiring: {f} {xs} -> {ys}", xs, ys, outs + lines)
     # channels and their outputs
     for ch in sorted(set(ra.channels) - set(rb.channels)):
         add("channel-removed", ch, f"channel {ch} removed from the rig", ch, None, ra.channels[ch])
@@ -143,11 +159,34 @@ def rig_changes(old_shot, new_shot) -> list:
 
 
 def manifest_rig_changes(old_man: dict | None, new_man: dict | None) -> list:
-    """Builds only carry the rig's name, file and hash."""
+    """Builds carry the rig's name, file and hash, and per device what a loader needs: each column's code
+    (convention, bits, lsb) and the device's wiring; those are compared, the rest of the rig is not."""
     a = (old_man or {}).get("rig") or {}
     b = (new_man or {}).get("rig") or {}
+    out = []
     if a.get("sha256") and b.get("sha256") and a.get("sha256") != b.get("sha256"):
-        return [Change("rig", "rig-file", "rig", f"rig file content changed ({a.get('file')} sha256 "
-                       f"{a['sha256'][:12]} -> {b.get('file')} {b['sha256'][:12]}); the builds do not say what changed",
-                       a["sha256"][:12], b["sha256"][:12], 30, {"old_sha256": a["sha256"], "new_sha256": b["sha256"]})]
-    return []
+        out.append(Change("rig", "rig-file", "rig", f"rig file content changed ({a.get('file')} sha256 "
+                          f"{a['sha256'][:12]} -> {b.get('file')} {b['sha256'][:12]}); the builds do not say all "
+                          "that changed", a["sha256"][:12], b["sha256"][:12], 30,
+                          {"old_sha256": a["sha256"], "new_sha256": b["sha256"]}))
+    da = (old_man or {}).get("devices") or {}
+    db = (new_man or {}).get("devices") or {}
+    for dev in sorted(set(da) & set(db)):
+        wa, wb = da[dev].get("wiring") or {}, db[dev].get("wiring") or {}
+        cols = [c.get("name") for c in db[dev].get("columns") or ()]
+        for key in sorted(set(wa) | set(wb)):
+            x, y = wa.get(key), wb.get(key)
+            if x == y or (isinstance(x, (int, float)) and isinstance(y, (int, float)) and fmt.close(x, y)):
+                continue
+            out.append(Change("rig", "wiring", f"{dev}.{key}", f"device {dev} wiring: {key} {x} -> {y}; affects "
+                              + ", ".join(cols), str(x), str(y), _WEIGHTS["wiring"], {"affects": cols, "written": []}))
+        ca = {c.get("name"): c.get("code") or {} for c in da[dev].get("columns") or ()}
+        cb = {c.get("name"): c.get("code") or {} for c in db[dev].get("columns") or ()}
+        for name in sorted(set(ca) & set(cb)):
+            for key in ("convention", "bits", "lsb"):
+                x, y = ca[name].get(key), cb[name].get(key)
+                if x == y or (isinstance(x, float) and isinstance(y, float) and fmt.close(x, y)):
+                    continue
+                out.append(Change("rig", "handoff", f"{name}.code.{key}", f"{name}: code {key} {x} -> {y}; affects "
+                                  f"{name}", str(x), str(y), _WEIGHTS["handoff"], {"affects": [name], "written": []}))
+    return out

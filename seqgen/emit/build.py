@@ -87,10 +87,15 @@ def _wiring(dev, compiled) -> dict:
             out["start_s"] = compiled.starts[dev.name]
     if dev.step_on:
         out["step_on"] = dev.step_on
-        out["step_latency_s"] = dev.start_latency_s
+        out["step_latency_s"] = dev.step_latency_s
     if dev.clock_on:
         out["clock_on"] = dev.clock_on
         out["clock_max_hz"] = dev.clock_max_hz
+    if out:
+        for key, value in (("min_trigger_period_s", dev.min_trigger_period_s),
+                           ("min_trigger_pulse_s", dev.min_trigger_pulse_s), ("trigger_jitter_s", dev.trigger_jitter_s)):
+            if value:
+                out[key] = value
     return out
 
 

@@ -49,8 +49,11 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         if tb is None:
             continue
         min_ticks = max(1, round(mi * tb)) if mi else 1
+        trig = {key: opt(("devices", name, key), "s", nonnegative=True) or 0.0 for key in _TRIGGER_KEYS}
         devices[name] = Device(name, tb, min_ticks, d.get("memory_depth"), d.get("output_model", "hold"),
-                               doc.pos(("devices", name)))
+                               doc.pos(("devices", name)), min_trigger_period_s=trig["min_trigger_period"],
+                               min_trigger_pulse_s=trig["min_trigger_pulse"], trigger_jitter_s=trig["trigger_jitter"],
+                               trigger_pos=tuple((k, doc.pos(("devices", name, k))) for k in _TRIGGER_KEYS if k in d))
 
     outputs: dict[str, Output] = {}
     channels: dict[str, tuple] = {}
@@ -197,6 +200,7 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
     return rig, findings
 
 
+_TRIGGER_KEYS = ("min_trigger_period", "min_trigger_pulse", "trigger_jitter")
 _WIRING_KEYS = (("start", "on", "free"), ("advance", "per_edge", "timebase"), ("clock", "line", "internal"))
 
 
@@ -241,7 +245,7 @@ def _wiring(data, devices, outputs, q, doc, findings) -> dict:
             elif key == "advance":
                 kw["step_on"] = line
                 if "latency" in spec:
-                    kw["start_latency_s"] = q(("devices", name, key, "latency"), "s", nonnegative=True) or 0.0
+                    kw["step_latency_s"] = q(("devices", name, key, "latency"), "s", nonnegative=True) or 0.0
             else:
                 rate = q(("devices", name, key, "max_rate"), "Hz", positive=True)
                 takes = dev.timebase_hz / dev.min_interval_ticks
