@@ -74,7 +74,7 @@ def test_demo_probe_counts_as_on_its_line():
 def test_probe_off_resonance_finding_names_the_detuning_and_the_fix():
     res = preflight(FAULTS / "probe_off_resonance.yaml", compile_tables=False)
     (hit,) = [f for f in res.findings if f.code == "physics.probe-off-resonance"]
-    assert hit.severity == "error" and hit.line == 10
+    assert hit.severity == "error" and hit.line == 12  # the image action's line in the fault file
     assert "124.6 THz blue" in hit.message and "D2 line at 780.2412 nm" in hit.message
     assert "780.2412097 nm" in hit.hint
 
