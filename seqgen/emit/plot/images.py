@@ -237,5 +237,5 @@ def images_npz(rows) -> bytes:
             info.external_attr = 0o644 << 16
             info.compress_type = zipfile.ZIP_DEFLATED
             with zf.open(info, "w", force_zip64=True) as fh:
-                np.lib.format.write_array(fh, np.ascontiguousarray(arr), allow_pickle=False)
+                np.lib.format.write_array(fh, np.require(arr, requirements='C'), allow_pickle=False)  # keeps 0-d as 0-d
     return buf.getvalue()
