@@ -28,10 +28,10 @@ __all__ = [
     # finding codes and rules
     "Code", "codes", "explain", "RULES", "Rule", "rule",
     # physics predictions of a shot
-    "report_rows", "image_prediction", "cloud_at_image",
+    "report_rows", "image_prediction", "cloud_at_image", "predicted_images",
     # writing, pictures, scans, diff
     "write_build", "Writer", "available_writers", "timeline_figure", "diff_figure", "write_report",
-    "plan_scan", "run_scan", "diff", "diff_paths", "DiffInputError",
+    "images_figure", "plan_scan", "run_scan", "diff", "diff_paths", "DiffInputError",
     # a build folder played back (the loader contract by example)
     "play", "Waveform",
     "CAUTION", "__version__",
@@ -83,6 +83,11 @@ def _plot():
     return sys.modules[f"{__name__}.emit.plot"]
 
 
+def _images_plot():
+    from .emit.plot.images import images_figure  # noqa: F401  (a name, not the module: `from . import` would ask this face)
+    return sys.modules[f"{__name__}.emit.plot.images"]
+
+
 def _report():
     from .emit.report import write_report  # noqa: F401  (a name, not the module: `from . import` would ask this face)
     return sys.modules[f"{__name__}.emit.report"]
@@ -124,9 +129,9 @@ _WHERE = {
     "Shot": _model, "Compiled": _model, "DeviceTable": _model,
     "Finding": _findings, "format_text": _findings, "has_errors": _findings,
     "Code": _codes, "explain": _codes, "RULES": _check, "Rule": _check, "rule": _check,
-    "report_rows": _predict, "image_prediction": _predict, "cloud_at_image": _predict,
+    "report_rows": _predict, "image_prediction": _predict, "cloud_at_image": _predict, "predicted_images": _predict,
     "write_build": _build, "Writer": _writers, "available_writers": _writers,
-    "timeline_figure": _plot, "diff_figure": _plot, "write_report": _report,
+    "timeline_figure": _plot, "diff_figure": _plot, "write_report": _report, "images_figure": _images_plot,
     "plan_scan": _scan_plan, "run_scan": _scan_run, "diff_paths": _diff, "DiffInputError": _diff,
     "CAUTION": _caution, "play": _player, "Waveform": _player,
 }

@@ -5,6 +5,7 @@ output helpers, so this module needs nothing of it."""
 
 from __future__ import annotations
 
+import json
 import sys
 from pathlib import Path
 
@@ -62,6 +63,18 @@ def plot_images(args, *, pick, refused, report, writing, cannot_run) -> int:
     failed, _ = writing(str(out), write, (PlotError, OutputExists, OutputBusy))
     if failed:
         return failed
+    code = EXIT_FINDINGS if any(has_errors(r.findings) for _, r in results) else EXIT_OK
+    if getattr(args, "json", False):
+        doc = {"output": str(out), "file": file, "caution": CAUTION,
+               "images": [{"row": label, "block": img.block, "time_s": img.time_s, "setup": img.setup,
+                           "peak_od": img.peak_od if img.od is not None else None, "why": img.why,
+                           "saturation": img.saturation, "saturation_at_atoms": img.saturation_at_atoms,
+                           "atoms_from_od": img.atoms_from_od, "pixel_m": img.pixel,
+                           "components": [{"state": list(c.state) if c.state else None, "atoms": c.atoms,
+                                           "imaged": c.imaged} for c in img.components]}
+                          for label, imgs in rows for img in imgs]}
+        print(json.dumps(doc, indent=2, sort_keys=True))
+        return code
     count = sum(len(imgs) for _, imgs in rows)
     more = f" (the first {IMAGE_ROWS} of {shots} shots)" if args.shot is None and shots > IMAGE_ROWS else ""
     print(f"wrote {out}: {count} predicted image(s) in {len(rows)} row(s){more}")
@@ -71,4 +84,4 @@ def plot_images(args, *, pick, refused, report, writing, cannot_run) -> int:
                     f"OD {img.atoms_from_od:.4g}" if img.od is not None else f"no image ({img.why})")
             print(f"  {label + ': ' if label else ''}{img.block} at {fmt_si(img.time_s, 's')}: {what}")
     print("caution: " + CAUTION)
-    return EXIT_FINDINGS if any(has_errors(r.findings) for _, r in results) else EXIT_OK
+    return code

@@ -9,7 +9,7 @@ counts I A tau / (h c / lambda) (scipy.constants), and the pixel pitch over the 
 from __future__ import annotations
 
 import base64
-import io
+import json
 import math
 import re
 
@@ -135,6 +135,11 @@ def test_plot_images_as_svg_and_as_arrays(tmp_path, capsys):
     assert float(np.max(od)) == pytest.approx(float(data["peak_od"][0]))
     assert "peak OD" in str(data["notes"][0])
     assert _run(capsys, "plot", str(SEQUENCES / "na23_thermometry.yaml"), "--images", "-o", str(tmp_path / "i.gif"))[0] == 2
+    code, text, _ = _run(capsys, "plot", str(SEQUENCES / "na23_thermometry.yaml"), "--images", "-o", str(npz),
+                         "--force", "--json")
+    doc = json.loads(text)
+    assert code == 0 and doc["caution"] == CAUTION and doc["images"][0]["peak_od"] == pytest.approx(
+        float(data["peak_od"][0]))
 
 
 def test_a_scanned_sequence_gives_one_strip_per_shot(tmp_path, capsys):

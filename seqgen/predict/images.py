@@ -28,7 +28,7 @@ from .cloud import UP, image_prediction
 from .imaging import probe_analysis, probe_line
 from .species import species
 
-MAX_FRAME_PIXELS = 4096  # per side; a larger field of view is cut to this many pixels about the atoms
+MAX_FRAME_PIXELS = 2048  # per side; a larger frame is cut to this many pixels about the atoms
 MAX_FINE_SAMPLES = 6_000_000  # the fine grid's size bound (sets the oversampling of large regions)
 MAX_OVERSAMPLING = 4
 GAUSSIAN_REACH = 5.0  # a thermal component is drawn out to this many rms widths (its column density there: 4e-6)
@@ -171,6 +171,8 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
     thomas_fermi = pred.cloud.size_kind.startswith("Thomas")
     sizes = np.full(3, pred.cloud.size) if pred.cloud.sizes is None else np.asarray(pred.cloud.sizes, dtype=float)
     shadow = ab.plane_matrix(sizes, pred.cloud.axes, basis)
+    if not (np.all(np.isfinite(shadow)) and np.linalg.det(shadow) > 0):  # a cloud of no extent across the probe
+        return PredictedImage(**base, why=NO_CLOUD)
     comps = []
     for comp in pred.components:
         if len(comp.plane) > 1 and SIGN_CASES not in flags:
@@ -194,15 +196,16 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
     boxes = [(c.centre[0] - reach[0] - margin, c.centre[0] + reach[0] + margin,
               c.centre[1] - reach[1] - margin, c.centre[1] + reach[1] + margin) for c in (lit or comps)]
     roi = (min(b[0] for b in boxes), max(b[1] for b in boxes), min(b[2] for b in boxes), max(b[3] for b in boxes))
-    if setup.field_of_view_m:
+    if setup.field_of_view_m:  # the field of view: pixel centres symmetric about the setup's centre
         n = int(math.ceil(setup.field_of_view_m / pix - 1e-9))
-        xs = ys = (np.arange(n) - (n - 1) / 2) * pix
-        if n > MAX_FRAME_PIXELS:
-            flags.append(FRAME_CUT)
-            xs, ys = (_cut(xs, 0.5 * (roi[0] + roi[1])), _cut(ys, 0.5 * (roi[2] + roi[3])))
-    else:
-        xs = _axis(roi[0], roi[1], pix)
-        ys = _axis(roi[2], roi[3], pix)
+        (xs, cut_x), (ys, cut_y) = (_grid(-(n - 1) / 2, n, pix, 0.5 * (roi[0] + roi[1])),
+                                    _grid(-(n - 1) / 2, n, pix, 0.5 * (roi[2] + roi[3])))
+    else:  # the region with atoms: pixel edges on multiples of the pixel
+        gx, gy = (math.floor(roi[0] / pix), math.floor(roi[2] / pix))
+        (xs, cut_x), (ys, cut_y) = (_grid(gx + 0.5, max(1, math.ceil(roi[1] / pix) - gx), pix, 0.5 * (roi[0] + roi[1])),
+                                    _grid(gy + 0.5, max(1, math.ceil(roi[3] / pix) - gy), pix, 0.5 * (roi[2] + roi[3])))
+    if cut_x or cut_y:
+        flags.append(FRAME_CUT)
     i0, i1 = _span(xs, roi[0], roi[1], pix)
     j0, j1 = _span(ys, roi[2], roi[3], pix)
 
@@ -286,16 +289,12 @@ def predicted_images(shot, seed: int | None = None) -> tuple:
     return tuple(predicted_image(shot, img, seed) for img in sorted(images_of(shot), key=lambda a: a.t0))
 
 
-def _axis(lo: float, hi: float, pix: float) -> np.ndarray:
-    """Pixel centres on the grid k x pix (pixel edges on multiples of pix) covering [lo, hi]."""
-    a, b = math.floor(lo / pix), math.ceil(hi / pix)
-    return (np.arange(a, max(b, a + 1)) + 0.5) * pix
-
-
-def _cut(centres: np.ndarray, about: float) -> np.ndarray:
-    """MAX_FRAME_PIXELS of the pixel centres, about `about` (kept within the array)."""
-    mid = int(np.clip(np.searchsorted(centres, about) - MAX_FRAME_PIXELS // 2, 0, len(centres) - MAX_FRAME_PIXELS))
-    return centres[mid:mid + MAX_FRAME_PIXELS]
+def _grid(first: float, n: int, pix: float, about: float) -> tuple:
+    """(pixel centres (first + j) x pix for j < n, cut): at most MAX_FRAME_PIXELS of them, about `about`."""
+    if n <= MAX_FRAME_PIXELS:
+        return (first + np.arange(n)) * pix, False
+    j0 = int(np.clip(round(about / pix - first) - MAX_FRAME_PIXELS // 2, 0, n - MAX_FRAME_PIXELS))
+    return (first + j0 + np.arange(MAX_FRAME_PIXELS)) * pix, True
 
 
 def _span(centres: np.ndarray, lo: float, hi: float, pix: float) -> tuple:
