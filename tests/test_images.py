@@ -77,7 +77,7 @@ def test_pixels_keep_the_atom_number_in_the_low_od_resonant_unsaturated_limit(pr
 
 def test_a_state_selective_probe_sees_only_its_level(project):
     rig = project / "sequences" / "rigs" / "na23_demo_rig.yaml"
-    _edit(rig, "lens_distance: 60 mm,", "lens_distance: 60 mm, imaged_F: 2,")
+    _edit(rig, "lens_distance: 60 mm", "lens_distance: 60 mm, imaged_F: 2")
     _, _, pred = _image(project / "sequences" / "na23_barrier_scatter.yaml")
     states = {c.state: c for c in pred.components}
     assert not states[(1, -1)].imaged and states[(2, -2)].imaged
@@ -134,7 +134,8 @@ def test_plot_images_as_svg_and_as_arrays(tmp_path, capsys):
     assert float(data["pixel_m"][0]) == pytest.approx(PIXEL)
     assert float(np.max(od)) == pytest.approx(float(data["peak_od"][0]))
     assert "peak OD" in str(data["notes"][0])
-    assert _run(capsys, "plot", str(SEQUENCES / "na23_thermometry.yaml"), "--images", "-o", str(tmp_path / "i.gif"))[0] == 2
+    gif = tmp_path / "i.gif"
+    assert _run(capsys, "plot", str(SEQUENCES / "na23_thermometry.yaml"), "--images", "-o", str(gif))[0] == 2
     code, text, _ = _run(capsys, "plot", str(SEQUENCES / "na23_thermometry.yaml"), "--images", "-o", str(npz),
                          "--force", "--json")
     doc = json.loads(text)
@@ -173,7 +174,7 @@ def test_the_report_shows_the_predicted_image(tmp_path, capsys):
 
 def test_rig_keys_out_of_range_are_findings_at_their_line(project):
     rig = project / "sequences" / "rigs" / "na23_demo_rig.yaml"
-    _edit(rig, "lens_distance: 60 mm,", "lens_distance: 60 mm, numerical_aperture: 1.5, imaged_F: -1,")
+    _edit(rig, "lens_distance: 60 mm", "lens_distance: 60 mm, numerical_aperture: 1.5, imaged_F: -1")
     res = seqgen.preflight(project / "sequences" / "na23_thermometry.yaml")
     line = next(i for i, ln in enumerate(rig.read_text(encoding="utf-8").split("\n"), 1) if "numerical_aperture" in ln)
     bad = sorted((f.line, f.code) for f in res.findings if f.severity == "error")

@@ -72,9 +72,9 @@ class PredictedImage:
     centre; horizontal = camera right, vertical = the part of up across the line of sight); pixel (m at the
     atoms); components; peak_od (of the map, noise included); saturation (I/I_sat at the beam centre),
     saturation_at_atoms (at the densest imaged component's centre); sigma0 (m^2, 3 lambda^2/2pi of the line);
-    detuning_hz, linewidth_hz, alpha (saturation_factor); na, psf_sigma (m, the Gaussian for the optics),
-    recoil_blur (m), blur (m, both in quadrature); oversampling; photons (counted per pixel from the probe
-    alone at the beam centre, None when unknown); atoms_from_od (sum over pixels of the saturation-corrected
+    detuning_hz, linewidth_hz, alpha (saturation_factor); na, rayleigh (m, 0.61 lambda/NA), psf_sigma (m, the
+    Gaussian for the optics), recoil_blur (m), blur (m, both in quadrature); oversampling; photons (counted per
+    pixel from the probe alone at the beam centre, None when unknown); atoms_from_od (sum over pixels of the saturation-corrected
     OD x pixel area / sigma0, noise-free); noise_seed (None: no noise); why (no map: one of the NO_* codes);
     flags (the assumptions and limits stated, see the codes above)."""
 
@@ -94,6 +94,7 @@ class PredictedImage:
     linewidth_hz: float | None = None
     alpha: float = 1.0
     na: float | None = None
+    rayleigh: float | None = None
     psf_sigma: float = 0.0
     recoil_blur: float = 0.0
     blur: float = 0.0
@@ -226,7 +227,9 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
     atoms_in = [0.0] * len(comps)
     k = 1
     if lit and i1 > i0 and j1 > j0:
-        fine_cell = min([pix] + ([blur / 1.5] if blur > 0 else []) + [float(np.sqrt(np.min(np.linalg.eigvalsh(shadow)))) / 3])
+        # fine samples resolve the blur and the cloud's narrowest side
+        thinnest = float(np.sqrt(np.min(np.linalg.eigvalsh(shadow))))
+        fine_cell = min([pix, thinnest / 3] + ([blur / 1.5] if blur > 0 else []))
         k = int(min(MAX_OVERSAMPLING, max(1, math.ceil(pix / fine_cell - 1e-9))))
         while k > 1 and (i1 - i0) * (j1 - j0) * k * k > MAX_FINE_SAMPLES:
             k -= 1
@@ -281,7 +284,8 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
                           peak_od=float(np.max(od)) if od.size else 0.0, saturation=float(s0),
                           saturation_at_atoms=centre_s, sigma0=sigma0, wavelength=lam, detuning_hz=float(detuning),
                           linewidth_hz=line.linewidth_hz, alpha=alpha, na=na, psf_sigma=psf, recoil_blur=recoil,
-                          blur=blur, oversampling=k, photons=photons, atoms_from_od=atoms_from_od, flags=tuple(flags))
+                          blur=blur, oversampling=k, photons=photons, atoms_from_od=atoms_from_od, flags=tuple(flags),
+                          rayleigh=float(ab.rayleigh_radius(beam.wavelength_m, na)) if na else None)
 
 
 def predicted_images(shot, seed: int | None = None) -> tuple:

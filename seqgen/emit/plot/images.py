@@ -60,7 +60,7 @@ def image_notes(img: "pi.PredictedImage") -> list[str]:
     where = f"{img.block or 'image'} at {fmt_when(img.time_s)}" + (f", setup '{img.setup}'" if img.setup else "")
     if img.od is None:
         return [f"{where}: no predicted image: {_WHY.get(img.why, img.why)}"]
-    res = (f"NA {img.na:.3g} (Rayleigh {fmt_length(0.61 * img.wavelength / img.na * 1.0, 3, unit='um')}; Gaussian "
+    res = (f"NA {img.na:.3g} (Rayleigh {fmt_length(img.rayleigh, 3, unit='um')}; Gaussian "
            f"PSF rms {fmt_length(img.psf_sigma, 3, unit='um')})" if img.na else "no optics blur")
     out = [f"{where}: peak OD {img.peak_od:.3g}; probe I/I_sat {img.saturation:.3g} at the beam centre, "
            f"{img.saturation_at_atoms:.3g} at the atoms; detuning {img.detuning_hz / img.linewidth_hz:.3g} "
