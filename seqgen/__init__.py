@@ -28,13 +28,15 @@ __all__ = [
     # finding codes and rules
     "Code", "codes", "explain", "RULES", "Rule", "rule",
     # physics predictions of a shot
-    "report_rows", "image_prediction", "cloud_at_image", "predicted_images",
+    "report_rows", "image_prediction", "cloud_at_image",
     # writing, pictures, scans, diff
     "write_build", "Writer", "available_writers", "timeline_figure", "diff_figure", "write_report",
-    "images_figure", "plan_scan", "run_scan", "diff", "diff_paths", "DiffInputError",
+    "plan_scan", "run_scan", "diff", "diff_paths", "DiffInputError",
     # a build folder played back (the loader contract by example)
     "play", "Waveform",
     "CAUTION", "__version__",
+    # predicted absorption images: the arrays of each image, and their figure
+    "predicted_images", "images_figure",
 ]
 
 
@@ -129,11 +131,12 @@ _WHERE = {
     "Shot": _model, "Compiled": _model, "DeviceTable": _model,
     "Finding": _findings, "format_text": _findings, "has_errors": _findings,
     "Code": _codes, "explain": _codes, "RULES": _check, "Rule": _check, "rule": _check,
-    "report_rows": _predict, "image_prediction": _predict, "cloud_at_image": _predict, "predicted_images": _predict,
+    "report_rows": _predict, "image_prediction": _predict, "cloud_at_image": _predict,
     "write_build": _build, "Writer": _writers, "available_writers": _writers,
-    "timeline_figure": _plot, "diff_figure": _plot, "write_report": _report, "images_figure": _images_plot,
+    "timeline_figure": _plot, "diff_figure": _plot, "write_report": _report,
     "plan_scan": _scan_plan, "run_scan": _scan_run, "diff_paths": _diff, "DiffInputError": _diff,
     "CAUTION": _caution, "play": _player, "Waveform": _player,
+    "predicted_images": _predict, "images_figure": _images_plot,
 }
 
 # `resolve` is also the name of the resolve stage's package, which importing it binds on this module: the
