@@ -35,6 +35,8 @@ __all__ = [
     # a build folder played back (the loader contract by example)
     "play", "Waveform",
     "CAUTION", "__version__",
+    # predicted absorption images: the arrays of each image, and their figure
+    "predicted_images", "images_figure",
 ]
 
 
@@ -81,6 +83,11 @@ def _writers():
 def _plot():
     from .emit.plot import timeline_figure  # noqa: F401  (a name, not the module: `from . import` would ask this face)
     return sys.modules[f"{__name__}.emit.plot"]
+
+
+def _images_plot():
+    from .emit.plot.images import images_figure  # noqa: F401  (a name, not the module: `from . import` would ask this face)
+    return sys.modules[f"{__name__}.emit.plot.images"]
 
 
 def _report():
@@ -135,6 +142,7 @@ _WHERE = {
     "plan_scan": _scan_plan, "run_scan": _scan_run,
     "scan_summary": _scan_summary, "ScanSummary": _scan_summary, "diff_paths": _diff, "DiffInputError": _diff,
     "CAUTION": _caution, "play": _player, "Waveform": _player,
+    "predicted_images": _predict, "images_figure": _images_plot,
 }
 
 # `resolve` is also the name of the resolve stage's package, which importing it binds on this module: the

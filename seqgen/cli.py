@@ -206,6 +206,8 @@ def cmd_plot(args) -> int:
         save_figure, timeline_figure
     from .findings import has_errors
 
+    if args.images:
+        return _plot_images(args)
     try:
         if len(args.files) not in (1, 2):
             raise PlotError("plot takes one sequence file, or two (OLD NEW) to overlay them")
@@ -276,6 +278,14 @@ def cmd_plot(args) -> int:
                 print(f"  {r.shot.file}: {s['error']} error finding(s) (run 'seqgen check' for details)")
         print(_caution())
     return EXIT_FINDINGS if errors else EXIT_OK
+
+
+def _plot_images(args) -> int:
+    """plot FILE --images: the predicted absorption images (seqgen/images_cmd.py)."""
+    from .images_cmd import plot_images
+
+    return plot_images(args, pick=_preflight_shot, refused=_ShotRefused, report=_report, writing=_writing,
+                       cannot_run=_cannot_run)
 
 
 def _load(file):
@@ -590,6 +600,11 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--no-physics", action="store_true", help="leave out the physics panels")
     g.add_argument("--all-lanes", action="store_true",
                    help="also draw outputs the sequence never writes (by default only named under the lanes)")
+    g.add_argument("--images", action="store_true",
+                   help="draw the predicted absorption image of each image action instead (a scan: one row per shot); "
+                        "-o FILE.npz writes the optical-depth arrays")
+    g.add_argument("--noise-seed", type=int, default=None, metavar="SEED",
+                   help="with --images: add photon shot noise, drawn reproducibly from SEED")
     g.add_argument("--force", action="store_true", help="replace an existing picture")
     g.add_argument("--json", action="store_true", help="what was drawn, as JSON")
     _shot_option(g, "draw shot N of the scan (run order, as in 'seqgen check --json'); default: the base shot")

@@ -190,6 +190,13 @@ class ImagingSetup:
     center_m: tuple = (0.0, 0.0, 0.0)
     aperture_radius_m: float | None = None
     pos: SourcePos = SourcePos("")
+    # what predicted images need (all optional): resolution, probe saturation, camera, imaged state
+    numerical_aperture: float | None = None
+    lens_distance_m: float | None = None
+    saturation_parameter: float | None = None
+    saturation_factor: float = 1.0
+    quantum_efficiency: float = 1.0
+    imaged_F: int | None = None
 
 
 @dataclass(frozen=True)

@@ -329,12 +329,13 @@ _CAPTION = ("One lane per output, grouped by device: the solid curve is what the
 
 
 def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "", scanned: bool = False,
-                  detail: tuple | None = None, scan=None, choice=None) -> str:
+                  detail: tuple | None = None, scan=None, choice=None, images: tuple | None = None) -> str:
     """HTML text of the preflight report of `res` (a `pipeline.Result`) for sequence `file`.
 
     `svg` is the inline SVG of the whole timeline; `detail` an optional (caption, svg) of a zoomed one.
     `scan`: the run scan (`scan.plan.Scan`) of a scanned sequence, whose section heads the report; `res` is then
-    its base shot. `choice` (`seqgen.show.ShotChoice`): which shot of a scan `res` is, said above its details."""
+    its base shot. `choice` (`seqgen.show.ShotChoice`): which shot of a scan `res` is, said above its details.
+    `images`: (PNG data URI or None, notes) of the predicted absorption images (`report_images`)."""
     from ..caution import CAUTION
 
     findings = list(res.findings)
@@ -423,6 +424,19 @@ def render_report(res, file: str, *, svg: str | None = None, svg_note: str = "",
         out.append(f"<p>No timeline: {_e(svg_note or 'the sequence could not be resolved')}.</p>")
     out.append("</section>")
 
+    if images is not None:
+        uri, notes = images
+        out.append(f'<section id="images"><h2>Predicted images{of}</h2>')
+        if uri:
+            items = "".join(f"<li>{_e(n)}</li>" for n in notes)
+            out.append(f'<figure id="predicted-images"><img src="{uri}" alt="predicted optical depth of each image" '
+                       f'style="max-width:100%"><figcaption>What the camera will record (optical depth, axes in um '
+                       f'at the atoms), predicted from the clouds at each image; <code>seqgen plot FILE --images -o '
+                       f'images.npz</code> saves the arrays.<ul class="notes">{items}</ul></figcaption></figure>')
+        else:
+            out.append(f"<p>No predicted images: {_e(notes[0] if notes else 'none')}.</p>")
+        out.append("</section>")
+
     if shot is not None and shot.sources:
         out.append('<section id="sources"><h2>Source files</h2><table><thead><tr><th>file</th><th>sha256</th>'
                    "</tr></thead><tbody>")
@@ -445,6 +459,25 @@ def report_svg(res, prefix: str = "full-", **kw) -> tuple[str | None, str]:
         return svg_text(fig, prefix), ""
     except Exception as exc:  # a picture problem must not cost the user the report
         return None, f"the timeline could not be drawn ({type(exc).__name__}: {exc})"
+
+
+def report_images(res) -> tuple | None:
+    """(PNG data URI or None, notes) of the shot's predicted absorption images; None without an image action."""
+    if res.shot is None or not res.shot.actions("image"):
+        return None
+    import base64
+
+    from ..predict.images import predicted_images
+    from .plot import figure_bytes
+    from .plot.images import image_notes, images_figure
+
+    try:
+        imgs = predicted_images(res.shot)
+        png = figure_bytes(images_figure([(None, imgs)]), "png")
+    except Exception as exc:  # a picture problem must not cost the user the report
+        return None, [f"the images could not be predicted ({type(exc).__name__}: {exc})"]
+    notes = [n for img in imgs for n in image_notes(img)]
+    return "data:image/png;base64," + base64.b64encode(png).decode("ascii"), notes
 
 
 def report_detail_svg(res) -> tuple | None:
@@ -476,5 +509,5 @@ def write_report(path: str | Path, res, file: str, *, force: bool = False, timel
     svg, note = report_svg(res, **sub) if timeline else (None, "not requested")
     detail = report_detail_svg(res) if svg else None
     text = render_report(res, file, svg=svg, svg_note=note, scanned=scanned, detail=detail, scan=scan,
-                         choice=choice)
+                         choice=choice, images=report_images(res) if timeline else None)
     return write_atomic(path, text.encode("utf-8"), force=force)

@@ -5,7 +5,8 @@ minimisations, by content across shots). Predictions carry numbers, not findings
 
 Modules by subject, each importing only those before it: cache, played (what the hardware plays: the
 compiled tables read back in physical units, which every prediction reads), species, traps, states, magnetic,
-pushes, cloud, barrier, imaging, text (words for the numbers), report.
+pushes, cloud, barrier, imaging, images (the optical depth each image records), text (words for the numbers),
+report.
 """
 
 from __future__ import annotations
@@ -17,6 +18,7 @@ from .barrier import release_by_content
 from .cloud import (CloudAtImage, ImagePrediction, Separation, SizeUnknown, cloud_at_image, image_prediction,
                     separation_analysis)
 from .imaging import ProbePrediction, probe_analysis
+from .images import ImagedComponent, PredictedImage, predicted_image, predicted_images
 from .magnetic import HoldPrediction, hold_analysis
 from .played import INTENDED, PLAYED, Track, compiled_shot, played, played_source
 from .pushes import Components, PushPrediction, components_at, push_analysis
@@ -30,7 +32,7 @@ from .traps import (HeldTrap, TrapStage, TrapWrite, held, trap_stage, trap_stage
 
 __all__ = [
     "BarrierDrive", "BarrierPrediction", "CloudAtImage", "Components", "HeldTrap", "HoldPrediction",
-    "INTENDED", "ImagePrediction", "Interferometer", "PLAYED", "Track", "LevelProblem", "PhysicsRow", "Populations", "ProbePrediction", "PulsePrediction",
+    "INTENDED", "ImagePrediction", "ImagedComponent", "PredictedImage", "predicted_image", "predicted_images", "Interferometer", "PLAYED", "Track", "LevelProblem", "PhysicsRow", "Populations", "ProbePrediction", "PulsePrediction",
     "PushPrediction", "Separation", "SizeUnknown", "SweepPrediction", "TrapStage",
     "barrier_analysis", "barrier_drive_analysis", "clear_caches", "cloud_along_path", "cloud_at_image",
     "compiled_shot", "components_at", "gaussian_beams", "held", "hold_analysis", "image_prediction", "incident_velocity",

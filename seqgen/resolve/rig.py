@@ -190,7 +190,8 @@ def build_rig(doc: Document) -> tuple[Rig | None, list[Finding]]:
         imaging[name] = ImagingSetup(name, im.get("probe_beam"), im.get("camera_channel"), opt(base + ("pixel_size",), "m", positive=True),
                                      _magnification(im, base, doc, findings), opt(base + ("field_of_view",), "m", positive=True),
                                      opt(base + ("depth_of_field",), "m", positive=True), _vector(im.get("center", (0, 0, 0)), base + ("center",), doc, findings) or (0.0, 0.0, 0.0),
-                                     opt(base + ("aperture_radius",), "m", positive=True), doc.pos(base))
+                                     opt(base + ("aperture_radius",), "m", positive=True), doc.pos(base),
+                                     **_image_keys(im, base, opt, doc, findings))
     devices = _wiring(data, devices, outputs, q, doc, findings)
     fields = data.get("fields") or {}
     bias = opt(("fields", "bias"), "T") if "bias" in fields else None
@@ -369,6 +370,33 @@ def _coupling_keys(d, base, doc, findings) -> dict:
     cal = d.get("calibrated_on")
     if cal is not None:
         out["calibrated_on"] = tuple((int(cal[k]["F"]), int(cal[k]["mF"])) for k in ("from", "to"))
+    return out
+
+
+def _image_keys(im, base, opt, doc, findings) -> dict:
+    """The optional keys of an imaging setup that predicted images read, as ImagingSetup keywords; a number out
+    of its range is a finding at its key and left out (the default holds)."""
+    out = {}
+    dist = opt(base + ("lens_distance",), "m", positive=True)
+    if dist is not None:
+        out["lens_distance_m"] = dist
+    for key, lo, hi, open_lo, what in (("numerical_aperture", 0.0, 1.0, True, "a numerical aperture, e.g. 0.1"),
+                                       ("saturation_parameter", 0.0, math.inf, False, "I / I_sat, e.g. 0.5"),
+                                       ("saturation_factor", 0.0, math.inf, True, "alpha, e.g. 1.0"),
+                                       ("quantum_efficiency", 0.0, 1.0, True, "a fraction, e.g. 0.7"),
+                                       ("imaged_F", 0.0, math.inf, False, "a ground hyperfine level, e.g. 2")):
+        if key not in im:
+            continue
+        raw = im[key]
+        try:
+            x = float(raw) if not isinstance(raw, bool) else math.nan
+        except (OverflowError, TypeError, ValueError):
+            x = math.nan
+        if not math.isfinite(x) or x < lo or (open_lo and x == lo) or x > hi or (key == "imaged_F" and x != int(x)):
+            findings.append(make(BAD_RIG, f"{key} {_short(raw)} is out of range", doc.pos(base + (key,)),
+                                 hint=f"give {what}"))
+            continue
+        out[key] = int(x) if key == "imaged_F" else x
     return out
 
 
