@@ -86,23 +86,24 @@ def guarded(default=None):
 # ------------------------------------------------------------------------------------------------ checking
 
 
-def schedule(ls: SeqgenServer, path: Path, delay: float = DEBOUNCE_S) -> None:
-    """Check `path` after `delay` (a newer request for the same document replaces a pending one)."""
+def schedule(ls: SeqgenServer, path: Path, delay: float = DEBOUNCE_S, every_shot: bool = False) -> None:
+    """Check `path` after `delay` (a newer request for the same document replaces a pending one); `every_shot`:
+    each shot of a scan (on open and save), else its base shot (while typing)."""
     old = ls.pending.pop(path, None)
     if old is not None and not old.done():
         old.cancel()
-    ls.pending[path] = asyncio.get_running_loop().create_task(_check_later(ls, path, delay))
+    ls.pending[path] = asyncio.get_running_loop().create_task(_check_later(ls, path, delay, every_shot))
 
 
-def schedule_with_users(ls: SeqgenServer, path: Path, delay: float = DEBOUNCE_S) -> None:
+def schedule_with_users(ls: SeqgenServer, path: Path, delay: float = DEBOUNCE_S, every_shot: bool = False) -> None:
     """Check `path` (when open) and every open sequence whose last check read it (its rig, a `use:` file)."""
     if path in ls.session.docs:
-        schedule(ls, path, delay)
+        schedule(ls, path, delay, every_shot)
     for user in ls.session.users_of(path):
-        schedule(ls, user, delay)
+        schedule(ls, user, delay, every_shot)
 
 
-async def _check_later(ls: SeqgenServer, path: Path, delay: float) -> None:
+async def _check_later(ls: SeqgenServer, path: Path, delay: float, every_shot: bool) -> None:
     try:
         if delay:
             await asyncio.sleep(delay)
@@ -111,7 +112,7 @@ async def _check_later(ls: SeqgenServer, path: Path, delay: float) -> None:
             return
         texts = ls.session.texts()
         loop = asyncio.get_running_loop()
-        analysis = await loop.run_in_executor(ls.worker, ses.analyse, path, doc.text, doc.version, texts)
+        analysis = await loop.run_in_executor(ls.worker, ses.analyse, path, doc.text, doc.version, texts, every_shot)
         before = ls.session.analyses.get(path)
         if ls.session.store(analysis):
             publish(ls, set(analysis.diagnostics) | set(before.diagnostics if before else ()) | {path})
@@ -163,8 +164,8 @@ def publish(ls: SeqgenServer, targets) -> None:
     """Send the diagnostics every open document's last check shows in each of `targets` (none: cleared)."""
     for target in targets:
         found = ls.session.diagnostics_for(target)
-        if not found and target not in ls.published:
-            continue
+        if not found and target not in ls.published and target not in ls.session.docs:
+            continue  # nothing was ever shown there
         lines = _lines(ls, target)
         diags = [to_lsp(ls, d, lines) for d in found]
         doc = ls.session.docs.get(target)
@@ -201,7 +202,7 @@ def create_server() -> SeqgenServer:
         if p is None:
             return
         ls.session.open(p, params.text_document.uri, params.text_document.text, params.text_document.version)
-        schedule(ls, p, 0.0)
+        schedule(ls, p, 0.0, every_shot=True)
 
     @server.feature(lsp.TEXT_DOCUMENT_DID_CHANGE)
     @guarded()
@@ -218,7 +219,7 @@ def create_server() -> SeqgenServer:
     def did_save(ls: SeqgenServer, params: lsp.DidSaveTextDocumentParams) -> None:
         p = path_of(params.text_document.uri)
         if p is not None:
-            schedule_with_users(ls, p, 0.0)
+            schedule_with_users(ls, p, 0.0, every_shot=True)
 
     @server.feature(lsp.TEXT_DOCUMENT_DID_CLOSE)
     @guarded()
@@ -233,7 +234,7 @@ def create_server() -> SeqgenServer:
         ls.session.close(p)
         publish(ls, (set(old.diagnostics) if old else set()) | {p})
         for user in ls.session.users_of(p):  # they read the file from disk again
-            schedule(ls, user, 0.0)
+            schedule(ls, user, 0.0, every_shot=True)
 
     @server.feature(lsp.WORKSPACE_DID_CHANGE_WATCHED_FILES)
     @guarded()
@@ -242,7 +243,7 @@ def create_server() -> SeqgenServer:
             p = path_of(change.uri)
             if p is not None and p not in ls.session.docs:  # an open document's buffer wins over the file
                 for user in ls.session.users_of(p):
-                    schedule(ls, user, 0.0)
+                    schedule(ls, user, 0.0, every_shot=True)
 
     @server.feature(lsp.TEXT_DOCUMENT_CODE_ACTION,
                     lsp.CodeActionOptions(code_action_kinds=[lsp.CodeActionKind.QuickFix]))

@@ -6,15 +6,16 @@ one worker thread. What is kept warm between checks is the process itself: the l
 registry, species data and the content-keyed caches of `seqgen.pipeline.clear_shared_caches`, so a check
 after a one-character edit costs about one resolve, check and compile of the shot.
 
-A sequence file is checked as `seqgen check FILE` checks it, for the base shot of a scan (each scanned param
-at its `value:`, as `check --watch` and `show` do) plus the scan's expansion findings; a rig file on its own
-as `seqgen check RIG` does.
+A sequence file is checked as `seqgen check FILE` checks it: while typing, a scan's base shot (each scanned
+param at its `value:`, as `check --watch` and `show` do) and the scan's expansion findings; on open and save
+also its other shots (a scan of at most EVERY_SHOT_LIMIT shots), a finding only they raise named with the
+shot's values. A rig file on its own is checked as `seqgen check RIG` does.
 """
 
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Mapping
 
@@ -22,8 +23,12 @@ from ..findings import sort_findings
 from ..load.yamlsrc import Document, LoadError
 from ..pipeline import Result, preflight
 from ..resolve.sources import Sources, check_rig_document, is_rig_document, load_sources
-from ..scan.plan import has_scans, plan_scan
+from ..scan.plan import has_scans, plan_scan, values_text
+from ..scan.run import run_scan
 from .diagnostics import Diagnostic, mirrored, to_diagnostics
+
+
+EVERY_SHOT_LIMIT = 16  # on open and save a scan of at most this many shots is checked shot by shot
 
 
 def display(path: Path) -> str:
@@ -132,7 +137,7 @@ def _lines(name: str, texts: Mapping[Path, str], cache: dict) -> list | None:
     return cache[name]
 
 
-def _check(path: Path, text: str, texts: Mapping[Path, str]) -> tuple[Result, Sources | None]:
+def _check(path: Path, text: str, texts: Mapping[Path, str], every_shot: bool) -> tuple[Result, Sources | None]:
     name = display(path)
     try:
         src = load_sources(path, text=text, display=name, texts=texts)
@@ -141,11 +146,29 @@ def _check(path: Path, text: str, texts: Mapping[Path, str]) -> tuple[Result, So
     if is_rig_document(src.main):  # a rig on its own
         return Result(findings=sort_findings(check_rig_document(src.main)), sources=src), src
     res = preflight(path, sources=src)
-    if has_scans(src):  # the base shot above; the scan's expansion findings here
-        extra = plan_scan(path, sources=src).findings
+    if has_scans(src):  # the base shot above; the scan's expansion findings (and its other shots) here
+        scan = plan_scan(path, sources=src)
+        extra = list(scan.findings)
+        if every_shot and scan.plan is not None and len(scan.plan) <= EVERY_SHOT_LIMIT:
+            extra += _other_shots(run_scan(scan, jobs=1), res.findings)
         if extra:
-            res = Result(res.shot, res.compiled, sort_findings(list(res.findings) + list(extra)), src)
+            res = Result(res.shot, res.compiled, sort_findings(list(res.findings) + extra), src)
     return res, src
+
+
+def _other_shots(scan, base: list) -> list:
+    """Findings of the scan's shots at places where the base shot has none of that code, each once, saying
+    which shot (its values) raised it."""
+    seen = {(f.code, f.file, f.line, f.column) for f in base}
+    out = []
+    for shot in scan.shots:
+        for f in shot.findings:
+            key = (f.code, f.file, f.line, f.column)
+            if key not in seen:
+                seen.add(key)
+                values = values_text(scan.plan.names, shot.values)
+                out.append(replace(f, message=f"shot {shot.index} ({values}): {f.message}"))
+    return out
 
 
 def _anchors(src: Sources | None, path: Path) -> dict:
@@ -184,9 +207,10 @@ def _names(src: Sources | None) -> dict:
     return out
 
 
-def analyse(path: Path, text: str, version: int, texts: Mapping[Path, str]) -> Analysis:
-    """Check the document `path` as written in `text` (the other open documents' texts in `texts`)."""
-    res, src = _check(path, text, texts)
+def analyse(path: Path, text: str, version: int, texts: Mapping[Path, str], every_shot: bool = False) -> Analysis:
+    """Check the document `path` as written in `text` (the other open documents' texts in `texts`); a scan's
+    base shot, or with `every_shot` each of its shots (up to EVERY_SHOT_LIMIT), as `seqgen check` does."""
+    res, src = _check(path, text, texts, every_shot)
     reads = set()
     if src is not None:
         reads |= {file_of(d.file) for d, *_ in src.used}
