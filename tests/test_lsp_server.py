@@ -204,7 +204,7 @@ async def test_did_you_mean_and_unit_fixes_applied_clear_the_finding(client, pro
 
 @pytest.mark.asyncio
 async def test_accepting_a_finding_inserts_an_accept_entry_and_reports_it_accepted(client, project):
-    path = project / "sequences" / "faults" / "trap_heating.yaml"
+    path = project / "sequences" / "faults" / "overlap.yaml"
     code = _EXPECT.match(path.read_text(encoding="utf-8").splitlines()[0]).group(1)
     doc = Doc(client, path)
     diags = [d for d in await doc.open() if d.code == code]

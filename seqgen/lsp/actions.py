@@ -133,7 +133,7 @@ def accept_action(f: Finding, file: str, lines: list) -> Action | None:
         return Action(title, QUICKFIX, (edit,), f)
     head = lines[at]
     rest = head[len("accept:"):].split(" #")[0].strip()
-    if rest in ("", "null", "~"):
+    if not rest:
         last, indent = at, "  - "
         for i in range(at + 1, len(lines)):
             text = lines[i]
@@ -145,10 +145,7 @@ def accept_action(f: Finding, file: str, lines: list) -> Action | None:
                 last = i
                 continue
             break
-        if rest:  # 'accept: null': the key gets the list
-            edit = Edit(file, at, 0, at, len(head), f"accept:\n{indent}{entry}")
-        else:
-            edit = Edit(file, last, len(lines[last]), last, len(lines[last]), f"\n{indent}{entry}")
+        edit = Edit(file, last, len(lines[last]), last, len(lines[last]), f"\n{indent}{entry}")
         return Action(title, QUICKFIX, (edit,), f)
     if rest.startswith("[") and rest.endswith("]"):  # a flow list on the key's line
         close = head.rindex("]", 0, len(head.split(" #")[0]))
