@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import asyncio
 import functools
+import sys
 import traceback
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
@@ -287,6 +288,9 @@ def _code_action(ls: SeqgenServer, a: Action, diag: lsp.Diagnostic) -> lsp.CodeA
 
 
 def main() -> int:
-    """Serve over stdio until the client says exit."""
-    create_server().start_io()
+    """Serve over stdio until the client says exit. stdout carries the protocol alone: anything printed
+    meanwhile goes to stderr, which editors show as the server's log."""
+    stdin, stdout = sys.stdin.buffer, sys.stdout.buffer
+    sys.stdout = sys.stderr
+    create_server().start_io(stdin, stdout)
     return 0
