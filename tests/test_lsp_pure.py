@@ -121,3 +121,38 @@ def test_the_unsaved_texts_are_checked_not_the_files(project):
     at_key = [d for d in a.diagnostics[seq] if d.code == "schema.bad-rig"]
     assert at_key and text.split("\n")[at_key[0].line].startswith("rig:")
     assert seq.read_text(encoding="utf-8") == text
+
+
+def test_a_misspelt_name_inside_a_value_is_renamed_alone():
+    lines = ["  - name: b", "    after: aa + 1 ms"]
+    f = Finding("timing.unknown-block", "error", "block 'b' is anchored after unknown block 'aa'", "x.yaml", 2, 5,
+                hint="did you mean 'a'?")
+    assert _apply(lines, fix_action(f, lines).edits).split("\n")[1] == "    after: a + 1 ms"
+
+
+def _fixable():
+    """(fault file, code, 1-based line) of every finding of the fault corpus whose fix a code action writes."""
+    out = []
+    for path in sorted(Path("sequences/faults").glob("*.yaml")):
+        p = file_of(str(path))
+        text = p.read_text(encoding="utf-8")
+        for d in analyse(p, text, 1, {}).diagnostics.get(p, ()):
+            if d.finding.file == str(path) and fix_action(d.finding, text.split("\n")) is not None:
+                out.append((path, d.finding))
+    return out
+
+
+def test_every_fix_a_code_action_writes_clears_its_finding():
+    """As tests/test_applied_fixes.py does for the demos: each fix of the fault corpus a code action offers,
+    applied, leaves no finding of that code at that line."""
+    fixable = _fixable()
+    assert len(fixable) >= 10
+    left = []
+    for path, f in fixable:
+        p = file_of(str(path))
+        lines = p.read_text(encoding="utf-8").split("\n")
+        new = _apply(lines, fix_action(f, lines).edits)
+        after = analyse(p, new, 2, {}).diagnostics.get(p, ())
+        if any(d.finding.code == f.code and d.finding.line == f.line for d in after):
+            left.append((path.name, f.code, f.line, f.hint))
+    assert left == []

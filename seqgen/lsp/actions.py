@@ -10,6 +10,7 @@ Pure: a file's text comes in as lines and edits come out. Two kinds:
 
 from __future__ import annotations
 
+import difflib
 import json
 import re
 from dataclasses import dataclass
@@ -25,6 +26,7 @@ _KEY_AT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*:\s+")
 _KEY_VALUE = re.compile(r"([A-Za-z_][A-Za-z0-9_]*): (.+)")
 _UNKNOWN_KEY = re.compile(r"^unknown key '([^']+)'")
 _PLAIN = re.compile(r"[A-Za-z_][A-Za-z0-9_.-]*")
+_QUOTED = re.compile(r"'([^'\s]+)'")
 
 
 @dataclass(frozen=True)
@@ -91,9 +93,24 @@ def fix_action(f: Finding, lines: list) -> Action | None:
         at = _KEY_AT.match(line, start)  # a finding at a key: its value is replaced
         start = at.end() if at else start
         end, title = scalar_end(line, start), f"Write '{value}'"
+        if "did you mean" in f.hint:  # a misspelt name inside the value ('after: aa + 1 ms'): that name alone
+            start, end, title = _misspelt(f.message, value, line, start, end) or (start, end, title)
     if start >= len(line) or end <= start:
         return None
     return Action(title, QUICKFIX, (Edit(f.file, f.line - 1, start, f.line - 1, end, value),), f, preferred=True)
+
+
+def _misspelt(message: str, value: str, line: str, start: int, end: int) -> tuple | None:
+    """(start, end, title) of the name the message quotes that stands as a word in line[start:end] and is
+    closest to the proposed `value`, or None."""
+    best = None
+    for name in dict.fromkeys(_QUOTED.findall(message)):
+        m = re.search(rf"(?<![\w.]){re.escape(name)}(?![\w.])", line[start:end])
+        if m and name != value:
+            score = difflib.SequenceMatcher(None, name, value).ratio()
+            if best is None or score > best[0]:
+                best = (score, start + m.start(), start + m.end(), f"Change '{name}' to '{value}'")
+    return best[1:] if best else None
 
 
 def _yaml_word(text: str) -> str:
