@@ -98,6 +98,10 @@ def test_related_places_read_off_a_finding():
                 "s.yaml", 5, 5)
     names = {"a": SourcePos("s.yaml", 5, 5), "b": SourcePos("s.yaml", 8, 5)}
     assert [(r.line, r.character) for r in related_of(f, names)] == [(7, 4)]
+    f = Finding("hardware.wiring-line-shared", "error", "line 'trig' wires both 'dio2' (advance) and 'ao' (start)",
+                "r.yaml", 11, 13)
+    names = {"dio2": SourcePos("r.yaml", 6, 3), "ao": SourcePos("r.yaml", 9, 3), "trig": SourcePos("r.yaml", 3, 3)}
+    assert [(r.line, r.character) for r in related_of(f, names)] == [(5, 2), (8, 2)]
 
 
 def test_a_span_covers_the_word_at_the_place_and_stays_in_the_text():

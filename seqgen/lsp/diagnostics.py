@@ -47,7 +47,8 @@ class Diagnostic:
 _WORD = re.compile(r"[^\s:,{}\[\]#]+")
 _FILE_REF = re.compile(r"([\w./\\~-]+\.ya?ml):(\d+)(?::(\d+))?")
 _LINE_REF = re.compile(r"\blines? (\d+)\b(?![.\d])(?! ?[kMG]?Hz)")
-_CYCLE = re.compile(r"cycle: (.+?)(?:$|\s\|\|)")
+_CYCLE = re.compile(r"(?:cycle|loop): (.+?)(?:$|\s\|\|)")
+_BOTH = re.compile(r"\bboth '([^']+)'.*? and '([^']+)'")
 
 
 def message_of(f: Finding) -> str:
@@ -100,6 +101,12 @@ def related_of(f: Finding, names: Mapping[str, SourcePos] | None = None) -> tupl
                 out.append(Related(pos.file, pos.line - 1, max(pos.column - 1, 0), f"'{name}' in the cycle"))
             elif name.endswith((".yaml", ".yml")):
                 out.append(Related(name, 0, 0, f"{name} in the cycle"))
+    both = _BOTH.search(f.message)
+    if both:  # "line 'trig' wires both 'dio2' (advance) and 'ao' (start)": the two it names
+        for name in both.groups():
+            pos = (names or {}).get(name)
+            if pos is not None and pos.line:
+                out.append(Related(pos.file, pos.line - 1, max(pos.column - 1, 0), f"'{name}'"))
     seen, unique = set(), []
     for r in out:  # the finding's own place and repeats are left out
         key = (r.file, r.line)

@@ -192,18 +192,19 @@ def _anchors(src: Sources | None, path: Path) -> dict:
 
 
 def _names(src: Sources | None) -> dict:
-    """Block and param name -> its place, for the members of a cycle."""
+    """Block, param and rig device name -> its place, for the members of a cycle and "both" findings."""
     if src is None:
         return {}
-    docs: list[Document] = [src.main] + [d for d, *_ in src.used]
+    docs: list[Document] = [src.main] + [d for d, *_ in src.used] + ([src.rig] if src.rig is not None else [])
     out = {}
     for doc in docs:
         data = doc.data if isinstance(doc.data, dict) else {}
         for i, b in enumerate(data.get("blocks") if isinstance(data.get("blocks"), list) else ()):
             if isinstance(b, dict) and isinstance(b.get("name"), str):
                 out.setdefault(b["name"], doc.pos(("blocks", i, "name")))
-        for name in (data.get("params") if isinstance(data.get("params"), dict) else {}):
-            out.setdefault(str(name), doc.pos(("params", name)))
+        for key in ("params", "devices"):
+            for name in (data.get(key) if isinstance(data.get(key), dict) else {}):
+                out.setdefault(str(name), doc.pos((key, name)))
     return out
 
 
