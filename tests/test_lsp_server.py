@@ -20,6 +20,7 @@ import pytest_asyncio  # noqa: E402
 
 from lsprotocol import types as lsp  # noqa: E402
 
+from seqgen import CAUTION  # noqa: E402
 from seqgen.cli import main  # noqa: E402
 
 from .conftest import ROOT, SEQUENCES  # noqa: E402
@@ -66,11 +67,12 @@ async def test_demo_and_fault_diagnostics_equal_check_json(client):
         diags = await doc.open()
         want = check_json(rel)["findings"]
         assert shown(diags) == expected(want), rel
-        for d in diags:  # source, the fix in the message, the message as check prints it
+        for d in diags:  # source, the fix in the message, the message as check prints it, the caution
             f = d.data["finding"]
-            assert d.source == "seqgen" and f["message"] in d.message
+            assert d.source == "seqgen" and f["message"] in d.message and d.data["caution"] == CAUTION
             assert (f"fix: {f['hint']}" in d.message) == bool(f["hint"])
         doc.close()
+    assert any(CAUTION in m.message for m in client.log_messages)  # said once, when the session starts
 
 
 @pytest.mark.asyncio

@@ -1,6 +1,7 @@
 """`seqgen language-server`: the pygls wiring of the language server (stdio).
 
-Only protocol here: what a check finds is `session.analyse`, how it shows is `diagnostics`, what can be done
+Only protocol here (the safety caution goes to the client's log at start and rides in every diagnostic's
+data): what a check finds is `session.analyse`, how it shows is `diagnostics`, what can be done
 about it `actions`. Checks run on one worker thread, in order, so the event loop answers every request
 meanwhile; typing is debounced (DEBOUNCE_S after the last change), a save checks at once. A check that
 raises, or a request whose handler raises, is logged to the client (window/logMessage) and answered with
@@ -24,6 +25,7 @@ from lsprotocol import types as lsp
 from pygls.lsp.server import LanguageServer
 from pygls.uris import from_fs_path, to_fs_path
 
+from ..caution import CAUTION
 from ..pipeline import Result
 from ..resolve.sources import is_rig_document
 from ..version import __version__
@@ -155,7 +157,7 @@ def to_lsp(ls: SeqgenServer, d: Diagnostic, lines: list) -> lsp.Diagnostic:
         related.append(lsp.DiagnosticRelatedInformation(
             location=lsp.Location(uri=from_fs_path(str(p)), range=_range(ls, rl, r.line, r.character, r.character)),
             message=r.message))
-    data = {"finding": d.finding.to_dict()} if d.finding is not None else None
+    data = {"finding": d.finding.to_dict(), "caution": CAUTION} if d.finding is not None else {"caution": CAUTION}
     return lsp.Diagnostic(range=_range(ls, lines, d.line, d.start, d.end), message=d.message,
                           severity=lsp.DiagnosticSeverity(d.severity), code=d.code, source=SOURCE,
                           related_information=related or None, data=data)
@@ -184,6 +186,7 @@ def create_server() -> SeqgenServer:
 
     @server.feature(lsp.INITIALIZED)
     async def initialized(ls: SeqgenServer, params: lsp.InitializedParams) -> None:
+        log(ls, f"seqgen {__version__} language server; caution: {CAUTION}", lsp.MessageType.Info)
         caps = ls.client_capabilities.workspace
         watched = caps.did_change_watched_files if caps is not None else None
         if watched is None or not watched.dynamic_registration:
