@@ -172,12 +172,13 @@ async def test_a_use_file_changed_on_disk_rechecks_the_sequence(client, project)
     m = re.search(r"duration: (\d+(?:\.\d+)?) (ms|s)\b", text)
     prep.write_text(text.replace(m.group(0), f"duration: {m.group(1)}", 1), encoding="utf-8")
     forget(client, seq.uri)
+    forget(client, uri_of(prep))
     client.workspace_did_change_watched_files(lsp.DidChangeWatchedFilesParams(
         changes=[lsp.FileEvent(uri=uri_of(prep), type=lsp.FileChangeType.Changed)]))
     after = await wait_diagnostics(client, seq.uri)
     # shown in the sequence at its use: entry, and in the used file itself
     assert "schema.missing-unit" in {d.code for d in after}
-    assert "schema.missing-unit" in {d.code for d in client.diagnostics.get(uri_of(prep), ())}
+    assert "schema.missing-unit" in {d.code for d in await wait_diagnostics(client, uri_of(prep))}
 
 
 async def _actions(client, doc, line: int) -> list:
