@@ -522,6 +522,19 @@ def cmd_diff(args) -> int:
     return EXIT_OK if rep.identical else EXIT_FINDINGS
 
 
+def cmd_language_server(args) -> int:
+    from .lsp import INSTALL
+
+    try:
+        from .lsp.server import main as serve
+    except ImportError as exc:  # the optional extra is not installed
+        if (exc.name or "").split(".")[0] not in ("pygls", "lsprotocol"):
+            raise
+        print(f"seqgen language-server needs pygls, which is not installed: {INSTALL}", file=sys.stderr)
+        return EXIT_CANNOT_RUN
+    return serve()
+
+
 def _scan_options(p) -> None:
     p.add_argument("--jobs", type=int, default=None, metavar="N",
                    help="scanned sequences: worker processes (default: every core)")
@@ -614,6 +627,10 @@ def build_parser() -> argparse.ArgumentParser:
     e = sub.add_parser("explain", help="explain a finding code (or 'all' to list them)")
     e.add_argument("code", nargs="?", help="finding code, e.g. timing.overlap")
     e.set_defaults(func=cmd_explain)
+
+    ls = sub.add_parser("language-server", help="serve diagnostics and code actions to an editor "
+                        "(Language Server Protocol over stdio; needs pip install 'seqgen[lsp]')")
+    ls.set_defaults(func=cmd_language_server)
     return p
 
 

@@ -13,6 +13,7 @@ from __future__ import annotations
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Mapping
 
 from ..codes import (
     ABSOLUTE_PATH, EMPTY_SEQUENCE, FILE_MISSING, FRAGMENT, MISSING_KEY, RIG_FILE, RIG_OUTSIDE_ROOT, USE_CYCLE,
@@ -55,11 +56,12 @@ def _display(path: Path) -> str:
 
 
 def load_sources(path: str | Path, text: str | None = None, display: str | None = None, *,
-                 allow_outside_root: bool | None = None) -> Sources:
+                 allow_outside_root: bool | None = None, texts: Mapping[Path, str] | None = None) -> Sources:
     """Load and validate a sequence, the files it uses, and its rig.
 
-    `allow_outside_root`: let `use:` and `rig:` name files outside the project root (None: the
-    SEQGEN_ALLOW_OUTSIDE environment variable decides)."""
+    `text`: the sequence's text instead of the file's; `texts`: resolved path -> text read instead of that file
+    for the `use:` and `rig:` files (an editor's unsaved buffers); `allow_outside_root`: let `use:` and `rig:`
+    name files outside the project root (None: the SEQGEN_ALLOW_OUTSIDE environment variable decides)."""
     p = Path(path)
     # a file that cannot be read at all raises LoadError (carrying its finding)
     main = load_text(text, display or str(path)) if text is not None else load_file(p, display or _display(p))
@@ -67,7 +69,7 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
     if not _check_top(main, src.findings, "seqgen", VERSION):
         return src
     src.findings += validate_document(main, SEQUENCE_SCHEMA)
-    _load_uses(main, p.parent, [p.resolve()], src, allow_outside_root)
+    _load_uses(main, p.parent, [p.resolve()], src, allow_outside_root, texts or {})
     rig_text = main.data.get("rig")
     if isinstance(rig_text, str):
         rig_path = (p.parent / rig_text)
@@ -77,7 +79,7 @@ def load_sources(path: str | Path, text: str | None = None, display: str | None 
             return src
         src.findings += _absolute_path(main, ("rig",), rig_text, p.parent, p)
         try:
-            rig = load_file(rig_path, _display(rig_path))
+            rig = _read(rig_path, texts or {})
         except LoadError as exc:
             f = exc.finding
             if f.code == "schema.file-missing":
@@ -207,7 +209,20 @@ def check_rig_document(doc: Document) -> list[Finding]:
     return findings
 
 
-def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_outside_root: bool | None = None) -> None:
+def _read(path: Path, texts: Mapping[Path, str]) -> Document:
+    """The file at `path`, or the text given for it in `texts` (keyed by resolved path)."""
+    if texts:
+        try:
+            given = texts.get(path.resolve())
+        except (RuntimeError, OSError):  # a symlink loop: load_file says so
+            given = None
+        if given is not None:
+            return load_text(given, _display(path))
+    return load_file(path, _display(path))
+
+
+def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_outside_root: bool | None = None,
+               texts: Mapping[Path, str] | None = None) -> None:
     uses = doc.data.get("use") if isinstance(doc.data, dict) else None
     if not isinstance(uses, list):
         return
@@ -236,7 +251,7 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_out
                                      hint="remove one of the use: entries in the chain"))
             continue
         try:
-            used = load_file(target, _display(target))
+            used = _read(target, texts or {})
         except LoadError as exc:
             f = exc.finding
             if f.code == "schema.file-missing":
@@ -249,5 +264,5 @@ def _load_uses(doc: Document, folder: Path, chain: list, src: Sources, allow_out
         if not _check_top(used, src.findings, "seqgen", VERSION):
             continue
         src.findings += validate_document(used, SEQUENCE_SCHEMA)
-        _load_uses(used, target.parent, chain + [resolved], src, allow_outside_root)
+        _load_uses(used, target.parent, chain + [resolved], src, allow_outside_root, texts)
         src.used.append((used, entry, doc, ("use", i)))

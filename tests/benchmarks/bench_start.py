@@ -5,7 +5,11 @@ What an editor pays on every save: the wall time of a fresh process for
 - `python -m seqgen check sequences/na23_thermometry.yaml` (the small demo, the whole preflight),
 - `python -c "import seqgen"` (the package face),
 each the median of N fresh processes, and its ratio to the floor measured in the same run:
-`python -c "import numpy"` (an interpreter that loads numpy, which every command needs).
+`python -c "import numpy"` (an interpreter that loads numpy, which every command needs);
+then what typing costs in the language server (needs pygls): a cold `seqgen check` of the barrier demo (every
+shot of its scan, a fresh process) against the server's re-check of it after a one-character edit (a digit
+of a param changed, sent as didChange over stdio; the time until its diagnostics arrive, less the debounce),
+the median of N edits, and the issue's target: at most 0.1 x.
 The checkout is put first on PYTHONPATH, so the numbers are those of this tree, not an installed seqgen.
 Compiled bytecode is kept (as for an installed package) in a temporary folder removed at the end, also where
 PYTHONDONTWRITEBYTECODE is set; --as-is runs the commands in the environment as it is.
@@ -14,6 +18,7 @@ PYTHONDONTWRITEBYTECODE is set; --as-is runs the commands in the environment as 
 from __future__ import annotations
 
 import argparse
+import asyncio
 import os
 import statistics
 import shutil
@@ -31,6 +36,8 @@ COMMANDS = (
     ("check na23_thermometry.yaml", [sys.executable, "-m", "seqgen", "check", "sequences/na23_thermometry.yaml"]),
     ("import seqgen", [sys.executable, "-c", "import seqgen"]),
 )
+SCATTER = "sequences/na23_barrier_scatter.yaml"
+COLD_CHECK = [sys.executable, "-m", "seqgen", "check", SCATTER]
 
 
 def wall(cmd: list, env: dict) -> float:
@@ -73,6 +80,60 @@ def run(runs: int, env: dict, mode: str) -> None:
     for name, _ in COMMANDS:
         m = statistics.median(times[name])
         print(f"  {name:32s} {m:6.3f} s   {m / floor:5.1f} x floor")
+    try:
+        import pygls  # noqa: F401  (the language server's extra, seqgen[lsp])
+    except ImportError:
+        print("language server: pygls is not installed (pip install 'seqgen[lsp]'); re-check not measured")
+        return
+    cold = statistics.median([wall(COLD_CHECK, env) for _ in range(runs)])
+    warm = asyncio.run(_recheck_times(max(runs, 5) * 2, env))
+    m = statistics.median(warm)
+    print(f"  {'check barrier demo (cold)':32s} {cold:6.3f} s")
+    print(f"  {'language server re-check':32s} {m:6.3f} s   {m / cold:5.3f} x the cold check (target <= 0.1)")
+
+
+async def _recheck_times(edits: int, env: dict) -> list:
+    """Seconds from a one-character didChange of the barrier demo to its diagnostics, less the debounce."""
+    from lsprotocol import types as lsp
+    from pygls.lsp.client import LanguageClient
+    from pygls.uris import from_fs_path
+
+    sys.path.insert(0, str(ROOT))  # this checkout's seqgen, as the server runs it
+    from seqgen.lsp.server import DEBOUNCE_S
+
+    client = LanguageClient("bench", "1")
+    arrived: asyncio.Queue = asyncio.Queue()
+
+    @client.feature(lsp.TEXT_DOCUMENT_PUBLISH_DIAGNOSTICS)
+    def diagnostics(params):
+        arrived.put_nowait(time.perf_counter())
+
+    await client.start_io(sys.executable, "-m", "seqgen", "language-server", env=env, cwd=str(ROOT))
+    await client.initialize_async(lsp.InitializeParams(capabilities=lsp.ClientCapabilities()))
+    client.initialized(lsp.InitializedParams())
+    uri = from_fs_path(str(ROOT / SCATTER))
+    text = (ROOT / SCATTER).read_text(encoding="utf-8")
+    client.text_document_did_open(lsp.DidOpenTextDocumentParams(text_document=lsp.TextDocumentItem(
+        uri=uri, language_id="yaml", version=1, text=text)))
+    await asyncio.wait_for(arrived.get(), 120)
+    lines = text.split("\n")
+    row = next(i for i, x in enumerate(lines) if x.startswith("  sheet_time: 20 ms"))
+    col = lines[row].index("20") + 1  # the second digit: 20 ms <-> 21 ms, a param every later block reads
+    out = []
+    for k in range(edits + 1):
+        t0 = time.perf_counter()
+        client.text_document_did_change(lsp.DidChangeTextDocumentParams(
+            text_document=lsp.VersionedTextDocumentIdentifier(uri=uri, version=k + 2),
+            content_changes=[lsp.TextDocumentContentChangePartial(
+                range=lsp.Range(start=lsp.Position(line=row, character=col),
+                                end=lsp.Position(line=row, character=col + 1)), text="1" if k % 2 == 0 else "0")]))
+        t1 = await asyncio.wait_for(arrived.get(), 120)
+        if k:  # the first edit warms what opening did not (the base shot alone)
+            out.append(t1 - t0 - DEBOUNCE_S)
+    await client.shutdown_async(None)
+    client.exit(None)
+    await client.stop()
+    return out
 
 
 if __name__ == "__main__":
