@@ -7,9 +7,10 @@ meanwhile; typing is debounced (DEBOUNCE_S after the last change), a save checks
 raises, or a request whose handler raises, is logged to the client (window/logMessage) and answered with
 nothing rather than ending the server.
 
-For the features of other modules (completion, hover, definition): `document(ls, uri)` is the open
-document (resolved `path`, `text`, `version`), `latest_result(ls, uri)` the `seqgen.pipeline.Result` of its
-latest check that resolved a shot (its `shot`, `compiled`, `findings` and `sources`), or None.
+Completion, hover and definition are the plain functions of `complete`, `hover` and `definition`, called
+with the open document's unsaved text; hover also gets the Result of the document's latest check when that
+check read the text as it is now (`current_result`). Positions are converted between the client's code units
+and the text's characters here, so those functions count characters of the line.
 """
 
 from __future__ import annotations
@@ -31,7 +32,11 @@ from ..resolve.sources import is_rig_document
 from ..version import __version__
 from . import session as ses
 from .actions import Action, actions_for
+from .complete import completions
+from .definition import definition
 from .diagnostics import SOURCE, Diagnostic
+from .features import Completion, Span
+from .hover import hover
 
 DEBOUNCE_S = 0.3  # after the last keystroke: a burst of typing is checked once
 WATCHED = ("**/*.yaml", "**/*.yml")
@@ -63,6 +68,15 @@ def latest_result(ls: SeqgenServer, uri: str) -> Result | None:
     """The Result of the latest check of the document at `uri` that resolved a shot (else its latest), or None."""
     p = path_of(uri)
     return ses.latest_result(ls.session, p) if p is not None else None
+
+
+def current_result(ls: SeqgenServer, uri: str) -> Result | None:
+    """`latest_result` when its check read the document's text as it is now, else None (positions moved)."""
+    doc = document(ls, uri)
+    own = ls.session.analyses.get(doc.path) if doc is not None else None
+    if own is None or own.version != doc.version:
+        return None
+    return latest_result(ls, uri)
 
 
 def log(ls: SeqgenServer, message: str, kind: lsp.MessageType = lsp.MessageType.Error) -> None:
@@ -270,7 +284,71 @@ def create_server() -> SeqgenServer:
                 out.append(_code_action(ls, a, to_lsp(ls, d, lines)))
         return out
 
+    @server.feature(lsp.TEXT_DOCUMENT_COMPLETION,
+                    lsp.CompletionOptions(trigger_characters=[":", " ", "[", ",", "{", "(", "+", "-", "*", "/"]))
+    @guarded(default=None)
+    def completion(ls: SeqgenServer, params: lsp.CompletionParams):
+        doc = document(ls, params.text_document.uri)
+        if doc is None:
+            return None
+        lines = doc.text.split("\n")
+        pos = _from_client(ls, lines, params.position)
+        items = [_completion_item(c) for c in completions(doc.text, doc.path, pos.line, pos.character)]
+        return lsp.CompletionList(is_incomplete=False, items=items)
+
+    @server.feature(lsp.TEXT_DOCUMENT_HOVER)
+    @guarded(default=None)
+    def on_hover(ls: SeqgenServer, params: lsp.HoverParams):
+        doc = document(ls, params.text_document.uri)
+        if doc is None:
+            return None
+        lines = doc.text.split("\n")
+        pos = _from_client(ls, lines, params.position)
+        found = hover(doc.text, doc.path, pos.line, pos.character, current_result(ls, params.text_document.uri))
+        if found is None:
+            return None
+        return lsp.Hover(contents=lsp.MarkupContent(kind=lsp.MarkupKind.Markdown, value=found.markdown),
+                         range=_span(ls, lines, found.span) if found.span is not None else None)
+
+    @server.feature(lsp.TEXT_DOCUMENT_DEFINITION)
+    @guarded(default=None)
+    def on_definition(ls: SeqgenServer, params: lsp.DefinitionParams):
+        doc = document(ls, params.text_document.uri)
+        if doc is None:
+            return None
+        pos = _from_client(ls, doc.text.split("\n"), params.position)
+        out = []
+        for t in definition(doc.text, doc.path, pos.line, pos.character):
+            p = ses.file_of(t.path)
+            other = ls.session.docs.get(p)
+            out.append(lsp.Location(uri=other.uri if other is not None else from_fs_path(str(p)),
+                                    range=_span(ls, _lines(ls, p), t.span)))
+        return out or None
+
     return server
+
+
+_KIND = {"key": lsp.CompletionItemKind.Property, "action": lsp.CompletionItemKind.Function,
+         "rig-name": lsp.CompletionItemKind.Reference, "block": lsp.CompletionItemKind.Module,
+         "param": lsp.CompletionItemKind.Variable, "function": lsp.CompletionItemKind.Function,
+         "unit": lsp.CompletionItemKind.Unit, "value": lsp.CompletionItemKind.EnumMember}
+
+
+def _completion_item(c: Completion) -> lsp.CompletionItem:
+    doc = lsp.MarkupContent(kind=lsp.MarkupKind.Markdown, value=c.documentation) if c.documentation else None
+    return lsp.CompletionItem(label=c.label, kind=_KIND.get(c.kind, lsp.CompletionItemKind.Text),
+                              detail=c.detail or None, documentation=doc, insert_text=c.insert_text)
+
+
+def _from_client(ls: SeqgenServer, lines: list, position: lsp.Position) -> lsp.Position:
+    """A client position (its code units) as a line and a character index of the text."""
+    if 0 <= position.line < len(lines):
+        return ls.workspace.position_codec.position_from_client_units(lines, position)
+    return position
+
+
+def _span(ls: SeqgenServer, lines: list, span: Span) -> lsp.Range:
+    return _range(ls, lines, span.line, span.character, span.end_character, span.end_line)
 
 
 def _is_rig(result: Result) -> bool:
