@@ -85,6 +85,9 @@ ASSUMPTIONS = ("Model: column densities of the predicted clouds (Thomas-Fermi or
                "scattering, the camera's read noise.")
 
 
+MIN_DISPLAY_ASPECT = 0.6  # the drawn window's shorter side, at least this fraction of its longer one
+
+
 def _window(img):
     """(i0, i1, j0, j1): the pixels drawn, about the components (the whole frame without any in it)."""
     nx, ny = len(img.x), len(img.y)
@@ -101,9 +104,17 @@ def _window(img):
     if i1 - i0 < 2 or j1 - j0 < 2:
         return 0, nx, 0, ny
 
+    # at least MIN_DISPLAY_PIXELS, and no side under MIN_DISPLAY_ASPECT of the other (two clouds far apart
+    # along one axis would otherwise give a sliver too thin for its labels and ticks)
+    least = max(MIN_DISPLAY_PIXELS, int(MIN_DISPLAY_ASPECT * max(i1 - i0, j1 - j0)))
+
     def widen(a, b, n):
-        grow = max(0, MIN_DISPLAY_PIXELS - (b - a))
-        a, b = max(0, a - grow // 2), min(n, b + grow - grow // 2)
+        grow = max(0, least - (b - a))
+        a, b = a - grow // 2, b + grow - grow // 2
+        if a < 0:  # against one edge of the frame: grow on the other side
+            a, b = 0, b - a
+        if b > n:
+            a, b = max(0, a - (b - n)), n
         return a, b
 
     return (*widen(i0, i1, nx), *widen(j0, j1, ny))
