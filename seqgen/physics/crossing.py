@@ -41,6 +41,7 @@ LEFT_MARGIN = 3.0  # the grid starts this many initial half-lengths before the t
 TRANSMITTED_ROOM = 40e-6  # m of free path beyond the sheet before the right absorber (common practice, no source)
 ABSORBER_WAVELENGTHS = 20  # absorber width in de Broglie wavelengths at the push's speed (at least 30 um)
 ABSORBER_MIN = 30e-6
+SPIN_FLOOR = 1e-4  # the transmitted spin is read once this fraction of the atoms is across
 
 
 @dataclass(frozen=True)
@@ -254,6 +255,8 @@ def simulate_crossing(inp: CrossingInput, refine: int = 1) -> Crossing:
         tr = float(np.sum(n[i_mid:]) * dx) + float(np.real(np.trace(ev.absorbed_right)))
         rf = float(np.sum(n[:i_mid]) * dx) + float(np.real(np.trace(ev.absorbed_left)))
         rho = np.einsum("ix,jx->ij", p[:, i_far:], np.conj(p[:, i_far:])) * dx + ev.absorbed_right
+        if not np.real(np.trace(rho)) > SPIN_FLOOR:  # too few across to read a spin
+            rho = np.zeros((2, 2))
         rec["t"].append(t)
         rec["T"].append(tr)
         rec["R"].append(rf)

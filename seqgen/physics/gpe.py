@@ -30,7 +30,8 @@ import scipy.fft as sfft
 from scipy.constants import hbar
 
 CELLS_PER_FEATURE = 12  # grid cells across the narrowest potential feature (barrier 1/e^2 half-width)
-K_MARGIN = 1.5  # Nyquist momentum over the fastest momentum expected
+HEALING_CELLS = 1.5  # grid cells per healing length hbar / sqrt(2 m mu)
+K_MARGIN = 1.25  # Nyquist momentum over the fastest momentum expected
 DT_FRACTION = 0.5  # dt = DT_FRACTION hbar / (largest energy): transmissions to a few 1e-4 (halving dt: error / 4)
 ABSORB_EVERY = 8  # steps between two applications of the absorbing mask (its strength scales with it)
 SUPPORT_FLOOR = 1e-13  # the mean-field phase is computed where the density is above this fraction of its peak
@@ -86,10 +87,10 @@ def make_grid(x_min: float, x_max: float, dx: float) -> Grid:
 
 def grid_spacing(k_max: float, feature_m: float, healing_m: float | None = None) -> float:
     """dx resolving the fastest momentum (Nyquist K_MARGIN times above k_max), the narrowest feature
-    (CELLS_PER_FEATURE cells) and the healing length (two cells)."""
+    (CELLS_PER_FEATURE cells) and the healing length (HEALING_CELLS cells)."""
     dx = min(math.pi / (K_MARGIN * k_max), feature_m / CELLS_PER_FEATURE)
     if healing_m:
-        dx = min(dx, 0.5 * healing_m)
+        dx = min(dx, healing_m / HEALING_CELLS)
     return dx
 
 
