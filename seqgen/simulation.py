@@ -144,7 +144,7 @@ def text_lines(sim, file: str, findings, choice=None) -> list[str]:
     verdict = "disagrees with" if sim.disagrees else "agrees with"
     out.append(f"the simulation {verdict} the stationary model (tolerance {TOLERANCE_T:g} in the fraction, "
                f"{TOLERANCE_ROTATION:.0%} and {TOLERANCE_ROTATION_ABS:g} rad in the angle)"
-               + (": " + "; ".join(reason_texts(sim.reasons)) if sim.reasons else ""))
+               + ((": " if sim.disagrees else "; noted: ") + "; ".join(reason_texts(sim.reasons)) if sim.reasons else ""))
     out.append("time course (ms after the push starts; spin of the transmitted atoms):")
     out.append("  t (ms)    transmitted  reflected  precession  alignment")
     n = len(c.times)

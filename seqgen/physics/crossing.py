@@ -23,7 +23,7 @@ incident pole (0, 0, -1) (Phys. Rev. B 27, 6178 (1983)).
 
 from __future__ import annotations
 
-import bisect
+import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -41,6 +41,7 @@ LEFT_MARGIN = 3.0  # the grid starts this many initial half-lengths before the t
 TRANSMITTED_ROOM = 40e-6  # m of free path beyond the sheet before the right absorber (common practice, no source)
 ABSORBER_WAVELENGTHS = 20  # absorber width in de Broglie wavelengths at the push's speed (at least 30 um)
 ABSORBER_MIN = 30e-6
+STEPS_PER_WAIST = 40  # dt at most w_y / (40 v_top): the splitting error of the crossing stays ~1e-3 in T
 SPIN_FLOOR = 1e-4  # the transmitted spin is read once this fraction of the atoms is across
 
 
@@ -152,7 +153,8 @@ def choose_numerics(inp: CrossingInput, refine: int = 1) -> Numerics:
     """Grid and step from the physics (see `gpe.grid_spacing`, `gpe.time_step`): dx resolves the sheet and
     the fastest momentum m v_top / hbar (and the healing length at the initial peak density); the grid runs
     from LEFT_MARGIN initial half-lengths before the trap to TRANSMITTED_ROOM beyond the sheet's far edge,
-    with absorbers outside both ends (ABSORBER_WAVELENGTHS de Broglie wavelengths at the push's speed)."""
+    with absorbers outside both ends (ABSORBER_WAVELENGTHS de Broglie wavelengths at the push's speed); dt
+    also resolves the crossing of the sheet (STEPS_PER_WAIST steps per w_y / v_top)."""
     m = inp.mass
     k_max = m * inp.v_top / hbar
     half = initial_half_length(inp)
@@ -170,38 +172,30 @@ def choose_numerics(inp: CrossingInput, refine: int = 1) -> Numerics:
     e_pot = max([abs(p.v0) + abs(p.shift) for p in inp.pieces] + [0.0])
     e_drive = max([math.hypot(hbar * p.rabi, p.offset) for p in inp.pieces] + [0.0])
     e_max = max(0.5 * m * inp.v_top**2, e_pot, e_mf, e_drive, 1e-40)
-    dt = gpe.time_step(e_max, grid if inp.g else None, m) / refine
+    dt = min(gpe.time_step(e_max, grid if inp.g else None, m), inp.waist_y / (STEPS_PER_WAIST * inp.v_top)) / refine
     steps = int(math.ceil(inp.t_end / dt))
     strength = gpe.absorber_strength(width, inp.v_top)
     return Numerics(grid.n, grid.dx, x_min, x_max, inp.t_end / steps, steps, width, strength, refine)
 
 
 class _Drive:
-    """local_at(t) for gpe.evolve: one gpe.Local per piece, built when the piece is first met."""
+    """The gpe.Local of each piece, built when asked for."""
 
     def __init__(self, inp: CrossingInput, grid: gpe.Grid):
         self.inp, self.grid = inp, grid
-        self.starts = [p.t0 for p in inp.pieces]
-        x = grid.x
         lo, hi = (grid.index(inp.distance + s * GRID_HALF_WIDTH * inp.waist_y) for s in (-1, 1))
         self.window = slice(lo, hi + 1)
-        self.profile = sheet_profile(x, inp.distance, inp.waist_y)
-        self.index, self.loc = None, None
+        self.profile = sheet_profile(grid.x, inp.distance, inp.waist_y)
 
-    def __call__(self, t):
-        i = max(bisect.bisect_right(self.starts, t) - 1, 0)
-        if i != self.index:
-            p = self.inp.pieces[i]
-            x = self.grid.x
-            v = 0.5 * self.inp.mass * p.omega_path**2 * x**2 - p.force * x + p.v0 * self.profile
-            if p.rabi:
-                w = self.window
-                prof = self.profile[w]
-                self.loc = gpe.Local(v, w, np.zeros(prof.size), p.shift * prof + p.offset, p.rabi * prof)
-            else:
-                self.loc = gpe.Local(v)
-            self.index = i
-        return self.loc
+    def local(self, i: int) -> gpe.Local:
+        p = self.inp.pieces[i]
+        x = self.grid.x
+        v = 0.5 * self.inp.mass * p.omega_path**2 * x**2 - p.force * x + p.v0 * self.profile
+        if not p.rabi:
+            return gpe.Local(v)
+        w = self.window
+        prof = self.profile[w]
+        return gpe.Local(v, w, np.zeros(prof.size), p.shift * prof + p.offset, p.rabi * prof)
 
 
 def bloch_of(rho) -> np.ndarray:
@@ -245,12 +239,11 @@ def simulate_crossing(inp: CrossingInput, refine: int = 1) -> Crossing:
     i_near = grid.index(inp.distance - GRID_HALF_WIDTH * inp.waist_y)
     bins = max(1, int(math.ceil(grid.n / N_PICTURE_X)))
     nb = grid.n // bins
-    every = max(1, num.steps // N_RECORDS)
     packet_time = max(inp.on, next((p.t1 for p in inp.pieces if p.force), 0.0))
     rec = dict(t=[], T=[], R=[], bloch=[], dens=[])
     packet = {}
 
-    def observe(k, t, p, ev):
+    def read(t, p, ev):
         n = gpe.density(p)
         tr = float(np.sum(n[i_mid:]) * dx) + float(np.real(np.trace(ev.absorbed_right)))
         rf = float(np.sum(n[:i_mid]) * dx) + float(np.real(np.trace(ev.absorbed_left)))
@@ -268,10 +261,25 @@ def simulate_crossing(inp: CrossingInput, refine: int = 1) -> Crossing:
             packet["x"] = float(np.sum(x[:i_near] * n[:i_near]) / max(np.sum(n[:i_near]), 1e-300))
 
     ab = gpe.Absorber(int(round(num.absorber_width / dx)), num.absorber_strength)
-    ev = gpe.evolve(psi, grid, m, num.dt, num.steps, _Drive(inp, grid), g=inp.g, absorber=ab, observe=observe,
-                    observe_every=every)
-    if (num.steps % every) != 0:
-        observe(num.steps, ev.t, ev.psi, ev)
+    drive = _Drive(inp, grid)
+    record_dt = inp.t_end / N_RECORDS
+
+    def observe(k, t, p, ev):
+        if not rec["t"] or t > rec["t"][-1] + 1e-3 * record_dt:
+            read(t, p, ev)
+
+    # piece by piece, each in whole steps of at most dt: the drive changes only between steps
+    ev = gpe.Evolution(psi, 0.0, np.zeros((2, 2), complex), np.zeros((2, 2), complex), 0)
+    steps = 0
+    for i, p in enumerate(inp.pieces):
+        n = max(1, int(math.ceil((p.t1 - p.t0) / num.dt - 1e-9)))
+        step = (p.t1 - p.t0) / n
+        every = max(1, int(round(record_dt / step)))
+        loc = drive.local(i)
+        ev = gpe.evolve(ev.psi, grid, m, step, n, lambda t, loc=loc: loc, t0=p.t0, g=inp.g, absorber=ab,
+                        observe=observe, observe_every=every, absorbed=(ev.absorbed_left, ev.absorbed_right))
+        steps += n
+    observe(steps, ev.t, ev.psi, ev)
     psi = ev.psi
     n = gpe.density(psi)
     # late: before the sheet and moving towards it (current j = hbar/m Im(conj(psi) dpsi/dx) > 0)
@@ -292,7 +300,7 @@ def simulate_crossing(inp: CrossingInput, refine: int = 1) -> Crossing:
     total = float(np.sum(n) * dx) + left + right
     if "k" not in packet:
         packet.update(k=np.zeros(1), w=np.ones(1), t=packet_time, x=0.0)
-    return Crossing(num, rec["T"][-1], rec["R"][-1], late, left, right, abs(1.0 - total),
+    return Crossing(dataclasses.replace(num, steps=steps), rec["T"][-1], rec["R"][-1], late, left, right, abs(1.0 - total),
                     tuple(float(v) for v in bl) if ok else None, *angles,
                     np.array(rec["t"]), np.array(rec["T"]), np.array(rec["R"]), bt, prec_t, align_t,
                     x[:nb * bins].reshape(nb, bins).mean(axis=1), np.array(rec["dens"]).transpose(1, 0, 2),

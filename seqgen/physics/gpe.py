@@ -249,16 +249,21 @@ def density(psi, out=None):
 
 
 def evolve(psi0, grid: Grid, mass: float, dt: float, n_steps: int, local_at, *, t0: float = 0.0, g: float = 0.0,
-           absorber: Absorber | None = None, observe=None, observe_every: int = 0) -> Evolution:
+           absorber: Absorber | None = None, observe=None, observe_every: int = 0, absorbed=None) -> Evolution:
     """Strang split-step evolution of psi0 (2, n) over n_steps steps of dt from t0.
 
     local_at(t) returns the `Local` at time t (return the same object while it does not change: its
     exponentials are cached on identity). g: 1D coupling times the atom number (J m; psi normalised to 1;
     < 0 attractive). observe(step, t, psi, evolution_so_far) is called at t0 and every observe_every steps
     with psi synchronised (a full Strang step), not to be modified. The absorber (if any) is applied every
-    ABSORB_EVERY steps, what it takes is kept per side as a spin density matrix."""
+    ABSORB_EVERY steps, what it takes is kept per side as a spin density matrix (added to `absorbed`, the
+    (left, right) matrices of an earlier run, when given). A potential that changes only at step boundaries
+    keeps the scheme second order: evolve piece by piece for piecewise-constant drives."""
     psi = np.array(psi0, dtype=complex, order="C").reshape(2, grid.n)
     st = _Stepper(grid, float(mass), float(dt), float(g), absorber)
+    if absorbed is not None:
+        st.rho_left += absorbed[0]
+        st.rho_right += absorbed[1]
 
     def snapshot(k, t):
         return Evolution(psi, t, st.rho_left.copy(), st.rho_right.copy(), k)

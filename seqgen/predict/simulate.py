@@ -141,8 +141,10 @@ def _trap(sp, beams: tuple):
     return (w, np.asarray(t.axes, dtype=float)) if np.all(np.isfinite(w)) and np.all(w > 0) else (None, None)
 
 
-def _trap_at(shot, t, direction):
-    """(omega along the path, omega_perp or None, names of the beams on) at time t; (0, None, ()) without."""
+def _trap_at(shot, t, direction, flight: bool = False):
+    """(omega along the path, omega_perp or None, names of the beams on) at time t; (0, None, ()) without.
+    `sample.trap_frequencies` is the trap before the push; in `flight` it holds across the path only (the
+    checks' free release along it)."""
     s = shot.sample
     if s.trap_frequencies_hz:
         w = 2 * np.pi * np.asarray(s.trap_frequencies_hz, dtype=float)
@@ -152,7 +154,7 @@ def _trap_at(shot, t, direction):
         w, axes = _trap(species(shot), beams)
         if w is None:
             return 0.0, None, ()
-    along = path_frequency(w, axes, direction)
+    along = 0.0 if flight and s.trap_frequencies_hz else path_frequency(w, axes, direction)
     cos = np.abs(axes.T @ np.asarray(direction, dtype=float))
     across = np.argsort(cos)[:2]  # the two axes most nearly across the path
     names = tuple(b.name for b in trap_beams(shot) if played(shot, b.power_channel, [t])[0] > 0)
@@ -239,7 +241,7 @@ def build_setup(shot, interactions: bool = True):
                 force = abs(moment * coil.gradient_per_amp * float(played(shot, coil.current_channel, [tm])[0]))
             else:
                 force = m * inc.speed / float(push.args["duration"])
-        w_path, w_perp, names = _trap_at(shot, tm, direction)
+        w_path, w_perp, names = _trap_at(shot, tm, direction, flight=True)
         held.update(names)
         if w_perp and omega_perp is None and tm >= push.t0:
             omega_perp = w_perp
