@@ -35,6 +35,7 @@ K_MARGIN = 1.25  # Nyquist momentum over the fastest momentum expected
 DT_FRACTION = 0.5  # dt = DT_FRACTION hbar / (largest energy): transmissions to a few 1e-4 (halving dt: error / 4)
 ABSORB_EVERY = 8  # steps between two applications of the absorbing mask (its strength scales with it)
 SUPPORT_FLOOR = 1e-13  # the mean-field phase is computed where the density is above this fraction of its peak
+PADE_LIMIT = 0.1  # largest mean-field phase per step taken by the Pade form of exp(i angle) (else cos, sin)
 SUPPORT_PAD = 32  # cells added on each side of that region (it is found again every ABSORB_EVERY steps)
 
 
@@ -161,6 +162,31 @@ class Evolution:
     steps: int
 
 
+def unit_phase(angle, out, work):
+    """exp(i angle) into `out` (complex, angle's shape), `work` (3, n) scratch. Where every |angle| <= PADE_LIMIT
+    the (2,2) Pade form R = (1 + z/2 + z^2/12) / (1 - z/2 + z^2/12), z = i angle: of modulus 1 exactly, its
+    phase off by at most angle^5 / 720 (< 1.4e-8 rad); else cos and sin."""
+    a, b, d = work
+    if angle.size and float(np.max(np.abs(angle))) > PADE_LIMIT:
+        np.cos(angle, out=out.real)
+        np.sin(angle, out=out.imag)
+        return out
+    np.multiply(angle, angle, out=a)
+    np.multiply(a, -1.0 / 12.0, out=a)
+    a += 1.0  # a = 1 - angle^2 / 12
+    np.multiply(angle, 0.5, out=b)  # b = angle / 2
+    np.multiply(a, b, out=out.imag)
+    np.multiply(a, a, out=a)
+    np.multiply(b, b, out=b)
+    np.subtract(a, b, out=out.real)
+    np.add(a, b, out=d)
+    np.reciprocal(d, out=d)
+    out.real *= d
+    d *= 2.0
+    out.imag *= d
+    return out
+
+
 class _Stepper:
     """Preallocated buffers and the cached local exponentials of one run."""
 
@@ -168,6 +194,9 @@ class _Stepper:
         self.grid, self.dt, self.g = grid, dt, g
         self.kin = np.exp(-0.5j * hbar * grid.k**2 * dt / mass)
         self.dens = np.empty(grid.n)
+        self.angle = np.empty(grid.n)
+        self.phase = np.empty(grid.n, dtype=complex)
+        self.work = np.empty((3, grid.n))
         self.support = slice(0, grid.n)
         self.cache = {}
         self.absorber = absorber
@@ -196,20 +225,32 @@ class _Stepper:
     def local(self, psi, loc: Local, t: float, frac: float):
         """psi <- exp(-i (v + g n + H_ab) frac dt / hbar) psi, in place."""
         base, pair = self._terms(loc, frac)
-        psi *= base
         if self.g:
             # g |psi|^2 only where the atoms are: below SUPPORT_FLOOR of the peak its phase is < 1e-13 rad
-            sl = self.support
-            angle = density(psi[:, sl])
+            i0, i1 = self.support.start, self.support.stop
+            if i0 > 0:
+                psi[:, :i0] *= base[:i0]
+            if i1 < psi.shape[1]:
+                psi[:, i1:] *= base[i1:]
+            part = psi[:, i0:i1]
+            angle = np.add(np.abs(part[0]) ** 2, np.abs(part[1]) ** 2, out=self.angle[i0:i1])
             angle *= -self.g * frac * self.dt / hbar
-            psi[:, sl] *= np.exp(1j * angle)
+            phase = unit_phase(angle, self.phase[i0:i1], self.work[:, i0:i1])
+            phase *= base[i0:i1]
+            part *= phase
+        else:
+            psi *= base
         if pair is not None:
             w = loc.window
             u00, u01, u11 = pair
-            rot = np.exp(-1j * loc.delta * t)
             a, b = psi[0, w].copy(), psi[1, w]
-            psi[0, w] = u00 * a + (u01 * rot) * b
-            psi[1, w] = (u01 * np.conj(rot)) * a + u11 * b
+            if loc.delta:
+                rot = np.exp(-1j * loc.delta * t)
+                psi[0, w] = u00 * a + (u01 * rot) * b
+                psi[1, w] = (u01 * np.conj(rot)) * a + u11 * b
+            else:
+                psi[0, w] = u00 * a + u01 * b
+                psi[1, w] = u01 * a + u11 * b
 
     def kinetic(self, psi):
         """The kinetic step; returns the new array (the FFTs work in place where they can)."""
@@ -351,7 +392,7 @@ def ground_state(grid: Grid, mass: float, v, g: float = 0.0, *, psi0=None, dtau:
     psi = psi.astype(complex)
     psi /= math.sqrt(np.sum(np.abs(psi) ** 2) * dx)
     if dtau is None:
-        dtau = 0.1 * hbar / e_scale
+        dtau = 0.4 * hbar / e_scale
     steps = 0
     e_prev = math.inf
     for stage in range(3):
