@@ -27,6 +27,9 @@ WHY = {
                      "follows a condensate's wave function",
     "no_trap": "there is no trap before the push (no trap beams on, no sample.trap_frequencies): the initial "
                "ground state is undefined",
+    "too_large": "the crossing needs {0} grid points and {1} time steps (a far sheet, a long flight or fast atoms): "
+                 "beyond what seqgen simulates (2^18 points, 4e9 points x steps); bring the sheet closer or "
+                 "shorten the barrier",
 }
 REASON_NAMES = {"velocity_spread": "incident energies", "finite_barrier_time": "finite barrier time",
                 "mean_field": "mean field", "time_dependence": "time dependence"}
@@ -52,6 +55,7 @@ def to_json(sim, file: str, findings, choice=None) -> dict:
                     "state": list(s.state), "partner": list(s.partner) if s.partner else None},
         "model": {"equation": "1D two-component Gross-Pitaevskii, Strang split-step Fourier",
                   "direction": list(s.direction), "atoms": s.atoms, "interactions": s.interactions,
+                  "interactions_requested": s.requested,
                   "omega_perp_rad_s": _num(s.omega_perp), "scattering_length_m": _num(s.scattering_length),
                   "g1d_j_m": _num(s.g1d), "mu_1d_peak_j": _num(c.mu_1d_peak), "mu_1d_over_hbar_omega_perp": _num(sim.one_d),
                   "omega_before_rad_s": inp.omega_before, "sheet_distance_m": inp.distance, "waist_y_m": inp.waist_y,
@@ -118,7 +122,9 @@ def text_lines(sim, file: str, findings, choice=None) -> list[str]:
                    f"{inp.omega_before / (2 * math.pi):.4g} Hz along the path), peak mean field "
                    f"{fmt_energy(c.mu_1d_peak)} = {sim.one_d:.3g} hbar omega_perp ({regime})")
     else:
-        out.append(f"model: 1D two-component Schroedinger equation (interactions off), initial state the ground "
+        off = ("interactions off" if not s.requested else "interactions off: no guide across the path or no "
+               "scattering length of the state to reduce them to 1D")
+        out.append(f"model: 1D two-component Schroedinger equation ({off}), initial state the ground "
                    f"state of the trap before the push (2 pi x {inp.omega_before / (2 * math.pi):.4g} Hz along the path)")
     out.append(f"grid: {num.n} points, dx = {fmt_length(num.dx)}, {fmt_length(num.x_min)} to {fmt_length(num.x_max)}, "
                f"absorbing edges {fmt_length(num.absorber_width)} wide at both ends (took {fmt_pct(c.absorbed_left)} "
@@ -173,7 +179,7 @@ def command(res, choice, args, out=None) -> int:
         where = ""
         if sim.barrier is not None:
             where = f" (barrier '{sim.barrier.block}', line {sim.barrier.pos.line})"
-        print(f"seqgen: {args.file}: {WHY[sim.reason]}{where}", file=sys.stderr)
+        print(f"seqgen: {args.file}: {WHY[sim.reason].format(*sim.size)}{where}", file=sys.stderr)
         return 2
     findings = simulation_findings(res.shot, sim)
     doc = to_json(sim, str(args.file), findings, choice)

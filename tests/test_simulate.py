@@ -137,3 +137,31 @@ def test_the_time_course_reads_the_spin_only_once_atoms_are_across(capsys):
     first = next(i for i, v in enumerate(course["transmitted"]) if v > 1e-3)
     assert all(v is None for v in course["precession_rad"][: max(first - 5, 0)])
     assert math.isfinite(course["precession_rad"][-1])
+
+
+def _variant(tmp_path, old, new):
+    """The few-atom fixture with `old` replaced by `new`, beside copies of the rig and the file it uses."""
+    import shutil
+
+    shutil.copy(SEQUENCES / "rigs" / "na23_demo_rig.yaml", tmp_path / "rig.yaml")
+    (tmp_path / "common").mkdir(exist_ok=True)
+    shutil.copy(SEQUENCES / "common" / "na23_prep.yaml", tmp_path / "common" / "na23_prep.yaml")
+    text = FEW.read_text(encoding="utf-8").replace("../../sequences/rigs/na23_demo_rig.yaml", "rig.yaml")
+    text = text.replace("../../sequences/common/na23_prep.yaml", "common/na23_prep.yaml")
+    assert old in text
+    path = tmp_path / "variant.yaml"
+    path.write_text(text.replace(old, new), encoding="utf-8")
+    return path
+
+
+def test_a_crossing_too_large_to_simulate_is_refused_in_one_line(tmp_path, capsys):
+    path = _variant(tmp_path, "sheet_time: 20 ms", "sheet_time: 5 s")
+    assert main(["simulate", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "time steps" in err and "bring the sheet closer" in err and "Traceback" not in err
+
+
+def test_a_thermal_sample_is_not_simulated(tmp_path, capsys):
+    path = _variant(tmp_path, "condensed: true", "condensed: false")
+    assert main(["simulate", str(path)]) == 2
+    assert "not a condensate" in capsys.readouterr().err

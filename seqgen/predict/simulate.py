@@ -32,7 +32,7 @@ import numpy as np
 from scipy import constants as sc
 
 from ..physics.barrier import GRID_HALF_WIDTH, barrier_height, gaussian_profile, sheet_grid, spin_rotation
-from ..physics.crossing import CrossingInput, Piece, angles_of, simulate_crossing
+from ..physics.crossing import CrossingInput, Piece, angles_of, choose_numerics, simulate_crossing
 from ..physics.gpe import g1d
 from ..physics.passage import path_frequency
 from .barrier import analyse, incident_velocity, sheet_distance
@@ -46,16 +46,19 @@ TOLERANCE_ROTATION_ABS = 1e-3  # ... at least this much (rad)
 REASON_SHARE = 0.5  # a cause is named when it alone accounts for half the tolerance
 LATE_FRACTION = 0.02  # atoms that never met the sheet, named as a cause beyond this fraction
 ONE_D_LIMIT = 1.0  # mu_1D / hbar omega_perp above this: the atoms fill more than the guide's ground state
+MAX_POINTS = 2**18  # grids beyond this, or ...
+MAX_WORK = 4e9  # ... points x steps beyond this (the demo: 8e7), are refused: minutes to hours of computing
 V_TOP_SIGMAS = 4.0  # the fastest velocity expected: push + 4 spreads, or + 1.5 times the 1D release's edge
 
 
 @dataclass(frozen=True)
 class NoSimulation:
     """Why the shot has nothing to simulate (message text in `seqgen.simulation`): reason, barrier (the
-    action, or None)."""
+    action, or None), size ((points, steps) of a grid refused as too large)."""
 
     reason: str
     barrier: object = None
+    size: tuple = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -63,7 +66,8 @@ class Setup:
     """The simulation input from the shot: the barrier and push actions, the state and its partner, atoms,
     direction of the path, omega_perp (rad/s, None: no guide), scattering length (m), g1D (J m), interactions,
     the crossing input, the peak Rabi frequency met (rad/s; 0: no drive), the drive's offset (J), shift (J)
-    and the sheet's time-averaged height V0 (J), held (trap beams on after the push)."""
+    and the sheet's time-averaged height V0 (J), held (trap beams on after the push), requested (interactions
+    asked for: without a guide across the path or a scattering length they stay off)."""
 
     barrier: object
     push: object
@@ -81,6 +85,7 @@ class Setup:
     shift: float
     v0: float
     held: tuple
+    requested: bool = True
 
 
 @dataclass(frozen=True, eq=False)
@@ -271,12 +276,15 @@ def build_setup(shot, interactions: bool = True):
         v_top = max(v_top, inc.speed + 3.0 * math.sqrt(mu / m))  # the 1D release reaches 2 sqrt(mu/m)
     d = sheet_distance(shot, act, inc)
     cross = CrossingInput(m, d, waist_y, w_before, tuple(pieces), t_end, g, v_top, on, off)
+    num = choose_numerics(cross)
+    if not (num.n <= MAX_POINTS and num.n * num.steps <= MAX_WORK):
+        return NoSimulation("too_large", act, (num.n, num.steps))
     drive = pred.drive
     return Setup(act, push, initial, partner, float(s.atoms), direction, omega_perp, a_s, g1d(omega_perp, a_s)
                  if omega_perp and a_s else 0.0, use, cross, rabi_max,
                  float(drive.offset_j) if drive is not None and drive.offset_j is not None else 0.0,
                  float(drive.shift_j) if drive is not None and drive.shift_j is not None else 0.0,
-                 float(np.mean(v0s)) if v0s else 0.0, tuple(sorted(held)))
+                 float(np.mean(v0s)) if v0s else 0.0, tuple(sorted(held)), bool(interactions))
 
 
 def stationary_over_packet(setup: Setup, crossing) -> Stationary:
