@@ -57,7 +57,8 @@ def to_json(sim, file: str, findings, choice=None) -> dict:
                   "direction": list(s.direction), "atoms": s.atoms, "interactions": s.interactions,
                   "interactions_requested": s.requested,
                   "omega_perp_rad_s": _num(s.omega_perp), "scattering_length_m": _num(s.scattering_length),
-                  "g1d_j_m": _num(s.g1d), "mu_1d_peak_j": _num(c.mu_1d_peak), "mu_1d_over_hbar_omega_perp": _num(sim.one_d),
+                  "g1d_j_m": _num(s.g1d), "mu_1d_peak_j": _num(c.mu_1d_peak),
+                  "mu_1d_over_hbar_omega_perp": _num(sim.one_d),
                   "omega_before_rad_s": inp.omega_before, "sheet_distance_m": inp.distance, "waist_y_m": inp.waist_y,
                   "sheet_on_s": inp.on, "sheet_off_s": inp.off, "v0_j": s.v0, "rabi_peak_rad_s": s.rabi,
                   "held": list(s.held)},
@@ -80,7 +81,8 @@ def to_json(sim, file: str, findings, choice=None) -> dict:
                                              "precession_rad": _num(pk.precession),
                                              "alignment_rad": _num(pk.alignment), "at_s": c.packet_time},
         "comparison": {"disagrees": sim.disagrees, "tolerance_transmitted": TOLERANCE_T,
-                       "tolerance_rotation_relative": TOLERANCE_ROTATION, "tolerance_rotation_rad": TOLERANCE_ROTATION_ABS,
+                       "tolerance_rotation_relative": TOLERANCE_ROTATION,
+                       "tolerance_rotation_rad": TOLERANCE_ROTATION_ABS,
                        "reasons": [{"name": n, "value": v} for n, v in sim.reasons],
                        "explained": reason_texts(sim.reasons)},
         "findings": [f.to_dict() for f in findings],
@@ -117,7 +119,8 @@ def text_lines(sim, file: str, findings, choice=None) -> list[str]:
                   "beyond the 1D regime: the atoms fill more than the guide's transverse ground state, so the 1D "
                   "mean field overstates the true one")
         out.append(f"model: 1D two-component Gross-Pitaevskii, g1D = 2 hbar omega_perp a = {s.g1d:.3g} J m "
-                   f"(omega_perp = 2 pi x {s.omega_perp / (2 * math.pi):.4g} Hz, a = {fmt_length(s.scattering_length)}); "
+                   f"(omega_perp = 2 pi x {s.omega_perp / (2 * math.pi):.4g} Hz, "
+                   f"a = {s.scattering_length * 1e9:.4g} nm); "
                    f"initial state the ground state of the trap before the push (2 pi x "
                    f"{inp.omega_before / (2 * math.pi):.4g} Hz along the path), peak mean field "
                    f"{fmt_energy(c.mu_1d_peak)} = {sim.one_d:.3g} hbar omega_perp ({regime})")
@@ -125,7 +128,8 @@ def text_lines(sim, file: str, findings, choice=None) -> list[str]:
         off = ("interactions off" if not s.requested else "interactions off: no guide across the path or no "
                "scattering length of the state to reduce them to 1D")
         out.append(f"model: 1D two-component Schroedinger equation ({off}), initial state the ground "
-                   f"state of the trap before the push (2 pi x {inp.omega_before / (2 * math.pi):.4g} Hz along the path)")
+                   f"state of the trap before the push (2 pi x {inp.omega_before / (2 * math.pi):.4g} Hz along the "
+                   "path)")
     out.append(f"grid: {num.n} points, dx = {fmt_length(num.dx)}, {fmt_length(num.x_min)} to {fmt_length(num.x_max)}, "
                f"absorbing edges {fmt_length(num.absorber_width)} wide at both ends (took {fmt_pct(c.absorbed_left)} "
                f"back, {fmt_pct(c.absorbed_right)} forward); dt = {fmt_time(num.dt)}, {num.steps} steps to "
@@ -150,7 +154,8 @@ def text_lines(sim, file: str, findings, choice=None) -> list[str]:
     verdict = "disagrees with" if sim.disagrees else "agrees with"
     out.append(f"the simulation {verdict} the stationary model (tolerance {TOLERANCE_T:g} in the fraction, "
                f"{TOLERANCE_ROTATION:.0%} and {TOLERANCE_ROTATION_ABS:g} rad in the angle)"
-               + ((": " if sim.disagrees else "; noted: ") + "; ".join(reason_texts(sim.reasons)) if sim.reasons else ""))
+               + ((": " if sim.disagrees else "; noted: ") + "; ".join(reason_texts(sim.reasons))
+                  if sim.reasons else ""))
     out.append("time course (ms after the push starts; spin of the transmitted atoms):")
     out.append("  t (ms)    transmitted  reflected  precession  alignment")
     n = len(c.times)

@@ -102,8 +102,8 @@ class Crossing:
     Time courses (times s from the push's start): transmitted_t, reflected_t, bloch_t (nt, 3; nan before any
     transmission), precession_t, alignment_t. Picture: density (2, nt, nx) 1/m per component on x_picture.
     packet_k / packet_weight: the incident momentum distribution (rad/m) at packet_time (the sheet on, or the
-    push's end if later), of the atoms before the sheet, centred at packet_x (m). mu (J) and energy (J per atom) of the initial state;
-    mu_1d_peak: g n(0), the peak mean-field energy."""
+    push's end if later), of the atoms before the sheet, centred at packet_x (m). mu (J) and energy (J per
+    atom) of the initial state; mu_1d_peak: g n(0), the peak mean-field energy."""
 
     numerics: Numerics
     transmitted: float
@@ -300,7 +300,8 @@ def simulate_crossing(inp: CrossingInput, refine: int = 1) -> Crossing:
     total = float(np.sum(n) * dx) + left + right
     if "k" not in packet:
         packet.update(k=np.zeros(1), w=np.ones(1), t=packet_time, x=0.0)
-    return Crossing(dataclasses.replace(num, steps=steps), rec["T"][-1], rec["R"][-1], late, left, right, abs(1.0 - total),
+    return Crossing(dataclasses.replace(num, steps=steps), rec["T"][-1], rec["R"][-1], late, left, right,
+                    abs(1.0 - total),
                     tuple(float(v) for v in bl) if ok else None, *angles,
                     np.array(rec["t"]), np.array(rec["T"]), np.array(rec["R"]), bt, prec_t, align_t,
                     x[:nb * bins].reshape(nb, bins).mean(axis=1), np.array(rec["dens"]).transpose(1, 0, 2),

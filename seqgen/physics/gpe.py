@@ -253,7 +253,7 @@ class _Stepper:
                 psi[1, w] = u01 * a + u11 * b
 
     def kinetic(self, psi):
-        """The kinetic step; returns the new array (the FFTs work in place where they can)."""
+        """The kinetic step; returns psi advanced (both FFTs overwrite their input: psi's buffer is reused)."""
         f = sfft.fft(psi, axis=-1, overwrite_x=True)
         f *= self.kin
         return sfft.ifft(f, axis=-1, overwrite_x=True)

@@ -175,7 +175,7 @@ def _changes(shot, output, t0, t1):
     return [x for seg in shot.segments if seg.output == output for x in (seg.t0, seg.t1) if t0 < x < t1]
 
 
-def _drive_at(shot, sp, act, beam, waist_y, power, depth, f_mod, initial, partner):
+def _drive_at(shot, sp, beam, waist_y, power, depth, f_mod, initial, partner):
     """(rabi rad/s, shift J, offset J) of the modulated sheet at these played values (as the checks)."""
     from ..physics.drive import two_photon_rabi_from_modulated_beam
     from ..physics.optical import modulated_peak_intensity
@@ -258,7 +258,7 @@ def build_setup(shot, interactions: bool = True):
             act.args.get("mod_frequency"))
         key = (power, depth, f_mod)
         if key not in drive_cache:
-            drive_cache[key] = _drive_at(shot, sp, act, beam, waist_y, power, depth, f_mod, initial, partner)
+            drive_cache[key] = _drive_at(shot, sp, beam, waist_y, power, depth, f_mod, initial, partner)
         rabi, shift, offset = drive_cache[key]
         rabi_max = max(rabi_max, rabi)
         if v0 > 0:
