@@ -228,3 +228,15 @@ def test_absorbers_take_the_atoms_with_their_spin():
     assert np.trace(rho).real == pytest.approx(1.0, abs=2e-3)
     assert rho[0, 1] / np.trace(rho) == pytest.approx(-0.5j, abs=1e-3)  # a conj(b) = 1 * conj(i) / 2
     assert float(np.sum(np.abs(ev.psi) ** 2) * grid.dx) < 2e-3
+
+
+def test_mean_field_phase_factor_is_unitary_and_within_the_pade_bound():
+    # the (2,2) Pade approximant of exp(z) errs by z^5 / 720 to leading order (Baker & Graves-Morris, Pade
+    # Approximants, 2nd ed., Cambridge 1996 (from memory)); on the imaginary axis it has modulus 1 exactly
+    angle = np.linspace(-0.1, 0.1, 2001)
+    out = gpe.unit_phase(angle, np.empty(angle.size, dtype=complex), np.empty((3, angle.size)))
+    assert np.max(np.abs(np.abs(out) - 1.0)) < 1e-15
+    assert np.all(np.abs(out - np.exp(1j * angle)) <= np.abs(angle) ** 5 / 720 * 1.01 + 1e-15)
+    big = np.linspace(-3.0, 3.0, 13)  # beyond the Pade range: cos and sin
+    out = gpe.unit_phase(big, np.empty(big.size, dtype=complex), np.empty((3, big.size)))
+    assert np.max(np.abs(out - np.exp(1j * big))) < 1e-15

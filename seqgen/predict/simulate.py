@@ -24,7 +24,6 @@ run once more at half dx and half dt (the change is the convergence estimate).
 
 from __future__ import annotations
 
-import functools
 import math
 from dataclasses import dataclass
 
@@ -131,9 +130,8 @@ def find_barrier(shot):
     return NoSimulation("no_push", acts[0])
 
 
-@functools.lru_cache(maxsize=64)
 def _trap(sp, beams: tuple):
-    """(omegas, axes) of the trap of these beams (content-keyed), or (None, None)."""
+    """(omegas, axes) of the trap of these beams, or (None, None)."""
     from ..physics.optical import find_trap_minimum
 
     if not beams:
@@ -146,17 +144,20 @@ def _trap(sp, beams: tuple):
     return (w, np.asarray(t.axes, dtype=float)) if np.all(np.isfinite(w)) and np.all(w > 0) else (None, None)
 
 
-def _trap_at(shot, t, direction, flight: bool = False):
+def _trap_at(shot, t, direction, flight: bool = False, memo=None):
     """(omega along the path, omega_perp or None, names of the beams on) at time t; (0, None, ()) without.
     `sample.trap_frequencies` is the trap before the push; in `flight` it holds across the path only (the
-    checks' free release along it)."""
+    checks' free release along it). `memo`: a dict reused by one caller for the same beams at other times."""
     s = shot.sample
     if s.trap_frequencies_hz:
         w = 2 * np.pi * np.asarray(s.trap_frequencies_hz, dtype=float)
         axes = np.eye(3)
     else:
         beams = tuple(gaussian_beams(shot, [t])[0])
-        w, axes = _trap(species(shot), beams)
+        memo = {} if memo is None else memo
+        if beams not in memo:
+            memo[beams] = _trap(species(shot), beams)
+        w, axes = memo[beams]
         if w is None:
             return 0.0, None, ()
     along = 0.0 if flight and s.trap_frequencies_hz else path_frequency(w, axes, direction)
@@ -234,7 +235,7 @@ def build_setup(shot, interactions: bool = True):
     moment = rep.moment if rep and rep.kind == "magnetic" and not rep.no_force else None
     initial = (s.F, s.mF)
     partner = pred.drive.partner if pred.drive is not None and pred.drive.unsupported is None else None
-    pieces, held, omega_perp, rabi_max = [], set(), None, 0.0
+    pieces, held, omega_perp, rabi_max, traps = [], set(), None, 0.0, {}
     drive_cache, v0s = {}, []
     for a, b in zip(cuts, cuts[1:]):
         if b <= a:
@@ -246,7 +247,7 @@ def build_setup(shot, interactions: bool = True):
                 force = abs(moment * coil.gradient_per_amp * float(played(shot, coil.current_channel, [tm])[0]))
             else:
                 force = m * inc.speed / float(push.args["duration"])
-        w_path, w_perp, names = _trap_at(shot, tm, direction, flight=True)
+        w_path, w_perp, names = _trap_at(shot, tm, direction, flight=True, memo=traps)
         held.update(names)
         if w_perp and omega_perp is None and tm >= push.t0:
             omega_perp = w_perp
