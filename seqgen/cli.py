@@ -1,4 +1,4 @@
-"""Command line: seqgen check | build | show | diff | plot | explain.
+"""Command line: seqgen check | build | show | diff | plot | simulate | explain.
 
 Exit codes: 0 no error findings, 1 error findings, 2 the command could not
 run (usage, unreadable file, output folder exists without --force, another
@@ -486,6 +486,19 @@ def cmd_show(args) -> int:
     return _exit_code(res, args.file)
 
 
+def cmd_simulate(args) -> int:
+    """The push-and-barrier stage of the base shot (or shot N) simulated in time (seqgen/simulation.py)."""
+    from .simulation import command
+
+    try:
+        res, choice, _ = _preflight_shot(args.file, args.shot)
+    except _ShotRefused as exc:
+        return _cannot_run(exc)
+    if res.shot is None:  # nothing to simulate: the findings that say why
+        return _report(res, args) or EXIT_CANNOT_RUN
+    return command(res, choice, args)
+
+
 def cmd_explain(args) -> int:
     from .codes import ALL, close_codes, explain, summary_line
 
@@ -623,6 +636,21 @@ def build_parser() -> argparse.ArgumentParser:
     _shot_option(g, "draw shot N of the scan (run order, as in 'seqgen check --json'); default: the base shot")
     _allow_outside_option(g)
     g.set_defaults(func=cmd_plot)
+
+    m = sub.add_parser("simulate", help="simulate the push onto a barrier in time (1D two-component "
+                       "Gross-Pitaevskii) beside the stationary prediction")
+    m.add_argument("file")
+    m.add_argument("-o", "--output", default=None, metavar="DIR",
+                   help="also write DIR/simulation.json and space-time density pictures (PNG, SVG)")
+    m.add_argument("--force", action="store_true", help="replace the files in DIR")
+    m.add_argument("--json", action="store_true", help="print JSON")
+    m.add_argument("--interactions", choices=("on", "off"), default="on",
+                   help="the mean field (default on); off: single atoms, to compare with the stationary model")
+    m.add_argument("--no-convergence", action="store_true",
+                   help="skip the second run at half dx and half dt (the convergence estimate)")
+    _shot_option(m, "simulate shot N of the scan (run order, as in 'seqgen check --json'); default: the base shot")
+    _allow_outside_option(m)
+    m.set_defaults(func=cmd_simulate)
 
     e = sub.add_parser("explain", help="explain a finding code (or 'all' to list them)")
     e.add_argument("code", nargs="?", help="finding code, e.g. timing.overlap")
