@@ -156,8 +156,9 @@ def text_lines(sim, file: str, findings, choice=None) -> list[str]:
                f"{TOLERANCE_ROTATION:.0%} and {TOLERANCE_ROTATION_ABS:g} rad in the angle)"
                + ((": " if sim.disagrees else "; noted: ") + "; ".join(reason_texts(sim.reasons))
                   if sim.reasons else ""))
-    out.append("time course (ms after the push starts; spin of the transmitted atoms):")
-    out.append("  t (ms)    transmitted  reflected  precession  alignment")
+    out.append("time course (ms after the push starts; near side: the atoms not beyond the sheet, reflected or not yet "
+               "arrived; spin of the transmitted atoms):")
+    out.append("  t (ms)    transmitted  near side  precession  alignment")
     n = len(c.times)
     for i in sorted({int(round(j * (n - 1) / (TIME_ROWS - 1))) for j in range(TIME_ROWS)}):
         out.append(f"  {c.times[i] * 1e3:8.3f}  {c.transmitted_t[i]:11.4f}  {c.reflected_t[i]:9.4f}  "

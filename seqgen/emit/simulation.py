@@ -15,7 +15,8 @@ COMPONENT_FILES = ("density_initial", "density_partner")
 
 
 def density_figure(sim, component: int, title: str):
-    """Figure: the density of one component (1/m, its own colour scale, square-root stretch so that a faint
+    """Figure: the density of one component (atoms per um: the wave function's density, normalised to one, times
+    the atom number; its own colour scale, square-root stretch so that a faint
     transmitted or transferred part shows) against position along the path (um) and time after the push
     starts (ms), with the sheet's centre and the times it is on and off."""
     from matplotlib.colors import PowerNorm
@@ -23,7 +24,7 @@ def density_figure(sim, component: int, title: str):
 
     c = sim.crossing
     inp = sim.setup.crossing
-    dens = np.asarray(c.density[component], dtype=float)
+    dens = np.asarray(c.density[component], dtype=float) * sim.setup.atoms * 1e-6  # per m of one atom -> atoms per um
     top = float(dens.max()) if dens.size else 0.0
     fig = Figure(figsize=(7.0, 4.2), dpi=110)
     ax = fig.add_subplot(1, 1, 1)
@@ -41,7 +42,7 @@ def density_figure(sim, component: int, title: str):
     ax.set_ylabel("time after the push starts (ms); dotted: sheet on / off")
     ax.set_title(title, fontsize=9)
     bar = fig.colorbar(im, ax=ax)
-    bar.set_label("line density (1/m, square-root scale)" + ("" if top > 0 else ": none"))
+    bar.set_label(f"atoms per um (of {sim.setup.atoms:.3g}; square-root scale)" + ("" if top > 0 else ": none"))
     fig.tight_layout()
     return fig
 
