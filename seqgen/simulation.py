@@ -23,8 +23,8 @@ WHY = {
     "no_push": "no push sends atoms onto the barrier (none before it, one away from it, or one without a usable "
                "speed): nothing to simulate",
     "no_prediction": "the barrier has no stationary prediction (its beam has no waist, or the push no speed)",
-    "not_condensed": "the sample is not a condensate (sample.condensed: true): the Gross-Pitaevskii simulation "
-                     "follows a condensate's wave function",
+    "not_condensed": "the sample is a thermal cloud, not a condensate (a condensate says `condensed: true` in its "
+                     "sample): the Gross-Pitaevskii simulation follows a condensate's wave function",
     "no_trap": "there is no trap before the push (no trap beams on, no sample.trap_frequencies): the initial "
                "ground state is undefined",
     "too_large": "the crossing needs {0} grid points and {1} time steps (a far sheet, a long flight or fast atoms): "
@@ -174,19 +174,46 @@ def titles(sim) -> tuple:
     return (f"{fmt_state(*s.state)} (initial state): {base}", f"{part} (coupled by the sheet): {base}")
 
 
+def _refuse(args, out, text: str, findings=(), code: int = 2, doc_extra: dict | None = None) -> int:
+    """Say why nothing was simulated: on stderr as one line (with the findings that say why, as `check`
+    prints them), or as a JSON object with `--json`; the caution either way."""
+    if args.json:
+        doc = {"file": str(args.file), "simulated": None, "refused": text,
+               "findings": [f.to_dict() for f in findings], "caution": CAUTION, **(doc_extra or {})}
+        out.write(json.dumps(doc, indent=2, sort_keys=True) + "\n")
+        return code
+    for f in findings:
+        out.write(format_text(f) + "\n")
+    print(f"seqgen: {args.file}: {text}", file=sys.stderr)
+    out.write("caution: " + CAUTION + "\n")
+    return code
+
+
 def command(res, choice, args, out=None) -> int:
-    """Run `seqgen simulate` on the preflighted shot `res.shot`; print; write -o DIR. Exit code."""
+    """Run `seqgen simulate` on the preflighted shot `res.shot`; print; write -o DIR. Exit code: 0 simulated,
+    1 the shot has error findings (not simulated: what it would play is not what the sequence means), 2 nothing
+    to simulate or the output cannot be written."""
     from .emit.plot.files import OutputExists
+    from .findings import has_errors
 
     out = out or sys.stdout
+    errors = [f for f in res.findings if f.severity == "error" and not f.accepted]
+    if has_errors(res.findings):
+        return _refuse(args, out, f"{len(errors)} error finding(s) in this shot: fix them (or accept them with a "
+                       "reason) before simulating it, as for a build", errors, code=1)
+    if args.output and not args.force:  # refused before seconds of simulation, not after
+        from .emit.simulation import output_files
+
+        there = [p for p in output_files(args.output) if p.exists()]
+        if there:
+            return _refuse(args, out, f"{there[0]} exists; use --force to replace it")
     interactions = getattr(args, "interactions", "on") != "off"
     sim = simulate(res.shot, interactions=interactions, convergence=not getattr(args, "no_convergence", False))
     if isinstance(sim, NoSimulation):
         where = ""
         if sim.barrier is not None:
             where = f" (barrier '{sim.barrier.block}', line {sim.barrier.pos.line})"
-        print(f"seqgen: {args.file}: {WHY[sim.reason].format(*sim.size)}{where}", file=sys.stderr)
-        return 2
+        return _refuse(args, out, f"{WHY[sim.reason].format(*sim.size)}{where}", doc_extra={"reason": sim.reason})
     findings = simulation_findings(res.shot, sim)
     doc = to_json(sim, str(args.file), findings, choice)
     if args.output:
@@ -195,11 +222,9 @@ def command(res, choice, args, out=None) -> int:
         try:
             write_outputs(args.output, sim, doc, titles(sim), force=args.force)
         except OutputExists as exc:
-            print(f"seqgen: {exc}", file=sys.stderr)
-            return 2
+            return _refuse(args, out, str(exc))
         except OSError as exc:
-            print(f"seqgen: cannot write {args.output}: {exc.strerror or exc}", file=sys.stderr)
-            return 2
+            return _refuse(args, out, f"cannot write {args.output}: {exc.strerror or exc}")
     if args.json:
         out.write(json.dumps(doc, indent=2, sort_keys=True) + "\n")
     else:

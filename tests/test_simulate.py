@@ -165,3 +165,31 @@ def test_a_thermal_sample_is_not_simulated(tmp_path, capsys):
     path = _variant(tmp_path, "condensed: true", "condensed: false")
     assert main(["simulate", str(path)]) == 2
     assert "not a condensate" in capsys.readouterr().err
+
+
+def test_a_shot_with_error_findings_is_not_simulated(capsys):
+    """What a shot with errors would play is not what the sequence means: like a build, simulate refuses (exit 1)
+    and prints the errors; with --json an object says so. The fault's expected code is its file's own header."""
+    fault = SEQUENCES / "faults" / "hard_limit.yaml"
+    code = fault.read_text(encoding="utf-8").splitlines()[0].split("expect:")[1].split("@")[0].strip()
+    assert main(["simulate", str(fault)]) == 1
+    captured = capsys.readouterr()
+    assert code in captured.out and "caution" in captured.out and "error finding" in captured.err
+    assert main(["simulate", str(fault), "--json"]) == 1
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["simulated"] is None and code in {f["code"] for f in doc["findings"]} and doc["caution"]
+
+
+def test_nothing_to_simulate_with_json_is_an_object_with_the_caution(capsys):
+    assert main(["simulate", str(SEQUENCES / "na23_thermometry.yaml"), "--json"]) == 2
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["simulated"] is None and doc["reason"] == "no_barrier" and doc["caution"]
+
+
+def test_an_existing_output_is_refused_before_simulating(tmp_path, capsys):
+    out = tmp_path / "sim"
+    out.mkdir()
+    (out / "simulation.json").write_text("{}", encoding="utf-8")
+    assert main(["simulate", str(FEW), "--interactions", "off", "-o", str(out)]) == 2
+    assert "--force" in capsys.readouterr().err
+    assert (out / "simulation.json").read_text(encoding="utf-8") == "{}"  # nothing overwritten

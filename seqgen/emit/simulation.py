@@ -5,10 +5,12 @@ file without force."""
 from __future__ import annotations
 
 import json
+import textwrap
 from pathlib import Path
 
 import numpy as np
 
+from ..caution import CAUTION
 from .plot.files import OutputExists, figure_bytes, write_atomic
 
 COMPONENT_FILES = ("density_initial", "density_partner")
@@ -38,12 +40,14 @@ def density_figure(sim, component: int, title: str):
     for t in (inp.on, inp.off):
         if extent[2] <= t * 1e3 <= extent[3]:
             ax.axhline(t * 1e3, color="w", lw=0.6, ls=":")
-    ax.set_xlabel("position along the push path (um); dashed: sheet centre")
-    ax.set_ylabel("time after the push starts (ms); dotted: sheet on / off")
+    ax.set_xlabel("position along the push path (um); dashed: sheet centre; dotted: sheet on, off")
+    ax.set_ylabel("time after the push starts (ms)")
     ax.set_title(title, fontsize=9)
     bar = fig.colorbar(im, ax=ax)
     bar.set_label(f"atoms per um (of {sim.setup.atoms:.3g}; square-root scale)" + ("" if top > 0 else ": none"))
-    fig.tight_layout()
+    fig.tight_layout(rect=(0, 0.07, 1, 1))
+    fig.text(0.01, 0.01, "\n".join(textwrap.wrap("caution: " + CAUTION, 150)), fontsize=5.5, color="#444444",
+             va="bottom")  # a picture leaves the report it came with: it carries the caution itself
     return fig
 
 
