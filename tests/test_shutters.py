@@ -85,3 +85,34 @@ def test_a_bad_shutter_in_the_rig_is_a_finding_at_its_line(tmp_path, shutter, co
     found = [f for f in preflight(tmp_path / "s.yaml").findings if f.code == code]
     line = next(i for i, ln in enumerate(rig.splitlines(), 1) if f"shutter: {shutter}" in ln)
     assert found and found[0].file.endswith("rig.yaml") and found[0].line == line
+
+
+def _with_close(tmp_path, name: str, close_at: str) -> Path:
+    """The caesium good sequence with its probe shutter closed `close_at` after the image action starts."""
+    text = (GOOD / "cs133_crossed_clock_sg.yaml").read_text(encoding="utf-8").replace("rig: rig_cs133.yaml",
+                                                                                      "rig: ../good/rig_cs133.yaml")
+    old = ("      - image: {setup: side, probe_power: 30 uW, duration: 40 us}\n      - hold: {duration: 1 ms}\n"
+           "      - set: {channel: probe_shutter, value: 0}")
+    assert old in text
+    new = ("      - image: {setup: side, probe_power: 30 uW, duration: 40 us}\n"
+           f"      - set: {{channel: probe_shutter, value: 0, at: {close_at}}}")
+    return _copy(tmp_path, name, text.replace(old, new))
+
+
+def test_a_shutter_closed_during_the_pulse_says_to_close_it_later_and_that_passes(tmp_path):
+    """Open before the 40 us pulse, closed 10 us into it: the fix is a later close, by at least the 100 us
+    jitter after the pulse's end (rig_cs133.yaml), counted from the image's start: 140 us (+1 us margin)."""
+    (f,) = _codes(preflight(_with_close(tmp_path, "closed.yaml", "110 us")).findings)
+    assert f.severity == "error" and "close the shutter after the pulse" in f.hint
+    wait = f.hint.split("to at least ")[1].split(" after")[0]
+    assert wait.endswith("us") and float(wait.split()[0]) >= 100
+    # the image starts at the action after the 100 us hold: the pulse runs from 100 us to 140 us in the block
+    later = float(wait.split()[0]) + 140
+    assert not _codes(preflight(_with_close(tmp_path, "later.yaml", f"{later:g} us")).findings)
+
+
+def test_a_close_exactly_one_jitter_after_the_pulse_is_quiet(tmp_path):
+    """The fix of the jitter warning moves the close to exactly the jitter after the pulse: that passes."""
+    (f,) = _codes(preflight(_with_close(tmp_path, "near.yaml", "150 us")).findings)
+    assert f.severity == "warning"
+    assert not _codes(preflight(_with_close(tmp_path, "exact.yaml", "240 us")).findings)  # 140 us + 100 us jitter

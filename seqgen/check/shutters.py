@@ -57,14 +57,20 @@ def beam_shuttered(shot):
             since = edges[(edges <= t0) & ~opened]
             never = not opened.any()
             lead = out.jitter_s + 1e-6
+            if is_open[0]:  # open as the pulse starts, closed before it ends: the close comes too early
+                hint = (f"close the shutter after the pulse: move the `set: {{channel: {beam.shutter}, value: 0}}` to "
+                        f"at least {fmt_when(outward(lead))} after t={fmt_when(t1)}, the end of the pulse (its "
+                        "latency is compensated)")
+            else:
+                hint = (f"open the shutter before the pulse: `- set: {{channel: {beam.shutter}, value: 1}}` at least "
+                        f"{fmt_when(outward(lead))} before t={fmt_when(t0)} (its latency is compensated), and close "
+                        "it after the pulse")
             yield make(BEAM_SHUTTERED,
                        f"beam '{beam.name}' is blocked: its shutter '{beam.shutter}' is closed, as played, "
                        + ("for the whole shot" if never else _closed_span(float(shut[0]), edges, opened, since))
                        + f" during the {what} from t={fmt_when(t0)} to t={fmt_when(t1)}",
                        act.pos, block=act.block, time_s=t0,
-                       hint=f"open the shutter before the pulse: `- set: {{channel: {beam.shutter}, value: 1}}` at least "
-                            f"{fmt_when(outward(lead))} before t={fmt_when(t0)} (its latency is compensated), and close "
-                            "it after the pulse",
+                       hint=hint,
                        data={"closed_at_s": float(shut[0]), "pulse_start_s": t0, "pulse_end_s": t1})
             continue
         if not out.jitter_s:
@@ -74,7 +80,7 @@ def beam_shuttered(shot):
         near = [(t0 - float(before[-1]), "opens", float(before[-1]))] if len(before) else []
         near += [(float(after[0]) - t1, "closes", float(after[0]))] if len(after) else []
         for gap, verb, at in near:
-            if gap < out.jitter_s:
+            if gap < out.jitter_s * (1 - 1e-9):  # a gap of exactly the jitter (the fix applied) is enough
                 yield make(BEAM_SHUTTERED,
                            f"the shutter '{beam.shutter}' of beam '{beam.name}' {verb} at t={fmt_when(at)}, "
                            f"{fmt_when(gap)} from the {what} (t={fmt_when(t0)} to {fmt_when(t1)}), within its "

@@ -327,12 +327,16 @@ def _vector(raw, path, doc, findings):
     return v
 
 
+def _a(word: str) -> str:
+    return ("an " if word[:1] in "aeiou" else "a ") + word
+
+
 def _shutter(name, base, outputs, doc, findings):
     """A beam's shutter channel: a digital output (an unknown name has its finding from `ref` already)."""
     if name is None or name not in outputs:
         return None
     if outputs[name].kind != "digital":
-        findings.append(make(BAD_RIG, f"beam '{base[-1]}' has shutter '{name}', a {outputs[name].kind} channel: a "
+        findings.append(make(BAD_RIG, f"beam '{base[-1]}' has shutter '{name}', {_a(outputs[name].kind)} channel, not a digital one: a "
                              "shutter is open or closed", doc.pos(base + ("shutter",)),
                              hint="name the digital channel that opens the shutter (open at 1)"))
         return None
