@@ -23,7 +23,7 @@ def plot_images(args, *, pick, refused, report, writing, cannot_run) -> int:
     write; cannot_run(message) says why on stderr and gives exit code 2."""
     from .emit.claim import OutputBusy
     from .emit.plot import OutputExists, PlotError, figure_bytes, write_atomic
-    from .emit.plot.images import images_figure, images_npz
+    from .emit.plot.images import images_figure, images_npz, why_text
     from .findings import has_errors
     from .predict.images import predicted_images
 
@@ -35,6 +35,9 @@ def plot_images(args, *, pick, refused, report, writing, cannot_run) -> int:
         return cannot_run(f"'{out}': give a file ending in .png, .svg, .pdf (a picture) or .npz (the arrays)")
     if out.exists() and not args.force:
         return cannot_run(f"{out} exists; use --force to replace it")
+    if args.noise_seed is not None and args.noise_seed < 0:
+        return cannot_run(f"--noise-seed {args.noise_seed}: give a whole number 0 or above (the same seed, the same "
+                          "noise)")
     file = args.files[0]
     try:
         res, choice, scan = pick(file, args.shot)
@@ -53,6 +56,9 @@ def plot_images(args, *, pick, refused, report, writing, cannot_run) -> int:
             r, c, _ = pick(file, n)
             results.append((c.caption() if c is not None else f"shot {n}", r))
     rows = [(label, predicted_images(r.shot, args.noise_seed) if r.shot is not None else ()) for label, r in results]
+    if not any(imgs for _, imgs in rows):
+        return cannot_run(f"{file} has no `image` action: no picture to predict (plot without --images draws the "
+                          "timeline)")
 
     def write():
         if fmt == "npz":
@@ -81,7 +87,7 @@ def plot_images(args, *, pick, refused, report, writing, cannot_run) -> int:
     for label, imgs in rows:
         for img in imgs:
             what = (f"peak OD {img.peak_od:.3g}, I/I_sat {img.saturation_at_atoms:.3g} at the atoms, atoms from the "
-                    f"OD {img.atoms_from_od:.4g}" if img.od is not None else f"no image ({img.why})")
+                    f"OD {img.atoms_from_od:.4g}" if img.od is not None else f"no predicted image: {why_text(img.why)}")
             print(f"  {label + ': ' if label else ''}{img.block} at {fmt_si(img.time_s, 's')}: {what}")
     print("caution: " + CAUTION)
     return code

@@ -179,3 +179,15 @@ def test_rig_keys_out_of_range_are_findings_at_their_line(project):
     line = next(i for i, ln in enumerate(rig.read_text(encoding="utf-8").split("\n"), 1) if "numerical_aperture" in ln)
     bad = sorted((f.line, f.code) for f in res.findings if f.severity == "error")
     assert bad == [(line, "schema.bad-value"), (line, "schema.bad-value")]
+
+
+def test_no_image_action_and_a_negative_seed_are_refused_without_a_file(tmp_path, capsys):
+    out = tmp_path / "i.png"
+    no_image = SEQUENCES / "good" / "rb87_sigma_pulse.yaml"
+    assert "image:" not in no_image.read_text(encoding="utf-8")
+    assert main(["plot", str(no_image), "--images", "-o", str(out)]) == 2
+    assert "no `image` action" in capsys.readouterr().err and not out.exists()
+    assert main(["plot", str(SEQUENCES / "na23_thermometry.yaml"), "--images", "--noise-seed", "-1",
+                 "-o", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "--noise-seed" in err and "Traceback" not in err and not out.exists()

@@ -37,6 +37,11 @@ _WHY = {
     pi.NO_ATOMS: "the sample gives no atom number",
     pi.NO_COMPONENTS: "no internal state holds atoms at the image",
 }
+def why_text(why: str) -> str:
+    """Why an image has no prediction, in words."""
+    return _WHY.get(why, why)
+
+
 _FLAGS = {
     pi.WEAK_PROBE: "probe intensity unknown (no probe_power on an analog probe line, no saturation_parameter): "
                    "weak-probe limit, no shot noise",
