@@ -89,3 +89,12 @@ def test_scan_summary_shows_one_row_per_shot_and_where_codes_fire():
     assert summ.passing == sum(1 for r in summ.rows if r[2]) and 0 < summ.passing < len(written)
     _no_network_no_script(p)
     assert summ.text.startswith(str(SCANNED)) or SCANNED.name in summ.text
+
+
+def test_a_scanned_files_result_says_it_is_the_base_shot():
+    scanned = ROOT / "sequences" / "na23_barrier_scatter.yaml"
+    assert "scan:" in scanned.read_text(encoding="utf-8")
+    text = " ".join(_parse(seqgen.preflight(scanned)._repr_html_()).text)
+    assert "base shot" in text
+    plain = ROOT / "sequences" / "na23_thermometry.yaml"
+    assert "base shot" not in " ".join(_parse(seqgen.preflight(plain)._repr_html_()).text)

@@ -62,11 +62,23 @@ def result_html(res, *, timeline: bool = True) -> str:
         head = (f"rig <code>{_e(shot.rig.name)}</code>, {_e(fmt_when(shot.duration_s))}, {len(shot.blocks)} blocks, "
                 f"{len(shot.segments)} writes; " + ("may be built" if res.ok else "error findings block a build"))
     parts = ['<div class="seqgen-nb">', _STYLE, f"<p><b>seqgen preflight</b>: {_counts(res.findings)}. {head}.</p>",
+             _base_shot_line(res),
              findings_table(res.findings), _caution()]
     if timeline and shot is not None:
         parts.append(_timeline(res))
     parts.append("</div>")
     return "".join(parts)
+
+
+def _base_shot_line(res) -> str:
+    """For a scanned file: that this is its base shot (each scanned param at its written value)."""
+    from ..scan.plan import has_scans
+
+    if res.sources is None or not has_scans(res.sources):
+        return ""
+    return ("<p>This file scans params: this is its <b>base shot</b> (each scanned param at its written "
+            "<code>value:</code>). <code>seqgen.scan_summary(seqgen.run_scan(seqgen.plan_scan(file)))</code> "
+            "shows every shot.</p>")
 
 
 def _timeline(res) -> str:
