@@ -25,7 +25,8 @@ def left_on(shot):
             continue
         if abs(s.v1 - out.safe) > 1e-12 * max(1.0, abs(out.safe)):
             serious = out.channel in power_channels or out.channel in coil_channels
-            yield make(LEFT_ON, f"'{name}' ends at {s.v1:.6g} {out.phys_unit}, not its safe value {out.safe:g}",
+            unit = f" {out.phys_unit}" if out.phys_unit else ""
+            yield make(LEFT_ON, f"'{name}' ends at {s.v1:.6g}{unit}, not its safe value {out.safe:g}{unit}",
                        s.pos, severity="error" if serious else "warning", block=s.block, time_s=s.t1,
                        hint=f"end with a set back to {out.safe:g}, or list it under end: leave_on")
 

@@ -9,7 +9,7 @@ from dataclasses import dataclass, replace
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from .expr import ExprError, evaluate, is_plain_name, names_in
-from .units import DIMENSIONLESS, Qty, UnitError, close_units, describe_kind, dims_of, kind_of, kind_units, parse_simple, \
+from .units import DIMENSIONLESS, Qty, UnitError, close_units, describe_kind, dims_of, format_qty, kind_of, kind_units, parse_simple, \
     same_dims, split_quantity, suggest_unit, unit_name
 from ..codes import (
     BAD_EXPRESSION, BAD_VALUE, DIVISION_BY_ZERO, MISSING_UNIT, NEGATIVE_DURATION, NON_FINITE, OVERFLOW, UNDEFINED_PARAM,
@@ -113,9 +113,10 @@ def quantity(raw, expect: str, doc: Document, path: tuple, env: dict, *, positiv
         raise Bad(make(OVERFLOW, f"{label}: {raw!r} is an absurd magnitude", pos, hint="check for a typo in the exponent"))
     code = NEGATIVE_DURATION if same_dims(want, dims_of("s")) else BAD_VALUE  # a 0 K temperature is no duration
     if positive and q.value <= 0:
-        raise Bad(make(code, f"{label} must be positive, got {raw!r}", pos, hint="give a positive value"))
+        raise Bad(make(code, f"{label} must be positive, got {_value_text(raw, q, env)}", pos, hint="give a positive value"))
     if nonnegative and q.value < 0:
-        raise Bad(make(code, f"{label} must not be negative, got {raw!r}", pos, hint="give a value of 0 or more"))
+        raise Bad(make(code, f"{label} must not be negative, got {_value_text(raw, q, env)}", pos,
+                       hint="give a value of 0 or more"))
     return q.value
 
 
@@ -203,6 +204,14 @@ def key_examples(doc: Document, path: tuple, want) -> tuple:
 
 def _shown(raw) -> str:
     return raw.strip() if isinstance(raw, str) else repr(raw)
+
+
+def _value_text(raw, q: Qty, env) -> str:
+    """What was written, and its value when it names params ('sheet_power' = 0 W)."""
+    written = _shown(raw)
+    if isinstance(raw, str) and names_of(raw) & set(env or ()):
+        return f"{written!r} = {format_qty(q)}"
+    return repr(written) if isinstance(raw, str) else written
 
 
 def _unknown_unit(text: str, exc: UnitError, pos) -> Finding:
