@@ -87,7 +87,7 @@ ASSUMPTIONS = ("Model: column densities of the predicted clouds (Thomas-Fermi or
                "with saturation and detuning (Opt. Lett. 32, 3143 (2007)), a Gaussian point-spread function of rms "
                "0.21 lambda/NA for the Airy pattern, with the recoil blur in quadrature, summed into camera pixels; "
                "not modelled: defocus, the Doppler shift during the probe, interference fringes, multiple "
-               "scattering, the camera's read noise.")
+               "scattering, the camera's read noise, a barrier's split of a cloud into transmitted and reflected parts.")
 
 
 MIN_DISPLAY_ASPECT = 0.6  # the drawn window's shorter side, at least this fraction of its longer one
