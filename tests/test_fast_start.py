@@ -12,7 +12,8 @@ from pathlib import Path
 from scipy import constants as sc
 
 ROOT = Path(__file__).resolve().parents[1]
-HEAVY = ("numpy", "scipy", "pint", "matplotlib", "networkx", "jsonschema", "yaml", "dask")
+HEAVY = ("numpy", "scipy", "pint", "matplotlib", "networkx", "jsonschema", "yaml", "dask", "scipy.interpolate",
+         "scipy.integrate", "scipy.ndimage")
 
 
 def _fresh(code: str, **env) -> dict:
@@ -112,3 +113,47 @@ def test_no_cache_where_the_folder_cannot_be_made(tmp_path):
     res = _fresh(_PROBE, XDG_CACHE_HOME=str(blocker))
     assert res["folder"] == "None"
     _expect_si(res["si"])
+
+
+def test_check_of_an_acyclic_file_does_not_load_networkx():
+    res = _after_cli("check", "sequences/na23_thermometry.yaml")
+    assert res["code"] == 0 and "networkx" not in res["loaded"]
+
+
+def _random_graphs(count: int):
+    """(nodes added first, edges in insertion order) of small random directed graphs, self-loops and repeated
+    edges included, about half of them cyclic."""
+    import random
+
+    rng = random.Random(17)
+    for _ in range(count):
+        n = rng.randint(1, 9)
+        first = rng.sample(range(n), rng.randint(0, n))
+        edges = [(rng.randrange(n + 2), rng.randrange(n + 2)) for _ in range(rng.randint(0, 2 * n))]
+        yield first, edges
+
+
+def test_dependency_order_and_cycles_are_those_of_networkx():
+    import networkx as nx
+
+    from seqgen.resolve.order import DepGraph
+
+    cyclic = 0
+    for first, edges in _random_graphs(600):
+        ours, theirs = DepGraph(), nx.DiGraph()
+        for node in first:
+            ours.add_node(node)
+            theirs.add_node(node)
+        for u, v in edges:
+            ours.add_edge(u, v)
+            theirs.add_edge(u, v)
+        try:
+            expected = list(nx.topological_sort(theirs))
+        except nx.NetworkXUnfeasible:
+            expected = None
+        assert ours.order() == expected
+        assert ours.simple_cycles() == list(nx.simple_cycles(theirs))
+        if expected is None:
+            cyclic += 1
+            assert ours.find_cycle() == [u for u, _ in nx.find_cycle(theirs)]
+    assert 100 < cyclic < 500

@@ -45,9 +45,23 @@ class DepGraph:
         """The cycle's nodes in order, as networkx.find_cycle finds it (only called when order() is None)."""
         import networkx as nx  # here: only a file with a cycle needs it
 
+        return [u for u, _ in nx.find_cycle(self._networkx())]
+
+    def simple_cycles(self) -> list:
+        """Every elementary cycle, as networkx.simple_cycles lists them; [] without loading it when acyclic."""
+        if self.order() is not None:
+            return []
+        import networkx as nx  # here: only a file with a cycle needs it
+
+        return list(nx.simple_cycles(self._networkx()))
+
+    def _networkx(self):
+        """The same graph as a networkx DiGraph: nodes and each node's successors in the same order."""
+        import networkx as nx
+
         graph = nx.DiGraph()
         graph.add_nodes_from(self._succ)
         for u, succ in self._succ.items():
             for v in succ:
                 graph.add_edge(u, v)
-        return [u for u, _ in nx.find_cycle(graph)]
+        return graph
