@@ -157,3 +157,45 @@ def test_dependency_order_and_cycles_are_those_of_networkx():
             cyclic += 1
             assert ours.find_cycle() == [u for u, _ in nx.find_cycle(theirs)]
     assert 100 < cyclic < 500
+
+
+_CHECK_JSON = """
+import contextlib, io, json, sys
+from seqgen.cli import main
+out = io.StringIO()
+with contextlib.redirect_stdout(out):  # trap depths and frequencies in words, and findings of trap rules
+    main(["show", "--physics", "sequences/na23_thermometry.yaml"])
+    main(["check", "--json", "sequences/faults/trap_lost.yaml"])
+    main(["check", "--json", "sequences/faults/shallow_trap.yaml"])
+print(json.dumps({"report": out.getvalue()}))"""
+
+_SPECIES = """
+import json, sys
+from seqgen.physics import atoms
+sp = atoms.get_species("Na23")
+print(json.dumps({"repr": repr(sp), "jsonschema": "jsonschema" in sys.modules}))"""
+
+
+def test_trap_minimisations_read_from_disk_give_the_same_findings(tmp_path):
+    nowhere = tmp_path / "a-file"
+    nowhere.write_text("not a folder")
+    computed = _fresh(_CHECK_JSON, XDG_CACHE_HOME=str(nowhere))["report"]  # no cache at all
+    first = _fresh(_CHECK_JSON, XDG_CACHE_HOME=str(tmp_path))["report"]
+    folder = tmp_path / "seqgen" / "held-traps"
+    stamps = {p: p.stat().st_mtime_ns for p in folder.iterdir()}
+    assert stamps and all(p.suffix == ".json" for p in stamps)  # no temporary file left behind
+    second = _fresh(_CHECK_JSON, XDG_CACHE_HOME=str(tmp_path))["report"]
+    assert {p: p.stat().st_mtime_ns for p in folder.iterdir()} == stamps  # read, not computed again
+    assert "trap frequencies" in computed and "physics.trap-lost" in computed and "physics.shallow-trap" in computed
+    assert computed == first == second
+    for p in stamps:  # cut short, as by a crash of a writer without the atomic rename
+        p.write_bytes(p.read_bytes()[:40])
+    assert _fresh(_CHECK_JSON, XDG_CACHE_HOME=str(tmp_path))["report"] == computed
+
+
+def test_atom_data_checked_once_per_content(tmp_path):
+    first = _fresh(_SPECIES, XDG_CACHE_HOME=str(tmp_path))
+    second = _fresh(_SPECIES, XDG_CACHE_HOME=str(tmp_path))
+    assert first["jsonschema"] and not second["jsonschema"]  # the schema walk (and its library) skipped
+    assert first["repr"] == second["repr"]
+    assert list((tmp_path / "seqgen" / "checked-data").glob("*.json"))
