@@ -11,8 +11,10 @@ then what typing costs in the language server (needs pygls): a cold `seqgen chec
 shot of its scan, a fresh process) against the server's re-check of it after a one-character edit (a digit
 of a param changed, sent as didChange over stdio; the time until its diagnostics arrive, less the debounce),
 the median of N edits (target <= 0.1 x).
-"Cold" means a fresh process; the caches a first run leaves on disk (bytecode, pint's unit cache) are kept, as
-an installed seqgen keeps them: one warm-up run of every command fills them before the timed runs.
+"Cold" means a fresh process; the caches a first run leaves on disk (bytecode, pint's unit cache, the trap
+minimisations and the atom data's schema check of seqgen.physics.stored) are kept, as an installed seqgen keeps
+them: one warm-up run of every command fills them before the timed runs. The same check with an empty cache
+folder each time (a first run ever, bytecode kept) is printed for information.
 The checkout is put first on PYTHONPATH, so the numbers are those of this tree, not an installed seqgen.
 Compiled bytecode is kept (as for an installed package) in a temporary folder removed at the end, also where
 PYTHONDONTWRITEBYTECODE is set; --as-is runs the commands in the environment as it is.
@@ -37,6 +39,7 @@ PY = sys.executable
 FLOOR_START = ("import numpy, yaml (floor)", [PY, "-c", "import numpy, yaml"])
 FLOOR_CHECK = ("import numpy, scipy.optimize, yaml (floor)", [PY, "-c", "import numpy, scipy.optimize, yaml"])
 TARGET = 1.5  # the target for a command over its floor
+EMPTY = "check, first run ever (empty caches)"  # run with an empty cache folder each time: pint's units, traps
 # (name, command, its floor, the target or None: printed for information)
 COMMANDS = (
     ("explain physics.shallow-trap", [PY, "-m", "seqgen", "explain", "physics.shallow-trap"], FLOOR_START, TARGET),
@@ -44,12 +47,16 @@ COMMANDS = (
     ("import seqgen", [PY, "-c", "import seqgen"], FLOOR_START, None),
     ("check na23_thermometry.yaml", [PY, "-m", "seqgen", "check", "sequences/na23_thermometry.yaml"], FLOOR_CHECK,
      TARGET),
+    (EMPTY, [PY, "-m", "seqgen", "check", "sequences/na23_thermometry.yaml"], FLOOR_CHECK, None),
 )
 SCATTER = "sequences/na23_barrier_scatter.yaml"
 COLD_CHECK = [sys.executable, "-m", "seqgen", "check", SCATTER]
 
 
-def wall(cmd: list, env: dict) -> float:
+def wall(cmd: list, env: dict, empty_cache: bool = False) -> float:
+    if empty_cache:  # a new, empty per-user cache folder: nothing kept from an earlier run
+        with tempfile.TemporaryDirectory(prefix="seqgen-bench-cache-") as folder:
+            return wall(cmd, dict(env, XDG_CACHE_HOME=folder))
     t0 = time.perf_counter()
     done = subprocess.run(cmd, cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     t1 = time.perf_counter()
@@ -84,7 +91,7 @@ def run(runs: int, env: dict, mode: str) -> None:
     times = {name: [] for name, _ in timed}
     for _ in range(runs):  # interleaved, so a slow moment of the machine hits every command alike
         for name, cmd in timed:
-            times[name].append(wall(cmd, env))
+            times[name].append(wall(cmd, env, empty_cache=name == EMPTY))
     med = {name: statistics.median(t) for name, t in times.items()}
     print(f"median of {runs} fresh processes (python {sys.version.split()[0]}, {mode}):")
     for floor in (FLOOR_START, FLOOR_CHECK):
