@@ -199,3 +199,16 @@ def test_atom_data_checked_once_per_content(tmp_path):
     assert first["jsonschema"] and not second["jsonschema"]  # the schema walk (and its library) skipped
     assert first["repr"] == second["repr"]
     assert list((tmp_path / "seqgen" / "checked-data").glob("*.json"))
+
+
+def test_a_cache_folder_keeps_its_newest_files_only(tmp_path):
+    from seqgen.physics import stored
+
+    for k in range(10):
+        path = tmp_path / f"{k:02d}.json"
+        path.write_text(json.dumps({"value": k}))
+        os.utime(path, ns=(k * 10**9, k * 10**9))
+    stored.prune(tmp_path, keep=8)
+    assert sorted(p.name for p in tmp_path.iterdir()) == [f"{k:02d}.json" for k in range(4, 10)]
+    stored.prune(tmp_path, keep=8)  # under the limit: nothing removed
+    assert len(list(tmp_path.iterdir())) == 6

@@ -1,9 +1,10 @@
 """Results kept on disk between runs, keyed by content: what a fresh process would otherwise compute again.
 
 A value is stored as JSON (floats written with repr, so read back to the last bit) in a per-user cache folder
-($XDG_CACHE_HOME, else ~/.cache; `seqgen/` in it), in a file named by the sha256 of its key. A key holds
-everything the value depends on: the inputs (as their repr) and the code (`code_stamp`: the bytes of this
-package's modules and data, numpy's, scipy's and Python's versions), so changed code never reads an old value.
+($XDG_CACHE_HOME, else ~/.cache; `seqgen/` in it), in a file named by the sha256 of its key; a folder keeps at
+most MAX_FILES, the oldest are removed. A key holds everything the value depends on: the inputs (as their repr)
+and the code (`code_stamp`: the bytes of this package's modules and data, numpy's, scipy's and Python's
+versions), so changed code never reads an old value.
 Files are written under a temporary name and renamed into place, so two processes starting at once never read
 half a file; a file that cannot be read or parsed counts as missing. Without a writable folder nothing is
 stored and every value is computed, as before.
@@ -20,6 +21,7 @@ from functools import lru_cache
 from pathlib import Path
 
 _HERE = Path(__file__).resolve().parent
+MAX_FILES = 4096  # per folder: a few hundred kB of small JSON files
 
 
 @lru_cache(maxsize=None)
@@ -64,7 +66,7 @@ def read(name: str, key: str):
         doc = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None
-    return doc.get("value") if isinstance(doc, dict) and doc.get("key") == key else None
+    return doc.get("value") if isinstance(doc, dict) else None
 
 
 def write(name: str, key: str, value) -> None:
@@ -75,10 +77,30 @@ def write(name: str, key: str, value) -> None:
     try:
         fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=".json")
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump({"key": key, "value": value}, fh)
+            json.dump({"value": value}, fh)
         os.replace(tmp, path)  # atomic: a reader sees the old file, no file, or the whole new one
     except OSError:
         try:
             os.unlink(tmp)
         except (OSError, UnboundLocalError):
+            pass
+        return
+    if path.name.startswith("00"):  # about one write in 256 looks at the folder's size
+        prune(path.parent)
+
+
+def prune(where: Path, keep: int = MAX_FILES) -> None:
+    """Remove the least recently written files of a folder beyond `keep` (down to three quarters of it), so a
+    long scan or editing session cannot fill the disk; another process removing the same files is harmless."""
+    try:
+        files = [(p.stat().st_mtime_ns, p) for p in where.glob("*.json")]
+    except OSError:
+        return
+    if len(files) <= keep:
+        return
+    files.sort()
+    for _, p in files[:len(files) - keep * 3 // 4]:
+        try:
+            p.unlink()
+        except OSError:
             pass
