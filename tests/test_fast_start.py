@@ -212,3 +212,20 @@ def test_a_cache_folder_keeps_its_newest_files_only(tmp_path):
     assert sorted(p.name for p in tmp_path.iterdir()) == [f"{k:02d}.json" for k in range(4, 10)]
     stored.prune(tmp_path, keep=8)  # under the limit: nothing removed
     assert len(list(tmp_path.iterdir())) == 6
+
+
+def test_the_command_leaves_with_its_whole_output_and_exit_code():
+    """`python -m seqgen` ends without the interpreter's teardown: what it printed must all arrive, and its exit
+    code be the command's."""
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    run = [sys.executable, "-m", "seqgen"]
+    done = subprocess.run(run + ["check", "--json", "sequences/faults/trap_lost.yaml"], cwd=ROOT, env=env,
+                          capture_output=True, text=True, timeout=120)
+    assert done.returncode == 1 and json.loads(done.stdout)["summary"]["error"] >= 1
+    listing = subprocess.run(run + ["explain", "all"], cwd=ROOT, env=env, capture_output=True, text=True, timeout=120)
+    from seqgen.codes import ALL
+
+    assert listing.returncode == 0 and len(listing.stdout) > 4096  # more than one pipe buffer, all of it
+    assert all(code in listing.stdout for code in ALL)
+    usage = subprocess.run(run + ["no-such-verb"], cwd=ROOT, env=env, capture_output=True, text=True, timeout=120)
+    assert usage.returncode == 2 and "invalid choice" in usage.stderr
