@@ -19,6 +19,7 @@ import sys
 import tempfile
 from functools import lru_cache
 from pathlib import Path
+from typing import Mapping
 
 _HERE = Path(__file__).resolve().parent
 MAX_FILES = 4096  # per folder: a few hundred kB of small JSON files
@@ -48,6 +49,33 @@ def code_stamp() -> str:
     for path in sorted([*_HERE.glob("*.py"), *(_HERE / "data").glob("*")]):
         h.update(path.name.encode() + b"\0" + path.read_bytes() + b"\0")
     return h.hexdigest()
+
+
+def exact(value) -> str | None:
+    """A text that tells apart any two different values (floats to the last bit, arrays by their bytes), for a
+    key; None for a value of a kind it does not know (then nothing is stored for it)."""
+    import dataclasses
+
+    import numpy as np
+
+    if value is None or isinstance(value, (bool, int, str)):
+        return repr(value)
+    if isinstance(value, (float, np.floating)):
+        return f"{type(value).__name__}:{float(value).hex()}"
+    if isinstance(value, np.ndarray):
+        return f"ndarray:{value.dtype.str}:{value.shape}:{np.ascontiguousarray(value).tobytes().hex()}"
+    if isinstance(value, (tuple, list)):
+        parts = [exact(v) for v in value]
+        return None if None in parts else f"{type(value).__name__}({','.join(parts)})"
+    if isinstance(value, Mapping):
+        parts = [(exact(k), exact(v)) for k, v in value.items()]
+        if any(k is None or v is None for k, v in parts):
+            return None
+        return "{" + ",".join(f"{k}:{v}" for k, v in parts) + "}"
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        parts = [exact(getattr(value, f.name)) for f in dataclasses.fields(value)]
+        return None if None in parts else f"{type(value).__qualname__}({','.join(parts)})"
+    return None
 
 
 def _file(name: str, key: str) -> Path | None:

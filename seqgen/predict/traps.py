@@ -65,11 +65,13 @@ def held(sp, beams: tuple) -> HeldTrap:
     the shot: the shots of a scan, and the flat parts of a ramp, reuse each other's minimisations."""
     from ..physics import stored
 
-    key = f"held|{stored.code_stamp()}|{sp!r}|{beams!r}"
-    kept = stored.read("held-traps", key)  # a minimisation an earlier run did (the same code, species, beams)
+    inputs = stored.exact((sp, beams))
+    key = None if inputs is None else f"held|{stored.code_stamp()}|{inputs}"
+    kept = None if key is None else stored.read("held-traps", key)  # an earlier run's (same code and inputs)
     if not (isinstance(kept, list) and len(kept) == 4):
         kept = _minimise(sp, beams)
-        stored.write("held-traps", key, kept)
+        if key is not None:
+            stored.write("held-traps", key, kept)
     depth, omegas, heating, escape = kept
     if omegas is None:
         return HeldTrap(depth, None)
