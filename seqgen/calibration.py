@@ -25,10 +25,13 @@ def _extend(x, xp, yp, inside):
     A cubic extrapolated past the table can turn around (a calibration must stay
     monotonic); values outside the table are flagged by hardware.outside-calibration.
     """
+    within = (x >= xp[0]) & (x <= xp[-1])
+    if within.all():  # the usual case (a NaN is never within): nothing to continue
+        return np.asarray(inside, dtype=float)
     lo_slope = (yp[1] - yp[0]) / (xp[1] - xp[0])
     hi_slope = (yp[-1] - yp[-2]) / (xp[-1] - xp[-2])
     out = np.where(x < xp[0], yp[0] + (x - xp[0]) * lo_slope, yp[-1] + (x - xp[-1]) * hi_slope)
-    return np.where((x >= xp[0]) & (x <= xp[-1]), inside, out)
+    return np.where(within, inside, out)
 
 
 def to_output(out: Output, phys) -> np.ndarray:

@@ -12,7 +12,8 @@ from pathlib import Path
 from scipy import constants as sc
 
 ROOT = Path(__file__).resolve().parents[1]
-HEAVY = ("numpy", "scipy", "pint", "matplotlib", "networkx", "jsonschema", "yaml", "dask")
+HEAVY = ("numpy", "scipy", "pint", "matplotlib", "networkx", "jsonschema", "yaml", "dask", "scipy.interpolate",
+         "scipy.integrate", "scipy.ndimage")
 
 
 def _fresh(code: str, **env) -> dict:
@@ -112,3 +113,119 @@ def test_no_cache_where_the_folder_cannot_be_made(tmp_path):
     res = _fresh(_PROBE, XDG_CACHE_HOME=str(blocker))
     assert res["folder"] == "None"
     _expect_si(res["si"])
+
+
+def test_check_of_an_acyclic_file_does_not_load_networkx():
+    res = _after_cli("check", "sequences/na23_thermometry.yaml")
+    assert res["code"] == 0 and "networkx" not in res["loaded"]
+
+
+def _random_graphs(count: int):
+    """(nodes added first, edges in insertion order) of small random directed graphs, self-loops and repeated
+    edges included, about half of them cyclic."""
+    import random
+
+    rng = random.Random(17)
+    for _ in range(count):
+        n = rng.randint(1, 9)
+        first = rng.sample(range(n), rng.randint(0, n))
+        edges = [(rng.randrange(n + 2), rng.randrange(n + 2)) for _ in range(rng.randint(0, 2 * n))]
+        yield first, edges
+
+
+def test_dependency_order_and_cycles_are_those_of_networkx():
+    import networkx as nx
+
+    from seqgen.resolve.order import DepGraph
+
+    cyclic = 0
+    for first, edges in _random_graphs(600):
+        ours, theirs = DepGraph(), nx.DiGraph()
+        for node in first:
+            ours.add_node(node)
+            theirs.add_node(node)
+        for u, v in edges:
+            ours.add_edge(u, v)
+            theirs.add_edge(u, v)
+        try:
+            expected = list(nx.topological_sort(theirs))
+        except nx.NetworkXUnfeasible:
+            expected = None
+        assert ours.order() == expected
+        assert ours.simple_cycles() == list(nx.simple_cycles(theirs))
+        if expected is None:
+            cyclic += 1
+            assert ours.find_cycle() == [u for u, _ in nx.find_cycle(theirs)]
+    assert 100 < cyclic < 500
+
+
+_CHECK_JSON = """
+import contextlib, io, json, sys
+from seqgen.cli import main
+out = io.StringIO()
+with contextlib.redirect_stdout(out):  # trap depths and frequencies in words, and findings of trap rules
+    main(["show", "--physics", "sequences/na23_thermometry.yaml"])
+    main(["check", "--json", "sequences/faults/trap_lost.yaml"])
+    main(["check", "--json", "sequences/faults/shallow_trap.yaml"])
+print(json.dumps({"report": out.getvalue()}))"""
+
+_SPECIES = """
+import json, sys
+from seqgen.physics import atoms
+sp = atoms.get_species("Na23")
+print(json.dumps({"repr": repr(sp), "jsonschema": "jsonschema" in sys.modules}))"""
+
+
+def test_trap_minimisations_read_from_disk_give_the_same_findings(tmp_path):
+    nowhere = tmp_path / "a-file"
+    nowhere.write_text("not a folder")
+    computed = _fresh(_CHECK_JSON, XDG_CACHE_HOME=str(nowhere))["report"]  # no cache at all
+    first = _fresh(_CHECK_JSON, XDG_CACHE_HOME=str(tmp_path))["report"]
+    folder = tmp_path / "seqgen" / "held-traps"
+    stamps = {p: p.stat().st_mtime_ns for p in folder.iterdir()}
+    assert stamps and all(p.suffix == ".json" for p in stamps)  # no temporary file left behind
+    second = _fresh(_CHECK_JSON, XDG_CACHE_HOME=str(tmp_path))["report"]
+    assert {p: p.stat().st_mtime_ns for p in folder.iterdir()} == stamps  # read, not computed again
+    assert "trap frequencies" in computed and "physics.trap-lost" in computed and "physics.shallow-trap" in computed
+    assert computed == first == second
+    for p in stamps:  # cut short, as by a crash of a writer without the atomic rename
+        p.write_bytes(p.read_bytes()[:40])
+    assert _fresh(_CHECK_JSON, XDG_CACHE_HOME=str(tmp_path))["report"] == computed
+
+
+def test_atom_data_checked_once_per_content(tmp_path):
+    first = _fresh(_SPECIES, XDG_CACHE_HOME=str(tmp_path))
+    second = _fresh(_SPECIES, XDG_CACHE_HOME=str(tmp_path))
+    assert first["jsonschema"] and not second["jsonschema"]  # the schema walk (and its library) skipped
+    assert first["repr"] == second["repr"]
+    assert list((tmp_path / "seqgen" / "checked-data").glob("*.json"))
+
+
+def test_a_cache_folder_keeps_its_newest_files_only(tmp_path):
+    from seqgen.physics import stored
+
+    for k in range(10):
+        path = tmp_path / f"{k:02d}.json"
+        path.write_text(json.dumps({"value": k}))
+        os.utime(path, ns=(k * 10**9, k * 10**9))
+    stored.prune(tmp_path, keep=8)
+    assert sorted(p.name for p in tmp_path.iterdir()) == [f"{k:02d}.json" for k in range(4, 10)]
+    stored.prune(tmp_path, keep=8)  # under the limit: nothing removed
+    assert len(list(tmp_path.iterdir())) == 6
+
+
+def test_the_command_leaves_with_its_whole_output_and_exit_code():
+    """`python -m seqgen` ends without the interpreter's teardown: what it printed must all arrive, and its exit
+    code be the command's."""
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    run = [sys.executable, "-m", "seqgen"]
+    done = subprocess.run(run + ["check", "--json", "sequences/faults/trap_lost.yaml"], cwd=ROOT, env=env,
+                          capture_output=True, text=True, timeout=120)
+    assert done.returncode == 1 and json.loads(done.stdout)["summary"]["error"] >= 1
+    listing = subprocess.run(run + ["explain", "all"], cwd=ROOT, env=env, capture_output=True, text=True, timeout=120)
+    from seqgen.codes import ALL
+
+    assert listing.returncode == 0 and len(listing.stdout) > 4096  # more than one pipe buffer, all of it
+    assert all(code in listing.stdout for code in ALL)
+    usage = subprocess.run(run + ["no-such-verb"], cwd=ROOT, env=env, capture_output=True, text=True, timeout=120)
+    assert usage.returncode == 2 and "invalid choice" in usage.stderr

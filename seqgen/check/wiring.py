@@ -7,6 +7,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from ..codes import (
     WIRING_BEFORE_START, WIRING_CLOCK, WIRING_EDGES_TOO_CLOSE, WIRING_LINE_WRITTEN, WIRING_TRIGGER_PERIOD,
     WIRING_TRIGGER_PULSE,
@@ -71,13 +73,14 @@ def before_start(shot, compiled):
             continue
         if role == "start trigger":
             start = starts.get(d.name)
-            rows = [int(k) * table.tick_s for k in table.ticks[1:-1]]
             if start is None:
                 continue
-            early = [t for t in rows if t < start - 1e-12]  # row 0 is what it is armed with: it holds until the start
-            if not early:
+            ticks = np.asarray(table.ticks[1:-1], dtype=np.int64)  # row 0 is what it is armed with: it holds
+            # until the start; tick x tick_s as Python computes it (an int64 below 2^53 converts exactly)
+            early = np.flatnonzero(ticks * table.tick_s < start - 1e-12)
+            if not len(early):
                 continue
-            first = early[0]
+            first = int(ticks[early[0]]) * table.tick_s
             seg = _write_at(shot, d, first)
             yield make(WIRING_BEFORE_START, f"device '{d.name}' starts at {fmt_when(start)} (its start edge on '{line}' "
                        f"at {fmt_when(start - d.start_latency_s)}, fixed near the start of the shot, plus "

@@ -14,6 +14,7 @@ Magnetic moments are -dE/dB (the package-wide convention, see
 
 from __future__ import annotations
 
+import hashlib
 import json
 import re
 from dataclasses import dataclass, field
@@ -109,15 +110,23 @@ def load_schema() -> dict:
 
 @lru_cache(maxsize=1)
 def _raw_data() -> dict:
+    from . import stored
+
+    text = DATA_FILE.read_text(encoding="utf-8")
+    # libyaml's parser when present (10x faster; the same safe constructor, so the same data)
+    data = yaml.load(text, Loader=getattr(yaml, "CSafeLoader", yaml.SafeLoader))
+    # these exact bytes of data and schema were found valid by an earlier run: no need to walk them again
+    key = "atoms-valid|" + hashlib.sha256(text.encode() + b"\0" + SCHEMA_FILE.read_bytes()).hexdigest()
+    if stored.read("checked-data", key) is True:
+        return data
     import jsonschema  # here: loaded with the data, not by every module that names a species
 
-    # libyaml's parser when present (10x faster; the same safe constructor, so the same data)
-    data = yaml.load(DATA_FILE.read_text(encoding="utf-8"), Loader=getattr(yaml, "CSafeLoader", yaml.SafeLoader))
     validator = jsonschema.Draft202012Validator(load_schema())
     errors = sorted(validator.iter_errors(data), key=lambda e: list(map(str, e.absolute_path)))
     if errors:
         where = "; ".join(f"{'/'.join(map(str, e.absolute_path)) or '<root>'}: {e.message}" for e in errors[:5])
         raise ValueError(f"{DATA_FILE.name} does not match {SCHEMA_FILE.name}: {where}")
+    stored.write("checked-data", key, True)
     return data
 
 

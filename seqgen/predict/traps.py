@@ -63,18 +63,36 @@ class HeldTrap:
 def held(sp, beams: tuple) -> HeldTrap:
     """The trap of one set of beams, keyed on content (species and the beams' powers and geometry), not on
     the shot: the shots of a scan, and the flat parts of a ramp, reuse each other's minimisations."""
+    from ..physics import stored
+
+    inputs = stored.exact((sp, beams))
+    key = None if inputs is None else f"held|{stored.code_stamp()}|{inputs}"
+    kept = None if key is None else stored.read("held-traps", key)  # an earlier run's (same code and inputs)
+    if not (isinstance(kept, list) and len(kept) == 4):
+        kept = _minimise(sp, beams)
+        if key is not None:
+            stored.write("held-traps", key, kept)
+    depth, omegas, heating, escape = kept
+    if omegas is None:
+        return HeldTrap(depth, None)
+    omegas, escape = np.array(omegas, dtype=float), np.array(escape, dtype=float)
+    for a in (omegas, escape):
+        a.setflags(write=False)  # shared by every shot that meets these beams
+    return HeldTrap(depth, omegas, heating, escape)
+
+
+def _minimise(sp, beams: tuple) -> list:
+    """[depth, omegas or None, heating, escape or None] of one set of beams, as plain floats (JSON)."""
     from ..physics.optical import held_trap_escape
 
     try:
         h = held_trap_escape(sp, beams)
     except (ValueError, RuntimeError, np.linalg.LinAlgError):
-        return HeldTrap(0.0, None)
+        return [0.0, None, 0.0, None]
     if h.omegas_rad_s is None:
-        return HeldTrap(h.depth_j, None)
-    omegas, escape = np.array(h.omegas_rad_s, dtype=float), np.array(h.escape, dtype=float)
-    for a in (omegas, escape):
-        a.setflags(write=False)  # shared by every shot that meets these beams
-    return HeldTrap(h.depth_j, omegas, h.heating_k_s, escape)
+        return [float(h.depth_j), None, 0.0, None]
+    return [float(h.depth_j), [float(w) for w in np.asarray(h.omegas_rad_s, dtype=float)], float(h.heating_k_s),
+            [float(e) for e in np.asarray(h.escape, dtype=float)]]
 
 
 def trap_stage(shot, t0, t1, n=N_SAMPLES, heating=False, extra=()):

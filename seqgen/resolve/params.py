@@ -1,7 +1,7 @@
 """Params of a resolved sequence: definitions, overrides, bounds (`min:` / `max:`), and the sample.
 
 Definitions come from the used files first, then their use-entry params, then the
-main file (a later one wins). Params are resolved in dependency order (networkx),
+main file (a later one wins). Params are resolved in dependency order (`order.py`),
 so an expression may name any other param. An override replaces a param's value:
 a quantity object (scans pass those, taken as they are), a text with units
 ('12 ms', read as the file's values are, checked against the dimension of the
@@ -14,7 +14,6 @@ import math
 import numbers
 from dataclasses import replace
 
-import networkx as nx
 
 from ..codes import (
     BAD_EXPRESSION, BAD_SAMPLE, MISSING_UNIT, NON_FINITE, OVERFLOW, PARAM_CYCLE, PARAM_OUT_OF_RANGE, UNDEFINED_PARAM,
@@ -23,6 +22,7 @@ from ..findings import Finding, make
 from ..load.yamlsrc import Document
 from ..model import Param, Sample
 from .expr import UNDEFINED_HINT, ExprError, names_in
+from .order import DepGraph
 from .quantities import Bad, Env, Fit, _dimension_words, close_hint, quantity, to_qty
 from .sources import Sources
 from .units import DIMENSIONLESS, Qty, UnitError, describe_kind, display_unit, format_qty, parse_simple, same_dims, \
@@ -105,7 +105,7 @@ def _note_bounds(bounds: dict, name: str, raw, doc: Document, path: tuple) -> No
 def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bounds: dict, written: dict | None = None):
     """`fixed`: name -> Qty taken as it is (its written value is not read); `given`: name -> text or SI number,
     read once the params it names (and those of the written value, which gives its dimension) are known."""
-    graph = nx.DiGraph()
+    graph = DepGraph()
     texts = {}
     bounds = {n: dict(b) for n, b in bounds.items() if n in entries}
     for name, (raw, d, path) in entries.items():
@@ -149,11 +149,9 @@ def _resolve_params(entries: dict, fixed: dict, given: dict, findings: list, bou
             for dep in deps:
                 if dep in entries:
                     graph.add_edge(dep, name)
-    try:
-        order = list(nx.topological_sort(graph))
-    except nx.NetworkXUnfeasible:
-        cycle = nx.find_cycle(graph)
-        members = [u for u, _ in cycle]
+    order = graph.order()
+    if order is None:
+        members = graph.find_cycle()
         _, d, path = texts[members[0]]
         findings.append(make(PARAM_CYCLE, "params depend on each other in a cycle: " + " -> ".join(members + [members[0]]),
                              d.pos(path), hint="give one of them a plain value"))

@@ -3,7 +3,7 @@ output holds in time order.
 
 A block starts `at:` a time, `after:` or `with:` another block (plus an offset),
 or right after the previous block in the file; the anchors form a graph
-(networkx) whose topological order gives every start, and whose cycles are
+(`order.py`) whose topological order gives every start, and whose cycles are
 reported.
 """
 
@@ -12,11 +12,11 @@ from __future__ import annotations
 import difflib
 import re
 
-import networkx as nx
 
 from ..codes import ANCHOR_CYCLE, BAD_ANCHOR, DUPLICATE_BLOCK, UNKNOWN_BLOCK
 from ..findings import SourcePos, make
 from ..model import Segment
+from .order import DepGraph
 from .quantities import Bad, quantity
 from .sources import Sources
 
@@ -66,8 +66,9 @@ def place_blocks(blocks_raw, lowered, env, findings):
     """Start time of every block, through the anchor graph; None on failure."""
     names = [b["name"] for b, *_ in blocks_raw]
     index = {n: i for i, n in enumerate(names)}
-    graph = nx.DiGraph()
-    graph.add_nodes_from(names)
+    graph = DepGraph()
+    for n in names:
+        graph.add_node(n)
     anchors = []
     for i, (b, d, path) in enumerate(blocks_raw):
         if "at" in b:
@@ -108,10 +109,9 @@ def place_blocks(blocks_raw, lowered, env, findings):
             off = -off if sign == "-" else off
         anchors.append((kind, target, off))
         graph.add_edge(target, b["name"])
-    try:
-        order = list(nx.topological_sort(graph))
-    except nx.NetworkXUnfeasible:
-        cycle = [u for u, _ in nx.find_cycle(graph)]
+    order = graph.order()
+    if order is None:
+        cycle = graph.find_cycle()
         b, d, path = blocks_raw[index[cycle[0]]]
         findings.append(make(ANCHOR_CYCLE, "blocks are anchored on each other in a cycle: " + " -> ".join(cycle + [cycle[0]]),
                              d.pos(path), hint="anchor one of them with 'at:' or on a block outside the cycle"))

@@ -10,6 +10,7 @@ from ..findings import Finding, make
 from ..textfmt import fmt_freq
 from ..load.yamlsrc import Document
 from ..model import Beam, Calibration, Coil, Device, Drive, ImagingSetup, Output, Rig
+from .order import DepGraph
 from .quantities import Bad, quantity
 from .units import dims_of, display_unit
 from ..codes import (BAD_RIG, CALIBRATION_NOT_MONOTONIC, UNKNOWN_NAME, UNKNOWN_UNIT, VERSION, WIRING_BAD, WIRING_CYCLE,
@@ -269,17 +270,16 @@ def _wiring(data, devices, outputs, q, doc, findings) -> dict:
 
 def _acyclic(devices, outputs, doc, findings) -> dict:
     """The devices with the wiring of any loop's devices removed (and a finding per loop)."""
-    import networkx as nx  # only a wired rig needs the graph
-
-    graph = nx.DiGraph()
+    graph = DepGraph()
     for d in devices.values():
         for line in (d.start_on, d.step_on, d.clock_on):
             if line:
                 graph.add_edge(outputs[line].device, d.name)
-    if not graph.number_of_edges():
+    loops = graph.simple_cycles()  # networkx loads only for a rig wired in a loop
+    if not loops:
         return devices
     out = dict(devices)
-    for loop in nx.simple_cycles(graph):
+    for loop in loops:
         first = sorted(loop)[0]
         chain = " -> ".join(loop + [loop[0]])
         findings.append(make(WIRING_CYCLE, f"the devices' wiring forms a loop: {chain}", devices[first].wiring_pos,

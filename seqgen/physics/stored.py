@@ -1,0 +1,134 @@
+"""Results kept on disk between runs, keyed by content: what a fresh process would otherwise compute again.
+
+A value is stored as JSON (floats written with repr, so read back to the last bit) in a per-user cache folder
+($XDG_CACHE_HOME, else ~/.cache; `seqgen/` in it), in a file named by the sha256 of its key; a folder keeps at
+most MAX_FILES, the oldest are removed. A key holds everything the value depends on: the inputs (as their repr)
+and the code (`code_stamp`: the bytes of this package's modules and data, numpy's, scipy's and Python's
+versions), so changed code never reads an old value.
+Files are written under a temporary name and renamed into place, so two processes starting at once never read
+half a file; a file that cannot be read or parsed counts as missing. Without a writable folder nothing is
+stored and every value is computed, as before.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import sys
+import tempfile
+from functools import lru_cache
+from pathlib import Path
+from typing import Mapping
+
+_HERE = Path(__file__).resolve().parent
+MAX_FILES = 4096  # per folder: a few hundred kB of small JSON files
+
+
+@lru_cache(maxsize=None)
+def folder(name: str) -> Path | None:
+    """The cache folder `seqgen/<name>`, made on first use; None when it cannot be written."""
+    try:
+        base = os.environ.get("XDG_CACHE_HOME", "")
+        root = Path(base) if os.path.isabs(base) else Path.home() / ".cache"
+        path = root / "seqgen" / name
+        path.mkdir(parents=True, exist_ok=True)
+    except (OSError, RuntimeError):  # RuntimeError: no home folder to be found
+        return None
+    return path if os.access(path, os.W_OK | os.X_OK) else None
+
+
+@lru_cache(maxsize=1)
+def code_stamp() -> str:
+    """sha256 of what computed values depend on besides their inputs: every module and data file of
+    seqgen.physics and the versions of Python, numpy and scipy."""
+    import numpy
+    import scipy
+
+    h = hashlib.sha256(f"{sys.version}|{numpy.__version__}|{scipy.__version__}".encode())
+    for path in sorted([*_HERE.glob("*.py"), *(_HERE / "data").glob("*")]):
+        h.update(path.name.encode() + b"\0" + path.read_bytes() + b"\0")
+    return h.hexdigest()
+
+
+def exact(value) -> str | None:
+    """A text that tells apart any two different values (floats to the last bit, arrays by their bytes), for a
+    key; None for a value of a kind it does not know (then nothing is stored for it)."""
+    import dataclasses
+
+    import numpy as np
+
+    if value is None or isinstance(value, (bool, int, str)):
+        return repr(value)
+    if isinstance(value, (float, np.floating)):
+        return f"{type(value).__name__}:{float(value).hex()}"
+    if isinstance(value, np.ndarray):
+        return f"ndarray:{value.dtype.str}:{value.shape}:{np.ascontiguousarray(value).tobytes().hex()}"
+    if isinstance(value, (tuple, list)):
+        parts = [exact(v) for v in value]
+        return None if None in parts else f"{type(value).__name__}({','.join(parts)})"
+    if isinstance(value, Mapping):
+        parts = [(exact(k), exact(v)) for k, v in value.items()]
+        if any(k is None or v is None for k, v in parts):
+            return None
+        return "{" + ",".join(f"{k}:{v}" for k, v in parts) + "}"
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        parts = [exact(getattr(value, f.name)) for f in dataclasses.fields(value)]
+        return None if None in parts else f"{type(value).__qualname__}({','.join(parts)})"
+    return None
+
+
+def _file(name: str, key: str) -> Path | None:
+    where = folder(name)
+    if where is None:
+        return None
+    return where / (hashlib.sha256(key.encode()).hexdigest() + ".json")
+
+
+def read(name: str, key: str):
+    """The value stored under `key` in folder `name`, or None."""
+    path = _file(name, key)
+    if path is None:
+        return None
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return doc.get("value") if isinstance(doc, dict) else None
+
+
+def write(name: str, key: str, value) -> None:
+    """Store `value` (JSON data) under `key`; silently nothing when the folder cannot be written."""
+    path = _file(name, key)
+    if path is None:
+        return
+    try:
+        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=".json")
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            json.dump({"value": value}, fh)
+        os.replace(tmp, path)  # atomic: a reader sees the old file, no file, or the whole new one
+    except OSError:
+        try:
+            os.unlink(tmp)
+        except (OSError, UnboundLocalError):
+            pass
+        return
+    if path.name.startswith("00"):  # about one write in 256 looks at the folder's size
+        prune(path.parent)
+
+
+def prune(where: Path, keep: int = MAX_FILES) -> None:
+    """Remove the least recently written files of a folder beyond `keep` (down to three quarters of it), so a
+    long scan or editing session cannot fill the disk; another process removing the same files is harmless."""
+    try:
+        files = [(p.stat().st_mtime_ns, p) for p in where.glob("*.json")]
+    except OSError:
+        return
+    if len(files) <= keep:
+        return
+    files.sort()
+    for _, p in files[:len(files) - keep * 3 // 4]:
+        try:
+            p.unlink()
+        except OSError:
+            pass
