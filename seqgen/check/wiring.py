@@ -98,7 +98,7 @@ def before_start(shot, compiled):
         yield make(WIRING_BEFORE_START, f"device '{d.name}'s first row at {fmt_when(first)} needs its {role} on '{line}' "
                    f"{fmt_when(lat)} (the step latency) ahead, before t = 0", seg.pos if seg else d.wiring_pos,
                    block=seg.block if seg else None, time_s=first,
-                   hint=_at_fix(shot, seg, first, lat, table.tick_s, f"at least the step latency after t = 0"),
+                   hint=_at_fix(shot, seg, first, lat, table.tick_s, "at least the step latency after t = 0"),
                    data={"device": d.name, "latency_s": lat, "first_s": first})
 
 

@@ -223,7 +223,6 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
 
     a = alpha * (1 + 4 * det_lw ** 2)
     od = np.zeros((len(ys), len(xs)))
-    od0_pix = np.zeros_like(od)
     atoms_in = [0.0] * len(comps)
     k = 1
     if lit and i1 > i0 and j1 > j0:
