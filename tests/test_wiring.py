@@ -206,3 +206,20 @@ def test_demo_rig_is_wired_and_the_demo_builds_clean(tmp_path):
     assert devs["ao_main"]["wiring"]["start_s"] == pytest.approx(1e-6, abs=1e-15)
     assert devs["synth_rf"]["wiring"]["step_on"] == "rf_step"
     assert _rises(_csv(out / "dio_main.csv"), "ao_start") == pytest.approx([0.5e-6], abs=1e-12)
+
+
+def test_a_wiring_loop_is_told_the_same_whatever_the_hash_seed():
+    """Same input, same bytes: the loop's message must not depend on Python's string hashing."""
+    import os
+    import subprocess
+    import sys
+
+    from .conftest import ROOT
+
+    outs = set()
+    for seed in ("1", "2", "3"):
+        env = dict(os.environ, PYTHONHASHSEED=seed, PYTHONPATH=str(ROOT))
+        proc = subprocess.run([sys.executable, "-m", "seqgen", "check", "sequences/faults/rig_wiring_cycle.yaml",
+                               "--json"], cwd=ROOT, env=env, capture_output=True, text=True, timeout=120)
+        outs.add(proc.stdout)
+    assert len(outs) == 1 and "wiring" in outs.pop()

@@ -279,8 +279,10 @@ def _acyclic(devices, outputs, doc, findings) -> dict:
     if not loops:
         return devices
     out = dict(devices)
-    for loop in loops:
+    for loop in sorted(loops, key=sorted):
         first = sorted(loop)[0]
+        start = loop.index(first)  # told from its first name: networkx's listing depends on the hash seed
+        loop = loop[start:] + loop[:start]
         chain = " -> ".join(loop + [loop[0]])
         findings.append(make(WIRING_CYCLE, f"the devices' wiring forms a loop: {chain}", devices[first].wiring_pos,
                              hint=f"make '{first}' free-running: remove its start/advance/clock wiring"))
