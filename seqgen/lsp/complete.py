@@ -12,7 +12,7 @@ from pathlib import Path
 
 from .context import (
     BLOCK_FIELDS, NAME_FIELDS, Cursor, RigInfo, cursor_at, deref, description, is_rig_text, names, outline, owner_of,
-    properties, rig_info, schema_at, schema_for,
+    properties, rig_info, schema_at, schema_for, wiring_lines,
 )
 from .features import Completion
 
@@ -50,6 +50,8 @@ def rig_names(info: RigInfo | None, what: str) -> dict:
         return {}
     rig = info.rig
     section, _, role = what.partition(":")
+    # a line that wires a device is seqgen's to drive (hardware.wiring-line-written): never offered for writing
+    wired = wiring_lines(info) if section in ("outputs", "synth-freq", "digital", "synth") else frozenset()
     out = {}
     if section in ("outputs", "synth-freq", "digital", "synth", "channels") and rig is not None:
         for name, o in rig.outputs.items():
@@ -66,11 +68,11 @@ def rig_names(info: RigInfo | None, what: str) -> dict:
             if section in ("outputs", "synth", "channels") and ch not in out and \
                     (section != "synth" or rig.outputs[parts[0]].kind == "synth"):
                 out[ch] = f"{rig.outputs[parts[0]].kind} channel ({', '.join(parts)})"
-        return out
+        return {k: v for k, v in out.items() if k not in wired}
     if section in ("outputs", "synth-freq", "digital", "synth"):
         section = "channels"
     for name in info.names.get(section, {}):
-        if role and info.roles.get(name) != role:
+        if (role and info.roles.get(name) != role) or name in wired:
             continue
         out[name] = f"rig {section[:-1] if section.endswith('s') else section}" + \
             (f", role {info.roles[name]}" if name in info.roles else "")

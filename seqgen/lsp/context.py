@@ -272,7 +272,12 @@ def cursor_at(text: str, line: int, character: int) -> Cursor | None:
     full_pairs = _rest_pairs(cur[vcol:])
     if kind == "item":  # "- na|": a key or a scalar item being typed
         path = stack.path()
-        return Cursor(path=path[:-1], key=path[-1], item=True, value=before[tail_start:].strip(), **common)
+        vtext = before[tail_start:]
+        if vtext[:1] in ("{", "["):  # "- {code: ...": a flow collection as the item (accept: entries)
+            fpath, key, at_key, element, pairs = _flow(vtext, path)
+            return Cursor(path=fpath, key=None if at_key else key, item=False, value=element,
+                          siblings=full_pairs or pairs, **common)
+        return Cursor(path=path[:-1], key=path[-1], item=True, value=vtext.strip(), **common)
     key_path = stack.path()
     parent = key_path[:-1]
     vtext = before[vcol:] if len(before) >= vcol else ""
@@ -439,6 +444,33 @@ def _rig_info(rig_text: str, file: str) -> RigInfo:
         elif len(e.path) == 3 and e.path[0] == "beams" and e.path[2] == "role" and e.value:
             roles[e.path[1]] = _unquote(e.value)
     return RigInfo(Path(file), rig_text, _rig_model(rig_text, file), names, roles)
+
+
+_WIRING_SUBKEYS = {"start": "on", "advance": "per_edge", "clock": "line"}  # as seqgen.resolve.rig reads them
+_WIRING_FLOW = re.compile(r"\b(start|advance|clock)\s*:\s*\{[^}]*?\b(on|per_edge|line)\s*:\s*([A-Za-z_][A-Za-z0-9_]*)")
+
+
+def wiring_lines(info: RigInfo | None) -> frozenset:
+    """The digital lines the rig's devices are wired by (`start: {on: LINE}`, `advance: {per_edge: LINE}`,
+    `clock: {line: LINE}`): seqgen generates their edges and no sequence may write them. Read from the built rig,
+    else (a rig that does not build) from its text."""
+    if info is None:
+        return frozenset()
+    if info.rig is not None:
+        return frozenset(x for d in info.rig.devices.values() for x in (d.start_on, d.step_on, d.clock_on) if x)
+    out = set()
+    for e in outline(info.text):
+        p = e.path
+        if p[:1] != ("devices",) or not e.value:
+            continue
+        if len(p) == 4 and _WIRING_SUBKEYS.get(p[2]) == p[3]:
+            out.add(_unquote(e.value))
+        elif len(p) == 3:  # a device's flow entry continued on its line (`start: {on: ...}`)
+            text = f"{p[2]}: {e.value}"
+            out.update(m.group(3) for m in _WIRING_FLOW.finditer(text) if _WIRING_SUBKEYS[m.group(1)] == m.group(2))
+        if len(p) == 2:
+            out.update(m.group(3) for m in _WIRING_FLOW.finditer(e.value) if _WIRING_SUBKEYS[m.group(1)] == m.group(2))
+    return frozenset(out)
 
 
 def rig_info(text: str, path: Path) -> RigInfo | None:
