@@ -158,25 +158,37 @@ def _terms(expr: str) -> list:
     return [t.strip() for t in out if t.strip()]
 
 
-def _walk(data, path: tuple, out: list, depth: int = 0) -> None:
-    if depth > 32:
+def _walk(node, path: tuple, out: list, budget: list) -> None:
+    """The scalars of a composed YAML node (no constructors: any tag reads as its text). `budget` counts the
+    nodes left to visit: aliases may make the graph a cycle, or a tree of billions of nodes."""
+    import yaml
+
+    budget[0] -= 1
+    if budget[0] < 0 or len(path) > 64:
         return
-    items = data.items() if isinstance(data, dict) else enumerate(data) if isinstance(data, list) else ()
-    pairs = tuple((str(k), str(v)) for k, v in data.items() if not isinstance(v, (dict, list))) \
-        if isinstance(data, dict) else ()
-    for k, v in items:
-        key = str(k) if isinstance(data, dict) else k
-        if isinstance(v, (dict, list)):
-            _walk(v, path + (key,), out, depth + 1)
-        elif isinstance(v, str):
-            out.append((path, key, v, pairs))
+    if isinstance(node, yaml.MappingNode):
+        pairs = tuple((str(k.value), str(v.value)) for k, v in node.value if isinstance(k, yaml.ScalarNode)
+                      and isinstance(v, yaml.ScalarNode))
+        for k, v in node.value:
+            if not isinstance(k, yaml.ScalarNode):
+                continue
+            if isinstance(v, yaml.ScalarNode):
+                out.append((path, str(k.value), str(v.value), pairs))
+            else:
+                _walk(v, path + (str(k.value),), out, budget)
+    elif isinstance(node, yaml.SequenceNode):
+        for i, v in enumerate(node.value):
+            if isinstance(v, yaml.ScalarNode):
+                out.append((path, i, str(v.value), ()))
+            else:
+                _walk(v, path + (i,), out, budget)
 
 
 @lru_cache(maxsize=32)
 def _sites(text: str) -> tuple:
-    """Every text value of the document: (its mapping's path, its key or index, the text, the (key, value)
-    pairs of its flow mapping); a flow collection written on one line is read with PyYAML, one that is not
-    whole is skipped."""
+    """Every scalar value of the document: (its mapping's path, its key or index, the text, the (key, value)
+    pairs of its flow mapping); a flow collection written on one line is read with PyYAML's composer, one that
+    is not whole is skipped."""
     import yaml
 
     out: list = []
@@ -185,10 +197,10 @@ def _sites(text: str) -> tuple:
             continue
         if e.value[:1] in "{[":
             try:
-                data = yaml.safe_load(e.value) if len(e.value) < 4000 else None
-            except (yaml.YAMLError, RecursionError, ValueError, TypeError):
+                node = yaml.compose(e.value, Loader=yaml.SafeLoader) if len(e.value) < 4000 else None
+            except (yaml.YAMLError, RecursionError):
                 continue
-            _walk(data, e.path, out)
+            _walk(node, e.path, out, [2000])
         else:
             out.append((e.path[:-1], e.path[-1], e.value.strip("'\""), ()))
     return tuple(out)
