@@ -76,8 +76,8 @@ def writable_outputs(rig: dict) -> set:
     for name, spec in rig["channels"].items():
         out.add(name)
         if spec["kind"] == "synth":
-            out |= {f"{name}.{short}" for short, key in (("freq", "frequency"), ("amp", "amplitude"), ("phase", "phase"))
-                    if key in spec}
+            parts = (("freq", "frequency"), ("amp", "amplitude"), ("phase", "phase"))
+            out |= {f"{name}.{short}" for short, key in parts if key in spec}
     return out - wiring_lines_of(rig)
 
 
@@ -119,7 +119,8 @@ def test_accept_codes_complete_in_flow_style_as_in_block_style(codes):
 def test_accept_block_names_and_keys_in_a_flow_entry():
     base = BARRIER.read_text(encoding="utf-8")
     text = base + 'accept:\n  - {code: physics.shallow-trap, block: , reason: "TODO: why"}\n'
-    got = completions(text, BARRIER, *where(text, "{code: physics.shallow-trap, block: ", len("{code: physics.shallow-trap, block: ")))
+    needle = "{code: physics.shallow-trap, block: "
+    got = completions(text, BARRIER, *where(text, needle, len(needle)))
     assert {c.label for c in got} == block_names() and all(c.kind == "block" for c in got)
     text = base + "accept:\n  - {code: physics.shallow-trap, block: sc"
     assert set(labels(text, BARRIER, "block: sc")) == {b for b in block_names() if b.startswith("sc")}
@@ -169,7 +170,8 @@ def test_trap_ramp_takes_one_beam_key():
 
 def test_channel_completes_before_a_written_value():
     text = BARRIER.read_text(encoding="utf-8").replace("{channel: cross_b_power, value: 0 W}", "{channel: , value: 0}")
-    assert set(labels(text, BARRIER, "set: {channel: , value: 0}", len("set: {channel: "))) == writable_outputs(RIG_DATA)
+    got = labels(text, BARRIER, "set: {channel: , value: 0}", len("set: {channel: "))
+    assert set(got) == writable_outputs(RIG_DATA)
 
 
 def test_flow_use_entry_reads_the_used_file():

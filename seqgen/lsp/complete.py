@@ -3,6 +3,7 @@ functions and units that fit the key.
 
 `completions(text, path, line, character)` reads the cursor's place with `context.cursor_at` (any text, broken
 or half typed) and offers what the schema and the document's world (its rig, the files it uses) allow there.
+A param's value is offered the units of the dimension its uses need (`param_unit`).
 """
 
 from __future__ import annotations

@@ -245,7 +245,8 @@ def cursor_at(text: str, line: int, character: int) -> Cursor | None:
     _feed(stack, lines[:line])
     word, ws, we = _around(cur, character, _WORD_CHARS)
     token, ts, te = _around(cur, character, _TOKEN_CHARS)
-    common = dict(line=line, character=character, word=word, word_start=ws, word_end=we, token=token, token_start=ts, token_end=te)
+    common = dict(line=line, character=character, word=word, word_start=ws, word_end=we, token=token,
+                  token_start=ts, token_end=te)
     for kind, col, name, _, _ in line_tokens(cur):  # on a key of the line: the mapping the key is in
         if kind == "key" and col <= character <= col + len(name) and col < len(before) + 1:
             for k2, c2, n2, _, _ in line_tokens(cur):
@@ -467,11 +468,9 @@ def wiring_lines(info: RigInfo | None) -> frozenset:
             continue
         if len(p) == 4 and _WIRING_SUBKEYS.get(p[2]) == p[3]:
             out.add(_unquote(e.value))
-        elif len(p) == 3:  # a device's flow entry continued on its line (`start: {on: ...}`)
-            text = f"{p[2]}: {e.value}"
-            out.update(m.group(3) for m in _WIRING_FLOW.finditer(text) if _WIRING_SUBKEYS[m.group(1)] == m.group(2))
-        if len(p) == 2:
-            out.update(m.group(3) for m in _WIRING_FLOW.finditer(e.value) if _WIRING_SUBKEYS[m.group(1)] == m.group(2))
+        elif len(p) in (2, 3):  # a device's flow entry, or its continuation line (`start: {on: ...}, ...`)
+            written = e.value if len(p) == 2 else f"{p[2]}: {e.value}"
+            out.update(m.group(3) for m in _WIRING_FLOW.finditer(written) if _WIRING_SUBKEYS[m.group(1)] == m.group(2))
     return frozenset(out)
 
 

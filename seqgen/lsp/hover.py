@@ -1,8 +1,9 @@
 """Hover for sequence and rig files: what a block, param, rig name, finding code or key is.
 
 A block shows its resolved start and end (and the physics predictions of the last check, when the caller
-passes its `Result`); a param its value as written and in SI units and what uses it; a rig output its range,
-calibration, hard limits and latency; a finding code its `seqgen explain` text; a key its schema description.
+passes its `Result`); a param its value as written and in SI units, its bounds and scan, and what uses it; a rig
+output its range, calibration, hard limits and latency; a finding code its `seqgen explain` text; a key its schema
+description.
 Times and values come from seqgen's own resolve stage: the caller's `analysis` when it is of this very text,
 else a resolve of the text (params, blocks and times only, a few milliseconds; cached by content).
 """
