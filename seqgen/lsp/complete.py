@@ -3,16 +3,18 @@ functions and units that fit the key.
 
 `completions(text, path, line, character)` reads the cursor's place with `context.cursor_at` (any text, broken
 or half typed) and offers what the schema and the document's world (its rig, the files it uses) allow there.
+A param's value is offered the units of the dimension its uses need (`param_unit`).
 """
 
 from __future__ import annotations
 
 import re
+from functools import lru_cache
 from pathlib import Path
 
 from .context import (
     BLOCK_FIELDS, NAME_FIELDS, Cursor, RigInfo, cursor_at, deref, description, is_rig_text, names, outline, owner_of,
-    properties, rig_info, schema_at, schema_for,
+    properties, read_small, rig_info, rig_path, schema_at, schema_for, strip_comment, used_file, wiring_lines,
 )
 from .features import Completion
 
@@ -37,6 +39,7 @@ KEY_UNITS = {"at": "s", "duration": "s", "over": "s", "tau": "s", "exposure": "s
 
 _EXAMPLE = re.compile(r"'([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-zµμ][^'\d]*)'")
 _NUMBER_UNIT = re.compile(r"(?:^|[\s(*/+\-,\[])[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?\s*([A-Za-zµμ_/^0-9]*)$")
+_UNIT_CHARS = frozenset("ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789_/^µμ")
 _WRITTEN_UNIT = re.compile(r"(?<![\w.])(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?\s*([A-Za-zµμ][A-Za-z0-9µμ/^]*)")
 
 
@@ -50,6 +53,8 @@ def rig_names(info: RigInfo | None, what: str) -> dict:
         return {}
     rig = info.rig
     section, _, role = what.partition(":")
+    # a line that wires a device is seqgen's to drive (hardware.wiring-line-written): never offered for writing
+    wired = wiring_lines(info) if section in ("outputs", "synth-freq", "digital", "synth") else frozenset()
     out = {}
     if section in ("outputs", "synth-freq", "digital", "synth", "channels") and rig is not None:
         for name, o in rig.outputs.items():
@@ -66,11 +71,11 @@ def rig_names(info: RigInfo | None, what: str) -> dict:
             if section in ("outputs", "synth", "channels") and ch not in out and \
                     (section != "synth" or rig.outputs[parts[0]].kind == "synth"):
                 out[ch] = f"{rig.outputs[parts[0]].kind} channel ({', '.join(parts)})"
-        return out
+        return {k: v for k, v in out.items() if k not in wired}
     if section in ("outputs", "synth-freq", "digital", "synth"):
         section = "channels"
     for name in info.names.get(section, {}):
-        if role and info.roles.get(name) != role:
+        if (role and info.roles.get(name) != role) or name in wired:
             continue
         out[name] = f"rig {section[:-1] if section.endswith('s') else section}" + \
             (f", role {info.roles[name]}" if name in info.roles else "")
@@ -127,6 +132,148 @@ def expected_unit(cur: Cursor, text: str, path: Path, node, root) -> str | None:
         if m and _dims(m.group(2).strip()) is not None:
             return m.group(2).strip()
     return KEY_UNITS.get(field) if isinstance(field, str) else None
+
+
+# ----------------------------------------------------------------------------- the dimension a param needs
+# A param's value gets the units its uses need: where an expression is the param (times plain numbers) or one
+# term of a sum, the param has that key's dimension; a param that only feeds another param takes that one's.
+
+_NUM = r"(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+_SCALED = re.compile(rf"^(?:{_NUM}\s*\*\s*)*\(?\s*([A-Za-z_][A-Za-z0-9_]*)\s*\)?(?:\s*[*/]\s*{_NUM})*$")
+_TERM_UNIT = re.compile(rf"^{_NUM}\s*([A-Za-zµμ][A-Za-z0-9µμ/^]*)$")
+
+
+def _terms(expr: str) -> list:
+    """The terms of a sum at its top level ('release + tof' -> ['release', 'tof']); the sign of a number's
+    exponent ('1e-3') splits nothing."""
+    out, depth, start = [], 0, 0
+    for i, ch in enumerate(expr):
+        if ch in "([":
+            depth += 1
+        elif ch in ")]":
+            depth -= 1
+        elif ch in "+-" and depth == 0 and not (i >= 2 and expr[i - 1] in "eE" and expr[i - 2].isdigit()):
+            out.append(expr[start:i])
+            start = i + 1
+    out.append(expr[start:])
+    return [t.strip() for t in out if t.strip()]
+
+
+def _walk(node, path: tuple, out: list, budget: list) -> None:
+    """The scalars of a composed YAML node (no constructors: any tag reads as its text). `budget` counts the
+    nodes left to visit: aliases may make the graph a cycle, or a tree of billions of nodes."""
+    import yaml
+
+    budget[0] -= 1
+    if budget[0] < 0 or len(path) > 64:
+        return
+    if isinstance(node, yaml.MappingNode):
+        pairs = tuple((str(k.value), str(v.value)) for k, v in node.value if isinstance(k, yaml.ScalarNode)
+                      and isinstance(v, yaml.ScalarNode))
+        for k, v in node.value:
+            if not isinstance(k, yaml.ScalarNode):
+                continue
+            if isinstance(v, yaml.ScalarNode):
+                out.append((path, str(k.value), str(v.value), pairs))
+            else:
+                _walk(v, path + (str(k.value),), out, budget)
+    elif isinstance(node, yaml.SequenceNode):
+        for i, v in enumerate(node.value):
+            if isinstance(v, yaml.ScalarNode):
+                out.append((path, i, str(v.value), ()))
+            else:
+                _walk(v, path + (i,), out, budget)
+
+
+@lru_cache(maxsize=32)
+def _sites(text: str) -> tuple:
+    """Every scalar value of the document: (its mapping's path, its key or index, the text, the (key, value)
+    pairs of its flow mapping); a flow collection written on one line is read with PyYAML's composer, one that
+    is not whole is skipped."""
+    import yaml
+
+    out: list = []
+    for e in outline(text):
+        if not e.value or not e.path:
+            continue
+        if e.value[:1] in "{[":
+            try:
+                node = yaml.compose(e.value, Loader=yaml.SafeLoader) if len(e.value) < 4000 else None
+            except (yaml.YAMLError, RecursionError):
+                continue
+            _walk(node, e.path, out, [2000])
+        else:
+            out.append((e.path[:-1], e.path[-1], e.value.strip("'\""), ()))
+    return tuple(out)
+
+
+def _docs(text: str, path: Path) -> list:
+    """(text, path) of the document and of the files it uses (not its rig)."""
+    out = [(text, path)]
+    if is_rig_text(text):
+        return out
+    rig = rig_path(text, path)
+    for _, file in names(text, path).files:
+        body = read_small(file) if file != rig and file.suffix in (".yaml", ".yml") else None
+        if body is not None and not is_rig_text(body):
+            out.append((body, file))
+    return out
+
+
+def param_unit(name: str, text: str, path: Path, root, seen: frozenset = frozenset()) -> str | None:
+    """A unit of the dimension the param's uses need (in this document and the files it uses), else None."""
+    if name in seen or len(seen) > 8:
+        return None
+    seen = seen | {name}
+    for body, file in _docs(text, path):
+        for mpath, key, value, pairs in _sites(body):
+            full = mpath + (key,)
+            if full[:1] == ("use",) or full[:2] == ("params", name):
+                continue
+            terms = _terms(value)
+            if not any((m := _SCALED.match(t)) and m.group(1) == name for t in terms):
+                continue
+            unit = next((m.group(1) for t in terms if (m := _TERM_UNIT.match(t)) and _dims(m.group(1))), None)
+            if unit is None and full[:1] == ("params",) and len(full) >= 2 and isinstance(full[1], str):
+                unit = param_unit(full[1], text, path, root, seen) or written_unit(full[1], body)
+            elif unit is None:
+                site = Cursor(line=-1, path=mpath, key=key, item=False, value=value, word="", word_start=0,
+                              word_end=0, token="", token_start=0, token_end=0, siblings=pairs)
+                unit = expected_unit(site, body, file, schema_at(root, full), root)
+            if unit is not None and _dims(unit) is not None:
+                return unit
+    return None
+
+
+def written_unit(name: str, text: str, cur: Cursor | None = None) -> str | None:
+    """The first unit written in the param's own entry of `text` (its value, bounds, scan), the unit being typed
+    at the cursor left out."""
+    lines = text.splitlines()
+    for e in outline(text):
+        if e.path[:2] != ("params", name) or e.line >= len(lines):
+            continue
+        value = e.value or ""
+        if cur is not None and e.line == cur.line:
+            line = strip_comment(lines[e.line])
+            if not line[cur.character:cur.character + 1] or line[cur.character] not in _UNIT_CHARS:
+                line = line[:cur.token_start] + line[cur.character:]  # what is typed is no unit yet
+            value = line[e.col:]
+        for m in _WRITTEN_UNIT.finditer(value):
+            if _dims(m.group(1)) is not None:
+                return m.group(1)
+    return None
+
+
+def _param_of(full: tuple, text: str, path: Path) -> tuple | None:
+    """(param name, the text and path that define it) of a value under `params:` or a `use:` entry's params."""
+    if len(full) >= 2 and full[0] == "params" and isinstance(full[1], str):
+        return full[1], text, path
+    if len(full) == 4 and full[0] == "use" and full[2] == "params" and isinstance(full[3], str) \
+            and isinstance(full[1], int):
+        file = used_file(text, path, full[1])
+        body = read_small(file) if file is not None else None
+        return (full[3], body, file) if body is not None and not is_rig_text(body) else None
+    return None
 
 
 def _written_units(text: str) -> list:
@@ -249,7 +396,14 @@ def _values(cur: Cursor, text: str, path: Path, root) -> list:
 def _quantity(cur: Cursor, text: str, path: Path, node, root) -> list:
     m = _NUMBER_UNIT.search(" " + cur.value)
     if m:  # after a number: its unit
-        return unit_completions(text, expected_unit(cur, text, path, node, root), m.group(1))
+        param = _param_of(cur.full_path, text, path) if not is_rig_text(text) else None
+        if param is not None:  # a param's: what its uses need, else what its entry writes (else every unit)
+            name, body, file = param
+            unit = param_unit(name, body, file, root) or \
+                written_unit(name, body, cur if body is text else None)
+        else:
+            unit = expected_unit(cur, text, path, node, root)
+        return unit_completions(text, unit, m.group(1))
     return _expression(text, path, cur.value_prefix)
 
 

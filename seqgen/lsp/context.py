@@ -38,7 +38,7 @@ class Cursor:
     `item` True when it is where a plain `- ` item starts (a key of a mapping item, or a scalar item); `value` the text of the scalar (or flow element) it is in,
     up to the cursor; `word` the name under the cursor (letters, digits, _) and its columns; `token` the same
     with `.`, `-` and `/` (finding codes, synth parts, paths); `siblings` the other keys of its mapping with
-    their values as written on the cursor's line."""
+    their values as written on the cursor's line; `character` its column."""
 
     line: int
     path: tuple
@@ -52,6 +52,7 @@ class Cursor:
     token_start: int
     token_end: int
     siblings: tuple = ()
+    character: int = 0  # the cursor's column
 
     @property
     def value_prefix(self) -> str:
@@ -244,7 +245,8 @@ def cursor_at(text: str, line: int, character: int) -> Cursor | None:
     _feed(stack, lines[:line])
     word, ws, we = _around(cur, character, _WORD_CHARS)
     token, ts, te = _around(cur, character, _TOKEN_CHARS)
-    common = dict(line=line, word=word, word_start=ws, word_end=we, token=token, token_start=ts, token_end=te)
+    common = dict(line=line, character=character, word=word, word_start=ws, word_end=we, token=token,
+                  token_start=ts, token_end=te)
     for kind, col, name, _, _ in line_tokens(cur):  # on a key of the line: the mapping the key is in
         if kind == "key" and col <= character <= col + len(name) and col < len(before) + 1:
             for k2, c2, n2, _, _ in line_tokens(cur):
@@ -272,7 +274,12 @@ def cursor_at(text: str, line: int, character: int) -> Cursor | None:
     full_pairs = _rest_pairs(cur[vcol:])
     if kind == "item":  # "- na|": a key or a scalar item being typed
         path = stack.path()
-        return Cursor(path=path[:-1], key=path[-1], item=True, value=before[tail_start:].strip(), **common)
+        vtext = before[tail_start:]
+        if vtext[:1] in ("{", "["):  # "- {code: ...": a flow collection as the item (accept: entries)
+            fpath, key, at_key, element, pairs = _flow(vtext, path)
+            return Cursor(path=fpath, key=None if at_key else key, item=False, value=element,
+                          siblings=full_pairs or pairs, **common)
+        return Cursor(path=path[:-1], key=path[-1], item=True, value=vtext.strip(), **common)
     key_path = stack.path()
     parent = key_path[:-1]
     vtext = before[vcol:] if len(before) >= vcol else ""
@@ -373,7 +380,8 @@ def description(root: dict, node) -> str:
     return str(node.get("description") or deref(root, node).get("description") or "")
 
 
-def _read(path: Path) -> str | None:
+def read_small(path: Path) -> str | None:
+    """A file's text (None: missing, unreadable or over 8 MiB)."""
     try:
         if not path.is_file() or path.stat().st_size > 8 * 1024 * 1024:
             return None
@@ -441,12 +449,37 @@ def _rig_info(rig_text: str, file: str) -> RigInfo:
     return RigInfo(Path(file), rig_text, _rig_model(rig_text, file), names, roles)
 
 
+_WIRING_SUBKEYS = {"start": "on", "advance": "per_edge", "clock": "line"}  # as seqgen.resolve.rig reads them
+_WIRING_FLOW = re.compile(r"\b(start|advance|clock)\s*:\s*\{[^}]*?\b(on|per_edge|line)\s*:\s*([A-Za-z_][A-Za-z0-9_]*)")
+
+
+def wiring_lines(info: RigInfo | None) -> frozenset:
+    """The digital lines the rig's devices are wired by (`start: {on: LINE}`, `advance: {per_edge: LINE}`,
+    `clock: {line: LINE}`): seqgen generates their edges and no sequence may write them. Read from the built rig,
+    else (a rig that does not build) from its text."""
+    if info is None:
+        return frozenset()
+    if info.rig is not None:
+        return frozenset(x for d in info.rig.devices.values() for x in (d.start_on, d.step_on, d.clock_on) if x)
+    out = set()
+    for e in outline(info.text):
+        p = e.path
+        if p[:1] != ("devices",) or not e.value:
+            continue
+        if len(p) == 4 and _WIRING_SUBKEYS.get(p[2]) == p[3]:
+            out.add(_unquote(e.value))
+        elif len(p) in (2, 3):  # a device's flow entry, or its continuation line (`start: {on: ...}, ...`)
+            written = e.value if len(p) == 2 else f"{p[2]}: {e.value}"
+            out.update(m.group(3) for m in _WIRING_FLOW.finditer(written) if _WIRING_SUBKEYS[m.group(1)] == m.group(2))
+    return frozenset(out)
+
+
 def rig_info(text: str, path: Path) -> RigInfo | None:
     """The rig of a sequence (or the rig file being edited), cached by its content; None if there is none."""
     rp = rig_path(text, path)
     if rp is None:
         return None
-    rig_text = text if is_rig_text(text) else _read(rp)
+    rig_text = text if is_rig_text(text) else read_small(rp)
     return _rig_info(rig_text, str(rp)) if rig_text is not None else None
 
 
@@ -477,15 +510,37 @@ def _file_names(text: str, file: str) -> tuple:
     return blocks, params, written
 
 
-def _use_files(text: str, path: Path) -> tuple:
+_FLOW_FILE = re.compile(r"""[{,]\s*file\s*:\s*(?:"([^"\n]*)"|'([^'\n]*)'|([^,}\s][^,}]*?))\s*(?=[,}]|$)""")
+
+
+def _use_entries(text: str, path: Path) -> tuple:
+    """(the `use:` index or None for `rig:`, Place of the path as written, the file) of each file the document
+    names; a `use:` entry written as a flow mapping (`- {file: x, params: {...}}`) too."""
     out = []
     for e in outline(text):
         p = e.path
         if e.value and ((len(p) == 3 and p[0] == "use" and p[2] == "file") or p == ("rig",)):
             value = _unquote(e.value)
             start = e.value_col + (1 if e.value[:1] in "'\"" else 0)
-            out.append((Place(Path(path), e.line, start, start + len(value)), Path(path).parent / value))
+            out.append((p[1] if p[0] == "use" else None, Place(Path(path), e.line, start, start + len(value)),
+                        Path(path).parent / value))
+        elif e.value and len(p) == 2 and p[0] == "use" and e.value[:1] == "{":
+            m = _FLOW_FILE.search(e.value)
+            if m:
+                g = next(i for i in (1, 2, 3) if m.group(i) is not None)
+                start = e.value_col + m.start(g)
+                out.append((p[1], Place(Path(path), e.line, start, start + len(m.group(g))),
+                            Path(path).parent / m.group(g)))
     return tuple(out)
+
+
+def _use_files(text: str, path: Path) -> tuple:
+    return tuple((place, file) for _, place, file in _use_entries(text, path))
+
+
+def used_file(text: str, path: Path, index: int) -> Path | None:
+    """The file the document's `use:` entry `index` names."""
+    return next((file for i, _, file in _use_entries(text, path) if i == index), None)
 
 
 def names(text: str, path: Path) -> Names:
@@ -493,7 +548,7 @@ def names(text: str, path: Path) -> Names:
     files = _use_files(text, path)
     for place, file in files:
         if place.line >= 0 and file.suffix in (".yaml", ".yml") and not is_rig_text(text):
-            used = _read(file) if file != rig_path(text, path) else None
+            used = read_small(file) if file != rig_path(text, path) else None
             if used is None:
                 continue
             b, p, w = _file_names(used, str(file))

@@ -1,8 +1,9 @@
 """Hover for sequence and rig files: what a block, param, rig name, finding code or key is.
 
 A block shows its resolved start and end (and the physics predictions of the last check, when the caller
-passes its `Result`); a param its value as written and in SI units and what uses it; a rig output its range,
-calibration, hard limits and latency; a finding code its `seqgen explain` text; a key its schema description.
+passes its `Result`); a param its value as written and in SI units, its bounds and scan, and what uses it; a rig
+output its range, calibration, hard limits and latency; a finding code its `seqgen explain` text; a key its schema
+description.
 Times and values come from seqgen's own resolve stage: the caller's `analysis` when it is of this very text,
 else a resolve of the text (params, blocks and times only, a few milliseconds; cached by content).
 """
@@ -41,27 +42,33 @@ def _dep_texts(text: str, path: Path) -> tuple:
 
 
 @lru_cache(maxsize=4)
-def _resolved(text: str, file: str, deps: tuple):
-    """The shot seqgen resolves from this text (None if it cannot); `deps` (the used and rig files' bytes) is
-    only part of the key, so that an edit of the rig resolves again."""
+def _resolved(text: str, file: str, deps: tuple) -> tuple:
+    """(sources, shot) seqgen reads and resolves from this text (None where it cannot); `deps` (the used and rig
+    files' bytes) is only part of the key, so that an edit of the rig resolves again."""
     from ..pipeline import load_sources, resolve
     from ..load.yamlsrc import LoadError
 
     try:
         src = load_sources(Path(file), text=text, display=file)
     except LoadError:
-        return None
+        return None, None
     shot, _ = resolve(src)
-    return shot
+    return src, shot
+
+
+def _analysed(text: str, path: Path, analysis) -> tuple:
+    """(sources, base shot, whether they are the caller's analysis of this very text)."""
+    shot = getattr(analysis, "shot", None)
+    src = getattr(analysis, "sources", None)
+    if shot is not None and src is not None and getattr(src.main, "text_sha256", None) == _sha(text):
+        return src, shot, True
+    return (*_resolved(text, str(path), _dep_texts(text, path)), False)
 
 
 def _shot(text: str, path: Path, analysis):
     """(shot, whether it is the caller's analysis of this very text)."""
-    shot = getattr(analysis, "shot", None)
-    src = getattr(analysis, "sources", None)
-    if shot is not None and src is not None and getattr(src.main, "text_sha256", None) == _sha(text):
-        return shot, True
-    return _resolved(text, str(path), _dep_texts(text, path)), False
+    _, shot, current = _analysed(text, path, analysis)
+    return shot, current
 
 
 def _block(name: str, text: str, path: Path, analysis) -> str:
@@ -137,7 +144,7 @@ def _param(name: str, text: str, path: Path, analysis) -> str:
             value = given.group(1) if given else (e.value if len(e.path) == 4 else None)
             if value:
                 lines.append(f"- given by `use:` (line {e.line + 1}): `{value.strip()}`")
-    shot, _ = _shot(text, path, analysis)
+    src, shot, _ = _analysed(text, path, analysis)
     p = next((p for p in shot.params if p.name == name), None) if shot is not None else None
     if p is not None:
         unit = display_unit(p.dims)
@@ -146,9 +153,50 @@ def _param(name: str, text: str, path: Path, analysis) -> str:
         lines.append(f"- in SI: {p.value:.10g} {unit}".rstrip())
     else:
         lines.append("- not resolved yet")
+    lines += _bounds_and_scan(name, src, shot)
     users = _users(name, text, path)
     lines.append("- used by: " + (", ".join(users) if users else "nothing"))
     return "\n".join(lines)
+
+
+def _bounds_and_scan(name: str, src, shot) -> list:
+    """The param's min: / max: as written, and its scan as `seqgen check` describes it (the values, or the
+    first and last and how many); a scan that does not expand says so."""
+    if src is None:
+        return []
+    from ..findings import has_errors
+    from ..resolve.params import param_entries
+    from ..scan.plan import expand, has_scans
+
+    entries, bounds = param_entries(src)
+    out = []
+    given = bounds.get(name, {})
+    if given:
+        out.append("- bounds: " + ", ".join(f"{k} `{_written(given[k][0])}`" for k in ("min", "max") if k in given))
+    raw = entries.get(name, (None,))[0]
+    if not isinstance(raw, dict) or raw.get("scan") is None:
+        return out
+    plan = None
+    if shot is not None and not has_errors(src.findings) and has_scans(src):
+        plan, _ = expand(src, shot)
+    axis = next((a for a in plan.axes if a.name == name), None) if plan is not None else None
+    if axis is None:
+        out.append(f"- scan: `{_written(raw['scan'])}` (does not expand as it stands; see `seqgen check`)")
+    else:
+        out.append(f"- scan: {axis.describe()}" + (f", group `{axis.group}`" if axis.group else "")
+                   + f"; written `{_written(raw['scan'])}`")
+        if len(plan.axes) > 1:
+            out.append(f"- the whole scan: {len(plan)} shots: {plan.describe()}")
+    return out
+
+
+def _written(raw) -> str:
+    """A value of the loaded document as it reads in YAML flow style."""
+    if isinstance(raw, dict):
+        return "{" + ", ".join(f"{k}: {_written(v)}" for k, v in raw.items()) + "}"
+    if isinstance(raw, list):
+        return "[" + ", ".join(_written(v) for v in raw) + "]"
+    return str(raw)
 
 
 def _written_entry(info, place: Place) -> str:
