@@ -330,6 +330,28 @@ NONADIABATIC_RAMP = Code(
     the ramp, use a smooth shape, replace a set by a ramp at least as long as
     the fix names, or accept the finding with a reason.""")
 
+NOTHING_IMAGED = Code(
+    "physics.nothing-imaged", "warning", stage="physics",
+    source=("ground hyperfine splittings (Rev. Mod. Phys. 49, 31 (1977)) of hundreds of natural linewidths "
+            "(alkali D-line data compilations): a probe on one level's cycling line scatters off the other "
+            "level at the Lorentzian rate R = (Gamma/2) s / (1 + s + 4 Delta^2/Gamma^2), Laser Cooling and "
+            "Trapping, Springer (1999) (from memory); populations and detection floor as for "
+            "physics.transition-unpopulated"),
+    doc="""
+    A state-selective image (the setup's `imaged_F` in the rig) of a level
+    that holds no atoms: every populated component at the image is in
+    another ground hyperfine level, so the probe, without a repumper, is a
+    ground-state splitting away from them (1.77 GHz, about 180 natural
+    linewidths, for sodium; 6.83 GHz, about 1100, for rubidium-87) and the
+    picture is blank.
+    The populations are followed from the sample state through the clock
+    pulses, sweeps and magnetic holds before the image; a state counts as
+    empty below the sample's `detection_floor` (default 100 atoms) or 1 %
+    of the atoms; a barrier's modulation that may have filled the level
+    keeps the check silent. Image the populated level (`imaged_F`, or none
+    for a repumped probe), or move atoms into the imaged level before the
+    image (a repump pulse, a clock pulse or a sweep).""")
+
 NOT_TUNNELLING = Code(
     "physics.not-tunnelling", "warning", stage="physics",
     source=("classical turning point: transmission below the barrier top is tunnelling (any quantum "
