@@ -309,6 +309,9 @@ MODULATION_OFF_RESONANCE = Code(
     the FWHM of a square pulse's power spectrum): within either the drive
     still works. Atoms crossing the sheet see it only for their transit
     time, which widens the line further; see `physics.barrier-rotation`.
+    A `transition` the model does not couple (Delta mF != 0,
+    physics.transition-forbidden) is compared with its bare Breit-Rabi line
+    within the Fourier width alone.
     Tune `modulation: {frequency: ...}` to the line (the hint gives it).""")
 
 NONADIABATIC_RAMP = Code(
@@ -572,7 +575,14 @@ TRANSITION_FORBIDDEN = Code(
     one the polarisation cannot drive, or not a transition of the sample's
     species: rabi_per_amplitude cannot then be carried over to other
     transitions (it is used unscaled). An error, as physics.pulse-angle: the
-    pulse's area is zero, whatever rotation it was written for.""")
+    pulse's area is zero, whatever rotation it was written for.
+    Also a warning at a `barrier` whose `modulation: {transition: ...}` is
+    not two hyperfine levels at equal mF: seqgen's model of a modulated
+    sheet (a co-propagating Raman pair through the vector light shift,
+    circular light along the bias field) couples only those, so the
+    modulation drives nothing (a warning: the rig gives neither the sheet's
+    polarisation nor its angle to the bias). The hint names the pair from a
+    populated state and its light-shifted line.""")
 
 TRANSITION_UNPOPULATED = Code(
     "physics.transition-unpopulated", "warning", stage="physics",
@@ -592,7 +602,9 @@ TRANSITION_UNPOPULATED = Code(
     counts as empty below the sample's `detection_floor` (default 100 atoms)
     or below 1 % of the atoms. A warning, not an error: a drive seqgen does
     not model may have filled the state. Fix the pulse's `transition` or
-    the sample's `state`.""")
+    the sample's `state`. Also raised at a `barrier` whose modulation's
+    `transition` holds no atoms: the modulation drives nothing (the hint
+    names the pair from a populated state and its light-shifted line).""")
 
 TRAP_HEATING = Code(
     "physics.trap-heating", "warning", stage="physics",
