@@ -131,3 +131,19 @@ def test_a_condensate_with_a_scattering_length_is_not_called_thermal(project):
     found = check(sc_text)
     note = _finding(found, "physics.barrier-transmission")
     assert "Thomas-Fermi radius" in note.message and "sized as thermal" not in note.message
+
+
+FAULT = "sequences/faults/condensate_as_thermal.yaml"
+
+
+def test_a_note_at_the_sample_once_per_shot_and_its_fixes_pass(project):
+    notes = [f for f in check(FAULT) if f.code == "physics.condensate-as-thermal"]
+    assert len(notes) == 1 and notes[0].line == 6 and notes[0].severity == "note"
+    assert "K41 |F=1, mF=+1> has no positive scattering length" in notes[0].message
+    # the stretched |2,+2> is a pure triplet pair (Phys. Rev. A 78, 012503 (2008)): the fix names it
+    assert "|F=2, mF=+2>" in notes[0].hint
+    text = Path(FAULT).read_text(encoding="utf-8")
+    Path(FAULT).write_text(text.replace("condensed: true", "condensed: false"), encoding="utf-8")
+    assert not [f for f in check(FAULT) if f.code == "physics.condensate-as-thermal"]
+    Path(FAULT).write_text(text.replace("state: {F: 1, mF: 1}", "state: {F: 2, mF: 2}"), encoding="utf-8")
+    assert not [f for f in check(FAULT) if f.code == "physics.condensate-as-thermal"]

@@ -30,6 +30,7 @@ RULES: tuple[Rule, ...] = (
     physics_traps.repulsive_trap_beam, physics_traps.trap_lost, physics_traps.nonadiabatic_ramp, physics_traps.shallow_trap,
     physics_traps.trap_heating,
     physics_traps.cloud_outside_view, physics_traps.cloud_out_of_focus, physics_traps.cloud_clipped,
+    physics_traps.condensate_as_thermal,
     physics_states.pulse_angle, physics_states.pulse_detuned, physics_states.sweep_not_adiabatic,
     physics_states.modulation_off_resonance, physics_states.modulation_unreachable,
     physics_states.transition_forbidden,

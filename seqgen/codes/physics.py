@@ -120,6 +120,23 @@ BARRIER_TRANSMISSION = Code(
     part of the cloud passes, is outside the model (physics.cloud-overlaps-barrier,
     physics.barrier-too-short, physics.barrier-too-late).""")
 
+CONDENSATE_AS_THERMAL = Code(
+    "physics.condensate-as-thermal", "note", stage="physics",
+    source=("Thomas-Fermi radius and chemical potential need a positive s-wave scattering length (Bose-Einstein "
+            "Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008)); seqgen's species table "
+            "(seqgen/physics/data/atoms.yaml) and the triplet length for a stretched state, Phys. Rev. A 78, "
+            "012503 (2008)"),
+    doc="""
+    The sample says `condensed: true`, but seqgen cannot size it as a
+    condensate: its data hold no positive scattering length for the sample
+    state (only the stretched states take the triplet length), or the sample
+    gives no atom number. No Thomas-Fermi radius, chemical potential or
+    mean-field release is computed; the barrier checks take a thermal cloud
+    at the sample's temperature (their messages say so), and the clouds at
+    the images have no size. Raised once per shot, at the sample. State the
+    cloud as thermal (`condensed: false`) if that is what it is, or use a
+    state with a scattering length in seqgen's data.""")
+
 CLOUD_CLIPPED = Code(
     "physics.cloud-clipped", "error", stage="physics",
     source=("free fall under standard gravity (SI Brochure); expansion and component positions as for "
