@@ -14,11 +14,13 @@ from ..findings import make
 from ..predict.barrier import THERMAL_EDGE_RMS, analyse
 from ..predict.species import species
 from ..predict.states import barrier_drive_analysis, barriers
-from ..predict.text import in_barrier_drive_reason, larmor_clock_text, release_text, rotation_text, spread_text
+from ..predict.text import (in_barrier_drive_reason, larmor_clock_text, release_text, rotation_text, spread_text,
+                            stand_in_text)
 from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time, outward
 from .rules import rule
 
 MISSED_FRACTION = 0.10  # a barrier may miss at most 10 % of the cloud (common practice, no source)
+SLOW_TAIL = 3.0  # 99 % across later than this many times the centre's arrival: the slow tail sets the bound
 
 
 def _each(shot):
@@ -82,6 +84,12 @@ def barrier_too_short(shot):
         need = ps.need_off - ps.on
         hint = (f"keep the barrier on for at least {fmt_time(outward(need), unit='ms', nonfinite='never')} (99 % of the cloud across)" if math.isfinite(need)
                 else "part of the cloud never reaches the sheet: push harder")
+        if math.isfinite(need) and ps.need_off > SLOW_TAIL * ps.centre_arrival:
+            # the slowest atoms set the bound: it falls steeply as the push outruns the spread
+            hint += (f"; the slowest 1 % of the velocity spread ({rep.sigma_v * 1e3:.3g} mm/s rms against the push's "
+                     f"{rep.speed * 1e3:.4g} mm/s) set it, so pushing harder shortens it most")
+        if rep.cloud.stand_in:
+            hint += f" ({stand_in_text(rep.cloud)[2:]}: a condensate's spread is smaller)"
         yield make(BARRIER_TOO_SHORT, f"barrier '{act.args['beam']}' is off {fmt_time(ps.off, unit='ms', nonfinite='never')} after the push "
                    f"starts, but {fmt_pct(ps.late)} of the cloud crosses the sheet {fmt_length(ps.distance, mm_from=1e-2)} away only later "
                    f"(v = {rep.speed * 1e3:.4g} mm/s, {spread_text(rep.cloud)}): those atoms pass unhindered",

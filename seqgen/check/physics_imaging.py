@@ -3,11 +3,11 @@
 
 from __future__ import annotations
 
-from ..codes import EXPOSURE_TOO_SHORT, IMAGING_BLUR, PROBE_DOPPLER, PROBE_OFF_RESONANCE
+from ..codes import EXPOSURE_TOO_SHORT, IMAGING_BLUR, NOTHING_IMAGED, PROBE_DOPPLER, PROBE_OFF_RESONANCE
 from ..findings import make
-from ..predict.imaging import images, probe_analysis, probe_line
+from ..predict.imaging import imaged_level, images, probe_analysis, probe_line
 from ..predict.species import species
-from ..textfmt import fmt_freq, fmt_length, fmt_time, outward
+from ..textfmt import fmt_freq, fmt_length, fmt_pct, fmt_state, fmt_time, outward
 from .rules import rule
 
 
@@ -57,6 +57,30 @@ def imaging_blur(shot):
                        f"atom) exceeds one pixel, {fmt_length(rep.pixel, 3, unit='um')} in the atom plane", act.pos, block=act.block,
                        time_s=act.t0, hint=f"shorten the probe to about {fmt_time(t_ok)}",
                        data={"blur_m": rep.blur, "pixel_m": rep.pixel})
+
+
+@rule(NOTHING_IMAGED, stage="physics")
+def nothing_imaged(shot):
+    for act in images(shot):
+        lvl = imaged_level(shot, act)
+        if lvl is None or lvl.lit > 0 or lvl.possible:
+            continue
+        name = act.args["setup"]
+        held = ", ".join(f"{fmt_state(*st)} ({fmt_pct(x)})" for st, x in lvl.held)
+        faint = ("; below the detection floor in it: " + ", ".join(f"{fmt_state(*st)} ({fmt_pct(x, 2)})" for st, x in lvl.faint)
+                 if lvl.faint else "")
+        level = (f"F={lvl.F}" if lvl.F in lvl.levels else
+                 f"F={lvl.F}, no ground level of {shot.sample.species} (F = {lvl.levels[0]} or {lvl.levels[1]})")
+        target = lvl.held[0][0][0]
+        move = (f"; or move the atoms to F={lvl.F} before the image (a repump pulse, or a clock pulse or sweep from "
+                f"F={target} to F={lvl.F})" if lvl.F in lvl.levels else "")
+        yield make(NOTHING_IMAGED, f"setup '{name}' images only {level} (imaged_F: {lvl.F}, no repumper), but no atoms "
+                   f"are in it at the image: they are in {held}{faint}; the probe misses them and the picture is blank",
+                   act.pos, block=act.block, time_s=act.t0,
+                   hint=f"image the populated level: in the rig, setup '{name}', e.g. 'imaged_F: {target}' (or drop "
+                        f"imaged_F for a repumped probe){move}",
+                   data={"imaged_F": lvl.F, "setup_line": shot.rig.imaging[name].pos.line,
+                         "states": [list(st) for st, _ in lvl.held]})
 
 
 @rule(EXPOSURE_TOO_SHORT, stage="physics")

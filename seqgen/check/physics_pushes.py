@@ -13,7 +13,7 @@ from ..codes import (
     PUSH_VELOCITY,
 )
 from ..findings import make
-from ..predict.cloud import SEPARATION_WIDTHS, separations
+from ..predict.cloud import SEPARATION_WIDTHS, cloud_at_image, separations
 from ..predict.pushes import push_analysis, pushes
 from ..predict.species import MU_B, bias
 from ..predict.states import barriers, rel_off
@@ -121,6 +121,12 @@ def _up3(x: float) -> float:
     return math.ceil(x / step * (1 - 1e-12)) * step
 
 
+def _stand_in(shot, rep) -> str:
+    """Why a declared condensate's width at the image is a thermal one (a linear trap), or ""."""
+    cloud = cloud_at_image(shot, rep.image)
+    return "; the sample says condensed, but it is in a linear trap: sized as thermal" if cloud and cloud.thermal_stand_in else ""
+
+
 @rule(COMPONENTS_OVERLAP, stage="physics")
 def components_overlap(shot):
     for act, rep in separations(shot):
@@ -131,7 +137,7 @@ def components_overlap(shot):
         gradient = outward(act.args['gradient'] * 100 * k, 3, strict=True)  # G/cm; up: the separation grows with it
         yield make(COMPONENTS_OVERLAP, f"the components are {fmt_length(abs(rep.separation), unit='um')} apart at the "
                    f"image, {abs(rep.separation) / rep.combined:.3g} combined rms widths (each {rep.sigma * 1e6:.4g} "
-                   f"um); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
+                   f"um{_stand_in(shot, rep)}); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
                    hint=f"raise the gradient to {gradient:.3g} G/cm, or lengthen the pulse",
                    data={"separation_m": rep.separation, "combined_rms_m": rep.combined})
 

@@ -13,8 +13,9 @@ from ..codes import (
 )
 from ..findings import make
 from ..predict.species import (REFERENCE_FORBIDDEN, allowed_instead, bias, coupling_factor, drive_coupling, line,
-                               sample_state, species)
-from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, barriers, populated_states,
+                               other_level, sample_state, species)
+from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, barrier_drive_on, barriers,
+                              populated_states,
                               populations, pulse_analysis, pulse_fourier_width, pulse_nodes, pulses, rel_off,
                               state_fractions, sweep_analysis, sweeps)
 from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec, outward
@@ -181,11 +182,16 @@ def modulation_off_resonance(shot):
             continue
         if abs(rep.offset_hz) > rep.tolerance_hz:
             a, b = rep.pair
+            if rep.rabi_hz is None:  # a pair the model does not couple: its bare line (physics.transition-forbidden)
+                line_text = f"{fmt_freq(rep.resonance_hz, 10)} (Breit-Rabi; Delta mF = {_dm(a, b)}: no light shift or Rabi frequency in the model)"
+                beyond = "more than"
+            else:
+                line_text = (f"{fmt_freq(rep.resonance_hz, 10)} (Breit-Rabi {fmt_freq(rep.bare_hz, 10)}, differential light shift "
+                             f"{fmt_freq(rep.light_shift_hz)})")
+                beyond = f"more than the drive's Rabi frequency 2 pi x {fmt_freq(rep.rabi_hz)} and"
             yield make(MODULATION_OFF_RESONANCE, f"modulation at {fmt_freq(rep.f_mod, 10)} is "
-                       f"{fmt_freq(rep.offset_hz)} from the {fmt_state(*a)} -> {fmt_state(*b)} line at "
-                       f"{fmt_freq(rep.resonance_hz, 10)} (Breit-Rabi {fmt_freq(rep.bare_hz, 10)}, differential light shift "
-                       f"{fmt_freq(rep.light_shift_hz)}), more than the drive's Rabi frequency 2 pi x {fmt_freq(rep.rabi_hz)} and "
-                       f"the {fmt_time(act.args['duration'])} pulse's Fourier width {fmt_freq(rep.fourier_hz)}",
+                       f"{fmt_freq(rep.offset_hz)} from the {fmt_state(*a)} -> {fmt_state(*b)} line at {line_text}, "
+                       f"{beyond} the {fmt_time(act.args['duration'])} pulse's Fourier width {fmt_freq(rep.fourier_hz)}",
                        act.pos, block=act.block, time_s=act.t0, hint=f"set modulation frequency: {rep.resonance_hz:.10g} Hz",
                        data={"offset_hz": rep.offset_hz, "rabi_hz": rep.rabi_hz})
 
@@ -232,6 +238,45 @@ def transition_unpopulated(shot):
                    f"{fmt_state(*b)}, but neither state holds atoms: before it the atoms are in {where}", act.pos,
                    block=act.block, time_s=act.t0, hint=hint,
                    data={"fraction_initial": fr.get(a, 0.0), "fraction_final": fr.get(b, 0.0)})
+    for act, rep in _modulated(shot):
+        (a, b), where = rep.pair, _held_text(shot, act.t0, rep.pair)
+        if where is None or a[1] != b[1] or a[0] == b[0]:
+            continue  # a pair that changes mF: physics.transition-forbidden
+        yield make(TRANSITION_UNPOPULATED, f"the modulation of barrier '{act.args['beam']}' drives {fmt_state(*a)} -> "
+                   f"{fmt_state(*b)}, but neither state holds atoms: before it the atoms are in {where}; the "
+                   f"modulation drives nothing", act.pos, block=act.block, time_s=act.t0, hint=_modulation_fix(shot, act),
+                   data={"pair": [list(a), list(b)]})
+
+
+def _modulated(shot):
+    """(barrier, BarrierDrive) of every modulated barrier whose transition is two ground levels."""
+    if species(shot) is None or sample_state(shot) is None:
+        return
+    for act in barriers(shot):
+        rep = barrier_drive_analysis(shot, act)
+        if rep is not None and rep.pair is not None:
+            yield act, rep
+
+
+def _held_text(shot, t, pair) -> str | None:
+    """Where the atoms are just before t, in words, when neither state of `pair` holds any; else None."""
+    full = populated_states(shot, t)
+    if any(st in full or st in populations(shot, t).possible for st in pair):
+        return None
+    fr = state_fractions(shot, t) or {}
+    return ", ".join(f"{fmt_state(*st)} ({fmt_pct(fr[st])})" for st in full) or "no state above the detection floor"
+
+
+def _modulation_fix(shot, act) -> str:
+    """A transition the modulated-sheet model drives from a populated state, with its light-shifted line."""
+    sp = species(shot)
+    for st in populated_states(shot, act.t0):
+        other = other_level(sp, st)
+        rep = barrier_drive_on(shot, act, (st, other)) if other is not None else None
+        if rep is not None and rep.unsupported is None:
+            return (f"couple a populated state to the other hyperfine level at equal mF: {_transition_text((st, other))}"
+                    f", with modulation frequency: {rep.resonance_hz:.10g} Hz (its line with the sheet's light shift)")
+    return "no populated state has a partner at equal mF that the modulated sheet can drive: drop the modulation"
 
 
 def _dm(a, b) -> str:
@@ -301,6 +346,17 @@ def transition_forbidden(shot):
                        hint="a sweep drives the sample state to the other hyperfine level at equal mF (Delta mF = 0), "
                             "which needs a field component along the bias axis: sweep with a drive whose field has one",
                        data={"element_j_per_t": c.element})
+    for act, rep in _modulated(shot):
+        (a, b), where = rep.pair, _held_text(shot, act.t0, rep.pair)
+        if a[1] == b[1] and a[0] != b[0]:
+            continue
+        empty = f"; neither state holds atoms either: before it the atoms are in {where}" if where else ""
+        # a warning, not an error: the rig gives neither the sheet's polarisation nor its angle to the bias
+        yield make(TRANSITION_FORBIDDEN, f"the modulation of barrier '{act.args['beam']}' names {fmt_state(*a)} -> "
+                   f"{fmt_state(*b)} (Delta F = {b[0] - a[0]:+d}, Delta mF = {_dm(a, b)}), but seqgen's model of a modulated "
+                   f"sheet (a co-propagating Raman pair through the vector light shift, circular light along the bias "
+                   f"field) couples the two hyperfine levels at equal mF only: the modulation drives nothing{empty}", act.pos, severity="warning", block=act.block,
+                   time_s=act.t0, hint=_modulation_fix(shot, act), data={"pair": [list(a), list(b)]})
     for drive, c in references.values():
         if c.problem is None:
             continue

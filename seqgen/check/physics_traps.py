@@ -8,16 +8,16 @@ from __future__ import annotations
 import numpy as np
 from scipy import constants as sc
 
-from ..codes import (CLOUD_CLIPPED, CLOUD_OUTSIDE_VIEW, CLOUD_OUT_OF_FOCUS, NONADIABATIC_RAMP, REPULSIVE_TRAP_BEAM,
-                     SHALLOW_TRAP, TRAP_HEATING, TRAP_LOST)
+from ..codes import (CLOUD_CLIPPED, CLOUD_OUTSIDE_VIEW, CLOUD_OUT_OF_FOCUS, CONDENSATE_AS_THERMAL, NONADIABATIC_RAMP,
+                     REPULSIVE_TRAP_BEAM, SHALLOW_TRAP, TRAP_HEATING, TRAP_LOST)
 from ..findings import make
 from ..predict.cloud import (aperture_reach, focus_offset, focus_reach, image_prediction, view_edge_reach,
                              view_reach)
-from ..predict.species import gaussian_beams, species, trap_beams
+from ..predict.species import gaussian_beams, sample_state, scattering_length, species, trap_beams
 from ..predict.text import size_text, who, why_there
 from ..predict.played import off_floor, played
 from ..predict.traps import held, trap_beam_shifts, trap_writes, write_prediction
-from ..textfmt import fmt_length, fmt_temperature, fmt_time, fmt_vec, outward
+from ..textfmt import fmt_length, fmt_state, fmt_temperature, fmt_time, fmt_vec, outward
 from .rules import rule
 
 
@@ -261,3 +261,28 @@ def cloud_clipped(shot):
                    f"{fmt_length(setup.aperture_radius_m, 3, unit='mm')} aperture of '{setup.name}'",
                    img.pos, block=img.block, time_s=img.t0, hint="shorten the time of flight",
                    data={"reach_m": reach, "aperture_m": setup.aperture_radius_m})
+
+
+@rule(CONDENSATE_AS_THERMAL, stage="physics")
+def condensate_as_thermal(shot):
+    s, sp = shot.sample, species(shot)
+    state = sample_state(shot)
+    if sp is None or s is None or not s.condensed or state is None:
+        return
+    a = scattering_length(sp, state)
+    if s.atoms and a and a > 0:
+        return
+    why = (f"{sp.name} {fmt_state(*state)} has no positive scattering length in seqgen's data" if not (a and a > 0)
+           else "it gives no atom number")
+    thermal = (f"the barrier checks take a thermal cloud at T = {fmt_temperature(s.temperature_k)}" if s.temperature_k
+               else "the barrier checks take no velocity spread (no temperature either)")
+    top = int(round(sp.nuclear_spin + 0.5))
+    known = sorted({st for st in [(top, top), (top, -top)] + [(f, m) for f in range(top + 1) for m in range(-f, f + 1)]
+                    if (scattering_length(sp, st) or 0) > 0}, key=lambda st: (-st[0], -st[1]))
+    e_g = f" (in seqgen's data: {', '.join(fmt_state(*st) for st in known)})" if known else ""
+    images = ("the clouds at the images are sized as thermal too" if s.atoms is None or not s.atoms else
+              "the clouds at the images have no size (a thermal one after a linear magnetic trap)")
+    yield make(CONDENSATE_AS_THERMAL, f"the sample says condensed, but {why}: no Thomas-Fermi size, chemical potential "
+               f"or mean-field release; {thermal}, and {images}", s.pos,
+               hint=f"write condensed: false if the cloud is thermal, or use a state with a scattering length{e_g}",
+               data={"scattering_length_m": a})

@@ -120,6 +120,23 @@ BARRIER_TRANSMISSION = Code(
     part of the cloud passes, is outside the model (physics.cloud-overlaps-barrier,
     physics.barrier-too-short, physics.barrier-too-late).""")
 
+CONDENSATE_AS_THERMAL = Code(
+    "physics.condensate-as-thermal", "note", stage="physics",
+    source=("Thomas-Fermi radius and chemical potential need a positive s-wave scattering length (Bose-Einstein "
+            "Condensation in Dilute Gases, 2nd ed., Cambridge University Press (2008)); seqgen's species table "
+            "(seqgen/physics/data/atoms.yaml) and the triplet length for a stretched state, Phys. Rev. A 78, "
+            "012503 (2008)"),
+    doc="""
+    The sample says `condensed: true`, but seqgen cannot size it as a
+    condensate: its data hold no positive scattering length for the sample
+    state (only the stretched states take the triplet length), or the sample
+    gives no atom number. No Thomas-Fermi radius, chemical potential or
+    mean-field release is computed; the barrier checks take a thermal cloud
+    at the sample's temperature (their messages say so), and the clouds at
+    the images have no size. Raised once per shot, at the sample. State the
+    cloud as thermal (`condensed: false`) if that is what it is, or use a
+    state with a scattering length in seqgen's data.""")
+
 CLOUD_CLIPPED = Code(
     "physics.cloud-clipped", "error", stage="physics",
     source=("free fall under standard gravity (SI Brochure); expansion and component positions as for "
@@ -309,6 +326,9 @@ MODULATION_OFF_RESONANCE = Code(
     the FWHM of a square pulse's power spectrum): within either the drive
     still works. Atoms crossing the sheet see it only for their transit
     time, which widens the line further; see `physics.barrier-rotation`.
+    A `transition` the model does not couple (Delta mF != 0,
+    physics.transition-forbidden) is compared with its bare Breit-Rabi line
+    within the Fourier width alone.
     Tune `modulation: {frequency: ...}` to the line (the hint gives it).""")
 
 NONADIABATIC_RAMP = Code(
@@ -329,6 +349,28 @@ NONADIABATIC_RAMP = Code(
     The threshold is `limits: {max_excitation: ...}` (default 0.05). Lengthen
     the ramp, use a smooth shape, replace a set by a ramp at least as long as
     the fix names, or accept the finding with a reason.""")
+
+NOTHING_IMAGED = Code(
+    "physics.nothing-imaged", "warning", stage="physics",
+    source=("ground hyperfine splittings (Rev. Mod. Phys. 49, 31 (1977)) of hundreds of natural linewidths "
+            "(alkali D-line data compilations): a probe on one level's cycling line scatters off the other "
+            "level at the Lorentzian rate R = (Gamma/2) s / (1 + s + 4 Delta^2/Gamma^2), Laser Cooling and "
+            "Trapping, Springer (1999) (from memory); populations and detection floor as for "
+            "physics.transition-unpopulated"),
+    doc="""
+    A state-selective image (the setup's `imaged_F` in the rig) of a level
+    that holds no atoms: every populated component at the image is in
+    another ground hyperfine level, so the probe, without a repumper, is a
+    ground-state splitting away from them (1.77 GHz, about 180 natural
+    linewidths, for sodium; 6.83 GHz, about 1100, for rubidium-87) and the
+    picture is blank.
+    The populations are followed from the sample state through the clock
+    pulses, sweeps and magnetic holds before the image; a state counts as
+    empty below the sample's `detection_floor` (default 100 atoms) or 1 %
+    of the atoms; a barrier's modulation that may have filled the level
+    keeps the check silent. Image the populated level (`imaged_F`, or none
+    for a repumped probe), or move atoms into the imaged level before the
+    image (a repump pulse, a clock pulse or a sweep).""")
 
 NOT_TUNNELLING = Code(
     "physics.not-tunnelling", "warning", stage="physics",
@@ -550,7 +592,14 @@ TRANSITION_FORBIDDEN = Code(
     one the polarisation cannot drive, or not a transition of the sample's
     species: rabi_per_amplitude cannot then be carried over to other
     transitions (it is used unscaled). An error, as physics.pulse-angle: the
-    pulse's area is zero, whatever rotation it was written for.""")
+    pulse's area is zero, whatever rotation it was written for.
+    Also a warning at a `barrier` whose `modulation: {transition: ...}` is
+    not two hyperfine levels at equal mF: seqgen's model of a modulated
+    sheet (a co-propagating Raman pair through the vector light shift,
+    circular light along the bias field) couples only those, so the
+    modulation drives nothing (a warning: the rig gives neither the sheet's
+    polarisation nor its angle to the bias). The hint names the pair from a
+    populated state and its light-shifted line.""")
 
 TRANSITION_UNPOPULATED = Code(
     "physics.transition-unpopulated", "warning", stage="physics",
@@ -570,7 +619,9 @@ TRANSITION_UNPOPULATED = Code(
     counts as empty below the sample's `detection_floor` (default 100 atoms)
     or below 1 % of the atoms. A warning, not an error: a drive seqgen does
     not model may have filled the state. Fix the pulse's `transition` or
-    the sample's `state`.""")
+    the sample's `state`. Also raised at a `barrier` whose modulation's
+    `transition` holds no atoms: the modulation drives nothing (the hint
+    names the pair from a populated state and its light-shifted line).""")
 
 TRAP_HEATING = Code(
     "physics.trap-heating", "warning", stage="physics",

@@ -119,17 +119,24 @@ class Incident:
     push_direction: tuple | None = None
 
 
+# why a sample declared condensed is taken as thermal along the path (CloudAlongPath.stand_in)
+NO_SCATTERING_LENGTH, NO_ATOM_NUMBER, NO_TRAP_ALONG_PATH = "no_scattering_length", "no_atom_number", "no_trap"
+
+
 @dataclass(frozen=True)
 class CloudAlongPath:
     """The sample along the path: sigma_v (m/s), profile ("thomas-fermi", "gaussian" or "point"), size
     (Thomas-Fermi radius or rms width, m; 0 when unknown), half_length (the edge, m, or None), temperature_k
-    (a thermal cloud's temperature, else None)."""
+    (a thermal cloud's temperature, else None); stand_in: why a sample declared condensed is not a
+    Thomas-Fermi condensate here (one of the codes above, None otherwise), state: "K41 |F=1, mF=+1>" of it."""
 
     sigma_v: float
     profile: str
     size: float
     half_length: float | None
     temperature_k: float | None = None
+    stand_in: str | None = None
+    state: str | None = None
 
 
 @dataclass(frozen=True)
@@ -333,18 +340,25 @@ def cloud_along_path(shot, time_s, direction) -> CloudAlongPath:
     w_path = None
     if omegas is not None:
         w_path = path_frequency(omegas, axes, direction)
+    why = None
     if s.condensed and s.atoms and w_path:
         mu = _chemical_potential(shot, omegas)
         if mu is not None:
             radius = math.sqrt(2 * mu / (sp.mass_kg * w_path**2))
             return CloudAlongPath(float(condensate_velocity_rms(radius, sp.mass_kg)), "thomas-fermi", radius, radius)
+    if s.condensed:  # declared a condensate, but no Thomas-Fermi profile here: say why
+        a = scattering_length(sp, sample_state(shot))
+        why = (NO_ATOM_NUMBER if not s.atoms else NO_SCATTERING_LENGTH if not (a and a > 0)
+               else NO_TRAP_ALONG_PATH)
+    named = dict(stand_in=why, state=f"{sp.name} |F={s.F}, mF={s.mF:+d}>" if why and s.F is not None and s.mF is not None
+                 else sp.name if why else None)
     if s.temperature_k:
         sigma_v = float(thermal_velocity_rms(s.temperature_k, sp.mass_kg))
         if w_path:
             width = float(thermal_in_trap_width(s.temperature_k, sp.mass_kg, w_path))
-            return CloudAlongPath(sigma_v, "gaussian", width, THERMAL_EDGE_RMS * width, s.temperature_k)
-        return CloudAlongPath(sigma_v, "point", 0.0, None, s.temperature_k)
-    return CloudAlongPath(0.0, "point", 0.0, None)
+            return CloudAlongPath(sigma_v, "gaussian", width, THERMAL_EDGE_RMS * width, s.temperature_k, **named)
+        return CloudAlongPath(sigma_v, "point", 0.0, None, s.temperature_k, **named)
+    return CloudAlongPath(0.0, "point", 0.0, None, **named)
 
 
 def sheet_distance(shot, act, inc) -> float:

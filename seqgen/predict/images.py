@@ -45,6 +45,7 @@ SIGN_CASES = "sign_cases"  # a push of unknown direction: the first case is draw
 OUTSIDE_FRAME = "outside_frame"  # some imaged atoms fall outside the frame
 FRAME_CUT = "frame_cut"  # the field of view is larger than MAX_FRAME_PIXELS pixels
 NOT_IMAGED = "not_imaged"  # components in a level the state-selective probe does not address
+NONE_IMAGED = "none_imaged"  # ... and none in the level it addresses: a blank picture
 D1_LINE = "d1_line"  # the probe's nearest line is D1: no cycling transition, 3 lambda^2/2pi overestimates
 NO_NOISE_PHOTONS = "no_noise_photons"  # noise asked for, but the probe's photon count is unknown
 
@@ -71,7 +72,8 @@ class PredictedImage:
     (up: y ascending), columns along its horizontal; x, y: pixel centres (m at the atoms, from the setup's
     centre; horizontal = camera right, vertical = the part of up across the line of sight); pixel (m at the
     atoms); components; peak_od (of the map, noise included); saturation (I/I_sat at the beam centre),
-    saturation_at_atoms (at the densest imaged component's centre); sigma0 (m^2, 3 lambda^2/2pi of the line);
+    saturation_at_atoms (at the densest imaged component's centre; with none imaged,
+    at the densest component's); sigma0 (m^2, 3 lambda^2/2pi of the line);
     detuning_hz, linewidth_hz, alpha (saturation_factor); na, rayleigh (m, 0.61 lambda/NA), psf_sigma (m, the
     Gaussian for the optics), recoil_blur (m), blur (m, both in quadrature); oversampling; photons (counted per
     pixel from the probe alone at the beam centre, None when unknown); atoms_from_od (sum over pixels of the saturation-corrected
@@ -184,6 +186,8 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
     if any(not c.imaged for c in comps):
         flags.append(NOT_IMAGED)
     lit = [c for c in comps if c.imaged]
+    if not lit:
+        flags.append(NONE_IMAGED)
     reach = np.sqrt(np.diag(shadow)) * (1.0 if thomas_fermi else GAUSSIAN_REACH)
 
     # the camera's pixels and the frame
@@ -275,9 +279,9 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
                                            beam.wavelength_m, setup.quantum_efficiency))
             od = ab.noisy_od(np.exp(-od), counts, np.random.default_rng(seed))
     centre_s = 0.0
-    if lit:
-        dense = max(lit, key=lambda c: c.atoms)
-        centre_s = float(s_at(np.array([[dense.centre[0]]]), np.array([[dense.centre[1]]]))[0, 0]) if s0 > 0 else 0.0
+    if s0 > 0:  # the probe shines on the atoms whether it images them or not
+        dense = max(lit or comps, key=lambda c: c.atoms)
+        centre_s = float(s_at(np.array([[dense.centre[0]]]), np.array([[dense.centre[1]]]))[0, 0])
     od.setflags(write=False)
     return PredictedImage(**base, od=od, x=xs, y=ys, pixel=pix, components=tuple(comps),
                           peak_od=float(np.max(od)) if od.size else 0.0, saturation=float(s0),

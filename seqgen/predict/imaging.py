@@ -11,7 +11,9 @@ import math
 from dataclasses import dataclass
 
 from .cache import per_shot_cache
+from .pushes import components_at
 from .species import species
+from .states import populations
 
 TWO_PI = 2 * math.pi
 # A probe farther than this from its nearest D line is off resonance: 3 natural linewidths (common practice,
@@ -112,3 +114,43 @@ def probe_analysis(shot, act) -> ProbePrediction | None:
                            float(im.doppler_shift_linewidths(n, v_rec, beam.wavelength_m, sp.d2_linewidth_hz)),
                            float(im.doppler_shift_after(n, v_rec, beam.wavelength_m)),
                            float(im.recoil_blur(n, v_rec, dur)), pixel, float(detuning))
+
+
+@dataclass(frozen=True)
+class ImagedLevel:
+    """What a state-selective probe (the setup's `imaged_F`) finds at an image: F; levels (the species' ground
+    levels); held ((state, fraction), ...): the populated components at the image (the forward model's
+    `components_at`, above the detection floor), most populated first; lit: the fraction of the atoms among
+    them in level F; faint ((state, fraction), ...): states of level F below the detection floor; possible: a
+    barrier's modulation may have put atoms in level F (its fraction is not followed)."""
+
+    F: int
+    levels: tuple
+    held: tuple
+    lit: float
+    faint: tuple
+    possible: bool
+
+
+@per_shot_cache(lambda shot, act: ("imaged-level", act.index, act.t0))
+def imaged_level(shot, act) -> ImagedLevel | None:
+    """The imaged level of a state-selective image and what it holds, or None (no `imaged_F`, no species, no
+    populated component, or a component whose state is unknown)."""
+    sp = species(shot)
+    setup = shot.rig.imaging.get(act.args.get("setup"))
+    if sp is None or setup is None or setup.imaged_F is None:
+        return None
+    comps = components_at(shot, act)
+    if comps is None or not comps.components or any(c.state is None for c in comps.components):
+        return None
+    held: dict = {}
+    for c in comps.components:
+        held[c.state] = held.get(c.state, 0.0) + c.fraction
+    f = setup.imaged_F
+    pop = populations(shot, act.t0)
+    i = sp.nuclear_spin
+    return ImagedLevel(f, (int(round(i - 0.5)), int(round(i + 0.5))),
+                       tuple(sorted(held.items(), key=lambda kv: -kv[1])),
+                       float(sum(x for st, x in held.items() if st[0] == f)),
+                       tuple((st, x) for st, x in comps.empty if st is not None and st[0] == f),
+                       bool(pop is not None and any(st[0] == f for st in pop.possible)))

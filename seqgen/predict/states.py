@@ -457,8 +457,17 @@ def _barrier_played(shot, act):
 @per_shot_cache(lambda shot, act: ("state-barrier", act.index, act.t0))
 def barrier_drive_analysis(shot, act) -> BarrierDrive | None:
     """Two-photon drive of a modulated barrier, or None without a modulation frequency, species or beam."""
+    return barrier_drive_on(shot, act, act.args.get("transition"))
+
+
+@per_shot_cache(lambda shot, act, declared: ("state-barrier-on", act.index, act.t0, declared))
+def barrier_drive_on(shot, act, declared) -> BarrierDrive | None:
+    """`barrier_drive_analysis` with the modulation's transition `declared` ((F, mF), (F, mF)), None for the
+    default. A pair of two hyperfine levels that the model does not couple (Delta mF != 0) keeps its bare
+    Breit-Rabi line and the pulse's Fourier width as the tolerance (no Rabi frequency, no light shift)."""
     from ..physics.drive import two_photon_rabi_from_modulated_beam
     from ..physics.optical import modulated_peak_intensity
+    from ..physics.zeeman import transition_frequency
 
     f_mod, depth, power, source = _barrier_played(shot, act)
     sp = species(shot)
@@ -467,15 +476,19 @@ def barrier_drive_analysis(shot, act) -> BarrierDrive | None:
         return None
     rep = dict(f_mod=f_mod, depth=depth, source=source)
     try:
-        pair, why = transition_pair(shot, sp, act.args.get("transition")), None
+        pair, why = transition_pair(shot, sp, declared), None
     except LevelError as exc:
         pair, why = None, exc.problem
     except ValueError as exc:
         pair, why = None, unevaluable(sp, None, exc)
     rep["pair"] = pair
     i = sp.nuclear_spin
+    fourier = SQUARE_FWHM_TIMES_T / act.args["duration"]
     if pair is None or pair[0][1] != pair[1][1] or pair[0][0] == pair[1][0]:
         rep.update(unsupported="bad_level", bad_level=why) if why else rep.update(unsupported="not_hyperfine")
+        if pair is not None and pair[0][0] != pair[1][0]:
+            nu = abs(float(transition_frequency(*pair[0], *pair[1], bias(shot), atom=sp)))
+            rep.update(bare_hz=nu, resonance_hz=nu, offset_hz=f_mod - nu, fourier_hz=fourier, tolerance_hz=fourier)
         return BarrierDrive(**rep)
     m = pair[0][1]
     lower, upper = (int(round(i - 0.5)), m), (int(round(i + 0.5)), m)
@@ -490,12 +503,9 @@ def barrier_drive_analysis(shot, act) -> BarrierDrive | None:
                                                 polarization=1.0, atom=sp)
     except ValueError as exc:
         return BarrierDrive(**rep, unsupported="no_coupling", bad_level=unevaluable(sp, pair[0], exc))
-    from ..physics.zeeman import transition_frequency
-
     nu = float(transition_frequency(lower[0], lower[1], upper[0], upper[1], bias(shot), atom=sp))
     res = abs(nu + d.differential_light_shift_hz)  # shift of the F = I + 1/2 level minus that of F = I - 1/2
     # a barrier pulse of duration T is itself ~0.89/T wide (sinc^2 FWHM): a smaller offset does not matter
-    fourier = SQUARE_FWHM_TIMES_T / act.args["duration"]
     rep.update(i_peak=i_peak, rabi_hz=d.rabi_rad_s / TWO_PI, light_shift_hz=d.differential_light_shift_hz,
                bare_hz=abs(nu), resonance_hz=res, offset_hz=f_mod - res, fourier_hz=fourier,
                tolerance_hz=max(d.rabi_rad_s / TWO_PI, fourier))

@@ -147,6 +147,8 @@ def size_text(pred) -> str:
     c = pred.cloud
     if c is None:
         return f"cloud size unknown ({size_unknown_text(pred.why)}): its centre alone is checked"
+    if c.thermal_stand_in:  # say why a declared condensate has rms widths
+        return f"{sizes_text(c)} (the sample says condensed, but it is in a linear trap: sized as thermal)"
     return sizes_text(c)
 
 
@@ -159,9 +161,24 @@ def spread_text(cloud) -> str:
     if cloud.temperature_k:
         text = f"thermal, T = {cloud.temperature_k * 1e9:.4g} nK"
         if cloud.profile == "gaussian":
-            return f"{text}, rms width {fmt_length(cloud.size, unit='um')} along the path"
-        return f"{text}, size along the path unknown (no trap)"
-    return "no spread known (sample without temperature or trap)"
+            return f"{text}, rms width {fmt_length(cloud.size, unit='um')} along the path{stand_in_text(cloud)}"
+        return f"{text}, size along the path unknown (no trap){stand_in_text(cloud)}"
+    return "no spread known (sample without temperature or trap)" + stand_in_text(cloud)
+
+
+_STAND_IN = {
+    "no_scattering_length": lambda st: f"{st} has no positive scattering length in seqgen's data",
+    "no_atom_number": lambda st: "it gives no atom number",
+    "no_trap": lambda st: "no trap holds it along the path at the push",
+}
+
+
+def stand_in_text(cloud) -> str:
+    """Why a sample declared condensed is not treated as one along the path (CloudAlongPath.stand_in), or ""."""
+    if not getattr(cloud, "stand_in", None):
+        return ""
+    return (f"; the sample says condensed, but {_STAND_IN[cloud.stand_in](cloud.state)}: "
+            + ("sized as thermal" if cloud.temperature_k else "no Thomas-Fermi size"))
 
 
 def release_text(rel) -> str:

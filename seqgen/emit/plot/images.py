@@ -51,6 +51,7 @@ _FLAGS = {
     pi.OUTSIDE_FRAME: "some imaged atoms fall outside the camera's field of view",
     pi.FRAME_CUT: f"field of view over {pi.MAX_FRAME_PIXELS} pixels: cut to that about the atoms",
     pi.NOT_IMAGED: "components outside the imaged level are not seen (imaged_F)",
+    pi.NONE_IMAGED: "no atoms in the imaged level (imaged_F): a blank picture (physics.nothing-imaged)",
     pi.D1_LINE: "probe nearest the D1 line: no cycling transition there, 3 lambda^2/2pi overestimates the OD",
     pi.NO_NOISE_PHOTONS: "no shot noise: the probe's photon count is unknown",
 }
