@@ -29,3 +29,19 @@ def project(tmp_path, monkeypatch):
     (tmp_path / "seqgen.toml").write_text("", encoding="utf-8")  # marks the project root
     monkeypatch.chdir(tmp_path)
     return tmp_path
+
+
+try:  # the language-server tests' client (the test extras install pytest-lsp and pytest-asyncio)
+    import pytest_asyncio
+except ImportError:  # pragma: no cover
+    pytest_asyncio = None
+
+if pytest_asyncio is not None:
+    @pytest_asyncio.fixture
+    async def client(project):
+        """An LSP client and a fresh `seqgen language-server` in a copy of the demos; stopped after the test."""
+        from .lsp_client import start, stop
+
+        c = await start(project)
+        yield c
+        await stop(c)

@@ -7,29 +7,20 @@ from __future__ import annotations
 import io
 import json
 from contextlib import redirect_stdout
-from pathlib import Path
 
 import pytest
 
 pytest.importorskip("pytest_lsp")
 
-import pytest_asyncio  # noqa: E402
 import yaml  # noqa: E402
 from lsprotocol import types as lsp  # noqa: E402
 
 from seqgen.cli import main  # noqa: E402
 
-from .lsp_client import Doc, start, stop, uri_of  # noqa: E402
+from .lsp_client import Doc, uri_of  # noqa: E402
 
 THERMO = "sequences/na23_thermometry.yaml"
 RIG = "sequences/rigs/na23_demo_rig.yaml"
-
-
-@pytest_asyncio.fixture
-async def client(project):
-    c = await start(project)
-    yield c
-    await stop(c)
 
 
 def _show(path) -> list:

@@ -7,7 +7,6 @@ command, from the schema read as JSON and from pint, never from the features."""
 
 from __future__ import annotations
 
-import json
 import random
 import re
 import shutil
@@ -16,7 +15,6 @@ import sys
 from pathlib import Path
 
 import numpy as np
-import pint
 import pytest
 import yaml
 
@@ -26,25 +24,9 @@ from seqgen.lsp.definition import definition
 from seqgen.lsp.hover import hover
 
 from .test_lsp_feat_fuzz import _check, mutate
+from .test_lsp_features import (BARRIER, PREP, RIG, RIG_DATA, ROOT, SCHEMA, SEQ, THERMO, UREG,  # noqa: F401
+                                 where, wiring_lines_of)
 
-ROOT = Path(__file__).resolve().parent.parent
-SEQ = ROOT / "sequences"
-BARRIER = SEQ / "na23_barrier_scatter.yaml"
-THERMO = SEQ / "na23_thermometry.yaml"
-PREP = SEQ / "common" / "na23_prep.yaml"
-RIG = SEQ / "rigs" / "na23_demo_rig.yaml"
-SCHEMA = json.loads((ROOT / "schemas" / "sequence.schema.json").read_text(encoding="utf-8"))
-RIG_DATA = yaml.safe_load(RIG.read_text(encoding="utf-8"))
-UREG = pint.UnitRegistry()
-UREG.define("lab_gauss = 1e-4 * tesla = LG")  # the SI gauss labs mean (pint's own belongs to Gaussian CGS)
-
-
-def where(text: str, needle: str, offset: int = 0) -> tuple:
-    """(line, character) of `needle`'s first occurrence plus `offset` characters, 0-based."""
-    for n, line in enumerate(text.splitlines()):
-        if needle in line:
-            return n, line.index(needle) + offset
-    raise AssertionError(f"{needle!r} not in the text")
 
 
 def labels(text: str, path: Path, needle: str, offset: int | None = None, kind: str | None = None) -> list:
@@ -56,17 +38,6 @@ def labels(text: str, path: Path, needle: str, offset: int | None = None, kind: 
 def dims(unit: str):
     """The dimension pint gives a unit as seqgen writes it ('G' is the lab's gauss, 1e-4 T)."""
     return UREG.Quantity(1, re.sub(r"(?<![A-Za-z])(m?)G(?![A-Za-z])", r"\1LG", unit)).dimensionality
-
-
-def wiring_lines_of(rig: dict) -> set:
-    """The lines a rig read by PyYAML wires its devices with (PyYAML reads the key `on` as True, YAML 1.1)."""
-    out = set()
-    for spec in rig.get("devices", {}).values():
-        for key, sub in (("start", "on"), ("advance", "per_edge"), ("clock", "line")):
-            wiring = spec.get(key)
-            if isinstance(wiring, dict):
-                out.add(wiring.get(sub, wiring.get(True if sub == "on" else sub)))
-    return out
 
 
 def writable_outputs(rig: dict) -> set:

@@ -13,10 +13,9 @@ import pytest
 
 pytest.importorskip("pytest_lsp")
 
-import pytest_asyncio  # noqa: E402
 from lsprotocol import types as lsp  # noqa: E402
 
-from .lsp_client import Doc, forget, start, stop, wait_diagnostics  # noqa: E402
+from .lsp_client import Doc, forget, wait_diagnostics  # noqa: E402
 
 EDITS = 2000
 BATCH = 50
@@ -41,13 +40,6 @@ def random_edit(rng: random.Random, text: str, pool: list) -> tuple:
     if kind < 0.85 and len(lines) > 1:  # delete a whole line
         return (i, 0, i + 1, 0, "") if i + 1 < len(lines) else (i - 1, len(lines[i - 1]), i, len(lines[i]), "")
     return (i, 0, i, 0, rng.choice(pool) + "\n")  # insert a line of the demo somewhere else
-
-
-@pytest_asyncio.fixture
-async def client(project):
-    c = await start(project)
-    yield c
-    await stop(c)
 
 
 @pytest.mark.asyncio

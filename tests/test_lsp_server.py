@@ -16,7 +16,6 @@ import pytest
 
 pytest.importorskip("pytest_lsp")
 
-import pytest_asyncio  # noqa: E402
 
 from lsprotocol import types as lsp  # noqa: E402
 
@@ -24,7 +23,7 @@ from seqgen import CAUTION  # noqa: E402
 from seqgen.cli import main  # noqa: E402
 
 from .conftest import ROOT, SEQUENCES  # noqa: E402
-from .lsp_client import Doc, apply_text_edits, forget, start, stop, uri_of, wait_diagnostics  # noqa: E402
+from .lsp_client import Doc, apply_text_edits, forget, uri_of, wait_diagnostics  # noqa: E402
 
 THERMO = "sequences/na23_thermometry.yaml"
 SCATTER = "sequences/na23_barrier_scatter.yaml"
@@ -51,13 +50,6 @@ def shown(diags) -> list:
 def expected(findings) -> list:
     return sorted(((f["code"], f["line"], f["column"], f["severity"], json.dumps(f, sort_keys=True))
                    for f in findings), key=str)
-
-
-@pytest_asyncio.fixture
-async def client(project):
-    c = await start(project)
-    yield c
-    await stop(c)
 
 
 @pytest.mark.asyncio
