@@ -488,12 +488,12 @@ def cmd_show(args) -> int:
 
 def cmd_simulate(args) -> int:
     """The push-and-barrier stage of the base shot (or shot N) simulated in time (seqgen/simulation.py)."""
-    from .simulation import command
+    from .simulation import command, refuse
 
     try:
         res, choice, _ = _preflight_shot(args.file, args.shot)
     except _ShotRefused as exc:
-        return _cannot_run(exc)
+        return refuse(args, sys.stdout, str(exc))
     if res.shot is None:  # nothing to simulate: the findings that say why
         return _report(res, args) or EXIT_CANNOT_RUN
     return command(res, choice, args)

@@ -8,6 +8,9 @@ from __future__ import annotations
 import json
 import math
 import sys
+from pathlib import Path
+
+import numpy as np
 
 from .caution import CAUTION
 from .check.simulation import reason_texts, simulation_findings
@@ -66,7 +69,8 @@ def to_json(sim, file: str, findings, choice=None) -> dict:
                      "steps": num.steps, "t_end_s": inp.t_end, "absorber_width_m": num.absorber_width,
                      "absorbed_left": c.absorbed_left, "absorbed_right": c.absorbed_right,
                      "norm_error": c.norm_error, "seconds": round(c.seconds, 1)},
-        "simulated": {"transmitted": c.transmitted, "reflected": c.reflected, "missed_sheet": missed_sheet(s, c),
+        "simulated": {"transmitted": c.transmitted, "transmitted_at_sheet_off": at_sheet_off(sim),
+                      "reflected": c.reflected, "missed_sheet": missed_sheet(s, c),
                       "still_approaching": c.late,
                       "bloch": list(c.bloch) if c.bloch else None, "rotation_rad": _num(c.rotation),
                       "precession_rad": _num(c.precession), "alignment_rad": _num(c.alignment)},
@@ -142,6 +146,11 @@ def text_lines(sim, file: str, findings, choice=None) -> list[str]:
     widths = [max(len(r[i]) for r in rows) for i in range(4)]
     out += ["  " + "  ".join(v.ljust(w) for v, w in zip(r, widths)).rstrip() for r in rows]
     missed = missed_sheet(s, c)
+    off = at_sheet_off(sim)
+    if off is not None and abs(off - c.transmitted) > 5e-4:
+        out.append(f"transmitted when the sheet goes off ({fmt_time(inp.off)} after the push starts): {off:.4f}; the "
+                   f"other {c.transmitted - off:+.4f} crossed after it was off (read at the end of the run, "
+                   f"{fmt_time(inp.t_end)})")
     out.append(f"transmitted against the checks: {c.transmitted - st.T:+.4f} = {pk.T - st.T:+.4f} from the energies "
                f"the packet meets the sheet with (stationary model over the simulated packet, read at "
                f"{fmt_time(c.packet_time)}) {c.transmitted - pk.T:+.4f} in the crossing itself "
@@ -167,6 +176,15 @@ def text_lines(sim, file: str, findings, choice=None) -> list[str]:
     return out
 
 
+def at_sheet_off(sim) -> float | None:
+    """The transmitted fraction when the sheet goes off (the time course read there), or None outside the run."""
+    c, inp = sim.crossing, sim.setup.crossing
+    times = np.asarray(c.times, dtype=float)
+    if not len(times) or not times[0] <= inp.off <= times[-1]:
+        return None
+    return float(np.interp(inp.off, times, np.asarray(c.transmitted_t, dtype=float)))
+
+
 def titles(sim) -> tuple:
     s = sim.setup
     base = f"barrier '{s.barrier.block}', interactions {'on' if s.interactions else 'off'}"
@@ -174,7 +192,7 @@ def titles(sim) -> tuple:
     return (f"{fmt_state(*s.state)} (initial state): {base}", f"{part} (coupled by the sheet): {base}")
 
 
-def _refuse(args, out, text: str, findings=(), code: int = 2, doc_extra: dict | None = None) -> int:
+def refuse(args, out, text: str, findings=(), code: int = 2, doc_extra: dict | None = None) -> int:
     """Say why nothing was simulated: on stderr as one line (with the findings that say why, as `check`
     prints them), or as a JSON object with `--json`; the caution either way."""
     if args.json:
@@ -199,21 +217,23 @@ def command(res, choice, args, out=None) -> int:
     out = out or sys.stdout
     errors = [f for f in res.findings if f.severity == "error" and not f.accepted]
     if has_errors(res.findings):
-        return _refuse(args, out, f"{len(errors)} error finding(s) in this shot: fix them (or accept them with a "
+        return refuse(args, out, f"{len(errors)} error finding(s) in this shot: fix them (or accept them with a "
                        "reason) before simulating it, as for a build", errors, code=1)
+    if args.output and Path(args.output).exists() and not Path(args.output).is_dir():
+        return refuse(args, out, f"{args.output} is a file: give a folder for the simulation's files")
     if args.output and not args.force:  # refused before seconds of simulation, not after
         from .emit.simulation import output_files
 
         there = [p for p in output_files(args.output) if p.exists()]
         if there:
-            return _refuse(args, out, f"{there[0]} exists; use --force to replace it")
+            return refuse(args, out, f"{there[0]} exists; use --force to replace it")
     interactions = getattr(args, "interactions", "on") != "off"
     sim = simulate(res.shot, interactions=interactions, convergence=not getattr(args, "no_convergence", False))
     if isinstance(sim, NoSimulation):
         where = ""
         if sim.barrier is not None:
             where = f" (barrier '{sim.barrier.block}', line {sim.barrier.pos.line})"
-        return _refuse(args, out, f"{WHY[sim.reason].format(*sim.size)}{where}", doc_extra={"reason": sim.reason})
+        return refuse(args, out, f"{WHY[sim.reason].format(*sim.size)}{where}", doc_extra={"reason": sim.reason})
     findings = simulation_findings(res.shot, sim)
     doc = to_json(sim, str(args.file), findings, choice)
     if args.output:
@@ -222,9 +242,9 @@ def command(res, choice, args, out=None) -> int:
         try:
             write_outputs(args.output, sim, doc, titles(sim), force=args.force)
         except OutputExists as exc:
-            return _refuse(args, out, str(exc))
+            return refuse(args, out, str(exc))
         except OSError as exc:
-            return _refuse(args, out, f"cannot write {args.output}: {exc.strerror or exc}")
+            return refuse(args, out, f"cannot write {args.output}: {exc.strerror or exc}")
     if args.json:
         out.write(json.dumps(doc, indent=2, sort_keys=True) + "\n")
     else:

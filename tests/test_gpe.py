@@ -34,7 +34,7 @@ def _moments(grid, n):
 
 def test_free_gaussian_spreads_as_the_closed_form():
     # sigma(t) = sigma0 sqrt(1 + (hbar t / (2 m sigma0^2))^2) for |psi|^2 of rms width sigma0
-    # (Cohen-Tannoudji, Diu, Laloe, Quantum Mechanics, Wiley 1977, complement G_I (from memory));
+    # (a standard quantum-mechanics textbook result: free spreading of a minimum-uncertainty packet (from memory));
     # the centre moves at hbar k0 / m
     grid = gpe.make_grid(-150e-6, 250e-6, 0.2e-6)
     s0, v0 = 3e-6, 5e-3
@@ -49,7 +49,7 @@ def test_free_gaussian_spreads_as_the_closed_form():
 
 def test_harmonic_ground_state_energy_and_width():
     # E0 = hbar omega / 2, |psi|^2 Gaussian of rms width sqrt(hbar / (2 m omega)) (any QM textbook, e.g.
-    # Landau & Lifshitz, Quantum Mechanics, 3rd ed., Pergamon 1977, section 23)
+    # Quantum Mechanics: Non-Relativistic Theory, 3rd ed., Pergamon 1977, section 23 (from memory))
     omega = 2 * math.pi * 88.0
     grid = gpe.make_grid(-30e-6, 30e-6, 0.1e-6)
     gs = gpe.ground_state(grid, M_NA, 0.5 * M_NA * omega**2 * grid.x**2)
@@ -59,7 +59,7 @@ def test_harmonic_ground_state_energy_and_width():
 
 
 def test_thomas_fermi_limit_of_the_interacting_ground_state():
-    # 1D Thomas-Fermi: mu = (3 g N omega sqrt(m) / (4 sqrt 2))^(2/3) (Pethick & Smith, Bose-Einstein
+    # 1D Thomas-Fermi: mu = (3 g N omega sqrt(m) / (4 sqrt 2))^(2/3) (Bose-Einstein
     # Condensation in Dilute Gases, 2nd ed., Cambridge 2008, ch. 6, the 1D form of the Thomas-Fermi profile
     # n = (mu - V)/g (from memory)); corrections of order (hbar omega / mu)^2 ln(mu / hbar omega)
     omega = 2 * math.pi * 20.0
@@ -78,7 +78,7 @@ def test_g1d_is_twice_hbar_omega_perp_a():
 
 def test_bright_soliton_keeps_its_sech_shape():
     # focusing 1D NLS: psi = sqrt(N / (2 l)) sech(x / l), l = 2 hbar^2 / (m |g| N), mu = -hbar^2 / (2 m l^2)
-    # (Zakharov & Shabat, Sov. Phys. JETP 34, 62 (1972); Pethick & Smith, 2nd ed., Cambridge 2008, ch. 7)
+    # (Sov. Phys. JETP 34, 62 (1972); Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge 2008, ch. 7)
     g = -5e-38  # J m, times the atom number
     ell = 2 * hbar**2 / (M_NA * abs(g))
     grid = gpe.make_grid(-40 * ell, 40 * ell, ell / 4)
@@ -95,7 +95,7 @@ def test_bright_soliton_keeps_its_sech_shape():
 
 def test_dark_soliton_keeps_its_tanh_shape():
     # defocusing 1D NLS on a background n0: psi = sqrt(n0) tanh(x / (sqrt 2 xi)), xi = hbar / sqrt(2 m g n0)
-    # (Zakharov & Shabat, Sov. Phys. JETP 37, 823 (1973); Pethick & Smith, 2nd ed., Cambridge 2008, ch. 7);
+    # (Sov. Phys. JETP 37, 823 (1973); Bose-Einstein Condensation in Dilute Gases, 2nd ed., Cambridge 2008, ch. 7);
     # two far-apart solitons make the state periodic on the grid
     length = 400e-6
     n0 = 1 / length  # psi normalised to 1 over the box
@@ -141,7 +141,7 @@ def test_uniform_rabi_oscillation(delta):
 
 
 def _rectangular_t(energy, v0, width, mass):
-    """Stationary transmission of a rectangular barrier (Landau & Lifshitz, Quantum Mechanics, 3rd ed.,
+    """Stationary transmission of a rectangular barrier (Quantum Mechanics: Non-Relativistic Theory, 3rd ed.,
     Pergamon 1977, section 25, problem 2 (from memory); written out here independently of seqgen)."""
     e = np.asarray(energy, dtype=float)
     out = np.empty_like(e)
@@ -231,7 +231,7 @@ def test_absorbers_take_the_atoms_with_their_spin():
 
 
 def test_mean_field_phase_factor_is_unitary_and_within_the_pade_bound():
-    # the (2,2) Pade approximant of exp(z) errs by z^5 / 720 to leading order (Baker & Graves-Morris, Pade
+    # the (2,2) Pade approximant of exp(z) errs by z^5 / 720 to leading order (Pade
     # Approximants, 2nd ed., Cambridge 1996 (from memory)); on the imaginary axis it has modulus 1 exactly
     angle = np.linspace(-0.1, 0.1, 2001)
     out = gpe.unit_phase(angle, np.empty(angle.size, dtype=complex), np.empty((3, angle.size)))

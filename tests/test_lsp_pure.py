@@ -31,6 +31,10 @@ def _apply(lines: list, edits) -> str:
     return text
 
 
+def _findings_of(text: str) -> list:
+    return preflight(OVERLAP, sources=load_sources(OVERLAP, text=text)).findings
+
+
 def _finding_of(text: str, code: str):
     found = [f for f in preflight(OVERLAP, sources=load_sources(OVERLAP, text=text)).findings if f.code == code]
     assert found, code
@@ -55,10 +59,13 @@ def test_accept_entry_is_valid_yaml_and_accepts_the_finding(tail):
     new = _apply(lines, action.edits)
     data = yaml.safe_load(new)
     entries = data["accept"]
-    assert {"code": code, "block": f.block, "reason": "TODO: why"} in entries
+    assert {"code": code, "block": f.block, "reason": ""} in entries
     assert len(entries) == (0 if tail in ("", "accept: []\n") else 1) + 1
-    after = _finding_of(new, code)
-    assert after.accepted and after.accept_reason == "TODO: why"
+    # the empty reason accepts nothing: the file does not validate until the user writes why
+    assert not any(g.accepted for g in _findings_of(new))
+    written = new.replace('reason: ""', 'reason: "on purpose"')
+    after = _finding_of(written, code)
+    assert after.accepted and after.accept_reason == "on purpose"
 
 
 def test_no_accept_for_findings_of_files_that_do_not_resolve():

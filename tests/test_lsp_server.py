@@ -207,18 +207,23 @@ async def test_accepting_a_finding_inserts_an_accept_entry_and_reports_it_accept
     accept = [a for a in await _actions(client, doc, diags[0].range.start.line) if a.title.startswith("Accept")]
     assert accept
     new = apply_text_edits(doc.text, accept[0].edit.changes[doc.uri])
-    assert new.count("accept:") == 1 and 'reason: "TODO: why"' in new
-    after = [d for d in await doc.replace_all(new) if d.code == code]
+    assert new.count("accept:") == 1 and 'reason: ""' in new
+    # the empty reason accepts nothing: the schema asks for one at that line
+    blocked = await doc.replace_all(new)
+    assert not any(d.data["finding"]["accepted"] for d in blocked if "finding" in d.data)
+    assert any(d.code == "schema.bad-value" for d in blocked)
+    written = new.replace('reason: ""', 'reason: "overlap on purpose"')
+    after = [d for d in await doc.replace_all(written) if d.code == code]
     assert after and all(d.severity == 4 and d.data["finding"]["accepted"] for d in after)
-    assert "(accepted: TODO: why)" in after[0].message
+    assert "(accepted: overlap on purpose)" in after[0].message
     # a second finding accepted into the same list: appended, still one accept: key
     others = [d for d in await wait_diagnostics(client, doc.uri) if not d.data["finding"]["accepted"]
               and not d.code.startswith("schema.")]
     if others:
         more = [a for a in await _actions(client, doc, others[0].range.start.line) if a.title.startswith("Accept")]
         newer = apply_text_edits(doc.text, more[0].edit.changes[doc.uri])
-        assert newer.count("accept:") == 1 and newer.count('reason: "TODO: why"') == 2
-        final = await doc.replace_all(newer)
+        assert newer.count("accept:") == 1 and newer.count('reason: ""') == 1
+        final = await doc.replace_all(newer.replace('reason: ""', 'reason: "also on purpose"'))
         assert all(d.data["finding"]["accepted"] for d in final if d.code == others[0].code)
 
 

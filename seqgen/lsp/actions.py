@@ -4,7 +4,7 @@ Pure: a file's text comes in as lines and edits come out. Two kinds:
 - the fix a finding proposes ("did you mean 'blocks'?", "write '30 uW'", "write 'kick_time: 2 ms'"), written
   where `tests/test_applied_fixes.py` writes it: over the key a finding on an unknown key names, after the key
   named in a 'key: value' fix, else over the value of the key at the finding's column;
-- accepting a finding: an entry `{code: ..., block: ..., reason: "TODO: why"}` appended to the sequence's
+- accepting a finding: an entry `{code: ..., block: ..., reason: ""}` appended to the sequence's
   `accept:` list, the list created at the end of the file when there is none.
 """
 
@@ -18,7 +18,9 @@ from dataclasses import dataclass
 from ..findings import Finding
 
 QUICKFIX = "quickfix"
-TODO_REASON = "TODO: why"
+# empty: the file does not validate (schema.bad-value at the reason) until the user writes why, so one click
+# never accepts a finding, least of all a safety or hardware error, without a reason
+TODO_REASON = ""
 
 _PROPOSED = (re.compile(r"\bwrite '([^']+)'"), re.compile(r"\be\.g\. '([^']+)'"),
              re.compile(r"did you mean '([^']+)'\?"))
@@ -137,7 +139,7 @@ def accept_action(f: Finding, file: str, lines: list) -> Action | None:
     if f.accepted or f.code.startswith("schema."):  # a file that does not load or resolve accepts nothing
         return None
     entry = accept_entry(f)
-    title = f"Accept {f.code}" + (f" in block '{f.block}'" if f.block else "") + " (give the reason)"
+    title = f"Accept {f.code}" + (f" in block '{f.block}'" if f.block else "") + " (then write the reason)"
     at = _top_key(lines, "accept")
     if at is None:
         n = len(lines)

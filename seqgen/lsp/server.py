@@ -307,7 +307,9 @@ def create_server() -> SeqgenServer:
         found = hover(doc.text, doc.path, pos.line, pos.character, current_result(ls, params.text_document.uri))
         if found is None:
             return None
-        return lsp.Hover(contents=lsp.MarkupContent(kind=lsp.MarkupKind.Markdown, value=found.markdown),
+        # a hover is an output like any other: it carries the safety caution
+        text = f"{found.markdown}\n\n---\n*Caution: {CAUTION}*"
+        return lsp.Hover(contents=lsp.MarkupContent(kind=lsp.MarkupKind.Markdown, value=text),
                          range=_span(ls, lines, found.span) if found.span is not None else None)
 
     @server.feature(lsp.TEXT_DOCUMENT_DEFINITION)

@@ -366,8 +366,9 @@ def ground_state(grid: Grid, mass: float, v, g: float = 0.0, *, psi0=None, dtau:
                  tol: float = 1e-9, max_steps: int = 200000) -> GroundState:
     """Ground state in the potential v (J, n points) with coupling g (J m, times the atom number) by
     imaginary-time Strang splitting with renormalisation after every step, the step shrinking by 4 twice
-    (its O(dtau^2) bias then below tol); stops when the residual |H psi - mu psi| / |mu| is below
-    sqrt(tol) at the smallest step or the energy stalls. Start: psi0, else the Thomas-Fermi profile
+    (its O(dtau^2) bias then below tol); at each step size it stops when the energy changes by at most tol
+    (relative) over 50 steps; the residual |H psi - mu psi| / |mu| is reported, not used to stop. Start: psi0,
+    else the Thomas-Fermi profile
     (g > 0) or a Gaussian at the potential's minimum."""
     v = np.asarray(v, dtype=float)
     x, dx = grid.x, grid.dx

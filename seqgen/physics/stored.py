@@ -3,8 +3,9 @@
 A value is stored as JSON (floats written with repr, so read back to the last bit) in a per-user cache folder
 ($XDG_CACHE_HOME, else ~/.cache; `seqgen/` in it), in a file named by the sha256 of its key; a folder keeps at
 most MAX_FILES, the oldest are removed. A key holds everything the value depends on: the inputs (as their repr)
-and the code (`code_stamp`: the bytes of this package's modules and data, numpy's, scipy's and Python's
-versions), so changed code never reads an old value.
+and the code (`code_stamp`: the bytes of every module of seqgen and of the physics data, numpy's, scipy's
+and Python's versions: the computations stored are called from outside this package too, e.g. the trap
+minimisation of seqgen.predict.traps), so changed code never reads an old value.
 Files are written under a temporary name and renamed into place, so two processes starting at once never read
 half a file; a file that cannot be read or parsed counts as missing. Without a writable folder nothing is
 stored and every value is computed, as before.
@@ -40,14 +41,15 @@ def folder(name: str) -> Path | None:
 
 @lru_cache(maxsize=1)
 def code_stamp() -> str:
-    """sha256 of what computed values depend on besides their inputs: every module and data file of
-    seqgen.physics and the versions of Python, numpy and scipy."""
+    """sha256 of what computed values depend on besides their inputs: every module of seqgen, the physics data
+    files and the versions of Python, numpy and scipy."""
     import numpy
     import scipy
 
     h = hashlib.sha256(f"{sys.version}|{numpy.__version__}|{scipy.__version__}".encode())
-    for path in sorted([*_HERE.glob("*.py"), *(_HERE / "data").glob("*")]):
-        h.update(path.name.encode() + b"\0" + path.read_bytes() + b"\0")
+    package = _HERE.parent
+    for path in sorted([*package.rglob("*.py"), *(_HERE / "data").glob("*")]):
+        h.update(path.relative_to(package).as_posix().encode() + b"\0" + path.read_bytes() + b"\0")
     return h.hexdigest()
 
 
@@ -121,7 +123,7 @@ def prune(where: Path, keep: int = MAX_FILES) -> None:
     """Remove the least recently written files of a folder beyond `keep` (down to three quarters of it), so a
     long scan or editing session cannot fill the disk; another process removing the same files is harmless."""
     try:
-        files = [(p.stat().st_mtime_ns, p) for p in where.glob("*.json")]
+        files = [(p.stat().st_mtime_ns, p) for p in where.glob("*.json") if not p.name.startswith(".tmp-")]
     except OSError:
         return
     if len(files) <= keep:
