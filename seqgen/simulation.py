@@ -31,7 +31,7 @@ WHY = {
     "no_trap": "there is no trap before the push (no trap beams on, no sample.trap_frequencies): the initial "
                "ground state is undefined",
     "too_large": "the crossing needs {0} grid points and {1} time steps (a far sheet, a long flight or fast atoms): "
-                 "beyond what seqgen simulates (2^18 points, 4e9 points x steps); bring the sheet closer or "
+                 "beyond what seqgen simulates (2^18 points, 1e9 points x steps); bring the sheet closer or "
                  "shorten the barrier",
 }
 REASON_NAMES = {"velocity_spread": "incident energies", "finite_barrier_time": "finite barrier time",

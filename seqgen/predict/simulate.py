@@ -46,7 +46,8 @@ REASON_SHARE = 0.5  # a cause is named when it alone accounts for half the toler
 LATE_FRACTION = 0.02  # atoms that never met the sheet, named as a cause beyond this fraction
 ONE_D_LIMIT = 1.0  # mu_1D / hbar omega_perp above this: the atoms fill more than the guide's ground state
 MAX_POINTS = 2**18  # grids beyond this, or ...
-MAX_WORK = 4e9  # ... points x steps beyond this (the demo: 8e7), are refused: minutes to hours of computing
+MAX_WORK = 1e9  # ... points x steps beyond this (the demo: 8e7), are refused: past it a run takes minutes (with the
+#                  convergence run at half dx and dt, four times as long again), silently
 V_TOP_SIGMAS = 4.0  # the fastest velocity expected: push + 4 spreads, or + 1.5 times the 1D release's edge
 
 
