@@ -566,6 +566,9 @@ def main(argv=None) -> int:
         return COMMANDS[args.verb](args)
     except KeyboardInterrupt:
         return 130
+    except ModuleNotFoundError as exc:  # a broken install (e.g. run outside its environment), not bad input
+        return _cannot_run(f"a package seqgen needs is missing ({exc}); run seqgen from the environment it was "
+                           "installed in, or install it there: pip install -e .")
     except BrokenPipeError:
         return EXIT_OK
     finally:

@@ -571,3 +571,20 @@ def test_a_broken_table_writer_is_one_line_and_exit_2_and_keeps_the_build(tmp_pa
     assert code == 2 and len(err) == 1 and err[0].startswith("seqgen: table writer") and "not a writer" in err[0] \
         and "bad = seqgen.emit.writers:CSV_ROW_LIMIT" in err[0]
     assert {p.name: p.read_bytes() for p in out.iterdir()} == before
+
+
+def test_a_missing_package_is_said_once_not_as_every_unit_unknown(tmp_path):
+    """Run outside its environment (pint not importable), seqgen says so and exits 2, instead of reporting
+    every unit of the file as unknown."""
+    import subprocess
+    import sys
+
+    code = ("import sys; sys.modules['pint'] = None; from seqgen.cli import main; "
+            "sys.exit(main(['check', 'sequences/na23_thermometry.yaml']))")
+    from .conftest import ROOT
+
+    env = dict(__import__("os").environ, PYTHONPATH=str(ROOT), XDG_CACHE_HOME=str(tmp_path))
+    proc = subprocess.run([sys.executable, "-c", code], cwd=ROOT, env=env, capture_output=True, text=True,
+                          timeout=120)
+    assert proc.returncode == 2, proc.stdout + proc.stderr
+    assert "missing" in proc.stderr and "pint" in proc.stderr and "unknown unit" not in proc.stdout

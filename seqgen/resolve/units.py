@@ -103,7 +103,7 @@ def unit_factor(unit_text: str) -> tuple[float, Dims]:
         if not q._ok_for_muldiv():
             raise UnitError("offset temperature units (degC, degF) are not accepted; use K")
         base = q.to_base_units()
-    except UnitError:
+    except (UnitError, ImportError):  # ImportError: pint is not installed, not a bad unit
         raise
     except Exception as exc:  # pint raises many types for bad text
         raise UnitError(f"unknown unit '{unit_text}'") from exc
