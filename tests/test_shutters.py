@@ -52,10 +52,10 @@ def test_an_edge_within_the_jitter_is_a_warning_and_the_fix_passes(tmp_path):
     data = dict(f.data)
     assert f.severity == "warning"
     assert data["jitter_s"] == pytest.approx(100e-6)  # rig_cs133.yaml: probe_shutter jitter: 100 us
-    assert data["gap_s"] == pytest.approx(50e-6, abs=2e-6)  # the file's `hold: {duration: 50 us}`
+    assert data["gap_s"] == pytest.approx(70e-6, abs=2e-6)  # the file's `hold: {duration: 70 us}`
     text = (FAULTS / "shutter_within_jitter.yaml").read_text(encoding="utf-8")
     wait = f.hint.split("leave at least ")[1].split(" between")[0]
-    fixed = text.replace("hold: {duration: 50 us}", f"hold: {{duration: {wait}}}")
+    fixed = text.replace("hold: {duration: 70 us}", f"hold: {{duration: {wait}}}")
     assert not _codes(preflight(_copy(tmp_path, "fixed.yaml", fixed)).findings)
 
 
@@ -113,6 +113,15 @@ def test_a_shutter_closed_during_the_pulse_says_to_close_it_later_and_that_passe
 
 def test_a_close_exactly_one_jitter_after_the_pulse_is_quiet(tmp_path):
     """The fix of the jitter warning moves the close to exactly the jitter after the pulse: that passes."""
-    (f,) = _codes(preflight(_with_close(tmp_path, "near.yaml", "150 us")).findings)
+    (f,) = _codes(preflight(_with_close(tmp_path, "near.yaml", "200 us")).findings)
     assert f.severity == "warning"
     assert not _codes(preflight(_with_close(tmp_path, "exact.yaml", "240 us")).findings)  # 140 us + 100 us jitter
+
+
+def test_an_edge_under_half_the_jitter_from_the_pulse_is_an_error(tmp_path):
+    """20 us between the shutter's opening and the pulse against its 100 us jitter (rig_cs133.yaml): under half
+    the jitter, an error (about half the shots or more lose part of the pulse)."""
+    text = (FAULTS / "shutter_within_jitter.yaml").read_text(encoding="utf-8").replace("hold: {duration: 70 us}",
+                                                                                       "hold: {duration: 20 us}")
+    (f,) = _codes(preflight(_copy(tmp_path, "close.yaml", text)).findings)
+    assert f.severity == "error" and dict(f.data)["gap_s"] == pytest.approx(20e-6, abs=2e-6)

@@ -204,7 +204,7 @@ def drive_too_strong(shot):
 def rotation_unresolvable(shot):
     for act, rep in _with_rotation(shot):
         n = rep.N_T
-        if not n:
+        if not n or (rep.floor and n < rep.floor):  # too few atoms to image: physics.barrier-no-signal says so
             continue
         noise = 1.0 / math.sqrt(max(n, 1.0))
         if rep.rotation < noise:

@@ -81,11 +81,14 @@ def beam_shuttered(shot):
         near += [(float(after[0]) - t1, "closes", float(after[0]))] if len(after) else []
         for gap, verb, at in near:
             if gap < out.jitter_s * (1 - 1e-9):  # a gap of exactly the jitter (the fix applied) is enough
+                # under half the jitter, about half the shots or more lose part of the pulse: an error
+                # (common practice, no source); between half and the whole jitter, some shots: a warning
+                severity = "error" if gap < 0.5 * out.jitter_s else "warning"
                 yield make(BEAM_SHUTTERED,
                            f"the shutter '{beam.shutter}' of beam '{beam.name}' {verb} at t={fmt_when(at)}, "
                            f"{fmt_when(gap)} from the {what} (t={fmt_when(t0)} to {fmt_when(t1)}), within its "
                            f"{fmt_when(out.jitter_s)} jitter: on some shots it may block part of the pulse",
-                           act.pos, severity="warning", block=act.block, time_s=t0,
+                           act.pos, severity=severity, block=act.block, time_s=t0,
                            hint=f"leave at least {fmt_when(outward(out.jitter_s))} between the shutter's edge and "
                                 f"the pulse ({verb} {fmt_when(outward(out.jitter_s - gap))} "
                                 f"{'earlier' if verb == 'opens' else 'later'})",

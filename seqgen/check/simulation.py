@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from ..codes import BARRIER_SIMULATION_DISAGREES
 from ..findings import make
-from ..predict.simulate import TOLERANCE_ROTATION, TOLERANCE_ROTATION_ABS, TOLERANCE_T
+from ..predict.simulate import ONE_D_LIMIT, TOLERANCE_ROTATION, TOLERANCE_ROTATION_ABS, TOLERANCE_T
 
 REASON_TEXT = {
     "velocity_spread": ("the packet meets the sheet with other energies than the checks' velocity spread "
@@ -43,7 +43,12 @@ def simulation_findings(shot, sim) -> list:
            f"the stationary model {st.T:.3f} and {_angle(st.rotation)} (tolerance {TOLERANCE_T:g} in the fraction, "
            f"{TOLERANCE_ROTATION:.0%} and at least {TOLERANCE_ROTATION_ABS:g} rad in the angle): " + "; ".join(why))
     data = {"simulated_T": c.transmitted, "stationary_T": float(st.T), "reasons": ",".join(r[0] for r in sim.reasons)}
-    return [make(BARRIER_SIMULATION_DISAGREES, msg, act.pos, block=act.block, time_s=act.t0, data=data,
-                 hint="plan this shot with the simulated numbers (seqgen simulate FILE --json), or make the "
-                      "stationary picture hold: every atom across while the sheet is on, a lower density "
-                      "(fewer atoms, a weaker trap before the push)")]
+    hold = ("make the stationary picture hold: every atom across while the sheet is on, a lower density (fewer "
+            "atoms, a weaker trap before the push)")
+    if sim.one_d is not None and sim.one_d > ONE_D_LIMIT:  # the simulation's own mean field is overstated here
+        msg += (f"; the peak mean field is {sim.one_d:.3g} hbar omega_perp, beyond the 1D regime, so the simulation "
+                "overstates it and neither number is final")
+        hint = hold + ", or a tighter guide (the 1D simulation then holds)"
+    else:
+        hint = "plan this shot with the simulated numbers (seqgen simulate FILE --json), or " + hold
+    return [make(BARRIER_SIMULATION_DISAGREES, msg, act.pos, block=act.block, time_s=act.t0, data=data, hint=hint)]

@@ -133,8 +133,9 @@ BEAM_SHUTTERED = Code(
     absorption, the atoms see no sheet). Open it before the pulse, and
     close it after. When the shutter is open throughout but opens or closes
     less than its `jitter:` from the pulse, the edge may land inside the
-    pulse on some shots (warning): leave at least the jitter between the
-    shutter's edge and the pulse.""")
+    pulse on some shots (warning; under half the jitter, on about half the
+    shots or more: error, common practice, no source): leave at least the
+    jitter between the shutter's edge and the pulse.""")
 
 RESOLUTION = Code(
     "hardware.resolution", "warning", stage="timeline",

@@ -187,7 +187,7 @@ def release_text(rel) -> str:
             f"energy is not kept)" if rel.held else "free expansion")
     return (f"mean-field release: mu = {fmt_energy(rel.mu)}, 2/7 mu = {fmt_energy(rel.released)} per atom; along the path "
             f"{fmt_energy(rel.path_energy)} when the centre reaches the sheet ({fmt_time(rel.read_at, unit='ms')} after the "
-            f"push starts, {trap}): velocity profile an inverted parabola of half-width {rel.half_width * 1e3:.3g} mm/s, "
+            f"push starts, {trap}): velocity profile (1 - v^2/V^2)^2 of half-width V = {rel.half_width * 1e3:.3g} mm/s, "
             f"rms = half-width/sqrt 7 = {rel.sigma_v * 1e3:.3g} mm/s, in quadrature with the in-trap spread")
 
 
