@@ -143,6 +143,7 @@ CASES = [
     ("physics.magnetic-trap-lost", "magnetic_trap_lost.yaml", _coil_currents),
     ("physics.modulation-off-resonance", "modulation_off_resonance.yaml", _write_value("frequency")),
     ("physics.modulation-off-resonance", "barrier_rotation_unresolvable.yaml", _write_value("frequency")),
+    ("physics.barrier-no-signal", "barrier_no_signal.yaml", _write_value("power")),
     ("physics.not-tunnelling", "barrier_not_tunnelling.yaml", _write_value("power")),
     ("physics.probe-doppler", "probe_doppler.yaml", _write_value("duration")),
     ("physics.probe-off-resonance", "probe_off_resonance.yaml", _beam_wavelength),

@@ -119,6 +119,12 @@ def barrier_no_signal(shot):
         side = None
         if rep.N_T < floor:
             side, n, fix = "transmitted", rep.N_T, "lower the sheet power or kick harder"
+            if rep.V0 > rep.E_mean > 0 and act.args.get("power"):
+                # the sheet's top at the atoms' mean energy: about half of them cross (common practice, no source)
+                # (rounded up when tunnelling is expected, so the top stays above the mean energy)
+                fix = (f"lower the sheet power to about "
+                       f"{_mw(act.args['power'] * rep.E_mean / rep.V0, rep.expect == 'tunnelling')} mW "
+                       "(the sheet's top at the atoms' mean kinetic energy) or kick harder")
         elif rep.N_R < floor and rep.expect != "over_barrier":
             side, n, fix = "reflected", rep.N_R, "raise the sheet power or kick less"
         if side:
