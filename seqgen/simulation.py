@@ -212,11 +212,10 @@ def command(res, choice, args, out=None) -> int:
     1 the shot has error findings (not simulated: what it would play is not what the sequence means), 2 nothing
     to simulate or the output cannot be written."""
     from .emit.plot.files import OutputExists
-    from .findings import has_errors
 
     out = out or sys.stdout
-    errors = [f for f in res.findings if f.severity == "error" and not f.accepted]
-    if has_errors(res.findings):
+    errors = [f for f in res.findings if f.severity == "error" and not f.accepted]  # what has_errors counts
+    if errors:
         return refuse(args, out, f"{len(errors)} error finding(s) in this shot: fix them (or accept them with a "
                        "reason) before simulating it, as for a build", errors, code=1)
     if args.output and Path(args.output).exists() and not Path(args.output).is_dir():

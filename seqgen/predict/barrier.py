@@ -88,7 +88,7 @@ from ..values import value_at
 from .cache import per_shot_cache
 from .pushes import push_analysis
 from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, sample_state,
-                      scattering_length, species, trap_beams, unevaluable)
+                      scattering_length, species, trap_before, trap_beams, unevaluable)
 
 DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
 N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
@@ -284,11 +284,6 @@ def incident_velocity(shot, act) -> Incident | None:
     return None
 
 
-def _before(t):
-    """Just before t: a write at the push's own start (a trap beam switched off) is not yet the trap."""
-    return t - 1e-9 * max(1.0, abs(t))
-
-
 def _beam_trap(sp, beams):
     """(omegas, principal axes as columns) of the trap of these beams, or (None, None)."""
     from ..physics.optical import find_trap_minimum
@@ -388,7 +383,7 @@ def mean_field_release(shot, push, direction, read_at, until):
     s, sp = shot.sample, species(shot)
     if not (s.condensed and s.atoms):
         return None, None
-    omegas, axes = _trap_at(shot, _before(push.t0))
+    omegas, axes = _trap_at(shot, trap_before(shot, push.t0))
     mu = _chemical_potential(shot, omegas) if omegas is not None else None
     if mu is None:
         return None, None
@@ -545,7 +540,7 @@ def analyse(shot, act) -> BarrierPrediction | None:
     if inc is None or not inc.speed > 0 or _unit(inc.direction) is None:
         return None
     v = inc.speed
-    cloud = cloud_along_path(shot, _before(inc.push.t0), _unit(inc.direction))
+    cloud = cloud_along_path(shot, trap_before(shot, inc.push.t0), _unit(inc.direction))
     arrival = centre_arrival(sheet_distance(shot, act, inc), v, float(inc.push.args["duration"]))
     try:
         release, scale = mean_field_release(shot, inc.push, inc.direction, arrival if math.isfinite(arrival) else 0.0,

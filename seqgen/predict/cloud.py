@@ -23,7 +23,7 @@ from .cache import per_shot_cache
 from .magnetic import hold_analysis
 from .pushes import Components, components_at
 from .species import (G_N, MU_B, bias, gaussian_beams, sample_state, scattering_length, species, trap_beams,
-                      unit)
+                      trap_before, unit)
 from .states import populated_states, state_fractions
 from .traps import held, trap_stage
 
@@ -196,15 +196,6 @@ def _perpendicular_axes(axis) -> np.ndarray:
     return np.column_stack([p1, np.cross(n, p1), n])
 
 
-def before_release(shot, t: float) -> float:
-    """A moment just before a release at `t`, as played: the release's writes land on their devices' ticks (half
-    a tick either way; 250 ns early for a release at 31.25 us on a 1 us card), so the trap is read one tick of
-    the slowest trap-beam device earlier, where the beams still shine."""
-    ticks = [shot.rig.devices[shot.rig.outputs[b.power_channel].device].tick_s for b in trap_beams(shot)
-             if b.power_channel in shot.rig.outputs and shot.rig.outputs[b.power_channel].device in shot.rig.devices]
-    return t - max(ticks, default=0.0) - 1e-9
-
-
 def _trap_before_release(shot, sp, rel):
     """(omegas or None, rms widths in a linear trap or None, principal axes (columns), trap code, block of a
     magnetic hold, SizeUnknown or None) of the trap the release opens; omegas and widths along the axes."""
@@ -214,7 +205,7 @@ def _trap_before_release(shot, sp, rel):
 
     if shot.sample.trap_frequencies_hz:  # stated along the rig's x, y, z
         return 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz, dtype=float), None, np.eye(3), TRAP_SAMPLE, None, None
-    beams = gaussian_beams(shot, [before_release(shot, rel.t0)])[0]
+    beams = gaussian_beams(shot, [trap_before(shot, rel.t0)])[0]
     if beams:
         omegas = held(sp, tuple(beams)).omegas
         if omegas is None or not np.all(np.isfinite(omegas)):

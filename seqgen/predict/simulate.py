@@ -37,7 +37,7 @@ from ..physics.passage import path_frequency
 from .barrier import analyse, incident_velocity, sheet_distance
 from .played import played, track
 from .pushes import push_analysis
-from .species import gaussian_beams, sample_state, scattering_length, species, trap_beams
+from .species import gaussian_beams, sample_state, scattering_length, species, trap_beams, trap_before
 
 TOLERANCE_T = 0.05  # |T simulated - T stationary| beyond which the stationary model does not hold for the shot
 TOLERANCE_ROTATION = 0.25  # relative change of the rotation angle, and ...
@@ -215,7 +215,7 @@ def build_setup(shot, interactions: bool = True):
     direction = tuple(np.asarray(inc.direction, dtype=float) / np.linalg.norm(inc.direction))
     push = inc.push
     t0 = push.t0
-    w_before, _, _ = _trap_at(shot, t0 - 1e-9 * max(1.0, abs(t0)), direction)
+    w_before, _, _ = _trap_at(shot, trap_before(shot, t0), direction)
     if not w_before:
         return NoSimulation("no_trap", act)
     m = sp.mass_kg
@@ -267,7 +267,7 @@ def build_setup(shot, interactions: bool = True):
             v0s.append(v0)
         pieces.append(Piece(a, b, force, w_path, v0, rabi, shift, offset))
     if omega_perp is None:
-        _, omega_perp, _ = _trap_at(shot, t0 - 1e-9 * max(1.0, abs(t0)), direction)
+        _, omega_perp, _ = _trap_at(shot, trap_before(shot, t0), direction)
     a_s = scattering_length(sp, sample_state(shot))
     use = bool(interactions and omega_perp and a_s and a_s > 0)
     g = g1d(omega_perp, a_s) * s.atoms if use else 0.0

@@ -30,6 +30,17 @@ def trap_beams(shot):
     return [b for b in shot.rig.beams.values() if b.role == "trap" and b.waist_m]
 
 
+def trap_before(shot, t: float) -> float:
+    """A moment just before `t` at which the trap is read, as played: a write at `t` (a release, a trap beam
+    switched off as a push starts) lands on its device's tick, half a tick either way (250 ns early for 31.25 us
+    on a 1 us card), so the trap is read one tick of the slowest trap-beam device earlier, where the beams that
+    `t` switches still shine."""
+    outs, devices = shot.rig.outputs, shot.rig.devices
+    ticks = [devices[outs[b.power_channel].device].tick_s for b in trap_beams(shot)
+             if b.power_channel in outs and outs[b.power_channel].device in devices]
+    return t - max(ticks, default=0.0) - 1e-9 * max(1.0, abs(t))
+
+
 def gaussian_beams(shot, times):
     """For each time, the list of GaussianBeam of the trap beams that are on, at the powers the hardware plays
     (`predict.played`)."""
