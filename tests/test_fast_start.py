@@ -53,13 +53,13 @@ def test_check_does_not_load_the_plotting_library():
     assert "matplotlib" not in res["loaded"]
 
 
-def test_units_module_loads_pint_on_first_parse_only():
+def test_units_module_loads_pint_on_first_parse_only(tmp_path):
     res = _fresh("""
 import json, sys
 from seqgen.resolve import units
 before = "pint" in sys.modules
 units.unit_factor("ms")
-print(json.dumps([before, "pint" in sys.modules]))""")
+print(json.dumps([before, "pint" in sys.modules]))""", XDG_CACHE_HOME=str(tmp_path))  # no answer kept yet
     assert res == [False, True]
 
 

@@ -17,6 +17,7 @@ import threading
 import numpy as np
 
 from ..calibration import to_output
+from . import kept
 from ..findings import Finding, make
 from ..model import Compiled, DeviceTable, Output, Shot
 from .sampling import sorted_unique, quantize_times, quantize_values, sample_ramp_report
@@ -206,8 +207,13 @@ def sampled_ramp(out: Output, seg, lat: float, k0: int, k1: int, device, tol: fl
         key, hit = None, None
     if hit is not None:
         return hit
-    rt, rv, err, limited = _sample_on_grid(_value_function(out, seg, lat), k0, k1, device, tol, linear)
-    value = (np.asarray(rt, dtype=np.int64), np.asarray(rv, dtype=float), err, limited)
+    disk_key = kept.key(key, k0, k1) if key is not None else None
+    value = kept.read(disk_key) if disk_key is not None else None
+    if value is None:
+        rt, rv, err, limited = _sample_on_grid(_value_function(out, seg, lat), k0, k1, device, tol, linear)
+        value = (np.asarray(rt, dtype=np.int64), np.asarray(rv, dtype=float), err, limited)
+        if disk_key is not None:
+            kept.write(disk_key, value)
     if key is not None:
         RAMP_CACHE.put(key, value)
     return value

@@ -99,8 +99,9 @@ def read(name: str, key: str):
     return doc.get("value") if isinstance(doc, dict) else None
 
 
-def write(name: str, key: str, value) -> None:
-    """Store `value` (JSON data) under `key`; silently nothing when the folder cannot be written."""
+def write(name: str, key: str, value, keep: int = MAX_FILES) -> None:
+    """Store `value` (JSON data) under `key`; silently nothing when the folder cannot be written. A folder of at
+    most `keep` files under MAX_FILES is looked at on every write, others about one write in 256."""
     path = _file(name, key)
     if path is None:
         return
@@ -115,8 +116,8 @@ def write(name: str, key: str, value) -> None:
         except (OSError, UnboundLocalError):
             pass
         return
-    if path.name.startswith("00"):  # about one write in 256 looks at the folder's size
-        prune(path.parent)
+    if keep < MAX_FILES or path.name.startswith("00"):  # about one write in 256 looks at the folder's size
+        prune(path.parent, keep)
 
 
 def prune(where: Path, keep: int = MAX_FILES) -> None:

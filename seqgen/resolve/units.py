@@ -91,9 +91,112 @@ class UnitError(ValueError):
     pass
 
 
+# ----------------------------------------------------------------------------- pint's answers, kept on disk
+# Loading pint costs about 0.15 s, more than a whole check of a small file. Each unit text's answer (SI factor,
+# dimension) is written to a per-user cache file the first time pint gives it; a later run reads the answers it
+# needs from there and loads pint only for a text it has never seen. The answers are pint's own, never a
+# hand-written table. The file is named by what they depend on: this module's source (the gauss word, the
+# text clean-up), pint's installed files and the Python version; an upgrade of either starts a new file.
+_ANSWERS_MAX = 4096  # unit texts kept: a few hundred kB at most
+_ANSWERS: dict | None = None
+_ANSWERS_LOCK = threading.Lock()
+
+
+@lru_cache(maxsize=1)
+def _answers_file() -> Path | None:
+    """The cache file for this module and this pint, or None (no folder to write, pint not installed)."""
+    from importlib.util import find_spec
+    import hashlib
+
+    from ..physics import stored
+
+    try:
+        spec = find_spec("pint")
+        if spec is None or not spec.origin:
+            return None
+        pint_dir = Path(spec.origin).parent
+        h = hashlib.sha256(f"{sys.version}|{pint_dir}".encode())
+        h.update(Path(__file__).read_bytes())
+        for name in ("__init__.py", "default_en.txt", "constants_en.txt", "registry.py"):
+            st = (pint_dir / name).stat()
+            h.update(f"|{name}:{st.st_size}:{st.st_mtime_ns}".encode())
+    except (OSError, ValueError, ImportError):
+        return None
+    where = stored.folder("units")
+    return None if where is None else where / f"answers-{h.hexdigest()[:32]}.json"
+
+
+def _read_answers(path: Path) -> dict:
+    """The answers in `path` ({text: (factor, dims)}); empty when the file is missing, cut short or not ours."""
+    import json
+
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+        return {text: (float(factor), tuple(float(d) for d in dims)) for text, (factor, dims) in doc.items()
+                if isinstance(text, str) and len(dims) == 7}
+    except (OSError, ValueError, TypeError, AttributeError):
+        return {}
+
+
+def _known_answers() -> dict:
+    global _ANSWERS
+    if _ANSWERS is None:
+        with _ANSWERS_LOCK:
+            if _ANSWERS is None:
+                path = _answers_file()
+                _ANSWERS = _read_answers(path) if path is not None else {}
+    return _ANSWERS
+
+
+def _keep_answer(text: str, answer: tuple[float, Dims]) -> None:
+    """Add one answer of pint's to the cache file (merged with what another process may have written since;
+    written under a temporary name and renamed, so a reader never sees half a file)."""
+    import json
+    import tempfile
+
+    path = _answers_file()
+    if path is None:
+        return
+    with _ANSWERS_LOCK:
+        merged = _read_answers(path)
+        merged.update(_ANSWERS or {})
+        merged[text] = answer
+        if len(merged) > _ANSWERS_MAX:
+            return
+        try:
+            fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=".json")
+            with os.fdopen(fd, "w", encoding="utf-8") as fh:
+                json.dump({t: [f, list(d)] for t, (f, d) in sorted(merged.items())}, fh)
+            os.replace(tmp, path)
+        except OSError:
+            try:
+                os.unlink(tmp)
+            except (OSError, UnboundLocalError):
+                pass
+            return
+    stale = sorted(path.parent.glob("answers-*.json"), key=lambda p: p.stat().st_mtime_ns if p.exists() else 0)
+    for old in stale[:-4]:  # files of earlier pint or seqgen versions
+        try:
+            old.unlink()
+        except OSError:
+            pass
+
+
 @lru_cache(maxsize=4096)
 def unit_factor(unit_text: str) -> tuple[float, Dims]:
-    """SI factor and dimension of a unit expression such as 'G/cm' or 'mW'."""
+    """SI factor and dimension of a unit expression such as 'G/cm' or 'mW' (pint's answer, from the disk cache
+    when pint gave it before)."""
+    known = _known_answers().get(unit_text)
+    if known is not None:
+        return known
+    answer = _pint_factor(unit_text)
+    if _ANSWERS is not None:
+        _ANSWERS[unit_text] = answer
+    _keep_answer(unit_text, answer)
+    return answer
+
+
+def _pint_factor(unit_text: str) -> tuple[float, Dims]:
     text = unit_text.strip().replace("µ", "u").replace("μ", "u").replace("^", "**")
     text = _GAUSS_WORD.sub(lambda m: (m.group(1) or "") + "LabG", text)
     if not text:
