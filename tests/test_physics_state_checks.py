@@ -213,6 +213,26 @@ def test_demo_barrier_drive_uses_peak_intensity_and_line(demo):
     assert abs(rep.offset_hz) <= rep.tolerance_hz
 
 
+def test_demo_barrier_height_and_drive_are_those_played(demo):
+    # The sheet's height V0 and the in-barrier drive are read from the played power and modulation (the DAC code
+    # the hardware holds), as barrier_drive_analysis reads them, so both findings quote one Rabi frequency.
+    # V0 is linear in the power (V0 = (U/I) 2P / (pi w w_y), Adv. At. Mol. Opt. Phys. 42, 95 (2000)): its ratio
+    # to the height at the written power is the DAC's played/written ratio (16-bit 0..10 V, 0.1 V/mW, rig)
+    from seqgen.physics.barrier import barrier_height
+
+    act = only(demo, "barrier")
+    pred = ps.barrier_analysis(demo, act)
+    written = act.args["power"]
+    played = dac(written * 1e3 * 0.1, 0.0, 10.0, 16) / 0.1 * 1e-3
+    assert abs(played / written - 1) > 1e-5  # the two differ enough to tell apart
+    sp = ps.species(demo)
+    at_written = barrier_height(sp, 532e-9, written, 45e-6, 1.8e-6)
+    assert pred.V0 / at_written == pytest.approx(played / written, rel=1e-12)
+    drive = ps.barrier_drive_analysis(demo, act)
+    assert pred.drive.rabi_peak == pytest.approx(2 * math.pi * drive.rabi_hz, rel=1e-12)
+    assert pred.drive.detuning_hz == pytest.approx(drive.f_mod - drive.bare_hz, rel=1e-12)
+
+
 # --------------------------------------------------------------------------- values of a channel (seqgen.values)
 
 def test_value_at_follows_the_published_shapes(tmp_path):

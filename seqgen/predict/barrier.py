@@ -87,6 +87,7 @@ from ..physics.passage import fraction_reached, path_frequency, time_to_fraction
 from ..values import value_at
 from .cache import per_shot_cache
 from .pushes import push_analysis
+from .states import barrier_played
 from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, sample_state,
                       scattering_length, species, trap_before, trap_beams, unevaluable)
 
@@ -482,14 +483,14 @@ def _partner(shot, act):
     return initial, (int(round(other)), s.mF)
 
 
-def _drive_model(shot, act, sp, beam, waist_y, speed) -> InBarrierDrive | None:
-    """In-barrier coupling: rabi_peak, partner offset / shift, detuning, or why it is absent."""
+def _drive_model(shot, act, sp, beam, waist_y, speed, f_mod, eps, power) -> InBarrierDrive | None:
+    """In-barrier coupling: rabi_peak, partner offset / shift, detuning, or why it is absent; `f_mod`, `eps` and
+    `power` as the hardware plays them (`states.barrier_played`)."""
     from ..physics.drive import two_photon_rabi_from_modulated_beam
     from ..physics.optical import modulated_peak_intensity
     from ..physics.zeeman import transition_frequency
 
-    eps = act.args.get("mod_depth")
-    if not eps or shot.sample.F is None or shot.sample.mF is None:
+    if not act.args.get("mod_depth") or not eps or shot.sample.F is None or shot.sample.mF is None:
         return None
     initial, partner = _partner(shot, act)
     out = dict(initial=initial, partner=partner, depth=float(eps))
@@ -505,7 +506,7 @@ def _drive_model(shot, act, sp, beam, waist_y, speed) -> InBarrierDrive | None:
                    else level_problem(sp, *initial) or level_problem(sp, *partner))
         if problem:
             return InBarrierDrive(**out, unsupported="no_coupling", problem=problem)
-        i_peak = float(modulated_peak_intensity(act.args["power"], beam.waist_m, waist_y, eps))
+        i_peak = float(modulated_peak_intensity(power, beam.waist_m, waist_y, eps))
         d = two_photon_rabi_from_modulated_beam(i_peak, eps, beam.wavelength_m, m_f=initial[1],
                                                 polarization=1.0, atom=sp)
         f = float(transition_frequency(initial[0], initial[1], partner[0], partner[1], shot.rig.bias_field_t or 0.0,
@@ -513,7 +514,6 @@ def _drive_model(shot, act, sp, beam, waist_y, speed) -> InBarrierDrive | None:
     except (ValueError, TypeError) as exc:
         return InBarrierDrive(**out, unsupported="no_coupling", problem=unevaluable(sp, initial, exc))
     sign = 1.0 if f > 0 else -1.0
-    f_mod = act.args.get("mod_frequency")
     detuning_hz = (f_mod - abs(f)) if f_mod else 0.0  # modulation above the bare line > 0
     # rotating frame: the partner's internal energy is h (f - sign(f) f_mod) = -sign(f) h detuning
     out.update(rabi_peak=d.rabi_rad_s, transition_hz=abs(f), detuning_hz=detuning_hz,
@@ -549,7 +549,9 @@ def analyse(shot, act) -> BarrierPrediction | None:
         release, scale = None, None
     sigma = math.hypot(cloud.sigma_v, release.sigma_v) if release else cloud.sigma_v
     m = sp.mass_kg
-    v0 = barrier_height(sp, beam.wavelength_m, act.args["power"], beam.waist_m, waist_y)
+    # the sheet as played (calibration, DAC codes, limits), not as written; its modulation likewise
+    f_mod, eps, power, _ = barrier_played(shot, act)
+    v0 = barrier_height(sp, beam.wavelength_m, power, beam.waist_m, waist_y)
     e_mean = 0.5 * m * (v**2 + sigma**2)
     rep = dict(speed=v, signed=inc.signed, incident=inc, sigma_v=sigma, release=release,
                V0=v0, E_mean=e_mean, waist_y=waist_y, expect=act.args.get("expect", "any"))
@@ -557,7 +559,7 @@ def analyse(shot, act) -> BarrierPrediction | None:
         rep["attractive"] = True  # red-detuned sheet: a well, not a barrier
     rep["cloud"] = cloud
     rep["passage"] = passage(shot, act, inc, cloud, waist_y, scale)
-    drive = _drive_model(shot, act, sp, beam, waist_y, v)
+    drive = _drive_model(shot, act, sp, beam, waist_y, v, f_mod, eps, power)
     rep["drive"] = drive
     v_max = v + 6.0 * sigma
     e_top = max(0.5 * m * v_max**2, abs(v0))

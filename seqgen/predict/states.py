@@ -430,7 +430,7 @@ class BarrierDrive:
     source: str = "played"
 
 
-def _barrier_played(shot, act):
+def barrier_played(shot, act):
     """(modulation frequency Hz or None, modulation depth, beam power W, source) that the hardware plays at
     the middle of a barrier: the modulation channel's frequency (its synth's idle frequency when the barrier
     writes none), its amplitude as the depth, and the beam's power; the barrier's own numbers where it has no
@@ -469,7 +469,7 @@ def barrier_drive_on(shot, act, declared) -> BarrierDrive | None:
     from ..physics.optical import modulated_peak_intensity
     from ..physics.zeeman import transition_frequency
 
-    f_mod, depth, power, source = _barrier_played(shot, act)
+    f_mod, depth, power, source = barrier_played(shot, act)
     sp = species(shot)
     beam = shot.rig.beams.get(act.args["beam"])
     if f_mod is None or sp is None or beam is None or not beam.waist_m:
