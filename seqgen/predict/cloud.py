@@ -21,7 +21,7 @@ from scipy import constants as sc
 from ..values import value_at
 from .cache import per_shot_cache
 from .magnetic import hold_analysis
-from .pushes import Components, components_at
+from .pushes import Components, components_at, played_gradient
 from .species import (G_N, MU_B, bias, gaussian_beams, sample_state, scattering_length, species, trap_beams,
                       trap_before, unit)
 from .states import populated_states, state_fractions
@@ -534,7 +534,7 @@ def separation_analysis(shot, act) -> Separation | None:
     mu = (mus[pair[0]], mus[pair[1]])
     rep.update(pair=pair, moments=mu, equal=abs(mu[0] - mu[1]) < EQUAL_MOMENT)
     tof_after = img.t0 - act.t1
-    rep["separation"] = float(stern_gerlach_separation(mu[0], mu[1], act.args["gradient"], act.args["duration"],
+    rep["separation"] = float(stern_gerlach_separation(mu[0], mu[1], played_gradient(shot, act), act.args["duration"],
                                                        tof_after, sp.mass_kg))
     coil = shot.rig.coils.get(act.args.get("coil"))
     way = None

@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass
 
 from .cache import per_shot_cache
-from .pushes import components_at
+from .pushes import components_at, played_power
 from .species import species
 from .states import populations
 
@@ -99,6 +99,7 @@ def probe_analysis(shot, act) -> ProbePrediction | None:
         return None  # on/off probe: its power is not known
     dur = act.args["duration"]
     gamma = TWO_PI * sp.d2_linewidth_hz
+    power = played_power(shot, beam, act.t0, act.t0 + dur, power)  # as the hardware plays it during the pulse
     s0 = float(im.saturation_parameter(power, beam.waist_m, sp.saturation_intensity_w_m2))
     line = probe_line(shot, act)
     # off its line the two-level rate falls with the Lorentzian 1/(1 + s + 4 Delta^2/Gamma^2); on it the

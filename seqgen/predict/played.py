@@ -31,7 +31,8 @@ from .cache import per_shot_cache
 PLAYED = "played"  # read from the compiled tables
 INTENDED = "intended"  # the output could not be compiled: the intended values (value_at) stand in
 
-__all__ = ["INTENDED", "PLAYED", "Track", "compiled_shot", "off_floor", "played", "played_source", "track"]
+__all__ = ["INTENDED", "PLAYED", "Track", "compiled_shot", "off_floor", "output_of", "played", "played_mean",
+           "played_source", "track"]
 
 
 @per_shot_cache(lambda shot: ("compiled-shot",))
@@ -127,6 +128,41 @@ def played(shot, output: str, times) -> np.ndarray:
         return np.asarray(to_physical(out, np.interp(t, tr.times, tr.values)), dtype=float).reshape(t.shape)
     idx = np.searchsorted(tr.times, t + tr.slack, side="right") - 1
     return tr.phys[np.maximum(idx, 0)]
+
+
+def played_mean(shot, output: str, t0: float, t1: float, magnitude: bool = False) -> float:
+    """Time average over [t0, t1] of what the hardware plays on `output` (of its magnitude with `magnitude`):
+    what a pulse of that length does to the atoms when the force or light is proportional to the value (a
+    push's impulse, a probe's photon count), with the DAC codes, calibration and latency of the tables. A
+    held output is exact (value times time between its changes); an interpolated one by Simpson's rule between
+    its rows. t1 <= t0: the value at t0."""
+    if not t1 > t0:
+        v = float(played(shot, output, [t0])[0])
+        return abs(v) if magnitude else v
+    tr = track(shot, output)
+    if tr.source != PLAYED:  # the intended values, sampled finely
+        t = np.linspace(t0, t1, 257)
+        v = np.asarray(value_at(shot, output, t), dtype=float)
+        v = np.abs(v) if magnitude else v
+        return float(np.sum(0.5 * (v[1:] + v[:-1])) / 256)
+    knots = np.unique(np.concatenate(([t0, t1], tr.times[(tr.times > t0) & (tr.times < t1)])))
+    width = np.diff(knots)
+    mid = 0.5 * (knots[1:] + knots[:-1])
+    f = (lambda t: np.abs(played(shot, output, t))) if magnitude else (lambda t: played(shot, output, t))
+    if tr.linear:
+        area = np.sum(width * (f(knots[:-1]) + 4 * f(mid) + f(knots[1:])) / 6)
+    else:  # held: the value at each interval's middle holds over all of it
+        area = np.sum(width * f(mid))
+    return float(area / (t1 - t0))
+
+
+def output_of(shot, channel: str) -> str | None:
+    """The output a beam's power channel or a coil's current channel names (a channel of one output, or the
+    output itself), or None."""
+    if channel in shot.rig.outputs:
+        return channel
+    names = shot.rig.channels.get(channel) or ()
+    return names[0] if len(names) == 1 else None
 
 
 def played_source(shot, *outputs: str) -> str:

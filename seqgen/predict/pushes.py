@@ -19,6 +19,7 @@ import numpy as np
 from scipy import constants as sc
 
 from .cache import per_shot_cache
+from .played import output_of, played_mean
 from .species import MU_B, bias, gaussian_beams, sample_state, species, unit
 from .states import barriers, is_populated, populated_states, populations, state_at
 from .traps import held
@@ -59,6 +60,29 @@ class PushPrediction:
     barrier: object = None
 
 
+def played_gradient(shot, act) -> float:
+    """The field gradient (T/m) a magnetic push or separation gives as played: the coil's gradient per amp times
+    the time-averaged magnitude of its current over the action (DAC codes, calibration, latency), with the
+    sign written; so the impulse is the one the coil delivers. The written gradient when the coil or its
+    current output is not in the rig."""
+    written = float(act.args["gradient"])
+    coil = shot.rig.coils.get(act.args.get("coil"))
+    name = output_of(shot, coil.current_channel) if coil is not None and coil.gradient_per_amp else None
+    if name is None:
+        return written
+    current = played_mean(shot, name, act.t0, act.t1, magnitude=True)
+    return math.copysign(abs(coil.gradient_per_amp) * current, written)
+
+
+def played_power(shot, beam, t0: float, t1: float, written: float) -> float:
+    """The time-averaged power (W) a beam puts out over [t0, t1], as played; `written` without an analog power
+    output."""
+    name = output_of(shot, beam.power_channel) if beam.power_channel else None
+    if name is None or shot.rig.outputs[name].kind == "digital":
+        return float(written)
+    return played_mean(shot, name, t0, t1)
+
+
 @per_shot_cache(lambda shot, act: ("state-push", act.index, act.t0))
 def push_analysis(shot, act) -> PushPrediction | None:
     """Kick of a push (velocity m/s signed, moment or photons, arrival at the target distance), or None."""
@@ -75,11 +99,12 @@ def push_analysis(shot, act) -> PushPrediction | None:
         if state is None:
             return None
         try:
-            kick = magnetic_push(state[0], state[1], act.args["gradient"], dur, bias(shot), atom=sp)
+            grad = played_gradient(shot, act)
+            kick = magnetic_push(state[0], state[1], grad, dur, bias(shot), atom=sp)
         except ValueError:
             return None
         mu = float(kick.moment)
-        rep.update(kind="magnetic", state=state, moment=mu, gradient=act.args["gradient"],
+        rep.update(kind="magnetic", state=state, moment=mu, gradient=grad,
                    velocity=float(kick.velocity), no_force=state[1] == 0 or abs(mu) < NO_FORCE_MOMENT)
         grows = shot.rig.coils[act.args["coil"]].field_grows_along
         if grows is not None and mu != 0 and not rep["no_force"]:
@@ -92,7 +117,7 @@ def push_analysis(shot, act) -> PushPrediction | None:
         beam = shot.rig.beams.get(act.args.get("beam"))
         if beam is None or not beam.waist_m:
             return None
-        s0 = float(saturation_parameter(act.args["power"], beam.waist_m, sp.saturation_intensity_w_m2))
+        s0 = float(saturation_parameter(played_power(shot, beam, act.t0, act.t1, act.args["power"]), beam.waist_m, sp.saturation_intensity_w_m2))
         off = beam.wavelength_m - sp.d2_wavelength_m
         det = 0.0 if abs(off) < RESONANT_WAVELENGTH_M else TWO_PI * sc.c * (1 / beam.wavelength_m - 1 / sp.d2_wavelength_m)
         k = optical_kick(TWO_PI * sp.d2_linewidth_hz, s0, det, dur, beam.wavelength_m, sp.mass_kg)
@@ -168,7 +193,7 @@ def _force_parts(shot, t, paths):
             way = grows if grows is not None else unit(coil.axis)
             if way is None:
                 continue
-            grad = abs(float(act.args["gradient"]))
+            grad = abs(played_gradient(shot, act))
             disp, vel = [], []
             for _, ch in paths:
                 st = state_at(ch, act.t0)

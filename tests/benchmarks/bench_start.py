@@ -11,9 +11,10 @@ then what typing costs in the language server (needs pygls): a cold `seqgen chec
 shot of its scan, a fresh process) against the server's re-check of it after a one-character edit (a digit
 of a param changed, sent as didChange over stdio; the time until its diagnostics arrive, less the debounce),
 the median of N edits (target <= 0.1 x).
-"Cold" means a fresh process; the caches a first run leaves on disk (bytecode, pint's unit cache, the trap
-minimisations and the atom data's schema check of seqgen.physics.stored) are kept, as an installed seqgen keeps
-them: one warm-up run of every command fills them before the timed runs. The same check with an empty cache
+"Cold" means a fresh process; the caches a first run leaves on disk (bytecode, pint's unit cache and seqgen's
+file of pint's answers, the trap minimisations, the long sampled ramps and the atom data's schema check of
+seqgen.physics.stored) are kept, as an installed seqgen keeps them: one warm-up run of every command fills them
+before the timed runs. The same check with an empty cache
 folder each time (a first run ever, bytecode kept) is printed for information.
 The checkout is put first on PYTHONPATH, so the numbers are those of this tree, not an installed seqgen.
 Compiled bytecode is kept (as for an installed package) in a temporary folder removed at the end, also where
