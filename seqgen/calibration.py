@@ -4,13 +4,12 @@ from __future__ import annotations
 
 import numpy as np
 
+from .interp import pchip
 from .model import Calibration, Output
 
 
 def _pchip(x, y):
-    from scipy.interpolate import PchipInterpolator  # here: scipy.interpolate costs ~0.2 s to load
-
-    return PchipInterpolator(np.asarray(x, float), np.asarray(y, float), extrapolate=False)
+    return pchip(np.asarray(x, float), np.asarray(y, float), extrapolate=False)
 
 
 def _table(cal: Calibration) -> tuple[np.ndarray, np.ndarray]:

@@ -229,3 +229,14 @@ def test_the_command_leaves_with_its_whole_output_and_exit_code():
     assert all(code in listing.stdout for code in ALL)
     usage = subprocess.run(run + ["no-such-verb"], cwd=ROOT, env=env, capture_output=True, text=True, timeout=120)
     assert usage.returncode == 2 and "invalid choice" in usage.stderr
+
+
+def test_check_and_build_do_not_load_scipy_interpolate(tmp_path):
+    # the calibration tables and ramp shape tables use seqgen.interp's numpy cubic; scipy.interpolate alone
+    # costs more start-up time than a whole check
+    res = _after_cli("check", "sequences/na23_thermometry.yaml")
+    assert res["code"] == 0 and "0 error(s)" in res["out"]
+    assert "scipy.interpolate" not in res["loaded"]
+    res = _after_cli("build", "sequences/na23_thermometry.yaml", "-o", str(tmp_path / "build"))
+    assert res["code"] == 0 and (tmp_path / "build" / "manifest.json").is_file()
+    assert "scipy.interpolate" not in res["loaded"]

@@ -12,20 +12,19 @@ Shapes (all dimensionless; T = ramp duration in s, tau = time constant in s):
                     both ends; the polynomial of Phys. Rev. Lett. 104, 063002 (2010))
 - ``table``         user points (s_i, f_i), s from 0 to 1, joined by monotone
                     piecewise-cubic interpolation, PCHIP (monotonicity
-                    conditions: SIAM J. Numer. Anal. 17, 238 (1980); scipy's
-                    slope rule: SIAM J. Sci. Stat. Comput. 5, 300 (1984)),
+                    conditions: SIAM J. Numer. Anal. 17, 238 (1980); the
+                    slope rule: SIAM J. Sci. Stat. Comput. 5, 300 (1984);
+                    seqgen.interp, equal to scipy's PchipInterpolator),
                     which never overshoots the data.
 """
 
 from __future__ import annotations
 
 from functools import lru_cache
-from typing import TYPE_CHECKING
 
 import numpy as np
 
-if TYPE_CHECKING:
-    from scipy.interpolate import PchipInterpolator
+from ..interp import Pchip, pchip
 
 SHAPES = ("linear", "exponential", "smooth", "minimum_jerk", "table")
 
@@ -57,7 +56,7 @@ def _check_duration(duration_s: float) -> float:
 
 
 @lru_cache(maxsize=256)
-def _table_interpolator(table: tuple[tuple[float, float], ...]) -> PchipInterpolator:
+def _table_interpolator(table: tuple[tuple[float, float], ...]) -> Pchip:
     """Validated PCHIP interpolator for a shape table (cached: tables are tuples)."""
     try:
         pts = np.asarray(table, dtype=float)
@@ -84,9 +83,7 @@ def _table_interpolator(table: tuple[tuple[float, float], ...]) -> PchipInterpol
     # its endpoints and the range check on the endpoints stays valid
     if np.any(f < 0) or np.any(f > 1):
         raise ValueError("shape table f values must lie in [0, 1] (the ramp may not overshoot its endpoints)")
-    from scipy.interpolate import PchipInterpolator  # here: only shape tables need it, and it loads slowly
-
-    return PchipInterpolator(s, f, extrapolate=False)
+    return pchip(s, f, extrapolate=False)
 
 
 def _progress(s) -> np.ndarray:
