@@ -201,19 +201,16 @@ def _trap_before_release(shot, sp, rel):
     magnetic hold, SizeUnknown or None) of the trap the release opens; omegas and widths along the axes."""
     from ..physics.kinematics import linear_trap_rms_widths
     from ..physics.magnetic_trap import linear_trap_cloud
-    from ..physics.optical import find_trap_minimum
 
     if shot.sample.trap_frequencies_hz:  # stated along the rig's x, y, z
         return 2 * np.pi * np.asarray(shot.sample.trap_frequencies_hz, dtype=float), None, np.eye(3), TRAP_SAMPLE, None, None
     beams = gaussian_beams(shot, [trap_before(shot, rel.t0)])[0]
     if beams:
-        omegas = held(sp, tuple(beams)).omegas
+        trap = held(sp, tuple(beams))
+        omegas = trap.omegas
         if omegas is None or not np.all(np.isfinite(omegas)):
             return None, None, None, None, None, SizeUnknown(TRAP_EMPTY)
-        try:  # the principal axes of the same minimum (held keeps the ascending frequencies alone)
-            axes = find_trap_minimum(sp, tuple(beams)).axes
-        except (ValueError, RuntimeError, np.linalg.LinAlgError):
-            axes = np.eye(3)
+        axes = trap.axes if trap.axes is not None else np.eye(3)  # the principal axes of the same minimum
         return omegas, None, axes, TRAP_OPTICAL, None, None
     hold = _magnetic_hold_before(shot, rel.t0)
     if hold is None:

@@ -51,12 +51,13 @@ class HeldTrap:
     """Depth with gravity (J, 0 when nothing is held: the lowest escape route in 3-D, see
     seqgen.physics.optical.trap_escape), trap frequencies (rad/s, read-only, or None), recoil heating rate at the
     minimum (K/s, 0 when nothing is held) and the way out: unit vector from the minimum towards the lowest
-    barrier (read-only, or None)."""
+    barrier (read-only, or None); the principal axes of the frequencies (columns, read-only, or None)."""
 
     depth: float
     omegas: np.ndarray | None
     heating: float = 0.0
     escape: np.ndarray | None = None
+    axes: np.ndarray | None = None
 
 
 @functools.lru_cache(maxsize=4096)
@@ -68,31 +69,33 @@ def held(sp, beams: tuple) -> HeldTrap:
     inputs = stored.exact((sp, beams))
     key = None if inputs is None else f"held|{stored.code_stamp()}|{inputs}"
     kept = None if key is None else stored.read("held-traps", key)  # an earlier run's (same code and inputs)
-    if not (isinstance(kept, list) and len(kept) == 4):
+    if not (isinstance(kept, list) and len(kept) == 5):
         kept = _minimise(sp, beams)
         if key is not None:
             stored.write("held-traps", key, kept)
-    depth, omegas, heating, escape = kept
+    depth, omegas, heating, escape, axes = kept
     if omegas is None:
         return HeldTrap(depth, None)
-    omegas, escape = np.array(omegas, dtype=float), np.array(escape, dtype=float)
-    for a in (omegas, escape):
+    omegas, escape, axes = (np.array(a, dtype=float) for a in (omegas, escape, axes))
+    for a in (omegas, escape, axes):
         a.setflags(write=False)  # shared by every shot that meets these beams
-    return HeldTrap(depth, omegas, heating, escape)
+    return HeldTrap(depth, omegas, heating, escape, axes)
 
 
 def _minimise(sp, beams: tuple) -> list:
-    """[depth, omegas or None, heating, escape or None] of one set of beams, as plain floats (JSON)."""
+    """[depth, omegas or None, heating, escape or None, axes or None] of one set of beams, as plain floats
+    (JSON)."""
     from ..physics.optical import held_trap_escape
 
     try:
         h = held_trap_escape(sp, beams)
     except (ValueError, RuntimeError, np.linalg.LinAlgError):
-        return [0.0, None, 0.0, None]
+        return [0.0, None, 0.0, None, None]
     if h.omegas_rad_s is None:
-        return [float(h.depth_j), None, 0.0, None]
+        return [float(h.depth_j), None, 0.0, None, None]
     return [float(h.depth_j), [float(w) for w in np.asarray(h.omegas_rad_s, dtype=float)], float(h.heating_k_s),
-            [float(e) for e in np.asarray(h.escape, dtype=float)]]
+            [float(e) for e in np.asarray(h.escape, dtype=float)],
+            [[float(x) for x in row] for row in np.asarray(h.axes, dtype=float)]]
 
 
 def trap_stage(shot, t0, t1, n=N_SAMPLES, heating=False, extra=()):
