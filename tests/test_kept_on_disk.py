@@ -140,3 +140,22 @@ print(json.dumps({{"code": code}}))""", cache)
     assert res["code"] == 0
     after = set((cache / "seqgen" / "ramps").iterdir())
     assert before < after  # the changed ramp stored beside the old one, not read in its place
+
+
+_CHECK_LOADS = """
+import contextlib, io, json, sys
+from seqgen.cli import main
+out = io.StringIO()
+with contextlib.redirect_stdout(out):
+    code = main(["check", "--json", "sequences/na23_thermometry.yaml"])
+heavy = ("pint", "scipy.optimize", "scipy.linalg", "scipy.interpolate", "dask")
+print(json.dumps({"code": code, "report": json.loads(out.getvalue()), "loaded": [m for m in heavy if m in sys.modules]}))"""
+
+
+def test_a_second_check_reads_what_the_first_computed(tmp_path):
+    first = _fresh(_CHECK_LOADS, tmp_path)
+    second = _fresh(_CHECK_LOADS, tmp_path)
+    assert first["code"] == second["code"] == 0
+    assert {"pint", "scipy.optimize"} <= set(first["loaded"])  # units parsed and traps minimised
+    assert second["loaded"] == []  # every unit, trap and long ramp read from the cache folder
+    assert first["report"] == second["report"]
