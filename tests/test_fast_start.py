@@ -24,9 +24,9 @@ def _fresh(code: str, **env) -> dict:
     return json.loads(done.stdout.splitlines()[-1])
 
 
-def _after_cli(*argv: str) -> dict:
-    """Run `seqgen ARGV` through the command line's main in a fresh process: its exit code, what it printed and
-    which of the heavy libraries were loaded at the end."""
+def _after_cli(*argv: str, **env) -> dict:
+    """Run `seqgen ARGV` through the command line's main in a fresh process (with `env` added to the
+    environment): its exit code, what it printed and which of the heavy libraries were loaded at the end."""
     return _fresh(f"""
 import contextlib, io, json, sys
 from seqgen.cli import main
@@ -34,7 +34,7 @@ out = io.StringIO()
 with contextlib.redirect_stdout(out):
     code = main({list(argv)!r})
 print(json.dumps({{"code": code, "out": out.getvalue(),
-                  "loaded": [m for m in {HEAVY!r} if m in sys.modules]}}))""")
+                  "loaded": [m for m in {HEAVY!r} if m in sys.modules]}}))""", **env)
 
 
 def test_explain_loads_only_the_code_catalogue():
@@ -195,10 +195,12 @@ def test_trap_minimisations_read_from_disk_give_the_same_findings(tmp_path):
 
 def test_atom_data_checked_once_per_content(tmp_path):
     first = _fresh(_SPECIES, XDG_CACHE_HOME=str(tmp_path))
+    folder = tmp_path / "seqgen" / "checked-data"
+    stamps = {p: p.stat().st_mtime_ns for p in folder.glob("*.json")}
     second = _fresh(_SPECIES, XDG_CACHE_HOME=str(tmp_path))
-    assert first["jsonschema"] and not second["jsonschema"]  # the schema walk (and its library) skipped
+    assert stamps and {p: p.stat().st_mtime_ns for p in folder.glob("*.json")} == stamps  # read, not checked again
+    assert not first["jsonschema"] and not second["jsonschema"]  # right data: checked without the library
     assert first["repr"] == second["repr"]
-    assert list((tmp_path / "seqgen" / "checked-data").glob("*.json"))
 
 
 def test_a_cache_folder_keeps_its_newest_files_only(tmp_path):
@@ -240,3 +242,21 @@ def test_check_and_build_do_not_load_scipy_interpolate(tmp_path):
     res = _after_cli("build", "sequences/na23_thermometry.yaml", "-o", str(tmp_path / "build"))
     assert res["code"] == 0 and (tmp_path / "build" / "manifest.json").is_file()
     assert "scipy.interpolate" not in res["loaded"]
+
+
+def test_check_of_a_valid_file_does_not_load_jsonschema(tmp_path):
+    # the compiled schema check says "valid" for the demo, its rig and (nothing stored yet) the atom data
+    for _ in range(2):  # the atom data checked, then their stored answer read
+        res = _after_cli("check", "sequences/na23_thermometry.yaml", XDG_CACHE_HOME=str(tmp_path))
+        assert res["code"] == 0 and "0 error(s)" in res["out"]
+        assert "jsonschema" not in res["loaded"]
+
+
+def test_a_schema_finding_is_still_worded_by_jsonschema():
+    # the fault file's header names its finding; jsonschema walks the invalid file for the words
+    path = "sequences/faults/unknown_key.yaml"
+    code, line = (ROOT / path).read_text(encoding="utf-8").splitlines()[0].split("expect:")[1].split("@")
+    res = _after_cli("check", path)
+    assert res["code"] == 1 and "jsonschema" in res["loaded"]
+    assert f"{path}:{int(line)}:1: error: {code.strip()}: unknown key 'blcoks' in top level" in res["out"]
+    assert "did you mean 'blocks'?" in res["out"]  # the schema's top-level key

@@ -110,7 +110,7 @@ def load_schema() -> dict:
 
 @lru_cache(maxsize=1)
 def _raw_data() -> dict:
-    from . import stored
+    from . import schemacheck, stored
 
     text = DATA_FILE.read_text(encoding="utf-8")
     # libyaml's parser when present (10x faster; the same safe constructor, so the same data)
@@ -119,13 +119,15 @@ def _raw_data() -> dict:
     key = "atoms-valid|" + hashlib.sha256(text.encode() + b"\0" + SCHEMA_FILE.read_bytes()).hexdigest()
     if stored.read("checked-data", key) is True:
         return data
-    import jsonschema  # here: loaded with the data, not by every module that names a species
+    fast = schemacheck.compile_schema(load_schema())
+    if fast is None or not fast.accepts(data):
+        import jsonschema  # here: only to word what is wrong (or to decide, for a schema not compiled)
 
-    validator = jsonschema.Draft202012Validator(load_schema())
-    errors = sorted(validator.iter_errors(data), key=lambda e: list(map(str, e.absolute_path)))
-    if errors:
-        where = "; ".join(f"{'/'.join(map(str, e.absolute_path)) or '<root>'}: {e.message}" for e in errors[:5])
-        raise ValueError(f"{DATA_FILE.name} does not match {SCHEMA_FILE.name}: {where}")
+        validator = jsonschema.Draft202012Validator(load_schema())
+        errors = sorted(validator.iter_errors(data), key=lambda e: list(map(str, e.absolute_path)))
+        if errors:
+            where = "; ".join(f"{'/'.join(map(str, e.absolute_path)) or '<root>'}: {e.message}" for e in errors[:5])
+            raise ValueError(f"{DATA_FILE.name} does not match {SCHEMA_FILE.name}: {where}")
     stored.write("checked-data", key, True)
     return data
 

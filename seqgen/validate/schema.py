@@ -5,10 +5,12 @@ offending key or value, with a "did you mean" for misspelt keys. Validators are
 built once per schema and cached.
 
 A valid document (the usual case) is recognised by a compiled yes/no check
-(`fast.py`) that gives the same answer as jsonschema's `is_valid`, many times
-faster. Only an invalid document is walked by jsonschema's `iter_errors`, so
-every finding comes from jsonschema's own errors; during that walk each `$ref`
-whose target the compiled check accepts is skipped, since it can yield no error.
+(`seqgen.physics.schemacheck`) that gives the same answer as jsonschema's
+`is_valid` without importing jsonschema. Only an invalid document (or one
+against a schema the check does not compile) is walked by jsonschema's
+`iter_errors`, so every finding comes from jsonschema's own errors; during that
+walk each `$ref` whose target the compiled check accepts is skipped, since it
+can yield no error.
 """
 
 from __future__ import annotations
@@ -17,13 +19,15 @@ import difflib
 import json
 from functools import lru_cache
 from pathlib import Path
-
-import jsonschema
+from typing import TYPE_CHECKING
 
 from ..findings import Finding, make
 from ..load.yamlsrc import Document
-from .fast import FastSchema, compile_schema
+from ..physics.schemacheck import FastSchema, compile_schema, holds
 from ..codes import BAD_VALUE, MISSING_KEY, UNKNOWN_KEY, WRONG_TYPE
+
+if TYPE_CHECKING:
+    import jsonschema
 
 
 MAX_REPORTED = 25
@@ -39,39 +43,42 @@ def schema_dir() -> Path:
 
 
 @lru_cache(maxsize=None)
-def _validator(schema_name: str) -> jsonschema.Draft202012Validator:
-    schema = json.loads((schema_dir() / schema_name).read_text(encoding="utf-8"))
-    return jsonschema.Draft202012Validator(schema)
-
-
 def load_schema(schema_name: str) -> dict:
-    return _validator(schema_name).schema
+    return json.loads((schema_dir() / schema_name).read_text(encoding="utf-8"))
 
 
 @lru_cache(maxsize=None)
-def _fast(schema_name: str) -> tuple[FastSchema | None, jsonschema.Draft202012Validator]:
-    """(compiled check or None, the validator that walks an invalid document for its errors)."""
-    plain = _validator(schema_name)
-    fast = compile_schema(plain)
+def _fast(schema_name: str) -> FastSchema | None:
+    """The compiled check of a schema, or None when it does not compile (then jsonschema decides)."""
+    return compile_schema(load_schema(schema_name))
+
+
+@lru_cache(maxsize=None)
+def _walker(schema_name: str) -> jsonschema.Draft202012Validator:
+    """The validator that walks an invalid document for its errors; jsonschema is imported only here."""
+    import jsonschema
+
+    plain = jsonschema.Draft202012Validator(load_schema(schema_name))
+    fast = _fast(schema_name)
     if fast is None:
-        return None, plain
+        return plain
     base_ref = plain.VALIDATORS["$ref"]
 
     def ref(validator, ref, instance, schema):
         accept = fast.ref(ref)
-        if accept is not None and accept(instance):
+        if accept is not None and holds(accept, instance):
             return  # the target accepts the instance: jsonschema would find no error in it
         yield from base_ref(validator, ref, instance, schema)
 
     walker = jsonschema.validators.extend(jsonschema.Draft202012Validator, {"$ref": ref})
-    return fast, walker(plain.schema)
+    return walker(plain.schema)
 
 
 def validate_document(doc: Document, schema_name: str) -> list[Finding]:
-    fast, validator = _fast(schema_name)
-    if fast is not None and fast.is_valid(doc.data):
+    fast = _fast(schema_name)
+    if fast is not None and fast.accepts(doc.data):
         return []
-    return findings_from_errors(validator.iter_errors(doc.data), doc)
+    return findings_from_errors(_walker(schema_name).iter_errors(doc.data), doc)
 
 
 def _unit_left_to_resolve(err) -> bool:
@@ -155,7 +162,9 @@ def _to_findings(err: jsonschema.ValidationError, doc: Document, enums: dict | N
         return [make(WRONG_TYPE, f"{where} must be a quantity with its unit, not {got}", doc.pos(path),
                      hint="give a single quantity such as '2 ms'")]
     if v in ("oneOf", "anyOf"):
-        best = jsonschema.exceptions.best_match(err.context) if err.context else None
+        from jsonschema.exceptions import best_match  # loaded already: err is one of its errors
+
+        best = best_match(err.context) if err.context else None
         if best is not None and best.validator not in ("oneOf", "anyOf"):
             return _to_findings(best, doc, enums)
     if v == "enum":
