@@ -77,7 +77,8 @@ def plot_images(args, *, pick, refused, report, writing, cannot_run) -> int:
                            "saturation": img.saturation, "saturation_at_atoms": img.saturation_at_atoms,
                            "atoms_from_od": img.atoms_from_od, "pixel_m": img.pixel,
                            "components": [{"state": list(c.state) if c.state else None, "atoms": c.atoms,
-                                           "imaged": c.imaged} for c in img.components]}
+                                           "imaged": c.imaged, "split": [list(p) for p in c.split]}
+                                          for c in img.components]}
                           for label, imgs in rows for img in imgs]}
         print(json.dumps(doc, indent=2, sort_keys=True))
         return code

@@ -230,3 +230,18 @@ def test_override_fix_takes_the_unit_the_file_writes(project):
     # the demo writes tof in ms and evap_time (its use entry) in s
     assert proposed(errors(preflight(THERMO, overrides={"tof": "twelve"}).findings)[0].hint).endswith(" ms")
     assert proposed(errors(preflight(THERMO, overrides={"evap_time": "2"}).findings)[0].hint) == "2 s"
+
+
+# ----------------------------------------------------------------------------- 5. a barrier's reflected part
+
+
+def test_reflected_part_out_of_view_fix_images_it_earlier(project):
+    # only the part the sheet reflects leaves the view; the fix names the image's `at:` from its block's start
+    path = "sequences/faults/barrier_reflected_out_of_view.yaml"
+    found = [f for f in errors(check(path)) if f.code == "physics.cloud-outside-view"]
+    assert len(found) == 1 and "reflected by barrier 'scatter'" in found[0].message
+    assert "transmitted" not in found[0].message
+    f, value, after = fix_and_recheck(path, "physics.cloud-outside-view", line=found[0].line)
+    assert proposed(f.hint).startswith("at: ") and value.endswith(" ms")
+    assert float(value.split()[0]) < 16  # earlier than the written 16 ms
+    assert not [g for g in after if g.severity == "warning" and g.code.startswith("physics.")]

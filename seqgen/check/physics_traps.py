@@ -16,6 +16,7 @@ from ..predict.cloud import (aperture_reach, focus_offset, focus_reach, image_pr
 from ..predict.species import gaussian_beams, sample_state, scattering_length, species, trap_beams
 from ..predict.text import size_text, who, why_there
 from ..predict.played import off_floor, played
+from ..predict.split import REFLECTED, sheet_hits
 from ..predict.traps import held, trap_beam_shifts, trap_writes, write_prediction
 from ..textfmt import fmt_length, fmt_state, fmt_temperature, fmt_time, fmt_vec, outward
 from .rules import rule
@@ -181,10 +182,11 @@ def shallow_trap(shot):
                        data=data or None)
 
 
-def _worst(pred, metric):
-    """(component, case, value) with the largest metric(pred, comp)[case], or None."""
+def _worst(pred, metric, comps=None):
+    """(component, case, value) with the largest metric(pred, comp)[case] over `comps` (default: every
+    component), or None."""
     best = None
-    for comp in pred.components:
+    for comp in pred.components if comps is None else comps:
         vals = metric(pred, comp)
         if vals is None or not len(vals):
             continue
@@ -206,28 +208,84 @@ def _imaging_predictions(shot, needs: str):
 
 
 
+def _reflected(comp) -> bool:
+    return any(side == REFLECTED for side, _ in comp.split)
+
+
 @rule(CLOUD_OUTSIDE_VIEW, stage="physics")
 def cloud_outside_view(shot):
-    # the cloud's edge per image axis: its centre plus its half-extent along that axis (per-axis sizes)
+    # the cloud's edge per image axis: its centre plus its half-extent along that axis (per-axis sizes); a part a
+    # barrier reflected is judged on its own, with its own message and fix
     for img, setup, pred in _imaging_predictions(shot, "field_of_view_m"):
         half = setup.field_of_view_m / 2
-        worst = _worst(pred, view_edge_reach)
-        if worst is None or worst[2] <= half:
-            continue
-        comp, case, reach = worst
-        centre = float(view_reach(pred, comp)[case])
         out = sum(1 for c in pred.components if np.any(view_edge_reach(pred, c) > half))
         others = f" ({out} of {len(pred.components)} components leave it)" if len(pred.components) > 1 else ""
-        h, v = comp.plane[case]
-        yield make(CLOUD_OUTSIDE_VIEW, f"after {fmt_time(pred.tof, unit='ms')} of flight {who(comp)} is centred "
-                   f"{fmt_length(centre, 3, unit='mm')} from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "
-                   f"{v * 1e3 + 0.0:+.3g} mm up; {why_there(pred, comp, case)}), {size_text(pred)}; its edge reaches "
-                   f"{fmt_length(reach, 3, unit='mm')} and the field of view {fmt_length(half, 3, unit='mm')} from its centre{others}",
-                   img.pos, block=img.block, time_s=img.t0,
-                   hint=("shorten the time of flight, weaken the push or separation, or recentre the camera (the imaging "
-                         "setup's center)" if centre > half - (reach - centre) / 2 else
-                         "the cloud itself is too large for the view: shorten the time of flight or image a colder cloud"),
-                   data={"reach_m": reach, "half_view_m": half})
+        for group in ([c for c in pred.components if not _reflected(c)], [c for c in pred.components if _reflected(c)]):
+            worst = _worst(pred, view_edge_reach, group)
+            if worst is None or worst[2] <= half:
+                continue
+            comp, case, reach = worst
+            centre = float(view_reach(pred, comp)[case])
+            h, v = comp.plane[case]
+            data = {"reach_m": reach, "half_view_m": half}
+            if _reflected(comp):
+                at = _earlier_image(shot, img, setup, pred, half)
+                block = comp.split[-1][1]
+                data.update(split=[list(p) for p in comp.split], at_s=at)
+                hint = (f"write 'at: {fmt_time(at, 3, unit='ms')}' in this action (from the start of block "
+                        f"'{img.block}'): imaged {fmt_time(img.t0 - shot.block(img.block).start_s - at, 3, unit='ms')} "
+                        f"earlier, every part is in view; or recentre the camera (the imaging setup's center)"
+                        if at is not None else
+                        f"image earlier (the part barrier '{block}' reflects flies back from the sheet), recentre the "
+                        "camera (the imaging setup's center), or raise the sheet's transmission")
+            else:
+                hint = ("shorten the time of flight, weaken the push or separation, or recentre the camera (the imaging "
+                        "setup's center)" if centre > half - (reach - centre) / 2 else
+                        "the cloud itself is too large for the view: shorten the time of flight or image a colder cloud")
+            yield make(CLOUD_OUTSIDE_VIEW, f"after {fmt_time(pred.tof, unit='ms')} of flight {who(comp)} is centred "
+                       f"{fmt_length(centre, 3, unit='mm')} from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "
+                       f"{v * 1e3 + 0.0:+.3g} mm up; {why_there(pred, comp, case)}), {size_text(pred)}; its edge reaches "
+                       f"{fmt_length(reach, 3, unit='mm')} and the field of view {fmt_length(half, 3, unit='mm')} from its centre{others}",
+                       img.pos, block=img.block, time_s=img.t0, hint=hint, data=data)
+
+
+EARLIER_STEPS = 2000  # image times tried between the latest allowed one and the image's own
+
+
+def _earlier_image(shot, img, setup, pred, half):
+    """The image action's `at:` (s from its block's start, 3 digits, rounded down) at which every part's edge
+    is within the view, or None. Each centre is followed back from the image at its velocity under gravity
+    alone (exact after the last push, separation, barrier split and the release); the sizes are kept at the
+    image's, larger than earlier ones (an expanding cloud): the safe side. Not earlier than the block's start."""
+    from ..physics.kinematics import image_plane_basis
+    from ..predict.cloud import UP
+    from ..predict.species import G_N
+
+    block = shot.block(img.block)
+    beam = shot.rig.beams.get(setup.probe_beam) if setup.probe_beam else None
+    if block is None or beam is None or any(c.plane_velocity is None for c in pred.components):
+        return None
+    e_h, e_v, _ = image_plane_basis(beam.direction, UP)
+    g = -G_N * np.array([UP @ e_h, UP @ e_v])
+    t_min = max([pred.release.t0, block.start_s] + [a.t1 for a in shot.actions("push", "separate") if a.t1 <= img.t0]
+                + [h.time for h in sheet_hits(shot, img.t0)])
+    ext_h, ext_v, _, ext_plane = pred.extents
+
+    def fits(delta):
+        for c in pred.components:
+            p = c.plane - c.plane_velocity * delta + 0.5 * g * delta ** 2
+            r = (np.hypot(p[:, 0], p[:, 1]) + ext_plane if pred.top_down
+                 else np.maximum(np.abs(p[:, 0]) + ext_h, np.abs(p[:, 1]) + ext_v))
+            if np.any(r > half):
+                return False
+        return True
+
+    offset = img.t0 - block.start_s
+    for delta in np.linspace(0.0, img.t0 - t_min, EARLIER_STEPS + 1)[1:]:
+        at = outward(offset - float(delta), 3, up=False)
+        if at >= t_min - block.start_s and at > 0 and fits(offset - at):
+            return at
+    return None
 
 
 @rule(CLOUD_OUT_OF_FOCUS, stage="physics")

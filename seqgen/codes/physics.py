@@ -172,7 +172,9 @@ CLOUD_OUTSIDE_VIEW = Code(
             " Phys. Rev. Lett. 77, 5315 (1996), Phys. Rev. A 54, R1753 (1996); ballistic thermal expansion"
             " (textbook); Stern-Gerlach and push "
             "displacements with moments from the Breit-Rabi formula, Phys. Rev. 38, 2082 (1931), force"
-            " = moment x grad|B|, uniform acceleration then free flight (textbook)"),
+            " = moment x grad|B|, uniform acceleration then free flight (textbook); the reflected part of a"
+            " barrier's split, momentum -hbar k along the normal (Quantum Mechanics: Non-Relativistic Theory,"
+            " 3rd ed., Pergamon (1977), section 25)"),
     doc="""
     At the image time a component of the cloud lies partly or wholly
     outside the imaging setup's field of view. Each internal-state
@@ -189,6 +191,10 @@ CLOUD_OUTSIDE_VIEW = Code(
     image plane (the plane perpendicular to the probe beam; Thomas-Fermi
     radii, or 2 rms widths, projected on that axis) must lie within half
     the field of view of the setup's `center`.
+    A barrier sheet splits the component it meets into a transmitted part
+    and a reflected part flying back from the sheet (specular reflection
+    at the centre's arrival); each part is judged, and a reflected part
+    out of view has its own finding, whose fix names an earlier image.
     Without a size prediction the centre alone is checked. Shorten the
     time of flight, weaken the separation, or recentre the camera.""")
 

@@ -23,6 +23,7 @@ from .magnetic import HoldPrediction, hold_analysis
 from .played import INTENDED, PLAYED, Track, compiled_shot, played, played_source
 from .pushes import Components, PushPrediction, components_at, push_analysis
 from .report import PhysicsRow, report_rows
+from .split import REFLECTED, TRANSMITTED, SheetHit, sheet_hits, split_components
 from .species import LevelProblem, gaussian_beams, species
 from .states import (BarrierDrive, Interferometer, Populations, PulsePrediction, SweepPrediction,
                      barrier_drive_analysis, interferometer_analysis, interferometers, populated_states,
@@ -39,6 +40,7 @@ __all__ = [
     "interferometer_analysis", "interferometers", "per_shot_cache", "played", "played_source", "populated_states", "populations",
     "probe_analysis", "pulse_analysis", "push_analysis", "report_rows", "separation_analysis", "species",
     "state_fractions", "sweep_analysis", "trap_stage", "trap_stage_prediction", "trap_writes", "write_prediction", "TrapWrite",
+    "REFLECTED", "TRANSMITTED", "SheetHit", "sheet_hits", "split_components",
 ]
 
 

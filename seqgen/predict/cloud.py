@@ -21,9 +21,10 @@ from scipy import constants as sc
 from ..values import value_at
 from .cache import per_shot_cache
 from .magnetic import hold_analysis
-from .pushes import Components, components_at, played_gradient
+from .pushes import Components, played_gradient
 from .species import (G_N, MU_B, bias, gaussian_beams, sample_state, scattering_length, species, trap_beams,
                       trap_before, unit)
+from .split import split_components
 from .states import populated_states, state_fractions
 from .traps import held, trap_stage
 
@@ -109,7 +110,9 @@ class ImageComponent:
     offset along the line of sight from the focal plane (None without a line of sight), from_release
     (n_cases,) in-plane distance from the release point, parts (see pushes.Component), velocities
     (n_cases, 3) m/s incl. gravity, cloud (its CloudAtImage: size per axis; every component of one release
-    expands alike, None without a size)."""
+    expands alike, None without a size), split ((side, barrier block), ...: the sheets that split it, see
+    seqgen.predict.split), plane_velocity (n_cases, 2) m/s along the image's horizontal and vertical (None
+    without a line of sight)."""
 
     state: tuple | None
     fraction: float
@@ -120,6 +123,8 @@ class ImageComponent:
     parts: tuple
     velocities: np.ndarray | None = None
     cloud: CloudAtImage | None = None
+    split: tuple = ()
+    plane_velocity: np.ndarray | None = None
 
 
 # why an image has no cloud size (SizeUnknown.reason)
@@ -397,7 +402,7 @@ def image_prediction(shot, img) -> ImagePrediction | None:
         except ValueError:
             basis = None
     centre = np.asarray(setup.center_m if setup is not None else (0.0, 0.0, 0.0), dtype=float)
-    motion = components_at(shot, img) or Components((), (), (), None)
+    motion = split_components(shot, img) or Components((), (), (), None)
     comps = []
     for comp in motion.components:
         pos = comp.displacements + gravity  # (n_cases, 3)
@@ -412,8 +417,10 @@ def image_prediction(shot, img) -> ImagePrediction | None:
             along = None
             rel_plane = np.stack([np.hypot(pos[:, 0], pos[:, 1]), pos[:, 2]], axis=-1)
         vel = (np.zeros_like(pos) if comp.velocities is None else comp.velocities) + fall_speed
+        plane_vel = np.stack([vel @ basis[0], vel @ basis[1]], axis=-1) if basis is not None else None
         comps.append(ImageComponent(comp.state, comp.fraction, pos, plane, along,
-                                    np.hypot(rel_plane[:, 0], rel_plane[:, 1]), comp.parts, vel, cloud))
+                                    np.hypot(rel_plane[:, 0], rel_plane[:, 1]), comp.parts, vel, cloud, comp.split,
+                                    plane_vel))
     return ImagePrediction(setup, rel, tof, cloud, why, tuple(comps), motion.unknown, motion.signs, motion.empty, los,
                            cloud.edge if cloud is not None else 0.0,
                            basis is not None and abs(float(np.dot(basis[2], UP))) > 1 - 1e-6,

@@ -1,7 +1,8 @@
 """Predicted absorption images: for every `image`, the optical depth the camera records.
 
-From the forward model's clouds at the image (`cloud.image_prediction`: each populated internal-state component
-with its centre and its Thomas-Fermi radii or rms widths per principal axis) and the probe (`imaging`):
+From the forward model's clouds at the image (`cloud.image_prediction`: each populated internal-state component,
+or its transmitted and reflected parts where a barrier sheet split it, with its centre and its Thomas-Fermi radii
+or rms widths per principal axis) and the probe (`imaging`):
 1. the column density of every component the probe images along the line of sight (analytic projections of the
    Gaussian and of the Thomas-Fermi profile, seqgen.physics.absorption), on a grid finer than the camera's
    pixels over the region that holds atoms;
@@ -55,7 +56,8 @@ class ImagedComponent:
     """One internal-state component at an image: state (F, mF) or None, atoms, imaged (the probe addresses its
     level), centre (m, image horizontal and vertical from the setup's centre), shadow (2x2, m^2: the projected
     covariance of a thermal cloud, or the projected Thomas-Fermi ellipse), thomas_fermi, atoms_in_frame (the
-    model's atoms on the frame's pixels, imaged components only)."""
+    model's atoms on the frame's pixels, imaged components only), split ((side, barrier block), ...: the part of
+    a component a barrier sheet split off, seqgen.predict.split; empty when none did)."""
 
     state: tuple | None
     atoms: float
@@ -64,6 +66,7 @@ class ImagedComponent:
     shadow: np.ndarray
     thomas_fermi: bool
     atoms_in_frame: float = 0.0
+    split: tuple = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -182,7 +185,8 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
             flags.append(SIGN_CASES)
         imaged = setup.imaged_F is None or (comp.state is not None and comp.state[0] == setup.imaged_F)
         comps.append(ImagedComponent(comp.state, comp.fraction * shot.sample.atoms, imaged,
-                                     (float(comp.plane[0][0]), float(comp.plane[0][1])), shadow, thomas_fermi))
+                                     (float(comp.plane[0][0]), float(comp.plane[0][1])), shadow, thomas_fermi,
+                                     split=comp.split))
     if any(not c.imaged for c in comps):
         flags.append(NOT_IMAGED)
     lit = [c for c in comps if c.imaged]
@@ -261,7 +265,7 @@ def predicted_image(shot, img, seed: int | None = None) -> PredictedImage:
         od[j0:j1, i0:i1] = np.log(probe_pix / kept)
     if (lit and sum(atoms_in) < 0.99 * sum(c.atoms for c in lit)) or (lit and not (i1 > i0 and j1 > j0)):
         flags.append(OUTSIDE_FRAME)
-    comps = [ImagedComponent(c.state, c.atoms, c.imaged, c.centre, c.shadow, c.thomas_fermi, n)
+    comps = [ImagedComponent(c.state, c.atoms, c.imaged, c.centre, c.shadow, c.thomas_fermi, n, c.split)
              for c, n in zip(comps, atoms_in)]
 
     # atoms recovered from the noise-free map: saturation-corrected OD x pixel area / sigma0

@@ -11,7 +11,8 @@ import math
 from dataclasses import dataclass
 
 from .cache import per_shot_cache
-from .pushes import components_at, played_power
+from .pushes import played_power
+from .split import split_components
 from .species import species
 from .states import populations
 
@@ -121,7 +122,7 @@ def probe_analysis(shot, act) -> ProbePrediction | None:
 class ImagedLevel:
     """What a state-selective probe (the setup's `imaged_F`) finds at an image: F; levels (the species' ground
     levels); held ((state, fraction), ...): the populated components at the image (the forward model's
-    `components_at`, above the detection floor), most populated first; lit: the fraction of the atoms among
+    `split.split_components`, above the detection floor), most populated first; lit: the fraction of the atoms among
     them in level F; faint ((state, fraction), ...): states of level F below the detection floor; possible: a
     barrier's modulation may have put atoms in level F (its fraction is not followed)."""
 
@@ -141,7 +142,7 @@ def imaged_level(shot, act) -> ImagedLevel | None:
     setup = shot.rig.imaging.get(act.args.get("setup"))
     if sp is None or setup is None or setup.imaged_F is None:
         return None
-    comps = components_at(shot, act)
+    comps = split_components(shot, act)
     if comps is None or not comps.components or any(c.state is None for c in comps.components):
         return None
     held: dict = {}

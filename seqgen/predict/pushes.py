@@ -148,13 +148,16 @@ class Component:
     """The atoms of one state that took one set of displacements: state, fraction of the atoms,
     displacements (n_cases, 3) m from the trap centre (gravity not included), parts ((label, known_sign,
     vector for the + sign, column in `signs` or None), ...), velocities (n_cases, 3) m/s the forces gave
-    (gravity not included; after a force confined by a trap, the kick's speed: an upper bound)."""
+    (gravity not included; after a force confined by a trap, the kick's speed: an upper bound); split
+    ((side, barrier block), ...): the barrier sheets this part met, in time order, side "transmitted" or
+    "reflected" (seqgen.predict.split; empty when no sheet split it)."""
 
     state: tuple | None
     fraction: float
     displacements: np.ndarray
     parts: tuple
     velocities: np.ndarray | None = None
+    split: tuple = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -241,29 +244,26 @@ def _confined(shot, sp, act, t, disp, speed):
     return d * (bound / n) if n > bound else d
 
 
-@per_shot_cache(lambda shot, img: ("state-components", img.index, img.t0))
-def components_at(shot, img) -> Components | None:
-    """Where the atoms of each populated state are at an image, from the pushes and separations before it.
+@dataclass(frozen=True, eq=False)
+class Motion:
+    """Where the forces before t put each path of `populations` at t: cases (n_cases, n_paths, 3) displacements
+    (m, gravity not included), speeds (n_cases, n_paths, 3) velocities (m/s), slots (per path: (label,
+    known_sign, vector for the + sign, column in `signs` or None), ...), unknown (labels of forces of unknown
+    sign), signs (as in Components)."""
 
-    dict(components=[dict(state, fraction, displacements (n_cases, 3) m, velocities (n_cases, 3) m/s,
-    parts=[(label, known_sign, vector for the + sign, column in `signs` or None)])], unknown=[labels of forces whose sign is unknown], signs=(n_cases,
-    n_unknown) array of the signs of each case (None when the cases are the corners of a bounding box),
-    empty=[(state, fraction) of states below the floor]).
-    Displacements are from the atoms' place before the first force (the trap centre, the rig's origin), for
-    every combination of the unknown signs (a coil without `field_grows_along` pushes along its `axis`, either
-    way); gravity is not included. Each force: uniform acceleration moment x |b'| / m (moment -dE/dB of the
-    state the path is in when the force starts, Breit-Rabi at the rig's bias) or the optical push's velocity
-    over its duration, then free flight until the image; when an optical trap still holds the atoms after
-    the force (and the kick's energy is below its depth), the displacement is bounded by an oscillation of
-    amplitude v / omega_min and free flight at v after the release (`_confined`). Either way an upper bound. Paths that end in the same state with the
-    same displacement are merged. None without a species."""
+    cases: np.ndarray
+    speeds: np.ndarray
+    slots: tuple
+    unknown: tuple
+    signs: np.ndarray | None
+
+
+def motion_at(shot, t, paths) -> Motion:
+    """The displacements and velocities at time t of every path ((fraction, changes), ...) for every
+    combination of the unknown signs (see `components_at`)."""
     from itertools import product
 
-    if species(shot) is None:
-        return None
-    pop = populations(shot, img.t0)
-    paths = pop.paths if pop is not None else [(1.0, ((-math.inf, None),))]
-    forces = _force_parts(shot, img.t0, paths)
+    forces = _force_parts(shot, t, paths)
     parts = [(label, known, disp) for label, known, disp, _ in forces]
     base = np.zeros((len(paths), 3))
     base_v = np.zeros((len(paths), 3))
@@ -287,27 +287,62 @@ def components_at(shot, img) -> Components | None:
         corners = np.array(list(product((1.0, -1.0), repeat=3)))
         cases = base[None] + corners[:, None, :] * reach[None]
         speeds = base_v[None] + corners[:, None, :] * np.sum(np.abs(unknown_v), axis=0)[None]
+    slots = []
+    for k in range(len(paths)):
+        row, j = [], 0
+        for label, known, disp in parts:  # which column of `signs` an unknown sign is
+            row.append((label, known, disp[k], None if known else j))
+            j += 0 if known else 1
+        slots.append(tuple(row))
+    return Motion(cases, speeds, tuple(slots), tuple(label for label, _ in unknown), signs)
+
+
+def gather(shot, rows, pop, motion: Motion) -> Components:
+    """Components from rows dict(state, fraction, displacements, velocities, parts, split): rows of one state
+    and one split with the same displacements merged, those below the detection floor listed as empty."""
     comps: list = []
     empty: dict = {}
-    for k, (f, ch) in enumerate(paths):
-        st = state_at(ch, img.t0)
-        d = cases[:, k, :]
+    for r in rows:
         for c in comps:
-            if c["state"] == st and np.allclose(c["displacements"], d, rtol=0, atol=1e-12):
-                c["fraction"] += f
+            if (c["state"] == r["state"] and c["split"] == r["split"]
+                    and np.allclose(c["displacements"], r["displacements"], rtol=0, atol=1e-12)):
+                c["fraction"] += r["fraction"]
                 break
         else:
-            slots, j = [], 0
-            for label, known, disp in parts:  # which column of `signs` an unknown sign is
-                slots.append((label, known, disp[k], None if known else j))
-                j += 0 if known else 1
-            comps.append(dict(state=st, fraction=f, displacements=d, parts=slots, velocities=speeds[:, k, :]))
+            comps.append(dict(r))
     kept = []
     for c in sorted(comps, key=lambda c: -c["fraction"]):
         if pop is None or is_populated(shot, c["fraction"]):
             kept.append(c)
         else:
             empty[c["state"]] = empty.get(c["state"], 0.0) + c["fraction"]
-    kept = tuple(Component(c["state"], c["fraction"], c["displacements"], tuple(c["parts"]), c["velocities"])
-                 for c in kept)
-    return Components(kept, tuple(label for label, _ in unknown), tuple(sorted(empty.items())), signs)
+    kept = tuple(Component(c["state"], c["fraction"], c["displacements"], tuple(c["parts"]), c["velocities"],
+                           tuple(c["split"])) for c in kept)
+    return Components(kept, motion.unknown, tuple(sorted(empty.items())), motion.signs)
+
+
+@per_shot_cache(lambda shot, img: ("state-components", img.index, img.t0))
+def components_at(shot, img) -> Components | None:
+    """Where the atoms of each populated state are at an image, from the pushes and separations before it.
+
+    dict(components=[dict(state, fraction, displacements (n_cases, 3) m, velocities (n_cases, 3) m/s,
+    parts=[(label, known_sign, vector for the + sign, column in `signs` or None)])], unknown=[labels of forces whose sign is unknown], signs=(n_cases,
+    n_unknown) array of the signs of each case (None when the cases are the corners of a bounding box),
+    empty=[(state, fraction) of states below the floor]).
+    Displacements are from the atoms' place before the first force (the trap centre, the rig's origin), for
+    every combination of the unknown signs (a coil without `field_grows_along` pushes along its `axis`, either
+    way); gravity is not included. Each force: uniform acceleration moment x |b'| / m (moment -dE/dB of the
+    state the path is in when the force starts, Breit-Rabi at the rig's bias) or the optical push's velocity
+    over its duration, then free flight until the image; when an optical trap still holds the atoms after
+    the force (and the kick's energy is below its depth), the displacement is bounded by an oscillation of
+    amplitude v / omega_min and free flight at v after the release (`_confined`). Either way an upper bound. Paths that end in the same state with the
+    same displacement are merged. A barrier sheet does not split them here (seqgen.predict.split does). None
+    without a species."""
+    if species(shot) is None:
+        return None
+    pop = populations(shot, img.t0)
+    paths = pop.paths if pop is not None else [(1.0, ((-math.inf, None),))]
+    motion = motion_at(shot, img.t0, paths)
+    rows = [dict(state=state_at(ch, img.t0), fraction=f, displacements=motion.cases[:, k, :], parts=motion.slots[k],
+                 velocities=motion.speeds[:, k, :], split=()) for k, (f, ch) in enumerate(paths)]
+    return gather(shot, rows, pop, motion)

@@ -49,9 +49,18 @@ def barrier_drive_reason(rep) -> str:
 
 # --------------------------------------------------------------------------- the cloud at an image
 
+def split_text(split) -> str:
+    """'reflected by barrier 'scatter'' for a part a barrier sheet split off (seqgen.predict.split), or ''."""
+    words = {"transmitted": "transmitted through", "reflected": "reflected by"}
+    return ", then ".join(f"{words.get(side, side)} barrier '{block}'" for side, block in split)
+
+
 def who(comp) -> str:
     st = comp.state
-    return f"{fmt_state(*st)} ({fmt_pct(comp.fraction)} of the atoms)" if st is not None else "the cloud"
+    part = split_text(getattr(comp, "split", ()))
+    if st is None:
+        return f"the part of the cloud {part} ({fmt_pct(comp.fraction)} of the atoms)" if part else "the cloud"
+    return f"{fmt_state(*st)}{' ' + part if part else ''} ({fmt_pct(comp.fraction)} of the atoms)"
 
 
 def why_there(pred, comp, case) -> str:

@@ -61,6 +61,11 @@ def state_text(state) -> str:
     return f"|{state[0]},{state[1]}>" if state is not None else "atoms"
 
 
+def part_text(c) -> str:
+    """'|1,-1> reflected': the state and, for a part a barrier sheet split off, its side (the last sheet's)."""
+    return state_text(c.state) + (f" {c.split[-1][0]}" if c.split else "")
+
+
 def image_notes(img: "pi.PredictedImage") -> list[str]:
     """What one predicted image assumes and gives, in words."""
     where = f"{img.block or 'image'} at {fmt_when(img.time_s)}" + (f", setup '{img.setup}'" if img.setup else "")
@@ -77,8 +82,8 @@ def image_notes(img: "pi.PredictedImage") -> list[str]:
            f"atoms from the OD (saturation-corrected, noise-free) {img.atoms_from_od:.4g}"
            + (f"; {img.photons:.3g} photo-electrons per pixel from the probe" if img.photons else "")
            + (f"; shot noise seed {img.noise_seed}" if img.noise_seed is not None else "")]
-    comps = "; ".join(f"{state_text(c.state)} {c.atoms:.3g} atoms" + ("" if c.imaged else " (not imaged)")
-                      for c in img.components)
+    comps = "; ".join(f"{part_text(c)}" + (f" (barrier '{c.split[-1][1]}')" if c.split else "")
+                      + f" {c.atoms:.3g} atoms" + ("" if c.imaged else " (not imaged)") for c in img.components)
     out.append(f"  components: {comps}")
     out += [f"  {_FLAGS.get(f, f)}" for f in img.flags]
     return out
@@ -87,8 +92,9 @@ def image_notes(img: "pi.PredictedImage") -> list[str]:
 ASSUMPTIONS = ("Model: column densities of the predicted clouds (Thomas-Fermi or Gaussian), Beer-Lambert absorption "
                "with saturation and detuning (Opt. Lett. 32, 3143 (2007)), a Gaussian point-spread function of rms "
                "0.21 lambda/NA for the Airy pattern, with the recoil blur in quadrature, summed into camera pixels; "
-               "not modelled: defocus, the Doppler shift during the probe, interference fringes, multiple "
-               "scattering, the camera's read noise, a barrier's split of a cloud into transmitted and reflected parts.")
+               "a barrier sheet splits the cloud it meets into transmitted and reflected parts at the centre's "
+               "arrival (specular reflection, both parts keep the cloud's size); not modelled: defocus, the Doppler "
+               "shift during the probe, interference fringes, multiple scattering, the camera's read noise.")
 
 
 MIN_DISPLAY_ASPECT = 0.6  # the drawn window's shorter side, at least this fraction of its longer one
@@ -150,15 +156,17 @@ def _panel(fig, ax, img, title: str) -> None:
     ax.set_ylabel("image vertical (um at the atoms)", fontsize=TICK_PT + 0.5)
     ax.tick_params(labelsize=TICK_PT)
     halo = [patheffects.withStroke(linewidth=2.2, foreground="white")]
-    for c in img.components:
-        x, y = c.centre[0] * 1e6, c.centre[1] * 1e6
-        if not (ext[0] <= x <= ext[1] and ext[2] <= y <= ext[3]):
-            continue
-        words = f"{state_text(c.state)}\n{c.atoms:.2g} atoms" + ("" if c.imaged else "\nnot imaged")
+    shown = [(c, c.centre[0] * 1e6, c.centre[1] * 1e6) for c in img.components]
+    shown = [(c, x, y) for c, x, y in shown if ext[0] <= x <= ext[1] and ext[2] <= y <= ext[3]]
+    for c, x, y in shown:
+        words = f"{part_text(c)}\n{c.atoms:.2g} atoms" + ("" if c.imaged else "\nnot imaged")
         below = y > 0.5 * (ext[2] + ext[3])  # the label goes towards the middle, so it stays in the window
         left = x > 0.5 * (ext[0] + ext[1])
-        ax.annotate(words, (x, y), xytext=(-8 if left else 8, -8 if below else 8), textcoords="offset points",
-                    fontsize=TICK_PT + 0.5, color="#1a1a1a", path_effects=halo, ha="right" if left else "left",
+        # parts side by side (a barrier's transmitted and reflected ones): labels centred on their own cloud
+        beside = any(o is not c and abs(oy - y) < 0.1 * (ext[3] - ext[2]) for o, _, oy in shown)
+        dx, ha = (0, "center") if beside else ((-8, "right") if left else (8, "left"))
+        ax.annotate(words, (x, y), xytext=(dx, -8 if below else 8), textcoords="offset points",
+                    fontsize=TICK_PT + 0.5, color="#1a1a1a", path_effects=halo, ha=ha,
                     va="top" if below else "bottom")
         ax.plot([x], [y], marker="+", color="white" if c.imaged else "#bbbbbb", markersize=7, mew=1.2)
 
@@ -224,7 +232,8 @@ def images_npz(rows) -> bytes:
     (pixel centres, m at the atoms, from the imaging setup's centre); per image `row` (the row label: the shot
     of a scan, or ""), `block`, `setup`, `time_s`, `pixel_m`, `peak_od`, `saturation` (I/I_sat at the beam
     centre), `sigma0_m2`, `atoms_from_od`; `components` (JSON text: per image, each component's state, atoms,
-    imaged, centre_m), `notes` (per image, its notes joined by newlines) and `caution`."""
+    imaged, centre_m, split: [[side, barrier block], ...] for a part a barrier sheet split off), `notes` (per
+    image, its notes joined by newlines) and `caution`."""
     arrays, meta = {}, {k: [] for k in ("row", "block", "setup", "time_s", "pixel_m", "peak_od", "saturation",
                                          "sigma0_m2", "atoms_from_od", "notes")}
     comps = []
@@ -241,7 +250,8 @@ def images_npz(rows) -> bytes:
                              ("atoms_from_od", img.atoms_from_od), ("notes", "\n".join(image_notes(img)))):
                 meta[key].append(val)
             comps.append([{"state": list(c.state) if c.state is not None else None, "atoms": c.atoms,
-                           "imaged": c.imaged, "centre_m": list(c.centre)} for c in img.components])
+                           "imaged": c.imaged, "centre_m": list(c.centre), "split": [list(p) for p in c.split]}
+                          for c in img.components])
             k += 1
     for key, vals in meta.items():
         arrays[key] = np.array(vals, dtype="U" if key in ("row", "block", "setup", "notes") else np.float64)

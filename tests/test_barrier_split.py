@@ -1,0 +1,144 @@
+"""A barrier sheet splits the cloud it meets into transmitted and reflected parts (seqgen.predict.split).
+
+Outside references, written out here: the push's speed v = |mu| b' tau / m with the moment -dE/dB of the
+written-out Breit-Rabi formula (Phys. Rev. 38, 2082 (1931); Sodium D Line Data, from memory:
+tests/atom_reference.py); uniform acceleration during the push, then free flight (textbook kinematics): the
+centre reaches the sheet at d after t_hit = tau + (d - v tau / 2) / v; specular reflection off a thin sheet
+reverses the velocity along its normal (one-dimensional scattering: the reflected wave carries momentum
+-hbar k, Quantum Mechanics: Non-Relativistic Theory, 3rd ed., Pergamon (1977), section 25), so the reflected
+part is at x = d - v (t - t_hit) and the transmitted one at x = v tau / 2 + v (t - t0 - tau). The sheet's
+place d and the kick's gradient and duration are read off the rig and sequence files."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import yaml
+
+import seqgen
+from seqgen.predict import REFLECTED, TRANSMITTED, barrier_analysis, predicted_image
+
+from .atom_reference import MASS, moment
+from .conftest import SEQUENCES
+
+DEMO = SEQUENCES / "na23_barrier_scatter.yaml"
+FAULT = SEQUENCES / "faults" / "barrier_reflected_out_of_view.yaml"
+GOOD = SEQUENCES / "good" / "na23_split_parts_in_view.yaml"
+
+
+def _sheet_x(rig_path):
+    rig = yaml.safe_load(rig_path.read_text(encoding="utf-8"))
+    return float(rig["beams"]["sheet"]["position"][0])
+
+
+def _gradient_t_per_m(text, rig_path, coil):
+    """The gradient the coil gives as played: the written one's current (gradient_per_amp) through its
+    channel's linear calibration onto the nearest code of its DAC (LSB = range / 2^bits, IEEE Std 1658-2011,
+    DAC terminology) and back; the units of the rig files are those written there (G/cm, G/cm/A, V/A, V)."""
+    value, unit = text.split()
+    assert unit == "G/cm"
+    rig = yaml.safe_load(rig_path.read_text(encoding="utf-8"))
+    per_amp, unit = rig["coils"][coil]["gradient_per_amp"].split()
+    assert unit == "G/cm/A"
+    out = rig["channels"][rig["coils"][coil]["current_channel"]]
+    slope, unit = out["calibration"]["linear"]["slope"].split()
+    assert unit == "V/A" and out["output"]["unit"] == "V"
+    lo, hi = (float(v.split()[0]) for v in out["output"]["range"])
+    lsb = (hi - lo) / 2 ** out["output"]["bits"]
+    volts = float(value) / float(per_amp) * float(slope)
+    played = lo + round((volts - lo) / lsb) * lsb
+    return played / float(slope) * float(per_amp) * 1e-4 / 1e-2
+
+
+def _parts(path, **overrides):
+    res = seqgen.preflight(path, overrides=overrides)
+    shot = res.shot
+    img = shot.actions("image")[0]
+    return res, shot, img, seqgen.image_prediction(shot, img)
+
+
+def _expected(shot, img, d, gradient):
+    """(x transmitted, x reflected, v, t_hit) from the closed forms of the module's doc."""
+    kick = shot.actions("push")[0]
+    tau = kick.t1 - kick.t0
+    v = abs(moment(1, -1)) * gradient * tau / MASS
+    assert d > v * tau / 2  # the sheet is reached after the push
+    t_hit = kick.t0 + tau + (d - v * tau / 2) / v
+    return v * tau / 2 + v * (img.t0 - kick.t0 - tau), d - v * (img.t0 - t_hit), v, t_hit
+
+
+@pytest.mark.parametrize("tof", ["10 ms", "14 ms"])
+def test_demo_parts_sit_where_straight_flight_and_specular_reflection_send_them(tof):
+    res, shot, img, pred = _parts(DEMO, tof=tof)
+    d = _sheet_x(SEQUENCES / "rigs" / "na23_demo_rig.yaml")
+    seq = yaml.safe_load(DEMO.read_text(encoding="utf-8"))
+    x_t, x_r, v, t_hit = _expected(shot, img, d, _gradient_t_per_m(seq["params"]["kick_gradient"],
+                                                                     SEQUENCES / "rigs" / "na23_demo_rig.yaml", "kick_coil"))
+    rep = barrier_analysis(shot, shot.actions("barrier")[0])
+    assert rep.passage.push_t0 + rep.passage.centre_arrival == pytest.approx(t_hit, abs=1e-7)
+    by = {(c.state, c.split[-1][0]): c for c in pred.components}
+    assert len(by) == len(pred.components) == 4
+    for state in ((1, -1), (2, -2)):
+        t, r = by[(state, TRANSMITTED)], by[(state, REFLECTED)]
+        assert t.positions[0][0] == pytest.approx(x_t, rel=1e-4)
+        assert r.positions[0][0] == pytest.approx(x_r, rel=1e-4)
+        assert x_r < d < x_t  # back on the near side of the sheet
+        # across the normal nothing changes: the fall and the Stern-Gerlach kick act on both parts alike
+        assert np.allclose(t.positions[0][1:], r.positions[0][1:], rtol=0, atol=1e-12)
+        assert t.velocities[0][0] == pytest.approx(v, rel=1e-4)
+        assert r.velocities[0][0] == pytest.approx(-v, rel=1e-4)
+        assert t.split == (("transmitted", "scatter"),) and r.split == (("reflected", "scatter"),)
+    assert not [f for f in res.findings if f.severity in ("error", "warning")]  # the demo stays quiet
+
+
+def test_demo_fractions_are_T_and_1_minus_T_of_each_state():
+    res, shot, img, pred = _parts(DEMO)
+    rep = barrier_analysis(shot, shot.actions("barrier")[0])
+    assert 0.3 < rep.T < 0.6
+    assert sum(c.fraction for c in pred.components) == pytest.approx(1.0, abs=1e-12)
+    for state in ((1, -1), (2, -2)):
+        t = sum(c.fraction for c in pred.components if c.state == state and c.split[-1][0] == TRANSMITTED)
+        r = sum(c.fraction for c in pred.components if c.state == state and c.split[-1][0] == REFLECTED)
+        assert t / (t + r) == pytest.approx(rep.T, rel=1e-12)
+        assert r / (t + r) == pytest.approx(1 - rep.T, rel=1e-12)
+    # the atoms drawn per side are N_T and N_R of the barrier's prediction
+    image = predicted_image(shot, img)
+    for side, n in ((TRANSMITTED, rep.N_T), (REFLECTED, rep.N_R)):
+        assert sum(c.atoms for c in image.components if c.split[-1][0] == side) == pytest.approx(n, rel=1e-12)
+
+
+def test_only_the_reflected_part_leaves_the_view_in_the_fault_file():
+    res, shot, img, pred = _parts(FAULT)
+    rig = yaml.safe_load((SEQUENCES / "good" / "rig_na23_split_view.yaml").read_text(encoding="utf-8"))
+    camera = rig["imaging"]["camera"]
+    half = float(camera["field_of_view"].split()[0]) * 1e-3 / 2
+    centre_x = float(camera["center"][0])
+    push = yaml.safe_load(FAULT.read_text(encoding="utf-8"))["blocks"][1]["actions"][1]["push"]
+    x_t, x_r, _, _ = _expected(shot, img, _sheet_x(SEQUENCES / "good" / "rig_na23_split_view.yaml"),
+                               _gradient_t_per_m(push["gradient"], SEQUENCES / "good" / "rig_na23_split_view.yaml",
+                                                 push["coil"]))
+    assert abs(x_r - centre_x) > abs(x_t - centre_x)
+    reach = pred.extents[0]  # the cloud's half-extent along the image's horizontal (both parts keep its size)
+    assert abs(x_t - centre_x) + reach < half < abs(x_r - centre_x) + reach
+    hits = [f for f in res.findings if f.code == "physics.cloud-outside-view"]
+    assert len(hits) == 1 and "reflected by barrier 'scatter'" in hits[0].message
+    assert [list(p) for p in dict(hits[0].data)["split"]] == [["reflected", "scatter"]]
+
+
+def test_both_parts_in_view_raise_nothing():
+    res, shot, img, pred = _parts(GOOD)
+    assert sorted(c.split[-1][0] for c in pred.components) == [REFLECTED, TRANSMITTED]
+    assert not [f for f in res.findings if f.severity in ("error", "warning")]
+
+
+def test_a_sheet_off_when_the_centre_arrives_splits_nothing(tmp_path):
+    # the same file with the sheet on only 5 ms (off before the centre arrives, 16.4 ms after the push starts)
+    text = GOOD.read_text(encoding="utf-8").replace("duration: 20 ms, expect", "duration: 5 ms, expect")
+    (tmp_path / "rig_na23_split_view.yaml").write_text(
+        (SEQUENCES / "good" / "rig_na23_split_view.yaml").read_text(encoding="utf-8"), encoding="utf-8")
+    (tmp_path / "seqgen.toml").write_text("", encoding="utf-8")
+    path = tmp_path / "short_sheet.yaml"
+    path.write_text(text, encoding="utf-8")
+    _, _, _, pred = _parts(path)
+    assert [c.split for c in pred.components] == [()]
+    assert pred.components[0].fraction == pytest.approx(1.0)
