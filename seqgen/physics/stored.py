@@ -99,32 +99,41 @@ def read(name: str, key: str):
     return doc.get("value") if isinstance(doc, dict) else None
 
 
+def replace_json(path: Path, doc) -> bool:
+    """Write `doc` as JSON to `path` under a temporary name and rename it into place (atomic: a reader sees the
+    old file, no file, or the whole new one); False, leaving nothing behind, when it cannot be written."""
+    tmp = None
+    try:
+        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=".json")
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            json.dump(doc, fh)
+        os.replace(tmp, path)
+    except OSError:
+        if tmp is not None:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+        return False
+    return True
+
+
 def write(name: str, key: str, value, keep: int = MAX_FILES) -> None:
     """Store `value` (JSON data) under `key`; silently nothing when the folder cannot be written. A folder of at
     most `keep` files under MAX_FILES is looked at on every write, others about one write in 256."""
     path = _file(name, key)
-    if path is None:
-        return
-    try:
-        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=".json")
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump({"value": value}, fh)
-        os.replace(tmp, path)  # atomic: a reader sees the old file, no file, or the whole new one
-    except OSError:
-        try:
-            os.unlink(tmp)
-        except (OSError, UnboundLocalError):
-            pass
+    if path is None or not replace_json(path, {"value": value}):
         return
     if keep < MAX_FILES or path.name.startswith("00"):  # about one write in 256 looks at the folder's size
         prune(path.parent, keep)
 
 
-def prune(where: Path, keep: int = MAX_FILES) -> None:
-    """Remove the least recently written files of a folder beyond `keep` (down to three quarters of it), so a
-    long scan or editing session cannot fill the disk; another process removing the same files is harmless."""
+def prune(where: Path, keep: int = MAX_FILES, pattern: str = "*.json") -> None:
+    """Remove the least recently written files (matching `pattern`) of a folder beyond `keep` (down to three
+    quarters of it), so a long scan or editing session cannot fill the disk; another process removing the same
+    files is harmless."""
     try:
-        files = [(p.stat().st_mtime_ns, p) for p in where.glob("*.json") if not p.name.startswith(".tmp-")]
+        files = [(p.stat().st_mtime_ns, p) for p in where.glob(pattern) if not p.name.startswith(".tmp-")]
     except OSError:
         return
     if len(files) <= keep:

@@ -151,8 +151,7 @@ def _known_answers() -> dict:
 def _keep_answer(text: str, answer: tuple[float, Dims]) -> None:
     """Add one answer of pint's to the cache file (merged with what another process may have written since;
     written under a temporary name and renamed, so a reader never sees half a file)."""
-    import json
-    import tempfile
+    from ..physics import stored
 
     path = _answers_file()
     if path is None:
@@ -163,23 +162,9 @@ def _keep_answer(text: str, answer: tuple[float, Dims]) -> None:
         merged[text] = answer
         if len(merged) > _ANSWERS_MAX:
             return
-        try:
-            fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=".json")
-            with os.fdopen(fd, "w", encoding="utf-8") as fh:
-                json.dump({t: [f, list(d)] for t, (f, d) in sorted(merged.items())}, fh)
-            os.replace(tmp, path)
-        except OSError:
-            try:
-                os.unlink(tmp)
-            except (OSError, UnboundLocalError):
-                pass
+        if not stored.replace_json(path, {t: [f, list(d)] for t, (f, d) in sorted(merged.items())}):
             return
-    stale = sorted(path.parent.glob("answers-*.json"), key=lambda p: p.stat().st_mtime_ns if p.exists() else 0)
-    for old in stale[:-4]:  # files of earlier pint or seqgen versions
-        try:
-            old.unlink()
-        except OSError:
-            pass
+    stored.prune(path.parent, keep=4, pattern="answers-*.json")  # files of earlier pint or seqgen versions
 
 
 @lru_cache(maxsize=4096)
