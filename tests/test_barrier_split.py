@@ -142,3 +142,51 @@ def test_a_sheet_off_when_the_centre_arrives_splits_nothing(tmp_path):
     _, _, _, pred = _parts(path)
     assert [c.split for c in pred.components] == [()]
     assert pred.components[0].fraction == pytest.approx(1.0)
+
+
+def _variant(tmp_path, sheet_power=None, digital_sheet=False, atoms=None):
+    """The good split file and its rig copied to tmp_path, with the sheet's power, its channel or the atom number
+    changed."""
+    text = GOOD.read_text(encoding="utf-8")
+    if sheet_power:
+        text = text.replace("power: 0.48 mW", f"power: {sheet_power}")
+    if atoms:
+        text = text.replace("atoms: 6e4", f"atoms: {atoms}")
+    rig = (SEQUENCES / "good" / "rig_na23_split_view.yaml").read_text(encoding="utf-8")
+    if digital_sheet:
+        analog = ("  sheet_power:\n    device: ao\n    kind: analog\n    output: {unit: V, range: [0 V, 10 V], bits: 16}\n"
+                  "    calibration: {quantity: mW, linear: {slope: 0.1 V/mW}}\n    hard_limit: {min: 0 mW, max: 50 mW}\n"
+                  "    safe: 0 mW\n")
+        assert analog in rig
+        rig = rig.replace(analog, "  sheet_power:\n    device: ao\n    kind: digital\n")
+    tmp_path.mkdir(parents=True, exist_ok=True)
+    (tmp_path / "rig_na23_split_view.yaml").write_text(rig, encoding="utf-8")
+    path = tmp_path / "s.yaml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def test_a_sheet_on_an_on_off_line_is_played_at_its_written_power(tmp_path):
+    # a digital power line plays 0 or 1: the barrier switches it on, and the sheet's height is that of the
+    # written power, as with the analog channel (V0 proportional to the power, Adv. At. Mol. Opt. Phys. 42, 95
+    # (2000)); the analog channel plays 0.48 mW to its 16-bit step (0.15 uW in 1 mV/0.1 V/mW: 3e-4 relative)
+    analog = seqgen.preflight(_variant(tmp_path / "a"))
+    digital = seqgen.preflight(_variant(tmp_path / "d", digital_sheet=True))
+    for res in (analog, digital):
+        assert not [f for f in res.findings if f.severity in ("error", "warning")], [f.code for f in res.findings]
+    ra = barrier_analysis(analog.shot, analog.shot.actions("barrier")[0])
+    rd = barrier_analysis(digital.shot, digital.shot.actions("barrier")[0])
+    assert rd.V0 > 0 and rd.V0 == pytest.approx(ra.V0, rel=3e-4)
+
+
+def test_a_faint_part_of_a_populated_state_is_not_called_empty(tmp_path):
+    # a weak sheet lets almost every atom through: the reflected part of |1,-1> falls below the detection floor
+    # (100 atoms by default, README), the state itself does not
+    res = seqgen.preflight(_variant(tmp_path, sheet_power="0.04 mW", atoms="1e4"))
+    shot = res.shot
+    img = shot.actions("image")[0]
+    rep = barrier_analysis(shot, shot.actions("barrier")[0])
+    assert 1e4 * (1 - rep.T) < 100 < 1e4 * rep.T
+    comps = seqgen.predict.split_components(shot, img)
+    assert [c.split[-1][0] for c in comps.components] == [TRANSMITTED]
+    assert comps.empty == ()  # the state holds atoms: it is not listed below the floor

@@ -4,8 +4,10 @@ Sampling a ramp of a million device ticks (an evaporation of seconds on a 1 us c
 milliseconds, because every tick is checked against the curve; a check run on every save of a file would pay it
 each time for ramps that did not change. The rows are stored by `seqgen.physics.stored` under a key that holds
 every input of the sampling, each float to the last bit, and the code that samples (`stored.code_stamp`), so
-a changed ramp, output, device or seqgen never reads old rows. Only ramps of at least MIN_TICKS ticks are kept
-(shorter ones sample faster than a file is read); the folder keeps at most MAX_FILES of them.
+a changed ramp, output, device or seqgen never reads old rows. Only ramps of at least MIN_TICKS ticks and at
+most MAX_ROWS rows are kept (shorter ones sample faster than a file is read; a ramp of more rows, e.g. a sweep
+with a row per tick, would make a file of megabytes); the folder keeps at most MAX_FILES of them (the
+demo's evaporation ramps take about 190 kB each: tens of MB at most).
 """
 
 from __future__ import annotations
@@ -19,7 +21,8 @@ from ..physics import stored
 
 FOLDER = "ramps"
 MIN_TICKS = 50_000
-MAX_FILES = 256  # about 100 kB each once compressed: tens of MB at most
+MAX_ROWS = 50_000  # about 0.6 MB of file at most
+MAX_FILES = 256
 
 
 def key(parts: tuple, k0: int, k1: int) -> str | None:
@@ -55,6 +58,8 @@ def read(disk_key: str):
 
 def write(disk_key: str, value) -> None:
     ticks, values, err, limited = value
+    if len(ticks) > MAX_ROWS:
+        return
     stored.write(FOLDER, disk_key, {"ticks": _pack(np.asarray(ticks, np.int64)),
                                     "values": _pack(np.asarray(values, np.float64)),
                                     "err": float(err), "limited": bool(limited)}, keep=MAX_FILES)

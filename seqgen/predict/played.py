@@ -157,12 +157,12 @@ def played_mean(shot, output: str, t0: float, t1: float, magnitude: bool = False
 
 
 def output_of(shot, channel: str) -> str | None:
-    """The output a beam's power channel or a coil's current channel names (a channel of one output, or the
-    output itself), or None."""
+    """The output a beam's power channel or a coil's current channel names: the output itself, or the first of
+    the channel's outputs (the one an action writes: resolve's `output_for`); None when there is none."""
     if channel in shot.rig.outputs:
         return channel
     names = shot.rig.channels.get(channel) or ()
-    return names[0] if len(names) == 1 else None
+    return names[0] if names else None
 
 
 def played_source(shot, *outputs: str) -> str:

@@ -70,16 +70,20 @@ def played_gradient(shot, act) -> float:
     name = output_of(shot, coil.current_channel) if coil is not None and coil.gradient_per_amp else None
     if name is None:
         return written
+    if shot.rig.outputs[name].kind == "digital":  # a switched supply: the written gradient while it is on
+        return written * played_mean(shot, name, act.t0, act.t1)
     current = played_mean(shot, name, act.t0, act.t1, magnitude=True)
     return math.copysign(abs(coil.gradient_per_amp) * current, written)
 
 
 def played_power(shot, beam, t0: float, t1: float, written: float) -> float:
-    """The time-averaged power (W) a beam puts out over [t0, t1], as played; `written` without an analog power
-    output."""
+    """The time-averaged power (W) a beam puts out over [t0, t1], as played; on an on/off (digital) line the
+    `written` power times the fraction of the time the line is on; `written` without a power output."""
     name = output_of(shot, beam.power_channel) if beam.power_channel else None
-    if name is None or shot.rig.outputs[name].kind == "digital":
+    if name is None:
         return float(written)
+    if shot.rig.outputs[name].kind == "digital":
+        return float(written) * played_mean(shot, name, t0, t1)
     return played_mean(shot, name, t0, t1)
 
 
@@ -310,12 +314,20 @@ def gather(shot, rows, pop, motion: Motion) -> Components:
                 break
         else:
             comps.append(dict(r))
+    # the detection floor is a state's: a state below it is empty; a faint part (split by a barrier) of a state
+    # above it is left out silently, neither drawn nor judged nor called empty
+    totals: dict = {}
+    for c in comps:
+        totals[c["state"]] = totals.get(c["state"], 0.0) + c["fraction"]
+    seen = {c["state"] for c in comps if pop is None or is_populated(shot, c["fraction"])}
     kept = []
     for c in sorted(comps, key=lambda c: -c["fraction"]):
         if pop is None or is_populated(shot, c["fraction"]):
             kept.append(c)
-        else:
+        elif not is_populated(shot, totals[c["state"]]):
             empty[c["state"]] = empty.get(c["state"], 0.0) + c["fraction"]
+        elif c["state"] not in seen:  # every part faint, the state not: its parts are kept
+            kept.append(c)
     kept = tuple(Component(c["state"], c["fraction"], c["displacements"], tuple(c["parts"]), c["velocities"],
                            tuple(c["split"])) for c in kept)
     return Components(kept, motion.unknown, tuple(sorted(empty.items())), motion.signs)

@@ -449,7 +449,9 @@ def barrier_played(shot, act):
             used.append(amp)
     beam = shot.rig.beams.get(act.args["beam"])
     if beam is not None and beam.power_channel in outs:
-        power = float(played(shot, beam.power_channel, mid)[0])
+        on = float(played(shot, beam.power_channel, mid)[0])
+        # an on/off (digital) line plays 0 or 1: the written power while it is on
+        power = power * on if outs[beam.power_channel].kind == "digital" else on
         used.append(beam.power_channel)
     return f_mod, depth, power, played_source(shot, *used)
 

@@ -246,7 +246,7 @@ def lower_push(ctx, spec, t0, path):
                            hint="add 'power: <beam power>'"))
         power = ctx.q(spec, "power", path, "W", positive=True, **_beam_fit(ctx, beam))
         out = ctx.output_for(beam.power_channel, path + ("beam",))
-        ctx.pulse(out, t0, dur, power, 0.0, "push", path)
+        ctx.pulse(out, t0, dur, 1.0 if out.kind == "digital" else power, 0.0, "push", path)  # on/off: on
         args.update(beam=beam.name, power=power)
     else:
         raise Bad(make(MISSING_KEY, "a push needs 'coil:' (magnetic) or 'beam:' (optical)", ctx.doc.pos(path),
@@ -266,7 +266,7 @@ def lower_barrier(ctx, spec, t0, path):
     dur = ctx.q(spec, "duration", path, "s", positive=True)
     power = ctx.q(spec, "power", path, "W", positive=True, **_beam_fit(ctx, beam))
     out = ctx.output_for(beam.power_channel, path + ("beam",))
-    ctx.pulse(out, t0, dur, power, 0.0, "barrier", path)
+    ctx.pulse(out, t0, dur, 1.0 if out.kind == "digital" else power, 0.0, "barrier", path)  # on/off: on
     args = dict(beam=beam.name, power=power, duration=dur, expect=spec.get("expect", "any"))
     if "position" in spec:
         args["position"] = ctx.q(spec, "position", path, "m")
