@@ -93,6 +93,16 @@ def trap_lost(shot):
 HEATING_LIMIT = 1.0
 
 
+def _heating_hint(shot) -> str:
+    """What to change against recoil heating: the wavelength only when a trap beam is near the D lines (within
+    a third of the D2 wavelength: 1064 nm light is already far from an alkali's lines)."""
+    sp = species(shot)
+    near = [b for b in trap_beams(shot) if sp is not None and abs(b.wavelength_m / sp.d2_wavelength_m - 1) < 1 / 3]
+    if near:
+        return "use a trap wavelength farther from the D lines (e.g. 1064 nm), a shorter ramp or less power"
+    return "shorten this stage or lower the trap power (the trap light is already far from the D lines)"
+
+
 @rule(TRAP_HEATING, stage="physics")
 def trap_heating(shot):
     if shot.sample is None or not shot.sample.temperature_k:
@@ -105,7 +115,7 @@ def trap_heating(shot):
                        f"{fmt_temperature(rep.heating)} during the {_what(w)} (up to "
                        f"{fmt_temperature(rep.heating_rate)}/s at the trap minimum), more than the sample's "
                        f"{fmt_temperature(temp)}{over}", w.pos, block=w.block, time_s=w.t0,
-                       hint="use a trap wavelength farther from the D lines (e.g. 1064 nm), a shorter ramp or less power",
+                       hint=_heating_hint(shot),
                        data={"heating_k": rep.heating, "heating_rate_k_s": rep.heating_rate, "temperature_k": temp,
                              **data})
 
