@@ -20,7 +20,7 @@ from .cloud import (CloudAtImage, ImagePrediction, Separation, SizeUnknown, clou
 from .imaging import ProbePrediction, probe_analysis
 from .images import ImagedComponent, PredictedImage, predicted_image, predicted_images
 from .magnetic import HoldPrediction, hold_analysis
-from .played import INTENDED, PLAYED, Track, compiled_shot, played, played_source
+from .played import INTENDED, PLAYED, Track, clear_physical, compiled_shot, played, played_source
 from .pushes import Components, PushPrediction, components_at, push_analysis
 from .report import PhysicsRow, report_rows
 from .split import REFLECTED, TRANSMITTED, SheetHit, sheet_hits, split_components
@@ -47,6 +47,7 @@ __all__ = [
 def clear_caches() -> None:
     """Drop the per-shot analyses (of this thread) and the content-keyed trap minimisations."""
     clear_shot_cache()
+    clear_physical()
     held.cache_clear()
     scaling_by_content.cache_clear()
     release_by_content.cache_clear()

@@ -19,6 +19,8 @@ the start to compensate its latency) or are not finite, falls back to the intend
 
 from __future__ import annotations
 
+import hashlib
+import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -31,8 +33,8 @@ from .cache import per_shot_cache
 PLAYED = "played"  # read from the compiled tables
 INTENDED = "intended"  # the output could not be compiled: the intended values (value_at) stand in
 
-__all__ = ["INTENDED", "PLAYED", "Track", "compiled_shot", "off_floor", "output_of", "played", "played_mean",
-           "played_source", "track"]
+__all__ = ["INTENDED", "PLAYED", "Track", "clear_physical", "compiled_shot", "off_floor", "output_of", "played",
+           "played_mean", "played_source", "track"]
 
 
 @per_shot_cache(lambda shot: ("compiled-shot",))
@@ -78,6 +80,31 @@ def _before_start(out, shot, tick: float) -> bool:
     return False
 
 
+_PHYSICAL: dict = {}  # (output, bytes of its table column) -> physical values: an edit re-checks the same tables
+_PHYSICAL_LOCK = threading.Lock()
+
+
+def _physical(out, values: np.ndarray) -> np.ndarray:
+    """to_physical of a table column, kept by content (a table calibration's inverse bisects 64 times)."""
+    if out.calibration is None or out.calibration.kind == "linear":
+        return np.asarray(to_physical(out, values), dtype=float).reshape(-1)
+    key = (out, hashlib.sha256(np.ascontiguousarray(values).tobytes()).hexdigest(), len(values))
+    hit = _PHYSICAL.get(key)
+    if hit is None:
+        hit = np.asarray(to_physical(out, values), dtype=float).reshape(-1)
+        hit.setflags(write=False)
+        with _PHYSICAL_LOCK:
+            if len(_PHYSICAL) >= 256:
+                _PHYSICAL.clear()
+            _PHYSICAL[key] = hit
+    return hit.copy()
+
+
+def clear_physical() -> None:
+    with _PHYSICAL_LOCK:
+        _PHYSICAL.clear()
+
+
 @per_shot_cache(lambda shot, output: ("played-track", output))
 def track(shot, output: str) -> Track:
     """The played rows of one output (see the module notes)."""
@@ -100,7 +127,7 @@ def track(shot, output: str) -> Track:
     if not linear:  # a held output changes only where its code changes
         keep = np.r_[True, values[1:] != values[:-1]]
         ticks, values = ticks[keep], values[keep]
-    phys = np.asarray(to_physical(out, values), dtype=float).reshape(-1)
+    phys = _physical(out, values)
     rising = np.r_[False, phys[1:] > phys[:-1]]
     falling = np.r_[False, phys[1:] < phys[:-1]]
     lat = np.where(rising, out.latency_rise_s, np.where(falling, out.latency_fall_s, 0.0))
