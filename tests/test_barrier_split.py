@@ -190,3 +190,30 @@ def test_a_faint_part_of_a_populated_state_is_not_called_empty(tmp_path):
     comps = seqgen.predict.split_components(shot, img)
     assert [c.split[-1][0] for c in comps.components] == [TRANSMITTED]
     assert comps.empty == ()  # the state holds atoms: it is not listed below the floor
+
+
+def test_parts_held_by_the_guide_stay_within_its_oscillation(tmp_path):
+    # With the guide left on for 700 ms, the atoms oscillate in its weak axial harmonic potential: at speed v
+    # they get no farther than v / omega_axial from the start (harmonic motion), plus v per second of flight
+    # after the release; the reflected part moves in the same guide at the same speed, so it is held to the same
+    # bound the other way. omega_axial^2 = 2 U0 / (m z_R^2) of the 0.65 W, 55 um, 1064 nm guide (Adv. At. Mol.
+    # Opt. Phys. 42, 95 (2000); D lines only, so 1 % is allowed)
+    from .atom_reference import gaussian_beam_omega2
+
+    path = _variant(tmp_path)
+    path.write_text(path.read_text(encoding="utf-8").replace("after: scatter + 6 ms", "after: scatter + 700 ms"),
+                    encoding="utf-8")
+    res, shot, img, _ = _parts(path)
+    push = shot.actions("push")[0]
+    rig = tmp_path / "rig_na23_split_view.yaml"
+    v = abs(moment(1, -1)) * _gradient_t_per_m("8 G/cm", rig, "push_coil") * (push.t1 - push.t0) / MASS
+    omega_axial = np.sqrt(gaussian_beam_omega2(0.65, 55e-6, 1064e-9, 0)[0])
+    t_rel = shot.actions("release")[0].t0
+    bound = v / omega_axial + v * (img.t0 - t_rel)
+    comps = seqgen.predict.split_components(shot, img).components
+    along = {c.split[-1][0]: float(c.displacements[0, 0]) for c in comps}
+    d, tau = _sheet_x(rig), push.t1 - push.t0
+    free_reflected = d - v * (img.t0 - (push.t0 + tau + (d - v * tau / 2) / v))
+    assert free_reflected < -2 * bound  # free flight would carry it far beyond the guide's reach
+    assert along[TRANSMITTED] == pytest.approx(bound, rel=1e-2)
+    assert along[REFLECTED] == pytest.approx(-bound, rel=1e-2)

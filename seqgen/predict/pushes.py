@@ -232,20 +232,29 @@ def _confined(shot, sp, act, t, disp, speed):
     (a release follows before t), bounded by what the trap allows: an oscillation of amplitude at most v / omega
     along the trap's weakest axis (harmonic motion, textbook), then free flight from the release at no more
     than the kick's speed v. Unchanged when the kick's energy exceeds the trap's depth (the atoms leave it)."""
-    releases = [a.t0 for a in shot.actions("release") if act.t1 <= a.t0 < t]
     d = np.asarray(disp, dtype=float)
-    if not releases or speed <= 0:
+    bound = confinement_bound(shot, sp, act, t, speed)
+    if bound is None:
         return d
+    n = float(np.linalg.norm(d))
+    return d * (bound / n) if n > bound else d
+
+
+def confinement_bound(shot, sp, act, t, speed) -> float | None:
+    """The largest displacement (m) at t of atoms given speed v by the force `act` while an optical trap still
+    holds them (see `_confined`): v / omega_min + v (t - release); None when no trap holds them after the force
+    or no release follows before t (free flight then)."""
+    releases = [a.t0 for a in shot.actions("release") if act.t1 <= a.t0 < t]
+    if not releases or speed <= 0:
+        return None
     beams = gaussian_beams(shot, [act.t1])[0]
     if not beams:
-        return d
+        return None
     trap = held(sp, tuple(beams))
     depth, omegas = trap.depth, trap.omegas
     if omegas is None or not depth > 0.5 * sp.mass_kg * speed ** 2:
-        return d
-    bound = speed / float(np.min(omegas)) + speed * (t - min(releases))
-    n = float(np.linalg.norm(d))
-    return d * (bound / n) if n > bound else d
+        return None
+    return speed / float(np.min(omegas)) + speed * (t - min(releases))
 
 
 @dataclass(frozen=True, eq=False)

@@ -26,7 +26,7 @@ import numpy as np
 
 from .barrier import analyse
 from .cache import per_shot_cache
-from .pushes import Components, components_at, gather, motion_at
+from .pushes import Components, components_at, confinement_bound, gather, motion_at
 from .species import G_N, species
 from .states import barriers, populations, state_at
 
@@ -79,6 +79,24 @@ def _fall(t_rel, t):
     return np.array([0.0, 0.0, -0.5 * G_N * dt * dt]), np.array([0.0, 0.0, -G_N * dt])
 
 
+def _bounded_shift(shot, t, cases, shift, refl):
+    """The reflections' displacement `shift`, kept within the bound `pushes` puts on a push whose atoms an
+    optical trap (a guide) still holds: a reflected part oscillates in the same trap with the same speed, so
+    along each sheet's normal it is no farther from the start than v / omega_min + v (t - release) either."""
+    for hit, _ in refl:
+        rep = analyse(shot, hit.act)  # the normal is the push's direction, the speed the incident one
+        bound = confinement_bound(shot, species(shot), rep.incident.push, t, rep.speed)
+        if bound is None:
+            continue
+        n = np.asarray(hit.normal)
+        along = (cases + shift) @ n  # (n_cases,)
+        worst = float(np.max(np.abs(along)))
+        if worst > bound:
+            excess = np.sign(along) * np.maximum(np.abs(along) - bound, 0.0)
+            shift = shift - float(excess[int(np.argmax(np.abs(along)))]) * n
+    return shift
+
+
 @per_shot_cache(lambda shot, img: ("split-components", img.index, img.t0))
 def split_components(shot, img) -> Components | None:
     """`pushes.components_at`, every component a barrier sheet met split into its transmitted and reflected
@@ -116,6 +134,7 @@ def split_components(shot, img) -> Components | None:
     for k, share, refl, split in branches:
         f, ch = paths[k]
         shift = sum((dv * (img.t0 - h.time) for h, dv in refl), np.zeros(3))
+        shift = _bounded_shift(shot, img.t0, end.cases[:, k, :], shift, refl)
         kicks = sum((dv for _, dv in refl), np.zeros(3))
         slots = end.slots[k] + tuple((f"reflection off barrier '{h.block}'", True, dv * (img.t0 - h.time), None)
                                      for h, dv in refl)
