@@ -245,3 +245,20 @@ def test_reflected_part_out_of_view_fix_images_it_earlier(project):
     assert proposed(f.hint).startswith("at: ") and value.endswith(" ms")
     assert float(value.split()[0]) < 16  # earlier than the written 16 ms
     assert not [g for g in after if g.severity == "warning" and g.code.startswith("physics.")]
+
+
+# ----------------------------------------------------------------------------- 6. a sheet the cloud does not reach
+
+
+def test_barrier_not_reached_fix_images_later_and_the_transmission_follows(project):
+    # Rb-87 rig of our own: the cloud's centre reaches the sheet 1.5 ms + 0.12 mm / 8 mm/s = 16.5 ms after the
+    # kick starts (uniform acceleration over 3 ms, then free flight), the image comes 12.5 ms after it
+    path = "sequences/faults/barrier_not_reached.yaml"
+    before = check(path)
+    note = next(g for g in before if g.code == "physics.barrier-transmission")
+    assert "no transmission" in note.message and "transmitted fraction" not in note.message
+    f, value, after = fix_and_recheck(path, "physics.barrier-not-reached")
+    assert proposed(f.hint).startswith("at: ") and float(value.split()[0]) > 2.5  # later than the written 2.5 ms
+    note = next(g for g in after if g.code == "physics.barrier-transmission")
+    assert "transmitted fraction" in note.message
+    assert not [g for g in after if g.severity == "warning" and g.code.startswith("physics.barrier")]

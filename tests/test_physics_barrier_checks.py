@@ -3,6 +3,7 @@ pipeline on the demo and on the barrier fault files, against hand formulas. The 
 is tested in tests/physics/test_barrier.py and tests/physics/test_passage.py."""
 
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -334,6 +335,46 @@ def test_short_sheet_misses_the_cloud_tail():
     assert len(hits) == 1 and dict(hits[0].data)["missed_fraction"] == pytest.approx(missed(t_off), abs=0.02)
     # the hint's duration lets 99 % across
     assert missed(rep.passage.need_off) == pytest.approx(0.01, abs=0.005)
+    # the fix's duration lets 90 % across: the fraction that raises the warning, so the smallest change that silences it
+    assert missed(rep.passage.cross_by) == pytest.approx(0.10, abs=0.02)
+    assert hits[0].severity == "warning"  # under half of the cloud missed
+
+
+def test_push_too_late_and_too_short_propose_one_duration_from_the_closed_form():
+    # a point cloud at 100 nK (no trap along the path): an atom with velocity offset u has covered
+    # v (t - tau/2) + u t after the push; 90 % have crossed d + w_y once v (t - tau/2) + z90 sigma t = d + w_y,
+    # z90 the 90.5 % quantile (the fix's 0.5 % margin) of the normal law, sigma = sqrt(k_B T / m) (Maxwell-Boltzmann)
+    from scipy.special import erfc
+    from scipy.stats import norm
+
+    res, rep = _fault_rep("push_too_late.yaml")
+    act = next(a for a in res.shot.phys if a.kind == "barrier")
+    push = next(a for a in res.shot.phys if a.kind == "push")
+    v, tau, sigma = kick_speed(), KICK_TIME, math.sqrt(sc.k * 100e-9 / M_NA)
+    t90 = (SHEET_X + SHEET_WY + v * tau / 2) / (v - norm.ppf(0.905) * sigma)  # the slowest 10 % cross last
+    t_off = act.t1 - push.t0
+    late = 1 - 0.5 * erfc((SHEET_X + SHEET_WY - v * (t_off - tau / 2)) / (math.sqrt(2) * sigma * t_off))
+    assert rep.passage.cross_by == pytest.approx(t90, rel=1e-3)
+    short = next(f for f in res.findings if f.code == "physics.barrier-too-short")
+    late_push = next(f for f in res.findings if f.code == "physics.push-too-late")
+    assert dict(short.data)["missed_fraction"] == pytest.approx(late, abs=0.01) and late > 0.5
+    assert short.severity == "error"  # most of the cloud misses the sheet
+    assert short.hint == late_push.hint  # one duration, the same words
+    want = t90 - (act.t0 - push.t0)
+    got = float(re.search(r"at least ([0-9.]+) ms", short.hint).group(1)) * 1e-3
+    assert want <= got <= want + 2e-5  # rounded outward on the printed grid (10 us here)
+
+
+def test_centre_arrival_is_the_kinematic_one_and_the_unreached_sheet_reports_no_transmission():
+    # Rb-87 rig of our own: kick to 8 mm/s over 3 ms, sheet 0.12 mm away: t = tau + (d - v tau/2)/v = 16.5 ms
+    res = preflight(_fault("barrier_not_reached.yaml"), compile_tables=False)
+    rep = _rep(res)
+    v, tau, d = rep.speed, 3e-3, 0.12e-3
+    assert rep.passage.centre_arrival == pytest.approx(tau + (d - v * tau / 2) / v, rel=1e-6)
+    hit = next(f for f in res.findings if f.code == "physics.barrier-not-reached")
+    assert hit.severity == "error" and dict(hit.data)["image_s"] < dict(hit.data)["centre_arrival_s"]
+    note = next(f for f in res.findings if f.code == "physics.barrier-transmission")
+    assert "transmission" not in dict(note.data) and dict(note.data)["reached"] is False
 
 
 def test_late_sheet_misses_the_cloud_front():

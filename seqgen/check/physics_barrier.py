@@ -7,11 +7,12 @@ from __future__ import annotations
 import math
 
 from ..codes import (
-    BARRIER_NO_SIGNAL, BARRIER_ROTATION, BARRIER_TOO_LATE, BARRIER_TOO_SHORT, BARRIER_TRANSMISSION,
+    BARRIER_NO_SIGNAL, BARRIER_NOT_REACHED, BARRIER_ROTATION, BARRIER_TOO_LATE, BARRIER_TOO_SHORT, BARRIER_TRANSMISSION,
     CLOUD_OVERLAPS_BARRIER, DRIVE_TOO_STRONG, NOT_TUNNELLING, ROTATION_UNRESOLVABLE,
 )
 from ..findings import make
-from ..predict.barrier import THERMAL_EDGE_RMS, analyse
+from ..predict.barrier import MISSED_FRACTION, THERMAL_EDGE_RMS, analyse
+from ..predict.pushes import push_analysis
 from ..predict.species import species
 from ..predict.states import barrier_drive_analysis, barriers
 from ..predict.text import (in_barrier_drive_reason, larmor_clock_text, release_text, rotation_text, spread_text,
@@ -19,8 +20,32 @@ from ..predict.text import (in_barrier_drive_reason, larmor_clock_text, release_
 from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time, outward
 from .rules import rule
 
-MISSED_FRACTION = 0.10  # a barrier may miss at most 10 % of the cloud (common practice, no source)
-SLOW_TAIL = 3.0  # 99 % across later than this many times the centre's arrival: the slow tail sets the bound
+MOST_MISSED = 0.50  # from half of the cloud missed on, a too-short barrier is an error (common practice, no source)
+SLOW_TAIL = 3.0  # 90 % across later than this many times the centre's arrival: the slow tail sets the bound
+
+
+def needed_duration(shot, act, rep) -> float:
+    """The barrier duration (s) that physics.barrier-too-short and physics.push-too-late both propose: until 90 %
+    of the cloud has crossed the sheet (the fraction that raises too-short) and, when the push names a
+    target_distance, until its centre has reached that; math.inf when never."""
+    ps = rep.passage
+    need = ps.cross_by - ps.on
+    push = push_analysis(shot, rep.incident.push)
+    if push is not None and push.arrival is not None and push.barrier is act:
+        need = max(need, push.arrival - act.t0)
+    return need
+
+
+def duration_hint(shot, act, rep) -> str:
+    """The fix both duration findings give: the needed duration, or why none can pass (the image comes first)."""
+    ps, need = rep.passage, needed_duration(shot, act, rep)
+    if not math.isfinite(need):
+        return "part of the cloud never reaches the sheet: push harder"
+    if ps.image_at is not None and ps.on + need > ps.image_at:
+        return (f"no barrier duration can: 90 % of the cloud has crossed the sheet only "
+                f"{fmt_time(ps.on + need, unit='ms', nonfinite='never')} after the push starts, after the image at "
+                f"{fmt_time(ps.image_at, unit='ms')}; push harder or image later")
+    return f"keep the barrier on for at least {fmt_time(outward(need, strict=True), unit='ms', nonfinite='never')} (90 % of the cloud across)"
 
 
 def _each(shot):
@@ -40,6 +65,13 @@ def _each(shot):
 @rule(BARRIER_TRANSMISSION, stage="physics")
 def barrier_transmission(shot):
     for act, rep in _each(shot):
+        ps = rep.passage
+        if not ps.reached:
+            yield make(BARRIER_TRANSMISSION, f"no transmission: the cloud does not reach barrier '{act.args['beam']}' "
+                       f"before the image ({_not_reached_text(ps)}; physics.barrier-not-reached)", act.pos,
+                       block=act.block, time_s=act.t0,
+                       data={"reached": False, "centre_arrival_s": ps.centre_arrival, "image_s": ps.image_at})
+            continue
         if rep.attractive:
             msg = f"'{act.args['beam']}' is red-detuned for {shot.sample.species}: a well, not a barrier; T = {rep.T:.3g}"
         else:
@@ -55,6 +87,34 @@ def barrier_transmission(shot):
                         released_along_path_J=rep.release.path_energy)
         yield make(BARRIER_TRANSMISSION, msg, act.pos, block=act.block, time_s=act.t0, data=data)
 
+
+
+def _not_reached_text(ps) -> str:
+    return (f"its centre reaches the sheet {fmt_time(ps.centre_arrival, unit='ms', nonfinite='never')} after the push "
+            f"starts, the first image comes {fmt_time(ps.image_at, unit='ms')} after it")
+
+
+@rule(BARRIER_NOT_REACHED, stage="physics")
+def barrier_not_reached(shot):
+    for act, rep in _each(shot):
+        ps = rep.passage
+        if ps.reached:
+            continue
+        img = ps.image
+        start = shot.block(img.block).start_s
+        # image once 90 % has crossed (the fraction physics.barrier-too-short counts), at least at the centre
+        want = max(ps.cross_by, ps.centre_arrival)
+        if math.isfinite(want):
+            at = outward(ps.push_t0 + want - start, strict=True)
+            hint = (f"write 'at: {fmt_time(at, 3, unit='ms')}' in this action (from the start of block '{img.block}'): "
+                    f"imaged once 90 % of the cloud has crossed the sheet; or push harder")
+        else:
+            hint = "push harder: the cloud's centre never reaches the sheet"
+        yield make(BARRIER_NOT_REACHED, f"barrier '{act.args['beam']}' (block '{act.block}') is not reached before this "
+                   f"image: {_not_reached_text(ps)} (v = {rep.speed * 1e3:.4g} mm/s, sheet "
+                   f"{fmt_length(ps.distance, mm_from=1e-2)} away); the imaged atoms never met the sheet",
+                   img.pos, block=img.block, time_s=img.t0, hint=hint,
+                   data={"centre_arrival_s": ps.centre_arrival, "image_s": ps.image_at, "crossed_90_s": ps.cross_by})
 
 
 @rule(CLOUD_OVERLAPS_BARRIER, stage="physics")
@@ -79,22 +139,22 @@ def cloud_overlaps_barrier(shot):
 def barrier_too_short(shot):
     for act, rep in _each(shot):
         ps = rep.passage
-        if ps.late <= MISSED_FRACTION:
-            continue
-        need = ps.need_off - ps.on
-        hint = (f"keep the barrier on for at least {fmt_time(outward(need), unit='ms', nonfinite='never')} (99 % of the cloud across)" if math.isfinite(need)
-                else "part of the cloud never reaches the sheet: push harder")
-        if math.isfinite(need) and ps.need_off > SLOW_TAIL * ps.centre_arrival:
+        if ps.late <= MISSED_FRACTION or not ps.reached:
+            continue  # a cloud not reached before the image is physics.barrier-not-reached's
+        hint = duration_hint(shot, act, rep)
+        if hint.startswith("keep") and ps.cross_by > SLOW_TAIL * ps.centre_arrival:
             # the slowest atoms set the bound: it falls steeply as the push outruns the spread
-            hint += (f"; the slowest 1 % of the velocity spread ({rep.sigma_v * 1e3:.3g} mm/s rms against the push's "
-                     f"{rep.speed * 1e3:.4g} mm/s) set it, so pushing harder shortens it most")
+            hint += (f"; the slow tail of the velocity spread ({rep.sigma_v * 1e3:.3g} mm/s rms against the push's "
+                     f"{rep.speed * 1e3:.4g} mm/s) sets it, so pushing harder shortens it most")
         if rep.cloud.stand_in:
             hint += f" ({stand_in_text(rep.cloud)[2:]}: a condensate's spread is smaller)"
+        most = ps.late >= MOST_MISSED
         yield make(BARRIER_TOO_SHORT, f"barrier '{act.args['beam']}' is off {fmt_time(ps.off, unit='ms', nonfinite='never')} after the push "
                    f"starts, but {fmt_pct(ps.late)} of the cloud crosses the sheet {fmt_length(ps.distance, mm_from=1e-2)} away only later "
-                   f"(v = {rep.speed * 1e3:.4g} mm/s, {spread_text(rep.cloud)}): those atoms pass unhindered",
-                   act.pos, block=act.block, time_s=act.t1, hint=hint,
-                   data={"missed_fraction": ps.late, "barrier_off_s": ps.off, "needed_off_s": ps.need_off})
+                   f"(v = {rep.speed * 1e3:.4g} mm/s, {spread_text(rep.cloud)}): those atoms pass unhindered"
+                   + (f"; most of the cloud misses the sheet (an error from {fmt_pct(MOST_MISSED)} on)" if most else ""),
+                   act.pos, severity="error" if most else None, block=act.block, time_s=act.t1, hint=hint,
+                   data={"missed_fraction": ps.late, "barrier_off_s": ps.off, "needed_off_s": ps.on + needed_duration(shot, act, rep)})
 
 
 @rule(BARRIER_TOO_LATE, stage="physics")

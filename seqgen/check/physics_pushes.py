@@ -13,11 +13,13 @@ from ..codes import (
     PUSH_VELOCITY,
 )
 from ..findings import make
+from ..predict.barrier import analyse
 from ..predict.cloud import SEPARATION_WIDTHS, cloud_at_image, separations
 from ..predict.pushes import push_analysis, pushes
 from ..predict.species import MU_B, bias
 from ..predict.states import barriers, rel_off
 from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec, outward
+from .physics_barrier import duration_hint
 from .rules import rule
 
 PUSH_TOLERANCE = 0.10
@@ -96,10 +98,20 @@ def push_too_late(shot):
             yield make(PUSH_TOO_LATE, f"the atoms reach {fmt_length(act.args['target_distance'], unit='mm')} {when} "
                        f"({abs(rep.velocity) * 1e3:.4g} mm/s), but the barrier in block '{b.block}' ends at "
                        f"t = {fmt_time(b.t1)}", b.pos, block=b.block, time_s=b.t1,
-                       hint=(f"keep the barrier on until at least {fmt_time(outward(rep.arrival - b.t0, strict=True))} "
-                             "after its start" if not math.isinf(rep.arrival) else "the push gives no velocity"),
+                       hint=_late_hint(shot, rep, b),
                        data={"arrival_s": rep.arrival, "barrier_end_s": b.t1})
 
+
+
+def _late_hint(shot, rep, b) -> str:
+    """The fix of physics.push-too-late: the one duration physics.barrier-too-short proposes, when the sheet's
+    passage is predicted (so that applied, neither fires), else until the centre's arrival."""
+    if math.isinf(rep.arrival):
+        return "the push gives no velocity"
+    bar = analyse(shot, b) if shot.sample is not None else None
+    if bar is not None and bar.passage.reached:
+        return duration_hint(shot, b, bar)
+    return f"keep the barrier on until at least {fmt_time(outward(rep.arrival - b.t0, strict=True))} after its start"
 
 
 @rule(EQUAL_MOMENTS, stage="physics")

@@ -82,19 +82,35 @@ BARRIER_TOO_LATE = Code(
     physics.barrier-too-short. Start the barrier earlier (the hint gives the
     latest start by which only 1 % have arrived).""")
 
+BARRIER_NOT_REACHED = Code(
+    "physics.barrier-not-reached", "error", stage="physics",
+    source=_PASSAGE,
+    doc="""
+    The first image after the push comes before the cloud's centre reaches
+    the sheet (arrival t = tau + (d - v tau/2)/v after the push starts, for a
+    push of duration tau to the speed v, the sheet d away): the image ends the
+    flight, so most imaged atoms never met the barrier and its predicted
+    transmission does not happen. A release of the guide does not count: the
+    motion along the path goes on in free flight until the image. Image
+    later (the hint names the image's time by which 90 % of the cloud has
+    crossed, as physics.barrier-too-short counts it), or push harder.""")
+
 BARRIER_TOO_SHORT = Code(
     "physics.barrier-too-short", "warning", stage="physics",
-    source=_PASSAGE + "; at most 10 % of the cloud missed (common practice, no source)",
+    source=_PASSAGE + "; at most 10 % of the cloud missed, an error from half of it on (common practice, no source)",
     doc="""
     The barrier is off before most of the cloud has crossed it: more than
     10 % of the atoms pass the sheet's far edge (d + w_y) only after the
-    barrier action ends, and fly on unhindered. Each atom starts at its place
+    barrier action ends, and fly on unhindered; from 50 % on (most of the
+    cloud misses the sheet) it is an error. Each atom starts at its place
     in the cloud (Thomas-Fermi or Gaussian profile along the path, as for
     physics.cloud-overlaps-barrier) with its velocity offset from the spread,
     and moves with the push (uniform acceleration over the push, then the
     pushed speed). A long cloud needs about its length over the speed; the
-    hint gives the duration by which 99 % have crossed. Lengthen the barrier,
-    or shorten the cloud along the path.""")
+    hint gives the duration by which 90 % have crossed (the same fraction that
+    raises the finding, so the smallest change that silences it), or says
+    that no duration can, when that time falls after the first image.
+    Lengthen the barrier, push harder, or shorten the cloud along the path.""")
 
 BARRIER_TRANSMISSION = Code(
     "physics.barrier-transmission", "note", stage="physics",

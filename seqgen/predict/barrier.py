@@ -98,6 +98,7 @@ N_VELOCITIES = 24  # Gauss-Hermite nodes of the velocity average
 FAR_OFF_RESONANCE = 20.0
 THERMAL_EDGE_RMS = 2.5  # a thermal cloud's edge along the path: 2.5 rms widths, 98.8 % of it (common practice, no source)
 HINT_FRACTION = 0.01  # the passage times aim at 1 % of the cloud missed
+MISSED_FRACTION = 0.10  # a barrier may miss at most 10 % of the cloud (common practice, no source)
 RELEASE_HORIZON_S = 0.1  # the scaling solution is integrated at least this far, if the sheet is on that long
 
 
@@ -176,6 +177,14 @@ class Passage:
     need_off: float
     need_on: float
     centre_arrival: float
+    cross_by: float = math.inf
+    image_at: float | None = None
+    image: object = None
+
+    @property
+    def reached(self) -> bool:
+        """The cloud's centre reaches the sheet before the first image after the push (or there is none)."""
+        return self.image_at is None or self.centre_arrival <= self.image_at
 
 
 @dataclass(frozen=True)
@@ -433,6 +442,12 @@ def _time_to(fraction, distance, speed, tau, sigma_v, profile, size, scale):
     return time_to_fraction(fraction, distance, speed, tau, sigma_v, profile, size, grow)
 
 
+def _first_image(shot, t0):
+    """The first image action that starts at or after t0, or None."""
+    later = [a for a in shot.actions("image") if a.t0 >= t0 - 1e-12]
+    return min(later, key=lambda a: a.t0) if later else None
+
+
 def passage(shot, act, inc, cloud, waist_y, scale=None) -> Passage:
     """Where the cloud is against the sheet: the distance d along the path, the cloud's edge,
     whether they overlap at the push, and the fractions that reach the near edge d - w_y before the
@@ -454,6 +469,12 @@ def passage(shot, act, inc, cloud, waist_y, scale=None) -> Passage:
     out["need_off"] = _time_to(1.0 - HINT_FRACTION, d + waist_y, *base, cloud.size, scale)
     out["need_on"] = _time_to(HINT_FRACTION, d - waist_y, *base, cloud.size, scale)
     out["centre_arrival"] = centre_arrival(d, inc.speed, tau)
+    # the fraction that sets physics.barrier-too-short also sets its fix: the smallest change that silences it
+    # (a 0.5 % margin: a longer sheet changes the release integrated up to its end, and the printed rounding)
+    out["cross_by"] = _time_to(1.0 - 0.95 * MISSED_FRACTION, d + waist_y, *base, cloud.size, scale)
+    img = _first_image(shot, push.t0)
+    if img is not None:
+        out.update(image=img, image_at=img.t0 - push.t0)
     return Passage(**out)
 
 
