@@ -96,28 +96,30 @@ def test_the_barrier_findings_say_why_a_declared_condensate_is_thermal(project):
     assert note.data["velocity_m_s"] == pytest.approx(_push_speed(0.08), rel=2e-3)
 
 
-def test_the_barrier_duration_proposed_is_the_99_percent_crossing_of_a_thermal_spread(project):
+def test_the_barrier_duration_proposed_is_the_90_percent_crossing_of_a_thermal_spread(project):
+    # the fix asks for the time by which all but the 10 % that triggers the finding have crossed (less a 0.5 %
+    # margin: 90.5 %), so the smallest change that silences it is proposed
     _setup()
     short = _finding(check(SEQ), "physics.barrier-too-short")
     v, tau, sigma = _push_speed(0.08), 2e-3, math.sqrt(sc.k * 60e-9 / MASS)
     d = 300e-6 + 1.8e-6  # the sheet's far edge: its distance plus its 1/e^2 half-width
-    z = -norm.ppf(0.01)
-    t99 = (d + v * tau / 2) / (v - z * sigma)  # the cloud's 3.5 um in-trap width is negligible against sigma t
+    z = norm.ppf(0.905)
+    t90 = (d + v * tau / 2) / (v - z * sigma)  # the cloud's 3.5 um in-trap width is negligible against sigma t
     on = 5e-3  # the barrier starts 3 ms after the 2 ms push ends
     proposed = float(re.search(r"at least ([0-9.]+) ms", short.hint).group(1)) * 1e-3
-    assert proposed == pytest.approx(t99 - on, rel=0.01) and proposed >= short.data["needed_off_s"] - on
+    assert proposed == pytest.approx(t90 - on, rel=0.01)
     assert "a condensate's spread is smaller" in short.hint
 
 
 def test_the_proposed_duration_passes_when_applied_even_where_the_slow_tail_sets_it(project):
-    # 6 G/cm: the push (8.33 mm/s) barely outruns the 1 % tail of the thermal spread (2.33 x 3.49 mm/s): the bound
-    # is over a second, set by the slowest atoms, and the fix says so
-    _setup("6 G/cm")
+    # 3.5 G/cm: the push (4.86 mm/s) barely outruns the 9.5 % tail of the thermal spread (1.31 x 3.49 mm/s, the
+    # normal quantile): the bound is about a second, set by the slowest atoms, and the fix says so
+    _setup("3.5 G/cm")
     before = check(SEQ)
     short = _finding(before, "physics.barrier-too-short")
     assert "pushing harder shortens it most" in short.hint
     ms = re.search(r"at least ([0-9.]+) ms", short.hint).group(1)
-    assert float(ms) > 1000
+    assert float(ms) > 500
     Path(SEQ).write_text(Path(SEQ).read_text(encoding="utf-8").replace("duration: 20 ms", f"duration: {ms} ms"),
                          encoding="utf-8")
     after = check(SEQ)

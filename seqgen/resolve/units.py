@@ -413,18 +413,26 @@ def _unit_pool(dims: Dims) -> list:
     return pool
 
 
-def _log_distance(number: float, unit: str, center: float) -> float:
+def _log_distance(number: float, unit: str, center) -> float:
+    """How far (in decades) `number` written in `unit` lands from the values seen (`center`: their log10
+    magnitudes, from `_center`): from their mean, or 0 when it is one of them (20 beside a '20 ms' written under
+    the same key is taken in ms, whatever the others' average)."""
     try:
         v = abs(number) * unit_factor(unit)[0]
     except UnitError:  # pragma: no cover - candidates are known units
         return math.inf
-    return abs(math.log10(v) - center) if v > 0 else math.inf
+    if not v > 0:
+        return math.inf
+    logv = math.log10(v)
+    if min(abs(logv - c) for c in center) < 1e-6:
+        return 0.0
+    return abs(logv - sum(center) / len(center))
 
 
-def _center(seen) -> float | None:
-    """Mean of log10 of the magnitudes (SI) of values seen for the same key: where a plausible value lies."""
-    logs = [math.log10(abs(v)) for _, v in seen if v]
-    return sum(logs) / len(logs) if logs else None
+def _center(seen) -> tuple | None:
+    """log10 of the magnitudes (SI) of the values seen for the same key: where plausible values lie."""
+    logs = tuple(math.log10(abs(v)) for _, v in seen if v)
+    return logs or None
 
 
 def suggest_unit(dims: Dims, number: float | None = None, prefer=(), seen=(), span=None, fallback: str = "") -> str:
