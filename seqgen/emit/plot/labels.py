@@ -21,7 +21,7 @@ MAX_CHECKS = 200_000  # bound on the search: enough for a dozen labels, determin
 # than its own, over a cloud's core or away with a leader costs more; over a centre mark only when unavoidable
 _SIDES = ((0, 1, 0.0), (0, -1, 0.0), (1, 0, 0.15), (-1, 0, 0.15), (1, 1, 0.3), (-1, 1, 0.3), (1, -1, 0.3),
           (-1, -1, 0.3))
-AMBIGUOUS, OVER_CORE, OVER_OWN_CORE, AWAY, OVER_MARK, CROSSING, NEAR_GRID = 3.0, 1.0, 0.4, 1.0, 20.0, 0.5, 0.35
+AMBIGUOUS, OVER_CORE, OVER_OWN_CORE, AWAY, OVER_MARK, CROSSING, NEAR_GRID, UNDER = 3.0, 1.0, 0.4, 1.0, 20.0, 0.5, 0.35, 2.0
 
 
 @dataclass(frozen=True)
@@ -118,16 +118,16 @@ def _candidates(i, anchors, sizes, frame, cores, px):
 
 def _fits(spot, i, chosen, anchors, pad):
     """Can label i take `spot` beside the labels already placed (chosen: [(label, spot)])? The extra cost of
-    leaders crossing, or None when the labels would overlap or a leader would run under a label."""
+    leaders crossing or running under a label, or None when the labels would overlap."""
     grown = Box(spot.box.x0 - pad, spot.box.y0 - pad, spot.box.x1 + pad, spot.box.y1 + pad)
     extra = 0.0
     for k, other in chosen:
         if grown.overlaps(other.box):
             return None
         if spot.leader and other.box.crossed((spot.x, spot.y), anchors[i]):
-            return None
+            extra += UNDER
         if other.leader and spot.box.crossed((other.x, other.y), anchors[k]):
-            return None
+            extra += UNDER
         if spot.leader and other.leader and _segments_cross((spot.x, spot.y), anchors[i], (other.x, other.y),
                                                             anchors[k]):
             extra += CROSSING
@@ -147,7 +147,21 @@ def place_labels(anchors, sizes, frame: Box, cores, px_per_pt: float) -> list[Sp
     for pos in range(n - 1, -1, -1):
         i = order[pos]
         floor[pos] = floor[pos + 1] + (cands[i][0].cost if cands[i] else 0.0)
-    best: list = [math.inf, None]
+    # greedy first (each label in turn its cheapest spot clear of those placed): a bound for the search, and
+    # the answer should the search stop before finding a better one
+    chosen, total = [], 0.0
+    for i in order:
+        fit = None
+        for s in cands[i]:
+            extra = _fits(s, i, chosen, anchors, pad)
+            if extra is not None:
+                fit, total = s, total + s.cost + extra
+                break
+        if fit is None and cands[i]:  # fits nowhere clear of the others: its cheapest spot all the same
+            fit, total = cands[i][0], math.inf
+        if fit is not None:
+            chosen.append((i, fit))
+    best: list = [total, chosen]
     checks = [0]
 
     def search(pos, chosen, cost):
@@ -171,15 +185,6 @@ def place_labels(anchors, sizes, frame: Box, cores, px_per_pt: float) -> list[Sp
             chosen.pop()
 
     search(0, [], 0.0)
-    if best[1] is None:  # nothing fits together: each label in turn takes its cheapest spot clear of the others
-        chosen = []
-        for i in order:
-            fit = next((s for s in cands[i] if _fits(s, i, chosen, anchors, pad) is not None), None)
-            if fit is None and cands[i]:
-                fit = cands[i][0]
-            if fit is not None:
-                chosen.append((i, fit))
-        best[1] = chosen
     spots: list[Spot | None] = [None] * n
     for i, spot in best[1]:
         spots[i] = spot
