@@ -18,6 +18,7 @@ import numpy as np
 from ...caution import CAUTION
 from ...predict import images as pi
 from ...textfmt import fmt_length, fmt_when
+from . import labels as lb
 from .layout import LABEL_PT, TICK_PT
 
 PANEL_IN = (4.6, 3.9)  # width, height of one image panel with its title, labels and colour bar (inches)
@@ -27,6 +28,7 @@ HEAD_IN = 0.4
 NOTE_ROW_IN = 0.13
 DISPLAY_MARGIN = 0.15  # the drawn window reaches this fraction beyond the components' edges
 MIN_DISPLAY_PIXELS = 24
+CORE_TF, CORE_GAUSS = 0.8, 1.5  # a label should rather not hide this much of a cloud: of its TF radii, its rms widths
 COLOUR_MAP = "viridis"  # perceptually uniform, readable in grey and with the common colour-vision deficiencies
 _ZIP_DATE = (1980, 1, 1, 0, 0, 0)
 
@@ -133,8 +135,6 @@ def _window(img):
 
 
 def _panel(fig, ax, img, title: str) -> None:
-    from matplotlib import patheffects
-
     ax.set_title(title, fontsize=LABEL_PT, loc="left")
     if img.od is None:
         ax.set_axis_off()
@@ -155,20 +155,49 @@ def _panel(fig, ax, img, title: str) -> None:
     ax.set_xlabel("image horizontal (um at the atoms)", fontsize=TICK_PT + 0.5)
     ax.set_ylabel("image vertical (um at the atoms)", fontsize=TICK_PT + 0.5)
     ax.tick_params(labelsize=TICK_PT)
-    halo = [patheffects.withStroke(linewidth=2.2, foreground="white")]
     shown = [(c, c.centre[0] * 1e6, c.centre[1] * 1e6) for c in img.components]
     shown = [(c, x, y) for c, x, y in shown if ext[0] <= x <= ext[1] and ext[2] <= y <= ext[3]]
     for c, x, y in shown:
-        words = f"{part_text(c)}\n{c.atoms:.2g} atoms" + ("" if c.imaged else "\nnot imaged")
-        below = y > 0.5 * (ext[2] + ext[3])  # the label goes towards the middle, so it stays in the window
-        left = x > 0.5 * (ext[0] + ext[1])
-        # parts side by side (a barrier's transmitted and reflected ones): labels centred on their own cloud
-        beside = any(o is not c and abs(oy - y) < 0.1 * (ext[3] - ext[2]) for o, _, oy in shown)
-        dx, ha = (0, "center") if beside else ((-8, "right") if left else (8, "left"))
-        ax.annotate(words, (x, y), xytext=(dx, -8 if below else 8), textcoords="offset points",
-                    fontsize=TICK_PT + 0.5, color="#1a1a1a", path_effects=halo, ha=ha,
-                    va="top" if below else "bottom")
         ax.plot([x], [y], marker="+", color="white" if c.imaged else "#bbbbbb", markersize=7, mew=1.2)
+    ax.set_xlim(ext[0], ext[1])  # the image's extent, fixed before the labels read positions
+    ax.set_ylim(ext[2], ext[3])
+    _label_parts(fig, ax, shown)
+
+
+def _label_parts(fig, ax, shown) -> None:
+    """Each shown part's label ("|1,-1> reflected" over its atom number) beside its own cloud, placed by
+    `labels.place_labels` on the text's measured size; a leader line where a label had to move away."""
+    from matplotlib import patheffects
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    if not shown:
+        return
+    renderer = FigureCanvasAgg(fig).get_renderer()  # measures text as the png draws it
+    ax.apply_aspect()  # the equal-aspect box as drawn, before reading positions
+    px = fig.dpi / 72.0
+    halo = [patheffects.withStroke(linewidth=2.2, foreground="white")]
+    texts, sizes, anchors, cores = [], [], [], []
+    for c, x, y in shown:
+        words = f"{part_text(c)}\n{c.atoms:.2g} atoms" + ("" if c.imaged else "\nnot imaged")
+        t = ax.text(x, y, words, fontsize=TICK_PT + 0.5, ha="center", va="center", multialignment="center")
+        ext = t.get_window_extent(renderer)
+        t.remove()
+        sizes.append((ext.width + 2.2 * px, ext.height + 2.2 * px))  # the halo's stroke around the glyphs
+        anchors.append(tuple(float(v) for v in ax.transData.transform((x, y))))
+        reach = np.sqrt(np.diag(c.shadow)) * (CORE_TF if c.thomas_fermi else CORE_GAUSS) * 1e6
+        (x0, y0), (x1, y1) = ax.transData.transform([(x - reach[0], y - reach[1]), (x + reach[0], y + reach[1])])
+        cores.append(lb.Box(float(x0), float(y0), float(x1), float(y1)))
+        texts.append(words)
+    frame = ax.get_window_extent(renderer)
+    spots = lb.place_labels(anchors, sizes, lb.Box(frame.x0, frame.y0, frame.x1, frame.y1), cores, px)
+    for (c, x, y), words, (ax_x, ax_y), (w, h), spot in zip(shown, texts, anchors, sizes, spots):
+        if spot is None:  # larger than the panel: above its cloud
+            spot = lb.Spot(ax_x, ax_y + lb.GAP_PT * px + h / 2, False, 0.0, lb.Box(0, 0, 0, 0))
+        lead = dict(arrowstyle="-", color="white", lw=1.0, shrinkA=1.5, shrinkB=0,
+                    path_effects=[patheffects.withStroke(linewidth=2.4, foreground="#1a1a1a")])
+        ax.annotate(words, (x, y), xytext=((spot.x - ax_x) / px, (spot.y - ax_y) / px), textcoords="offset points",
+                    fontsize=TICK_PT + 0.5, color="#1a1a1a", path_effects=halo, ha="center", va="center",
+                    multialignment="center", arrowprops=lead if spot.leader else None, gid="part-label")
 
 
 def _title(img) -> str:
