@@ -21,6 +21,7 @@ from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, b
 from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec, outward
 from ..values import value_at
 from .rules import rule
+from .ticks import action_outputs, fmt_tick, grid, min_interval, on_grid, on_tick
 
 TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
 TRANSFER_FLOOR = 0.01  # ... but at least by 0.01 in population, so that near-zero intended transfers do not warn on noise
@@ -39,13 +40,35 @@ def pulse_angle(shot):
             k = rep.angle / rep.area
             amp_hint = (f" or amplitude {act.args.get('amplitude', 1.0) * k:.4g}" if act.args.get("amplitude", 1.0) * k <= 1
                         else "")
+            duration, plays = _tick_duration(shot, act, rep.duration * k, rep.angle / rep.area)
             yield make(PULSE_ANGLE, f"pulse area on '{rep.drive}' is {fmt_angle_pi(rep.area)} (peak Rabi frequency "
                        f"2 pi x {fmt_freq(rep.peak_rabi_hz)}, {rep.envelope} envelope, {fmt_time(rep.duration)}), "
                        f"but angle says {fmt_angle_pi(rep.angle)}: off by {fmt_pct(off)} (limit {tol * 100:g} %)",
                        act.pos, block=act.block, time_s=act.t0,
-                       hint=f"use duration {fmt_time(rep.duration * k)}{amp_hint}, or fix the drive's rabi_per_amplitude",
+                       hint=f"use duration {duration}{plays}{amp_hint}, or fix the drive's rabi_per_amplitude",
                        data={"area_rad": rep.area, "angle_rad": rep.angle})
 
+
+
+def _tick_duration(shot, act, want: float, scale: float) -> tuple[str, str]:
+    """The duration nearest to `want` that the devices of the pulse's channels play (a whole number of their
+    ticks, at least their minimum interval), as text, and the angle it plays when that is not the angle asked
+    (the area scales with the duration at a given envelope and amplitude: theta = Omega t, Phys. Rev. 51, 652
+    (1937)). `scale`: the angle asked over the area of the pulse as it plays now."""
+    outs = action_outputs(shot, act)
+    g = grid(shot, outs)
+    if not g > 0:
+        return fmt_time(want), ""
+    now = on_tick(act.t1, g) - on_tick(act.t0, g)  # as the pulse plays now (its edges on their ticks)
+    d = on_grid(act.t0, now * scale if now > 0 else want, g, "nearest", at_least=min_interval(shot, outs))
+    if not now > 0:
+        return fmt_tick(d, g, lead=act.t0), ""
+    played_d = on_tick(act.t0 + d, g) - on_tick(act.t0, g)
+    angle = act.args["angle"]
+    got = angle * played_d / (now * scale) if now * scale > 0 else angle
+    near = (f" (it plays {fmt_angle_pi(got)}, the nearest a {fmt_time(g)} tick allows)"
+            if abs(played_d - now * scale) > 1e-3 * g else "")
+    return fmt_tick(d, g, lead=act.t0), near
 
 
 def _writer(shot, output, t):
