@@ -18,6 +18,7 @@ from ..predict.text import (in_barrier_drive_reason, larmor_clock_text, release_
                             stand_in_text)
 from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time, outward
 from .rules import rule
+from .ticks import duration_text, moment_text
 
 MISSED_FRACTION = 0.10  # a barrier may miss at most 10 % of the cloud (common practice, no source)
 SLOW_TAIL = 3.0  # 99 % across later than this many times the centre's arrival: the slow tail sets the bound
@@ -82,7 +83,7 @@ def barrier_too_short(shot):
         if ps.late <= MISSED_FRACTION:
             continue
         need = ps.need_off - ps.on
-        hint = (f"keep the barrier on for at least {fmt_time(outward(need), unit='ms', nonfinite='never')} (99 % of the cloud across)" if math.isfinite(need)
+        hint = (f"keep the barrier on for at least {duration_text(shot, act, outward(need), 'up', unit='ms')} (99 % of the cloud across)" if math.isfinite(need)
                 else "part of the cloud never reaches the sheet: push harder")
         if math.isfinite(need) and ps.need_off > SLOW_TAIL * ps.centre_arrival:
             # the slowest atoms set the bound: it falls steeply as the push outruns the spread
@@ -97,6 +98,13 @@ def barrier_too_short(shot):
                    data={"missed_fraction": ps.late, "barrier_off_s": ps.off, "needed_off_s": ps.need_off})
 
 
+def _no_later(shot, act, ps) -> str:
+    """The latest start of the barrier, from the push's start, that its devices play (on a tick, not after)."""
+    if not math.isfinite(ps.need_on):
+        return "never"
+    return moment_text(shot, act, outward(ps.need_on, up=False), act.t0 - ps.on, "down", unit="ms")[0]
+
+
 @rule(BARRIER_TOO_LATE, stage="physics")
 def barrier_too_late(shot):
     for act, rep in _each(shot):
@@ -106,7 +114,7 @@ def barrier_too_late(shot):
         yield make(BARRIER_TOO_LATE, f"barrier '{act.args['beam']}' comes on {fmt_time(ps.on, unit='ms', nonfinite='never')} after the push "
                    f"starts, when {fmt_pct(ps.early)} of the cloud has already reached the sheet {fmt_length(ps.distance, mm_from=1e-2)} "
                    f"away (v = {rep.speed * 1e3:.4g} mm/s)", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"start the barrier no later than {fmt_time(outward(ps.need_on, up=False), unit='ms', nonfinite='never')} after the push starts",
+                   hint=f"start the barrier no later than {_no_later(shot, act, ps)} after the push starts",
                    data={"early_fraction": ps.early, "barrier_on_s": ps.on, "needed_on_s": ps.need_on})
 
 

@@ -21,7 +21,7 @@ from ..predict.species import MU_B, bias
 from ..predict.states import barriers, rel_off
 from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec, outward
 from .rules import rule
-from .ticks import action_outputs, fmt_tick, grid, min_interval, on_grid, on_tick
+from .ticks import action_outputs, duration_text, fmt_tick, grid, min_interval, on_grid, on_tick
 
 PUSH_TOLERANCE = 0.10
 
@@ -165,7 +165,7 @@ def push_too_late(shot):
             yield make(PUSH_TOO_LATE, f"the atoms reach {fmt_length(act.args['target_distance'], unit='mm')} {when} "
                        f"({abs(rep.velocity) * 1e3:.4g} mm/s), but the barrier in block '{b.block}' ends at "
                        f"t = {fmt_time(b.t1)}", b.pos, block=b.block, time_s=b.t1,
-                       hint=(f"keep the barrier on until at least {fmt_time(outward(rep.arrival - b.t0, strict=True))} "
+                       hint=(f"keep the barrier on until at least {duration_text(shot, b, outward(rep.arrival - b.t0, strict=True), 'up')} "
                              "after its start" if not math.isinf(rep.arrival) else "the push gives no velocity"),
                        data={"arrival_s": rep.arrival, "barrier_end_s": b.t1})
 

@@ -21,7 +21,7 @@ from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, b
 from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec, outward
 from ..values import value_at
 from .rules import rule
-from .ticks import action_outputs, fmt_tick, grid, min_interval, on_grid, on_tick
+from .ticks import action_outputs, duration_text, fmt_tick, grid, min_interval, on_grid, on_tick
 
 TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
 TRANSFER_FLOOR = 0.01  # ... but at least by 0.01 in population, so that near-zero intended transfers do not warn on noise
@@ -191,7 +191,7 @@ def sweep_not_adiabatic(shot):
                        f"{fmt_freq(abs(rep.rate_hz_s))}/s with Rabi frequency 2 pi x {fmt_freq(rep.rabi_hz)}: "
                        f"Landau-Zener transfer {rep.lz_transfer:.3g} (below {LZ_MIN_TRANSFER:g}){bloch}", seg.pos,
                        block=seg.block, time_s=rep.t_cross,
-                       hint=f"lengthen the sweep to at least {fmt_time(outward(need, strict=True))} (linear), or raise "
+                       hint=f"lengthen the sweep to at least {duration_text(shot, seg, outward(need, strict=True), 'up')} (linear), or raise "
                             "the amplitude",
                        data={"lz_transfer": rep.lz_transfer, "rate_hz_s": rep.rate_hz_s})
 
@@ -329,7 +329,7 @@ def _forbidden_pulse_hint(shot, drive, act, rep, pair) -> str:
     t, w = pulse_nodes(act.t0, act.t1)
     area = TWO_PI * drive.rabi_per_amplitude_hz * factor * float(np.sum(w * value_at(shot, rep.amp_output, t)))
     if rep.angle and area > 0:
-        parts.append(f"duration: {fmt_time(rep.duration * rep.angle / area, 5)}")
+        parts.append(f"duration: {duration_text(shot, act, rep.duration * rep.angle / area, digits=5)}")
     if "frequency" in act.args:
         nu, _ = line(species(shot), new[0], new[1], bias(shot))
         parts.append(f"frequency: {nu + drive.light_shift_hz + rep.intended_detuning_hz:.10g} Hz")

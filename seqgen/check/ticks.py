@@ -77,3 +77,26 @@ def fmt_tick(d: float, g: float, digits: int = 4, *, unit: str | None = None, le
         if abs(float(number) * _SCALE.get(u, 1.0) - d) <= 1e-6 * g + 1e-15 * abs(lead):
             break
     return text
+
+
+def duration_text(shot, act, d: float, mode: str = "nearest", *, digits: int = 4, unit: str | None = None,
+                  outputs: tuple | None = None) -> str:
+    """A duration of the action `act` (PhysAction or Segment) near `d`, as its devices play it (`on_grid`, at
+    least their minimum interval), in words; `outputs`: the channels whose ticks count (default: the action's)."""
+    outs = action_outputs(shot, act) if outputs is None else outputs
+    g = grid(shot, outs)
+    if not g > 0 or not math.isfinite(d):
+        return fmt_time(d, digits, unit=unit)
+    return fmt_tick(on_grid(act.t0, d, g, mode, at_least=min_interval(shot, outs)), g, digits, unit=unit, lead=act.t0)
+
+
+def moment_text(shot, act, t: float, base: float, mode: str, *, digits: int = 4, unit: str | None = None,
+                outputs: tuple | None = None) -> tuple[str, float]:
+    """A time `t` counted from `base` (s) at which the action `act` starts on a tick of its devices (the nearest,
+    or the next after / before it), in words, and its value (s)."""
+    outs = action_outputs(shot, act) if outputs is None else outputs
+    g = grid(shot, outs)
+    if not g > 0 or not math.isfinite(t):
+        return fmt_time(t, digits, unit=unit), t
+    x = on_tick(base + t, g, mode) - base
+    return fmt_tick(x, g, digits, unit=unit, lead=base), x
