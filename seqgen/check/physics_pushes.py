@@ -21,7 +21,7 @@ from ..predict.species import MU_B, bias
 from ..predict.states import barriers, rel_off
 from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec, outward
 from .rules import rule
-from .ticks import action_outputs, duration_text, fmt_tick, grid, min_interval, on_grid, on_tick
+from .ticks import action_outputs, duration_text, fmt_tick, grid, min_interval, on_grid, overlap
 
 PUSH_TOLERANCE = 0.10
 
@@ -54,8 +54,9 @@ def push_velocity(shot):
 
 
 def _played_span(shot, act, g: float) -> float:
-    """The push's duration as its edges play, each on its tick (its written duration without a grid)."""
-    d = on_tick(act.t1, g) - on_tick(act.t0, g) if g > 0 else act.t1 - act.t0
+    """The push's duration as its edges play, each on its tick, within the written interval its kick is
+    integrated over (its written duration without a grid)."""
+    d = overlap(act.t0, act.t1, g)
     return d if d > 0 else act.t1 - act.t0
 
 

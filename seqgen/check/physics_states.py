@@ -21,7 +21,7 @@ from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, b
 from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec, outward
 from ..values import value_at
 from .rules import rule
-from .ticks import action_outputs, duration_text, fmt_tick, grid, min_interval, on_grid, on_tick
+from .ticks import action_outputs, duration_text, fmt_tick, grid, min_interval, on_grid, on_tick, overlap
 
 TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
 TRANSFER_FLOOR = 0.01  # ... but at least by 0.01 in population, so that near-zero intended transfers do not warn on noise
@@ -59,7 +59,7 @@ def _tick_duration(shot, act, want: float, scale: float) -> tuple[str, str]:
     g = grid(shot, outs)
     if not g > 0:
         return fmt_time(want), ""
-    now = on_tick(act.t1, g) - on_tick(act.t0, g)  # as the pulse plays now (its edges on their ticks)
+    now = overlap(act.t0, act.t1, g)  # the played pulse the area was integrated over (its edges on their ticks)
     d = on_grid(act.t0, now * scale if now > 0 else want, g, "nearest", at_least=min_interval(shot, outs))
     if not now > 0:
         return fmt_tick(d, g, lead=act.t0), ""

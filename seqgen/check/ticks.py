@@ -56,6 +56,14 @@ def on_grid(t0: float, d: float, g: float, mode: str = "nearest", at_least: floa
     return s0 + k * g - t0
 
 
+def overlap(t0: float, t1: float, g: float) -> float:
+    """How long the pulse written from t0 to t1 plays inside [t0, t1], its edges on the grid `g`: the part of it an
+    analysis that integrates what is played over the written interval sees (t1 - t0 without a grid)."""
+    if not g > 0:
+        return t1 - t0
+    return max(0.0, min(t1, on_tick(t1, g)) - max(t0, on_tick(t0, g)))
+
+
 def on_tick(t: float, g: float, mode: str = "nearest") -> float:
     """A moment `t` (s) on the grid `g`: the nearest tick, or the next at or after ("up") / at or before ("down")."""
     if not g > 0 or not math.isfinite(t):
