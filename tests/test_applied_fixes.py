@@ -394,3 +394,19 @@ def test_every_proposed_duration_is_on_the_tick_and_passes_on_a_coarse_rig(proje
     new = {(g.code, g.line) for g in after if g.code == "timing.sub-tick" or g.severity == "error"}
     new -= {(g.code, g.line) for g in before}
     assert not new, [(g.code, g.line, g.message) for g in after if (g.code, g.line) in new]
+
+
+@pytest.mark.parametrize("fault, code, key", [("pulse_detuned.yaml", "physics.pulse-detuned", "frequency"),
+                                              ("modulation_off_resonance.yaml", "physics.modulation-off-resonance", "frequency")])
+def test_proposed_synth_frequency_is_a_word_the_synth_plays(project, fault, code, key):
+    # the demo rig's synth words: 32 bits over [1.0 GHz, 2.5 GHz], one step = 1.5 GHz / 2^32
+    step, low = 1.5e9 / 2 ** 32, 1.0e9
+    path = f"sequences/faults/{fault}"
+    f = next(g for g in check(path) if g.code == code)
+    value = proposal(f.hint).quantity
+    words = (si(value) - low) / step
+    assert abs(words - round(words)) < 1e-3, (value, words)
+    write_key(path, f.line, key, value)
+    after = check(path)
+    assert not [g for g in after if g.code == code and g.line == f.line]
+    assert not _sub_ticks(after, f.line) and errors(after) == []

@@ -21,7 +21,7 @@ from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, b
 from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec, outward
 from ..values import value_at
 from .rules import rule
-from .ticks import action_outputs, duration_text, fmt_tick, grid, min_interval, on_grid, on_tick, overlap
+from .ticks import action_outputs, duration_text, fmt_tick, freq_text, grid, min_interval, on_grid, on_tick, overlap
 
 TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
 TRANSFER_FLOOR = 0.01  # ... but at least by 0.01 in population, so that near-zero intended transfers do not warn on noise
@@ -69,6 +69,19 @@ def _tick_duration(shot, act, want: float, scale: float) -> tuple[str, str]:
     near = (f" (it plays {fmt_angle_pi(got)}, the nearest a {fmt_time(g)} tick allows)"
             if abs(played_d - now * scale) > 1e-3 * g else "")
     return fmt_tick(d, g, lead=act.t0), near
+
+
+def _freq_output(shot, drive_name):
+    """The synth frequency output a drive's pulse writes, or None."""
+    drive = shot.rig.drives.get(drive_name)
+    name = f"{drive.channel}.freq" if drive is not None else None
+    return name if name in shot.rig.outputs else None
+
+
+def _mod_output(shot, act):
+    """The synth frequency output a barrier's modulation writes (its mod_channel), or None."""
+    name = act.args.get("mod_channel")
+    return name if name in shot.rig.outputs else (f"{name}.freq" if f"{name}.freq" in shot.rig.outputs else None)
 
 
 def _writer(shot, output, t):
@@ -166,7 +179,8 @@ def pulse_detuned(shot):
             yield make(PULSE_DETUNED, f"{what}{fmt_freq(rep.detuning_hz)} from the {fmt_state(*initial)} -> "
                        f"{fmt_state(*final)} line at {fmt_freq(rep.resonance_hz, 10)} ({bias(shot) * 1e4:.4g} G bias)"
                        f"{tail}; transfer {p:.3g} instead of {p0:.3g}" + (f"; Fourier width {fmt_freq(fw)}" if fw else ""),
-                       act.pos, block=act.block, time_s=act.t0, hint=f"{fix} frequency: {target:.10g} Hz", data=data)
+                       act.pos, block=act.block, time_s=act.t0,
+                       hint=f"{fix} frequency: {freq_text(shot, _freq_output(shot, rep.drive), target)}", data=data)
 
 
 @rule(SWEEP_NOT_ADIABATIC, stage="physics")
@@ -215,7 +229,8 @@ def modulation_off_resonance(shot):
             yield make(MODULATION_OFF_RESONANCE, f"modulation at {fmt_freq(rep.f_mod, 10)} is "
                        f"{fmt_freq(rep.offset_hz)} from the {fmt_state(*a)} -> {fmt_state(*b)} line at {line_text}, "
                        f"{beyond} the {fmt_time(act.args['duration'])} pulse's Fourier width {fmt_freq(rep.fourier_hz)}",
-                       act.pos, block=act.block, time_s=act.t0, hint=f"set modulation frequency: {rep.resonance_hz:.10g} Hz",
+                       act.pos, block=act.block, time_s=act.t0,
+                       hint=f"set modulation frequency: {freq_text(shot, _mod_output(shot, act), rep.resonance_hz)}",
                        data={"offset_hz": rep.offset_hz, "rabi_hz": rep.rabi_hz})
 
 

@@ -108,3 +108,17 @@ def moment_text(shot, act, t: float, base: float, mode: str, *, digits: int = 4,
         return fmt_time(t, digits, unit=unit), t
     x = on_tick(base + t, g, mode) - base
     return fmt_tick(x, g, digits, unit=unit, lead=base), x
+
+
+def freq_text(shot, output: str | None, f: float, digits: int = 10) -> str:
+    """A frequency (Hz) a fix proposes for the synth frequency `output`, on its word (the nearest code: code_zero +
+    code x lsb), with the digits that land on it; `digits` significant digits without a word."""
+    out = shot.rig.outputs.get(output) if output else None
+    lsb = out.lsb if out is not None else 0.0
+    if not lsb > 0 or not math.isfinite(f):
+        return f"{f:.{digits}g} Hz"
+    f = out.code_zero + round((f - out.code_zero) / lsb) * lsb
+    for n in range(digits, 18):
+        if abs(float(f"{f:.{n}g}") - f) <= 1e-3 * lsb:
+            break
+    return f"{f:.{n}g} Hz"
