@@ -8,6 +8,7 @@ appeared in its place. The units the fixes are expected to name are those the de
 computed by seqgen.
 """
 
+import math
 import re
 from pathlib import Path
 
@@ -15,7 +16,7 @@ import pytest
 
 from seqgen.pipeline import preflight
 
-from .demo_copy import check, edit, errors, scalar_end
+from .demo_copy import check, edit, errors, proposal, scalar_end, si, write_key
 
 THERMO = "sequences/na23_thermometry.yaml"
 SCATTER = "sequences/na23_barrier_scatter.yaml"
@@ -252,10 +253,6 @@ def test_reflected_part_out_of_view_fix_images_it_earlier(project):
 # of the channels the action writes. The rig is made coarse here (the cards tick every 1 us, the synthesizer
 # every 4 us with a 4 us minimum interval), so that a value off the tick is seen; the fix, applied, must leave
 # neither the finding nor a new timing.sub-tick note, and play a value as close to the target as a tick allows.
-
-import math  # noqa: E402
-
-from .demo_copy import proposal, si, write_key  # noqa: E402
 
 CARD_TICK, SYNTH_TICK = 1e-6, 4e-6  # s: the coarse rig below
 RABI_PER_AMPLITUDE = 5e3  # Hz: the demo rig's drive 'mw' (rabi_per_amplitude: 5 kHz)
