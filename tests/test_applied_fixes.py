@@ -8,6 +8,7 @@ appeared in its place. The units the fixes are expected to name are those the de
 computed by seqgen.
 """
 
+import math
 import re
 from pathlib import Path
 
@@ -15,7 +16,7 @@ import pytest
 
 from seqgen.pipeline import preflight
 
-from .demo_copy import check, edit, errors, scalar_end
+from .demo_copy import check, edit, errors, proposal, scalar_end, si, write_key
 
 THERMO = "sequences/na23_thermometry.yaml"
 SCATTER = "sequences/na23_barrier_scatter.yaml"
@@ -262,3 +263,164 @@ def test_barrier_not_reached_fix_images_later_and_the_transmission_follows(proje
     note = next(g for g in after if g.code == "physics.barrier-transmission")
     assert "transmitted fraction" in note.message
     assert not [g for g in after if g.severity == "warning" and g.code.startswith("physics.barrier")]
+
+
+# ----------------------------------------------------------------------------- 7. proposed times on the hardware's ticks
+# A fix that proposes a duration or a moment must name one the devices play: a whole number of ticks of the devices
+# of the channels the action writes. The rig is made coarse here (the cards tick every 1 us, the synthesizer
+# every 4 us with a 4 us minimum interval), so that a value off the tick is seen; the fix, applied, must leave
+# neither the finding nor a new timing.sub-tick note, and play a value as close to the target as a tick allows.
+
+CARD_TICK, SYNTH_TICK = 1e-6, 4e-6  # s: the coarse rig below
+RABI_PER_AMPLITUDE = 5e3  # Hz: the demo rig's drive 'mw' (rabi_per_amplitude: 5 kHz)
+KICK_GRADIENT_PER_AMP, KICK_MAX_CURRENT = 0.25, 80.0  # G/cm/A and A: the demo rig's kick_coil
+
+
+def _coarse_rig():
+    text = Path(RIG).read_text(encoding="utf-8")
+    for old, new in (("timebase: 10 MHz, min_interval: 200 ns", "timebase: 1 MHz, min_interval: 2 us"),
+                     ("synth_rf:   {timebase: 1 MHz, min_interval: 4 us", "synth_rf:   {timebase: 250 kHz, min_interval: 4 us")):
+        assert text.count(old) == 1, old
+        text = text.replace(old, new)
+    Path(RIG).write_text(text, encoding="utf-8")
+
+
+def _sequence(name, action):
+    path = f"sequences/faults/{name}.yaml"
+    Path(path).write_text("seqgen: 1\nrig: ../rigs/na23_demo_rig.yaml\nsample: {species: Na23, state: {F: 1, mF: -1}, "
+                          "atoms: 1.0e5, temperature: 100 nK}\nblocks:\n  - name: one\n    at: 1 ms\n    actions:\n"
+                          f"      - {action}\n", encoding="utf-8")
+    return path
+
+
+def _sub_ticks(findings, line):
+    return [g for g in findings if g.code == "timing.sub-tick" and g.line == line]
+
+
+def _on_grid(t, tick):
+    return abs(t / tick - round(t / tick)) < 1e-6
+
+
+def _apply_and_recheck(path, code, key):
+    before = check(path)
+    f = next(g for g in before if g.code == code)  # the written value may itself be off the tick: a note
+    value = proposal(f.hint).quantity
+    write_key(path, f.line, key, value)
+    after = check(path)
+    assert not [g for g in after if g.code == code], [(g.message, g.hint) for g in after if g.code == code]
+    assert not _sub_ticks(after, f.line), [g.message for g in _sub_ticks(after, f.line)]
+    assert errors(after) == [], [(g.code, g.message) for g in errors(after)]
+    return f, si(value), after
+
+
+@pytest.mark.parametrize("amplitude, written", [(0.64, "37 us"), (0.7, "50 us"), (1, "31.28 us")])
+def test_pulse_angle_fix_is_a_whole_number_of_synth_ticks_nearest_in_angle(project, amplitude, written):
+    _coarse_rig()
+    path = _sequence("tick_pulse", f"clock_pulse: {{drive: mw, angle: pi, duration: {written}, amplitude: {amplitude}, "
+                                   "frequency: 1.7691054 GHz, transition: [{F: 1, mF: -1}, {F: 2, mF: -2}]}")
+    f, d, _ = _apply_and_recheck(path, "physics.pulse-angle", "duration")
+    assert _on_grid(d, SYNTH_TICK) and d >= SYNTH_TICK
+    # Rabi (Phys. Rev. 51, 652 (1937)): a square pulse turns the state by theta = Omega t, Omega = 2 pi x 5 kHz x amplitude
+    omega = 2 * math.pi * RABI_PER_AMPLITUDE * amplitude
+    assert abs(omega * d - math.pi) <= omega * SYNTH_TICK / 2 * (1 + 1e-6)  # the nearest tick in angle
+    ideal = math.pi / omega
+    if not _on_grid(ideal, SYNTH_TICK):  # off the tick: the fix says the angle it plays
+        stated = float(re.search(r"it plays ([\d.]+) rad", f.hint).group(1))
+        assert stated == pytest.approx(omega * d, rel=2e-3)
+
+
+def test_pulse_angle_fix_on_the_demo_synth_lands_on_its_1_us_tick(project):
+    # the brief's case: 2 pi x 5 kHz x 0.64 x t = pi needs 156.25 us; the synth (1 MHz) plays 156 us
+    path = _sequence("tick_pulse", "clock_pulse: {drive: mw, angle: pi, duration: 37 us, amplitude: 0.64, "
+                                   "frequency: 1.7691054 GHz, transition: [{F: 1, mF: -1}, {F: 2, mF: -2}]}")
+    f, d, _ = _apply_and_recheck(path, "physics.pulse-angle", "duration")
+    assert d == pytest.approx(156e-6, abs=1e-12)
+    assert "0.998 pi" in f.hint  # 156 / 156.25
+
+
+@pytest.mark.parametrize("velocity", ["38 mm/s", "31 mm/s", "23.3 mm/s"])
+def test_push_velocity_fix_is_a_whole_number_of_card_ticks(project, velocity):
+    _coarse_rig()
+    path = _sequence("tick_push", f"push: {{coil: kick_coil, gradient: 8 G/cm, duration: 2 ms, expect_velocity: {velocity}}}")
+    before = [g for g in check(path) if g.code == "physics.push-velocity"][0]
+    got = before.data["velocity_m_s"]
+    f, d, _ = _apply_and_recheck(path, "physics.push-velocity", "duration")
+    assert _on_grid(d, CARD_TICK)
+    # the kick of a constant force grows as its duration (v = F t / m): per tick, got / 2 ms x 1 us
+    want = si(velocity)
+    assert abs(got * d / 2e-3 - want) <= got * CARD_TICK / 2e-3 / 2 * (1 + 1e-6)
+
+
+def test_push_velocity_fix_for_a_current_beyond_the_channel_brings_it_within_range(project):
+    # 30 G/cm is 120 A in kick_coil: beyond the channel's 100 A range and its 80 A hard limit, so the push plays a
+    # clipped current; a duration computed from the clipped kick does not fix the real errors
+    path = _sequence("tick_push", "push: {coil: kick_coil, gradient: 30 G/cm, duration: 1 ms, expect_velocity: 38 mm/s}")
+    found = check(path)
+    f = next(g for g in found if g.code == "physics.push-velocity")
+    assert "first bring the current within the channel's range" in f.hint
+    gradient = re.search(r"gradient: ([\d.]+) G/cm", f.hint).group(1)
+    duration = re.search(r"duration: ([\d.]+ m?s)", f.hint).group(1)
+    assert float(gradient) <= KICK_GRADIENT_PER_AMP * KICK_MAX_CURRENT  # 20 G/cm at 80 A
+    write_key(path, f.line, "gradient", f"{gradient} G/cm")
+    write_key(path, f.line, "duration", duration)
+    after = check(path)
+    assert errors(after) == [], [(g.code, g.message) for g in errors(after)]
+    assert not [g for g in after if g.code == "physics.push-velocity" or g.code == "timing.sub-tick"]
+    assert _on_grid(si(duration), CARD_TICK)
+
+
+# fault file, code, key the fix writes: each audited duration fix, on the coarse rig
+TICK_CASES = [
+    ("sweep_not_adiabatic.yaml", "physics.sweep-not-adiabatic", "over", SYNTH_TICK),
+    ("imaging_blur.yaml", "physics.imaging-blur", "duration", CARD_TICK),
+    ("probe_doppler.yaml", "physics.probe-doppler", "duration", CARD_TICK),
+    ("exposure_too_short.yaml", "hardware.exposure-too-short", "exposure", CARD_TICK),
+    ("barrier_too_short.yaml", "physics.barrier-too-short", "duration", CARD_TICK),
+    ("push_too_late.yaml", "physics.barrier-too-short", "duration", CARD_TICK),
+    ("pulse_too_short.yaml", "hardware.pulse-too-short", "width", CARD_TICK),
+    ("slew.yaml", "hardware.slew", "over", CARD_TICK),
+    ("pulse_angle.yaml", "physics.pulse-angle", "duration", SYNTH_TICK),
+    ("push_velocity.yaml", "physics.push-velocity", "duration", CARD_TICK),
+]
+
+
+@pytest.mark.parametrize("fault, code, key, tick", TICK_CASES, ids=[f"{c}-{f[:-5]}" for f, c, _, _ in TICK_CASES])
+@pytest.mark.parametrize("change", [None, "skew"])
+def test_every_proposed_duration_is_on_the_tick_and_passes_on_a_coarse_rig(project, fault, code, key, tick, change):
+    _coarse_rig()
+    path = f"sequences/faults/{fault}"
+    if change == "skew":  # the bound falls elsewhere between two ticks: the same fault, one number off by a third
+        text = Path(path).read_text(encoding="utf-8")
+        m = re.search(rf"\b{key}: (\d+(?:\.\d+)?) (ms|us)", text)
+        if m is None:
+            pytest.skip(f"{fault} writes no {key}")
+        Path(path).write_text(text[:m.start(1)] + f"{float(m.group(1)) * 0.97:.6g}" + text[m.end(1):], encoding="utf-8")
+    before = check(path)
+    hits = [g for g in before if g.code == code]
+    if not hits and change:
+        pytest.skip("the changed number does not raise the finding")
+    f = hits[0]
+    value = proposal(f.hint).quantity
+    assert _on_grid(si(value), tick), (value, f.hint)
+    write_key(path, f.line, key, value)
+    after = check(path)
+    assert not [g for g in after if g.code == code and g.line == f.line], [(g.message, g.hint) for g in after if g.code == code]
+    new = {(g.code, g.line) for g in after if g.code == "timing.sub-tick" or g.severity == "error"}
+    new -= {(g.code, g.line) for g in before}
+    assert not new, [(g.code, g.line, g.message) for g in after if (g.code, g.line) in new]
+
+
+@pytest.mark.parametrize("fault, code, key", [("pulse_detuned.yaml", "physics.pulse-detuned", "frequency"),
+                                              ("modulation_off_resonance.yaml", "physics.modulation-off-resonance", "frequency")])
+def test_proposed_synth_frequency_is_a_word_the_synth_plays(project, fault, code, key):
+    # the demo rig's synth words: 32 bits over [1.0 GHz, 2.5 GHz], one step = 1.5 GHz / 2^32
+    step, low = 1.5e9 / 2 ** 32, 1.0e9
+    path = f"sequences/faults/{fault}"
+    f = next(g for g in check(path) if g.code == code)
+    value = proposal(f.hint).quantity
+    words = (si(value) - low) / step
+    assert abs(words - round(words)) < 1e-3, (value, words)
+    write_key(path, f.line, key, value)
+    after = check(path)
+    assert not [g for g in after if g.code == code and g.line == f.line]
+    assert not _sub_ticks(after, f.line) and errors(after) == []

@@ -16,6 +16,7 @@ from ..compile.sampling import quantize_times
 from ..findings import make
 from ..textfmt import fmt_si, fmt_time, outward
 from .rules import rule
+from .ticks import duration_text, fmt_tick, grid, on_grid, on_tick
 
 
 def _extremes(seg):
@@ -122,8 +123,16 @@ def pulse_width(shot):
             if width < out.min_pulse_s - 1e-12:  # float noise of a difference of times up to ~1000 s
                 yield make(PULSE_TOO_SHORT, f"pulse on '{out.name}' lasts {fmt_time(width, unit='us')}, shorter than its "
                            f"minimum {fmt_time(out.min_pulse_s, unit='us')}", s.pos, block=s.block, time_s=s.t0,
-                           hint=f"make it at least {fmt_time(outward(out.min_pulse_s), unit='us')}",
+                           hint=f"make it at least {_min_width(shot, out, times[k - 1])}",
                            data={"width_s": width, "min_width_s": out.min_pulse_s})
+
+
+def _min_width(shot, out, start: float) -> str:
+    """The shortest pulse width, from its start, at or above the output's minimum that its device plays (a whole
+    number of its ticks)."""
+    g = grid(shot, (out.name,))
+    w = outward(out.min_pulse_s)
+    return fmt_tick(on_grid(start, w, g, "up"), g, unit="us", lead=start) if g > 0 else fmt_time(w, unit="us")
 
 
 @rule(SLEW)
@@ -144,7 +153,7 @@ def slew_rate(shot):
                 yield make(SLEW, f"ramp on '{out.name}' changes at up to {rate:.4g} {out.phys_unit}/s, "
                            f"{rate / out.max_slew:.3g} times its max slew {out.max_slew:.4g} {out.phys_unit}/s", s.pos,
                            block=s.block, time_s=s.t0,
-                           hint=f"make the ramp at least {fmt_time(outward((s.t1 - s.t0) * rate / out.max_slew), unit='ms')} long",
+                           hint=f"make the ramp at least {duration_text(shot, s, outward((s.t1 - s.t0) * rate / out.max_slew), 'up', unit='ms', outputs=(s.output,))} long",
                            data={"rate": rate, "max_slew": out.max_slew})
 
 
@@ -179,8 +188,11 @@ def synth_settling(shot):
             if last is None or a.t0 - last.t1 >= fout.settling_s * (1 - 1e-9):
                 continue
             gap = a.t0 - last.t1
-            hint = (f"write the frequency at least {fmt_time(outward(fout.settling_s), unit='us')} before the "
-                    f"pulse (at or before t = {fmt_time(outward(a.t0 - fout.settling_s, up=False), unit='ms')}), "
+            g = grid(shot, (fout.name, aout.name))  # the lead and the moments, in whole ticks of the synth
+            lead = on_grid(0.0, outward(fout.settling_s), g, "up") if g > 0 else outward(fout.settling_s)
+            latest = on_tick(a.t0 - lead, g, "down") if g > 0 else outward(a.t0 - fout.settling_s, up=False)
+            hint = (f"write the frequency at least {fmt_tick(lead, g, unit='us')} before the "
+                    f"pulse (at or before t = {fmt_tick(latest, g, 6, unit='ms')}), "
                     "or give the clock_pulse its `frequency:`, which it writes that far ahead")
             end = _pulse_end(shot, a)
             if last.action == "clock_pulse" and last.t0 + fout.settling_s > a.t0 + 1e-12 and end is not None:
@@ -190,7 +202,7 @@ def synth_settling(shot):
                 hint = (f"the clock_pulse at line {last.pos.line} (block '{last.block}') writes its frequency "
                         f"{fmt_time(fout.settling_s, unit='us')} (the synth's settling time) ahead of its own pulse, before "
                         f"this pulse ends at t = {fmt_time(end, 6, unit='ms')}: start {whom} at least "
-                        f"{fmt_time(outward(end - last.t0), unit='us')} later")
+                        f"{fmt_tick(on_grid(0.0, outward(end - last.t0), g, 'up') if g > 0 else outward(end - last.t0), g, unit='us')} later")
             yield make(SYNTH_SETTLING, f"'{channel}' turns its amplitude on {fmt_time(gap, unit='us')} after its frequency "
                        f"was written ({last.pos.file}:{last.pos.line}, block '{last.block}'); it settles in "
                        f"{fmt_time(fout.settling_s, unit='us')}, so the pulse starts while the frequency is in transit (for "

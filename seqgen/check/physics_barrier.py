@@ -19,6 +19,7 @@ from ..predict.text import (in_barrier_drive_reason, larmor_clock_text, release_
                             stand_in_text)
 from ..textfmt import fmt_energy, fmt_freq, fmt_length, fmt_pct, fmt_time, outward
 from .rules import rule
+from .ticks import duration_text, moment_text
 
 MOST_MISSED = 0.50  # from half of the cloud missed on, a too-short barrier is an error (common practice, no source)
 SLOW_TAIL = 3.0  # 90 % across later than this many times the centre's arrival: the slow tail sets the bound
@@ -45,7 +46,8 @@ def duration_hint(shot, act, rep) -> str:
         return (f"no barrier duration can: 90 % of the cloud has crossed the sheet only "
                 f"{fmt_time(ps.on + need, unit='ms', nonfinite='never')} after the push starts, after the image at "
                 f"{fmt_time(ps.image_at, unit='ms')}; push harder or image later")
-    return f"keep the barrier on for at least {fmt_time(outward(need, strict=True), unit='ms', nonfinite='never')} (90 % of the cloud across)"
+    return (f"keep the barrier on for at least {duration_text(shot, act, outward(need, strict=True), 'up', unit='ms')} "
+            "(90 % of the cloud across)")
 
 
 def _each(shot):
@@ -157,6 +159,13 @@ def barrier_too_short(shot):
                    data={"missed_fraction": ps.late, "barrier_off_s": ps.off, "needed_off_s": ps.on + needed_duration(shot, act, rep)})
 
 
+def _no_later(shot, act, ps) -> str:
+    """The latest start of the barrier, from the push's start, that its devices play (on a tick, not after)."""
+    if not math.isfinite(ps.need_on):
+        return "never"
+    return moment_text(shot, act, outward(ps.need_on, up=False), act.t0 - ps.on, "down", unit="ms")[0]
+
+
 @rule(BARRIER_TOO_LATE, stage="physics")
 def barrier_too_late(shot):
     for act, rep in _each(shot):
@@ -166,7 +175,7 @@ def barrier_too_late(shot):
         yield make(BARRIER_TOO_LATE, f"barrier '{act.args['beam']}' comes on {fmt_time(ps.on, unit='ms', nonfinite='never')} after the push "
                    f"starts, when {fmt_pct(ps.early)} of the cloud has already reached the sheet {fmt_length(ps.distance, mm_from=1e-2)} "
                    f"away (v = {rep.speed * 1e3:.4g} mm/s)", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"start the barrier no later than {fmt_time(outward(ps.need_on, up=False), unit='ms', nonfinite='never')} after the push starts",
+                   hint=f"start the barrier no later than {_no_later(shot, act, ps)} after the push starts",
                    data={"early_fraction": ps.early, "barrier_on_s": ps.on, "needed_on_s": ps.need_on})
 
 

@@ -9,6 +9,7 @@ from ..predict.imaging import imaged_level, images, probe_analysis, probe_line
 from ..predict.species import species
 from ..textfmt import fmt_freq, fmt_length, fmt_pct, fmt_state, fmt_time, outward
 from .rules import rule
+from .ticks import duration_text
 
 
 def _freq(f):
@@ -42,7 +43,7 @@ def probe_doppler(shot):
             yield make(PROBE_DOPPLER, f"{rep.photons:.3g} photons per atom (saturation {rep.saturation:.3g}) "
                        f"Doppler-shift the atoms by {fmt_freq(rep.doppler_hz)}, {rep.doppler_linewidths:.3g} natural "
                        f"linewidths, during the probe", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"shorten the probe to {fmt_time(act.args['duration'] / rep.doppler_linewidths * 0.5)} or lower its power",
+                       hint=f"shorten the probe to {duration_text(shot, act, act.args['duration'] / rep.doppler_linewidths * 0.5, 'down')} or lower its power",
                        data={"photons": rep.photons, "doppler_linewidths": rep.doppler_linewidths})
 
 
@@ -55,7 +56,7 @@ def imaging_blur(shot):
             t_ok = act.args["duration"] * (rep.pixel / rep.blur) ** (2 / 3) * 0.9
             yield make(IMAGING_BLUR, f"recoil blur {fmt_length(rep.blur, 3, unit='um')} ({rep.photons:.3g} photons per "
                        f"atom) exceeds one pixel, {fmt_length(rep.pixel, 3, unit='um')} in the atom plane", act.pos, block=act.block,
-                       time_s=act.t0, hint=f"shorten the probe to about {fmt_time(t_ok)}",
+                       time_s=act.t0, hint=f"shorten the probe to about {duration_text(shot, act, t_ok, 'down')}",
                        data={"blur_m": rep.blur, "pixel_m": rep.pixel})
 
 
@@ -90,4 +91,4 @@ def exposure_too_short(shot):
         if exp_s is not None and exp_s < dur * (1 - 1e-9):
             yield make(EXPOSURE_TOO_SHORT, f"camera exposure {fmt_time(exp_s)} is shorter than the probe pulse "
                        f"{fmt_time(dur)}", act.pos, block=act.block, time_s=act.t0,
-                       hint=f"set exposure: {fmt_time(outward(dur))} or longer", data={"exposure_s": exp_s, "probe_s": dur})
+                       hint=f"set exposure: {duration_text(shot, act, outward(dur), 'up')} or longer", data={"exposure_s": exp_s, "probe_s": dur})

@@ -12,15 +12,18 @@ from ..codes import (
     COMPONENTS_OVERLAP, COMPONENTS_SEPARATED, EQUAL_MOMENTS, PUSH_AWAY_FROM_BARRIER, PUSH_NO_FORCE, PUSH_TOO_LATE,
     PUSH_VELOCITY,
 )
+from ..calibration import to_physical
 from ..findings import make
 from ..predict.barrier import analyse
 from ..predict.cloud import SEPARATION_WIDTHS, cloud_at_image, separations
+from ..predict.played import output_of
 from ..predict.pushes import push_analysis, pushes
 from ..predict.species import MU_B, bias
 from ..predict.states import barriers, rel_off
 from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec, outward
 from .physics_barrier import duration_hint
 from .rules import rule
+from .ticks import action_outputs, duration_text, fmt_tick, grid, min_interval, on_grid, overlap
 
 PUSH_TOLERANCE = 0.10
 
@@ -39,11 +42,78 @@ def push_velocity(shot):
             how = (f"moment {rep.moment / MU_B:+.4g} mu_B of {fmt_state(*rep.state)}, gradient "
                    f"{rep.gradient * 100:.4g} G/cm" if rep.kind == "magnetic" else
                    f"{rep.photons:.3g} photons of {rep.recoil * 1e3:.4g} mm/s recoil")
-            hint = (f"use duration {fmt_time(rep.duration * abs(want) / got)} for {abs(want) * 1e3:.4g} mm/s"
-                    if got > 0 else "the push gives no velocity")
+            clipped = _clipped_current(shot, act) if rep.kind == "magnetic" else None
+            if clipped is not None and got > 0:
+                hint = _within_range_hint(shot, act, rep, got, abs(want), *clipped)
+            elif got > 0:
+                d = _tick_duration(shot, act, rep.duration, abs(want) / got)
+                hint = f"use duration {d} for {abs(want) * 1e3:.4g} mm/s"
+            else:
+                hint = "the push gives no velocity"
             yield make(PUSH_VELOCITY, f"the push gives {got * 1e3:.4g} mm/s ({how}, {fmt_time(rep.duration)}), "
                        f"but expect_velocity is {abs(want) * 1e3:.4g} mm/s (tolerance {tol * 100:g} %)", act.pos,
                        block=act.block, time_s=act.t0, hint=hint, data={"velocity_m_s": got, "expected_m_s": abs(want)})
+
+
+def _played_span(shot, act, g: float) -> float:
+    """The push's duration as its edges play, each on its tick, within the written interval its kick is
+    integrated over (its written duration without a grid)."""
+    d = overlap(act.t0, act.t1, g)
+    return d if d > 0 else act.t1 - act.t0
+
+
+def _tick_duration(shot, act, duration: float, scale: float) -> str:
+    """The duration (text) the push's devices play that is nearest to `scale` times the played one (the kick
+    grows in proportion to the push's duration at a given force)."""
+    outs = action_outputs(shot, act)
+    g = grid(shot, outs)
+    d = on_grid(act.t0, _played_span(shot, act, g) * scale, g, "nearest", at_least=min_interval(shot, outs))
+    return fmt_tick(d, g, lead=act.t0) if g > 0 else fmt_time(duration * scale)
+
+
+def _clipped_current(shot, act):
+    """(current the push writes, A; the largest current in magnitude its channel plays and allows, A) when the
+    written current lies beyond the channel's range, its hard limits or the coil's max_current, so that the
+    played gradient is not the written one (or not allowed); else None."""
+    coil = shot.rig.coils.get(act.args.get("coil"))
+    name = output_of(shot, coil.current_channel) if coil is not None and coil.gradient_per_amp else None
+    out = shot.rig.outputs.get(name) if name else None
+    if out is None or out.kind == "digital":
+        return None
+    ends = sorted(float(x) for x in to_physical(out, [out.lo, out.hi]))
+    lo, hi = ends
+    if out.hard_min is not None:
+        lo = max(lo, out.hard_min)
+    if out.hard_max is not None:
+        hi = min(hi, out.hard_max)
+    if coil.max_current:
+        lo, hi = max(lo, -coil.max_current), min(hi, coil.max_current)
+    written = [v for s in shot.segments if s.output == name and s.block == act.block and s.pos == act.pos
+               for v in ((s.v1,) if s.kind == "set" else (s.v0, s.v1)) if v is not None]
+    worst = max(written, key=abs, default=None)
+    if worst is None or lo - 1e-9 * abs(lo) <= worst <= hi + 1e-9 * abs(hi):
+        return None
+    return worst, (hi if worst > 0 else lo)
+
+
+def _within_range_hint(shot, act, rep, got: float, want: float, written: float, limit: float) -> str:
+    """The fix of a push whose current the channel clips (or does not allow): first the gradient at the
+    channel's limit, then the duration that gives the expected velocity at that gradient, both from what the
+    channel plays within its range, not from the clipped kick."""
+    coil = shot.rig.coils[act.args["coil"]]
+    g_max = outward(abs(limit * coil.gradient_per_amp) * 100, 4, up=False)  # G/cm, inside the range
+    outs = action_outputs(shot, act)
+    g = grid(shot, outs)
+    per = got / (abs(rep.gradient) * 100 * _played_span(shot, act, g)) if rep.gradient else 0.0  # (m/s) per (G/cm s)
+    if not per > 0 or not g_max > 0:
+        return (f"first bring the current within the channel's range: the push writes {written:.4g} A, and "
+                f"'{coil.current_channel}' plays and allows at most {abs(limit):.4g} A")
+    d = on_grid(act.t0, want / (per * g_max), g, "nearest", at_least=min_interval(shot, outs))
+    sign = "-" if act.args["gradient"] < 0 else ""
+    return (f"first bring the current within the channel's range: the push writes {written:.4g} A, and "
+            f"'{coil.current_channel}' plays and allows at most {abs(limit):.4g} A (the velocity above is the clipped "
+            f"current's); e.g. gradient: {sign}{g_max:g} G/cm with duration: "
+            f"{fmt_tick(d, g, lead=act.t0) if g > 0 else fmt_time(d)} for {want * 1e3:.4g} mm/s")
 
 
 @rule(PUSH_AWAY_FROM_BARRIER, stage="physics")
@@ -111,7 +181,8 @@ def _late_hint(shot, rep, b) -> str:
     bar = analyse(shot, b) if shot.sample is not None else None
     if bar is not None and bar.passage.reached:
         return duration_hint(shot, b, bar)
-    return f"keep the barrier on until at least {fmt_time(outward(rep.arrival - b.t0, strict=True))} after its start"
+    return (f"keep the barrier on until at least {duration_text(shot, b, outward(rep.arrival - b.t0, strict=True), 'up')} "
+            "after its start")
 
 
 @rule(EQUAL_MOMENTS, stage="physics")

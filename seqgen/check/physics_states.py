@@ -21,6 +21,7 @@ from ..predict.states import (LZ_MIN_TRANSFER, TWO_PI, barrier_drive_analysis, b
 from ..textfmt import fmt_angle_pi, fmt_freq, fmt_pct, fmt_state, fmt_time, fmt_vec, outward
 from ..values import value_at
 from .rules import rule
+from .ticks import action_outputs, duration_text, fmt_tick, freq_text, grid, min_interval, on_grid, on_tick, overlap
 
 TRANSFER_TOLERANCE = 0.10  # detuning may change the intended transfer by 10 % of it (brief of the check)
 TRANSFER_FLOOR = 0.01  # ... but at least by 0.01 in population, so that near-zero intended transfers do not warn on noise
@@ -39,13 +40,48 @@ def pulse_angle(shot):
             k = rep.angle / rep.area
             amp_hint = (f" or amplitude {act.args.get('amplitude', 1.0) * k:.4g}" if act.args.get("amplitude", 1.0) * k <= 1
                         else "")
+            duration, plays = _tick_duration(shot, act, rep.duration * k, rep.angle / rep.area)
             yield make(PULSE_ANGLE, f"pulse area on '{rep.drive}' is {fmt_angle_pi(rep.area)} (peak Rabi frequency "
                        f"2 pi x {fmt_freq(rep.peak_rabi_hz)}, {rep.envelope} envelope, {fmt_time(rep.duration)}), "
                        f"but angle says {fmt_angle_pi(rep.angle)}: off by {fmt_pct(off)} (limit {tol * 100:g} %)",
                        act.pos, block=act.block, time_s=act.t0,
-                       hint=f"use duration {fmt_time(rep.duration * k)}{amp_hint}, or fix the drive's rabi_per_amplitude",
+                       hint=f"use duration {duration}{plays}{amp_hint}, or fix the drive's rabi_per_amplitude",
                        data={"area_rad": rep.area, "angle_rad": rep.angle})
 
+
+
+def _tick_duration(shot, act, want: float, scale: float) -> tuple[str, str]:
+    """The duration nearest to `want` that the devices of the pulse's channels play (a whole number of their
+    ticks, at least their minimum interval), as text, and the angle it plays when that is not the angle asked
+    (the area scales with the duration at a given envelope and amplitude: theta = Omega t, Phys. Rev. 51, 652
+    (1937)). `scale`: the angle asked over the area of the pulse as it plays now."""
+    outs = action_outputs(shot, act)
+    g = grid(shot, outs)
+    if not g > 0:
+        return fmt_time(want), ""
+    now = overlap(act.t0, act.t1, g)  # the played pulse the area was integrated over (its edges on their ticks)
+    d = on_grid(act.t0, now * scale if now > 0 else want, g, "nearest", at_least=min_interval(shot, outs))
+    if not now > 0:
+        return fmt_tick(d, g, lead=act.t0), ""
+    played_d = on_tick(act.t0 + d, g) - on_tick(act.t0, g)
+    angle = act.args["angle"]
+    got = angle * played_d / (now * scale) if now * scale > 0 else angle
+    near = (f" (it plays {fmt_angle_pi(got)}, the nearest a {fmt_time(g)} tick allows)"
+            if abs(played_d - now * scale) > 1e-3 * g else "")
+    return fmt_tick(d, g, lead=act.t0), near
+
+
+def _freq_output(shot, drive_name):
+    """The synth frequency output a drive's pulse writes, or None."""
+    drive = shot.rig.drives.get(drive_name)
+    name = f"{drive.channel}.freq" if drive is not None else None
+    return name if name in shot.rig.outputs else None
+
+
+def _mod_output(shot, act):
+    """The synth frequency output a barrier's modulation writes (its mod_channel), or None."""
+    name = act.args.get("mod_channel")
+    return name if name in shot.rig.outputs else (f"{name}.freq" if f"{name}.freq" in shot.rig.outputs else None)
 
 
 def _writer(shot, output, t):
@@ -143,7 +179,8 @@ def pulse_detuned(shot):
             yield make(PULSE_DETUNED, f"{what}{fmt_freq(rep.detuning_hz)} from the {fmt_state(*initial)} -> "
                        f"{fmt_state(*final)} line at {fmt_freq(rep.resonance_hz, 10)} ({bias(shot) * 1e4:.4g} G bias)"
                        f"{tail}; transfer {p:.3g} instead of {p0:.3g}" + (f"; Fourier width {fmt_freq(fw)}" if fw else ""),
-                       act.pos, block=act.block, time_s=act.t0, hint=f"{fix} frequency: {target:.10g} Hz", data=data)
+                       act.pos, block=act.block, time_s=act.t0,
+                       hint=f"{fix} frequency: {freq_text(shot, _freq_output(shot, rep.drive), target)}", data=data)
 
 
 @rule(SWEEP_NOT_ADIABATIC, stage="physics")
@@ -168,7 +205,7 @@ def sweep_not_adiabatic(shot):
                        f"{fmt_freq(abs(rep.rate_hz_s))}/s with Rabi frequency 2 pi x {fmt_freq(rep.rabi_hz)}: "
                        f"Landau-Zener transfer {rep.lz_transfer:.3g} (below {LZ_MIN_TRANSFER:g}){bloch}", seg.pos,
                        block=seg.block, time_s=rep.t_cross,
-                       hint=f"lengthen the sweep to at least {fmt_time(outward(need, strict=True))} (linear), or raise "
+                       hint=f"lengthen the sweep to at least {duration_text(shot, seg, outward(need, strict=True), 'up')} (linear), or raise "
                             "the amplitude",
                        data={"lz_transfer": rep.lz_transfer, "rate_hz_s": rep.rate_hz_s})
 
@@ -192,7 +229,8 @@ def modulation_off_resonance(shot):
             yield make(MODULATION_OFF_RESONANCE, f"modulation at {fmt_freq(rep.f_mod, 10)} is "
                        f"{fmt_freq(rep.offset_hz)} from the {fmt_state(*a)} -> {fmt_state(*b)} line at {line_text}, "
                        f"{beyond} the {fmt_time(act.args['duration'])} pulse's Fourier width {fmt_freq(rep.fourier_hz)}",
-                       act.pos, block=act.block, time_s=act.t0, hint=f"set modulation frequency: {rep.resonance_hz:.10g} Hz",
+                       act.pos, block=act.block, time_s=act.t0,
+                       hint=f"set modulation frequency: {freq_text(shot, _mod_output(shot, act), rep.resonance_hz)}",
                        data={"offset_hz": rep.offset_hz, "rabi_hz": rep.rabi_hz})
 
 
@@ -306,7 +344,7 @@ def _forbidden_pulse_hint(shot, drive, act, rep, pair) -> str:
     t, w = pulse_nodes(act.t0, act.t1)
     area = TWO_PI * drive.rabi_per_amplitude_hz * factor * float(np.sum(w * value_at(shot, rep.amp_output, t)))
     if rep.angle and area > 0:
-        parts.append(f"duration: {fmt_time(rep.duration * rep.angle / area, 5)}")
+        parts.append(f"duration: {duration_text(shot, act, rep.duration * rep.angle / area, digits=5)}")
     if "frequency" in act.args:
         nu, _ = line(species(shot), new[0], new[1], bias(shot))
         parts.append(f"frequency: {nu + drive.light_shift_hz + rep.intended_detuning_hz:.10g} Hz")

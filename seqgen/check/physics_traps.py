@@ -20,6 +20,7 @@ from ..predict.split import REFLECTED, sheet_hits
 from ..predict.traps import held, trap_beam_shifts, trap_writes, write_prediction
 from ..textfmt import fmt_length, fmt_state, fmt_temperature, fmt_time, fmt_vec, outward
 from .rules import rule
+from .ticks import moment_text
 
 
 def _first_on(shot, channel):
@@ -240,9 +241,11 @@ def cloud_outside_view(shot):
             data = {"reach_m": reach, "half_view_m": half}
             if _reflected(comp):
                 at = _earlier_image(shot, img, setup, pred, half)
+                start = shot.block(img.block).start_s
+                at_text, at = moment_text(shot, img, at, start, "down", digits=3, unit="ms") if at is not None else ("", at)
                 block = comp.split[-1][1]
                 data.update(split=[list(p) for p in comp.split], at_s=at)
-                hint = (f"write 'at: {fmt_time(at, 3, unit='ms')}' in this action (from the start of block "
+                hint = (f"write 'at: {at_text}' in this action (from the start of block "
                         f"'{img.block}'): imaged {fmt_time(img.t0 - shot.block(img.block).start_s - at, 3, unit='ms')} "
                         f"earlier, every part is in view; or recentre the camera (the imaging setup's center)"
                         if at is not None else

@@ -17,6 +17,7 @@ from ..compile.wiring import pulse_width, row_edges
 from ..findings import make
 from ..textfmt import fmt_time, fmt_when, outward
 from .rules import rule
+from .ticks import moment_text
 
 
 def _wired(shot):
@@ -59,7 +60,9 @@ def _at_fix(shot, seg, row_s: float, want_s: float, tick_s: float, why: str) -> 
         return f"move this write at least {fmt_when(outward(want_s - row_s))} later ({why})"
     new_row = math.ceil(want_s / tick_s - 1e-9) * tick_s
     at = outward(seg.t0 + (new_row - row_s) - block.start_s)
-    return f"write 'at: {fmt_time(at, 6, unit='us')}' in this action (from the start of block '{block.name}'), {why}"
+    # on a tick of the written channel's device too (not later than a tick beyond), so the write plays there
+    text, _ = moment_text(shot, seg, at, block.start_s, "up", digits=6, unit="us", outputs=(seg.output,))
+    return f"write 'at: {text}' in this action (from the start of block '{block.name}'), {why}"
 
 
 @rule(WIRING_BEFORE_START, stage="tables")
