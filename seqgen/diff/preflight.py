@@ -20,18 +20,27 @@ _WEIGHT_TEXT = {"error": 65, "warning": 60, "note": 30}  # same severity, other 
 
 # Where a finding points (a line, a file path) is not what it says: an edit that only moves lines, or two
 # versions in other folders, must not make a finding "changed".
-_PATH = re.compile(r"(?:[^\s'\"(),;:]*[/\\])+([^\s'\"(),;:/\\]+\.[A-Za-z]\w*)")  # a file with a suffix
-_FILE_LINE = re.compile(r"(\.ya?ml):\d+(?::\d+)?")
+_WORD = re.compile(r"[^\s'\"(),;:]+")
+_SUFFIX = re.compile(r"[A-Za-z]\w*")  # of a file name: .yaml, .csv
+_FILE_LINE = re.compile(r"(\.[A-Za-z]\w*):\d+(?::\d+)?")  # file.yaml:12:3
 _LINE = re.compile(r"\b(lines?) \d+(?:\s*(?:-|\.\.|to)\s*\d+)?")
 
 
 def comparable(text: str, own: str | None = None) -> str:
     """`text` without the places it names (line numbers, folders of files; `own`: the name of the version's
     sequence file, which two versions need not share)."""
-    text = _FILE_LINE.sub(r"\1:#", _PATH.sub(r"\1", text or ""))
+    text = _FILE_LINE.sub(r"\1:#", _WORD.sub(_file_name, text or ""))
     if own:
         text = re.sub(rf"(?<![\w.-]){re.escape(own)}(?![\w-])", "<sequence>", text)
     return _LINE.sub(r"\1 #", text)
+
+
+def _file_name(m) -> str:
+    """A word that is a path of a file: its name alone."""
+    word = m.group()
+    last = re.split(r"[/\\]", word)[-1]
+    name, _, suffix = last.rstrip(".").rpartition(".")
+    return last if last != word and name and _SUFFIX.fullmatch(suffix) else word
 
 
 def _key(f, renames=None):
@@ -158,6 +167,9 @@ def word_changes(old: str, new: str, own: tuple = (None, None)) -> str:
         while k > max(last_j, j1 - _CONTEXT_WORDS) and b[k - 1] not in _STOPS:
             k -= 1
         before = cb[tb[k].start():tb[j1 - 1].end()] if k < j1 else ""
+        if before and (i1 == i2 or j1 == j2):  # words added or dropped: the words before them on both sides
+            was, now = (before if i1 == i2 else f"{before} {was}"), (before if j1 == j2 else f"{before} {now}")
+            before = ""
         out.append(f"{before} {was} -> {now}".strip())
         last_j = j2
     if len(ops) > _MAX_FRAGMENTS:
