@@ -50,30 +50,36 @@ def _key(f, renames=None):
     return f.code, block
 
 
-def _same(x, y, own: tuple) -> bool:
-    return (x.severity == y.severity and x.accepted == y.accepted
-            and comparable(x.message, own[0]) == comparable(y.message, own[1])
-            and comparable(x.hint, own[0]) == comparable(y.hint, own[1]))
+def _said(f, own: str | None) -> tuple:
+    """What a finding says, where it points aside: equal for a finding that did not change."""
+    return f.severity, f.accepted, comparable(f.message, own), comparable(f.hint, own)
 
 
-def _similarity(x, y, own: tuple) -> float:
-    return difflib.SequenceMatcher(None, comparable(x.message, own[0]).split(), comparable(y.message, own[1]).split(),
-                                   autojunk=False).ratio()
+_SCORED_PAIRS = 400  # above this many candidate pairs in one code and block, pair in the order written
 
 
 def _pair(fa: list, fb: list, own: tuple) -> tuple[list, list, list, list]:
     """(identical pairs, other pairs, old findings left, new findings left) of one code and block: identical
-    findings first, then the most alike messages (ties: the order written)."""
-    left_a, left_b = list(fa), []
-    same = []
+    findings first, then the most alike messages (many: in the order written)."""
+    waiting: dict = {}
+    for x in fa:
+        waiting.setdefault(_said(x, own[0]), []).append(x)
+    same, left_b = [], []
     for y in fb:
-        x = next((x for x in left_a if _same(x, y, own)), None)
-        if x is None:
-            left_b.append(y)
+        match = waiting.get(_said(y, own[1]))
+        if match:
+            same.append((match.pop(0), y))
         else:
-            left_a.remove(x)
-            same.append((x, y))
-    scored = sorted(((-_similarity(x, y, own), i, j) for i, x in enumerate(left_a) for j, y in enumerate(left_b)))
+            left_b.append(y)
+    taken = {id(x) for x, _ in same}
+    left_a = [x for x in fa if id(x) not in taken]
+    if len(left_a) * len(left_b) > _SCORED_PAIRS:
+        n = min(len(left_a), len(left_b))
+        return same, list(zip(left_a, left_b)), left_a[n:], left_b[n:]
+    words_a = [comparable(x.message, own[0]).split() for x in left_a]
+    words_b = [comparable(y.message, own[1]).split() for y in left_b]
+    scored = sorted((-difflib.SequenceMatcher(None, wa, wb, autojunk=False).ratio(), i, j)
+                    for i, wa in enumerate(words_a) for j, wb in enumerate(words_b))
     used_a, used_b, other = set(), set(), []
     for _, i, j in scored:
         if i not in used_a and j not in used_b:
@@ -163,6 +169,9 @@ def word_changes(old: str, new: str, own: tuple = (None, None)) -> str:
         if i2 < len(a) and j2 < len(b) and a[i2] == b[j2] and _UNIT.match(a[i2]) and i2 > i1 and j2 > j1 \
                 and _NUMBER.match(a[i2 - 1]) and _NUMBER.match(b[j2 - 1]):
             was, now = f"{was} {a[i2].rstrip('.')}", f"{now} {b[j2].rstrip('.')}"
+            unit = 1  # shown: no context of the next fragment
+        else:
+            unit = 0
         k = j1
         while k > max(last_j, j1 - _CONTEXT_WORDS) and b[k - 1] not in _STOPS:
             k -= 1
@@ -171,9 +180,9 @@ def word_changes(old: str, new: str, own: tuple = (None, None)) -> str:
             was, now = (before if i1 == i2 else f"{before} {was}"), (before if j1 == j2 else f"{before} {now}")
             before = ""
         out.append(f"{before} {was} -> {now}".strip())
-        last_j = j2
+        last_j = j2 + unit
     if len(ops) > _MAX_FRAGMENTS:
-        out.append(f"... ({len(ops) - _MAX_FRAGMENTS} more)")
+        out.append(f"... and {len(ops) - _MAX_FRAGMENTS} more (--json: both texts)")
     return "; ".join(out)
 
 
