@@ -55,6 +55,11 @@ def _tree(folder):
     return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
 
 
+def _findings(shot_folder):
+    """The findings a shot's manifest records, in its order."""
+    return json.loads((shot_folder / "manifest.json").read_text(encoding="utf-8"))["findings_list"]
+
+
 def _shot_manifests(out):
     doc = json.loads((out / "scan.json").read_text(encoding="utf-8"))
     return doc, {r["build"]: json.loads((out / r["build"] / "manifest.json").read_text()) for r in doc["shots"]}
@@ -162,8 +167,14 @@ def test_diff_reads_shot_folders_and_scan_builds_through_the_shared_tables(seq, 
     capsys.readouterr()
     assert main(["diff", str(a / "shot_0002"), str(b / "shot_0002"), "--json"]) == 1
     rep = json.loads(capsys.readouterr().out)  # the tables were read: guide_power's output differs
+    # a finding whose text moved with the ramp's height (as the two shots' own manifests record) is changed
+    moved = {f"{x['code']} [{x['block']}]" for x, y in zip(*(_findings(out / "shot_0002") for out in (a, b)))
+             if (x["code"], x["block"]) == (y["code"], y["block"]) and x["message"] != y["message"]}
+    assert moved == {"hardware.ramp-undersampled [a]"}  # a taller ramp deviates more from its curve
     assert {(c["kind"], c["subject"]) for c in rep["changes"]} == {("output-differs", "guide_power"),
-                                                                   ("param-changed", "b")}
+                                                                   ("param-changed", "b")} | \
+        {("finding-changed", m) for m in moved}
+    assert {f"{e['code']} [{e['block']}]" for e in rep["changed_findings"]} == moved
     assert main(["diff", str(a), str(b), "--json"]) == 1
     rep = json.loads(capsys.readouterr().out)
     assert {(c["kind"], c["subject"]) for c in rep["changes"]} >= {("scan-shot-removed", "b=500 mW"),

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 from . import outputs, preflight, rig, scan, scanbuild, timeline
 from .inputs import load_version
 from .model import LEVELS, Change, DiffReport, Version
@@ -57,7 +59,8 @@ def diff_versions(old: Version, new: Version) -> DiffReport:
         fa, fb = (preflight.before_checks(fa), fb) if unresolved[0] is new else (fa, preflight.before_checks(fb))
         rep.notes.append(f"the preflight checks did not run on {unresolved[0].label}: findings of checks on the "
                          "other version are not compared")
-    fchanges, unchanged = preflight.finding_changes(fa, fb, renames)
+    names = tuple(Path(v.sources.main.file).name if v.sources is not None else None for v in (old, new))
+    fchanges, unchanged = preflight.finding_changes(fa, fb, renames, names)
     changes += fchanges
     rep.unchanged_findings = unchanged
     order = {lv: i for i, lv in enumerate(LEVELS)}

@@ -1,6 +1,6 @@
 """Types of the diff: one `Change` per difference, a `Version` per input, the `DiffReport`.
 
-A change belongs to one level: "preflight" (findings introduced / resolved),
+A change belongs to one level: "preflight" (findings introduced / resolved / changed),
 "output" (compiled channel tables), "resolved" (params, blocks, timing,
 writes) or "rig" (calibration, limits, latency, geometry). `old` and `new` are
 short display strings; `data` holds numbers (SI units, output units) for tools.
@@ -91,6 +91,11 @@ class DiffReport:
     @property
     def identical(self) -> bool:
         return not self.changes
+
+    @property
+    def changed_findings(self) -> list:
+        """The findings of both versions whose message, fix, severity or acceptance differ (`Change`s)."""
+        return [c for c in self.changes if c.kind == "finding-changed"]
 
     def by_level(self, level: str) -> list:
         return [c for c in self.changes if c.level == level]

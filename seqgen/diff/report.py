@@ -19,7 +19,15 @@ def summary(rep: DiffReport) -> dict:
     out = {lv: len(rep.by_level(lv)) for lv in LEVELS}
     out["total"] = len(rep.changes)
     out["unchanged_findings"] = len(rep.unchanged_findings)
+    out["changed_findings"] = len(rep.changed_findings)
     return out
+
+
+def _changed_finding(c) -> dict:
+    d = c.data
+    side = lambda s: {k: s[k] for k in ("message", "hint", "severity", "accepted")}  # noqa: E731
+    return {"code": d["code"], "block": d["block"], "file": d["file"], "line": d["line"], "old": side(d["old"]),
+            "new": side(d["new"])}
 
 
 def to_dict(rep: DiffReport) -> dict:
@@ -33,6 +41,7 @@ def to_dict(rep: DiffReport) -> dict:
         "changes": [c.to_dict() for c in rep.changes],
         "unchanged_findings": [{"code": f.code, "severity": f.severity, "block": f.block, "message": f.message,
                                 "accepted": f.accepted} for f in rep.unchanged_findings],
+        "changed_findings": [_changed_finding(c) for c in rep.changed_findings],
         "notes": list(rep.notes),
         "caution": CAUTION,
     }
@@ -108,7 +117,8 @@ def to_text(rep: DiffReport) -> str:
         grouped = _upstream_groups(items)
         done = set()
         shots: dict = {}  # kind -> scan-shot-* entries seen
-        for c in items:
+        changed = [c for c in items if c.kind == "finding-changed"]  # a group of their own, after the others
+        for c in [c for c in items if c.kind != "finding-changed"]:
             if id(c) in done:
                 continue
             if c.kind.startswith("scan-shot-"):
@@ -135,6 +145,9 @@ def to_text(rep: DiffReport) -> str:
         for kind, n in sorted(shots.items()):
             if n > MAX_SHOTS_TEXT:
                 lines.append(f"  ... and {n - MAX_SHOTS_TEXT} more {kind} shot(s) (--json lists them)")
+        if changed:
+            lines.append(f"  ~ {len(changed)} finding(s) changed (old -> new):")
+            lines += [f"    ~ {c.message}" for c in changed]
         if lv == "preflight" and rep.unchanged_findings:
             lines.append(f"  = {len(rep.unchanged_findings)} finding(s) unchanged")
     for n in rep.notes:
