@@ -24,7 +24,8 @@ def thomas_fermi_fraction_beyond(u):
     line density (15/(16 R)) (1 - x^2/R^2)^2; its integral from u R to R is
     1/2 - (15/16) (u - 2 u^3/3 + u^5/5) for |u| <= 1 (1 below -1, 0 above 1)."""
     u = np.clip(np.asarray(u, dtype=float), -1.0, 1.0)
-    return np.clip(0.5 - (15.0 / 16.0) * (u - 2.0 * u**3 / 3.0 + u**5 / 5.0), 0.0, 1.0)  # no -1e-17 at the edges
+    u2 = u * u  # the polynomial in Horner form: u**3 and u**5 go through pow, ten times slower
+    return np.clip(0.5 - (15.0 / 16.0) * (u * (1.0 - u2 * (2.0 / 3.0 - u2 / 5.0))), 0.0, 1.0)  # no -1e-17 at the edges
 
 
 def fraction_beyond(y_m, profile: str, size_m: float):
