@@ -217,3 +217,22 @@ def test_parts_held_by_the_guide_stay_within_its_oscillation(tmp_path):
     assert free_reflected < -2 * bound  # free flight would carry it far beyond the guide's reach
     assert along[TRANSMITTED] == pytest.approx(bound, rel=1e-2)
     assert along[REFLECTED] == pytest.approx(-bound, rel=1e-2)
+
+
+def test_parts_imaged_too_soon_after_the_split_overlap(tmp_path):
+    # the fault file images 0.6 ms after the centre met the sheet: the parts are 2 v (t - t_hit) apart (straight
+    # flight against specular reflection), and the share of each beyond the midpoint between them is the
+    # Thomas-Fermi line density's tail 1/2 - (15/16)(u - 2u^3/3 + u^5/5), u = (gap / 2) / R (Rev. Mod. Phys.
+    # 71, 463 (1999)), for the cloud's radius R along the path (the size prediction, tested on its own)
+    path = SEQUENCES / "faults" / "barrier_parts_overlap.yaml"
+    res, shot, img, pred = _parts(path)
+    rig = SEQUENCES / "good" / "rig_na23_split_view.yaml"
+    x_t, x_r, _, _ = _expected(shot, img, _sheet_x(rig), _gradient_t_per_m("8 G/cm", rig, "push_coil"))
+    (hit,) = [f for f in res.findings if f.code == "physics.parts-overlap"]
+    data = dict(hit.data)
+    gap = data["separation_m"]
+    assert gap == pytest.approx(x_t - x_r, rel=1e-3)
+    u = 0.5 * gap / pred.cloud.reach_along((1.0, 0.0, 0.0))
+    assert 0 < u < 1
+    assert data["beyond_midpoint"] == pytest.approx(0.5 - 15 / 16 * (u - 2 * u**3 / 3 + u**5 / 5), rel=1e-9)
+    assert data["beyond_midpoint"] > 0.02 and hit.severity == "warning"

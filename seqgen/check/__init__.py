@@ -36,7 +36,7 @@ RULES: tuple[Rule, ...] = (
     physics_states.transition_forbidden,
     physics_states.transition_unpopulated, physics_pushes.push_velocity, physics_pushes.push_away_from_barrier,
     physics_pushes.push_no_force, physics_pushes.push_too_late, physics_pushes.equal_moments,
-    physics_pushes.components_overlap, physics_pushes.components_separated, physics_imaging.probe_off_resonance,
+    physics_pushes.components_overlap, physics_pushes.components_separated, physics_pushes.parts_overlap, physics_imaging.probe_off_resonance,
     physics_imaging.probe_doppler, physics_imaging.nothing_imaged,
     physics_imaging.imaging_blur, physics_imaging.exposure_too_short, shutters.beam_shuttered,
     physics_barrier.barrier_transmission, physics_barrier.cloud_overlaps_barrier, physics_barrier.barrier_not_reached,

@@ -9,17 +9,18 @@ import math
 import numpy as np
 
 from ..codes import (
-    COMPONENTS_OVERLAP, COMPONENTS_SEPARATED, EQUAL_MOMENTS, PUSH_AWAY_FROM_BARRIER, PUSH_NO_FORCE, PUSH_TOO_LATE,
+    COMPONENTS_OVERLAP, COMPONENTS_SEPARATED, PARTS_OVERLAP, EQUAL_MOMENTS, PUSH_AWAY_FROM_BARRIER, PUSH_NO_FORCE, PUSH_TOO_LATE,
     PUSH_VELOCITY,
 )
 from ..calibration import to_physical
 from ..findings import make
 from ..predict.barrier import analyse
-from ..predict.cloud import SEPARATION_WIDTHS, cloud_at_image, separations
+from ..predict.cloud import SEPARATION_WIDTHS, cloud_at_image, image_prediction, separations
 from ..predict.played import output_of
 from ..predict.pushes import push_analysis, pushes
 from ..predict.species import MU_B, bias
 from ..predict.states import barriers, rel_off
+from ..predict.text import who
 from ..textfmt import fmt_length, fmt_state, fmt_time, fmt_vec, outward
 from .physics_barrier import duration_hint
 from .rules import rule
@@ -235,3 +236,53 @@ def components_separated(shot):
                    f"combined rms widths (margin {abs(rep.separation) / (SEPARATION_WIDTHS * rep.combined):.3g} x the "
                    f"{SEPARATION_WIDTHS:g} needed)", act.pos, block=act.block, time_s=act.t0,
                    data={"separation_m": rep.separation, "combined_rms_m": rep.combined})
+
+
+MISCOUNTED = 0.02  # at most this fraction of a part beyond the midpoint between two parts (common practice, no source)
+
+
+def _beyond_midpoint(cloud, direction, half_gap: float) -> float:
+    """Fraction of a part's atoms beyond `half_gap` from its centre along `direction`: on the other part's side
+    of the midpoint between them (Thomas-Fermi line density, or a Gaussian's tail)."""
+    from ..physics.passage import fraction_beyond
+
+    if cloud.size_kind.startswith("Thomas"):
+        return float(fraction_beyond(half_gap, "thomas-fermi", cloud.reach_along(direction)))
+    return float(fraction_beyond(half_gap, "gaussian", cloud.rms_along(direction)))
+
+
+@rule(PARTS_OVERLAP, stage="physics")
+def parts_overlap(shot):
+    # the two parts of one state that a sheet split last, as the camera sees them: the fraction of each beyond
+    # the midpoint between their centres (in the image plane) along the line joining them, for the whole
+    # cloud's size there; both parts keep that size (seqgen.predict.split)
+    for img in shot.actions("image"):
+        pred = image_prediction(shot, img)
+        if pred is None or pred.cloud is None:
+            continue
+        sides: dict = {}
+        for comp in pred.components:
+            if comp.split:
+                sides.setdefault((comp.state, comp.split[:-1], comp.split[-1][1]), {})[comp.split[-1][0]] = comp
+        for (state, _, block), pair in sides.items():
+            if len(pair) != 2:
+                continue
+            a, b = pair.values()
+            gap = np.hypot(*(a.plane - b.plane).T)  # per sign case
+            case = int(np.argmin(gap))
+            line = a.positions[case] - b.positions[case]
+            norm = float(np.linalg.norm(line))
+            if norm == 0:
+                continue
+            beyond = _beyond_midpoint(pred.cloud, line / norm, 0.5 * float(gap[case]))
+            if beyond <= MISCOUNTED:
+                continue
+            rel = float(np.linalg.norm(a.velocities[case] - b.velocities[case])) if a.velocities is not None else 0.0
+            yield make(PARTS_OVERLAP, f"{who(a)} and {who(b)} are {fmt_length(float(gap[case]), unit='um')} apart in "
+                       f"the image, and {beyond:.1%} of each lies beyond the midpoint between them ({pred.cloud.size_kind} "
+                       f"along the line joining them {fmt_length(pred.cloud.reach_along(line / norm) if pred.cloud.size_kind.startswith('Thomas') else pred.cloud.rms_along(line / norm), unit='um')}); "
+                       f"at most {MISCOUNTED:.0%} lets the picture count them apart",
+                       img.pos, block=img.block, time_s=img.t0,
+                       hint=f"image later (the parts move apart at {rel * 1e3:.3g} mm/s once free; a longer flight "
+                            f"also widens them), or push harder so that they part faster",
+                       data={"separation_m": float(gap[case]), "beyond_midpoint": beyond, "barrier_block": block})

@@ -256,6 +256,22 @@ COMPONENTS_SEPARATED = Code(
     the image: their distance in combined rms widths (3 or more is enough;
     see `physics.components-overlap`).""")
 
+PARTS_OVERLAP = Code(
+    "physics.parts-overlap", "warning", stage="physics",
+    source=("specular reflection off a thin sheet, the reflected part moving back at the incident speed "
+            "(Quantum Mechanics: Non-Relativistic Theory, 3rd ed., Pergamon (1977), section 25); rms of a "
+            "Thomas-Fermi line density (15/16R)(1 - x^2/R^2)^2 (Rev. Mod. Phys. 71, 463 (1999)) or a Gaussian's "
+            "tail; at most 2 % of a part beyond the midpoint between two parts (common practice, no source)"),
+    doc="""
+    The transmitted and reflected parts of one internal state, split by a
+    barrier sheet, overlap at an image: more than 2 % of each lies beyond
+    the midpoint between their centres (measured in the image plane, for
+    the whole cloud's size along the line joining them: both parts keep
+    it), so a count of each side of the picture mixes them and the
+    transmitted fraction read from it is off by that much. They part at
+    twice the incident speed once the guide no longer holds them: image
+    later, or push harder.""")
+
 DRIVE_TOO_STRONG = Code(
     "physics.drive-too-strong", "warning", stage="physics",
     source=_DRIVE + "; weak-probe regime (common practice, no source)",
