@@ -12,6 +12,7 @@ place d and the kick's gradient and duration are read off the rig and sequence f
 from __future__ import annotations
 
 import numpy as np
+from scipy import constants as sc
 import pytest
 import yaml
 
@@ -236,3 +237,21 @@ def test_parts_imaged_too_soon_after_the_split_overlap(tmp_path):
     assert 0 < u < 1
     assert data["beyond_midpoint"] == pytest.approx(0.5 - 15 / 16 * (u - 2 * u**3 / 3 + u**5 / 5), rel=1e-9)
     assert data["beyond_midpoint"] > 0.02 and hit.severity == "warning"
+
+
+def test_a_cloud_released_before_it_reaches_the_sheet_falls_under_it():
+    # the guide goes off as the push ends: free fall g t^2 / 2 (standard gravity, SI Brochure) from then to the
+    # centre's arrival t_hit = tau + (d - v tau / 2) / v, against the sheet's 45 um half-height (its wide waist,
+    # vertical for a horizontal sheet across a horizontal path): no split, an error at the barrier
+    path = SEQUENCES / "faults" / "barrier_fallen_under.yaml"
+    res, shot, img, pred = _parts(path)
+    rig = SEQUENCES / "good" / "rig_na23_split_view.yaml"
+    _, _, v, t_hit = _expected(shot, img, _sheet_x(rig), _gradient_t_per_m("8 G/cm", rig, "push_coil"))
+    t_rel = shot.actions("release")[0].t0
+    fall = 0.5 * sc.g * (t_hit - t_rel) ** 2
+    assert fall > 20 * 45e-6
+    (hit,) = [f for f in res.findings if f.code == "physics.barrier-not-reached"]
+    data = dict(hit.data)
+    assert data["fall_m"] == pytest.approx(fall, rel=1e-4) and data["sheet_half_height_m"] == pytest.approx(45e-6)
+    assert hit.severity == "error" and "passes under the sheet" in hit.message
+    assert all(not c.split for c in pred.components)  # nothing meets the sheet: nothing is split

@@ -97,7 +97,9 @@ def hard_limits(shot):
                 hi = fmt_si(out.hard_max, out.phys_unit) if out.hard_max is not None else "none"
                 yield make(HARD_LIMIT, f"'{out.name}' would reach {fmt_si(v, out.phys_unit)}, beyond its hard limits "
                            f"(min {lo}, max {hi})", s.pos, block=s.block,
-                           time_s=s.t0, hint="reduce the value; hard limits are not to be raised without the lab's safety review")
+                           time_s=s.t0, hint=(f"{'raise' if out.hard_min is not None and v < out.hard_min else 'reduce'} "
+                                              f"the value to within [{lo}, {hi}]; hard limits are not to be changed "
+                                              "without the lab's safety review"))
                 break
 
 

@@ -37,12 +37,24 @@ def needed_duration(shot, act, rep) -> float:
     return need
 
 
+def _follows(shot, block: str, earlier: str) -> bool:
+    """Whether `block` is placed after `earlier` through its chain of anchors (so it moves when `earlier` grows)."""
+    seen = set()
+    b = shot.block(block)
+    while b is not None and b.name not in seen:
+        if b.anchor_block == earlier:
+            return True
+        seen.add(b.name)
+        b = shot.block(b.anchor_block) if b.anchor_block else None
+    return False
+
+
 def duration_hint(shot, act, rep) -> str:
     """The fix both duration findings give: the needed duration, or why none can pass (the image comes first)."""
     ps, need = rep.passage, needed_duration(shot, act, rep)
     if not math.isfinite(need):
         return "part of the cloud never reaches the sheet: push harder"
-    if ps.image_at is not None and ps.on + need > ps.image_at:
+    if ps.image_at is not None and ps.on + need > ps.image_at and not _follows(shot, ps.image.block, act.block):
         return (f"no barrier duration can: 90 % of the cloud has crossed the sheet only "
                 f"{fmt_time(ps.on + need, unit='ms', nonfinite='never')} after the push starts, after the image at "
                 f"{fmt_time(ps.image_at, unit='ms')}; push harder or image later")
@@ -68,9 +80,9 @@ def _each(shot):
 def barrier_transmission(shot):
     for act, rep in _each(shot):
         ps = rep.passage
-        if not ps.reached:
+        if not ps.reached or ps.below:
             yield make(BARRIER_TRANSMISSION, f"no transmission: the cloud does not reach barrier '{act.args['beam']}' "
-                       f"before the image ({_not_reached_text(ps)}; physics.barrier-not-reached)", act.pos,
+                       f"({_not_reached_text(ps)}; physics.barrier-not-reached)", act.pos,
                        block=act.block, time_s=act.t0,
                        data={"reached": False, "centre_arrival_s": ps.centre_arrival, "image_s": ps.image_at})
             continue
@@ -92,6 +104,11 @@ def barrier_transmission(shot):
 
 
 def _not_reached_text(ps) -> str:
+    if ps.reached and ps.below:
+        return (f"released {fmt_time(ps.released_at, unit='ms')} after the push starts, the cloud has fallen "
+                f"{fmt_length(ps.fall, mm_from=1e-2)} when its centre comes to the sheet "
+                f"{fmt_time(ps.centre_arrival, unit='ms', nonfinite='never')} after the push starts, more than the "
+                f"sheet's {fmt_length(ps.sheet_height, mm_from=1e-2)} half-height (1/e^2): it passes under the sheet")
     return (f"its centre reaches the sheet {fmt_time(ps.centre_arrival, unit='ms', nonfinite='never')} after the push "
             f"starts, the first image comes {fmt_time(ps.image_at, unit='ms')} after it")
 
@@ -100,15 +117,31 @@ def _not_reached_text(ps) -> str:
 def barrier_not_reached(shot):
     for act, rep in _each(shot):
         ps = rep.passage
+        if ps.reached and ps.below:
+            # falls under the sheet: keep the trap on until 90 % has crossed (release at or after that)
+            hold = max(ps.cross_by, ps.centre_arrival)
+            hint = (f"release the atoms no earlier than {fmt_time(outward(hold, strict=True), unit='ms', nonfinite='never')} "
+                    f"after the push starts (90 % of the cloud across the sheet), or push harder"
+                    if math.isfinite(hold) else "push harder: the cloud's centre never reaches the sheet")
+            yield make(BARRIER_NOT_REACHED, f"barrier '{act.args['beam']}' (block '{act.block}') is not reached: "
+                       f"{_not_reached_text(ps)} (v = {rep.speed * 1e3:.4g} mm/s, sheet {fmt_length(ps.distance, mm_from=1e-2)} "
+                       f"away); the imaged atoms never met the sheet", act.pos, block=act.block, time_s=act.t0, hint=hint,
+                       data={"centre_arrival_s": ps.centre_arrival, "fall_m": ps.fall, "sheet_half_height_m": ps.sheet_height,
+                             "released_s": ps.released_at})
+            continue
         if ps.reached:
             continue
         img = ps.image
         start = shot.block(img.block).start_s
         # image once 90 % has crossed (the fraction physics.barrier-too-short counts), at least at the centre
         want = max(ps.cross_by, ps.centre_arrival)
-        if math.isfinite(want):
-            at = outward(ps.push_t0 + want - start, strict=True)
-            hint = (f"write 'at: {fmt_time(at, 3, unit='ms')}' in this action (from the start of block '{img.block}'): "
+        if math.isfinite(want) and ps.push_t0 + want > ps.push_t0 + ps.off:  # the sheet is off by then
+            hint = (f"keep the barrier on for at least {duration_text(shot, act, outward(want - ps.on, strict=True), 'up', unit='ms')} "
+                    f"and image once 90 % of the cloud has crossed it ({fmt_time(want, unit='ms')} after the push starts); "
+                    f"or push harder")
+        elif math.isfinite(want):
+            at, _ = moment_text(shot, img, outward(ps.push_t0 + want - start, strict=True), start, "up", unit="ms")
+            hint = (f"write 'at: {at}' in this action (from the start of block '{img.block}'): "
                     f"imaged once 90 % of the cloud has crossed the sheet; or push harder")
         else:
             hint = "push harder: the cloud's centre never reaches the sheet"
@@ -141,7 +174,7 @@ def cloud_overlaps_barrier(shot):
 def barrier_too_short(shot):
     for act, rep in _each(shot):
         ps = rep.passage
-        if ps.late <= MISSED_FRACTION or not ps.reached:
+        if ps.late <= MISSED_FRACTION or not ps.reached or ps.below:
             continue  # a cloud not reached before the image is physics.barrier-not-reached's
         hint = duration_hint(shot, act, rep)
         if hint.startswith("keep") and ps.cross_by > SLOW_TAIL * ps.centre_arrival:

@@ -180,7 +180,7 @@ def _late_hint(shot, rep, b) -> str:
     if math.isinf(rep.arrival):
         return "the push gives no velocity"
     bar = analyse(shot, b) if shot.sample is not None else None
-    if bar is not None and bar.passage.reached:
+    if bar is not None and not bar.passage.below:
         return duration_hint(shot, b, bar)
     return (f"keep the barrier on until at least {duration_text(shot, b, outward(rep.arrival - b.t0, strict=True), 'up')} "
             "after its start")
@@ -218,11 +218,14 @@ def components_overlap(shot):
             continue
         need = SEPARATION_WIDTHS * rep.combined
         k = need / abs(rep.separation) if rep.separation else math.inf
-        gradient = outward(act.args['gradient'] * 100 * k, 3, strict=True)  # G/cm; up: the separation grows with it
+        # G/cm, rounded away from zero (the separation grows with |gradient|), with the sign written
+        written = float(act.args['gradient']) * 100
+        gradient = math.copysign(outward(abs(written) * k, 3, strict=True), written) if math.isfinite(k) else math.nan
         yield make(COMPONENTS_OVERLAP, f"the components are {fmt_length(abs(rep.separation), unit='um')} apart at the "
                    f"image, {abs(rep.separation) / rep.combined:.3g} combined rms widths (each {rep.sigma * 1e6:.4g} "
                    f"um{_stand_in(shot, rep)}); at least {SEPARATION_WIDTHS:g} are needed", act.pos, block=act.block, time_s=act.t0,
-                   hint=f"raise the gradient to {gradient:.3g} G/cm, or lengthen the pulse",
+                   hint=(f"raise the gradient to {gradient:.3g} G/cm, or lengthen the pulse" if math.isfinite(gradient)
+                         else "the pulse separates nothing: give the coil a gradient and a duration"),
                    data={"separation_m": rep.separation, "combined_rms_m": rep.combined})
 
 

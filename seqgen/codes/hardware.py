@@ -164,10 +164,11 @@ SLEW = Code(
     "hardware.slew", "error", stage="timeline",
     source="the rig file's max_slew per channel (e.g. a coil driver's voltage compliance)",
     doc="""
-    A ramp or step faster than the channel's maximum slew rate (physical
-    units per second). A coil's current cannot follow a step faster than its
-    driver's compliance allows; steps are judged over the device's minimum
-    interval.""")
+    A ramp faster than the channel's maximum slew rate (physical units per
+    second): a coil's current cannot follow it faster than its driver's
+    compliance allows. A step (a set) is not judged: a driver slews a
+    commanded step at its own rate, which the played values do not model
+    yet (they hold the new value from the step on).""")
 
 WIRING_BAD = Code(
     "hardware.wiring-bad", "error", stage="resolve",

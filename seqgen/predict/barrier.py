@@ -88,7 +88,7 @@ from ..values import value_at
 from .cache import per_shot_cache
 from .pushes import push_analysis
 from .states import barrier_played
-from .species import (BAD_DEPTH, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, sample_state,
+from .species import (BAD_DEPTH, G_N, NO_PARTNER, LevelProblem, gaussian_beams, level_problem, sample_state,
                       scattering_length, species, trap_before, trap_beams, unevaluable)
 
 DEFAULT_DETECTION_FLOOR = 100.0  # atoms per component in one image (common practice, no source)
@@ -180,11 +180,19 @@ class Passage:
     cross_by: float = math.inf
     image_at: float | None = None
     image: object = None
+    fall: float = 0.0  # m: how far the cloud has fallen when its centre arrives (released from every trap before)
+    released_at: float | None = None  # s after the push's start: the release it falls from
+    sheet_height: float = math.inf  # m: the sheet's 1/e^2 half-size along the vertical
 
     @property
     def reached(self) -> bool:
         """The cloud's centre reaches the sheet before the first image after the push (or there is none)."""
         return self.image_at is None or self.centre_arrival <= self.image_at
+
+    @property
+    def below(self) -> bool:
+        """The cloud has fallen out of the sheet (more than its 1/e^2 half-height) when its centre arrives."""
+        return self.fall > self.sheet_height
 
 
 @dataclass(frozen=True)
@@ -475,7 +483,28 @@ def passage(shot, act, inc, cloud, waist_y, scale=None) -> Passage:
     img = _first_image(shot, push.t0)
     if img is not None:
         out.update(image=img, image_at=img.t0 - push.t0)
+    out.update(_fall_at_sheet(shot, act, inc, out["centre_arrival"]))
     return Passage(**out)
+
+
+def _fall_at_sheet(shot, act, inc, arrival: float) -> dict:
+    """fall, released_at and sheet_height of Passage: a release after the push that leaves no trap beam on
+    lets the cloud fall freely (g t^2 / 2) until its centre reaches the sheet; the sheet's intensity falls off
+    across its wide waist w (1/e^2), along q = beam direction x push direction, so atoms that have fallen by dz
+    are |dz q_z| from its middle."""
+    beam = shot.rig.beams.get(act.args["beam"])
+    p, d = _unit(inc.direction), _unit(beam.direction) if beam is not None else None
+    if p is None or d is None or not beam.waist_m or not math.isfinite(arrival):
+        return {}
+    q = np.cross(d, p)
+    qz = abs(float(q[2])) / max(float(np.linalg.norm(q)), 1e-300)
+    height = beam.waist_m / qz if qz > 1e-9 else math.inf
+    hit = inc.push.t0 + arrival
+    for rel in sorted(a.t0 for a in shot.actions("release") if inc.push.t0 <= a.t0 < hit):
+        if not gaussian_beams(shot, [0.5 * (rel + hit)])[0]:  # nothing holds the atoms after it
+            dt = hit - rel
+            return dict(fall=0.5 * G_N * dt * dt, released_at=rel - inc.push.t0, sheet_height=height)
+    return dict(sheet_height=height)
 
 
 def centre_arrival(distance, speed, tau) -> float:

@@ -54,8 +54,8 @@ def sheet_hits(shot, before: float) -> tuple:
     out = []
     for act in barriers(shot):
         rep = analyse(shot, act)
-        if rep is None or not rep.incident.known_direction:
-            continue
+        if rep is None or not rep.incident.known_direction or rep.passage.below:
+            continue  # a push of unknown sense, or a cloud that falls under the sheet, is not split
         t_hit = rep.passage.push_t0 + rep.passage.centre_arrival
         if not (math.isfinite(t_hit) and act.t0 <= t_hit <= act.t1 and t_hit < before):
             continue
