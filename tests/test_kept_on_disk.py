@@ -159,3 +159,19 @@ def test_a_second_check_reads_what_the_first_computed(tmp_path):
     assert {"pint", "scipy.optimize"} <= set(first["loaded"])  # units parsed and traps minimised
     assert second["loaded"] == []  # every unit, trap and long ramp read from the cache folder
     assert first["report"] == second["report"]
+
+
+def test_a_cache_file_under_another_name_is_not_read(tmp_path):
+    # each stored file names its own key: a file copied over another key's name counts as missing, so the
+    # check computes that value again and reports as without a cache
+    nowhere = tmp_path / "a-file"
+    nowhere.write_text("not a folder")
+    computed = _fresh(_CHECK_LOADS, nowhere)["report"]
+    cache = tmp_path / "cache"
+    _fresh(_CHECK_LOADS, cache)
+    traps = sorted((cache / "seqgen" / "held-traps").glob("*.json"))
+    assert len(traps) >= 2
+    first = traps[0].read_bytes()
+    for p in traps[1:]:  # every file now holds the first one's value
+        p.write_bytes(first)
+    assert _fresh(_CHECK_LOADS, cache)["report"] == computed

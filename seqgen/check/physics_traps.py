@@ -252,8 +252,10 @@ def cloud_outside_view(shot):
                         f"image earlier (the part barrier '{block}' reflects flies back from the sheet), recentre the "
                         "camera (the imaging setup's center), or raise the sheet's transmission")
             else:
+                # the cloud's own half-extent reach - centre fits in the half-view: it is out because of where it
+                # is (a recentred camera or a shorter flight brings it in); else it is too large wherever it is
                 hint = ("shorten the time of flight, weaken the push or separation, or recentre the camera (the imaging "
-                        "setup's center)" if centre > half - (reach - centre) / 2 else
+                        "setup's center)" if reach - centre <= half else
                         "the cloud itself is too large for the view: shorten the time of flight or image a colder cloud")
             yield make(CLOUD_OUTSIDE_VIEW, f"after {fmt_time(pred.tof, unit='ms')} of flight {who(comp)} is centred "
                        f"{fmt_length(centre, 3, unit='mm')} from the centre of view of '{setup.name}' (image plane: {h * 1e3 + 0.0:+.3g} mm right, "

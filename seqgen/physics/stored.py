@@ -7,8 +7,8 @@ and the code (`code_stamp`: the bytes of every module of seqgen and of the physi
 and Python's versions: the computations stored are called from outside this package too, e.g. the trap
 minimisation of seqgen.predict.traps), so changed code never reads an old value.
 Files are written under a temporary name and renamed into place, so two processes starting at once never read
-half a file; a file that cannot be read or parsed counts as missing. Without a writable folder nothing is
-stored and every value is computed, as before.
+half a file; a file that cannot be read or parsed, or whose content names another key (a file renamed or copied
+by hand), counts as missing. Without a writable folder nothing is stored and every value is computed, as before.
 """
 
 from __future__ import annotations
@@ -96,7 +96,10 @@ def read(name: str, key: str):
         doc = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None
-    return doc.get("value") if isinstance(doc, dict) else None
+    # the file names its own key (a file moved or copied under another name is not another key's value)
+    if not isinstance(doc, dict) or doc.get("key") != path.stem:
+        return None
+    return doc.get("value")
 
 
 def replace_json(path: Path, doc) -> bool:
@@ -122,7 +125,7 @@ def write(name: str, key: str, value, keep: int = MAX_FILES) -> None:
     """Store `value` (JSON data) under `key`; silently nothing when the folder cannot be written. A folder of at
     most `keep` files under MAX_FILES is looked at on every write, others about one write in 256."""
     path = _file(name, key)
-    if path is None or not replace_json(path, {"value": value}):
+    if path is None or not replace_json(path, {"key": path.stem, "value": value}):
         return
     if keep < MAX_FILES or path.name.startswith("00"):  # about one write in 256 looks at the folder's size
         prune(path.parent, keep)
