@@ -25,6 +25,22 @@ def thermal_in_trap_width(temperature_K, mass_kg, omega):
     return np.sqrt(sc.k * np.asarray(temperature_K, dtype=float) / (mass_kg * np.asarray(omega, dtype=float) ** 2))
 
 
+def thermal_moments_after(X, V, C, omega, dt):
+    """Phase-space moments (<x^2> m^2, <v^2> m^2/s^2, <x v> m^2/s) of a non-interacting cloud along one axis
+    after dt in a harmonic trap of angular frequency omega (0: free flight), from X, V, C: each atom moves as
+    x = x0 cos(w t) + v0 sin(w t) / w, v = -x0 w sin(w t) + v0 cos(w t) (harmonic motion, Mechanics, 3rd ed.,
+    Pergamon (1976), section 21), so the moments transform linearly. Vectorised over axes."""
+    X, V, C, w = (np.asarray(a, dtype=float) for a in (X, V, C, omega))
+    t = np.asarray(dt, dtype=float)
+    free = w <= 0
+    ws = np.where(free, 1.0, w)
+    c, s = np.cos(ws * t), np.sin(ws * t)
+    x2 = np.where(free, X + 2 * C * t + V * t * t, X * c * c + V * s * s / ws**2 + 2 * C * c * s / ws)
+    v2 = np.where(free, V, X * ws**2 * s * s + V * c * c - 2 * C * ws * s * c)
+    xv = np.where(free, C + V * t, -X * ws * s * c + V * s * c / ws + C * (c * c - s * s))
+    return x2, v2, xv
+
+
 def thomas_fermi(number: float, mass_kg: float, scattering_length_m: float, omegas_xyz) -> tuple[float, np.ndarray]:
     """Chemical potential (J) and Thomas-Fermi radii (m, per axis) of a trapped condensate.
 

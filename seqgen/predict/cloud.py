@@ -26,6 +26,7 @@ from .species import (G_N, MU_B, bias, gaussian_beams, sample_state, scattering_
                       trap_before, unit)
 from .split import split_components
 from .states import populated_states, state_fractions
+from .thermal import thermal_history
 from .traps import held, trap_stage
 
 UP = np.array([0.0, 0.0, 1.0])  # gravity along -z, as for the trap minimisation
@@ -350,11 +351,19 @@ def _cloud_size(shot, img, rel):
         return CloudAtImage(**cloud), None
     if not s.temperature_k:
         return None, SizeUnknown(NO_TEMPERATURE_NOR_ATOMS if s.condensed else NO_TEMPERATURE)
+    hist = None
     if widths is not None:
         sigma0 = np.asarray(widths, dtype=float)  # 2 k_B T / (|mu| b'_i) per principal axis
     else:
         sigma0 = np.sqrt(sc.k * s.temperature_k / (sp.mass_kg * np.asarray(omegas, dtype=float) ** 2))
-    sizes = np.asarray(thermal_width(sigma0, s.temperature_k, sp.mass_kg, tof), dtype=float)
+        if trap == TRAP_OPTICAL:  # not in equilibrium in the release's trap after a sudden change before it
+            hist = thermal_history(shot, sp, rel.t0, s.temperature_k, ADIABATIC, HISTORY_SAMPLES, MAX_TRAP_RADIANS)
+    if hist is not None and not hist[3]:
+        X, V, C, _ = hist
+        sigma0 = np.sqrt(X)
+        sizes = np.sqrt(np.maximum(X + 2 * C * tof + V * tof * tof, 0.0))
+    else:
+        sizes = np.asarray(thermal_width(sigma0, s.temperature_k, sp.mass_kg, tof), dtype=float)
     cloud.update(size=float(np.max(sizes)), sizes=sizes, size_kind="rms width", sigma0=float(np.max(sigma0)))
     if s.condensed:
         cloud["thermal_stand_in"] = True
