@@ -22,12 +22,12 @@ from ..values import value_at
 from .cache import per_shot_cache
 from .magnetic import hold_analysis
 from .pushes import Components, played_gradient
-from .species import (G_N, MU_B, bias, gaussian_beams, sample_state, scattering_length, species, trap_beams,
+from .species import (G_N, MU_B, bias, gaussian_beams, sample_state, scattering_length, species,
                       trap_before, unit)
 from .split import split_components
 from .states import populated_states, state_fractions
 from .thermal import thermal_history
-from .traps import held, trap_stage
+from .traps import held, trap_history
 
 UP = np.array([0.0, 0.0, 1.0])  # gravity along -z, as for the trap minimisation
 EQUAL_MOMENT = 0.01 * MU_B  # moments closer than this cannot be separated
@@ -272,21 +272,9 @@ def _optical_history(shot, sp, t_rel):
     from ..physics.adiabatic import adiabaticity_parameter
     from ..physics.expansion import scaling_equilibrium
 
-    chans = {beam.power_channel for beam in trap_beams(shot)}
-    segs = [g for g in shot.segments if g.output in chans and g.t0 < t_rel]
-    ramps = [(g.t0, min(g.t1, t_rel)) for g in segs if g.t1 > g.t0]
-    edges = sorted({g.t0 for g in segs} | {r1 for _, r1 in ramps} | {t_rel})
     state = None  # (omega0, b, db, damped)
-    for a, z in zip(edges[:-1], edges[1:]):
-        if z - a < 1e-8:  # shorter than any trap period: a step
-            continue
-        if any(r0 < z and r1 > a for r0, r1 in ramps):
-            times, omegas, _ = trap_stage(shot, a, z, n=HISTORY_SAMPLES)
-        else:
-            beams = gaussian_beams(shot, [0.5 * (a + z)])[0]
-            w = held(sp, tuple(beams)).omegas if beams else None
-            times = np.array([a, z])
-            omegas = np.tile(w if w is not None else np.nan, (2, 1))
+    for times, omegas, _ in trap_history(shot, sp, t_rel, HISTORY_SAMPLES):
+        a, z = times[0], times[-1]
         if not np.all(np.isfinite(omegas)) or np.any(omegas <= 0):
             state = None  # the atoms are not held here: a later trap makes the condensate afresh
             continue

@@ -15,8 +15,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import constants as sc
 
-from .species import gaussian_beams, trap_beams
-from .traps import held, trap_stage
+from .traps import trap_history
 
 
 def thermal_history(shot, sp, t_rel, temperature_k, adiabatic: float, samples: int, max_radians: float):
@@ -28,22 +27,9 @@ def thermal_history(shot, sp, t_rel, temperature_k, adiabatic: float, samples: i
     from ..physics.expansion import thermal_moments_after
 
     v2 = sc.k * temperature_k / sp.mass_kg
-    chans = {beam.power_channel for beam in trap_beams(shot)}
-    segs = [g for g in shot.segments if g.output in chans and g.t0 < t_rel]
-    ramps = [(g.t0, min(g.t1, t_rel)) for g in segs if g.t1 > g.t0]
-    edges = sorted({g.t0 for g in segs} | {r1 for _, r1 in ramps} | {t_rel})
     state = None  # (X, V, C, at equilibrium)
-    for a, z in zip(edges[:-1], edges[1:]):
-        if z - a < 1e-8:  # shorter than any trap period: a step
-            continue
-        ramp = any(r0 < z and r1 > a for r0, r1 in ramps)
-        if ramp:
-            times, omegas, _ = trap_stage(shot, a, z, n=samples)
-        else:
-            beams = gaussian_beams(shot, [0.5 * (a + z)])[0]
-            w = held(sp, tuple(beams)).omegas if beams else None
-            times = np.array([a, z])
-            omegas = np.tile(w if w is not None else np.nan, (2, 1))
+    for times, omegas, ramp in trap_history(shot, sp, t_rel, samples):
+        a, z = times[0], times[-1]
         if not np.all(np.isfinite(omegas)) or np.any(omegas <= 0):
             state = None  # not held here: a later trap holds a cloud afresh
             continue

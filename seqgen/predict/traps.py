@@ -333,3 +333,26 @@ def span_prediction(shot, t0, t1, n=N_SAMPLES, extra=(), bound=1e-2) -> TrapStag
                 exc.append(float("nan"))
         excitation = tuple(exc)
     return TrapStage(times, omegas, depth_g, eta, adiabaticity, excitation, False, *heat, source=source)
+
+
+def trap_history(shot, sp, t_rel, samples: int):
+    """The optical trap's stretches before t_rel, in time order: (times, omegas (n, 3) rad/s ascending per
+    time, ramp) with the trap changing only where a trap beam's power channel is written: a set is a sudden
+    change between stretches, a ramp is sampled `samples` times by `trap_stage`, a constant stretch has its two
+    ends; omegas are NaN where no trap holds the atoms."""
+    chans = {beam.power_channel for beam in trap_beams(shot)}
+    segs = [g for g in shot.segments if g.output in chans and g.t0 < t_rel]
+    ramps = [(g.t0, min(g.t1, t_rel)) for g in segs if g.t1 > g.t0]
+    edges = sorted({g.t0 for g in segs} | {r1 for _, r1 in ramps} | {t_rel})
+    for a, z in zip(edges[:-1], edges[1:]):
+        if z - a < 1e-8:  # shorter than any trap period: a step
+            continue
+        ramp = any(r0 < z and r1 > a for r0, r1 in ramps)
+        if ramp:
+            times, omegas, _ = trap_stage(shot, a, z, n=samples)
+        else:
+            beams = gaussian_beams(shot, [0.5 * (a + z)])[0]
+            w = held(sp, tuple(beams)).omegas if beams else None
+            times = np.array([a, z])
+            omegas = np.tile(w if w is not None else np.nan, (2, 1))
+        yield times, omegas, ramp
