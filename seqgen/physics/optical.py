@@ -136,6 +136,27 @@ def rayleigh_length(waist_m, wavelength_m):
     return np.pi * np.asarray(waist_m, dtype=float) ** 2 / np.asarray(wavelength_m, dtype=float)
 
 
+@functools.lru_cache(maxsize=1024)
+def _beam_geometry(direction, waist_axis, focus, waist_m, waist2_m, wavelength_m):
+    """(direction, waist axis, focus as tuples, frame (rows: direction, waist axis, third axis; read-only),
+    Rayleigh lengths of both waists) of a GaussianBeam (see its doc)."""
+    k = _unit(direction)
+    if waist_axis is None:
+        ref = np.array([0.0, 0.0, 1.0]) if abs(k[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
+    else:
+        ref = _unit(waist_axis)
+    e1 = ref - np.dot(ref, k) * k
+    if np.linalg.norm(e1) < 1e-9:
+        raise ValueError("waist_axis must not be parallel to the beam")
+    axis = tuple(e1 / np.linalg.norm(e1))
+    e1 = np.asarray(axis)
+    frame = np.array([k, e1, np.cross(k, e1)])
+    frame.setflags(write=False)
+    w2 = waist_m if waist2_m is None else waist2_m
+    return (tuple(k), axis, tuple(np.asarray(focus, dtype=float).reshape(3)), frame,
+            (rayleigh_length(waist_m, wavelength_m), rayleigh_length(w2, wavelength_m)))
+
+
 def _unit(v) -> np.ndarray:
     v = np.asarray(v, dtype=float)
     n = np.linalg.norm(v)
@@ -170,24 +191,23 @@ class GaussianBeam:
             raise ValueError("GaussianBeam needs power >= 0, waist > 0, wavelength > 0")
         if self.waist2_m is not None and not self.waist2_m > 0:
             raise ValueError("waist2_m must be > 0")
-        k = _unit(self.direction)
-        if self.waist_axis is None:
-            ref = np.array([0.0, 0.0, 1.0]) if abs(k[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
-        else:
-            ref = _unit(self.waist_axis)
-        e1 = ref - np.dot(ref, k) * k
-        if np.linalg.norm(e1) < 1e-9:
-            raise ValueError("waist_axis must not be parallel to the beam")
-        object.__setattr__(self, "direction", tuple(k))
-        object.__setattr__(self, "waist_axis", tuple(e1 / np.linalg.norm(e1)))
-        object.__setattr__(self, "focus_m", tuple(np.asarray(self.focus_m, dtype=float).reshape(3)))
-        e1 = np.asarray(self.waist_axis)
-        frame = np.array([k, e1, np.cross(k, e1)])
-        frame.setflags(write=False)
+        try:  # the geometry depends on everything but the power: shared by the beams of every time and shot
+            key = (tuple(float(x) for x in self.direction),
+                   None if self.waist_axis is None else tuple(float(x) for x in self.waist_axis),
+                   tuple(float(x) for x in np.asarray(self.focus_m, dtype=float).reshape(3)),
+                   float(self.waist_m), None if self.waist2_m is None else float(self.waist2_m),
+                   float(self.wavelength_m))
+        except (TypeError, ValueError):
+            key = None
+        direction, waist_axis, focus, frame, rayleigh = (_beam_geometry(*key) if key is not None else
+                                                         _beam_geometry.__wrapped__(self.direction, self.waist_axis,
+                                                                                    self.focus_m, *self.waists,
+                                                                                    self.wavelength_m))
+        object.__setattr__(self, "direction", direction)
+        object.__setattr__(self, "waist_axis", waist_axis)
+        object.__setattr__(self, "focus_m", focus)
         object.__setattr__(self, "_frame", frame)
-        w1, w2 = self.waists
-        object.__setattr__(self, "_rayleigh", (rayleigh_length(w1, self.wavelength_m),
-                                               rayleigh_length(w2, self.wavelength_m)))
+        object.__setattr__(self, "_rayleigh", rayleigh)
 
     @property
     def waists(self) -> tuple[float, float]:
