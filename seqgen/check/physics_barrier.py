@@ -135,7 +135,7 @@ def barrier_not_reached(shot):
         start = shot.block(img.block).start_s
         # image once 90 % has crossed (the fraction physics.barrier-too-short counts), at least at the centre
         want = max(ps.cross_by, ps.centre_arrival)
-        if math.isfinite(want) and ps.push_t0 + want > ps.push_t0 + ps.off:  # the sheet is off by then
+        if math.isfinite(want) and want > ps.off:  # the sheet is off by then
             hint = (f"keep the barrier on for at least {duration_text(shot, act, outward(want - ps.on, strict=True), 'up', unit='ms')} "
                     f"and image once 90 % of the cloud has crossed it ({fmt_time(want, unit='ms')} after the push starts); "
                     f"or push harder")

@@ -84,16 +84,18 @@ BARRIER_TOO_LATE = Code(
 
 BARRIER_NOT_REACHED = Code(
     "physics.barrier-not-reached", "error", stage="physics",
-    source=_PASSAGE,
+    source=_PASSAGE + "; free fall g t^2/2 with standard gravity (SI Brochure, 9th ed. (2019))",
     doc="""
-    The first image after the push comes before the cloud's centre reaches
-    the sheet (arrival t = tau + (d - v tau/2)/v after the push starts, for a
-    push of duration tau to the speed v, the sheet d away): the image ends the
-    flight, so most imaged atoms never met the barrier and its predicted
-    transmission does not happen. A release of the guide does not count: the
-    motion along the path goes on in free flight until the image. Image
-    later (the hint names the image's time by which 90 % of the cloud has
-    crossed, as physics.barrier-too-short counts it), or push harder.""")
+    The cloud never meets the sheet. Either the first image after the push
+    comes before the cloud's centre reaches the sheet (arrival t = tau +
+    (d - v tau/2)/v after the push starts, for a push of duration tau to the
+    speed v, the sheet d away): the image ends the flight; image later (the
+    hint names the image's time by which 90 % of the cloud has crossed, as
+    physics.barrier-too-short counts it), or push harder. Or a release that
+    leaves no trap beam on lets the cloud fall, and by the centre's arrival it
+    has fallen g t^2/2 more than the sheet's 1/e^2 half-height along the
+    vertical: it passes under the sheet; release it later. Either way its
+    predicted transmission does not happen and the cloud is not split.""")
 
 BARRIER_TOO_SHORT = Code(
     "physics.barrier-too-short", "warning", stage="physics",

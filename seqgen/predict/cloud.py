@@ -22,7 +22,7 @@ from ..values import value_at
 from .cache import per_shot_cache
 from .magnetic import hold_analysis
 from .pushes import Components, played_gradient
-from .species import (G_N, MU_B, bias, gaussian_beams, sample_state, scattering_length, species,
+from .species import (G_N, MU_B, bias, gaussian_beams, release_before, sample_state, scattering_length, species,
                       trap_before, unit)
 from .split import split_components
 from .states import populated_states, state_fractions
@@ -171,11 +171,6 @@ class ImagePrediction:
     top_down: bool = False
     state_known: bool = True
     extents: tuple = (0.0, 0.0, 0.0, 0.0)
-
-
-def _release_before(shot, t):
-    rels = [a for a in shot.actions("release") if a.t0 <= t]
-    return max(rels, key=lambda a: a.t0) if rels else None
 
 
 def _magnetic_hold_before(shot, t):
@@ -383,7 +378,7 @@ def image_prediction(shot, img) -> ImagePrediction | None:
     if sp is None or shot.sample is None:
         return None
     setup = shot.rig.imaging.get(img.args.get("setup"))
-    rel = _release_before(shot, img.t0)
+    rel = release_before(shot, img.t0)
     if rel is None:
         return ImagePrediction(setup, why=SizeUnknown(IN_SITU))
     tof = img.t0 - rel.t0

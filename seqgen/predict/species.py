@@ -30,6 +30,12 @@ def trap_beams(shot):
     return [b for b in shot.rig.beams.values() if b.role == "trap" and b.waist_m]
 
 
+def release_before(shot, t):
+    """The last release action that has begun by t, or None."""
+    rels = [a for a in shot.actions("release") if a.t0 <= t]
+    return max(rels, key=lambda a: a.t0) if rels else None
+
+
 def trap_before(shot, t: float) -> float:
     """A moment just before `t` at which the trap is read, as played: a write at `t` (a release, a trap beam
     switched off as a push starts) lands on its device's tick, half a tick either way (250 ns early for 31.25 us

@@ -27,7 +27,7 @@ import numpy as np
 from .barrier import analyse
 from .cache import per_shot_cache
 from .pushes import Components, components_at, confinement_bound, gather, motion_at
-from .species import G_N, species
+from .species import G_N, release_before, species
 from .states import barriers, populations, state_at
 
 TRANSMITTED, REFLECTED = "transmitted", "reflected"
@@ -64,11 +64,6 @@ def sheet_hits(shot, before: float) -> tuple:
         out.append(SheetHit(act, act.block, float(t_hit), tuple(float(x) for x in n), rep.passage.distance,
                             rep.waist_y, rep.T))
     return tuple(sorted(out, key=lambda h: h.time))
-
-
-def _release_time(shot, t):
-    rels = [a.t0 for a in shot.actions("release") if a.t0 <= t]
-    return max(rels) if rels else None
 
 
 def _fall(t_rel, t):
@@ -108,7 +103,8 @@ def split_components(shot, img) -> Components | None:
         return components_at(shot, img)
     pop = populations(shot, img.t0)
     paths = pop.paths if pop is not None else [(1.0, ((-math.inf, None),))]
-    t_rel = _release_time(shot, img.t0)
+    rel = release_before(shot, img.t0)  # the release the image's cloud falls from, as in `cloud`
+    t_rel = rel.t0 if rel is not None else None
     # a branch: (path index, fraction of the path, reflections ((hit, velocity change (3,)), ...), split)
     branches = [(k, 1.0, (), ()) for k in range(len(paths))]
     for hit in hits:
